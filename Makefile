@@ -1,0 +1,50 @@
+# strikeline: the two set-up commands are `make demo` and `make test`.
+# Both work from nothing on Debian/Ubuntu: system packages, the .venv, then the package.
+
+PYTHON      ?= python3
+VENV        := .venv
+VPY         := $(VENV)/bin/python
+VPIP        := $(VPY) -m pip --disable-pip-version-check -q
+STAMP       := $(VENV)/.strikeline-installed
+APT_PKGS    := libgdal-dev gdal-bin
+# numpy is pinned below 2 because GDAL 3.6's bindings (Debian 12) predate numpy 2's C API.
+NUMPY_PIN   := numpy==1.26.4
+
+.PHONY: demo test test-lib setup sysdeps bench clean
+
+demo: setup
+	$(VENV)/bin/strikeline demo --out demo-output --overwrite
+
+test: setup
+	bash .ci/pytest-strict $(VPY) tests
+
+setup: $(STAMP)
+
+sysdeps:
+	@if ! command -v gdal-config >/dev/null 2>&1 || ! command -v gdal_contour >/dev/null 2>&1 \
+	    || ! $(PYTHON) -c 'import venv, ensurepip' >/dev/null 2>&1; then \
+	  if [ "$$(id -u)" = 0 ]; then \
+	    echo "strikeline: installing Debian packages: $(APT_PKGS) python3-venv python3-dev"; \
+	    apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq $(APT_PKGS) python3-venv python3-dev >/dev/null; \
+	  else \
+	    echo "strikeline: missing system packages; run: sudo apt-get install -y $(APT_PKGS) python3-venv python3-dev"; \
+	    exit 1; \
+	  fi; \
+	fi
+
+$(STAMP): pyproject.toml | sysdeps
+	@test -x $(VPY) || $(PYTHON) -m venv $(VENV)
+	$(VPIP) install --upgrade pip 'setuptools>=68' wheel
+	$(VPIP) install $(NUMPY_PIN)
+	@$(VPY) -c 'from osgeo import gdal_array' 2>/dev/null || \
+	  $(VPIP) install --no-build-isolation --no-cache-dir GDAL==$$(gdal-config --version)
+	$(VPY) -c 'from osgeo import gdal, gdal_array; print("strikeline: GDAL", gdal.__version__, "with numpy arrays")'
+	$(VPIP) install -e '.[dev]' $(NUMPY_PIN)
+	@touch $(STAMP)
+
+bench: setup
+	$(VPY) bench/bench_picks.py
+	$(VPY) bench/bench_dipgrids.py
+
+clean:
+	rm -rf $(VENV) demo-output .pytest_cache build *.egg-info algorithms/*.egg-info
