@@ -10,13 +10,17 @@ APT_PKGS    := libgdal-dev gdal-bin
 # numpy is pinned below 2 because GDAL 3.6's bindings (Debian 12) predate numpy 2's C API.
 NUMPY_PIN   := numpy==1.26.4
 
-.PHONY: demo test test-lib setup sysdeps bench clean
+.PHONY: demo test setup sysdeps bench clean
+
+# QGIS adapter: its environment, tests and plugin zip live in qgis.mk
+include qgis.mk
 
 demo: setup
 	$(VENV)/bin/strikeline demo --out demo-output --overwrite
 
 test: setup
-	bash .ci/pytest-strict $(VPY) tests
+	bash .ci/pytest-strict $(VPY) tests --ignore=tests/qgis
+	$(MAKE) --no-print-directory test-qgis
 
 setup: $(STAMP)
 
