@@ -1,0 +1,46 @@
+"""``strikeline demo``: the whole chain on the bundled fictional demo sheet."""
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+from strikeline.cli.options import EPILOG
+from strikeline.errors import InputError
+
+HELP = "run the whole chain on the bundled demo sheet (DEM and contour picks together)"
+
+
+def demo_dir() -> Path:
+    """The demo sheet of a source checkout (``test_data/demo`` beside ``algorithms/``)."""
+    return Path(__file__).resolve().parents[2] / "test_data" / "demo"
+
+
+def add_parser(sub) -> argparse.ArgumentParser:
+    p = sub.add_parser("demo", help=HELP, description=HELP + ".", epilog=EPILOG)
+    p.add_argument("--out", default="demo-output", metavar="DIR", help="output folder (default demo-output)")
+    p.add_argument("--overwrite", action="store_true", help="replace an existing output folder")
+    p.set_defaults(handler=main)
+    return p
+
+
+def demo_options(out, *, overwrite=False):
+    from strikeline.pipeline import RunOptions
+
+    d = demo_dir()
+    if not (d / "dem.tif").exists():
+        raise InputError(f"demo sheet not found in '{d}'; run strikeline demo from a source checkout "
+                         "(or regenerate it with test_data/make_demo_sheet.py)")
+    return RunOptions(contacts=str(d / "contacts.gpkg"), dem=str(d / "dem.tif"),
+                      contours=str(d / "contours.gpkg"), elev_field="elev_m", out=str(out),
+                      overwrite=overwrite, interval_m=50.0)
+
+
+def main(args) -> int:
+    from strikeline.cli.run import report
+    from strikeline.pipeline import run
+
+    opts = demo_options(args.out, overwrite=args.overwrite)
+    results = run(opts, log=lambda m: print(m, file=sys.stderr))
+    report(results, opts.out)
+    return 0

@@ -1,0 +1,33 @@
+"""GDAL/OGR session helpers shared by the I/O modules.
+
+GDAL's exception mode is process-global. Inside QGIS other code may rely on the old mode, so
+strikeline turns exceptions on only for the duration of its own calls and restores the previous
+mode afterwards.
+"""
+from __future__ import annotations
+
+import contextlib
+
+from osgeo import gdal, ogr, osr
+
+from strikeline.errors import one_line
+
+
+@contextlib.contextmanager
+def gdal_exceptions():
+    """Enable GDAL/OGR/OSR exceptions inside the block, restoring the caller's mode after."""
+    previous = (gdal.GetUseExceptions(), ogr.GetUseExceptions(), osr.GetUseExceptions())
+    for module in (gdal, ogr, osr):
+        module.UseExceptions()
+    try:
+        yield
+    finally:
+        # GDAL keeps a stack of error handlers: undo in the reverse order of setting.
+        for module, was in reversed(list(zip((gdal, ogr, osr), previous))):
+            if not was:
+                module.DontUseExceptions()
+
+
+def gdal_message(exc: BaseException) -> str:
+    """GDAL's own text for an exception, on one line."""
+    return one_line(str(exc)) or type(exc).__name__

@@ -1,0 +1,109 @@
+"""Reading and writing rasters (GeoTIFF) through GDAL.
+
+Rasters come back as ``(array, grid)``: a float64 array with NaN for nodata and a
+:class:`strikeline.grid.Grid` carrying geotransform, CRS WKT and the band's nodata value.
+"""
+from __future__ import annotations
+
+import os
+
+import numpy as np
+from osgeo import gdal
+
+from strikeline.errors import InputError, OutputError, RasterReadError
+from strikeline.grid import Grid
+from strikeline.io._gdal import gdal_exceptions, gdal_message
+from strikeline.io.crs import require_projected_metres, srs_from_wkt
+
+#: Nodata written into strikeline's own float32 GeoTIFFs.
+NODATA_OUT = -99999.0
+
+
+def read_raster(path, *, label: str = "raster", band: int = 1) -> tuple[np.ndarray, Grid]:
+    """Read one band of a raster as float64 with NaN for nodata.
+
+    Parameters
+    ----------
+    path : str or PathLike
+    label : str
+        How to name the raster in messages (``"DEM"``).
+    band : int
+
+    Raises
+    ------
+    InputError
+        Missing file, or a band that holds no valid cell.
+    RasterReadError
+        GDAL cannot open or read the file (GDAL's message is included).
+    CRSError
+        The raster has no CRS, or its CRS is geographic or not in metres.
+    """
+    path = os.fspath(path)
+    what = f"{label} '{path}'"
+    if not os.path.exists(path):
+        raise InputError(f"{what}: file not found; check the path")
+    with gdal_exceptions():
+        try:
+            ds = gdal.Open(path, gdal.GA_ReadOnly)
+        except RuntimeError as exc:
+            raise RasterReadError(
+                f"{what}: GDAL cannot open it as a raster ({gdal_message(exc)}); give a GeoTIFF or "
+                "another raster format GDAL reads"
+            ) from None
+        try:
+            if band > ds.RasterCount:
+                raise InputError(f"{what} has {ds.RasterCount} band(s), band {band} was asked for")
+            gt = ds.GetGeoTransform(can_return_null=True)
+            if gt is None:
+                raise InputError(f"{what} has no georeferencing; georeference it and try again")
+            wkt = ds.GetProjection() or ""
+            shape = (ds.RasterYSize, ds.RasterXSize)
+            grid_probe = Grid(gt, shape, wkt)
+            xmin, ymin, xmax, ymax = grid_probe.bounds
+            require_projected_metres(srs_from_wkt(wkt), what=what,
+                                     centre_xy=((xmin + xmax) / 2, (ymin + ymax) / 2))
+            b = ds.GetRasterBand(band)
+            nodata = b.GetNoDataValue()
+            try:
+                arr = b.ReadAsArray().astype(np.float64)
+            except RuntimeError as exc:
+                raise RasterReadError(f"{what}: GDAL could not read band {band} ({gdal_message(exc)})") from None
+        finally:
+            ds = None
+    if nodata is not None:
+        arr[arr == nodata] = np.nan
+    arr[~np.isfinite(arr)] = np.nan
+    if not np.isfinite(arr).any():
+        raise InputError(f"{what} holds no valid cell (every cell is nodata); give a raster with data")
+    return arr, Grid(gt, shape, wkt, nodata)
+
+
+def write_geotiff(path, array, grid: Grid, *, nodata: float = NODATA_OUT) -> None:
+    """Write a float32 GeoTIFF (DEFLATE, tiled) with CRS and nodata set; NaN becomes nodata.
+
+    The file is written under a temporary name and renamed into place, so a failed write
+    leaves nothing at ``path``.
+    """
+    path = os.fspath(path)
+    a = np.asarray(array, dtype=np.float32)
+    if a.shape != grid.shape:
+        raise OutputError(f"'{path}': array shape {a.shape} does not match the grid {grid.shape}")
+    tmp = path + ".part"
+    with gdal_exceptions():
+        try:
+            drv = gdal.GetDriverByName("GTiff")
+            opts = ["COMPRESS=DEFLATE", "PREDICTOR=3", "TILED=YES", "BIGTIFF=IF_SAFER"]
+            ds = drv.Create(tmp, grid.cols, grid.rows, 1, gdal.GDT_Float32, options=opts)
+            ds.SetGeoTransform(grid.transform)
+            if grid.crs_wkt:
+                ds.SetProjection(grid.crs_wkt)
+            b = ds.GetRasterBand(1)
+            b.SetNoDataValue(nodata)
+            b.WriteArray(np.where(np.isfinite(a), a, np.float32(nodata)))
+            b.FlushCache()
+            ds = None
+        except RuntimeError as exc:
+            if os.path.exists(tmp):
+                os.remove(tmp)
+            raise OutputError(f"'{path}': GDAL could not write it ({gdal_message(exc)})") from None
+    os.replace(tmp, path)

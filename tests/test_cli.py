@@ -1,0 +1,237 @@
+"""End-to-end: ``strikeline run`` / ``strikeline demo`` on the demo sheet, and bad input.
+
+The demo sheet is invented (test_data/make_demo_sheet.py); the reference for what comes out is
+the analytic plane it was built from (truth.json), and GDAL's own processing where noted.
+"""
+import hashlib
+import json
+from pathlib import Path
+
+import numpy as np
+import pytest
+import shapely
+from osgeo import gdal, ogr
+
+from conftest import write_lines
+
+# Tolerances set by the issue (end-to-end acceptance): 0.5 deg of dip, 1 deg of dip direction,
+# trace misfit median below one DEM cell (10 m on the demo sheet).
+DIP_TOL_DEG = 0.5
+DIP_DIRECTION_TOL_DEG = 1.0
+DEMO_CELL_M = 10.0
+
+
+def _angle_diff(a, b):
+    return abs((a - b + 180.0) % 360.0 - 180.0)
+
+
+def _hashes(folder):
+    return {p.name: hashlib.sha256(p.read_bytes()).hexdigest() for p in Path(folder).iterdir() if p.is_file()}
+
+
+@pytest.fixture(scope="module")
+def demo_run(tmp_path_factory, demo):
+    from conftest import run_cli
+
+    before = _hashes(demo["dir"])
+    out = tmp_path_factory.mktemp("demo") / "demo-output"
+    proc = run_cli("demo", "--out", out)
+    assert _hashes(demo["dir"]) == before, "the demo inputs must never be modified"
+    return proc, out
+
+
+def test_demo_runs_and_writes_every_output(demo_run, demo):
+    proc, out = demo_run
+    assert proc.returncode == 0, proc.stderr
+    for name in ("results.gpkg", "surface.tif", "dip.tif", "dip_direction.tif", "depth.tif", "summary.json"):
+        assert (out / name).is_file(), name
+    assert "not a substitute for site investigation" in proc.stdout
+    ds = ogr.Open(str(out / "results.gpkg"))
+    names = {ds.GetLayer(i).GetName() for i in range(ds.GetLayerCount())}
+    assert {"picks", "structure_contours", "predicted_trace"} <= names
+    for name in ("surface.tif", "dip.tif", "dip_direction.tif", "depth.tif"):
+        r = gdal.Open(str(out / name))
+        assert r.GetRasterBand(1).DataType == gdal.GDT_Float32
+        assert r.GetRasterBand(1).GetNoDataValue() is not None
+        assert "32631" in r.GetProjection() or "UTM zone 31N" in r.GetProjection()
+        assert r.GetMetadata("IMAGE_STRUCTURE").get("COMPRESSION") == "DEFLATE"
+
+
+def test_demo_summary_recovers_the_plane(demo_run, demo):
+    _, out = demo_run
+    s = json.loads((out / "summary.json").read_text())
+    t = demo["truth"]  # Source: the analytic plane the demo sheet was generated from (truth.json)
+    for key in ("crs", "n_picks", "picks_by_source", "plane", "trace_misfit_m", "inputs", "version", "caution"):
+        assert key in s
+    assert s["crs"] == "EPSG:32631"
+    assert s["picks_by_source"]["dem"] > 100 and s["picks_by_source"]["contours"] > 50
+    assert s["n_picks"] == s["picks_by_source"]["dem"] + s["picks_by_source"]["contours"]
+    assert abs(s["plane"]["dip"] - t["dip_deg"]) < DIP_TOL_DEG
+    assert _angle_diff(s["plane"]["dip_direction"], t["dip_direction_deg"]) < DIP_DIRECTION_TOL_DEG
+    # strike by the right-hand rule is dip direction - 90 (common practice)
+    assert _angle_diff(s["plane"]["strike_rhr"], s["plane"]["dip_direction"] - 90.0) < 1e-6
+    assert s["trace_misfit_m"]["median"] < DEMO_CELL_M
+    assert set(s["inputs"]) == {"contacts.gpkg", "dem.tif", "contours.gpkg"}
+    assert all(len(h) == 64 for h in s["inputs"].values())
+
+
+def test_structure_contours_are_multiples_of_interval_and_on_the_plane(demo_run):
+    _, out = demo_run
+    s = json.loads((out / "summary.json").read_text())
+    nx_, ny_ = None, None
+    from strikeline.orientation import normal_from_dip
+
+    n = normal_from_dip(s["plane"]["dip_direction"], s["plane"]["dip"])
+    cx, cy, cz = s["plane"]["centroid"]
+    lyr = ogr.Open(str(out / "results.gpkg")).GetLayerByName("structure_contours")
+    assert lyr.GetFeatureCount() > 5
+    for f in lyr:
+        z = f.GetField("elevation")
+        assert z % 50.0 == pytest.approx(0.0, abs=1e-9)
+        xy = shapely.get_coordinates(shapely.from_wkb(bytes(f.GetGeometryRef().ExportToWkb())))
+        plane_z = cz - (n[0] * (xy[:, 0] - cx) + n[1] * (xy[:, 1] - cy)) / n[2]
+        # summary rounds the attitude to 1e-3 deg; over ~3 km that is < 0.1 m
+        assert np.max(np.abs(plane_z - z)) < 0.1
+    del nx_, ny_
+
+
+@pytest.mark.parametrize("source", ["dem", "contours"])
+def test_each_source_alone_recovers_the_plane(tmp_path, demo, cli, source):
+    args = ["run", "--contacts", demo["contacts"], "--out", tmp_path / "out"]
+    if source == "dem":
+        args += ["--dem", demo["dem"]]
+    else:
+        args += ["--contours", demo["contours"], "--elev-field", demo["elev_field"], "--cell", "20"]
+    proc = cli(*args)
+    assert proc.returncode == 0, proc.stderr
+    s = json.loads((tmp_path / "out" / "summary.json").read_text())
+    t = demo["truth"]  # Source: the analytic plane of the demo sheet (truth.json)
+    other = "contours" if source == "dem" else "dem"
+    assert s["picks_by_source"][other] == 0 and s["picks_by_source"][source] > 50
+    assert abs(s["plane"]["dip"] - t["dip_deg"]) < DIP_TOL_DEG
+    assert _angle_diff(s["plane"]["dip_direction"], t["dip_direction_deg"]) < DIP_DIRECTION_TOL_DEG
+
+
+def test_reprojected_contacts_give_the_same_answer(tmp_path, demo, cli):
+    # The contacts are reprojected to the neighbouring UTM zone by GDAL's own VectorTranslate
+    # (the general-purpose reference); strikeline must bring them back and answer the same.
+    other = str(tmp_path / "contacts_32632.gpkg")
+    gdal.VectorTranslate(other, demo["contacts"], dstSRS="EPSG:32632", format="GPKG")
+    a = cli("run", "--contacts", demo["contacts"], "--dem", demo["dem"], "--out", tmp_path / "a")
+    b = cli("run", "--contacts", other, "--dem", demo["dem"], "--out", tmp_path / "b")
+    assert a.returncode == 0 and b.returncode == 0, b.stderr
+    assert "reprojecting contacts" in b.stderr and "EPSG:32632" in b.stderr
+    sa = json.loads((tmp_path / "a" / "summary.json").read_text())["plane"]
+    sb = json.loads((tmp_path / "b" / "summary.json").read_text())["plane"]
+    assert sb["dip"] == pytest.approx(sa["dip"], abs=1e-3)
+    assert _angle_diff(sb["dip_direction"], sa["dip_direction"]) < 1e-3
+
+
+def test_overwrite_replaces_an_existing_folder(tmp_path, demo, cli):
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "old.txt").write_text("old")
+    proc = cli("run", "--contacts", demo["contacts"], "--dem", demo["dem"], "--out", out, "--overwrite")
+    assert proc.returncode == 0, proc.stderr
+    assert not (out / "old.txt").exists() and (out / "summary.json").exists()
+    assert [p.name for p in tmp_path.iterdir()] == ["out"]  # no temporary siblings left behind
+
+
+def test_summary_is_byte_identical_between_runs(tmp_path, demo, cli):
+    for name in ("a", "b"):
+        assert cli("run", "--contacts", demo["contacts"], "--dem", demo["dem"], "--out", tmp_path / name).returncode == 0
+    assert (tmp_path / "a" / "summary.json").read_bytes() == (tmp_path / "b" / "summary.json").read_bytes()
+
+
+def test_version(cli):
+    proc = cli("--version")
+    assert proc.returncode == 0 and proc.stdout.startswith("strikeline ")
+
+
+# --------------------------------------------------------------------------- bad input
+def _bad_inputs(tmp_path, demo):
+    """Each case: (args, words the error must contain). Files are derived from the demo sheet."""
+    d = demo
+    cases = {}
+    geo = str(tmp_path / "dem_wgs84.tif")
+    gdal.Warp(geo, d["dem"], dstSRS="EPSG:4326")
+    cases["geographic DEM"] = (["--contacts", d["contacts"], "--dem", geo],
+                               [geo, "geographic", "EPSG:4326", "EPSG:32631"])
+    # a Shapefile without its .prj has no CRS
+    nocrs = tmp_path / "nocrs.shp"
+    gdal.VectorTranslate(str(nocrs), d["contacts"], format="ESRI Shapefile")
+    nocrs.with_suffix(".prj").unlink()
+    cases["contacts without CRS"] = (["--contacts", nocrs, "--dem", d["dem"]],
+                                     [str(nocrs), "no coordinate reference system", "assign"])
+    far = write_lines(tmp_path / "far.gpkg", [shapely.LineString([(600000, 5000000), (601000, 5001000)])], epsg=32631)
+    cases["contact outside the DEM"] = (["--contacts", far, "--dem", d["dem"]],
+                                        [d["dem"], "outside", "covers the contacts"])
+    cases["missing --elev-field"] = (["--contacts", d["contacts"], "--contours", d["contours"]],
+                                     [d["contours"], "--elev-field"])
+    txt = write_lines(tmp_path / "txt_contours.gpkg",
+                      [shapely.LineString([(487000, 5216000), (489000, 5216000)])], epsg=32631,
+                      fields={"elev_txt": ["five hundred"]})
+    cases["non-numeric elevations"] = (["--contacts", d["contacts"], "--contours", txt, "--elev-field", "elev_txt"],
+                                       [txt, "elev_txt", "not numeric"])
+    empty = write_lines(tmp_path / "empty.gpkg", [], epsg=32631)
+    cases["empty layer"] = (["--contacts", empty, "--dem", d["dem"]], [empty, "no feature"])
+    # three horizontal contours 100 m apart; a short contact crossing two of them
+    contours3 = write_lines(tmp_path / "c3.gpkg", [shapely.LineString([(487000, y), (489000, y)])
+                                                   for y in (5216000, 5216100, 5216200)],
+                            epsg=32631, fields={"z": [500.0, 510.0, 520.0]})
+    two = write_lines(tmp_path / "two.gpkg", [shapely.LineString([(488000, 5215950), (488050, 5216150)])], epsg=32631)
+    cases["fewer than three picks"] = (["--contacts", two, "--contours", contours3, "--elev-field", "z"],
+                                       [two, "only 2 usable pick", "add"])
+    straight = write_lines(tmp_path / "straight.gpkg",
+                           [shapely.LineString([(488000, 5215950), (488100, 5216250)])], epsg=32631)
+    cases["collinear picks"] = (["--contacts", straight, "--contours", contours3, "--elev-field", "z"],
+                                [straight, "one straight line", "undetermined"])
+    nodata = str(tmp_path / "nodata.tif")
+    src = gdal.Open(d["dem"])
+    nd = gdal.GetDriverByName("GTiff").CreateCopy(nodata, src)
+    band = nd.GetRasterBand(1)
+    band.Fill(band.GetNoDataValue())
+    nd = None
+    cases["all-nodata DEM"] = (["--contacts", d["contacts"], "--dem", nodata], [nodata, "no valid cell"])
+    missing = str(tmp_path / "nowhere.gpkg")
+    cases["missing file"] = (["--contacts", missing, "--dem", d["dem"]], [missing, "not found"])
+    return cases
+
+
+BAD_CASES = ["geographic DEM", "contacts without CRS", "contact outside the DEM", "missing --elev-field",
+             "non-numeric elevations", "empty layer", "fewer than three picks", "collinear picks",
+             "all-nodata DEM", "missing file"]
+
+
+@pytest.mark.parametrize("case", BAD_CASES)
+def test_bad_input_gives_one_clear_line_and_writes_nothing(tmp_path, demo, cli, case):
+    args, words = _bad_inputs(tmp_path, demo)[case]
+    inputs = {p: hashlib.sha256(Path(p).read_bytes()).hexdigest() for p in map(str, args) if Path(p).is_file()}
+    out = tmp_path / "results"
+    before = sorted(p.name for p in tmp_path.iterdir())
+    proc = cli("run", *args, "--out", out)
+    assert proc.returncode == 2, (proc.returncode, proc.stderr)
+    lines = proc.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("error: "), proc.stderr
+    assert "Traceback" not in proc.stderr
+    for w in words:
+        assert str(w) in lines[0], (w, lines[0])
+    assert not out.exists()
+    assert sorted(p.name for p in tmp_path.iterdir()) == before  # no partial or temporary output
+    assert {p: hashlib.sha256(Path(p).read_bytes()).hexdigest() for p in inputs} == inputs
+
+
+def test_existing_folder_is_not_touched_without_overwrite(tmp_path, demo, cli):
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "keep.txt").write_text("mine")
+    proc = cli("run", "--contacts", demo["contacts"], "--dem", demo["dem"], "--out", out)
+    assert proc.returncode == 2
+    assert proc.stderr.startswith("error: ") and "already exists" in proc.stderr and "--overwrite" in proc.stderr
+    assert [p.name for p in out.iterdir()] == ["keep.txt"]
+
+
+def test_usage_errors_are_one_line(cli):
+    proc = cli("run", "--contacts")
+    assert proc.returncode == 2
+    assert len(proc.stderr.strip().splitlines()) == 1 and proc.stderr.startswith("error: ")
