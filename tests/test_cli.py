@@ -78,12 +78,12 @@ def test_demo_summary_recovers_the_plane(demo_run, demo):
 def test_structure_contours_are_multiples_of_interval_and_on_the_plane(demo_run):
     _, out = demo_run
     s = json.loads((out / "summary.json").read_text())
-    nx_, ny_ = None, None
     from strikeline.orientation import normal_from_dip
 
     n = normal_from_dip(s["plane"]["dip_direction"], s["plane"]["dip"])
     cx, cy, cz = s["plane"]["centroid"]
-    lyr = ogr.Open(str(out / "results.gpkg")).GetLayerByName("structure_contours")
+    ds = ogr.Open(str(out / "results.gpkg"))  # keep the data source alive while its layer is used
+    lyr = ds.GetLayerByName("structure_contours")
     assert lyr.GetFeatureCount() > 5
     for f in lyr:
         z = f.GetField("elevation")
@@ -92,7 +92,6 @@ def test_structure_contours_are_multiples_of_interval_and_on_the_plane(demo_run)
         plane_z = cz - (n[0] * (xy[:, 0] - cx) + n[1] * (xy[:, 1] - cy)) / n[2]
         # summary rounds the attitude to 1e-3 deg; over ~3 km that is < 0.1 m
         assert np.max(np.abs(plane_z - z)) < 0.1
-    del nx_, ny_
 
 
 @pytest.mark.parametrize("source", ["dem", "contours"])

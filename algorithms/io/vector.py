@@ -201,7 +201,8 @@ def _ogr_field_type(arr: np.ndarray):
 def write_gpkg(path, layers: list[LayerOut], srs_wkt: str) -> None:
     """Write layers into a new GeoPackage (written under a temporary name, then renamed)."""
     path = os.fspath(path)
-    tmp = path + ".part"
+    root, ext = os.path.splitext(path)
+    tmp = f"{root}.part{ext or '.gpkg'}"  # keep the .gpkg extension GDAL expects
     srs = osr.SpatialReference()
     if srs_wkt:
         srs.ImportFromWkt(srs_wkt)
