@@ -1,0 +1,18 @@
+"""The Processing tools, one class per module, one module per step of the chain.
+
+Issues still to come add their tools here: local attitudes with confidence (``picks`` group),
+further surface models (an option of :class:`SurfaceModel`), thickness and isopachs
+(``thickness`` group).
+"""
+from .contact_picks import ContactPicks
+from .depth_trace import DepthTrace
+from .dip_grids import DipGrids
+from .plane_attitude import PlaneAttitude
+from .structure_contours import StructureContours
+from .surface_model import SurfaceModel
+from .whole_chain import WholeChain
+
+ALGORITHMS = (WholeChain, ContactPicks, PlaneAttitude, SurfaceModel, StructureContours, DipGrids,
+              DepthTrace)
+
+__all__ = ["ALGORITHMS"]

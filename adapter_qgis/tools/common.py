@@ -1,0 +1,36 @@
+"""Output tables shared by several tools (the same layers the command line writes)."""
+from __future__ import annotations
+
+import numpy as np
+import shapely
+from qgis.core import QgsWkbTypes
+
+from ..outputs import Table
+
+
+def picks_table(picks) -> Table:
+    """The ``picks`` layer of ``strikeline run``: PointZ with contact_id, source, elevation_m."""
+    return Table(shapely.points(picks.xyz),
+                 {"contact_id": picks.contact_id.astype(np.int64), "source": picks.source.astype(str),
+                  "elevation_m": picks.xyz[:, 2].astype(float)},
+                 QgsWkbTypes.PointZ)
+
+
+def contours_table(geoms, elevations_m, below_ground=None) -> Table:
+    """Structure contours: LineStringZ at their elevation, field ``elevation`` (and
+    ``below_ground`` when the ground was given)."""
+    geoms = np.asarray(geoms, dtype=object)
+    elev = np.asarray(elevations_m, dtype=float)
+    if len(geoms):
+        geoms = shapely.force_3d(geoms, elev)
+    fields = {"elevation": elev}
+    if below_ground is not None:
+        fields["below_ground"] = np.asarray(below_ground, dtype=bool)
+    return Table(geoms, fields, QgsWkbTypes.LineStringZ)
+
+
+def trace_table(geoms) -> Table:
+    """The predicted outcrop trace: plain lines."""
+    geoms = np.asarray(geoms, dtype=object)
+    return Table(geoms, {"kind": np.array(["predicted outcrop"] * len(geoms), dtype=object)},
+                 QgsWkbTypes.LineString)

@@ -1,0 +1,73 @@
+"""Tool: structure contours of a modelled surface."""
+from __future__ import annotations
+
+from qgis.core import (
+    QgsProcessing,
+    QgsProcessingOutputNumber,
+    QgsProcessingParameterDistance,
+    QgsProcessingParameterFeatureSink,
+    QgsProcessingParameterRasterLayer,
+)
+
+from strikeline.io.contours import contour_lines
+
+from ..base import REF_GDAL_CONTOUR, StrikelineAlgorithm
+from ..chain import contours_split_by_ground, require_same_grid
+from ..inputs import read_dem
+from ..layers import qgis_crs
+from ..outputs import write_sink
+from ..styles import attach_style
+from .common import contours_table
+
+
+class StructureContours(StrikelineAlgorithm):
+    NAME = "structurecontours"
+    DISPLAY = "Structure contours"
+    GROUP = "maps"
+    FORECAST = True
+    SUMMARY = (
+        "Lines of equal elevation of the modelled surface every interval metres (levels at "
+        "multiples of the interval), as LineStringZ at their elevation with the field 'elevation'. "
+        "Give the DEM as ground to split every line into the parts where the surface lies below "
+        "ground (field below_ground true: a forecast at depth, drawn dashed) and the parts where it "
+        "lies above ground (eroded away, drawn pale). Lines stop on the last valid cell centre.")
+    METHOD = ("GDAL's contour generator (marching squares between cell centres) on the surface "
+              "grid; the half-cell fringe GDAL extrapolates at edges and nodata is trimmed, so every "
+              "vertex lies on the gridded surface.")
+    REFERENCES = (REF_GDAL_CONTOUR,)
+    SURFACE = "SURFACE"
+    GROUND = "GROUND"
+    INTERVAL = "INTERVAL"
+    OUTPUT = "STRUCTURE_CONTOURS"
+
+    def initAlgorithm(self, config=None):  # noqa: N802
+        self.addParameter(QgsProcessingParameterRasterLayer(
+            self.SURFACE, self.tr("Surface elevation (from Surface model)")))
+        self.addParameter(QgsProcessingParameterDistance(
+            self.INTERVAL, self.tr("Contour interval"), defaultValue=50.0,
+            parentParameterName=self.SURFACE, minValue=0.001))
+        self.addParameter(QgsProcessingParameterRasterLayer(
+            self.GROUND, self.tr("Ground (DEM) to mark forecast parts"), optional=True))
+        self.addParameter(QgsProcessingParameterFeatureSink(
+            self.OUTPUT, self.tr("Structure contours"), QgsProcessing.TypeVectorLine))
+        self.addOutput(QgsProcessingOutputNumber("N_LINES", self.tr("Number of lines")))
+
+    def process(self, parameters, context, steps):
+        surface, grid, spath = read_dem(self, parameters, self.SURFACE, context, steps, label="surface")
+        interval = self.parameterAsDouble(parameters, self.INTERVAL, context)
+        dem, dem_grid, dpath = read_dem(self, parameters, self.GROUND, context, steps, label="DEM")
+        steps.feedback.setProgress(30)
+        steps.check("structure contours")
+        if dem is None:
+            geoms, elev = contour_lines(surface, grid, interval_m=interval)
+            below = None
+        else:
+            require_same_grid(grid, dem_grid, what_a=f"surface '{spath}'", what_b=f"DEM '{dpath}'")
+            geoms, elev, below = contours_split_by_ground(surface, dem, grid, interval_m=interval)
+        steps.feedback.setProgress(90)
+        steps.check("structure contours")
+        steps.log(f"structure contours: {len(geoms)} lines every {interval:g} m")
+        dest = write_sink(self, parameters, self.OUTPUT, context, contours_table(geoms, elev, below),
+                          qgis_crs(grid.crs_wkt))
+        attach_style(context, dest, "structure_contours")
+        return {self.OUTPUT: dest, "N_LINES": len(geoms)}
