@@ -13,7 +13,19 @@ Conventions (used everywhere in strikeline)
 * The **pole** is the downward normal, given as trend (0–360°) and plunge (0–90° below
   horizontal): ``trend = dip_direction + 180°``, ``plunge = 90° − dip``.
 
+* **Lines** (borehole axes, poles) are given as trend (azimuth of the downward-pointing
+  horizontal projection, 0–360°) and plunge (angle below horizontal, 0–90°); their unit
+  vectors point downward.
+
 All functions broadcast over numpy arrays; angles at the interface are degrees.
+
+References
+----------
+Ragan, D. M. (2009). *Structural Geology: An Introduction to Geometrical Techniques*, 4th ed.
+Cambridge University Press.
+
+Groshong, R. H., Jr. (2006). *3-D Structural Geology: A Practical Guide to Quantitative Surface
+and Subsurface Map Interpretation*, 2nd ed. Springer, Berlin.
 """
 from __future__ import annotations
 
@@ -29,6 +41,17 @@ __all__ = [
     "pole_from_dip",
     "dip_from_pole",
     "three_point",
+    "apparent_dip",
+    "apparent_dip_from_strike_angle",
+    "true_dip_from_apparent",
+    "contour_spacing_from_dip",
+    "dip_from_contour_spacing",
+    "vector_from_trend_plunge",
+    "trend_plunge_from_vector",
+    "pole_from_normal",
+    "normal_from_pole",
+    "angle_between_normals",
+    "azimuth_difference",
 ]
 
 
@@ -160,3 +183,355 @@ def three_point(p1, p2, p3):
         n = -n
     dd, d = dip_from_normal(n)
     return n, float(dd), float(d)
+
+
+def _check_dip(dip_deg, name="dip_deg"):
+    d = np.asarray(dip_deg, dtype=float)
+    if np.any(~((d >= 0) & (d <= 90))):
+        raise InputError(
+            f"{name} must lie between 0 and 90 degrees, got {dip_deg}; give the dip as an angle "
+            "below horizontal"
+        )
+    return d
+
+
+def azimuth_difference(azimuth_a_deg, azimuth_b_deg):
+    """Signed difference ``a − b`` of two azimuths, wrapped to [−180, 180).
+
+    Parameters
+    ----------
+    azimuth_a_deg, azimuth_b_deg : float or array_like
+        Azimuths in degrees (any range).
+
+    Returns
+    -------
+    ndarray
+        The shortest turn from ``b`` to ``a``, degrees; positive clockwise.
+
+    Examples
+    --------
+    >>> float(azimuth_difference(5.0, 355.0))
+    10.0
+    """
+    a = np.asarray(azimuth_a_deg, dtype=float)
+    b = np.asarray(azimuth_b_deg, dtype=float)
+    return np.mod(a - b + 180.0, 360.0) - 180.0
+
+
+def apparent_dip_from_strike_angle(dip_deg, angle_from_strike_deg):
+    """Apparent dip in a vertical section at an angle β from the strike.
+
+    Parameters
+    ----------
+    dip_deg : float or array_like
+        True dip δ, 0–90°.
+    angle_from_strike_deg : float or array_like
+        Angle β (degrees) measured from the right-hand-rule strike clockwise to the section
+        line. β = 90° is the dip direction (apparent dip = true dip), β = 0° or 180° the strike.
+
+    Returns
+    -------
+    ndarray
+        Apparent dip α in degrees, signed: positive when the plane descends in the direction of
+        the section line, negative when it rises (β between 180° and 360°).
+
+    Notes
+    -----
+    :math:`\\tan\\alpha = \\tan\\delta \\, \\sin\\beta`, evaluated as
+    :math:`\\alpha = \\operatorname{atan2}(\\sin\\delta\\sin\\beta, \\cos\\delta)` so that a
+    vertical plane (δ = 90°) gives ±90° except along its strike, where it gives 0°.
+
+    References
+    ----------
+    Ragan, D. M. (2009). *Structural Geology: An Introduction to Geometrical Techniques*, 4th ed.
+    Cambridge University Press (apparent dip, chapter on structural planes).
+
+    Rowland, S. M., Duebendorfer, E. M. & Schiefelbein, I. M. (2007). *Structural Analysis and
+    Synthesis: A Laboratory Course in Structural Geology*, 3rd ed. Blackwell, Oxford.
+
+    Examples
+    --------
+    >>> round(float(apparent_dip_from_strike_angle(30.0, 45.0)), 3)
+    22.208
+    """
+    d = np.radians(_check_dip(dip_deg))
+    b = np.radians(np.asarray(angle_from_strike_deg, dtype=float))
+    return np.degrees(np.arctan2(np.sin(d) * np.sin(b), np.cos(d)))
+
+
+def apparent_dip(dip_direction_deg, dip_deg, section_azimuth_deg):
+    """Apparent dip of a plane in a vertical section of a given azimuth.
+
+    Parameters
+    ----------
+    dip_direction_deg, dip_deg : float or array_like
+        Attitude of the plane (degrees).
+    section_azimuth_deg : float or array_like
+        Azimuth of the section line (degrees clockwise from grid north), in the sense in which
+        the section is read.
+
+    Returns
+    -------
+    ndarray
+        Apparent dip in degrees, positive when the plane descends toward ``section_azimuth_deg``,
+        negative when it rises that way (the same plane read toward the opposite azimuth).
+
+    Notes
+    -----
+    With the right-hand-rule strike :math:`s = \\text{dip direction} - 90°` and
+    :math:`\\beta = \\text{azimuth} - s`, :math:`\\tan\\alpha = \\tan\\delta\\sin\\beta`
+    (see :func:`apparent_dip_from_strike_angle`). Equivalently the descent per unit horizontal
+    distance along the azimuth is :math:`\\tan\\delta\\cos(\\text{azimuth} - \\text{dip direction})`.
+
+    References
+    ----------
+    Ragan, D. M. (2009). *Structural Geology: An Introduction to Geometrical Techniques*, 4th ed.
+    Cambridge University Press (apparent dip).
+
+    Examples
+    --------
+    >>> round(float(apparent_dip(135.0, 30.0, 90.0)), 3)
+    22.208
+    """
+    strike = strike_from_dip_direction(dip_direction_deg)
+    beta = np.asarray(section_azimuth_deg, dtype=float) - strike
+    return apparent_dip_from_strike_angle(dip_deg, beta)
+
+
+def true_dip_from_apparent(apparent_dip_deg, angle_from_strike_deg):
+    """True dip from one apparent dip and the angle of its section from the strike.
+
+    Parameters
+    ----------
+    apparent_dip_deg : float or array_like
+        Apparent dip α (degrees), signed as returned by :func:`apparent_dip_from_strike_angle`.
+    angle_from_strike_deg : float or array_like
+        Angle β from the right-hand-rule strike to the section line (degrees); must not be 0°
+        or 180° (a section along strike shows no dip).
+
+    Returns
+    -------
+    ndarray
+        True dip δ in degrees, from :math:`\\tan\\delta = \\tan\\alpha / \\sin\\beta`.
+
+    Raises
+    ------
+    InputError
+        When the section runs along strike, or α and β disagree in sign (the plane would
+        have to dip beyond vertical).
+
+    References
+    ----------
+    Ragan, D. M. (2009). *Structural Geology: An Introduction to Geometrical Techniques*, 4th ed.
+    Cambridge University Press (apparent dip).
+
+    Examples
+    --------
+    >>> round(float(true_dip_from_apparent(22.208, 45.0)), 2)
+    30.0
+    """
+    a = np.radians(np.asarray(apparent_dip_deg, dtype=float))
+    b = np.radians(np.asarray(angle_from_strike_deg, dtype=float))
+    sb = np.sin(b)
+    if np.any(np.abs(sb) < 1e-12):
+        raise InputError(
+            "angle_from_strike_deg is 0 or 180 degrees: a section along strike shows no dip; "
+            "use a section at an angle to the strike"
+        )
+    t = np.tan(a) / sb
+    if np.any(t < -1e-12):
+        raise InputError(
+            "apparent_dip_deg and angle_from_strike_deg disagree in sign: a plane that descends "
+            "along the section must have the section on its down-dip side (0 < beta < 180)"
+        )
+    return np.degrees(np.arctan(np.clip(t, 0.0, None)))
+
+
+def contour_spacing_from_dip(dip_deg, interval_m):
+    """Horizontal spacing of structure contours on a plane: :math:`\\Delta z / \\tan\\delta`.
+
+    Parameters
+    ----------
+    dip_deg : float or array_like
+        Dip δ (degrees, 0–90).
+    interval_m : float or array_like
+        Contour interval Δz (metres, positive).
+
+    Returns
+    -------
+    ndarray
+        Spacing in metres measured horizontally in the dip direction; ``inf`` for a
+        horizontal plane, 0 for a vertical one.
+
+    References
+    ----------
+    Groshong, R. H., Jr. (2006). *3-D Structural Geology: A Practical Guide to Quantitative
+    Surface and Subsurface Map Interpretation*, 2nd ed. Springer, Berlin, eq. 2.21.
+
+    Examples
+    --------
+    >>> round(float(contour_spacing_from_dip(30.0, 10.0)), 3)
+    17.321
+    """
+    d = np.radians(_check_dip(dip_deg))
+    dz = np.asarray(interval_m, dtype=float)
+    if np.any(~(dz > 0)):
+        raise InputError(f"interval_m must be positive, got {interval_m}")
+    with np.errstate(divide="ignore"):
+        return dz * np.cos(d) / np.sin(d)
+
+
+def dip_from_contour_spacing(spacing_m, interval_m):
+    """Dip (degrees) of a plane from the horizontal spacing of its structure contours.
+
+    The inverse of :func:`contour_spacing_from_dip`: :math:`\\delta = \\arctan(\\Delta z / s)`.
+
+    Parameters
+    ----------
+    spacing_m : float or array_like
+        Horizontal spacing s measured perpendicular to strike (metres, ≥ 0; ``inf`` gives 0°).
+    interval_m : float or array_like
+        Contour interval Δz (metres, positive).
+
+    References
+    ----------
+    Groshong, R. H., Jr. (2006). *3-D Structural Geology*, 2nd ed. Springer, eq. 2.21.
+
+    Examples
+    --------
+    >>> round(float(dip_from_contour_spacing(1200.0, 600.0)), 2)
+    26.57
+    """
+    s = np.asarray(spacing_m, dtype=float)
+    dz = np.asarray(interval_m, dtype=float)
+    if np.any(~(s >= 0)):
+        raise InputError(f"spacing_m must be zero or positive, got {spacing_m}")
+    if np.any(~(dz > 0)):
+        raise InputError(f"interval_m must be positive, got {interval_m}")
+    return np.degrees(np.arctan2(dz, s))
+
+
+def vector_from_trend_plunge(trend_deg, plunge_deg):
+    """Unit vector of a line given by trend and plunge.
+
+    Parameters
+    ----------
+    trend_deg : float or array_like
+        Azimuth of the line's downward sense (degrees clockwise from grid north).
+    plunge_deg : float or array_like
+        Angle below horizontal, −90–90° (negative plunges point upward).
+
+    Returns
+    -------
+    ndarray, shape ``(..., 3)``
+        ``(cos p sin t, cos p cos t, −sin p)`` in the x-east, y-north, z-up frame.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> np.round(vector_from_trend_plunge(90.0, 30.0), 6)
+    array([ 0.866025,  0.      , -0.5     ])
+    """
+    t = np.radians(np.asarray(trend_deg, dtype=float))
+    p_deg = np.asarray(plunge_deg, dtype=float)
+    if np.any(~((p_deg >= -90) & (p_deg <= 90))):
+        raise InputError(f"plunge_deg must lie between -90 and 90 degrees, got {plunge_deg}")
+    p = np.radians(p_deg)
+    c = np.cos(p)
+    return np.stack(np.broadcast_arrays(c * np.sin(t), c * np.cos(t), -np.sin(p)), axis=-1)
+
+
+def trend_plunge_from_vector(vector):
+    """Trend and plunge (degrees) of lines given as vectors of either sense.
+
+    Lines are axes: a vector pointing upward is reversed first, so the plunge is 0–90°.
+
+    Parameters
+    ----------
+    vector : array_like, shape ``(..., 3)``
+        Direction vectors, any non-zero length.
+
+    Returns
+    -------
+    trend_deg, plunge_deg : ndarray
+        Trend in [0, 360) and plunge in [0, 90]. A vertical line has trend 0 by convention.
+
+    Examples
+    --------
+    >>> t, p = trend_plunge_from_vector([0.0, 1.0, 1.0])
+    >>> float(t), round(float(p), 6)
+    (180.0, 45.0)
+    """
+    v = np.asarray(vector, dtype=float)
+    length = np.linalg.norm(v, axis=-1, keepdims=True)
+    if np.any(length == 0):
+        raise InputError("a direction vector of zero length has no orientation")
+    v = v / length
+    v = np.where(v[..., 2:3] > 0, -v, v)  # downward sense
+    horiz = np.hypot(v[..., 0], v[..., 1])
+    plunge = np.degrees(np.arctan2(-v[..., 2], horiz))
+    trend = _wrap360(np.degrees(np.arctan2(v[..., 0], v[..., 1])))
+    trend = np.where(horiz < 1e-15, 0.0, trend)
+    return trend, plunge
+
+
+def pole_from_normal(normal):
+    """Trend and plunge (degrees) of the pole (downward normal) of planes given by normals.
+
+    Parameters
+    ----------
+    normal : array_like, shape ``(..., 3)``
+        Plane normals of either sense.
+
+    Returns
+    -------
+    trend_deg, plunge_deg : ndarray
+        ``trend = dip_direction + 180°``, ``plunge = 90° − dip``.
+    """
+    return trend_plunge_from_vector(normal)
+
+
+def normal_from_pole(trend_deg, plunge_deg):
+    """Upward unit normal of the plane whose pole has the given trend and plunge.
+
+    Parameters
+    ----------
+    trend_deg, plunge_deg : float or array_like
+        Pole trend (0–360°) and plunge (0–90°).
+
+    Returns
+    -------
+    ndarray, shape ``(..., 3)``
+        Upward unit normal (the reversed pole vector).
+    """
+    return -vector_from_trend_plunge(trend_deg, plunge_deg)
+
+
+def angle_between_normals(normal_a, normal_b):
+    """Angle (degrees, 0–90) between planes given by their normals.
+
+    Normals are treated as axes (either sense). The angle is computed as
+    ``atan2(|a × b|, |a · b|)``, accurate for small angles as well as near 90°.
+
+    Parameters
+    ----------
+    normal_a, normal_b : array_like, shape ``(..., 3)``
+        Normals, any non-zero length; they broadcast against each other.
+
+    Returns
+    -------
+    ndarray
+        Angle between the planes in degrees.
+
+    Examples
+    --------
+    >>> round(float(angle_between_normals([0, 0, 1], [0, 1, 1])), 6)
+    45.0
+    """
+    a = np.asarray(normal_a, dtype=float)
+    b = np.asarray(normal_b, dtype=float)
+    if np.any(np.linalg.norm(a, axis=-1) == 0) or np.any(np.linalg.norm(b, axis=-1) == 0):
+        raise InputError("a normal vector of zero length has no orientation")
+    cross = np.linalg.norm(np.cross(a, b), axis=-1)
+    dot = np.abs(np.sum(a * b, axis=-1))
+    return np.degrees(np.arctan2(cross, dot))
