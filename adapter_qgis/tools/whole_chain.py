@@ -100,9 +100,10 @@ class WholeChain(StrikelineAlgorithm):
         opts = RunOptions(contacts=inputs.paths["contacts"], out="", interval_m=interval, cell_m=cell)
         r = compute(inputs, opts, log=steps.log, progress=steps.part(0.05, 0.8),
                     is_cancelled=steps.is_cancelled)
-        steps.check("whole chain")
         log_plane(steps, r.plane)
         steps.feedback.setProgress(85)
+        # Last chance to stop: from here on the outputs are written, all or nothing.
+        steps.check("whole chain")
         crs = qgis_crs(inputs.crs_wkt)
         out = {**plane_numbers(r.plane)}
         tm = r.summary["trace_misfit_m"]

@@ -1,0 +1,191 @@
+"""Bad input and cancellation through QGIS: the library's own message, and no output left behind.
+
+# Source: strikeline library result as the reference (the library's messages for the same files,
+# from strikeline.pipeline.load_inputs / strikeline.io); the numerical truth is tested in tests/.
+# Source: EPSG:4326 is WGS 84 geographic (degrees) and EPSG:32631 is WGS 84 / UTM zone 31N, the
+# UTM zone of the demo sheet's centre (EPSG Geodetic Parameter Dataset).
+"""
+from __future__ import annotations
+
+import time
+from pathlib import Path
+
+import pytest
+from osgeo import gdal, ogr
+from qgis.core import (
+    QgsCoordinateReferenceSystem,
+    QgsFeature,
+    QgsGeometry,
+    QgsPointXY,
+    QgsProcessingException,
+    QgsProcessingFeedback,
+    QgsVectorLayer,
+)
+from qgis_helpers import memory_copy
+
+from strikeline.errors import StrikelineError
+from strikeline.pipeline import RunOptions, load_inputs
+
+pytestmark = pytest.mark.qgis
+
+DEMO_DIR = Path(__file__).resolve().parents[2] / "test_data" / "demo"
+
+TMP = "TEMPORARY_OUTPUT"
+GEOGRAPHIC = "EPSG:4326"  # Source: EPSG dataset, WGS 84 geographic 2D
+SHEET_UTM = "EPSG:32631"  # Source: EPSG dataset, WGS 84 / UTM zone 31N (the demo sheet's CRS)
+
+
+def library_message(**opts) -> str:
+    with pytest.raises(StrikelineError) as exc:
+        load_inputs(RunOptions(out="/nonexistent-out", **opts))
+    return str(exc.value)
+
+
+def qgis_message(run, name, params) -> str:
+    with pytest.raises(QgsProcessingException) as exc:
+        run(name, params)
+    msg = str(exc.value)
+    assert "Traceback" not in msg and "\n" not in msg
+    return msg
+
+
+@pytest.fixture(scope="module")
+def geographic_contacts(tmp_path_factory):
+    import processing
+
+    out = tmp_path_factory.mktemp("geo") / "contacts_wgs84.gpkg"
+    processing.run("native:reprojectlayer", {
+        "INPUT": f"{DEMO_DIR}/contacts.gpkg|layername=contacts",
+        "TARGET_CRS": QgsCoordinateReferenceSystem(GEOGRAPHIC), "OUTPUT": str(out)})
+    return str(out)
+
+
+# -------------------------------------------------------------------------------- bad inputs
+def test_geographic_contacts_file(run, sheet, geographic_contacts):
+    want = library_message(contacts=geographic_contacts, dem=sheet["dem"])
+    got = qgis_message(run, "contactpicks", {"CONTACTS": geographic_contacts, "DEM": sheet["dem"], "PICKS": TMP})
+    assert got == want
+    assert f"geographic CRS {GEOGRAPHIC}" in got and SHEET_UTM in got
+
+
+def test_geographic_contacts_memory_layer(run, sheet, geographic_contacts):
+    mem = memory_copy(geographic_contacts, "contacts_wgs84")
+    got = qgis_message(run, "modelcontact", {"CONTACTS": mem, "DEM": sheet["dem"], "PICKS": TMP,
+                                             "STRUCTURE_CONTOURS": TMP, "SURFACE": TMP, "DIP": TMP,
+                                             "DIP_DIRECTION": TMP})
+    want = library_message(contacts=geographic_contacts, dem=sheet["dem"])
+    # Same words after the layer's name ("... of 'memory'" instead of the file path).
+    assert got.split(" is in ", 1)[1] == want.split(" is in ", 1)[1]
+
+
+def test_geographic_dem(run, sheet, tmp_path):
+    dem_geo = str(tmp_path / "dem_wgs84.tif")
+    gdal.Warp(dem_geo, sheet["dem"], dstSRS=GEOGRAPHIC)
+    want = library_message(contacts=sheet["contacts"], dem=dem_geo)
+    got = qgis_message(run, "contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": dem_geo, "PICKS": TMP})
+    assert got == want and "(degrees)" in got
+
+
+def test_empty_layer_file(run, sheet, tmp_path):
+    path = str(tmp_path / "empty.gpkg")
+    ds = ogr.GetDriverByName("GPKG").CreateDataSource(path)
+    srs = ogr.osr.SpatialReference()
+    srs.ImportFromEPSG(32631)
+    ds.CreateLayer("contacts", srs, ogr.wkbLineString)
+    ds = None
+    want = library_message(contacts=path, dem=sheet["dem"])
+    got = qgis_message(run, "contactpicks", {"CONTACTS": f"{path}|layername=contacts", "DEM": sheet["dem"],
+                                             "PICKS": TMP})
+    assert got == want and "holds no feature" in got
+
+
+def test_empty_memory_layer(run, sheet):
+    mem = QgsVectorLayer(f"LineString?crs={SHEET_UTM}", "nothing_mapped", "memory")
+    got = qgis_message(run, "contactpicks", {"CONTACTS": mem, "DEM": sheet["dem"], "PICKS": TMP})
+    assert got == ("contacts layer 'nothing_mapped' of 'memory' holds no feature with a geometry; "
+                   "give a layer with features")
+
+
+def test_text_elevation_field(run, sheet, tmp_path):
+    import processing
+
+    path = str(tmp_path / "contours_text.gpkg")
+    processing.run("native:fieldcalculator", {
+        "INPUT": sheet["contours_uri"], "FIELD_NAME": "elev_txt", "FIELD_TYPE": 2, "FIELD_LENGTH": 10,
+        "FORMULA": 'to_string("elev_m")', "OUTPUT": path})
+    want = library_message(contacts=sheet["contacts"], contours=path, elev_field="elev_txt")
+    got = qgis_message(run, "contactpicks", {"CONTACTS": sheet["contacts_uri"], "CONTOURS": path,
+                                             "ELEV_FIELD": "elev_txt", "PICKS": TMP})
+    # The fix names QGIS's parameter instead of the command line's option.
+    assert got == want.replace("--elev-field", "the 'Elevation field of the contour lines'")
+    assert "is of type String, not numeric" in got
+
+
+def test_no_topography(run, sheet):
+    got = qgis_message(run, "contactpicks", {"CONTACTS": sheet["contacts_uri"], "PICKS": TMP})
+    assert got.startswith("no topography given")
+
+
+def test_too_few_picks(run):
+    mem = QgsVectorLayer(f"PointZ?crs={SHEET_UTM}", "two_points", "memory")
+    feats = []
+    for x, y, z in ((0.0, 0.0, 10.0), (100.0, 0.0, 20.0)):
+        f = QgsFeature()
+        f.setGeometry(QgsGeometry.fromWkt(f"PointZ ({x} {y} {z})"))
+        feats.append(f)
+    mem.dataProvider().addFeatures(feats)
+    got = qgis_message(run, "planeattitude", {"PICKS": mem, "ATTITUDE": TMP})
+    assert "only 2 usable pick(s)" in got and "two_points" in got
+
+
+def test_points_without_z(run):
+    mem = QgsVectorLayer(f"Point?crs={SHEET_UTM}", "flat_points", "memory")
+    f = QgsFeature()
+    f.setGeometry(QgsGeometry.fromPointXY(QgsPointXY(1.0, 2.0)))
+    mem.dataProvider().addFeatures([f])
+    got = qgis_message(run, "planeattitude", {"PICKS": mem, "ATTITUDE": TMP})
+    assert "points without Z" in got
+
+
+def test_surface_off_the_dem_grid(run, sheet, tmp_path):
+    picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "PICKS": TMP})["PICKS"]
+    surf = run("surfacemodel", {"PICKS": picks, "CELL": 25.0, "SURFACE": str(tmp_path / "s.tif")})["SURFACE"]
+    got = qgis_message(run, "depthtrace", {"SURFACE": surf, "DEM": sheet["dem"], "DEPTH": TMP,
+                                           "PREDICTED_TRACE": TMP})
+    assert "are not on one grid" in got
+
+
+# ------------------------------------------------------------------------------ cancellation
+def cancelling_feedback(at_percent: float) -> QgsProcessingFeedback:
+    """A feedback that the user cancels as soon as progress reaches ``at_percent``."""
+    fb = QgsProcessingFeedback()
+    fb.progressChanged.connect(lambda p: fb.cancel() if p >= at_percent else None)
+    return fb
+
+
+@pytest.mark.parametrize("at", [6.0, 40.0, 81.0])
+def test_cancelled_whole_chain_leaves_no_output(run, sheet, tmp_path, at):
+    outs = {k: str(tmp_path / f"{k.lower()}.tif") for k in ("SURFACE", "DIP", "DIP_DIRECTION", "DEPTH")}
+    outs.update({k: str(tmp_path / f"{k.lower()}.gpkg") for k in ("PICKS", "STRUCTURE_CONTOURS", "PREDICTED_TRACE")})
+    fb = cancelling_feedback(at)
+    t0 = time.perf_counter()
+    with pytest.raises(QgsProcessingException, match="cancelled"):
+        run("modelcontact", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"],
+                             "CONTOURS": sheet["contours_uri"], "ELEV_FIELD": "elev_m",
+                             "SUMMARY": str(tmp_path / "summary.json"), **outs}, feedback=fb)
+    assert fb.isCanceled()
+    assert time.perf_counter() - t0 < 10.0
+    assert sorted(p.name for p in tmp_path.iterdir()) == []
+
+
+@pytest.mark.parametrize("tool,params", [
+    ("contactpicks", {"PICKS": "picks.gpkg"}),
+    ("dipgrids", {"DIP": "dip.tif", "DIP_DIRECTION": "dd.tif"}),
+])
+def test_cancelled_step_leaves_no_output(run, sheet, tmp_path, tool, params):
+    inputs = {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"]} if tool == "contactpicks" \
+        else {"SURFACE": sheet["dem"]}
+    outs = {k: str(tmp_path / v) for k, v in params.items()}
+    with pytest.raises(QgsProcessingException, match="cancelled"):
+        run(tool, {**inputs, **outs}, feedback=cancelling_feedback(15.0))
+    assert list(tmp_path.iterdir()) == []

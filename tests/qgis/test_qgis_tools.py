@@ -1,0 +1,328 @@
+"""Every strikeline tool through ``processing.run`` on the demo sheet gives the library's numbers.
+
+# Source: strikeline library result as the reference (the numerical truth is tested in tests/);
+# the external checks below name their own sources (numpy's SVD, scipy's interpolator, GDAL's
+# gdaldem slope/aspect, GEOS distances through shapely).
+"""
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+import shapely
+from osgeo import gdal
+from qgis.core import (
+    QgsCoordinateReferenceSystem,
+    QgsProcessingFeatureSourceDefinition,
+    QgsProcessingFeedback,
+    QgsProject,
+)
+from qgis_helpers import assert_same_lines, bilinear_reference, memory_copy, raster, table
+
+from strikeline.grid import Grid
+from strikeline.grids import depth_below_ground, dip_grids
+from strikeline.io.contours import contour_lines
+from strikeline.io.raster import read_raster
+
+pytestmark = pytest.mark.qgis
+
+DEMO = Path(__file__).resolve().parents[2] / "test_data" / "demo"
+
+TMP = "TEMPORARY_OUTPUT"
+#: float32 GeoTIFF storage of elevations near 600 m: half a unit in the last place is ~3e-5 m.
+F32_ELEVATION_TOL_M = 1e-4  # common practice: float32 has a 24-bit significand
+#: gdaldem's Horn kernel is exact on a plane; allow for float32 storage of the surface.
+GDAL_DIP_TOL_DEG = 0.05  # Source: tolerance of issue 2's dip-grid check against gdal.DEMProcessing
+
+
+def topo(sheet, kind):
+    """(contacts, contours) as files or as memory copies of the same features."""
+    if kind == "file":
+        return sheet["contacts_uri"], sheet["contours_uri"]
+    return memory_copy(sheet["contacts_uri"], "contacts"), memory_copy(sheet["contours_uri"], "topo_contours")
+
+
+@pytest.fixture(scope="module")
+def reference(request):
+    """The library's whole chain on the demo sheet, computed once for this module."""
+    from strikeline.pipeline import RunOptions, compute, load_inputs
+
+    opts = RunOptions(contacts=str(DEMO / "contacts.gpkg"), out="/nonexistent-out", dem=str(DEMO / "dem.tif"),
+                      contours=str(DEMO / "contours.gpkg"), contours_layer="topo_contours",
+                      elev_field="elev_m", interval_m=50.0)
+    inputs = load_inputs(opts)
+    return inputs, compute(inputs, opts)
+
+
+@pytest.fixture(scope="module")
+def surface_tif(tmp_path_factory, reference):
+    """The surface tool's GeoTIFF on the DEM's grid, made once through QGIS from the library's picks."""
+    import processing
+
+    out = tmp_path_factory.mktemp("surface") / "surface.tif"
+    picks = processing.run("strikeline:contactpicks", {
+        "CONTACTS": f"{DEMO / 'contacts.gpkg'}|layername=contacts", "DEM": str(DEMO / "dem.tif"),
+        "CONTOURS": f"{DEMO / 'contours.gpkg'}|layername=topo_contours", "ELEV_FIELD": "elev_m",
+        "PICKS": TMP})["PICKS"]
+    processing.run("strikeline:surfacemodel", {"PICKS": picks, "REFERENCE": str(DEMO / "dem.tif"),
+                                               "SURFACE": str(out)})
+    return str(out)
+
+
+# --------------------------------------------------------------------------------------- picks
+@pytest.mark.parametrize("kind", ["file", "memory"])
+def test_contact_picks_are_the_library_picks(run, sheet, reference, kind):
+    contacts, contours = topo(sheet, kind)
+    res = run("contactpicks", {"CONTACTS": contacts, "DEM": sheet["dem"], "CONTOURS": contours,
+                               "ELEV_FIELD": "elev_m", "PICKS": TMP})
+    ref = reference[1].picks
+    geoms, cols = table(res["PICKS"])
+    xyz = shapely.get_coordinates(geoms, include_z=True)
+    np.testing.assert_array_equal(xyz, ref.xyz)
+    np.testing.assert_array_equal(cols["source"], ref.source)
+    np.testing.assert_array_equal(cols["elevation_m"], ref.xyz[:, 2])
+    np.testing.assert_array_equal(cols["contact_id"], ref.contact_id)
+    assert (res["N_PICKS"], res["N_DEM"], res["N_CONTOURS"]) == (
+        len(ref), ref.counts_by_source()["dem"], ref.counts_by_source()["contours"])
+    # External: DEM picks are bilinear samples of the DEM between cell centres.
+    # Source: scipy.interpolate.RegularGridInterpolator(method="linear"), scipy 1.10.
+    f = bilinear_reference(sheet["dem"])
+    dem_rows = cols["source"] == "dem"
+    expected = f(xyz[dem_rows, 0], xyz[dem_rows, 1])
+    inside = np.isfinite(expected)
+    assert inside.sum() > 0.9 * dem_rows.sum()
+    np.testing.assert_allclose(xyz[dem_rows, 2][inside], expected[inside], atol=1e-6)
+
+
+def test_selected_features_only(run, sheet, reference):
+    from strikeline.pipeline import RunOptions, collect_picks, load_inputs
+
+    contacts = memory_copy(sheet["contacts_uri"], "contacts")
+    QgsProject.instance().addMapLayer(contacts)
+    try:
+        ids = sorted(f.id() for f in contacts.getFeatures())
+        chosen = ids[: max(1, len(ids) // 2)]
+        contacts.selectByIds(chosen)
+        src = QgsProcessingFeatureSourceDefinition(contacts.id(), selectedFeaturesOnly=True)
+        res = run("contactpicks", {"CONTACTS": src, "DEM": sheet["dem"], "PICKS": TMP})
+    finally:
+        QgsProject.instance().removeMapLayer(contacts.id())
+    _, cols = table(res["PICKS"])
+    assert set(cols["contact_id"].tolist()) <= set(chosen)
+    opts = RunOptions(contacts=sheet["contacts"], out="/nonexistent-out", dem=sheet["dem"],
+                      where=f"fid IN ({', '.join(map(str, chosen))})")
+    lib = collect_picks(load_inputs(opts))
+    geoms, _ = table(res["PICKS"])
+    np.testing.assert_array_equal(shapely.get_coordinates(geoms, include_z=True), lib.xyz)
+
+
+def test_layers_in_another_crs_are_transformed(run, sheet, reference):
+    import processing
+
+    moved = processing.run("native:reprojectlayer", {
+        "INPUT": sheet["contacts_uri"], "TARGET_CRS": QgsCoordinateReferenceSystem("EPSG:32632"),
+        "OUTPUT": TMP})["OUTPUT"]
+    fb = QgsProcessingFeedback()
+    messages = []
+    fb.pushInfo = messages.append  # collect the log lines
+    res = run("contactpicks", {"CONTACTS": moved, "DEM": sheet["dem"], "PICKS": TMP}, feedback=fb)
+    assert any("reprojecting contacts" in m and "EPSG:32632" in m and "EPSG:32631" in m for m in messages)
+    geoms, _ = table(res["PICKS"])
+    xyz = shapely.get_coordinates(geoms, include_z=True)
+    ref = reference[1].picks
+    dem_ref = ref.xyz[ref.source == "dem"]
+    assert xyz.shape == dem_ref.shape
+    # Two PROJ transforms (there and back) agree to well under a millimetre.
+    np.testing.assert_allclose(xyz, dem_ref, atol=1e-3)
+
+
+# --------------------------------------------------------------------------------------- plane
+@pytest.mark.parametrize("kind", ["file", "memory"])
+def test_plane_attitude_is_the_library_fit(run, sheet, reference, kind, tmp_path):
+    contacts, contours = topo(sheet, kind)
+    picks_out = str(tmp_path / "picks.gpkg") if kind == "file" else TMP
+    picks = run("contactpicks", {"CONTACTS": contacts, "DEM": sheet["dem"], "CONTOURS": contours,
+                                 "ELEV_FIELD": "elev_m", "PICKS": picks_out})["PICKS"]
+    res = run("planeattitude", {"PICKS": picks, "ATTITUDE": TMP})
+    plane = reference[1].plane
+    for key, value in (("DIP_DEG", plane.dip_deg), ("DIP_DIRECTION_DEG", plane.dip_direction_deg),
+                       ("STRIKE_RHR_DEG", plane.strike_rhr_deg), ("RMS_M", plane.rms_m)):
+        assert res[key] == pytest.approx(value, abs=1e-9), key
+    assert res["N_PICKS"] == plane.n_points
+    geoms, cols = table(res["ATTITUDE"])
+    np.testing.assert_allclose(shapely.get_coordinates(geoms, include_z=True)[0], plane.centroid, atol=1e-6)
+    assert cols["dip_deg"][0] == pytest.approx(plane.dip_deg, abs=1e-9)
+    # External: the total-least-squares normal is the right singular vector of the centred
+    # picks for the smallest singular value. Source: numpy.linalg.svd (LAPACK gesdd).
+    p = reference[1].picks.xyz
+    n = np.linalg.svd(p - p.mean(axis=0))[2][-1]
+    n = n if n[2] > 0 else -n
+    svd_dip = np.degrees(np.arctan2(np.hypot(n[0], n[1]), n[2]))
+    # common practice: the downhill azimuth of a plane with upward normal n is atan2(nx, ny)
+    svd_dd = np.degrees(np.arctan2(n[0], n[1])) % 360.0
+    assert res["DIP_DEG"] == pytest.approx(svd_dip, abs=1e-6)
+    assert res["DIP_DIRECTION_DEG"] == pytest.approx(svd_dd, abs=1e-6)
+    # common practice: strike by the right-hand rule is the dip direction minus 90°.
+    assert res["STRIKE_RHR_DEG"] == pytest.approx((svd_dd - 90.0) % 360.0, abs=1e-6)
+
+
+def test_plane_attitude_from_a_z_field(run, sheet, reference):
+    picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "PICKS": TMP})["PICKS"]
+    by_z = run("planeattitude", {"PICKS": picks, "ATTITUDE": TMP})
+    by_field = run("planeattitude", {"PICKS": picks, "PICKS_ELEV_FIELD": "elevation_m", "ATTITUDE": TMP})
+    assert by_field["DIP_DEG"] == pytest.approx(by_z["DIP_DEG"], abs=1e-12)
+    assert by_field["DIP_DIRECTION_DEG"] == pytest.approx(by_z["DIP_DIRECTION_DEG"], abs=1e-12)
+
+
+# ------------------------------------------------------------------------------------- surface
+def test_surface_model_on_the_dem_grid(surface_tif, reference, sheet):
+    r = reference[1]
+    got, gt, wkt = raster(surface_tif)
+    dem_ds = gdal.Open(sheet["dem"])
+    assert gt == dem_ds.GetGeoTransform()
+    np.testing.assert_array_equal(got, r.surface.astype(np.float32).astype(float))
+    # External: the plane through the centroid with the SVD normal (numpy.linalg.svd, as above).
+    p = r.picks.xyz
+    c = p.mean(axis=0)
+    n = np.linalg.svd(p - c)[2][-1]
+    X, Y = Grid(gt, got.shape).mesh()
+    plane_z = c[2] - (n[0] * (X - c[0]) + n[1] * (Y - c[1])) / n[2]
+    np.testing.assert_allclose(got, plane_z, atol=F32_ELEVATION_TOL_M)
+
+
+def test_surface_model_over_an_extent(run, sheet, reference):
+    picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"],
+                                 "CONTOURS": sheet["contours_uri"], "ELEV_FIELD": "elev_m", "PICKS": TMP})["PICKS"]
+    res = run("surfacemodel", {"PICKS": picks, "CELL": 25.0, "SURFACE": TMP})
+    got, gt, _ = raster(res["SURFACE"])
+    xyz = reference[1].picks.xyz
+    want = Grid.from_bounds(xyz[:, 0].min(), xyz[:, 1].min(), xyz[:, 0].max(), xyz[:, 1].max(), cell_m=25.0)
+    assert gt == want.transform and got.shape == want.shape
+    X, Y = want.mesh()
+    np.testing.assert_allclose(got, reference[1].plane.elevation(X, Y), atol=F32_ELEVATION_TOL_M)
+
+
+# ----------------------------------------------------------------------- maps from the surface
+def test_structure_contours_are_the_library_contours(run, surface_tif):
+    res = run("structurecontours", {"SURFACE": surface_tif, "INTERVAL": 50.0, "STRUCTURE_CONTOURS": TMP})
+    surface, grid = read_raster(surface_tif, label="surface")
+    ref_g, ref_z = contour_lines(surface, grid, interval_m=50.0)
+    geoms, cols = table(res["STRUCTURE_CONTOURS"])
+    assert res["N_LINES"] == len(ref_g) > 0
+    np.testing.assert_array_equal(cols["elevation"], ref_z)
+    for g, rg, z in zip(geoms, ref_g, ref_z):
+        xyz = shapely.get_coordinates(g, include_z=True)
+        np.testing.assert_array_equal(xyz[:, :2], shapely.get_coordinates(rg))
+        assert np.all(xyz[:, 2] == z)
+    # common practice: structure contours sit at whole multiples of the interval.
+    assert np.all(np.mod(cols["elevation"], 50.0) == 0.0)
+
+
+def test_structure_contours_split_at_the_ground(run, surface_tif, sheet):
+    res = run("structurecontours", {"SURFACE": surface_tif, "GROUND": sheet["dem"], "INTERVAL": 50.0,
+                                    "STRUCTURE_CONTOURS": TMP})
+    geoms, cols = table(res["STRUCTURE_CONTOURS"], z=False)
+    below = cols["below_ground"].astype(bool)
+    assert below.any() and (~below).any()
+    # External: ground minus surface at the vertices, both interpolated by scipy's linear
+    # RegularGridInterpolator (scipy 1.10): never below zero on the forecast parts, never above
+    # zero on the eroded ones (vertices lie on edges between cell centres of one side).
+    ground = bilinear_reference(sheet["dem"])
+    surf = bilinear_reference(surface_tif)
+    for g, b in zip(geoms, below):
+        xy = shapely.get_coordinates(g)
+        depth = ground(xy[:, 0], xy[:, 1]) - surf(xy[:, 0], xy[:, 1])
+        depth = depth[np.isfinite(depth)]
+        assert (depth >= -1e-6).all() if b else (depth <= 1e-6).all()
+
+
+def test_dip_grids_are_the_library_grids(run, surface_tif):
+    res = run("dipgrids", {"SURFACE": surface_tif, "DIP": TMP, "DIP_DIRECTION": TMP})
+    surface, grid = read_raster(surface_tif, label="surface")
+    ref_dip, ref_dd = dip_grids(surface, grid)
+    dip, _, _ = raster(res["DIP"])
+    dd, _, _ = raster(res["DIP_DIRECTION"])
+    np.testing.assert_array_equal(dip, ref_dip.astype(float))
+    np.testing.assert_array_equal(dd, ref_dd.astype(float))
+    # External: GDAL's own slope and aspect of the same file (aspect = downhill azimuth from north).
+    # Source: gdal.DEMProcessing 'slope'/'aspect', GDAL 3.6 (Horn 1981 kernel; exact on a plane).
+    slope = gdal.DEMProcessing("", surface_tif, "slope", format="MEM", computeEdges=False)
+    aspect = gdal.DEMProcessing("", surface_tif, "aspect", format="MEM", computeEdges=False)
+    s = slope.GetRasterBand(1).ReadAsArray()[1:-1, 1:-1]
+    a = aspect.GetRasterBand(1).ReadAsArray()[1:-1, 1:-1]
+    np.testing.assert_allclose(dip[1:-1, 1:-1], s, atol=GDAL_DIP_TOL_DEG)
+    diff = (dd[1:-1, 1:-1] - a + 180.0) % 360.0 - 180.0
+    assert np.nanmax(np.abs(diff)) < GDAL_DIP_TOL_DEG
+
+
+@pytest.mark.parametrize("kind", ["file", "memory"])
+def test_depth_trace_and_misfit(run, surface_tif, sheet, reference, kind):
+    contacts, _ = topo(sheet, kind)
+    res = run("depthtrace", {"SURFACE": surface_tif, "DEM": sheet["dem"], "CONTACTS": contacts,
+                             "DEPTH": TMP, "PREDICTED_TRACE": TMP, "MISFIT": TMP})
+    dem, dgrid = read_raster(sheet["dem"], label="DEM")
+    surface, _ = read_raster(surface_tif, label="surface")
+    depth, _, _ = raster(res["DEPTH"])
+    np.testing.assert_array_equal(depth, depth_below_ground(dem, surface).astype(np.float32).astype(float))
+    r = reference[1]
+    np.testing.assert_allclose(depth, r.depth_m, atol=F32_ELEVATION_TOL_M, equal_nan=True)
+    geoms, _ = table(res["PREDICTED_TRACE"])
+    ref_trace, _ = contour_lines(depth_below_ground(dem, surface), dgrid, levels=[0.0])
+    assert_same_lines(geoms, np.zeros(len(geoms)), ref_trace, np.zeros(len(ref_trace)), tol_m=1e-9)
+    assert_same_lines(geoms, np.zeros(len(geoms)), r.trace_geoms, np.zeros(len(r.trace_geoms)), tol_m=0.01)
+    tm = r.summary["trace_misfit_m"]
+    assert res["MISFIT_MEDIAN_M"] == pytest.approx(tm["median"], abs=1e-3)
+    assert res["MISFIT_P90_M"] == pytest.approx(tm["p90"], abs=1e-3)
+    assert res["MISFIT_N"] == tm["n_vertices"]
+    # External: each vertex's distance to the trace. Source: GEOS point-line distance (shapely 2.0).
+    pts, cols = table(res["MISFIT"], z=False)
+    trace = shapely.multilinestrings(list(geoms))
+    np.testing.assert_allclose(cols["distance_m"], shapely.distance(pts, trace), atol=1e-9)
+    assert res["MISFIT_MEDIAN_M"] == pytest.approx(float(np.median(cols["distance_m"])), abs=1e-12)
+
+
+# ------------------------------------------------------------------------------- whole chain
+@pytest.mark.parametrize("kind", ["file", "memory"])
+def test_whole_chain_is_the_library_chain(run, sheet, reference, kind, tmp_path):
+    import json
+
+    contacts, contours = topo(sheet, kind)
+    out = {k: str(tmp_path / f"{k.lower()}.tif") for k in ("SURFACE", "DIP", "DIP_DIRECTION", "DEPTH")}
+    out.update({k: str(tmp_path / f"{k.lower()}.gpkg") for k in ("PICKS", "STRUCTURE_CONTOURS", "PREDICTED_TRACE")})
+    res = run("modelcontact", {"CONTACTS": contacts, "DEM": sheet["dem"], "CONTOURS": contours,
+                               "ELEV_FIELD": "elev_m", "INTERVAL": 50.0, "SUMMARY": str(tmp_path / "summary.json"),
+                               **out})
+    inputs, r = reference
+    for key, arr in (("SURFACE", r.surface), ("DIP", r.dip_deg), ("DIP_DIRECTION", r.dip_direction_deg),
+                     ("DEPTH", r.depth_m)):
+        got, gt, _ = raster(res[key])
+        assert gt == r.grid.transform
+        np.testing.assert_array_equal(got, np.asarray(arr, dtype=np.float32).astype(float), err_msg=key)
+    geoms, cols = table(res["STRUCTURE_CONTOURS"])
+    np.testing.assert_array_equal(cols["elevation"], r.contour_elevations_m)
+    for g, rg in zip(geoms, r.contour_geoms):
+        np.testing.assert_array_equal(shapely.get_coordinates(g), shapely.get_coordinates(rg))
+    geoms, _ = table(res["PICKS"])
+    np.testing.assert_array_equal(shapely.get_coordinates(geoms, include_z=True), r.picks.xyz)
+    geoms, _ = table(res["PREDICTED_TRACE"], z=False)
+    assert len(geoms) == len(r.trace_geoms)
+    summary = json.loads((tmp_path / "summary.json").read_text())
+    want = dict(r.summary)
+    if kind == "memory":  # only files are hashed; the DEM is the one file among the inputs
+        want["inputs"] = {k: v for k, v in want["inputs"].items() if k == "dem.tif"}
+    assert summary == json.loads(json.dumps(want))
+    assert res["DIP_DEG"] == pytest.approx(r.plane.dip_deg, abs=1e-12)
+    assert res["MISFIT_MEDIAN_M"] == r.summary["trace_misfit_m"]["median"]
+
+
+def test_whole_chain_without_a_dem(run, sheet, library):
+    res = run("modelcontact", {"CONTACTS": sheet["contacts_uri"], "CONTOURS": sheet["contours_uri"],
+                               "ELEV_FIELD": "elev_m", "INTERVAL": 50.0, "PICKS": TMP,
+                               "STRUCTURE_CONTOURS": TMP, "SURFACE": TMP, "DIP": TMP, "DIP_DIRECTION": TMP})
+    _, r = library(sheet, dem=False)
+    got, gt, _ = raster(res["SURFACE"])
+    assert gt == r.grid.transform
+    np.testing.assert_array_equal(got, r.surface.astype(np.float32).astype(float))
+    assert res["N_PICKS"] == len(r.picks) == r.picks.counts_by_source()["contours"]
+    assert "PREDICTED_TRACE" not in res and "DEPTH" not in res
