@@ -96,7 +96,7 @@ def style_surface(layer) -> None:
 
 def _contour_labels(field: str = "elevation") -> QgsVectorLayerSimpleLabeling:
     s = QgsPalLayerSettings()
-    s.fieldName = f'format_number("{field}", 0)'
+    s.fieldName = f'round("{field}")'
     s.isExpression = True
     s.placement = QgsPalLayerSettings.Line
     fmt = QgsTextFormat()
