@@ -1,0 +1,119 @@
+"""Benchmark: surface models from 100,000 picks to a 2,000 x 2,000 grid (a script, not a test).
+
+Workload (deterministic, fictional):
+
+* a 10 km x 10 km sheet whose contact surface is folded and tilted,
+  ``z = 300 + 0.03 x − 0.01 y + 60 sin(2π y / 4,000) + 25 cos(2π x / 5,000)`` (metres);
+* 100,000 picks clustered along 160 meandering synthetic contact lines (a pick every ~6 m,
+  like DEM sampling), with 1 m of Gaussian noise; each line is split into 1 km segments for
+  the cross-validation groups (:func:`strikeline.crossval.segment_groups`);
+* ``fit_surface(model='auto')``: thinning to 2,000 representatives, 5-fold grouped
+  cross-validation of plane, trend2 and spline (GCV smoothing), refit of the chosen model;
+* ``evaluate_grid`` on a 2,000 x 2,000 grid of 5 m cells (coarse evaluation + bicubic
+  interpolation, checked against full evaluation), then ``standard_error_grid``.
+
+Prints the workload, seconds per stage, the total, the largest difference between the grid and
+full evaluation at 20,000 random cells (independent of the method's own check cells), and the
+peak memory as the process's peak resident set size (``resource.getrusage(RUSAGE_SELF)
+.ru_maxrss``: everything the process held, Python and libraries included).
+
+Targets (issue 4): under 30 s on 2 cores and under 2 GiB peak memory.
+
+Run:  .venv/bin/python bench/bench_surfaces.py [--picks 100000] [--cells 2000]
+"""
+from __future__ import annotations
+
+import argparse
+import os
+import resource
+import time
+
+import numpy as np
+
+from strikeline.crossval import segment_groups
+from strikeline.grid import Grid
+from strikeline.surfaces import fit_surface
+
+SHEET_M = 10_000.0
+N_LINES = 160
+NOISE_M = 1.0
+SEGMENT_M = 1_000.0
+TARGET_S = 30.0
+TARGET_GIB = 2.0
+
+
+def truth(x, y):
+    return (300.0 + 0.03 * x - 0.01 * y + 60.0 * np.sin(2 * np.pi * y / 4_000.0)
+            + 25.0 * np.cos(2 * np.pi * x / 5_000.0))
+
+
+def make_picks(n_picks, rng):
+    """Picks along meandering lines inside the sheet: (xyz, line id)."""
+    per_line = n_picks // N_LINES
+    xs, ids = [], []
+    for i in range(N_LINES):
+        x0, y0 = rng.uniform(0.05 * SHEET_M, 0.95 * SHEET_M, 2)
+        heading = rng.uniform(0, 2 * np.pi) + np.cumsum(rng.normal(0, 0.02, per_line))
+        step = 6.0
+        x = x0 + np.cumsum(step * np.cos(heading))
+        y = y0 + np.cumsum(step * np.sin(heading))
+        # fold the path back into the sheet (reflect at the edges)
+        x = np.abs(np.mod(x + SHEET_M, 2 * SHEET_M) - SHEET_M)
+        y = np.abs(np.mod(y + SHEET_M, 2 * SHEET_M) - SHEET_M)
+        xs.append(np.column_stack([x, y]))
+        ids.append(np.full(per_line, i))
+    xy = np.vstack(xs)
+    z = truth(xy[:, 0], xy[:, 1]) + rng.normal(0, NOISE_M, len(xy))
+    return np.column_stack([xy, z]), np.concatenate(ids)
+
+
+def main():
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--picks", type=int, default=100_000)
+    ap.add_argument("--cells", type=int, default=2_000)
+    ap.add_argument("--max-points", type=int, default=2_000)
+    args = ap.parse_args()
+    rng = np.random.default_rng(20240604)
+    xyz, line = make_picks(args.picks, rng)
+    groups = segment_groups(xyz[:, 0], xyz[:, 1], line, block_m=SEGMENT_M)
+    cell = SHEET_M / args.cells
+    grid = Grid((0.0, cell, 0.0, SHEET_M, 0.0, -cell), (args.cells, args.cells))
+    print(f"workload: {len(xyz):,} picks on {N_LINES} contact lines ({len(np.unique(groups))} "
+          f"segments of <= {SEGMENT_M:.0f} m), noise {NOISE_M} m; grid {args.cells:,} x "
+          f"{args.cells:,} cells of {cell:g} m; cores {os.cpu_count()}")
+
+    t0 = time.perf_counter()
+    model = fit_surface(xyz, model="auto", groups=groups, max_points=args.max_points)
+    t1 = time.perf_counter()
+    z, rep = model.evaluate_grid(grid, return_report=True)
+    t2 = time.perf_counter()
+    se = model.standard_error_grid(grid)
+    t3 = time.perf_counter()
+
+    r = rng.integers(0, args.cells, 20_000)
+    c = rng.integers(0, args.cells, 20_000)
+    xs, ys = grid.cell_centres()
+    full = model.evaluate(xs[c], ys[r])
+    err_full = float(np.abs(z[r, c] - full).max())
+    X, Y = xs[c], ys[r]
+    inside = model.hull_distance(X, Y) == 0
+    err_truth = z[r, c][inside] - truth(X, Y)[inside]
+    peak_gib = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 2 ** 20  # KiB on Linux
+
+    print(f"model: chosen {model.kind}; cv_rmse_m "
+          + ", ".join(f"{k} {v:.2f}" for k, v in model.cv_rmse_m.items())
+          + f"; {model.n_used} representatives (cell {model.thin_cell_m:.1f} m), "
+          f"{model.n_folds} folds")
+    print(f"grid: {rep.method} step {rep.step_cells} cells, max checked error "
+          f"{rep.max_checked_error_m:.4f} m at {rep.n_checked} cells; max error vs full "
+          f"evaluation at 20,000 random cells {err_full:.4f} m; RMS vs truth inside hull "
+          f"{np.sqrt(np.mean(err_truth ** 2)):.2f} m; standard error {np.nanmin(se):.2f}-"
+          f"{np.nanmax(se):.2f} m")
+    print(f"seconds: fit {t1 - t0:.2f}, evaluate_grid {t2 - t1:.2f}, standard_error_grid "
+          f"{t3 - t2:.2f}; total {t3 - t0:.2f} (target < {TARGET_S:.0f})")
+    print(f"peak memory (ru_maxrss, whole process): {peak_gib:.2f} GiB (target < "
+          f"{TARGET_GIB:.0f})")
+
+
+if __name__ == "__main__":
+    main()
