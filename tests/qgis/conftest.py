@@ -52,16 +52,29 @@ def pytest_report_header(config):
 
 
 @pytest.fixture(scope="session")
-def sheet():
-    """The demo sheet's files and the plane it was built from."""
+def demo_dir(tmp_path_factory):
+    """A copy of the demo sheet: QGIS writes .aux.xml statistics beside rasters it opens, and
+    the repository's test data must stay untouched."""
+    import shutil
+
+    d = tmp_path_factory.mktemp("demo")
+    for name in ("dem.tif", "contacts.gpkg", "contours.gpkg", "truth.json"):
+        shutil.copyfile(DEMO / name, d / name)
+    return d
+
+
+@pytest.fixture(scope="session")
+def sheet(demo_dir):
+    """The demo sheet's files (copies) and the plane it was built from."""
+    d = demo_dir
     return {
-        "dem": str(DEMO / "dem.tif"),
-        "contacts": str(DEMO / "contacts.gpkg"),
-        "contacts_uri": f"{DEMO / 'contacts.gpkg'}|layername=contacts",
-        "contours": str(DEMO / "contours.gpkg"),
-        "contours_uri": f"{DEMO / 'contours.gpkg'}|layername=topo_contours",
+        "dem": str(d / "dem.tif"),
+        "contacts": str(d / "contacts.gpkg"),
+        "contacts_uri": f"{d / 'contacts.gpkg'}|layername=contacts",
+        "contours": str(d / "contours.gpkg"),
+        "contours_uri": f"{d / 'contours.gpkg'}|layername=topo_contours",
         "elev_field": "elev_m",
-        "truth": json.loads((DEMO / "truth.json").read_text()),
+        "truth": json.loads((d / "truth.json").read_text()),
     }
 
 
@@ -81,7 +94,7 @@ def run():
     return _run
 
 
-@pytest.fixture
+@pytest.fixture(scope="session")
 def library():
     """The library's own result for the demo sheet's inputs (the reference of these tests)."""
     from strikeline.pipeline import RunOptions, compute, load_inputs

@@ -8,7 +8,6 @@
 from __future__ import annotations
 
 import time
-from pathlib import Path
 
 import pytest
 from osgeo import gdal, ogr
@@ -27,8 +26,6 @@ from strikeline.errors import StrikelineError
 from strikeline.pipeline import RunOptions, load_inputs
 
 pytestmark = pytest.mark.qgis
-
-DEMO_DIR = Path(__file__).resolve().parents[2] / "test_data" / "demo"
 
 TMP = "TEMPORARY_OUTPUT"
 GEOGRAPHIC = "EPSG:4326"  # Source: EPSG dataset, WGS 84 geographic 2D
@@ -50,12 +47,12 @@ def qgis_message(run, name, params) -> str:
 
 
 @pytest.fixture(scope="module")
-def geographic_contacts(tmp_path_factory):
+def geographic_contacts(tmp_path_factory, sheet):
     import processing
 
     out = tmp_path_factory.mktemp("geo") / "contacts_wgs84.gpkg"
     processing.run("native:reprojectlayer", {
-        "INPUT": f"{DEMO_DIR}/contacts.gpkg|layername=contacts",
+        "INPUT": sheet["contacts_uri"],
         "TARGET_CRS": QgsCoordinateReferenceSystem(GEOGRAPHIC), "OUTPUT": str(out)})
     return str(out)
 

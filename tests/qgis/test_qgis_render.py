@@ -40,16 +40,14 @@ REPO = Path(__file__).resolve().parents[2]
 
 
 @pytest.fixture(scope="module")
-def outputs(tmp_path_factory):
+def outputs(tmp_path_factory, sheet):
     """Surface, dip, split structure contours, depth and trace of the demo sheet, as files."""
     import processing
 
     d = tmp_path_factory.mktemp("render")
-    demo = REPO / "test_data" / "demo"
-    contacts = f"{demo / 'contacts.gpkg'}|layername=contacts"
-    dem = str(demo / "dem.tif")
+    contacts, dem = sheet["contacts_uri"], sheet["dem"]
     picks = processing.run("strikeline:contactpicks", {
-        "CONTACTS": contacts, "DEM": dem, "CONTOURS": f"{demo / 'contours.gpkg'}|layername=topo_contours",
+        "CONTACTS": contacts, "DEM": dem, "CONTOURS": sheet["contours_uri"],
         "ELEV_FIELD": "elev_m", "PICKS": str(d / "picks.gpkg")})["PICKS"]
     surface = processing.run("strikeline:surfacemodel", {"PICKS": picks, "REFERENCE": dem,
                                                          "SURFACE": str(d / "surface.tif")})["SURFACE"]

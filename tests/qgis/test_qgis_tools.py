@@ -6,8 +6,6 @@
 """
 from __future__ import annotations
 
-from pathlib import Path
-
 import numpy as np
 import pytest
 import shapely
@@ -27,8 +25,6 @@ from strikeline.io.raster import read_raster
 
 pytestmark = pytest.mark.qgis
 
-DEMO = Path(__file__).resolve().parents[2] / "test_data" / "demo"
-
 TMP = "TEMPORARY_OUTPUT"
 #: float32 GeoTIFF storage of elevations near 600 m: half a unit in the last place is ~3e-5 m.
 F32_ELEVATION_TOL_M = 1e-4  # common practice: float32 has a 24-bit significand
@@ -44,29 +40,21 @@ def topo(sheet, kind):
 
 
 @pytest.fixture(scope="module")
-def reference(request):
+def reference(library, sheet):
     """The library's whole chain on the demo sheet, computed once for this module."""
-    from strikeline.pipeline import RunOptions, compute, load_inputs
-
-    opts = RunOptions(contacts=str(DEMO / "contacts.gpkg"), out="/nonexistent-out", dem=str(DEMO / "dem.tif"),
-                      contours=str(DEMO / "contours.gpkg"), contours_layer="topo_contours",
-                      elev_field="elev_m", interval_m=50.0)
-    inputs = load_inputs(opts)
-    return inputs, compute(inputs, opts)
+    return library(sheet)
 
 
 @pytest.fixture(scope="module")
-def surface_tif(tmp_path_factory, reference):
+def surface_tif(tmp_path_factory, sheet):
     """The surface tool's GeoTIFF on the DEM's grid, made once through QGIS from the library's picks."""
     import processing
 
     out = tmp_path_factory.mktemp("surface") / "surface.tif"
     picks = processing.run("strikeline:contactpicks", {
-        "CONTACTS": f"{DEMO / 'contacts.gpkg'}|layername=contacts", "DEM": str(DEMO / "dem.tif"),
-        "CONTOURS": f"{DEMO / 'contours.gpkg'}|layername=topo_contours", "ELEV_FIELD": "elev_m",
-        "PICKS": TMP})["PICKS"]
-    processing.run("strikeline:surfacemodel", {"PICKS": picks, "REFERENCE": str(DEMO / "dem.tif"),
-                                               "SURFACE": str(out)})
+        "CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "CONTOURS": sheet["contours_uri"],
+        "ELEV_FIELD": "elev_m", "PICKS": TMP})["PICKS"]
+    processing.run("strikeline:surfacemodel", {"PICKS": picks, "REFERENCE": sheet["dem"], "SURFACE": str(out)})
     return str(out)
 
 
@@ -165,6 +153,46 @@ def test_plane_attitude_is_the_library_fit(run, sheet, reference, kind, tmp_path
     assert res["DIP_DIRECTION_DEG"] == pytest.approx(svd_dd, abs=1e-6)
     # common practice: strike by the right-hand rule is the dip direction minus 90°.
     assert res["STRIKE_RHR_DEG"] == pytest.approx((svd_dd - 90.0) % 360.0, abs=1e-6)
+
+
+def test_plane_confidence_and_quality_are_the_library_ones(run, sheet, reference):
+    from strikeline.diagnostics import assess_plane
+    from strikeline.uncertainty import plane_confidence
+
+    picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "PICKS": TMP})["PICKS"]
+    res = run("planeattitude", {"PICKS": picks, "RESAMPLES": 200, "SIGMA_Z": 0.5, "SEED": 3, "ATTITUDE": TMP})
+    geoms, cols = table(picks)
+    xyz = shapely.get_coordinates(geoms, include_z=True)
+    conf = plane_confidence(xyz, sigma_z_m=0.5, n_resamples=200, n_draws=200, seed=3)
+    quality = assess_plane(xyz, sigma_z_m=0.5, dip_ci95_deg=conf.dip_ci95_deg)
+    assert res["DIP_CI95_DEG"] == conf.dip_ci95_deg
+    assert res["DIP_DIRECTION_CI95_DEG"] == conf.dip_direction_ci95_deg
+    assert res["CONE95_DEG"] == conf.cone95_deg
+    assert (res["QUALITY"], res["QUALITY_REASON"]) == (quality.quality, quality.reason)
+    _, att = table(res["ATTITUDE"])
+    assert att["quality"][0] == quality.quality and att["cone95_deg"][0] == conf.cone95_deg
+    none = run("planeattitude", {"PICKS": picks, "RESAMPLES": 0, "ATTITUDE": TMP})
+    assert none["DIP_CI95_DEG"] is None and none["QUALITY"] == assess_plane(xyz).quality
+
+
+def test_undetermined_quality_is_a_warning_in_the_log(run):
+    from qgis.core import QgsFeature, QgsGeometry, QgsVectorLayer
+
+    # Picks on flat ground: 1 cm of relief over a kilometre cannot show a dip.
+    mem = QgsVectorLayer("PointZ?crs=EPSG:32631", "lake_shore", "memory")
+    rng = np.random.default_rng(7)
+    feats = []
+    for x, y, dz in zip(rng.uniform(0, 1000, 40), rng.uniform(0, 1000, 40), rng.uniform(0, 0.01, 40)):
+        f = QgsFeature()
+        f.setGeometry(QgsGeometry.fromWkt(f"PointZ ({x} {y} {440.0 + dz})"))
+        feats.append(f)
+    mem.dataProvider().addFeatures(feats)
+    fb = QgsProcessingFeedback()
+    warnings = []
+    fb.pushWarning = warnings.append
+    res = run("planeattitude", {"PICKS": mem, "RESAMPLES": 50, "ATTITUDE": TMP}, feedback=fb)
+    assert res["QUALITY"] == "undetermined"
+    assert any("plane quality undetermined" in w and "data that would help" in w for w in warnings)
 
 
 def test_plane_attitude_from_a_z_field(run, sheet, reference):
