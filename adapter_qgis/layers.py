@@ -117,8 +117,8 @@ def read_vector(source: QgsProcessingFeatureSource, name: LayerName, *, geometry
         From ``parameterAsSource`` (selected features only when the user asked for it).
     name : LayerName
         How to name the input in messages.
-    geometry : {'line', 'point'}
-        The geometry family the input must hold.
+    geometry : {'line', 'point', None}
+        The geometry family the input must hold (None: any).
     fields : sequence of str
         Attribute fields to read (only these are fetched).
     target_crs : QgsCoordinateReferenceSystem, optional
@@ -178,9 +178,10 @@ def read_vector(source: QgsProcessingFeatureSource, name: LayerName, *, geometry
     geoms = shapely.from_wkb(wkbs)
     if not keep_z:
         geoms = shapely.force_2d(geoms)
-    wanted = ("LineString", "MultiLineString", "LinearRing") if geometry == "line" else ("Point", "MultiPoint")
+    wanted = {"line": ("LineString", "MultiLineString", "LinearRing"), "point": ("Point", "MultiPoint"),
+              None: ()}[geometry]
     types = {shapely.GeometryType(t).name for t in set(shapely.get_type_id(geoms).tolist())}
-    if not types <= {w.upper() for w in wanted}:
+    if geometry is not None and not types <= {w.upper() for w in wanted}:
         got = ", ".join(sorted(t.lower() for t in types))
         raise InputError(f"{what} holds {got} geometries; it must hold {geometry}s - give a {geometry} layer")
     qfields = source.fields()

@@ -8,6 +8,7 @@
 from __future__ import annotations
 
 import configparser
+import re
 import subprocess
 import sys
 import zipfile
@@ -32,7 +33,7 @@ REPO = Path(__file__).resolve().parents[2]
 PLUGIN = REPO / "adapter_qgis"
 PROVIDER_ID = "strikeline"
 TOOLS = {"modelcontact", "contactpicks", "planeattitude", "surfacemodel", "structurecontours",
-         "dipgrids", "depthtrace"}
+         "dipgrids", "depthtrace", "unitthickness"}
 FORECAST_TOOLS = {"modelcontact", "surfacemodel", "structurecontours", "depthtrace"}
 METADATA_KEYS = {"name", "qgisMinimumVersion", "description", "version", "author", "email"}
 
@@ -53,7 +54,8 @@ def test_help_names_method_conventions_and_caution():
     for alg in provider().algorithms():
         text = alg.shortHelpString()
         assert "clockwise from grid north" in text and "right-hand rule" in text, alg.name()
-        assert "doi:" in text or "gdal.org" in text or "Numerical Recipes" in text, alg.name()
+        # A References list with at least one cited work (authors, year) or GDAL's documentation.
+        assert "<b>References</b>" in text and (re.search(r"\(\d{4}\)", text) or "gdal.org" in text), alg.name()
         assert (CAUTION in text) == (alg.name() in FORECAST_TOOLS), alg.name()
         assert alg.group() and alg.groupId() and alg.displayName()
 
