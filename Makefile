@@ -19,7 +19,7 @@ demo: setup
 	$(VENV)/bin/strikeline demo --out demo-output --overwrite
 
 test: setup
-	bash .ci/pytest-strict $(VPY) tests --ignore=tests/qgis
+	bash .ci/pytest-strict $(VPY) tests algorithms --doctest-modules --ignore=tests/qgis
 	$(MAKE) --no-print-directory test-qgis
 
 setup: $(STAMP)

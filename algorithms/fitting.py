@@ -130,7 +130,7 @@ def fit_plane(points) -> PlaneFit:
         normal = v[:, 0]
         if normal[2] < 0:
             normal = -normal
-        dd, d = (float(a) for a in dip_from_normal(normal))
+        dd, d = (np.asarray(a).item() for a in dip_from_normal(normal))
     rms = float(np.sqrt(np.mean(((p - centroid) @ normal) ** 2)))
     return PlaneFit(
         normal=normal,
