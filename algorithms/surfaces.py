@@ -24,8 +24,9 @@ Models
 
 Pipeline of a fit
 -----------------
-1. Picks are thinned to one centroid per lattice cell and group (:mod:`strikeline.thinning`),
-   at most ``max_points`` of them.
+1. Picks are thinned to one centroid per lattice cell (:mod:`strikeline.thinning`), at most
+   ``max_points`` of them, each labelled with the majority group of its picks (or one per
+   cell and group, ``thin_by_group=True``).
 2. Coordinates are centred on the mean position of all data and divided by their RMS distance
    from it (``u = (x - x₀)/L``, ``v = (y - y₀)/L``) for conditioning; results do not depend on
    it (``params['origin_m']``, ``params['scale_m']`` give ``x₀, y₀`` and ``L``).
@@ -739,7 +740,8 @@ def _gcv_minimise(spec: _Spectrum):
         if r.fun < best_v:
             best_nl, best_v = float(np.exp(r.x)), float(r.fun)
     v0 = float(spec.gcv(0.0)[0][0])
-    if np.isfinite(v0) and v0 <= best_v:
+    exact_ok = spec.mu.min() > 1e-12 * max(spec.mu.max(), 1e-300)
+    if exact_ok and np.isfinite(v0) and v0 <= best_v:
         best_nl, best_v = 0.0, v0
     return best_nl, best_v
 
@@ -775,6 +777,11 @@ def _fit_tps(data: _Data, smoothing, lam=None) -> _TPS:
         how = "gcv" if smoothing == "gcv" else "gcv (k-fold search failed)"
     else:
         nlam, how = n * float(smoothing), "fixed"
+    if nlam == 0.0 and spec.mu.min() <= 1e-12 * max(spec.mu.max(), 1e-300):
+        raise UndeterminedError(
+            "the spline cannot interpolate these picks exactly: some lie at the same place "
+            "(or nearly) with different elevations; use smoothing='gcv' or a smoothing > 0, "
+            "or thin the picks (thin_cell_m)")
     V, rss, tr = spec.gcv(nlam)
     bhat = spec.bhat(nlam)
     sigma = float(np.sqrt(nlam * bhat))
@@ -1278,7 +1285,8 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
                 orientation_footprint_m: float | None = None, groups=None,
                 smoothing="gcv", n_folds: int = 5, selection: str = "one_se",
                 cross_validate_model: bool = True, max_points: int = 2000,
-                thin_cell_m: float | None = None, pick_sigma_m: float | None = None,
+                thin_cell_m: float | None = None, thin_by_group: bool = False,
+                pick_sigma_m: float | None = None,
                 reach_m: float | None = None, taper_m: float | None = None, seed: int = 0,
                 progress: Callable | None = None,
                 is_cancelled: Callable | None = None) -> SurfaceModel:
@@ -1321,6 +1329,11 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
         Thinning target (:func:`strikeline.thinning.thin_picks`).
     thin_cell_m : float, optional
         Fixed thinning cell instead.
+    thin_by_group : bool, default False
+        ``False``: one representative per cell, labelled with the majority group of its
+        picks (finer cells for the same ``max_points``; picks of segments meeting in a cell can
+        leak across folds there). ``True``: one per cell and group, no leakage, coarser cells
+        (every group keeps a representative). See :mod:`strikeline.thinning`.
     pick_sigma_m : float, optional
         Pick standard error for weighing picks against constraints in plane/trend2 (default:
         estimated from the residuals of the fit without constraints).
@@ -1391,7 +1404,8 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
     if int(n_folds) < 2:
         raise InputError(f"n_folds must be at least 2, got {n_folds}")
     _check_cancel(is_cancelled, "surface fitting")
-    thinned = thin_picks(xyz, max_points=max_points, cell_m=thin_cell_m, groups=groups)
+    thinned = thin_picks(xyz, max_points=max_points, cell_m=thin_cell_m, groups=groups,
+                         by_group=bool(thin_by_group))
     data = _prepare(thinned.xyz, boreholes, borehole_sigma_m, orientations,
                     orientation_sigma_deg, orientation_footprint_m, pick_sigma_m)
     hull = _Hull(data.all_xy())

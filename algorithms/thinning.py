@@ -10,8 +10,13 @@ How it thins
 ------------
 * The lattice is anchored at the smallest ``x`` and ``y`` of the picks; the cell of a pick is
   ``(floor((x - xmin) / cell_m), floor((y - ymin) / cell_m))``.
-* Picks of different groups (contact segments) in one cell are kept apart: the key is
-  ``(cell, group)``, so cross-validation folds by group never share a representative.
+* With ``by_group=True`` (the default here) picks of different groups (contact segments) in
+  one cell are kept apart: the key is ``(cell, group)``, so cross-validation folds by group
+  never share a representative; but every group then keeps at least one representative and
+  cells at group boundaries count twice, so a budget of ``max_points`` buys coarser cells.
+  With ``by_group=False`` the key is the cell alone and a representative takes the group most
+  of its picks belong to (ties: the smallest label); picks of another group sharing the cell
+  then leak into that group's fold, which only happens in cells where segments meet.
 * The representative is the **centroid** (mean ``x``, mean ``y``, mean ``z``) of the cell's
   picks. Where the surface is planar across a cell the centroid lies on it exactly (a mean of
   points of a plane is a point of the plane); the median of ``z`` paired with the mean position
@@ -145,7 +150,7 @@ def choose_cell_size(xy, *, max_points: int, groups=None) -> float:
 
 
 def thin_picks(xyz, *, max_points: int = 2000, cell_m: float | None = None,
-               groups=None) -> ThinnedPicks:
+               groups=None, by_group: bool = True) -> ThinnedPicks:
     """Thin picks to one representative (the centroid) per lattice cell and group.
 
     Parameters
@@ -158,7 +163,10 @@ def thin_picks(xyz, *, max_points: int = 2000, cell_m: float | None = None,
     cell_m : float, optional
         Fixed cell size in metres (thinning happens whatever the number of picks).
     groups : array_like, shape ``(n,)``, optional
-        Group labels (e.g. contact segment ids); picks of different groups are never merged.
+        Group labels (e.g. contact segment ids).
+    by_group : bool, default True
+        Keep groups apart in shared cells (``True``), or merge them and label the
+        representative with the majority group (``False``); see the module docstring.
 
     Returns
     -------
@@ -199,9 +207,10 @@ def thin_picks(xyz, *, max_points: int = 2000, cell_m: float | None = None,
         index[ok] = np.arange(len(q))
         return ThinnedPicks(q.copy(), None if labels is None else labels[codes],
                             np.ones(len(q), dtype=np.int64), np.zeros(len(q)), index, None)
+    key_codes = codes if by_group else None
     if cell_m is None:
-        cell_m = choose_cell_size(q[:, :2], max_points=int(max_points), groups=codes)
-    key = _cell_keys(q[:, :2], codes, float(cell_m))
+        cell_m = choose_cell_size(q[:, :2], max_points=int(max_points), groups=key_codes)
+    key = _cell_keys(q[:, :2], key_codes, float(cell_m))
     _, inverse, counts = np.unique(key, return_inverse=True, return_counts=True)
     m = len(counts)
     sums = np.stack([np.bincount(inverse, weights=q[:, k], minlength=m) for k in range(3)], axis=1)
@@ -210,9 +219,13 @@ def thin_picks(xyz, *, max_points: int = 2000, cell_m: float | None = None,
     z_std = np.sqrt(np.bincount(inverse, weights=dz * dz, minlength=m) / counts)
     rep_groups = None
     if codes is not None:
-        first = np.zeros(m, dtype=np.int64)
-        first[inverse[::-1]] = np.arange(len(q))[::-1]  # any member: all share the group
-        rep_groups = labels[codes[first]]
+        # majority group of each cell: count (cell, group) pairs, keep the largest per cell
+        pair, pair_count = np.unique(inverse * (int(codes.max()) + 1) + codes,
+                                     return_counts=True)
+        cell_of, code_of = np.divmod(pair, int(codes.max()) + 1)
+        order = np.lexsort((code_of, -pair_count, cell_of))
+        first = order[np.r_[True, np.diff(cell_of[order]) != 0]]
+        rep_groups = labels[code_of[first]]
     index[ok] = inverse
     return ThinnedPicks(centroid, rep_groups, counts.astype(np.int64), z_std, index,
                         float(cell_m))

@@ -391,6 +391,14 @@ def test_too_few_picks_for_each_model():
             fit_surface(pts, model=kind, cross_validate_model=False)
 
 
+def test_exact_interpolation_of_two_elevations_at_one_place_is_refused():
+    pts = np.array([[0, 0, 1.0], [0, 0, 2.0], [10, 0, 3.0], [0, 10, 4.0], [10, 10, 5.0]])
+    with pytest.raises(UndeterminedError, match="same place"):
+        fit_surface(pts, model="spline", smoothing=0.0, cross_validate_model=False)
+    m = fit_surface(pts, model="spline", cross_validate_model=False)  # GCV smooths instead
+    assert 1.0 < float(m.evaluate(0.0, 0.0)) < 2.0
+
+
 def test_kfold_smoothing_and_cancellation():
     rng = np.random.default_rng(12)
     xy, g = _contact_lines(rng, 8, 2000.0, step=25.0)

@@ -94,6 +94,15 @@ def test_groups_are_never_merged():
     assert t.groups[t.index].tolist() == ["a", "b", "a"]
 
 
+def test_merging_groups_labels_each_cell_with_its_majority_group():
+    picks = [[1, 1, 5], [2, 2, 7], [3, 3, 9], [15, 1, 4], [16, 1, 6]]
+    t = thin_picks(picks, cell_m=10.0, groups=["b", "a", "b", "a", "c"], by_group=False)
+    assert len(t) == 2
+    np.testing.assert_allclose(t.xyz[0], [2, 2, 7])  # Source: analytic (mean of 3 picks)
+    # Source: analytic -- majority: cell 1 has b, a, b -> b; cell 2 a, c tie -> smallest, a
+    assert t.groups.tolist() == ["b", "a"]
+
+
 def test_few_picks_are_not_thinned_and_non_finite_rows_are_dropped():
     picks = [[0, 0, 1], [np.nan, 0, 1], [5, 5, 2]]
     t = thin_picks(picks, max_points=10)
