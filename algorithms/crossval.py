@@ -350,7 +350,7 @@ def gcv_from_spectrum(eigenvalues, projections, n: int, n_lambda):
     Notes
     -----
     For the spline minimising ``(1/n) Σ (z_i − f(x_i))² + λ J(f)`` the influence matrix
-    satisfies ``I − A(λ) = nλ Q₂ U (Λ + nλ I)⁻¹ Uᵀ Q₂ᵀ`` (Wahba 1990, ch. 4), so
+    satisfies ``I − A(λ) = nλ Q₂ U (Λ + nλ I)⁻¹ Uᵀ Q₂ᵀ`` (Wahba 1990), so
     ``||(I−A)z||² = Σ_j (nλ b_j / (μ_j + nλ))²`` and
     ``tr(I−A) = Σ_j nλ / (μ_j + nλ)``. At ``nλ = 0`` numerator and denominator both vanish;
     dividing each by ``(nλ)²`` gives ``V(0) = n Σ (b_j/μ_j)² / (Σ 1/μ_j)²``.

@@ -74,8 +74,9 @@ Dip measurements ``(x, y, dip_deg, dip_direction_deg[, sigma_deg])``
     ``1/σ_g`` against ``1/σ_pick`` for picks (``σ_pick`` from the residuals of the fit without
     constraints unless given), and ``sigma_deg = 0`` makes the two slopes equality
     constraints; spline: noise variance ``σ_g²`` against the spline's own Bayesian scale
-    ``b̂ = σ̂²/(nλ)`` from the GCV fit of the picks (Wahba 1990, ch. 5), ``sigma_deg = 0``
-    gives exact slopes. The smoothing λ is always chosen on the picks alone.
+    ``b̂ = σ̂²/(nλ)`` from the GCV fit of the picks (the Bayesian interpretation of the
+    smoothing spline, Wahba 1990), ``sigma_deg = 0`` gives exact slopes. The smoothing λ is
+    always chosen on the picks alone.
 
 Uncertainty
 -----------
@@ -671,7 +672,7 @@ def _apply_q(vs, betas, X):
 
 
 class _Spectrum:
-    """Eigen-decomposition of a TPS pick system for GCV (Wahba 1990, ch. 4).
+    """Eigen-decomposition of a TPS pick system for GCV (Wahba 1990).
 
     ``T = Q [R; 0]`` by three Householder reflections, so ``Qᵀ K Q`` costs ``O(n²)``; its
     trailing block ``Q₂ᵀ K Q₂ = U diag(μ) Uᵀ``.
@@ -706,7 +707,8 @@ class _Spectrum:
         return gcv_from_spectrum(self.mu, self.b, self.n, nlam)
 
     def bhat(self, nlam):
-        """Bayesian scale ``b̂ = σ̂² / (nλ)``, finite as ``λ → 0`` (Wahba 1990, ch. 5)."""
+        """Bayesian scale ``b̂ = σ̂² / (nλ)`` of the smoothing spline (Wahba 1990), finite as
+        ``λ → 0``."""
         mu, b = self.mu, self.b
         with np.errstate(divide="ignore"):
             d = mu + nlam
