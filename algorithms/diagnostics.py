@@ -48,6 +48,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from strikeline.errors import InputError
+from strikeline.orientation import _components
 
 __all__ = [
     "PlaneQuality",
@@ -170,7 +171,7 @@ def shape_measures(eigenvalues):
     with np.errstate(divide="ignore", invalid="ignore"):
         floor = w[..., :1] * _EIG_FLOOR
         w = np.maximum(w, floor)
-        l1, l2, l3 = w[..., 0], w[..., 1], w[..., 2]
+        l1, l2, l3 = _components(w)
         m = np.log(l1 / l3)
         num = np.log(l1 / l2)
         den = np.log(l2 / l3)
@@ -200,8 +201,8 @@ def classify_planes(eigenvalues, *, n_points, relief_m=None, sigma_z_m=None,
     relief_m : array_like, shape ``(W,)``, optional
         Elevation range of each pick set; the flat-ground test is skipped when omitted.
     sigma_z_m : float or array_like, optional
-        Vertical standard error of the picks (metres; the median of an array is used); the relief must exceed
-        ``RELIEF_SIGMAS`` times it as well as ``min_relief_m``.
+        Vertical standard error of the picks (metres; the median of an array is used); the
+        relief must exceed ``RELIEF_SIGMAS`` times it as well as ``min_relief_m``.
     min_relief_m : float, optional
         Least elevation range that can show a dip (default 1 m).
     dip_ci95_deg : array_like, shape ``(W,)``, optional
@@ -256,7 +257,8 @@ def _words(code, m, k, n, relief, min_relief, dip_ci, max_ci):
 
     shape = f"coplanarity M = {f(m)}, collinearity K = {f(k)}"
     if code == "ok":
-        return (f"the {str(n) + ' ' if n else ''}picks spread in two directions and lie close to one plane ({shape}; "
+        count = f"{n} " if n else ""
+        return (f"the {count}picks spread in two directions and lie close to one plane ({shape}; "
                 f"a reliable plane needs M > {GOOD_MIN_COPLANARITY:g} and "
                 f"K < {GOOD_MAX_COLLINEARITY:g})")
     if code == "too_few_picks":

@@ -59,6 +59,17 @@ def _wrap360(a):
     return np.mod(a, 360.0)
 
 
+def _components(v):
+    """The x, y, z components of ``(..., 3)`` vectors as contiguous arrays.
+
+    numpy's SIMD kernels for transcendental functions (``arctan2``, ``hypot``, ...) can take a
+    different code path for strided operands depending on where the operands happen to lie in
+    memory, which changes results in the last bit from run to run (seen with numpy 1.26 on
+    AVX-512). Contiguous operands keep results bit-for-bit reproducible.
+    """
+    return tuple(np.array(v[..., i], order="C", copy=True) for i in range(3))
+
+
 def normal_from_dip(dip_direction_deg, dip_deg):
     """Upward unit normal of a plane given by dip direction and dip.
 
@@ -112,9 +123,10 @@ def dip_from_normal(normal):
         raise InputError("a normal vector of zero length has no orientation")
     n = n / length
     n = np.where(n[..., 2:3] < 0, -n, n)  # upward
-    horiz = np.hypot(n[..., 0], n[..., 1])
-    dip = np.degrees(np.arctan2(horiz, n[..., 2]))
-    dd = _wrap360(np.degrees(np.arctan2(n[..., 0], n[..., 1])))
+    nx, ny, nz = _components(n)
+    horiz = np.hypot(nx, ny)
+    dip = np.degrees(np.arctan2(horiz, nz))
+    dd = _wrap360(np.degrees(np.arctan2(nx, ny)))
     dd = np.where(horiz < 1e-15, 0.0, dd)
     return dd, dip
 
@@ -281,7 +293,8 @@ def apparent_dip(dip_direction_deg, dip_deg, section_azimuth_deg):
     With the right-hand-rule strike :math:`s = \\text{dip direction} - 90°` and
     :math:`\\beta = \\text{azimuth} - s`, :math:`\\tan\\alpha = \\tan\\delta\\sin\\beta`
     (see :func:`apparent_dip_from_strike_angle`). Equivalently the descent per unit horizontal
-    distance along the azimuth is :math:`\\tan\\delta\\cos(\\text{azimuth} - \\text{dip direction})`.
+    distance along the azimuth is
+    :math:`\\tan\\delta\\cos(\\text{azimuth} - \\text{dip direction})`.
 
     References
     ----------
@@ -468,9 +481,10 @@ def trend_plunge_from_vector(vector):
         raise InputError("a direction vector of zero length has no orientation")
     v = v / length
     v = np.where(v[..., 2:3] > 0, -v, v)  # downward sense
-    horiz = np.hypot(v[..., 0], v[..., 1])
-    plunge = np.degrees(np.arctan2(-v[..., 2], horiz))
-    trend = _wrap360(np.degrees(np.arctan2(v[..., 0], v[..., 1])))
+    vx, vy, vz = _components(v)
+    horiz = np.hypot(vx, vy)
+    plunge = np.degrees(np.arctan2(-vz, horiz))
+    trend = _wrap360(np.degrees(np.arctan2(vx, vy)))
     trend = np.where(horiz < 1e-15, 0.0, trend)
     return trend, plunge
 

@@ -50,7 +50,7 @@ from scipy.stats import chi2
 
 from strikeline.errors import CancelledError, InputError, UndeterminedError
 from strikeline.fitting import fit_plane
-from strikeline.orientation import azimuth_difference
+from strikeline.orientation import _components, azimuth_difference
 
 __all__ = [
     "PlaneConfidence",
@@ -231,9 +231,10 @@ def _monte_carlo_normals(q, counts, scatter, sigma_slot, n_draws, rng, progress=
 
 def _dip_and_direction(n):
     """Dip (may exceed 90° for a normal pointing down) and dip direction, degrees."""
-    horiz = np.hypot(n[..., 0], n[..., 1])
-    dip = np.degrees(np.arctan2(horiz, n[..., 2]))
-    dd = np.mod(np.degrees(np.arctan2(n[..., 0], n[..., 1])), 360.0)
+    nx, ny, nz = _components(n)
+    horiz = np.hypot(nx, ny)
+    dip = np.degrees(np.arctan2(horiz, nz))
+    dd = np.mod(np.degrees(np.arctan2(nx, ny)), 360.0)
     return dip, dd
 
 
@@ -273,14 +274,14 @@ def _analytic_covariance_from_eigen(w, v, n_points, sigma2):
 
 def _confidence_from_covariance(normal, cov):
     """95% half-widths (dip, dip direction, cone) from normal covariance stacks (W, 3, 3)."""
-    nx, ny, nz = normal[:, 0], normal[:, 1], normal[:, 2]
+    nx, ny, nz = _components(normal)
     h2 = nx * nx + ny * ny
     h = np.sqrt(h2)
     with np.errstate(divide="ignore", invalid="ignore"):
         g_dip = np.stack([nz * nx / h, nz * ny / h, -h], axis=-1)
         g_dd = np.stack([ny / h2, -nx / h2, np.zeros_like(nx)], axis=-1)
-        var_dip = np.einsum("wi,wij,wj->w", g_dip, cov, g_dip)
-        var_dd = np.einsum("wi,wij,wj->w", g_dd, cov, g_dd)
+        var_dip = np.sum(g_dip[:, :, None] * cov * g_dip[:, None, :], axis=(1, 2))
+        var_dd = np.sum(g_dd[:, :, None] * cov * g_dd[:, None, :], axis=(1, 2))
         # A horizontal normal has no dip gradient direction; its dip variance is the
         # variance of the normal's tilt in any direction: take the larger one.
         ev = np.linalg.eigvalsh(cov)
