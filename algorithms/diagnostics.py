@@ -3,7 +3,8 @@
 The eigenvalues :math:`\\lambda_1 \\ge \\lambda_2 \\ge \\lambda_3` of the scatter matrix of the
 centred picks describe the shape of the pick cloud: a line (one large eigenvalue), a plane (two
 large, one small) or a blob. Two measures of Woodcock (1977), applied to point coordinates by
-Fernández (2005) and discussed for geospatial picks by Jones et al. (2016), summarise it:
+Fernández (2005) (see also Jones et al. 2016 on best-fit planes from geospatial data; the
+content of both papers is cited from memory here and should be checked), summarise it:
 
 * **coplanarity** :math:`M = \\ln(\\lambda_1/\\lambda_3)` -- large when the picks lie close to a
   plane compared with their spread;

@@ -280,7 +280,9 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
         Bootstrap resamples per window (default 200).
     sigma_z_m : float or array_like, shape ``(n,)``, optional
         Vertical standard error of each pick; when given, a Monte Carlo of ``n_draws`` is
-        combined in quadrature with the bootstrap or analytic half-widths.
+        combined in quadrature with the bootstrap or analytic half-widths. Each window draws
+        its own errors (a pick shared by two windows is perturbed independently in each; the
+        per-window half-widths are unaffected).
     n_draws : int, optional
         Monte Carlo draws per window (default 200).
     seed : int, optional
