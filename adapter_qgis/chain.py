@@ -7,6 +7,8 @@ tool. Where the library gains a function for the same sequence (asked for in
 """
 from __future__ import annotations
 
+import itertools
+
 import numpy as np
 import shapely
 
@@ -48,24 +50,33 @@ def require_same_grid(a: Grid, b: Grid, *, what_a: str, what_b: str) -> None:
             "grid; model the surface on the DEM's grid (Surface model with the DEM as reference grid)")
 
 
-def contours_split_by_ground(surface, dem, grid: Grid, *, interval_m: float):
-    """Structure contours in two parts: where the surface lies below ground and above it.
+def contours_by_class(surface, grid: Grid, *, interval_m: float, flags: dict):
+    """Structure contours split where boolean cell classes change.
 
-    Returns ``(geoms, elevations_m, below_ground)``. Each part is the library's
-    :func:`contour_lines` of the surface masked to one side of the ground (NaN on the other),
-    so every vertex lies on the surface and lines stop on the last cell centre of their side.
+    ``flags`` maps a name to a boolean grid (e.g. ``below_ground``: ground minus surface >= 0;
+    ``forecast``: beyond the reach of the data). Returns ``(geoms, elevations_m, {name: bool
+    per line})``. Each part is the library's :func:`contour_lines` of the surface masked to one
+    combination of the flags (NaN elsewhere), so every vertex lies on the surface and lines stop
+    on the last cell centre of their class (gaps of at most one cell where the class changes).
     """
-    depth = depth_below_ground(dem, surface)
-    parts = []
-    for below in (True, False):
-        side = (depth >= 0) if below else (depth < 0)
-        masked = np.where(side, surface, np.nan)
-        g, z = contour_lines(masked, grid, interval_m=interval_m)
-        parts.append((g, z, np.full(len(g), below)))
-    geoms = np.concatenate([p[0] for p in parts]) if any(len(p[0]) for p in parts) else np.empty(0, object)
-    elev = np.concatenate([p[1] for p in parts])
-    flag = np.concatenate([p[2] for p in parts]).astype(bool)
-    return geoms, elev, flag
+    names = list(flags)
+    geoms, elev = [], []
+    per = {n: [] for n in names}
+    for combo in itertools.product((True, False), repeat=len(names)):
+        keep = np.ones(surface.shape, dtype=bool)
+        for n, value in zip(names, combo):
+            keep &= flags[n] == value
+        if not keep.any():
+            continue
+        g, z = contour_lines(np.where(keep, surface, np.nan), grid, interval_m=interval_m)
+        geoms.append(g)
+        elev.append(z)
+        for n, value in zip(names, combo):
+            per[n].append(np.full(len(g), value))
+    if not geoms:
+        return np.empty(0, object), np.empty(0), {n: np.empty(0, bool) for n in names}
+    return (np.concatenate(geoms), np.concatenate(elev),
+            {n: np.concatenate(v).astype(bool) for n, v in per.items()})
 
 
 def depth_trace_misfit(dem, dem_grid: Grid, surface, contact_geoms=None):

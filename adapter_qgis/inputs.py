@@ -109,16 +109,33 @@ def add_picks(alg) -> None:
 
 def read_picks(alg, parameters, context, steps):
     """``(xyz array (n, 3), feature source, LayerName)`` of the picks input, in its own CRS."""
-    source, name = source_and_name(alg, parameters, PICKS, context, "picks")
-    field = alg.parameterAsString(parameters, PICKS_FIELD, context)
-    layer = read_vector(source, name, geometry="point", fields=[field] if field else [],
-                        keep_z=True, is_cancelled=steps.is_cancelled)
+    return read_points_xyz(alg, parameters, PICKS, PICKS_FIELD, context, steps, label="picks",
+                           field_label="Elevation field of the picks")
+
+
+def read_points_xyz(alg, parameters, key, field_key, context, steps, *, label, field_label,
+                    target_crs=None, fields=()):
+    """Points of parameter ``key`` as ``(xyz (n, 3), source, LayerName)``; ``z`` from the field
+    ``field_key`` or, when it is empty, from the points' Z. With ``fields``, the values of those
+    numeric fields follow as a dict (one value per point). ``(None, None, None)`` when unset."""
+    source, name = source_and_name(alg, parameters, key, context, label)
+    if source is None:
+        return (None, None, None, {}) if fields else (None, None, None)
+    field = alg.parameterAsString(parameters, field_key, context) if field_key else ""
+    wanted = [f for f in [field, *fields] if f]
+    layer = read_vector(source, name, geometry="point", fields=wanted, keep_z=True,
+                        target_crs=target_crs, context=context, log=steps.log,
+                        is_cancelled=steps.is_cancelled)
     coords, owner = shapely.get_coordinates(layer.geoms, include_z=True, return_index=True)
     if field:
-        z = layer.numeric_field(field, option="the 'Elevation field of the picks'")[owner]
+        z = layer.numeric_field(field, option=f"the '{field_label}'")[owner]
     elif not shapely.has_z(layer.geoms).all():
-        raise InputError(f"{name.what} has points without Z; choose the 'Elevation field of the "
-                         "picks' or give points with elevations as Z")
+        raise InputError(f"{name.what} has points without Z; choose the '{field_label}' or give "
+                         "points with elevations as Z")
     else:
         z = coords[:, 2]
-    return np.column_stack([coords[:, 0], coords[:, 1], z]), source, name
+    xyz = np.column_stack([coords[:, 0], coords[:, 1], z])
+    if fields:
+        values = {f: layer.numeric_field(f, option=f"the field '{f}'")[owner] for f in fields}
+        return xyz, source, name, values
+    return xyz, source, name

@@ -5,9 +5,9 @@ and is attached to the tool's outputs as a Processing post-processor, so a layer
 completion arrives styled:
 
 - picks: small marks by source (DEM samples grey dots, contour crossings orange triangles);
-- structure contours: labelled by elevation; the parts where the surface lies below ground
-  (a forecast, when the tool was given the DEM) dashed, the eroded parts above ground thin
-  and pale;
+- structure contours: labelled by elevation; blue where the surface lies below ground, thin
+  and pale where it is eroded away above ground (when the tool was given the DEM), dashed
+  where it is a forecast beyond the reach of the data (when given Surface model's mask);
 - dip: a continuous ramp of our own on fixed degrees (pale sand at 0°, teal, slate blue,
   deep plum at 60° and steeper), so maps of different sheets share one legend;
 - dip direction: a cyclic ramp around the compass;
@@ -16,6 +16,8 @@ completion arrives styled:
 - predicted outcrop trace: a wide vermilion dash, unlike a mapped contact's thin black line.
 """
 from __future__ import annotations
+
+import itertools
 
 from qgis.core import (
     QgsCategorizedSymbolRenderer,
@@ -111,27 +113,31 @@ def _contour_labels(field: str = "elevation") -> QgsVectorLayerSimpleLabeling:
     return QgsVectorLayerSimpleLabeling(s)
 
 
-def structure_contour_symbols():
-    """The three line symbols: whole lines, forecast parts (dashed), eroded parts (pale)."""
-    whole = QgsLineSymbol.createSimple({"line_color": CONTOUR_BLUE, "line_width": "0.45"})
-    forecast = QgsLineSymbol.createSimple({"line_color": CONTOUR_BLUE, "line_width": "0.45",
-                                           "line_style": "dash"})
-    eroded = QgsLineSymbol.createSimple({"line_color": "#9db3c8", "line_width": "0.25"})
-    return whole, forecast, eroded
+def contour_symbol(*, eroded: bool = False, forecast: bool = False) -> QgsLineSymbol:
+    """Structure-contour line: blue where the surface is below ground, pale where it is eroded
+    away above ground; dashed where it is a forecast beyond the reach of the data."""
+    props = {"line_color": "#9db3c8" if eroded else CONTOUR_BLUE, "line_width": "0.25" if eroded else "0.45"}
+    if forecast:
+        props["line_style"] = "dash"
+    return QgsLineSymbol.createSimple(props)
 
 
 def style_structure_contours(layer) -> None:
-    """Labelled by elevation; with a ``below_ground`` field, forecast parts dashed."""
-    whole, forecast, eroded = structure_contour_symbols()
-    if layer.fields().indexOf("below_ground") >= 0:
+    """Labelled by elevation; parts by the ``below_ground`` / ``forecast`` fields when present."""
+    flags = [f for f in ("below_ground", "forecast") if layer.fields().indexOf(f) >= 0]
+    if flags:
         root = QgsRuleBasedRenderer.Rule(None)
-        root.appendChild(QgsRuleBasedRenderer.Rule(forecast, 0, 0, '"below_ground"',
-                                                   "below ground (forecast)"))
-        root.appendChild(QgsRuleBasedRenderer.Rule(eroded, 0, 0, 'NOT "below_ground"',
-                                                   "above ground (eroded)"))
+        for combo in itertools.product((True, False), repeat=len(flags)):
+            state = dict(zip(flags, combo))
+            expr = " AND ".join(f'"{f}"' if v else f'NOT "{f}"' for f, v in state.items())
+            label = ", ".join({("below_ground", True): "below ground", ("below_ground", False): "above ground (eroded)",
+                               ("forecast", True): "forecast (beyond the data)",
+                               ("forecast", False): "within reach of the data"}[(f, v)] for f, v in state.items())
+            sym = contour_symbol(eroded=not state.get("below_ground", True), forecast=state.get("forecast", False))
+            root.appendChild(QgsRuleBasedRenderer.Rule(sym, 0, 0, expr, label))
         layer.setRenderer(QgsRuleBasedRenderer(root))
     else:
-        layer.setRenderer(QgsSingleSymbolRenderer(whole))
+        layer.setRenderer(QgsSingleSymbolRenderer(contour_symbol()))
     layer.setLabeling(_contour_labels("elevation"))
     layer.setLabelsEnabled(True)
     layer.triggerRepaint()

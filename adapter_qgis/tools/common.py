@@ -16,9 +16,9 @@ def picks_table(picks) -> Table:
                  QgsWkbTypes.PointZ)
 
 
-def contours_table(geoms, elevations_m, below_ground=None) -> Table:
-    """Structure contours: LineStringZ at their elevation, field ``elevation`` (and
-    ``below_ground`` when the ground was given)."""
+def contours_table(geoms, elevations_m, below_ground=None, forecast=None) -> Table:
+    """Structure contours: LineStringZ at their elevation, field ``elevation`` (and the part
+    flags ``below_ground`` / ``forecast`` when they were asked for)."""
     geoms = np.asarray(geoms, dtype=object)
     elev = np.asarray(elevations_m, dtype=float)
     if len(geoms):
@@ -26,6 +26,8 @@ def contours_table(geoms, elevations_m, below_ground=None) -> Table:
     fields = {"elevation": elev}
     if below_ground is not None:
         fields["below_ground"] = np.asarray(below_ground, dtype=bool)
+    if forecast is not None:
+        fields["forecast"] = np.asarray(forecast, dtype=bool)
     return Table(geoms, fields, QgsWkbTypes.LineStringZ)
 
 

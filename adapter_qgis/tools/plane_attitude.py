@@ -102,12 +102,13 @@ class PlaneAttitude(StrikelineAlgorithm):
         add_picks(self)
         self.addParameter(QgsProcessingParameterNumber(
             self.RESAMPLES, self.tr("Bootstrap resamples for the 95% confidence (0: none)"),
-            QgsProcessingParameterNumber.Integer, defaultValue=1000, minValue=0))
+            QgsProcessingParameterNumber.Integer, defaultValue=1000, minValue=0, optional=True))
         self.addParameter(QgsProcessingParameterNumber(
             self.SIGMA_Z, self.tr("Vertical standard error of the picks (m, 0: unknown)"),
-            QgsProcessingParameterNumber.Double, defaultValue=0.0, minValue=0.0))
+            QgsProcessingParameterNumber.Double, defaultValue=0.0, minValue=0.0, optional=True))
         seed = QgsProcessingParameterNumber(self.SEED, self.tr("Random seed"),
-                                            QgsProcessingParameterNumber.Integer, defaultValue=0, minValue=0)
+                                            QgsProcessingParameterNumber.Integer, defaultValue=0, minValue=0,
+                                            optional=True)
         seed.setFlags(seed.flags() | QgsProcessingParameterDefinition.FlagAdvanced)
         self.addParameter(seed)
         self.addParameter(QgsProcessingParameterFeatureSink(

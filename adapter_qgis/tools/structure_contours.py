@@ -1,6 +1,8 @@
 """Tool: structure contours of a modelled surface."""
 from __future__ import annotations
 
+import numpy as np
+
 from qgis.core import (
     QgsProcessing,
     QgsProcessingOutputNumber,
@@ -12,7 +14,9 @@ from qgis.core import (
 from strikeline.io.contours import contour_lines
 
 from ..base import REF_GDAL_CONTOUR, StrikelineAlgorithm
-from ..chain import contours_split_by_ground, require_same_grid
+from strikeline.grids import depth_below_ground
+
+from ..chain import contours_by_class, require_same_grid
 from ..inputs import read_dem
 from ..layers import qgis_crs
 from ..outputs import write_sink
@@ -28,15 +32,17 @@ class StructureContours(StrikelineAlgorithm):
     SUMMARY = (
         "Lines of equal elevation of the modelled surface every interval metres (levels at "
         "multiples of the interval), as LineStringZ at their elevation with the field 'elevation'. "
-        "Give the DEM as ground to split every line into the parts where the surface lies below "
-        "ground (field below_ground true: a forecast at depth, drawn dashed) and the parts where it "
-        "lies above ground (eroded away, drawn pale). Lines stop on the last valid cell centre.")
+        "Give the DEM as ground to split every line where the surface passes from below ground "
+        "(field below_ground true, drawn solid) to above ground (eroded away, drawn pale); give the "
+        "forecast mask of Surface model to split it where the surface leaves the reach of the data "
+        "(field forecast true, drawn dashed). Lines stop on the last valid cell centre of each part.")
     METHOD = ("GDAL's contour generator (marching squares between cell centres) on the surface "
               "grid; the half-cell fringe GDAL extrapolates at edges and nodata is trimmed, so every "
               "vertex lies on the gridded surface.")
     REFERENCES = (REF_GDAL_CONTOUR,)
     SURFACE = "SURFACE"
     GROUND = "GROUND"
+    FORECAST_MASK = "FORECAST_MASK"
     INTERVAL = "INTERVAL"
     OUTPUT = "STRUCTURE_CONTOURS"
 
@@ -47,7 +53,10 @@ class StructureContours(StrikelineAlgorithm):
             self.INTERVAL, self.tr("Contour interval"), defaultValue=50.0,
             parentParameterName=self.SURFACE, minValue=0.001))
         self.addParameter(QgsProcessingParameterRasterLayer(
-            self.GROUND, self.tr("Ground (DEM) to mark forecast parts"), optional=True))
+            self.GROUND, self.tr("Ground (DEM) to mark the parts above and below ground"), optional=True))
+        self.addParameter(QgsProcessingParameterRasterLayer(
+            self.FORECAST_MASK, self.tr("Forecast mask (from Surface model) to mark forecast parts"),
+            optional=True))
         self.addParameter(QgsProcessingParameterFeatureSink(
             self.OUTPUT, self.tr("Structure contours"), QgsProcessing.TypeVectorLine))
         self.addOutput(QgsProcessingOutputNumber("N_LINES", self.tr("Number of lines")))
@@ -56,18 +65,26 @@ class StructureContours(StrikelineAlgorithm):
         surface, grid, spath = read_dem(self, parameters, self.SURFACE, context, steps, label="surface")
         interval = self.parameterAsDouble(parameters, self.INTERVAL, context)
         dem, dem_grid, dpath = read_dem(self, parameters, self.GROUND, context, steps, label="DEM")
+        mask, mask_grid, mpath = read_dem(self, parameters, self.FORECAST_MASK, context, steps,
+                                          label="forecast mask")
         steps.feedback.setProgress(30)
         steps.check("structure contours")
-        if dem is None:
-            geoms, elev = contour_lines(surface, grid, interval_m=interval)
-            below = None
-        else:
+        flags = {}
+        if dem is not None:
             require_same_grid(grid, dem_grid, what_a=f"surface '{spath}'", what_b=f"DEM '{dpath}'")
-            geoms, elev, below = contours_split_by_ground(surface, dem, grid, interval_m=interval)
+            flags["below_ground"] = depth_below_ground(dem, surface) >= 0
+        if mask is not None:
+            require_same_grid(grid, mask_grid, what_a=f"surface '{spath}'", what_b=f"forecast mask '{mpath}'")
+            flags["forecast"] = np.nan_to_num(mask, nan=0.0) >= 0.5
+        if flags:
+            geoms, elev, parts = contours_by_class(surface, grid, interval_m=interval, flags=flags)
+        else:
+            geoms, elev = contour_lines(surface, grid, interval_m=interval)
+            parts = {}
         steps.feedback.setProgress(90)
         steps.check("structure contours")
         steps.log(f"structure contours: {len(geoms)} lines every {interval:g} m")
-        dest = write_sink(self, parameters, self.OUTPUT, context, contours_table(geoms, elev, below),
+        dest = write_sink(self, parameters, self.OUTPUT, context, contours_table(geoms, elev, **parts),
                           qgis_crs(grid.crs_wkt))
         attach_style(context, dest, "structure_contours")
         return {self.OUTPUT: dest, "N_LINES": len(geoms)}

@@ -1,27 +1,48 @@
-"""Tool: a surface grid modelled from elevation picks (the best-fit plane for now)."""
+"""Tool: a surface grid modelled from elevation picks (plane, quadratic trend, thin-plate spline)."""
 from __future__ import annotations
 
+import numpy as np
 from qgis.core import (
+    QgsProcessing,
+    QgsProcessingOutputNumber,
+    QgsProcessingOutputString,
     QgsProcessingParameterDistance,
     QgsProcessingParameterEnum,
     QgsProcessingParameterExtent,
+    QgsProcessingParameterFeatureSource,
+    QgsProcessingParameterField,
+    QgsProcessingParameterNumber,
     QgsProcessingParameterRasterDestination,
     QgsProcessingParameterRasterLayer,
 )
 
 from strikeline.errors import InputError
 from strikeline.io.crs import same_crs, srs_from_wkt
+from strikeline.surfaces import fit_surface
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
-from ..chain import grid_over, surface_of_plane
-from ..inputs import PICKS, add_picks, read_dem, read_picks
+from ..chain import grid_over
+from ..inputs import PICKS, add_picks, read_dem, read_picks, read_points_xyz
 from ..layers import crs_to_srs
 from ..outputs import write_raster
 from ..styles import attach_style
-from .plane_attitude import add_plane_outputs, fit_named, log_plane, plane_numbers
 
-#: Surface methods offered, in enum order: (id, label). Later issues add local models here.
-METHODS = (("plane", "Best-fit plane (total least squares)"),)
+#: Surface models in enum order: (library name, label).
+METHODS = (("plane", "Best-fit plane (total least squares)"),
+           ("trend2", "Quadratic trend surface"),
+           ("spline", "Thin-plate smoothing spline (GCV)"),
+           ("auto", "Choose by cross-validation (simplest within one standard error)"))
+
+REF_SPLINE = ("Duchon, J. (1977). Splines minimizing rotation-invariant semi-norms in Sobolev spaces. "
+              "Lecture Notes in Mathematics 571, 85–100. doi:10.1007/BFb0086566; Wahba, G. (1990). "
+              "Spline Models for Observational Data. SIAM. doi:10.1137/1.9781611970128")
+REF_GCV = ("Craven, P. & Wahba, G. (1979). Smoothing noisy data with spline functions. Numerische "
+           "Mathematik 31(4), 377–403. doi:10.1007/BF01404567")
+REF_LSI = ("Lawson, C. L. & Hanson, R. J. (1974). Solving Least Squares Problems. Prentice-Hall, "
+           "ch. 23 (least squares with inequality constraints).")
+REF_HILLIER = ("Hillier, M. J., Schetselaar, E. M., de Kemp, E. A. & Perron, G. (2014). Three-dimensional "
+               "modelling of geological surfaces using generalized interpolation with radial basis "
+               "functions. Mathematical Geosciences 46(8), 931–953. doi:10.1007/s11004-014-9540-3")
 
 
 class SurfaceModel(StrikelineAlgorithm):
@@ -30,17 +51,36 @@ class SurfaceModel(StrikelineAlgorithm):
     GROUP = "surfaces"
     FORECAST = True
     SUMMARY = (
-        "A grid of the contact surface's elevation (metres) modelled from the elevation picks, on "
-        "the grid of a reference raster (give the DEM, so depth below ground and the predicted trace "
-        "can follow) or, without one, on square cells over an extent (default: the picks' extent). "
-        "The output GeoTIFF is the input of the structure-contour, dip-grid and depth tools.")
-    METHOD = "Best-fit plane: total least squares through the picks, evaluated at every cell centre."
-    REFERENCES = (REF_FERNANDEZ,)
+        "A grid of the contact surface's elevation (metres) modelled from the elevation picks, "
+        "optionally honouring boreholes (points where the surface was drilled) and dip "
+        "measurements. The grid is that of a reference raster (give the DEM, so depth below ground "
+        "and the predicted trace can follow) or square cells over an extent (default: the picks'). "
+        "Optional outputs: the model's standard error and a mask of the cells beyond the reach of "
+        "the data (1 = extrapolated: a forecast), which Structure contours uses to dash forecast "
+        "parts. The surface GeoTIFF is the input of the structure-contour, dip-grid and depth tools. "
+        "Boreholes and dip measurements are taken in the picks' CRS; dip directions from grid north "
+        "of that CRS.")
+    METHOD = (
+        "Plane: total least squares. Quadratic trend: weighted least squares. Spline: thin-plate "
+        "smoothing spline with the smoothing chosen by generalized cross-validation. Choose: grouped "
+        "k-fold cross-validation of all three, the simplest within one standard error of the best. "
+        "Boreholes enter as observations and inequality constraints (least squares with inequality "
+        "constraints); dip measurements as slope observations. Outside the data's convex hull the "
+        "trend and spline relax smoothly to the plane.")
+    REFERENCES = (REF_FERNANDEZ, REF_SPLINE, REF_GCV, REF_LSI, REF_HILLIER)
     METHOD_P = "METHOD"
     REFERENCE = "REFERENCE"
     EXTENT = "EXTENT"
     CELL = "CELL"
+    BOREHOLES = "BOREHOLES"
+    BOREHOLES_FIELD = "BOREHOLES_ELEV_FIELD"
+    BOREHOLE_SIGMA = "BOREHOLE_SIGMA"
+    DIPS = "DIPS"
+    DIP_FIELD = "DIPS_DIP_FIELD"
+    DIPDIR_FIELD = "DIPS_DIP_DIRECTION_FIELD"
     OUTPUT = "SURFACE"
+    STANDARD_ERROR = "STANDARD_ERROR"
+    EXTRAPOLATED = "EXTRAPOLATED"
 
     def initAlgorithm(self, config=None):  # noqa: N802
         add_picks(self)
@@ -54,39 +94,104 @@ class SurfaceModel(StrikelineAlgorithm):
         self.addParameter(QgsProcessingParameterDistance(
             self.CELL, self.tr("Cell size without a reference grid (0: about 1/500 of the extent)"),
             defaultValue=0.0, parentParameterName=PICKS, minValue=0.0, optional=True))
+        self.addParameter(QgsProcessingParameterFeatureSource(
+            self.BOREHOLES, self.tr("Boreholes: points where the surface was drilled"),
+            [QgsProcessing.TypeVectorPoint], optional=True))
+        self.addParameter(QgsProcessingParameterField(
+            self.BOREHOLES_FIELD, self.tr("Elevation field of the boreholes (empty: the points' Z)"),
+            parentLayerParameterName=self.BOREHOLES, type=QgsProcessingParameterField.Numeric, optional=True))
+        self.addParameter(QgsProcessingParameterNumber(
+            self.BOREHOLE_SIGMA, self.tr("Standard error of the borehole elevations (m)"),
+            QgsProcessingParameterNumber.Double, defaultValue=0.0, minValue=0.0, optional=True))
+        self.addParameter(QgsProcessingParameterFeatureSource(
+            self.DIPS, self.tr("Dip measurements (points)"), [QgsProcessing.TypeVectorPoint], optional=True))
+        for key, label in ((self.DIP_FIELD, "Dip field (°)"),
+                           (self.DIPDIR_FIELD, "Dip-direction field (° from grid north)")):
+            self.addParameter(QgsProcessingParameterField(
+                key, self.tr(label), parentLayerParameterName=self.DIPS,
+                type=QgsProcessingParameterField.Numeric, optional=True))
+        self.addParameter(QgsProcessingParameterRasterDestination(self.OUTPUT, self.tr("Surface elevation")))
         self.addParameter(QgsProcessingParameterRasterDestination(
-            self.OUTPUT, self.tr("Surface elevation")))
-        add_plane_outputs(self)
+            self.STANDARD_ERROR, self.tr("Standard error of the surface (m)"), optional=True,
+            createByDefault=False))
+        self.addParameter(QgsProcessingParameterRasterDestination(
+            self.EXTRAPOLATED, self.tr("Forecast mask (1: beyond the reach of the data)"), optional=True,
+            createByDefault=False))
+        self.addOutput(QgsProcessingOutputString("MODEL", self.tr("Model used")))
+        for key, label in (("CV_RMSE_M", "Cross-validation RMSE of the model used (m)"),
+                           ("REACH_M", "Reach of the data (m)"), ("DIP_DEG", "Dip of the (trend) plane (°)"),
+                           ("DIP_DIRECTION_DEG", "Dip direction of the (trend) plane (°)")):
+            self.addOutput(QgsProcessingOutputNumber(key, self.tr(label)))
 
-    def process(self, parameters, context, steps):
-        method = METHODS[self.parameterAsEnum(parameters, self.METHOD_P, context)][0]
-        xyz, source, name = read_picks(self, parameters, context, steps)
-        steps.feedback.setProgress(20)
-        if method != "plane":  # pragma: no cover - one method so far
-            raise InputError(f"surface model {method!r} is not available")
-        plane = fit_named(xyz, f"picks {name.what}")
-        log_plane(steps, plane)
+    def _grid(self, parameters, context, steps, source, xyz):
         _, ref_grid, _ = read_dem(self, parameters, self.REFERENCE, context, steps, label="reference grid")
         if ref_grid is not None:
-            grid = ref_grid.with_nodata(None)
-            if not same_crs(crs_to_srs(source.sourceCrs()), srs_from_wkt(grid.crs_wkt)):
-                raise InputError(
-                    f"picks {name.what} and the reference grid are in different CRSs; reproject "
-                    "the picks to the reference grid's CRS (or make them from that DEM)")
+            if not same_crs(crs_to_srs(source.sourceCrs()), srs_from_wkt(ref_grid.crs_wkt)):
+                raise InputError("the picks and the reference grid are in different CRSs; reproject the "
+                                 "picks to the reference grid's CRS (or make them from that DEM)")
+            return ref_grid.with_nodata(None)
+        crs = source.sourceCrs()
+        if self.parameterAsExtent(parameters, self.EXTENT, context).isNull():
+            ext = source.sourceExtent()
+            bounds = (xyz[:, 0].min(), xyz[:, 1].min(), xyz[:, 0].max(), xyz[:, 1].max())
         else:
-            crs = source.sourceCrs()
-            if self.parameterAsExtent(parameters, self.EXTENT, context).isNull():
-                ext = source.sourceExtent()
-            else:
-                ext = self.parameterAsExtent(parameters, self.EXTENT, context, crs)
-            cell = self.parameterAsDouble(parameters, self.CELL, context) or None
-            wkt = crs_to_srs(crs).ExportToWkt()
-            grid = grid_over((ext.xMinimum(), ext.yMinimum(), ext.xMaximum(), ext.yMaximum()),
-                             cell_m=cell, crs_wkt=wkt, log=steps.log)
+            ext = self.parameterAsExtent(parameters, self.EXTENT, context, crs)
+            bounds = (ext.xMinimum(), ext.yMinimum(), ext.xMaximum(), ext.yMaximum())
+        cell = self.parameterAsDouble(parameters, self.CELL, context) or None
+        return grid_over(bounds, cell_m=cell, crs_wkt=crs_to_srs(crs).ExportToWkt(), log=steps.log)
+
+    def process(self, parameters, context, steps):
+        model = METHODS[self.parameterAsEnum(parameters, self.METHOD_P, context)][0]
+        xyz, source, name = read_picks(self, parameters, context, steps)
+        crs = source.sourceCrs()
+        boreholes, _, _ = read_points_xyz(self, parameters, self.BOREHOLES, self.BOREHOLES_FIELD, context,
+                                          steps, label="boreholes",
+                                          field_label="Elevation field of the boreholes", target_crs=crs)
+        orientations = None
+        dip_f = self.parameterAsString(parameters, self.DIP_FIELD, context)
+        dd_f = self.parameterAsString(parameters, self.DIPDIR_FIELD, context)
+        if self.parameterAsSource(parameters, self.DIPS, context) is not None:
+            if not (dip_f and dd_f):
+                raise InputError("dip measurements given without their fields; choose the 'Dip field' "
+                                 "and the 'Dip-direction field'")
+            dxyz, _, _, vals = read_points_xyz(self, parameters, self.DIPS, None, context, steps,
+                                               label="dip measurements", field_label="", target_crs=crs,
+                                               fields=(dip_f, dd_f))
+            orientations = np.column_stack([dxyz[:, 0], dxyz[:, 1], vals[dip_f], vals[dd_f]])
+        sigma_b = self.parameterAsDouble(parameters, self.BOREHOLE_SIGMA, context)
+        grid = self._grid(parameters, context, steps, source, xyz)
+        steps.feedback.setProgress(10)
+        try:
+            surf = fit_surface(xyz, model=model, boreholes=boreholes, borehole_sigma_m=sigma_b,
+                               orientations=orientations, cross_validate_model=model != "plane",
+                               progress=steps.part(0.1, 0.6), is_cancelled=steps.is_cancelled)
+        except InputError as exc:
+            raise type(exc)(f"picks {name.what}: {exc}") from None
+        s = surf.summary()
+        p = s["params"]
+        dip = p.get("dip_deg", p.get("trend_dip_deg"))
+        dipdir = p.get("dip_direction_deg", p.get("trend_dip_direction_deg"))
+        rmse = s["cv_rmse_m"].get(surf.kind)
+        steps.log(f"surface model: {surf.kind} ({s['selection']}) from {surf.n_used} of {surf.n_picks} picks"
+                  + (f", cross-validation RMSE {rmse:.2f} m" if rmse is not None else "")
+                  + f"; plane dip {dip:.2f}° toward {dipdir:.1f}°; reach of the data {surf.reach_m:.0f} m")
+        z = surf.evaluate_grid(grid, progress=steps.part(0.6, 0.85), is_cancelled=steps.is_cancelled)
+        want_se = bool(self.parameterAsOutputLayer(parameters, self.STANDARD_ERROR, context))
+        want_ex = bool(self.parameterAsOutputLayer(parameters, self.EXTRAPOLATED, context))
+        se = ex = None
+        if want_se:
+            se = surf.standard_error_grid(grid, is_cancelled=steps.is_cancelled)
+        if want_ex:
+            X, Y = grid.mesh()
+            ex = surf.is_extrapolated(X, Y).astype(np.float32)
+        steps.feedback.setProgress(90)
         steps.check("surface model")
-        surface = surface_of_plane(plane, grid)
-        steps.feedback.setProgress(80)
-        steps.check("surface model")
-        path = write_raster(self, parameters, self.OUTPUT, context, surface, grid)
-        attach_style(context, path, "surface")
-        return {self.OUTPUT: path, **plane_numbers(plane)}
+        out = {"MODEL": surf.kind, "CV_RMSE_M": rmse, "REACH_M": surf.reach_m, "DIP_DEG": dip,
+               "DIP_DIRECTION_DEG": dipdir}
+        out[self.OUTPUT] = write_raster(self, parameters, self.OUTPUT, context, z, grid)
+        if se is not None:
+            out[self.STANDARD_ERROR] = write_raster(self, parameters, self.STANDARD_ERROR, context, se, grid)
+        if ex is not None:
+            out[self.EXTRAPOLATED] = write_raster(self, parameters, self.EXTRAPOLATED, context, ex, grid)
+        attach_style(context, out[self.OUTPUT], "surface")
+        return out

@@ -26,7 +26,7 @@ from qgis.core import (
     QgsSingleBandPseudoColorRenderer,
     QgsSingleSymbolRenderer,
 )
-from qgis.PyQt.QtCore import QSize
+from qgis.PyQt.QtCore import QSize, Qt
 from qgis.PyQt.QtGui import QColor, QImage
 from qgis_helpers import as_layer, vector
 
@@ -49,12 +49,14 @@ def outputs(tmp_path_factory, sheet):
     picks = processing.run("strikeline:contactpicks", {
         "CONTACTS": contacts, "DEM": dem, "CONTOURS": sheet["contours_uri"],
         "ELEV_FIELD": "elev_m", "PICKS": str(d / "picks.gpkg")})["PICKS"]
-    surface = processing.run("strikeline:surfacemodel", {"PICKS": picks, "REFERENCE": dem,
-                                                         "SURFACE": str(d / "surface.tif")})["SURFACE"]
+    sm = processing.run("strikeline:surfacemodel", {"PICKS": picks, "REFERENCE": dem,
+                                                    "SURFACE": str(d / "surface.tif"),
+                                                    "EXTRAPOLATED": str(d / "forecast.tif")})
+    surface = sm["SURFACE"]
     dip = processing.run("strikeline:dipgrids", {"SURFACE": surface, "DIP": str(d / "dip.tif"),
                                                  "DIP_DIRECTION": str(d / "dd.tif")})["DIP"]
     sc = processing.run("strikeline:structurecontours", {
-        "SURFACE": surface, "GROUND": dem, "INTERVAL": 50.0,
+        "SURFACE": surface, "GROUND": dem, "FORECAST_MASK": sm["EXTRAPOLATED"], "INTERVAL": 50.0,
         "STRUCTURE_CONTOURS": str(d / "contours.gpkg")})["STRUCTURE_CONTOURS"]
     dt = processing.run("strikeline:depthtrace", {"SURFACE": surface, "DEM": dem, "CONTACTS": contacts,
                                                   "DEPTH": str(d / "depth.tif"),
@@ -131,10 +133,11 @@ def test_styles_are_attached_to_loaded_outputs(sheet):
     fb = QgsProcessingFeedback()
     picks = processing.run("strikeline:contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"],
                                                       "PICKS": TMP})["PICKS"]
-    surface = processing.run("strikeline:surfacemodel", {"PICKS": picks, "REFERENCE": sheet["dem"],
-                                                         "SURFACE": TMP})["SURFACE"]
+    sm = processing.run("strikeline:surfacemodel", {"PICKS": picks, "REFERENCE": sheet["dem"],
+                                                    "SURFACE": TMP, "EXTRAPOLATED": TMP})
+    surface = sm["SURFACE"]
     res = processing.run("strikeline:structurecontours", {
-        "SURFACE": surface, "GROUND": sheet["dem"], "INTERVAL": 50.0,
+        "SURFACE": surface, "GROUND": sheet["dem"], "FORECAST_MASK": sm["EXTRAPOLATED"], "INTERVAL": 50.0,
         "STRUCTURE_CONTOURS": QgsProcessingOutputLayerDefinition(TMP, project)}, context=context, feedback=fb)
     dips = processing.run("strikeline:dipgrids", {
         "SURFACE": surface, "DIP": QgsProcessingOutputLayerDefinition(TMP, project),
@@ -149,8 +152,13 @@ def test_styles_are_attached_to_loaded_outputs(sheet):
         pp.postProcessLayer(target, context, fb)
         if pp.style == "structure_contours":
             assert isinstance(target.renderer(), QgsRuleBasedRenderer)
-            rules = {r.filterExpression(): r.symbol() for r in target.renderer().rootRule().children()}
-            assert rules['"below_ground"'].symbolLayer(0).penStyle() != rules['NOT "below_ground"'].symbolLayer(0).penStyle()
+            rules = {r.filterExpression(): r.symbol().symbolLayer(0) for r in target.renderer().rootRule().children()}
+            assert len(rules) == 4
+            solid = rules['"below_ground" AND NOT "forecast"']
+            dashed = rules['"below_ground" AND "forecast"']
+            eroded = rules['NOT "below_ground" AND NOT "forecast"']
+            assert solid.penStyle() == Qt.SolidLine and dashed.penStyle() == Qt.DashLine
+            assert eroded.color() != solid.color() and eroded.width() < solid.width()
             assert target.labelsEnabled() and "elevation" in target.labeling().settings().fieldName
         else:
             assert isinstance(target.renderer(), QgsSingleBandPseudoColorRenderer)

@@ -231,6 +231,85 @@ def test_surface_model_over_an_extent(run, sheet, reference):
     np.testing.assert_allclose(got, reference[1].plane.elevation(X, Y), atol=F32_ELEVATION_TOL_M)
 
 
+@pytest.fixture(scope="module")
+def contour_picks(sheet):
+    """Picks from the contour lines only (a couple of hundred: quick for the spline)."""
+    import processing
+
+    out = processing.run("strikeline:contactpicks", {
+        "CONTACTS": sheet["contacts_uri"], "CONTOURS": sheet["contours_uri"], "ELEV_FIELD": "elev_m",
+        "PICKS": TMP})["PICKS"]
+    geoms, _ = table(out)
+    return out, shapely.get_coordinates(geoms, include_z=True)
+
+
+@pytest.mark.parametrize("method,model", [(1, "trend2"), (2, "spline")])
+def test_surface_models_are_the_library_models(run, contour_picks, method, model):
+    from strikeline.surfaces import fit_surface
+
+    layer, xyz = contour_picks
+    res = run("surfacemodel", {"PICKS": layer, "METHOD": method, "CELL": 50.0, "SURFACE": TMP,
+                               "STANDARD_ERROR": TMP, "EXTRAPOLATED": TMP})
+    got, gt, _ = raster(res["SURFACE"])
+    grid = Grid(gt, got.shape)
+    ref = fit_surface(xyz, model=model)
+    assert res["MODEL"] == ref.kind == model
+    assert res["CV_RMSE_M"] == pytest.approx(ref.cv_rmse_m[model], abs=1e-12)
+    np.testing.assert_array_equal(got, ref.evaluate_grid(grid).astype(np.float32).astype(float))
+    se, _, _ = raster(res["STANDARD_ERROR"])
+    np.testing.assert_array_equal(se, ref.standard_error_grid(grid).astype(np.float32).astype(float))
+    ex, _, _ = raster(res["EXTRAPOLATED"])
+    X, Y = grid.mesh()
+    np.testing.assert_array_equal(ex.astype(bool), ref.is_extrapolated(X, Y))
+    # External: the mask is "farther than the reach from every datum".
+    # Source: scipy.spatial.cKDTree nearest-neighbour distances (scipy 1.10).
+    from scipy.spatial import cKDTree
+
+    d, _ = cKDTree(ref.data_xy).query(np.column_stack([X.ravel(), Y.ravel()]))
+    np.testing.assert_array_equal(ex.ravel().astype(bool), d > res["REACH_M"])
+
+
+def test_surface_model_honours_a_borehole(run, contour_picks, sheet):
+    from qgis.core import QgsFeature, QgsGeometry, QgsVectorLayer
+
+    from strikeline.picks import sample_bilinear
+    from strikeline.surfaces import fit_surface
+
+    layer, xyz = contour_picks
+    BOREHOLE = (488000.0, 5215000.0, 560.0)  # a drilled intersection of our own, off the plane
+    holes = QgsVectorLayer("PointZ?crs=EPSG:32631", "boreholes", "memory")
+    f = QgsFeature()
+    f.setGeometry(QgsGeometry.fromWkt("PointZ ({} {} {})".format(*BOREHOLE)))
+    holes.dataProvider().addFeatures([f])
+    res = run("surfacemodel", {"PICKS": layer, "METHOD": 0, "REFERENCE": sheet["dem"], "BOREHOLES": holes,
+                               "SURFACE": TMP})
+    surface, grid = read_raster(res["SURFACE"], label="surface")
+    ref = fit_surface(xyz, model="plane", boreholes=np.array([BOREHOLE]), cross_validate_model=False)
+    np.testing.assert_array_equal(surface, ref.evaluate_grid(grid).astype(np.float32).astype(float))
+    # common practice: a model that honours a borehole (standard error 0) passes through it.
+    z = sample_bilinear(surface, grid, BOREHOLE[0], BOREHOLE[1])
+    assert float(z) == pytest.approx(BOREHOLE[2], abs=F32_ELEVATION_TOL_M)
+
+
+def test_structure_contours_dash_the_forecast(run, contour_picks):
+    from scipy.spatial import cKDTree
+
+    layer, xyz = contour_picks
+    sm = run("surfacemodel", {"PICKS": layer, "METHOD": 0, "CELL": 25.0, "SURFACE": TMP, "EXTRAPOLATED": TMP})
+    res = run("structurecontours", {"SURFACE": sm["SURFACE"], "FORECAST_MASK": sm["EXTRAPOLATED"],
+                                    "INTERVAL": 50.0, "STRUCTURE_CONTOURS": TMP})
+    geoms, cols = table(res["STRUCTURE_CONTOURS"], z=False)
+    forecast = cols["forecast"].astype(bool)
+    assert forecast.any() and (~forecast).any()
+    # External: distance of each vertex to the nearest pick (scipy cKDTree): beyond the reach on
+    # forecast parts, within it elsewhere, give or take one cell diagonal (parts end on cell centres).
+    tree = cKDTree(xyz[:, :2])
+    slack = 25.0 * np.sqrt(2.0)
+    for g, fc in zip(geoms, forecast):
+        d, _ = tree.query(shapely.get_coordinates(g))
+        assert (d > sm["REACH_M"] - slack).all() if fc else (d <= sm["REACH_M"] + slack).all()
+
+
 # ----------------------------------------------------------------------- maps from the surface
 def test_structure_contours_are_the_library_contours(run, surface_tif):
     res = run("structurecontours", {"SURFACE": surface_tif, "INTERVAL": 50.0, "STRUCTURE_CONTOURS": TMP})
