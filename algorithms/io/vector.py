@@ -42,6 +42,8 @@ class VectorLayer:
     fields: dict = field(default_factory=dict)
     field_types: dict = field(default_factory=dict)
     srs: osr.SpatialReference | None = None
+    #: Z of point geometries (NaN where a point has none); ``None`` for lines.
+    z: np.ndarray | None = None
 
     @property
     def what(self) -> str:
@@ -67,8 +69,9 @@ class VectorLayer:
 
     def reprojected(self, dst: osr.SpatialReference) -> "VectorLayer":
         geoms = reproject_geometries(self.geoms, self.srs, dst)
+        # Z is carried over as is: a change between projected CRSs leaves heights alone
         return VectorLayer(self.path, self.layer_name, geoms, self.fids, self.fields,
-                           self.field_types, dst)
+                           self.field_types, dst, self.z)
 
 
 def _open(path: str, label: str):
@@ -167,7 +170,14 @@ def read_layer(path, *, layer: str | None = None, where: str | None = None,
         raise InputError(f"{what} holds no feature with a geometry{cond}; give a layer with features")
     centre = None if extent is None else ((extent[0] + extent[1]) / 2, (extent[2] + extent[3]) / 2)
     require_projected_metres(srs, what=what, centre_xy=centre)
-    geoms = shapely.force_2d(shapely.from_wkb(wkbs))
+    geoms3 = shapely.from_wkb(wkbs)
+    z = None
+    if geometry == "point":
+        z = np.full(len(geoms3), np.nan)
+        has_z = shapely.has_z(geoms3) & (shapely.get_type_id(geoms3) == shapely.GeometryType.POINT)
+        if has_z.any():
+            z[has_z] = shapely.get_coordinates(geoms3[has_z], include_z=True)[:, 2]
+    geoms = shapely.force_2d(geoms3)
     type_ids = set(shapely.get_type_id(geoms).tolist())
     if not {shapely.GeometryType(t).name for t in type_ids} <= {n.upper() for n in wanted}:
         got = ", ".join(sorted(shapely.GeometryType(t).name.lower() for t in type_ids))
@@ -175,7 +185,7 @@ def read_layer(path, *, layer: str | None = None, where: str | None = None,
             f"{what} holds {got} geometries; it must hold {geometry}s - give a {geometry} layer"
         )
     return VectorLayer(path, lname, geoms, np.asarray(fids, dtype=np.int64),
-                       {n: np.array(v, dtype=object) for n, v in values.items()}, ftypes, srs)
+                       {n: np.array(v, dtype=object) for n, v in values.items()}, ftypes, srs, z)
 
 
 @dataclass
