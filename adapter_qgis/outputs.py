@@ -6,7 +6,7 @@ and nodata set, written under a temporary name and renamed into place).
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 import shapely
@@ -33,11 +33,13 @@ class Table:
     geoms: np.ndarray
     fields: dict
     wkb_type: int
+    types: dict = field(default_factory=dict)  # field name -> QVariant type, overriding the dtype's
 
     def qgs_fields(self) -> QgsFields:
         out = QgsFields()
         for name, arr in self.fields.items():
-            out.append(QgsField(name, _QVARIANT.get(np.asarray(arr).dtype.kind, QVariant.String)))
+            kind = self.types.get(name, _QVARIANT.get(np.asarray(arr).dtype.kind, QVariant.String))
+            out.append(QgsField(name, kind))
         return out
 
 

@@ -176,7 +176,30 @@ def style_attitude(layer) -> None:
     layer.triggerRepaint()
 
 
+def style_local_attitudes(layer) -> None:
+    """A strike line rotated to the local strike (RHR), labelled with the dip; grey where the
+    window's quality is weak, hidden where it is undetermined (no attitude)."""
+    from qgis.core import QgsProperty, QgsSymbolLayer
+
+    root = QgsRuleBasedRenderer.Rule(None)
+    for expr, colour, label in (('"quality" = \'good\'', "#1b1b1b", "good"),
+                                ('"quality" = \'weak\'', "#8a8a8a", "weak")):
+        sym = QgsMarkerSymbol.createSimple({"name": "line", "color": colour, "outline_color": colour,
+                                            "size": "4", "outline_width": "0.5"})
+        sym.symbolLayer(0).setDataDefinedProperty(QgsSymbolLayer.PropertyAngle,
+                                                  QgsProperty.fromField("strike_rhr_deg"))
+        root.appendChild(QgsRuleBasedRenderer.Rule(sym, 0, 0, expr, label))
+    layer.setRenderer(QgsRuleBasedRenderer(root))
+    s = QgsPalLayerSettings()
+    s.fieldName = 'if("quality" = \'undetermined\', \'\', round("dip_deg"))'
+    s.isExpression = True
+    layer.setLabeling(QgsVectorLayerSimpleLabeling(s))
+    layer.setLabelsEnabled(True)
+    layer.triggerRepaint()
+
+
 STYLES = {
+    "local_attitudes": style_local_attitudes,
     "picks": style_picks,
     "attitude": style_attitude,
     "structure_contours": style_structure_contours,

@@ -32,7 +32,7 @@ pytestmark = pytest.mark.qgis
 REPO = Path(__file__).resolve().parents[2]
 PLUGIN = REPO / "adapter_qgis"
 PROVIDER_ID = "strikeline"
-TOOLS = {"modelcontact", "contactpicks", "planeattitude", "surfacemodel", "structurecontours",
+TOOLS = {"modelcontact", "contactpicks", "planeattitude", "localattitudes", "surfacemodel", "structurecontours",
          "dipgrids", "depthtrace", "unitthickness"}
 FORECAST_TOOLS = {"modelcontact", "surfacemodel", "structurecontours", "depthtrace"}
 METADATA_KEYS = {"name", "qgisMinimumVersion", "description", "version", "author", "email"}

@@ -61,7 +61,9 @@ def outputs(tmp_path_factory, sheet):
     dt = processing.run("strikeline:depthtrace", {"SURFACE": surface, "DEM": dem, "CONTACTS": contacts,
                                                   "DEPTH": str(d / "depth.tif"),
                                                   "PREDICTED_TRACE": str(d / "trace.gpkg")})
-    return {"contacts": contacts, "dip": dip, "contours": sc, "depth": dt["DEPTH"],
+    local = processing.run("strikeline:localattitudes", {"PICKS": picks, "WINDOW": 500.0, "ACROSS_PICKS": False,
+                                                          "RESAMPLES": 50, "LOCAL_ATTITUDES": str(d / "local.gpkg")})
+    return {"local": local["LOCAL_ATTITUDES"], "contacts": contacts, "dip": dip, "contours": sc, "depth": dt["DEPTH"],
             "trace": dt["PREDICTED_TRACE"], "dir": d}
 
 
@@ -103,7 +105,10 @@ def styled_layers(o, background: str):
     grid = QgsRasterLayer(o[background], background)
     assert grid.isValid()
     (styles.style_depth if background == "depth" else styles.style_dip)(grid)
-    return [contacts, trace, contours, grid], grid
+    local = as_layer(o["local"])
+    styles.style_local_attitudes(local)
+    assert isinstance(local.renderer(), QgsRuleBasedRenderer)
+    return [local, contacts, trace, contours, grid], grid
 
 
 @pytest.mark.parametrize("background", ["depth", "dip"])

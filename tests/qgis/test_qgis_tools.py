@@ -195,6 +195,36 @@ def test_undetermined_quality_is_a_warning_in_the_log(run):
     assert any("plane quality undetermined" in w and "data that would help" in w for w in warnings)
 
 
+def test_local_attitudes_are_the_library_ones(run, sheet, reference):
+    from strikeline.local import local_attitudes
+
+    picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"],
+                                 "CONTOURS": sheet["contours_uri"], "ELEV_FIELD": "elev_m", "PICKS": TMP})["PICKS"]
+    res = run("localattitudes", {"PICKS": picks, "WINDOW": 400.0, "RESAMPLES": 50, "LOCAL_ATTITUDES": TMP})
+    geoms, cols = table(picks)
+    xyz = shapely.get_coordinates(geoms, include_z=True)
+    ref = local_attitudes(xyz, window_m=400.0, contact_id=cols["contact_id"].astype(np.int64), n_resamples=50,
+                          n_draws=50)
+    assert res["N_WINDOWS"] == len(ref) > 0 and res["WINDOW_M"] == ref.window_m
+    g, out = table(res["LOCAL_ATTITUDES"], z=False)
+    np.testing.assert_array_equal(shapely.get_coordinates(g), np.column_stack([ref.x, ref.y]))
+    for f in ("dip_deg", "dip_direction_deg", "strike_rhr_deg", "dip_ci95_deg", "cone95_deg", "elevation_m"):
+        got = np.array([np.nan if v is None else v for v in out[f]], dtype=float)
+        np.testing.assert_array_equal(got, getattr(ref, f), err_msg=f)
+    assert out["quality"].tolist() == ref.quality.tolist()
+    assert [None if c is None else int(c) for c in out["contact_id"]] == [
+        None if c is None else int(c) for c in ref.contact_id]
+    # External: a window over a plane dips as the plane (the demo sheet's contact is planar).
+    # Source: numpy.linalg.svd normal of all picks, as in test_plane_attitude_is_the_library_fit.
+    p = reference[1].picks.xyz
+    n = np.linalg.svd(p - p.mean(axis=0))[2][-1]
+    n = n if n[2] > 0 else -n
+    good = out["quality"] == "good"
+    assert good.any()
+    dips = np.array(out["dip_deg"][good], dtype=float)
+    np.testing.assert_allclose(dips, np.degrees(np.arctan2(np.hypot(n[0], n[1]), n[2])), atol=0.05)
+
+
 def test_plane_attitude_from_a_z_field(run, sheet, reference):
     picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "PICKS": TMP})["PICKS"]
     by_z = run("planeattitude", {"PICKS": picks, "ATTITUDE": TMP})

@@ -1,0 +1,157 @@
+"""Tool: local attitudes in moving windows along the contacts and across the picks."""
+from __future__ import annotations
+
+import numpy as np
+import shapely
+from qgis.core import (
+    QgsProcessing,
+    QgsProcessingOutputNumber,
+    QgsProcessingParameterBoolean,
+    QgsProcessingParameterDefinition,
+    QgsProcessingParameterDistance,
+    QgsProcessingParameterEnum,
+    QgsProcessingParameterFeatureSink,
+    QgsProcessingParameterField,
+    QgsProcessingParameterNumber,
+    QgsWkbTypes,
+)
+from qgis.PyQt.QtCore import QVariant
+
+from strikeline.errors import InputError
+from strikeline.local import CONFIDENCE_METHODS, DEFAULT_MIN_POINTS, local_attitudes
+
+from ..base import REF_FERNANDEZ, StrikelineAlgorithm
+from ..inputs import PICKS, PICKS_FIELD, add_picks, read_points_xyz
+from ..outputs import Table, write_sink
+from ..styles import attach_style
+from .plane_attitude import REF_EFRON, REF_WOODCOCK
+
+CONFIDENCE_LABELS = ("Bootstrap over the window's picks", "Analytic (first-order covariance of the fit)")
+
+
+class LocalAttitudes(StrikelineAlgorithm):
+    NAME = "localattitudes"
+    DISPLAY = "Local attitudes"
+    GROUP = "picks"
+    SUMMARY = (
+        "Dip and dip direction of the contact in moving circular windows, where a single plane is "
+        "not enough (folds, domes, curved surfaces): windows centred along every contact (using "
+        "that contact's picks) and on a regular grid over the picks (using all picks: give picks "
+        "of one surface). Every window reports its 95% confidence half-widths and its quality "
+        "(good / weak / undetermined); undetermined windows carry no attitude. The default window "
+        "holds about 50 picks around a typical pick; choose it from the geology (a fraction of the "
+        "fold wavelength) when known. Output: one point per window centre, drawn as a strike "
+        "symbol with its dip.")
+    METHOD = (
+        "Total least squares in every window, batched over windows; confidence by bootstrap (or "
+        "the analytic covariance) plus a Monte Carlo of the vertical error when it is given; "
+        "quality by Woodcock's eigenvalue shape measures, the window's relief and the dip's "
+        "half-width.")
+    REFERENCES = (REF_FERNANDEZ, REF_WOODCOCK, REF_EFRON)
+    CONTACT_FIELD = "CONTACT_FIELD"
+    WINDOW = "WINDOW"
+    MIN_POINTS = "MIN_POINTS"
+    ALONG = "ALONG_CONTACTS"
+    ACROSS = "ACROSS_PICKS"
+    GRID_SPACING = "GRID_SPACING"
+    CONFIDENCE = "CONFIDENCE"
+    RESAMPLES = "RESAMPLES"
+    SIGMA_Z = "SIGMA_Z"
+    SEED = "SEED"
+    OUTPUT = "LOCAL_ATTITUDES"
+    DEFAULT_CONTACT_FIELD = "contact_id"
+
+    def initAlgorithm(self, config=None):  # noqa: N802
+        add_picks(self)
+        self.addParameter(QgsProcessingParameterField(
+            self.CONTACT_FIELD, self.tr("Contact id field of the picks (windows along each contact)"),
+            defaultValue=self.DEFAULT_CONTACT_FIELD, parentLayerParameterName=PICKS, optional=True))
+        self.addParameter(QgsProcessingParameterDistance(
+            self.WINDOW, self.tr("Window radius (0: about 50 picks per window)"), defaultValue=0.0,
+            parentParameterName=PICKS, minValue=0.0, optional=True))
+        self.addParameter(QgsProcessingParameterBoolean(
+            self.ALONG, self.tr("Windows along each contact"), defaultValue=True))
+        self.addParameter(QgsProcessingParameterBoolean(
+            self.ACROSS, self.tr("Windows on a grid across all picks"), defaultValue=True))
+        advanced = [
+            QgsProcessingParameterNumber(self.MIN_POINTS, self.tr("Fewest picks in a window"),
+                                         QgsProcessingParameterNumber.Integer,
+                                         defaultValue=DEFAULT_MIN_POINTS, minValue=4, optional=True),
+            QgsProcessingParameterDistance(self.GRID_SPACING, self.tr("Grid spacing (0: the window radius)"),
+                                           defaultValue=0.0, parentParameterName=PICKS, minValue=0.0,
+                                           optional=True),
+            QgsProcessingParameterEnum(self.CONFIDENCE, self.tr("95% confidence"),
+                                       options=[self.tr(x) for x in CONFIDENCE_LABELS], defaultValue=0),
+            QgsProcessingParameterNumber(self.RESAMPLES, self.tr("Bootstrap resamples per window"),
+                                         QgsProcessingParameterNumber.Integer, defaultValue=200,
+                                         minValue=20, optional=True),
+            QgsProcessingParameterNumber(self.SIGMA_Z, self.tr("Vertical standard error of the picks (m, 0: unknown)"),
+                                         QgsProcessingParameterNumber.Double, defaultValue=0.0,
+                                         minValue=0.0, optional=True),
+            QgsProcessingParameterNumber(self.SEED, self.tr("Random seed"), QgsProcessingParameterNumber.Integer,
+                                         defaultValue=0, minValue=0, optional=True),
+        ]
+        for p in advanced:
+            p.setFlags(p.flags() | QgsProcessingParameterDefinition.FlagAdvanced)
+            self.addParameter(p)
+        self.addParameter(QgsProcessingParameterFeatureSink(
+            self.OUTPUT, self.tr("Local attitudes"), QgsProcessing.TypeVectorPoint))
+        self.addOutput(QgsProcessingOutputNumber("WINDOW_M", self.tr("Window radius used (m)")))
+        self.addOutput(QgsProcessingOutputNumber("N_WINDOWS", self.tr("Windows")))
+        self.addOutput(QgsProcessingOutputNumber("N_DETERMINED", self.tr("Windows with an attitude")))
+
+    def process(self, parameters, context, steps):
+        source = self.parameterAsSource(parameters, PICKS, context)
+        cfield = self.parameterAsString(parameters, self.CONTACT_FIELD, context)
+        if cfield and cfield not in source.fields().names():
+            if cfield != self.DEFAULT_CONTACT_FIELD:
+                raise InputError(f"picks layer '{source.sourceName()}' has no field '{cfield}' (fields: "
+                                 f"{', '.join(source.fields().names()) or 'none'}); choose its contact id field")
+            steps.log(f"the picks have no field '{cfield}': all picks are treated as one contact")
+            cfield = ""
+        xyz, source, name, vals = read_points_xyz(
+            self, parameters, PICKS, PICKS_FIELD, context, steps, label="picks",
+            field_label="Elevation field of the picks", fields=(cfield,) if cfield else ())
+        contact_id = None
+        if cfield:
+            cid = vals[cfield]
+            contact_id = np.where(np.isfinite(cid), cid, -1).astype(np.int64)
+        window = self.parameterAsDouble(parameters, self.WINDOW, context) or None
+        spacing = self.parameterAsDouble(parameters, self.GRID_SPACING, context) or None
+        sigma = self.parameterAsDouble(parameters, self.SIGMA_Z, context) or None
+        steps.feedback.setProgress(10)
+        try:
+            la = local_attitudes(
+                xyz, window_m=window, contact_id=contact_id,
+                min_points=self.parameterAsInt(parameters, self.MIN_POINTS, context),
+                along_contacts=self.parameterAsBool(parameters, self.ALONG, context),
+                across_picks=self.parameterAsBool(parameters, self.ACROSS, context),
+                grid_spacing_m=spacing,
+                method=CONFIDENCE_METHODS[self.parameterAsEnum(parameters, self.CONFIDENCE, context)],
+                n_resamples=self.parameterAsInt(parameters, self.RESAMPLES, context), sigma_z_m=sigma,
+                n_draws=self.parameterAsInt(parameters, self.RESAMPLES, context),
+                seed=self.parameterAsInt(parameters, self.SEED, context),
+                progress=steps.part(0.1, 0.9), is_cancelled=steps.is_cancelled)
+        except InputError as exc:
+            raise type(exc)(f"picks {name.what}: {exc}") from None
+        steps.check("local attitudes")
+        counts = {q: int(np.count_nonzero(la.quality == q)) for q in ("good", "weak", "undetermined")}
+        steps.log(f"local attitudes: {len(la)} windows of radius {la.window_m:.0f} m "
+                  f"(good {counts['good']}, weak {counts['weak']}, undetermined {counts['undetermined']})")
+        if len(la) and counts["undetermined"] == len(la):
+            steps.warn("every window is undetermined: use a larger window, or picks with more relief")
+        cid_col = np.empty(len(la), dtype=object)
+        cid_col[:] = [None if c is None else int(c) for c in la.contact_id]
+        table = Table(shapely.points(np.column_stack([la.x, la.y])) if len(la) else np.empty(0, object),
+                      {"elevation_m": la.elevation_m, "dip_deg": la.dip_deg,
+                       "dip_direction_deg": la.dip_direction_deg, "strike_rhr_deg": la.strike_rhr_deg,
+                       "dip_ci95_deg": la.dip_ci95_deg, "dip_direction_ci95_deg": la.dip_direction_ci95_deg,
+                       "cone95_deg": la.cone95_deg, "n_picks": la.n_picks.astype(np.int64),
+                       "quality": la.quality.astype(object), "reason_code": la.reason_code.astype(object),
+                       "coplanarity_m": la.coplanarity, "collinearity_k": la.collinearity,
+                       "rms_m": la.rms_m, "contact_id": cid_col, "kind": la.kind.astype(object)},
+                      QgsWkbTypes.Point, types={"contact_id": QVariant.LongLong})
+        dest = write_sink(self, parameters, self.OUTPUT, context, table, source.sourceCrs())
+        attach_style(context, dest, "local_attitudes")
+        return {self.OUTPUT: dest, "WINDOW_M": la.window_m, "N_WINDOWS": len(la),
+                "N_DETERMINED": len(la) - counts["undetermined"]}
