@@ -2,9 +2,11 @@
 import numpy as np
 import pytest
 
-from strikeline.errors import InputError
+from strikeline.errors import CancelledError, InputError
+from strikeline.grid import Grid
 from strikeline.orientation import normal_from_dip
 from strikeline.thickness import (
+    isopach_grids,
     thickness_between_points,
     thickness_from_borehole,
     thickness_from_outcrop_width,
@@ -165,3 +167,76 @@ def test_borehole_special_cases():
 def test_borehole_rejects_upward_plunge():
     with pytest.raises(InputError, match="hole_plunge_deg"):
         thickness_from_borehole(100.0, 0.0, -10.0, 90.0, 30.0)
+
+
+# --------------------------------------------------------------------------- isopach grids
+# Source: analytic geometry: the planes z = a x + b y + c1 and z = a x + b y + c2 lie
+# |c1 - c2| / sqrt(1 + a^2 + b^2) apart along their common normal, and |c1 - c2| apart along
+# the vertical; with tan(dip) = sqrt(a^2 + b^2) that is t = v cos(dip) (common practice).
+ISOPACH_NORMAL_M = 80.0
+
+
+def _plane_pair(dip_deg, dip_direction_deg, *, shape=(40, 50), cell_m=25.0):
+    g = Grid((480000.0, cell_m, 0.0, 5200000.0, 0.0, -cell_m), shape)
+    x, y = g.mesh()
+    n = normal_from_dip(dip_direction_deg, dip_deg)
+    a, b = -n[0] / n[2], -n[1] / n[2]           # z = a x + b y + c, the plane with normal n
+    base = 350.0 + a * (x - 480000.0) + b * (y - 5200000.0)
+    offset = ISOPACH_NORMAL_M * np.sqrt(1.0 + a * a + b * b)   # c_top - c_base
+    return g, base + offset, base, offset
+
+
+@pytest.mark.parametrize("dip,dd", [(0.0, 0.0), (18.7, 221.3), (30.0, 90.0), (62.0, 305.0)])
+def test_isopach_of_parallel_planes_80_m_apart_reads_80_m_everywhere(dip, dd):
+    g, top, base, offset = _plane_pair(dip, dd)
+    vertical, true = isopach_grids(top, base, g)
+    assert vertical.shape == true.shape == g.shape
+    assert np.allclose(vertical, offset, atol=1e-9)
+    # dip of the base from float32 differences: a few micrometres over 80 m
+    assert np.max(np.abs(true - ISOPACH_NORMAL_M)) < 1e-3
+    # the same distance by the vector form, the projection of top - base on the unit normal
+    n = normal_from_dip(dd, dip)
+    assert float(np.dot([0.0, 0.0, offset], n)) == pytest.approx(ISOPACH_NORMAL_M, abs=1e-9)
+
+
+def test_isopach_nan_where_either_surface_has_no_value():
+    g, top, base, _ = _plane_pair(30.0, 90.0)
+    top[3, 4] = np.nan
+    base[10, 7] = np.nan
+    vertical, true = isopach_grids(top, base, g)
+    for r, c in ((3, 4), (10, 7)):
+        assert np.isnan(vertical[r, c]) and np.isnan(true[r, c])
+    # next to a NaN base cell the dip is one-sided and stays exact for a plane
+    assert true[10, 8] == pytest.approx(ISOPACH_NORMAL_M, abs=1e-3)
+    assert np.isfinite(true).sum() == true.size - 2
+
+
+def test_isopach_keeps_the_sign_where_the_surfaces_cross():
+    g, top, base, offset = _plane_pair(30.0, 90.0)
+    vertical, true = isopach_grids(base, top, g)  # swapped: the "top" lies below the "base"
+    assert np.allclose(vertical, -offset)
+    assert np.allclose(true, -ISOPACH_NORMAL_M, atol=1e-3)
+
+
+def test_isopach_of_a_wedge_follows_the_base_dip():
+    # horizontal base, top rising eastward: vertical thickness grows with x, true = vertical
+    g = Grid((0.0, 10.0, 0.0, 100.0, 0.0, -10.0), (10, 12))
+    x, _ = g.mesh()
+    base = np.full(g.shape, 100.0)
+    top = base + 5.0 + 0.1 * x
+    vertical, true = isopach_grids(top, base, g)
+    assert np.allclose(vertical, 5.0 + 0.1 * x) and np.allclose(true, vertical)
+
+
+def test_isopach_refuses_mismatched_arrays():
+    g, top, base, _ = _plane_pair(30.0, 90.0)
+    with pytest.raises(InputError, match="top_m has shape"):
+        isopach_grids(top[:-1], base, g)
+    with pytest.raises(InputError, match="float array"):
+        isopach_grids(top, base.astype(int), g)
+
+
+def test_isopach_can_be_cancelled():
+    g, top, base, _ = _plane_pair(30.0, 90.0)
+    with pytest.raises(CancelledError):
+        isopach_grids(top, base, g, is_cancelled=lambda: True)
