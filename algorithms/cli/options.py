@@ -24,6 +24,28 @@ def positive_metres(text: str) -> float:
     return v
 
 
+def non_negative_metres(text: str) -> float:
+    """An argparse type: a finite number of metres, zero allowed (a standard error, a slope)."""
+    try:
+        v = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a number of metres, got {text!r}") from None
+    if not (v >= 0 and math.isfinite(v)):
+        raise argparse.ArgumentTypeError(f"expected zero or a positive number of metres, got {text!r}")
+    return v
+
+
+def finite_number(text: str) -> float:
+    """An argparse type: any finite number (coordinates, angles; ranges are checked later)."""
+    try:
+        v = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a number, got {text!r}") from None
+    if not math.isfinite(v):
+        raise argparse.ArgumentTypeError(f"expected a finite number, got {text!r}")
+    return v
+
+
 def add_output(p: argparse.ArgumentParser) -> None:
     p.add_argument("--out", required=True, metavar="DIR",
                    help="folder to create for the results (must not exist unless --overwrite)")
