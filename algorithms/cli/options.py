@@ -25,7 +25,7 @@ def positive_metres(text: str) -> float:
 
 
 def non_negative_metres(text: str) -> float:
-    """An argparse type: a finite number of metres, zero allowed (a standard error, a slope)."""
+    """An argparse type: a finite number of metres, zero allowed (a standard error)."""
     try:
         v = float(text)
     except ValueError:
@@ -43,6 +43,26 @@ def finite_number(text: str) -> float:
         raise argparse.ArgumentTypeError(f"expected a number, got {text!r}") from None
     if not math.isfinite(v):
         raise argparse.ArgumentTypeError(f"expected a finite number, got {text!r}")
+    return v
+
+
+def non_negative(text: str) -> float:
+    try:
+        v = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a number, got {text!r}") from None
+    if not (v >= 0 and math.isfinite(v)):
+        raise argparse.ArgumentTypeError(f"expected zero or a positive number, got {text!r}")
+    return v
+
+
+def positive_int(text: str) -> int:
+    try:
+        v = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
+    if v < 1:
+        raise argparse.ArgumentTypeError(f"expected a positive whole number, got {text!r}")
     return v
 
 
