@@ -28,6 +28,7 @@ __all__ = [
     "picks_from_dem",
     "sample_bilinear",
     "densify_lines",
+    "ground_slope_from_contours",
 ]
 
 #: The values of :attr:`PickSet.source`.
@@ -761,3 +762,64 @@ def picks_from_contours(contacts, contours, elevations_m, *, contact_ids=None,
     if progress is not None:
         progress(1.0)
     return result
+
+
+def ground_slope_from_contours(x, y, contours, elevations_m, *, spacing_m=None, k=64):
+    """Ground slope (degrees) at points, from the spacing of topographic contour lines.
+
+    Parameters
+    ----------
+    x, y : array_like, shape ``(n,)``
+        Points (metres), typically contour picks on a contact.
+    contours : sequence of shapely (Multi)LineStrings
+    elevations_m : array_like
+        Elevation of each contour (NaN skipped).
+    spacing_m : float, optional
+        Densification step of the contours; default a tenth of the median contour spacing
+        estimate (the sheet's extent over the number of contour levels), at least 1 m.
+    k : int
+        Neighbours searched for a point of another elevation.
+
+    Returns
+    -------
+    ndarray
+        ``atan(dz / d)`` where ``d`` is the distance from the point to the nearest contour
+        vertex at a different elevation and ``dz`` that elevation difference; NaN where no
+        such vertex lies among the ``k`` nearest.
+
+    Notes
+    -----
+    Common practice: the ground slope between two contours is the contour interval over their
+    horizontal separation (the hand method of reading slope off a topographic map).
+    """
+    from scipy.spatial import cKDTree
+
+    x = np.asarray(x, dtype=float).ravel()
+    y = np.asarray(y, dtype=float).ravel()
+    elev = np.asarray(elevations_m, dtype=float)
+    geoms = np.asarray(contours, dtype=object)
+    keep = np.isfinite(elev) & ~shapely.is_missing(geoms)
+    geoms, elev = geoms[keep], elev[keep]
+    if len(x) == 0 or len(geoms) == 0:
+        return np.full(len(x), np.nan)
+    if spacing_m is None:
+        xmin, ymin, xmax, ymax = shapely.total_bounds(geoms)
+        levels = max(len(np.unique(elev)), 1)
+        spacing_m = max(1.0, max(xmax - xmin, ymax - ymin) / levels / 10.0)
+    xy, idx = densify_lines(geoms, spacing_m)
+    z = elev[idx]
+    tree = cKDTree(xy)
+    k = int(min(k, len(xy)))
+    dist, nb = tree.query(np.column_stack([x, y]), k=k)
+    dist = dist.reshape(len(x), k)
+    nb = nb.reshape(len(x), k)
+    zq = z[nb[:, 0]]  # the point's own contour: the nearest vertex
+    other = np.abs(z[nb] - zq[:, None]) > 1e-9
+    has = other.any(axis=1)
+    first = np.argmax(other, axis=1)
+    rows = np.arange(len(x))
+    d = dist[rows, first]
+    dz = np.abs(z[nb[rows, first]] - zq)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        slope = np.degrees(np.arctan2(dz, d))
+    return np.where(has, slope, np.nan)

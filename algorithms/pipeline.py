@@ -20,16 +20,40 @@ import shapely
 from osgeo import ogr
 
 from strikeline import CAUTION, __version__
-from strikeline.errors import CancelledError, InputError, OutputError
+from strikeline.crossval import segment_groups
+from strikeline.diagnostics import PlaneQuality, assess_plane
+from strikeline.errors import CancelledError, InputError, OutputError, UndeterminedError
 from strikeline.fitting import PlaneFit, fit_plane
+from strikeline.geodesy import grid_to_true_azimuth, meridian_convergence_deg
 from strikeline.grid import Grid
 from strikeline.grids import depth_below_ground, dip_grids
 from strikeline.io.contours import contour_lines
 from strikeline.io.crs import crs_label, same_crs, srs_from_wkt
 from strikeline.io.raster import read_raster, write_geotiff
 from strikeline.io.vector import LayerOut, VectorLayer, read_layer, write_gpkg
-from strikeline.picks import PickSet, picks_from_contours, picks_from_dem, sample_bilinear
-from strikeline.trace import trace_misfit
+from strikeline.local import LocalAttitudes, local_attitudes
+from strikeline.orientation import dip_direction_from_strike
+from strikeline.picks import (PickSet, ground_slope_from_contours, picks_from_contours,
+                              picks_from_dem, sample_bilinear)
+from strikeline.surfaces import SurfaceModel, fit_surface
+from strikeline.trace import contact_misfit_segments, split_lines_by_flag, trace_misfit
+from strikeline.uncertainty import PlaneConfidence, plane_confidence, vertical_sigma_of_picks
+
+MODELS = ("auto", "plane", "trend2", "spline")
+
+#: Default vertical standard error of DEM picks (metres). Basis: national DEMs of 5-25 m cells
+#: state vertical accuracies (RMSE) of about 1-5 m; 2 m is a middle value (common practice).
+DEFAULT_DEM_SIGMA_M = 2.0
+#: Default horizontal positional standard error of contour picks (metres): half of a 5 m
+#: positional tolerance, i.e. 0.5 mm at 1:10,000 (common practice for digitised line work).
+DEFAULT_CONTOUR_SIGMA_M = 2.5
+#: Default standard error of a borehole's surface elevation (metres).
+DEFAULT_BOREHOLE_SIGMA_M = 1.0
+#: Default standard error of a measured dip (degrees; compass-clinometer readings, common practice).
+DEFAULT_ORIENTATION_SIGMA_DEG = 5.0
+#: Misfit QA: contact segments are this many DEM cells long, flagged beyond this many cells.
+SEGMENT_CELLS = 10
+FLAG_CELLS = 3
 
 Log = Callable[[str], None]
 
@@ -53,6 +77,31 @@ class RunOptions:
     interval_m: float = 50.0
     cell_m: float | None = None
     overwrite: bool = False
+    # surface model and extra constraints (issue 4)
+    model: str = "auto"
+    boreholes: str | None = None
+    boreholes_layer: str | None = None
+    borehole_z_field: str | None = None
+    borehole_collar_field: str | None = None
+    borehole_depth_field: str | None = None
+    borehole_sigma_m: float = DEFAULT_BOREHOLE_SIGMA_M
+    orientations: str | None = None
+    orientations_layer: str | None = None
+    dip_field: str = "dip"
+    dip_direction_field: str | None = "dip_dir"
+    strike_field: str | None = None
+    orientation_sigma_deg: float = DEFAULT_ORIENTATION_SIGMA_DEG
+    top_contacts: str | None = None
+    top_contacts_layer: str | None = None
+    top_where: str | None = None
+    misfit_flag_m: float | None = None
+    # confidence and local attitudes (issue 3)
+    dem_sigma_m: float = DEFAULT_DEM_SIGMA_M
+    contour_sigma_m: float = DEFAULT_CONTOUR_SIGMA_M
+    window_m: float | None = None
+    group_by: str | None = None
+    resamples: int = 1000
+    seed: int = 0
 
 
 @dataclass
@@ -66,6 +115,9 @@ class Inputs:
     contours: VectorLayer | None = None
     contour_elevations_m: np.ndarray | None = None
     paths: dict = field(default_factory=dict)
+    boreholes_xyz: np.ndarray | None = None  # (n, 3) x, y, surface elevation
+    orientations: np.ndarray | None = None  # (n, 4) x, y, dip, dip direction
+    top_contacts: VectorLayer | None = None
 
 
 @dataclass
@@ -83,9 +135,25 @@ class Results:
     contour_elevations_m: np.ndarray
     trace_geoms: np.ndarray
     summary: dict
+    model: SurfaceModel | None = None
+    uncertainty_m: np.ndarray | None = None
+    contour_extrapolated: np.ndarray | None = None
+    trace_extrapolated: np.ndarray | None = None
+    contact_misfit: dict | None = None
+    attitudes: LocalAttitudes | None = None
+    vertical_thickness_m: np.ndarray | None = None
+    true_thickness_m: np.ndarray | None = None
+    top_picks: PickSet | None = None
 
 
 # --------------------------------------------------------------------------- checks on options
+def _positive(value, option, *, allow_zero=False):
+    ok = value is not None and np.isfinite(value) and (value >= 0 if allow_zero else value > 0)
+    if not ok:
+        need = "zero or a positive number" if allow_zero else "a positive number"
+        raise InputError(f"{option} must be {need}, got {value}")
+
+
 def check_options(opts: RunOptions) -> None:
     """Refuse contradictory or incomplete options before any work is done."""
     if opts.dem is None and opts.contours is None:
@@ -95,10 +163,21 @@ def check_options(opts: RunOptions) -> None:
             f"contours '{opts.contours}': the elevation field is not named; add --elev-field NAME "
             "(the numeric field that holds each contour's elevation)"
         )
-    if not (opts.interval_m > 0 and np.isfinite(opts.interval_m)):
-        raise InputError(f"--interval must be a positive number of metres, got {opts.interval_m}")
-    if opts.cell_m is not None and not (opts.cell_m > 0 and np.isfinite(opts.cell_m)):
-        raise InputError(f"--cell must be a positive number of metres, got {opts.cell_m}")
+    if opts.model not in MODELS:
+        raise InputError(f"--model must be one of {', '.join(MODELS)}; got {opts.model!r}")
+    _positive(opts.interval_m, "--interval (metres)")
+    if opts.cell_m is not None:
+        _positive(opts.cell_m, "--cell (metres)")
+    if opts.window_m is not None:
+        _positive(opts.window_m, "--window (metres)")
+    if opts.misfit_flag_m is not None:
+        _positive(opts.misfit_flag_m, "--misfit-flag (metres)")
+    _positive(opts.dem_sigma_m, "--dem-sigma (metres)", allow_zero=True)
+    _positive(opts.contour_sigma_m, "--contour-sigma (metres)", allow_zero=True)
+    _positive(opts.borehole_sigma_m, "--borehole-sigma (metres)", allow_zero=True)
+    _positive(opts.orientation_sigma_deg, "--orientation-sigma (degrees)", allow_zero=True)
+    if not (isinstance(opts.resamples, int) and opts.resamples >= 100):
+        raise InputError(f"--resamples must be a whole number of at least 100, got {opts.resamples}")
     out = Path(opts.out)
     if out.exists() and not out.is_dir():
         raise OutputError(f"--out '{out}' exists and is not a folder; name a folder to create")
@@ -106,7 +185,7 @@ def check_options(opts: RunOptions) -> None:
         raise OutputError(
             f"output folder '{out}' already exists; add --overwrite to replace it, or name a new folder"
         )
-    for p in (opts.contacts, opts.dem, opts.contours):
+    for p in (opts.contacts, opts.dem, opts.contours, opts.boreholes, opts.orientations, opts.top_contacts):
         if p and out.exists() and Path(p).resolve().is_relative_to(out.resolve()):
             raise OutputError(
                 f"input '{p}' lies inside the output folder '{out}', which --overwrite would delete; "
@@ -115,11 +194,82 @@ def check_options(opts: RunOptions) -> None:
 
 
 # --------------------------------------------------------------------------- loading
+def _to_target(lyr: VectorLayer | None, target, key: str, log: Log) -> VectorLayer | None:
+    if lyr is None or same_crs(lyr.srs, target):
+        return lyr
+    log(f"reprojecting {key} '{lyr.path}' from {crs_label(lyr.srs)} to {crs_label(target)}")
+    return lyr.reprojected(target)
+
+
+def _borehole_points(lyr: VectorLayer, opts: RunOptions) -> np.ndarray:
+    """``(n, 3)`` borehole positions and the surface's elevation in each."""
+    xy = shapely.get_coordinates(lyr.geoms)
+    if len(xy) != len(lyr):
+        raise InputError(f"{lyr.what} holds multi-point features; give one point per borehole")
+    if opts.borehole_z_field:
+        z = lyr.numeric_field(opts.borehole_z_field, option="--borehole-z-field")
+    elif opts.borehole_collar_field or opts.borehole_depth_field:
+        if not (opts.borehole_collar_field and opts.borehole_depth_field):
+            raise InputError(
+                f"boreholes '{lyr.path}': give both --borehole-collar-field and --borehole-depth-field "
+                "(collar elevation and depth down to the surface), or --borehole-z-field"
+            )
+        collar = lyr.numeric_field(opts.borehole_collar_field, option="--borehole-collar-field")
+        depth = lyr.numeric_field(opts.borehole_depth_field, option="--borehole-depth-field")
+        if np.any(depth[np.isfinite(depth)] < 0):
+            raise InputError(
+                f"field '{opts.borehole_depth_field}' of {lyr.what} holds negative depths; depths are "
+                "measured downward from the collar, in metres"
+            )
+        z = collar - depth
+    else:
+        z = lyr.z
+        if z is None or not np.isfinite(z).any():
+            raise InputError(
+                f"boreholes {lyr.what} carry no elevation of the surface: name it with "
+                "--borehole-z-field, or give --borehole-collar-field and --borehole-depth-field, "
+                "or use Point Z geometries"
+            )
+    pts = np.column_stack([xy, z])
+    pts = pts[np.isfinite(pts).all(axis=1)]
+    if len(pts) == 0:
+        raise InputError(f"boreholes {lyr.what} hold no borehole with a usable elevation")
+    return pts
+
+
+def _orientation_rows(lyr: VectorLayer, opts: RunOptions) -> np.ndarray:
+    """``(n, 4)`` x, y, dip, dip direction of the dip measurements."""
+    xy = shapely.get_coordinates(lyr.geoms)
+    if len(xy) != len(lyr):
+        raise InputError(f"{lyr.what} holds multi-point features; give one point per measurement")
+    dip = lyr.numeric_field(opts.dip_field, option="--dip-field")
+    if opts.strike_field:
+        dd = dip_direction_from_strike(lyr.numeric_field(opts.strike_field, option="--strike-field"))
+    else:
+        dd = lyr.numeric_field(opts.dip_direction_field or "dip_dir", option="--dip-direction-field")
+    rows = np.column_stack([xy, dip, dd])
+    rows = rows[np.isfinite(rows).all(axis=1)]
+    bad = (rows[:, 2] < 0) | (rows[:, 2] >= 89) | (rows[:, 3] < 0) | (rows[:, 3] > 360)
+    if bad.any():
+        raise InputError(
+            f"{lyr.what}: {int(bad.sum())} measurement(s) out of range (dip must lie in 0-89 degrees, "
+            "dip direction in 0-360); fix the values or the field names (--dip-field, --dip-direction-field)"
+        )
+    if len(rows) == 0:
+        raise InputError(f"{lyr.what} holds no complete dip measurement")
+    return rows
+
+
 def load_inputs(opts: RunOptions, *, log: Log = _quiet) -> Inputs:
     """Read every input and bring it into one projected CRS (the DEM's, else the contacts')."""
     check_options(opts)
     contacts = read_layer(opts.contacts, layer=opts.contacts_layer, where=opts.where,
                           label="contacts", geometry="line", layer_option="--contacts-layer")
+    if opts.group_by and opts.group_by not in contacts.fields:
+        raise InputError(
+            f"--group-by: {contacts.what} has no field '{opts.group_by}' "
+            f"(fields: {', '.join(contacts.fields) or 'none'}); name one of its fields"
+        )
     dem = grid = None
     if opts.dem:
         dem, grid = read_raster(opts.dem, label="DEM")
@@ -136,21 +286,36 @@ def load_inputs(opts: RunOptions, *, log: Log = _quiet) -> Inputs:
                 f"field '{opts.elev_field}' of {contours.what} holds no elevation (all null); "
                 "name the field that holds the contour elevations with --elev-field"
             )
-    target_label = crs_label(target)
-    layers = {"contacts": contacts, "contours": contours}
-    for key, lyr in layers.items():
-        if lyr is not None and not same_crs(lyr.srs, target):
-            log(f"reprojecting {key} '{lyr.path}' from {crs_label(lyr.srs)} to {target_label}")
-            layers[key] = lyr.reprojected(target)
-    paths = {k: v for k, v in (("contacts", opts.contacts), ("dem", opts.dem), ("contours", opts.contours)) if v}
-    return Inputs(contacts=layers["contacts"], crs_wkt=target.ExportToWkt(), dem=dem, dem_grid=grid,
-                  contours=layers["contours"], contour_elevations_m=elev, paths=paths)
+    boreholes = orientations = top = None
+    if opts.boreholes:
+        boreholes = read_layer(opts.boreholes, layer=opts.boreholes_layer, label="boreholes",
+                               geometry="point", layer_option="--boreholes-layer")
+    if opts.orientations:
+        orientations = read_layer(opts.orientations, layer=opts.orientations_layer, label="orientations",
+                                  geometry="point", layer_option="--orientations-layer")
+    if opts.top_contacts:
+        top = read_layer(opts.top_contacts, layer=opts.top_contacts_layer, where=opts.top_where,
+                         label="top contacts", geometry="line", layer_option="--top-contacts-layer")
+    contacts = _to_target(contacts, target, "contacts", log)
+    contours = _to_target(contours, target, "contours", log)
+    boreholes = _to_target(boreholes, target, "boreholes", log)
+    orientations = _to_target(orientations, target, "orientations", log)
+    top = _to_target(top, target, "top contacts", log)
+    paths = {k: v for k, v in (("contacts", opts.contacts), ("dem", opts.dem), ("contours", opts.contours),
+                               ("boreholes", opts.boreholes), ("orientations", opts.orientations),
+                               ("top_contacts", opts.top_contacts)) if v}
+    return Inputs(contacts=contacts, crs_wkt=target.ExportToWkt(), dem=dem, dem_grid=grid,
+                  contours=contours, contour_elevations_m=elev, paths=paths,
+                  boreholes_xyz=None if boreholes is None else _borehole_points(boreholes, opts),
+                  orientations=None if orientations is None else _orientation_rows(orientations, opts),
+                  top_contacts=top)
 
 
 # --------------------------------------------------------------------------- steps
-def collect_picks(inputs: Inputs, *, log: Log = _quiet, progress=None, is_cancelled=None) -> PickSet:
+def collect_picks(inputs: Inputs, *, contacts: VectorLayer | None = None, log: Log = _quiet,
+                  progress=None, is_cancelled=None) -> PickSet:
     """Elevation picks on every contact, from the DEM and/or the contour lines."""
-    c = inputs.contacts
+    c = inputs.contacts if contacts is None else contacts
     sets = []
     if inputs.dem is not None:
         dem_picks = picks_from_dem(c.geoms, inputs.dem, inputs.dem_grid, contact_ids=c.fids,
@@ -177,6 +342,81 @@ def fit_picks(picks: PickSet, *, what: str = "the picks") -> PlaneFit:
         raise type(exc)(f"{what}: {exc}") from None
 
 
+def pick_sigmas(inputs: Inputs, picks: PickSet, opts: RunOptions) -> np.ndarray:
+    """Vertical standard error of every pick (DEM error; contour position through the slope)."""
+    slope = np.full(len(picks), np.nan)
+    is_contour = picks.source == "contours"
+    if is_contour.any() and opts.contour_sigma_m > 0:
+        xy = picks.xyz[is_contour, :2]
+        if inputs.dem is not None:
+            dem_dip, _ = dip_grids(inputs.dem, inputs.dem_grid)
+            s = sample_bilinear(dem_dip.astype(float), inputs.dem_grid, xy[:, 0], xy[:, 1])
+        else:
+            s = np.full(len(xy), np.nan)
+        missing = ~np.isfinite(s)
+        if missing.any() and inputs.contours is not None:
+            s[missing] = ground_slope_from_contours(xy[missing, 0], xy[missing, 1], inputs.contours.geoms,
+                                                    inputs.contour_elevations_m)
+        # where no slope can be found, take the sheet's median slope (a neutral fallback)
+        med = np.nanmedian(s) if np.isfinite(s).any() else 0.0
+        slope[is_contour] = np.clip(np.where(np.isfinite(s), s, med), 0.0, 89.0)
+    slope = np.where(np.isfinite(slope), slope, 0.0)
+    return vertical_sigma_of_picks(picks.source, slope, dem_sigma_m=opts.dem_sigma_m,
+                                   contour_sigma_m=opts.contour_sigma_m)
+
+
+def attitude_of(xyz, sigma, opts: RunOptions, crs_wkt: str, *, what: str, strict: bool,
+                is_cancelled=None) -> dict:
+    """Plane, 95% confidence, quality and true-north azimuth of one pick set, as a summary dict.
+
+    With ``strict`` an undetermined pick set is an error (the sheet-wide plane); otherwise it is
+    reported with ``quality: undetermined`` and no attitude (a group or window).
+    """
+    xyz = np.asarray(xyz, dtype=float)
+    try:
+        plane = fit_plane(xyz)
+    except UndeterminedError as exc:
+        if strict:
+            raise UndeterminedError(f"{what}: {exc}") from None
+        q = assess_plane(xyz) if len(xyz) else None
+        return {"quality": "undetermined", "reason": str(exc) if q is None else q.reason,
+                "advice": "" if q is None else q.advice, "n_picks": int(len(xyz))}
+    conf: PlaneConfidence | None = None
+    if len(xyz) >= 4:
+        conf = plane_confidence(xyz, sigma_z_m=sigma, n_resamples=opts.resamples, n_draws=opts.resamples,
+                                seed=opts.seed, is_cancelled=is_cancelled)
+    typical_sigma = float(np.median(sigma)) if sigma is not None and len(sigma) else None
+    quality: PlaneQuality = assess_plane(xyz, sigma_z_m=typical_sigma,
+                                         dip_ci95_deg=None if conf is None else conf.dip_ci95_deg)
+    if quality.quality == "undetermined":
+        if strict:
+            raise UndeterminedError(f"{what}: the attitude is undetermined - {quality.reason}; "
+                                    f"what would help: {quality.advice}")
+        return {"quality": "undetermined", "reason": quality.reason, "advice": quality.advice,
+                "n_picks": plane.n_points}
+    gamma = meridian_convergence_deg(crs_wkt, plane.centroid[0], plane.centroid[1])
+    out = {
+        "dip": plane.dip_deg,
+        "dip_direction": plane.dip_direction_deg,
+        "strike_rhr": plane.strike_rhr_deg,
+        "rms_m": plane.rms_m,
+        "centroid": list(plane.centroid),
+        "n_picks": plane.n_points,
+        "dip_ci95": None if conf is None else conf.dip_ci95_deg,
+        "dip_direction_ci95": None if conf is None else conf.dip_direction_ci95_deg,
+        "cone95": None if conf is None else conf.cone95_deg,
+        "confidence_method": "three-point (no confidence)" if conf is None else conf.method,
+        "quality": quality.quality,
+        "reason": quality.reason,
+        "advice": quality.advice,
+        "coplanarity_M": quality.coplanarity,
+        "collinearity_K": quality.collinearity,
+        "meridian_convergence_deg": gamma,
+        "dip_direction_true": float(grid_to_true_azimuth(plane.dip_direction_deg, gamma)),
+    }
+    return out
+
+
 def surface_grid(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet) -> Grid:
     """The output grid: the DEM's grid, else ``--cell`` metres over the contour layer's extent."""
     if inputs.dem_grid is not None:
@@ -193,37 +433,133 @@ def surface_grid(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet) -> Grid
     return Grid.from_bounds(xmin, ymin, xmax, ymax, cell_m=cell, crs_wkt=inputs.crs_wkt)
 
 
+def model_surface(picks: PickSet, opts: RunOptions, grid: Grid, *, boreholes=None, orientations=None,
+                  what: str, is_cancelled=None) -> SurfaceModel:
+    """Fit the ``--model`` surface to picks (and constraints), folds by contact segment."""
+    xyz = picks.xyz
+    span = float(np.max(np.ptp(xyz[:, :2], axis=0))) if len(xyz) else 0.0
+    block_m = max(span / 8.0, 10.0 * grid.cell_x_m, 1.0)
+    groups = segment_groups(xyz[:, 0], xyz[:, 1], picks.contact_id, block_m=block_m)
+    bh = None
+    if boreholes is not None:
+        bh = np.column_stack([boreholes, np.full(len(boreholes), opts.borehole_sigma_m)])
+    orient = None
+    if orientations is not None:
+        orient = np.column_stack([orientations, np.full(len(orientations), opts.orientation_sigma_deg)])
+    try:
+        return fit_surface(xyz, model=opts.model, boreholes=bh, orientations=orient, groups=groups,
+                           seed=opts.seed, is_cancelled=is_cancelled)
+    except UndeterminedError as exc:
+        raise UndeterminedError(f"{what}: {exc}") from None
+
+
 def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=None,
             is_cancelled=None) -> Results:
     """Run every step of the chain in memory."""
-    def check():
+    steps = 9.0
+
+    def step(k):
         if is_cancelled is not None and is_cancelled():
             raise CancelledError("cancelled; nothing was written")
+        if progress is not None:
+            progress(min(1.0, k / steps))
 
-    picks = collect_picks(inputs, log=log, progress=progress, is_cancelled=is_cancelled)
-    check()
-    plane = fit_picks(picks, what=f"picks on contacts '{inputs.paths['contacts']}'")
+    what = f"picks on contacts '{inputs.paths['contacts']}'"
+    picks = collect_picks(inputs, log=log, is_cancelled=is_cancelled)
+    step(1)
+    plane = fit_picks(picks, what=what)
+    sigma = pick_sigmas(inputs, picks, opts)
+    plane_summary = attitude_of(picks.xyz, sigma, opts, inputs.crs_wkt, what=what, strict=True,
+                                is_cancelled=is_cancelled)
+    if plane_summary["quality"] == "weak":
+        log(f"warning: the best-fit plane is weak - {plane_summary['reason']}; "
+            f"what would help: {plane_summary['advice']}")
+    groups = {}
+    if opts.group_by:
+        values = dict(zip(inputs.contacts.fids.tolist(), inputs.contacts.fields[opts.group_by].tolist()))
+        labels = np.array([str(values.get(int(c))) for c in picks.contact_id], dtype=object)
+        for g in sorted(set(labels.tolist())):
+            m = labels == g
+            groups[g] = attitude_of(picks.xyz[m], sigma[m], opts, inputs.crs_wkt, what=f"group {g}",
+                                    strict=False, is_cancelled=is_cancelled)
+    step(2)
+    attitudes = local_attitudes(picks.xyz, window_m=opts.window_m, contact_id=picks.contact_id,
+                                sigma_z_m=sigma, seed=opts.seed, is_cancelled=is_cancelled)
+    step(3)
     grid = surface_grid(inputs, opts, log=log)
-    X, Y = grid.mesh()
-    surface = plane.elevation(X, Y)
-    del X, Y
-    check()
+    model = model_surface(picks, opts, grid, boreholes=inputs.boreholes_xyz, orientations=inputs.orientations,
+                          what=what, is_cancelled=is_cancelled)
+    surface = model.evaluate_grid(grid, is_cancelled=is_cancelled)
+    uncertainty = model.standard_error_grid(grid, is_cancelled=is_cancelled)
+    step(4)
     dip, dipdir = dip_grids(surface, grid, is_cancelled=is_cancelled)
-    check()
+    step(5)
+    spacing = min(grid.cell_x_m, grid.cell_y_m)
     cgeoms, clevels = contour_lines(surface, grid, interval_m=opts.interval_m)
+    cparts, cflags, csrc = split_lines_by_flag(cgeoms, model.is_extrapolated, spacing_m=spacing)
+    clevels = np.asarray(clevels, dtype=float)[csrc] if len(csrc) else np.empty(0)
+    step(6)
     depth = None
     trace = np.empty(0, dtype=object)
+    tflags = np.empty(0, dtype=bool)
     misfit = {"median": None, "p90": None, "n_vertices": 0,
               "note": "needs a DEM: the predicted trace is the zero line of depth below ground"}
+    segments = None
+    flag_m = opts.misfit_flag_m if opts.misfit_flag_m is not None else FLAG_CELLS * spacing
     if inputs.dem is not None:
         depth = depth_below_ground(inputs.dem, surface)
-        trace, _ = contour_lines(depth, grid, levels=[0.0])
+        raw_trace, _ = contour_lines(depth, grid, levels=[0.0])
+        trace, tflags, _ = split_lines_by_flag(raw_trace, model.is_extrapolated, spacing_m=spacing)
         verts = shapely.get_coordinates(inputs.contacts.geoms)
         on_dem = np.isfinite(sample_bilinear(inputs.dem, inputs.dem_grid, verts[:, 0], verts[:, 1]))
-        misfit = trace_misfit(verts[on_dem], trace)
-    check()
-    summary = build_summary(inputs, opts, picks, plane, misfit, n_contours=len(cgeoms))
-    return Results(picks, plane, grid, surface, dip, dipdir, depth, cgeoms, clevels, trace, summary)
+        misfit = trace_misfit(verts[on_dem], raw_trace)
+
+        def on_valid(x, y):
+            return np.isfinite(sample_bilinear(inputs.dem, inputs.dem_grid, x, y))
+
+        segments = contact_misfit_segments(inputs.contacts.geoms, inputs.contacts.fids, raw_trace,
+                                           segment_m=SEGMENT_CELLS * spacing, flag_m=flag_m,
+                                           valid_fn=on_valid)
+    step(7)
+    vth = tth = top_picks = None
+    thickness = None
+    if inputs.top_contacts is not None:
+        twhat = f"picks on top contacts '{inputs.paths['top_contacts']}'"
+        top_picks = collect_picks(inputs, contacts=inputs.top_contacts, log=log, is_cancelled=is_cancelled)
+        fit_picks(top_picks, what=twhat)
+        top_opts = RunOptions(**{**opts.__dict__})
+        top_model = model_surface(top_picks, top_opts, grid, what=twhat, is_cancelled=is_cancelled)
+        top_surface = top_model.evaluate_grid(grid, is_cancelled=is_cancelled)
+        from strikeline.thickness import isopach_grids
+
+        vth, tth = isopach_grids(top_surface, surface, grid)
+        X, Y = grid.mesh()
+        supported = ~(model.is_extrapolated(X, Y) | top_model.is_extrapolated(X, Y)) & np.isfinite(tth)
+        del X, Y
+        vals = tth[supported]
+        thickness = {
+            "top_model": top_model.kind,
+            "true_thickness_method": "vertical thickness x cos(local dip of the base surface)",
+            "n_cells": int(vals.size),
+            "mean_m": float(np.mean(vals)) if vals.size else None,
+            "std_m": float(np.std(vals)) if vals.size else None,
+            "p10_m": float(np.percentile(vals, 10)) if vals.size else None,
+            "p90_m": float(np.percentile(vals, 90)) if vals.size else None,
+            "note": "statistics over cells within reach of data of both surfaces",
+        }
+        if vals.size and np.mean(vals) < 0:
+            log("warning: the top contacts model lies below the base on average - check which "
+                "contact is the top (--top-contacts) and which the base (--contacts)")
+    step(8)
+    summary = build_summary(inputs, opts, picks, plane_summary, misfit, n_contours=len(cparts),
+                            model=model, groups=groups, attitudes=attitudes, segments=segments,
+                            flag_m=flag_m, thickness=thickness, contour_flags=cflags, trace_flags=tflags,
+                            n_top_picks=None if top_picks is None else len(top_picks))
+    step(9)
+    return Results(picks, plane, grid, surface, dip, dipdir, depth, cparts, clevels, trace, summary,
+                   model=model, uncertainty_m=uncertainty, contour_extrapolated=cflags,
+                   trace_extrapolated=tflags, contact_misfit=segments, attitudes=attitudes,
+                   vertical_thickness_m=vth, true_thickness_m=tth, top_picks=top_picks)
 
 
 # --------------------------------------------------------------------------- summary
@@ -235,32 +571,79 @@ def file_sha256(path: str) -> str:
     return h.hexdigest()
 
 
-def _r(v, nd=4):
-    return None if v is None or not np.isfinite(v) else round(float(v), nd)
+def _clean(value, nd=4):
+    """JSON-ready copy: floats rounded (so the bytes are stable), NaN/inf as null."""
+    if isinstance(value, dict):
+        return {str(k): _clean(v, nd) for k, v in value.items()}
+    if isinstance(value, (list, tuple, np.ndarray)):
+        return [_clean(v, nd) for v in (value.tolist() if isinstance(value, np.ndarray) else value)]
+    if isinstance(value, (bool, np.bool_)):
+        return bool(value)
+    if isinstance(value, (int, np.integer)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        v = float(value)
+        return round(v, nd) if np.isfinite(v) else None
+    return value
 
 
-def build_summary(inputs: Inputs, opts: RunOptions, picks: PickSet, plane: PlaneFit, misfit: dict,
-                  *, n_contours: int) -> dict:
-    return {
+def build_summary(inputs: Inputs, opts: RunOptions, picks: PickSet, plane: dict, misfit: dict,
+                  *, n_contours: int, model: SurfaceModel | None = None, groups: dict | None = None,
+                  attitudes: LocalAttitudes | None = None, segments: dict | None = None,
+                  flag_m: float | None = None, thickness: dict | None = None,
+                  contour_flags=None, trace_flags=None, n_top_picks=None) -> dict:
+    summary = {
         "version": __version__,
         "crs": crs_label(srs_from_wkt(inputs.crs_wkt)),
         "n_picks": len(picks),
         "picks_by_source": picks.counts_by_source(),
-        "plane": {
-            "dip": _r(plane.dip_deg, 3),
-            "dip_direction": _r(plane.dip_direction_deg, 3),
-            "strike_rhr": _r(plane.strike_rhr_deg, 3),
-            "rms_m": _r(plane.rms_m, 3),
-            "centroid": [_r(c, 3) for c in plane.centroid],
-            "n_picks": plane.n_points,
+        "plane": plane,
+        "trace_misfit_m": misfit,
+        "structure_contours": {
+            "interval_m": opts.interval_m, "n_lines": n_contours,
+            "n_extrapolated": 0 if contour_flags is None else int(np.sum(contour_flags)),
         },
-        "trace_misfit_m": {k: (_r(v, 3) if isinstance(v, float) else v) for k, v in misfit.items()},
-        "structure_contours": {"interval_m": opts.interval_m, "n_lines": n_contours},
+        "data_error": {
+            "dem_sigma_m": opts.dem_sigma_m, "contour_sigma_m": opts.contour_sigma_m,
+            "basis": "DEM picks: vertical standard error as given; contour picks: positional "
+                     "standard error times tan(ground slope at the pick)",
+            "resamples": opts.resamples, "seed": opts.seed,
+        },
         "conventions": "dip direction 0-360 clockwise from grid north of the CRS; dip 0-90 from "
-                       "horizontal; strike by the right-hand rule (dip to the right)",
+                       "horizontal; strike by the right-hand rule (dip to the right); "
+                       "dip_direction_true is the same azimuth from true north",
         "inputs": {os.path.basename(p): file_sha256(p) for p in inputs.paths.values()},
         "caution": CAUTION,
     }
+    if model is not None:
+        m = model.summary()
+        m["uncertainty"] = ("least-squares prediction standard error" if model.kind in ("plane", "trend2")
+                            else "cross-validation RMSE scaled by distance to the nearest datum")
+        m["extrapolated_beyond_m"] = model.reach_m
+        if inputs.boreholes_xyz is not None:
+            bm = model.borehole_misfit_m()
+            m["boreholes"] = {"n": int(len(bm)), "max_abs_misfit_m": float(np.max(np.abs(bm))) if len(bm) else None,
+                              "sigma_m": opts.borehole_sigma_m}
+        if inputs.orientations is not None:
+            m["orientations"] = {"n": int(len(inputs.orientations)), "sigma_deg": opts.orientation_sigma_deg}
+        summary["model"] = m
+    if groups:
+        summary["groups"] = {"field": opts.group_by, "planes": groups}
+    if attitudes is not None:
+        q, counts = np.unique(np.asarray(attitudes.quality, dtype=str), return_counts=True)
+        summary["attitudes"] = {"n": int(len(attitudes.x)), "window_m": attitudes.window_m,
+                                "method": attitudes.method,
+                                "by_quality": {str(a): int(b) for a, b in zip(q, counts)}}
+    if segments is not None:
+        summary["contact_misfit"] = {"segment_m": SEGMENT_CELLS * min(inputs.dem_grid.cell_x_m, inputs.dem_grid.cell_y_m),
+                                     "flag_m": flag_m, "n_segments": int(len(segments["geoms"])),
+                                     "n_flagged": int(np.sum(segments["flagged"]))}
+    if trace_flags is not None and len(trace_flags):
+        summary["predicted_trace"] = {"n_lines": int(len(trace_flags)), "n_extrapolated": int(np.sum(trace_flags))}
+    if thickness is not None:
+        thickness["n_top_picks"] = n_top_picks
+        summary["thickness"] = thickness
+    return _clean(summary)
 
 
 # --------------------------------------------------------------------------- writing
@@ -296,23 +679,56 @@ def write_results(results: Results, out_dir, *, overwrite: bool = False) -> Path
     return out
 
 
+def _picks_layer(name: str, p: PickSet) -> LayerOut:
+    return LayerOut(name, shapely.points(p.xyz), {"contact_id": p.contact_id.astype(np.int64),
+                                                  "source": p.source.astype(str),
+                                                  "elevation_m": p.xyz[:, 2]}, ogr.wkbPoint25D)
+
+
+def _attitudes_layer(a: LocalAttitudes) -> LayerOut:
+    cid = np.array([-1 if c is None else int(c) for c in a.contact_id], dtype=np.int64)
+    return LayerOut("attitudes", shapely.points(np.column_stack([a.x, a.y])), {
+        "dip": np.asarray(a.dip_deg, float), "dip_direction": np.asarray(a.dip_direction_deg, float),
+        "strike_rhr": np.asarray(a.strike_rhr_deg, float), "dip_ci95": np.asarray(a.dip_ci95_deg, float),
+        "dip_direction_ci95": np.asarray(a.dip_direction_ci95_deg, float),
+        "n_picks": np.asarray(a.n_picks, np.int64), "quality": np.asarray(a.quality, str),
+        "reason": np.asarray(a.reason_code, str), "window_kind": np.asarray(a.kind, str),
+        "contact_id": cid, "window_m": np.full(len(a.x), float(a.window_m)),
+    }, ogr.wkbPoint)
+
+
 def _write_all(r: Results, folder: Path) -> None:
     g = r.grid
     write_geotiff(folder / "surface.tif", r.surface, g)
     write_geotiff(folder / "dip.tif", r.dip_deg, g)
     write_geotiff(folder / "dip_direction.tif", r.dip_direction_deg, g)
+    if r.uncertainty_m is not None:
+        write_geotiff(folder / "uncertainty.tif", r.uncertainty_m, g)
     if r.depth_m is not None:
         write_geotiff(folder / "depth.tif", r.depth_m, g)
-    p = r.picks
-    pts = shapely.points(p.xyz)
+    if r.vertical_thickness_m is not None:
+        write_geotiff(folder / "vertical_thickness.tif", r.vertical_thickness_m, g)
+        write_geotiff(folder / "true_thickness.tif", r.true_thickness_m, g)
+    cflags = r.contour_extrapolated if r.contour_extrapolated is not None else np.zeros(len(r.contour_geoms), bool)
+    tflags = r.trace_extrapolated if r.trace_extrapolated is not None else np.zeros(len(r.trace_geoms), bool)
     layers = [
-        LayerOut("picks", pts, {"contact_id": p.contact_id.astype(np.int64), "source": p.source.astype(str),
-                                "elevation_m": p.xyz[:, 2]}, ogr.wkbPoint25D),
+        _picks_layer("picks", r.picks),
         LayerOut("structure_contours", shapely.force_3d(r.contour_geoms, r.contour_elevations_m)
                  if len(r.contour_geoms) else r.contour_geoms,
-                 {"elevation": np.asarray(r.contour_elevations_m, dtype=float)}, ogr.wkbLineString25D),
-        LayerOut("predicted_trace", r.trace_geoms, {}, ogr.wkbLineString),
+                 {"elevation": np.asarray(r.contour_elevations_m, dtype=float),
+                  "extrapolated": np.asarray(cflags, dtype=bool)}, ogr.wkbLineString25D),
+        LayerOut("predicted_trace", r.trace_geoms, {"extrapolated": np.asarray(tflags, dtype=bool)},
+                 ogr.wkbLineString),
     ]
+    if r.contact_misfit is not None:
+        cm = r.contact_misfit
+        layers.append(LayerOut("contact_misfit", cm["geoms"], {
+            "contact_id": cm["contact_id"], "misfit_m": cm["misfit_m"], "flagged": cm["flagged"]},
+            ogr.wkbLineString))
+    if r.attitudes is not None:
+        layers.append(_attitudes_layer(r.attitudes))
+    if r.top_picks is not None:
+        layers.append(_picks_layer("top_picks", r.top_picks))
     write_gpkg(folder / "results.gpkg", layers, g.crs_wkt)
     (folder / "summary.json").write_text(json.dumps(r.summary, indent=2, sort_keys=True) + "\n")
 
