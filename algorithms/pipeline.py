@@ -527,8 +527,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
         twhat = f"picks on top contacts '{inputs.paths['top_contacts']}'"
         top_picks = collect_picks(inputs, contacts=inputs.top_contacts, log=log, is_cancelled=is_cancelled)
         fit_picks(top_picks, what=twhat)
-        top_opts = RunOptions(**{**opts.__dict__})
-        top_model = model_surface(top_picks, top_opts, grid, what=twhat, is_cancelled=is_cancelled)
+        top_model = model_surface(top_picks, opts, grid, what=twhat, is_cancelled=is_cancelled)
         top_surface = top_model.evaluate_grid(grid, is_cancelled=is_cancelled)
         from strikeline.thickness import isopach_grids
 
