@@ -5,11 +5,11 @@ import os
 import sys
 
 from strikeline import CAUTION, __version__
-from strikeline.cli import demo, run
+from strikeline.cli import attitude, demo, run, thickness
 from strikeline.cli.options import OneLineParser
 from strikeline.errors import CancelledError, StrikelineError, one_line
 
-SUBCOMMANDS = (run, demo)
+SUBCOMMANDS = (run, demo, attitude, thickness)
 
 
 def build_parser() -> OneLineParser:

@@ -1,0 +1,355 @@
+"""``strikeline thickness``: true thickness of a unit from arguments, or isopach grids.
+
+Four cases, each a sub-command, with units in the option names:
+
+* ``outcrop``  -- outcrop width perpendicular to strike, dip, and the ground slope;
+* ``points``   -- a point on the top and a point on the base, and the attitude;
+* ``borehole`` -- the drilled length of the unit, the hole's azimuth and plunge, and the attitude;
+* ``grids``    -- two surface grids (top and base) -> ``vertical_thickness.tif`` and
+  ``true_thickness.tif`` and the unit's mean thickness with its spread.
+
+``strikeline thickness --grids TOP.tif BASE.tif --out DIR`` is the same as ``grids``. Each case
+prints the result with the formula used and its reference; the maths is in
+:mod:`strikeline.thickness`.
+"""
+from __future__ import annotations
+
+import argparse
+import math
+import os
+import shutil
+import sys
+import uuid
+from pathlib import Path
+
+from strikeline import CAUTION
+from strikeline.cli.options import EPILOG, OneLineParser, finite_number, non_negative_metres
+from strikeline.errors import InputError, OutputError
+
+HELP = "true thickness of a unit from outcrop width, two points, a borehole, or two surface grids"
+
+RAGAN = ("Ragan, D. M. (2009), Structural Geology: An Introduction to Geometrical Techniques, 4th ed., "
+         "Cambridge University Press")
+ROWLAND = ("Rowland, S. M., Duebendorfer, E. M. & Schiefelbein, I. M. (2007), Structural Analysis and "
+           "Synthesis, 3rd ed., Blackwell")
+ZEVENBERGEN = ("Zevenbergen, L. W. & Thorne, C. R. (1987), Quantitative analysis of land surface "
+               "topography, Earth Surface Processes and Landforms 12(1), 47-56, doi:10.1002/esp.3290120107")
+
+#: A hole within this angle of the bedding gives a thickness very sensitive to the attitude.
+_SHALLOW_INTERCEPT_DEG = 10.0
+
+SLOPE_SENSES = {"against-dip": "against_dip", "with-dip": "with_dip"}
+WIDTH_KINDS = ("slope", "horizontal")
+
+
+def _degrees(lo: float, hi: float, *, hi_open: bool = False):
+    """An argparse type: an angle in degrees within [lo, hi] (or [lo, hi))."""
+    def parse(text: str) -> float:
+        v = finite_number(text)
+        if not (lo <= v and (v < hi if hi_open else v <= hi)):
+            raise argparse.ArgumentTypeError(
+                f"expected degrees in [{lo:g}, {hi:g}{')' if hi_open else ']'}, got {text!r}")
+        return v
+    return parse
+
+
+def _azimuth(text: str) -> float:
+    return finite_number(text) % 360.0
+
+
+def add_parser(sub) -> argparse.ArgumentParser:
+    p = sub.add_parser(
+        "thickness", help=HELP, epilog=EPILOG,
+        description=HELP + ". Choose a case: outcrop, points, borehole or grids "
+                           "(see 'strikeline thickness CASE --help'); "
+                           "'strikeline thickness --grids TOP.tif BASE.tif --out DIR' is the grids case.")
+    p.add_argument("--grids", nargs=2, metavar=("TOP.tif", "BASE.tif"),
+                   help="the grids case: top and base surface grids (the same as 'thickness grids')")
+    p.add_argument("--out", metavar="DIR", help="with --grids: folder to create for the two thickness grids")
+    p.add_argument("--overwrite", action="store_true", help="with --grids: replace an existing output folder")
+    p.set_defaults(handler=main, case=None, run_case=None)
+    cases = p.add_subparsers(dest="case", metavar="CASE", parser_class=OneLineParser)
+
+    o = cases.add_parser("outcrop", epilog=EPILOG,
+                         help="from the outcrop width measured perpendicular to strike",
+                         description="True thickness from the outcrop width measured perpendicular to "
+                                     "strike, on flat or sloping ground.")
+    o.add_argument("--width-m", type=non_negative_metres, required=True, metavar="METRES",
+                   help="outcrop width between the top and base contacts, perpendicular to strike")
+    o.add_argument("--dip-deg", type=_degrees(0, 90), required=True, metavar="DEG", help="dip of the unit")
+    o.add_argument("--ground-slope-deg", type=_degrees(0, 90, hi_open=True), default=0.0, metavar="DEG",
+                   help="ground slope along the width measurement (default 0: flat ground)")
+    o.add_argument("--slope-sense", choices=tuple(SLOPE_SENSES),
+                   help="which way the ground descends: against-dip (opposite to the dip, as on a scarp "
+                        "slope) or with-dip (in the dip direction, as on a dip slope); needed on sloping ground")
+    o.add_argument("--width-kind", choices=WIDTH_KINDS, default="slope",
+                   help="slope: the width is measured along the ground (default); horizontal: on the map")
+    o.set_defaults(run_case=_outcrop)
+
+    pt = cases.add_parser("points", epilog=EPILOG, help="from a point on the top and a point on the base",
+                          description="Exact true thickness from any point on the top and any point on the "
+                                      "base of a planar unit of known attitude.")
+    pt.add_argument("--top", type=finite_number, nargs=3, required=True, metavar=("X", "Y", "Z"),
+                    help="a point on the top of the unit (metres, projected CRS)")
+    pt.add_argument("--base", type=finite_number, nargs=3, required=True, metavar=("X", "Y", "Z"),
+                    help="a point on the base of the unit (metres, same CRS)")
+    _add_attitude(pt)
+    pt.set_defaults(run_case=_points)
+
+    b = cases.add_parser("borehole", epilog=EPILOG, help="from the drilled length of the unit in a straight hole",
+                         description="True thickness from the length of a straight borehole between the top "
+                                     "and base of a planar unit.")
+    b.add_argument("--length-m", type=non_negative_metres, required=True, metavar="METRES",
+                   help="length of hole between the top and base of the unit, along the hole")
+    b.add_argument("--hole-azimuth-deg", type=_azimuth, required=True, metavar="DEG",
+                   help="azimuth of the hole's downward direction, clockwise from grid north")
+    b.add_argument("--hole-plunge-deg", type=_degrees(0, 90), required=True, metavar="DEG",
+                   help="plunge of the hole below horizontal (90 = vertical hole)")
+    _add_attitude(b)
+    b.set_defaults(run_case=_borehole)
+
+    g = cases.add_parser("grids", epilog=EPILOG, help="isopachs between a top and a base surface grid",
+                         description="Vertical and true thickness grids between a top and a base surface "
+                                     "grid on the same grid (transform, shape, CRS).")
+    g.add_argument("--top", required=True, metavar="TOP.tif", help="elevation grid of the top of the unit")
+    g.add_argument("--base", required=True, metavar="BASE.tif", help="elevation grid of the base of the unit")
+    g.add_argument("--out", required=True, metavar="DIR",
+                   help="folder to create for vertical_thickness.tif and true_thickness.tif")
+    g.add_argument("--overwrite", action="store_true", help="replace an existing output folder")
+    g.set_defaults(run_case=_grids_case)
+    return p
+
+
+def _add_attitude(p) -> None:
+    p.add_argument("--dip-deg", type=_degrees(0, 90), required=True, metavar="DEG", help="dip of the unit")
+    p.add_argument("--dip-direction-deg", type=_azimuth, required=True, metavar="DEG",
+                   help="dip direction of the unit, clockwise from grid north")
+
+
+def _say(*lines, stream=None) -> None:
+    for line in lines:
+        print(line, file=stream or sys.stdout)
+
+
+# --------------------------------------------------------------------------- cases from arguments
+def _outcrop(args) -> int:
+    from strikeline.thickness import thickness_from_outcrop_width, vertical_thickness
+
+    slope = args.ground_slope_deg
+    if slope > 0 and args.slope_sense is None:
+        raise InputError(
+            f"--ground-slope-deg {slope:g} needs --slope-sense: against-dip when the ground descends "
+            "opposite to the dip, with-dip when it descends in the dip direction"
+        )
+    sense = SLOPE_SENSES.get(args.slope_sense) if slope > 0 else None
+    t = float(thickness_from_outcrop_width(args.width_m, args.dip_deg, ground_slope_deg=slope,
+                                           slope_sense=sense, width_kind=args.width_kind))
+    v = float(vertical_thickness(t, args.dip_deg))
+    if slope == 0:
+        formula = "t = w * sin(dip), flat ground"
+    elif sense == "against_dip":
+        formula = "t = w * sin(dip + slope), ground descending against the dip"
+    else:
+        formula = "t = w * |sin(dip - slope)|, ground descending with the dip"
+    kind = ("measured along the ground" if args.width_kind == "slope" or slope == 0
+            else f"measured on the map, turned into the slope distance w = h / cos(slope) = "
+                 f"{args.width_m / math.cos(math.radians(slope)):.3f} m")
+    _say(f"true thickness: {t:.3f} m",
+         f"vertical thickness: {_metres(v)} (t / cos(dip): what a vertical hole through the unit drills)",
+         f"formula: {formula}; w = {args.width_m:g} m perpendicular to strike ({kind}), "
+         f"dip = {args.dip_deg:g} deg" + (f", slope = {slope:g} deg" if slope else ""),
+         f"reference: {RAGAN}; {ROWLAND}")
+    return 0
+
+
+def _points(args) -> int:
+    import numpy as np
+
+    from strikeline.orientation import normal_from_dip
+    from strikeline.thickness import thickness_between_points, vertical_thickness
+
+    top = np.array(args.top)
+    base = np.array(args.base)
+    t = float(thickness_between_points(top, base, args.dip_direction_deg, args.dip_deg))
+    n = normal_from_dip(args.dip_direction_deg, args.dip_deg)
+    if float(np.dot(top - base, n)) < 0:
+        print("warning: the --top point lies below the --base point across the bedding "
+              "((top - base) . n < 0); check that the two are not swapped, or whether the beds are "
+              "overturned", file=sys.stderr)
+    _say(f"true thickness: {t:.3f} m",
+         f"vertical thickness: {_metres(float(vertical_thickness(t, args.dip_deg)))} (t / cos(dip))",
+         f"straight distance between the points: {float(np.linalg.norm(top - base)):.3f} m",
+         "formula: t = |(p_top - p_base) . n|, n = (sin(dip) sin(dd), sin(dip) cos(dd), cos(dip)) the "
+         f"bedding's unit normal; dip = {args.dip_deg:g} deg, dd = {args.dip_direction_deg:g} deg",
+         f"reference: {RAGAN} (thickness by vector methods)")
+    return 0
+
+
+def _borehole(args) -> int:
+    import numpy as np
+
+    from strikeline.orientation import normal_from_dip, vector_from_trend_plunge
+    from strikeline.thickness import thickness_from_borehole
+
+    t = float(thickness_from_borehole(args.length_m, args.hole_azimuth_deg, args.hole_plunge_deg,
+                                      args.dip_direction_deg, args.dip_deg))
+    cosine = abs(float(np.dot(vector_from_trend_plunge(args.hole_azimuth_deg, args.hole_plunge_deg),
+                              normal_from_dip(args.dip_direction_deg, args.dip_deg))))
+    angle = math.degrees(math.asin(min(1.0, cosine)))
+    if angle < _SHALLOW_INTERCEPT_DEG:
+        print(f"warning: the hole runs within {angle:.1f} deg of the bedding, so the thickness is very "
+              "sensitive to errors in the hole's direction and the bed's attitude", file=sys.stderr)
+    _say(f"true thickness: {t:.3f} m",
+         f"angle between the hole and the bedding: {angle:.2f} deg",
+         "formula: t = L * |b . n|, b = (cos(plunge) sin(az), cos(plunge) cos(az), -sin(plunge)) the "
+         "hole's downward unit vector, n = (sin(dip) sin(dd), sin(dip) cos(dd), cos(dip)) the bedding's "
+         f"unit normal; L = {args.length_m:g} m, az = {args.hole_azimuth_deg:g} deg, plunge = "
+         f"{args.hole_plunge_deg:g} deg, dip = {args.dip_deg:g} deg, dd = {args.dip_direction_deg:g} deg",
+         f"reference: {RAGAN} (thickness from drill holes; vector geometry)")
+    return 0
+
+
+def _metres(v: float) -> str:
+    return "infinite (vertical unit)" if not math.isfinite(v) else f"{v:.3f} m"
+
+
+# --------------------------------------------------------------------------- grids
+def _grids_case(args) -> int:
+    return grids(args.top, args.base, args.out, overwrite=args.overwrite)
+
+
+def _check_out_folder(out: str, overwrite: bool, inputs) -> Path:
+    path = Path(out)
+    if path.exists() and not path.is_dir():
+        raise OutputError(f"--out '{out}' exists and is not a folder; name a folder to create")
+    if path.exists() and not overwrite:
+        raise OutputError(f"output folder '{out}' already exists; add --overwrite to replace it, or name a new folder")
+    parent = path.resolve().parent
+    if not parent.is_dir():
+        raise OutputError(f"cannot create '{out}': the folder '{parent}' does not exist; create it first")
+    for p in inputs:
+        if path.exists() and Path(p).resolve().is_relative_to(path.resolve()):
+            raise OutputError(f"input '{p}' lies inside the output folder '{out}', which --overwrite would "
+                              "delete; write the results to another folder")
+    return path
+
+
+def _same_grid(top_path, gt, base_path, gb) -> None:
+    from strikeline.io.crs import crs_label, same_crs, srs_from_wkt
+
+    st, sb = srs_from_wkt(gt.crs_wkt), srs_from_wkt(gb.crs_wkt)
+    tol = 1e-6 * min(gt.cell_x_m, gt.cell_y_m)
+    differs = []
+    if gt.shape != gb.shape:
+        differs.append(f"{gt.rows} x {gt.cols} vs {gb.rows} x {gb.cols} cells")
+    if any(abs(a - b) > tol for a, b in zip(gt.transform, gb.transform)):
+        differs.append(f"origin ({gt.transform[0]:g}, {gt.transform[3]:g}) and cells {gt.cell_x_m:g} x "
+                       f"{gt.cell_y_m:g} m vs ({gb.transform[0]:g}, {gb.transform[3]:g}) and "
+                       f"{gb.cell_x_m:g} x {gb.cell_y_m:g} m")
+    if not same_crs(st, sb):
+        differs.append(f"CRS {crs_label(st)} vs {crs_label(sb)}")
+    if differs:
+        xmin, ymin, xmax, ymax = gt.bounds
+        raise InputError(
+            f"top surface '{top_path}' and base surface '{base_path}' are not on the same grid "
+            f"({'; '.join(differs)}); resample one onto the other, e.g. gdalwarp -t_srs {crs_label(st)} "
+            f"-te {xmin:.10g} {ymin:.10g} {xmax:.10g} {ymax:.10g} -ts {gt.cols} {gt.rows} -r bilinear "
+            f"'{base_path}' base_on_top_grid.tif"
+        )
+
+
+def _spread(a) -> dict:
+    import numpy as np
+
+    v = a[np.isfinite(a)]
+    return {"mean": float(v.mean()), "std": float(v.std()), "p10": float(np.percentile(v, 10)),
+            "p90": float(np.percentile(v, 90)), "n_cells": int(v.size)}
+
+
+def _write_folder(out: Path, arrays: dict, grid, *, overwrite: bool) -> None:
+    """Write GeoTIFFs into ``out`` atomically: a temporary sibling folder renamed into place."""
+    from strikeline.io.raster import write_geotiff
+
+    parent = out.resolve().parent
+    tmp = parent / f".{out.name}.part-{uuid.uuid4().hex[:8]}"
+    try:
+        tmp.mkdir()
+    except OSError as exc:
+        raise OutputError(f"cannot create '{out}': {exc.strerror}; choose a writable folder") from None
+    try:
+        for name, arr in arrays.items():
+            write_geotiff(tmp / name, arr, grid)
+        if out.exists():
+            if not overwrite:
+                raise OutputError(f"output folder '{out}' already exists; add --overwrite to replace it")
+            old = parent / f".{out.name}.old-{uuid.uuid4().hex[:8]}"
+            os.replace(out, old)
+            os.replace(tmp, out)
+            shutil.rmtree(old, ignore_errors=True)
+        else:
+            os.replace(tmp, out)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+
+
+def grids(top_path: str, base_path: str, out: str, *, overwrite: bool = False, stream=None) -> int:
+    """The grids case: read, check, compute, write atomically, report."""
+    import numpy as np
+
+    from strikeline.io.raster import read_raster
+    from strikeline.thickness import isopach_grids
+
+    out_path = _check_out_folder(out, overwrite, (top_path, base_path))
+    top, gt = read_raster(top_path, label="top surface")
+    base, gb = read_raster(base_path, label="base surface")
+    _same_grid(top_path, gt, base_path, gb)
+    vertical, true = isopach_grids(top, base, gt)
+    if not np.isfinite(true).any():
+        raise InputError(
+            f"top surface '{top_path}' and base surface '{base_path}' share no cell where both have a "
+            "value (and the base a dip); give surfaces that overlap"
+        )
+    n_neg = int(np.count_nonzero(vertical < 0))
+    if n_neg:
+        print(f"warning: in {n_neg} cells the top lies below the base (negative thickness): the two "
+              "surfaces cross there, or --top and --base are swapped", file=sys.stderr)
+    _write_folder(out_path, {"vertical_thickness.tif": vertical, "true_thickness.tif": true},
+                  gt.with_nodata(None), overwrite=overwrite)
+    sv, st = _spread(vertical), _spread(true)
+
+    def line(name, s):
+        return (f"{name}: mean {s['mean']:.3f} m, std {s['std']:.3f} m, p10 {s['p10']:.3f} m, "
+                f"p90 {s['p90']:.3f} m over {s['n_cells']} cells")
+
+    _say(f"top surface '{top_path}', base surface '{base_path}': {gt.rows} x {gt.cols} cells of "
+         f"{gt.cell_x_m:g} x {gt.cell_y_m:g} m",
+         line("vertical thickness", sv),
+         line("true thickness", st),
+         "formula: vertical = top - base; true = vertical * cos(dip of the base), the base's local dip "
+         "from central differences (exact for a top parallel to the base); std over cells, p10/p90 "
+         "the 10th and 90th percentiles",
+         f"reference: {RAGAN} (vertical thickness); {ZEVENBERGEN}",
+         f"written to {out}/ (vertical_thickness.tif, true_thickness.tif)",
+         CAUTION, stream=stream)
+    return 0
+
+
+def main(args) -> int:
+    if args.run_case is not None:
+        if args.grids is not None:
+            raise InputError(f"--grids and the {args.case} case exclude each other; give one of them")
+        if args.case != "grids" and (args.out is not None or args.overwrite):
+            raise InputError(f"--out and --overwrite belong to the grids case, not to {args.case}")
+        return args.run_case(args)
+    if args.grids is None:
+        if args.out is not None or args.overwrite:
+            raise InputError("--out and --overwrite belong to the grids case: strikeline thickness --grids "
+                             "TOP.tif BASE.tif --out DIR")
+        raise InputError("choose a case: strikeline thickness outcrop | points | borehole | grids ... "
+                         "(or --grids TOP.tif BASE.tif --out DIR); see 'strikeline thickness --help'")
+    if args.out is None:
+        raise InputError("--grids TOP.tif BASE.tif needs --out DIR, the folder to create for "
+                         "vertical_thickness.tif and true_thickness.tif")
+    top, base = args.grids
+    return grids(top, base, args.out, overwrite=args.overwrite)
