@@ -1,0 +1,265 @@
+"""``strikeline attitude``: the best-fit plane of a points layer, with its confidence and quality.
+
+The points are any layer of points with elevations: the Z of Point Z geometries (such as the
+``picks`` layer of ``strikeline run``'s ``results.gpkg``) or a numeric field named with
+``--z-field``. The plane is the total-least-squares fit, its 95% half-widths come from a
+bootstrap of the points (plus a Monte Carlo of ``--dem-sigma`` when it is given) and its
+quality from the eigenvalue shape measures; see :func:`strikeline.pipeline.attitude_of`.
+
+Exit status: 0 when a verdict was reached, *including* ``undetermined`` (the verdict is the
+answer: the points cannot fix a plane, and the report says why and what data would help);
+2 for unusable input (missing file, no elevations, a field that is not numeric, an output that
+exists without ``--overwrite``).
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import sys
+import uuid
+from pathlib import Path
+
+from strikeline import CAUTION
+from strikeline.cli.options import EPILOG, non_negative_metres
+from strikeline.errors import InputError, OutputError
+
+HELP = "best-fit plane of a points layer with elevations: attitude, 95% confidence and quality"
+
+#: The dip direction half-width that means "undetermined within the confidence".
+_DD_UNDETERMINED = 180.0
+
+DESCRIPTION = (
+    HELP + ". Elevations come from the Z of Point Z geometries (the 'picks' layer of strikeline "
+    "run's results.gpkg has them) or from a numeric field (--z-field). Exit status 0 also when "
+    "the plane is undetermined: the report then gives the reason and what data would help, and "
+    "no attitude."
+)
+
+
+def _count(minimum: int):
+    def parse(text: str) -> int:
+        try:
+            v = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
+        if v < minimum:
+            raise argparse.ArgumentTypeError(f"expected a whole number of at least {minimum}, got {text!r}")
+        return v
+    return parse
+
+
+def add_parser(sub) -> argparse.ArgumentParser:
+    p = sub.add_parser("attitude", help=HELP, description=DESCRIPTION, epilog=EPILOG)
+    g = p.add_argument_group("points")
+    g.add_argument("--points", required=True, metavar="PATH",
+                   help="point layer with elevations: GeoPackage, Shapefile, GeoJSON, ...")
+    g.add_argument("--points-layer", metavar="NAME", help="layer name inside PATH (default: the first)")
+    g.add_argument("--where", metavar="SQL", help="OGR SQL filter on the points, e.g. \"source = 'dem'\"")
+    g.add_argument("--z-field", metavar="NAME",
+                   help="numeric field with each point's elevation in metres (default: the geometries' Z)")
+    g.add_argument("--group-by", metavar="FIELD",
+                   help="also fit one plane per value of this field (unit, contact name, ...)")
+    c = p.add_argument_group("confidence")
+    c.add_argument("--dem-sigma", type=non_negative_metres, default=0.0, metavar="METRES", dest="dem_sigma_m",
+                   help="vertical standard error of the elevations, propagated by Monte Carlo "
+                        "(default 0: the points' error is unknown, so the bootstrap of the points "
+                        "alone gives the confidence; for picks from a DEM give the DEM's vertical "
+                        "RMSE, e.g. 2)")
+    c.add_argument("--resamples", type=_count(20), default=1000, metavar="N",
+                   help="bootstrap resamples and Monte Carlo draws (default 1000, at least 20)")
+    c.add_argument("--seed", type=_count(0), default=0, metavar="N",
+                   help="seed of the random draws; equal seeds give identical results (default 0)")
+    o = p.add_argument_group("output")
+    o.add_argument("--out", metavar="FILE.json", help="also write the result as JSON (deterministic bytes)")
+    o.add_argument("--overwrite", action="store_true", help="replace an existing --out file")
+    p.set_defaults(handler=main)
+    return p
+
+
+# --------------------------------------------------------------------------- inputs
+def _check_out(out: str | None, overwrite: bool, points: str) -> None:
+    """Refuse an unusable --out before any work is done."""
+    if out is None:
+        return
+    path = Path(out)
+    if path.is_dir():
+        raise OutputError(f"--out '{out}' is a folder; name a .json file to write")
+    if path.exists() and not overwrite:
+        raise OutputError(f"output file '{out}' already exists; add --overwrite to replace it, or name a new file")
+    if not path.resolve().parent.is_dir():
+        raise OutputError(f"cannot write '{out}': the folder '{path.resolve().parent}' does not exist; create it first")
+    if os.path.exists(points) and path.exists() and path.resolve() == Path(points).resolve():
+        raise OutputError(f"--out '{out}' is the points file itself; name another file")
+
+
+def load_points(args):
+    """Read the points and their elevations -> (layer, xyz, labels or None, elevation source)."""
+    import numpy as np
+    import shapely
+
+    from strikeline.io.vector import read_layer
+
+    layer = read_layer(args.points, layer=args.points_layer, where=args.where, label="points",
+                       geometry="point", layer_option="--points-layer")
+    xy, index = shapely.get_coordinates(layer.geoms, return_index=True)
+    if args.z_field:
+        z = layer.numeric_field(args.z_field, option="--z-field")[index]
+        source = f"field '{args.z_field}'"
+    else:
+        z = layer.z[index]
+        source = "the geometries' Z"
+        if not np.isfinite(z).any():
+            numeric = [n for n, t in layer.field_types.items() if t in ("Integer", "Integer64", "Real")]
+            raise InputError(
+                f"points {layer.what} have no Z (2-D geometries) and no --z-field was given; name "
+                f"the numeric field that holds each point's elevation with --z-field (numeric "
+                f"fields: {', '.join(numeric) or 'none'}), or give Point Z geometries"
+            )
+    if not np.isfinite(z).any():
+        raise InputError(
+            f"field '{args.z_field}' of points {layer.what} holds no elevation (all null); name the "
+            "field that holds the elevations with --z-field"
+        )
+    labels = None
+    if args.group_by:
+        if args.group_by not in layer.fields:
+            raise InputError(
+                f"points {layer.what} have no field '{args.group_by}' (fields: "
+                f"{', '.join(layer.fields) or 'none'}); name the grouping field with --group-by"
+            )
+        # str() of the value, as strikeline run labels its groups
+        labels = np.array([str(v) for v in layer.fields[args.group_by][index]], dtype=object)
+    xyz = np.column_stack([xy, z])
+    return layer, xyz, labels, source
+
+
+# --------------------------------------------------------------------------- computing
+def compute(args, *, log=lambda m: print(m, file=sys.stderr)) -> dict:
+    """Everything ``attitude`` reports, as a JSON-ready dict (rounded floats, null for inf/NaN)."""
+    import numpy as np
+
+    from strikeline import __version__
+    from strikeline.io.crs import crs_label
+    from strikeline.pipeline import RunOptions, _clean, attitude_of, file_sha256
+
+    layer, xyz, labels, source = load_points(args)
+    usable = np.all(np.isfinite(xyz), axis=1)
+    n_missing = int((~usable).sum())
+    if n_missing:
+        log(f"warning: {n_missing} of {len(xyz)} points have no elevation ({source} is empty) "
+            "and are left out")
+    xyz = xyz[usable]
+    labels = None if labels is None else labels[usable]
+    crs_wkt = layer.srs.ExportToWkt()
+    opts = RunOptions(contacts=args.points, out=args.out or "", resamples=args.resamples, seed=args.seed,
+                      dem_sigma_m=args.dem_sigma_m)
+    sigma_all = None if args.dem_sigma_m == 0 else np.full(len(xyz), args.dem_sigma_m)
+
+    def plane_of(mask, what):
+        sigma = None if sigma_all is None else sigma_all[mask]
+        return attitude_of(xyz[mask], sigma, opts, crs_wkt, what=what, strict=False)
+
+    result = {
+        "version": __version__,
+        "crs": crs_label(layer.srs),
+        "points": {"file": os.path.basename(args.points), "sha256": file_sha256(args.points),
+                   "layer": layer.layer_name, "where": args.where, "elevation_from": source},
+        "n_points": int(len(xyz)),
+        "n_points_without_elevation": n_missing,
+        "options": {"dem_sigma_m": args.dem_sigma_m, "resamples": args.resamples, "seed": args.seed,
+                    "group_by": args.group_by},
+        "plane": plane_of(np.ones(len(xyz), dtype=bool), f"points {layer.what}"),
+        "conventions": "dip direction 0-360 clockwise from grid north of the CRS (dip_direction_true "
+                       "from true north); dip 0-90 from horizontal; strike by the right-hand rule "
+                       "(dip to the right); *_ci95 are 95% half-widths in degrees",
+        "caution": CAUTION,
+    }
+    if labels is not None:
+        result["groups"] = {g: plane_of(labels == g, f"group {args.group_by} = {g}")
+                            for g in sorted(set(labels.tolist()))}
+    return _clean(result)
+
+
+# --------------------------------------------------------------------------- reporting
+def _method_words(pl: dict, options: dict) -> str:
+    method = pl.get("confidence_method") or ""
+    parts = []
+    if "bootstrap" in method:
+        parts.append(f"a bootstrap of the points ({options['resamples']} resamples, seed {options['seed']})")
+    if "monte_carlo" in method:
+        parts.append(f"a Monte Carlo of the {options['dem_sigma_m']:g} m vertical error (--dem-sigma)")
+    return " and ".join(parts) or method
+
+
+def _plane_lines(title: str, pl: dict, options: dict) -> list[str]:
+    n = pl.get("n_picks", 0)
+    q = pl["quality"]
+    if q == "undetermined":
+        return [f"{title} ({n} points): undetermined - no attitude can be given",
+                f"  why: {pl['reason']}",
+                f"  {pl['advice'] or 'data that would help: more points that spread in two directions'}"]
+
+    def pm(v):
+        if v is None:
+            return "(no confidence)"
+        return f"+/- {v:.1f}" if v >= 1 else (f"+/- {v:.2f}" if v >= 0.01 else f"+/- {v:.3f}")
+
+    dd_ci = pl.get("dip_direction_ci95")
+    lines = [f"{title} ({n} points): {q}"]
+    if dd_ci is not None and dd_ci >= _DD_UNDETERMINED:
+        lines.append(f"  dip {pl['dip']:.2f} {pm(pl['dip_ci95'])} deg; dip direction undetermined within "
+                     f"the 95% confidence (estimate {pl['dip_direction']:.1f} deg from grid north, "
+                     f"{pl['dip_direction_true']:.1f} deg from true north): the plane is nearly horizontal")
+    else:
+        lines.append(f"  dip {pl['dip']:.2f} {pm(pl['dip_ci95'])} deg toward {pl['dip_direction']:.2f} "
+                     f"{pm(dd_ci)} deg from grid north")
+        lines.append(f"  dip direction from true north {pl['dip_direction_true']:.2f} {pm(dd_ci)} deg "
+                     f"(meridian convergence {pl['meridian_convergence_deg']:+.3f} deg at the points' centre)")
+    lines.append(f"  strike {pl['strike_rhr']:.2f} deg (right-hand rule, grid north)")
+    lines.append(f"  RMS residual {pl['rms_m']:.2f} m; 95% half-widths from {_method_words(pl, options)}")
+    lines.append(f"  why {q}: {pl['reason']}")
+    if pl.get("advice"):
+        lines.append(f"  {pl['advice']}")
+    return lines
+
+
+def report(result: dict, stream=sys.stdout) -> None:
+    p = result["points"]
+    print(f"points: {result['n_points']} from layer '{p['layer']}' of '{p['file']}' "
+          f"(elevations from {p['elevation_from']}; {result['crs']})", file=stream)
+    for line in _plane_lines("best-fit plane of all points", result["plane"], result["options"]):
+        print(line, file=stream)
+    field = result["options"]["group_by"]
+    for g, pl in result.get("groups", {}).items():
+        for line in _plane_lines(f"group {field} = {g}", pl, result["options"]):
+            print(line, file=stream)
+
+
+def write_json(result: dict, out: str, *, overwrite: bool) -> None:
+    """Write ``result`` to ``out`` atomically (temporary sibling, then rename)."""
+    path = Path(out)
+    if path.exists() and not overwrite:
+        raise OutputError(f"output file '{out}' already exists; add --overwrite to replace it")
+    text = json.dumps(result, indent=2, sort_keys=True, allow_nan=False) + "\n"
+    tmp = path.resolve().parent / f".{path.name}.part-{uuid.uuid4().hex[:8]}"
+    try:
+        tmp.write_text(text, encoding="utf-8")
+        os.replace(tmp, path)
+    except OSError as exc:
+        raise OutputError(f"cannot write '{out}': {exc.strerror}; choose a writable folder") from None
+    finally:
+        if tmp.exists():
+            tmp.unlink()
+
+
+def main(args) -> int:
+    _check_out(args.out, args.overwrite, args.points)
+    result = compute(args)
+    if args.out:
+        write_json(result, args.out, overwrite=args.overwrite)
+    report(result)
+    if args.out:
+        print(f"written to {args.out}")
+    print(CAUTION)
+    return 0
