@@ -202,29 +202,34 @@ def _plane_lines(title: str, pl: dict, options: dict) -> list[str]:
 
     def pm(v):
         if v is None:
-            return "(no confidence)"
-        return f"+/- {v:.1f}" if v >= 1 else (f"+/- {v:.2f}" if v >= 0.01 else f"+/- {v:.3f}")
+            return ""
+        return f" +/- {v:.1f}" if v >= 1 else (f" +/- {v:.2f}" if v >= 0.01 else f" +/- {v:.3f}")
 
     dd_ci = pl.get("dip_direction_ci95")
     lines = [f"{title} ({n} points): {q}"]
     if dd_ci is not None and dd_ci >= _DD_UNDETERMINED:
-        lines.append(f"  dip {pl['dip']:.2f} {pm(pl['dip_ci95'])} deg; dip direction undetermined within "
+        lines.append(f"  dip {pl['dip']:.2f}{pm(pl['dip_ci95'])} deg; dip direction undetermined within "
                      f"the 95% confidence (estimate {pl['dip_direction']:.1f} deg from grid north, "
                      f"{pl['dip_direction_true']:.1f} deg from true north): the plane is nearly horizontal")
     else:
-        lines.append(f"  dip {pl['dip']:.2f} {pm(pl['dip_ci95'])} deg toward {pl['dip_direction']:.2f} "
+        lines.append(f"  dip {pl['dip']:.2f}{pm(pl['dip_ci95'])} deg toward {pl['dip_direction']:.2f}"
                      f"{pm(dd_ci)} deg from grid north")
-        lines.append(f"  dip direction from true north {pl['dip_direction_true']:.2f} {pm(dd_ci)} deg "
+        lines.append(f"  dip direction from true north {pl['dip_direction_true']:.2f}{pm(dd_ci)} deg "
                      f"(meridian convergence {pl['meridian_convergence_deg']:+.3f} deg at the points' centre)")
     lines.append(f"  strike {pl['strike_rhr']:.2f} deg (right-hand rule, grid north)")
-    lines.append(f"  RMS residual {pl['rms_m']:.2f} m; 95% half-widths from {_method_words(pl, options)}")
+    if pl.get("dip_ci95") is None:
+        lines.append(f"  RMS residual {pl['rms_m']:.2f} m; no 95% half-widths: {n} points fix a plane exactly "
+                     "but leave no scatter to estimate its error (a bootstrap needs at least 4); add points")
+    else:
+        lines.append(f"  RMS residual {pl['rms_m']:.2f} m; 95% half-widths from {_method_words(pl, options)}")
     lines.append(f"  why {q}: {pl['reason']}")
     if pl.get("advice"):
         lines.append(f"  {pl['advice']}")
     return lines
 
 
-def report(result: dict, stream=sys.stdout) -> None:
+def report(result: dict, stream=None) -> None:
+    stream = stream or sys.stdout
     p = result["points"]
     print(f"points: {result['n_points']} from layer '{p['layer']}' of '{p['file']}' "
           f"(elevations from {p['elevation_from']}; {result['crs']})", file=stream)
