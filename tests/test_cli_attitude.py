@@ -124,7 +124,7 @@ def test_demo_picks_recover_the_demo_plane(tmp_path, cli, demo, demo_picks):
     assert float(m.group(1)) == pytest.approx(pl["dip"], abs=0.006)
     assert float(m.group(3)) == pytest.approx(pl["dip_direction"], abs=0.006)
     assert "from true north" in proc.stdout and "strike 131." in proc.stdout
-    assert "quality" not in proc.stdout or "good" in proc.stdout
+    assert re.search(r"best-fit plane of all points \(\d+ points\): good", proc.stdout)
     assert proc.stdout.rstrip().endswith("under local codes.")
     assert "not a substitute for site investigation" in proc.stdout
 
@@ -152,6 +152,16 @@ def test_z_field_gives_the_same_plane_and_the_json_is_deterministic(tmp_path, ru
     assert ja["plane"] == jc["plane"]
     assert ja["points"]["elevation_from"] != jc["points"]["elevation_from"]
     assert sorted(p.name for p in tmp_path.iterdir()) == ["a.json", "b.json", "c.json"]  # no temp files
+
+
+def test_where_filter_matches_the_group(tmp_path, run, demo_picks):
+    a, b = tmp_path / "where.json", tmp_path / "groups.json"
+    assert run("attitude", "--points", demo_picks, "--where", "source = 'dem'", "--out", a).returncode == 0
+    assert run("attitude", "--points", demo_picks, "--group-by", "source", "--out", b).returncode == 0
+    only_dem, groups = json.loads(a.read_text()), json.loads(b.read_text())
+    assert only_dem["points"]["where"] == "source = 'dem'"
+    assert only_dem["plane"] == groups["groups"]["dem"]
+    assert only_dem["n_points"] == groups["groups"]["dem"]["n_picks"] < groups["n_points"]
 
 
 def test_dem_sigma_widens_the_half_widths(tmp_path, run):
