@@ -300,3 +300,9 @@ def test_three_points_give_a_plane_without_half_widths(tmp_path, run):
     assert _angle_diff(pl["dip_direction"], PLANE_B["dip_direction_deg"]) < 1e-3
     assert pl["dip_ci95"] is None and pl["dip_direction_ci95"] is None
     assert "no 95% half-widths" in proc.stdout and "+/-" not in proc.stdout
+
+
+@pytest.mark.parametrize("args", [["--help"], ["attitude", "--help"]])
+def test_help_is_printed(run, args):
+    proc = run(*args)
+    assert proc.returncode == 0 and "attitude" in proc.stdout and "95%" in proc.stdout

@@ -268,3 +268,11 @@ def test_crossing_surfaces_warn(tmp_path, run, planes):
     assert proc.returncode == 0
     assert "warning:" in proc.stderr and "top lies below the base" in proc.stderr
     assert _number(r"true thickness: mean (-[\d.]+) m", proc.stdout) == pytest.approx(-ISOPACH_NORMAL_M, abs=1e-3)
+
+
+@pytest.mark.parametrize("args", [["--help"], ["thickness", "--help"], ["thickness", "outcrop", "--help"],
+                                  ["thickness", "points", "--help"], ["thickness", "borehole", "--help"],
+                                  ["thickness", "grids", "--help"]])
+def test_help_is_printed(run, args):
+    proc = run(*args)
+    assert proc.returncode == 0 and "thickness" in proc.stdout and "not a substitute" in proc.stdout

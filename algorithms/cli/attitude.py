@@ -50,7 +50,8 @@ def _count(minimum: int):
 
 
 def add_parser(sub) -> argparse.ArgumentParser:
-    p = sub.add_parser("attitude", help=HELP, description=DESCRIPTION, epilog=EPILOG)
+    # argparse %-formats help strings: "95%" must be written "95%%" there
+    p = sub.add_parser("attitude", help=HELP.replace("%", "%%"), description=DESCRIPTION, epilog=EPILOG)
     g = p.add_argument_group("points")
     g.add_argument("--points", required=True, metavar="PATH",
                    help="point layer with elevations: GeoPackage, Shapefile, GeoJSON, ...")
