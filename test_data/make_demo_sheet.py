@@ -1,27 +1,57 @@
-"""Write the fictional Harnvel Moor demo sheet into ``test_data/demo/``.
+"""Write the fictional demo sheets: Harnvel Moor (``test_data/demo/``) and Tolvane Fell (``test_data/fold/``).
 
 Run from the repository root::
 
-    .venv/bin/python test_data/make_demo_sheet.py            # writes test_data/demo/
-    .venv/bin/python test_data/make_demo_sheet.py --out DIR  # writes DIR/
+    .venv/bin/python test_data/make_demo_sheet.py                  # writes both sets
+    .venv/bin/python test_data/make_demo_sheet.py --only demo      # only test_data/demo/
+    .venv/bin/python test_data/make_demo_sheet.py --only fold      # only test_data/fold/
+    .venv/bin/python test_data/make_demo_sheet.py --out DIR        # the demo set into DIR/
+    .venv/bin/python test_data/make_demo_sheet.py --fold-out DIR   # the fold set into DIR/
 
-Everything is analytic (sums of smooth functions, no random numbers), so every run gives the
-same grid values and the same line geometries. The GeoPackages are written with a fixed
-timestamp (GDAL's ``OGR_CURRENT_DATE``) so that repeated runs give the same bytes.
+The surfaces and the terrain are analytic (sums of smooth functions), so every run gives the
+same grid values and the same line geometries. The only random numbers are the "reading errors"
+of the dip measurements, drawn from a generator with a fixed seed. The GeoPackages are written
+with a fixed timestamp (GDAL's ``OGR_CURRENT_DATE``) so that repeated runs give the same bytes.
 
-Outputs
--------
+Outputs in ``demo/`` (Harnvel Moor, a planar unconformity)
+----------------------------------------------------------
 ``dem.tif``
     400 x 400 cells at 10 m, float32, DEFLATE with floating-point predictor, nodata -9999
     (a small triangle of void cells in the north-east corner, as left by a survey gap).
 ``contacts.gpkg``, layer ``contacts``
-    Outcrop trace of the sub-Harnvel unconformity: the zero line of (DEM - plane elevation),
-    traced with GDAL's contour generator, clipped out of the Mirrow Water lake (a contact under
-    water is not a mapped contact), pieces shorter than 50 m dropped.
+    Outcrop trace of the sub-Harnvel unconformity (the base of the Harnvel Sandstone
+    Formation): the zero line of (DEM - plane elevation), traced with GDAL's contour generator,
+    clipped out of the Mirrow Water lake (a contact under water is not a mapped contact),
+    pieces shorter than 50 m dropped.
+``contacts_grouped.gpkg``, layer ``contacts``
+    The same features with one more text field, ``block``, naming the two pieces the lake
+    splits the trace into (``north``, ``south``): input for ``--group-by block``.
+``top_contacts.gpkg``, layer ``top_contacts``
+    Outcrop trace of the top of the Harnvel Sandstone Formation: a plane parallel to the base,
+    ``TRUE_THICKNESS_M`` above it (normal distance), made the same way as the base trace.
+``boreholes.gpkg``, layer ``boreholes``
+    Fictional boreholes that reach the base: ``hole_id``, ``collar_m`` (bilinear DEM at the
+    collar), ``depth_m`` (vertical, collar - base plane) and ``base_z_m`` (base plane).
+``orientations.gpkg``, layer ``dip_readings``
+    Fictional compass readings of the base on its outcrop: ``site``, ``dip``, ``dip_dir``,
+    ``strike`` (right-hand rule), whole degrees, each within 2 degrees of the plane.
 ``contours.gpkg``, layer ``topo_contours``
     Topographic contours of the DEM every 10 m, field ``elev_m``.
 ``truth.json``
-    The plane and the fictional names.
+    The planes, the thickness, the boreholes, the readings and the fictional names.
+
+Outputs in ``fold/`` (Tolvane Fell, a plunging upright fold)
+------------------------------------------------------------
+``dem.tif``
+    300 x 300 cells at 10 m, otherwise as above, no voids.
+``contacts.gpkg``, layer ``contacts``
+    Outcrop trace of the base of the Cawl Limestone Formation, folded (see
+    :func:`fold_elevation`), made the same way as the Harnvel trace.
+``contours.gpkg``, layer ``topo_contours``
+    Topographic contours every 10 m, field ``elev_m``.
+``truth.json``
+    The fold formula, its parameters and its gradient (enough to evaluate the true surface and
+    the true local dip anywhere).
 
 This is a data-making script, not library code: it talks to GDAL/OGR directly.
 """
@@ -30,6 +60,7 @@ from __future__ import annotations
 import argparse
 import json
 import math
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -40,13 +71,50 @@ gdal.UseExceptions()
 ogr.UseExceptions()
 osr.UseExceptions()
 
-# ---------------------------------------------------------------- the fictional sheet
-EPSG = 32631  # WGS 84 / UTM zone 31N; the coordinates below are invented
-NCOLS = NROWS = 400
-CELL_M = 10.0
-X_WEST = 486_300.0
-Y_NORTH = 5_217_700.0
+HERE = Path(__file__).resolve().parent
 NODATA = -9999.0
+CONTOUR_INTERVAL_M = 10.0
+MIN_TRACE_LENGTH_M = 50.0
+MIN_TOPO_LENGTH_M = 1.0  # only slivers left by cutting lines back to the DEM's domain
+FIXED_TIMESTAMP = "2024-01-01T00:00:00.000Z"
+
+
+@dataclass(frozen=True)
+class Sheet:
+    """Raster layout of a sheet: ``ncols x nrows`` square cells, north-up."""
+
+    ncols: int
+    nrows: int
+    cell_m: float
+    x_west: float
+    y_north: float
+
+    @property
+    def geotransform(self):
+        return (self.x_west, self.cell_m, 0.0, self.y_north, 0.0, -self.cell_m)
+
+    def cell_centres(self):
+        """Easting and northing of every cell centre, shape (nrows, ncols) each."""
+        x = self.x_west + (np.arange(self.ncols) + 0.5) * self.cell_m
+        y = self.y_north - (np.arange(self.nrows) + 0.5) * self.cell_m
+        return np.meshgrid(x, y)
+
+    def bilinear(self, z, x, y):
+        """Bilinear interpolation of the cell-centre values ``z`` at map points (no checks)."""
+        col = (np.asarray(x, float) - self.x_west) / self.cell_m - 0.5
+        row = (self.y_north - np.asarray(y, float)) / self.cell_m - 0.5
+        c0 = np.floor(col).astype(int)
+        r0 = np.floor(row).astype(int)
+        fc, fr = col - c0, row - r0
+        return ((1 - fr) * ((1 - fc) * z[r0, c0] + fc * z[r0, c0 + 1])
+                + fr * ((1 - fc) * z[r0 + 1, c0] + fc * z[r0 + 1, c0 + 1]))
+
+
+# ================================================================ Harnvel Moor (demo/)
+EPSG = 32631  # WGS 84 / UTM zone 31N; the coordinates below are invented
+DEMO = Sheet(ncols=400, nrows=400, cell_m=10.0, x_west=486_300.0, y_north=5_217_700.0)
+# kept for readers of the original script
+NCOLS, NROWS, CELL_M, X_WEST, Y_NORTH = DEMO.ncols, DEMO.nrows, DEMO.cell_m, DEMO.x_west, DEMO.y_north
 
 # The sub-Harnvel unconformity: a plane of our own choosing.
 DIP_DEG = 18.7
@@ -55,10 +123,9 @@ REF_X = 488_412.0
 REF_Y = 5_215_583.0
 REF_Z = 607.4
 
-CONTOUR_INTERVAL_M = 10.0
-MIN_TRACE_LENGTH_M = 50.0
-MIN_TOPO_LENGTH_M = 1.0  # only slivers left by cutting lines back to the DEM's domain
-FIXED_TIMESTAMP = "2024-01-01T00:00:00.000Z"
+# The top of the Harnvel Sandstone Formation: parallel to the base, this far above it
+# (measured along the normal).
+TRUE_THICKNESS_M = 73.6
 
 NAMES = {
     "sheet": "Harnvel Moor (fictional demo sheet)",
@@ -66,6 +133,8 @@ NAMES = {
     "upper_unit": "Harnvel Sandstone Formation",
     "lower_unit": "Ostrim Schist Group",
     "contact": "base of the Harnvel Sandstone Formation",
+    "overlying_unit": "Tarlow Mudstone Formation",
+    "top_contact": "top of the Harnvel Sandstone Formation",
 }
 
 # Mirrow Water: a closed basin in the terrain, flooded to a level just below its rim.
@@ -75,19 +144,47 @@ LAKE_DEPTH_M = 42.0
 LAKE_RADIUS_M = 310.0
 DAM_HEIGHT_M = 18.0
 
+# Fictional boreholes that reached the unconformity (collar positions, invented).
+BOREHOLES = [
+    ("HMB-04", 487_452.0, 5_215_838.0),  # just down-dip of the base trace
+    ("HMB-09", 489_041.0, 5_214_688.0),  # between base and top traces, east of the lake
+    ("HMB-13", 487_963.0, 5_214_617.0),  # down-dip of the top trace
+    ("HMB-18", 486_818.0, 5_216_391.0),  # far from the trace, north-west
+    ("HMB-21", 486_643.0, 5_213_982.0),  # far from the trace, south-west corner
+]
 
-def cell_centres():
-    """Easting and northing of every cell centre, shape (NROWS, NCOLS) each."""
-    x = X_WEST + (np.arange(NCOLS) + 0.5) * CELL_M
-    y = Y_NORTH - (np.arange(NROWS) + 0.5) * CELL_M
-    return np.meshgrid(x, y)
+# Fictional compass readings of the base at outcrop: (site, contact piece, fraction along it).
+READING_SITES = [
+    ("HM-D01", 0, 0.12),
+    ("HM-D02", 0, 0.37),
+    ("HM-D03", 0, 0.61),
+    ("HM-D04", 0, 0.86),
+    ("HM-D05", 1, 0.28),
+    ("HM-D06", 1, 0.74),
+]
+READING_SEED = 3104
+READING_SPREAD_DEG = 1.5  # uniform error before rounding to whole degrees
+READING_MAX_ERROR_DEG = 2.0  # spread + half a degree of rounding
+SITE_POSITION_M = 0.1  # site coordinates rounded to a decimetre (a hand-held GNSS would do worse)
+
+BLOCK_NAMES = ("north", "south")  # the two pieces of the base trace, in file order
 
 
-def plane_elevation(x, y):
-    """Elevation (m) of the unconformity plane at (x, y)."""
+def plane_elevation(x, y, *, offset_m=0.0):
+    """Elevation (m) of the unconformity plane at (x, y), shifted up by ``offset_m``."""
     dd = math.radians(DIP_DIRECTION_DEG)
     along_dip = (x - REF_X) * math.sin(dd) + (y - REF_Y) * math.cos(dd)
-    return REF_Z - math.tan(math.radians(DIP_DEG)) * along_dip
+    return REF_Z + offset_m - math.tan(math.radians(DIP_DEG)) * along_dip
+
+
+def top_offset_m():
+    """Vertical distance from the base plane up to the top plane (true thickness / cos dip)."""
+    return TRUE_THICKNESS_M / math.cos(math.radians(DIP_DEG))
+
+
+def cell_centres():
+    """Easting and northing of every cell centre of the Harnvel sheet."""
+    return DEMO.cell_centres()
 
 
 def terrain(x, y):
@@ -155,9 +252,10 @@ def void_corner(shape):
     return (rows + (shape[1] - 1 - cols)) < 9
 
 
-def mem_raster(array, srs_wkt, nodata):
-    ds = gdal.GetDriverByName("MEM").Create("", NCOLS, NROWS, 1, gdal.GDT_Float64)
-    ds.SetGeoTransform((X_WEST, CELL_M, 0.0, Y_NORTH, 0.0, -CELL_M))
+# ================================================================ shared line making
+def mem_raster(sheet, array, srs_wkt, nodata):
+    ds = gdal.GetDriverByName("MEM").Create("", sheet.ncols, sheet.nrows, 1, gdal.GDT_Float64)
+    ds.SetGeoTransform(sheet.geotransform)
     ds.SetProjection(srs_wkt)
     band = ds.GetRasterBand(1)
     band.SetNoDataValue(nodata)
@@ -165,9 +263,9 @@ def mem_raster(array, srs_wkt, nodata):
     return ds
 
 
-def contour_lines(array, srs, *, levels=None, interval=None):
+def contour_lines(sheet, array, srs, *, levels=None, interval=None):
     """Run GDAL's contour generator; return a list of (level, shapely LineString)."""
-    ds = mem_raster(array, srs.ExportToWkt(), NODATA)
+    ds = mem_raster(sheet, array, srs.ExportToWkt(), NODATA)
     mem = ogr.GetDriverByName("Memory").CreateDataSource("")
     layer = mem.CreateLayer("c", srs, ogr.wkbLineString)
     layer.CreateField(ogr.FieldDefn("id", ogr.OFTInteger))
@@ -188,16 +286,16 @@ def contour_lines(array, srs, *, levels=None, interval=None):
     return out
 
 
-def squares_polygon(squares):
+def squares_polygon(sheet, squares):
     """Union of the squares between cell centres flagged in ``squares`` (shape rows-1, cols-1).
 
     Square ``[i, j]`` has the centres of cells ``(i, j)``, ``(i+1, j)``, ``(i, j+1)`` and
     ``(i+1, j+1)`` as its corners: the cells the bilinear surface blends inside it.
     """
     rows, cols = np.nonzero(squares)
-    x0 = X_WEST + (cols + 0.5) * CELL_M
-    y0 = Y_NORTH - (rows + 0.5) * CELL_M
-    return shapely.union_all(shapely.box(x0, y0 - CELL_M, x0 + CELL_M, y0))
+    x0 = sheet.x_west + (cols + 0.5) * sheet.cell_m
+    y0 = sheet.y_north - (rows + 0.5) * sheet.cell_m
+    return shapely.union_all(shapely.box(x0, y0 - sheet.cell_m, x0 + sheet.cell_m, y0))
 
 
 def corner_any(mask):
@@ -205,7 +303,7 @@ def corner_any(mask):
     return mask[:-1, :-1] | mask[1:, :-1] | mask[:-1, 1:] | mask[1:, 1:]
 
 
-def defined_domain(void):
+def defined_domain(sheet, void):
     """Where the DEM's bilinear surface is defined: inside the outermost cell centres and off
     every square that touches a void cell, shrunk by a millimetre.
 
@@ -215,19 +313,22 @@ def defined_domain(void):
     inside valid squares.
     """
     eps = 1e-3
-    half = CELL_M / 2
-    frame = shapely.box(X_WEST + half + eps, Y_NORTH - NROWS * CELL_M + half + eps,
-                        X_WEST + NCOLS * CELL_M - half - eps, Y_NORTH - half - eps)
-    return shapely.difference(frame, shapely.buffer(squares_polygon(corner_any(void)), eps, join_style="mitre"))
+    half = sheet.cell_m / 2
+    frame = shapely.box(sheet.x_west + half + eps, sheet.y_north - sheet.nrows * sheet.cell_m + half + eps,
+                        sheet.x_west + sheet.ncols * sheet.cell_m - half - eps, sheet.y_north - half - eps)
+    if not void.any():
+        return frame
+    return shapely.difference(frame, shapely.buffer(squares_polygon(sheet, corner_any(void)), eps,
+                                                    join_style="mitre"))
 
 
-def flat_lake_polygon(lake):
+def flat_lake_polygon(sheet, lake):
     """Polygon of the lake floor where the bilinear DEM is exactly flat.
 
     That is the union of the squares between cell centres whose four corner cells are all
     lake cells; there the trace is a straight line across water, not a mapped contact.
     """
-    return squares_polygon(~corner_any(~lake))
+    return squares_polygon(sheet, ~corner_any(~lake))
 
 
 def clipped_parts(geom, domain, min_length_m):
@@ -236,10 +337,32 @@ def clipped_parts(geom, domain, min_length_m):
     return [p for p in shapely.get_parts(clipped) if p.length >= min_length_m]
 
 
-def write_dem(path, dem, srs):
+def trace_pieces(sheet, dem64, valid, surface, srs, where):
+    """Outcrop trace of a surface: level 0 of (DEM - surface), kept inside ``where``.
+
+    Pieces shorter than ``MIN_TRACE_LENGTH_M`` are dropped; the rest are sorted west to east
+    by their first vertex, so the order is stable.
+    """
+    depth = np.where(valid, dem64 - surface, NODATA)
+    trace = shapely.union_all([g for _, g in contour_lines(sheet, depth, srs, levels=[0.0])])
+    pieces = clipped_parts(trace, where, MIN_TRACE_LENGTH_M)
+    pieces.sort(key=lambda g: (round(g.coords[0][0], 3), round(g.coords[0][1], 3)))
+    return pieces
+
+
+def topo_contours(sheet, dem64, valid, srs, domain):
+    return [(level, part)
+            for level, g in contour_lines(sheet, np.where(valid, dem64, NODATA), srs,
+                                          interval=CONTOUR_INTERVAL_M)
+            for part in clipped_parts(g, domain, MIN_TOPO_LENGTH_M)]
+
+
+# ================================================================ writers
+def write_dem(path, sheet, dem, srs):
     opts = ["COMPRESS=DEFLATE", "PREDICTOR=3", "ZLEVEL=9"]
-    ds = gdal.GetDriverByName("GTiff").Create(str(path), NCOLS, NROWS, 1, gdal.GDT_Float32, options=opts)
-    ds.SetGeoTransform((X_WEST, CELL_M, 0.0, Y_NORTH, 0.0, -CELL_M))
+    ds = gdal.GetDriverByName("GTiff").Create(str(path), sheet.ncols, sheet.nrows, 1, gdal.GDT_Float32,
+                                              options=opts)
+    ds.SetGeoTransform(sheet.geotransform)
     ds.SetProjection(srs.ExportToWkt())
     band = ds.GetRasterBand(1)
     band.SetNoDataValue(NODATA)
@@ -250,13 +373,13 @@ def write_dem(path, dem, srs):
     ds = None
 
 
-def write_lines(path, layer_name, srs, fields, records):
-    """Write LineStrings with attributes to a fresh GeoPackage (one layer)."""
+def write_features(path, layer_name, srs, geom_type, fields, records):
+    """Write shapely geometries with attributes to a fresh GeoPackage (one layer)."""
     if path.exists():
         path.unlink()
     drv = ogr.GetDriverByName("GPKG")
     ds = drv.CreateDataSource(str(path))
-    layer = ds.CreateLayer(layer_name, srs, ogr.wkbLineString, options=["FID=fid", "GEOMETRY_NAME=geom"])
+    layer = ds.CreateLayer(layer_name, srs, geom_type, options=["FID=fid", "GEOMETRY_NAME=geom"])
     for name, kind in fields:
         layer.CreateField(ogr.FieldDefn(name, kind))
     layer.StartTransaction()
@@ -270,38 +393,109 @@ def write_lines(path, layer_name, srs, fields, records):
     ds = None
 
 
+def write_lines(path, layer_name, srs, fields, records):
+    """Write LineStrings with attributes to a fresh GeoPackage (one layer)."""
+    write_features(path, layer_name, srs, ogr.wkbLineString, fields, records)
+
+
+def write_points(path, layer_name, srs, fields, records):
+    """Write 2-D Points with attributes to a fresh GeoPackage (one layer)."""
+    write_features(path, layer_name, srs, ogr.wkbPoint, fields, records)
+
+
+def projected_srs(epsg):
+    srs = osr.SpatialReference()
+    srs.ImportFromEPSG(epsg)
+    srs.SetAxisMappingStrategy(osr.OAMS_TRADITIONAL_GIS_ORDER)
+    return srs
+
+
+def write_truth(path, truth):
+    path.write_text(json.dumps(truth, indent=2) + "\n")
+
+
+# ================================================================ Harnvel Moor extras
+def borehole_records(dem64):
+    """Collar (bilinear DEM), base elevation and vertical depth of every borehole."""
+    out = []
+    for hole_id, bx, by in BOREHOLES:
+        collar = float(DEMO.bilinear(dem64, bx, by))
+        base = float(plane_elevation(bx, by))
+        out.append({"hole_id": hole_id, "x": bx, "y": by, "collar_m": collar,
+                    "depth_m": collar - base, "base_z_m": base})
+        if not out[-1]["depth_m"] > 0:
+            raise RuntimeError(f"borehole {hole_id} collars below the base; move it down-dip")
+    return out
+
+
+def dip_readings(pieces):
+    """Compass readings of the base at sites on its trace, with seeded reading errors.
+
+    Each reading is the true dip and dip direction plus a uniform error of at most
+    ``READING_SPREAD_DEG``, rounded to whole degrees (as written in a field notebook), so it
+    lies within ``READING_MAX_ERROR_DEG`` of the truth.
+    """
+    rng = np.random.default_rng(READING_SEED)
+    errors = rng.uniform(-READING_SPREAD_DEG, READING_SPREAD_DEG, size=(len(READING_SITES), 2))
+    out = []
+    for (site, piece, fraction), (e_dip, e_dd) in zip(READING_SITES, errors):
+        p = shapely.line_interpolate_point(pieces[piece], fraction, normalized=True)
+        sx = round(p.x / SITE_POSITION_M) * SITE_POSITION_M
+        sy = round(p.y / SITE_POSITION_M) * SITE_POSITION_M
+        dip = float(round(DIP_DEG + e_dip))
+        dd = float(round(DIP_DIRECTION_DEG + e_dd) % 360)
+        out.append({"site": site, "x": round(sx, 1), "y": round(sy, 1), "dip": dip, "dip_dir": dd,
+                    "strike": (dd - 90.0) % 360.0})
+    return out
+
+
 def build(out_dir: Path) -> dict:
-    """Generate the sheet into ``out_dir``; return a small summary."""
+    """Generate the Harnvel Moor sheet into ``out_dir``; return a small summary."""
     out_dir.mkdir(parents=True, exist_ok=True)
     gdal.SetConfigOption("OGR_CURRENT_DATE", FIXED_TIMESTAMP)
-    srs = osr.SpatialReference()
-    srs.ImportFromEPSG(EPSG)
-    srs.SetAxisMappingStrategy(osr.OAMS_TRADITIONAL_GIS_ORDER)
+    srs = projected_srs(EPSG)
 
     x, y = cell_centres()
     dem, lake, lake_level = flood_lake(terrain(x, y), x, y)
     dem = dem.astype(np.float32)  # the values as stored; everything below derives from them
     void = void_corner(dem.shape)
     dem[void] = NODATA
-    write_dem(out_dir / "dem.tif", dem, srs)
+    write_dem(out_dir / "dem.tif", DEMO, dem, srs)
 
     valid = ~void
     dem64 = dem.astype(np.float64)
-    depth = np.where(valid, dem64 - plane_elevation(x, y), NODATA)
-    domain = defined_domain(void)
-    trace = shapely.union_all([g for _, g in contour_lines(depth, srs, levels=[0.0])])
-    on_land = shapely.difference(domain, flat_lake_polygon(lake))
-    pieces = clipped_parts(trace, on_land, MIN_TRACE_LENGTH_M)
-    # a stable order: west to east by the first vertex
-    pieces.sort(key=lambda g: (round(g.coords[0][0], 3), round(g.coords[0][1], 3)))
+    domain = defined_domain(DEMO, void)
+    on_land = shapely.difference(domain, flat_lake_polygon(DEMO, lake))
+    pieces = trace_pieces(DEMO, dem64, valid, plane_elevation(x, y), srs, on_land)
     attrs = {"name": NAMES["contact"], "unit": NAMES["upper_unit"], "kind": "unconformity"}
-    write_lines(out_dir / "contacts.gpkg", "contacts", srs,
-                [("name", ogr.OFTString), ("unit", ogr.OFTString), ("kind", ogr.OFTString)],
-                [(p, attrs) for p in pieces])
+    contact_fields = [("name", ogr.OFTString), ("unit", ogr.OFTString), ("kind", ogr.OFTString)]
+    write_lines(out_dir / "contacts.gpkg", "contacts", srs, contact_fields, [(p, attrs) for p in pieces])
+    if len(pieces) != len(BLOCK_NAMES):
+        raise RuntimeError(f"expected {len(BLOCK_NAMES)} pieces of the base trace, got {len(pieces)}")
+    write_lines(out_dir / "contacts_grouped.gpkg", "contacts", srs,
+                contact_fields + [("block", ogr.OFTString)],
+                [(p, {**attrs, "block": b}) for p, b in zip(pieces, BLOCK_NAMES)])
 
-    topo = [(level, part)
-            for level, g in contour_lines(np.where(valid, dem64, NODATA), srs, interval=CONTOUR_INTERVAL_M)
-            for part in clipped_parts(g, domain, MIN_TOPO_LENGTH_M)]
+    top_pieces = trace_pieces(DEMO, dem64, valid, plane_elevation(x, y, offset_m=top_offset_m()), srs, on_land)
+    top_attrs = {"name": NAMES["top_contact"], "unit": NAMES["overlying_unit"], "kind": "conformable"}
+    write_lines(out_dir / "top_contacts.gpkg", "top_contacts", srs, contact_fields,
+                [(p, top_attrs) for p in top_pieces])
+
+    holes = borehole_records(dem64)
+    write_points(out_dir / "boreholes.gpkg", "boreholes", srs,
+                 [("hole_id", ogr.OFTString), ("collar_m", ogr.OFTReal), ("depth_m", ogr.OFTReal),
+                  ("base_z_m", ogr.OFTReal)],
+                 [(shapely.Point(h["x"], h["y"]), {k: h[k] for k in ("hole_id", "collar_m", "depth_m", "base_z_m")})
+                  for h in holes])
+
+    readings = dip_readings(pieces)
+    write_points(out_dir / "orientations.gpkg", "dip_readings", srs,
+                 [("site", ogr.OFTString), ("dip", ogr.OFTReal), ("dip_dir", ogr.OFTReal),
+                  ("strike", ogr.OFTReal)],
+                 [(shapely.Point(r["x"], r["y"]), {k: r[k] for k in ("site", "dip", "dip_dir", "strike")})
+                  for r in readings])
+
+    topo = topo_contours(DEMO, dem64, valid, srs, domain)
     write_lines(out_dir / "contours.gpkg", "topo_contours", srs, [("elev_m", ogr.OFTReal)],
                 [(g, {"elev_m": float(level)}) for level, g in topo])
 
@@ -328,29 +522,236 @@ def build(out_dir: Path) -> dict:
         "contour_interval_m": CONTOUR_INTERVAL_M,
         "trace_min_length_m": MIN_TRACE_LENGTH_M,
         "trace_clipped_by_lake": True,
+        # --- added for the isopach, borehole, dip-reading and group tests
+        "top_contact": NAMES["top_contact"],
+        "overlying_unit": NAMES["overlying_unit"],
+        "true_thickness_m": TRUE_THICKNESS_M,
+        "vertical_thickness_m": top_offset_m(),
+        "top_plane": {
+            "dip_deg": DIP_DEG,
+            "dip_direction_deg": DIP_DIRECTION_DEG,
+            "point": [REF_X, REF_Y, REF_Z + top_offset_m()],
+            "note": "parallel to the base plane, true_thickness_m above it along the normal; "
+                    "vertical_thickness_m = true_thickness_m / cos(dip)",
+        },
+        "boreholes": {
+            "layer": "boreholes",
+            "fields": {"hole_id": "text", "collar_m": "bilinear DEM elevation at the collar (m)",
+                       "depth_m": "vertical depth from collar to the base (m) = collar_m - base_z_m",
+                       "base_z_m": "elevation of the base plane (m)"},
+            "sigma_m": 0.0,
+            "note": "values exact from the plane and the stored DEM; no error added",
+            "holes": holes,
+        },
+        "orientations": {
+            "layer": "dip_readings",
+            "surface": NAMES["contact"],
+            "seed": READING_SEED,
+            "max_reading_error_deg": READING_MAX_ERROR_DEG,
+            "note": "true dip and dip direction plus a uniform error of at most "
+                    f"{READING_SPREAD_DEG} degrees (numpy default_rng, seed above), rounded to whole "
+                    "degrees; strike = dip_dir - 90 (right-hand rule); sites on the base trace, "
+                    "coordinates rounded to 0.1 m",
+            "readings": readings,
+        },
+        "grouped_contacts": {
+            "file": "contacts_grouped.gpkg",
+            "layer": "contacts",
+            "field": "block",
+            "blocks": list(BLOCK_NAMES),
+            "note": "the features of contacts.gpkg in the same order, both on the one base plane",
+        },
     }
-    (out_dir / "truth.json").write_text(json.dumps(truth, indent=2) + "\n")
+    write_truth(out_dir / "truth.json", truth)
     return {
         "n_contacts": len(pieces),
         "n_contact_vertices": int(sum(len(p.coords) for p in pieces)),
         "contact_length_m": float(sum(p.length for p in pieces)),
+        "n_top_contacts": len(top_pieces),
+        "top_contact_length_m": float(sum(p.length for p in top_pieces)),
         "n_topo_contours": len(topo),
         "n_topo_vertices": int(sum(len(g.coords) for _, g in topo)),
         "lake_cells": int(lake.sum()),
         "lake_level_m": lake_level,
         "void_cells": int(void.sum()),
         "relief_m": float(dem[valid].max() - dem[valid].min()),
+        "boreholes": {h["hole_id"]: round(h["depth_m"], 2) for h in holes},
+    }
+
+
+# ================================================================ Tolvane Fell (fold/)
+FOLD_EPSG = 32630  # WGS 84 / UTM zone 30N; the coordinates below are invented
+FOLD = Sheet(ncols=300, nrows=300, cell_m=10.0, x_west=523_700.0, y_north=6_061_400.0)
+
+FOLD_NAMES = {
+    "sheet": "Tolvane Fell (fictional fold sheet)",
+    "fold": "Tolvane Fell Anticline",
+    "upper_unit": "Cawl Limestone Formation",
+    "lower_unit": "Brenlow Mudstone Formation",
+    "contact": "base of the Cawl Limestone Formation",
+}
+
+# The folded base of the Cawl Limestone: an upright cylindrical fold whose hinge lines plunge
+# gently along the axis (our own numbers).
+FOLD_X0 = 525_120.0  # a point on an anticlinal hinge line
+FOLD_Y0 = 6_059_930.0
+FOLD_Z0 = 412.0
+FOLD_AXIS_TREND_DEG = 62.0  # azimuth the hinge lines plunge toward
+FOLD_PLUNGE_DEG = 5.5
+FOLD_AMPLITUDE_M = 64.0
+FOLD_WAVELENGTH_M = 1750.0
+
+
+def fold_frame(x, y):
+    """Along-axis ``s`` (toward the plunge) and across-axis ``t`` (toward trend + 90) in metres."""
+    a = math.radians(FOLD_AXIS_TREND_DEG)
+    dx, dy = x - FOLD_X0, y - FOLD_Y0
+    return dx * math.sin(a) + dy * math.cos(a), dx * math.cos(a) - dy * math.sin(a)
+
+
+def fold_elevation(x, y):
+    """Elevation (m) of the folded base: ``z0 - tan(plunge) s + A cos(2 pi t / wavelength)``."""
+    s, t = fold_frame(x, y)
+    return (FOLD_Z0 - math.tan(math.radians(FOLD_PLUNGE_DEG)) * s
+            + FOLD_AMPLITUDE_M * np.cos(2 * np.pi * t / FOLD_WAVELENGTH_M))
+
+
+def fold_gradient(x, y):
+    """Analytic ``(dz/dx, dz/dy)`` of :func:`fold_elevation`."""
+    _, t = fold_frame(x, y)
+    a = math.radians(FOLD_AXIS_TREND_DEG)
+    dz_ds = -math.tan(math.radians(FOLD_PLUNGE_DEG))
+    dz_dt = -FOLD_AMPLITUDE_M * 2 * np.pi / FOLD_WAVELENGTH_M * np.sin(2 * np.pi * t / FOLD_WAVELENGTH_M)
+    # s = dx sin a + dy cos a, t = dx cos a - dy sin a
+    return dz_ds * math.sin(a) + dz_dt * math.cos(a), dz_ds * math.cos(a) - dz_dt * math.sin(a)
+
+
+def _becks(u, v, *, spacing_m, meander_m, meander_wavelength_m, phase, depth_m, width_m):
+    """A family of meandering valleys about ``spacing_m`` apart across ``v``, winding along
+    ``u``: troughs of Gaussian cross-section ``width_m`` wide whose depth swells and shrinks
+    downstream between ``depth_m / 2`` and ``depth_m``."""
+    wiggle = meander_m * np.sin(2 * np.pi * u / meander_wavelength_m + phase)
+    wiggle = wiggle + 0.4 * meander_m * np.sin(2 * np.pi * u / (0.37 * meander_wavelength_m) + 2 * phase)
+    w = v + wiggle + 0.18 * spacing_m * np.sin(2 * np.pi * v / (2.9 * spacing_m))  # uneven spacing
+    off = (w + spacing_m / 2) % spacing_m - spacing_m / 2
+    k = np.floor((w + spacing_m / 2) / spacing_m)  # which valley of the family
+    swell = 0.75 + 0.25 * np.sin(2 * np.pi * u / (1.7 * meander_wavelength_m) + 1.3 * k + phase)
+    return -depth_m * swell * np.exp(-(off**2) / (2 * width_m**2))
+
+
+def fold_terrain(x, y):
+    """Fell country on the folded limestone.
+
+    The hard Cawl Limestone makes most of the ground and the fells follow the folds, but the
+    anticline crests are worn down further than the synclines, so the soft Brenlow Mudstone
+    comes up in long inliers along the anticlinal hinges that close round the plunging noses.
+    Meandering becks cut across the folds down into the mudstone, so the base also crops out
+    up and down both sides of the deeper becks.
+    """
+    xc = FOLD.x_west + FOLD.ncols * FOLD.cell_m / 2
+    yc = FOLD.y_north - FOLD.nrows * FOLD.cell_m / 2
+    X, Y = x - xc, y - yc
+    s, t = fold_frame(x, y)
+    a = math.radians(343.0)  # main becks trend NNW-SSE, across the fold axes
+    u1 = X * math.sin(a) + Y * math.cos(a)
+    v1 = X * math.cos(a) - Y * math.sin(a)
+    b = math.radians(104.0)  # side becks trend ESE-WNW
+    u2 = X * math.sin(b) + Y * math.cos(b)
+    v2 = X * math.cos(b) - Y * math.sin(b)
+    becks = (_becks(u1, v1, spacing_m=620.0, meander_m=110.0, meander_wavelength_m=1450.0, phase=0.4,
+                    depth_m=75.0, width_m=105.0)
+             + _becks(u2, v2, spacing_m=850.0, meander_m=70.0, meander_wavelength_m=1080.0, phase=2.1,
+                      depth_m=55.0, width_m=85.0))
+    crest_wear = 0.25 * FOLD_AMPLITUDE_M * np.cos(2 * np.pi * t / FOLD_WAVELENGTH_M)
+    cover = 28.0 + 0.006 * X - 0.004 * Y - crest_wear  # limestone left above its base
+    knobs = 5.0 * np.sin(X / 131.0 + 0.9) * np.cos(Y / 173.0 - 0.2) + 3.0 * np.cos((0.7 * X + Y) / 89.0)
+    return fold_elevation(x, y) + cover + becks + knobs
+
+
+def build_fold(out_dir: Path) -> dict:
+    """Generate the Tolvane Fell fold sheet into ``out_dir``; return a small summary."""
+    out_dir.mkdir(parents=True, exist_ok=True)
+    gdal.SetConfigOption("OGR_CURRENT_DATE", FIXED_TIMESTAMP)
+    srs = projected_srs(FOLD_EPSG)
+
+    x, y = FOLD.cell_centres()
+    dem = fold_terrain(x, y).astype(np.float32)
+    write_dem(out_dir / "dem.tif", FOLD, dem, srs)
+    dem64 = dem.astype(np.float64)
+    valid = np.ones(dem.shape, dtype=bool)
+    domain = defined_domain(FOLD, ~valid)
+    pieces = trace_pieces(FOLD, dem64, valid, fold_elevation(x, y), srs, domain)
+    attrs = {"name": FOLD_NAMES["contact"], "unit": FOLD_NAMES["upper_unit"], "kind": "conformable"}
+    write_lines(out_dir / "contacts.gpkg", "contacts", srs,
+                [("name", ogr.OFTString), ("unit", ogr.OFTString), ("kind", ogr.OFTString)],
+                [(p, attrs) for p in pieces])
+    topo = topo_contours(FOLD, dem64, valid, srs, domain)
+    write_lines(out_dir / "contours.gpkg", "topo_contours", srs, [("elev_m", ogr.OFTReal)],
+                [(g, {"elev_m": float(level)}) for level, g in topo])
+
+    truth = {
+        "sheet": FOLD_NAMES["sheet"],
+        "description": (
+            "Fictional fold sheet. The base of the Cawl Limestone Formation on the Brenlow Mudstone "
+            "Formation is folded into upright cylindrical folds (the Tolvane Fell Anticline and its "
+            "neighbours) whose hinge lines plunge gently north-east; the contact winds round the "
+            "fold noses and up and down the becks."
+        ),
+        "contact": FOLD_NAMES["contact"],
+        "upper_unit": FOLD_NAMES["upper_unit"],
+        "lower_unit": FOLD_NAMES["lower_unit"],
+        "fold": FOLD_NAMES["fold"],
+        "crs": f"EPSG:{FOLD_EPSG}",
+        "surface": {
+            "kind": "plunging upright cylindrical fold",
+            "equation": "z = z0 - tan(plunge) * s + amplitude * cos(2 pi t / wavelength)",
+            "frame": "s = (x - x0) sin(axis_trend) + (y - y0) cos(axis_trend) (along the axis, toward "
+                     "the plunge); t = (x - x0) cos(axis_trend) - (y - y0) sin(axis_trend) (across it, "
+                     "toward axis_trend + 90)",
+            "gradient": "dz/ds = -tan(plunge); dz/dt = -amplitude 2 pi / wavelength sin(2 pi t / "
+                        "wavelength); dz/dx = dz/ds sin(axis_trend) + dz/dt cos(axis_trend); dz/dy = "
+                        "dz/ds cos(axis_trend) - dz/dt sin(axis_trend)",
+            "local_dip": "dip = atan(|grad z|); dip direction = azimuth of -grad z",
+            "anticline_hinges": "t = k wavelength; syncline hinges: t = (k + 1/2) wavelength",
+            "x0": FOLD_X0,
+            "y0": FOLD_Y0,
+            "z0": FOLD_Z0,
+            "axis_trend_deg": FOLD_AXIS_TREND_DEG,
+            "plunge_deg": FOLD_PLUNGE_DEG,
+            "amplitude_m": FOLD_AMPLITUDE_M,
+            "wavelength_m": FOLD_WAVELENGTH_M,
+        },
+        "dem": {"cols": FOLD.ncols, "rows": FOLD.nrows, "cell_m": FOLD.cell_m, "nodata": NODATA,
+                "x_west": FOLD.x_west, "y_north": FOLD.y_north},
+        "contour_interval_m": CONTOUR_INTERVAL_M,
+        "trace_min_length_m": MIN_TRACE_LENGTH_M,
+    }
+    write_truth(out_dir / "truth.json", truth)
+    return {
+        "n_contacts": len(pieces),
+        "n_contact_vertices": int(sum(len(p.coords) for p in pieces)),
+        "contact_length_m": float(sum(p.length for p in pieces)),
+        "n_topo_contours": len(topo),
+        "n_topo_vertices": int(sum(len(g.coords) for _, g in topo)),
+        "relief_m": float(dem.max() - dem.min()),
     }
 
 
 def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--out", type=Path, default=Path(__file__).resolve().parent / "demo",
-                        help="output directory (default: test_data/demo next to this script)")
+    parser.add_argument("--only", choices=("demo", "fold"),
+                        help="write only one set (default: both)")
+    parser.add_argument("--out", type=Path, default=HERE / "demo",
+                        help="output directory of the Harnvel Moor set (default: test_data/demo)")
+    parser.add_argument("--fold-out", type=Path, default=HERE / "fold",
+                        help="output directory of the Tolvane Fell set (default: test_data/fold)")
     args = parser.parse_args(argv)
-    summary = build(args.out)
-    for key, value in summary.items():
-        print(f"{key}: {value}")
+    jobs = [("demo", build, args.out), ("fold", build_fold, args.fold_out)]
+    for name, fn, out in jobs:
+        if args.only in (None, name):
+            print(f"[{name}] {out}")
+            for key, value in fn(out).items():
+                print(f"  {key}: {value}")
 
 
 if __name__ == "__main__":
