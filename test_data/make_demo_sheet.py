@@ -46,7 +46,8 @@ Outputs in ``fold/`` (Tolvane Fell, a plunging upright fold)
     300 x 300 cells at 10 m, otherwise as above, no voids.
 ``contacts.gpkg``, layer ``contacts``
     Outcrop trace of the base of the Cawl Limestone Formation, folded (see
-    :func:`fold_elevation`), made the same way as the Harnvel trace.
+    :func:`fold_elevation`), made the same way as the Harnvel trace; then every vertex is slid
+    along its cell edge onto the fold exactly (:func:`snap_to_surface`).
 ``contours.gpkg``, layer ``topo_contours``
     Topographic contours every 10 m, field ``elev_m``.
 ``truth.json``
@@ -348,6 +349,41 @@ def trace_pieces(sheet, dem64, valid, surface, srs, where):
     pieces = clipped_parts(trace, where, MIN_TRACE_LENGTH_M)
     pieces.sort(key=lambda g: (round(g.coords[0][0], 3), round(g.coords[0][1], 3)))
     return pieces
+
+
+def snap_to_surface(sheet, dem64, surface_fn, line, *, iterations=8):
+    """Move each vertex of a traced line onto the exact intersection of the bilinear DEM and
+    a curved surface.
+
+    GDAL's contour generator places a vertex on an edge between two cell centres by linear
+    interpolation of (DEM - surface) between them. The bilinear DEM is linear along that edge,
+    a plane too, so for the Harnvel plane the vertex is exact; a folded surface is not linear,
+    and the vertex misses it by up to a centimetre. Here each vertex slides along its edge
+    (the coordinate that is not on a line of cell centres or on the domain frame stays free)
+    by Newton steps on f = DEM - surface, so it lies on both surfaces to round-off.
+    """
+    xy = shapely.get_coordinates(line).copy()
+    col = (xy[:, 0] - sheet.x_west) / sheet.cell_m - 0.5
+    row = (sheet.y_north - xy[:, 1]) / sheet.cell_m - 0.5
+    frame_x = sheet.x_west + sheet.cell_m / 2 + np.array([1e-3, (sheet.ncols - 1) * sheet.cell_m - 1e-3])
+    frame_y = sheet.y_north - sheet.cell_m / 2 - np.array([1e-3, (sheet.nrows - 1) * sheet.cell_m - 1e-3])
+    x_fixed = (np.abs(col - np.round(col)) < 1e-7) | np.any(np.abs(xy[:, :1] - frame_x) < 1e-7, axis=1)
+    y_fixed = (np.abs(row - np.round(row)) < 1e-7) | np.any(np.abs(xy[:, 1:] - frame_y) < 1e-7, axis=1)
+    if not np.all(x_fixed | y_fixed):
+        raise RuntimeError("a traced vertex lies on no cell edge; cannot slide it along one")
+    axis = np.where(x_fixed, 1, 0)  # the free coordinate
+    step = np.zeros_like(xy)
+    step[np.arange(len(xy)), axis] = 1e-4
+
+    def f(p):
+        return sheet.bilinear(dem64, p[:, 0], p[:, 1]) - surface_fn(p[:, 0], p[:, 1])
+
+    for _ in range(iterations):
+        slope = (f(xy + step) - f(xy - step)) / 2e-4
+        xy[np.arange(len(xy)), axis] -= f(xy) / slope
+    if np.max(np.abs(f(xy))) > 1e-9:
+        raise RuntimeError("snapping traced vertices onto the surface did not converge")
+    return shapely.LineString(xy)
 
 
 def topo_contours(sheet, dem64, valid, srs, domain):
@@ -681,6 +717,7 @@ def build_fold(out_dir: Path) -> dict:
     valid = np.ones(dem.shape, dtype=bool)
     domain = defined_domain(FOLD, ~valid)
     pieces = trace_pieces(FOLD, dem64, valid, fold_elevation(x, y), srs, domain)
+    pieces = [snap_to_surface(FOLD, dem64, fold_elevation, p) for p in pieces]
     attrs = {"name": FOLD_NAMES["contact"], "unit": FOLD_NAMES["upper_unit"], "kind": "conformable"}
     write_lines(out_dir / "contacts.gpkg", "contacts", srs,
                 [("name", ogr.OFTString), ("unit", ogr.OFTString), ("kind", ogr.OFTString)],
