@@ -7,8 +7,6 @@ tool. Where the library gains a function for the same sequence (asked for in
 """
 from __future__ import annotations
 
-import itertools
-
 import numpy as np
 import shapely
 
@@ -20,7 +18,7 @@ from strikeline.io.crs import same_crs, srs_from_wkt
 from strikeline.io.vector import VectorLayer
 from strikeline.picks import sample_bilinear
 from strikeline.pipeline import Inputs, RunOptions, surface_grid
-from strikeline.trace import distance_to_lines, trace_misfit
+from strikeline.trace import contact_misfit_segments, distance_to_lines, split_lines_by_flag, trace_misfit
 
 
 def grid_over(bounds, *, cell_m, crs_wkt, log) -> Grid:
@@ -50,47 +48,65 @@ def require_same_grid(a: Grid, b: Grid, *, what_a: str, what_b: str) -> None:
             "grid; model the surface on the DEM's grid (Surface model with the DEM as reference grid)")
 
 
-def contours_by_class(surface, grid: Grid, *, interval_m: float, flags: dict):
-    """Structure contours split where boolean cell classes change.
+def split_by_flags(geoms, values, flags: dict, *, spacing_m: float):
+    """Split lines where cell flags change, with the library's :func:`split_lines_by_flag`.
 
-    ``flags`` maps a name to a boolean grid (e.g. ``below_ground``: ground minus surface >= 0;
-    ``forecast``: beyond the reach of the data). Returns ``(geoms, elevations_m, {name: bool
-    per line})``. Each part is the library's :func:`contour_lines` of the surface masked to one
-    combination of the flags (NaN elsewhere), so every vertex lies on the surface and lines stop
-    on the last cell centre of their class (gaps of at most one cell where the class changes).
+    ``flags`` maps a field name to ``flag_fn(x, y) -> bool``; the lines are split by each in
+    turn. Returns ``(parts, values per part, {name: bool per part})``; parts join without gaps.
     """
-    names = list(flags)
-    geoms, elev = [], []
-    per = {n: [] for n in names}
-    for combo in itertools.product((True, False), repeat=len(names)):
-        keep = np.ones(surface.shape, dtype=bool)
-        for n, value in zip(names, combo):
-            keep &= flags[n] == value
-        if not keep.any():
-            continue
-        g, z = contour_lines(np.where(keep, surface, np.nan), grid, interval_m=interval_m)
-        geoms.append(g)
-        elev.append(z)
-        for n, value in zip(names, combo):
-            per[n].append(np.full(len(g), value))
-    if not geoms:
-        return np.empty(0, object), np.empty(0), {n: np.empty(0, bool) for n in names}
-    return (np.concatenate(geoms), np.concatenate(elev),
-            {n: np.concatenate(v).astype(bool) for n, v in per.items()})
+    parts = np.asarray(geoms, dtype=object)
+    vals = np.asarray(values)
+    out = {}
+    for name, fn in flags.items():
+        parts, f, src = split_lines_by_flag(parts, fn, spacing_m=spacing_m)
+        vals = vals[src] if len(src) else vals[:0]
+        out = {k: v[src] for k, v in out.items()}
+        out[name] = f
+    return parts, vals, out
 
 
-def depth_trace_misfit(dem, dem_grid: Grid, surface, contact_geoms=None):
+def raster_flag(array, grid: Grid, *, at_least: float):
+    """``flag_fn(x, y)``: the grid, interpolated bilinearly, is at least ``at_least`` (NaN: False)."""
+    def fn(x, y):
+        v = sample_bilinear(array, grid, x, y)
+        return np.where(np.isfinite(v), v >= at_least, False)
+    return fn
+
+
+def depth_trace_misfit(dem, dem_grid: Grid, surface, contacts=None, *, extrapolated_fn=None,
+                       flag_m=None):
     """Depth below ground, the predicted trace and its misfit to the mapped contacts.
 
-    The same calls as :func:`strikeline.pipeline.compute`: depth = DEM − surface, the trace is
-    its zero line, the misfit is measured from every contact vertex over valid DEM cells.
-    Returns ``(depth, trace_geoms, misfit dict, vertex xy, vertex distance)``.
+    The same calls as :func:`strikeline.pipeline.compute`: depth = DEM − surface; the trace is
+    its zero line, split where ``extrapolated_fn`` changes; the misfit is measured from every
+    contact vertex over valid DEM cells, and along contact segments of ``SEGMENT_CELLS`` cells,
+    flagged beyond ``flag_m`` (default ``FLAG_CELLS`` cells). ``contacts`` is a VectorLayer.
+    Returns a dict: ``depth``, ``trace``, ``trace_extrapolated``, ``misfit``, ``vertices``,
+    ``vertex_distance``, ``segments``.
     """
+    from strikeline.pipeline import FLAG_CELLS, SEGMENT_CELLS
+
+    spacing = min(dem_grid.cell_x_m, dem_grid.cell_y_m)
     depth = depth_below_ground(dem, surface)
-    trace, _ = contour_lines(depth, dem_grid, levels=[0.0])
-    if contact_geoms is None:
-        return depth, trace, None, np.empty((0, 2)), np.empty(0)
-    verts = shapely.get_coordinates(contact_geoms)
+    raw_trace, _ = contour_lines(depth, dem_grid, levels=[0.0])
+    if extrapolated_fn is not None:
+        trace, tflags, _ = split_lines_by_flag(raw_trace, extrapolated_fn, spacing_m=spacing)
+    else:
+        trace, tflags = raw_trace, None
+    out = {"depth": depth, "trace": trace, "trace_extrapolated": tflags, "misfit": None,
+           "vertices": np.empty((0, 2)), "vertex_distance": np.empty(0), "segments": None}
+    if contacts is None:
+        return out
+    verts = shapely.get_coordinates(contacts.geoms)
     on_dem = np.isfinite(sample_bilinear(dem, dem_grid, verts[:, 0], verts[:, 1]))
-    misfit = trace_misfit(verts[on_dem], trace)
-    return depth, trace, misfit, verts[on_dem], distance_to_lines(verts[on_dem], trace)
+    out["misfit"] = trace_misfit(verts[on_dem], raw_trace)
+    out["vertices"] = verts[on_dem]
+    out["vertex_distance"] = distance_to_lines(verts[on_dem], raw_trace)
+
+    def on_valid(x, y):
+        return np.isfinite(sample_bilinear(dem, dem_grid, x, y))
+
+    out["segments"] = contact_misfit_segments(
+        contacts.geoms, contacts.fids, raw_trace, segment_m=SEGMENT_CELLS * spacing,
+        flag_m=FLAG_CELLS * spacing if flag_m is None else flag_m, valid_fn=on_valid)
+    return out

@@ -54,11 +54,12 @@ def read_dem(alg, parameters, key, context, steps, *, label="DEM"):
     return arr, grid, raster_path(layer) or layer.name()
 
 
-def read_contact_inputs(alg, parameters, context, steps) -> Inputs:
+def read_contact_inputs(alg, parameters, context, steps, *, contact_fields=()) -> Inputs:
     """Contacts, DEM and contours of a tool as the library's :class:`strikeline.pipeline.Inputs`.
 
     Follows :func:`strikeline.pipeline.load_inputs`: at least one topography; the DEM's CRS
     (else the contacts') is the working CRS and the vector layers are transformed into it.
+    ``contact_fields`` are attribute fields of the contacts to read as well.
     """
     contacts_src, contacts_name = source_and_name(alg, parameters, CONTACTS, context, "contacts")
     contours_src, contours_name = source_and_name(alg, parameters, CONTOURS, context, "contours")
@@ -73,7 +74,8 @@ def read_contact_inputs(alg, parameters, context, steps) -> Inputs:
     dem, grid, dem_path = read_dem(alg, parameters, DEM, context, steps)
     target = qgis_crs(grid.crs_wkt) if grid is not None else contacts_src.sourceCrs()
     contacts = read_vector(contacts_src, contacts_name, geometry="line", target_crs=target,
-                           context=context, log=steps.log, is_cancelled=steps.is_cancelled)
+                           fields=[f for f in contact_fields if f], context=context, log=steps.log,
+                           is_cancelled=steps.is_cancelled)
     contours = elev = None
     if contours_src is not None:
         contours = read_vector(contours_src, contours_name, geometry="line", fields=[elev_field],
@@ -109,20 +111,24 @@ def add_picks(alg) -> None:
 
 def read_picks(alg, parameters, context, steps):
     """``(xyz array (n, 3), feature source, LayerName)`` of the picks input, in its own CRS."""
-    return read_points_xyz(alg, parameters, PICKS, PICKS_FIELD, context, steps, label="picks",
-                           field_label="Elevation field of the picks")
+    xyz, source, name, _ = read_points_xyz(alg, parameters, PICKS, PICKS_FIELD, context, steps, label="picks",
+                                           field_label="Elevation field of the picks")
+    return xyz, source, name
 
 
 def read_points_xyz(alg, parameters, key, field_key, context, steps, *, label, field_label,
-                    target_crs=None, fields=()):
-    """Points of parameter ``key`` as ``(xyz (n, 3), source, LayerName)``; ``z`` from the field
-    ``field_key`` or, when it is empty, from the points' Z. With ``fields``, the values of those
-    numeric fields follow as a dict (one value per point). ``(None, None, None)`` when unset."""
+                    target_crs=None, fields=(), text_fields=()):
+    """Points of parameter ``key`` as ``(xyz (n, 3), source, LayerName, values)``.
+
+    ``z`` comes from the field ``field_key`` or, when it is empty, from the points' Z. ``values``
+    maps each of ``fields`` (numeric, float64 with NaN for null) and ``text_fields`` (any type,
+    as read) to one value per point. All four are None when the parameter is unset.
+    """
     source, name = source_and_name(alg, parameters, key, context, label)
     if source is None:
-        return (None, None, None, {}) if fields else (None, None, None)
+        return None, None, None, {}
     field = alg.parameterAsString(parameters, field_key, context) if field_key else ""
-    wanted = [f for f in [field, *fields] if f]
+    wanted = list(dict.fromkeys(f for f in [field, *fields, *text_fields] if f))
     layer = read_vector(source, name, geometry="point", fields=wanted, keep_z=True,
                         target_crs=target_crs, context=context, log=steps.log,
                         is_cancelled=steps.is_cancelled)
@@ -134,8 +140,6 @@ def read_points_xyz(alg, parameters, key, field_key, context, steps, *, label, f
                          "points with elevations as Z")
     else:
         z = coords[:, 2]
-    xyz = np.column_stack([coords[:, 0], coords[:, 1], z])
-    if fields:
-        values = {f: layer.numeric_field(f, option=f"the field '{f}'")[owner] for f in fields}
-        return xyz, source, name, values
-    return xyz, source, name
+    values = {f: layer.numeric_field(f, option=f"the field '{f}'")[owner] for f in fields}
+    values.update({f: layer.fields[f][owner] for f in text_fields})
+    return np.column_stack([coords[:, 0], coords[:, 1], z]), source, name, values

@@ -175,9 +175,14 @@ def read_vector(source: QgsProcessingFeatureSource, name: LayerName, *, geometry
             values[f].append(feat[f])
     if not wkbs:
         raise InputError(f"{what} holds no feature with a geometry; give a layer with features")
-    geoms = shapely.from_wkb(wkbs)
-    if not keep_z:
-        geoms = shapely.force_2d(geoms)
+    geoms3 = shapely.from_wkb(wkbs)
+    z = None
+    if geometry == "point":  # as strikeline.io.vector.read_layer: the Z of single points
+        z = np.full(len(geoms3), np.nan)
+        has_z = shapely.has_z(geoms3) & (shapely.get_type_id(geoms3) == shapely.GeometryType.POINT)
+        if has_z.any():
+            z[has_z] = shapely.get_coordinates(geoms3[has_z], include_z=True)[:, 2]
+    geoms = geoms3 if keep_z else shapely.force_2d(geoms3)
     wanted = {"line": ("LineString", "MultiLineString", "LinearRing"), "point": ("Point", "MultiPoint"),
               None: ()}[geometry]
     types = {shapely.GeometryType(t).name for t in set(shapely.get_type_id(geoms).tolist())}
@@ -188,7 +193,7 @@ def read_vector(source: QgsProcessingFeatureSource, name: LayerName, *, geometry
     ftypes = {f: _FIELD_TYPE_NAMES.get(qfields.field(f).type(), qfields.field(f).typeName()) for f in fields}
     return VectorLayer(name.path, name.layer, np.asarray(geoms, dtype=object),
                        np.asarray(fids, dtype=np.int64),
-                       {f: _attribute_values(v) for f, v in values.items()}, ftypes, out_srs)
+                       {f: _attribute_values(v) for f, v in values.items()}, ftypes, out_srs, z)
 
 
 def raster_path(layer: QgsRasterLayer) -> str | None:

@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import os
 
-from qgis.core import QgsProcessingProvider
+from qgis.core import Qgis, QgsMessageLog, QgsProcessingProvider
 from qgis.PyQt.QtGui import QIcon
 
 ICON_PATH = os.path.join(os.path.dirname(os.path.abspath(__file__)), "icon.svg")
@@ -13,6 +13,7 @@ class StrikelineProvider(QgsProcessingProvider):
     """Processing provider ``strikeline``."""
 
     ID = "strikeline"
+    load_error = None  # why loadAlgorithms found no tools, if it failed
 
     def id(self):
         return self.ID
@@ -44,7 +45,16 @@ class StrikelineProvider(QgsProcessingProvider):
         return "tif"
 
     def loadAlgorithms(self):  # noqa: N802
-        from .tools import ALGORITHMS
-
+        # Called from C++: an exception escaping here would abort QGIS, so a broken install
+        # (say, a missing dependency of the library) is reported in the log instead.
+        try:
+            from .tools import ALGORITHMS
+        except Exception as exc:  # noqa: BLE001
+            self.load_error = f"{type(exc).__name__}: {exc}"
+            QgsMessageLog.logMessage(
+                f"strikeline: the tools could not be loaded ({self.load_error}); check that numpy, "
+                "scipy and shapely 2 are installed for QGIS's Python", "strikeline", Qgis.Critical)
+            return
+        self.load_error = None
         for cls in ALGORITHMS:
             self.addAlgorithm(cls())

@@ -123,17 +123,17 @@ def contour_symbol(*, eroded: bool = False, forecast: bool = False) -> QgsLineSy
 
 
 def style_structure_contours(layer) -> None:
-    """Labelled by elevation; parts by the ``below_ground`` / ``forecast`` fields when present."""
-    flags = [f for f in ("below_ground", "forecast") if layer.fields().indexOf(f) >= 0]
+    """Labelled by elevation; parts by the ``below_ground`` / ``extrapolated`` fields when present."""
+    flags = [f for f in ("below_ground", "extrapolated") if layer.fields().indexOf(f) >= 0]
     if flags:
         root = QgsRuleBasedRenderer.Rule(None)
         for combo in itertools.product((True, False), repeat=len(flags)):
             state = dict(zip(flags, combo))
             expr = " AND ".join(f'"{f}"' if v else f'NOT "{f}"' for f, v in state.items())
             label = ", ".join({("below_ground", True): "below ground", ("below_ground", False): "above ground (eroded)",
-                               ("forecast", True): "forecast (beyond the data)",
-                               ("forecast", False): "within reach of the data"}[(f, v)] for f, v in state.items())
-            sym = contour_symbol(eroded=not state.get("below_ground", True), forecast=state.get("forecast", False))
+                               ("extrapolated", True): "forecast (beyond the reach of the data)",
+                               ("extrapolated", False): "within reach of the data"}[(f, v)] for f, v in state.items())
+            sym = contour_symbol(eroded=not state.get("below_ground", True), forecast=state.get("extrapolated", False))
             root.appendChild(QgsRuleBasedRenderer.Rule(sym, 0, 0, expr, label))
         layer.setRenderer(QgsRuleBasedRenderer(root))
     else:
@@ -144,9 +144,47 @@ def style_structure_contours(layer) -> None:
 
 
 def style_trace(layer) -> None:
-    sym = QgsLineSymbol.createSimple({"line_color": TRACE_VERMILION, "line_width": "0.9",
-                                      "line_style": "dash", "capstyle": "round"})
-    layer.setRenderer(QgsSingleSymbolRenderer(sym))
+    """Wide vermilion: dash-dot where the trace is forecast beyond the data (``extrapolated``),
+    dashed elsewhere (it is a prediction throughout, never a mapped line)."""
+    near = QgsLineSymbol.createSimple({"line_color": TRACE_VERMILION, "line_width": "0.9",
+                                       "line_style": "dash", "capstyle": "round"})
+    if layer.fields().indexOf("extrapolated") >= 0:
+        far = QgsLineSymbol.createSimple({"line_color": TRACE_VERMILION, "line_width": "0.6",
+                                          "line_style": "dot", "capstyle": "round"})
+        root = QgsRuleBasedRenderer.Rule(None)
+        root.appendChild(QgsRuleBasedRenderer.Rule(near, 0, 0, 'NOT "extrapolated"', "predicted outcrop"))
+        root.appendChild(QgsRuleBasedRenderer.Rule(far, 0, 0, '"extrapolated"',
+                                                   "predicted outcrop, beyond the reach of the data"))
+        layer.setRenderer(QgsRuleBasedRenderer(root))
+    else:
+        layer.setRenderer(QgsSingleSymbolRenderer(near))
+    layer.triggerRepaint()
+
+
+def style_contact_misfit(layer) -> None:
+    """Contact segments: thin green where they match the predicted trace, thick magenta where flagged."""
+    ok = QgsLineSymbol.createSimple({"line_color": "#2e7d32", "line_width": "0.4"})
+    bad = QgsLineSymbol.createSimple({"line_color": "#c2185b", "line_width": "1.2"})
+    root = QgsRuleBasedRenderer.Rule(None)
+    root.appendChild(QgsRuleBasedRenderer.Rule(bad, 0, 0, '"flagged"', "misfit above the flag distance"))
+    root.appendChild(QgsRuleBasedRenderer.Rule(ok, 0, 0, 'NOT "flagged"', "matches the predicted trace"))
+    layer.setRenderer(QgsRuleBasedRenderer(root))
+    layer.triggerRepaint()
+
+
+def style_uncertainty(layer) -> None:
+    lo, hi = _band_range(layer)
+    hi = max(hi, lo + 1e-3, 0.0)
+    stops = ((0.0, "#fff7ec"), (hi / 2, "#fc8d59"), (hi, "#7f0000"))
+    layer.setRenderer(_ramp_renderer(layer, stops))
+    layer.triggerRepaint()
+
+
+def style_thickness(layer) -> None:
+    lo, hi = _band_range(layer)
+    hi = max(hi, 1.0)
+    stops = ((min(lo, 0.0), "#d7191c"), (0.0, "#ffffbf"), (hi / 2, "#a6d96a"), (hi, "#1a5e2a"))
+    layer.setRenderer(_ramp_renderer(layer, stops))
     layer.triggerRepaint()
 
 
@@ -169,7 +207,8 @@ def style_attitude(layer) -> None:
                                         "outline_width": "0.6"})
     layer.setRenderer(QgsSingleSymbolRenderer(sym))
     s = QgsPalLayerSettings()
-    s.fieldName = "format_number(\"dip_deg\", 1) || '° → ' || format_number(\"dip_direction_deg\", 0) || '°'"
+    s.fieldName = ("if(\"dip_deg\" IS NULL, \"quality\", format_number(\"dip_deg\", 1) || '° → ' || "
+                   "format_number(\"dip_direction_deg\", 0) || '°')")
     s.isExpression = True
     layer.setLabeling(QgsVectorLayerSimpleLabeling(s))
     layer.setLabelsEnabled(True)
@@ -178,20 +217,23 @@ def style_attitude(layer) -> None:
 
 def style_local_attitudes(layer) -> None:
     """A strike line rotated to the local strike (RHR), labelled with the dip; grey where the
-    window's quality is weak, hidden where it is undetermined (no attitude)."""
+    window's quality is weak, nothing where it is undetermined (no attitude). Works on the tool's
+    layer (``strike_rhr_deg``, ``dip_deg``) and on ``strikeline run``'s (``strike_rhr``, ``dip``)."""
     from qgis.core import QgsProperty, QgsSymbolLayer
 
+    names = layer.fields().names()
+    strike = "strike_rhr_deg" if "strike_rhr_deg" in names else "strike_rhr"
+    dip = "dip_deg" if "dip_deg" in names else "dip"
     root = QgsRuleBasedRenderer.Rule(None)
     for expr, colour, label in (('"quality" = \'good\'', "#1b1b1b", "good"),
                                 ('"quality" = \'weak\'', "#8a8a8a", "weak")):
         sym = QgsMarkerSymbol.createSimple({"name": "line", "color": colour, "outline_color": colour,
                                             "size": "4", "outline_width": "0.5"})
-        sym.symbolLayer(0).setDataDefinedProperty(QgsSymbolLayer.PropertyAngle,
-                                                  QgsProperty.fromField("strike_rhr_deg"))
+        sym.symbolLayer(0).setDataDefinedProperty(QgsSymbolLayer.PropertyAngle, QgsProperty.fromField(strike))
         root.appendChild(QgsRuleBasedRenderer.Rule(sym, 0, 0, expr, label))
     layer.setRenderer(QgsRuleBasedRenderer(root))
     s = QgsPalLayerSettings()
-    s.fieldName = 'if("quality" = \'undetermined\', \'\', round("dip_deg"))'
+    s.fieldName = f'if("quality" = \'undetermined\', \'\', round("{dip}"))'
     s.isExpression = True
     layer.setLabeling(QgsVectorLayerSimpleLabeling(s))
     layer.setLabelsEnabled(True)
@@ -200,6 +242,9 @@ def style_local_attitudes(layer) -> None:
 
 STYLES = {
     "local_attitudes": style_local_attitudes,
+    "contact_misfit": style_contact_misfit,
+    "uncertainty": style_uncertainty,
+    "thickness": style_thickness,
     "picks": style_picks,
     "attitude": style_attitude,
     "structure_contours": style_structure_contours,
@@ -229,7 +274,7 @@ _ALIVE: list = []
 
 def attach_style(context, dest_id, style: str) -> None:
     """Style output ``dest_id`` with ``STYLES[style]`` when it is loaded on completion."""
-    if not dest_id or not context.willLoadLayerOnCompletion(dest_id):
+    if not style or not dest_id or not context.willLoadLayerOnCompletion(dest_id):
         return
     pp = StylePostProcessor(style)
     _ALIVE.append(pp)

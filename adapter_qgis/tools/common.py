@@ -16,9 +16,10 @@ def picks_table(picks) -> Table:
                  QgsWkbTypes.PointZ)
 
 
-def contours_table(geoms, elevations_m, below_ground=None, forecast=None) -> Table:
-    """Structure contours: LineStringZ at their elevation, field ``elevation`` (and the part
-    flags ``below_ground`` / ``forecast`` when they were asked for)."""
+def contours_table(geoms, elevations_m, below_ground=None, extrapolated=None) -> Table:
+    """Structure contours: LineStringZ at their elevation, field ``elevation`` (the layer of
+    ``strikeline run``), and the part flags ``extrapolated`` (beyond the reach of the data: a
+    forecast) / ``below_ground`` when they are known."""
     geoms = np.asarray(geoms, dtype=object)
     elev = np.asarray(elevations_m, dtype=float)
     if len(geoms):
@@ -26,13 +27,15 @@ def contours_table(geoms, elevations_m, below_ground=None, forecast=None) -> Tab
     fields = {"elevation": elev}
     if below_ground is not None:
         fields["below_ground"] = np.asarray(below_ground, dtype=bool)
-    if forecast is not None:
-        fields["forecast"] = np.asarray(forecast, dtype=bool)
+    if extrapolated is not None:
+        fields["extrapolated"] = np.asarray(extrapolated, dtype=bool)
     return Table(geoms, fields, QgsWkbTypes.LineStringZ)
 
 
-def trace_table(geoms) -> Table:
-    """The predicted outcrop trace: plain lines."""
+def trace_table(geoms, extrapolated=None) -> Table:
+    """The predicted outcrop trace: lines, with ``extrapolated`` (as ``strikeline run``) when known."""
     geoms = np.asarray(geoms, dtype=object)
-    return Table(geoms, {"kind": np.array(["predicted outcrop"] * len(geoms), dtype=object)},
-                 QgsWkbTypes.LineString)
+    fields = {}
+    if extrapolated is not None:
+        fields["extrapolated"] = np.asarray(extrapolated, dtype=bool)
+    return Table(geoms, fields, QgsWkbTypes.LineString)

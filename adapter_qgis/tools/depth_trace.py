@@ -6,6 +6,7 @@ import shapely
 from qgis.core import (
     QgsProcessing,
     QgsProcessingOutputNumber,
+    QgsProcessingParameterDistance,
     QgsProcessingParameterFeatureSink,
     QgsProcessingParameterFeatureSource,
     QgsProcessingParameterRasterDestination,
@@ -14,7 +15,7 @@ from qgis.core import (
 )
 
 from ..base import REF_GDAL_CONTOUR, REF_PRESS, StrikelineAlgorithm
-from ..chain import depth_trace_misfit, require_same_grid
+from ..chain import depth_trace_misfit, raster_flag, require_same_grid
 from ..inputs import read_dem, source_and_name
 from ..layers import qgis_crs, read_vector
 from ..outputs import Table, write_raster, write_sink
@@ -31,7 +32,10 @@ class DepthTrace(StrikelineAlgorithm):
         "Depth of the modelled surface below the ground (DEM − surface, metres; positive where the "
         "surface lies below ground, negative where it has been eroded away), the predicted outcrop "
         "trace (where the depth is zero) and, given the mapped contacts, the misfit: the distance "
-        "of every contact vertex to the predicted trace, with its median and 90th percentile. The "
+        "of every contact vertex to the predicted trace, with its median and 90th percentile, and the "
+        "contacts cut into segments of ten DEM cells with each segment's misfit, flagged beyond a "
+        "distance (default three cells) - where the model and the map disagree. Give the forecast "
+        "mask of Surface model to mark the trace where it is extrapolated beyond the data. The "
         "surface must be on the DEM's grid (Surface model with the DEM as reference grid).")
     METHOD = ("Depth is the cell-by-cell difference; the trace is the zero contour of the depth "
               "grid from GDAL's contour generator; distances use a spatial index over the trace's "
@@ -43,6 +47,9 @@ class DepthTrace(StrikelineAlgorithm):
     DEPTH = "DEPTH"
     TRACE = "PREDICTED_TRACE"
     MISFIT = "MISFIT"
+    SEGMENTS = "CONTACT_MISFIT"
+    FORECAST_MASK = "FORECAST_MASK"
+    MISFIT_FLAG = "MISFIT_FLAG"
 
     def initAlgorithm(self, config=None):  # noqa: N802
         self.addParameter(QgsProcessingParameterRasterLayer(
@@ -51,12 +58,21 @@ class DepthTrace(StrikelineAlgorithm):
         self.addParameter(QgsProcessingParameterFeatureSource(
             self.CONTACTS, self.tr("Mapped contact lines (for the misfit)"), [QgsProcessing.TypeVectorLine],
             optional=True))
+        self.addParameter(QgsProcessingParameterRasterLayer(
+            self.FORECAST_MASK, self.tr("Forecast mask (from Surface model) to mark extrapolated parts"),
+            optional=True))
+        self.addParameter(QgsProcessingParameterDistance(
+            self.MISFIT_FLAG, self.tr("Flag contact segments farther than (0: three DEM cells)"),
+            defaultValue=0.0, parentParameterName=self.DEM, minValue=0.0, optional=True))
         self.addParameter(QgsProcessingParameterRasterDestination(self.DEPTH, self.tr("Depth below ground")))
         self.addParameter(QgsProcessingParameterFeatureSink(
             self.TRACE, self.tr("Predicted outcrop trace"), QgsProcessing.TypeVectorLine))
         self.addParameter(QgsProcessingParameterFeatureSink(
             self.MISFIT, self.tr("Contact vertices with their misfit"), QgsProcessing.TypeVectorPoint,
             optional=True, createByDefault=False))
+        self.addParameter(QgsProcessingParameterFeatureSink(
+            self.SEGMENTS, self.tr("Contact segments and their misfit"), QgsProcessing.TypeVectorLine,
+            optional=True, createByDefault=True))
         for key, label in (("MISFIT_MEDIAN_M", "Median misfit (m)"), ("MISFIT_P90_M", "90th percentile misfit (m)"),
                            ("MISFIT_N", "Contact vertices measured")):
             self.addOutput(QgsProcessingOutputNumber(key, self.tr(label)))
@@ -65,16 +81,24 @@ class DepthTrace(StrikelineAlgorithm):
         dem, dem_grid, dpath = read_dem(self, parameters, self.DEM, context, steps, label="DEM")
         surface, grid, spath = read_dem(self, parameters, self.SURFACE, context, steps, label="surface")
         require_same_grid(grid, dem_grid, what_a=f"surface '{spath}'", what_b=f"DEM '{dpath}'")
+        mask, mask_grid, mpath = read_dem(self, parameters, self.FORECAST_MASK, context, steps,
+                                          label="forecast mask")
+        extrapolated_fn = None
+        if mask is not None:
+            require_same_grid(dem_grid, mask_grid, what_a=f"DEM '{dpath}'", what_b=f"forecast mask '{mpath}'")
+            extrapolated_fn = raster_flag(mask, mask_grid, at_least=0.5)
         contacts_src, contacts_name = source_and_name(self, parameters, self.CONTACTS, context, "contacts")
-        geoms = None
+        contacts = None
         if contacts_src is not None:
-            geoms = read_vector(contacts_src, contacts_name, geometry="line",
-                                target_crs=qgis_crs(dem_grid.crs_wkt), context=context, log=steps.log,
-                                is_cancelled=steps.is_cancelled).geoms
+            contacts = read_vector(contacts_src, contacts_name, geometry="line",
+                                   target_crs=qgis_crs(dem_grid.crs_wkt), context=context, log=steps.log,
+                                   is_cancelled=steps.is_cancelled)
         steps.feedback.setProgress(30)
         steps.check("depth and trace")
-        depth, trace, misfit, vxy, vdist = depth_trace_misfit(dem, dem_grid, surface, geoms)
+        flag_m = self.parameterAsDouble(parameters, self.MISFIT_FLAG, context) or None
+        res = depth_trace_misfit(dem, dem_grid, surface, contacts, extrapolated_fn=extrapolated_fn, flag_m=flag_m)
         steps.check("depth and trace")
+        misfit = res["misfit"]
         out = {"MISFIT_MEDIAN_M": None, "MISFIT_P90_M": None, "MISFIT_N": 0}
         if misfit is not None and misfit.get("median") is not None:
             out = {"MISFIT_MEDIAN_M": misfit["median"], "MISFIT_P90_M": misfit["p90"],
@@ -83,15 +107,25 @@ class DepthTrace(StrikelineAlgorithm):
                       f"{misfit['p90']:.1f} m over {misfit['n_vertices']} contact vertices")
         elif misfit is not None:
             steps.warn(f"trace misfit not computed: {misfit.get('note', 'no predicted trace')}")
+        seg = res["segments"]
+        if seg is not None and int(np.sum(seg["flagged"])):
+            steps.warn(f"{int(np.sum(seg['flagged']))} of {len(seg['geoms'])} contact segments lie farther "
+                       "from the predicted trace than the flag distance: check the map or the model there")
         crs = qgis_crs(dem_grid.crs_wkt)
         out_grid = dem_grid.with_nodata(None)
-        p_depth = write_raster(self, parameters, self.DEPTH, context, depth, out_grid)
-        d_trace = write_sink(self, parameters, self.TRACE, context, trace_table(trace), crs)
-        d_misfit = None
-        if geoms is not None:
+        p_depth = write_raster(self, parameters, self.DEPTH, context, res["depth"], out_grid)
+        d_trace = write_sink(self, parameters, self.TRACE, context,
+                             trace_table(res["trace"], extrapolated=res["trace_extrapolated"]), crs)
+        d_misfit = d_seg = None
+        if contacts is not None:
+            vxy = res["vertices"]
             table = Table(shapely.points(vxy) if len(vxy) else np.empty(0, object),
-                          {"distance_m": np.asarray(vdist, dtype=float)}, QgsWkbTypes.Point)
+                          {"distance_m": np.asarray(res["vertex_distance"], dtype=float)}, QgsWkbTypes.Point)
             d_misfit = write_sink(self, parameters, self.MISFIT, context, table, crs)
+            d_seg = write_sink(self, parameters, self.SEGMENTS, context,
+                               Table(seg["geoms"], {"contact_id": seg["contact_id"], "misfit_m": seg["misfit_m"],
+                                                    "flagged": seg["flagged"]}, QgsWkbTypes.LineString), crs)
+            attach_style(context, d_seg, "contact_misfit")
         attach_style(context, p_depth, "depth")
         attach_style(context, d_trace, "trace")
-        return {self.DEPTH: p_depth, self.TRACE: d_trace, self.MISFIT: d_misfit, **out}
+        return {self.DEPTH: p_depth, self.TRACE: d_trace, self.MISFIT: d_misfit, self.SEGMENTS: d_seg, **out}

@@ -9,17 +9,19 @@ from qgis.core import (
     QgsProcessingOutputString,
     QgsProcessingParameterDefinition,
     QgsProcessingParameterFeatureSink,
+    QgsProcessingParameterField,
     QgsProcessingParameterNumber,
     QgsWkbTypes,
 )
 
-from strikeline.diagnostics import assess_plane
 from strikeline.errors import InputError
 from strikeline.fitting import fit_plane
-from strikeline.uncertainty import plane_confidence
+from strikeline.pipeline import attitude_of
+from strikeline.uncertainty import MIN_REPLICATES
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
-from ..inputs import add_picks, read_picks
+from ..inputs import add_picks, read_points_xyz
+from ..layers import crs_to_srs
 from ..outputs import Table, write_sink
 from ..styles import attach_style
 
@@ -34,7 +36,8 @@ REF_EFRON = ("Efron, B. & Tibshirani, R. J. (1993). An Introduction to the Boots
 NUMBERS = (("DIP_DEG", "Dip (°)"), ("DIP_DIRECTION_DEG", "Dip direction (° from grid north)"),
            ("STRIKE_RHR_DEG", "Strike, right-hand rule (°)"), ("RMS_M", "RMS orthogonal residual (m)"),
            ("N_PICKS", "Picks used"))
-CONFIDENCE_NUMBERS = (("DIP_CI95_DEG", "Dip, 95% half-width (°)"),
+CONFIDENCE_NUMBERS = (("DIP_DIRECTION_TRUE_DEG", "Dip direction from true north (°)"),
+                      ("DIP_CI95_DEG", "Dip, 95% half-width (°)"),
                       ("DIP_DIRECTION_CI95_DEG", "Dip direction, 95% half-width (°)"),
                       ("CONE95_DEG", "95% confidence cone of the pole (°)"),
                       ("COPLANARITY_M", "Coplanarity M (Woodcock)"),
@@ -65,13 +68,45 @@ def log_plane(steps, plane) -> None:
               f"from {plane.n_points} picks")
 
 
-def report_quality(steps, quality) -> None:
-    """Quality to the log: ``undetermined`` as a warning with the advice, ``weak`` as a warning."""
-    line = f"plane quality {quality.quality}: {quality.reason}"
-    if quality.quality == "good":
+def report_quality(steps, att: dict, what: str = "plane") -> None:
+    """Quality to the log: ``good`` as information, ``weak`` and ``undetermined`` as warnings
+    with the reason and what data would help."""
+    line = f"{what} quality {att['quality']}: {att['reason']}"
+    if att["quality"] == "good":
         steps.log(line)
     else:
-        steps.warn(f"{line}; {quality.advice}" if quality.advice else line)
+        steps.warn(f"{line}; {att['advice']}" if att.get("advice") else line)
+
+
+#: Output fields: (field, key of strikeline.pipeline.attitude_of's dict, numpy dtype).
+ATTITUDE_FIELDS = (("dip_deg", "dip", float), ("dip_direction_deg", "dip_direction", float),
+                   ("strike_rhr_deg", "strike_rhr", float), ("dip_direction_true_deg", "dip_direction_true", float),
+                   ("meridian_convergence_deg", "meridian_convergence_deg", float), ("rms_m", "rms_m", float),
+                   ("n_picks", "n_picks", np.int64), ("dip_ci95_deg", "dip_ci95", float),
+                   ("dip_direction_ci95_deg", "dip_direction_ci95", float), ("cone95_deg", "cone95", float),
+                   ("confidence_method", "confidence_method", object), ("quality", "quality", object),
+                   ("reason", "reason", object), ("advice", "advice", object),
+                   ("coplanarity_m", "coplanarity_M", float), ("collinearity_k", "collinearity_K", float))
+
+
+def attitude_table(planes: list) -> Table:
+    """One PointZ per plane (at the picks' centroid) with every value of ``attitude_of``."""
+    cols = {}
+    for f, key, dt in ATTITUDE_FIELDS:
+        vals = [p[1].get(key) for p in planes]
+        if dt is float:
+            cols[f] = np.array([np.nan if v is None else float(v) for v in vals])
+        elif dt is np.int64:
+            cols[f] = np.array([0 if v is None else int(v) for v in vals], dtype=np.int64)
+        else:
+            arr = np.empty(len(vals), dtype=object)
+            arr[:] = vals
+            cols[f] = arr
+    group = np.empty(len(planes), dtype=object)
+    group[:] = [p[0] for p in planes]
+    cols["group"] = group
+    pts = np.array([p[2] for p in planes], dtype=float).reshape(-1, 3)
+    return Table(shapely.points(pts), cols, QgsWkbTypes.PointZ)
 
 
 class PlaneAttitude(StrikelineAlgorithm):
@@ -80,29 +115,34 @@ class PlaneAttitude(StrikelineAlgorithm):
     GROUP = "picks"
     SUMMARY = (
         "Dip, dip direction and right-hand-rule strike of the plane that fits the elevation picks "
-        "best, with the RMS orthogonal residual, 95% confidence half-widths (bootstrap over the picks, "
-        "plus a Monte Carlo of the picks' vertical error when it is given) and a quality verdict "
-        "(good / weak / undetermined, with the reason and what data would help). The output is one "
-        "point at the picks' centroid carrying all of it, and the numbers as outputs for a model. "
-        "Exactly three picks give the three-point solution; fewer, or picks all on one line, are "
-        "refused with what data would help.")
+        "(or any points with elevations) best, as `strikeline attitude` reports it: the RMS "
+        "orthogonal residual, 95% confidence half-widths (bootstrap over the points, plus a Monte "
+        "Carlo of their vertical error when it is given), the dip direction from true north, and a "
+        "quality verdict (good / weak / undetermined) with the reason and what data would help. An "
+        "undetermined plane gets no attitude. With a grouping field, one plane per group as well. "
+        "The output has one point per plane at its centroid; the sheet-wide numbers are outputs "
+        "for a model.")
     METHOD = (
         "Total least squares: the plane passes through the centroid of the picks and its normal is "
-        "the eigenvector of the smallest eigenvalue of their scatter matrix. Confidence: percentile "
-        "bootstrap of the picks (and Monte Carlo of the vertical error). Quality: Woodcock's "
-        "eigenvalue shape measures (coplanarity M, collinearity K) with Fernández's limits for a "
-        "reliable plane, the picks' relief and the dip's half-width.")
+        "the eigenvector of the smallest eigenvalue of their scatter matrix (three picks: the "
+        "three-point solution). Confidence: percentile bootstrap of the picks (and Monte Carlo of the "
+        "vertical error). Quality: Woodcock's eigenvalue shape measures (coplanarity M, collinearity "
+        "K) with Fernández's limits for a reliable plane, the picks' relief and the dip's half-width.")
     REFERENCES = (REF_FERNANDEZ, REF_WOODCOCK, REF_JONES, REF_EFRON)
     OUTPUT = "ATTITUDE"
+    GROUP_BY = "GROUP_BY"
     RESAMPLES = "RESAMPLES"
     SIGMA_Z = "SIGMA_Z"
     SEED = "SEED"
 
     def initAlgorithm(self, config=None):  # noqa: N802
         add_picks(self)
+        self.addParameter(QgsProcessingParameterField(
+            self.GROUP_BY, self.tr("Also one plane per value of this field"), parentLayerParameterName="PICKS",
+            optional=True))
         self.addParameter(QgsProcessingParameterNumber(
-            self.RESAMPLES, self.tr("Bootstrap resamples for the 95% confidence (0: none)"),
-            QgsProcessingParameterNumber.Integer, defaultValue=1000, minValue=0, optional=True))
+            self.RESAMPLES, self.tr("Bootstrap resamples for the 95% confidence"),
+            QgsProcessingParameterNumber.Integer, defaultValue=1000, minValue=MIN_REPLICATES, optional=True))
         self.addParameter(QgsProcessingParameterNumber(
             self.SIGMA_Z, self.tr("Vertical standard error of the picks (m, 0: unknown)"),
             QgsProcessingParameterNumber.Double, defaultValue=0.0, minValue=0.0, optional=True))
@@ -120,46 +160,55 @@ class PlaneAttitude(StrikelineAlgorithm):
         self.addOutput(QgsProcessingOutputString("QUALITY_REASON", self.tr("Reason for the quality")))
 
     def process(self, parameters, context, steps):
-        xyz, source, name = read_picks(self, parameters, context, steps)
-        n_resamples = self.parameterAsInt(parameters, self.RESAMPLES, context)
-        sigma = self.parameterAsDouble(parameters, self.SIGMA_Z, context) or None
+        group_by = self.parameterAsString(parameters, self.GROUP_BY, context)
+        xyz, source, name, extra = read_points_xyz(
+            self, parameters, "PICKS", "PICKS_ELEV_FIELD", context, steps, label="picks",
+            field_label="Elevation field of the picks", fields=(), text_fields=(group_by,) if group_by else ())
+        ok = np.isfinite(xyz).all(axis=1)
+        if (~ok).any():
+            steps.warn(f"{int((~ok).sum())} of {len(xyz)} picks have no elevation and are left out")
+        xyz = xyz[ok]
+        labels = None if not group_by else np.array([str(v) for v in extra[group_by][ok]], dtype=object)
+        sigma = self.parameterAsDouble(parameters, self.SIGMA_Z, context)
+        resamples = self.parameterAsInt(parameters, self.RESAMPLES, context)
         seed = self.parameterAsInt(parameters, self.SEED, context)
-        plane = fit_named(xyz, f"picks {name.what}")
-        log_plane(steps, plane)
+        crs_wkt = crs_to_srs(source.sourceCrs()).ExportToWkt()
+        sigma_all = np.full(len(xyz), sigma) if sigma > 0 else None
+
+        def plane_of(mask, what):
+            s = None if sigma_all is None else sigma_all[mask]
+            att = attitude_of(xyz[mask], s, crs_wkt=crs_wkt, what=what, strict=False, resamples=resamples,
+                              seed=seed, is_cancelled=steps.is_cancelled)
+            where = att.get("centroid") or (xyz[mask].mean(axis=0).tolist() if mask.any() else [np.nan] * 3)
+            return att, where
+
         steps.feedback.setProgress(10)
-        conf = None
-        if n_resamples > 0:
-            conf = plane_confidence(xyz, sigma_z_m=sigma, n_resamples=n_resamples, n_draws=n_resamples,
-                                    seed=seed, progress=steps.part(0.1, 0.9), is_cancelled=steps.is_cancelled)
-            steps.log(f"95% confidence ({conf.method}): dip ± {conf.dip_ci95_deg:.3f}°, dip direction "
-                      f"± {conf.dip_direction_ci95_deg:.3f}°, pole cone {conf.cone95_deg:.3f}°")
-        quality = assess_plane(xyz, sigma_z_m=sigma, dip_ci95_deg=None if conf is None else conf.dip_ci95_deg)
-        report_quality(steps, quality)
+        whole, where = plane_of(np.ones(len(xyz), dtype=bool), f"picks {name.what}")
+        planes = [("", whole, where)]
+        if whole.get("dip") is not None:
+            steps.log(f"best-fit plane: dip {whole['dip']:.2f}° toward {whole['dip_direction']:.1f}° "
+                      f"(strike {whole['strike_rhr']:.1f}° RHR; {whole['dip_direction_true']:.1f}° from true "
+                      f"north), RMS residual {whole['rms_m']:.2f} m from {whole['n_picks']} picks")
+            if whole.get("dip_ci95") is not None:
+                steps.log(f"95% confidence ({whole['confidence_method']}): dip ± {whole['dip_ci95']:.3f}°, "
+                          f"dip direction ± {whole['dip_direction_ci95']:.3f}°, pole cone {whole['cone95']:.3f}°")
+        report_quality(steps, whole)
+        if labels is not None:
+            groups = sorted(set(labels.tolist()))
+            for k, g in enumerate(groups):
+                steps.check("plane attitude")
+                att, at = plane_of(labels == g, f"group {group_by} = {g}")
+                report_quality(steps, att, f"group {g}")
+                planes.append((g, att, at))
+                steps.feedback.setProgress(10 + 80 * (k + 1) / len(groups))
         steps.check("plane attitude")
-        n = plane.normal
-        nan = float("nan")
-        ci = {"dip_ci95_deg": conf.dip_ci95_deg if conf else nan,
-              "dip_direction_ci95_deg": conf.dip_direction_ci95_deg if conf else nan,
-              "cone95_deg": conf.cone95_deg if conf else nan}
-        table = Table(shapely.points(np.asarray(plane.centroid, dtype=float).reshape(1, 3)),
-                      {"dip_deg": np.array([plane.dip_deg]),
-                       "dip_direction_deg": np.array([plane.dip_direction_deg]),
-                       "strike_rhr_deg": np.array([plane.strike_rhr_deg]),
-                       "rms_m": np.array([plane.rms_m]),
-                       "n_picks": np.array([plane.n_points], dtype=np.int64),
-                       **{k: np.array([v]) for k, v in ci.items()},
-                       "quality": np.array([quality.quality], dtype=object),
-                       "quality_reason": np.array([quality.reason], dtype=object),
-                       "coplanarity_m": np.array([quality.coplanarity]),
-                       "collinearity_k": np.array([quality.collinearity]),
-                       "normal_x": np.array([n[0]]), "normal_y": np.array([n[1]]),
-                       "normal_z": np.array([n[2]])},
-                      QgsWkbTypes.PointZ)
-        dest = write_sink(self, parameters, self.OUTPUT, context, table, source.sourceCrs())
+        dest = write_sink(self, parameters, self.OUTPUT, context, attitude_table(planes), source.sourceCrs())
         attach_style(context, dest, "attitude")
-        return {self.OUTPUT: dest, **plane_numbers(plane),
-                "DIP_CI95_DEG": ci["dip_ci95_deg"] if conf else None,
-                "DIP_DIRECTION_CI95_DEG": ci["dip_direction_ci95_deg"] if conf else None,
-                "CONE95_DEG": ci["cone95_deg"] if conf else None,
-                "COPLANARITY_M": quality.coplanarity, "COLLINEARITY_K": quality.collinearity,
-                "QUALITY": quality.quality, "QUALITY_REASON": quality.reason}
+        out = {self.OUTPUT: dest, "QUALITY": whole["quality"], "QUALITY_REASON": whole["reason"]}
+        for key, k in (("DIP_DEG", "dip"), ("DIP_DIRECTION_DEG", "dip_direction"), ("STRIKE_RHR_DEG", "strike_rhr"),
+                       ("RMS_M", "rms_m"), ("N_PICKS", "n_picks"), ("DIP_DIRECTION_TRUE_DEG", "dip_direction_true"),
+                       ("DIP_CI95_DEG", "dip_ci95"), ("DIP_DIRECTION_CI95_DEG", "dip_direction_ci95"),
+                       ("CONE95_DEG", "cone95"), ("COPLANARITY_M", "coplanarity_M"),
+                       ("COLLINEARITY_K", "collinearity_K")):
+            out[key] = whole.get(k)
+        return out

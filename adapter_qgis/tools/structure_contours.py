@@ -16,7 +16,7 @@ from strikeline.io.contours import contour_lines
 from ..base import REF_GDAL_CONTOUR, StrikelineAlgorithm
 from strikeline.grids import depth_below_ground
 
-from ..chain import contours_by_class, require_same_grid
+from ..chain import raster_flag, require_same_grid, split_by_flags
 from ..inputs import read_dem
 from ..layers import qgis_crs
 from ..outputs import write_sink
@@ -32,10 +32,10 @@ class StructureContours(StrikelineAlgorithm):
     SUMMARY = (
         "Lines of equal elevation of the modelled surface every interval metres (levels at "
         "multiples of the interval), as LineStringZ at their elevation with the field 'elevation'. "
-        "Give the DEM as ground to split every line where the surface passes from below ground "
-        "(field below_ground true, drawn solid) to above ground (eroded away, drawn pale); give the "
-        "forecast mask of Surface model to split it where the surface leaves the reach of the data "
-        "(field forecast true, drawn dashed). Lines stop on the last valid cell centre of each part.")
+        "Give the forecast mask of Surface model to split every line where the surface leaves the "
+        "reach of the data (field extrapolated true: a forecast, drawn dashed), as strikeline run "
+        "does; give the DEM as ground to split it where the surface passes from below ground (field "
+        "below_ground true, drawn solid) to above ground (eroded away, drawn pale).")
     METHOD = ("GDAL's contour generator (marching squares between cell centres) on the surface "
               "grid; the half-cell fringe GDAL extrapolates at edges and nodata is trimmed, so every "
               "vertex lies on the gridded surface.")
@@ -55,7 +55,7 @@ class StructureContours(StrikelineAlgorithm):
         self.addParameter(QgsProcessingParameterRasterLayer(
             self.GROUND, self.tr("Ground (DEM) to mark the parts above and below ground"), optional=True))
         self.addParameter(QgsProcessingParameterRasterLayer(
-            self.FORECAST_MASK, self.tr("Forecast mask (from Surface model) to mark forecast parts"),
+            self.FORECAST_MASK, self.tr("Forecast mask (from Surface model) to mark extrapolated parts"),
             optional=True))
         self.addParameter(QgsProcessingParameterFeatureSink(
             self.OUTPUT, self.tr("Structure contours"), QgsProcessing.TypeVectorLine))
@@ -69,18 +69,17 @@ class StructureContours(StrikelineAlgorithm):
                                           label="forecast mask")
         steps.feedback.setProgress(30)
         steps.check("structure contours")
+        geoms, elev = contour_lines(surface, grid, interval_m=interval)
         flags = {}
-        if dem is not None:
-            require_same_grid(grid, dem_grid, what_a=f"surface '{spath}'", what_b=f"DEM '{dpath}'")
-            flags["below_ground"] = depth_below_ground(dem, surface) >= 0
         if mask is not None:
             require_same_grid(grid, mask_grid, what_a=f"surface '{spath}'", what_b=f"forecast mask '{mpath}'")
-            flags["forecast"] = np.nan_to_num(mask, nan=0.0) >= 0.5
+            flags["extrapolated"] = raster_flag(mask, mask_grid, at_least=0.5)
+        if dem is not None:
+            require_same_grid(grid, dem_grid, what_a=f"surface '{spath}'", what_b=f"DEM '{dpath}'")
+            flags["below_ground"] = raster_flag(depth_below_ground(dem, surface), grid, at_least=0.0)
+        parts = {}
         if flags:
-            geoms, elev, parts = contours_by_class(surface, grid, interval_m=interval, flags=flags)
-        else:
-            geoms, elev = contour_lines(surface, grid, interval_m=interval)
-            parts = {}
+            geoms, elev, parts = split_by_flags(geoms, elev, flags, spacing_m=min(grid.cell_x_m, grid.cell_y_m))
         steps.feedback.setProgress(90)
         steps.check("structure contours")
         steps.log(f"structure contours: {len(geoms)} lines every {interval:g} m")

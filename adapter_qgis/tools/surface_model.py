@@ -144,7 +144,7 @@ class SurfaceModel(StrikelineAlgorithm):
         model = METHODS[self.parameterAsEnum(parameters, self.METHOD_P, context)][0]
         xyz, source, name = read_picks(self, parameters, context, steps)
         crs = source.sourceCrs()
-        boreholes, _, _ = read_points_xyz(self, parameters, self.BOREHOLES, self.BOREHOLES_FIELD, context,
+        boreholes, _, _, _ = read_points_xyz(self, parameters, self.BOREHOLES, self.BOREHOLES_FIELD, context,
                                           steps, label="boreholes",
                                           field_label="Elevation field of the boreholes", target_crs=crs)
         orientations = None

@@ -40,7 +40,9 @@ if QgsApplication is not None:
     Processing.initialize()
     import adapter_qgis
 
-    adapter_qgis.initProcessing()
+    _provider = adapter_qgis.initProcessing()
+    if _provider.load_error:
+        raise RuntimeError(f"the strikeline provider loaded no tools: {_provider.load_error}")
 
 
 def pytest_report_header(config):
@@ -94,17 +96,21 @@ def run():
     return _run
 
 
+#: Options that keep the library's whole chain quick in tests (the tools are run with the same).
+QUICK = {"model": "plane", "resamples": 100}
+
+
 @pytest.fixture(scope="session")
 def library():
     """The library's own result for the demo sheet's inputs (the reference of these tests)."""
     from strikeline.pipeline import RunOptions, compute, load_inputs
 
-    def _lib(sheet, *, dem=True, contours=True, interval_m=50.0, cell_m=None):
+    def _lib(sheet, *, dem=True, contours=True, interval_m=50.0, cell_m=None, **options):
         opts = RunOptions(contacts=sheet["contacts"], out="/nonexistent-out", interval_m=interval_m,
                           cell_m=cell_m, dem=sheet["dem"] if dem else None,
                           contours=sheet["contours"] if contours else None,
                           contours_layer="topo_contours" if contours else None,
-                          elev_field=sheet["elev_field"] if contours else None)
+                          elev_field=sheet["elev_field"] if contours else None, **{**QUICK, **options})
         inputs = load_inputs(opts)
         return inputs, compute(inputs, opts)
 

@@ -131,8 +131,13 @@ def test_too_few_picks(run):
         f.setGeometry(QgsGeometry.fromWkt(f"PointZ ({x} {y} {z})"))
         feats.append(f)
     mem.dataProvider().addFeatures(feats)
-    got = qgis_message(run, "planeattitude", {"PICKS": mem, "ATTITUDE": TMP})
-    assert "only 2 usable pick(s)" in got and "two_points" in got
+    # As `strikeline attitude`: an undetermined plane is reported (no attitude), with the reason.
+    fb = QgsProcessingFeedback()
+    warnings = []
+    fb.pushWarning = warnings.append
+    res = run("planeattitude", {"PICKS": mem, "ATTITUDE": TMP}, feedback=fb)
+    assert res["QUALITY"] == "undetermined" and res["DIP_DEG"] is None
+    assert any("only 2 pick(s)" in w and "at least three" in w for w in warnings)
 
 
 def test_points_without_z(run):
@@ -162,14 +167,15 @@ def cancelling_feedback(at_percent: float) -> QgsProcessingFeedback:
 
 @pytest.mark.parametrize("at", [6.0, 40.0, 81.0])
 def test_cancelled_whole_chain_leaves_no_output(run, sheet, tmp_path, at):
-    outs = {k: str(tmp_path / f"{k.lower()}.tif") for k in ("SURFACE", "DIP", "DIP_DIRECTION", "DEPTH")}
-    outs.update({k: str(tmp_path / f"{k.lower()}.gpkg") for k in ("PICKS", "STRUCTURE_CONTOURS", "PREDICTED_TRACE")})
+    outs = {k: str(tmp_path / f"{k.lower()}.tif") for k in ("SURFACE", "DIP", "DIP_DIRECTION", "DEPTH", "UNCERTAINTY")}
+    outs.update({k: str(tmp_path / f"{k.lower()}.gpkg")
+                 for k in ("PICKS", "STRUCTURE_CONTOURS", "PREDICTED_TRACE", "CONTACT_MISFIT", "ATTITUDES")})
     fb = cancelling_feedback(at)
     t0 = time.perf_counter()
     with pytest.raises(QgsProcessingException, match="cancelled"):
         run("modelcontact", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"],
-                             "CONTOURS": sheet["contours_uri"], "ELEV_FIELD": "elev_m",
-                             "SUMMARY": str(tmp_path / "summary.json"), **outs}, feedback=fb)
+                             "CONTOURS": sheet["contours_uri"], "ELEV_FIELD": "elev_m", "MODEL": 1,
+                             "RESAMPLES": 100, "SUMMARY": str(tmp_path / "summary.json"), **outs}, feedback=fb)
     assert fb.isCanceled()
     assert time.perf_counter() - t0 < 10.0
     assert sorted(p.name for p in tmp_path.iterdir()) == []

@@ -25,7 +25,7 @@ from qgis.core import (
     QgsProcessingParameterField,
     QgsProcessingParameterRasterLayer,
 )
-from qgis_helpers import assert_same_lines, table
+from qgis_helpers import table
 
 pytestmark = pytest.mark.qgis
 
@@ -89,7 +89,8 @@ def test_model_gives_the_contours_of_strikeline_run(sheet, tmp_path):
     cli = Path(sys.executable).with_name("strikeline")
     done = subprocess.run([str(cli), "run", "--contacts", sheet["contacts"], "--dem", sheet["dem"],
                            "--contours", sheet["contours"], "--elev-field", sheet["elev_field"],
-                           "--interval", str(INTERVAL_M), "--out", str(tmp_path / "cli")],
+                           "--interval", str(INTERVAL_M), "--model", "plane", "--resamples", "100",
+                           "--out", str(tmp_path / "cli")],
                           capture_output=True, text=True, timeout=300)
     assert done.returncode == 0, done.stderr
     ds = ogr.Open(str(tmp_path / "cli" / "results.gpkg"))
@@ -102,8 +103,15 @@ def test_model_gives_the_contours_of_strikeline_run(sheet, tmp_path):
     ref_geoms = shapely.force_2d(shapely.from_wkb(wkbs))
     ref_z = np.asarray(levels, dtype=float)
 
-    np.testing.assert_array_equal(np.sort(got_cols["elevation"]), np.sort(ref_z))
-    assert_same_lines(got_geoms, got_cols["elevation"], ref_geoms, ref_z, tol_m=FLOAT32_CONTOUR_TOL_M)
+    # `strikeline run` cuts its lines where they leave the reach of the data; the model's
+    # structure contours are whole lines: per level, the same line work.
+    levels = np.unique(ref_z)
+    np.testing.assert_array_equal(np.unique(got_cols["elevation"]), levels)
+    for z in levels:
+        got = shapely.line_merge(shapely.union_all(got_geoms[got_cols["elevation"] == z]))
+        ref = shapely.line_merge(shapely.union_all(ref_geoms[ref_z == z]))
+        assert shapely.hausdorff_distance(got, ref) <= FLOAT32_CONTOUR_TOL_M, z
+        assert abs(got.length - ref.length) <= FLOAT32_CONTOUR_TOL_M * 10, z
 
     # External: the vertices lie on the TLS plane of the picks (numpy SVD of the centred picks).
     picks = processing.run("strikeline:contactpicks", {

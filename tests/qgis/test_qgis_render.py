@@ -159,9 +159,9 @@ def test_styles_are_attached_to_loaded_outputs(sheet):
             assert isinstance(target.renderer(), QgsRuleBasedRenderer)
             rules = {r.filterExpression(): r.symbol().symbolLayer(0) for r in target.renderer().rootRule().children()}
             assert len(rules) == 4
-            solid = rules['"below_ground" AND NOT "forecast"']
-            dashed = rules['"below_ground" AND "forecast"']
-            eroded = rules['NOT "below_ground" AND NOT "forecast"']
+            solid = rules['"below_ground" AND NOT "extrapolated"']
+            dashed = rules['"below_ground" AND "extrapolated"']
+            eroded = rules['NOT "below_ground" AND NOT "extrapolated"']
             assert solid.penStyle() == Qt.SolidLine and dashed.penStyle() == Qt.DashLine
             assert eroded.color() != solid.color() and eroded.width() < solid.width()
             assert target.labelsEnabled() and "elevation" in target.labeling().settings().fieldName

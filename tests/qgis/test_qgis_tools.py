@@ -156,23 +156,45 @@ def test_plane_attitude_is_the_library_fit(run, sheet, reference, kind, tmp_path
 
 
 def test_plane_confidence_and_quality_are_the_library_ones(run, sheet, reference):
-    from strikeline.diagnostics import assess_plane
-    from strikeline.uncertainty import plane_confidence
+    from strikeline.pipeline import attitude_of
 
     picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "PICKS": TMP})["PICKS"]
     res = run("planeattitude", {"PICKS": picks, "RESAMPLES": 200, "SIGMA_Z": 0.5, "SEED": 3, "ATTITUDE": TMP})
     geoms, cols = table(picks)
     xyz = shapely.get_coordinates(geoms, include_z=True)
-    conf = plane_confidence(xyz, sigma_z_m=0.5, n_resamples=200, n_draws=200, seed=3)
-    quality = assess_plane(xyz, sigma_z_m=0.5, dip_ci95_deg=conf.dip_ci95_deg)
-    assert res["DIP_CI95_DEG"] == conf.dip_ci95_deg
-    assert res["DIP_DIRECTION_CI95_DEG"] == conf.dip_direction_ci95_deg
-    assert res["CONE95_DEG"] == conf.cone95_deg
-    assert (res["QUALITY"], res["QUALITY_REASON"]) == (quality.quality, quality.reason)
-    _, att = table(res["ATTITUDE"])
-    assert att["quality"][0] == quality.quality and att["cone95_deg"][0] == conf.cone95_deg
-    none = run("planeattitude", {"PICKS": picks, "RESAMPLES": 0, "ATTITUDE": TMP})
-    assert none["DIP_CI95_DEG"] is None and none["QUALITY"] == assess_plane(xyz).quality
+    # The library's call behind `strikeline attitude --dem-sigma 0.5 --resamples 200 --seed 3`.
+    att = attitude_of(xyz, np.full(len(xyz), 0.5), crs_wkt=reference[0].crs_wkt, what="picks", strict=False,
+                      resamples=200, seed=3)
+    for key, k in (("DIP_CI95_DEG", "dip_ci95"), ("DIP_DIRECTION_CI95_DEG", "dip_direction_ci95"),
+                   ("CONE95_DEG", "cone95"), ("DIP_DIRECTION_TRUE_DEG", "dip_direction_true"),
+                   ("COPLANARITY_M", "coplanarity_M"), ("COLLINEARITY_K", "collinearity_K")):
+        assert res[key] == att[k], key
+    assert (res["QUALITY"], res["QUALITY_REASON"]) == (att["quality"], att["reason"])
+    _, row = table(res["ATTITUDE"])
+    assert row["quality"][0] == att["quality"] and row["cone95_deg"][0] == att["cone95"]
+    assert row["meridian_convergence_deg"][0] == att["meridian_convergence_deg"]
+    # External: grid north and true north differ by the meridian convergence of UTM zone 31N at
+    # the centroid; the true azimuth is the grid azimuth plus the convergence.
+    # Source: pyproj 3.4 Proj.get_factors(...).meridian_convergence (PROJ's own computation).
+    import pyproj
+
+    lon, lat = pyproj.Transformer.from_crs("EPSG:32631", "EPSG:4326", always_xy=True).transform(
+        *att["centroid"][:2])
+    gamma = pyproj.Proj("EPSG:32631").get_factors(lon, lat).meridian_convergence
+    assert abs(abs(att["meridian_convergence_deg"]) - abs(gamma)) < 1e-6
+    assert (res["DIP_DIRECTION_TRUE_DEG"] - res["DIP_DIRECTION_DEG"]) % 360.0 == pytest.approx(
+        att["meridian_convergence_deg"] % 360.0, abs=1e-9)
+
+
+def test_plane_per_group(run, sheet):
+    picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"],
+                                 "CONTOURS": sheet["contours_uri"], "ELEV_FIELD": "elev_m", "PICKS": TMP})["PICKS"]
+    res = run("planeattitude", {"PICKS": picks, "GROUP_BY": "source", "RESAMPLES": 50, "ATTITUDE": TMP})
+    _, rows = table(res["ATTITUDE"])
+    assert rows["group"].tolist() == ["", "contours", "dem"]
+    assert rows["dip_deg"][0] == pytest.approx(res["DIP_DEG"], abs=1e-12)
+    # common practice: contour and DEM picks of one planar contact give (nearly) the same dip.
+    assert abs(rows["dip_deg"][1] - rows["dip_deg"][2]) < 0.5
 
 
 def test_undetermined_quality_is_a_warning_in_the_log(run):
@@ -193,6 +215,7 @@ def test_undetermined_quality_is_a_warning_in_the_log(run):
     res = run("planeattitude", {"PICKS": mem, "RESAMPLES": 50, "ATTITUDE": TMP}, feedback=fb)
     assert res["QUALITY"] == "undetermined"
     assert any("plane quality undetermined" in w and "data that would help" in w for w in warnings)
+    assert res["DIP_DEG"] is None  # an undetermined plane reports no attitude
 
 
 def test_local_attitudes_are_the_library_ones(run, sheet, reference):
@@ -329,10 +352,10 @@ def test_structure_contours_dash_the_forecast(run, contour_picks):
     res = run("structurecontours", {"SURFACE": sm["SURFACE"], "FORECAST_MASK": sm["EXTRAPOLATED"],
                                     "INTERVAL": 50.0, "STRUCTURE_CONTOURS": TMP})
     geoms, cols = table(res["STRUCTURE_CONTOURS"], z=False)
-    forecast = cols["forecast"].astype(bool)
+    forecast = cols["extrapolated"].astype(bool)
     assert forecast.any() and (~forecast).any()
     # External: distance of each vertex to the nearest pick (scipy cKDTree): beyond the reach on
-    # forecast parts, within it elsewhere, give or take one cell diagonal (parts end on cell centres).
+    # forecast parts, within it elsewhere, give or take one cell (the mask is cut between centres).
     tree = cKDTree(xyz[:, :2])
     slack = 25.0 * np.sqrt(2.0)
     for g, fc in zip(geoms, forecast):
@@ -363,12 +386,13 @@ def test_structure_contours_split_at_the_ground(run, surface_tif, sheet):
     below = cols["below_ground"].astype(bool)
     assert below.any() and (~below).any()
     # External: ground minus surface at the vertices, both interpolated by scipy's linear
-    # RegularGridInterpolator (scipy 1.10): never below zero on the forecast parts, never above
-    # zero on the eroded ones (vertices lie on edges between cell centres of one side).
+    # RegularGridInterpolator (scipy 1.10): never below zero on the parts below ground, never
+    # above zero on the eroded ones.
     ground = bilinear_reference(sheet["dem"])
     surf = bilinear_reference(surface_tif)
     for g, b in zip(geoms, below):
-        xy = shapely.get_coordinates(g)
+        # A part's two end points are where the flag changes: they belong to both sides.
+        xy = shapely.get_coordinates(g)[1:-1]
         depth = ground(xy[:, 0], xy[:, 1]) - surf(xy[:, 0], xy[:, 1])
         depth = depth[np.isfinite(depth)]
         assert (depth >= -1e-6).all() if b else (depth <= 1e-6).all()
@@ -397,7 +421,7 @@ def test_dip_grids_are_the_library_grids(run, surface_tif):
 def test_depth_trace_and_misfit(run, surface_tif, sheet, reference, kind):
     contacts, _ = topo(sheet, kind)
     res = run("depthtrace", {"SURFACE": surface_tif, "DEM": sheet["dem"], "CONTACTS": contacts,
-                             "DEPTH": TMP, "PREDICTED_TRACE": TMP, "MISFIT": TMP})
+                             "DEPTH": TMP, "PREDICTED_TRACE": TMP, "MISFIT": TMP, "CONTACT_MISFIT": TMP})
     dem, dgrid = read_raster(sheet["dem"], label="DEM")
     surface, _ = read_raster(surface_tif, label="surface")
     depth, _, _ = raster(res["DEPTH"])
@@ -417,45 +441,69 @@ def test_depth_trace_and_misfit(run, surface_tif, sheet, reference, kind):
     trace = shapely.multilinestrings(list(geoms))
     np.testing.assert_allclose(cols["distance_m"], shapely.distance(pts, trace), atol=1e-9)
     assert res["MISFIT_MEDIAN_M"] == pytest.approx(float(np.median(cols["distance_m"])), abs=1e-12)
+    # Contact segments: the library's own segmentation against the same trace.
+    from strikeline.picks import sample_bilinear
+    from strikeline.trace import contact_misfit_segments
+
+    ref_contacts = reference[0].contacts
+    seg = contact_misfit_segments(ref_contacts.geoms, ref_contacts.fids, ref_trace, segment_m=100.0, flag_m=30.0,
+                                  valid_fn=lambda x, y: np.isfinite(sample_bilinear(dem, dgrid, x, y)))
+    sg, sc = table(res["CONTACT_MISFIT"], z=False)
+    assert len(sg) == len(seg["geoms"]) > 0
+    np.testing.assert_array_equal(np.array([np.nan if v is None else v for v in sc["misfit_m"]], float),
+                                  seg["misfit_m"])
+    assert sc["flagged"].astype(bool).tolist() == seg["flagged"].tolist()
 
 
 # ------------------------------------------------------------------------------- whole chain
+QUICK_TOOL = {"MODEL": 1, "RESAMPLES": 100}  # the tool's values of conftest.QUICK: plane, 100 resamples
+
+
 @pytest.mark.parametrize("kind", ["file", "memory"])
 def test_whole_chain_is_the_library_chain(run, sheet, reference, kind, tmp_path):
     import json
 
     contacts, contours = topo(sheet, kind)
-    out = {k: str(tmp_path / f"{k.lower()}.tif") for k in ("SURFACE", "DIP", "DIP_DIRECTION", "DEPTH")}
-    out.update({k: str(tmp_path / f"{k.lower()}.gpkg") for k in ("PICKS", "STRUCTURE_CONTOURS", "PREDICTED_TRACE")})
+    rasters = ("SURFACE", "DIP", "DIP_DIRECTION", "UNCERTAINTY", "DEPTH")
+    out = {k: str(tmp_path / f"{k.lower()}.tif") for k in rasters}
+    layers = ("PICKS", "STRUCTURE_CONTOURS", "PREDICTED_TRACE", "CONTACT_MISFIT", "ATTITUDES")
+    out.update({k: str(tmp_path / f"{k.lower()}.gpkg") for k in layers})
     res = run("modelcontact", {"CONTACTS": contacts, "DEM": sheet["dem"], "CONTOURS": contours,
                                "ELEV_FIELD": "elev_m", "INTERVAL": 50.0, "SUMMARY": str(tmp_path / "summary.json"),
-                               **out})
+                               **QUICK_TOOL, **out})
     inputs, r = reference
-    for key, arr in (("SURFACE", r.surface), ("DIP", r.dip_deg), ("DIP_DIRECTION", r.dip_direction_deg),
-                     ("DEPTH", r.depth_m)):
+    for key, arr in zip(rasters, (r.surface, r.dip_deg, r.dip_direction_deg, r.uncertainty_m, r.depth_m)):
         got, gt, _ = raster(res[key])
         assert gt == r.grid.transform
         np.testing.assert_array_equal(got, np.asarray(arr, dtype=np.float32).astype(float), err_msg=key)
     geoms, cols = table(res["STRUCTURE_CONTOURS"])
     np.testing.assert_array_equal(cols["elevation"], r.contour_elevations_m)
+    assert cols["extrapolated"].astype(bool).tolist() == r.contour_extrapolated.tolist()
+    assert r.contour_extrapolated.any() and not r.contour_extrapolated.all()
     for g, rg in zip(geoms, r.contour_geoms):
         np.testing.assert_array_equal(shapely.get_coordinates(g), shapely.get_coordinates(rg))
     geoms, _ = table(res["PICKS"])
     np.testing.assert_array_equal(shapely.get_coordinates(geoms, include_z=True), r.picks.xyz)
-    geoms, _ = table(res["PREDICTED_TRACE"], z=False)
-    assert len(geoms) == len(r.trace_geoms)
+    geoms, cols = table(res["PREDICTED_TRACE"], z=False)
+    assert len(geoms) == len(r.trace_geoms) and cols["extrapolated"].astype(bool).tolist() == r.trace_extrapolated.tolist()
+    geoms, cols = table(res["CONTACT_MISFIT"], z=False)
+    assert len(geoms) == len(r.contact_misfit["geoms"])
+    assert cols["flagged"].astype(bool).tolist() == r.contact_misfit["flagged"].tolist()
+    geoms, cols = table(res["ATTITUDES"], z=False)
+    np.testing.assert_array_equal(shapely.get_coordinates(geoms), np.column_stack([r.attitudes.x, r.attitudes.y]))
+    assert cols["quality"].tolist() == r.attitudes.quality.tolist()
     summary = json.loads((tmp_path / "summary.json").read_text())
     want = dict(r.summary)
     if kind == "memory":  # only files are hashed; the DEM is the one file among the inputs
         want["inputs"] = {k: v for k, v in want["inputs"].items() if k == "dem.tif"}
     assert summary == json.loads(json.dumps(want))
-    assert res["DIP_DEG"] == pytest.approx(r.plane.dip_deg, abs=1e-12)
+    assert res["DIP_DEG"] == r.summary["plane"]["dip"] and res["MODEL_USED"] == "plane"
     assert res["MISFIT_MEDIAN_M"] == r.summary["trace_misfit_m"]["median"]
 
 
 def test_whole_chain_without_a_dem(run, sheet, library):
     res = run("modelcontact", {"CONTACTS": sheet["contacts_uri"], "CONTOURS": sheet["contours_uri"],
-                               "ELEV_FIELD": "elev_m", "INTERVAL": 50.0, "PICKS": TMP,
+                               "ELEV_FIELD": "elev_m", "INTERVAL": 50.0, "PICKS": TMP, **QUICK_TOOL,
                                "STRUCTURE_CONTOURS": TMP, "SURFACE": TMP, "DIP": TMP, "DIP_DIRECTION": TMP})
     _, r = library(sheet, dem=False)
     got, gt, _ = raster(res["SURFACE"])
