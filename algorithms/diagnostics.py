@@ -105,7 +105,8 @@ class PlaneQuality:
         What data would help (empty for ``"good"``).
     reason_code : str
         Machine-readable reason: ``"ok"``, ``"too_few_picks"``, ``"collinear"``,
-        ``"not_planar"``, ``"flat"``, ``"marginal_shape"`` or ``"wide_confidence"``.
+        ``"not_planar"``, ``"flat"``, ``"marginal_shape"``, ``"three_points"`` (exactly three
+        picks: at best ``"weak"``) or ``"wide_confidence"``.
     collinearity : float
         Woodcock's K (``inf`` for picks exactly on a line).
     coplanarity : float
@@ -198,7 +199,7 @@ def classify_planes(eigenvalues, *, n_points, relief_m=None, sigma_z_m=None,
     eigenvalues : array_like, shape ``(W, 3)``
         Scatter-matrix eigenvalues of each pick set.
     n_points : array_like of int, shape ``(W,)``
-        Picks in each set.
+        Picks in each set (``-1``: unknown, which skips the count rules).
     relief_m : array_like, shape ``(W,)``, optional
         Elevation range of each pick set; the flat-ground test is skipped when omitted.
     sigma_z_m : float or array_like, optional
@@ -238,6 +239,10 @@ def classify_planes(eigenvalues, *, n_points, relief_m=None, sigma_z_m=None,
                 > _check_nonneg("max_good_dip_ci95_deg", max_good_dip_ci95_deg)) & ~marginal
         code[wide] = "wide_confidence"
         quality[wide] = "weak"
+    # Three picks always fit a plane exactly: no scatter is left to show how good it is.
+    three = (n == 3) & (quality == "good")
+    code[three] = "three_points"
+    quality[three] = "weak"
     # Undetermined causes, in increasing priority (the last assignment wins).
     rules = [(~(m >= UNDETERMINED_MAX_COPLANARITY), "not_planar")]
     if relief_m is not None:
@@ -245,7 +250,7 @@ def classify_planes(eigenvalues, *, n_points, relief_m=None, sigma_z_m=None,
         rules.append((~(relief >= min_relief), "flat"))
     rules.append((~(k < UNDETERMINED_MIN_COLLINEARITY) & (m >= UNDETERMINED_MAX_COPLANARITY),
                   "collinear"))
-    rules.append((n < 3, "too_few_picks"))
+    rules.append(((n >= 0) & (n < 3), "too_few_picks"))
     for mask, name in rules:
         code[mask] = name
         quality[mask] = "undetermined"
@@ -279,6 +284,9 @@ def _words(code, m, k, n, relief, min_relief, dip_ci, max_ci):
     if code == "marginal_shape":
         return (f"the picks define a plane only loosely ({shape}; a reliable plane needs "
                 f"M > {GOOD_MIN_COPLANARITY:g} and K < {GOOD_MAX_COLLINEARITY:g})")
+    if code == "three_points":
+        return ("three picks fit a plane exactly (the three-point solution), leaving no scatter to "
+                f"show how well it is determined ({shape})")
     if code == "wide_confidence":
         return (f"the pick set has a good shape ({shape}) but the 95% dip half-width is "
                 f"{dip_ci:.1f} degrees, more than {max_ci:g}")
@@ -359,7 +367,7 @@ def assess_plane(data, *, relief_m=None, sigma_z_m=None, min_relief_m=DEFAULT_MI
         raise InputError(
             f"assess_plane needs picks of shape (n, 3) or three eigenvalues, got shape {arr.shape}"
         )
-    n_for_rules = n if arr.ndim == 2 else 3
+    n_for_rules = n if arr.ndim == 2 else -1  # -1: count unknown (eigenvalues alone)
     quality, code, m, k = classify_planes(
         w[None], n_points=np.array([n_for_rules]),
         relief_m=None if np.isnan(relief) else np.array([relief]), sigma_z_m=sigma_z_m,

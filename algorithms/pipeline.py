@@ -6,11 +6,7 @@ renamed into place at the end).
 """
 from __future__ import annotations
 
-import hashlib
-import json
 import os
-import shutil
-import uuid
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable
@@ -21,14 +17,17 @@ from osgeo import ogr
 
 from strikeline import CAUTION, __version__
 from strikeline.crossval import segment_groups
+from strikeline.defaults import (DEFAULT_BOREHOLE_SIGMA_M, DEFAULT_CONTOUR_SIGMA_M, DEFAULT_DEM_SIGMA_M,
+                                 DEFAULT_ORIENTATION_SIGMA_DEG, FLAG_CELLS, MODELS, SEGMENT_CELLS)
 from strikeline.diagnostics import PlaneQuality, assess_plane
-from strikeline.errors import CancelledError, InputError, OutputError, UndeterminedError
+from strikeline.errors import CancelledError, InputError, UndeterminedError
 from strikeline.fitting import PlaneFit, fit_plane
 from strikeline.geodesy import grid_to_true_azimuth, meridian_convergence_deg
 from strikeline.grid import Grid
 from strikeline.grids import depth_below_ground, dip_grids
 from strikeline.io.contours import contour_lines
 from strikeline.io.crs import crs_label, same_crs, srs_from_wkt
+from strikeline.io.files import atomic_folder, check_out_folder, dumps_stable, file_sha256, json_ready
 from strikeline.io.raster import read_raster, write_geotiff
 from strikeline.io.vector import LayerOut, VectorLayer, read_layer, write_gpkg
 from strikeline.local import LocalAttitudes, local_attitudes
@@ -36,24 +35,10 @@ from strikeline.orientation import dip_direction_from_strike
 from strikeline.picks import (PickSet, ground_slope_from_contours, picks_from_contours,
                               picks_from_dem, sample_bilinear)
 from strikeline.surfaces import SurfaceModel, fit_surface
-from strikeline.trace import contact_misfit_segments, split_lines_by_flag, trace_misfit
+from strikeline.thickness import isopach_grids
+from strikeline.trace import contact_misfit_segments, distance_to_lines, split_lines_by_flag, trace_misfit
 from strikeline.uncertainty import PlaneConfidence, plane_confidence, vertical_sigma_of_picks
 
-MODELS = ("auto", "plane", "trend2", "spline")
-
-#: Default vertical standard error of DEM picks (metres). Basis: national DEMs of 5-25 m cells
-#: state vertical accuracies (RMSE) of about 1-5 m; 2 m is a middle value (common practice).
-DEFAULT_DEM_SIGMA_M = 2.0
-#: Default horizontal positional standard error of contour picks (metres): half of a 5 m
-#: positional tolerance, i.e. 0.5 mm at 1:10,000 (common practice for digitised line work).
-DEFAULT_CONTOUR_SIGMA_M = 2.5
-#: Default standard error of a borehole's surface elevation (metres).
-DEFAULT_BOREHOLE_SIGMA_M = 1.0
-#: Default standard error of a measured dip (degrees; compass-clinometer readings, common practice).
-DEFAULT_ORIENTATION_SIGMA_DEG = 5.0
-#: Misfit QA: contact segments are this many DEM cells long, flagged beyond this many cells.
-SEGMENT_CELLS = 10
-FLAG_CELLS = 3
 
 Log = Callable[[str], None]
 
@@ -178,19 +163,9 @@ def check_options(opts: RunOptions) -> None:
     _positive(opts.orientation_sigma_deg, "--orientation-sigma (degrees)", allow_zero=True)
     if not (isinstance(opts.resamples, int) and opts.resamples >= 100):
         raise InputError(f"--resamples must be a whole number of at least 100, got {opts.resamples}")
-    out = Path(opts.out)
-    if out.exists() and not out.is_dir():
-        raise OutputError(f"--out '{out}' exists and is not a folder; name a folder to create")
-    if out.exists() and not opts.overwrite:
-        raise OutputError(
-            f"output folder '{out}' already exists; add --overwrite to replace it, or name a new folder"
-        )
-    for p in (opts.contacts, opts.dem, opts.contours, opts.boreholes, opts.orientations, opts.top_contacts):
-        if p and out.exists() and Path(p).resolve().is_relative_to(out.resolve()):
-            raise OutputError(
-                f"input '{p}' lies inside the output folder '{out}', which --overwrite would delete; "
-                "write the results to another folder"
-            )
+    check_out_folder(opts.out, overwrite=opts.overwrite,
+                     inputs=(opts.contacts, opts.dem, opts.contours, opts.boreholes, opts.orientations,
+                             opts.top_contacts))
 
 
 # --------------------------------------------------------------------------- loading
@@ -365,8 +340,8 @@ def pick_sigmas(inputs: Inputs, picks: PickSet, opts: RunOptions) -> np.ndarray:
                                    contour_sigma_m=opts.contour_sigma_m)
 
 
-def attitude_of(xyz, sigma, opts: RunOptions, crs_wkt: str, *, what: str, strict: bool,
-                is_cancelled=None) -> dict:
+def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples: int = 1000,
+                seed: int = 0, is_cancelled=None) -> dict:
     """Plane, 95% confidence, quality and true-north azimuth of one pick set, as a summary dict.
 
     With ``strict`` an undetermined pick set is an error (the sheet-wide plane); otherwise it is
@@ -383,8 +358,8 @@ def attitude_of(xyz, sigma, opts: RunOptions, crs_wkt: str, *, what: str, strict
                 "advice": "" if q is None else q.advice, "n_picks": int(len(xyz))}
     conf: PlaneConfidence | None = None
     if len(xyz) >= 4:
-        conf = plane_confidence(xyz, sigma_z_m=sigma, n_resamples=opts.resamples, n_draws=opts.resamples,
-                                seed=opts.seed, is_cancelled=is_cancelled)
+        conf = plane_confidence(xyz, sigma_z_m=sigma, n_resamples=resamples, n_draws=resamples,
+                                seed=seed, is_cancelled=is_cancelled)
     typical_sigma = float(np.median(sigma)) if sigma is not None and len(sigma) else None
     quality: PlaneQuality = assess_plane(xyz, sigma_z_m=typical_sigma,
                                          dip_ci95_deg=None if conf is None else conf.dip_ci95_deg)
@@ -453,6 +428,64 @@ def model_surface(picks: PickSet, opts: RunOptions, grid: Grid, *, boreholes=Non
         raise UndeterminedError(f"{what}: {exc}") from None
 
 
+def structure_contours(surface, grid: Grid, *, interval_m: float, extrapolated_fn=None):
+    """Structure contours of a surface grid, split where they leave the reach of the data.
+
+    Returns ``(lines, elevation_m, extrapolated)``; ``extrapolated`` is all false without an
+    ``extrapolated_fn(x, y)``.
+    """
+    geoms, levels = contour_lines(surface, grid, interval_m=interval_m)
+    if extrapolated_fn is None:
+        return geoms, np.asarray(levels, dtype=float), np.zeros(len(geoms), dtype=bool)
+    spacing = min(grid.cell_x_m, grid.cell_y_m)
+    parts, flags, src = split_lines_by_flag(geoms, extrapolated_fn, spacing_m=spacing)
+    return parts, (np.asarray(levels, dtype=float)[src] if len(src) else np.empty(0)), flags
+
+
+def depth_trace_misfit(dem, dem_grid: Grid, surface, contacts: VectorLayer | None = None, *,
+                       extrapolated_fn=None, flag_m=None) -> dict:
+    """Depth below ground, the predicted outcrop trace and its misfit to the mapped contacts.
+
+    Depth = DEM − surface (positive where the surface lies below ground); the trace is its zero
+    line, split where ``extrapolated_fn`` changes; the misfit is measured from every contact
+    vertex over valid DEM cells (median, 90th percentile) and along contact segments of
+    ``SEGMENT_CELLS`` cells, flagged beyond ``flag_m`` (default ``FLAG_CELLS`` cells).
+
+    Returns
+    -------
+    dict
+        ``depth``, ``trace``, ``trace_extrapolated``, ``misfit`` (dict), ``vertices`` and
+        ``vertex_distance`` (contact vertices on the DEM and their distance to the trace),
+        ``segments`` (see :func:`strikeline.trace.contact_misfit_segments`), ``flag_m``.
+    """
+    spacing = min(dem_grid.cell_x_m, dem_grid.cell_y_m)
+    flag_m = FLAG_CELLS * spacing if flag_m is None else flag_m
+    depth = depth_below_ground(dem, surface)
+    raw_trace, _ = contour_lines(depth, dem_grid, levels=[0.0])
+    if extrapolated_fn is not None:
+        trace, tflags, _ = split_lines_by_flag(raw_trace, extrapolated_fn, spacing_m=spacing)
+    else:
+        trace, tflags = raw_trace, np.zeros(len(raw_trace), dtype=bool)
+    out = {"depth": depth, "trace": trace, "trace_extrapolated": tflags, "flag_m": flag_m,
+           "misfit": {"median": None, "p90": None, "n_vertices": 0, "note": "no contacts given"},
+           "vertices": np.empty((0, 2)), "vertex_distance": np.empty(0), "segments": None}
+    if contacts is None:
+        return out
+    verts = shapely.get_coordinates(contacts.geoms)
+    verts = verts[np.isfinite(sample_bilinear(dem, dem_grid, verts[:, 0], verts[:, 1]))]
+    out["misfit"] = trace_misfit(verts, raw_trace)
+    out["vertices"] = verts
+    out["vertex_distance"] = distance_to_lines(verts, raw_trace)
+
+    def on_valid(x, y):
+        return np.isfinite(sample_bilinear(dem, dem_grid, x, y))
+
+    out["segments"] = contact_misfit_segments(contacts.geoms, contacts.fids, raw_trace,
+                                              segment_m=SEGMENT_CELLS * spacing, flag_m=flag_m,
+                                              valid_fn=on_valid)
+    return out
+
+
 def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=None,
             is_cancelled=None) -> Results:
     """Run every step of the chain in memory."""
@@ -469,8 +502,9 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     step(1)
     plane = fit_picks(picks, what=what)
     sigma = pick_sigmas(inputs, picks, opts)
-    plane_summary = attitude_of(picks.xyz, sigma, opts, inputs.crs_wkt, what=what, strict=True,
-                                is_cancelled=is_cancelled)
+    conf_opts = {"crs_wkt": inputs.crs_wkt, "resamples": opts.resamples, "seed": opts.seed,
+                 "is_cancelled": is_cancelled}
+    plane_summary = attitude_of(picks.xyz, sigma, what=what, strict=True, **conf_opts)
     if plane_summary["quality"] == "weak":
         log(f"warning: the best-fit plane is weak - {plane_summary['reason']}; "
             f"what would help: {plane_summary['advice']}")
@@ -480,8 +514,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
         labels = np.array([str(values.get(int(c))) for c in picks.contact_id], dtype=object)
         for g in sorted(set(labels.tolist())):
             m = labels == g
-            groups[g] = attitude_of(picks.xyz[m], sigma[m], opts, inputs.crs_wkt, what=f"group {g}",
-                                    strict=False, is_cancelled=is_cancelled)
+            groups[g] = attitude_of(picks.xyz[m], sigma[m], what=f"group {g}", strict=False, **conf_opts)
     step(2)
     attitudes = local_attitudes(picks.xyz, window_m=opts.window_m, contact_id=picks.contact_id,
                                 sigma_z_m=sigma, seed=opts.seed, is_cancelled=is_cancelled)
@@ -494,10 +527,8 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     step(4)
     dip, dipdir = dip_grids(surface, grid, is_cancelled=is_cancelled)
     step(5)
-    spacing = min(grid.cell_x_m, grid.cell_y_m)
-    cgeoms, clevels = contour_lines(surface, grid, interval_m=opts.interval_m)
-    cparts, cflags, csrc = split_lines_by_flag(cgeoms, model.is_extrapolated, spacing_m=spacing)
-    clevels = np.asarray(clevels, dtype=float)[csrc] if len(csrc) else np.empty(0)
+    cparts, clevels, cflags = structure_contours(surface, grid, interval_m=opts.interval_m,
+                                                 extrapolated_fn=model.is_extrapolated)
     step(6)
     depth = None
     trace = np.empty(0, dtype=object)
@@ -505,21 +536,12 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     misfit = {"median": None, "p90": None, "n_vertices": 0,
               "note": "needs a DEM: the predicted trace is the zero line of depth below ground"}
     segments = None
-    flag_m = opts.misfit_flag_m if opts.misfit_flag_m is not None else FLAG_CELLS * spacing
+    flag_m = None
     if inputs.dem is not None:
-        depth = depth_below_ground(inputs.dem, surface)
-        raw_trace, _ = contour_lines(depth, grid, levels=[0.0])
-        trace, tflags, _ = split_lines_by_flag(raw_trace, model.is_extrapolated, spacing_m=spacing)
-        verts = shapely.get_coordinates(inputs.contacts.geoms)
-        on_dem = np.isfinite(sample_bilinear(inputs.dem, inputs.dem_grid, verts[:, 0], verts[:, 1]))
-        misfit = trace_misfit(verts[on_dem], raw_trace)
-
-        def on_valid(x, y):
-            return np.isfinite(sample_bilinear(inputs.dem, inputs.dem_grid, x, y))
-
-        segments = contact_misfit_segments(inputs.contacts.geoms, inputs.contacts.fids, raw_trace,
-                                           segment_m=SEGMENT_CELLS * spacing, flag_m=flag_m,
-                                           valid_fn=on_valid)
+        f = depth_trace_misfit(inputs.dem, inputs.dem_grid, surface, inputs.contacts,
+                               extrapolated_fn=model.is_extrapolated, flag_m=opts.misfit_flag_m)
+        depth, trace, tflags = f["depth"], f["trace"], f["trace_extrapolated"]
+        misfit, segments, flag_m = f["misfit"], f["segments"], f["flag_m"]
     step(7)
     vth = tth = top_picks = None
     thickness = None
@@ -529,8 +551,6 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
         fit_picks(top_picks, what=twhat)
         top_model = model_surface(top_picks, opts, grid, what=twhat, is_cancelled=is_cancelled)
         top_surface = top_model.evaluate_grid(grid, is_cancelled=is_cancelled)
-        from strikeline.thickness import isopach_grids
-
         vth, tth = isopach_grids(top_surface, surface, grid)
         X, Y = grid.mesh()
         supported = ~(model.is_extrapolated(X, Y) | top_model.is_extrapolated(X, Y)) & np.isfinite(tth)
@@ -562,30 +582,6 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
 
 
 # --------------------------------------------------------------------------- summary
-def file_sha256(path: str) -> str:
-    h = hashlib.sha256()
-    with open(path, "rb") as f:
-        for chunk in iter(lambda: f.read(1 << 20), b""):
-            h.update(chunk)
-    return h.hexdigest()
-
-
-def _clean(value, nd=4):
-    """JSON-ready copy: floats rounded (so the bytes are stable), NaN/inf as null."""
-    if isinstance(value, dict):
-        return {str(k): _clean(v, nd) for k, v in value.items()}
-    if isinstance(value, (list, tuple, np.ndarray)):
-        return [_clean(v, nd) for v in (value.tolist() if isinstance(value, np.ndarray) else value)]
-    if isinstance(value, (bool, np.bool_)):
-        return bool(value)
-    if isinstance(value, (int, np.integer)):
-        return int(value)
-    if isinstance(value, (float, np.floating)):
-        v = float(value)
-        return round(v, nd) if np.isfinite(v) else None
-    return value
-
-
 def build_summary(inputs: Inputs, opts: RunOptions, picks: PickSet, plane: dict, misfit: dict,
                   *, n_contours: int, model: SurfaceModel | None = None, groups: dict | None = None,
                   attitudes: LocalAttitudes | None = None, segments: dict | None = None,
@@ -642,7 +638,7 @@ def build_summary(inputs: Inputs, opts: RunOptions, picks: PickSet, plane: dict,
     if thickness is not None:
         thickness["n_top_picks"] = n_top_picks
         summary["thickness"] = thickness
-    return _clean(summary)
+    return json_ready(summary)
 
 
 # --------------------------------------------------------------------------- writing
@@ -652,30 +648,9 @@ def write_results(results: Results, out_dir, *, overwrite: bool = False) -> Path
     Everything goes into a temporary sibling folder first; only when every file is complete is
     it renamed to ``out_dir`` (an existing ``out_dir`` is replaced only with ``overwrite``).
     """
-    out = Path(out_dir)
-    if out.exists() and not overwrite:
-        raise OutputError(f"output folder '{out}' already exists; add --overwrite to replace it")
-    parent = out.resolve().parent
-    if not parent.is_dir():
-        raise OutputError(f"cannot create '{out}': the folder '{parent}' does not exist; create it first")
-    tmp = parent / f".{out.name}.part-{uuid.uuid4().hex[:8]}"
-    try:
-        tmp.mkdir()
-    except OSError as exc:
-        raise OutputError(f"cannot create '{out}': {exc.strerror}; choose a writable folder") from None
-    try:
+    with atomic_folder(out_dir, overwrite=overwrite) as tmp:
         _write_all(results, tmp)
-        if out.exists():
-            old = parent / f".{out.name}.old-{uuid.uuid4().hex[:8]}"
-            os.replace(out, old)
-            os.replace(tmp, out)
-            shutil.rmtree(old, ignore_errors=True)
-        else:
-            os.replace(tmp, out)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
-    return out
+    return Path(out_dir)
 
 
 def _picks_layer(name: str, p: PickSet) -> LayerOut:
@@ -729,7 +704,7 @@ def _write_all(r: Results, folder: Path) -> None:
     if r.top_picks is not None:
         layers.append(_picks_layer("top_picks", r.top_picks))
     write_gpkg(folder / "results.gpkg", layers, g.crs_wkt)
-    (folder / "summary.json").write_text(json.dumps(r.summary, indent=2, sort_keys=True) + "\n")
+    (folder / "summary.json").write_text(dumps_stable(r.summary))
 
 
 def run(opts: RunOptions, *, log: Log = _quiet, progress=None, is_cancelled=None) -> Results:

@@ -175,3 +175,13 @@ def test_batch_classification_matches_single_assessments():
 def test_bad_shapes_are_refused():
     with pytest.raises(InputError, match=r"\(n, 3\)"):
         assess_plane(np.zeros((4, 2)))
+
+
+def test_three_points_are_at_best_weak():
+    # common practice: three points always fit a plane exactly (the three-point problem), so
+    # their fit leaves no scatter to judge it by; well spread points are still not "good".
+    from strikeline.diagnostics import assess_plane
+
+    q = assess_plane(np.array([[0.0, 0.0, 100.0], [1000.0, 0.0, 100.0], [0.0, 1000.0, 50.0]]))
+    assert q.quality == "weak" and q.reason_code == "three_points"
+    assert "three-point" in q.reason

@@ -14,10 +14,8 @@ exists without ``--overwrite``).
 from __future__ import annotations
 
 import argparse
-import json
 import os
 import sys
-import uuid
 from pathlib import Path
 
 from strikeline import CAUTION
@@ -142,7 +140,8 @@ def compute(args, *, log=lambda m: print(m, file=sys.stderr)) -> dict:
 
     from strikeline import __version__
     from strikeline.io.crs import crs_label
-    from strikeline.pipeline import RunOptions, _clean, attitude_of, file_sha256
+    from strikeline.io.files import file_sha256, json_ready
+    from strikeline.pipeline import attitude_of
 
     layer, xyz, labels, source = load_points(args)
     usable = np.all(np.isfinite(xyz), axis=1)
@@ -153,13 +152,12 @@ def compute(args, *, log=lambda m: print(m, file=sys.stderr)) -> dict:
     xyz = xyz[usable]
     labels = None if labels is None else labels[usable]
     crs_wkt = layer.srs.ExportToWkt()
-    opts = RunOptions(contacts=args.points, out=args.out or "", resamples=args.resamples, seed=args.seed,
-                      dem_sigma_m=args.dem_sigma_m)
     sigma_all = None if args.dem_sigma_m == 0 else np.full(len(xyz), args.dem_sigma_m)
 
     def plane_of(mask, what):
         sigma = None if sigma_all is None else sigma_all[mask]
-        return attitude_of(xyz[mask], sigma, opts, crs_wkt, what=what, strict=False)
+        return attitude_of(xyz[mask], sigma, crs_wkt=crs_wkt, what=what, strict=False,
+                           resamples=args.resamples, seed=args.seed)
 
     result = {
         "version": __version__,
@@ -179,7 +177,7 @@ def compute(args, *, log=lambda m: print(m, file=sys.stderr)) -> dict:
     if labels is not None:
         result["groups"] = {g: plane_of(labels == g, f"group {args.group_by} = {g}")
                             for g in sorted(set(labels.tolist()))}
-    return _clean(result)
+    return json_ready(result)
 
 
 # --------------------------------------------------------------------------- reporting
@@ -244,19 +242,9 @@ def report(result: dict, stream=None) -> None:
 
 def write_json(result: dict, out: str, *, overwrite: bool) -> None:
     """Write ``result`` to ``out`` atomically (temporary sibling, then rename)."""
-    path = Path(out)
-    if path.exists() and not overwrite:
-        raise OutputError(f"output file '{out}' already exists; add --overwrite to replace it")
-    text = json.dumps(result, indent=2, sort_keys=True, allow_nan=False) + "\n"
-    tmp = path.resolve().parent / f".{path.name}.part-{uuid.uuid4().hex[:8]}"
-    try:
-        tmp.write_text(text, encoding="utf-8")
-        os.replace(tmp, path)
-    except OSError as exc:
-        raise OutputError(f"cannot write '{out}': {exc.strerror}; choose a writable folder") from None
-    finally:
-        if tmp.exists():
-            tmp.unlink()
+    from strikeline.io.files import write_json_atomic
+
+    write_json_atomic(out, result, overwrite=overwrite)
 
 
 def main(args) -> int:

@@ -39,6 +39,13 @@ def main(argv=None) -> int:
     except StrikelineError as exc:
         print(f"error: {one_line(exc)}", file=sys.stderr)
         return 2
+    except BrokenPipeError:
+        # the reader went away (e.g. `| head`): not an error of ours; silence the final flush
+        try:
+            sys.stdout = open(os.devnull, "w")
+        except OSError:
+            pass
+        return 0
     except KeyboardInterrupt:
         print("error: interrupted; nothing was written", file=sys.stderr)
         return 130

@@ -14,56 +14,36 @@ class OneLineParser(argparse.ArgumentParser):
         self.exit(2, f"error: {self.prog}: {message}; see '{self.prog} --help'\n")
 
 
-def positive_metres(text: str) -> float:
-    try:
-        v = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a number of metres, got {text!r}") from None
-    if not (v > 0 and math.isfinite(v)):
-        raise argparse.ArgumentTypeError(f"expected a positive number of metres, got {text!r}")
-    return v
+def _number_type(name: str, *, minimum=None, strict: bool = False, unit: str = "", integer: bool = False):
+    """An argparse ``type=`` that parses a finite number and checks its lower bound."""
+    kind = "whole number" if integer else "number"
+
+    def parse(text: str):
+        try:
+            v = int(text) if integer else float(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"expected a {kind}{unit}, got {text!r}") from None
+        if not math.isfinite(v):
+            raise argparse.ArgumentTypeError(f"expected a finite {kind}{unit}, got {text!r}")
+        if minimum is not None and (v <= minimum if strict else v < minimum):
+            bound = f"greater than {minimum:g}" if strict else f"at least {minimum:g}"
+            raise argparse.ArgumentTypeError(f"expected a {kind}{unit} {bound}, got {text!r}")
+        return v
+
+    parse.__name__ = name
+    return parse
 
 
-def non_negative_metres(text: str) -> float:
-    """An argparse type: a finite number of metres, zero allowed (a standard error)."""
-    try:
-        v = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a number of metres, got {text!r}") from None
-    if not (v >= 0 and math.isfinite(v)):
-        raise argparse.ArgumentTypeError(f"expected zero or a positive number of metres, got {text!r}")
-    return v
-
-
-def finite_number(text: str) -> float:
-    """An argparse type: any finite number (coordinates, angles; ranges are checked later)."""
-    try:
-        v = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a number, got {text!r}") from None
-    if not math.isfinite(v):
-        raise argparse.ArgumentTypeError(f"expected a finite number, got {text!r}")
-    return v
-
-
-def non_negative(text: str) -> float:
-    try:
-        v = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a number, got {text!r}") from None
-    if not (v >= 0 and math.isfinite(v)):
-        raise argparse.ArgumentTypeError(f"expected zero or a positive number, got {text!r}")
-    return v
-
-
-def positive_int(text: str) -> int:
-    try:
-        v = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
-    if v < 1:
-        raise argparse.ArgumentTypeError(f"expected a positive whole number, got {text!r}")
-    return v
+#: A positive number of metres (intervals, cell sizes, windows).
+positive_metres = _number_type("positive_metres", minimum=0, strict=True, unit=" of metres")
+#: Zero or a positive number of metres (standard errors).
+non_negative_metres = _number_type("non_negative_metres", minimum=0, unit=" of metres")
+#: Zero or a positive number (standard errors in degrees).
+non_negative = _number_type("non_negative", minimum=0)
+#: Any finite number (coordinates, angles whose range is checked later).
+finite_number = _number_type("finite_number")
+#: A whole number of at least 1.
+positive_int = _number_type("positive_int", minimum=1, integer=True)
 
 
 def add_output(p: argparse.ArgumentParser) -> None:

@@ -13,7 +13,7 @@ HELP = ("model a mapped contact: picks, attitude with confidence, surface model,
 
 
 def add_parser(sub) -> argparse.ArgumentParser:
-    from strikeline import pipeline as pl
+    from strikeline import defaults as pl
 
     p = sub.add_parser("run", help=HELP, description=HELP + ".", epilog=EPILOG)
     add_contacts(p)

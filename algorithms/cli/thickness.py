@@ -16,15 +16,12 @@ from __future__ import annotations
 
 import argparse
 import math
-import os
-import shutil
 import sys
-import uuid
 from pathlib import Path
 
 from strikeline import CAUTION
 from strikeline.cli.options import EPILOG, OneLineParser, finite_number, non_negative_metres
-from strikeline.errors import InputError, OutputError
+from strikeline.errors import InputError
 
 HELP = "true thickness of a unit from outcrop width, two points, a borehole, or two surface grids"
 
@@ -219,19 +216,9 @@ def _grids_case(args) -> int:
 
 
 def _check_out_folder(out: str, overwrite: bool, inputs) -> Path:
-    path = Path(out)
-    if path.exists() and not path.is_dir():
-        raise OutputError(f"--out '{out}' exists and is not a folder; name a folder to create")
-    if path.exists() and not overwrite:
-        raise OutputError(f"output folder '{out}' already exists; add --overwrite to replace it, or name a new folder")
-    parent = path.resolve().parent
-    if not parent.is_dir():
-        raise OutputError(f"cannot create '{out}': the folder '{parent}' does not exist; create it first")
-    for p in inputs:
-        if path.exists() and Path(p).resolve().is_relative_to(path.resolve()):
-            raise OutputError(f"input '{p}' lies inside the output folder '{out}', which --overwrite would "
-                              "delete; write the results to another folder")
-    return path
+    from strikeline.io.files import check_out_folder
+
+    return check_out_folder(out, overwrite=overwrite, inputs=inputs)
 
 
 def _same_grid(top_path, gt, base_path, gb) -> None:
@@ -268,29 +255,12 @@ def _spread(a) -> dict:
 
 def _write_folder(out: Path, arrays: dict, grid, *, overwrite: bool) -> None:
     """Write GeoTIFFs into ``out`` atomically: a temporary sibling folder renamed into place."""
+    from strikeline.io.files import atomic_folder
     from strikeline.io.raster import write_geotiff
 
-    parent = out.resolve().parent
-    tmp = parent / f".{out.name}.part-{uuid.uuid4().hex[:8]}"
-    try:
-        tmp.mkdir()
-    except OSError as exc:
-        raise OutputError(f"cannot create '{out}': {exc.strerror}; choose a writable folder") from None
-    try:
+    with atomic_folder(out, overwrite=overwrite) as tmp:
         for name, arr in arrays.items():
             write_geotiff(tmp / name, arr, grid)
-        if out.exists():
-            if not overwrite:
-                raise OutputError(f"output folder '{out}' already exists; add --overwrite to replace it")
-            old = parent / f".{out.name}.old-{uuid.uuid4().hex[:8]}"
-            os.replace(out, old)
-            os.replace(tmp, out)
-            shutil.rmtree(old, ignore_errors=True)
-        else:
-            os.replace(tmp, out)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
 
 
 def grids(top_path: str, base_path: str, out: str, *, overwrite: bool = False, stream=None) -> int:
