@@ -1,11 +1,12 @@
 """The Processing tools, one class per module, one module per step of the chain.
 
-Still to come: isopachs from two surfaces (``thickness`` group, beside :class:`UnitThickness`);
-further surface models become options of :class:`SurfaceModel` (its ``METHODS``).
+A new step gets a module here and a place in ``ALGORITHMS``; further surface models become
+options of :class:`SurfaceModel` (its ``METHODS``).
 """
 from .contact_picks import ContactPicks
 from .depth_trace import DepthTrace
 from .dip_grids import DipGrids
+from .isopachs import Isopachs
 from .local_attitudes import LocalAttitudes
 from .plane_attitude import PlaneAttitude
 from .structure_contours import StructureContours
@@ -14,6 +15,6 @@ from .unit_thickness import UnitThickness
 from .whole_chain import WholeChain
 
 ALGORITHMS = (WholeChain, ContactPicks, PlaneAttitude, LocalAttitudes, SurfaceModel, StructureContours, DipGrids,
-              DepthTrace, UnitThickness)
+              DepthTrace, UnitThickness, Isopachs)
 
 __all__ = ["ALGORITHMS"]

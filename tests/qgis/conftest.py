@@ -60,8 +60,9 @@ def demo_dir(tmp_path_factory):
     import shutil
 
     d = tmp_path_factory.mktemp("demo")
-    for name in ("dem.tif", "contacts.gpkg", "contours.gpkg", "truth.json"):
-        shutil.copyfile(DEMO / name, d / name)
+    for src in DEMO.iterdir():
+        if src.is_file() and not src.name.endswith(".aux.xml"):
+            shutil.copyfile(src, d / src.name)
     return d
 
 
@@ -77,6 +78,7 @@ def sheet(demo_dir):
         "contours_uri": f"{d / 'contours.gpkg'}|layername=topo_contours",
         "elev_field": "elev_m",
         "truth": json.loads((d / "truth.json").read_text()),
+        "dir": d,
     }
 
 

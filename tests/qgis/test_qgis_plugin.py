@@ -33,8 +33,8 @@ REPO = Path(__file__).resolve().parents[2]
 PLUGIN = REPO / "adapter_qgis"
 PROVIDER_ID = "strikeline"
 TOOLS = {"modelcontact", "contactpicks", "planeattitude", "localattitudes", "surfacemodel", "structurecontours",
-         "dipgrids", "depthtrace", "unitthickness"}
-FORECAST_TOOLS = {"modelcontact", "surfacemodel", "structurecontours", "depthtrace"}
+         "dipgrids", "depthtrace", "unitthickness", "isopachs"}
+FORECAST_TOOLS = {"modelcontact", "surfacemodel", "structurecontours", "depthtrace", "isopachs"}
 METADATA_KEYS = {"name", "qgisMinimumVersion", "description", "version", "author", "email"}
 
 

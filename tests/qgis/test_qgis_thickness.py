@@ -111,3 +111,30 @@ def test_wrong_field_type_and_missing_field(run):
     with pytest.raises(QgsProcessingException, match="choose the 'Outcrop width field"):
         run("unitthickness", {"METHOD": 1, "INPUT": lyr, "DIP_DEG": 30.0, "DIP_DIRECTION_DEG": 0.0,
                               "OUTPUT": TMP})
+
+
+def test_isopachs_between_the_demo_top_and_base(run, sheet):
+    from strikeline.io.raster import read_raster
+    from strikeline.thickness import isopach_grids
+
+    d = sheet["dir"]
+    if not (d / "top_contacts.gpkg").exists():
+        pytest.skip("the demo sheet has no top contact yet")
+    surfaces = {}
+    for key, uri in (("top", f"{d / 'top_contacts.gpkg'}|layername=top_contacts"), ("base", sheet["contacts_uri"])):
+        picks = run("contactpicks", {"CONTACTS": uri, "DEM": sheet["dem"], "PICKS": TMP})["PICKS"]
+        surfaces[key] = run("surfacemodel", {"PICKS": picks, "REFERENCE": sheet["dem"], "SURFACE": TMP})["SURFACE"]
+    res = run("isopachs", {"TOP": surfaces["top"], "BASE": surfaces["base"], "INTERVAL": 10.0,
+                           "VERTICAL_THICKNESS": TMP, "TRUE_THICKNESS": TMP, "ISOPACHS": TMP})
+    top, grid = read_raster(surfaces["top"], label="top")
+    base, _ = read_raster(surfaces["base"], label="base")
+    v_ref, t_ref = isopach_grids(top, base, grid)
+    v, _ = read_raster(res["VERTICAL_THICKNESS"], label="v")
+    t, _ = read_raster(res["TRUE_THICKNESS"], label="t")
+    np.testing.assert_array_equal(v, v_ref.astype(np.float32).astype(float))
+    np.testing.assert_array_equal(t, t_ref.astype(np.float32).astype(float))
+    TRUE_M = sheet["truth"]["true_thickness_m"]  # Source: truth.json of the demo generator (73.6 m)
+    VERTICAL_M = TRUE_M / np.cos(np.radians(sheet["truth"]["dip_deg"]))  # common practice: t / cos(dip)
+    assert res["MEDIAN_TRUE_M"] == pytest.approx(TRUE_M, abs=0.5)
+    assert np.nanmedian(v) == pytest.approx(VERTICAL_M, abs=0.5)
+    assert res["N_NEGATIVE"] == 0

@@ -501,6 +501,50 @@ def test_whole_chain_is_the_library_chain(run, sheet, reference, kind, tmp_path)
     assert res["MISFIT_MEDIAN_M"] == r.summary["trace_misfit_m"]["median"]
 
 
+def test_whole_chain_with_boreholes_dips_groups_and_top(run, sheet, library, tmp_path):
+    d = sheet["dir"]
+    if not (d / "boreholes.gpkg").exists():
+        pytest.skip("the demo sheet has no boreholes yet")
+    res = run("modelcontact", {
+        "CONTACTS": f"{d / 'contacts_grouped.gpkg'}|layername=contacts", "DEM": sheet["dem"],
+        "CONTOURS": sheet["contours_uri"], "ELEV_FIELD": "elev_m", "GROUP_BY": "block",
+        "BOREHOLES": f"{d / 'boreholes.gpkg'}|layername=boreholes", "BOREHOLE_COLLAR_FIELD": "collar_m",
+        "BOREHOLE_DEPTH_FIELD": "depth_m",
+        "ORIENTATIONS": f"{d / 'orientations.gpkg'}|layername=dip_readings",
+        "TOP_CONTACTS": f"{d / 'top_contacts.gpkg'}|layername=top_contacts", **QUICK_TOOL,
+        "PICKS": TMP, "STRUCTURE_CONTOURS": TMP, "SURFACE": TMP, "DIP": TMP, "DIP_DIRECTION": TMP,
+        "VERTICAL_THICKNESS": TMP, "TRUE_THICKNESS": TMP, "TOP_PICKS": TMP,
+        "SUMMARY": str(tmp_path / "summary.json")})
+    import json
+
+    from strikeline.pipeline import RunOptions, compute, load_inputs
+
+    opts = RunOptions(contacts=str(d / "contacts_grouped.gpkg"), out="/nonexistent-out", dem=sheet["dem"],
+                      contours=sheet["contours"], elev_field="elev_m", group_by="block",
+                      boreholes=str(d / "boreholes.gpkg"), borehole_collar_field="collar_m",
+                      borehole_depth_field="depth_m", orientations=str(d / "orientations.gpkg"),
+                      top_contacts=str(d / "top_contacts.gpkg"), model="plane", resamples=100)
+    r = compute(load_inputs(opts), opts)
+    summary = json.loads((tmp_path / "summary.json").read_text())
+    assert summary == json.loads(json.dumps(r.summary))
+    assert set(summary["groups"]["planes"]) == set(r.summary["groups"]["planes"]) and len(summary["groups"]["planes"]) > 1
+    for key, arr in (("SURFACE", r.surface), ("VERTICAL_THICKNESS", r.vertical_thickness_m),
+                     ("TRUE_THICKNESS", r.true_thickness_m)):
+        got, _, _ = raster(res[key])
+        np.testing.assert_array_equal(got, np.asarray(arr, dtype=np.float32).astype(float), err_msg=key)
+    geoms, _ = table(res["TOP_PICKS"])
+    np.testing.assert_array_equal(shapely.get_coordinates(geoms, include_z=True), r.top_picks.xyz)
+    # External: the demo's top lies 73.6 m (true thickness) above the base, both planar and
+    # parallel; within reach of the data the isopach is that thickness.
+    # Source: test_data/demo/truth.json of the demo generator (the plane pair it was built from).
+    TRUE_THICKNESS_M = sheet["truth"]["true_thickness_m"]  # Source: truth.json, 73.6 m by construction
+    assert summary["thickness"]["mean_m"] == pytest.approx(TRUE_THICKNESS_M, abs=1.0)
+    # common practice: vertical thickness = true thickness / cos(dip) for parallel planes
+    VERTICAL_M = TRUE_THICKNESS_M / np.cos(np.radians(sheet["truth"]["dip_deg"]))
+    v, _, _ = raster(res["VERTICAL_THICKNESS"])
+    assert np.nanmedian(v) == pytest.approx(VERTICAL_M, abs=1.0)
+
+
 def test_whole_chain_without_a_dem(run, sheet, library):
     res = run("modelcontact", {"CONTACTS": sheet["contacts_uri"], "CONTOURS": sheet["contours_uri"],
                                "ELEV_FIELD": "elev_m", "INTERVAL": 50.0, "PICKS": TMP, **QUICK_TOOL,

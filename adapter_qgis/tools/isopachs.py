@@ -1,0 +1,88 @@
+"""Tool: isopachs, the thickness of a unit between its top and base surface grids."""
+from __future__ import annotations
+
+import numpy as np
+from qgis.core import (
+    QgsProcessing,
+    QgsProcessingOutputNumber,
+    QgsProcessingParameterDistance,
+    QgsProcessingParameterFeatureSink,
+    QgsProcessingParameterRasterDestination,
+    QgsProcessingParameterRasterLayer,
+    QgsWkbTypes,
+)
+
+from strikeline.io.contours import contour_lines
+from strikeline.thickness import isopach_grids
+
+from ..base import REF_GDAL_CONTOUR, REF_ZT, StrikelineAlgorithm
+from ..chain import require_same_grid
+from ..inputs import read_dem
+from ..layers import qgis_crs
+from ..outputs import Table, write_raster, write_sink
+from ..styles import attach_style
+from .unit_thickness import REF_RAGAN
+
+
+class Isopachs(StrikelineAlgorithm):
+    NAME = "isopachs"
+    DISPLAY = "Isopachs from two surfaces"
+    GROUP = "thickness"
+    FORECAST = True
+    SUMMARY = (
+        "Thickness of a unit between the surface grid of its top and that of its base (both from "
+        "Surface model, on one grid): the vertical thickness (top − base) and the true thickness "
+        "(vertical × cos of the base's local dip), as GeoTIFFs, and isopach lines of the true "
+        "thickness every interval metres. Negative values mark where the two models cross - check "
+        "which contact is the top there.")
+    METHOD = ("Cell by cell; the base's dip from central differences of its grid; isopach lines from "
+              "GDAL's contour generator.")
+    REFERENCES = (REF_RAGAN, REF_ZT, REF_GDAL_CONTOUR)
+    TOP = "TOP"
+    BASE = "BASE"
+    INTERVAL = "INTERVAL"
+    VERTICAL = "VERTICAL_THICKNESS"
+    TRUE = "TRUE_THICKNESS"
+    LINES = "ISOPACHS"
+
+    def initAlgorithm(self, config=None):  # noqa: N802
+        self.addParameter(QgsProcessingParameterRasterLayer(self.TOP, self.tr("Top surface of the unit")))
+        self.addParameter(QgsProcessingParameterRasterLayer(self.BASE, self.tr("Base surface of the unit")))
+        self.addParameter(QgsProcessingParameterDistance(
+            self.INTERVAL, self.tr("Isopach interval (0: no lines)"), defaultValue=10.0,
+            parentParameterName=self.BASE, minValue=0.0, optional=True))
+        self.addParameter(QgsProcessingParameterRasterDestination(self.VERTICAL, self.tr("Vertical thickness")))
+        self.addParameter(QgsProcessingParameterRasterDestination(self.TRUE, self.tr("True thickness")))
+        self.addParameter(QgsProcessingParameterFeatureSink(
+            self.LINES, self.tr("Isopachs (true thickness)"), QgsProcessing.TypeVectorLine, optional=True))
+        for key, label in (("MEDIAN_TRUE_M", "Median true thickness (m)"),
+                           ("N_NEGATIVE", "Cells where the top lies below the base")):
+            self.addOutput(QgsProcessingOutputNumber(key, self.tr(label)))
+
+    def process(self, parameters, context, steps):
+        top, tgrid, tpath = read_dem(self, parameters, self.TOP, context, steps, label="top surface")
+        base, bgrid, bpath = read_dem(self, parameters, self.BASE, context, steps, label="base surface")
+        require_same_grid(tgrid, bgrid, what_a=f"top surface '{tpath}'", what_b=f"base surface '{bpath}'")
+        steps.feedback.setProgress(20)
+        vertical, true = isopach_grids(top, base, bgrid, progress=steps.part(0.2, 0.7),
+                                       is_cancelled=steps.is_cancelled)
+        interval = self.parameterAsDouble(parameters, self.INTERVAL, context)
+        geoms, levels = (np.empty(0, object), np.empty(0))
+        if interval > 0:
+            geoms, levels = contour_lines(true, bgrid, interval_m=interval)
+        steps.check("isopachs")
+        n_neg = int(np.count_nonzero(vertical < 0))
+        if n_neg:
+            steps.warn(f"the top lies below the base in {n_neg} cells: check which surface is the top")
+        grid = bgrid.with_nodata(None)
+        out = {self.VERTICAL: write_raster(self, parameters, self.VERTICAL, context, vertical, grid),
+               self.TRUE: write_raster(self, parameters, self.TRUE, context, true, grid)}
+        if interval > 0:
+            out[self.LINES] = write_sink(self, parameters, self.LINES, context,
+                                         Table(geoms, {"thickness_m": np.asarray(levels, float)},
+                                               QgsWkbTypes.LineString), qgis_crs(bgrid.crs_wkt))
+        for key in (self.VERTICAL, self.TRUE):
+            attach_style(context, out[key], "thickness")
+        finite = true[np.isfinite(true)]
+        out.update({"MEDIAN_TRUE_M": float(np.median(finite)) if finite.size else None, "N_NEGATIVE": n_neg})
+        return out
