@@ -43,13 +43,14 @@ def demo_run(tmp_path_factory, demo):
 def test_demo_runs_and_writes_every_output(demo_run, demo):
     proc, out = demo_run
     assert proc.returncode == 0, proc.stderr
-    for name in ("results.gpkg", "surface.tif", "dip.tif", "dip_direction.tif", "depth.tif", "summary.json"):
+    for name in ("results.gpkg", "surface.tif", "dip.tif", "dip_direction.tif", "depth.tif", "uncertainty.tif",
+                 "vertical_thickness.tif", "true_thickness.tif", "summary.json"):
         assert (out / name).is_file(), name
     assert "not a substitute for site investigation" in proc.stdout
     ds = ogr.Open(str(out / "results.gpkg"))
     names = {ds.GetLayer(i).GetName() for i in range(ds.GetLayerCount())}
-    assert {"picks", "structure_contours", "predicted_trace"} <= names
-    for name in ("surface.tif", "dip.tif", "dip_direction.tif", "depth.tif"):
+    assert {"picks", "structure_contours", "predicted_trace", "contact_misfit", "attitudes", "top_picks"} <= names
+    for name in ("surface.tif", "dip.tif", "dip_direction.tif", "depth.tif", "true_thickness.tif"):
         r = gdal.Open(str(out / name))
         assert r.GetRasterBand(1).DataType == gdal.GDT_Float32
         assert r.GetRasterBand(1).GetNoDataValue() is not None
@@ -71,8 +72,14 @@ def test_demo_summary_recovers_the_plane(demo_run, demo):
     # strike by the right-hand rule is dip direction - 90 (common practice)
     assert _angle_diff(s["plane"]["strike_rhr"], s["plane"]["dip_direction"] - 90.0) < 1e-6
     assert s["trace_misfit_m"]["median"] < DEMO_CELL_M
-    assert set(s["inputs"]) == {"contacts.gpkg", "dem.tif", "contours.gpkg"}
+    assert set(s["inputs"]) == {"contacts_grouped.gpkg", "dem.tif", "contours.gpkg", "top_contacts.gpkg",
+                                "boreholes.gpkg", "orientations.gpkg"}
     assert all(len(h) == 64 for h in s["inputs"].values())
+    # Source: truth.json - the top contact was built parallel to the base at this true thickness
+    assert s["thickness"]["mean_m"] == pytest.approx(t["true_thickness_m"], abs=0.5)
+    assert set(s["groups"]["planes"]) == set(t["grouped_contacts"]["blocks"])
+    assert s["model"]["boreholes"]["n"] == len(t["boreholes"]["holes"])
+    assert s["model"]["orientations"]["n"] == len(t["orientations"]["readings"])
 
 
 def test_structure_contours_are_multiples_of_interval_and_on_the_plane(demo_run):

@@ -8,7 +8,8 @@ from pathlib import Path
 from strikeline.cli.options import EPILOG
 from strikeline.errors import InputError
 
-HELP = "run the whole chain on the bundled demo sheet (DEM and contour picks together)"
+HELP = ("run the whole chain on the bundled fictional demo sheet: DEM and contour picks, two mapped "
+        "blocks, boreholes, dip readings and the unit's top contact")
 
 
 def demo_dir() -> Path:
@@ -31,9 +32,13 @@ def demo_options(out, *, overwrite=False):
     if not (d / "dem.tif").exists():
         raise InputError(f"demo sheet not found in '{d}'; run strikeline demo from a source checkout "
                          "(or regenerate it with test_data/make_demo_sheet.py)")
-    return RunOptions(contacts=str(d / "contacts.gpkg"), dem=str(d / "dem.tif"),
-                      contours=str(d / "contours.gpkg"), elev_field="elev_m", out=str(out),
-                      overwrite=overwrite, interval_m=50.0)
+    return RunOptions(contacts=str(d / "contacts_grouped.gpkg"), group_by="block", dem=str(d / "dem.tif"),
+                      contours=str(d / "contours.gpkg"), elev_field="elev_m",
+                      top_contacts=str(d / "top_contacts.gpkg"),
+                      boreholes=str(d / "boreholes.gpkg"), borehole_collar_field="collar_m",
+                      borehole_depth_field="depth_m",
+                      orientations=str(d / "orientations.gpkg"), dip_field="dip", dip_direction_field="dip_dir",
+                      out=str(out), overwrite=overwrite, interval_m=50.0)
 
 
 def main(args) -> int:
