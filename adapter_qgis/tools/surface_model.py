@@ -6,6 +6,7 @@ from qgis.core import (
     QgsProcessing,
     QgsProcessingOutputNumber,
     QgsProcessingOutputString,
+    QgsProcessingParameterDefinition,
     QgsProcessingParameterDistance,
     QgsProcessingParameterEnum,
     QgsProcessingParameterExtent,
@@ -18,11 +19,13 @@ from qgis.core import (
 
 from strikeline.errors import InputError
 from strikeline.io.crs import same_crs, srs_from_wkt
-from strikeline.surfaces import fit_surface
+from strikeline.picks import SOURCES, PickSet
+from strikeline.pipeline import (DEFAULT_BOREHOLE_SIGMA_M, DEFAULT_ORIENTATION_SIGMA_DEG, RunOptions,
+                                 model_surface)
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
 from ..chain import grid_over
-from ..inputs import PICKS, add_picks, read_dem, read_picks, read_points_xyz
+from ..inputs import PICKS, PICKS_FIELD, add_picks, read_dem, read_points_xyz
 from ..layers import crs_to_srs
 from ..outputs import write_raster
 from ..styles import attach_style
@@ -78,6 +81,8 @@ class SurfaceModel(StrikelineAlgorithm):
     DIPS = "DIPS"
     DIP_FIELD = "DIPS_DIP_FIELD"
     DIPDIR_FIELD = "DIPS_DIP_DIRECTION_FIELD"
+    ORIENTATION_SIGMA = "ORIENTATION_SIGMA"
+    SEED = "SEED"
     OUTPUT = "SURFACE"
     STANDARD_ERROR = "STANDARD_ERROR"
     EXTRAPOLATED = "EXTRAPOLATED"
@@ -101,8 +106,9 @@ class SurfaceModel(StrikelineAlgorithm):
             self.BOREHOLES_FIELD, self.tr("Elevation field of the boreholes (empty: the points' Z)"),
             parentLayerParameterName=self.BOREHOLES, type=QgsProcessingParameterField.Numeric, optional=True))
         self.addParameter(QgsProcessingParameterNumber(
-            self.BOREHOLE_SIGMA, self.tr("Standard error of the borehole elevations (m)"),
-            QgsProcessingParameterNumber.Double, defaultValue=0.0, minValue=0.0, optional=True))
+            self.BOREHOLE_SIGMA, self.tr("Standard error of the borehole elevations (m, 0: exact)"),
+            QgsProcessingParameterNumber.Double, defaultValue=DEFAULT_BOREHOLE_SIGMA_M, minValue=0.0,
+            optional=True))
         self.addParameter(QgsProcessingParameterFeatureSource(
             self.DIPS, self.tr("Dip measurements (points)"), [QgsProcessing.TypeVectorPoint], optional=True))
         for key, label in ((self.DIP_FIELD, "Dip field (°)"),
@@ -110,6 +116,15 @@ class SurfaceModel(StrikelineAlgorithm):
             self.addParameter(QgsProcessingParameterField(
                 key, self.tr(label), parentLayerParameterName=self.DIPS,
                 type=QgsProcessingParameterField.Numeric, optional=True))
+        self.addParameter(QgsProcessingParameterNumber(
+            self.ORIENTATION_SIGMA, self.tr("Standard error of the measured dips (°, 0: exact)"),
+            QgsProcessingParameterNumber.Double, defaultValue=DEFAULT_ORIENTATION_SIGMA_DEG, minValue=0.0,
+            optional=True))
+        seed = QgsProcessingParameterNumber(self.SEED, self.tr("Random seed (cross-validation folds)"),
+                                            QgsProcessingParameterNumber.Integer, defaultValue=0, minValue=0,
+                                            optional=True)
+        seed.setFlags(seed.flags() | QgsProcessingParameterDefinition.FlagAdvanced)
+        self.addParameter(seed)
         self.addParameter(QgsProcessingParameterRasterDestination(self.OUTPUT, self.tr("Surface elevation")))
         self.addParameter(QgsProcessingParameterRasterDestination(
             self.STANDARD_ERROR, self.tr("Standard error of the surface (m)"), optional=True,
@@ -142,11 +157,15 @@ class SurfaceModel(StrikelineAlgorithm):
 
     def process(self, parameters, context, steps):
         model = METHODS[self.parameterAsEnum(parameters, self.METHOD_P, context)][0]
-        xyz, source, name = read_picks(self, parameters, context, steps)
+        picks_src = self.parameterAsSource(parameters, PICKS, context)
+        text = tuple(f for f in ("contact_id", "source") if f in picks_src.fields().names())
+        xyz, source, name, vals = read_points_xyz(self, parameters, PICKS, PICKS_FIELD, context, steps,
+                                                  label="picks", field_label="Elevation field of the picks",
+                                                  text_fields=text)
         crs = source.sourceCrs()
         boreholes, _, _, _ = read_points_xyz(self, parameters, self.BOREHOLES, self.BOREHOLES_FIELD, context,
-                                          steps, label="boreholes",
-                                          field_label="Elevation field of the boreholes", target_crs=crs)
+                                             steps, label="boreholes",
+                                             field_label="Elevation field of the boreholes", target_crs=crs)
         orientations = None
         dip_f = self.parameterAsString(parameters, self.DIP_FIELD, context)
         dd_f = self.parameterAsString(parameters, self.DIPDIR_FIELD, context)
@@ -154,19 +173,27 @@ class SurfaceModel(StrikelineAlgorithm):
             if not (dip_f and dd_f):
                 raise InputError("dip measurements given without their fields; choose the 'Dip field' "
                                  "and the 'Dip-direction field'")
-            dxyz, _, _, vals = read_points_xyz(self, parameters, self.DIPS, None, context, steps,
-                                               label="dip measurements", field_label="", target_crs=crs,
-                                               fields=(dip_f, dd_f))
-            orientations = np.column_stack([dxyz[:, 0], dxyz[:, 1], vals[dip_f], vals[dd_f]])
-        sigma_b = self.parameterAsDouble(parameters, self.BOREHOLE_SIGMA, context)
+            dxyz, _, _, dvals = read_points_xyz(self, parameters, self.DIPS, None, context, steps,
+                                                label="dip measurements", field_label="", target_crs=crs,
+                                                fields=(dip_f, dd_f))
+            orientations = np.column_stack([dxyz[:, 0], dxyz[:, 1], dvals[dip_f], dvals[dd_f]])
         grid = self._grid(parameters, context, steps, source, xyz)
         steps.feedback.setProgress(10)
-        try:
-            surf = fit_surface(xyz, model=model, boreholes=boreholes, borehole_sigma_m=sigma_b,
-                               orientations=orientations, cross_validate_model=model != "plane",
-                               progress=steps.part(0.1, 0.6), is_cancelled=steps.is_cancelled)
-        except InputError as exc:
-            raise type(exc)(f"picks {name.what}: {exc}") from None
+        # As strikeline run: cross-validation folds hold out contact segments (the picks'
+        # contact_id; all one contact without it). The source only labels picks, it is not used.
+        cid = vals.get("contact_id")
+        cid = np.zeros(len(xyz), np.int64) if cid is None else np.array(
+            [-1 if v is None else int(v) for v in cid], dtype=np.int64)
+        src = vals.get("source")
+        src = np.array([v if v in SOURCES else "dem" for v in src], dtype="<U8") if src is not None \
+            else np.full(len(xyz), "dem", dtype="<U8")
+        opts = RunOptions(contacts=name.path, out="", model=model,
+                          borehole_sigma_m=self.parameterAsDouble(parameters, self.BOREHOLE_SIGMA, context),
+                          orientation_sigma_deg=self.parameterAsDouble(parameters, self.ORIENTATION_SIGMA, context),
+                          seed=self.parameterAsInt(parameters, self.SEED, context))
+        surf = model_surface(PickSet(xyz, cid, src), opts, grid, boreholes=boreholes, orientations=orientations,
+                             what=f"picks {name.what}", is_cancelled=steps.is_cancelled)
+        steps.feedback.setProgress(60)
         s = surf.summary()
         p = s["params"]
         dip = p.get("dip_deg", p.get("trend_dip_deg"))

@@ -300,12 +300,18 @@ def contour_picks(sheet):
 def test_surface_models_are_the_library_models(run, contour_picks, method, model):
     from strikeline.surfaces import fit_surface
 
+    from strikeline.picks import PickSet
+    from strikeline.pipeline import RunOptions, model_surface
+
     layer, xyz = contour_picks
     res = run("surfacemodel", {"PICKS": layer, "METHOD": method, "CELL": 50.0, "SURFACE": TMP,
                                "STANDARD_ERROR": TMP, "EXTRAPOLATED": TMP})
     got, gt, _ = raster(res["SURFACE"])
     grid = Grid(gt, got.shape)
-    ref = fit_surface(xyz, model=model)
+    _, cols = table(layer)
+    # The library's surface step of `strikeline run --model ...` (folds by contact segment).
+    ref = model_surface(PickSet(xyz, cols["contact_id"].astype(np.int64), cols["source"].astype(str)),
+                        RunOptions(contacts="picks", out="", model=model), grid, what="picks")
     assert res["MODEL"] == ref.kind == model
     assert res["CV_RMSE_M"] == pytest.approx(ref.cv_rmse_m[model], abs=1e-12)
     np.testing.assert_array_equal(got, ref.evaluate_grid(grid).astype(np.float32).astype(float))
@@ -335,7 +341,7 @@ def test_surface_model_honours_a_borehole(run, contour_picks, sheet):
     f.setGeometry(QgsGeometry.fromWkt("PointZ ({} {} {})".format(*BOREHOLE)))
     holes.dataProvider().addFeatures([f])
     res = run("surfacemodel", {"PICKS": layer, "METHOD": 0, "REFERENCE": sheet["dem"], "BOREHOLES": holes,
-                               "SURFACE": TMP})
+                               "BOREHOLE_SIGMA": 0.0, "SURFACE": TMP})
     surface, grid = read_raster(res["SURFACE"], label="surface")
     ref = fit_surface(xyz, model="plane", boreholes=np.array([BOREHOLE]), cross_validate_model=False)
     np.testing.assert_array_equal(surface, ref.evaluate_grid(grid).astype(np.float32).astype(float))
