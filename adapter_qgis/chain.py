@@ -29,12 +29,6 @@ def grid_over(bounds, *, cell_m, crs_wkt, log) -> Grid:
                         RunOptions(contacts="extent", out="", cell_m=cell_m), log=log)
 
 
-def surface_of_plane(plane, grid: Grid) -> np.ndarray:
-    """The plane's elevation at every cell centre of ``grid`` (as ``compute`` makes it)."""
-    X, Y = grid.mesh()
-    return plane.elevation(X, Y)
-
-
 def require_same_grid(a: Grid, b: Grid, *, what_a: str, what_b: str) -> None:
     """Refuse two rasters that are not on one grid (cell-by-cell work needs one)."""
     same = (tuple(a.shape) == tuple(b.shape)

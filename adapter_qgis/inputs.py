@@ -109,13 +109,6 @@ def add_picks(alg) -> None:
         parentLayerParameterName=PICKS, type=QgsProcessingParameterField.Numeric, optional=True))
 
 
-def read_picks(alg, parameters, context, steps):
-    """``(xyz array (n, 3), feature source, LayerName)`` of the picks input, in its own CRS."""
-    xyz, source, name, _ = read_points_xyz(alg, parameters, PICKS, PICKS_FIELD, context, steps, label="picks",
-                                           field_label="Elevation field of the picks")
-    return xyz, source, name
-
-
 def read_points_xyz(alg, parameters, key, field_key, context, steps, *, label, field_label,
                     target_crs=None, fields=(), text_fields=()):
     """Points of parameter ``key`` as ``(xyz (n, 3), source, LayerName, values)``.

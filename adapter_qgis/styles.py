@@ -144,7 +144,7 @@ def style_structure_contours(layer) -> None:
 
 
 def style_trace(layer) -> None:
-    """Wide vermilion: dash-dot where the trace is forecast beyond the data (``extrapolated``),
+    """Wide vermilion: dotted where the trace is forecast beyond the data (``extrapolated``),
     dashed elsewhere (it is a prediction throughout, never a mapped line)."""
     near = QgsLineSymbol.createSimple({"line_color": TRACE_VERMILION, "line_width": "0.9",
                                        "line_style": "dash", "capstyle": "round"})

@@ -1,7 +1,7 @@
 """Tool: elevation picks along mapped contacts, from a DEM and/or topographic contour lines."""
 from __future__ import annotations
 
-from qgis.core import QgsProcessingParameterFeatureSink, QgsProcessing, QgsWkbTypes
+from qgis.core import QgsProcessing, QgsProcessingParameterFeatureSink
 
 from strikeline.pipeline import collect_picks
 

@@ -14,8 +14,6 @@ from qgis.core import (
     QgsWkbTypes,
 )
 
-from strikeline.errors import InputError
-from strikeline.fitting import fit_plane
 from strikeline.pipeline import attitude_of
 from strikeline.uncertainty import MIN_REPLICATES
 
@@ -44,28 +42,9 @@ CONFIDENCE_NUMBERS = (("DIP_DIRECTION_TRUE_DEG", "Dip direction from true north 
                       ("COLLINEARITY_K", "Collinearity K (Woodcock)"))
 
 
-def fit_named(xyz, what: str):
-    """The library's plane fit; its errors name the picks layer (as ``pipeline.fit_picks``)."""
-    try:
-        return fit_plane(xyz)
-    except InputError as exc:
-        raise type(exc)(f"{what}: {exc}") from None
-
-
-def plane_numbers(plane) -> dict:
-    return {"DIP_DEG": plane.dip_deg, "DIP_DIRECTION_DEG": plane.dip_direction_deg,
-            "STRIKE_RHR_DEG": plane.strike_rhr_deg, "RMS_M": plane.rms_m, "N_PICKS": plane.n_points}
-
-
 def add_plane_outputs(alg) -> None:
     for key, label in NUMBERS:
         alg.addOutput(QgsProcessingOutputNumber(key, alg.tr(label)))
-
-
-def log_plane(steps, plane) -> None:
-    steps.log(f"best-fit plane: dip {plane.dip_deg:.2f}° toward {plane.dip_direction_deg:.1f}° "
-              f"(strike {plane.strike_rhr_deg:.1f}° RHR), RMS residual {plane.rms_m:.2f} m "
-              f"from {plane.n_points} picks")
 
 
 def report_quality(steps, att: dict, what: str = "plane") -> None:

@@ -1,8 +1,6 @@
 """Tool: structure contours of a modelled surface."""
 from __future__ import annotations
 
-import numpy as np
-
 from qgis.core import (
     QgsProcessing,
     QgsProcessingOutputNumber,
