@@ -133,3 +133,20 @@ def test_plugin_zip_vendors_the_library(tmp_path):
     lib_file, n_algs = done.stdout.split()[-2:]
     assert Path(lib_file).is_relative_to(tmp_path / "plugins" / "strikeline_qgis" / "_vendor")
     assert int(n_algs) == len(TOOLS)
+
+
+def test_a_symlinked_checkout_loads_its_own_library(tmp_path):
+    """Development install: a plugin folder linked to adapter_qgis/ finds algorithms/ as strikeline."""
+    plugins = tmp_path / "plugins"
+    plugins.mkdir()
+    (plugins / "strikeline_dev").symlink_to(PLUGIN, target_is_directory=True)
+    # The system Python without the editable install: only the link can provide strikeline.
+    probe = ("import sys; sys.path.insert(0, sys.argv[1]); import strikeline_dev._vendor as v; "
+             "where = v.ensure_library(); import strikeline, strikeline.errors; "
+             "print(where); print(strikeline.__file__)")
+    done = subprocess.run(["/usr/bin/python3", "-c", probe, str(plugins)], capture_output=True, text=True,
+                          timeout=60, env={"PATH": "/usr/bin:/bin", "HOME": str(tmp_path)})
+    assert done.returncode == 0, done.stderr
+    where, lib_file = done.stdout.split()[-2:]
+    assert Path(lib_file) == REPO / "algorithms" / "__init__.py"
+    assert Path(where) == REPO / "algorithms"
