@@ -83,6 +83,28 @@ def test_contact_picks_are_the_library_picks(run, sheet, reference, kind):
     np.testing.assert_allclose(xyz[dem_rows, 2][inside], expected[inside], atol=1e-6)
 
 
+def test_dem_without_a_plain_file_is_read_through_qgis(run, sheet, reference, tmp_path):
+    """A raster layer GDAL cannot open by path alone (a GeoPackage raster table) is read block-wise
+    through the QGIS provider; the picks are the same as from the GeoTIFF."""
+    from qgis.core import QgsRasterLayer
+
+    from adapter_qgis.layers import raster_path, read_raster_layer
+
+    gpkg = tmp_path / "dem.gpkg"
+    gdal.Translate(str(gpkg), sheet["dem"], format="GPKG", creationOptions=["RASTER_TABLE=ground"])
+    layer = QgsRasterLayer(f"GPKG:{gpkg}:ground", "ground", "gdal")
+    assert layer.isValid() and raster_path(layer) is None
+    arr, grid = read_raster_layer(layer)
+    ref_arr, ref_grid = read_raster(sheet["dem"], label="DEM")
+    assert grid.transform == ref_grid.transform
+    # Source: GDAL's own GeoPackage driver (gdal.Translate) as the reference copy of the DEM.
+    np.testing.assert_array_equal(arr, ref_arr)
+    res = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": layer, "PICKS": TMP})
+    geoms, _ = table(res["PICKS"])
+    ref = reference[1].picks
+    np.testing.assert_array_equal(shapely.get_coordinates(geoms, include_z=True), ref.xyz[ref.source == "dem"])
+
+
 def test_selected_features_only(run, sheet, reference):
     from strikeline.pipeline import RunOptions, collect_picks, load_inputs
 
