@@ -63,6 +63,7 @@ __all__ = [
     "UNDETERMINED_MAX_COPLANARITY",
     "DEFAULT_MIN_RELIEF_M",
     "RELIEF_SIGMAS",
+    "MISFIT_SIGMAS",
     "GOOD_MAX_DIP_CI95_DEG",
 ]
 
@@ -80,6 +81,9 @@ UNDETERMINED_MAX_COPLANARITY = 2.0
 DEFAULT_MIN_RELIEF_M = 1.0
 #: Our choice: the relief must also exceed this many vertical standard errors of the picks.
 RELIEF_SIGMAS = 4.0
+#: Our choice: picks scattering about their plane by more than this many vertical standard
+#: errors (RMS orthogonal residual) come from a surface that is not planar - at best "weak".
+MISFIT_SIGMAS = 3.0
 #: Our choice: a 95% dip half-width above this (degrees) makes a plane at best "weak"; the hand
 #: estimate from structure contours is good to a degree or two (common practice).
 GOOD_MAX_DIP_CI95_DEG = 5.0
@@ -105,7 +109,8 @@ class PlaneQuality:
         What data would help (empty for ``"good"``).
     reason_code : str
         Machine-readable reason: ``"ok"``, ``"too_few_picks"``, ``"collinear"``,
-        ``"not_planar"``, ``"flat"``, ``"marginal_shape"``, ``"three_points"`` (exactly three
+        ``"not_planar"``, ``"flat"``, ``"marginal_shape"``, ``"curved"`` (residuals beyond ``MISFIT_SIGMAS`` vertical
+        errors), ``"three_points"`` (exactly three
         picks: at best ``"weak"``) or ``"wide_confidence"``.
     collinearity : float
         Woodcock's K (``inf`` for picks exactly on a line).
@@ -239,6 +244,14 @@ def classify_planes(eigenvalues, *, n_points, relief_m=None, sigma_z_m=None,
                 > _check_nonneg("max_good_dip_ci95_deg", max_good_dip_ci95_deg)) & ~marginal
         code[wide] = "wide_confidence"
         quality[wide] = "weak"
+    if sigma_z_m is not None:
+        # RMS orthogonal residual from the smallest eigenvalue: sqrt(lambda_min / n)
+        sig = _check_nonneg("sigma_z_m", sigma_z_m)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            rms = np.sqrt(np.min(w, axis=1) / np.where(n > 0, n, np.nan))
+        curved = (quality == "good") & (n > 3) & (sig > 0) & (rms > MISFIT_SIGMAS * sig)
+        code[curved] = "curved"
+        quality[curved] = "weak"
     # Three picks always fit a plane exactly: no scatter is left to show how good it is.
     three = (n == 3) & (quality == "good")
     code[three] = "three_points"
@@ -284,6 +297,10 @@ def _words(code, m, k, n, relief, min_relief, dip_ci, max_ci):
     if code == "marginal_shape":
         return (f"the picks define a plane only loosely ({shape}; a reliable plane needs "
                 f"M > {GOOD_MIN_COPLANARITY:g} and K < {GOOD_MAX_COLLINEARITY:g})")
+    if code == "curved":
+        return (f"the picks have a good spread ({shape}) but scatter about the plane by more than "
+                f"{MISFIT_SIGMAS:g} times their vertical error, so the surface is not planar: read "
+                "the local attitudes and the surface model rather than this one plane")
     if code == "three_points":
         return ("three picks fit a plane exactly (the three-point solution), leaving no scatter to "
                 f"show how well it is determined ({shape})")

@@ -185,3 +185,19 @@ def test_three_points_are_at_best_weak():
     q = assess_plane(np.array([[0.0, 0.0, 100.0], [1000.0, 0.0, 100.0], [0.0, 1000.0, 50.0]]))
     assert q.quality == "weak" and q.reason_code == "three_points"
     assert "three-point" in q.reason
+
+
+def test_curved_surface_with_small_pick_error_is_weak():
+    # Analytic: picks of a cylindrical fold (amplitude 50 m) with a stated 1 m error scatter far
+    # more than 3 errors about any plane, so one plane cannot describe them (common practice:
+    # residuals well beyond the data error mean the model is wrong, not the data).
+    from strikeline.diagnostics import MISFIT_SIGMAS, assess_plane
+
+    x, y = np.meshgrid(np.linspace(0, 2000, 30), np.linspace(0, 2000, 30))
+    z = 300 - 0.1 * x + 50 * np.cos(2 * np.pi * y / 1500)
+    pts = np.column_stack([x.ravel(), y.ravel(), z.ravel()])
+    q = assess_plane(pts, sigma_z_m=1.0)
+    assert q.quality == "weak" and q.reason_code == "curved" and "not planar" in q.reason
+    assert MISFIT_SIGMAS == 3.0
+    # the same picks with a stated error larger than their scatter are not flagged
+    assert assess_plane(pts, sigma_z_m=100.0).reason_code != "curved"
