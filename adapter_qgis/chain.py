@@ -2,8 +2,8 @@
 makes them, so a step run on its own gives the numbers the whole chain gives.
 
 No numerical method lives here: each function strings together library functions for one
-tool. Where the library gains a function for the same sequence (asked for in
-``/work/requests-qgis.md``), the function here becomes a one-line call to it.
+tool; sequences the library offers itself (``pipeline.structure_contours``,
+``pipeline.depth_trace_misfit``, ``pipeline.model_surface``) are called directly by the tools.
 """
 from __future__ import annotations
 
@@ -12,13 +12,11 @@ import shapely
 
 from strikeline.errors import InputError
 from strikeline.grid import Grid
-from strikeline.grids import depth_below_ground
-from strikeline.io.contours import contour_lines
 from strikeline.io.crs import same_crs, srs_from_wkt
 from strikeline.io.vector import VectorLayer
 from strikeline.picks import sample_bilinear
 from strikeline.pipeline import Inputs, RunOptions, surface_grid
-from strikeline.trace import contact_misfit_segments, distance_to_lines, split_lines_by_flag, trace_misfit
+from strikeline.trace import split_lines_by_flag
 
 
 def grid_over(bounds, *, cell_m, crs_wkt, log) -> Grid:
@@ -65,42 +63,3 @@ def raster_flag(array, grid: Grid, *, at_least: float):
         v = sample_bilinear(array, grid, x, y)
         return np.where(np.isfinite(v), v >= at_least, False)
     return fn
-
-
-def depth_trace_misfit(dem, dem_grid: Grid, surface, contacts=None, *, extrapolated_fn=None,
-                       flag_m=None):
-    """Depth below ground, the predicted trace and its misfit to the mapped contacts.
-
-    The same calls as :func:`strikeline.pipeline.compute`: depth = DEM − surface; the trace is
-    its zero line, split where ``extrapolated_fn`` changes; the misfit is measured from every
-    contact vertex over valid DEM cells, and along contact segments of ``SEGMENT_CELLS`` cells,
-    flagged beyond ``flag_m`` (default ``FLAG_CELLS`` cells). ``contacts`` is a VectorLayer.
-    Returns a dict: ``depth``, ``trace``, ``trace_extrapolated``, ``misfit``, ``vertices``,
-    ``vertex_distance``, ``segments``.
-    """
-    from strikeline.pipeline import FLAG_CELLS, SEGMENT_CELLS
-
-    spacing = min(dem_grid.cell_x_m, dem_grid.cell_y_m)
-    depth = depth_below_ground(dem, surface)
-    raw_trace, _ = contour_lines(depth, dem_grid, levels=[0.0])
-    if extrapolated_fn is not None:
-        trace, tflags, _ = split_lines_by_flag(raw_trace, extrapolated_fn, spacing_m=spacing)
-    else:
-        trace, tflags = raw_trace, None
-    out = {"depth": depth, "trace": trace, "trace_extrapolated": tflags, "misfit": None,
-           "vertices": np.empty((0, 2)), "vertex_distance": np.empty(0), "segments": None}
-    if contacts is None:
-        return out
-    verts = shapely.get_coordinates(contacts.geoms)
-    on_dem = np.isfinite(sample_bilinear(dem, dem_grid, verts[:, 0], verts[:, 1]))
-    out["misfit"] = trace_misfit(verts[on_dem], raw_trace)
-    out["vertices"] = verts[on_dem]
-    out["vertex_distance"] = distance_to_lines(verts[on_dem], raw_trace)
-
-    def on_valid(x, y):
-        return np.isfinite(sample_bilinear(dem, dem_grid, x, y))
-
-    out["segments"] = contact_misfit_segments(
-        contacts.geoms, contacts.fids, raw_trace, segment_m=SEGMENT_CELLS * spacing,
-        flag_m=FLAG_CELLS * spacing if flag_m is None else flag_m, valid_fn=on_valid)
-    return out

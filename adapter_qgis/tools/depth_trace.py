@@ -14,8 +14,10 @@ from qgis.core import (
     QgsWkbTypes,
 )
 
+from strikeline.pipeline import depth_trace_misfit
+
 from ..base import REF_GDAL_CONTOUR, REF_PRESS, StrikelineAlgorithm
-from ..chain import depth_trace_misfit, raster_flag, require_same_grid
+from ..chain import raster_flag, require_same_grid
 from ..inputs import read_dem, source_and_name
 from ..layers import qgis_crs, read_vector
 from ..outputs import Table, write_raster, write_sink
@@ -105,7 +107,7 @@ class DepthTrace(StrikelineAlgorithm):
                    "MISFIT_N": misfit["n_vertices"]}
             steps.log(f"trace misfit: median {misfit['median']:.1f} m, 90th percentile "
                       f"{misfit['p90']:.1f} m over {misfit['n_vertices']} contact vertices")
-        elif misfit is not None:
+        elif contacts is not None:
             steps.warn(f"trace misfit not computed: {misfit.get('note', 'no predicted trace')}")
         seg = res["segments"]
         if seg is not None and int(np.sum(seg["flagged"])):
@@ -115,7 +117,8 @@ class DepthTrace(StrikelineAlgorithm):
         out_grid = dem_grid.with_nodata(None)
         p_depth = write_raster(self, parameters, self.DEPTH, context, res["depth"], out_grid)
         d_trace = write_sink(self, parameters, self.TRACE, context,
-                             trace_table(res["trace"], extrapolated=res["trace_extrapolated"]), crs)
+                             trace_table(res["trace"], extrapolated=res["trace_extrapolated"]
+                                         if extrapolated_fn is not None else None), crs)
         d_misfit = d_seg = None
         if contacts is not None:
             vxy = res["vertices"]

@@ -1,6 +1,8 @@
 """Tool: structure contours of a modelled surface."""
 from __future__ import annotations
 
+import numpy as np
+
 from qgis.core import (
     QgsProcessing,
     QgsProcessingOutputNumber,
@@ -9,11 +11,10 @@ from qgis.core import (
     QgsProcessingParameterRasterLayer,
 )
 
-from strikeline.io.contours import contour_lines
+from strikeline.grids import depth_below_ground
+from strikeline.pipeline import structure_contours
 
 from ..base import REF_GDAL_CONTOUR, StrikelineAlgorithm
-from strikeline.grids import depth_below_ground
-
 from ..chain import raster_flag, require_same_grid, split_by_flags
 from ..inputs import read_dem
 from ..layers import qgis_crs
@@ -67,17 +68,22 @@ class StructureContours(StrikelineAlgorithm):
                                           label="forecast mask")
         steps.feedback.setProgress(30)
         steps.check("structure contours")
-        geoms, elev = contour_lines(surface, grid, interval_m=interval)
-        flags = {}
+        extrapolated_fn = None
         if mask is not None:
             require_same_grid(grid, mask_grid, what_a=f"surface '{spath}'", what_b=f"forecast mask '{mpath}'")
-            flags["extrapolated"] = raster_flag(mask, mask_grid, at_least=0.5)
+            extrapolated_fn = raster_flag(mask, mask_grid, at_least=0.5)
+        # strikeline run's structure contours: split where they leave the reach of the data.
+        geoms, elev, extrapolated = structure_contours(surface, grid, interval_m=interval,
+                                                       extrapolated_fn=extrapolated_fn)
+        parts = {"extrapolated": extrapolated} if mask is not None else {}
         if dem is not None:
             require_same_grid(grid, dem_grid, what_a=f"surface '{spath}'", what_b=f"DEM '{dpath}'")
-            flags["below_ground"] = raster_flag(depth_below_ground(dem, surface), grid, at_least=0.0)
-        parts = {}
-        if flags:
-            geoms, elev, parts = split_by_flags(geoms, elev, flags, spacing_m=min(grid.cell_x_m, grid.cell_y_m))
+            flags = {"below_ground": raster_flag(depth_below_ground(dem, surface), grid, at_least=0.0)}
+            keyed = np.column_stack([elev, *parts.values()]) if parts else elev[:, None]
+            geoms, keyed, more = split_by_flags(geoms, keyed, flags, spacing_m=min(grid.cell_x_m, grid.cell_y_m))
+            elev = keyed[:, 0]
+            parts = {name: keyed[:, i + 1].astype(bool) for i, name in enumerate(parts)}
+            parts.update(more)
         steps.feedback.setProgress(90)
         steps.check("structure contours")
         steps.log(f"structure contours: {len(geoms)} lines every {interval:g} m")
