@@ -62,6 +62,7 @@ class RunOptions:
     interval_m: float = 50.0
     cell_m: float | None = None
     overwrite: bool = False
+    pick_spacing_m: float | None = None
     # surface model and extra constraints (issue 4)
     model: str = "auto"
     boreholes: str | None = None
@@ -143,11 +144,6 @@ def check_options(opts: RunOptions) -> None:
     """Refuse contradictory or incomplete options before any work is done."""
     if opts.dem is None and opts.contours is None:
         raise InputError("no topography given: give --dem PATH, --contours PATH --elev-field NAME, or both")
-    if opts.contours is not None and not opts.elev_field:
-        raise InputError(
-            f"contours '{opts.contours}': the elevation field is not named; add --elev-field NAME "
-            "(the numeric field that holds each contour's elevation)"
-        )
     if opts.model not in MODELS:
         raise InputError(f"--model must be one of {', '.join(MODELS)}; got {opts.model!r}")
     _positive(opts.interval_m, "--interval (metres)")
@@ -155,6 +151,8 @@ def check_options(opts: RunOptions) -> None:
         _positive(opts.cell_m, "--cell (metres)")
     if opts.window_m is not None:
         _positive(opts.window_m, "--window (metres)")
+    if opts.pick_spacing_m is not None:
+        _positive(opts.pick_spacing_m, "--pick-spacing (metres)")
     if opts.misfit_flag_m is not None:
         _positive(opts.misfit_flag_m, "--misfit-flag (metres)")
     _positive(opts.dem_sigma_m, "--dem-sigma (metres)", allow_zero=True)
@@ -176,21 +174,36 @@ def _to_target(lyr: VectorLayer | None, target, key: str, log: Log) -> VectorLay
     return lyr.reprojected(target)
 
 
-def _borehole_points(lyr: VectorLayer, opts: RunOptions) -> np.ndarray:
-    """``(n, 3)`` borehole positions and the surface's elevation in each."""
+#: How the command line names the options that messages refer to; the QGIS adapter passes the
+#: labels of its own parameters instead.
+CLI_OPTION_NAMES = {
+    "elev_field": "--elev-field", "group_by": "--group-by",
+    "borehole_z_field": "--borehole-z-field", "borehole_collar_field": "--borehole-collar-field",
+    "borehole_depth_field": "--borehole-depth-field", "dip_field": "--dip-field",
+    "dip_direction_field": "--dip-direction-field", "strike_field": "--strike-field",
+}
+
+
+def borehole_points(lyr: VectorLayer, opts: RunOptions, *, names: dict = CLI_OPTION_NAMES) -> np.ndarray:
+    """``(n, 3)`` borehole positions and the surface's elevation in each.
+
+    The elevation is ``opts.borehole_z_field``, or collar minus depth, or the points' Z.
+    ``names`` says how to name the options in messages.
+    """
     xy = shapely.get_coordinates(lyr.geoms)
     if len(xy) != len(lyr):
         raise InputError(f"{lyr.what} holds multi-point features; give one point per borehole")
     if opts.borehole_z_field:
-        z = lyr.numeric_field(opts.borehole_z_field, option="--borehole-z-field")
+        z = lyr.numeric_field(opts.borehole_z_field, option=names["borehole_z_field"])
     elif opts.borehole_collar_field or opts.borehole_depth_field:
         if not (opts.borehole_collar_field and opts.borehole_depth_field):
             raise InputError(
-                f"boreholes '{lyr.path}': give both --borehole-collar-field and --borehole-depth-field "
-                "(collar elevation and depth down to the surface), or --borehole-z-field"
+                f"boreholes '{lyr.path}': give both {names['borehole_collar_field']} and "
+                f"{names['borehole_depth_field']} (collar elevation and depth down to the surface), "
+                f"or {names['borehole_z_field']}"
             )
-        collar = lyr.numeric_field(opts.borehole_collar_field, option="--borehole-collar-field")
-        depth = lyr.numeric_field(opts.borehole_depth_field, option="--borehole-depth-field")
+        collar = lyr.numeric_field(opts.borehole_collar_field, option=names["borehole_collar_field"])
+        depth = lyr.numeric_field(opts.borehole_depth_field, option=names["borehole_depth_field"])
         if np.any(depth[np.isfinite(depth)] < 0):
             raise InputError(
                 f"field '{opts.borehole_depth_field}' of {lyr.what} holds negative depths; depths are "
@@ -202,8 +215,8 @@ def _borehole_points(lyr: VectorLayer, opts: RunOptions) -> np.ndarray:
         if z is None or not np.isfinite(z).any():
             raise InputError(
                 f"boreholes {lyr.what} carry no elevation of the surface: name it with "
-                "--borehole-z-field, or give --borehole-collar-field and --borehole-depth-field, "
-                "or use Point Z geometries"
+                f"{names['borehole_z_field']}, or give {names['borehole_collar_field']} and "
+                f"{names['borehole_depth_field']}, or use Point Z geometries"
             )
     pts = np.column_stack([xy, z])
     pts = pts[np.isfinite(pts).all(axis=1)]
@@ -212,23 +225,25 @@ def _borehole_points(lyr: VectorLayer, opts: RunOptions) -> np.ndarray:
     return pts
 
 
-def _orientation_rows(lyr: VectorLayer, opts: RunOptions) -> np.ndarray:
-    """``(n, 4)`` x, y, dip, dip direction of the dip measurements."""
+def orientation_rows(lyr: VectorLayer, opts: RunOptions, *, names: dict = CLI_OPTION_NAMES) -> np.ndarray:
+    """``(n, 4)`` x, y, dip, dip direction of the dip measurements (strike by the right-hand rule
+    is turned into a dip direction); ``names`` says how to name the options in messages."""
     xy = shapely.get_coordinates(lyr.geoms)
     if len(xy) != len(lyr):
         raise InputError(f"{lyr.what} holds multi-point features; give one point per measurement")
-    dip = lyr.numeric_field(opts.dip_field, option="--dip-field")
+    dip = lyr.numeric_field(opts.dip_field, option=names["dip_field"])
     if opts.strike_field:
-        dd = dip_direction_from_strike(lyr.numeric_field(opts.strike_field, option="--strike-field"))
+        dd = dip_direction_from_strike(lyr.numeric_field(opts.strike_field, option=names["strike_field"]))
     else:
-        dd = lyr.numeric_field(opts.dip_direction_field or "dip_dir", option="--dip-direction-field")
+        dd = lyr.numeric_field(opts.dip_direction_field or "dip_dir", option=names["dip_direction_field"])
     rows = np.column_stack([xy, dip, dd])
     rows = rows[np.isfinite(rows).all(axis=1)]
     bad = (rows[:, 2] < 0) | (rows[:, 2] >= 89) | (rows[:, 3] < 0) | (rows[:, 3] > 360)
     if bad.any():
         raise InputError(
             f"{lyr.what}: {int(bad.sum())} measurement(s) out of range (dip must lie in 0-89 degrees, "
-            "dip direction in 0-360); fix the values or the field names (--dip-field, --dip-direction-field)"
+            f"dip direction in 0-360); fix the values or the field names ({names['dip_field']}, "
+            f"{names['dip_direction_field']})"
         )
     if len(rows) == 0:
         raise InputError(f"{lyr.what} holds no complete dip measurement")
@@ -240,28 +255,13 @@ def load_inputs(opts: RunOptions, *, log: Log = _quiet) -> Inputs:
     check_options(opts)
     contacts = read_layer(opts.contacts, layer=opts.contacts_layer, where=opts.where,
                           label="contacts", geometry="line", layer_option="--contacts-layer")
-    if opts.group_by and opts.group_by not in contacts.fields:
-        raise InputError(
-            f"--group-by: {contacts.what} has no field '{opts.group_by}' "
-            f"(fields: {', '.join(contacts.fields) or 'none'}); name one of its fields"
-        )
     dem = grid = None
     if opts.dem:
         dem, grid = read_raster(opts.dem, label="DEM")
-        target = srs_from_wkt(grid.crs_wkt)
-    else:
-        target = contacts.srs
-    contours = elev = None
+    contours = boreholes = orientations = top = None
     if opts.contours:
         contours = read_layer(opts.contours, layer=opts.contours_layer, label="contours",
                               geometry="line", layer_option="--contours-layer")
-        elev = contours.numeric_field(opts.elev_field, option="--elev-field")
-        if not np.isfinite(elev).any():
-            raise InputError(
-                f"field '{opts.elev_field}' of {contours.what} holds no elevation (all null); "
-                "name the field that holds the contour elevations with --elev-field"
-            )
-    boreholes = orientations = top = None
     if opts.boreholes:
         boreholes = read_layer(opts.boreholes, layer=opts.boreholes_layer, label="boreholes",
                                geometry="point", layer_option="--boreholes-layer")
@@ -271,32 +271,70 @@ def load_inputs(opts: RunOptions, *, log: Log = _quiet) -> Inputs:
     if opts.top_contacts:
         top = read_layer(opts.top_contacts, layer=opts.top_contacts_layer, where=opts.top_where,
                          label="top contacts", geometry="line", layer_option="--top-contacts-layer")
+    paths = {k: v for k, v in (("contacts", opts.contacts), ("dem", opts.dem), ("contours", opts.contours),
+                               ("boreholes", opts.boreholes), ("orientations", opts.orientations),
+                               ("top_contacts", opts.top_contacts)) if v}
+    return assemble_inputs(contacts, opts, dem=dem, dem_grid=grid, contours=contours, boreholes=boreholes,
+                           orientations=orientations, top_contacts=top, paths=paths, log=log)
+
+
+def assemble_inputs(contacts: VectorLayer, opts: RunOptions, *, dem=None, dem_grid: Grid | None = None,
+                    contours: VectorLayer | None = None, boreholes: VectorLayer | None = None,
+                    orientations: VectorLayer | None = None, top_contacts: VectorLayer | None = None,
+                    paths: dict | None = None, log: Log = _quiet, names: dict = CLI_OPTION_NAMES) -> Inputs:
+    """Check layers already in memory and bring them into one CRS: the second half of
+    :func:`load_inputs`, for callers that read the layers themselves (the QGIS adapter).
+
+    The target CRS is the DEM's, else the contacts'; other layers are reprojected with a log line.
+    ``paths`` (input name -> file) is used for the checksums in the summary; entries that are not
+    files are left out of them.
+    """
+    if opts.group_by and opts.group_by not in contacts.fields:
+        raise InputError(
+            f"{names['group_by']}: {contacts.what} has no field '{opts.group_by}' "
+            f"(fields: {', '.join(contacts.fields) or 'none'}); name one of its fields"
+        )
+    if dem is not None and dem_grid is None:
+        raise InputError("a DEM array needs its grid")
+    target = srs_from_wkt(dem_grid.crs_wkt) if dem is not None else contacts.srs
+    elev = None
+    if contours is not None:
+        if not opts.elev_field:
+            raise InputError(
+                f"contours {contours.what}: the elevation field is not named; add {names['elev_field']} "
+                "(the numeric field that holds each contour's elevation)"
+            )
+        elev = contours.numeric_field(opts.elev_field, option=names["elev_field"])
+        if not np.isfinite(elev).any():
+            raise InputError(
+                f"field '{opts.elev_field}' of {contours.what} holds no elevation (all null); "
+                f"name the field that holds the contour elevations with {names['elev_field']}"
+            )
     contacts = _to_target(contacts, target, "contacts", log)
     contours = _to_target(contours, target, "contours", log)
     boreholes = _to_target(boreholes, target, "boreholes", log)
     orientations = _to_target(orientations, target, "orientations", log)
-    top = _to_target(top, target, "top contacts", log)
-    paths = {k: v for k, v in (("contacts", opts.contacts), ("dem", opts.dem), ("contours", opts.contours),
-                               ("boreholes", opts.boreholes), ("orientations", opts.orientations),
-                               ("top_contacts", opts.top_contacts)) if v}
-    return Inputs(contacts=contacts, crs_wkt=target.ExportToWkt(), dem=dem, dem_grid=grid,
-                  contours=contours, contour_elevations_m=elev, paths=paths,
-                  boreholes_xyz=None if boreholes is None else _borehole_points(boreholes, opts),
-                  orientations=None if orientations is None else _orientation_rows(orientations, opts),
-                  top_contacts=top)
+    top_contacts = _to_target(top_contacts, target, "top contacts", log)
+    return Inputs(contacts=contacts, crs_wkt=target.ExportToWkt(), dem=dem, dem_grid=dem_grid,
+                  contours=contours, contour_elevations_m=elev, paths=dict(paths or {}),
+                  boreholes_xyz=None if boreholes is None else borehole_points(boreholes, opts, names=names),
+                  orientations=None if orientations is None else orientation_rows(orientations, opts, names=names),
+                  top_contacts=top_contacts)
 
 
 # --------------------------------------------------------------------------- steps
-def collect_picks(inputs: Inputs, *, contacts: VectorLayer | None = None, log: Log = _quiet,
-                  progress=None, is_cancelled=None) -> PickSet:
-    """Elevation picks on every contact, from the DEM and/or the contour lines."""
+def collect_picks(inputs: Inputs, *, contacts: VectorLayer | None = None, spacing_m: float | None = None,
+                  log: Log = _quiet, progress=None, is_cancelled=None) -> PickSet:
+    """Elevation picks on every contact, from the DEM (every ``spacing_m``, default the cell size)
+    and/or the contour lines."""
     c = inputs.contacts if contacts is None else contacts
     sets = []
     if inputs.dem is not None:
         dem_picks = picks_from_dem(c.geoms, inputs.dem, inputs.dem_grid, contact_ids=c.fids,
-                                   progress=progress, is_cancelled=is_cancelled)
+                                   spacing_m=spacing_m, progress=progress, is_cancelled=is_cancelled)
         if len(dem_picks) == 0:
-            msg = (f"contacts {c.what} lie entirely outside the valid cells of DEM '{inputs.paths['dem']}'"
+            dem_name = f"DEM '{inputs.paths['dem']}'" if "dem" in inputs.paths else "the DEM"
+            msg = (f"contacts {c.what} lie entirely outside the valid cells of {dem_name}"
                    " (outside its extent or over nodata)")
             if inputs.contours is None:
                 raise InputError(msg + "; give a DEM that covers the contacts, or check that both are "
@@ -497,8 +535,8 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
         if progress is not None:
             progress(min(1.0, k / steps))
 
-    what = f"picks on contacts '{inputs.paths['contacts']}'"
-    picks = collect_picks(inputs, log=log, is_cancelled=is_cancelled)
+    what = f"picks on contacts {inputs.contacts.what}"
+    picks = collect_picks(inputs, spacing_m=opts.pick_spacing_m, log=log, is_cancelled=is_cancelled)
     step(1)
     plane = fit_picks(picks, what=what)
     sigma = pick_sigmas(inputs, picks, opts)
@@ -546,8 +584,9 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     vth = tth = top_picks = None
     thickness = None
     if inputs.top_contacts is not None:
-        twhat = f"picks on top contacts '{inputs.paths['top_contacts']}'"
-        top_picks = collect_picks(inputs, contacts=inputs.top_contacts, log=log, is_cancelled=is_cancelled)
+        twhat = f"picks on top contacts {inputs.top_contacts.what}"
+        top_picks = collect_picks(inputs, contacts=inputs.top_contacts, spacing_m=opts.pick_spacing_m, log=log,
+                                  is_cancelled=is_cancelled)
         fit_picks(top_picks, what=twhat)
         top_model = model_surface(top_picks, opts, grid, what=twhat, is_cancelled=is_cancelled)
         top_surface = top_model.evaluate_grid(grid, is_cancelled=is_cancelled)
@@ -607,7 +646,7 @@ def build_summary(inputs: Inputs, opts: RunOptions, picks: PickSet, plane: dict,
         "conventions": "dip direction 0-360 clockwise from grid north of the CRS; dip 0-90 from "
                        "horizontal; strike by the right-hand rule (dip to the right); "
                        "dip_direction_true is the same azimuth from true north",
-        "inputs": {os.path.basename(p): file_sha256(p) for p in inputs.paths.values()},
+        "inputs": {os.path.basename(p): file_sha256(p) for p in inputs.paths.values() if os.path.isfile(p)},
         "caution": CAUTION,
     }
     if model is not None:
@@ -659,7 +698,8 @@ def _picks_layer(name: str, p: PickSet) -> LayerOut:
                                                   "elevation_m": p.xyz[:, 2]}, ogr.wkbPoint25D)
 
 
-def _attitudes_layer(a: LocalAttitudes) -> LayerOut:
+def attitudes_layer(a: LocalAttitudes) -> LayerOut:
+    """The ``attitudes`` layer of local attitudes (one point per window centre)."""
     cid = np.array([-1 if c is None else int(c) for c in a.contact_id], dtype=np.int64)
     return LayerOut("attitudes", shapely.points(np.column_stack([a.x, a.y])), {
         "dip": np.asarray(a.dip_deg, float), "dip_direction": np.asarray(a.dip_direction_deg, float),
@@ -671,18 +711,20 @@ def _attitudes_layer(a: LocalAttitudes) -> LayerOut:
     }, ogr.wkbPoint)
 
 
-def _write_all(r: Results, folder: Path) -> None:
-    g = r.grid
-    write_geotiff(folder / "surface.tif", r.surface, g)
-    write_geotiff(folder / "dip.tif", r.dip_deg, g)
-    write_geotiff(folder / "dip_direction.tif", r.dip_direction_deg, g)
+def result_rasters(r: Results) -> list[tuple[str, np.ndarray]]:
+    """The grids of a run as ``(file name, array)``, in the order they are written."""
+    out = [("surface.tif", r.surface), ("dip.tif", r.dip_deg), ("dip_direction.tif", r.dip_direction_deg)]
     if r.uncertainty_m is not None:
-        write_geotiff(folder / "uncertainty.tif", r.uncertainty_m, g)
+        out.append(("uncertainty.tif", r.uncertainty_m))
     if r.depth_m is not None:
-        write_geotiff(folder / "depth.tif", r.depth_m, g)
+        out.append(("depth.tif", r.depth_m))
     if r.vertical_thickness_m is not None:
-        write_geotiff(folder / "vertical_thickness.tif", r.vertical_thickness_m, g)
-        write_geotiff(folder / "true_thickness.tif", r.true_thickness_m, g)
+        out += [("vertical_thickness.tif", r.vertical_thickness_m), ("true_thickness.tif", r.true_thickness_m)]
+    return out
+
+
+def result_layers(r: Results) -> list[LayerOut]:
+    """The vector layers of a run (names and fields as in ``results.gpkg``)."""
     cflags = r.contour_extrapolated if r.contour_extrapolated is not None else np.zeros(len(r.contour_geoms), bool)
     tflags = r.trace_extrapolated if r.trace_extrapolated is not None else np.zeros(len(r.trace_geoms), bool)
     layers = [
@@ -700,10 +742,16 @@ def _write_all(r: Results, folder: Path) -> None:
             "contact_id": cm["contact_id"], "misfit_m": cm["misfit_m"], "flagged": cm["flagged"]},
             ogr.wkbLineString))
     if r.attitudes is not None:
-        layers.append(_attitudes_layer(r.attitudes))
+        layers.append(attitudes_layer(r.attitudes))
     if r.top_picks is not None:
         layers.append(_picks_layer("top_picks", r.top_picks))
-    write_gpkg(folder / "results.gpkg", layers, g.crs_wkt)
+    return layers
+
+
+def _write_all(r: Results, folder: Path) -> None:
+    for name, array in result_rasters(r):
+        write_geotiff(folder / name, array, r.grid)
+    write_gpkg(folder / "results.gpkg", result_layers(r), r.grid.crs_wkt)
     (folder / "summary.json").write_text(dumps_stable(r.summary))
 
 

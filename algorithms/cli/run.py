@@ -24,6 +24,8 @@ def add_parser(sub) -> argparse.ArgumentParser:
                    help="structure-contour interval; levels at multiples of it (default 50)")
     g.add_argument("--cell", type=positive_metres, metavar="METRES", dest="cell_m",
                    help="output cell size when there is no DEM (default: about 1/500 of the contours' extent)")
+    g.add_argument("--pick-spacing", type=positive_metres, metavar="METRES", dest="pick_spacing_m",
+                   help="spacing of DEM picks along the contacts (default: the DEM cell size)")
     g.add_argument("--misfit-flag", type=positive_metres, metavar="METRES", dest="misfit_flag_m",
                    help=f"flag contact segments farther than this from the predicted trace "
                         f"(default {pl.FLAG_CELLS} DEM cells)")
@@ -74,7 +76,7 @@ def add_parser(sub) -> argparse.ArgumentParser:
 
 OPTION_FIELDS = (
     "contacts", "contacts_layer", "where", "dem", "contours", "contours_layer", "elev_field", "out",
-    "interval_m", "cell_m", "overwrite", "misfit_flag_m", "model", "boreholes", "boreholes_layer",
+    "interval_m", "cell_m", "overwrite", "pick_spacing_m", "misfit_flag_m", "model", "boreholes", "boreholes_layer",
     "borehole_z_field", "borehole_collar_field", "borehole_depth_field", "borehole_sigma_m",
     "orientations", "orientations_layer", "dip_field", "dip_direction_field", "strike_field",
     "orientation_sigma_deg", "top_contacts", "top_contacts_layer", "top_where", "dem_sigma_m",

@@ -58,10 +58,7 @@ def read_raster(path, *, label: str = "raster", band: int = 1) -> tuple[np.ndarr
                 raise InputError(f"{what} has no georeferencing; georeference it and try again")
             wkt = ds.GetProjection() or ""
             shape = (ds.RasterYSize, ds.RasterXSize)
-            grid_probe = Grid(gt, shape, wkt)
-            xmin, ymin, xmax, ymax = grid_probe.bounds
-            require_projected_metres(srs_from_wkt(wkt), what=what,
-                                     centre_xy=((xmin + xmax) / 2, (ymin + ymax) / 2))
+            require_projected_metres(srs_from_wkt(wkt), what=what, centre_xy=_centre(Grid(gt, shape, wkt)))
             b = ds.GetRasterBand(band)
             nodata = b.GetNoDataValue()
             try:
@@ -70,12 +67,32 @@ def read_raster(path, *, label: str = "raster", band: int = 1) -> tuple[np.ndarr
                 raise RasterReadError(f"{what}: GDAL could not read band {band} ({gdal_message(exc)})") from None
         finally:
             ds = None
-    if nodata is not None:
-        arr[arr == nodata] = np.nan
+    return raster_from_array(arr, Grid(gt, shape, wkt, nodata), what=what, crs_checked=True)
+
+
+def _centre(grid: Grid):
+    xmin, ymin, xmax, ymax = grid.bounds
+    return ((xmin + xmax) / 2, (ymin + ymax) / 2)
+
+
+def raster_from_array(array, grid: Grid, *, what: str, crs_checked: bool = False) -> tuple[np.ndarray, Grid]:
+    """The checks of :func:`read_raster` for a band already in memory.
+
+    The CRS must be projected in metres; the grid's nodata value and non-finite cells become
+    NaN (float64 copy); a band without a valid cell is refused. ``what`` names the raster in
+    messages (``"DEM 'dem.tif'"``).
+    """
+    if not crs_checked:
+        require_projected_metres(srs_from_wkt(grid.crs_wkt), what=what, centre_xy=_centre(grid))
+    arr = np.array(array, dtype=np.float64)
+    if arr.shape != grid.shape:
+        raise InputError(f"{what}: the band has shape {arr.shape}, its grid {grid.shape}")
+    if grid.nodata is not None:
+        arr[arr == grid.nodata] = np.nan
     arr[~np.isfinite(arr)] = np.nan
     if not np.isfinite(arr).any():
         raise InputError(f"{what} holds no valid cell (every cell is nodata); give a raster with data")
-    return arr, Grid(gt, shape, wkt, nodata)
+    return arr, grid
 
 
 def write_geotiff(path, array, grid: Grid, *, nodata: float = NODATA_OUT) -> None:

@@ -118,7 +118,6 @@ def read_layer(path, *, layer: str | None = None, where: str | None = None,
     path = os.fspath(path)
     if geometry not in ("line", "point"):
         raise InputError(f"geometry must be one of 'line', 'point'; got {geometry!r}")
-    wanted = _LINE_TYPES if geometry == "line" else _POINT_TYPES
     with gdal_exceptions():
         ds = _open(path, label)
         try:
@@ -165,12 +164,33 @@ def read_layer(path, *, layer: str | None = None, where: str | None = None,
             extent = lyr.GetExtent() if wkbs else None
         finally:
             ds = None
+    return layer_from_wkb(wkbs, fids=fids, fields=values, field_types=ftypes, srs=srs, path=path,
+                          layer_name=lname, label=label, geometry=geometry, where=where, extent=extent)
+
+
+def layer_from_wkb(wkbs, *, fids, fields, field_types, srs, path, layer_name, label="layer",
+                   geometry="line", where=None, extent=None) -> VectorLayer:
+    """Build a :class:`VectorLayer` from features already read (as WKB), with every check.
+
+    This is the part of :func:`read_layer` after OGR's loop, for callers that hold features in
+    memory (the QGIS adapter): the empty-layer error, the CRS check, WKB to 2-D shapely, the Z of
+    points, and the geometry-family check. ``extent`` is ``(xmin, xmax, ymin, ymax)`` as OGR gives
+    it, used to suggest a UTM zone for a geographic layer (computed from the features if omitted).
+    """
+    if geometry not in ("line", "point"):
+        raise InputError(f"geometry must be one of 'line', 'point'; got {geometry!r}")
+    wanted = _LINE_TYPES if geometry == "line" else _POINT_TYPES
+    what = f"{label} layer '{layer_name}' of '{path}'"
+    wkbs = [bytes(w) for w in wkbs]
     if not wkbs:
         cond = f" matching --where {where!r}" if where else ""
         raise InputError(f"{what} holds no feature with a geometry{cond}; give a layer with features")
-    centre = None if extent is None else ((extent[0] + extent[1]) / 2, (extent[2] + extent[3]) / 2)
-    require_projected_metres(srs, what=what, centre_xy=centre)
     geoms3 = shapely.from_wkb(wkbs)
+    if extent is None:
+        xmin, ymin, xmax, ymax = shapely.total_bounds(geoms3)
+        extent = (xmin, xmax, ymin, ymax)
+    centre = ((extent[0] + extent[1]) / 2, (extent[2] + extent[3]) / 2)
+    require_projected_metres(srs, what=what, centre_xy=centre)
     z = None
     if geometry == "point":
         z = np.full(len(geoms3), np.nan)
@@ -184,8 +204,8 @@ def read_layer(path, *, layer: str | None = None, where: str | None = None,
         raise InputError(
             f"{what} holds {got} geometries; it must hold {geometry}s - give a {geometry} layer"
         )
-    return VectorLayer(path, lname, geoms, np.asarray(fids, dtype=np.int64),
-                       {n: np.array(v, dtype=object) for n, v in values.items()}, ftypes, srs, z)
+    return VectorLayer(path, layer_name, geoms, np.asarray(fids, dtype=np.int64),
+                       {n: np.array(v, dtype=object) for n, v in fields.items()}, dict(field_types), srs, z)
 
 
 @dataclass
@@ -259,4 +279,4 @@ def write_gpkg(path, layers: list[LayerOut], srs_wkt: str) -> None:
     os.replace(tmp, path)
 
 
-__all__ = ["VectorLayer", "LayerOut", "read_layer", "write_gpkg", "crs_label"]
+__all__ = ["VectorLayer", "LayerOut", "read_layer", "layer_from_wkb", "write_gpkg", "crs_label"]
