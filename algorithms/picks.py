@@ -149,12 +149,9 @@ def _as_geometries(values, name: str) -> np.ndarray:
     return arr
 
 
-def _line_parts(geoms: np.ndarray, name: str) -> tuple[np.ndarray, np.ndarray]:
-    """Non-empty single-part lines of ``geoms`` and the index of the geometry each came from.
-
-    Multi-part geometries and collections are exploded (recursively); None and empty
-    geometries give no part. Anything that is not a line is refused.
-    """
+def _explode(geoms: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Single-part, non-empty geometries of ``geoms`` (multi-parts and collections exploded
+    recursively), the index of the input each came from, and their type ids."""
     parts = geoms
     owner = np.arange(len(geoms))
     while True:
@@ -166,7 +163,16 @@ def _line_parts(geoms: np.ndarray, name: str) -> tuple[np.ndarray, np.ndarray]:
         parts = np.concatenate([parts[~multi], sub])
         owner = np.concatenate([owner[~multi], owner[multi][j]])
     keep = (types >= 0) & ~shapely.is_empty(parts)
-    parts, owner, types = parts[keep], owner[keep], types[keep]
+    return parts[keep], owner[keep], types[keep]
+
+
+def _line_parts(geoms: np.ndarray, name: str) -> tuple[np.ndarray, np.ndarray]:
+    """Non-empty single-part lines of ``geoms`` and the index of the geometry each came from.
+
+    Multi-part geometries and collections are exploded (recursively); None and empty
+    geometries give no part. Anything that is not a line is refused.
+    """
+    parts, owner, types = _explode(geoms)
     bad = ~np.isin(types, _LINE_TYPES)
     if bad.any():
         i = int(np.flatnonzero(bad)[0])
@@ -704,18 +710,7 @@ def picks_from_contours(contacts, contours, elevations_m, *, contact_ids=None,
     contour_of = t_piece_owner[ib]
 
     # Explode results into single points and single lines, remembering the pair.
-    parts = inter
-    pair = np.arange(len(inter))
-    while True:
-        types = shapely.get_type_id(parts)
-        multi = np.isin(types, _MULTI_TYPES)
-        if not multi.any():
-            break
-        sub, j = shapely.get_parts(parts[multi], return_index=True)
-        parts = np.concatenate([parts[~multi], sub])
-        pair = np.concatenate([pair[~multi], pair[multi][j]])
-    keep = (types >= 0) & ~shapely.is_empty(parts)
-    parts, pair, types = parts[keep], pair[keep], types[keep]
+    parts, pair, types = _explode(inter)
 
     is_point = types == 0
     pt_xy = shapely.get_coordinates(parts[is_point])

@@ -970,6 +970,23 @@ def _kfold_lambda(data: _Data, folds, lam_grid):
 # ============================================================================================
 # Public model object
 # ============================================================================================
+def _evaluate_by_rows(fn, grid: Grid, *, cells_per_chunk: int, what: str, progress=None,
+                      is_cancelled=None) -> np.ndarray:
+    """``fn(X, Y)`` at every cell centre of ``grid``, a block of rows at a time (bounded memory)."""
+    rows, cols = grid.shape
+    xs, ys = grid.cell_centres()
+    out = np.empty((rows, cols))
+    chunk = max(1, cells_per_chunk // max(cols, 1))
+    for r0 in range(0, rows, chunk):
+        _check_cancel(is_cancelled, what)
+        r1 = min(rows, r0 + chunk)
+        X, Y = np.meshgrid(xs, ys[r0:r1])
+        out[r0:r1] = fn(X, Y)
+        if progress is not None:
+            progress(r1 / rows)
+    return out
+
+
 @dataclass(frozen=True)
 class GridEvaluation:
     """How :meth:`SurfaceModel.evaluate_grid` evaluated a grid.
@@ -1164,15 +1181,8 @@ class SurfaceModel:
                 break
             step //= 2
         if report is None:
-            z = np.empty((rows, cols))
-            chunk = max(1, (1 << 18) // max(cols, 1))
-            for r0 in range(0, rows, chunk):
-                _check_cancel(is_cancelled, "grid evaluation")
-                r1 = min(rows, r0 + chunk)
-                X, Y = np.meshgrid(xs, ys[r0:r1])
-                z[r0:r1] = self.evaluate(X, Y)
-                if progress is not None:
-                    progress(r1 / rows)
+            z = _evaluate_by_rows(self.evaluate, grid, cells_per_chunk=1 << 18, what="grid evaluation",
+                                  progress=progress, is_cancelled=is_cancelled)
             report = GridEvaluation("full", 1, 0.0, 0)
         if progress is not None:
             progress(1.0)
@@ -1198,18 +1208,8 @@ class SurfaceModel:
 
     def standard_error_grid(self, grid: Grid, *, progress=None, is_cancelled=None):
         """:meth:`standard_error` at every cell centre of a grid (float64, ``grid.shape``)."""
-        rows, cols = grid.shape
-        xs, ys = grid.cell_centres()
-        out = np.empty((rows, cols))
-        chunk = max(1, (1 << 20) // max(cols, 1))
-        for r0 in range(0, rows, chunk):
-            _check_cancel(is_cancelled, "standard error grid")
-            r1 = min(rows, r0 + chunk)
-            X, Y = np.meshgrid(xs, ys[r0:r1])
-            out[r0:r1] = self.standard_error(X, Y)
-            if progress is not None:
-                progress(r1 / rows)
-        return out
+        return _evaluate_by_rows(self.standard_error, grid, cells_per_chunk=1 << 20,
+                                 what="standard error grid", progress=progress, is_cancelled=is_cancelled)
 
     def summary(self) -> dict:
         """A JSON-ready description: ``{"chosen": ..., "cv_rmse_m": {...}, ...}``."""
