@@ -108,3 +108,23 @@ class Grid:
 
     def with_nodata(self, nodata) -> "Grid":
         return Grid(self.transform, self.shape, self.crs_wkt, nodata)
+
+
+def check_grid_array(array, grid: "Grid | None", name: str) -> np.ndarray:
+    """Check that an array is a 2-D float band (NaN for nodata) of the grid's shape; return it."""
+    z = np.asarray(array)
+    if z.ndim != 2:
+        raise InputError(
+            f"{name} must be a 2-D array (rows, cols), got {z.ndim} dimension(s); pass one band"
+        )
+    if not np.issubdtype(z.dtype, np.floating):
+        raise InputError(
+            f"{name} must be a float array with NaN for nodata, got dtype {z.dtype}; convert it "
+            "with astype(float) and set nodata cells to NaN"
+        )
+    if grid is not None and tuple(z.shape) != tuple(grid.shape):
+        raise InputError(
+            f"{name} has shape {z.shape} but its grid has shape {grid.shape}; pass the grid that "
+            "belongs to the array"
+        )
+    return z

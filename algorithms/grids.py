@@ -8,7 +8,7 @@ from __future__ import annotations
 import numpy as np
 
 from strikeline.errors import CancelledError, InputError
-from strikeline.grid import Grid
+from strikeline.grid import Grid, check_grid_array
 
 __all__ = ["dip_grids", "depth_below_ground"]
 
@@ -16,25 +16,6 @@ __all__ = ["dip_grids", "depth_below_ground"]
 _BLOCK_CELLS = 1 << 18
 
 _RAD_TO_DEG = np.float32(180.0 / np.pi)
-
-
-def _check_surface(surface, grid: Grid, name: str) -> np.ndarray:
-    z = np.asarray(surface)
-    if z.ndim != 2:
-        raise InputError(
-            f"{name} must be a 2-D array (rows, cols), got {z.ndim} dimension(s); pass one band"
-        )
-    if not np.issubdtype(z.dtype, np.floating):
-        raise InputError(
-            f"{name} must be a float array with NaN for nodata, got dtype {z.dtype}; convert it "
-            "with astype(float) and set nodata cells to NaN"
-        )
-    if grid is not None and tuple(z.shape) != tuple(grid.shape):
-        raise InputError(
-            f"{name} has shape {z.shape} but its grid has shape {grid.shape}; pass the grid that "
-            "belongs to the array"
-        )
-    return z
 
 
 def _one_sided_fixup(g: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> None:
@@ -133,7 +114,7 @@ def dip_grids(surface, grid: Grid, *, block_rows=None, progress=None, is_cancell
     >>> round(float(dip[6, 6]), 3), float(dd[6, 6])
     (26.565, 90.0)
     """
-    z = _check_surface(surface, grid, "surface")
+    z = check_grid_array(surface, grid, "surface")
     rows, cols = z.shape
     if block_rows is None:
         block_rows = max(1, _BLOCK_CELLS // max(cols, 1))
@@ -246,8 +227,8 @@ def depth_below_ground(dem, surface) -> np.ndarray:
     >>> depth_below_ground(np.array([[100.0, np.nan]]), np.array([[60.0, 50.0]]))
     array([[40., nan]])
     """
-    d = _check_surface(dem, None, "dem")
-    s = _check_surface(surface, None, "surface")
+    d = check_grid_array(dem, None, "dem")
+    s = check_grid_array(surface, None, "surface")
     if d.shape != s.shape:
         raise InputError(
             f"dem has shape {d.shape} but surface has shape {s.shape}; model the surface on "

@@ -25,7 +25,8 @@ import numpy as np
 
 from strikeline.errors import InputError
 from strikeline.grid import Grid
-from strikeline.grids import _check_surface, dip_grids
+from strikeline.grid import check_grid_array
+from strikeline.grids import dip_grids
 from strikeline.orientation import normal_from_dip, vector_from_trend_plunge
 
 __all__ = [
@@ -349,8 +350,8 @@ def isopach_grids(top_m, base_m, grid: Grid, *, progress=None, is_cancelled=None
     >>> round(float(v[2, 2]), 3), round(float(t[2, 2]), 3)
     (92.376, 80.0)
     """
-    top = _check_surface(top_m, grid, "top_m")
-    base = _check_surface(base_m, grid, "base_m")
+    top = check_grid_array(top_m, grid, "top_m")
+    base = check_grid_array(base_m, grid, "base_m")
     vertical = np.subtract(top, base, dtype=np.float64)
     dip, _ = dip_grids(base, grid, progress=progress, is_cancelled=is_cancelled)
     cos_dip = np.cos(np.radians(dip, dtype=np.float64))

@@ -13,7 +13,7 @@ import shapely
 from osgeo import gdal, gdal_array, ogr
 
 from strikeline.errors import InputError, RasterReadError
-from strikeline.grid import Grid
+from strikeline.grid import Grid, check_grid_array
 from strikeline.io._gdal import gdal_exceptions, gdal_message
 
 __all__ = ["contour_lines"]
@@ -182,7 +182,7 @@ def contour_lines(array, grid: Grid, *, interval_m=None, levels=None, base_m=0.0
     Examples
     --------
     >>> import numpy as np
-    >>> from strikeline.grid import Grid
+    >>> from strikeline.grid import Grid, check_grid_array
     >>> g = Grid((0.0, 10.0, 0.0, 100.0, 0.0, -10.0), (10, 10))
     >>> x, _ = g.mesh()
     >>> geoms, elev = contour_lines(x.copy(), g, interval_m=20.0)
@@ -191,21 +191,7 @@ def contour_lines(array, grid: Grid, *, interval_m=None, levels=None, base_m=0.0
     >>> sorted({round(x, 3) for x, _ in geoms[0].coords})   # a contour runs north-south
     [20.0]
     """
-    z = np.asarray(array)
-    if z.ndim != 2:
-        raise InputError(
-            f"contour input must be a 2-D array (rows, cols), got {z.ndim} dimension(s)"
-        )
-    if not np.issubdtype(z.dtype, np.floating):
-        raise InputError(
-            f"contour input must be a float array with NaN for nodata, got dtype {z.dtype}; "
-            "convert it with astype(float)"
-        )
-    if tuple(z.shape) != tuple(grid.shape):
-        raise InputError(
-            f"contour input has shape {z.shape} but its grid has shape {grid.shape}; pass the "
-            "grid that belongs to the array"
-        )
+    z = check_grid_array(array, grid, "contour input")
     options = _level_options(interval_m, levels, base_m)
     if z.dtype not in (np.float32, np.float64):
         z = z.astype(np.float64)
