@@ -49,6 +49,8 @@ $(STAMP): pyproject.toml | sysdeps
 bench: setup
 	$(VPY) bench/bench_picks.py
 	$(VPY) bench/bench_dipgrids.py
+	$(VPY) bench/bench_surfaces.py
+	$(VPY) bench/bench_run.py
 
 clean:
 	rm -rf $(VENV) demo-output .pytest_cache build *.egg-info algorithms/*.egg-info
