@@ -53,4 +53,4 @@ bench: setup
 	$(VPY) bench/bench_run.py
 
 clean:
-	rm -rf $(VENV) demo-output .pytest_cache build *.egg-info algorithms/*.egg-info
+	rm -rf $(VENV) .venv-qgis dist demo-output .pytest_cache build *.egg-info algorithms/*.egg-info
