@@ -1,5 +1,13 @@
-"""Shared parameters and input reading: contacts and topography into the library's ``Inputs``."""
+"""Shared parameters and input reading: QGIS parameters into the library's options and ``Inputs``.
+
+The layers are read here (:mod:`.layers`); what makes them usable together - the checks on the
+named fields, one working CRS with the layers reprojected into it, borehole and dip-measurement
+points - is :func:`strikeline.pipeline.assemble_inputs`, the second half of the command line's
+``load_inputs``. Its messages name the QGIS parameters (:func:`option_names`).
+"""
 from __future__ import annotations
+
+from typing import NamedTuple
 
 import numpy as np
 import shapely
@@ -7,20 +15,53 @@ from qgis.core import (
     QgsProcessing,
     QgsProcessingParameterFeatureSource,
     QgsProcessingParameterField,
+    QgsProcessingParameterNumber,
     QgsProcessingParameterRasterLayer,
 )
 
 from strikeline.errors import InputError
-from strikeline.pipeline import Inputs
+from strikeline.pipeline import (CLI_OPTION_NAMES, DEFAULT_BOREHOLE_SIGMA_M, DEFAULT_ORIENTATION_SIGMA_DEG,
+                                 Inputs, RunOptions, assemble_inputs)
 
-from .layers import qgis_crs, raster_path, read_raster_layer, read_vector, vector_name
+from .layers import raster_path, read_raster_layer, read_vector, vector_name
 
 CONTACTS = "CONTACTS"
 DEM = "DEM"
 CONTOURS = "CONTOURS"
 ELEV_FIELD = "ELEV_FIELD"
+GROUP_BY = "GROUP_BY"
+BOREHOLES = "BOREHOLES"
+ORIENTATIONS = "ORIENTATIONS"
+BOREHOLE_SIGMA = "BOREHOLE_SIGMA"
+ORIENTATION_SIGMA = "ORIENTATION_SIGMA"
 
-ELEV_FIELD_LABEL = "Elevation field of the contour lines"
+#: The library's options that name a field (keys of ``pipeline.CLI_OPTION_NAMES``) -> the
+#: parameter that sets them; messages about them name that parameter.
+OPTION_PARAMETERS = {
+    "elev_field": ELEV_FIELD, "group_by": GROUP_BY, "borehole_z_field": "BOREHOLE_Z_FIELD",
+    "borehole_collar_field": "BOREHOLE_COLLAR_FIELD", "borehole_depth_field": "BOREHOLE_DEPTH_FIELD",
+    "dip_field": "DIP_FIELD", "dip_direction_field": "DIP_DIRECTION_FIELD", "strike_field": "STRIKE_FIELD",
+}
+
+
+def option_names(alg) -> dict:
+    """How messages name the options: ``the '<parameter label>'`` for the tool's parameters."""
+    names = dict(CLI_OPTION_NAMES)
+    for key, param in OPTION_PARAMETERS.items():
+        definition = alg.parameterDefinition(param)
+        if definition is not None:
+            names[key] = f"the '{definition.description()}'"
+    return names
+
+
+def optional_string(alg, parameters, key, context) -> str | None:
+    """A text or field parameter, None when empty."""
+    return alg.parameterAsString(parameters, key, context) or None
+
+
+def optional_distance(alg, parameters, key, context) -> float | None:
+    """A distance or number parameter where 0 means "the library's default" (None)."""
+    return alg.parameterAsDouble(parameters, key, context) or None
 
 
 def add_contact_and_topography(alg) -> None:
@@ -32,17 +73,75 @@ def add_contact_and_topography(alg) -> None:
     alg.addParameter(QgsProcessingParameterFeatureSource(
         CONTOURS, alg.tr("Topographic contour lines"), [QgsProcessing.TypeVectorLine], optional=True))
     alg.addParameter(QgsProcessingParameterField(
-        ELEV_FIELD, alg.tr(ELEV_FIELD_LABEL), parentLayerParameterName=CONTOURS,
+        ELEV_FIELD, alg.tr("Elevation field of the contour lines"), parentLayerParameterName=CONTOURS,
         type=QgsProcessingParameterField.Numeric, optional=True))
 
 
-def source_and_name(alg, parameters, key, context, label) -> tuple:
-    """The feature source of parameter ``key`` (None if unset) and how to name it."""
+def constraint_parameters(alg) -> list:
+    """Boreholes and dip measurements that a surface model honours (as ``strikeline run``)."""
+    num = QgsProcessingParameterField.Numeric
+    return [
+        QgsProcessingParameterFeatureSource(BOREHOLES, alg.tr("Boreholes that reach the surface (points)"),
+                                            [QgsProcessing.TypeVectorPoint], optional=True),
+        QgsProcessingParameterField("BOREHOLE_Z_FIELD", alg.tr("Borehole field: the surface's elevation (empty: Z)"),
+                                    parentLayerParameterName=BOREHOLES, type=num, optional=True),
+        QgsProcessingParameterField("BOREHOLE_COLLAR_FIELD", alg.tr("Borehole field: collar elevation"),
+                                    parentLayerParameterName=BOREHOLES, type=num, optional=True),
+        QgsProcessingParameterField("BOREHOLE_DEPTH_FIELD", alg.tr("Borehole field: depth from collar to the surface"),
+                                    parentLayerParameterName=BOREHOLES, type=num, optional=True),
+        QgsProcessingParameterFeatureSource(ORIENTATIONS, alg.tr("Dip measurements on the surface (points)"),
+                                            [QgsProcessing.TypeVectorPoint], optional=True),
+        QgsProcessingParameterField("DIP_FIELD", alg.tr("Dip field"), defaultValue="dip",
+                                    parentLayerParameterName=ORIENTATIONS, type=num, optional=True),
+        QgsProcessingParameterField("DIP_DIRECTION_FIELD", alg.tr("Dip-direction field"), defaultValue="dip_dir",
+                                    parentLayerParameterName=ORIENTATIONS, type=num, optional=True),
+        QgsProcessingParameterField("STRIKE_FIELD", alg.tr("Strike field (right-hand rule) instead of dip direction"),
+                                    parentLayerParameterName=ORIENTATIONS, type=num, optional=True),
+    ]
+
+
+def constraint_sigma_parameters(alg) -> list:
+    """The standard errors of borehole elevations and measured dips."""
+    T = QgsProcessingParameterNumber  # noqa: N806
+    return [
+        T(BOREHOLE_SIGMA, alg.tr("Standard error of the borehole elevations (m, 0: exact)"), T.Double,
+          defaultValue=DEFAULT_BOREHOLE_SIGMA_M, minValue=0.0, optional=True),
+        T(ORIENTATION_SIGMA, alg.tr("Standard error of the measured dips (°, 0: exact)"), T.Double,
+          defaultValue=DEFAULT_ORIENTATION_SIGMA_DEG, minValue=0.0, optional=True),
+    ]
+
+
+def constraint_options(alg, parameters, context) -> dict:
+    """The parameters of :func:`constraint_parameters` and :func:`constraint_sigma_parameters`
+    as :class:`RunOptions` fields."""
+    s = lambda key: optional_string(alg, parameters, key, context)  # noqa: E731
+    return dict(borehole_z_field=s("BOREHOLE_Z_FIELD"), borehole_collar_field=s("BOREHOLE_COLLAR_FIELD"),
+                borehole_depth_field=s("BOREHOLE_DEPTH_FIELD"),
+                borehole_sigma_m=alg.parameterAsDouble(parameters, BOREHOLE_SIGMA, context),
+                dip_field=s("DIP_FIELD") or RunOptions.dip_field, dip_direction_field=s("DIP_DIRECTION_FIELD"),
+                strike_field=s("STRIKE_FIELD"),
+                orientation_sigma_deg=alg.parameterAsDouble(parameters, ORIENTATION_SIGMA, context))
+
+
+#: The point layers of :func:`constraint_parameters`: ``assemble_inputs`` keyword ->
+#: (parameter, label in messages, geometry), as :func:`read_layers` takes them.
+CONSTRAINT_LAYERS = {"boreholes": (BOREHOLES, "boreholes", "point"),
+                     "orientations": (ORIENTATIONS, "orientations", "point")}
+
+
+def read_layer(alg, parameters, key, context, steps, *, label, geometry, keep_z=False):
+    """The vector layer of parameter ``key`` as a library ``VectorLayer`` (None if unset)."""
     source = alg.parameterAsSource(parameters, key, context)
     if source is None:
-        return None, None
-    layer = alg.parameterAsVectorLayer(parameters, key, context)
-    return source, vector_name(layer, source, label)
+        return None
+    name = vector_name(alg.parameterAsVectorLayer(parameters, key, context), source, label)
+    return read_vector(source, name, geometry=geometry, keep_z=keep_z, is_cancelled=steps.is_cancelled)
+
+
+def read_layers(alg, parameters, context, steps, layers: dict) -> dict:
+    """``{keyword: VectorLayer or None}`` for ``layers`` = ``{keyword: (parameter, label, geometry)}``."""
+    return {k: read_layer(alg, parameters, p, context, steps, label=label, geometry=geom)
+            for k, (p, label, geom) in layers.items()}
 
 
 def read_dem(alg, parameters, key, context, steps, *, label="DEM"):
@@ -54,50 +153,53 @@ def read_dem(alg, parameters, key, context, steps, *, label="DEM"):
     return arr, grid, raster_path(layer) or layer.name()
 
 
-def read_contact_inputs(alg, parameters, context, steps, *, contact_fields=()) -> Inputs:
-    """Contacts, DEM and contours of a tool as the library's :class:`strikeline.pipeline.Inputs`.
+def read_contact_inputs(alg, parameters, context, steps, *, more: dict | None = None,
+                        **options) -> tuple[Inputs, RunOptions]:
+    """Contacts, DEM and contours of a tool (and the layers ``more``, as for :func:`read_layers`)
+    as the library's :class:`Inputs`, with the :class:`RunOptions` they were read with.
 
-    Follows :func:`strikeline.pipeline.load_inputs`: at least one topography; the DEM's CRS
-    (else the contacts') is the working CRS and the vector layers are transformed into it.
-    ``contact_fields`` are attribute fields of the contacts to read as well.
+    As :func:`strikeline.pipeline.load_inputs`: at least one topography, the layers read in the
+    command line's order, then :func:`strikeline.pipeline.assemble_inputs`. ``options`` are
+    further :class:`RunOptions` fields (the elevation field comes from the parameters of
+    :func:`add_contact_and_topography`).
     """
-    contacts_src, contacts_name = source_and_name(alg, parameters, CONTACTS, context, "contacts")
-    contours_src, contours_name = source_and_name(alg, parameters, CONTOURS, context, "contours")
-    dem_given = alg.parameterAsRasterLayer(parameters, DEM, context) is not None
-    if not dem_given and contours_src is None:
+    if alg.parameterAsRasterLayer(parameters, DEM, context) is None \
+            and alg.parameterAsSource(parameters, CONTOURS, context) is None:
         raise InputError("no topography given: give a DEM, topographic contour lines with their "
                          "elevation field, or both")
-    elev_field = alg.parameterAsString(parameters, ELEV_FIELD, context) if contours_src else ""
-    if contours_src is not None and not elev_field:
-        raise InputError(f"{contours_name.what}: the elevation field is not named; choose the "
-                         f"'{ELEV_FIELD_LABEL}' (the numeric field that holds each contour's elevation)")
+    contacts = read_layer(alg, parameters, CONTACTS, context, steps, label="contacts", geometry="line")
     dem, grid, dem_path = read_dem(alg, parameters, DEM, context, steps)
-    target = qgis_crs(grid.crs_wkt) if grid is not None else contacts_src.sourceCrs()
-    contacts = read_vector(contacts_src, contacts_name, geometry="line", target_crs=target,
-                           fields=[f for f in contact_fields if f], context=context, log=steps.log,
-                           is_cancelled=steps.is_cancelled)
-    contours = elev = None
-    if contours_src is not None:
-        contours = read_vector(contours_src, contours_name, geometry="line", fields=[elev_field],
-                               target_crs=target, context=context, log=steps.log,
-                               is_cancelled=steps.is_cancelled)
-        elev = contours.numeric_field(elev_field, option=f"the '{ELEV_FIELD_LABEL}'")
-        if not np.isfinite(elev).any():
-            raise InputError(
-                f"field '{elev_field}' of {contours.what} holds no elevation (all null); "
-                f"choose the field that holds the contour elevations as the '{ELEV_FIELD_LABEL}'")
-    paths = {"contacts": contacts_name.path}
+    layers = read_layers(alg, parameters, context, steps, {"contours": (CONTOURS, "contours", "line"), **(more or {})})
+    opts = RunOptions(contacts=contacts.path, out="", elev_field=optional_string(alg, parameters, ELEV_FIELD, context),
+                      **options)
+    # Files are hashed into the summary; other entries only name the input.
+    paths = {k: lyr.path for k, lyr in {"contacts": contacts, **layers}.items() if lyr is not None}
     if dem_path:
         paths["dem"] = dem_path
-    if contours_name is not None:
-        paths["contours"] = contours_name.path
-    crs_wkt = grid.crs_wkt if grid is not None else contacts.srs.ExportToWkt()
-    return Inputs(contacts=contacts, crs_wkt=crs_wkt, dem=dem, dem_grid=grid, contours=contours,
-                  contour_elevations_m=elev, paths=paths)
+    inputs = assemble_inputs(contacts, opts, dem=dem, dem_grid=grid, paths=paths, log=steps.log,
+                             names=option_names(alg), **layers)
+    return inputs, opts
+
+
+def to_dem_crs(layer, dem, dem_grid, *, log):
+    """``layer`` in the DEM's CRS, reprojected (with its log line) by ``assemble_inputs``."""
+    return assemble_inputs(layer, RunOptions(contacts=layer.path, out=""), dem=dem, dem_grid=dem_grid,
+                           log=log).contacts
 
 
 PICKS = "PICKS"
 PICKS_FIELD = "PICKS_ELEV_FIELD"
+PICKS_FIELD_LABEL = "Elevation field of the picks"
+
+
+class Picks(NamedTuple):
+    """Elevation picks read from the picks parameter."""
+
+    xyz: np.ndarray  # (n, 3)
+    source: object  # the QgsProcessingFeatureSource (its CRS is the picks' CRS)
+    layer: object  # strikeline.io.vector.VectorLayer (Z kept)
+    name: object  # LayerName
+    values: dict  # field -> one value per point
 
 
 def add_picks(alg) -> None:
@@ -105,34 +207,33 @@ def add_picks(alg) -> None:
     alg.addParameter(QgsProcessingParameterFeatureSource(
         PICKS, alg.tr("Elevation picks (points)"), [QgsProcessing.TypeVectorPoint]))
     alg.addParameter(QgsProcessingParameterField(
-        PICKS_FIELD, alg.tr("Elevation field of the picks (empty: the points' Z)"),
+        PICKS_FIELD, alg.tr(f"{PICKS_FIELD_LABEL} (empty: the points' Z)"),
         parentLayerParameterName=PICKS, type=QgsProcessingParameterField.Numeric, optional=True))
 
 
-def read_points_xyz(alg, parameters, key, field_key, context, steps, *, label, field_label,
-                    target_crs=None, fields=(), text_fields=()):
-    """Points of parameter ``key`` as ``(xyz (n, 3), source, LayerName, values)``.
+def read_picks(alg, parameters, context, steps, *, fields=(), text_fields=()) -> Picks:
+    """The picks of :func:`add_picks`.
 
-    ``z`` comes from the field ``field_key`` or, when it is empty, from the points' Z. ``values``
+    ``z`` comes from the elevation field or, when it is empty, from the points' Z. ``values``
     maps each of ``fields`` (numeric, float64 with NaN for null) and ``text_fields`` (any type,
-    as read) to one value per point. All four are None when the parameter is unset.
+    as read) to one value per point.
     """
-    source, name = source_and_name(alg, parameters, key, context, label)
-    if source is None:
-        return None, None, None, {}
-    field = alg.parameterAsString(parameters, field_key, context) if field_key else ""
-    wanted = list(dict.fromkeys(f for f in [field, *fields, *text_fields] if f))
-    layer = read_vector(source, name, geometry="point", fields=wanted, keep_z=True,
-                        target_crs=target_crs, context=context, log=steps.log,
-                        is_cancelled=steps.is_cancelled)
+    source = alg.parameterAsSource(parameters, PICKS, context)
+    name = vector_name(alg.parameterAsVectorLayer(parameters, PICKS, context), source, "picks")
+    layer = read_vector(source, name, geometry="point", keep_z=True, is_cancelled=steps.is_cancelled)
+    field = optional_string(alg, parameters, PICKS_FIELD, context)
     coords, owner = shapely.get_coordinates(layer.geoms, include_z=True, return_index=True)
     if field:
-        z = layer.numeric_field(field, option=f"the '{field_label}'")[owner]
+        z = layer.numeric_field(field, option=f"the '{PICKS_FIELD_LABEL}'")[owner]
     elif not shapely.has_z(layer.geoms).all():
-        raise InputError(f"{name.what} has points without Z; choose the '{field_label}' or give "
+        raise InputError(f"{name.what} has points without Z; choose the '{PICKS_FIELD_LABEL}' or give "
                          "points with elevations as Z")
+    for f in text_fields:
+        if f not in layer.fields:
+            raise InputError(f"{name.what} has no field '{f}' (fields: {', '.join(layer.fields) or 'none'}); "
+                             "choose one of its fields")
     else:
         z = coords[:, 2]
     values = {f: layer.numeric_field(f, option=f"the field '{f}'")[owner] for f in fields}
     values.update({f: layer.fields[f][owner] for f in text_fields})
-    return np.column_stack([coords[:, 0], coords[:, 1], z]), source, name, values
+    return Picks(np.column_stack([coords[:, 0], coords[:, 1], z]), source, layer, name, values)

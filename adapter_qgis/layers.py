@@ -11,14 +11,13 @@ usable cells) are the library's own, so QGIS shows the same messages as the comm
 from __future__ import annotations
 
 import os
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
 import shapely
 from qgis.core import (
     QgsCoordinateReferenceSystem,
-    QgsFeatureRequest,
     QgsGeometry,
     QgsProcessingFeatureSource,
     QgsProviderRegistry,
@@ -30,9 +29,9 @@ from qgis.PyQt.QtCore import QVariant
 
 from strikeline.errors import CancelledError, InputError
 from strikeline.grid import Grid
-from strikeline.io.crs import crs_label, require_projected_metres, same_crs, srs_from_wkt
-from strikeline.io.raster import read_raster
-from strikeline.io.vector import VectorLayer
+from strikeline.io.crs import srs_from_wkt
+from strikeline.io.raster import raster_from_array, read_raster
+from strikeline.io.vector import VectorLayer, layer_from_wkb
 
 #: QVariant field types as the OGR type names that :class:`strikeline.io.vector.VectorLayer`
 #: expects (it accepts ``Integer``, ``Integer64`` and ``Real`` as numeric).
@@ -106,10 +105,14 @@ def _as_geos_wkb(geom: QgsGeometry) -> bytes:
     return bytes(g.asWkb())
 
 
-def read_vector(source: QgsProcessingFeatureSource, name: LayerName, *, geometry: str,
-                fields=(), target_crs: QgsCoordinateReferenceSystem | None = None, context=None,
-                log=None, is_cancelled=None, keep_z: bool = False) -> VectorLayer:
-    """Read a Processing feature source into a library :class:`VectorLayer`.
+def read_vector(source: QgsProcessingFeatureSource, name: LayerName, *, geometry: str | None,
+                is_cancelled=None, keep_z: bool = False) -> VectorLayer:
+    """Read a Processing feature source into a library :class:`VectorLayer`, in its own CRS.
+
+    The features (with every attribute) travel as WKB into
+    :func:`strikeline.io.vector.layer_from_wkb`, which makes the checks of the command line's
+    reader: a layer without features, a CRS that is not projected in metres, the wrong geometry
+    family. Reprojection is the library's too (:func:`strikeline.pipeline.assemble_inputs`).
 
     Parameters
     ----------
@@ -118,82 +121,41 @@ def read_vector(source: QgsProcessingFeatureSource, name: LayerName, *, geometry
     name : LayerName
         How to name the input in messages.
     geometry : {'line', 'point', None}
-        The geometry family the input must hold (None: any).
-    fields : sequence of str
-        Attribute fields to read (only these are fetched).
-    target_crs : QgsCoordinateReferenceSystem, optional
-        Features are transformed to this CRS (QGIS's transform context) when the layer's own
-        CRS differs; the layer's own CRS must be projected in metres either way.
-    log : callable, optional
-        Receives the "reprojecting ..." line.
+        The geometry family the input must hold. None: any geometry, for inputs whose attributes
+        alone are used; the geometries are not measured, so neither their family nor the CRS
+        is checked.
     keep_z : bool
-        Keep Z coordinates (pick layers carry elevation as Z); default 2-D like the library.
+        Keep Z coordinates in ``geoms`` (pick layers carry elevation as Z); default 2-D like the
+        library.
     """
-    what = name.what
-    own_crs = source.sourceCrs()
-    srs = crs_to_srs(own_crs)
-    ext = source.sourceExtent()
-    # Same order of checks as strikeline.io.vector.read_layer: emptiness, CRS, geometry family.
-    if source.featureCount() == 0:
-        raise InputError(f"{what} holds no feature with a geometry; give a layer with features")
-    centre = None if ext.isNull() else (ext.center().x(), ext.center().y())
-    require_projected_metres(srs, what=what, centre_xy=centre)
-
-    request = QgsFeatureRequest()
-    field_names = source.fields().names()
-    for f in fields:
-        if f not in field_names:
-            have = ", ".join(field_names) or "none"
-            raise InputError(f"{name.label} layer '{name.layer}' of '{name.path}' has no field '{f}' "
-                             f"(fields: {have}); choose one of its fields")
-    request.setSubsetOfAttributes(list(fields), source.fields())
-    out_srs = srs
-    if target_crs is not None and target_crs.isValid():
-        tsrs = crs_to_srs(target_crs)
-        if not same_crs(srs, tsrs):
-            if context is not None:
-                request.setDestinationCrs(target_crs, context.transformContext())
-            else:
-                from qgis.core import QgsCoordinateTransformContext
-
-                request.setDestinationCrs(target_crs, QgsCoordinateTransformContext())
-            if log is not None:
-                log(f"reprojecting {name.label} '{name.path}' from {crs_label(srs)} to {crs_label(tsrs)}")
-            out_srs = tsrs
-
+    qfields = source.fields()
+    names = qfields.names()
     wkbs, fids = [], []
-    values = {f: [] for f in fields}
-    for i, feat in enumerate(source.getFeatures(request)):
+    values = {f: [] for f in names}
+    for i, feat in enumerate(source.getFeatures()):
         if is_cancelled is not None and i % _CHECK_EVERY == 0 and is_cancelled():
-            raise CancelledError(f"reading {what}: cancelled; nothing was written")
+            raise CancelledError(f"reading {name.what}: cancelled; nothing was written")
         g = feat.geometry()
         if g is None or g.isNull() or g.isEmpty():
             continue
         wkbs.append(_as_geos_wkb(g))
         fids.append(feat.id())
-        for f in fields:
-            values[f].append(feat[f])
-    if not wkbs:
-        raise InputError(f"{what} holds no feature with a geometry; give a layer with features")
-    geoms3 = shapely.from_wkb(wkbs)
-    z = None
-    if geometry == "point":  # as strikeline.io.vector.read_layer: the Z of single points
-        z = np.full(len(geoms3), np.nan)
-        has_z = shapely.has_z(geoms3) & (shapely.get_type_id(geoms3) == shapely.GeometryType.POINT)
-        if has_z.any():
-            z[has_z] = shapely.get_coordinates(geoms3[has_z], include_z=True)[:, 2]
-    geoms = geoms3 if keep_z else shapely.force_2d(geoms3)
-    wanted = {"line": ("LineString", "MultiLineString", "LinearRing"), "point": ("Point", "MultiPoint"),
-              None: ()}[geometry]
-    types = {shapely.GeometryType(t).name for t in set(shapely.get_type_id(geoms).tolist())}
-    if geometry is not None and not types <= {w.upper() for w in wanted}:
-        got = ", ".join(sorted(t.lower() for t in types))
-        raise InputError(f"{what} holds {got} geometries; it must hold {geometry}s - give a {geometry} layer")
-    qfields = source.fields()
-    ftypes = {f: _FIELD_TYPE_NAMES.get(qfields.field(f).type(), qfields.field(f).typeName()) for f in fields}
-    return VectorLayer(name.path, name.layer, np.asarray(geoms, dtype=object),
-                       np.asarray(fids, dtype=np.int64),
-                       {f: _attribute_values(v) for f, v in values.items()}, ftypes, out_srs, z)
+        for k, f in enumerate(names):
+            values[f].append(feat.attribute(k))
+    fields = {f: _attribute_values(v) for f, v in values.items()}
+    ftypes = {f: _FIELD_TYPE_NAMES.get(qfields.field(f).type(), qfields.field(f).typeName()) for f in names}
+    srs = crs_to_srs(source.sourceCrs())
+    if geometry is None:
+        return VectorLayer(name.path, name.layer, _geoms(wkbs, keep_z), np.asarray(fids, dtype=np.int64),
+                           fields, ftypes, srs)
+    layer = layer_from_wkb(wkbs, fids=fids, fields=fields, field_types=ftypes, srs=srs, path=name.path,
+                           layer_name=name.layer, label=name.label, geometry=geometry)
+    return replace(layer, geoms=_geoms(wkbs, True)) if keep_z else layer
+
+
+def _geoms(wkbs, keep_z: bool) -> np.ndarray:
+    geoms = shapely.from_wkb(wkbs) if wkbs else np.empty(0, dtype=object)
+    return np.asarray(geoms if keep_z else shapely.force_2d(geoms), dtype=object)
 
 
 def raster_path(layer: QgsRasterLayer) -> str | None:
@@ -231,9 +193,6 @@ def read_raster_layer(layer: QgsRasterLayer, *, label: str = "DEM", band: int = 
         raise InputError(f"{what} has no native cell grid; save it as a GeoTIFF and use that")
     transform = (ext.xMinimum(), ext.width() / cols, 0.0, ext.yMaximum(), 0.0, -ext.height() / rows)
     crs_wkt = layer.crs().toWkt(QgsCoordinateReferenceSystem.WKT_PREFERRED) if layer.crs().isValid() else ""
-    grid_probe = Grid(transform, (rows, cols), crs_wkt)
-    xmin, ymin, xmax, ymax = grid_probe.bounds
-    require_projected_metres(srs_from_wkt(crs_wkt), what=what, centre_xy=((xmin + xmax) / 2, (ymin + ymax) / 2))
     if is_cancelled is not None and is_cancelled():
         raise CancelledError(f"reading {what}: cancelled; nothing was written")
     block = prov.block(band, ext, cols, rows)
@@ -243,11 +202,6 @@ def read_raster_layer(layer: QgsRasterLayer, *, label: str = "DEM", band: int = 
     if dtype is None:
         raise InputError(f"{what}: band {band} has data type {block.dataType()}, not a number type; "
                          "give a single-band elevation raster")
-    arr = np.frombuffer(bytes(block.data()), dtype=dtype).reshape(rows, cols).astype(np.float64)
+    arr = np.frombuffer(bytes(block.data()), dtype=dtype).reshape(rows, cols)
     nodata = prov.sourceNoDataValue(band) if prov.sourceHasNoDataValue(band) else None
-    if nodata is not None:
-        arr[arr == nodata] = np.nan
-    arr[~np.isfinite(arr)] = np.nan
-    if not np.isfinite(arr).any():
-        raise InputError(f"{what} holds no valid cell (every cell is nodata); give a raster with data")
-    return arr, Grid(transform, (rows, cols), crs_wkt, nodata)
+    return raster_from_array(arr, Grid(transform, (rows, cols), crs_wkt, nodata), what=what)

@@ -22,6 +22,7 @@ from qgis.core import (
 from qgis.PyQt.QtCore import QVariant
 
 from strikeline.io.raster import write_geotiff
+from strikeline.io.vector import LayerOut
 
 _QVARIANT = {"f": QVariant.Double, "i": QVariant.LongLong, "u": QVariant.LongLong, "b": QVariant.Bool}
 
@@ -35,12 +36,23 @@ class Table:
     wkb_type: int
     types: dict = field(default_factory=dict)  # field name -> QVariant type, overriding the dtype's
 
+    @classmethod
+    def of_layer(cls, layer: LayerOut) -> "Table":
+        """A layer the library writes (:class:`strikeline.io.vector.LayerOut`): same fields."""
+        return cls(layer.geoms, layer.fields, _qgis_wkb_type(layer.geometry_type))
+
     def qgs_fields(self) -> QgsFields:
         out = QgsFields()
         for name, arr in self.fields.items():
             kind = self.types.get(name, _QVARIANT.get(np.asarray(arr).dtype.kind, QVariant.String))
             out.append(QgsField(name, kind))
         return out
+
+
+def _qgis_wkb_type(ogr_type: int) -> int:
+    """QGIS's type for an OGR geometry type (OGR's 2.5D codes become QGIS's Z types)."""
+    flat = QgsWkbTypes.flatType(ogr_type)
+    return QgsWkbTypes.addZ(flat) if QgsWkbTypes.hasZ(ogr_type) else flat
 
 
 def _py(v):

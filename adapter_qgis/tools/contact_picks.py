@@ -38,7 +38,7 @@ class ContactPicks(StrikelineAlgorithm):
             self.OUTPUT, self.tr("Contact picks"), QgsProcessing.TypeVectorPoint))
 
     def process(self, parameters, context, steps):
-        inputs = read_contact_inputs(self, parameters, context, steps)
+        inputs, _ = read_contact_inputs(self, parameters, context, steps)
         steps.feedback.setProgress(10)
         picks = collect_picks(inputs, log=steps.log, progress=steps.part(0.1, 0.95),
                               is_cancelled=steps.is_cancelled)

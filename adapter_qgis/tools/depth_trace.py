@@ -18,8 +18,8 @@ from strikeline.pipeline import depth_trace_misfit
 
 from ..base import REF_GDAL_CONTOUR, REF_PRESS, StrikelineAlgorithm
 from ..chain import raster_flag, require_same_grid
-from ..inputs import read_dem, source_and_name
-from ..layers import qgis_crs, read_vector
+from ..inputs import read_dem, read_layer, to_dem_crs
+from ..layers import qgis_crs
 from ..outputs import Table, write_raster, write_sink
 from ..styles import attach_style
 from .common import trace_table
@@ -89,12 +89,9 @@ class DepthTrace(StrikelineAlgorithm):
         if mask is not None:
             require_same_grid(dem_grid, mask_grid, what_a=f"DEM '{dpath}'", what_b=f"forecast mask '{mpath}'")
             extrapolated_fn = raster_flag(mask, mask_grid, at_least=0.5)
-        contacts_src, contacts_name = source_and_name(self, parameters, self.CONTACTS, context, "contacts")
-        contacts = None
-        if contacts_src is not None:
-            contacts = read_vector(contacts_src, contacts_name, geometry="line",
-                                   target_crs=qgis_crs(dem_grid.crs_wkt), context=context, log=steps.log,
-                                   is_cancelled=steps.is_cancelled)
+        contacts = read_layer(self, parameters, self.CONTACTS, context, steps, label="contacts", geometry="line")
+        if contacts is not None:
+            contacts = to_dem_crs(contacts, dem, dem_grid, log=steps.log)
         steps.feedback.setProgress(30)
         steps.check("depth and trace")
         flag_m = self.parameterAsDouble(parameters, self.MISFIT_FLAG, context) or None

@@ -21,7 +21,7 @@ from strikeline.errors import InputError
 from strikeline.local import CONFIDENCE_METHODS, DEFAULT_MIN_POINTS, local_attitudes
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
-from ..inputs import PICKS, PICKS_FIELD, add_picks, read_points_xyz
+from ..inputs import PICKS, add_picks, read_picks
 from ..outputs import Table, write_sink
 from ..styles import attach_style
 from .plane_attitude import REF_EFRON, REF_WOODCOCK
@@ -109,9 +109,8 @@ class LocalAttitudes(StrikelineAlgorithm):
                                  f"{', '.join(source.fields().names()) or 'none'}); choose its contact id field")
             steps.log(f"the picks have no field '{cfield}': all picks are treated as one contact")
             cfield = ""
-        xyz, source, name, vals = read_points_xyz(
-            self, parameters, PICKS, PICKS_FIELD, context, steps, label="picks",
-            field_label="Elevation field of the picks", fields=(cfield,) if cfield else ())
+        xyz, source, _, name, vals = read_picks(self, parameters, context, steps,
+                                                fields=(cfield,) if cfield else ())
         contact_id = None
         if cfield:
             cid = vals[cfield]

@@ -18,7 +18,7 @@ from strikeline.pipeline import attitude_of
 from strikeline.uncertainty import MIN_REPLICATES
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
-from ..inputs import add_picks, read_points_xyz
+from ..inputs import PICKS, add_picks, read_picks
 from ..layers import crs_to_srs
 from ..outputs import Table, write_sink
 from ..styles import attach_style
@@ -117,7 +117,7 @@ class PlaneAttitude(StrikelineAlgorithm):
     def initAlgorithm(self, config=None):  # noqa: N802
         add_picks(self)
         self.addParameter(QgsProcessingParameterField(
-            self.GROUP_BY, self.tr("Also one plane per value of this field"), parentLayerParameterName="PICKS",
+            self.GROUP_BY, self.tr("Also one plane per value of this field"), parentLayerParameterName=PICKS,
             optional=True))
         self.addParameter(QgsProcessingParameterNumber(
             self.RESAMPLES, self.tr("Bootstrap resamples for the 95% confidence"),
@@ -140,9 +140,8 @@ class PlaneAttitude(StrikelineAlgorithm):
 
     def process(self, parameters, context, steps):
         group_by = self.parameterAsString(parameters, self.GROUP_BY, context)
-        xyz, source, name, extra = read_points_xyz(
-            self, parameters, "PICKS", "PICKS_ELEV_FIELD", context, steps, label="picks",
-            field_label="Elevation field of the picks", fields=(), text_fields=(group_by,) if group_by else ())
+        xyz, source, _, name, extra = read_picks(self, parameters, context, steps,
+                                                 text_fields=(group_by,) if group_by else ())
         ok = np.isfinite(xyz).all(axis=1)
         if (~ok).any():
             steps.warn(f"{int((~ok).sum())} of {len(xyz)} picks have no elevation and are left out")

@@ -3,15 +3,12 @@ from __future__ import annotations
 
 import numpy as np
 from qgis.core import (
-    QgsProcessing,
     QgsProcessingOutputNumber,
     QgsProcessingOutputString,
     QgsProcessingParameterDefinition,
     QgsProcessingParameterDistance,
     QgsProcessingParameterEnum,
     QgsProcessingParameterExtent,
-    QgsProcessingParameterFeatureSource,
-    QgsProcessingParameterField,
     QgsProcessingParameterNumber,
     QgsProcessingParameterRasterDestination,
     QgsProcessingParameterRasterLayer,
@@ -20,12 +17,12 @@ from qgis.core import (
 from strikeline.errors import InputError
 from strikeline.io.crs import same_crs, srs_from_wkt
 from strikeline.picks import SOURCES, PickSet
-from strikeline.pipeline import (DEFAULT_BOREHOLE_SIGMA_M, DEFAULT_ORIENTATION_SIGMA_DEG, RunOptions,
-                                 model_surface)
+from strikeline.pipeline import RunOptions, assemble_inputs, model_surface
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
 from ..chain import grid_over
-from ..inputs import PICKS, PICKS_FIELD, add_picks, read_dem, read_points_xyz
+from ..inputs import (CONSTRAINT_LAYERS, PICKS, add_picks, constraint_options, constraint_parameters,
+                      constraint_sigma_parameters, option_names, read_dem, read_layers, read_picks)
 from ..layers import crs_to_srs
 from ..outputs import write_raster
 from ..styles import attach_style
@@ -61,8 +58,9 @@ class SurfaceModel(StrikelineAlgorithm):
         "Optional outputs: the model's standard error and a mask of the cells beyond the reach of "
         "the data (1 = extrapolated: a forecast), which Structure contours uses to dash forecast "
         "parts. The surface GeoTIFF is the input of the structure-contour, dip-grid and depth tools. "
-        "Boreholes and dip measurements are taken in the picks' CRS; dip directions from grid north "
-        "of that CRS.")
+        "Boreholes (the surface's elevation as a field or Z, or collar elevation and depth) and dip "
+        "measurements are read as strikeline run reads them, reprojected to the picks' CRS; dip "
+        "directions are from grid north of that CRS.")
     METHOD = (
         "Plane: total least squares. Quadratic trend: weighted least squares. Spline: thin-plate "
         "smoothing spline with the smoothing chosen by generalized cross-validation. Choose: grouped "
@@ -75,13 +73,6 @@ class SurfaceModel(StrikelineAlgorithm):
     REFERENCE = "REFERENCE"
     EXTENT = "EXTENT"
     CELL = "CELL"
-    BOREHOLES = "BOREHOLES"
-    BOREHOLES_FIELD = "BOREHOLES_ELEV_FIELD"
-    BOREHOLE_SIGMA = "BOREHOLE_SIGMA"
-    DIPS = "DIPS"
-    DIP_FIELD = "DIPS_DIP_FIELD"
-    DIPDIR_FIELD = "DIPS_DIP_DIRECTION_FIELD"
-    ORIENTATION_SIGMA = "ORIENTATION_SIGMA"
     SEED = "SEED"
     OUTPUT = "SURFACE"
     STANDARD_ERROR = "STANDARD_ERROR"
@@ -99,27 +90,8 @@ class SurfaceModel(StrikelineAlgorithm):
         self.addParameter(QgsProcessingParameterDistance(
             self.CELL, self.tr("Cell size without a reference grid (0: about 1/500 of the extent)"),
             defaultValue=0.0, parentParameterName=PICKS, minValue=0.0, optional=True))
-        self.addParameter(QgsProcessingParameterFeatureSource(
-            self.BOREHOLES, self.tr("Boreholes: points where the surface was drilled"),
-            [QgsProcessing.TypeVectorPoint], optional=True))
-        self.addParameter(QgsProcessingParameterField(
-            self.BOREHOLES_FIELD, self.tr("Elevation field of the boreholes (empty: the points' Z)"),
-            parentLayerParameterName=self.BOREHOLES, type=QgsProcessingParameterField.Numeric, optional=True))
-        self.addParameter(QgsProcessingParameterNumber(
-            self.BOREHOLE_SIGMA, self.tr("Standard error of the borehole elevations (m, 0: exact)"),
-            QgsProcessingParameterNumber.Double, defaultValue=DEFAULT_BOREHOLE_SIGMA_M, minValue=0.0,
-            optional=True))
-        self.addParameter(QgsProcessingParameterFeatureSource(
-            self.DIPS, self.tr("Dip measurements (points)"), [QgsProcessing.TypeVectorPoint], optional=True))
-        for key, label in ((self.DIP_FIELD, "Dip field (°)"),
-                           (self.DIPDIR_FIELD, "Dip-direction field (° from grid north)")):
-            self.addParameter(QgsProcessingParameterField(
-                key, self.tr(label), parentLayerParameterName=self.DIPS,
-                type=QgsProcessingParameterField.Numeric, optional=True))
-        self.addParameter(QgsProcessingParameterNumber(
-            self.ORIENTATION_SIGMA, self.tr("Standard error of the measured dips (°, 0: exact)"),
-            QgsProcessingParameterNumber.Double, defaultValue=DEFAULT_ORIENTATION_SIGMA_DEG, minValue=0.0,
-            optional=True))
+        for param in (*constraint_parameters(self), *constraint_sigma_parameters(self)):
+            self.addParameter(param)
         seed = QgsProcessingParameterNumber(self.SEED, self.tr("Random seed (cross-validation folds)"),
                                             QgsProcessingParameterNumber.Integer, defaultValue=0, minValue=0,
                                             optional=True)
@@ -147,7 +119,6 @@ class SurfaceModel(StrikelineAlgorithm):
             return ref_grid.with_nodata(None)
         crs = source.sourceCrs()
         if self.parameterAsExtent(parameters, self.EXTENT, context).isNull():
-            ext = source.sourceExtent()
             bounds = (xyz[:, 0].min(), xyz[:, 1].min(), xyz[:, 0].max(), xyz[:, 1].max())
         else:
             ext = self.parameterAsExtent(parameters, self.EXTENT, context, crs)
@@ -159,24 +130,14 @@ class SurfaceModel(StrikelineAlgorithm):
         model = METHODS[self.parameterAsEnum(parameters, self.METHOD_P, context)][0]
         picks_src = self.parameterAsSource(parameters, PICKS, context)
         text = tuple(f for f in ("contact_id", "source") if f in picks_src.fields().names())
-        xyz, source, name, vals = read_points_xyz(self, parameters, PICKS, PICKS_FIELD, context, steps,
-                                                  label="picks", field_label="Elevation field of the picks",
-                                                  text_fields=text)
-        crs = source.sourceCrs()
-        boreholes, _, _, _ = read_points_xyz(self, parameters, self.BOREHOLES, self.BOREHOLES_FIELD, context,
-                                             steps, label="boreholes",
-                                             field_label="Elevation field of the boreholes", target_crs=crs)
-        orientations = None
-        dip_f = self.parameterAsString(parameters, self.DIP_FIELD, context)
-        dd_f = self.parameterAsString(parameters, self.DIPDIR_FIELD, context)
-        if self.parameterAsSource(parameters, self.DIPS, context) is not None:
-            if not (dip_f and dd_f):
-                raise InputError("dip measurements given without their fields; choose the 'Dip field' "
-                                 "and the 'Dip-direction field'")
-            dxyz, _, _, dvals = read_points_xyz(self, parameters, self.DIPS, None, context, steps,
-                                                label="dip measurements", field_label="", target_crs=crs,
-                                                fields=(dip_f, dd_f))
-            orientations = np.column_stack([dxyz[:, 0], dxyz[:, 1], dvals[dip_f], dvals[dd_f]])
+        xyz, source, layer, name, vals = read_picks(self, parameters, context, steps, text_fields=text)
+        opts = RunOptions(contacts=name.path, out="", model=model, seed=self.parameterAsInt(parameters, self.SEED, context),
+                          **constraint_options(self, parameters, context))
+        # Boreholes and dip measurements as strikeline run takes them (the library's checks and
+        # conversions), in the picks' CRS: the picks stand for the contacts, whose CRS is the
+        # working CRS when there is no DEM.
+        constraints = assemble_inputs(layer, opts, log=steps.log, names=option_names(self),
+                                      **read_layers(self, parameters, context, steps, CONSTRAINT_LAYERS))
         grid = self._grid(parameters, context, steps, source, xyz)
         steps.feedback.setProgress(10)
         # As strikeline run: cross-validation folds hold out contact segments (the picks'
@@ -187,11 +148,8 @@ class SurfaceModel(StrikelineAlgorithm):
         src = vals.get("source")
         src = np.array([v if v in SOURCES else "dem" for v in src], dtype="<U8") if src is not None \
             else np.full(len(xyz), "dem", dtype="<U8")
-        opts = RunOptions(contacts=name.path, out="", model=model,
-                          borehole_sigma_m=self.parameterAsDouble(parameters, self.BOREHOLE_SIGMA, context),
-                          orientation_sigma_deg=self.parameterAsDouble(parameters, self.ORIENTATION_SIGMA, context),
-                          seed=self.parameterAsInt(parameters, self.SEED, context))
-        surf = model_surface(PickSet(xyz, cid, src), opts, grid, boreholes=boreholes, orientations=orientations,
+        surf = model_surface(PickSet(xyz, cid, src), opts, grid, boreholes=constraints.boreholes_xyz,
+                             orientations=constraints.orientations,
                              what=f"picks {name.what}", is_cancelled=steps.is_cancelled)
         steps.feedback.setProgress(60)
         s = surf.summary()

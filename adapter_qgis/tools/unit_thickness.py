@@ -31,8 +31,8 @@ from strikeline.thickness import (
 )
 
 from ..base import StrikelineAlgorithm
-from ..inputs import read_dem, source_and_name
-from ..layers import qgis_crs, read_vector
+from ..inputs import read_dem, to_dem_crs
+from ..layers import read_vector, vector_name
 
 REF_RAGAN = ("Ragan, D. M. (2009). Structural Geology: An Introduction to Geometrical Techniques, 4th "
              "ed. Cambridge University Press (thickness and depth; vector methods).")
@@ -115,14 +115,15 @@ class UnitThickness(StrikelineAlgorithm):
 
     def process(self, parameters, context, steps):
         method = METHODS[self.parameterAsEnum(parameters, self.METHOD_P, context)][0]
-        source, name = source_and_name(self, parameters, self.INPUT, context, "measurements")
+        source = self.parameterAsSource(parameters, self.INPUT, context)
+        name = vector_name(self.parameterAsVectorLayer(parameters, self.INPUT, context), source, "measurements")
         dip = self.parameterAsDouble(parameters, self.DIP, context)
         dipdir = self.parameterAsDouble(parameters, self.DIP_DIRECTION, context)
         if method == "two_points":
             dem, grid, _ = read_dem(self, parameters, self.DEM, context, steps)
-            target = qgis_crs(grid.crs_wkt) if grid is not None else None
-            lyr = read_vector(source, name, geometry="line", target_crs=target, context=context,
-                              log=steps.log, is_cancelled=steps.is_cancelled, keep_z=dem is None)
+            lyr = read_vector(source, name, geometry="line", is_cancelled=steps.is_cancelled, keep_z=dem is None)
+            if dem is not None:
+                lyr = to_dem_crs(lyr, dem, grid, log=steps.log)
             coords, owner = shapely.get_coordinates(lyr.geoms, include_z=dem is None, return_index=True)
             first = np.searchsorted(owner, np.arange(len(lyr.geoms)), side="left")
             last = np.searchsorted(owner, np.arange(len(lyr.geoms)), side="right") - 1
@@ -143,8 +144,7 @@ class UnitThickness(StrikelineAlgorithm):
                         (self.AZIMUTH_FIELD, "Borehole azimuth field (° from grid north)", True),
                         (self.PLUNGE_FIELD, "Borehole plunge field (° below horizontal)", True)]
             fields = {k: self._field(parameters, k, context, name, label, required=req) for k, label, req in keys}
-            lyr = read_vector(source, name, geometry=None, fields=[f for f in fields.values() if f],
-                              is_cancelled=steps.is_cancelled)
+            lyr = read_vector(source, name, geometry=None, is_cancelled=steps.is_cancelled)
             values = {k: (lyr.numeric_field(f, option=f"the '{dict((a, b) for a, b, _ in keys)[k]}'")
                           if f else np.zeros(len(lyr.geoms))) for k, f in fields.items()}
             ok = np.all([np.isfinite(v) for v in values.values()], axis=0)

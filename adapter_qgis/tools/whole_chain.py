@@ -1,7 +1,6 @@
 """Tool: the whole chain in one run, as ``strikeline run`` does it."""
 from __future__ import annotations
 
-import json
 import os
 
 from qgis.core import (
@@ -17,18 +16,19 @@ from qgis.core import (
     QgsProcessingParameterFileDestination,
     QgsProcessingParameterNumber,
     QgsProcessingParameterRasterDestination,
-    QgsWkbTypes,
 )
 
 from strikeline import pipeline as pl
-from strikeline.pipeline import RunOptions, compute
+from strikeline.io.files import write_json_atomic
+from strikeline.pipeline import compute
 
 from ..base import REF_FERNANDEZ, REF_GDAL_CONTOUR, REF_PRESS, REF_STR, REF_ZT, StrikelineAlgorithm
-from ..inputs import CONTACTS, add_contact_and_topography, read_contact_inputs, source_and_name
-from ..layers import qgis_crs, read_vector
+from ..inputs import (CONSTRAINT_LAYERS, CONTACTS, GROUP_BY, add_contact_and_topography, constraint_options,
+                      constraint_parameters, constraint_sigma_parameters, optional_distance, optional_string,
+                      read_contact_inputs)
+from ..layers import qgis_crs
 from ..outputs import Table, write_raster, write_sink
 from ..styles import attach_style
-from .common import contours_table, picks_table, trace_table
 from .plane_attitude import NUMBERS, REF_EFRON, REF_WOODCOCK
 from .surface_model import REF_GCV, REF_SPLINE
 
@@ -36,25 +36,33 @@ from .surface_model import REF_GCV, REF_SPLINE
 MODEL_LABELS = {"auto": "Choose by cross-validation (auto)", "plane": "Best-fit plane",
                 "trend2": "Quadratic trend surface", "spline": "Thin-plate smoothing spline"}
 
+#: The chain's layers beyond contacts and topography: ``assemble_inputs`` keyword ->
+#: (parameter, label in messages, geometry).
+CHAIN_LAYERS = {**CONSTRAINT_LAYERS, "top_contacts": ("TOP_CONTACTS", "top contacts", "line")}
 
-class _FilePaths(dict):
-    """``Inputs.paths`` for the library's summary: names every input, hashes only files.
-
-    ``compute`` names inputs through ``paths[...]`` and ``build_summary`` hashes every value;
-    inputs without a file (memory layers, database tables) are left out of ``values()``. Goes
-    when the library hashes only files (request 2 in /work/requests-qgis.md).
-    """
-
-    def values(self):
-        return [v for v in super().values() if os.path.isfile(v)]
-
-
-def _p(alg, parameters, key, context, kind):
-    """A parameter's value, None when unset (0 for distances and numbers means "default")."""
-    if kind == "str":
-        return alg.parameterAsString(parameters, key, context) or None
-    v = alg.parameterAsDouble(parameters, key, context)
-    return None if v == 0 else v
+#: The vector layers of ``pipeline.result_layers``, each written to the output named as the
+#: layer in upper case: output -> (label, layer type, created by default, style).
+LAYERS = {
+    "PICKS": ("Contact picks", QgsProcessing.TypeVectorPoint, True, "picks"),
+    "STRUCTURE_CONTOURS": ("Structure contours", QgsProcessing.TypeVectorLine, True, "structure_contours"),
+    "PREDICTED_TRACE": ("Predicted outcrop trace (needs a DEM)", QgsProcessing.TypeVectorLine, True, "trace"),
+    "CONTACT_MISFIT": ("Contact segments and their misfit (needs a DEM)", QgsProcessing.TypeVectorLine, True,
+                       "contact_misfit"),
+    "ATTITUDES": ("Local attitudes", QgsProcessing.TypeVectorPoint, True, "local_attitudes"),
+    "TOP_PICKS": ("Top-contact picks (with top contacts)", QgsProcessing.TypeVectorPoint, False, "picks"),
+}
+#: The grids of ``pipeline.result_rasters``, each written to the output named as the file
+#: without ``.tif`` in upper case: output -> (label, created by default, style).
+RASTERS = {
+    "SURFACE": ("Surface elevation", True, "surface"), "DIP": ("Dip (°)", True, "dip"),
+    "DIP_DIRECTION": ("Dip direction (° from grid north)", True, "dip_direction"),
+    "UNCERTAINTY": ("Standard error of the surface (m)", True, "uncertainty"),
+    "DEPTH": ("Depth below ground (needs a DEM)", True, "depth"),
+    "VERTICAL_THICKNESS": ("Vertical thickness (with top contacts)", False, "thickness"),
+    "TRUE_THICKNESS": ("True thickness (with top contacts)", False, "thickness"),
+}
+#: Outputs that every run makes.
+REQUIRED = {"PICKS", "STRUCTURE_CONTOURS", "SURFACE", "DIP", "DIP_DIRECTION"}
 
 
 class WholeChain(StrikelineAlgorithm):
@@ -91,31 +99,10 @@ class WholeChain(StrikelineAlgorithm):
         optional = [
             QgsProcessingParameterDistance("CELL", self.tr("Cell size without a DEM (0: about 1/500 of the contours' extent)"),
                                            defaultValue=0.0, parentParameterName=CONTACTS, minValue=0.0, optional=True),
-            QgsProcessingParameterFeatureSource("BOREHOLES", self.tr("Boreholes that reach the surface (points)"),
-                                                [QgsProcessing.TypeVectorPoint], optional=True),
-            QgsProcessingParameterField("BOREHOLE_Z_FIELD", self.tr("Borehole field: the surface's elevation (empty: Z)"),
-                                        parentLayerParameterName="BOREHOLES", type=QgsProcessingParameterField.Numeric,
-                                        optional=True),
-            QgsProcessingParameterField("BOREHOLE_COLLAR_FIELD", self.tr("Borehole field: collar elevation"),
-                                        parentLayerParameterName="BOREHOLES", type=QgsProcessingParameterField.Numeric,
-                                        optional=True),
-            QgsProcessingParameterField("BOREHOLE_DEPTH_FIELD", self.tr("Borehole field: depth from collar to the surface"),
-                                        parentLayerParameterName="BOREHOLES", type=QgsProcessingParameterField.Numeric,
-                                        optional=True),
-            QgsProcessingParameterFeatureSource("ORIENTATIONS", self.tr("Dip measurements on the surface (points)"),
-                                                [QgsProcessing.TypeVectorPoint], optional=True),
-            QgsProcessingParameterField("DIP_FIELD", self.tr("Dip field"), defaultValue="dip",
-                                        parentLayerParameterName="ORIENTATIONS",
-                                        type=QgsProcessingParameterField.Numeric, optional=True),
-            QgsProcessingParameterField("DIP_DIRECTION_FIELD", self.tr("Dip-direction field"), defaultValue="dip_dir",
-                                        parentLayerParameterName="ORIENTATIONS",
-                                        type=QgsProcessingParameterField.Numeric, optional=True),
-            QgsProcessingParameterField("STRIKE_FIELD", self.tr("Strike field (right-hand rule) instead of dip direction"),
-                                        parentLayerParameterName="ORIENTATIONS",
-                                        type=QgsProcessingParameterField.Numeric, optional=True),
+            *constraint_parameters(self),
             QgsProcessingParameterFeatureSource("TOP_CONTACTS", self.tr("Top contact of the unit (lines): isopachs"),
                                                 [QgsProcessing.TypeVectorLine], optional=True),
-            QgsProcessingParameterField("GROUP_BY", self.tr("Also one plane per value of this contact field"),
+            QgsProcessingParameterField(GROUP_BY, self.tr("Also one plane per value of this contact field"),
                                         parentLayerParameterName=CONTACTS, optional=True),
         ]
         advanced = [
@@ -127,10 +114,7 @@ class WholeChain(StrikelineAlgorithm):
               defaultValue=pl.DEFAULT_DEM_SIGMA_M, minValue=0.0, optional=True),
             T("CONTOUR_SIGMA", self.tr("Positional standard error of contour picks (m)"), T.Double,
               defaultValue=pl.DEFAULT_CONTOUR_SIGMA_M, minValue=0.0, optional=True),
-            T("BOREHOLE_SIGMA", self.tr("Standard error of borehole elevations (m)"), T.Double,
-              defaultValue=pl.DEFAULT_BOREHOLE_SIGMA_M, minValue=0.0, optional=True),
-            T("ORIENTATION_SIGMA", self.tr("Standard error of measured dips (°)"), T.Double,
-              defaultValue=pl.DEFAULT_ORIENTATION_SIGMA_DEG, minValue=0.0, optional=True),
+            *constraint_sigma_parameters(self),
             T("RESAMPLES", self.tr("Bootstrap resamples and Monte Carlo draws"), T.Integer, defaultValue=1000,
               minValue=100, optional=True),
             T("SEED", self.tr("Random seed"), T.Integer, defaultValue=0, minValue=0, optional=True),
@@ -140,26 +124,12 @@ class WholeChain(StrikelineAlgorithm):
         for p in advanced:
             p.setFlags(p.flags() | QgsProcessingParameterDefinition.FlagAdvanced)
             self.addParameter(p)
-        sinks = (("PICKS", "Contact picks", QgsProcessing.TypeVectorPoint, True),
-                 ("STRUCTURE_CONTOURS", "Structure contours", QgsProcessing.TypeVectorLine, True),
-                 ("PREDICTED_TRACE", "Predicted outcrop trace (needs a DEM)", QgsProcessing.TypeVectorLine, True),
-                 ("CONTACT_MISFIT", "Contact segments and their misfit (needs a DEM)", QgsProcessing.TypeVectorLine, True),
-                 ("ATTITUDES", "Local attitudes", QgsProcessing.TypeVectorPoint, True),
-                 ("TOP_PICKS", "Top-contact picks (with top contacts)", QgsProcessing.TypeVectorPoint, False))
-        for key, label, kind, by_default in sinks:
-            self.addParameter(QgsProcessingParameterFeatureSink(key, self.tr(label), kind, optional=key != "PICKS"
-                                                                and key != "STRUCTURE_CONTOURS",
-                                                                createByDefault=by_default))
-        rasters = (("SURFACE", "Surface elevation", True), ("DIP", "Dip (°)", True),
-                   ("DIP_DIRECTION", "Dip direction (° from grid north)", True),
-                   ("UNCERTAINTY", "Standard error of the surface (m)", True),
-                   ("DEPTH", "Depth below ground (needs a DEM)", True),
-                   ("VERTICAL_THICKNESS", "Vertical thickness (with top contacts)", False),
-                   ("TRUE_THICKNESS", "True thickness (with top contacts)", False))
-        for key, label, by_default in rasters:
+        for key, (label, kind, by_default, _) in LAYERS.items():
+            self.addParameter(QgsProcessingParameterFeatureSink(
+                key, self.tr(label), kind, optional=key not in REQUIRED, createByDefault=by_default))
+        for key, (label, by_default, _) in RASTERS.items():
             self.addParameter(QgsProcessingParameterRasterDestination(
-                key, self.tr(label), optional=key not in ("SURFACE", "DIP", "DIP_DIRECTION"),
-                createByDefault=by_default))
+                key, self.tr(label), optional=key not in REQUIRED, createByDefault=by_default))
         self.addParameter(QgsProcessingParameterFileDestination(
             "SUMMARY", self.tr("Summary (JSON)"), fileFilter="JSON (*.json)", optional=True,
             createByDefault=False))
@@ -172,54 +142,25 @@ class WholeChain(StrikelineAlgorithm):
         self.addOutput(QgsProcessingOutputString("QUALITY", self.tr("Quality of the sheet-wide plane")))
         self.addOutput(QgsProcessingOutputString("MODEL_USED", self.tr("Surface model used")))
 
-    def options(self, parameters, context, contacts_path) -> RunOptions:
-        """The QGIS parameters as the command line's :class:`RunOptions`."""
-        g = lambda key, kind="num": _p(self, parameters, key, context, kind)  # noqa: E731
-        return RunOptions(
-            contacts=contacts_path, out="", model=pl.MODELS[self.parameterAsEnum(parameters, "MODEL", context)],
-            interval_m=self.parameterAsDouble(parameters, "INTERVAL", context), cell_m=g("CELL"),
-            borehole_z_field=g("BOREHOLE_Z_FIELD", "str"), borehole_collar_field=g("BOREHOLE_COLLAR_FIELD", "str"),
-            borehole_depth_field=g("BOREHOLE_DEPTH_FIELD", "str"),
-            borehole_sigma_m=self.parameterAsDouble(parameters, "BOREHOLE_SIGMA", context),
-            dip_field=g("DIP_FIELD", "str") or "dip", dip_direction_field=g("DIP_DIRECTION_FIELD", "str"),
-            strike_field=g("STRIKE_FIELD", "str"),
-            orientation_sigma_deg=self.parameterAsDouble(parameters, "ORIENTATION_SIGMA", context),
-            misfit_flag_m=g("MISFIT_FLAG"),
+    def options(self, parameters, context) -> dict:
+        """The QGIS parameters as fields of the command line's :class:`RunOptions` (the inputs'
+        parameters are read by :func:`read_contact_inputs`; their ranges are enforced by the
+        parameter definitions, QGIS checks them)."""
+        d = lambda key: optional_distance(self, parameters, key, context)  # noqa: E731
+        return dict(
+            model=pl.MODELS[self.parameterAsEnum(parameters, "MODEL", context)],
+            interval_m=self.parameterAsDouble(parameters, "INTERVAL", context), cell_m=d("CELL"),
+            misfit_flag_m=d("MISFIT_FLAG"), window_m=d("WINDOW"),
             dem_sigma_m=self.parameterAsDouble(parameters, "DEM_SIGMA", context),
             contour_sigma_m=self.parameterAsDouble(parameters, "CONTOUR_SIGMA", context),
-            window_m=g("WINDOW"), group_by=g("GROUP_BY", "str"),
+            group_by=optional_string(self, parameters, GROUP_BY, context),
             resamples=self.parameterAsInt(parameters, "RESAMPLES", context),
-            seed=self.parameterAsInt(parameters, "SEED", context))
-
-    def _points_layer(self, parameters, key, context, steps, label, fields, target):
-        src, name = source_and_name(self, parameters, key, context, label)
-        if src is None:
-            return None
-        return read_vector(src, name, geometry="point", fields=[f for f in fields if f and f in src.fields().names()],
-                           target_crs=target, context=context, log=steps.log, is_cancelled=steps.is_cancelled)
+            seed=self.parameterAsInt(parameters, "SEED", context),
+            **constraint_options(self, parameters, context))
 
     def process(self, parameters, context, steps):
-        group_by = self.parameterAsString(parameters, "GROUP_BY", context)
-        inputs = read_contact_inputs(self, parameters, context, steps, contact_fields=(group_by,))
-        # The options' ranges are enforced by the parameter definitions (QGIS checks them).
-        opts = self.options(parameters, context, inputs.paths["contacts"])
-        target = qgis_crs(inputs.crs_wkt)
-        bh = self._points_layer(parameters, "BOREHOLES", context, steps, "boreholes",
-                                (opts.borehole_z_field, opts.borehole_collar_field, opts.borehole_depth_field), target)
-        if bh is not None:
-            inputs.boreholes_xyz = pl._borehole_points(bh, opts)
-            inputs.paths["boreholes"] = bh.path
-        ori = self._points_layer(parameters, "ORIENTATIONS", context, steps, "orientations",
-                                 (opts.dip_field, opts.dip_direction_field, opts.strike_field), target)
-        if ori is not None:
-            inputs.orientations = pl._orientation_rows(ori, opts)
-            inputs.paths["orientations"] = ori.path
-        top_src, top_name = source_and_name(self, parameters, "TOP_CONTACTS", context, "top contacts")
-        if top_src is not None:
-            inputs.top_contacts = read_vector(top_src, top_name, geometry="line", target_crs=target, context=context,
-                                              log=steps.log, is_cancelled=steps.is_cancelled)
-            inputs.paths["top_contacts"] = top_name.path
-        inputs.paths = _FilePaths(inputs.paths)
+        inputs, opts = read_contact_inputs(self, parameters, context, steps, more=CHAIN_LAYERS,
+                                           **self.options(parameters, context))
         steps.feedback.setProgress(5)
         r = compute(inputs, opts, log=steps.log, progress=steps.part(0.05, 0.8), is_cancelled=steps.is_cancelled)
         s = r.summary
@@ -242,43 +183,22 @@ class WholeChain(StrikelineAlgorithm):
         return out
 
     def _write(self, parameters, context, inputs, r) -> dict:
+        """The layers and grids of ``strikeline run`` (``pipeline.result_layers`` and
+        ``result_rasters``, so the same fields), each to the output of its name."""
         crs = qgis_crs(inputs.crs_wkt)
         out = {}
-
-        def sink(key, table, style=None):
-            out[key] = write_sink(self, parameters, key, context, table, crs)
-            attach_style(context, out[key], style)
-
-        def raster(key, array, style=None):
-            if array is not None:
-                out[key] = write_raster(self, parameters, key, context, array, r.grid)
-                attach_style(context, out[key], style)
-
-        sink("PICKS", picks_table(r.picks), "picks")
-        sink("STRUCTURE_CONTOURS", contours_table(r.contour_geoms, r.contour_elevations_m,
-                                                  extrapolated=r.contour_extrapolated), "structure_contours")
-        if inputs.dem is not None:
-            sink("PREDICTED_TRACE", trace_table(r.trace_geoms, extrapolated=r.trace_extrapolated), "trace")
-        if r.contact_misfit is not None:
-            cm = r.contact_misfit
-            sink("CONTACT_MISFIT", Table(cm["geoms"], {"contact_id": cm["contact_id"], "misfit_m": cm["misfit_m"],
-                                                       "flagged": cm["flagged"]}, QgsWkbTypes.LineString),
-                 "contact_misfit")
-        if r.attitudes is not None:
-            lo = pl._attitudes_layer(r.attitudes)
-            sink("ATTITUDES", Table(lo.geoms, lo.fields, QgsWkbTypes.Point), "local_attitudes")
-        if r.top_picks is not None:
-            sink("TOP_PICKS", picks_table(r.top_picks), "picks")
-        raster("SURFACE", r.surface, "surface")
-        raster("DIP", r.dip_deg, "dip")
-        raster("DIP_DIRECTION", r.dip_direction_deg, "dip_direction")
-        raster("UNCERTAINTY", r.uncertainty_m, "uncertainty")
-        raster("DEPTH", r.depth_m, "depth")
-        raster("VERTICAL_THICKNESS", r.vertical_thickness_m, "thickness")
-        raster("TRUE_THICKNESS", r.true_thickness_m, "thickness")
+        for layer in pl.result_layers(r):
+            key = layer.name.upper()
+            if key == "PREDICTED_TRACE" and inputs.dem is None:
+                continue  # no trace without ground to cut the surface with
+            out[key] = write_sink(self, parameters, key, context, Table.of_layer(layer), crs)
+            attach_style(context, out[key], LAYERS[key][3])
+        for file_name, array in pl.result_rasters(r):
+            key = os.path.splitext(file_name)[0].upper()
+            out[key] = write_raster(self, parameters, key, context, array, r.grid)
+            attach_style(context, out[key], RASTERS[key][2])
         summary_path = self.parameterAsFileOutput(parameters, "SUMMARY", context)
         if summary_path:
-            with open(summary_path, "w", encoding="utf-8") as f:
-                f.write(json.dumps(r.summary, indent=2, sort_keys=True) + "\n")
+            write_json_atomic(summary_path, r.summary, overwrite=True)  # the bytes of summary.json
             out["SUMMARY"] = summary_path
         return {k: v for k, v in out.items() if v is not None}
