@@ -30,6 +30,8 @@ pytestmark = pytest.mark.qgis
 TMP = "TEMPORARY_OUTPUT"
 GEOGRAPHIC = "EPSG:4326"  # Source: EPSG dataset, WGS 84 geographic 2D
 SHEET_UTM = "EPSG:32631"  # Source: EPSG dataset, WGS 84 / UTM zone 31N (the demo sheet's CRS)
+#: The required outputs of the whole chain, as temporary layers.
+OUTPUTS = {"PICKS": TMP, "STRUCTURE_CONTOURS": TMP, "SURFACE": TMP, "DIP": TMP, "DIP_DIRECTION": TMP}
 
 
 def library_message(**opts) -> str:
@@ -116,6 +118,28 @@ def test_text_elevation_field(run, sheet, tmp_path):
     # The fix names QGIS's parameter instead of the command line's option.
     assert got == want.replace("--elev-field", "the 'Elevation field of the contour lines'")
     assert "is of type String, not numeric" in got
+
+
+def test_messages_name_the_qgis_parameters(run, sheet):
+    """The library's checks of boreholes and contours (pipeline.assemble_inputs) speak of the
+    tool's parameters instead of the command line's options."""
+    holes = f"{sheet['dir'] / 'boreholes.gpkg'}"
+    want = library_message(contacts=sheet["contacts"], dem=sheet["dem"], boreholes=holes,
+                           borehole_collar_field="collar_m")
+    got = qgis_message(run, "modelcontact", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"],
+                                             "BOREHOLES": f"{holes}|layername=boreholes",
+                                             "BOREHOLE_COLLAR_FIELD": "collar_m", **OUTPUTS})
+    labels = {"--borehole-collar-field": "the 'Borehole field: collar elevation'",
+              "--borehole-depth-field": "the 'Borehole field: depth from collar to the surface'",
+              "--borehole-z-field": "the 'Borehole field: the surface's elevation (empty: Z)'"}
+    for option, label in labels.items():
+        want = want.replace(option, label)
+    assert got == want and "give both" in got
+    got = qgis_message(run, "contactpicks", {"CONTACTS": sheet["contacts_uri"], "CONTOURS": sheet["contours_uri"],
+                                             "PICKS": TMP})
+    want = library_message(contacts=sheet["contacts"], contours=sheet["contours"])
+    assert "the elevation field is not named" in got
+    assert got == want.replace("--elev-field", "the 'Elevation field of the contour lines'")
 
 
 def test_no_topography(run, sheet):

@@ -320,8 +320,6 @@ def contour_picks(sheet):
 
 @pytest.mark.parametrize("method,model", [(1, "trend2"), (2, "spline")])
 def test_surface_models_are_the_library_models(run, contour_picks, method, model):
-    from strikeline.surfaces import fit_surface
-
     from strikeline.picks import PickSet
     from strikeline.pipeline import RunOptions, model_surface
 
@@ -370,6 +368,38 @@ def test_surface_model_honours_a_borehole(run, contour_picks, sheet):
     # common practice: a model that honours a borehole (standard error 0) passes through it.
     z = sample_bilinear(surface, grid, BOREHOLE[0], BOREHOLE[1])
     assert float(z) == pytest.approx(BOREHOLE[2], abs=F32_ELEVATION_TOL_M)
+
+
+def test_surface_model_with_the_demo_boreholes_and_dips(run, contour_picks, sheet):
+    """Boreholes by collar and depth fields and dip readings go through the library's own
+    conversions (pipeline.borehole_points / orientation_rows), as in strikeline run."""
+    from strikeline.io.vector import read_layer
+    from strikeline.picks import PickSet, sample_bilinear
+    from strikeline.pipeline import RunOptions, borehole_points, model_surface, orientation_rows
+
+    d = sheet["dir"]
+    layer, xyz = contour_picks
+    res = run("surfacemodel", {"PICKS": layer, "METHOD": 1, "REFERENCE": sheet["dem"],
+                               "BOREHOLES": f"{d / 'boreholes.gpkg'}|layername=boreholes",
+                               "BOREHOLE_COLLAR_FIELD": "collar_m", "BOREHOLE_DEPTH_FIELD": "depth_m",
+                               "BOREHOLE_SIGMA": 0.0,
+                               "ORIENTATIONS": f"{d / 'orientations.gpkg'}|layername=dip_readings",
+                               "SURFACE": TMP})
+    surface, grid = read_raster(res["SURFACE"], label="surface")
+    opts = RunOptions(contacts="picks", out="", model="trend2", borehole_collar_field="collar_m",
+                      borehole_depth_field="depth_m", borehole_sigma_m=0.0)
+    holes = borehole_points(read_layer(d / "boreholes.gpkg", label="boreholes", geometry="point"), opts)
+    dips = orientation_rows(read_layer(d / "orientations.gpkg", label="orientations", geometry="point"), opts)
+    _, cols = table(layer)
+    ref = model_surface(PickSet(xyz, cols["contact_id"].astype(np.int64), cols["source"].astype(str)), opts,
+                        grid, boreholes=holes, orientations=dips, what="picks")
+    np.testing.assert_array_equal(surface, ref.evaluate_grid(grid).astype(np.float32).astype(float))
+    # External: the holes' base elevations by construction. Source: test_data/demo/truth.json
+    # (collar minus depth is the base plane's elevation); a surface that honours the holes
+    # exactly (standard error 0) passes through them, to float32 storage.
+    truth = sheet["truth"]["boreholes"]["holes"]
+    z = sample_bilinear(surface, grid, np.array([h["x"] for h in truth]), np.array([h["y"] for h in truth]))
+    np.testing.assert_allclose(z, [h["base_z_m"] for h in truth], atol=F32_ELEVATION_TOL_M)
 
 
 def test_structure_contours_dash_the_forecast(run, contour_picks):
@@ -531,8 +561,6 @@ def test_whole_chain_is_the_library_chain(run, sheet, reference, kind, tmp_path)
 
 def test_whole_chain_with_boreholes_dips_groups_and_top(run, sheet, library, tmp_path):
     d = sheet["dir"]
-    if not (d / "boreholes.gpkg").exists():
-        pytest.skip("the demo sheet has no boreholes yet")
     res = run("modelcontact", {
         "CONTACTS": f"{d / 'contacts_grouped.gpkg'}|layername=contacts", "DEM": sheet["dem"],
         "CONTOURS": sheet["contours_uri"], "ELEV_FIELD": "elev_m", "GROUP_BY": "block",
