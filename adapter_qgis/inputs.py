@@ -13,6 +13,7 @@ import numpy as np
 import shapely
 from qgis.core import (
     QgsProcessing,
+    QgsProcessingParameterDistance,
     QgsProcessingParameterFeatureSource,
     QgsProcessingParameterField,
     QgsProcessingParameterNumber,
@@ -29,6 +30,7 @@ CONTACTS = "CONTACTS"
 DEM = "DEM"
 CONTOURS = "CONTOURS"
 ELEV_FIELD = "ELEV_FIELD"
+PICK_SPACING = "PICK_SPACING"
 GROUP_BY = "GROUP_BY"
 BOREHOLES = "BOREHOLES"
 ORIENTATIONS = "ORIENTATIONS"
@@ -75,6 +77,9 @@ def add_contact_and_topography(alg) -> None:
     alg.addParameter(QgsProcessingParameterField(
         ELEV_FIELD, alg.tr("Elevation field of the contour lines"), parentLayerParameterName=CONTOURS,
         type=QgsProcessingParameterField.Numeric, optional=True))
+    alg.addParameter(QgsProcessingParameterDistance(
+        PICK_SPACING, alg.tr("Spacing of the DEM picks along the contacts (0: the DEM cell size)"),
+        defaultValue=0.0, parentParameterName=CONTACTS, minValue=0.0, optional=True))
 
 
 def constraint_parameters(alg) -> list:
@@ -160,8 +165,8 @@ def read_contact_inputs(alg, parameters, context, steps, *, more: dict | None = 
 
     As :func:`strikeline.pipeline.load_inputs`: at least one topography, the layers read in the
     command line's order, then :func:`strikeline.pipeline.assemble_inputs`. ``options`` are
-    further :class:`RunOptions` fields (the elevation field comes from the parameters of
-    :func:`add_contact_and_topography`).
+    further :class:`RunOptions` fields (the elevation field and pick spacing come from the
+    parameters of :func:`add_contact_and_topography`).
     """
     if alg.parameterAsRasterLayer(parameters, DEM, context) is None \
             and alg.parameterAsSource(parameters, CONTOURS, context) is None:
@@ -171,7 +176,7 @@ def read_contact_inputs(alg, parameters, context, steps, *, more: dict | None = 
     dem, grid, dem_path = read_dem(alg, parameters, DEM, context, steps)
     layers = read_layers(alg, parameters, context, steps, {"contours": (CONTOURS, "contours", "line"), **(more or {})})
     opts = RunOptions(contacts=contacts.path, out="", elev_field=optional_string(alg, parameters, ELEV_FIELD, context),
-                      **options)
+                      pick_spacing_m=optional_distance(alg, parameters, PICK_SPACING, context), **options)
     # Files are hashed into the summary; other entries only name the input.
     paths = {k: lyr.path for k, lyr in {"contacts": contacts, **layers}.items() if lyr is not None}
     if dem_path:

@@ -19,12 +19,13 @@ class ContactPicks(StrikelineAlgorithm):
     GROUP = "picks"
     SUMMARY = (
         "3D points on the mapped contact lines whose elevation comes from the topography: the DEM "
-        "sampled along every contact (at the DEM cell size), and/or every crossing of a contact "
+        "sampled along every contact (every DEM cell size, or at the spacing given), and/or every crossing of a contact "
         "with a topographic contour line (at the contour's elevation). Give a DEM, contour lines "
         "with their elevation field, or both. The output points (PointZ, fields contact_id, "
         "source, elevation_m) are the input of the attitude and surface tools.")
     METHOD = (
-        "DEM picks: the contacts are divided into equal steps no longer than one DEM cell and the "
+        "DEM picks: the contacts are divided into equal steps no longer than one DEM cell (or the "
+        "spacing given) and the "
         "DEM is interpolated bilinearly between cell centres; nodata cells give no pick. Contour "
         "picks: contacts and contours are cut into short pieces, paired through an STR-packed "
         "R-tree, and intersected exactly (GEOS); touching and tangent contacts give one pick; "
@@ -38,10 +39,10 @@ class ContactPicks(StrikelineAlgorithm):
             self.OUTPUT, self.tr("Contact picks"), QgsProcessing.TypeVectorPoint))
 
     def process(self, parameters, context, steps):
-        inputs, _ = read_contact_inputs(self, parameters, context, steps)
+        inputs, opts = read_contact_inputs(self, parameters, context, steps)
         steps.feedback.setProgress(10)
-        picks = collect_picks(inputs, log=steps.log, progress=steps.part(0.1, 0.95),
-                              is_cancelled=steps.is_cancelled)
+        picks = collect_picks(inputs, spacing_m=opts.pick_spacing_m, log=steps.log,
+                              progress=steps.part(0.1, 0.95), is_cancelled=steps.is_cancelled)
         steps.check("contact picks")
         counts = picks.counts_by_source()
         steps.log(f"picks: {len(picks)} (dem {counts['dem']}, contours {counts['contours']})")

@@ -147,6 +147,31 @@ def test_layers_in_another_crs_are_transformed(run, sheet, reference):
     np.testing.assert_allclose(xyz, dem_ref, atol=1e-3)
 
 
+#: A DEM pick spacing of our own: two and a half cells of the demo DEM (10 m cells).
+PICK_SPACING_M = 25.0
+
+
+def test_pick_spacing_is_the_library_spacing(run, sheet):
+    from strikeline.pipeline import RunOptions, collect_picks, load_inputs
+
+    res = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"],
+                               "PICK_SPACING": PICK_SPACING_M, "PICKS": TMP})
+    inputs = load_inputs(RunOptions(contacts=sheet["contacts"], out="/nonexistent-out", dem=sheet["dem"]))
+    ref = collect_picks(inputs, spacing_m=PICK_SPACING_M)
+    geoms, cols = table(res["PICKS"])
+    xyz = shapely.get_coordinates(geoms, include_z=True)
+    np.testing.assert_array_equal(xyz, ref.xyz)
+    np.testing.assert_array_equal(cols["contact_id"], ref.contact_id)
+    assert res["N_PICKS"] == len(ref) < len(collect_picks(inputs))  # the default is one DEM cell
+    # common practice: samples at equal steps no longer than the spacing along a line are never
+    # farther apart than the spacing (a chord is no longer than its arc); the few longer steps
+    # are gaps where the contact leaves the DEM's valid cells or a new part begins.
+    steps = np.concatenate([np.hypot(*np.diff(xyz[cols["contact_id"] == c, :2], axis=0).T)
+                            for c in np.unique(cols["contact_id"])])
+    assert np.mean(steps <= PICK_SPACING_M + 1e-9) > 0.95
+    assert np.median(steps) > 0.9 * PICK_SPACING_M
+
+
 # --------------------------------------------------------------------------------------- plane
 @pytest.mark.parametrize("kind", ["file", "memory"])
 def test_plane_attitude_is_the_library_fit(run, sheet, reference, kind, tmp_path):
@@ -599,6 +624,24 @@ def test_whole_chain_with_boreholes_dips_groups_and_top(run, sheet, library, tmp
     VERTICAL_M = TRUE_THICKNESS_M / np.cos(np.radians(sheet["truth"]["dip_deg"]))
     v, _, _ = raster(res["VERTICAL_THICKNESS"])
     assert np.nanmedian(v) == pytest.approx(VERTICAL_M, abs=1.0)
+
+
+def test_whole_chain_pick_spacing_is_the_command_line_one(run, sheet, library):
+    res = run("modelcontact", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"],
+                               "PICK_SPACING": PICK_SPACING_M, "INTERVAL": 50.0, **QUICK_TOOL,
+                               "PICKS": TMP, "STRUCTURE_CONTOURS": TMP, "SURFACE": TMP, "DIP": TMP,
+                               "DIP_DIRECTION": TMP})
+    # The reference: the library's run with --pick-spacing (RunOptions.pick_spacing_m).
+    _, r = library(sheet, contours=False, pick_spacing_m=PICK_SPACING_M)
+    geoms, _ = table(res["PICKS"])
+    np.testing.assert_array_equal(shapely.get_coordinates(geoms, include_z=True), r.picks.xyz)
+    assert res["N_PICKS"] == len(r.picks) == r.summary["n_picks"]
+    got, _, _ = raster(res["SURFACE"])
+    np.testing.assert_array_equal(got, r.surface.astype(np.float32).astype(float))
+    # External: the plane through picks at any spacing along the one planar contact is the
+    # demo's plane. Source: test_data/demo/truth.json (the plane the sheet was built from).
+    assert res["DIP_DEG"] == pytest.approx(sheet["truth"]["dip_deg"], abs=0.5)
+    assert res["DIP_DIRECTION_DEG"] == pytest.approx(sheet["truth"]["dip_direction_deg"], abs=1.0)
 
 
 def test_whole_chain_without_a_dem(run, sheet, library):
