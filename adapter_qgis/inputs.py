@@ -21,8 +21,9 @@ from qgis.core import (
 )
 
 from strikeline.errors import InputError
+from strikeline.io.crs import srs_from_wkt
 from strikeline.pipeline import (CLI_OPTION_NAMES, DEFAULT_BOREHOLE_SIGMA_M, DEFAULT_ORIENTATION_SIGMA_DEG,
-                                 Inputs, RunOptions, assemble_inputs)
+                                 Inputs, RunOptions, assemble_inputs, reproject_to)
 
 from .layers import raster_path, read_raster_layer, read_vector, vector_name
 
@@ -186,10 +187,9 @@ def read_contact_inputs(alg, parameters, context, steps, *, more: dict | None = 
     return inputs, opts
 
 
-def to_dem_crs(layer, dem, dem_grid, *, log):
-    """``layer`` in the DEM's CRS, reprojected (with its log line) by ``assemble_inputs``."""
-    return assemble_inputs(layer, RunOptions(contacts=layer.path, out=""), dem=dem, dem_grid=dem_grid,
-                           log=log).contacts
+def to_dem_crs(layer, dem_grid, *, label, log):
+    """``layer`` in the DEM's CRS, reprojected (with its log line) by the library."""
+    return reproject_to(layer, srs_from_wkt(dem_grid.crs_wkt), label=label, log=log)
 
 
 PICKS = "PICKS"

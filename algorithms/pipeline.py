@@ -167,10 +167,14 @@ def check_options(opts: RunOptions) -> None:
 
 
 # --------------------------------------------------------------------------- loading
-def _to_target(lyr: VectorLayer | None, target, key: str, log: Log) -> VectorLayer | None:
+def reproject_to(lyr: VectorLayer | None, target, *, label: str, log: Log = _quiet) -> VectorLayer | None:
+    """``lyr`` in the CRS ``target`` (an ``osr.SpatialReference``), with a log line when it moves.
+
+    ``label`` names the layer in the log line (``"contacts"``, ``"boreholes"``).
+    """
     if lyr is None or same_crs(lyr.srs, target):
         return lyr
-    log(f"reprojecting {key} '{lyr.path}' from {crs_label(lyr.srs)} to {crs_label(target)}")
+    log(f"reprojecting {label} '{lyr.path}' from {crs_label(lyr.srs)} to {crs_label(target)}")
     return lyr.reprojected(target)
 
 
@@ -310,11 +314,11 @@ def assemble_inputs(contacts: VectorLayer, opts: RunOptions, *, dem=None, dem_gr
                 f"field '{opts.elev_field}' of {contours.what} holds no elevation (all null); "
                 f"name the field that holds the contour elevations with {names['elev_field']}"
             )
-    contacts = _to_target(contacts, target, "contacts", log)
-    contours = _to_target(contours, target, "contours", log)
-    boreholes = _to_target(boreholes, target, "boreholes", log)
-    orientations = _to_target(orientations, target, "orientations", log)
-    top_contacts = _to_target(top_contacts, target, "top contacts", log)
+    contacts = reproject_to(contacts, target, label="contacts", log=log)
+    contours = reproject_to(contours, target, label="contours", log=log)
+    boreholes = reproject_to(boreholes, target, label="boreholes", log=log)
+    orientations = reproject_to(orientations, target, label="orientations", log=log)
+    top_contacts = reproject_to(top_contacts, target, label="top contacts", log=log)
     return Inputs(contacts=contacts, crs_wkt=target.ExportToWkt(), dem=dem, dem_grid=dem_grid,
                   contours=contours, contour_elevations_m=elev, paths=dict(paths or {}),
                   boreholes_xyz=None if boreholes is None else borehole_points(boreholes, opts, names=names),
@@ -692,7 +696,8 @@ def write_results(results: Results, out_dir, *, overwrite: bool = False) -> Path
     return Path(out_dir)
 
 
-def _picks_layer(name: str, p: PickSet) -> LayerOut:
+def picks_layer(name: str, p: PickSet) -> LayerOut:
+    """A layer of picks: PointZ with ``contact_id``, ``source`` and ``elevation_m``."""
     return LayerOut(name, shapely.points(p.xyz), {"contact_id": p.contact_id.astype(np.int64),
                                                   "source": p.source.astype(str),
                                                   "elevation_m": p.xyz[:, 2]}, ogr.wkbPoint25D)
@@ -728,7 +733,7 @@ def result_layers(r: Results) -> list[LayerOut]:
     cflags = r.contour_extrapolated if r.contour_extrapolated is not None else np.zeros(len(r.contour_geoms), bool)
     tflags = r.trace_extrapolated if r.trace_extrapolated is not None else np.zeros(len(r.trace_geoms), bool)
     layers = [
-        _picks_layer("picks", r.picks),
+        picks_layer("picks", r.picks),
         LayerOut("structure_contours", shapely.force_3d(r.contour_geoms, r.contour_elevations_m)
                  if len(r.contour_geoms) else r.contour_geoms,
                  {"elevation": np.asarray(r.contour_elevations_m, dtype=float),
@@ -744,7 +749,7 @@ def result_layers(r: Results) -> list[LayerOut]:
     if r.attitudes is not None:
         layers.append(attitudes_layer(r.attitudes))
     if r.top_picks is not None:
-        layers.append(_picks_layer("top_picks", r.top_picks))
+        layers.append(picks_layer("top_picks", r.top_picks))
     return layers
 
 

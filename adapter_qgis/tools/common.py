@@ -5,15 +5,14 @@ import numpy as np
 import shapely
 from qgis.core import QgsWkbTypes
 
+from strikeline.pipeline import picks_layer
+
 from ..outputs import Table
 
 
 def picks_table(picks) -> Table:
     """The ``picks`` layer of ``strikeline run``: PointZ with contact_id, source, elevation_m."""
-    return Table(shapely.points(picks.xyz),
-                 {"contact_id": picks.contact_id.astype(np.int64), "source": picks.source.astype(str),
-                  "elevation_m": picks.xyz[:, 2].astype(float)},
-                 QgsWkbTypes.PointZ)
+    return Table.of_layer(picks_layer("picks", picks))
 
 
 def contours_table(geoms, elevations_m, below_ground=None, extrapolated=None) -> Table:

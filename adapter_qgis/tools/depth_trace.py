@@ -91,7 +91,7 @@ class DepthTrace(StrikelineAlgorithm):
             extrapolated_fn = raster_flag(mask, mask_grid, at_least=0.5)
         contacts = read_layer(self, parameters, self.CONTACTS, context, steps, label="contacts", geometry="line")
         if contacts is not None:
-            contacts = to_dem_crs(contacts, dem, dem_grid, log=steps.log)
+            contacts = to_dem_crs(contacts, dem_grid, label="contacts", log=steps.log)
         steps.feedback.setProgress(30)
         steps.check("depth and trace")
         flag_m = self.parameterAsDouble(parameters, self.MISFIT_FLAG, context) or None

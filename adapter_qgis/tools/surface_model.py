@@ -17,7 +17,7 @@ from qgis.core import (
 from strikeline.errors import InputError
 from strikeline.io.crs import same_crs, srs_from_wkt
 from strikeline.picks import SOURCES, PickSet
-from strikeline.pipeline import RunOptions, assemble_inputs, model_surface
+from strikeline.pipeline import RunOptions, borehole_points, model_surface, orientation_rows, reproject_to
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
 from ..chain import grid_over
@@ -134,10 +134,13 @@ class SurfaceModel(StrikelineAlgorithm):
         opts = RunOptions(contacts=name.path, out="", model=model, seed=self.parameterAsInt(parameters, self.SEED, context),
                           **constraint_options(self, parameters, context))
         # Boreholes and dip measurements as strikeline run takes them (the library's checks and
-        # conversions), in the picks' CRS: the picks stand for the contacts, whose CRS is the
-        # working CRS when there is no DEM.
-        constraints = assemble_inputs(layer, opts, log=steps.log, names=option_names(self),
-                                      **read_layers(self, parameters, context, steps, CONSTRAINT_LAYERS))
+        # conversions), brought into the picks' CRS.
+        extra = read_layers(self, parameters, context, steps, CONSTRAINT_LAYERS)
+        names = option_names(self)
+        bh = reproject_to(extra.get("boreholes"), layer.srs, label="boreholes", log=steps.log)
+        ori = reproject_to(extra.get("orientations"), layer.srs, label="dip readings", log=steps.log)
+        boreholes_xyz = None if bh is None else borehole_points(bh, opts, names=names)
+        orientations = None if ori is None else orientation_rows(ori, opts, names=names)
         grid = self._grid(parameters, context, steps, source, xyz)
         steps.feedback.setProgress(10)
         # As strikeline run: cross-validation folds hold out contact segments (the picks'
@@ -148,8 +151,8 @@ class SurfaceModel(StrikelineAlgorithm):
         src = vals.get("source")
         src = np.array([v if v in SOURCES else "dem" for v in src], dtype="<U8") if src is not None \
             else np.full(len(xyz), "dem", dtype="<U8")
-        surf = model_surface(PickSet(xyz, cid, src), opts, grid, boreholes=constraints.boreholes_xyz,
-                             orientations=constraints.orientations,
+        surf = model_surface(PickSet(xyz, cid, src), opts, grid, boreholes=boreholes_xyz,
+                             orientations=orientations,
                              what=f"picks {name.what}", is_cancelled=steps.is_cancelled)
         steps.feedback.setProgress(60)
         s = surf.summary()

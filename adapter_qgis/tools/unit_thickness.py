@@ -123,7 +123,7 @@ class UnitThickness(StrikelineAlgorithm):
             dem, grid, _ = read_dem(self, parameters, self.DEM, context, steps)
             lyr = read_vector(source, name, geometry="line", is_cancelled=steps.is_cancelled, keep_z=dem is None)
             if dem is not None:
-                lyr = to_dem_crs(lyr, dem, grid, log=steps.log)
+                lyr = to_dem_crs(lyr, grid, label="measurement lines", log=steps.log)
             coords, owner = shapely.get_coordinates(lyr.geoms, include_z=dem is None, return_index=True)
             first = np.searchsorted(owner, np.arange(len(lyr.geoms)), side="left")
             last = np.searchsorted(owner, np.arange(len(lyr.geoms)), side="right") - 1

@@ -57,7 +57,7 @@ class VectorLayer:
         if name not in self.fields:
             have = ", ".join(self.fields) or "none"
             raise InputError(
-                f"{self.what} has no field '{name}' (fields: {have}); name the elevation field with {option}"
+                f"{self.what} has no field '{name}' (fields: {have}); name the right field with {option}"
             )
         if self.field_types[name] not in ("Integer", "Integer64", "Real"):
             raise InputError(
