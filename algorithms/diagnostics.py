@@ -299,8 +299,7 @@ def _words(code, m, k, n, relief, min_relief, dip_ci, max_ci):
                 f"M > {GOOD_MIN_COPLANARITY:g} and K < {GOOD_MAX_COLLINEARITY:g})")
     if code == "curved":
         return (f"the picks have a good spread ({shape}) but scatter about the plane by more than "
-                f"{MISFIT_SIGMAS:g} times their vertical error, so the surface is not planar: read "
-                "the local attitudes and the surface model rather than this one plane")
+                f"{MISFIT_SIGMAS:g} times their vertical error, so the surface is not planar")
     if code == "three_points":
         return ("three picks fit a plane exactly (the three-point solution), leaving no scatter to "
                 f"show how well it is determined ({shape})")
@@ -397,7 +396,13 @@ def assess_plane(data, *, relief_m=None, sigma_z_m=None, min_relief_m=DEFAULT_MI
     reason = _words(code[0], float(m[0]), float(k[0]), n, relief, min_relief,
                     np.nan if dip_ci95_deg is None else float(dip_ci95_deg),
                     max_good_dip_ci95_deg)
-    advice = "" if quality[0] == "good" else f"data that would help: {_ADVICE}"
+    if quality[0] == "good":
+        advice = ""
+    elif code[0] == "curved":
+        advice = ("a curved surface model (--model auto, trend2 or spline) and the local attitudes "
+                  "describe it better than one plane")
+    else:
+        advice = f"data that would help: {_ADVICE}"
     return PlaneQuality(
         quality=str(quality[0]), reason=reason, advice=advice, reason_code=str(code[0]),
         collinearity=float(k[0]), coplanarity=float(m[0]),

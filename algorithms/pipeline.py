@@ -408,7 +408,7 @@ def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples:
     if quality.quality == "undetermined":
         if strict:
             raise UndeterminedError(f"{what}: the attitude is undetermined - {quality.reason}; "
-                                    f"what would help: {quality.advice}")
+                                    f"{quality.advice}")
         return {"quality": "undetermined", "reason": quality.reason, "advice": quality.advice,
                 "n_picks": plane.n_points}
     gamma = meridian_convergence_deg(crs_wkt, plane.centroid[0], plane.centroid[1])
@@ -549,7 +549,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     plane_summary = attitude_of(picks.xyz, sigma, what=what, strict=True, **conf_opts)
     if plane_summary["quality"] == "weak":
         log(f"warning: the best-fit plane is weak - {plane_summary['reason']}; "
-            f"what would help: {plane_summary['advice']}")
+            f"{plane_summary['advice']}")
     groups = {}
     if opts.group_by:
         values = dict(zip(inputs.contacts.fids.tolist(), inputs.contacts.fields[opts.group_by].tolist()))

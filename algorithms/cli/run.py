@@ -97,7 +97,7 @@ def _pm(value, half):
 def describe_plane(pl: dict) -> str:
     """The plane in plain words; an undetermined plane gets no number."""
     if pl.get("quality") == "undetermined":
-        return f"undetermined - {pl['reason']}; what would help: {pl['advice']}"
+        return f"undetermined - {pl['reason']}; {pl['advice']}"
     return (f"dip {_pm(pl['dip'], pl.get('dip_ci95'))} deg toward {_pm(pl['dip_direction'], pl.get('dip_direction_ci95'))} "
             f"deg (grid north; {pl['dip_direction_true']:.2f} deg from true north), strike {pl['strike_rhr']:.1f} deg RHR, "
             f"RMS residual {pl['rms_m']:.2f} m, {pl['n_picks']} picks, quality {pl['quality']}")
@@ -109,8 +109,6 @@ def report(results, out, stream=sys.stdout) -> None:
     src = s["picks_by_source"]
     print(f"picks: {s['n_picks']} (dem {src['dem']}, contours {src['contours']})", file=stream)
     print(f"best-fit plane: {describe_plane(pl)} (95% half-widths)", file=stream)
-    if pl.get("quality") == "weak":
-        print(f"  weak because {pl['reason']}; what would help: {pl['advice']}", file=stream)
     for name, g in s.get("groups", {}).get("planes", {}).items():
         print(f"  group {name}: {describe_plane(g)}", file=stream)
     if "model" in s:
