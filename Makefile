@@ -49,6 +49,7 @@ $(STAMP): pyproject.toml | sysdeps
 bench: setup
 	$(VPY) bench/bench_picks.py
 	$(VPY) bench/bench_dipgrids.py
+	$(VPY) bench/bench_attitudes.py
 	$(VPY) bench/bench_surfaces.py
 	$(VPY) bench/bench_run.py
 

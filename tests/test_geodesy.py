@@ -35,3 +35,17 @@ def test_true_azimuth_and_vectorised():
     g = meridian_convergence_deg("EPSG:32631", np.array([400000.0, 600000.0]), np.array([5.2e6, 5.2e6]))
     assert g.shape == (2,) and g[0] < 0 < g[1]
     assert grid_to_true_azimuth(359.5, 1.0) == pytest.approx(0.5)
+
+
+# Source: worked value of the planning review, from pyproj and Karney, C. F. F. (2011),
+# "Transverse Mercator with an accuracy of a few nanometers", J. Geodesy 85, 475-485:
+# at 74 W 40.6 N in UTM zone 18N (EPSG:32618) the meridian convergence is 0.6508 deg.
+KARNEY_LON, KARNEY_LAT, KARNEY_GAMMA_DEG = -74.0, 40.6, 0.6508
+
+
+def test_worked_value_utm_18n():
+    x, y = pyproj.Transformer.from_crs("EPSG:4326", "EPSG:32618", always_xy=True).transform(KARNEY_LON, KARNEY_LAT)
+    gamma = meridian_convergence_deg("EPSG:32618", x, y)
+    assert gamma == pytest.approx(KARNEY_GAMMA_DEG, abs=5e-5)
+    # true azimuth = grid azimuth + convergence
+    assert grid_to_true_azimuth(90.0, gamma) == pytest.approx(90.0 + KARNEY_GAMMA_DEG, abs=5e-5)
