@@ -10,7 +10,8 @@ Run from the repository root::
 
 The surfaces and the terrain are analytic (sums of smooth functions), so every run gives the
 same grid values and the same line geometries. The only random numbers are the "reading errors"
-of the dip measurements, drawn from a generator with a fixed seed. The GeoPackages are written
+of the dip measurements and the digitising errors of ``contacts_mapped.gpkg``, drawn from
+generators with fixed seeds. The GeoPackages are written
 with a fixed timestamp (GDAL's ``OGR_CURRENT_DATE``) so that repeated runs give the same bytes.
 
 Outputs in ``demo/`` (Harnvel Moor, a planar unconformity)
@@ -26,6 +27,11 @@ Outputs in ``demo/`` (Harnvel Moor, a planar unconformity)
 ``contacts_grouped.gpkg``, layer ``contacts``
     The same features with one more text field, ``block``, naming the two pieces the lake
     splits the trace into (``north``, ``south``): input for ``--group-by block``.
+``contacts_mapped.gpkg``, layer ``contacts``
+    The same two features (fields as ``contacts_grouped.gpkg``) as a field geologist would
+    have digitised them (:func:`digitised_line`): vertices every 15-40 m, a smooth sideways
+    error of about 3 m (never 8 m), and on the north piece one stretch traced about 70 m off
+    the true line. Seeded, so every run gives the same lines.
 ``top_contacts.gpkg``, layer ``top_contacts``
     Outcrop trace of the top of the Harnvel Sandstone Formation: a plane parallel to the base,
     ``TRUE_THICKNESS_M`` above it (normal distance), made the same way as the base trace.
@@ -66,6 +72,7 @@ from pathlib import Path
 
 import numpy as np
 import shapely
+import shapely.ops
 from osgeo import gdal, ogr, osr
 
 gdal.UseExceptions()
@@ -169,6 +176,25 @@ READING_MAX_ERROR_DEG = 2.0  # spread + half a degree of rounding
 SITE_POSITION_M = 0.1  # site coordinates rounded to a decimetre (a hand-held GNSS would do worse)
 
 BLOCK_NAMES = ("north", "south")  # the two pieces of the base trace, in file order
+
+# A hand-digitised copy of the base trace, as a field geologist's mapped line would differ from
+# the exact one (contacts_mapped.gpkg); see :func:`digitised_line`.
+MAPPED_SEED = 5207
+MAPPED_SPACING_M = (15.0, 40.0)  # vertex spacing drawn uniformly in this range, coarser than the DEM
+MAPPED_SIGMA_M = 3.0  # standard deviation of the smooth sideways error
+MAPPED_MAX_OFFSET_M = 8.0  # soft limit of the sideways error (tanh), never reached exactly
+MAPPED_CORRELATION_M = 100.0  # e-folding length of the error's autocorrelation
+MAPPED_END_TAPER_M = 30.0  # the error fades out toward the ends, snapped to the sheet edge and shore
+MAPPED_NOISE_STEP_M = 5.0  # sampling step of the underlying Gaussian series
+# One digitising slip: on the north piece, where the trace leaves a valley floor and climbs east
+# across sloping ground (250-550 m from the west edge of the sheet, 2.5 km from the lake), a
+# stretch was traced on the wrong side of the valley, MISTRACE_OFFSET_M to the left of the line
+# (facing the way its vertices run, here east, so to the north), with half-cosine ramps in and out.
+MISTRACE_FEATURE = 0  # north
+MISTRACE_START_M = 1300.0  # along the exact trace, ramps included
+MISTRACE_END_M = 1630.0
+MISTRACE_RAMP_M = 75.0
+MISTRACE_OFFSET_M = 70.0
 
 
 def plane_elevation(x, y, *, offset_m=0.0):
@@ -485,6 +511,108 @@ def dip_readings(pieces):
     return out
 
 
+def smooth_gaussian_series(rng, length_m, *, step_m, correlation_m):
+    """A stationary Gaussian series of unit variance along ``[0, length_m]``.
+
+    White noise at ``step_m`` spacing is convolved with a Gaussian kernel of standard deviation
+    ``correlation_m / 2``; the result has the autocorrelation ``exp(-(d / correlation_m)**2)``,
+    so ``correlation_m`` is its e-folding length. It is rescaled to unit sample variance.
+    Returns the sample positions and values.
+    """
+    width = correlation_m / 2.0
+    half = int(math.ceil(4 * width / step_m))
+    n = int(math.ceil(length_m / step_m)) + 1
+    white = rng.standard_normal(n + 2 * half)
+    k = np.exp(-0.5 * (np.arange(-half, half + 1) * step_m / width) ** 2)
+    series = np.convolve(white, k / np.sqrt(np.sum(k**2)), mode="valid")
+    series = (series - series.mean()) / series.std()
+    return np.arange(n) * step_m, series
+
+
+def ramp_offset(s, *, start_m, end_m, ramp_m, offset_m):
+    """Sideways offset of a mistraced stretch: 0 outside ``[start_m, end_m]``, ``offset_m``
+    between the ramps, half-cosine ramps ``ramp_m`` long inside both ends."""
+    up = np.clip((s - start_m) / ramp_m, 0.0, 1.0)
+    down = np.clip((end_m - s) / ramp_m, 0.0, 1.0)
+    return offset_m * 0.5 * (1.0 - np.cos(np.pi * np.minimum(up, down)))
+
+
+def digitised_line(line, rng, *, mistrace=None):
+    """A hand-digitised copy of an exact trace.
+
+    1. Vertices at irregular spacings drawn uniformly from ``MAPPED_SPACING_M`` along the exact
+       trace; the first and last vertex are its ends.
+    2. Each vertex moved sideways (perpendicular to the trace, from the direction between points
+       10 m before and after it) by a smooth Gaussian series (:func:`smooth_gaussian_series`)
+       scaled to ``MAPPED_SIGMA_M`` and squashed by ``MAPPED_MAX_OFFSET_M * tanh(e / MAPPED_MAX_OFFSET_M)``
+       so that it never exceeds the limit; it fades out (half-cosine) over the last
+       ``MAPPED_END_TAPER_M`` at both ends, which stay on the sheet edge or the shore.
+    3. Optionally, ``mistrace`` (keywords of :func:`ramp_offset`) adds one stretch displaced
+       to the left of the line.
+
+    Returns the new line and the along-trace distance of each of its vertices.
+    """
+    length = line.length
+    lo, hi = MAPPED_SPACING_M
+    gaps = rng.uniform(lo, hi, size=int(math.ceil(length / lo)) + 1)
+    s = np.cumsum(gaps)
+    s = np.concatenate([[0.0], s[s < length - lo], [length]])
+    grid_s, series = smooth_gaussian_series(rng, length, step_m=MAPPED_NOISE_STEP_M,
+                                            correlation_m=MAPPED_CORRELATION_M)
+    error = MAPPED_MAX_OFFSET_M * np.tanh(MAPPED_SIGMA_M * np.interp(s, grid_s, series) / MAPPED_MAX_OFFSET_M)
+    taper = np.clip(np.minimum(s, length - s) / MAPPED_END_TAPER_M, 0.0, 1.0)
+    error = error * 0.5 * (1.0 - np.cos(np.pi * taper))
+    if mistrace is not None:
+        error = error + ramp_offset(s, **mistrace)
+    on = shapely.get_coordinates(shapely.line_interpolate_point(line, s))
+    ahead = shapely.get_coordinates(shapely.line_interpolate_point(line, np.minimum(s + 10.0, length)))
+    behind = shapely.get_coordinates(shapely.line_interpolate_point(line, np.maximum(s - 10.0, 0.0)))
+    tangent = ahead - behind
+    tangent /= np.hypot(tangent[:, 0], tangent[:, 1])[:, None]
+    left = np.column_stack([-tangent[:, 1], tangent[:, 0]])
+    out = shapely.LineString(on + error[:, None] * left)
+    if not out.is_simple:
+        raise RuntimeError("the digitised contact crosses itself; change MAPPED_SEED or the noise")
+    return out, s
+
+
+def mapped_contacts(pieces):
+    """Digitised copies of the base trace's pieces (north, south) and the record of the slip.
+
+    One generator (``MAPPED_SEED``) serves both pieces in file order; the north piece carries
+    the mistraced stretch.
+    """
+    rng = np.random.default_rng(MAPPED_SEED)
+    stretch = {"start_m": MISTRACE_START_M, "end_m": MISTRACE_END_M, "ramp_m": MISTRACE_RAMP_M,
+               "offset_m": MISTRACE_OFFSET_M}
+    out = []
+    for i, piece in enumerate(pieces):
+        line, s = digitised_line(piece, rng, mistrace=stretch if i == MISTRACE_FEATURE else None)
+        out.append(line)
+        if i == MISTRACE_FEATURE:
+            coords = shapely.get_coordinates(line)
+            inside = (s >= MISTRACE_START_M) & (s <= MISTRACE_END_M)
+            bad = shapely.LineString(coords[inside])
+            exact = shapely.ops.substring(piece, MISTRACE_START_M, MISTRACE_END_M)
+    record = {
+        "feature": BLOCK_NAMES[MISTRACE_FEATURE],
+        "feature_index": MISTRACE_FEATURE,
+        **stretch,
+        "side": "left",
+        "note": "along the exact trace of the feature (contacts.gpkg), in the direction its "
+                "vertices run: between start_m and end_m the digitised vertices are moved a "
+                "further offset_m * (1 - cos(pi * min(1, (s - start_m) / ramp_m, (end_m - s) / "
+                "ramp_m))) / 2 to the left, i.e. offset_m between the ramps; there the trace "
+                "leaves a valley floor and climbs east across a 9-18 degree slope, and the slip "
+                "puts it about 70 m north of the true line",
+        "plateau_m": [MISTRACE_START_M + MISTRACE_RAMP_M, MISTRACE_END_M - MISTRACE_RAMP_M],
+        "exact_wkt": shapely.to_wkt(exact, rounding_precision=2),
+        "mapped_wkt": shapely.to_wkt(bad, rounding_precision=2),
+        "mapped_bbox": [round(v, 2) for v in bad.bounds],
+    }
+    return out, record
+
+
 def build(out_dir: Path) -> dict:
     """Generate the Harnvel Moor sheet into ``out_dir``; return a small summary."""
     out_dir.mkdir(parents=True, exist_ok=True)
@@ -511,6 +639,10 @@ def build(out_dir: Path) -> dict:
     write_lines(out_dir / "contacts_grouped.gpkg", "contacts", srs,
                 contact_fields + [("block", ogr.OFTString)],
                 [(p, {**attrs, "block": b}) for p, b in zip(pieces, BLOCK_NAMES)])
+    mapped, mistrace = mapped_contacts(pieces)
+    write_lines(out_dir / "contacts_mapped.gpkg", "contacts", srs,
+                contact_fields + [("block", ogr.OFTString)],
+                [(p, {**attrs, "block": b}) for p, b in zip(mapped, BLOCK_NAMES)])
 
     top_pieces = trace_pieces(DEMO, dem64, valid, plane_elevation(x, y, offset_m=top_offset_m()), srs, on_land)
     top_attrs = {"name": NAMES["top_contact"], "unit": NAMES["overlying_unit"], "kind": "conformable"}
@@ -597,12 +729,35 @@ def build(out_dir: Path) -> dict:
             "blocks": list(BLOCK_NAMES),
             "note": "the features of contacts.gpkg in the same order, both on the one base plane",
         },
+        # --- added for a realistic demo: a hand-digitised copy of the base trace
+        "mapped_contacts": {
+            "file": "contacts_mapped.gpkg",
+            "layer": "contacts",
+            "field": "block",
+            "blocks": list(BLOCK_NAMES),
+            "exact_file": "contacts.gpkg",
+            "seed": MAPPED_SEED,
+            "resample_spacing_m": list(MAPPED_SPACING_M),
+            "positional_sigma_m": MAPPED_SIGMA_M,
+            "max_offset_m": MAPPED_MAX_OFFSET_M,
+            "correlation_length_m": MAPPED_CORRELATION_M,
+            "end_taper_m": MAPPED_END_TAPER_M,
+            "note": "the features of contacts.gpkg in the same order, as a field geologist's "
+                    "digitised line: vertices every 15-40 m (uniform, numpy default_rng, seed above) "
+                    "along the exact trace, each moved sideways by a smooth Gaussian series "
+                    "(autocorrelation exp(-(d / correlation_length_m)^2), standard deviation "
+                    "positional_sigma_m, squashed by max_offset_m * tanh(e / max_offset_m), faded "
+                    "out over end_taper_m at both ends, which stay on the exact ends); plus one "
+                    "digitising error",
+            "digitising_error": mistrace,
+        },
     }
     write_truth(out_dir / "truth.json", truth)
     return {
         "n_contacts": len(pieces),
         "n_contact_vertices": int(sum(len(p.coords) for p in pieces)),
         "contact_length_m": float(sum(p.length for p in pieces)),
+        "n_mapped_contact_vertices": int(sum(len(p.coords) for p in mapped)),
         "n_top_contacts": len(top_pieces),
         "top_contact_length_m": float(sum(p.length for p in top_pieces)),
         "n_topo_contours": len(topo),
