@@ -444,6 +444,199 @@ def test_grouped_contacts_are_the_contacts_with_a_block(contacts, truth):
 
 
 # ============================================================================================
+# contacts_mapped.gpkg: a hand-digitised copy of the base trace with one mistraced stretch
+# ============================================================================================
+MAPPED_FIELDS = {**CONTACT_FIELDS, "block": "String"}
+# What the copy is meant to be, from the task statement (a field geologist's digitised line):
+SPACING_RANGE_M = (15.0, 40.0)  # "irregular spacing of roughly 15-40 m"
+SIGMA_RANGE_M = (2.0, 4.0)  # "standard deviation of about 3 m": the RMS offset lies in 2-4 m
+MAX_OFFSET_CAP_M = 8.0  # "never more than ~8 m"
+STRETCH_LENGTH_RANGE_M = (250.0, 350.0)  # "a stretch of about 250-350 m"
+STRETCH_OFFSET_RANGE_M = (60.0, 80.0)  # "displaced by ~60-80 m"
+STRETCH_OFFSET_TOL_M = 4.0  # "within a few metres of the recorded offset"
+MIN_PLATEAU_VERTICES = 3
+MIN_NEIGHBOUR_CORRELATION = 0.7  # a smooth error: exp(-(27/100)^2) = 0.93 at the mean spacing
+STRETCH_EDGE_CLEARANCE_M = 200.0  # "not on the sheet edge"
+STRETCH_LAKE_CLEARANCE_M = 1000.0  # "not near the lake"
+WKT_ROUNDING_M = 0.01  # truth.json rounds the recorded coordinates to centimetres
+
+
+@pytest.fixture(scope="module")
+def mapped():
+    return read_lines(DEMO / "contacts_mapped.gpkg", "contacts")
+
+
+def signed_offsets(line, exact):
+    """Distance of each vertex of ``line`` from the line ``exact``, positive to its left, and
+    the along-``exact`` position of its nearest point.
+
+    Source: shapely 2 (GEOS) ``distance`` and ``line_locate_point`` give the distance and the
+    foot point; the side is the sign of the 2-D cross product of the direction of ``exact``
+    there with the vector from the foot to the vertex (vector geometry).
+    """
+    pts = shapely.points(shapely.get_coordinates(line))
+    along = shapely.line_locate_point(exact, pts)
+    distance = shapely.distance(pts, exact)
+    foot = shapely.get_coordinates(shapely.line_interpolate_point(exact, along))
+    ahead = shapely.get_coordinates(shapely.line_interpolate_point(exact, np.minimum(along + 1.0, exact.length)))
+    behind = shapely.get_coordinates(shapely.line_interpolate_point(exact, np.maximum(along - 1.0, 0.0)))
+    t = ahead - behind
+    v = shapely.get_coordinates(line) - foot
+    side = np.sign(t[:, 0] * v[:, 1] - t[:, 1] * v[:, 0])
+    return np.where(side < 0, -distance, distance), along
+
+
+def error_masks(truth, along, index):
+    """Vertices of feature ``index`` inside the recorded mistraced stretch, and inside its
+    plateau (between the ramps); all False on the other features."""
+    err = truth["mapped_contacts"]["digitising_error"]
+    if index != err["feature_index"]:
+        return np.zeros(len(along), bool), np.zeros(len(along), bool)
+    lo, hi = err["plateau_m"]
+    return (along >= err["start_m"]) & (along <= err["end_m"]), (along >= lo) & (along <= hi)
+
+
+def test_mapped_contacts_schema_and_order(mapped, contacts, truth):
+    _, geom_type, fields, records = mapped
+    rec = truth["mapped_contacts"]
+    assert ogr.GT_Flatten(geom_type) == ogr.wkbLineString
+    assert fields == MAPPED_FIELDS
+    assert (rec["file"], rec["layer"], rec["field"]) == ("contacts_mapped.gpkg", "contacts", "block")
+    grouped = read_lines(DEMO / "contacts_grouped.gpkg", "contacts")[3]
+    assert len(records) == len(contacts[3]) == len(grouped) == 2
+    # same features in the same order as contacts_grouped.gpkg: attributes and blocks
+    assert [a for a, _ in records] == [a for a, _ in grouped]
+    assert [a["block"] for a, _ in records] == rec["blocks"] == truth["grouped_contacts"]["blocks"]
+    for (_, g), (_, exact) in zip(records, contacts[3]):
+        assert g.geom_type == "LineString" and g.is_valid and g.is_simple
+        # each copy follows its own exact piece: same ends, similar length
+        np.testing.assert_allclose(shapely.get_coordinates(g)[[0, -1]], shapely.get_coordinates(exact)[[0, -1]],
+                                   rtol=0, atol=ROUNDTRIP_TOL_M)
+        assert 0.9 < g.length / exact.length < 1.1
+
+
+def test_mapped_contacts_lie_on_land_inside_the_dem(mapped, dem, truth):
+    for _, g in mapped[3]:
+        xy = shapely.get_coordinates(shapely.segmentize(g, 1.0))
+        ground = sample_bilinear(dem, xy)  # Source: scipy.ndimage.map_coordinates (bilinear)
+        assert np.all(np.isfinite(ground)), "digitised contact off the DEM or next to nodata"
+        # the ends are the exact trace's, one of them on the shore (at lake level); in between,
+        # the bilinear DEM at lake level means a point on the flat lake floor
+        assert np.all(ground[1:-1] != np.float32(truth["lake_level_m"])), "digitised contact on the lake"
+
+
+def test_mapped_vertices_are_coarser_and_irregular(mapped, contacts, dem):
+    cell_m = dem["gt"][1]
+    for (_, g), (_, exact) in zip(mapped[3], contacts[3]):
+        gaps = np.hypot(*np.diff(shapely.get_coordinates(g), axis=0).T)
+        lo, hi = SPACING_RANGE_M
+        assert lo <= np.median(gaps) <= hi
+        # sideways errors of a few metres change a 15-40 m step by little
+        assert np.mean((gaps > lo - 5.0) & (gaps < hi + 5.0)) > 0.95
+        assert np.std(gaps) > 3.0, "the spacing is regular, not hand-digitised"
+        # Source: the DEM's own cell size (geotransform); the exact trace has a vertex per cell edge
+        assert np.median(gaps) > cell_m * 1.5
+        assert len(g.coords) < len(exact.coords) / 2
+
+
+def test_mapped_offsets_outside_the_mistrace(mapped, contacts, truth):
+    """Outside the mistraced stretch every vertex lies within max_offset_m of the exact trace.
+
+    Source: the exact trace is contacts.gpkg, generated from the analytic plane (its vertices
+    lie on the plane and the DEM, test_contact_vertices_lie_on_plane_and_dem).
+    """
+    rec = truth["mapped_contacts"]
+    assert rec["max_offset_m"] <= MAX_OFFSET_CAP_M
+    assert SIGMA_RANGE_M[0] <= rec["positional_sigma_m"] <= SIGMA_RANGE_M[1]
+    kept = []
+    for i, ((_, g), (_, exact)) in enumerate(zip(mapped[3], contacts[3])):
+        offset, along = signed_offsets(g, exact)
+        stretch, _ = error_masks(truth, along, i)
+        outside = offset[~stretch]
+        assert np.max(np.abs(outside)) <= rec["max_offset_m"]
+        # a smooth error, not jitter: neighbouring vertices are displaced alike
+        # Source: numpy.corrcoef (Pearson correlation of consecutive offsets)
+        assert np.corrcoef(outside[:-1], outside[1:])[0, 1] > MIN_NEIGHBOUR_CORRELATION
+        # the copy is displaced to both sides, not shifted bodily
+        assert np.mean(outside > 0) > 0.2 and np.mean(outside < 0) > 0.2
+        kept.append(outside)
+    rms = float(np.sqrt(np.mean(np.concatenate(kept) ** 2)))
+    assert SIGMA_RANGE_M[0] <= rms <= SIGMA_RANGE_M[1]
+
+
+def test_mapped_mistrace_is_offset_as_recorded(mapped, contacts, truth):
+    err = truth["mapped_contacts"]["digitising_error"]
+    i = err["feature_index"]
+    assert err["feature"] == truth["mapped_contacts"]["blocks"][i] == "north"
+    exact = contacts[3][i][1]
+    assert exact.length == max(g.length for _, g in contacts[3])  # the longer feature
+    assert STRETCH_LENGTH_RANGE_M[0] <= err["end_m"] - err["start_m"] <= STRETCH_LENGTH_RANGE_M[1]
+    assert STRETCH_OFFSET_RANGE_M[0] <= err["offset_m"] <= STRETCH_OFFSET_RANGE_M[1]
+    assert err["start_m"] < err["plateau_m"][0] < err["plateau_m"][1] < err["end_m"]
+    line = mapped[3][i][1]
+    offset, along = signed_offsets(line, exact)
+    stretch, plateau = error_masks(truth, along, i)
+    assert plateau.sum() >= MIN_PLATEAU_VERTICES
+    sign = 1.0 if err["side"] == "left" else -1.0
+    np.testing.assert_allclose(sign * offset[plateau], err["offset_m"], rtol=0, atol=STRETCH_OFFSET_TOL_M)
+    # the ramps: no vertex of the stretch lies farther out than the plateau allows
+    assert np.all(sign * offset[stretch] <= err["offset_m"] + STRETCH_OFFSET_TOL_M)
+    assert np.all(sign * offset[stretch] >= -truth["mapped_contacts"]["max_offset_m"])
+    # the recorded stretch is the file's: same vertices, inside the recorded box
+    recorded = shapely.from_wkt(err["mapped_wkt"])
+    np.testing.assert_allclose(shapely.get_coordinates(recorded), shapely.get_coordinates(line)[stretch],
+                               rtol=0, atol=WKT_ROUNDING_M)
+    box = shapely.box(*err["mapped_bbox"]).buffer(WKT_ROUNDING_M)
+    assert shapely.contains_xy(box, *shapely.get_coordinates(line)[stretch].T).all()
+    exact_stretch = shapely.from_wkt(err["exact_wkt"])
+    assert exact_stretch.length == pytest.approx(err["end_m"] - err["start_m"], abs=0.1)
+    assert shapely.get_coordinates(exact_stretch)[0] == pytest.approx(
+        shapely.get_coordinates(exact.interpolate(err["start_m"]))[0], abs=WKT_ROUNDING_M)
+
+
+def test_mapped_mistrace_is_away_from_sheet_edge_and_lake(dem, truth):
+    err = truth["mapped_contacts"]["digitising_error"]
+    stretch = shapely.union_all([shapely.from_wkt(err["exact_wkt"]), shapely.from_wkt(err["mapped_wkt"])])
+    x0, dx, _, y0, _, dy = dem["gt"]
+    rows, cols = dem["array"].shape
+    sheet = shapely.box(x0, y0 + rows * dy, x0 + cols * dx, y0)
+    assert sheet.exterior.distance(stretch) > STRETCH_EDGE_CLEARANCE_M
+    r, c = np.nonzero(dem["array"] == np.float32(truth["lake_level_m"]))
+    lake = shapely.multipoints(np.column_stack([x0 + (c + 0.5) * dx, y0 + (r + 0.5) * dy]))
+    assert lake.distance(stretch) > STRETCH_LAKE_CLEARANCE_M
+
+
+def test_mapped_mistrace_crosses_sloping_ground(dem, truth):
+    """The slip lies on sloping ground, where it puts the line off the plane by many metres."""
+    err = truth["mapped_contacts"]["digitising_error"]
+    z = dem["array"].astype(np.float64)
+    z[z == dem["nodata"]] = np.nan
+    # Source: numpy.gradient, central differences of the DEM (cell size from the geotransform)
+    gy, gx = np.gradient(z, dem["gt"][5], dem["gt"][1])
+    xy = shapely.get_coordinates(shapely.segmentize(shapely.from_wkt(err["exact_wkt"]), 10.0))
+    x0, dx, _, y0, _, dy = dem["gt"]
+    col = np.floor((xy[:, 0] - x0) / dx).astype(int)
+    row = np.floor((xy[:, 1] - y0) / dy).astype(int)
+    slope_deg = np.degrees(np.arctan(np.hypot(gx[row, col], gy[row, col])))
+    assert np.median(slope_deg) > 8.0  # common practice: > ~5 degrees is sloping, not flat, ground
+    mapped_xy = shapely.get_coordinates(shapely.from_wkt(err["mapped_wkt"]))
+    ground = sample_bilinear(dem, mapped_xy)
+    miss = ground - plane_elevation(truth, mapped_xy[:, 0], mapped_xy[:, 1])
+    assert np.max(np.abs(miss)) > 10.0  # the slip shows in the elevations, not only in plan
+
+
+def test_mapped_generator_is_deterministic(tmp_path, mapped, truth):
+    subprocess.run([sys.executable, str(GENERATOR), "--only", "demo", "--out", str(tmp_path)], check=True,
+                   capture_output=True, timeout=120)
+    assert json.loads((tmp_path / "truth.json").read_text())["mapped_contacts"] == truth["mapped_contacts"]
+    fresh = read_lines(tmp_path / "contacts_mapped.gpkg", "contacts")
+    assert fresh[2] == mapped[2] and len(fresh[3]) == len(mapped[3])
+    for (a1, g1), (a2, g2) in zip(fresh[3], mapped[3]):
+        assert a1 == a2
+        assert shapely.equals_exact(g1, g2, tolerance=ROUNDTRIP_TOL_M)
+
+
+# ============================================================================================
 # Tolvane Fell: the fold sheet (issue 4)
 # ============================================================================================
 FOLD_DIR = REPO / "test_data" / "fold"
