@@ -603,7 +603,7 @@ def mapped_contacts(pieces):
                 "vertices run: between start_m and end_m the digitised vertices are moved a "
                 "further offset_m * (1 - cos(pi * min(1, (s - start_m) / ramp_m, (end_m - s) / "
                 "ramp_m))) / 2 to the left, i.e. offset_m between the ramps; there the trace "
-                "leaves a valley floor and climbs east across a 9-18 degree slope, and the slip "
+                "leaves a valley floor and climbs east across ground sloping 9-19 degrees, and the slip "
                 "puts it about 70 m north of the true line",
         "plateau_m": [MISTRACE_START_M + MISTRACE_RAMP_M, MISTRACE_END_M - MISTRACE_RAMP_M],
         "exact_wkt": shapely.to_wkt(exact, rounding_precision=2),
