@@ -383,11 +383,12 @@ def pick_sigmas(inputs: Inputs, picks: PickSet, opts: RunOptions) -> np.ndarray:
 
 
 def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples: int = 1000,
-                seed: int = 0, is_cancelled=None) -> dict:
+                seed: int = 0, blocks=None, is_cancelled=None) -> dict:
     """Plane, 95% confidence, quality and true-north azimuth of one pick set, as a summary dict.
 
     With ``strict`` an undetermined pick set is an error (the sheet-wide plane); otherwise it is
-    reported with ``quality: undetermined`` and no attitude (a group or window).
+    reported with ``quality: undetermined`` and no attitude (a group or window). ``blocks``
+    (one label per pick, e.g. contact segments) makes the bootstrap resample whole blocks.
     """
     xyz = np.asarray(xyz, dtype=float)
     try:
@@ -401,7 +402,7 @@ def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples:
     conf: PlaneConfidence | None = None
     if len(xyz) >= 4:
         conf = plane_confidence(xyz, sigma_z_m=sigma, n_resamples=resamples, n_draws=resamples,
-                                seed=seed, is_cancelled=is_cancelled)
+                                seed=seed, groups=blocks, is_cancelled=is_cancelled)
     typical_sigma = float(np.median(sigma)) if sigma is not None and len(sigma) else None
     quality: PlaneQuality = assess_plane(xyz, sigma_z_m=typical_sigma,
                                          dip_ci95_deg=None if conf is None else conf.dip_ci95_deg)
@@ -450,13 +451,29 @@ def surface_grid(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet) -> Grid
     return Grid.from_bounds(xmin, ymin, xmax, ymax, cell_m=cell, crs_wkt=inputs.crs_wkt)
 
 
+def contact_segments(picks: PickSet, *, cell_m: float) -> np.ndarray:
+    """Label of the contact segment of every pick: the part of one contact inside one square
+    block of 1/8 of the picks' span (at least 10 cells). Used for cross-validation folds and for
+    the block bootstrap, so that neighbouring picks, which share their errors, stay together."""
+    return segment_labels(picks.xyz, picks.contact_id, cell_m=cell_m)
+
+
+def segment_labels(xyz, contact_id, *, cell_m: float = 1.0) -> np.ndarray:
+    """:func:`contact_segments` for bare arrays: ``xyz`` (n, 3) and a contact id per point
+    (non-finite ids count as one contact of their own)."""
+    xyz = np.asarray(xyz, dtype=float)
+    cid = np.asarray(contact_id, dtype=float)
+    cid = np.where(np.isfinite(cid), cid, -1).astype(np.int64)
+    span = float(np.max(np.ptp(xyz[:, :2], axis=0))) if len(xyz) else 0.0
+    block_m = max(span / 8.0, 10.0 * cell_m, 1.0)
+    return segment_groups(xyz[:, 0], xyz[:, 1], cid, block_m=block_m)
+
+
 def model_surface(picks: PickSet, opts: RunOptions, grid: Grid, *, boreholes=None, orientations=None,
                   what: str, is_cancelled=None) -> SurfaceModel:
     """Fit the ``--model`` surface to picks (and constraints), folds by contact segment."""
     xyz = picks.xyz
-    span = float(np.max(np.ptp(xyz[:, :2], axis=0))) if len(xyz) else 0.0
-    block_m = max(span / 8.0, 10.0 * grid.cell_x_m, 1.0)
-    groups = segment_groups(xyz[:, 0], xyz[:, 1], picks.contact_id, block_m=block_m)
+    groups = contact_segments(picks, cell_m=grid.cell_x_m)
     bh = None
     if boreholes is not None:
         bh = np.column_stack([boreholes, np.full(len(boreholes), opts.borehole_sigma_m)])
@@ -546,7 +563,9 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     sigma = pick_sigmas(inputs, picks, opts)
     conf_opts = {"crs_wkt": inputs.crs_wkt, "resamples": opts.resamples, "seed": opts.seed,
                  "is_cancelled": is_cancelled}
-    plane_summary = attitude_of(picks.xyz, sigma, what=what, strict=True, **conf_opts)
+    grid = surface_grid(inputs, opts, log=log)
+    blocks = contact_segments(picks, cell_m=grid.cell_x_m)
+    plane_summary = attitude_of(picks.xyz, sigma, what=what, strict=True, blocks=blocks, **conf_opts)
     if plane_summary["quality"] == "weak":
         log(f"warning: the best-fit plane is weak - {plane_summary['reason']}; "
             f"{plane_summary['advice']}")
@@ -556,12 +575,12 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
         labels = np.array([str(values.get(int(c))) for c in picks.contact_id], dtype=object)
         for g in sorted(set(labels.tolist())):
             m = labels == g
-            groups[g] = attitude_of(picks.xyz[m], sigma[m], what=f"group {g}", strict=False, **conf_opts)
+            groups[g] = attitude_of(picks.xyz[m], sigma[m], what=f"group {g}", strict=False, blocks=blocks[m],
+                                    **conf_opts)
     step(2)
     attitudes = local_attitudes(picks.xyz, window_m=opts.window_m, contact_id=picks.contact_id,
                                 sigma_z_m=sigma, seed=opts.seed, is_cancelled=is_cancelled)
     step(3)
-    grid = surface_grid(inputs, opts, log=log)
     model = model_surface(picks, opts, grid, boreholes=inputs.boreholes_xyz, orientations=inputs.orientations,
                           what=what, is_cancelled=is_cancelled)
     surface = model.evaluate_grid(grid, is_cancelled=is_cancelled)

@@ -75,6 +75,9 @@ _CHUNK_ELEMENTS = 1 << 22
 MIN_BOOTSTRAP_POINTS = 4
 #: Fewest resamples or draws from which a 95th percentile is taken.
 MIN_REPLICATES = 20
+#: Fewest blocks for a block bootstrap; with fewer, single picks are resampled (our choice:
+#: a resample of fewer blocks has too few distinct outcomes for a 95% percentile).
+MIN_BOOTSTRAP_BLOCKS = 8
 
 PICK_SOURCES = ("dem", "contours")
 
@@ -329,9 +332,9 @@ def _check_seed(seed):
     return int(seed)
 
 
-def bootstrap_plane(points, *, n_resamples=1000, seed=0, progress=None,
+def bootstrap_plane(points, *, n_resamples=1000, seed=0, groups=None, progress=None,
                     is_cancelled=None) -> PlaneConfidence:
-    """95% confidence of the best-fit plane by bootstrap resampling of the picks.
+    """95% confidence of the best-fit plane by bootstrap resampling of the picks (or of blocks).
 
     Parameters
     ----------
@@ -341,6 +344,10 @@ def bootstrap_plane(points, *, n_resamples=1000, seed=0, progress=None,
         Number of bootstrap resamples (at least 20), default 1000.
     seed : int, optional
         Seed of ``numpy.random.default_rng``; equal seeds give identical results.
+    groups : array_like of int, shape ``(n,)``, optional
+        Block label of every pick (e.g. contact segments). With at least
+        ``MIN_BOOTSTRAP_BLOCKS`` blocks, whole blocks are resampled (a block bootstrap) instead
+        of single picks; with fewer, single picks are resampled.
     progress : callable, optional
         ``progress(fraction)`` called between chunks of resamples.
     is_cancelled : callable, optional
@@ -350,7 +357,7 @@ def bootstrap_plane(points, *, n_resamples=1000, seed=0, progress=None,
     Returns
     -------
     PlaneConfidence
-        With ``method == "bootstrap"``.
+        With ``method == "bootstrap"`` (single picks) or ``"block_bootstrap"``.
 
     Raises
     ------
@@ -368,10 +375,22 @@ def bootstrap_plane(points, *, n_resamples=1000, seed=0, progress=None,
     percentile half-widths about the full-data estimate (see the module notes). Below about
     ten picks the bootstrap understates the spread; prefer the shape diagnostics then.
 
+    Picks along a mapped contact are not independent: a digitising or DEM error runs along the
+    line for tens to hundreds of metres, so resampling single picks treats one error as many
+    and gives intervals that are too narrow. With ``groups``, each resample draws as many blocks
+    as there are, with replacement, and takes every pick of a drawn block (the block bootstrap
+    for dependent data, Künsch 1989; Lahiri 2003); the counts matrix is then built per block
+    and spread to its picks, and the moments are weighted by each resample's own pick count.
+
     References
     ----------
     Efron, B. & Tibshirani, R. J. (1993). *An Introduction to the Bootstrap*. Chapman & Hall,
     New York. https://doi.org/10.1007/978-1-4899-4541-9
+
+    Künsch, H. R. (1989). The jackknife and the bootstrap for general stationary observations.
+    *The Annals of Statistics*, 17(3), 1217–1241. https://doi.org/10.1214/aos/1176347265
+
+    Lahiri, S. N. (2003). *Resampling Methods for Dependent Data*. Springer, New York.
 
     Fernández, O. (2005). Obtaining a best fitting plane through 3D georeferenced data.
     *Journal of Structural Geology*, 27(5), 855–858. https://doi.org/10.1016/j.jsg.2004.12.004
@@ -398,10 +417,52 @@ def bootstrap_plane(points, *, n_resamples=1000, seed=0, progress=None,
         )
     q = p - fit.centroid
     rng = np.random.default_rng(seed)
-    normals = _bootstrap_normals(q, [len(q)], n_resamples, rng, progress, is_cancelled)
+    method = "bootstrap"
+    block = None
+    if groups is not None:
+        g = np.asarray(groups).reshape(-1)
+        if len(g) != len(keep):
+            raise InputError(f"groups has {len(g)} labels for {len(keep)} picks; give one label per pick")
+        _, block = np.unique(g[keep], return_inverse=True)
+        if block.max() + 1 < MIN_BOOTSTRAP_BLOCKS:
+            block = None
+    if block is None:
+        normals = _bootstrap_normals(q, [len(q)], n_resamples, rng, progress, is_cancelled)
+    else:
+        method = "block_bootstrap"
+        normals = _block_bootstrap_normals(q, block, n_resamples, rng, progress, is_cancelled)
     dip_ci, dd_ci, cone = _replicate_half_widths(fit.normal[None], normals)
     return PlaneConfidence(float(dip_ci[0]), float(dd_ci[0]), float(cone[0]), n_resamples,
-                           "bootstrap", fit.dip_deg, fit.dip_direction_deg, fit.n_points)
+                           method, fit.dip_deg, fit.dip_direction_deg, fit.n_points)
+
+
+def _block_bootstrap_normals(q, block, n_resamples, rng, progress=None, is_cancelled=None):
+    """Normals of block-bootstrap resamples of one pick set -> (B, 1, 3).
+
+    Per block the first and second moments of its centred picks are summed once; a resample
+    draws ``G`` block indices with replacement, so its moments are the counts (B, G) times the
+    per-block sums, and its scatter matrix ``S2 − S1 S1ᵀ / n_b`` uses its own pick count.
+    """
+    n_blocks = int(block.max()) + 1
+    feats = np.concatenate([np.ones((len(q), 1)), q, (q[:, :, None] * q[:, None, :]).reshape(len(q), 9)],
+                           axis=1)
+    per_block = np.zeros((n_blocks, feats.shape[1]))
+    np.add.at(per_block, block, feats)
+    out = np.empty((n_resamples, 1, 3))
+    chunk = max(1, _CHUNK_ELEMENTS // max(n_blocks, 1))
+    for b0 in range(0, n_resamples, chunk):
+        _check_callbacks(progress, is_cancelled, b0 / n_resamples)
+        b = min(chunk, n_resamples - b0)
+        drawn = rng.integers(0, n_blocks, (b, n_blocks)) + n_blocks * np.arange(b)[:, None]
+        counts = np.bincount(drawn.ravel(), minlength=b * n_blocks).reshape(b, n_blocks).astype(float)
+        m = counts @ per_block
+        n_b = m[:, 0]
+        s1 = m[:, 1:4]
+        s2 = m[:, 4:].reshape(b, 3, 3)
+        scatter = s2 - s1[:, :, None] * s1[:, None, :] / n_b[:, None, None]
+        out[b0:b0 + b, 0] = _smallest_eigvec(scatter)
+    _check_callbacks(progress, is_cancelled, 1.0)
+    return out
 
 
 def analytic_plane_covariance(points, *, sigma_m=None):
@@ -643,7 +704,7 @@ def combine_confidence(*parts: PlaneConfidence) -> PlaneConfidence:
 
 
 def plane_confidence(points, *, sigma_z_m=None, n_resamples=1000, n_draws=1000, seed=0,
-                     progress=None, is_cancelled=None) -> PlaneConfidence:
+                     groups=None, progress=None, is_cancelled=None) -> PlaneConfidence:
     """Reported 95% confidence of a best-fit plane: bootstrap, plus data error when stated.
 
     Parameters
@@ -653,6 +714,8 @@ def plane_confidence(points, *, sigma_z_m=None, n_resamples=1000, n_draws=1000, 
     sigma_z_m : float or array_like, optional
         Vertical standard error of the picks (see :func:`monte_carlo_plane`). ``None`` or all
         zeros: bootstrap only.
+    groups : array_like of int, shape ``(n,)``, optional
+        Block labels for a block bootstrap (see :func:`bootstrap_plane`).
     n_resamples, n_draws : int, optional
         Bootstrap resamples and Monte Carlo draws.
     seed : int, optional
@@ -677,7 +740,7 @@ def plane_confidence(points, *, sigma_z_m=None, n_resamples=1000, n_draws=1000, 
             return None
         return lambda f: progress(lo + (hi - lo) * f)
 
-    boot = bootstrap_plane(points, n_resamples=n_resamples, seed=seed,
+    boot = bootstrap_plane(points, n_resamples=n_resamples, seed=seed, groups=groups,
                            progress=part(0.0, 0.5 if with_mc else 1.0), is_cancelled=is_cancelled)
     if not with_mc:
         return boot

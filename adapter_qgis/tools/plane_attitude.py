@@ -14,7 +14,7 @@ from qgis.core import (
     QgsWkbTypes,
 )
 
-from strikeline.pipeline import attitude_of
+from strikeline.pipeline import attitude_of, segment_labels
 from strikeline.uncertainty import MIN_REPLICATES
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
@@ -140,7 +140,9 @@ class PlaneAttitude(StrikelineAlgorithm):
 
     def process(self, parameters, context, steps):
         group_by = self.parameterAsString(parameters, self.GROUP_BY, context)
-        xyz, source, _, name, extra = read_picks(self, parameters, context, steps,
+        picks_src = self.parameterAsSource(parameters, PICKS, context)
+        numeric = ("contact_id",) if "contact_id" in picks_src.fields().names() else ()
+        xyz, source, _, name, extra = read_picks(self, parameters, context, steps, fields=numeric,
                                                  text_fields=(group_by,) if group_by else ())
         ok = np.isfinite(xyz).all(axis=1)
         if (~ok).any():
@@ -152,11 +154,14 @@ class PlaneAttitude(StrikelineAlgorithm):
         seed = self.parameterAsInt(parameters, self.SEED, context)
         crs_wkt = crs_to_srs(source.sourceCrs()).ExportToWkt()
         sigma_all = np.full(len(xyz), sigma) if sigma > 0 else None
+        # picks with a contact_id are bootstrapped by contact segment, as strikeline run does
+        blocks = segment_labels(xyz, extra["contact_id"][ok]) if "contact_id" in extra else None
 
         def plane_of(mask, what):
             s = None if sigma_all is None else sigma_all[mask]
             att = attitude_of(xyz[mask], s, crs_wkt=crs_wkt, what=what, strict=False, resamples=resamples,
-                              seed=seed, is_cancelled=steps.is_cancelled)
+                              seed=seed, blocks=None if blocks is None else blocks[mask],
+                              is_cancelled=steps.is_cancelled)
             where = att.get("centroid") or (xyz[mask].mean(axis=0).tolist() if mask.any() else [np.nan] * 3)
             return att, where
 

@@ -93,7 +93,8 @@ def _check_out(out: str | None, overwrite: bool, points: str) -> None:
 
 
 def load_points(args):
-    """Read the points and their elevations -> (layer, xyz, labels or None, elevation source)."""
+    """Read the points and their elevations -> (layer, xyz, labels or None, elevation source,
+    contact id per point or None)."""
     import numpy as np
     import shapely
 
@@ -130,7 +131,10 @@ def load_points(args):
         # str() of the value, as strikeline run labels its groups
         labels = np.array([str(v) for v in layer.fields[args.group_by][index]], dtype=object)
     xyz = np.column_stack([xy, z])
-    return layer, xyz, labels, source
+    cid = None
+    if layer.field_types.get("contact_id") in ("Integer", "Integer64", "Real"):
+        cid = layer.numeric_field("contact_id", option="--points")[index]
+    return layer, xyz, labels, source, cid
 
 
 # --------------------------------------------------------------------------- computing
@@ -141,9 +145,9 @@ def compute(args, *, log=lambda m: print(m, file=sys.stderr)) -> dict:
     from strikeline import __version__
     from strikeline.io.crs import crs_label
     from strikeline.io.files import file_sha256, json_ready
-    from strikeline.pipeline import attitude_of
+    from strikeline.pipeline import attitude_of, segment_labels
 
-    layer, xyz, labels, source = load_points(args)
+    layer, xyz, labels, source, cid = load_points(args)
     usable = np.all(np.isfinite(xyz), axis=1)
     n_missing = int((~usable).sum())
     if n_missing:
@@ -154,10 +158,15 @@ def compute(args, *, log=lambda m: print(m, file=sys.stderr)) -> dict:
     crs_wkt = layer.srs.ExportToWkt()
     sigma_all = None if args.dem_sigma_m == 0 else np.full(len(xyz), args.dem_sigma_m)
 
+    # Points with a contact_id (the picks of strikeline run) are bootstrapped by contact segment,
+    # as run does, because neighbouring picks along a contact share their errors.
+    blocks = None if cid is None else segment_labels(xyz, cid[usable])
+
     def plane_of(mask, what):
         sigma = None if sigma_all is None else sigma_all[mask]
         return attitude_of(xyz[mask], sigma, crs_wkt=crs_wkt, what=what, strict=False,
-                           resamples=args.resamples, seed=args.seed)
+                           resamples=args.resamples, seed=args.seed,
+                           blocks=None if blocks is None else blocks[mask])
 
     result = {
         "version": __version__,

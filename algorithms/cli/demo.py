@@ -32,7 +32,7 @@ def demo_options(out, *, overwrite=False):
     if not (d / "dem.tif").exists():
         raise InputError(f"demo sheet not found in '{d}'; run strikeline demo from a source checkout "
                          "(or regenerate it with test_data/make_demo_sheet.py)")
-    return RunOptions(contacts=str(d / "contacts_grouped.gpkg"), group_by="block", dem=str(d / "dem.tif"),
+    return RunOptions(contacts=str(d / "contacts_mapped.gpkg"), group_by="block", dem=str(d / "dem.tif"),
                       contours=str(d / "contours.gpkg"), elev_field="elev_m",
                       top_contacts=str(d / "top_contacts.gpkg"),
                       boreholes=str(d / "boreholes.gpkg"), borehole_collar_field="collar_m",

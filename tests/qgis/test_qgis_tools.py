@@ -203,15 +203,18 @@ def test_plane_attitude_is_the_library_fit(run, sheet, reference, kind, tmp_path
 
 
 def test_plane_confidence_and_quality_are_the_library_ones(run, sheet, reference):
-    from strikeline.pipeline import attitude_of
+    from strikeline.pipeline import attitude_of, segment_labels
 
     picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "PICKS": TMP})["PICKS"]
     res = run("planeattitude", {"PICKS": picks, "RESAMPLES": 200, "SIGMA_Z": 0.5, "SEED": 3, "ATTITUDE": TMP})
     geoms, cols = table(picks)
     xyz = shapely.get_coordinates(geoms, include_z=True)
-    # The library's call behind `strikeline attitude --dem-sigma 0.5 --resamples 200 --seed 3`.
+    # The library's call behind `strikeline attitude --dem-sigma 0.5 --resamples 200 --seed 3`:
+    # the picks carry contact_id, so the bootstrap resamples contact segments.
+    blocks = segment_labels(xyz, np.asarray(cols["contact_id"], dtype=float))
     att = attitude_of(xyz, np.full(len(xyz), 0.5), crs_wkt=reference[0].crs_wkt, what="picks", strict=False,
-                      resamples=200, seed=3)
+                      resamples=200, seed=3, blocks=blocks)
+    assert att["confidence_method"] == "block_bootstrap+monte_carlo"
     for key, k in (("DIP_CI95_DEG", "dip_ci95"), ("DIP_DIRECTION_CI95_DEG", "dip_direction_ci95"),
                    ("CONE95_DEG", "cone95"), ("DIP_DIRECTION_TRUE_DEG", "dip_direction_true"),
                    ("COPLANARITY_M", "coplanarity_M"), ("COLLINEARITY_K", "collinearity_K")):
