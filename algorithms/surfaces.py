@@ -193,7 +193,7 @@ def tps_kernel(r2):
     ----------
     Duchon, J. (1977). Splines minimizing rotation-invariant semi-norms in Sobolev spaces.
     In W. Schempp & K. Zeller (eds.), *Constructive Theory of Functions of Several Variables*,
-    Lecture Notes in Mathematics 571, Springer, Berlin, 85–100.
+    Lect. Notes Math. 571, Springer, Berlin, 85–100.
     https://doi.org/10.1007/BFb0086566
     """
     r2 = np.asarray(r2, dtype=float)
@@ -1365,7 +1365,7 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
     Mathematik*, 31(4), 377–403. https://doi.org/10.1007/BF01404567
 
     Duchon, J. (1977). Splines minimizing rotation-invariant semi-norms in Sobolev spaces.
-    *Lecture Notes in Mathematics* 571, Springer, 85–100. https://doi.org/10.1007/BFb0086566
+    *Lect. Notes Math.* 571, Springer, 85–100. https://doi.org/10.1007/BFb0086566
 
     Wahba, G. (1990). *Spline Models for Observational Data*. CBMS-NSF Regional Conference
     Series in Applied Mathematics 59, SIAM. https://doi.org/10.1137/1.9781611970128

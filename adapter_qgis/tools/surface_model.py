@@ -34,7 +34,7 @@ METHODS = (("plane", "Best-fit plane (total least squares)"),
            ("auto", "Choose by cross-validation (simplest within one standard error)"))
 
 REF_SPLINE = ("Duchon, J. (1977). Splines minimizing rotation-invariant semi-norms in Sobolev spaces. "
-              "Lecture Notes in Mathematics 571, 85–100. doi:10.1007/BFb0086566; Wahba, G. (1990). "
+              "Lect. Notes Math. 571, 85–100. doi:10.1007/BFb0086566; Wahba, G. (1990). "
               "Spline Models for Observational Data. SIAM. doi:10.1137/1.9781611970128")
 REF_GCV = ("Craven, P. & Wahba, G. (1979). Smoothing noisy data with spline functions. Numerische "
            "Mathematik 31(4), 377–403. doi:10.1007/BF01404567")

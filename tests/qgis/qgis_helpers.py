@@ -1,4 +1,7 @@
-"""Small helpers for the adapter tests: QGIS outputs back to numpy and shapely."""
+"""Small helpers for the adapter tests: QGIS outputs back to numpy and shapely.
+
+They hold no reference values; each test file names the source of its own (Source: ... comments).
+"""
 from __future__ import annotations
 
 import numpy as np
