@@ -97,6 +97,17 @@ def normal_from_dip(dip_direction_deg, dip_deg):
     return np.stack([s * np.sin(dd), s * np.cos(dd), np.cos(d)], axis=-1)
 
 
+def _unit_vectors(vectors, what: str, *, sense: str) -> np.ndarray:
+    """Vectors scaled to unit length and turned to point up (``sense="up"``) or down."""
+    v = np.asarray(vectors, dtype=float)
+    length = np.linalg.norm(v, axis=-1, keepdims=True)
+    if np.any(length == 0):
+        raise InputError(f"{what} of zero length has no orientation")
+    v = v / length
+    flip = v[..., 2:3] < 0 if sense == "up" else v[..., 2:3] > 0
+    return np.where(flip, -v, v)
+
+
 def dip_from_normal(normal):
     """Dip direction and dip (degrees) of planes from their normals (either sense).
 
@@ -117,12 +128,7 @@ def dip_from_normal(normal):
     >>> float(dd), round(float(d), 6)
     (180.0, 45.0)
     """
-    n = np.asarray(normal, dtype=float)
-    length = np.linalg.norm(n, axis=-1, keepdims=True)
-    if np.any(length == 0):
-        raise InputError("a normal vector of zero length has no orientation")
-    n = n / length
-    n = np.where(n[..., 2:3] < 0, -n, n)  # upward
+    n = _unit_vectors(normal, "a normal vector", sense="up")
     nx, ny, nz = _components(n)
     horiz = np.hypot(nx, ny)
     dip = np.degrees(np.arctan2(horiz, nz))
@@ -475,12 +481,7 @@ def trend_plunge_from_vector(vector):
     >>> float(t), round(float(p), 6)
     (180.0, 45.0)
     """
-    v = np.asarray(vector, dtype=float)
-    length = np.linalg.norm(v, axis=-1, keepdims=True)
-    if np.any(length == 0):
-        raise InputError("a direction vector of zero length has no orientation")
-    v = v / length
-    v = np.where(v[..., 2:3] > 0, -v, v)  # downward sense
+    v = _unit_vectors(vector, "a direction vector", sense="down")
     vx, vy, vz = _components(v)
     horiz = np.hypot(vx, vy)
     plunge = np.degrees(np.arctan2(-vz, horiz))
