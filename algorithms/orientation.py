@@ -257,7 +257,10 @@ def apparent_dip_from_strike_angle(dip_deg, angle_from_strike_deg):
     -----
     :math:`\\tan\\alpha = \\tan\\delta \\, \\sin\\beta`, evaluated as
     :math:`\\alpha = \\operatorname{atan2}(\\sin\\delta\\sin\\beta, \\cos\\delta)` so that a
-    vertical plane (δ = 90°) gives ±90° except along its strike, where it gives 0°.
+    vertical plane (δ = 90°) gives ±90° except along its strike, where it gives 0°. Sines and
+    cosines below ``1e-12`` are taken as exactly 0: ``sin(180°)`` and ``cos(90°)`` are round-off
+    residues of about 1e-16 in floating point, and ``atan2`` of two such residues would give an
+    arbitrary angle (±63.4° for a vertical plane along its strike) instead of 0°.
 
     References
     ----------
@@ -273,8 +276,19 @@ def apparent_dip_from_strike_angle(dip_deg, angle_from_strike_deg):
     22.208
     """
     d = np.radians(_check_dip(dip_deg))
-    b = np.radians(np.asarray(angle_from_strike_deg, dtype=float))
-    return np.degrees(np.arctan2(np.sin(d) * np.sin(b), np.cos(d)))
+    b = np.radians(np.mod(np.asarray(angle_from_strike_deg, dtype=float), 360.0))
+    sin_b = _snap_zero(np.sin(b))
+    cos_d = _snap_zero(np.cos(d))
+    # + 0.0 turns atan2's -0.0 (a section read against the strike) into 0.0
+    return np.degrees(np.arctan2(np.sin(d) * sin_b, cos_d)) + 0.0
+
+
+#: Sines and cosines smaller than this are round-off residues of exact zeros (sin 180°, cos 90°).
+_TRIG_ZERO = 1e-12
+
+
+def _snap_zero(v):
+    return np.where(np.abs(v) < _TRIG_ZERO, 0.0, v)
 
 
 def apparent_dip(dip_direction_deg, dip_deg, section_azimuth_deg):

@@ -133,6 +133,24 @@ def test_vertical_plane_apparent_dip():
     assert float(apparent_dip_from_strike_angle(90.0, 0.0)) == pytest.approx(0.0)
 
 
+@pytest.mark.parametrize("dd", [0.0, 90.0, 123.4, 270.0, 359.9])
+def test_vertical_plane_along_strike_is_exactly_zero(dd):
+    # Source: tan(alpha) = tan(delta) sin(beta) (Ragan 2009): along the strike (beta = 0 or 180
+    # degrees) sin(beta) = 0, so the apparent dip is 0 whatever the dip - also at exactly 90
+    # degrees, where the formula is 0 / 0 and atan2 of the round-off residues sin(180 deg) ~ 1e-16
+    # and cos(90 deg) ~ 6e-17 gave +-63.4 degrees.
+    strike = (dd - 90.0) % 360.0
+    for azimuth in (strike, (strike + 180.0) % 360.0, strike - 360.0):
+        assert float(apparent_dip(dd, 90.0, azimuth)) == 0.0
+    for beta in (0.0, 180.0, -180.0, 360.0, 540.0):
+        assert float(apparent_dip_from_strike_angle(90.0, beta)) == 0.0
+    # across the strike a vertical plane shows its full dip, with the sign of the side
+    assert float(apparent_dip(dd, 90.0, dd)) == 90.0
+    assert float(apparent_dip(dd, 90.0, dd + 180.0)) == -90.0
+    # and a plane of any other dip is still 0 along its strike
+    assert float(apparent_dip(dd, 37.0, strike + 180.0)) == 0.0
+
+
 # ---- structure-contour spacing ---------------------------------------------------------------
 
 def test_structure_contour_spacing_worked_values():
