@@ -33,6 +33,7 @@ __all__ = [
     "SLOPE_SENSES",
     "WIDTH_KINDS",
     "thickness_from_outcrop_width",
+    "outcrop_width_gives_thickness",
     "thickness_between_points",
     "vertical_thickness",
     "thickness_from_vertical",
@@ -91,13 +92,29 @@ def thickness_from_outcrop_width(width_m, dip_deg, *, ground_slope_deg=0.0, slop
     ndarray
         True (perpendicular) thickness in metres.
 
+    Raises
+    ------
+    InputError
+        Where the ground runs parallel to the bedding along the measurement line: a horizontal
+        bed on flat ground (δ = σ = 0), or a dip slope (ground descending with the dip at the
+        dip, δ = σ). The unit's top and base then do not both cross the ground along the line,
+        the width can take any value and :math:`\\sin(\\delta \\pm \\sigma) = 0` would give
+        0 m for any unit. Also for bad options and out-of-range angles.
+
     Notes
     -----
     Horizontal ground: :math:`t = w \\sin\\delta`. Sloping ground, with ``w`` the slope
     distance: :math:`t = w \\sin(\\delta + \\sigma)` when the ground slopes against the dip and
     :math:`t = w\\,|\\sin(\\delta - \\sigma)|` when it slopes with the dip (the absolute value
     covers ground steeper than the dip). A horizontal width ``h`` is first turned into the slope
-    distance :math:`w = h / \\cos\\sigma`.
+    distance :math:`w = h / \\cos\\sigma`. These are the textbook relations for a section
+    perpendicular to strike (Ragan 2009; Rowland et al. 2007; both from memory, and the same
+    relations are set out in university structural-geology lab notes on thickness and depth
+    problems). The thickness grows with the angle :math:`\\delta \\pm \\sigma` between ground and
+    bedding in the section; where that angle is 0 the width says nothing about the thickness:
+    for a horizontal bed the thickness is the difference in elevation between its top and base
+    contacts, and on a dip slope it must be measured between points on the top and the base
+    (:func:`thickness_between_points`) or in a borehole.
 
     References
     ----------
@@ -130,9 +147,59 @@ def thickness_from_outcrop_width(width_m, dip_deg, *, ground_slope_deg=0.0, slop
     else:
         sign = 1.0 if _choice("slope_sense", slope_sense, SLOPE_SENSES) == "against_dip" else -1.0
     s = np.radians(s_deg)
+    angle = d + sign * s  # between the ground and the bedding in the section, radians
+    parallel = ~outcrop_width_gives_thickness(np.degrees(d), ground_slope_deg=s_deg,
+                                              slope_sense=slope_sense)
+    if np.any(parallel):
+        d0 = float(np.broadcast_to(np.degrees(d), parallel.shape)[parallel].flat[0])
+        if d0 == 0.0:
+            case = ("a horizontal bed on flat ground (dip 0, ground slope 0) has no outcrop width: its "
+                    "top and base do not both cross the ground; its thickness is the difference in "
+                    "elevation between its top and base contacts")
+        else:
+            case = (f"on a dip slope (ground descending with the dip at the dip, {d0:g} degrees) the ground "
+                    "runs parallel to the bedding, so the top and base do not both cross it")
+        raise InputError(
+            f"the outcrop width cannot give a thickness in this geometry: {case}; measure the "
+            "thickness between a point on the top and one on the base, in a borehole, or across ground "
+            "that cuts the bedding"
+        )
     if width_kind == "horizontal":
         w = w / np.cos(s)
-    return w * np.abs(np.sin(d + sign * s))
+    return w * np.abs(np.sin(angle))
+
+
+#: Ground and bedding closer than this (radians, about 6e-8 degrees) along the measurement line
+#: are parallel: a width then gives no thickness.
+_PARALLEL_RAD = 1e-9
+
+
+def outcrop_width_gives_thickness(dip_deg, *, ground_slope_deg=0.0, slope_sense=None):
+    """Whether an outcrop width can give a thickness: the ground must cut across the bedding.
+
+    Parameters
+    ----------
+    dip_deg, ground_slope_deg : float or array_like
+        Dip of the unit and ground slope along the measurement line (degrees).
+    slope_sense : {"against_dip", "with_dip"}, optional
+        As in :func:`thickness_from_outcrop_width` (``None``: flat ground or against the dip).
+
+    Returns
+    -------
+    ndarray of bool
+        False where the ground runs parallel to the bedding in the section perpendicular to
+        strike: a horizontal bed on flat ground, or a dip slope (``with_dip`` and slope = dip).
+
+    Examples
+    --------
+    >>> outcrop_width_gives_thickness([0.0, 30.0, 20.0], ground_slope_deg=[0.0, 0.0, 20.0],
+    ...                               slope_sense="with_dip").tolist()
+    [False, True, False]
+    """
+    d = np.radians(np.asarray(dip_deg, dtype=float))
+    s = np.radians(np.asarray(ground_slope_deg, dtype=float))
+    sign = -1.0 if slope_sense == "with_dip" else 1.0
+    return ~(np.abs(d + sign * s) <= _PARALLEL_RAD)
 
 
 def thickness_between_points(top_xyz, base_xyz, dip_direction_deg, dip_deg):

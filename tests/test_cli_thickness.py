@@ -112,6 +112,32 @@ def test_common_practice_250_m_at_26_degrees_is_about_110_m(run):
     assert abs(_number(r"true thickness: ([\d.]+) m", proc.stdout) - ABOUT_110_M) < 1.0
 
 
+@pytest.mark.parametrize("args,words", [
+    (["--dip-deg", 0], ["--dip-deg 0", "horizontal bed on flat ground", "elevation"]),
+    (["--dip-deg", 20, "--ground-slope-deg", 20, "--slope-sense", "with-dip"],
+     ["--slope-sense with-dip", "dip slope", "parallel to the bedding"]),
+])
+def test_outcrop_width_parallel_to_the_bedding_is_refused(run, args, words):
+    # Source: Ragan (2009, from memory) and GY403 lab notes on thickness problems: t = w sin(dip)
+    # on flat ground and w sin(dip - slope) on ground sloping with the dip are 0 for any width
+    # where ground and bedding are parallel, so the width gives no thickness (it printed 0.000 m).
+    proc = run("thickness", "outcrop", "--width-m", 100, *args)
+    line = _one_error_line(proc)
+    assert "cannot give a thickness" in line and proc.stdout == ""
+    for w in words:
+        assert w in line, (w, line)
+
+
+def test_outcrop_width_nearly_parallel_to_the_bedding_warns(run):
+    # t = 100 sin(20 - 15) = 8.716 m (recomputed by hand), with a warning: a degree of error in
+    # dip or slope changes it by cot(5 deg) = 11 percent per degree
+    proc = run("thickness", "outcrop", "--width-m", 100, "--dip-deg", 20, "--ground-slope-deg", 15,
+               "--slope-sense", "with-dip")
+    assert proc.returncode == 0
+    assert _number(r"true thickness: ([\d.]+) m", proc.stdout) == pytest.approx(8.716, abs=TOL_M)
+    assert "warning:" in proc.stderr and "within 5.0 deg of the bedding" in proc.stderr
+
+
 def test_swapped_points_warn_but_give_the_thickness(run):
     proc = run("thickness", "points", "--top", 0, 0, -10, "--base", 0, 0, 0, "--dip-deg", 60,
                "--dip-direction-deg", 90)

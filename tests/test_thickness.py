@@ -7,6 +7,7 @@ from strikeline.grid import Grid
 from strikeline.orientation import normal_from_dip
 from strikeline.thickness import (
     isopach_grids,
+    outcrop_width_gives_thickness,
     thickness_between_points,
     thickness_from_borehole,
     thickness_from_outcrop_width,
@@ -81,8 +82,37 @@ def test_sloping_ground_matches_projection_on_the_normal(sense, dip, slope):
     rise = 1.0 if sense == "against_dip" else -1.0
     base = np.array([w * np.cos(s), 0.0, rise * w * np.sin(s)])
     expected = thickness_between_points([0.0, 0.0, 0.0], base, 90.0, dip)
+    if sense == "with_dip" and dip == slope:
+        # a dip slope: the far end of the width lies in the same bedding plane (projection 0),
+        # so the width carries no thickness and is refused instead of giving 0 m
+        assert float(expected) == pytest.approx(0.0, abs=1e-9)
+        with pytest.raises(InputError, match="dip slope"):
+            thickness_from_outcrop_width(w, dip, ground_slope_deg=slope, slope_sense=sense)
+        return
     got = thickness_from_outcrop_width(w, dip, ground_slope_deg=slope, slope_sense=sense)
     assert float(got) == pytest.approx(float(expected), abs=1e-9)
+
+
+@pytest.mark.parametrize("dip,slope,sense,words", [
+    (0.0, 0.0, None, "horizontal bed on flat ground"),
+    (20.0, 20.0, "with_dip", "dip slope"),
+    (63.5, 63.5, "with_dip", "dip slope"),
+])
+def test_outcrop_width_refused_where_the_ground_parallels_the_bedding(dip, slope, sense, words):
+    # Source: GY403 Structural Geology lab notes, "Thickness and depth problems" (t = w sin(dip +
+    # slope) against the dip, w sin(dip - slope) with it; a horizontal bed's contacts follow the
+    # topographic contours and its thickness is the elevation difference of its contacts) and
+    # Ragan (2009, from memory): sin(dip -/+ slope) = 0 where ground and bedding are parallel, so
+    # any width would give 0 m - the width says nothing about the thickness there.
+    assert not outcrop_width_gives_thickness(dip, ground_slope_deg=slope, slope_sense=sense)
+    with pytest.raises(InputError, match=f"cannot give a thickness in this geometry: .*{words}"):
+        thickness_from_outcrop_width(100.0, dip, ground_slope_deg=slope, slope_sense=sense)
+    with pytest.raises(InputError, match="between a point on the top and one on the base"):
+        thickness_from_outcrop_width([100.0, 50.0], [30.0, dip], ground_slope_deg=slope, slope_sense=sense)
+    # against the dip the same angles cut the bedding at dip + slope, and a width gives a thickness
+    if slope > 0:
+        assert float(thickness_from_outcrop_width(100.0, dip, ground_slope_deg=slope, slope_sense="against_dip")) \
+            == pytest.approx(100.0 * np.sin(np.radians(dip + slope)), abs=1e-9)
 
 
 def test_horizontal_width_on_sloping_ground():

@@ -24,6 +24,7 @@ from strikeline.picks import sample_bilinear
 from strikeline.thickness import (
     SLOPE_SENSES,
     WIDTH_KINDS,
+    outcrop_width_gives_thickness,
     thickness_between_points,
     thickness_from_borehole,
     thickness_from_outcrop_width,
@@ -150,6 +151,7 @@ class UnitThickness(StrikelineAlgorithm):
             ok = np.all([np.isfinite(v) for v in values.values()], axis=0)
         steps.check("thickness")
         t = np.full(len(lyr.geoms), np.nan)
+        missing = ~ok
         if ok.any():
             sel = {k: v[ok] for k, v in values.items()}
             if method == "two_points":
@@ -158,16 +160,26 @@ class UnitThickness(StrikelineAlgorithm):
                 sense = SLOPE_SENSES[self.parameterAsEnum(parameters, self.SLOPE_SENSE, context)]
                 kind = WIDTH_KINDS[self.parameterAsEnum(parameters, self.WIDTH_KIND, context)]
                 slope = sel[self.SLOPE_FIELD]
-                t[ok] = thickness_from_outcrop_width(sel[self.WIDTH_FIELD], dip, ground_slope_deg=slope,
-                                                     slope_sense=sense if np.any(slope > 0) else None,
-                                                     width_kind=kind)
+                sense = sense if np.any(slope > 0) else None
+                # ground parallel to the bedding (a level bed on level ground, a dip slope): no thickness
+                cuts = outcrop_width_gives_thickness(dip, ground_slope_deg=slope, slope_sense=sense)
+                if not cuts.all():
+                    steps.warn(f"{int((~cuts).sum())} feature(s) of {name.what} lie where the ground runs parallel "
+                               "to the bedding (a horizontal bed on flat ground, or a dip slope): an outcrop width "
+                               "cannot give a thickness there, so theirs is left empty")
+                    ok[np.flatnonzero(ok)[~cuts]] = False
+                    sel = {k: v[cuts] for k, v in sel.items()}
+                    slope = slope[cuts]
+                if ok.any():
+                    t[ok] = thickness_from_outcrop_width(sel[self.WIDTH_FIELD], dip, ground_slope_deg=slope,
+                                                         slope_sense=sense, width_kind=kind)
             else:
                 t[ok] = thickness_from_borehole(sel[self.LENGTH_FIELD], sel[self.AZIMUTH_FIELD],
                                                 sel[self.PLUNGE_FIELD], dipdir, dip)
         v = np.full_like(t, np.nan)
         v[ok] = vertical_thickness(t[ok], dip)
-        if (~ok).any():
-            steps.warn(f"{int((~ok).sum())} feature(s) of {name.what} lack a value (null field, or a line "
+        if missing.any():
+            steps.warn(f"{int(missing.sum())} feature(s) of {name.what} lack a value (null field, or a line "
                        "end off the DEM); their thickness is left empty")
         steps.log(f"thickness of {int(ok.sum())} feature(s): median {np.nanmedian(t) if ok.any() else float('nan'):.2f} m")
         return {self.OUTPUT: self._write(parameters, context, source, lyr.fids, t, v), "N": int(ok.sum())}

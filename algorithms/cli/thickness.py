@@ -32,7 +32,8 @@ ROWLAND = ("Rowland, S. M., Duebendorfer, E. M. & Schiefelbein, I. M. (2007), St
 ZEVENBERGEN = ("Zevenbergen, L. W. & Thorne, C. R. (1987), Quantitative analysis of land surface "
                "topography, Earth Surface Processes and Landforms 12(1), 47-56, doi:10.1002/esp.3290120107")
 
-#: A hole within this angle of the bedding gives a thickness very sensitive to the attitude.
+#: A hole (or, for an outcrop width, the ground) within this angle of the bedding gives a
+#: thickness very sensitive to the attitude.
 _SHALLOW_INTERCEPT_DEG = 10.0
 
 SLOPE_SENSES = {"against-dip": "against_dip", "with-dip": "with_dip"}
@@ -139,8 +140,18 @@ def _outcrop(args) -> int:
             "opposite to the dip, with-dip when it descends in the dip direction"
         )
     sense = SLOPE_SENSES.get(args.slope_sense) if slope > 0 else None
-    t = float(thickness_from_outcrop_width(args.width_m, args.dip_deg, ground_slope_deg=slope,
-                                           slope_sense=sense, width_kind=args.width_kind))
+    given = f"--dip-deg {args.dip_deg:g}, --ground-slope-deg {slope:g}" + (
+        f" --slope-sense {args.slope_sense}" if sense else "")
+    try:
+        t = float(thickness_from_outcrop_width(args.width_m, args.dip_deg, ground_slope_deg=slope,
+                                               slope_sense=sense, width_kind=args.width_kind))
+    except InputError as exc:
+        raise InputError(f"{given}: {exc}") from None
+    grazing = abs(args.dip_deg + (slope if sense != "with_dip" else -slope))
+    if grazing < _SHALLOW_INTERCEPT_DEG:
+        print(f"warning: the ground runs within {grazing:.1f} deg of the bedding along the measurement line "
+              f"({given}), so the thickness is very sensitive to errors in the dip and the slope",
+              file=sys.stderr)
     v = float(vertical_thickness(t, args.dip_deg))
     if slope == 0:
         formula = "t = w * sin(dip), flat ground"

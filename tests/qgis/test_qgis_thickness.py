@@ -59,6 +59,25 @@ def test_outcrop_width_level_and_sloping_ground(run):
     assert cols["name"].tolist() == ["level", "scarp"]  # the input's own fields are kept
 
 
+def test_outcrop_width_on_a_dip_slope_is_left_empty_with_a_warning(run):
+    # Source: Ragan (2009, from memory): t = w |sin(dip - slope)| with the dip is 0 for any width
+    # on a dip slope (slope = dip): the width gives no thickness there, so the feature gets none.
+    lyr = memory("Point", [("w", QVariant.Double), ("slope", QVariant.Double)],
+                 [("Point (0 0)", [100.0, 30.0]), ("Point (10 0)", [100.0, 20.0])])
+    fb = QgsProcessingFeedback()
+    warnings = []
+    fb.pushWarning = warnings.append
+    res = run("unitthickness", {"METHOD": 1, "INPUT": lyr, "DIP_DEG": 30.0, "DIP_DIRECTION_DEG": 120.0,
+                                "WIDTH_FIELD": "w", "SLOPE_FIELD": "slope", "SLOPE_SENSE": 1, "OUTPUT": TMP},
+              feedback=fb)
+    _, cols = table(res["OUTPUT"])
+    assert cols["thickness_m"][0] is None or not np.isfinite(cols["thickness_m"][0])
+    # Source: Ragan (2009), t = w |sin(dip - slope)| = 100 sin 10 = 17.365 m
+    assert cols["thickness_m"][1] == pytest.approx(100.0 * np.sin(np.radians(10.0)), abs=1e-9)
+    assert res["N"] == 1
+    assert any("parallel to the bedding" in w for w in warnings)
+
+
 def test_borehole_intercepts(run):
     lyr = memory("Point", [("len", QVariant.Double), ("az", QVariant.Double), ("pl", QVariant.Double)],
                  [("Point (0 0)", [100.0, 45.0, 70.0]), ("Point (5 5)", [80.0, 0.0, 90.0]),
