@@ -25,10 +25,22 @@ Quality verdict (:func:`assess_plane`)
     Woodcock's line/plane boundary K = 1 in log-ratio terms, our choice); or :math:`M < 2`
     (:math:`\\lambda_1/\\lambda_3 < e^2 \\approx 7.4`: the picks scatter off any plane about as
     much as they spread along it, our choice); or the picks span less elevation than
-    ``min_relief_m`` (flat ground or a trace that follows one contour: the elevations carry no
-    information on the dip, our choice of 1 m default, or 4 vertical standard errors).
+    ``min_relief_m`` (our choice of 1 m default, or 4 vertical standard errors) *and* lie close
+    to one straight line in map view (RMS distance from their map-view best-fit line below
+    ``STRAIGHT_MAX_MAP_SPREAD`` = 5% of their RMS spread along it, our choice): a straight
+    contact on flat ground, which every plane through that line fits, from horizontal to
+    vertical.
 ``weak``
     Everything in between.
+
+Horizontal beds
+---------------
+Picks at one height that wind about in map view (a contact that follows one contour around
+hills and valleys) are not undetermined: only a horizontal plane passes through a level curve
+that is not straight, so they define a horizontal plane (reason code ``"level"`` when nothing
+else makes the plane weak). Whether its small fitted dip differs from zero, and so whether a
+dip direction and strike exist, is for the dip's confidence to say
+(:func:`strikeline.uncertainty.dip_is_significant`).
 
 References
 ----------
@@ -62,6 +74,8 @@ __all__ = [
     "UNDETERMINED_MIN_COLLINEARITY",
     "UNDETERMINED_MAX_COPLANARITY",
     "DEFAULT_MIN_RELIEF_M",
+    "STRAIGHT_MAX_MAP_SPREAD",
+    "map_spread",
     "RELIEF_SIGMAS",
     "MISFIT_SIGMAS",
     "GOOD_MAX_DIP_CI95_DEG",
@@ -77,8 +91,13 @@ GOOD_MAX_COLLINEARITY = 0.8
 UNDETERMINED_MIN_COLLINEARITY = 2.0
 #: Our choice: M below 2 (λ1/λ3 < 7.4) is a blob, not a plane.
 UNDETERMINED_MAX_COPLANARITY = 2.0
-#: Our choice: picks spanning less than this elevation (metres) cannot show a dip.
+#: Our choice: picks spanning less than this elevation (metres) are level: with a trace that
+#: winds in map view they fix a horizontal plane, with a straight one no plane at all.
 DEFAULT_MIN_RELIEF_M = 1.0
+#: Our choice: level picks whose RMS distance from their map-view best-fit line is below this
+#: fraction of their RMS spread along it lie on one straight line (a straight contact on flat
+#: ground); the dip is then undetermined.
+STRAIGHT_MAX_MAP_SPREAD = 0.05
 #: Our choice: the relief must also exceed this many vertical standard errors of the picks.
 RELIEF_SIGMAS = 4.0
 #: Our choice: picks scattering about their plane by more than this many vertical standard
@@ -109,7 +128,9 @@ class PlaneQuality:
         What data would help (empty for ``"good"``).
     reason_code : str
         Machine-readable reason: ``"ok"``, ``"too_few_picks"``, ``"collinear"``,
-        ``"not_planar"``, ``"flat"``, ``"marginal_shape"``, ``"curved"`` (residuals beyond ``MISFIT_SIGMAS`` vertical
+        ``"not_planar"``, ``"flat"`` (level picks on one straight line in map view),
+        ``"level"`` (level picks winding in map view: a horizontal plane, otherwise good),
+        ``"marginal_shape"``, ``"curved"`` (residuals beyond ``MISFIT_SIGMAS`` vertical
         errors), ``"three_points"`` (exactly three
         picks: at best ``"weak"``) or ``"wide_confidence"``.
     collinearity : float
@@ -122,6 +143,9 @@ class PlaneQuality:
         Number of picks (0 when only eigenvalues were given).
     relief_m : float
         Elevation range of the picks (NaN when only eigenvalues were given).
+    map_spread : float
+        RMS distance of the picks from their map-view best-fit line over their RMS spread
+        along it (:func:`map_spread`; NaN when only eigenvalues were given).
     """
 
     quality: str
@@ -133,6 +157,40 @@ class PlaneQuality:
     eigenvalues: tuple
     n_points: int
     relief_m: float
+    map_spread: float = float("nan")
+
+
+def map_spread(scatter):
+    """How far picks depart from one straight line in map view.
+
+    Parameters
+    ----------
+    scatter : array_like, shape ``(..., 3, 3)`` or ``(..., 2, 2)``
+        Scatter matrices of centred picks (only the x, y block is used).
+
+    Returns
+    -------
+    ndarray, shape ``(...)``
+        :math:`\\sqrt{\\mu_2/\\mu_1}` for the eigenvalues :math:`\\mu_1 \\ge \\mu_2` of the
+        map-view (x, y) scatter: the RMS distance of the picks from their map-view best-fit line
+        over their RMS spread along it. 0 for picks on one straight line, 1 for a round cloud or
+        a circle; NaN for picks at one map position.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> t = np.linspace(0.0, 2.0 * np.pi, 400, endpoint=False)
+    >>> q = np.column_stack([np.cos(t), np.sin(t), np.zeros_like(t)])
+    >>> round(float(map_spread(q.T @ q)), 6)
+    1.0
+    """
+    s = np.asarray(scatter, dtype=float)
+    if s.shape[-2:] not in ((3, 3), (2, 2)):
+        raise InputError(f"scatter matrices must be 3 x 3 or 2 x 2, got shape {s.shape}")
+    mu = np.clip(np.linalg.eigvalsh(s[..., :2, :2]), 0.0, None)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(mu[..., 1] > 0, np.sqrt(mu[..., 0] / np.where(mu[..., 1] > 0, mu[..., 1], 1.0)),
+                        np.nan)
 
 
 def shape_measures(eigenvalues):
@@ -196,7 +254,7 @@ def _check_nonneg(name, value):
 
 def classify_planes(eigenvalues, *, n_points, relief_m=None, sigma_z_m=None,
                     min_relief_m=DEFAULT_MIN_RELIEF_M, dip_ci95_deg=None,
-                    max_good_dip_ci95_deg=GOOD_MAX_DIP_CI95_DEG):
+                    max_good_dip_ci95_deg=GOOD_MAX_DIP_CI95_DEG, map_spread=None):
     """Quality and reason codes for many planes at once (vectorised :func:`assess_plane`).
 
     Parameters
@@ -216,6 +274,11 @@ def classify_planes(eigenvalues, *, n_points, relief_m=None, sigma_z_m=None,
         95% dip half-widths; above ``max_good_dip_ci95_deg`` a plane is at best ``"weak"``.
     max_good_dip_ci95_deg : float, optional
         Default 5°.
+    map_spread : array_like, shape ``(W,)``, optional
+        :func:`map_spread` of each pick set. Level pick sets (relief below the limit) are
+        undetermined only when they lie on one straight line in map view (``map_spread`` below
+        ``STRAIGHT_MAX_MAP_SPREAD``); otherwise they define a horizontal plane. Without it every
+        level pick set is undetermined.
 
     Returns
     -------
@@ -260,7 +323,15 @@ def classify_planes(eigenvalues, *, n_points, relief_m=None, sigma_z_m=None,
     rules = [(~(m >= UNDETERMINED_MAX_COPLANARITY), "not_planar")]
     if relief_m is not None:
         relief = np.broadcast_to(np.asarray(relief_m, dtype=float), (len(w),))
-        rules.append((~(relief >= min_relief), "flat"))
+        level = ~(relief >= min_relief)
+        if map_spread is None:
+            straight = np.ones(len(w), dtype=bool)
+        else:
+            spread = np.broadcast_to(np.asarray(map_spread, dtype=float), (len(w),))
+            straight = ~(spread >= STRAIGHT_MAX_MAP_SPREAD)
+        # a level curve that is not straight fixes a horizontal plane (see the module notes)
+        code[level & ~straight & (code == "ok")] = "level"
+        rules.append((level & straight, "flat"))
     rules.append((~(k < UNDETERMINED_MIN_COLLINEARITY) & (m >= UNDETERMINED_MAX_COPLANARITY),
                   "collinear"))
     rules.append(((n >= 0) & (n < 3), "too_few_picks"))
@@ -270,7 +341,7 @@ def classify_planes(eigenvalues, *, n_points, relief_m=None, sigma_z_m=None,
     return quality.astype(str), code.astype(str), m, k
 
 
-def _words(code, m, k, n, relief, min_relief, dip_ci, max_ci):
+def _words(code, m, k, n, relief, min_relief, dip_ci, max_ci, spread=np.nan):
     def f(x):
         return "infinite" if np.isinf(x) else ("undefined" if np.isnan(x) else f"{x:.2f}")
 
@@ -291,9 +362,17 @@ def _words(code, m, k, n, relief, min_relief, dip_ci, max_ci):
         return (f"the picks scatter off any plane about as much as they spread along it "
                 f"({shape}, M < {UNDETERMINED_MAX_COPLANARITY:g}), so no plane is defined")
     if code == "flat":
-        return (f"the picks span only {relief:.2f} m of elevation (less than {min_relief:.2f} m), "
-                "as on flat ground or along one contour line, so their elevations cannot show "
-                "the dip")
+        line = ("" if np.isnan(spread) else
+                f" (their RMS distance from it is {100 * spread:.1f}% of their spread along it, "
+                f"less than {100 * STRAIGHT_MAX_MAP_SPREAD:g}%)")
+        return (f"the picks span only {relief:.2f} m of elevation (less than {min_relief:.2f} m) "
+                f"and lie close to one straight line in map view{line}, as a straight contact on "
+                "flat ground does: every plane through that line fits them, from horizontal to "
+                "vertical, so the dip is undetermined")
+    if code == "level":
+        return (f"the picks span only {relief:.2f} m of elevation (less than {min_relief:.2f} m) "
+                "while they wind about in map view, as a contact that follows one height around "
+                f"hills and valleys does: only a horizontal plane passes through them ({shape})")
     if code == "marginal_shape":
         return (f"the picks define a plane only loosely ({shape}; a reliable plane needs "
                 f"M > {GOOD_MIN_COPLANARITY:g} and K < {GOOD_MAX_COLLINEARITY:g})")
@@ -368,6 +447,7 @@ def assess_plane(data, *, relief_m=None, sigma_z_m=None, min_relief_m=DEFAULT_MI
         w = arr
         n = 0
         relief = np.nan if relief_m is None else float(relief_m)
+        spread = None
     elif arr.ndim == 2 and arr.shape[1] == 3:
         p = arr[np.all(np.isfinite(arr), axis=1)]
         n = len(p)
@@ -376,7 +456,9 @@ def assess_plane(data, *, relief_m=None, sigma_z_m=None, min_relief_m=DEFAULT_MI
             w = np.clip(np.linalg.eigvalsh(q.T @ q), 0.0, None)
         else:
             w = np.zeros(3)
+            q = np.zeros((0, 3))
         relief = float(np.ptp(p[:, 2])) if n else 0.0
+        spread = float(map_spread(q.T @ q)) if n else np.nan
         if relief_m is not None:
             relief = float(relief_m)
     else:
@@ -389,13 +471,15 @@ def assess_plane(data, *, relief_m=None, sigma_z_m=None, min_relief_m=DEFAULT_MI
         relief_m=None if np.isnan(relief) else np.array([relief]), sigma_z_m=sigma_z_m,
         min_relief_m=min_relief_m,
         dip_ci95_deg=None if dip_ci95_deg is None else np.array([float(dip_ci95_deg)]),
-        max_good_dip_ci95_deg=max_good_dip_ci95_deg)
+        max_good_dip_ci95_deg=max_good_dip_ci95_deg,
+        map_spread=None if spread is None else np.array([spread]))
     min_relief = float(min_relief_m)
     if sigma_z_m is not None:
         min_relief = max(min_relief, RELIEF_SIGMAS * _check_nonneg("sigma_z_m", sigma_z_m))
+    spread = np.nan if spread is None else spread
     reason = _words(code[0], float(m[0]), float(k[0]), n, relief, min_relief,
                     np.nan if dip_ci95_deg is None else float(dip_ci95_deg),
-                    max_good_dip_ci95_deg)
+                    max_good_dip_ci95_deg, spread)
     if quality[0] == "good":
         advice = ""
     elif code[0] == "curved":
@@ -407,4 +491,5 @@ def assess_plane(data, *, relief_m=None, sigma_z_m=None, min_relief_m=DEFAULT_MI
         quality=str(quality[0]), reason=reason, advice=advice, reason_code=str(code[0]),
         collinearity=float(k[0]), coplanarity=float(m[0]),
         eigenvalues=tuple(float(v) for v in -np.sort(-w)), n_points=n, relief_m=relief,
+        map_spread=float(spread),
     )

@@ -17,7 +17,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.spatial import cKDTree
 
-from strikeline.diagnostics import classify_planes
+from strikeline.diagnostics import classify_planes, map_spread
 from strikeline.errors import InputError
 from strikeline.orientation import dip_from_normal, strike_from_dip_direction
 from strikeline.uncertainty import (
@@ -31,6 +31,7 @@ from strikeline.uncertainty import (
     _confidence_from_covariance,
     _monte_carlo_normals,
     _replicate_half_widths,
+    dip_is_significant,
 )
 
 __all__ = [
@@ -64,7 +65,9 @@ class LocalAttitudes:
     elevation_m : ndarray of float
         Elevation of the local plane at the centre (NaN where undetermined or vertical).
     dip_deg, dip_direction_deg, strike_rhr_deg : ndarray of float
-        Local attitude (NaN where ``quality == "undetermined"``).
+        Local attitude (NaN where ``quality == "undetermined"``; the dip direction, its
+        half-width and the strike are NaN too where the window's plane is horizontal within
+        its 95% confidence, see :func:`strikeline.uncertainty.dip_is_significant`).
     dip_ci95_deg, dip_direction_ci95_deg, cone95_deg : ndarray of float
         95% half-widths and pole cone (NaN where undetermined).
     n_picks : ndarray of int
@@ -464,23 +467,25 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
         qual, code, cop, col = classify_planes(
             w[:, ::-1], n_points=counts, relief_m=relief,
             sigma_z_m=None if sigma is None else float(np.median(sigma)),
-            min_relief_m=min_relief_m, dip_ci95_deg=dip_ci)
+            min_relief_m=min_relief_m, dip_ci95_deg=dip_ci, map_spread=map_spread(scatter))
         quality[wi] = qual
         reason[wi] = code
         out["coplanarity"][wi] = cop
         out["collinearity"][wi] = col
         out["rms_m"][wi] = np.sqrt(w[:, 0] / counts)
         shown = qual != "undetermined"
+        # horizontal within the confidence: the dip is given, the direction and strike are not
+        directed = shown & dip_is_significant(dip, dip_ci, cone)
         with np.errstate(divide="ignore", invalid="ignore"):
             elev = centroid[:, 2] - (normal[:, 0] * (cx[wi] - centroid[:, 0])
                                      + normal[:, 1] * (cy[wi] - centroid[:, 1])) / normal[:, 2]
         elev = np.where(np.abs(normal[:, 2]) > 1e-9, elev, np.nan)
-        for name, values in (("elevation_m", elev), ("dip_deg", dip),
-                             ("dip_direction_deg", dd),
-                             ("strike_rhr_deg", strike_from_dip_direction(dd)),
-                             ("dip_ci95_deg", dip_ci), ("dip_direction_ci95_deg", dd_ci),
-                             ("cone95_deg", cone)):
-            out[name][wi] = np.where(shown, values, np.nan)
+        for name, values, mask in (("elevation_m", elev, shown), ("dip_deg", dip, shown),
+                                   ("dip_direction_deg", dd, directed),
+                                   ("strike_rhr_deg", strike_from_dip_direction(dd), directed),
+                                   ("dip_ci95_deg", dip_ci, shown), ("dip_direction_ci95_deg", dd_ci, directed),
+                                   ("cone95_deg", cone, shown)):
+            out[name][wi] = np.where(mask, values, np.nan)
     _check_callbacks(progress, is_cancelled, 1.0)
     contact_arr = np.empty(m, dtype=object)
     contact_arr[:] = contacts

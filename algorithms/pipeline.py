@@ -37,7 +37,7 @@ from strikeline.picks import (PickSet, ground_slope_from_contours, picks_from_co
 from strikeline.surfaces import SurfaceModel, fit_surface
 from strikeline.thickness import isopach_grids
 from strikeline.trace import contact_misfit_segments, distance_to_lines, split_lines_by_flag, trace_misfit
-from strikeline.uncertainty import PlaneConfidence, plane_confidence, vertical_sigma_of_picks
+from strikeline.uncertainty import PlaneConfidence, dip_is_significant, plane_confidence, vertical_sigma_of_picks
 
 
 Log = Callable[[str], None]
@@ -389,6 +389,12 @@ def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples:
     With ``strict`` an undetermined pick set is an error (the sheet-wide plane); otherwise it is
     reported with ``quality: undetermined`` and no attitude (a group or window). ``blocks``
     (one label per pick, e.g. contact segments) makes the bootstrap resample whole blocks.
+
+    A plane whose dip does not differ from zero at 95%
+    (:func:`strikeline.uncertainty.dip_is_significant`) is horizontal within its confidence:
+    ``dip_significant`` is false, ``dip`` and ``dip_ci95`` are still given, and the dip
+    direction, its half-width, its true-north azimuth and the strike are ``None`` (they are
+    undefined for a horizontal plane), with a ``horizontal`` sentence saying so.
     """
     xyz = np.asarray(xyz, dtype=float)
     try:
@@ -413,6 +419,8 @@ def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples:
         return {"quality": "undetermined", "reason": quality.reason, "advice": quality.advice,
                 "n_picks": plane.n_points}
     gamma = meridian_convergence_deg(crs_wkt, plane.centroid[0], plane.centroid[1])
+    significant = dip_is_significant(plane.dip_deg, None if conf is None else conf.dip_ci95_deg,
+                                     None if conf is None else conf.cone95_deg)
     out = {
         "dip": plane.dip_deg,
         "dip_direction": plane.dip_direction_deg,
@@ -431,7 +439,13 @@ def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples:
         "collinearity_K": quality.collinearity,
         "meridian_convergence_deg": gamma,
         "dip_direction_true": float(grid_to_true_azimuth(plane.dip_direction_deg, gamma)),
+        "dip_significant": significant,
     }
+    if not significant:
+        ci = "" if conf is None else f" +/- {conf.dip_ci95_deg:.2g}"
+        out.update(dip_direction=None, strike_rhr=None, dip_direction_true=None, dip_direction_ci95=None,
+                   horizontal=(f"horizontal within its 95% confidence: dip {plane.dip_deg:.2g}{ci} deg does "
+                               "not differ from 0, so the plane has no dip direction or strike"))
     return out
 
 

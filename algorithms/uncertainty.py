@@ -26,6 +26,14 @@ its half-width is 180°. Replicates are compared with the estimate in the sense 
 normal, so a steep plane whose replicates pass beyond vertical gives a dip deviation that runs
 on past 90° instead of folding back.
 
+Nearly horizontal planes
+------------------------
+The dip of a nearly horizontal plane is the length of a small tilt whose direction the data may
+not fix. :func:`dip_is_significant` calls the dip significant only when its 95% interval
+``dip ± h`` stays above zero *and* the pole's 95% cone does not reach the vertical; otherwise
+the plane is horizontal within its confidence, and its dip direction and strike are undefined
+(their half-widths mean nothing there, and a reported direction would be noise).
+
 Data-error basis (for the defaults a caller states)
 ---------------------------------------------------
 * DEM picks: the vertical standard error of the DEM is used directly (``sigma_z_m``). Producers
@@ -62,6 +70,7 @@ __all__ = [
     "plane_confidence",
     "contour_sigma_to_vertical",
     "vertical_sigma_of_picks",
+    "dip_is_significant",
 ]
 
 #: Two-sided 95% point of the standard normal distribution.
@@ -114,6 +123,54 @@ class PlaneConfidence:
     dip_deg: float
     dip_direction_deg: float
     n_points: int
+
+    @property
+    def dip_significant(self) -> bool:
+        """Whether the dip differs from zero at 95% (see :func:`dip_is_significant`)."""
+        return bool(dip_is_significant(self.dip_deg, self.dip_ci95_deg, self.cone95_deg))
+
+
+def dip_is_significant(dip_deg, dip_ci95_deg, cone95_deg=None):
+    """Whether a fitted dip differs from zero at the 95% level.
+
+    Parameters
+    ----------
+    dip_deg : float or array_like
+        Fitted dip (degrees, 0-90).
+    dip_ci95_deg : float or array_like
+        95% half-width of the dip (degrees); NaN or ``None`` when no confidence is known.
+    cone95_deg : float or array_like, optional
+        95% cone of the pole (degrees).
+
+    Returns
+    -------
+    bool or ndarray of bool
+        True where ``dip - dip_ci95 > 0`` and ``cone95 < dip``: the 95% interval of the dip
+        stays above zero and the pole's 95% cone excludes the vertical. False where the plane
+        is horizontal within its confidence; its dip direction and strike are then undefined.
+        Without a confidence (NaN), the dip is significant when it is above zero.
+
+    Notes
+    -----
+    A fitted dip is a magnitude, so it is biased upward near zero: picks on a truly horizontal
+    plane with any error give a small positive dip in some random direction. Both tests are
+    needed: the percentile interval of the dip can stay clear of zero while the replicates'
+    poles swing across the vertical (their dips all similar, their directions all different),
+    and the pole cone is what shows that (the dip deviation is never larger than the angle
+    between the poles).
+
+    Examples
+    --------
+    >>> bool(dip_is_significant(0.4, 0.6, 0.7)), bool(dip_is_significant(5.0, 0.6, 0.7))
+    (False, True)
+    """
+    dip = np.asarray(dip_deg, dtype=float)
+    h = np.asarray(np.nan if dip_ci95_deg is None else dip_ci95_deg, dtype=float)
+    cone = np.asarray(np.nan if cone95_deg is None else cone95_deg, dtype=float)
+    h = np.where(np.isfinite(h), h, 0.0)
+    cone = np.where(np.isfinite(cone), cone, 0.0)
+    out = (dip - h > 0) & (cone < dip)
+    return out if out.ndim else bool(out)
 
 
 # --------------------------------------------------------------------------------------------

@@ -5,9 +5,11 @@ import pytest
 from strikeline.diagnostics import (
     GOOD_MAX_COLLINEARITY,
     GOOD_MIN_COPLANARITY,
+    STRAIGHT_MAX_MAP_SPREAD,
     UNDETERMINED_MIN_COLLINEARITY,
     assess_plane,
     classify_planes,
+    map_spread,
     shape_measures,
 )
 from strikeline.errors import InputError
@@ -103,18 +105,49 @@ def test_near_collinear_picks_are_undetermined():
     assert q.quality == "undetermined" and q.reason_code == "collinear"
 
 
-def test_curved_trace_on_flat_ground_is_undetermined():
+def test_curved_trace_at_one_height_is_a_horizontal_plane():
+    # Geometry (common practice): a plane meets a level surface in a straight line unless the
+    # plane is itself level, so a level trace that bends in map view fixes a horizontal plane.
     t = np.linspace(0, 5, 300)
     picks = np.column_stack([800 * np.cos(t), 500 * np.sin(t), np.full_like(t, 12.0)])
     q = assess_plane(picks)
+    assert q.quality == "good" and q.reason_code == "level" and q.advice == ""
+    assert "one height" in q.reason and "horizontal plane" in q.reason
+    assert q.map_spread > STRAIGHT_MAX_MAP_SPREAD
+
+
+def test_straight_trace_on_flat_ground_is_undetermined():
+    # a straight contact on flat ground: every plane through the line fits, horizontal to vertical
+    rng = np.random.default_rng(4)
+    x = np.linspace(0, 1500, 300)
+    picks = np.column_stack([x, 0.7 * x + rng.normal(0, 2.0, 300), 12.0 + rng.normal(0, 0.05, 300)])
+    q = assess_plane(picks)
     assert q.quality == "undetermined" and q.reason_code == "flat"
-    assert "flat ground" in q.reason and "0.00 m" in q.reason
+    assert "straight line in map view" in q.reason and "flat ground" in q.reason
     assert all(word in q.advice for word in HELPFUL_DATA)
+    # hand-worked: the map-view RMS distance from the line (about 2 m / sqrt(1 + 0.7^2)) over the
+    # RMS spread along it (1500 * sqrt(1 + 0.7^2) / sqrt(12)) is about 0.3%
+    assert q.map_spread == pytest.approx(2.0 / np.hypot(1, 0.7) / (1500 * np.hypot(1, 0.7) / np.sqrt(12)),
+                                         rel=0.2)
+
+
+def test_map_spread_hand_worked():
+    # Source: hand-worked - a circle has equal map-view spreads (ratio 1); a grid of 401 x 101
+    # points at one spacing has variances h^2 (N^2 - 1) / 12 along each side (discrete uniform),
+    # so the ratio of RMS spreads is sqrt((101^2 - 1) / (401^2 - 1))
+    t = np.linspace(0, 2 * np.pi, 720, endpoint=False)
+    q = np.column_stack([np.cos(t), np.sin(t), np.zeros_like(t)])
+    assert map_spread(q.T @ q) == pytest.approx(1.0, abs=1e-9)
+    g = np.stack(np.meshgrid(np.linspace(-2, 2, 401), np.linspace(-0.5, 0.5, 101)), -1).reshape(-1, 2)
+    assert map_spread(g.T @ g) == pytest.approx(np.sqrt((101 ** 2 - 1) / (401 ** 2 - 1)), rel=1e-9)
+    assert np.isnan(map_spread(np.zeros((3, 3))))
+    with pytest.raises(InputError, match="3 x 3 or 2 x 2"):
+        map_spread(np.zeros((4, 4)))
 
 
 def test_relief_threshold_scales_with_the_vertical_error():
-    t = np.linspace(0, 5, 300)
-    picks = np.column_stack([800 * np.cos(t), 500 * np.sin(t), 12.0 + 3.0 * np.sin(4 * t)])
+    x = np.linspace(0, 1500, 300)
+    picks = np.column_stack([x, 0.7 * x, 12.0 + 3.0 * np.sin(x / 100.0)])
     assert assess_plane(picks).reason_code != "flat"  # 6 m relief > 1 m default
     assert assess_plane(picks, sigma_z_m=2.0).reason_code == "flat"  # needs 4 x 2 = 8 m
 

@@ -369,3 +369,35 @@ def test_block_bootstrap_falls_back_to_picks_with_few_blocks():
     assert bootstrap_plane(pts, n_resamples=100, groups=lab).method == "bootstrap"
     with pytest.raises(InputError, match="one label per pick"):
         bootstrap_plane(pts, n_resamples=100, groups=lab[:-1])
+
+
+def test_dip_significance_of_horizontal_and_gently_dipping_planes():
+    # Source: the meaning of a 95% confidence level (Efron & Tibshirani 1993): on a truly
+    # horizontal plane the 95% interval of the dip reaches 0 in about 95% of samples (more here,
+    # since bootstrap and Monte Carlo are added in quadrature), so the dip is called significant
+    # in at most about 5%; a 1 degree dip, 70 times its standard error here, always is.
+    from strikeline.uncertainty import dip_is_significant, plane_confidence
+
+    n_sets, hits_flat, hits_gentle = 60, 0, 0
+    for seed in range(n_sets):
+        rng = np.random.default_rng(seed)
+        xy = rng.uniform(0, 1000, (200, 2))
+        noise = rng.normal(0, 1.0, 200)
+        for dip, counter in ((0.0, "flat"), (1.0, "gentle")):
+            z = 300.0 - np.tan(np.radians(dip)) * xy[:, 0] + noise
+            c = plane_confidence(np.column_stack([xy, z]), sigma_z_m=1.0, n_resamples=200, n_draws=200,
+                                 seed=seed)
+            assert c.dip_significant == dip_is_significant(c.dip_deg, c.dip_ci95_deg, c.cone95_deg)
+            if counter == "flat":
+                hits_flat += c.dip_significant
+            else:
+                hits_gentle += c.dip_significant
+    assert hits_flat / n_sets <= 0.1
+    assert hits_gentle == n_sets
+    # the two tests of dip_is_significant, worked by hand
+    assert not dip_is_significant(0.4, 0.6, 0.3)  # interval reaches 0
+    assert not dip_is_significant(0.4, 0.3, 0.5)  # cone reaches the vertical
+    assert dip_is_significant(0.4, 0.3, 0.35)
+    assert not dip_is_significant(0.0, None)  # an exactly level three-point plane
+    np.testing.assert_array_equal(dip_is_significant(np.array([0.4, 5.0]), np.array([0.6, 0.6]),
+                                                     np.array([0.7, 0.7])), [False, True])

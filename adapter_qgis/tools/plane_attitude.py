@@ -168,7 +168,11 @@ class PlaneAttitude(StrikelineAlgorithm):
         steps.feedback.setProgress(10)
         whole, where = plane_of(np.ones(len(xyz), dtype=bool), f"picks {name.what}")
         planes = [("", whole, where)]
-        if whole.get("dip") is not None:
+        if whole.get("dip") is not None and whole.get("dip_direction") is None:
+            steps.log(f"best-fit plane: dip {whole['dip']:.3f}° ± {whole.get('dip_ci95') or 0:.3f}°, horizontal "
+                      f"within its 95% confidence: no dip direction or strike; RMS residual {whole['rms_m']:.2f} m "
+                      f"from {whole['n_picks']} picks")
+        elif whole.get("dip") is not None:
             steps.log(f"best-fit plane: dip {whole['dip']:.2f}° toward {whole['dip_direction']:.1f}° "
                       f"(strike {whole['strike_rhr']:.1f}° RHR; {whole['dip_direction_true']:.1f}° from true "
                       f"north), RMS residual {whole['rms_m']:.2f} m from {whole['n_picks']} picks")

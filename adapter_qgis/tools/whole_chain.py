@@ -165,9 +165,11 @@ class WholeChain(StrikelineAlgorithm):
         r = compute(inputs, opts, log=steps.log, progress=steps.part(0.05, 0.8), is_cancelled=steps.is_cancelled)
         s = r.summary
         plane = s["plane"]
-        steps.log(f"best-fit plane: dip {plane['dip']:.2f}° ± {plane['dip_ci95'] or 0:.2f}° toward "
-                  f"{plane['dip_direction']:.1f}° (strike {plane['strike_rhr']:.1f}° RHR), quality {plane['quality']}; "
-                  f"surface model {s['model']['chosen']}")
+        toward = (f"toward {plane['dip_direction']:.1f}° (strike {plane['strike_rhr']:.1f}° RHR)"
+                  if plane.get("dip_direction") is not None else
+                  "horizontal within its 95% confidence (no dip direction or strike)")
+        steps.log(f"best-fit plane: dip {plane['dip']:.2f}° ± {plane['dip_ci95'] or 0:.2f}° {toward}, quality "
+                  f"{plane['quality']}; surface model {s['model']['chosen']}")
         steps.feedback.setProgress(85)
         # Last chance to stop: from here on the outputs are written, all or nothing.
         steps.check("whole chain")

@@ -215,7 +215,10 @@ def _plane_lines(title: str, pl: dict, options: dict) -> list[str]:
 
     dd_ci = pl.get("dip_direction_ci95")
     lines = [f"{title} ({n} points): {q}"]
-    if dd_ci is not None and dd_ci >= _DD_UNDETERMINED:
+    if pl.get("dip_direction") is None:
+        lines.append(f"  dip {pl['dip']:.2f}{pm(pl['dip_ci95'])} deg: horizontal within its 95% confidence "
+                     "(the dip does not differ from 0, so there is no dip direction or strike)")
+    elif dd_ci is not None and dd_ci >= _DD_UNDETERMINED:
         lines.append(f"  dip {pl['dip']:.2f}{pm(pl['dip_ci95'])} deg; dip direction undetermined within "
                      f"the 95% confidence (estimate {pl['dip_direction']:.1f} deg from grid north, "
                      f"{pl['dip_direction_true']:.1f} deg from true north): the plane is nearly horizontal")
@@ -224,7 +227,8 @@ def _plane_lines(title: str, pl: dict, options: dict) -> list[str]:
                      f"{pm(dd_ci)} deg from grid north")
         lines.append(f"  dip direction from true north {pl['dip_direction_true']:.2f}{pm(dd_ci)} deg "
                      f"(meridian convergence {pl['meridian_convergence_deg']:+.3f} deg at the points' centre)")
-    lines.append(f"  strike {pl['strike_rhr']:.2f} deg (right-hand rule, grid north)")
+    if pl.get("strike_rhr") is not None:
+        lines.append(f"  strike {pl['strike_rhr']:.2f} deg (right-hand rule, grid north)")
     if pl.get("dip_ci95") is None:
         lines.append(f"  RMS residual {pl['rms_m']:.2f} m; no 95% half-widths: {n} points fix a plane exactly "
                      "but leave no scatter to estimate its error (a bootstrap needs at least 4); add points")

@@ -98,6 +98,9 @@ def describe_plane(pl: dict) -> str:
     """The plane in plain words; an undetermined plane gets no number."""
     if pl.get("quality") == "undetermined":
         return f"undetermined - {pl['reason']}; {pl['advice']}"
+    if pl.get("dip_direction") is None:
+        return (f"dip {_pm(pl['dip'], pl.get('dip_ci95'))} deg: horizontal within its 95% confidence (no dip "
+                f"direction or strike), RMS residual {pl['rms_m']:.2f} m, {pl['n_picks']} picks, quality {pl['quality']}")
     return (f"dip {_pm(pl['dip'], pl.get('dip_ci95'))} deg toward {_pm(pl['dip_direction'], pl.get('dip_direction_ci95'))} "
             f"deg (grid north; {pl['dip_direction_true']:.2f} deg from true north), strike {pl['strike_rhr']:.1f} deg RHR, "
             f"RMS residual {pl['rms_m']:.2f} m, {pl['n_picks']} picks, quality {pl['quality']}")

@@ -247,18 +247,24 @@ def test_plane_per_group(run, sheet):
     assert abs(rows["dip_deg"][1] - rows["dip_deg"][2]) < 0.5
 
 
-def test_undetermined_quality_is_a_warning_in_the_log(run):
+def _point_layer(name, xyz):
     from qgis.core import QgsFeature, QgsGeometry, QgsVectorLayer
 
-    # Picks on flat ground: 1 cm of relief over a kilometre cannot show a dip.
-    mem = QgsVectorLayer("PointZ?crs=EPSG:32631", "lake_shore", "memory")
-    rng = np.random.default_rng(7)
+    mem = QgsVectorLayer("PointZ?crs=EPSG:32631", name, "memory")
     feats = []
-    for x, y, dz in zip(rng.uniform(0, 1000, 40), rng.uniform(0, 1000, 40), rng.uniform(0, 0.01, 40)):
+    for x, y, z in xyz:
         f = QgsFeature()
-        f.setGeometry(QgsGeometry.fromWkt(f"PointZ ({x} {y} {440.0 + dz})"))
+        f.setGeometry(QgsGeometry.fromWkt(f"PointZ ({x} {y} {z})"))
         feats.append(f)
     mem.dataProvider().addFeatures(feats)
+    return mem
+
+
+def test_undetermined_quality_is_a_warning_in_the_log(run):
+    # Picks along one straight line on flat ground: every plane through the line fits them.
+    t = np.linspace(0.0, 1000.0, 40)
+    rng = np.random.default_rng(7)
+    mem = _point_layer("straight_shore", np.column_stack([t, 0.5 * t, 440.0 + rng.uniform(0, 0.01, 40)]))
     fb = QgsProcessingFeedback()
     warnings = []
     fb.pushWarning = warnings.append
@@ -266,6 +272,29 @@ def test_undetermined_quality_is_a_warning_in_the_log(run):
     assert res["QUALITY"] == "undetermined"
     assert any("plane quality undetermined" in w and "data that would help" in w for w in warnings)
     assert res["DIP_DEG"] is None  # an undetermined plane reports no attitude
+
+
+def test_level_picks_give_a_horizontal_plane_without_direction(run):
+    from strikeline.pipeline import attitude_of
+
+    # Picks at one height (1 cm of scatter) spread over a square kilometre: only a horizontal
+    # plane passes through them (common practice: a horizontal contact follows the contours).
+    rng = np.random.default_rng(7)
+    xyz = np.column_stack([rng.uniform(0, 1000, 40), rng.uniform(0, 1000, 40), 440.0 + rng.uniform(0, 0.01, 40)])
+    fb = QgsProcessingFeedback()
+    logs = []
+    fb.pushInfo = logs.append
+    res = run("planeattitude", {"PICKS": _point_layer("lake_shore", xyz), "RESAMPLES": 50, "ATTITUDE": TMP},
+              feedback=fb)
+    att = attitude_of(xyz, None, crs_wkt=QgsCoordinateReferenceSystem("EPSG:32631").toWkt(), what="picks",
+                      strict=False, resamples=50)
+    assert att["dip_significant"] is False and res["QUALITY"] == att["quality"] == "good"
+    assert res["DIP_DEG"] == pytest.approx(att["dip"], abs=1e-12) and res["DIP_CI95_DEG"] == att["dip_ci95"]
+    assert res["DIP_DIRECTION_DEG"] is None and res["STRIKE_RHR_DEG"] is None
+    assert res["DIP_DIRECTION_TRUE_DEG"] is None and res["DIP_DIRECTION_CI95_DEG"] is None
+    assert any("horizontal within its 95% confidence" in m for m in logs)
+    _, row = table(res["ATTITUDE"])
+    assert row["dip_direction_deg"][0] is None and row["strike_rhr_deg"][0] is None  # null fields
 
 
 def test_local_attitudes_are_the_library_ones(run, sheet, reference):
