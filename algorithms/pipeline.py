@@ -36,8 +36,9 @@ from strikeline.picks import (PickSet, ground_slope_from_contours, picks_from_co
                               picks_from_dem, sample_bilinear)
 from strikeline.surfaces import SurfaceModel, fit_surface
 from strikeline.thickness import isopach_grids
+from strikeline.units import UnitBounds, bound_violation_m, parse_unit_names, unit_bounds
 from strikeline.trace import contact_misfit_segments, distance_to_lines, split_lines_by_flag, trace_misfit
-from strikeline.uncertainty import PlaneConfidence, dip_is_significant, plane_confidence, vertical_sigma_of_picks
+from strikeline.uncertainty import PlaneConfidence, plane_confidence, vertical_sigma_of_picks
 
 
 Log = Callable[[str], None]
@@ -80,6 +81,12 @@ class RunOptions:
     top_contacts: str | None = None
     top_contacts_layer: str | None = None
     top_where: str | None = None
+    # the geological map's unit polygons as constraints (issue 8)
+    map_units: str | None = None
+    map_units_layer: str | None = None
+    unit_field: str | None = None
+    units_above: str | None = None  # comma-separated unit names
+    units_below: str | None = None
     misfit_flag_m: float | None = None
     # confidence and local attitudes (issue 3)
     dem_sigma_m: float = DEFAULT_DEM_SIGMA_M
@@ -104,6 +111,8 @@ class Inputs:
     boreholes_xyz: np.ndarray | None = None  # (n, 3) x, y, surface elevation
     orientations: np.ndarray | None = None  # (n, 4) x, y, dip, dip direction
     top_contacts: VectorLayer | None = None
+    unit_polygons: np.ndarray | None = None  # the map's unit polygons (DEM's CRS) ...
+    unit_names: np.ndarray | None = None  # ... and the unit of each, as text
 
 
 @dataclass
@@ -130,6 +139,7 @@ class Results:
     vertical_thickness_m: np.ndarray | None = None
     true_thickness_m: np.ndarray | None = None
     top_picks: PickSet | None = None
+    unit_check: dict | None = None  # map units: see map_unit_check
 
 
 # --------------------------------------------------------------------------- checks on options
@@ -161,9 +171,41 @@ def check_options(opts: RunOptions) -> None:
     _positive(opts.orientation_sigma_deg, "--orientation-sigma (degrees)", allow_zero=True)
     if not (isinstance(opts.resamples, int) and opts.resamples >= 100):
         raise InputError(f"--resamples must be a whole number of at least 100, got {opts.resamples}")
+    check_unit_options(opts)
     check_out_folder(opts.out, overwrite=opts.overwrite,
                      inputs=(opts.contacts, opts.dem, opts.contours, opts.boreholes, opts.orientations,
-                             opts.top_contacts))
+                             opts.top_contacts, opts.map_units))
+
+
+def check_unit_options(opts: RunOptions, *, names: dict | None = None) -> None:
+    """The map-unit options go together: a layer, its unit field, at least one unit list, no unit
+    on both sides, and a DEM (``names`` says how to name the options; default the CLI's)."""
+    names = names or CLI_OPTION_NAMES
+    above, below = parse_unit_names(opts.units_above), parse_unit_names(opts.units_below)
+    if not opts.map_units:
+        if above or below or opts.unit_field:
+            given = names["units_above"] if above else names["units_below"] if below else names["unit_field"]
+            raise InputError(f"{given} needs {names['map_units']}: give the polygon layer of the map's units too")
+        return
+    if not opts.dem:
+        raise InputError(f"{names['map_units']} needs a DEM (--dem): the units say whether the surface lies "
+                         "below or above the ground, and the ground comes from the DEM")
+    _check_unit_lists(opts, names, f"'{opts.map_units}'")
+
+
+def _check_unit_lists(opts: RunOptions, names: dict, what: str) -> None:
+    above, below = parse_unit_names(opts.units_above), parse_unit_names(opts.units_below)
+    if not opts.unit_field:
+        raise InputError(f"{names['map_units']} {what}: name the field that holds each polygon's unit with "
+                         f"{names['unit_field']}")
+    if not above and not below:
+        raise InputError(f"{names['map_units']} {what}: say which units lie above the surface "
+                         f"({names['units_above']}) and/or below it ({names['units_below']}), as comma-separated "
+                         "unit names")
+    both = sorted(set(above) & set(below))
+    if both:
+        raise InputError(f"{names['units_above']} and {names['units_below']} both name {', '.join(both)}; a unit "
+                         "lies on one side of the surface only - remove it from one list")
 
 
 # --------------------------------------------------------------------------- loading
@@ -185,6 +227,8 @@ CLI_OPTION_NAMES = {
     "borehole_z_field": "--borehole-z-field", "borehole_collar_field": "--borehole-collar-field",
     "borehole_depth_field": "--borehole-depth-field", "dip_field": "--dip-field",
     "dip_direction_field": "--dip-direction-field", "strike_field": "--strike-field",
+    "map_units": "--map-units", "unit_field": "--unit-field", "units_above": "--units-above",
+    "units_below": "--units-below",
 }
 
 
@@ -275,17 +319,22 @@ def load_inputs(opts: RunOptions, *, log: Log = _quiet) -> Inputs:
     if opts.top_contacts:
         top = read_layer(opts.top_contacts, layer=opts.top_contacts_layer, where=opts.top_where,
                          label="top contacts", geometry="line", layer_option="--top-contacts-layer")
+    units = None
+    if opts.map_units:
+        units = read_layer(opts.map_units, layer=opts.map_units_layer, label="map units", geometry="polygon",
+                           layer_option="--map-units-layer")
     paths = {k: v for k, v in (("contacts", opts.contacts), ("dem", opts.dem), ("contours", opts.contours),
                                ("boreholes", opts.boreholes), ("orientations", opts.orientations),
-                               ("top_contacts", opts.top_contacts)) if v}
+                               ("top_contacts", opts.top_contacts), ("map_units", opts.map_units)) if v}
     return assemble_inputs(contacts, opts, dem=dem, dem_grid=grid, contours=contours, boreholes=boreholes,
-                           orientations=orientations, top_contacts=top, paths=paths, log=log)
+                           orientations=orientations, top_contacts=top, map_units=units, paths=paths,
+                           log=log)
 
 
 def assemble_inputs(contacts: VectorLayer, opts: RunOptions, *, dem=None, dem_grid: Grid | None = None,
                     contours: VectorLayer | None = None, boreholes: VectorLayer | None = None,
                     orientations: VectorLayer | None = None, top_contacts: VectorLayer | None = None,
-                    paths: dict | None = None, log: Log = _quiet, names: dict = CLI_OPTION_NAMES) -> Inputs:
+                    map_units: VectorLayer | None = None, paths: dict | None = None, log: Log = _quiet, names: dict = CLI_OPTION_NAMES) -> Inputs:
     """Check layers already in memory and bring them into one CRS: the second half of
     :func:`load_inputs`, for callers that read the layers themselves (the QGIS adapter).
 
@@ -319,11 +368,99 @@ def assemble_inputs(contacts: VectorLayer, opts: RunOptions, *, dem=None, dem_gr
     boreholes = reproject_to(boreholes, target, label="boreholes", log=log)
     orientations = reproject_to(orientations, target, label="orientations", log=log)
     top_contacts = reproject_to(top_contacts, target, label="top contacts", log=log)
+    unit_polys = unit_labels = None
+    if map_units is not None:
+        if dem is None:
+            raise InputError(f"{names['map_units']} {map_units.what} needs a DEM: the units say whether the "
+                             "surface lies below or above the ground, and the ground comes from the DEM")
+        map_units = reproject_to(map_units, target, label="map units", log=log)
+        unit_polys, unit_labels = map_unit_polygons(map_units, opts, names=names)
     return Inputs(contacts=contacts, crs_wkt=target.ExportToWkt(), dem=dem, dem_grid=dem_grid,
                   contours=contours, contour_elevations_m=elev, paths=dict(paths or {}),
                   boreholes_xyz=None if boreholes is None else borehole_points(boreholes, opts, names=names),
                   orientations=None if orientations is None else orientation_rows(orientations, opts, names=names),
-                  top_contacts=top_contacts)
+                  top_contacts=top_contacts, unit_polygons=unit_polys, unit_names=unit_labels)
+
+
+def map_unit_polygons(lyr: VectorLayer, opts: RunOptions, *, names: dict = CLI_OPTION_NAMES):
+    """``(polygons, unit names)`` of the map-units layer, checked against ``--units-above`` and
+    ``--units-below`` (names not found are an error that lists the units found)."""
+    _check_unit_lists(opts, names, lyr.what)
+    field = opts.unit_field
+    if field not in lyr.fields:
+        raise InputError(f"{names['unit_field']}: {lyr.what} has no field '{field}' "
+                         f"(fields: {', '.join(lyr.fields) or 'none'}); name the field that holds the units")
+    labels = np.array([None if v is None else str(v).strip() for v in lyr.fields[field]], dtype=object)
+    found = sorted({u for u in labels if u is not None})
+    wanted = parse_unit_names(opts.units_above) + parse_unit_names(opts.units_below)
+    missing = [u for u in wanted if u not in found]
+    if missing:
+        shown = ", ".join(found[:40]) + (f" and {len(found) - 40} more" if len(found) > 40 else "")
+        raise InputError(f"{names['units_above']}/{names['units_below']}: unit(s) {', '.join(missing)} not found "
+                         f"in field '{field}' of {lyr.what} (units found: {shown or 'none'}); use the names as "
+                         "mapped")
+    return lyr.geoms, labels
+
+
+#: A map-unit bound counts as broken by the final surface beyond this many metres.
+UNIT_VIOLATION_M = 0.01
+
+
+def map_unit_bounds(polygons, labels, dem, dem_grid: Grid, opts: RunOptions, *, log: Log = _quiet,
+                    spacing_m: float | None = None, max_points: int = 2000) -> UnitBounds:
+    """The inequality constraints of the map's units (:func:`strikeline.units.unit_bounds`): the
+    DEM loosened by ``--dem-sigma``, points two DEM cells inside the units' outlines."""
+    ub = unit_bounds(polygons, labels, dem, dem_grid, units_above=opts.units_above, units_below=opts.units_below,
+                     tolerance_m=opts.dem_sigma_m, spacing_m=spacing_m, max_points=max_points)
+    log(f"map units: {len(ub)} constraint points every {ub.spacing_m:.4g} m ({ub.n_above} under units above "
+        f"the surface, {ub.n_below} under units below it), {ub.margin_m:.4g} m inside the units' outlines")
+    if len(ub) == 0:
+        log("warning: no constraint point from the map units: their polygons lie off the DEM or are "
+            "narrower than twice the margin")
+    return ub
+
+
+def map_unit_check(model: SurfaceModel, polygons, labels, dem, dem_grid: Grid, opts: RunOptions,
+                   ub: UnitBounds, *, log: Log = _quiet) -> dict:
+    """Where the fitted surface still breaks the map's units, checked on a lattice twice as dense
+    as the constraint points (so also between them).
+
+    Returns ``{"xy", "unit", "side", "violation_m"}`` of the check points broken by more than
+    ``UNIT_VIOLATION_M`` and ``"summary"`` (the ``map_units`` entry of summary.json).
+    """
+    spacing = ub.spacing_m / 2 if np.isfinite(ub.spacing_m) else None
+    chk = unit_bounds(polygons, labels, dem, dem_grid, units_above=opts.units_above, units_below=opts.units_below,
+                      tolerance_m=opts.dem_sigma_m, spacing_m=spacing, max_points=4 * max(len(ub), 1) + 100)
+    z = model.evaluate(chk.bounds[:, 0], chk.bounds[:, 1]) if len(chk) else np.empty(0)
+    v = bound_violation_m(chk.bounds, z)
+    bad = v > UNIT_VIOLATION_M
+    above, below = parse_unit_names(opts.units_above), parse_unit_names(opts.units_below)
+    found = sorted({u for u in labels if u is not None})
+    summary = {
+        "field": opts.unit_field, "units_above": list(above), "units_below": list(below),
+        "units_ignored": [u for u in found if u not in above + below],
+        "n_points": len(ub), "n_above": ub.n_above, "n_below": ub.n_below, "spacing_m": ub.spacing_m,
+        "margin_m": ub.margin_m, "tolerance_m": ub.tolerance_m,
+        "check": {"n_points": len(chk), "spacing_m": chk.spacing_m, "threshold_m": UNIT_VIOLATION_M,
+                  "n_violated": int(bad.sum()), "share_violated": float(bad.mean()) if len(chk) else None,
+                  "max_violation_m": float(v.max()) if len(v) else None,
+                  "n_violated_above": int(np.count_nonzero(bad & (chk.side == "above"))),
+                  "n_violated_below": int(np.count_nonzero(bad & (chk.side == "below")))},
+        "meaning": "where a unit above the surface crops out the surface lies below ground (z <= DEM + "
+                   "tolerance); where a unit below crops out it lies above ground (z >= DEM - tolerance)",
+    }
+    if len(chk):
+        log(f"map units: the surface breaks {int(bad.sum())} of {len(chk)} check points "
+            f"({100 * bad.mean():.1f}%), by at most {float(v.max()):.2f} m" + (" (layer unit_conflicts)" if bad.any() else ""))
+    return {"xy": chk.bounds[bad, :2], "unit": chk.unit[bad], "side": chk.side[bad], "violation_m": v[bad],
+            "summary": summary}
+
+
+def unit_conflicts_layer(check: dict) -> LayerOut:
+    """The ``unit_conflicts`` layer: check points where the surface breaks the map's units."""
+    return LayerOut("unit_conflicts", shapely.points(check["xy"]) if len(check["xy"]) else np.empty(0, dtype=object),
+                    {"unit": np.asarray(check["unit"], dtype=str), "side": np.asarray(check["side"], dtype=str),
+                     "violation_m": np.asarray(check["violation_m"], dtype=float)}, ogr.wkbPoint)
 
 
 # --------------------------------------------------------------------------- steps
@@ -389,12 +526,6 @@ def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples:
     With ``strict`` an undetermined pick set is an error (the sheet-wide plane); otherwise it is
     reported with ``quality: undetermined`` and no attitude (a group or window). ``blocks``
     (one label per pick, e.g. contact segments) makes the bootstrap resample whole blocks.
-
-    A plane whose dip does not differ from zero at 95%
-    (:func:`strikeline.uncertainty.dip_is_significant`) is horizontal within its confidence:
-    ``dip_significant`` is false, ``dip`` and ``dip_ci95`` are still given, and the dip
-    direction, its half-width, its true-north azimuth and the strike are ``None`` (they are
-    undefined for a horizontal plane), with a ``horizontal`` sentence saying so.
     """
     xyz = np.asarray(xyz, dtype=float)
     try:
@@ -419,8 +550,6 @@ def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples:
         return {"quality": "undetermined", "reason": quality.reason, "advice": quality.advice,
                 "n_picks": plane.n_points}
     gamma = meridian_convergence_deg(crs_wkt, plane.centroid[0], plane.centroid[1])
-    significant = dip_is_significant(plane.dip_deg, None if conf is None else conf.dip_ci95_deg,
-                                     None if conf is None else conf.cone95_deg)
     out = {
         "dip": plane.dip_deg,
         "dip_direction": plane.dip_direction_deg,
@@ -439,13 +568,7 @@ def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples:
         "collinearity_K": quality.collinearity,
         "meridian_convergence_deg": gamma,
         "dip_direction_true": float(grid_to_true_azimuth(plane.dip_direction_deg, gamma)),
-        "dip_significant": significant,
     }
-    if not significant:
-        ci = "" if conf is None else f" +/- {conf.dip_ci95_deg:.2g}"
-        out.update(dip_direction=None, strike_rhr=None, dip_direction_true=None, dip_direction_ci95=None,
-                   horizontal=(f"horizontal within its 95% confidence: dip {plane.dip_deg:.2g}{ci} deg does "
-                               "not differ from 0, so the plane has no dip direction or strike"))
     return out
 
 
@@ -483,7 +606,7 @@ def segment_labels(xyz, contact_id, *, cell_m: float = 1.0) -> np.ndarray:
     return segment_groups(xyz[:, 0], xyz[:, 1], cid, block_m=block_m)
 
 
-def model_surface(picks: PickSet, opts: RunOptions, grid: Grid, *, boreholes=None, orientations=None,
+def model_surface(picks: PickSet, opts: RunOptions, grid: Grid, *, boreholes=None, orientations=None, bounds=None,
                   what: str, is_cancelled=None) -> SurfaceModel:
     """Fit the ``--model`` surface to picks (and constraints), folds by contact segment."""
     xyz = picks.xyz
@@ -496,7 +619,7 @@ def model_surface(picks: PickSet, opts: RunOptions, grid: Grid, *, boreholes=Non
         orient = np.column_stack([orientations, np.full(len(orientations), opts.orientation_sigma_deg)])
     try:
         return fit_surface(xyz, model=opts.model, boreholes=bh, orientations=orient, groups=groups,
-                           seed=opts.seed, is_cancelled=is_cancelled)
+                           seed=opts.seed, is_cancelled=is_cancelled, bounds=bounds)
     except UndeterminedError as exc:
         raise UndeterminedError(f"{what}: {exc}") from None
 
@@ -595,9 +718,15 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     attitudes = local_attitudes(picks.xyz, window_m=opts.window_m, contact_id=picks.contact_id,
                                 sigma_z_m=sigma, seed=opts.seed, is_cancelled=is_cancelled)
     step(3)
+    ub = None
+    if inputs.unit_polygons is not None:
+        ub = map_unit_bounds(inputs.unit_polygons, inputs.unit_names, inputs.dem, inputs.dem_grid, opts, log=log)
     model = model_surface(picks, opts, grid, boreholes=inputs.boreholes_xyz, orientations=inputs.orientations,
+                          bounds=None if ub is None else ub.bounds,
                           what=what, is_cancelled=is_cancelled)
     surface = model.evaluate_grid(grid, is_cancelled=is_cancelled)
+    unit_check = None if ub is None else map_unit_check(model, inputs.unit_polygons, inputs.unit_names, inputs.dem,
+                                                        inputs.dem_grid, opts, ub, log=log)
     uncertainty = model.standard_error_grid(grid, is_cancelled=is_cancelled)
     step(4)
     dip, dipdir = dip_grids(surface, grid, is_cancelled=is_cancelled)
@@ -650,11 +779,14 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
                             model=model, groups=groups, attitudes=attitudes, segments=segments,
                             flag_m=flag_m, thickness=thickness, contour_flags=cflags, trace_flags=tflags,
                             n_top_picks=None if top_picks is None else len(top_picks))
+    if unit_check is not None:
+        summary["map_units"] = json_ready(unit_check["summary"])
     step(9)
     return Results(picks, plane, grid, surface, dip, dipdir, depth, cparts, clevels, trace, summary,
                    model=model, uncertainty_m=uncertainty, contour_extrapolated=cflags,
                    trace_extrapolated=tflags, contact_misfit=segments, attitudes=attitudes,
-                   vertical_thickness_m=vth, true_thickness_m=tth, top_picks=top_picks)
+                   vertical_thickness_m=vth, true_thickness_m=tth, top_picks=top_picks,
+                   unit_check=unit_check)
 
 
 # --------------------------------------------------------------------------- summary
@@ -783,6 +915,8 @@ def result_layers(r: Results) -> list[LayerOut]:
         layers.append(attitudes_layer(r.attitudes))
     if r.top_picks is not None:
         layers.append(picks_layer("top_picks", r.top_picks))
+    if r.unit_check is not None:
+        layers.append(unit_conflicts_layer(r.unit_check))
     return layers
 
 

@@ -104,6 +104,7 @@ distance outside it are flagged.
 """
 from __future__ import annotations
 
+import dataclasses
 import os
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
@@ -362,6 +363,11 @@ class _Data:
     scale: float          # metres
     footprint_m: float
     pick_sigma_m: float | None
+    # Inequalities lo <= z(x, y) <= hi (unit polygons of the map; strikeline.units); like
+    # boreholes never held out, but not data: they widen neither the hull nor the reach.
+    c_xy: np.ndarray = field(default_factory=lambda: np.empty((0, 2)))
+    c_lo: np.ndarray = field(default_factory=lambda: np.empty(0))
+    c_hi: np.ndarray = field(default_factory=lambda: np.empty(0))
 
     def u(self, xy):
         return (np.asarray(xy, float) - self.origin) / self.scale
@@ -375,7 +381,11 @@ class _Data:
     def picks(self, index):
         return _Data(self.p_xy[index], self.p_z[index], self.b_xy, self.b_z, self.b_sig,
                      self.o_xy, self.o_g, self.o_sig, self.origin, self.scale, self.footprint_m,
-                     self.pick_sigma_m)
+                     self.pick_sigma_m, self.c_xy, self.c_lo, self.c_hi)
+
+    @property
+    def n_bounds(self):
+        return len(self.c_lo)
 
     @property
     def n(self):
@@ -383,7 +393,7 @@ class _Data:
 
     @property
     def has_constraints(self):
-        return len(self.b_z) > 0 or len(self.o_sig) > 0
+        return len(self.b_z) > 0 or len(self.o_sig) > 0 or self.n_bounds > 0
 
 
 def _as_table(value, name, columns, optional_last):
@@ -407,9 +417,30 @@ def _per_row(value, n, name):
     return v
 
 
+def _bounds_table(bounds):
+    """``bounds`` as ``(x, y, lo, hi)`` columns: finite positions, lo <= hi, rows with both
+    sides infinite dropped."""
+    if bounds is None or np.size(bounds) == 0:
+        return np.empty((0, 2)), np.empty(0), np.empty(0)
+    a = np.asarray(bounds, dtype=float)
+    if a.ndim == 1 and a.size == 4:
+        a = a[None, :]
+    if a.ndim != 2 or a.shape[1] != 4:
+        raise InputError(f"bounds must be an (m, 4) array of x, y, lo, hi; got shape {a.shape}")
+    if not np.all(np.isfinite(a[:, :2])) or np.any(np.isnan(a[:, 2:])):
+        raise InputError("bounds contain non-finite positions or NaN limits; use -inf / +inf for "
+                         "an open side and remove the other rows")
+    if np.any(a[:, 2] > a[:, 3]):
+        k = int(np.flatnonzero(a[:, 2] > a[:, 3])[0])
+        raise InputError(f"bounds row {k} has lo {a[k, 2]} above hi {a[k, 3]}; give lo <= hi")
+    a = a[np.isfinite(a[:, 2]) | np.isfinite(a[:, 3])]
+    return a[:, :2].copy(), a[:, 2].copy(), a[:, 3].copy()
+
+
 def _prepare(picks_xyz, boreholes, borehole_sigma_m, orientations, orientation_sigma_deg,
-             footprint_m, pick_sigma_m) -> _Data:
+             footprint_m, pick_sigma_m, bounds=None) -> _Data:
     p = np.asarray(picks_xyz, float)
+    c_xy, c_lo, c_hi = _bounds_table(bounds)
     if boreholes is None or np.size(boreholes) == 0:
         bh = np.empty((0, 4))
     else:
@@ -460,7 +491,8 @@ def _prepare(picks_xyz, boreholes, borehole_sigma_m, orientations, orientation_s
                          f"{pick_sigma_m}")
     return _Data(p[:, :2].copy(), p[:, 2].copy(), bh[:, :2].copy(), bh[:, 2].copy(),
                  bh[:, 3].copy(), ori[:, :2].copy(), grad, o_sig, origin, scale,
-                 float(footprint_m), None if pick_sigma_m is None else float(pick_sigma_m))
+                 float(footprint_m), None if pick_sigma_m is None else float(pick_sigma_m),
+                 c_xy, c_lo, c_hi)
 
 
 # ============================================================================================
@@ -523,16 +555,21 @@ def _lsi(R, qty, B, lo, hi):
     """Least squares with two-sided linear inequality constraints (Lawson & Hanson 1974).
 
     Minimises ``||R c − qty||`` (``R`` upper triangular, invertible) subject to
-    ``lo <= B c <= hi``. Returns ``None`` when the constraints cannot all hold.
+    ``lo <= B c <= hi`` (``lo = -inf`` or ``hi = +inf`` leaves a side open). Returns ``None``
+    when the constraints cannot all hold.
     """
     c0 = linalg.solve_triangular(R, qty)
     bc0 = B @ c0
-    tol = 1e-9 * (1.0 + np.max(np.abs(np.concatenate([lo, hi]))))
+    lims = np.concatenate([lo, hi])
+    lims = lims[np.isfinite(lims)]
+    tol = 1e-9 * (1.0 + (np.max(np.abs(lims)) if len(lims) else 0.0))
     if np.all(bc0 >= lo - tol) and np.all(bc0 <= hi + tol):
         return c0
     G = linalg.solve_triangular(R, B.T, trans="T").T  # B R⁻¹
     E = np.vstack([G, -G])
     f = np.concatenate([lo - bc0, -(hi - bc0)])
+    closed = np.isfinite(f)  # an open side (-inf) is no constraint
+    E, f = E[closed], f[closed]
     # Least-distance programming: min ||w|| s.t. E w >= f, via NNLS on [Eᵀ; fᵀ] (L&H ch. 23).
     M = np.vstack([E.T, f[None, :]])
     e = np.zeros(M.shape[0])
@@ -547,6 +584,10 @@ def _lsi(R, qty, B, lo, hi):
     if np.any(bc < lo - 1e-6 * (1 + np.abs(lo))) or np.any(bc > hi + 1e-6 * (1 + np.abs(hi))):
         return None
     return c
+
+
+def _lsi_feasible(R, qty, B, lo, hi):
+    return len(B) == 0 or _lsi(R, qty, B, lo, hi) is not None
 
 
 def _fit_poly(degree, data: _Data, kind) -> _Poly:
@@ -608,11 +649,21 @@ def _fit_poly(degree, data: _Data, kind) -> _Poly:
             f"{len(data.o_sig)} dip measurements); add picks spread across the area, a dip "
             "measurement or boreholes, or use a simpler model")
     qty = Q.T @ y
-    B = np.vstack([Ab, Gu[exact], Gv[exact]])
-    lo = np.concatenate([data.b_z - data.b_sig, gu[exact], gv[exact]])
-    hi = np.concatenate([data.b_z + data.b_sig, gu[exact], gv[exact]])
+    uc = data.u(data.c_xy)
+    B = np.vstack([Ab, Gu[exact], Gv[exact], _basis(uc[:, 0], uc[:, 1], degree)])
+    lo = np.concatenate([data.b_z - data.b_sig, gu[exact], gv[exact], data.c_lo])
+    hi = np.concatenate([data.b_z + data.b_sig, gu[exact], gv[exact], data.c_hi])
     if len(B):
         c = _lsi(R, qty, B, lo, hi)
+        if c is None and data.n_bounds and not _lsi_feasible(R, qty, B[:-data.n_bounds],
+                                                             lo[:-data.n_bounds], hi[:-data.n_bounds]):
+            c = None  # the boreholes / exact dips alone already fail: say so below
+        elif c is None and data.n_bounds:
+            raise UndeterminedError(
+                f"the {name} model cannot keep the surface below ground where the units above "
+                f"it crop out and above ground where the units below crop out (at all "
+                f"{data.n_bounds} constraint points of the map's units); use a more flexible "
+                "model (trend2, spline, auto) or check which units lie above and below")
         if c is None:
             raise UndeterminedError(
                 f"the {name} model cannot pass within the stated errors of all "
@@ -791,7 +842,7 @@ def _fit_tps(data: _Data, smoothing, lam=None) -> _TPS:
             "edf": float(n - tr[0]),
             "sigma_m": sigma, "bayes_scale": bhat}
     nb, no = len(data.b_z), len(data.o_sig)
-    if nb == 0 and no == 0:
+    if nb == 0 and no == 0 and data.n_bounds == 0:
         C, D = spec.coefficients(nlam)
         return _TPS(up, C[:, 0], D[:, 0], info)
     # Functionals as combinations of point values: picks, boreholes, then per measurement
@@ -856,6 +907,9 @@ def _fit_tps(data: _Data, smoothing, lam=None) -> _TPS:
         resid = lam_b * sol[bidx]  # datum minus fitted value at each borehole
         return np.abs(resid) > data.b_sig * (1 + 1e-9) + 1e-9
 
+    if nb == 0 and data.n_bounds:  # nothing to weigh first: straight to the bounded solve
+        return _tps_bounded(data, A, rhs, np.concatenate([np.full(n, nlam), lam_g]), X, S, bhat,
+                            info)
     sol, _ = solve(lam_b)
     over = violators(sol, lam_b)
     if np.any(over):
@@ -878,10 +932,111 @@ def _fit_tps(data: _Data, smoothing, lam=None) -> _TPS:
         if np.any(over):
             lam_b = np.where(over, 0.0, lam_b)
             sol, _ = solve(lam_b)
+    if data.n_bounds:
+        return _tps_bounded(data, A, rhs, np.concatenate([np.full(n, nlam), lam_b, lam_g]), X, S,
+                            bhat, info)
     c = sol[:m]
     w = np.asarray(S.T @ c).ravel()
     info["n_nodes"] = int(len(X))
     return _TPS(X, w, sol[m:], info)
+
+
+#: Most bound points the spline's active set holds at once (each is one more node).
+MAX_ACTIVE_BOUNDS = 500
+#: Most rounds of the spline's active-set loop.
+MAX_BOUND_ITERATIONS = 50
+#: Noise standard error (metres) of a bound point pinned to its bound in the spline.
+BOUND_PIN_SIGMA_M = 1e-4
+#: A bound counts as broken (and enters the active set) beyond this many metres.
+BOUND_TOLERANCE_M = 0.01
+
+
+def _tps_bounded(data: _Data, A, rhs, diag_add, X, S, bhat, info) -> _TPS:
+    """The smoothing spline of the system ``A`` (functionals ``S`` of point values at ``X``)
+    subject to ``lo <= s(x_c) <= hi`` at the bound points of ``data``, by a primal-dual
+    active-set method.
+
+    Bound points that the current spline breaks join the active set as data pinned at their
+    bound with noise ``BOUND_PIN_SIGMA_M`` (weight ``σ²/b̂``, as boreholes); pinned points
+    whose kernel weight - the Lagrange multiplier up to a positive factor - has the wrong sign
+    (a point of an upper bound pulling the surface up) leave it; repeat until nothing changes
+    (at most ``MAX_BOUND_ITERATIONS`` rounds and ``MAX_ACTIVE_BOUNDS`` points, most broken
+    first). The system with ``k`` active points is bordered: the base system is factorised once
+    and each round solves the ``k × k`` Schur complement.
+
+    References: Nocedal, J. & Wright, S. J. (2006). *Numerical Optimization*, 2nd ed. Springer,
+    ch. 16 (active-set methods for quadratic programs). https://doi.org/10.1007/978-0-387-40065-5;
+    Hintermüller, M., Ito, K. & Kunisch, K. (2002). The primal-dual active set strategy as a
+    semismooth Newton method. *SIAM J. Optim.* 13(3), 865–888.
+    https://doi.org/10.1137/S1052623401383558
+    """
+    m = S.shape[0]
+    N = A.shape[0]
+    M = A.copy()
+    idx = np.arange(m)
+    M[idx, idx] += diag_add
+    lu = linalg.lu_factor(M, check_finite=False)
+    x0 = linalg.lu_solve(lu, rhs)
+    uc = data.u(data.c_xy)
+    lo, hi = data.c_lo, data.c_hi
+    Pc = np.vstack([np.asarray(S @ tps_kernel(_pairwise_r2(X, uc))), np.ones(len(uc)), uc.T])
+    pin = (BOUND_PIN_SIGMA_M ** 2 / bhat) if bhat > 0 else 0.0
+    active = np.zeros(len(uc), dtype=bool)
+    side = np.zeros(len(uc))  # +1 pinned at hi, -1 at lo
+    weight = np.zeros(len(uc))  # kernel weight of each pinned point
+    Z = {}  # A⁻¹ P column of each point that was ever active
+    x, v = x0, Pc.T @ x0
+    rounds = 0
+    for rounds in range(1, MAX_BOUND_ITERATIONS + 1):
+        over = v - hi
+        under = lo - v
+        new = ((over > BOUND_TOLERANCE_M) | (under > BOUND_TOLERANCE_M)) & ~active
+        scale = max(float(np.max(np.abs(weight))), 1e-300)
+        drop = active & (side * weight > 1e-9 * scale)
+        if not new.any() and not drop.any():
+            break
+        active &= ~drop
+        room = MAX_ACTIVE_BOUNDS - int(active.sum())
+        if room > 0 and new.any():
+            cand = np.flatnonzero(new)
+            cand = cand[np.argsort(-np.maximum(over[cand], under[cand]), kind="stable")[:room]]
+            side[cand] = np.where(over[cand] > 0, 1.0, -1.0)
+            active[cand] = True
+        elif not drop.any():
+            break  # the active set is full
+        a = np.flatnonzero(active)
+        fresh = [i for i in a if i not in Z]
+        if fresh:
+            cols = linalg.lu_solve(lu, Pc[:, fresh])
+            Z.update({i: cols[:, j] for j, i in enumerate(fresh)})
+        P = Pc[:, a]
+        Za = np.column_stack([Z[i] for i in a]) if len(a) else np.empty((N, 0))
+        Kaa = tps_kernel(_pairwise_r2(uc[a], uc[a]))
+        schur = Kaa + pin * np.eye(len(a)) - P.T @ Za
+        t = np.where(side[a] > 0, hi[a], lo[a])
+        try:
+            y = linalg.solve(schur, t - P.T @ x0, check_finite=False)
+        except (linalg.LinAlgError, ValueError) as exc:
+            raise UndeterminedError(f"the spline cannot honour the bounds of the map's units "
+                                    f"({exc}); check for unit polygons that contradict the picks"
+                                    ) from exc
+        x = x0 - Za @ y
+        weight[:] = 0.0
+        weight[a] = y
+        v = Pc.T @ x + tps_kernel(_pairwise_r2(uc, uc[a])) @ y
+    a = np.flatnonzero(active)
+    broken = np.maximum(np.maximum(v - hi, lo - v), 0.0)
+    info.update({"n_bounds": int(len(uc)), "n_active_bounds": int(len(a)),
+                 "bound_iterations": int(rounds),
+                 "n_bounds_broken": int(np.count_nonzero(broken > BOUND_TOLERANCE_M)),
+                 "max_bound_violation_m": float(broken.max()) if len(broken) else 0.0,
+                 "bound_method": "primal-dual active set (pinned bound points)"})
+    w = np.concatenate([np.asarray(S.T @ x[:m]).ravel(), weight[a]])
+    centres = np.vstack([X, uc[a]])
+    info["n_nodes"] = int(len(centres))
+    return _TPS(centres, w, x[m:], info)
+
+
 
 
 # ============================================================================================
@@ -898,16 +1053,22 @@ class _Surface:
         self.hull = hull if hull is not None else _Hull(data.all_xy())
         self.tree = tree if tree is not None else cKDTree(data.all_xy())
         self.data_xy = data.all_xy()
+        # The hull of the data and of the map-unit bound points the trend breaks: there the
+        # model stays untapered, so that the blend honours every bound (see _fit_kind).
+        self.bound_hull = None
         self.se_cv = None  # (rmse_m, distance_m) for the spline's standard error
 
     def _uv(self, x, y):
         return (x - self.origin[0]) / self.scale, (y - self.origin[1]) / self.scale
 
+    def _taper_hull(self):
+        return self.hull if self.bound_hull is None else self.bound_hull
+
     def value(self, x, y):
         u, v = self._uv(x, y)
         f = self.core.value_u(u, v)
         if self.trend is not None:
-            tau, _ = _taper(self.hull.distance(x, y), self.taper_m)
+            tau, _ = _taper(self._taper_hull().distance(x, y), self.taper_m)
             t = self.trend.value_u(u, v)
             f = t + tau * (f - t)
         return f
@@ -916,7 +1077,7 @@ class _Surface:
         u, v = self._uv(x, y)
         gu, gv = self.core.grad_u(u, v)
         if self.trend is not None:
-            d, dx, dy = self.hull.distance(x, y, grad=True)
+            d, dx, dy = self._taper_hull().distance(x, y, grad=True)
             tau, dtau = _taper(d, self.taper_m)
             tu, tv = self.trend.grad_u(u, v)
             diff = self.core.value_u(u, v) - self.trend.value_u(u, v)
@@ -929,7 +1090,7 @@ class _Surface:
         if isinstance(self.core, _Poly):
             se = self.core.se_u(u, v)
             if self.trend is not None:
-                tau, _ = _taper(self.hull.distance(x, y), self.taper_m)
+                tau, _ = _taper(self._taper_hull().distance(x, y), self.taper_m)
                 se = tau * se + (1 - tau) * self.trend.se_u(u, v)
             return se
         rmse, dcv = self.se_cv
@@ -946,11 +1107,28 @@ def _fit_kind(kind, data: _Data, *, smoothing, lam, taper_m) -> _Surface:
     try:
         trend = _fit_poly(1, data, "plane")
     except UndeterminedError:
+        trend = None
+    if trend is None and data.n_bounds:  # the plane cannot honour the units: the trend ignores them
+        try:
+            trend = _fit_poly(1, dataclasses.replace(data, c_xy=np.empty((0, 2)), c_lo=np.empty(0),
+                                                     c_hi=np.empty(0)), "plane")
+        except UndeterminedError:
+            trend = None
+    if trend is None:
         trend = _fit_poly(1, _Data(data.p_xy, data.p_z, np.empty((0, 2)), np.empty(0),
                                    np.empty(0), np.empty((0, 2)), np.empty((0, 2)), np.empty(0),
                                    data.origin, data.scale, data.footprint_m,
                                    data.pick_sigma_m), "plane")
-    return _Surface(kind, core, trend, data, taper_m)
+    surface = _Surface(kind, core, trend, data, taper_m)
+    if data.n_bounds:
+        # Core and trend each honouring a bound makes every blend of them honour it; where the
+        # trend breaks one, the core is kept untapered out to that point.
+        uc = data.u(data.c_xy)
+        t = trend.value_u(uc[:, 0], uc[:, 1])
+        broken = (t > data.c_hi + BOUND_TOLERANCE_M) | (t < data.c_lo - BOUND_TOLERANCE_M)
+        if broken.any():
+            surface.bound_hull = _Hull(np.vstack([data.all_xy(), data.c_xy[broken]]))
+    return surface
 
 
 def _kfold_lambda(data: _Data, folds, lam_grid):
@@ -1288,7 +1466,7 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
                 smoothing="gcv", n_folds: int = 5, selection: str = "one_se",
                 cross_validate_model: bool = True, max_points: int = 2000,
                 thin_cell_m: float | None = None, thin_by_group: bool = False,
-                pick_sigma_m: float | None = None,
+                pick_sigma_m: float | None = None, bounds=None,
                 reach_m: float | None = None, taper_m: float | None = None, seed: int = 0,
                 progress: Callable | None = None,
                 is_cancelled: Callable | None = None) -> SurfaceModel:
@@ -1339,6 +1517,19 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
     pick_sigma_m : float, optional
         Pick standard error for weighing picks against constraints in plane/trend2 (default:
         estimated from the residuals of the fit without constraints).
+    bounds : array_like, shape ``(m, 4)``, optional
+        Inequalities ``lo <= z(x, y) <= hi`` as rows ``x, y, lo, hi`` (``-inf``/``+inf`` for an
+        open side), e.g. from the map's unit polygons (:func:`strikeline.units.unit_bounds`).
+        Never held out in cross-validation and not data (they move neither the hull, the
+        reach nor the standard error). ``plane``/``trend2``: hard linear inequality
+        constraints (Lawson & Hanson 1974, ch. 23; a model that cannot honour them all raises
+        :class:`~strikeline.errors.UndeterminedError`); ``spline``: a primal-dual active set of
+        bound points pinned to their bound (Nocedal & Wright 2006, ch. 16), at most
+        ``MAX_ACTIVE_BOUNDS`` of them, broken by at most ``BOUND_TOLERANCE_M`` when it
+        converges. The trend plane that ``trend2`` and ``spline`` relax to outside the data's
+        hull honours the bounds too when a plane can; otherwise it ignores them, and the model
+        stays untapered out to the bound points the trend breaks (the hull of the data and
+        those points), so that the blend of the two still honours every bound.
     reach_m, taper_m : float, optional
         Extrapolation distance and taper length (defaults in the module docstring).
     seed : int, default 0
@@ -1409,7 +1600,7 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
     thinned = thin_picks(xyz, max_points=max_points, cell_m=thin_cell_m, groups=groups,
                          by_group=bool(thin_by_group))
     data = _prepare(thinned.xyz, boreholes, borehole_sigma_m, orientations,
-                    orientation_sigma_deg, orientation_footprint_m, pick_sigma_m)
+                    orientation_sigma_deg, orientation_footprint_m, pick_sigma_m, bounds=bounds)
     hull = _Hull(data.all_xy())
     tree = cKDTree(data.all_xy())
     if reach_m is None:
@@ -1481,6 +1672,7 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
     params = _params(surface, data)
     params["n_boreholes"] = int(len(data.b_z))
     params["n_orientations"] = int(len(data.o_sig))
+    params["n_bounds"] = int(data.n_bounds)
     return SurfaceModel(
         kind=chosen,
         params=MappingProxyType(params),

@@ -55,6 +55,18 @@ def add_parser(sub) -> argparse.ArgumentParser:
     m.add_argument("--top-contacts-layer", metavar="NAME")
     m.add_argument("--top-where", metavar="SQL", help="OGR SQL filter on the top contacts")
 
+    u = p.add_argument_group("geological map units (need --dem)")
+    u.add_argument("--map-units", metavar="PATH",
+                   help="polygon layer of the map's units: the surface stays below ground where a unit above it "
+                        "crops out and above ground where a unit below it crops out")
+    u.add_argument("--map-units-layer", metavar="NAME", help="layer name inside the map-units file")
+    u.add_argument("--unit-field", metavar="NAME", help="field of the map-units layer that holds each polygon's unit")
+    u.add_argument("--units-above", metavar="VALUES",
+                   help="comma-separated units that lie above the modelled surface (e.g. \"Kv,Kl\")")
+    u.add_argument("--units-below", metavar="VALUES",
+                   help="comma-separated units that lie below it; polygons of other units (superficial "
+                        "deposits, water) are ignored")
+
     a = p.add_argument_group("attitude confidence and local attitudes")
     a.add_argument("--dem-sigma", type=non_negative, default=pl.DEFAULT_DEM_SIGMA_M, metavar="METRES",
                    dest="dem_sigma_m",
@@ -79,7 +91,8 @@ OPTION_FIELDS = (
     "interval_m", "cell_m", "overwrite", "pick_spacing_m", "misfit_flag_m", "model", "boreholes", "boreholes_layer",
     "borehole_z_field", "borehole_collar_field", "borehole_depth_field", "borehole_sigma_m",
     "orientations", "orientations_layer", "dip_field", "dip_direction_field", "strike_field",
-    "orientation_sigma_deg", "top_contacts", "top_contacts_layer", "top_where", "dem_sigma_m",
+    "orientation_sigma_deg", "top_contacts", "top_contacts_layer", "top_where", "map_units", "map_units_layer",
+    "unit_field", "units_above", "units_below", "dem_sigma_m",
     "contour_sigma_m", "window_m", "group_by", "resamples", "seed",
 )
 
@@ -98,9 +111,6 @@ def describe_plane(pl: dict) -> str:
     """The plane in plain words; an undetermined plane gets no number."""
     if pl.get("quality") == "undetermined":
         return f"undetermined - {pl['reason']}; {pl['advice']}"
-    if pl.get("dip_direction") is None:
-        return (f"dip {_pm(pl['dip'], pl.get('dip_ci95'))} deg: horizontal within its 95% confidence (no dip "
-                f"direction or strike), RMS residual {pl['rms_m']:.2f} m, {pl['n_picks']} picks, quality {pl['quality']}")
     return (f"dip {_pm(pl['dip'], pl.get('dip_ci95'))} deg toward {_pm(pl['dip_direction'], pl.get('dip_direction_ci95'))} "
             f"deg (grid north; {pl['dip_direction_true']:.2f} deg from true north), strike {pl['strike_rhr']:.1f} deg RHR, "
             f"RMS residual {pl['rms_m']:.2f} m, {pl['n_picks']} picks, quality {pl['quality']}")
@@ -128,6 +138,12 @@ def report(results, out, stream=sys.stdout) -> None:
         cm = s["contact_misfit"]
         print(f"contact segments farther than {cm['flag_m']:g} m from the predicted trace: "
               f"{cm['n_flagged']} of {cm['n_segments']}", file=stream)
+    if "map_units" in s:
+        mu, c = s["map_units"], s["map_units"]["check"]
+        worst = "" if not c["n_violated"] else f", by at most {c['max_violation_m']:.2f} m (layer unit_conflicts)"
+        print(f"map units: {mu['n_points']} constraint points ({mu['n_above']} under units above the surface, "
+              f"{mu['n_below']} below); the surface breaks {c['n_violated']} of {c['n_points']} check points{worst}",
+              file=stream)
     if "thickness" in s and s["thickness"]["mean_m"] is not None:
         t = s["thickness"]
         print(f"true thickness: mean {t['mean_m']:.1f} m, std {t['std_m']:.1f} m "

@@ -18,6 +18,9 @@ from strikeline.io.crs import crs_label, reproject_geometries, require_projected
 
 _LINE_TYPES = {"LineString", "MultiLineString", "LinearRing"}
 _POINT_TYPES = {"Point", "MultiPoint"}
+_POLYGON_TYPES = {"Polygon", "MultiPolygon"}
+#: The geometry families a layer can be asked to hold.
+_FAMILIES = {"line": _LINE_TYPES, "point": _POINT_TYPES, "polygon": _POLYGON_TYPES}
 _NUMERIC_OGR = {ogr.OFTInteger, ogr.OFTInteger64, ogr.OFTReal}
 
 
@@ -106,7 +109,7 @@ def read_layer(path, *, layer: str | None = None, where: str | None = None,
         An OGR SQL attribute filter (``"unit = 'Kv'"``).
     label : str
         How to name the input in messages (``"contacts"``).
-    geometry : {'line', 'point'}
+    geometry : {'line', 'point', 'polygon'}
         The geometry family the layer must hold.
     layer_option : str
         The command-line option that names the layer, for messages.
@@ -116,8 +119,8 @@ def read_layer(path, *, layer: str | None = None, where: str | None = None,
     InputError, VectorReadError, CRSError
     """
     path = os.fspath(path)
-    if geometry not in ("line", "point"):
-        raise InputError(f"geometry must be one of 'line', 'point'; got {geometry!r}")
+    if geometry not in _FAMILIES:
+        raise InputError(f"geometry must be one of 'line', 'point', 'polygon'; got {geometry!r}")
     with gdal_exceptions():
         ds = _open(path, label)
         try:
@@ -177,9 +180,9 @@ def layer_from_wkb(wkbs, *, fids, fields, field_types, srs, path, layer_name, la
     points, and the geometry-family check. ``extent`` is ``(xmin, xmax, ymin, ymax)`` as OGR gives
     it, used to suggest a UTM zone for a geographic layer (computed from the features if omitted).
     """
-    if geometry not in ("line", "point"):
-        raise InputError(f"geometry must be one of 'line', 'point'; got {geometry!r}")
-    wanted = _LINE_TYPES if geometry == "line" else _POINT_TYPES
+    if geometry not in _FAMILIES:
+        raise InputError(f"geometry must be one of 'line', 'point', 'polygon'; got {geometry!r}")
+    wanted = _FAMILIES[geometry]
     what = f"{label} layer '{layer_name}' of '{path}'"
     wkbs = [bytes(w) for w in wkbs]
     if not wkbs:
