@@ -118,8 +118,10 @@ from scipy.optimize import minimize_scalar, nnls
 from scipy.spatial import ConvexHull, cKDTree
 from scipy.spatial import QhullError
 
-from strikeline.crossval import (CVScore, cross_validate, gcv_from_spectrum, make_folds,
-                                 select_model, spatial_block_groups, SELECTION_RULES)
+from strikeline.crossval import (CVScore, ErrorGrowth, ModelChoice, SELECTION_RULES,
+                                 choose_model, cross_validate, fit_error_growth,
+                                 gcv_from_spectrum, holdout_block_m, make_folds,
+                                 segment_groups)
 from strikeline.errors import CancelledError, InputError, UndeterminedError
 from strikeline.fitting import fit_plane
 from strikeline.grid import Grid
@@ -546,9 +548,12 @@ class _Poly:
         return c[1] + 2 * c[3] * u + c[4] * v, c[2] + c[4] * u + 2 * c[5] * v
 
     def se_u(self, u, v):
+        return np.sqrt(self.sigma_m ** 2 + self.param_se_u(u, v) ** 2)
+
+    def param_se_u(self, u, v):
         a = _basis(u, v, self.degree)
         q = np.einsum("...i,ij,...j->...", a, self.cov, a)
-        return np.sqrt(self.sigma_m ** 2 + np.maximum(q, 0.0))
+        return np.sqrt(np.maximum(q, 0.0))
 
 
 def _lsi(R, qty, B, lo, hi):
@@ -682,6 +687,78 @@ def _fit_poly(degree, data: _Data, kind) -> _Poly:
                  {"method": "weighted least squares" + (" with linear inequality constraints"
                                                         if len(B) else ""),
                   "pick_sigma_prior_m": float(sp)})
+
+
+#: Tuning constant of Tukey's biweight: 95 % efficiency at normal errors (Source: Holland &
+#: Welsch 1977, Table 1; from memory).
+_BIWEIGHT_C = 4.685
+#: Consistency factor of the median absolute deviation at normal errors (common practice).
+_MAD_TO_SIGMA = 1.4826
+
+
+def _fit_poly_robust(degree, data: _Data, scale_floor_m: float, *, max_iter: int = 50) -> _Poly:
+    """Plane or quadratic trend fitted robustly, for the misfit check only.
+
+    A mistraced stretch or a faulted block pulls a least-squares surface towards itself and
+    so hides from a check against that surface. Here the surface is first found by
+    concentration steps of least trimmed squares (refit to the half of the data with the
+    smallest residuals until the half no longer changes; Rousseeuw & Van Driessen 2006),
+    then polished by iteratively reweighted least squares with Tukey's biweight (Beaton &
+    Tukey 1974), the scale being the median absolute deviation (never below
+    ``scale_floor_m``, the stated pick error). Boreholes are rows of full weight; dip
+    measurements are not used. Not used for the mapped surface itself.
+
+    References
+    ----------
+    Beaton, A. E. & Tukey, J. W. (1974). The fitting of power series, meaning polynomials,
+    illustrated on band-spectroscopic data. *Technometrics*, 16(2), 147–185.
+    https://doi.org/10.1080/00401706.1974.10489171
+
+    Rousseeuw, P. J. & Van Driessen, K. (2006). Computing LTS regression for large data sets.
+    *Data Mining and Knowledge Discovery*, 12(1), 29–45.
+    https://doi.org/10.1007/s10618-005-0024-4
+    """
+    up, ub = data.u(data.p_xy), data.u(data.b_xy)
+    A = np.vstack([_basis(up[:, 0], up[:, 1], degree), _basis(ub[:, 0], ub[:, 1], degree)])
+    y = np.concatenate([data.p_z, data.b_z])
+    fixed = np.r_[np.zeros(data.n, bool), np.ones(len(data.b_z), bool)]
+    p = A.shape[1]
+    if len(y) < p + 1 or np.linalg.matrix_rank(A) < p:
+        raise UndeterminedError("too few or collinear data for a robust fit")
+    coef = np.linalg.lstsq(A, y, rcond=None)[0]
+    h = max(p + 1, (len(y) + p + 1) // 2)
+    keep = None
+    for _ in range(20):  # concentration steps
+        r = np.abs(y - A @ coef)
+        r[fixed] = -1.0
+        new = np.sort(np.argsort(r, kind="stable")[:h])
+        if keep is not None and np.array_equal(new, keep):
+            break
+        keep = new
+        if np.linalg.matrix_rank(A[keep]) < p:
+            break
+        coef = np.linalg.lstsq(A[keep], y[keep], rcond=None)[0]
+    w = np.ones(len(y))
+    scale = float(scale_floor_m)
+    for _ in range(max_iter):
+        r = y - A @ coef
+        free = ~fixed
+        scale = max(_MAD_TO_SIGMA * float(np.median(np.abs(r[free]))) if free.any() else 0.0,
+                    float(scale_floor_m), PICK_SIGMA_FLOOR_M)
+        t = r / (_BIWEIGHT_C * scale)
+        w_new = np.where(np.abs(t) < 1, (1 - t * t) ** 2, 0.0)
+        w_new[fixed] = 1.0
+        if np.count_nonzero(w_new) < p or np.linalg.matrix_rank(A[w_new > 0]) < p:
+            break
+        sw = np.sqrt(w_new)
+        coef_new = np.linalg.lstsq(A * sw[:, None], y * sw, rcond=None)[0]
+        done = np.max(np.abs(w_new - w)) < 1e-6
+        coef, w = coef_new, w_new
+        if done:
+            break
+    N = (A * w[:, None]).T @ A
+    cov = scale ** 2 * np.linalg.pinv(N)
+    return _Poly(degree, coef, cov, scale, {"method": "robust (LTS concentration + biweight)"})
 
 
 # ============================================================================================
@@ -1037,8 +1114,6 @@ def _tps_bounded(data: _Data, A, rhs, diag_add, X, S, bhat, info) -> _TPS:
     return _TPS(centres, w, x[m:], info)
 
 
-
-
 # ============================================================================================
 # A fitted surface (model + trend + taper)
 # ============================================================================================
@@ -1056,7 +1131,8 @@ class _Surface:
         # The hull of the data and of the map-unit bound points the trend breaks: there the
         # model stays untapered, so that the blend honours every bound (see _fit_kind).
         self.bound_hull = None
-        self.se_cv = None  # (rmse_m, distance_m) for the spline's standard error
+        self.se_cv = None  # (rmse_m, distance_m): the spline's standard error without growth
+        self.growth = None  # ErrorGrowth from cross-validation, when there was one
 
     def _uv(self, x, y):
         return (x - self.origin[0]) / self.scale, (y - self.origin[1]) / self.scale
@@ -1085,7 +1161,8 @@ class _Surface:
             gv = tv + tau * (gv - tv) + diff * dtau * dy * self.scale
         return gu / self.scale, gv / self.scale
 
-    def standard_error(self, x, y):
+    def base_se(self, x, y):
+        """The model's own standard error: noise plus parameter uncertainty (no distance)."""
         u, v = self._uv(x, y)
         if isinstance(self.core, _Poly):
             se = self.core.se_u(u, v)
@@ -1093,11 +1170,44 @@ class _Surface:
                 tau, _ = _taper(self._taper_hull().distance(x, y), self.taper_m)
                 se = tau * se + (1 - tau) * self.trend.se_u(u, v)
             return se
+        return np.full(np.shape(x), float(self.core.info["sigma_m"]))
+
+    def param_se(self, x, y):
+        """Parameter part of the standard error (0 for the spline, whose σ̂ is all noise)."""
+        u, v = self._uv(x, y)
+        if isinstance(self.core, _Poly):
+            se = self.core.param_se_u(u, v)
+            if self.trend is not None:
+                tau, _ = _taper(self._taper_hull().distance(x, y), self.taper_m)
+                se = tau * se + (1 - tau) * self.trend.param_se_u(u, v)
+            return se
+        return np.zeros(np.shape(x))
+
+    def distance(self, x, y):
+        return self.tree.query(np.column_stack([np.ravel(x), np.ravel(y)]),
+                               workers=-1)[0].reshape(np.shape(x))
+
+    def standard_error(self, x, y):
+        if self.growth is not None:
+            g = self.growth
+            base = self.base_se(x, y)
+            return g.kappa * np.sqrt(base ** 2 + g.excess_variance(self.distance(x, y)))
+        if isinstance(self.core, _Poly):
+            return self.base_se(x, y)
         rmse, dcv = self.se_cv
         sigma = self.core.info["sigma_m"]
-        d = self.tree.query(np.column_stack([x, y]), workers=-1)[0]
+        d = self.distance(x, y)
         excess = max(rmse ** 2 - sigma ** 2, 0.0)
         return np.sqrt(sigma ** 2 + excess * (d / dcv) ** 2)
+
+    def check_se(self, x, y):
+        """The forecast's own standard error for the misfit check, without pick noise: the
+        parameter part and the (robust, uncalibrated) growth with distance from the training
+        data — not the calibration factor, which the misfits being looked for would inflate."""
+        var = self.param_se(x, y) ** 2
+        if self.growth is not None:
+            var = var + self.growth.excess_variance(self.distance(x, y))
+        return np.sqrt(var)
 
 
 def _fit_kind(kind, data: _Data, *, smoothing, lam, taper_m) -> _Surface:
@@ -1234,6 +1344,13 @@ class SurfaceModel:
     taper_m: float
     n_folds: int
     _surface: _Surface = field(repr=False, compare=False)
+    choice: ModelChoice | None = None
+    growth: ErrorGrowth | None = None
+    block_m: float | None = None
+    check_block_m: float | None = None
+    stated_sigma_m: float | None = None
+    n_groups: int = 0
+    _holdout: object = field(default=None, repr=False, compare=False)
 
     @property
     def data_xy(self) -> np.ndarray:
@@ -1290,6 +1407,26 @@ class SurfaceModel:
         """Distance (metres) outside the convex hull of the data (0 inside)."""
         shape, x, y = self._xy(x, y)
         return self._surface.hull.distance(x, y).reshape(shape)
+
+    def holdout_prediction(self, x, y):
+        """The surface at map points as predicted WITHOUT the picks near them.
+
+        Each point takes the model refitted without a square block of picks around it (side
+        ``check_block_m``; two shifted checkerboards of blocks, the point taking the one it
+        lies deepest inside; robust refits for plane and trend2, see
+        :func:`_fit_poly_robust`), so a contact compared with it is compared with a forecast
+        it did not shape. Returns ``(z_m, se_m, dz_dx, dz_dy)``: elevation, the forecast's
+        own standard error WITHOUT pick noise (parameter uncertainty and growth with distance
+        from the training data; add the error of whatever it is compared with) and the
+        gradient. Without cross-validation, the fitted model itself.
+        """
+        shape, x, y = self._xy(x, y)
+        if self._holdout is None:
+            gx, gy = self._surface.gradient(x, y)
+            out = (self._surface.value(x, y), self._surface.check_se(x, y), gx, gy)
+        else:
+            out = self._holdout.predict(x, y)
+        return tuple(np.asarray(a).reshape(shape) for a in out)
 
     def borehole_misfit_m(self):
         """Model minus borehole elevation at each borehole (metres), in input order."""
@@ -1406,6 +1543,12 @@ class SurfaceModel:
             "cv_skipped": dict(self.cv_skipped),
             "cv_distance_m": num(self.cv_distance_m),
             "selection": self.selection,
+            "choice": None if self.choice is None else self.choice.summary(),
+            "holdout_block_m": num(self.block_m),
+            "check_block_m": num(self.check_block_m),
+            "n_groups": self.n_groups,
+            "stated_pick_error_m": num(self.stated_sigma_m),
+            "error_growth": None if self.growth is None else self.growth.summary(),
             "n_folds": self.n_folds,
             "n_picks": self.n_picks,
             "n_used": self.n_used,
@@ -1463,7 +1606,9 @@ def _params(surface: _Surface, data: _Data) -> dict:
 def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.0,
                 orientations=None, orientation_sigma_deg=DEFAULT_ORIENTATION_SIGMA_DEG,
                 orientation_footprint_m: float | None = None, groups=None,
-                smoothing="gcv", n_folds: int = 5, selection: str = "one_se",
+                smoothing="gcv", n_folds: int = 5, selection: str = "data_error",
+                data_sigma_m=None, block_m: float | None = None,
+                check_block_m: float | None = None,
                 cross_validate_model: bool = True, max_points: int = 2000,
                 thin_cell_m: float | None = None, thin_by_group: bool = False,
                 pick_sigma_m: float | None = None, bounds=None,
@@ -1501,8 +1646,20 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
         every fold (slightly optimistic: the choice saw every fold); a number is a fixed
         λ ``>= 0`` in the normalised coordinates (``0`` interpolates).
     n_folds : int, default 5
-    selection : {'one_se', 'min'}, default 'one_se'
-        Rule of ``model='auto'`` (:func:`strikeline.crossval.select_model`).
+    selection : {'data_error', 'one_se', 'min'}, default 'data_error'
+        Rule of ``model='auto'`` (:func:`strikeline.crossval.choose_model`); ``'data_error'``
+        needs ``data_sigma_m`` and otherwise acts as ``'one_se'``.
+    data_sigma_m : float or array_like, optional
+        Stated standard error of the picks (metres; one number or one per pick): the error
+        the model choice judges the scores against.
+    block_m : float, optional
+        Side of the square blocks that made ``groups`` (recorded; sets the misfit check's
+        blocks).
+    check_block_m : float, optional
+        Side of the blocks the misfit check holds out
+        (:meth:`SurfaceModel.holdout_prediction`); default ``CHECK_BLOCK_FACTOR`` times the
+        cross-validation block (:func:`strikeline.crossval.holdout_block_m` of the picks when
+        ``groups`` are not given).
     cross_validate_model : bool, default True
         Cross-validate a single (non-auto) model too (needed for the spline's uncertainty).
     max_points : int, default 2000
@@ -1614,12 +1771,14 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
         raise InputError(f"taper_m must be a positive distance in metres, got {taper_m}")
 
     kinds = MODELS if model == "auto" else (model,)
+    sigma_stated = _stated_sigma(data_sigma_m, len(np.asarray(xyz)))
     folds = None
     if model == "auto" or cross_validate_model or smoothing == "kfold":
         labels = thinned.groups
         if labels is None or len(np.unique(labels)) < 2:
-            labels = spatial_block_groups(data.p_xy[:, 0], data.p_xy[:, 1],
-                                          n_blocks=4 * int(n_folds))
+            block_m = holdout_block_m(data.p_xy)
+            labels = segment_groups(data.p_xy[:, 0], data.p_xy[:, 1], np.zeros(data.n),
+                                    block_m=block_m)
         if len(np.unique(labels)) >= 2:
             folds = make_folds(labels, n_folds=n_folds, seed=seed)
     if folds is None and (model == "auto" or smoothing == "kfold"):
@@ -1642,18 +1801,26 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
             lam = None  # the spline's CV below reports why
 
     scores: dict[str, CVScore] = {}
+    base_se: dict[str, np.ndarray] = {}
     if folds is not None and (model == "auto" or cross_validate_model):
         p3 = np.column_stack([data.p_xy, data.p_z])
         for kind in kinds:
+            base_se[kind] = np.full(data.n, np.nan)
+
             def fit_predict(train, test, kind=kind):
                 s = _fit_kind(kind, data.picks(train), smoothing=smoothing, lam=lam,
                               taper_m=taper_m)
-                return s.value(data.p_xy[test, 0], data.p_xy[test, 1])
+                x, y = data.p_xy[test, 0], data.p_xy[test, 1]
+                base_se[kind][test] = s.base_se(x, y)
+                return s.value(x, y)
             scores[kind] = cross_validate(fit_predict, p3, folds, fixed_xy=data.fixed_xy(),
-                                          progress=sub_progress, is_cancelled=is_cancelled)
+                                          groups=labels, progress=sub_progress,
+                                          is_cancelled=is_cancelled)
             done[0] += 1
+    choice = None
     if model == "auto":
-        chosen = select_model(scores, order=MODELS, rule=selection)
+        choice = choose_model(scores, order=MODELS, rule=selection, sigma_m=sigma_stated)
+        chosen = choice.chosen
     else:
         chosen = model
     _check_cancel(is_cancelled, "surface fitting")
@@ -1667,6 +1834,16 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
             nn = cKDTree(data.p_xy).query(data.p_xy, k=2)[0][:, 1]
             surface.se_cv = (float(np.sqrt(surface.core.info["gcv_score_m2"])),
                              float(max(np.median(nn), 1e-9)))
+    growth = None
+    holdout = None
+    side = None
+    if score is not None and np.isfinite(score.rmse_m) and data.n >= 10:
+        growth = fit_error_growth(score.errors_m, score.distances_m, base_se[chosen])
+        surface.growth = growth
+        side = check_block_m if check_block_m is not None else \
+            CHECK_BLOCK_FACTOR * (block_m if block_m is not None else holdout_block_m(data.p_xy))
+        holdout = _holdout_checks(chosen, data, side, growth, sigma_stated, taper_m,
+                                  smoothing=smoothing, lam=lam, is_cancelled=is_cancelled)
     if progress is not None:
         progress(1.0)
     params = _params(surface, data)
@@ -1680,7 +1857,7 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
         cv_se_m=MappingProxyType({k: float(s.se_m) for k, s in scores.items()}),
         cv_skipped=MappingProxyType({k: s.reason for k, s in scores.items() if s.reason}),
         cv_distance_m=float(score.distance_m) if score is not None else float("nan"),
-        selection=f"auto/{selection}" if model == "auto" else "fixed",
+        selection=f"auto/{choice.rule}" if choice is not None else "fixed",
         n_picks=int(np.count_nonzero(thinned.index >= 0)),
         n_used=int(data.n),
         thin_cell_m=thinned.cell_m,
@@ -1688,4 +1865,107 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
         taper_m=float(taper_m),
         n_folds=0 if folds is None else int(len(np.unique(folds))),
         _surface=surface,
+        choice=choice,
+        growth=growth,
+        block_m=block_m,
+        check_block_m=None if holdout is None else float(side),
+        stated_sigma_m=sigma_stated,
+        n_groups=0 if score is None else int(score.n_groups),
+        _holdout=holdout,
     )
+
+
+def _stated_sigma(data_sigma_m, n):
+    """RMS of the stated pick errors (``None`` when not stated)."""
+    if data_sigma_m is None:
+        return None
+    s = np.asarray(data_sigma_m, dtype=float).reshape(-1)
+    if s.size not in (1, n):
+        raise InputError(f"data_sigma_m must be one number or one per pick ({n}); got "
+                         f"{s.size} values")
+    s = s[np.isfinite(s)]
+    if s.size == 0 or np.any(s < 0):
+        raise InputError("data_sigma_m must be finite standard errors >= 0 (metres)")
+    v = float(np.sqrt(np.mean(s ** 2)))
+    return v if v > 0 else None
+
+
+#: The misfit check holds out square blocks this many times the cross-validation block.
+CHECK_BLOCK_FACTOR = 3.0
+
+
+class _Holdout:
+    """Surfaces fitted without square blocks of the picks, for the misfit check.
+
+    Two checkerboards of blocks of side ``side``, the second shifted by half a block; each
+    colour of each board is one fit without the picks of that colour (up to 8 fits). A point
+    takes the fit whose held-out block it lies deepest inside, so the nearest training data
+    lie at least a quarter of a block away whatever a mistrace or fault near it does.
+    """
+
+    def __init__(self, origin, side, surfaces):
+        self.origin = np.asarray(origin, float)
+        self.side = float(side)
+        self.surfaces = surfaces  # {(board, colour): _Surface}
+
+    def cells(self, x, y, board):
+        shift = 0.5 * self.side * board
+        u = (x - self.origin[0] + shift) / self.side
+        v = (y - self.origin[1] + shift) / self.side
+        i, j = np.floor(u), np.floor(v)
+        colour = (i.astype(np.int64) % 2) + 2 * (j.astype(np.int64) % 2)
+        depth = np.minimum.reduce([u - i, 1 - (u - i), v - j, 1 - (v - j)])
+        return colour, depth
+
+    def predict(self, x, y):
+        x = np.asarray(x, float).reshape(-1)
+        y = np.asarray(y, float).reshape(-1)
+        c0, d0 = self.cells(x, y, 0)
+        c1, d1 = self.cells(x, y, 1)
+        board = np.where(d1 > d0, 1, 0)
+        colour = np.where(board == 1, c1, c0)
+        z, se, gx, gy = (np.full(len(x), np.nan) for _ in range(4))
+        for (b, c), s in self.surfaces.items():
+            m = (board == b) & (colour == c)
+            if not m.any():
+                continue
+            z[m] = s.value(x[m], y[m])
+            se[m] = s.check_se(x[m], y[m])
+            gx[m], gy[m] = s.gradient(x[m], y[m])
+        return z, se, gx, gy
+
+
+def _holdout_checks(kind, data: _Data, side_m, growth, sigma_m, taper_m, *, smoothing, lam,
+                    is_cancelled=None):
+    """The fits the misfit check compares held-out contacts with (see :class:`_Holdout`).
+
+    The spline is refitted as it was chosen; plane and trend2 are refitted robustly
+    (:func:`_fit_poly_robust`), because one mistraced stretch or faulted block tilts a global
+    least-squares surface everywhere, far outside any held-out block.
+    """
+    origin = data.p_xy.min(axis=0)
+    holdout = _Holdout(origin, side_m, {})
+    floor = sigma_m if sigma_m is not None else 0.0
+    for board in (0, 1):
+        colour, _ = holdout.cells(data.p_xy[:, 0], data.p_xy[:, 1], board)
+        for c in range(4):
+            out = colour == c
+            if not out.any() or out.all():
+                continue
+            _check_cancel(is_cancelled, "misfit check")
+            sub = data.picks(~out)
+            try:
+                if kind in ("plane", "trend2"):
+                    try:
+                        core = _fit_poly_robust(1 if kind == "plane" else 2, sub, floor)
+                        trend = None if kind == "plane" else _fit_poly_robust(1, sub, floor)
+                        s = _Surface(kind, core, trend, sub, taper_m)
+                    except (UndeterminedError, np.linalg.LinAlgError):
+                        s = _fit_kind(kind, sub, smoothing=smoothing, lam=lam, taper_m=taper_m)
+                else:
+                    s = _fit_kind(kind, sub, smoothing=smoothing, lam=lam, taper_m=taper_m)
+            except UndeterminedError:
+                continue  # points of this colour fall back to no check (NaN)
+            s.growth = growth
+            holdout.surfaces[(board, c)] = s
+    return holdout if holdout.surfaces else None

@@ -4,7 +4,8 @@ from __future__ import annotations
 import numpy as np
 import shapely
 
-__all__ = ["line_segments", "distance_to_lines", "trace_misfit"]
+__all__ = ["line_segments", "distance_to_lines", "trace_misfit", "vertex_spacing_m", "split_into_segments",
+           "contact_misfit_segments", "holdout_misfit_segments"]
 
 
 def line_segments(geoms) -> np.ndarray:
@@ -112,6 +113,61 @@ def split_lines_by_flag(geoms, flag_fn, *, spacing_m):
             np.array(out_src, dtype=np.int64))
 
 
+def vertex_spacing_m(geoms) -> float:
+    """Median distance between consecutive vertices of (multi)lines (0 when there is none).
+
+    Examples
+    --------
+    >>> import shapely
+    >>> vertex_spacing_m([shapely.LineString([(0, 0), (10, 0), (30, 0)])])
+    15.0
+    """
+    geoms = np.asarray(geoms, dtype=object)
+    if geoms.size == 0:
+        return 0.0
+    parts = shapely.get_parts(geoms)
+    xy, idx = shapely.get_coordinates(parts, return_index=True)
+    same = idx[1:] == idx[:-1]
+    step = np.hypot(*(xy[1:] - xy[:-1]).T)[same]
+    step = step[step > 0]
+    return float(np.median(step)) if len(step) else 0.0
+
+
+def split_into_segments(contacts, contact_ids, *, segment_m):
+    """Cut mapped contacts into segments of ``segment_m`` and densify each to ``segment_m / 10``.
+
+    Returns
+    -------
+    list of (ndarray (k, 2), int)
+        The points of every segment (its ends included: neighbouring segments share a point)
+        and the id of its contact. Segments with fewer than two points are left out.
+    """
+    contacts = np.asarray(contacts, dtype=object)
+    ids = np.asarray(contact_ids, dtype=np.int64)
+    if contacts.size == 0:
+        return []
+    parts, pid = shapely.get_parts(contacts, return_index=True)
+    # densify, then cut each part where its running length passes a multiple of segment_m
+    dense = shapely.segmentize(parts, max_segment_length=segment_m / 10.0)
+    xy, vpart = shapely.get_coordinates(dense, return_index=True)
+    step = np.zeros(len(xy))
+    same = vpart[1:] == vpart[:-1]
+    step[1:] = np.where(same, np.hypot(*(xy[1:] - xy[:-1]).T), 0.0)
+    run = np.cumsum(step)
+    run -= np.repeat(run[np.r_[0, np.flatnonzero(~same) + 1]], np.bincount(vpart, minlength=len(parts))[
+        np.unique(vpart)])
+    piece = np.floor(run / segment_m).astype(np.int64)
+    # a segment = (part, piece); the last vertex of a piece also starts the next one
+    key_change = np.r_[True, (vpart[1:] != vpart[:-1]) | (piece[1:] != piece[:-1])]
+    out = []
+    bounds = np.r_[np.flatnonzero(key_change), len(xy)]
+    for a, b in zip(bounds[:-1], bounds[1:]):
+        end = b + 1 if b < len(xy) and vpart[b] == vpart[a] else b
+        if end - a >= 2:
+            out.append((xy[a:end], int(ids[pid[vpart[a]]])))
+    return out
+
+
 def contact_misfit_segments(contacts, contact_ids, trace_geoms, *, segment_m, flag_m,
                             valid_fn=None):
     """Split mapped contacts into segments and measure each one's distance to a predicted trace.
@@ -136,38 +192,96 @@ def contact_misfit_segments(contacts, contact_ids, trace_geoms, *, segment_m, fl
         ``geoms`` (LineString segments), ``contact_id``, ``misfit_m`` (median distance of the
         segment's points, spaced ``segment_m / 10``, to the trace) and ``flagged``.
     """
-    contacts = np.asarray(contacts, dtype=object)
-    ids = np.asarray(contact_ids, dtype=np.int64)
-    parts, pid = shapely.get_parts(contacts, return_index=True)
-    # densify, then cut each part where its running length passes a multiple of segment_m
-    dense = shapely.segmentize(parts, max_segment_length=segment_m / 10.0)
-    xy, vpart = shapely.get_coordinates(dense, return_index=True)
-    step = np.zeros(len(xy))
-    same = vpart[1:] == vpart[:-1]
-    step[1:] = np.where(same, np.hypot(*(xy[1:] - xy[:-1]).T), 0.0)
-    run = np.cumsum(step)
-    run -= np.repeat(run[np.r_[0, np.flatnonzero(~same) + 1]], np.bincount(vpart, minlength=len(parts))[
-        np.unique(vpart)])
-    piece = np.minimum(np.floor(run / segment_m), np.inf).astype(np.int64)
-    # a segment = (part, piece); the last vertex of a piece also starts the next one
-    key_change = np.r_[True, (vpart[1:] != vpart[:-1]) | (piece[1:] != piece[:-1])]
-    seg_id = np.cumsum(key_change) - 1
-    d = distance_to_lines(xy, trace_geoms)
-    if valid_fn is not None:
-        d = np.where(np.asarray(valid_fn(xy[:, 0], xy[:, 1]), dtype=bool), d, np.nan)
     geoms, misfit, cid = [], [], []
-    bounds = np.r_[np.flatnonzero(key_change), len(xy)]
-    for a, b in zip(bounds[:-1], bounds[1:]):
-        end = b + 1 if b < len(xy) and vpart[b] == vpart[a] else b
-        if end - a < 2:
-            continue
-        geoms.append(shapely.linestrings(xy[a:end]))
-        vals = d[a:end]
-        vals = vals[np.isfinite(vals)]
-        misfit.append(float(np.median(vals)) if len(vals) else np.nan)
-        cid.append(ids[pid[vpart[a]]])
+    for pts, c in split_into_segments(contacts, contact_ids, segment_m=segment_m):
+        d = distance_to_lines(pts, trace_geoms)
+        if valid_fn is not None:
+            d = np.where(np.asarray(valid_fn(pts[:, 0], pts[:, 1]), dtype=bool), d, np.nan)
+        d = d[np.isfinite(d)]
+        geoms.append(shapely.linestrings(pts))
+        misfit.append(float(np.median(d)) if len(d) else np.nan)
+        cid.append(c)
     misfit = np.array(misfit, dtype=float)
     flagged = np.where(np.isfinite(misfit), misfit > flag_m, False)
-    del seg_id
     return {"geoms": np.array(geoms, dtype=object), "contact_id": np.array(cid, dtype=np.int64),
             "misfit_m": misfit, "flagged": flagged}
+
+
+#: Slope of the depth field below which a vertical misfit has no meaningful horizontal
+#: equivalent (ground parallel to the surface): tan 1°.
+MIN_DEPTH_SLOPE = float(np.tan(np.radians(1.0)))
+
+
+def holdout_misfit_segments(contacts, contact_ids, check_fn, *, segment_m, z_flag,
+                            flag_m=None):
+    """Misfit of every stretch of mapped contact against a forecast that did not see it.
+
+    Parameters
+    ----------
+    contacts : array of shapely (Multi)LineStrings
+    contact_ids : array of int
+    check_fn : callable ``(x, y) -> (residual_m, se_m, depth_slope)``
+        At points on the contact: the vertical misfit ``ground − forecast surface`` (positive
+        where the ground stands above the surface that was forecast without these picks), its
+        standard error, and the slope ``|∇(ground − surface)|`` (m/m). NaN where no
+        comparison is possible (off the DEM).
+    segment_m : float
+        Length of the segments.
+    z_flag : float
+        A segment is flagged when ``|median residual| > z_flag × median standard error``.
+    flag_m : float, optional
+        Instead, flag where the horizontal misfit exceeds this many metres.
+
+    Returns
+    -------
+    dict of arrays
+        ``geoms``, ``contact_id``, ``misfit_m`` (horizontal: median of
+        ``|residual| / depth slope``, NaN where the ground runs parallel to the surface),
+        ``misfit_z_m`` (median vertical misfit, signed), ``se_m``, ``z_score``, ``flag_m``
+        (the horizontal misfit at which this segment would be flagged:
+        ``z_flag × se / slope``) and ``flagged``.
+
+    Notes
+    -----
+    At a point on the mapped contact the ground *is* the contact, so ``ground − surface`` is
+    the forecast's error there; divided by the slope of ``ground − surface`` it is, to first
+    order, the distance from the point to the forecast's outcrop trace (the zero line of
+    depth below ground). The test is made on the vertical misfit, whose error is known (the
+    stated pick error and the forecast's own standard error), so the horizontal threshold
+    follows from the errors and the ground slope: wide where ground and surface run nearly
+    parallel, narrow on steep ground.
+    """
+    geoms, cid, r_med, se_med, h_med, slope_med = [], [], [], [], [], []
+    segs = split_into_segments(contacts, contact_ids, segment_m=segment_m)
+    if segs:
+        allpts = np.vstack([p for p, _ in segs])
+        r, se, slope = (np.asarray(a, dtype=float) for a in check_fn(allpts[:, 0], allpts[:, 1]))
+        k = 0
+        for pts, c in segs:
+            sl = slice(k, k + len(pts))
+            k += len(pts)
+            ok = np.isfinite(r[sl]) & np.isfinite(se[sl]) & np.isfinite(slope[sl])
+            geoms.append(shapely.linestrings(pts))
+            cid.append(c)
+            if not ok.any():
+                r_med.append(np.nan), se_med.append(np.nan), h_med.append(np.nan)
+                slope_med.append(np.nan)
+                continue
+            rr, ss, gg = r[sl][ok], se[sl][ok], slope[sl][ok]
+            r_med.append(float(np.median(rr)))
+            se_med.append(float(np.median(ss)))
+            slope_med.append(float(np.median(gg)))
+            h = np.where(gg >= MIN_DEPTH_SLOPE, np.abs(rr) / np.maximum(gg, MIN_DEPTH_SLOPE), np.nan)
+            h_med.append(float(np.median(h[np.isfinite(h)])) if np.isfinite(h).any() else np.nan)
+    r_med, se_med, h_med, slope_med = (np.array(a, dtype=float) for a in (r_med, se_med, h_med, slope_med))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        z = np.abs(r_med) / se_med
+        fm = np.where(slope_med >= MIN_DEPTH_SLOPE, z_flag * se_med / slope_med, np.nan)
+    if flag_m is None:
+        flagged = np.where(np.isfinite(z), z > z_flag, False)
+    else:
+        flagged = np.where(np.isfinite(h_med), h_med > flag_m, False)
+        fm = np.full(len(h_med), float(flag_m))
+    return {"geoms": np.array(geoms, dtype=object), "contact_id": np.array(cid, dtype=np.int64),
+            "misfit_m": h_med, "misfit_z_m": r_med, "se_m": se_med, "z_score": z, "flag_m": fm,
+            "flagged": flagged}

@@ -342,13 +342,14 @@ def test_trend2_standard_error_is_the_least_squares_prediction_error():
 def test_spline_standard_error_grows_with_distance_as_documented(fold):
     m = fold[2]
     s = m.params["sigma_m"]
-    r, dcv = m.cv_rmse_m["spline"], m.cv_distance_m
+    g = m.growth
     x = np.array([1500.0, 1500.0, 1500.0])
     y = np.array([1500.0, 1700.0, FOLD_EXTENT_M + 2000.0])
     d = m.distance_to_data(x, y)
-    # the documented formula: sqrt(σ² + max(r² − σ², 0)(d/d_cv)²)
-    ref = np.sqrt(s ** 2 + max(r ** 2 - s ** 2, 0) * (d / dcv) ** 2)
+    # the documented formula: kappa * sqrt(σ² + excess (d/d_ref)^alpha)
+    ref = g.kappa * np.sqrt(s ** 2 + g.excess_m2 * (d / g.distance_ref_m) ** g.alpha)
     np.testing.assert_allclose(m.standard_error(x, y), ref, rtol=1e-12)
+    assert 0.5 <= g.alpha <= 2.0 and g.kappa > 0
     order = np.argsort(d)
     assert np.all(np.diff(m.standard_error(x, y)[order]) >= 0)
     grid = Grid((0.0, 100.0, 0.0, 3000.0, 0.0, -100.0), (30, 30))
