@@ -16,9 +16,10 @@ import shapely
 from osgeo import ogr
 
 from strikeline import CAUTION, __version__
-from strikeline.crossval import segment_groups
+from strikeline.crossval import holdout_block_m, segment_groups
 from strikeline.defaults import (DEFAULT_BOREHOLE_SIGMA_M, DEFAULT_CONTOUR_SIGMA_M, DEFAULT_DEM_SIGMA_M,
-                                 DEFAULT_ORIENTATION_SIGMA_DEG, FLAG_CELLS, MODELS, SEGMENT_CELLS)
+                                 DEFAULT_ORIENTATION_SIGMA_DEG, FLAG_CELLS, MODELS, SEGMENT_CELLS,
+                                 DEFAULT_CONTACT_SIGMA_M, MISFIT_Z)
 from strikeline.diagnostics import PlaneQuality, assess_plane
 from strikeline.errors import CancelledError, InputError, UndeterminedError
 from strikeline.fitting import PlaneFit, fit_plane
@@ -37,8 +38,10 @@ from strikeline.picks import (PickSet, ground_slope_from_contours, picks_from_co
 from strikeline.surfaces import SurfaceModel, fit_surface
 from strikeline.thickness import isopach_grids
 from strikeline.units import UnitBounds, bound_violation_m, parse_unit_names, unit_bounds
-from strikeline.trace import contact_misfit_segments, distance_to_lines, split_lines_by_flag, trace_misfit
-from strikeline.uncertainty import PlaneConfidence, plane_confidence, vertical_sigma_of_picks
+from strikeline.trace import (contact_misfit_segments, distance_to_lines, holdout_misfit_segments, split_lines_by_flag,
+                              trace_misfit, vertex_spacing_m)
+from strikeline.uncertainty import (PlaneConfidence, contour_sigma_to_vertical, dip_is_significant, plane_confidence,
+                                   vertical_sigma_of_picks)
 
 
 Log = Callable[[str], None]
@@ -91,6 +94,7 @@ class RunOptions:
     # confidence and local attitudes (issue 3)
     dem_sigma_m: float = DEFAULT_DEM_SIGMA_M
     contour_sigma_m: float = DEFAULT_CONTOUR_SIGMA_M
+    contact_sigma_m: float = DEFAULT_CONTACT_SIGMA_M
     window_m: float | None = None
     group_by: str | None = None
     resamples: int = 1000
@@ -167,6 +171,7 @@ def check_options(opts: RunOptions) -> None:
         _positive(opts.misfit_flag_m, "--misfit-flag (metres)")
     _positive(opts.dem_sigma_m, "--dem-sigma (metres)", allow_zero=True)
     _positive(opts.contour_sigma_m, "--contour-sigma (metres)", allow_zero=True)
+    _positive(opts.contact_sigma_m, "--contact-sigma (metres)", allow_zero=True)
     _positive(opts.borehole_sigma_m, "--borehole-sigma (metres)", allow_zero=True)
     _positive(opts.orientation_sigma_deg, "--orientation-sigma (degrees)", allow_zero=True)
     if not (isinstance(opts.resamples, int) and opts.resamples >= 100):
@@ -497,16 +502,19 @@ def fit_picks(picks: PickSet, *, what: str = "the picks") -> PlaneFit:
 
 
 def pick_sigmas(inputs: Inputs, picks: PickSet, opts: RunOptions) -> np.ndarray:
-    """Vertical standard error of every pick (DEM error; contour position through the slope)."""
+    """Vertical standard error of every pick: the DEM error and the contact's positional error
+    through the ground slope for DEM picks; the contour's positional error through the slope
+    for contour picks."""
     slope = np.full(len(picks), np.nan)
     is_contour = picks.source == "contours"
+    dem_slope = None
+    if inputs.dem is not None and ((is_contour.any() and opts.contour_sigma_m > 0)
+                                   or (~is_contour).any() and opts.contact_sigma_m > 0):
+        dem_dip, _ = dip_grids(inputs.dem, inputs.dem_grid)
+        dem_slope = sample_bilinear(dem_dip.astype(float), inputs.dem_grid, picks.xyz[:, 0], picks.xyz[:, 1])
     if is_contour.any() and opts.contour_sigma_m > 0:
         xy = picks.xyz[is_contour, :2]
-        if inputs.dem is not None:
-            dem_dip, _ = dip_grids(inputs.dem, inputs.dem_grid)
-            s = sample_bilinear(dem_dip.astype(float), inputs.dem_grid, xy[:, 0], xy[:, 1])
-        else:
-            s = np.full(len(xy), np.nan)
+        s = dem_slope[is_contour] if dem_slope is not None else np.full(len(xy), np.nan)
         missing = ~np.isfinite(s)
         if missing.any() and inputs.contours is not None:
             s[missing] = ground_slope_from_contours(xy[missing, 0], xy[missing, 1], inputs.contours.geoms,
@@ -515,8 +523,14 @@ def pick_sigmas(inputs: Inputs, picks: PickSet, opts: RunOptions) -> np.ndarray:
         med = np.nanmedian(s) if np.isfinite(s).any() else 0.0
         slope[is_contour] = np.clip(np.where(np.isfinite(s), s, med), 0.0, 89.0)
     slope = np.where(np.isfinite(slope), slope, 0.0)
-    return vertical_sigma_of_picks(picks.source, slope, dem_sigma_m=opts.dem_sigma_m,
-                                   contour_sigma_m=opts.contour_sigma_m)
+    sigma = vertical_sigma_of_picks(picks.source, slope, dem_sigma_m=opts.dem_sigma_m,
+                                    contour_sigma_m=opts.contour_sigma_m)
+    if dem_slope is not None and opts.contact_sigma_m > 0:
+        on_dem = ~is_contour & np.isfinite(dem_slope)
+        extra = contour_sigma_to_vertical(opts.contact_sigma_m, np.clip(dem_slope[on_dem], 0.0, 89.0))
+        sigma = np.asarray(sigma, dtype=float).copy()
+        sigma[on_dem] = np.hypot(sigma[on_dem], extra)
+    return sigma
 
 
 def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples: int = 1000,
@@ -526,6 +540,12 @@ def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples:
     With ``strict`` an undetermined pick set is an error (the sheet-wide plane); otherwise it is
     reported with ``quality: undetermined`` and no attitude (a group or window). ``blocks``
     (one label per pick, e.g. contact segments) makes the bootstrap resample whole blocks.
+
+    A plane whose dip does not differ from zero at 95%
+    (:func:`strikeline.uncertainty.dip_is_significant`) is horizontal within its confidence:
+    ``dip_significant`` is false, ``dip`` and ``dip_ci95`` are still given, and the dip
+    direction, its half-width, its true-north azimuth and the strike are ``None`` (they are
+    undefined for a horizontal plane), with a ``horizontal`` sentence saying so.
     """
     xyz = np.asarray(xyz, dtype=float)
     try:
@@ -550,6 +570,8 @@ def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples:
         return {"quality": "undetermined", "reason": quality.reason, "advice": quality.advice,
                 "n_picks": plane.n_points}
     gamma = meridian_convergence_deg(crs_wkt, plane.centroid[0], plane.centroid[1])
+    significant = dip_is_significant(plane.dip_deg, None if conf is None else conf.dip_ci95_deg,
+                                     None if conf is None else conf.cone95_deg)
     out = {
         "dip": plane.dip_deg,
         "dip_direction": plane.dip_direction_deg,
@@ -568,7 +590,13 @@ def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples:
         "collinearity_K": quality.collinearity,
         "meridian_convergence_deg": gamma,
         "dip_direction_true": float(grid_to_true_azimuth(plane.dip_direction_deg, gamma)),
+        "dip_significant": significant,
     }
+    if not significant:
+        ci = "" if conf is None else f" +/- {conf.dip_ci95_deg:.2g}"
+        out.update(dip_direction=None, strike_rhr=None, dip_direction_true=None, dip_direction_ci95=None,
+                   horizontal=(f"horizontal within its 95% confidence: dip {plane.dip_deg:.2g}{ci} deg does "
+                               "not differ from 0, so the plane has no dip direction or strike"))
     return out
 
 
@@ -588,38 +616,45 @@ def surface_grid(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet) -> Grid
     return Grid.from_bounds(xmin, ymin, xmax, ymax, cell_m=cell, crs_wkt=inputs.crs_wkt)
 
 
-def contact_segments(picks: PickSet, *, cell_m: float) -> np.ndarray:
+def contact_segments(picks: PickSet, *, cell_m: float, vertex_spacing_m: float = 0.0) -> np.ndarray:
     """Label of the contact segment of every pick: the part of one contact inside one square
-    block of 1/8 of the picks' span (at least 10 cells). Used for cross-validation folds and for
-    the block bootstrap, so that neighbouring picks, which share their errors, stay together."""
-    return segment_labels(picks.xyz, picks.contact_id, cell_m=cell_m)
+    block of :func:`strikeline.crossval.holdout_block_m` (about the typical distance from the
+    mapped ground to the nearest pick, at least two vertex spacings of the mapped lines and three
+    cells). Used for cross-validation folds and for the block bootstrap, so that neighbouring
+    picks, which share their errors, stay together."""
+    return segment_labels(picks.xyz, picks.contact_id, cell_m=cell_m, vertex_spacing_m=vertex_spacing_m)
 
 
-def segment_labels(xyz, contact_id, *, cell_m: float = 1.0) -> np.ndarray:
+def segment_labels(xyz, contact_id, *, cell_m: float = 1.0, vertex_spacing_m: float = 0.0) -> np.ndarray:
     """:func:`contact_segments` for bare arrays: ``xyz`` (n, 3) and a contact id per point
     (non-finite ids count as one contact of their own)."""
     xyz = np.asarray(xyz, dtype=float)
     cid = np.asarray(contact_id, dtype=float)
     cid = np.where(np.isfinite(cid), cid, -1).astype(np.int64)
-    span = float(np.max(np.ptp(xyz[:, :2], axis=0))) if len(xyz) else 0.0
-    block_m = max(span / 8.0, 10.0 * cell_m, 1.0)
+    block_m = holdout_block_m(xyz[:, :2], vertex_spacing_m=vertex_spacing_m, cell_m=cell_m) if len(xyz) else 1.0
     return segment_groups(xyz[:, 0], xyz[:, 1], cid, block_m=block_m)
 
 
 def model_surface(picks: PickSet, opts: RunOptions, grid: Grid, *, boreholes=None, orientations=None, bounds=None,
-                  what: str, is_cancelled=None) -> SurfaceModel:
-    """Fit the ``--model`` surface to picks (and constraints), folds by contact segment."""
+                  what: str, is_cancelled=None, sigma=None, vertex_spacing_m: float = 0.0) -> SurfaceModel:
+    """Fit the ``--model`` surface to picks (and constraints), folds by contact segment.
+
+    ``sigma`` (one per pick, metres) is the stated pick error the model choice is judged
+    against (default: ``--dem-sigma`` for every pick).
+    """
     xyz = picks.xyz
-    groups = contact_segments(picks, cell_m=grid.cell_x_m)
+    block = holdout_block_m(xyz[:, :2], vertex_spacing_m=vertex_spacing_m, cell_m=grid.cell_x_m)
+    groups = contact_segments(picks, cell_m=grid.cell_x_m, vertex_spacing_m=vertex_spacing_m)
     bh = None
     if boreholes is not None:
         bh = np.column_stack([boreholes, np.full(len(boreholes), opts.borehole_sigma_m)])
     orient = None
     if orientations is not None:
         orient = np.column_stack([orientations, np.full(len(orientations), opts.orientation_sigma_deg)])
+    data_sigma = opts.dem_sigma_m if sigma is None else sigma
     try:
         return fit_surface(xyz, model=opts.model, boreholes=bh, orientations=orient, groups=groups,
-                           seed=opts.seed, is_cancelled=is_cancelled, bounds=bounds)
+                           seed=opts.seed, data_sigma_m=data_sigma, is_cancelled=is_cancelled, bounds=bounds)
     except UndeterminedError as exc:
         raise UndeterminedError(f"{what}: {exc}") from None
 
@@ -639,23 +674,35 @@ def structure_contours(surface, grid: Grid, *, interval_m: float, extrapolated_f
 
 
 def depth_trace_misfit(dem, dem_grid: Grid, surface, contacts: VectorLayer | None = None, *,
-                       extrapolated_fn=None, flag_m=None) -> dict:
+                       extrapolated_fn=None, flag_m=None, model: SurfaceModel | None = None,
+                       z_flag: float = MISFIT_Z, dem_sigma_m: float = DEFAULT_DEM_SIGMA_M,
+                       contact_sigma_m: float = DEFAULT_CONTACT_SIGMA_M) -> dict:
     """Depth below ground, the predicted outcrop trace and its misfit to the mapped contacts.
 
     Depth = DEM − surface (positive where the surface lies below ground); the trace is its zero
-    line, split where ``extrapolated_fn`` changes; the misfit is measured from every contact
-    vertex over valid DEM cells (median, 90th percentile) and along contact segments of
-    ``SEGMENT_CELLS`` cells, flagged beyond ``flag_m`` (default ``FLAG_CELLS`` cells).
+    line, split where ``extrapolated_fn`` changes; the misfit of the fitted surface's trace is
+    measured from every contact vertex over valid DEM cells (median, 90th percentile).
+
+    The misfit check cuts the contacts into segments of ``SEGMENT_CELLS`` cells. With the
+    fitted ``model`` every segment is compared with the surface forecast WITHOUT the picks
+    near it (:meth:`strikeline.surfaces.SurfaceModel.holdout_prediction`), so a mistraced
+    stretch or an unmapped fault cannot bend the surface it is checked against; it is flagged
+    when its vertical misfit exceeds ``z_flag`` standard errors, or, with ``flag_m``, when its horizontal misfit exceeds that many
+    metres (:func:`strikeline.trace.holdout_misfit_segments`). Without a model (a surface
+    raster only) segments are compared with that surface's trace and flagged beyond
+    ``flag_m`` (default ``FLAG_CELLS`` cells). The standard error of a vertical misfit is the
+    forecast's own error and the stated error of the ground there:
+    ``sqrt(dem_sigma_m² + (contact_sigma_m · tan(ground slope))²)`` — the DEM's error and the
+    contact's positional error taken through the slope (as for contour picks).
 
     Returns
     -------
     dict
         ``depth``, ``trace``, ``trace_extrapolated``, ``misfit`` (dict), ``vertices`` and
         ``vertex_distance`` (contact vertices on the DEM and their distance to the trace),
-        ``segments`` (see :func:`strikeline.trace.contact_misfit_segments`), ``flag_m``.
+        ``segments``, ``flag_m``, ``check`` (how segments were checked).
     """
     spacing = min(dem_grid.cell_x_m, dem_grid.cell_y_m)
-    flag_m = FLAG_CELLS * spacing if flag_m is None else flag_m
     depth = depth_below_ground(dem, surface)
     raw_trace, _ = contour_lines(depth, dem_grid, levels=[0.0])
     if extrapolated_fn is not None:
@@ -664,7 +711,8 @@ def depth_trace_misfit(dem, dem_grid: Grid, surface, contacts: VectorLayer | Non
         trace, tflags = raw_trace, np.zeros(len(raw_trace), dtype=bool)
     out = {"depth": depth, "trace": trace, "trace_extrapolated": tflags, "flag_m": flag_m,
            "misfit": {"median": None, "p90": None, "n_vertices": 0, "note": "no contacts given"},
-           "vertices": np.empty((0, 2)), "vertex_distance": np.empty(0), "segments": None}
+           "vertices": np.empty((0, 2)), "vertex_distance": np.empty(0), "segments": None,
+           "check": None}
     if contacts is None:
         return out
     verts = shapely.get_coordinates(contacts.geoms)
@@ -672,14 +720,54 @@ def depth_trace_misfit(dem, dem_grid: Grid, surface, contacts: VectorLayer | Non
     out["misfit"] = trace_misfit(verts, raw_trace)
     out["vertices"] = verts
     out["vertex_distance"] = distance_to_lines(verts, raw_trace)
+    segment_m = SEGMENT_CELLS * spacing
+    if model is not None:
+        h = spacing
+
+        def check_fn(x, y):
+            ground = sample_bilinear(dem, dem_grid, x, y)
+            z, se, gx, gy = model.holdout_prediction(x, y)
+            dgx = (sample_bilinear(dem, dem_grid, x + h, y) - sample_bilinear(dem, dem_grid, x - h, y)) / (2 * h)
+            dgy = (sample_bilinear(dem, dem_grid, x, y + h) - sample_bilinear(dem, dem_grid, x, y - h)) / (2 * h)
+            pick_var = dem_sigma_m ** 2 + (contact_sigma_m * np.hypot(dgx, dgy)) ** 2
+            return ground - z, np.sqrt(se ** 2 + pick_var), np.hypot(dgx - gx, dgy - gy)
+
+        out["segments"] = holdout_misfit_segments(contacts.geoms, contacts.fids, check_fn, segment_m=segment_m,
+                                                  z_flag=z_flag, flag_m=flag_m)
+        out["check"] = {
+            "method": "each segment against the surface fitted without the picks near it "
+                      f"(cross-validation folds of {model.n_folds}; robust refits for plane and trend2)"
+                      if model.n_folds else "against the fitted surface (no cross-validation was possible)",
+            "flag_rule": (f"|vertical misfit| > {z_flag:g} standard errors" if flag_m is None
+                          else f"horizontal misfit > {flag_m:g} m (--misfit-flag)"),
+            "dem_sigma_m": dem_sigma_m, "contact_sigma_m": contact_sigma_m,
+        }
+        return out
 
     def on_valid(x, y):
         return np.isfinite(sample_bilinear(dem, dem_grid, x, y))
 
+    flag_m = FLAG_CELLS * spacing if flag_m is None else flag_m
+    out["flag_m"] = flag_m
     out["segments"] = contact_misfit_segments(contacts.geoms, contacts.fids, raw_trace,
-                                              segment_m=SEGMENT_CELLS * spacing, flag_m=flag_m,
-                                              valid_fn=on_valid)
+                                              segment_m=segment_m, flag_m=flag_m, valid_fn=on_valid)
+    out["check"] = {"method": "distance to the given surface's trace", "flag_rule": f"misfit > {flag_m:g} m"}
     return out
+
+
+def log_model_choice(model: SurfaceModel, *, what: str, log: Log = _quiet) -> None:
+    """Say in the log which models were scored, their scores, the hold-out block and why."""
+    if not model.cv_rmse_m:
+        log(f"{what}: {model.kind} (fixed, not cross-validated)")
+        return
+    scores = ", ".join(f"{k} {v:.3g} m" if np.isfinite(v) else f"{k} not scored"
+                       for k, v in model.cv_rmse_m.items())
+    block = "" if model.block_m is None else f", blocks of {model.block_m:.0f} m"
+    log(f"{what}: cross-validation error {scores} ({model.n_groups} held-out segments{block})")
+    if model.choice is not None:
+        log(f"{what}: {model.choice.reason}")
+    else:
+        log(f"{what}: {model.kind} as asked (--model)")
 
 
 def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=None,
@@ -701,7 +789,8 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     conf_opts = {"crs_wkt": inputs.crs_wkt, "resamples": opts.resamples, "seed": opts.seed,
                  "is_cancelled": is_cancelled}
     grid = surface_grid(inputs, opts, log=log)
-    blocks = contact_segments(picks, cell_m=grid.cell_x_m)
+    spacing = vertex_spacing_m(inputs.contacts.geoms)
+    blocks = contact_segments(picks, cell_m=grid.cell_x_m, vertex_spacing_m=spacing)
     plane_summary = attitude_of(picks.xyz, sigma, what=what, strict=True, blocks=blocks, **conf_opts)
     if plane_summary["quality"] == "weak":
         log(f"warning: the best-fit plane is weak - {plane_summary['reason']}; "
@@ -723,10 +812,11 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
         ub = map_unit_bounds(inputs.unit_polygons, inputs.unit_names, inputs.dem, inputs.dem_grid, opts, log=log)
     model = model_surface(picks, opts, grid, boreholes=inputs.boreholes_xyz, orientations=inputs.orientations,
                           bounds=None if ub is None else ub.bounds,
-                          what=what, is_cancelled=is_cancelled)
-    surface = model.evaluate_grid(grid, is_cancelled=is_cancelled)
+                          what=what, is_cancelled=is_cancelled, sigma=sigma, vertex_spacing_m=spacing)
+    log_model_choice(model, what="surface model", log=log)
     unit_check = None if ub is None else map_unit_check(model, inputs.unit_polygons, inputs.unit_names, inputs.dem,
                                                         inputs.dem_grid, opts, ub, log=log)
+    surface = model.evaluate_grid(grid, is_cancelled=is_cancelled)
     uncertainty = model.standard_error_grid(grid, is_cancelled=is_cancelled)
     step(4)
     dip, dipdir = dip_grids(surface, grid, is_cancelled=is_cancelled)
@@ -743,9 +833,10 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     flag_m = None
     if inputs.dem is not None:
         f = depth_trace_misfit(inputs.dem, inputs.dem_grid, surface, inputs.contacts,
-                               extrapolated_fn=model.is_extrapolated, flag_m=opts.misfit_flag_m)
+                               extrapolated_fn=model.is_extrapolated, flag_m=opts.misfit_flag_m, model=model,
+                               dem_sigma_m=opts.dem_sigma_m, contact_sigma_m=opts.contact_sigma_m)
         depth, trace, tflags = f["depth"], f["trace"], f["trace_extrapolated"]
-        misfit, segments, flag_m = f["misfit"], f["segments"], f["flag_m"]
+        misfit, segments, flag_m = f["misfit"], f["segments"], f["check"]
     step(7)
     vth = tth = top_picks = None
     thickness = None
@@ -754,7 +845,10 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
         top_picks = collect_picks(inputs, contacts=inputs.top_contacts, spacing_m=opts.pick_spacing_m, log=log,
                                   is_cancelled=is_cancelled)
         fit_picks(top_picks, what=twhat)
-        top_model = model_surface(top_picks, opts, grid, what=twhat, is_cancelled=is_cancelled)
+        top_model = model_surface(top_picks, opts, grid, what=twhat, is_cancelled=is_cancelled,
+                                  sigma=pick_sigmas(inputs, top_picks, opts),
+                                  vertex_spacing_m=vertex_spacing_m(inputs.top_contacts.geoms))
+        log_model_choice(top_model, what="top surface model", log=log)
         top_surface = top_model.evaluate_grid(grid, is_cancelled=is_cancelled)
         vth, tth = isopach_grids(top_surface, surface, grid)
         X, Y = grid.mesh()
@@ -808,6 +902,7 @@ def build_summary(inputs: Inputs, opts: RunOptions, picks: PickSet, plane: dict,
         },
         "data_error": {
             "dem_sigma_m": opts.dem_sigma_m, "contour_sigma_m": opts.contour_sigma_m,
+            "contact_sigma_m": opts.contact_sigma_m,
             "basis": "DEM picks: vertical standard error as given; contour picks: positional "
                      "standard error times tan(ground slope at the pick)",
             "resamples": opts.resamples, "seed": opts.seed,
@@ -820,8 +915,12 @@ def build_summary(inputs: Inputs, opts: RunOptions, picks: PickSet, plane: dict,
     }
     if model is not None:
         m = model.summary()
-        m["uncertainty"] = ("least-squares prediction standard error" if model.kind in ("plane", "trend2")
-                            else "cross-validation RMSE scaled by distance to the nearest datum")
+        m["uncertainty"] = ("standard error calibrated on held-out picks: kappa * sqrt(model's own standard "
+                            "error^2 + excess_m2 * (distance to the nearest datum / distance_ref_m)^alpha); "
+                            "see error_growth" if model.growth is not None else
+                            "least-squares prediction standard error (not calibrated: no cross-validation)"
+                            if model.kind in ("plane", "trend2") else
+                            "cross-validation RMSE scaled by distance to the nearest datum")
         m["extrapolated_beyond_m"] = model.reach_m
         if inputs.boreholes_xyz is not None:
             bm = model.borehole_misfit_m()
@@ -839,7 +938,7 @@ def build_summary(inputs: Inputs, opts: RunOptions, picks: PickSet, plane: dict,
                                 "by_quality": {str(a): int(b) for a, b in zip(q, counts)}}
     if segments is not None:
         summary["contact_misfit"] = {"segment_m": SEGMENT_CELLS * min(inputs.dem_grid.cell_x_m, inputs.dem_grid.cell_y_m),
-                                     "flag_m": flag_m, "n_segments": int(len(segments["geoms"])),
+                                     "check": flag_m, "n_segments": int(len(segments["geoms"])),
                                      "n_flagged": int(np.sum(segments["flagged"]))}
     if trace_flags is not None and len(trace_flags):
         summary["predicted_trace"] = {"n_lines": int(len(trace_flags)), "n_extrapolated": int(np.sum(trace_flags))}
@@ -908,9 +1007,12 @@ def result_layers(r: Results) -> list[LayerOut]:
     ]
     if r.contact_misfit is not None:
         cm = r.contact_misfit
-        layers.append(LayerOut("contact_misfit", cm["geoms"], {
-            "contact_id": cm["contact_id"], "misfit_m": cm["misfit_m"], "flagged": cm["flagged"]},
-            ogr.wkbLineString))
+        fields = {"contact_id": cm["contact_id"], "misfit_m": cm["misfit_m"]}
+        for key in ("misfit_z_m", "se_m", "z_score", "flag_m"):
+            if key in cm:
+                fields[key] = np.asarray(cm[key], dtype=float)
+        fields["flagged"] = cm["flagged"]
+        layers.append(LayerOut("contact_misfit", cm["geoms"], fields, ogr.wkbLineString))
     if r.attitudes is not None:
         layers.append(attitudes_layer(r.attitudes))
     if r.top_picks is not None:

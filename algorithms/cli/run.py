@@ -27,8 +27,9 @@ def add_parser(sub) -> argparse.ArgumentParser:
     g.add_argument("--pick-spacing", type=positive_metres, metavar="METRES", dest="pick_spacing_m",
                    help="spacing of DEM picks along the contacts (default: the DEM cell size)")
     g.add_argument("--misfit-flag", type=positive_metres, metavar="METRES", dest="misfit_flag_m",
-                   help=f"flag contact segments farther than this from the predicted trace "
-                        f"(default {pl.FLAG_CELLS} DEM cells)")
+                   help=f"flag contact segments whose horizontal misfit against the forecast made without "
+                        f"them exceeds this (default: flag where the vertical misfit exceeds {pl.MISFIT_Z:g} "
+                        "standard errors, from the stated errors and the ground slope)")
 
     m = p.add_argument_group("surface model")
     m.add_argument("--model", choices=pl.MODELS, default="auto",
@@ -76,6 +77,10 @@ def add_parser(sub) -> argparse.ArgumentParser:
                    dest="contour_sigma_m",
                    help=f"positional standard error of contour picks, turned vertical through the ground "
                         f"slope (default {pl.DEFAULT_CONTOUR_SIGMA_M:g}: half of a 5 m tolerance)")
+    a.add_argument("--contact-sigma", type=non_negative, default=pl.DEFAULT_CONTACT_SIGMA_M, metavar="METRES",
+                   dest="contact_sigma_m",
+                   help=f"positional standard error of the mapped contact lines, turned vertical through the "
+                        f"ground slope for DEM picks (default {pl.DEFAULT_CONTACT_SIGMA_M:g}: linework at 1:10,000)")
     a.add_argument("--window", type=positive_metres, metavar="METRES", dest="window_m",
                    help="radius of the moving windows of local attitudes (default from pick density)")
     a.add_argument("--group-by", metavar="FIELD", help="fit one plane per value of this contact field")
@@ -93,7 +98,7 @@ OPTION_FIELDS = (
     "orientations", "orientations_layer", "dip_field", "dip_direction_field", "strike_field",
     "orientation_sigma_deg", "top_contacts", "top_contacts_layer", "top_where", "map_units", "map_units_layer",
     "unit_field", "units_above", "units_below", "dem_sigma_m",
-    "contour_sigma_m", "window_m", "group_by", "resamples", "seed",
+    "contour_sigma_m", "contact_sigma_m", "window_m", "group_by", "resamples", "seed",
 )
 
 
@@ -111,6 +116,9 @@ def describe_plane(pl: dict) -> str:
     """The plane in plain words; an undetermined plane gets no number."""
     if pl.get("quality") == "undetermined":
         return f"undetermined - {pl['reason']}; {pl['advice']}"
+    if pl.get("dip_direction") is None:
+        return (f"dip {_pm(pl['dip'], pl.get('dip_ci95'))} deg: horizontal within its 95% confidence (no dip "
+                f"direction or strike), RMS residual {pl['rms_m']:.2f} m, {pl['n_picks']} picks, quality {pl['quality']}")
     return (f"dip {_pm(pl['dip'], pl.get('dip_ci95'))} deg toward {_pm(pl['dip_direction'], pl.get('dip_direction_ci95'))} "
             f"deg (grid north; {pl['dip_direction_true']:.2f} deg from true north), strike {pl['strike_rhr']:.1f} deg RHR, "
             f"RMS residual {pl['rms_m']:.2f} m, {pl['n_picks']} picks, quality {pl['quality']}")
@@ -128,6 +136,8 @@ def report(results, out, stream=sys.stdout) -> None:
         m = s["model"]
         scores = ", ".join(f"{k} {v:.2f} m" for k, v in sorted(m["cv_rmse_m"].items()) if v is not None)
         print(f"surface model: {m['chosen']}" + (f" (cross-validation RMSE: {scores})" if scores else ""), file=stream)
+        if m.get("choice"):
+            print(f"  why: {m['choice']['reason']}", file=stream)
     tm = s["trace_misfit_m"]
     if tm.get("median") is not None:
         print(f"trace misfit: median {tm['median']:.1f} m, 90th percentile {tm['p90']:.1f} m "
@@ -136,8 +146,8 @@ def report(results, out, stream=sys.stdout) -> None:
         print(f"trace misfit: not computed ({tm.get('note', 'no trace')})", file=stream)
     if "contact_misfit" in s:
         cm = s["contact_misfit"]
-        print(f"contact segments farther than {cm['flag_m']:g} m from the predicted trace: "
-              f"{cm['n_flagged']} of {cm['n_segments']}", file=stream)
+        print(f"contact segments flagged ({cm['check']['flag_rule']}, each against the surface forecast "
+              f"without it): {cm['n_flagged']} of {cm['n_segments']}", file=stream)
     if "map_units" in s:
         mu, c = s["map_units"], s["map_units"]["check"]
         worst = "" if not c["n_violated"] else f", by at most {c['max_violation_m']:.2f} m (layer unit_conflicts)"
