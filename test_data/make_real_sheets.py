@@ -316,7 +316,7 @@ def ramp_offset(s, *, start_m, end_m, ramp_m, offset_m):
     return offset_m * 0.5 * (1.0 - np.cos(np.pi * np.minimum(up, down)))
 
 
-def digitise(line, rng, spec: Digitising, *, mistrace=None, attempts=20):
+def digitise(line, rng, spec: Digitising, *, mistrace=None, bounds=None, attempts=20):
     """A hand-digitised copy of an exact trace.
 
     Vertices at spacings drawn uniformly from ``spec.spacing_m`` along the line (its ends kept),
@@ -324,8 +324,9 @@ def digitise(line, rng, spec: Digitising, *, mistrace=None, attempts=20):
     Gaussian series of standard deviation ``spec.sigma_m`` and autocorrelation
     ``exp(-(d / spec.correlation_m)**2)``, squashed by ``cap * tanh(e / cap)`` so that it stays
     under ``spec.cap_m``, faded out (half-cosine) over ``spec.taper_m`` at both ends.
-    ``mistrace`` (keywords of :func:`ramp_offset`) adds one stretch traced to the left. A copy
-    that crosses itself is drawn again from the same generator (so still deterministic).
+    ``mistrace`` (keywords of :func:`ramp_offset`) adds one stretch traced to the left.
+    Vertices are clamped into ``bounds`` (x0, y0, x1, y1) if given. A copy that crosses itself
+    is drawn again from the same generator (so still deterministic).
 
     Returns the line, the along-line distance of each vertex and the number of draws.
     """
@@ -349,6 +350,8 @@ def digitise(line, rng, spec: Digitising, *, mistrace=None, attempts=20):
         tangent /= np.hypot(tangent[:, 0], tangent[:, 1])[:, None]
         left = np.column_stack([-tangent[:, 1], tangent[:, 0]])
         xy = on + error[:, None] * left
+        if bounds is not None:
+            xy = np.column_stack([np.clip(xy[:, 0], bounds[0], bounds[2]), np.clip(xy[:, 1], bounds[1], bounds[3])])
         if line.is_closed:
             xy[-1] = xy[0]
         out = shapely.LineString(xy)
@@ -357,22 +360,25 @@ def digitise(line, rng, spec: Digitising, *, mistrace=None, attempts=20):
     raise RuntimeError("no self-avoiding digitised copy in 20 draws; change the seed or the noise")
 
 
-def digitise_pieces(pieces, rng, spec, frame, min_length_m, *, mistrace=None):
-    """Digitised copies of the exact pieces, cut back to the frame; returns the lines (with the
-    exact piece each came from), per-vertex offsets from the exact trace, and the draw count."""
-    out, offsets, draws = [], [], 0
+def digitise_pieces(pieces, rng, spec, frame, *, mistrace=None):
+    """Digitised copies of the exact pieces, one per piece and in the same order, vertices
+    pulled back inside the frame where the sideways error pushed them out. Returns the lines,
+    the along-trace position of each line's vertices, the per-vertex offsets from the exact
+    trace (the mistraced stretch left out) and the draw count."""
+    x0, y0, x1, y1 = frame.bounds
+    lines, positions, offsets, draws = [], [], [], 0
     for i, piece in enumerate(pieces):
         stretch = None
         if mistrace is not None and i == mistrace["piece"]:
             stretch = {k: mistrace[k] for k in ("start_m", "end_m", "ramp_m", "offset_m")}
-        line, s, n = digitise(piece, rng, spec, mistrace=stretch)
+        line, s, n = digitise(piece, rng, spec, mistrace=stretch, bounds=(x0, y0, x1, y1))
         draws += n
         xy = shapely.get_coordinates(line)
         honest = np.ones(len(s), bool) if stretch is None else (s < stretch["start_m"]) | (s > stretch["end_m"])
         offsets.append(shapely.distance(shapely.points(xy[honest]), piece))
-        for part in clip_pieces([line], frame, min_length_m):
-            out.append((part, i))
-    return out, np.concatenate(offsets), draws
+        lines.append(line)
+        positions.append(s)
+    return lines, positions, np.concatenate(offsets), draws
 
 
 # ================================================================ writers
@@ -408,13 +414,25 @@ def r(v, nd=3):
 
 
 # ================================================================ building one DEM's sheets
-def dem_record(grid, epsg):
-    z = grid.z.astype(np.float32).astype(np.float64)
+# Vertical error assumed for each DEM (neither source states one); the fold amplitudes are
+# chosen well above it.
+DEM_ERROR = {
+    "lidar": (0.2, "assumed: a typical vertical RMSE of an airborne lidar DEM in open ground"),
+    "volcano": (2.0, "assumed: whole metres digitised from a topographic map; R's ?volcano says "
+                     "the data 'should not be regarded as accurate'"),
+}
+
+
+def dem_record(dem, grid, epsg):
+    z32 = grid.z.astype(np.float32)
+    z = z32.astype(np.float64)
     ny, nx = grid.shape
     return {"crs": f"EPSG:{epsg}", "shape": [ny, nx], "pixel_size_m": [grid.gt[1], -grid.gt[5]],
             "origin": [grid.gt[0], grid.gt[3]], "nodata": NODATA,
             "min_m": float(z.min()), "max_m": float(z.max()), "mean_m": float(z.mean()),
-            "std_m": float(z.std())}
+            "std_m": float(z.std()),
+            "values_sha256": hashlib.sha256(z32.astype("<f4").tobytes()).hexdigest(),
+            "error_m": DEM_ERROR[dem][0], "error_note": DEM_ERROR[dem][1]}
 
 
 def trace_record(pieces):
@@ -452,7 +470,7 @@ def trace_spacing(grid, pieces):
 
 
 def base_truth(dem, case, kind, epsg, grid):
-    return {"dem": dem, "case": case, "kind": kind, "dem_grid": dem_record(grid, epsg)}
+    return {"dem": dem, "case": case, "kind": kind, "dem_grid": dem_record(dem, grid, epsg)}
 
 
 def surface_truth(spec, case):
@@ -501,6 +519,11 @@ def build_dem(dem, grid, out_root, *, only_cases=CASES):
         truth["trace"]["min_piece_m"] = spec["min_piece_m"]
         if case in ("plane", "fold"):
             truth["trace"]["spacing_m"] = r(trace_spacing(grid, pieces), 1)
+        if case == "fold":
+            plane_truth = dict(truth, kind="plane")
+            spacing = trace_spacing(grid, exact_trace(grid, plane_truth, frame, spec["min_piece_m"]))
+            truth["plane_trace_spacing_m"] = r(spacing, 1)
+            truth["wavelength_over_plane_spacing"] = r(truth["wavelength_m"] / spacing, 2)
         if case == "fault":
             down_len = sum(p.length for p in pieces
                            if real_truth.down_block(truth, *shapely.get_coordinates(p.interpolate(0.5, normalized=True))[0]))
@@ -510,28 +533,29 @@ def build_dem(dem, grid, out_root, *, only_cases=CASES):
         seed = spec["seed"] + (CASES.index("plane") if case == "mistraced" else ci)
         rng = np.random.default_rng(seed)
         mistrace = spec["mistrace"] if case == "mistraced" else None
-        lines, offsets, draws = digitise_pieces(pieces, rng, digit, frame, spec["min_piece_m"],
-                                                mistrace=mistrace)
-        truth["digitising"] = {"seed": seed, **digit.record(), "draws": draws,  # one per piece, more where a copy crossed itself
-                               "vertices": int(sum(len(g.coords) for g, _ in lines)),
+        lines, positions, offsets, draws = digitise_pieces(pieces, rng, digit, frame, mistrace=mistrace)
+        truth["digitising"] = {"seed": seed, **digit.record(),
+                               "draws": draws,  # one per piece, more where a copy crossed itself
+                               "vertices": int(sum(len(g.coords) for g in lines)),
                                "rms_offset_m": r(np.sqrt(np.mean(offsets**2))),
                                "max_offset_m": r(offsets.max()),
-                               "note": "offsets: distance of each digitised vertex from the exact "
+                               "note": "contacts feature i is the copy of exact_trace piece i; "
+                                       "offsets: distance of each digitised vertex from its exact "
                                        "piece, the mistraced stretch left out"}
         if mistrace is not None:
-            truth["mistrace"] = mistrace_record(pieces, lines, mistrace, digit)
+            truth["mistrace"] = mistrace_record(pieces, lines, positions, mistrace, digit)
         folder = out_root / dem / case
         folder.mkdir(parents=True, exist_ok=True)
         name = {"plane": "plane contact", "mistraced": "plane contact", "fold": "folded contact",
                 "fold_units": "folded contact", "fault": "faulted contact",
                 "horizontal": "horizontal contact"}[case]
-        contacts = [(g, {"piece": i, "name": name}) for g, i in lines]
+        contacts = [(g, {"piece": i, "name": name}) for i, g in enumerate(lines)]
         exact = [(g, {"piece": i, "name": "exact trace"}) for i, g in enumerate(pieces)]
         write_gpkg(folder / "contacts.gpkg", srs,
                    [("contacts", ogr.wkbLineString, LINE_FIELDS, contacts),
                     ("exact_trace", ogr.wkbLineString, LINE_FIELDS, exact)])
         if case == "fold_units":
-            units, record = unit_polygons(grid, truth, spec, frame, cover, [g for g, _ in lines])
+            units, record = unit_polygons(grid, truth, spec, frame, cover, lines)
             truth["units"] = record
             write_gpkg(folder / "units.gpkg", srs,
                        [("units", ogr.wkbPolygon, [("unit", ogr.OFTString)],
@@ -541,37 +565,33 @@ def build_dem(dem, grid, out_root, *, only_cases=CASES):
     return summary
 
 
-def mistrace_record(pieces, lines, mistrace, digit):
-    piece = pieces[mistrace["piece"]]
+def mistrace_record(pieces, lines, positions, mistrace, digit):
+    i = mistrace["piece"]
+    piece = pieces[i]
     exact = shapely.ops.substring(piece, mistrace["start_m"], mistrace["end_m"])
-    # The mapped stretch: the digitised vertices whose exact-trace position lies in the stretch
-    # (of the part of the digitised piece that holds most of them).
-    best = None
-    for g, i in lines:
-        if i != mistrace["piece"]:
-            continue
-        xy_g = shapely.get_coordinates(g)
-        s_g = shapely.line_locate_point(piece, shapely.points(xy_g))
-        inside_g = (s_g >= mistrace["start_m"]) & (s_g <= mistrace["end_m"])
-        if best is None or inside_g.sum() > best[2].sum():
-            best = (xy_g, s_g, inside_g)
-    xy, s, inside = best
+    xy = shapely.get_coordinates(lines[i])
+    s = positions[i]
+    inside = (s >= mistrace["start_m"]) & (s <= mistrace["end_m"])
     mapped = shapely.LineString(xy[inside])
     ramp = mistrace["ramp_m"]
     plateau = shapely.ops.substring(piece, mistrace["start_m"] + ramp, mistrace["end_m"] - ramp)
-    plateau_xy = xy[(s >= mistrace["start_m"] + ramp) & (s <= mistrace["end_m"] - ramp)]
-    d = shapely.distance(shapely.points(plateau_xy), shapely.MultiLineString(pieces))
+    on_plateau = (s >= mistrace["start_m"] + ramp) & (s <= mistrace["end_m"] - ramp)
+    d = shapely.distance(shapely.points(xy[on_plateau]), shapely.MultiLineString(pieces))
+    moved, flat = np.flatnonzero(inside), np.flatnonzero(on_plateau)
     zone = shapely.buffer(shapely.union_all([exact, mapped]), digit.cap_m + 1.0)
     return {**mistrace, "side": "left",
             "plateau_m": [mistrace["start_m"] + ramp, mistrace["end_m"] - ramp],
             "plateau_length_m": r(plateau.length, 1),
+            "vertices": [int(moved[0]), int(moved[-1])],
+            "plateau_vertices": [int(flat[0]), int(flat[-1])],
             "plateau_offset_from_trace_m": [r(d.min(), 2), r(d.max(), 2)],
             "exact_wkt": shapely.to_wkt(exact, rounding_precision=3),
             "mapped_wkt": shapely.to_wkt(mapped, rounding_precision=3),
             "zone_buffer_m": digit.cap_m + 1.0,
             "zone_wkt": shapely.to_wkt(zone, rounding_precision=3),
             "note": "along the exact piece (exact_trace layer, field piece) in the direction its "
-                    "vertices run: between start_m and end_m the digitised vertices are moved a "
+                    "vertices run; vertices / plateau_vertices: first and last index of the "
+                    "moved / fully offset vertices of contacts feature 'piece': between start_m and end_m the digitised vertices are moved a "
                     "further offset_m * (1 - cos(pi * min(1, (s - start_m) / ramp_m, (end_m - s) / "
                     "ramp_m))) / 2 to the left; mapped_wkt is that stretch of the contacts layer, "
                     "zone_wkt a polygon around it and the exact stretch"}
