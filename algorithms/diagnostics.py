@@ -372,7 +372,8 @@ def _words(code, m, k, n, relief, min_relief, dip_ci, max_ci, spread=np.nan):
     if code == "level":
         return (f"the picks span only {relief:.2f} m of elevation (less than {min_relief:.2f} m) "
                 "while they wind about in map view, as a contact that follows one height around "
-                f"hills and valleys does: only a horizontal plane passes through them ({shape})")
+                "hills and valleys does: a level curve that is not straight lies in a horizontal "
+                f"plane, and the dip's confidence says whether this one dips at all ({shape})")
     if code == "marginal_shape":
         return (f"the picks define a plane only loosely ({shape}; a reliable plane needs "
                 f"M > {GOOD_MIN_COPLANARITY:g} and K < {GOOD_MAX_COLLINEARITY:g})")

@@ -17,6 +17,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.spatial import cKDTree
 
+from strikeline.crossval import segment_groups
 from strikeline.diagnostics import classify_planes, map_spread
 from strikeline.errors import InputError
 from strikeline.orientation import dip_from_normal, strike_from_dip_direction
@@ -30,7 +31,9 @@ from strikeline.uncertainty import (
     _combine_arrays,
     _confidence_from_covariance,
     _monte_carlo_normals,
+    _expand_for_few_blocks,
     _replicate_half_widths,
+    _window_block_normals,
     dip_is_significant,
 )
 
@@ -50,6 +53,9 @@ CONFIDENCE_METHODS = ("bootstrap", "analytic")
 DEFAULT_WINDOW_PICKS = 50
 #: Fewest picks in a window for a fit.
 DEFAULT_MIN_POINTS = 10
+#: Fewest contact blocks in a window for a block-bootstrap interval that can be rated good
+#: (our choice: with two blocks a resample has three distinct outcomes).
+MIN_WINDOW_BLOCKS = 3
 #: Picks sampled (evenly, deterministically) to estimate the pick density.
 _DENSITY_SAMPLE = 5000
 
@@ -85,7 +91,10 @@ class LocalAttitudes:
     window_m : float
         Window radius used (metres).
     method : str
-        Confidence method (``"bootstrap"``, ``"analytic"``, optionally ``"+monte_carlo"``).
+        Confidence method (``"block_bootstrap"``, ``"bootstrap"`` or ``"analytic"``,
+        optionally ``"+monte_carlo"``).
+    n_blocks : ndarray of int
+        Contact blocks in each window (0 where none were resampled).
     """
 
     x: np.ndarray
@@ -107,6 +116,7 @@ class LocalAttitudes:
     kind: np.ndarray
     window_m: float
     method: str
+    n_blocks: np.ndarray | None = None
 
     def __len__(self):
         return len(self.x)
@@ -250,7 +260,7 @@ def _groups(contact_id, n):
 def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_MIN_POINTS,
                     contact_id=None, along_contacts=True, across_picks=True,
                     grid_spacing_m=None, method="bootstrap", n_resamples=200, sigma_z_m=None,
-                    n_draws=200, seed=0, min_relief_m=1.0, progress=None,
+                    n_draws=200, seed=0, min_relief_m=1.0, block_m=None, progress=None,
                     is_cancelled=None) -> LocalAttitudes:
     """Attitudes with 95% confidence and quality in moving windows.
 
@@ -292,6 +302,10 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
         Seed; the Monte Carlo uses ``seed + 1``.
     min_relief_m : float, optional
         Passed to :func:`strikeline.diagnostics.classify_planes` (flat-ground test).
+    block_m : float, optional
+        Side of the square blocks that cut each contact into the pieces the bootstrap resamples
+        (default half the window radius, about four blocks across a window); ``0`` resamples
+        single picks (intervals too narrow where neighbouring picks share their errors).
     progress, is_cancelled : callable, optional
         ``progress(fraction)`` and ``is_cancelled()``; cancelling raises
         :class:`~strikeline.errors.CancelledError`.
@@ -312,7 +326,17 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
     -----
     Each window's plane is the total-least-squares fit of its picks (Fernández 2005); its
     half-widths follow :func:`strikeline.uncertainty.bootstrap_plane` or
-    :func:`strikeline.uncertainty.analytic_plane_confidence`, and its quality
+    :func:`strikeline.uncertainty.analytic_plane_confidence`. Picks along a digitised contact
+    share their errors over tens to hundreds of metres, so by default the bootstrap resamples
+    whole blocks - the part of one contact inside one square of side ``block_m`` - within each
+    window (a block bootstrap, Künsch 1989; Lahiri 2003), and widens the percentile half-widths
+    for the few blocks a window holds by :math:`\\sqrt{G/(G-1)}\\,t_{0.975,G-1}/z_{0.975}`
+    (after Hesterberg's 2015 expanded percentile interval); windows with fewer than
+    ``MIN_WINDOW_BLOCKS`` blocks are at best ``weak`` (reason ``"few_blocks"``). On the demo's
+    hand-digitised contact the 95% intervals of good windows resampled by single picks held the
+    truth in 74-90% of windows; by blocks in 90-99% (``bench/bench_local_coverage.py``). The
+    Monte Carlo of the stated pick errors is added in quadrature, as for the sheet-wide plane.
+    Its quality
     :func:`strikeline.diagnostics.classify_planes` (Woodcock 1977 shape measures, the flat
     test, and the 5° half-width limit for ``good``). Windows found ``undetermined`` report no
     attitude (NaN), never a number that looks confident. The default radius holds about
@@ -331,6 +355,15 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
 
     Efron, B. & Tibshirani, R. J. (1993). *An Introduction to the Bootstrap*. Chapman & Hall,
     New York. https://doi.org/10.1007/978-1-4899-4541-9
+
+    Künsch, H. R. (1989). The jackknife and the bootstrap for general stationary observations.
+    *The Annals of Statistics*, 17(3), 1217–1241. https://doi.org/10.1214/aos/1176347265
+
+    Lahiri, S. N. (2003). *Resampling Methods for Dependent Data*. Springer, New York.
+
+    Hesterberg, T. C. (2015). What teachers should know about the bootstrap: resampling in the
+    undergraduate statistics curriculum. *The American Statistician*, 69(4), 371–386.
+    https://doi.org/10.1080/00031305.2015.1089789 (from memory)
     """
     p = np.asarray(points, dtype=float)
     if p.ndim != 2 or p.shape[1] != 3:
@@ -372,6 +405,12 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
             "no window centres: give centres, or set along_contacts or across_picks to true"
         )
     radius = default_window_m(p) if window_m is None else _positive("window_m", window_m)
+    if block_m is None:
+        block_side = radius / 2.0
+    elif float(block_m) == 0.0:
+        block_side = None
+    else:
+        block_side = _positive("block_m", block_m)
     xy = p[:, :2]
     tree = cKDTree(xy)
 
@@ -415,6 +454,7 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
     cy = np.concatenate(cy) if cy else np.empty(0)
     m = len(members)
     n_picks = np.fromiter((len(ix) for ix in members), dtype=np.int64, count=m)
+    n_blocks = np.zeros(m, dtype=np.int64)
     fit = n_picks >= min_points
     _check_callbacks(progress, is_cancelled, 0.05)
 
@@ -423,7 +463,8 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
         "dip_direction_ci95_deg", "cone95_deg", "coplanarity", "collinearity", "rms_m")}
     quality = np.full(m, "undetermined", dtype=object)
     reason = np.full(m, "too_few_picks", dtype=object)
-    method_name = method + ("+monte_carlo" if sigma is not None else "")
+    method_name = (("block_bootstrap" if method == "bootstrap" and block_side is not None else method)
+                   + ("+monte_carlo" if sigma is not None else ""))
 
     wi = np.flatnonzero(fit)
     if len(wi):
@@ -450,10 +491,20 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
 
         if method == "bootstrap":
             rng = np.random.default_rng(seed)
-            normals = _bootstrap_normals(q, counts, n_resamples, rng,
-                                         sub(0.15, 0.6 if sigma is not None else 0.95),
-                                         is_cancelled)
-            dip_ci, dd_ci, cone = _replicate_half_widths(normal, normals)
+            if block_side is None:
+                normals = _bootstrap_normals(q, counts, n_resamples, rng,
+                                             sub(0.15, 0.6 if sigma is not None else 0.95),
+                                             is_cancelled)
+                dip_ci, dd_ci, cone = _replicate_half_widths(normal, normals)
+            else:
+                seg = segment_groups(p[:, 0], p[:, 1], np.zeros(len(p)) if cid is None else cid,
+                                     block_m=block_side)
+                normals, n_blocks[wi] = _window_block_normals(
+                    q, counts, seg[slot_pick], n_resamples, rng,
+                    sub(0.15, 0.6 if sigma is not None else 0.95), is_cancelled)
+                few = n_blocks[wi] < MIN_WINDOW_BLOCKS
+                dip_ci, dd_ci, cone = _expand_for_few_blocks(*_replicate_half_widths(normal, normals),
+                                                             np.where(few, MIN_WINDOW_BLOCKS, n_blocks[wi]))
         else:
             cov = _analytic_covariance_from_eigen(w, v, counts, w[:, 0] / (counts - 3))
             dip_ci, dd_ci, cone = _confidence_from_covariance(normal, cov)
@@ -468,6 +519,11 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
             w[:, ::-1], n_points=counts, relief_m=relief,
             sigma_z_m=None if sigma is None else float(np.median(sigma)),
             min_relief_m=min_relief_m, dip_ci95_deg=dip_ci, map_spread=map_spread(scatter))
+        if method == "bootstrap" and block_side is not None:
+            # too few blocks for the spread of their resamples to mean much: at best weak
+            few = (n_blocks[wi] < MIN_WINDOW_BLOCKS) & (qual == "good")
+            qual = np.where(few, "weak", qual)
+            code = np.where(few, "few_blocks", code)
         quality[wi] = qual
         reason[wi] = code
         out["coplanarity"][wi] = cop
@@ -492,5 +548,5 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
     return LocalAttitudes(
         x=cx, y=cy, n_picks=n_picks, quality=quality.astype(str), reason_code=reason.astype(str),
         contact_id=contact_arr, kind=np.asarray(kinds, dtype=str), window_m=float(radius),
-        method=method_name, **out,
+        method=method_name, n_blocks=n_blocks, **out,
     )

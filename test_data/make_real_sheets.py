@@ -91,7 +91,11 @@ SPECS = {
         "plane": {"point": [429450.0, 5150690.0, 394.0], "dip_deg": 2.5, "dip_direction_deg": 165.0},
         "fold": {"amplitude_m": 4.0, "wavelength_m": 300.0, "axis_trend_deg": 120.0},
         "mistrace": {"piece": 0, "start_m": 290.0, "end_m": 380.0, "ramp_m": 15.0, "offset_m": 12.0},
-        "fault": {"wkt": "LINESTRING (429412 5150470, 429412 5150900)", "throw_m": 15.0, "down_side": "right"},
+        "fault": {"wkt": "LINESTRING (429412 5150470, 429412 5150900)", "throw_m": 15.0, "down_side": "right",
+                  "note": "not 100 m: DEM - plane spans only -17 to +25 m on this sheet, so a "
+                          "down block keeps a trace only for throws up to about 17 m (at 17 m "
+                          "0.24 km of contact are left in all); 15 m keeps 0.96 km with the down "
+                          "block 16 % of it (searched: throws 10-100 m, fault strikes every 15 deg)"},
         "horizontal": {"level_m": 400.0},
         "units": {"above": "Fennock Sandstone Formation", "below": "Orlish Mudstone Formation",
                   "cover": [
@@ -111,7 +115,11 @@ SPECS = {
         "plane": {"point": [1757200.0, 5917560.0, 150.0], "dip_deg": 6.0, "dip_direction_deg": 15.0},
         "fold": {"amplitude_m": 20.0, "wavelength_m": 900.0, "axis_trend_deg": 0.0},
         "mistrace": {"piece": 2, "start_m": 540.0, "end_m": 900.0, "ramp_m": 70.0, "offset_m": 60.0},
-        "fault": {"wkt": "LINESTRING (1756720 5916840, 1757930 5918050)", "throw_m": 80.0, "down_side": "right"},
+        "fault": {"wkt": "LINESTRING (1756720 5916840, 1757930 5918050)", "throw_m": 80.0, "down_side": "right",
+                  "note": "not 100 m: DEM - plane reaches only -98 m on this sheet; 95 m and "
+                          "more leave no down-block trace of 15-35 % of the contact, 90 m leaves "
+                          "only 0.5-0.8 km of contact in all; 80 m keeps 2.56 km with the down "
+                          "block 18 % of it (searched: throws 30-100 m, fault strikes every 15 deg)"},
         "horizontal": {"level_m": 110.0},
         "units": {"above": "Tarrock Scoria Member", "below": "Wendle Tuff Member",
                   "cover": [
@@ -473,6 +481,11 @@ def base_truth(dem, case, kind, epsg, grid):
     return {"dem": dem, "case": case, "kind": kind, "dem_grid": dem_record(dem, grid, epsg)}
 
 
+def fault_strike(wkt):
+    (ax, ay), (bx, by) = shapely.get_coordinates(shapely.from_wkt(wkt))[[0, -1]]
+    return r(math.degrees(math.atan2(bx - ax, by - ay)) % 360.0, 3)
+
+
 def surface_truth(spec, case):
     plane = spec["plane"]
     t = {"point": plane["point"], "dip_deg": plane["dip_deg"],
@@ -489,6 +502,7 @@ def surface_truth(spec, case):
     if case == "fault":
         f = spec["fault"]
         t.update({"fault_wkt": f["wkt"], "throw_m": f["throw_m"], "down_side": f["down_side"],
+                  "throw_note": f["note"], "fault_strike_deg": fault_strike(f["wkt"]),
                   "formula": "the plane on the up block; the plane - throw_m on the down block"})
     return t
 

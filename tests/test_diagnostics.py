@@ -112,7 +112,7 @@ def test_curved_trace_at_one_height_is_a_horizontal_plane():
     picks = np.column_stack([800 * np.cos(t), 500 * np.sin(t), np.full_like(t, 12.0)])
     q = assess_plane(picks)
     assert q.quality == "good" and q.reason_code == "level" and q.advice == ""
-    assert "one height" in q.reason and "horizontal plane" in q.reason
+    assert "one height" in q.reason and "lies in a horizontal plane" in q.reason
     assert q.map_spread > STRAIGHT_MAX_MAP_SPREAD
 
 

@@ -99,7 +99,8 @@ def test_a_plane_gives_the_same_attitude_in_every_window():
     n = normal_from_dip(300.0, 40.0)
     z = -(n[0] * xy[:, 0] + n[1] * xy[:, 1]) / n[2] + rng.normal(0, 2.0, len(xy))
     pts = np.column_stack([xy, z])
-    boot = local_attitudes(pts, window_m=500.0, along_contacts=False, n_resamples=200)
+    # independent errors: single picks are the right resampling unit (block_m=0)
+    boot = local_attitudes(pts, window_m=500.0, along_contacts=False, n_resamples=200, block_m=0)
     ana = local_attitudes(pts, window_m=500.0, along_contacts=False, method="analytic")
     good = boot.quality == "good"
     assert good.sum() > 20
@@ -127,7 +128,7 @@ def test_data_error_widens_local_half_widths():
                            n_resamples=50)
     noisy = local_attitudes(pts, contact_id=cid, window_m=600.0, across_picks=False,
                             n_resamples=50, sigma_z_m=5.0, n_draws=50)
-    assert noisy.method == "bootstrap+monte_carlo"
+    assert noisy.method == "block_bootstrap+monte_carlo" and base.method == "block_bootstrap"
     assert np.all(noisy.dip_ci95_deg > base.dip_ci95_deg)
 
 
