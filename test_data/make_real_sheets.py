@@ -47,6 +47,8 @@ from osgeo import gdal, ogr, osr
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 import real_truth  # noqa: E402
+# The smooth sideways error and the ramped slip are the demo sheet's (one definition).
+from make_demo_sheet import ramp_offset, smooth_gaussian_series  # noqa: E402
 
 gdal.UseExceptions()
 ogr.UseExceptions()
@@ -303,27 +305,6 @@ def block_polygon(grid, truth, *, down):
 
 
 # ================================================================ digitising
-def smooth_gaussian_series(rng, length_m, *, step_m, correlation_m):
-    """A stationary Gaussian series of unit variance along ``[0, length_m]`` whose
-    autocorrelation is ``exp(-(d / correlation_m)**2)``: white noise convolved with a Gaussian
-    kernel of standard deviation ``correlation_m / 2``, rescaled to unit sample variance."""
-    width = correlation_m / 2.0
-    half = int(math.ceil(4 * width / step_m))
-    n = int(math.ceil(length_m / step_m)) + 1
-    white = rng.standard_normal(n + 2 * half)
-    k = np.exp(-0.5 * (np.arange(-half, half + 1) * step_m / width) ** 2)
-    series = np.convolve(white, k / np.sqrt(np.sum(k**2)), mode="valid")
-    series = (series - series.mean()) / series.std()
-    return np.arange(n) * step_m, series
-
-
-def ramp_offset(s, *, start_m, end_m, ramp_m, offset_m):
-    """0 outside ``[start_m, end_m]``, ``offset_m`` between half-cosine ramps ``ramp_m`` long."""
-    up = np.clip((s - start_m) / ramp_m, 0.0, 1.0)
-    down = np.clip((end_m - s) / ramp_m, 0.0, 1.0)
-    return offset_m * 0.5 * (1.0 - np.cos(np.pi * np.minimum(up, down)))
-
-
 def digitise(line, rng, spec: Digitising, *, mistrace=None, bounds=None, attempts=20):
     """A hand-digitised copy of an exact trace.
 
