@@ -393,7 +393,7 @@ def map_unit_polygons(lyr: VectorLayer, opts: RunOptions, *, names: dict = CLI_O
     _check_unit_lists(opts, names, lyr.what)
     field = opts.unit_field
     if field not in lyr.fields:
-        raise InputError(f"{names['unit_field']}: {lyr.what} has no field '{field}' "
+        raise InputError(f"{names['unit_field']}: map units {lyr.what} has no field '{field}' "
                          f"(fields: {', '.join(lyr.fields) or 'none'}); name the field that holds the units")
     labels = np.array([None if v is None else str(v).strip() for v in lyr.fields[field]], dtype=object)
     found = sorted({u for u in labels if u is not None})
@@ -402,8 +402,8 @@ def map_unit_polygons(lyr: VectorLayer, opts: RunOptions, *, names: dict = CLI_O
     if missing:
         shown = ", ".join(found[:40]) + (f" and {len(found) - 40} more" if len(found) > 40 else "")
         raise InputError(f"{names['units_above']}/{names['units_below']}: unit(s) {', '.join(missing)} not found "
-                         f"in field '{field}' of {lyr.what} (units found: {shown or 'none'}); use the names as "
-                         "mapped")
+                         f"in field '{field}' of map units {lyr.what} (units found: {shown or 'none'}); use the "
+                         "names as mapped")
     return lyr.geoms, labels
 
 
