@@ -41,6 +41,7 @@ __all__ = [
     "LocalAttitudes",
     "local_attitudes",
     "default_window_m",
+    "fallback_window_m",
     "centres_along_contacts",
     "grid_centres",
     "CONFIDENCE_METHODS",
@@ -163,6 +164,51 @@ def default_window_m(points, *, target_picks=DEFAULT_WINDOW_PICKS):
     if not radius > 0:
         raise InputError("all picks lie at one map position; no window can be set from them")
     return radius
+
+
+def fallback_window_m(points, *, target_picks=DEFAULT_WINDOW_PICKS, min_points=DEFAULT_MIN_POINTS):
+    """A window radius for any pick set, and why it differs from the default (if it does).
+
+    Parameters
+    ----------
+    points : array_like, shape ``(n, 2)`` or ``(n, 3)``
+        Picks (only x, y are used).
+    target_picks, min_points : int, optional
+        As in :func:`default_window_m` and :func:`local_attitudes`.
+
+    Returns
+    -------
+    window_m : float or None
+        :func:`default_window_m` when there are more than ``target_picks`` picks; with fewer
+        but at least ``2 * min_points``, a window holding about half of them (so that windows
+        along a contact still differ); ``None`` when there are fewer (or all picks lie at one
+        map position): no local attitudes can be fitted.
+    note : str
+        Empty for the default window, else the reason in words.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> x = np.arange(30.0) * 10.0
+    >>> r, note = fallback_window_m(np.column_stack([x, np.zeros(30)]))
+    >>> round(r), note.split(":")[0]
+    (80, 'only 30 picks, too few for the default window of about 50 picks')
+    """
+    xy = _xy(points)
+    target_picks = _check_count("target_picks", target_picks, 3)
+    min_points = _check_count("min_points", min_points, 4)
+    n = len(xy)
+    try:
+        if n > target_picks:
+            return default_window_m(xy, target_picks=target_picks), ""
+        if n >= 2 * min_points:
+            r = default_window_m(xy, target_picks=n // 2)
+            return r, (f"only {n} picks, too few for the default window of about {target_picks} picks: "
+                       f"windows of {r:.0f} m radius hold about {n // 2} picks each instead")
+        return None, (f"only {n} picks: local attitudes need at least {2 * min_points} (windows of at least "
+                      f"{min_points} picks), so none were fitted")
+    except InputError as exc:
+        return None, f"no local attitudes: {exc}"
 
 
 def centres_along_contacts(points, *, spacing_m, contact_id=None):

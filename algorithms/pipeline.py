@@ -31,7 +31,7 @@ from strikeline.io.crs import crs_label, same_crs, srs_from_wkt
 from strikeline.io.files import atomic_folder, check_out_folder, dumps_stable, file_sha256, json_ready
 from strikeline.io.raster import read_raster, write_geotiff
 from strikeline.io.vector import LayerOut, VectorLayer, read_layer, write_gpkg
-from strikeline.local import LocalAttitudes, local_attitudes
+from strikeline.local import LocalAttitudes, fallback_window_m, local_attitudes
 from strikeline.orientation import dip_direction_from_strike
 from strikeline.picks import (PickSet, ground_slope_from_contours, picks_from_contours,
                               picks_from_dem, sample_bilinear)
@@ -770,6 +770,19 @@ def log_model_choice(model: SurfaceModel, *, what: str, log: Log = _quiet) -> No
         log(f"{what}: {model.kind} as asked (--model)")
 
 
+def _no_thickness_reason(base_in, top_in, model, top_model) -> str:
+    """Why no grid cell gives a unit thickness: the two surfaces' reach of data never overlap."""
+    nb, nt, both = int(base_in.sum()), int(top_in.sum()), int((base_in & top_in).sum())
+    if both == 0:
+        return (f"no grid cell lies within reach of the data of both surfaces (base: {nb} cells within "
+                f"{model.reach_m:.0f} m of its picks, top: {nt} cells within {top_model.reach_m:.0f} m of "
+                "its picks, none in common), so the thickness grids there are extrapolations of one "
+                "surface or both; map the top and base contacts over the same ground, or measure the "
+                "thickness between two points or in a borehole (strikeline thickness)")
+    return (f"the {both} grid cells within reach of both surfaces hold no thickness (a surface has no "
+            "value there); check the grids' extent and the DEM's nodata")
+
+
 def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=None,
             is_cancelled=None) -> Results:
     """Run every step of the chain in memory."""
@@ -804,8 +817,14 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
             groups[g] = attitude_of(picks.xyz[m], sigma[m], what=f"group {g}", strict=False, blocks=blocks[m],
                                     **conf_opts)
     step(2)
-    attitudes = local_attitudes(picks.xyz, window_m=opts.window_m, contact_id=picks.contact_id,
-                                sigma_z_m=sigma, seed=opts.seed, is_cancelled=is_cancelled)
+    window, window_note = ((opts.window_m, "") if opts.window_m is not None
+                           else fallback_window_m(picks.xyz))
+    attitudes = None
+    if window_note:  # few picks: the plane was fitted, so the run goes on without the default window
+        log(f"warning: local attitudes: {window_note}")
+    if window is not None:
+        attitudes = local_attitudes(picks.xyz, window_m=window, contact_id=picks.contact_id,
+                                    sigma_z_m=sigma, seed=opts.seed, is_cancelled=is_cancelled)
     step(3)
     ub = None
     if inputs.unit_polygons is not None:
@@ -852,7 +871,8 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
         top_surface = top_model.evaluate_grid(grid, is_cancelled=is_cancelled)
         vth, tth = isopach_grids(top_surface, surface, grid)
         X, Y = grid.mesh()
-        supported = ~(model.is_extrapolated(X, Y) | top_model.is_extrapolated(X, Y)) & np.isfinite(tth)
+        base_in, top_in = ~model.is_extrapolated(X, Y), ~top_model.is_extrapolated(X, Y)
+        supported = base_in & top_in & np.isfinite(tth)
         del X, Y
         vals = tth[supported]
         thickness = {
@@ -868,6 +888,9 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
         if vals.size and np.mean(vals) < 0:
             log("warning: the top contacts model lies below the base on average - check which "
                 "contact is the top (--top-contacts) and which the base (--contacts)")
+        if not vals.size:
+            thickness["note"] = thickness["reason"] = _no_thickness_reason(base_in, top_in, model, top_model)
+            log(f"warning: unit thickness not computed: {thickness['reason']}")
     step(8)
     summary = build_summary(inputs, opts, picks, plane_summary, misfit, n_contours=len(cparts),
                             model=model, groups=groups, attitudes=attitudes, segments=segments,
@@ -875,6 +898,8 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
                             n_top_picks=None if top_picks is None else len(top_picks))
     if unit_check is not None:
         summary["map_units"] = json_ready(unit_check["summary"])
+    if window_note:
+        summary["attitudes"] = {**summary.get("attitudes", {"n": 0}), "note": window_note}
     step(9)
     return Results(picks, plane, grid, surface, dip, dipdir, depth, cparts, clevels, trace, summary,
                    model=model, uncertainty_m=uncertainty, contour_extrapolated=cflags,
