@@ -217,41 +217,13 @@ def _smallest_eigvec(scatter):
 def _bootstrap_normals(q, counts, n_resamples, rng, progress=None, is_cancelled=None):
     """Normals of ``n_resamples`` bootstrap resamples of each window -> (B, W, 3).
 
-    Each resample of a window draws ``n_w`` of its slots with replacement. The draws are
-    turned into a counts matrix C (B, T); the resampled first and second moments are then
-    matrix products of C with the per-slot vectors ``[q, q⊗q]``, and the resampled scatter
-    matrices ``S2 − S1 S1ᵀ / n_w`` are decomposed by one stacked ``eigh``.
+    Each resample of a window draws ``n_w`` of its slots with replacement: the block bootstrap
+    of :func:`_window_block_normals` with every slot a block of its own. The draws are turned
+    into a counts matrix C (B, T); the resampled first and second moments are then matrix
+    products of C with the per-slot vectors ``[1, q, q⊗q]``, and the resampled scatter matrices
+    ``S2 − S1 S1ᵀ / n_w`` are decomposed by one stacked ``eigh``.
     """
-    counts = np.asarray(counts, dtype=np.int64)
-    n_windows = len(counts)
-    t = len(q)
-    starts = np.concatenate([[0], np.cumsum(counts)[:-1]])
-    window_of_slot = np.repeat(np.arange(n_windows), counts)
-    slot_n = counts[window_of_slot]
-    slot_start = starts[window_of_slot]
-    feats = np.concatenate([q, (q[:, :, None] * q[:, None, :]).reshape(t, 9)], axis=1)
-    matrix = _window_matrix(feats, window_of_slot, n_windows)
-    out = np.empty((n_resamples, n_windows, 3))
-    chunk = max(1, _CHUNK_ELEMENTS // max(t, 1))
-    for b0 in range(0, n_resamples, chunk):
-        _check_callbacks(progress, is_cancelled, b0 / n_resamples)
-        b = min(chunk, n_resamples - b0)
-        if n_windows == 1:
-            drawn = rng.integers(0, t, (b, t))
-        else:
-            u = rng.random((b, t))
-            u *= slot_n
-            drawn = np.minimum(u.astype(np.int64), slot_n - 1)
-            drawn += slot_start
-        drawn += t * np.arange(b)[:, None]
-        c = np.bincount(drawn.ravel(), minlength=b * t).reshape(b, t).astype(float)
-        m = _per_window_sums(c, matrix, n_windows, 12)
-        s1 = m[..., :3]
-        s2 = m[..., 3:].reshape(b, n_windows, 3, 3)
-        scatter = s2 - s1[..., :, None] * s1[..., None, :] / counts[None, :, None, None]
-        out[b0:b0 + b] = _smallest_eigvec(scatter)
-    _check_callbacks(progress, is_cancelled, 1.0)
-    return out
+    return _window_block_normals(q, counts, None, n_resamples, rng, progress, is_cancelled)[0]
 
 
 def _monte_carlo_normals(q, counts, scatter, sigma_slot, n_draws, rng, progress=None,
@@ -514,7 +486,8 @@ def _window_block_normals(q, counts, unit_of_slot, n_resamples, rng, progress=No
     """Normals of block-bootstrap resamples of each window -> ((B, W, 3), blocks per window (W,)).
 
     ``q`` (T, 3) holds the slots of W windows (``counts`` slots each, contiguous), centred on
-    their window's centroid; ``unit_of_slot`` (T,) labels the block of every slot. Blocks are
+    their window's centroid; ``unit_of_slot`` (T,) labels the block of every slot (``None``:
+    every slot is a block of its own). Blocks are
     numbered per window (labels of different windows are kept apart even when equal). Per block
     the first and second moments of its picks are summed once; a resample of a window draws as
     many of that window's blocks as it has, with replacement, so its moments are counts times the
@@ -524,9 +497,12 @@ def _window_block_normals(q, counts, unit_of_slot, n_resamples, rng, progress=No
     n_windows = len(counts)
     t = len(q)
     window_of_slot = np.repeat(np.arange(n_windows), counts)
-    label = np.asarray(unit_of_slot).reshape(-1)
-    _, unit = np.unique(np.column_stack([window_of_slot, label]), axis=0, return_inverse=True)
-    unit = unit.reshape(-1)
+    if unit_of_slot is None:  # every slot a block of its own: the ordinary bootstrap
+        unit = np.arange(t)
+    else:
+        label = np.asarray(unit_of_slot).reshape(-1)
+        _, unit = np.unique(np.column_stack([window_of_slot, label]), axis=0, return_inverse=True)
+        unit = unit.reshape(-1)
     n_units = int(unit.max()) + 1 if t else 0
     feats = np.concatenate([np.ones((t, 1)), q, (q[:, :, None] * q[:, None, :]).reshape(t, 9)], axis=1)
     per_unit = np.zeros((n_units, feats.shape[1]))

@@ -73,13 +73,18 @@ def demo_replicates(n_rep, *, variants=VARIANTS):
         contacts = dataclasses.replace(inputs.contacts, geoms=lines)
         picks = pl.collect_picks(inputs, contacts=contacts)
         sigma = pl.pick_sigmas(inputs, picks, opts)
-        for name, kw in variants.items():
-            la = local_attitudes(picks.xyz, contact_id=picks.contact_id, sigma_z_m=sigma, seed=rep, **kw)
-            n, d, a = coverage(la, truth["dip_deg"], truth["dip_direction_deg"])
-            hits[name][0].append(d)
-            hits[name][1].append(a)
-            hits[name][2] += n
+        _tally(hits, variants, picks, sigma, truth, seed=rep)
     return hits
+
+
+def _tally(hits, variants, picks, sigma, truth, *, seed):
+    """Add the coverage of every variant's local attitudes of ``picks`` to ``hits``."""
+    for name, kw in variants.items():
+        la = local_attitudes(picks.xyz, contact_id=picks.contact_id, sigma_z_m=sigma, seed=seed, **kw)
+        n, d, a = coverage(la, truth["dip_deg"], truth["dip_direction_deg"])
+        hits[name][0].append(d)
+        hits[name][1].append(a)
+        hits[name][2] += n
 
 
 def real_sheets(*, variants=VARIANTS, seeds=(0, 1, 2)):
@@ -102,12 +107,7 @@ def real_sheets(*, variants=VARIANTS, seeds=(0, 1, 2)):
         sigma = pl.pick_sigmas(inputs, picks, opts)
         hits = {k: [[], [], 0] for k in variants}
         for seed in seeds:
-            for name, kw in variants.items():
-                la = local_attitudes(picks.xyz, contact_id=picks.contact_id, sigma_z_m=sigma, seed=seed, **kw)
-                n, d, a = coverage(la, truth["dip_deg"], truth["dip_direction_deg"])
-                hits[name][0].append(d)
-                hits[name][1].append(a)
-                hits[name][2] += n
+            _tally(hits, variants, picks, sigma, truth, seed=seed)
         out[dem] = (hits, truth, len(picks))
     return out
 
