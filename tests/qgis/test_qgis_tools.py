@@ -686,3 +686,32 @@ def test_whole_chain_without_a_dem(run, sheet, library):
     np.testing.assert_array_equal(got, r.surface.astype(np.float32).astype(float))
     assert res["N_PICKS"] == len(r.picks) == r.picks.counts_by_source()["contours"]
     assert "PREDICTED_TRACE" not in res and "DEPTH" not in res
+
+
+def test_whole_chain_on_a_level_contact_gives_a_horizontal_plane(run, sheet, tmp_path):
+    from qgis.core import QgsFeature, QgsGeometry, QgsVectorLayer
+
+    # The contact is GDAL's own 500 m contour of the demo DEM (Source: GDAL's contour generator,
+    # through strikeline.io.contours): a horizontal bed following one height around the hills.
+    dem, grid = read_raster(sheet["dem"])
+    lines, _ = contour_lines(dem, grid, levels=[500.0])
+    mem = QgsVectorLayer("LineString?crs=EPSG:32631", "level_contact", "memory")
+    feats = []
+    for g in lines:
+        if g.length > 200.0:
+            f = QgsFeature()
+            f.setGeometry(QgsGeometry.fromWkt(g.wkt))
+            feats.append(f)
+    mem.dataProvider().addFeatures(feats)
+    fb = QgsProcessingFeedback()
+    logs = []
+    fb.pushInfo = logs.append
+    res = run("modelcontact", {"CONTACTS": mem, "DEM": sheet["dem"], "INTERVAL": 50.0, "PICKS": TMP, **QUICK_TOOL,
+                               "STRUCTURE_CONTOURS": TMP, "SURFACE": TMP, "DIP": TMP, "DIP_DIRECTION": TMP},
+              feedback=fb)
+    assert res["QUALITY"] != "undetermined"
+    assert res["DIP_DIRECTION_DEG"] is None and res["STRIKE_RHR_DEG"] is None
+    assert res["DIP_DEG"] < 0.05  # level to centimetres over kilometres
+    assert any("horizontal within its 95% confidence" in m for m in logs)
+    got, _, _ = raster(res["SURFACE"])
+    assert np.nanmax(np.abs(got - 500.0)) < 1.0  # a level surface at the contour's height
