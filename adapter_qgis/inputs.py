@@ -13,6 +13,7 @@ import numpy as np
 import shapely
 from qgis.core import (
     QgsProcessing,
+    QgsProcessingParameterString,
     QgsProcessingParameterDistance,
     QgsProcessingParameterFeatureSource,
     QgsProcessingParameterField,
@@ -37,6 +38,10 @@ BOREHOLES = "BOREHOLES"
 ORIENTATIONS = "ORIENTATIONS"
 BOREHOLE_SIGMA = "BOREHOLE_SIGMA"
 ORIENTATION_SIGMA = "ORIENTATION_SIGMA"
+MAP_UNITS = "MAP_UNITS"
+UNIT_FIELD = "UNIT_FIELD"
+UNITS_ABOVE = "UNITS_ABOVE"
+UNITS_BELOW = "UNITS_BELOW"
 
 #: The library's options that name a field (keys of ``pipeline.CLI_OPTION_NAMES``) -> the
 #: parameter that sets them; messages about them name that parameter.
@@ -44,6 +49,7 @@ OPTION_PARAMETERS = {
     "elev_field": ELEV_FIELD, "group_by": GROUP_BY, "borehole_z_field": "BOREHOLE_Z_FIELD",
     "borehole_collar_field": "BOREHOLE_COLLAR_FIELD", "borehole_depth_field": "BOREHOLE_DEPTH_FIELD",
     "dip_field": "DIP_FIELD", "dip_direction_field": "DIP_DIRECTION_FIELD", "strike_field": "STRIKE_FIELD",
+    "map_units": MAP_UNITS, "unit_field": UNIT_FIELD, "units_above": UNITS_ABOVE, "units_below": UNITS_BELOW,
 }
 
 
@@ -127,6 +133,38 @@ def constraint_options(alg, parameters, context) -> dict:
                 dip_field=s("DIP_FIELD") or RunOptions.dip_field, dip_direction_field=s("DIP_DIRECTION_FIELD"),
                 strike_field=s("STRIKE_FIELD"),
                 orientation_sigma_deg=alg.parameterAsDouble(parameters, ORIENTATION_SIGMA, context))
+
+
+def map_unit_parameters(alg) -> list:
+    """The geological map's unit polygons as constraints (as ``strikeline run --map-units``)."""
+    return [
+        QgsProcessingParameterFeatureSource(MAP_UNITS, alg.tr("Geological map units (polygons; needs the DEM)"),
+                                            [QgsProcessing.TypeVectorPolygon], optional=True),
+        QgsProcessingParameterField(UNIT_FIELD, alg.tr("Map units field: the unit of each polygon"),
+                                    parentLayerParameterName=MAP_UNITS, optional=True),
+        QgsProcessingParameterString(UNITS_ABOVE, alg.tr("Units above the surface (comma-separated)"),
+                                     optional=True),
+        QgsProcessingParameterString(UNITS_BELOW, alg.tr("Units below the surface (comma-separated; other "
+                                                         "units are ignored)"), optional=True),
+    ]
+
+
+def map_unit_options(alg, parameters, context) -> dict:
+    """The parameters of :func:`map_unit_parameters` as :class:`RunOptions` fields (the unit lists
+    without their layer are an error, as on the command line)."""
+    s = lambda key: optional_string(alg, parameters, key, context)  # noqa: E731
+    opts = dict(unit_field=s(UNIT_FIELD), units_above=s(UNITS_ABOVE), units_below=s(UNITS_BELOW))
+    if alg.parameterAsSource(parameters, MAP_UNITS, context) is None and any(opts.values()):
+        given = next(alg.parameterDefinition(k).description() for k, v in
+                     ((UNIT_FIELD, opts["unit_field"]), (UNITS_ABOVE, opts["units_above"]),
+                      (UNITS_BELOW, opts["units_below"])) if v)
+        raise InputError(f"the '{given}' needs the '{alg.parameterDefinition(MAP_UNITS).description()}': give "
+                         "the polygon layer of the map's units too")
+    return opts
+
+
+#: The polygon layer of :func:`map_unit_parameters`, as :func:`read_layers` takes it.
+MAP_UNIT_LAYERS = {"map_units": (MAP_UNITS, "map units", "polygon")}
 
 
 #: The point layers of :func:`constraint_parameters`: ``assemble_inputs`` keyword ->

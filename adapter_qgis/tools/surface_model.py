@@ -3,6 +3,8 @@ from __future__ import annotations
 
 import numpy as np
 from qgis.core import (
+    QgsProcessing,
+    QgsProcessingParameterFeatureSink,
     QgsProcessingOutputNumber,
     QgsProcessingOutputString,
     QgsProcessingParameterDefinition,
@@ -17,14 +19,17 @@ from qgis.core import (
 from strikeline.errors import InputError
 from strikeline.io.crs import same_crs, srs_from_wkt
 from strikeline.picks import SOURCES, PickSet
-from strikeline.pipeline import RunOptions, borehole_points, model_surface, orientation_rows, reproject_to
+from strikeline.pipeline import (RunOptions, borehole_points, map_unit_bounds, map_unit_check, map_unit_polygons,
+                                 model_surface, orientation_rows, reproject_to, unit_conflicts_layer)
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
 from ..chain import grid_over
-from ..inputs import (CONSTRAINT_LAYERS, PICKS, add_picks, constraint_options, constraint_parameters,
-                      constraint_sigma_parameters, option_names, read_dem, read_layers, read_picks)
+from ..inputs import (CONSTRAINT_LAYERS, MAP_UNIT_LAYERS, MAP_UNITS, PICKS, add_picks, constraint_options,
+                      constraint_parameters, constraint_sigma_parameters, map_unit_options, map_unit_parameters,
+                      option_names, read_dem, read_layers, read_picks)
 from ..layers import crs_to_srs
-from ..outputs import write_raster
+from ..layers import qgis_crs
+from ..outputs import Table, write_raster, write_sink
 from ..styles import attach_style
 
 #: Surface models in enum order: (library name, label).
@@ -77,6 +82,7 @@ class SurfaceModel(StrikelineAlgorithm):
     OUTPUT = "SURFACE"
     STANDARD_ERROR = "STANDARD_ERROR"
     EXTRAPOLATED = "EXTRAPOLATED"
+    UNIT_CONFLICTS = "UNIT_CONFLICTS"
 
     def initAlgorithm(self, config=None):  # noqa: N802
         add_picks(self)
@@ -90,7 +96,7 @@ class SurfaceModel(StrikelineAlgorithm):
         self.addParameter(QgsProcessingParameterDistance(
             self.CELL, self.tr("Cell size without a reference grid (0: about 1/500 of the extent)"),
             defaultValue=0.0, parentParameterName=PICKS, minValue=0.0, optional=True))
-        for param in (*constraint_parameters(self), *constraint_sigma_parameters(self)):
+        for param in (*constraint_parameters(self), *constraint_sigma_parameters(self), *map_unit_parameters(self)):
             self.addParameter(param)
         seed = QgsProcessingParameterNumber(self.SEED, self.tr("Random seed (cross-validation folds)"),
                                             QgsProcessingParameterNumber.Integer, defaultValue=0, minValue=0,
@@ -104,6 +110,11 @@ class SurfaceModel(StrikelineAlgorithm):
         self.addParameter(QgsProcessingParameterRasterDestination(
             self.EXTRAPOLATED, self.tr("Forecast mask (1: beyond the reach of the data)"), optional=True,
             createByDefault=False))
+        self.addParameter(QgsProcessingParameterFeatureSink(
+            self.UNIT_CONFLICTS, self.tr("Where the surface still breaks the map units (with map units)"),
+            QgsProcessing.TypeVectorPoint, optional=True, createByDefault=False))
+        self.addOutput(QgsProcessingOutputNumber("UNIT_CHECK_VIOLATED", self.tr(
+            "Map-unit check points the surface still breaks (with map units)")))
         self.addOutput(QgsProcessingOutputString("MODEL", self.tr("Model used")))
         for key, label in (("CV_RMSE_M", "Cross-validation RMSE of the model used (m)"),
                            ("REACH_M", "Reach of the data (m)"), ("DIP_DEG", "Dip of the (trend) plane (°)"),
@@ -132,7 +143,8 @@ class SurfaceModel(StrikelineAlgorithm):
         text = tuple(f for f in ("contact_id", "source") if f in picks_src.fields().names())
         xyz, source, layer, name, vals = read_picks(self, parameters, context, steps, text_fields=text)
         opts = RunOptions(contacts=name.path, out="", model=model, seed=self.parameterAsInt(parameters, self.SEED, context),
-                          **constraint_options(self, parameters, context))
+                          **constraint_options(self, parameters, context),
+                          **map_unit_options(self, parameters, context))
         # Boreholes and dip measurements as strikeline run takes them (the library's checks and
         # conversions), brought into the picks' CRS.
         extra = read_layers(self, parameters, context, steps, CONSTRAINT_LAYERS)
@@ -142,6 +154,19 @@ class SurfaceModel(StrikelineAlgorithm):
         boreholes_xyz = None if bh is None else borehole_points(bh, opts, names=names)
         orientations = None if ori is None else orientation_rows(ori, opts, names=names)
         grid = self._grid(parameters, context, steps, source, xyz)
+        # The map's units as strikeline run takes them: polygons and unit lists checked by the
+        # library, the bounds built from the reference grid (the DEM), in the picks' CRS.
+        units = read_layers(self, parameters, context, steps, MAP_UNIT_LAYERS)["map_units"]
+        ub = dem = None
+        if units is not None:
+            dem, dem_grid, _ = read_dem(self, parameters, self.REFERENCE, context, steps, label="reference grid")
+            if dem is None:
+                raise InputError(f"the '{self.parameterDefinition(MAP_UNITS).description()}' need the reference "
+                                 "grid: give the DEM as the reference grid, so the units can say where the surface "
+                                 "lies below or above the ground")
+            units = reproject_to(units, layer.srs, label="map units", log=steps.log)
+            polys, labels = map_unit_polygons(units, opts, names=names)
+            ub = map_unit_bounds(polys, labels, dem, dem_grid, opts, log=steps.log)
         steps.feedback.setProgress(10)
         # As strikeline run: cross-validation folds hold out contact segments (the picks'
         # contact_id; all one contact without it). The source only labels picks, it is not used.
@@ -152,8 +177,9 @@ class SurfaceModel(StrikelineAlgorithm):
         src = np.array([v if v in SOURCES else "dem" for v in src], dtype="<U8") if src is not None \
             else np.full(len(xyz), "dem", dtype="<U8")
         surf = model_surface(PickSet(xyz, cid, src), opts, grid, boreholes=boreholes_xyz,
-                             orientations=orientations,
+                             orientations=orientations, bounds=None if ub is None else ub.bounds,
                              what=f"picks {name.what}", is_cancelled=steps.is_cancelled)
+        check = None if ub is None else map_unit_check(surf, polys, labels, dem, dem_grid, opts, ub, log=steps.log)
         steps.feedback.setProgress(60)
         s = surf.summary()
         p = s["params"]
@@ -182,4 +208,10 @@ class SurfaceModel(StrikelineAlgorithm):
         if ex is not None:
             out[self.EXTRAPOLATED] = write_raster(self, parameters, self.EXTRAPOLATED, context, ex, grid)
         attach_style(context, out[self.OUTPUT], "surface")
+        if check is not None:
+            out["UNIT_CHECK_VIOLATED"] = check["summary"]["check"]["n_violated"]
+            dest = write_sink(self, parameters, self.UNIT_CONFLICTS, context,
+                              Table.of_layer(unit_conflicts_layer(check)), qgis_crs(grid.crs_wkt))
+            if dest is not None:
+                out[self.UNIT_CONFLICTS] = dest
         return out

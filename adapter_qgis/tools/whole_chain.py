@@ -23,9 +23,9 @@ from strikeline.io.files import write_json_atomic
 from strikeline.pipeline import compute
 
 from ..base import REF_FERNANDEZ, REF_GDAL_CONTOUR, REF_PRESS, REF_STR, REF_ZT, StrikelineAlgorithm
-from ..inputs import (CONSTRAINT_LAYERS, CONTACTS, GROUP_BY, add_contact_and_topography, constraint_options,
-                      constraint_parameters, constraint_sigma_parameters, optional_distance, optional_string,
-                      read_contact_inputs)
+from ..inputs import (CONSTRAINT_LAYERS, CONTACTS, GROUP_BY, MAP_UNIT_LAYERS, add_contact_and_topography,
+                      constraint_options, constraint_parameters, constraint_sigma_parameters, map_unit_options,
+                      map_unit_parameters, optional_distance, optional_string, read_contact_inputs)
 from ..layers import qgis_crs
 from ..outputs import Table, write_raster, write_sink
 from ..styles import attach_style
@@ -38,7 +38,7 @@ MODEL_LABELS = {"auto": "Choose by cross-validation (auto)", "plane": "Best-fit 
 
 #: The chain's layers beyond contacts and topography: ``assemble_inputs`` keyword ->
 #: (parameter, label in messages, geometry).
-CHAIN_LAYERS = {**CONSTRAINT_LAYERS, "top_contacts": ("TOP_CONTACTS", "top contacts", "line")}
+CHAIN_LAYERS = {**CONSTRAINT_LAYERS, "top_contacts": ("TOP_CONTACTS", "top contacts", "line"), **MAP_UNIT_LAYERS}
 
 #: The vector layers of ``pipeline.result_layers``, each written to the output named as the
 #: layer in upper case: output -> (label, layer type, created by default, style).
@@ -50,6 +50,8 @@ LAYERS = {
                        "contact_misfit"),
     "ATTITUDES": ("Local attitudes", QgsProcessing.TypeVectorPoint, True, "local_attitudes"),
     "TOP_PICKS": ("Top-contact picks (with top contacts)", QgsProcessing.TypeVectorPoint, False, "picks"),
+    "UNIT_CONFLICTS": ("Where the surface still breaks the map units (with map units)", QgsProcessing.TypeVectorPoint,
+                       False, ""),
 }
 #: The grids of ``pipeline.result_rasters``, each written to the output named as the file
 #: without ``.tif`` in upper case: output -> (label, created by default, style).
@@ -104,6 +106,7 @@ class WholeChain(StrikelineAlgorithm):
                                                 [QgsProcessing.TypeVectorLine], optional=True),
             QgsProcessingParameterField(GROUP_BY, self.tr("Also one plane per value of this contact field"),
                                         parentLayerParameterName=CONTACTS, optional=True),
+            *map_unit_parameters(self),
         ]
         advanced = [
             QgsProcessingParameterDistance("WINDOW", self.tr("Local-attitude window radius (0: from the pick density)"),
@@ -141,6 +144,8 @@ class WholeChain(StrikelineAlgorithm):
             self.addOutput(QgsProcessingOutputNumber(key, self.tr(label)))
         self.addOutput(QgsProcessingOutputString("QUALITY", self.tr("Quality of the sheet-wide plane")))
         self.addOutput(QgsProcessingOutputString("MODEL_USED", self.tr("Surface model used")))
+        self.addOutput(QgsProcessingOutputNumber("UNIT_CHECK_VIOLATED", self.tr(
+            "Map-unit check points the surface still breaks (with map units)")))
 
     def options(self, parameters, context) -> dict:
         """The QGIS parameters as fields of the command line's :class:`RunOptions` (the inputs'
@@ -156,7 +161,7 @@ class WholeChain(StrikelineAlgorithm):
             group_by=optional_string(self, parameters, GROUP_BY, context),
             resamples=self.parameterAsInt(parameters, "RESAMPLES", context),
             seed=self.parameterAsInt(parameters, "SEED", context),
-            **constraint_options(self, parameters, context))
+            **constraint_options(self, parameters, context), **map_unit_options(self, parameters, context))
 
     def process(self, parameters, context, steps):
         inputs, opts = read_contact_inputs(self, parameters, context, steps, more=CHAIN_LAYERS,
@@ -180,6 +185,8 @@ class WholeChain(StrikelineAlgorithm):
                     "N_PICKS": plane.get("n_picks"), "DIP_CI95_DEG": plane.get("dip_ci95"),
                     "QUALITY": plane.get("quality"), "MODEL_USED": s["model"]["chosen"],
                     "MISFIT_MEDIAN_M": tm.get("median"), "MISFIT_P90_M": tm.get("p90")})
+        if "map_units" in s:
+            out["UNIT_CHECK_VIOLATED"] = s["map_units"]["check"]["n_violated"]
         if inputs.dem is None:
             steps.warn("no DEM: depth below ground, the predicted trace and the contact misfit are not made")
         return out
