@@ -18,6 +18,7 @@ from scipy.spatial import Delaunay, QhullError, cKDTree
 from scipy.special import chdtri
 
 from strikeline.errors import CancelledError, InputError, UndeterminedError
+from strikeline.fitting import robust_lstsq
 
 __all__ = [
     "CVScore",
@@ -29,6 +30,7 @@ __all__ = [
     "choose_model",
     "ModelChoice",
     "typical_gap_m",
+    "residual_correlation_m",
     "holdout_block_m",
     "ErrorGrowth",
     "fit_error_growth",
@@ -38,8 +40,10 @@ __all__ = [
 
 #: Valid ``rule`` values of :func:`select_model` / :func:`choose_model`.
 SELECTION_RULES = ("data_error", "one_se", "min")
-#: Significance level of the chi-square test of a model against the stated pick error.
-CHI2_ALPHA = 0.01
+#: Significance level of the chi-square test of a model against the stated pick error. Small,
+#: because residuals of neighbouring segments are not quite independent, so the test is
+#: approximate: it is meant to catch residuals many times the stated error, not a marginal excess.
+CHI2_ALPHA = 0.001
 #: Smallest hold-out block, in grid cells.
 MIN_BLOCK_CELLS = 3
 
@@ -265,14 +269,95 @@ def typical_gap_m(xy, *, n_samples: int = 10_000) -> float:
     return float(np.median(nn))
 
 
-def holdout_block_m(xy, *, vertex_spacing_m: float = 0.0, cell_m: float = 0.0) -> float:
+def residual_correlation_m(xyz, contact_id=None, *, max_lag_steps: int = 400) -> float:
+    """Distance along the contacts over which the residuals of a plane stay correlated.
+
+    Digitising errors are shared by neighbouring picks along a mapped line; a hold-out block
+    shorter than their correlation lets a flexible model predict a held-out pick from its
+    neighbours' errors and look better than it is. This fits a plane to the picks by least
+    squares, robustly (:func:`strikeline.fitting.robust_lstsq`, so that a faulted block or a
+    mistraced stretch does not tilt it; vertical residuals), walks each contact in pick order (picks as taken along the
+    line) and estimates the semivariogram of the residuals along the line robustly,
+    ``γ(h) = median((r_{i+h} − r_i)²) / (2 · 0.4549)``, against the robust variance
+    ``median((r − median r)²) / 0.4549`` as sill (medians, so that a mistraced stretch or a
+    fault — a few large, locally shared residuals — does not stretch the estimate). It
+    returns the e-folding distance: the first lag at which ``γ(h) / sill`` exceeds
+    ``1 − 1/e`` (linear interpolation between lags; lags in steps of the median pick
+    spacing). On a surface that is not a plane the residuals also carry the unmodelled
+    shape, and the length grows with it: a conservative estimate.
+
+    Parameters
+    ----------
+    xyz : array_like, shape ``(n, 3)``
+        Picks in the order they were taken along their contacts.
+    contact_id : array_like, shape ``(n,)``, optional
+        Contact of every pick (lags never cross contacts).
+    max_lag_steps : int, default 400
+
+    Returns
+    -------
+    float
+        Metres (0 when it cannot be estimated: fewer than 20 picks).
+
+    References
+    ----------
+    Cressie, N. (1993). *Statistics for Spatial Data*, revised ed. Wiley, New York, sect. 2.4
+    (robust estimation of the variogram). https://doi.org/10.1002/9781119115151
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> rng = np.random.default_rng(0)
+    >>> s = np.arange(0.0, 5000.0, 5.0)                      # picks every 5 m along a line
+    >>> e = np.convolve(rng.normal(size=s.size + 40), np.ones(40) / 40, "valid")[:s.size]
+    >>> xyz = np.column_stack([s, 0.3 * s, 0.1 * s + 10 * e])
+    >>> 80 < residual_correlation_m(xyz) < 160                 # moving average over 200 m
+    True
+    """
+    p = np.asarray(xyz, dtype=float)
+    n = len(p)
+    if n < 20:
+        return 0.0
+    cid = np.zeros(n) if contact_id is None else np.asarray(contact_id, dtype=float).reshape(-1)
+    A = np.column_stack([np.ones(n), p[:, 0] - p[:, 0].mean(), p[:, 1] - p[:, 1].mean()])
+    try:
+        coef = robust_lstsq(A, p[:, 2])[0]
+    except UndeterminedError:  # picks along one straight line: an ordinary fit will do
+        coef = np.linalg.lstsq(A, p[:, 2], rcond=None)[0]
+    r = p[:, 2] - A @ coef
+    sill = float(np.median((r - np.median(r)) ** 2)) / _MEDIAN_CHI2_1
+    step = np.hypot(*np.diff(p[:, :2], axis=0).T)
+    same = cid[1:] == cid[:-1]
+    if not sill > 0 or not same.any():
+        return 0.0
+    ds = float(np.median(step[same]))
+    if not ds > 0:
+        return 0.0
+    target = 1.0 - np.exp(-1.0)
+    prev_lag, prev_g = 0.0, 0.0
+    for k in range(1, min(int(max_lag_steps), n - 1) + 1):
+        ok = cid[k:] == cid[:-k]
+        if ok.sum() < 10:
+            break
+        g = float(np.median((r[k:][ok] - r[:-k][ok]) ** 2)) / (2 * _MEDIAN_CHI2_1) / sill
+        lag = k * ds
+        if g > target:
+            return float(prev_lag + (target - prev_g) / (g - prev_g) * (lag - prev_lag))
+        prev_lag, prev_g = lag, g
+    return float(prev_lag)
+
+
+def holdout_block_m(xy, *, vertex_spacing_m: float = 0.0, cell_m: float = 0.0,
+                    correlation_m: float = 0.0) -> float:
     """Side of the square blocks that cut contacts into hold-out segments.
 
-    ``max(typical_gap_m(xy), 2 × vertex_spacing_m, MIN_BLOCK_CELLS × cell_m)``: about the
-    typical distance from a map cell to the nearest pick, so a held-out pick lies about as far
-    from the training data as a map cell lies from the picks; never shorter than two vertex
-    spacings of the mapped lines (otherwise a held-out pick is predicted by its own
-    digitising neighbours, whose errors it shares) nor than a few grid cells.
+    ``max(typical_gap_m(xy), 2 × vertex_spacing_m, 2 × correlation_m, MIN_BLOCK_CELLS ×
+    cell_m)``: about the typical distance from a map cell to the nearest pick, so a held-out
+    pick lies about as far from the training data as a map cell lies from the picks; never
+    shorter than two vertex spacings of the mapped lines nor than twice the correlation length
+    of the picks' errors along the contacts (:func:`residual_correlation_m`) — otherwise a
+    held-out pick is predicted by its own digitising neighbours, whose errors it shares — nor
+    than a few grid cells.
 
     Parameters
     ----------
@@ -282,13 +367,15 @@ def holdout_block_m(xy, *, vertex_spacing_m: float = 0.0, cell_m: float = 0.0) -
         Median spacing of the vertices of the mapped lines, metres.
     cell_m : float, default 0
         Grid cell size, metres.
+    correlation_m : float, default 0
+        Correlation length of the pick errors along the contacts, metres.
 
     Returns
     -------
     float
         Metres (at least 1e-6).
     """
-    return float(max(typical_gap_m(xy), 2.0 * float(vertex_spacing_m),
+    return float(max(typical_gap_m(xy), 2.0 * float(vertex_spacing_m), 2.0 * float(correlation_m),
                      MIN_BLOCK_CELLS * float(cell_m), 1e-6))
 
 
@@ -409,7 +496,7 @@ class ModelChoice:
 
 def choose_model(scores: Mapping[str, CVScore], *, order: Sequence[str],
                  rule: str = "data_error", sigma_m: float | None = None,
-                 n_groups: int | None = None) -> ModelChoice:
+                 n_groups: int | None = None, robust: bool = False) -> ModelChoice:
     """Choose a surface model from cross-validation scores, judged against the data error.
 
     Parameters
@@ -432,6 +519,10 @@ def choose_model(scores: Mapping[str, CVScore], *, order: Sequence[str],
     n_groups : int, optional
         Number of independent held-out groups (contact segments); default the scores'
         :attr:`CVScore.n_groups`, else the number of held-out picks.
+    robust : bool, default False
+        Compare robust RMS errors (``sqrt(median(e²) / 0.4549)``) instead of RMSEs
+        everywhere: the model that fits the bulk of the picks, whatever a few gross errors do
+        (used to choose the misfit check's model).
 
     Returns
     -------
@@ -488,6 +579,9 @@ def choose_model(scores: Mapping[str, CVScore], *, order: Sequence[str],
         reasons = "; ".join(f"{m}: {scores[m].reason}" for m in order if m in scores)
         raise UndeterminedError(f"no surface model could be cross-validated ({reasons}); "
                                 "add picks, or fit a single model without cross-validation")
+    err = "robust cross-validation error" if robust else "cross-validation error"
+    if robust:
+        scores = {m: _robust_score(scores[m]) for m in finite}
     best = min(finite, key=lambda m: scores[m].rmse_m)
     rb = scores[best].rmse_m
     se = scores[best].se_m if np.isfinite(scores[best].se_m) else 0.0
@@ -501,7 +595,7 @@ def choose_model(scores: Mapping[str, CVScore], *, order: Sequence[str],
     nu = nu or int(scores[best].n_held_out)
     if rule_used == "min":
         return ModelChoice(best, "min", best, 0.0, sigma_m, nu, {},
-                           f"{best} chosen: lowest cross-validation error ({rb:.3g} m){tail}")
+                           f"{best} chosen: lowest {err} ({rb:.3g} m){tail}")
     tol = max(se, float(sigma_m)) if rule_used == "data_error" else se
     within = [m for m in finite if scores[m].rmse_m - rb <= tol]
     chosen = within[0]
@@ -518,11 +612,11 @@ def choose_model(scores: Mapping[str, CVScore], *, order: Sequence[str],
     what = ("the larger of its standard error and the stated pick error"
             if rule_used == "data_error" else "one standard error")
     if chosen == best:
-        words = (f"{best} chosen: lowest cross-validation error ({rb:.3g} m)"
+        words = (f"{best} chosen: lowest {err} ({rb:.3g} m)"
                  + ("" if len(finite) == 1 else
                     ", and no simpler model came within " + f"{tol:.3g} m ({what})"))
     else:
-        words = (f"{chosen} chosen: its cross-validation error ({scores[chosen].rmse_m:.3g} m) "
+        words = (f"{chosen} chosen: its {err} ({scores[chosen].rmse_m:.3g} m) "
                  f"is within {tol:.3g} m ({what}) of the best, {best} ({rb:.3g} m); a more "
                  "flexible model would gain less than that")
     if chi2 and not chi2[chosen]["consistent"]:
@@ -540,6 +634,18 @@ def choose_model(scores: Mapping[str, CVScore], *, order: Sequence[str],
                       "complex than every model")
     return ModelChoice(chosen, rule_used, best, float(tol), None if sigma_m is None else
                        float(sigma_m), nu, chi2, words + tail)
+
+
+def _robust_score(score: CVScore) -> CVScore:
+    """The score with its RMSE replaced by the robust RMS of its errors."""
+    e = np.asarray(score.errors_m, dtype=float)
+    e = e[np.isfinite(e)]
+    if not len(e):
+        return score
+    r = float(np.sqrt(np.median(e * e) / _MEDIAN_CHI2_1))
+    return CVScore(r, score.fold_rmse_m, score.se_m * r / score.rmse_m if score.rmse_m > 0 else
+                   score.se_m, score.n_held_out, score.distance_m, score.errors_m, score.reason,
+                   score.distances_m, score.n_groups)
 
 
 def select_model(scores: Mapping[str, CVScore], *, order: Sequence[str],
@@ -602,7 +708,8 @@ class ErrorGrowth:
 _MEDIAN_CHI2_1 = 0.454936423119572
 
 
-def fit_error_growth(errors_m, distance_m, base_se_m, *, n_bins: int = 8) -> ErrorGrowth:
+def fit_error_growth(errors_m, distance_m, base_se_m, *, n_bins: int = 8,
+                     exclude_gross: bool = False) -> ErrorGrowth:
     """Fit the growth of prediction error with distance from held-out errors, and calibrate.
 
     Parameters
@@ -616,6 +723,10 @@ def fit_error_growth(errors_m, distance_m, base_se_m, *, n_bins: int = 8) -> Err
         uncertainty).
     n_bins : int, default 8
         Distance classes (equal counts).
+    exclude_gross : bool, default False
+        Leave out errors beyond ``5 × 1.4826 × MAD`` of all errors first: the growth of the
+        error of good data, for a check that looks for the gross errors (a mistraced stretch,
+        a fault) which would otherwise widen its own tolerance.
 
     Returns
     -------
@@ -657,6 +768,11 @@ def fit_error_growth(errors_m, distance_m, base_se_m, *, n_bins: int = 8) -> Err
     s = np.broadcast_to(np.asarray(base_se_m, dtype=float), e.shape).astype(float)
     ok = np.isfinite(e) & np.isfinite(d) & np.isfinite(s)
     e, d, s = e[ok], d[ok], s[ok]
+    if exclude_gross and len(e) >= 10:
+        mad = 1.4826 * float(np.median(np.abs(e - np.median(e))))
+        if mad > 0:
+            keep = np.abs(e - np.median(e)) <= 5.0 * mad
+            e, d, s = e[keep], d[keep], s[keep]
     if len(e) < 10:
         raise InputError(f"fit_error_growth needs at least 10 held-out errors, got {len(e)}")
     d_ref = float(np.median(d))

@@ -166,3 +166,119 @@ def test_leave_one_out_of_trend2_equals_press():
     press_rmse = np.sqrt(np.mean((e / (1 - np.diag(H))) ** 2))
     assert m.n_folds == n
     assert m.cv_rmse_m["trend2"] == pytest.approx(press_rmse, rel=PRESS_RTOL)
+
+
+# --- hold-out blocks sized from the map ----------------------------------------------------
+#: Source: analytic -- between two parallel lines 400 m apart, cells lie uniformly 0-200 m from
+#: the nearer line, so the median distance is 100 m (the lattice sampling adds a few metres).
+TWO_LINES_GAP_M = 100.0
+
+
+def test_typical_gap_between_two_parallel_lines_is_a_quarter_of_their_spacing():
+    from strikeline.crossval import typical_gap_m
+    x = np.linspace(0, 2000, 801)
+    xy = np.r_[np.c_[x, np.zeros_like(x)], np.c_[x, np.full_like(x, 400.0)]]
+    assert typical_gap_m(xy) == pytest.approx(TWO_LINES_GAP_M, rel=0.05)
+
+
+def test_holdout_block_is_the_largest_of_gap_vertex_spacing_correlation_and_cells():
+    from strikeline.crossval import holdout_block_m, typical_gap_m
+    x = np.linspace(0, 2000, 801)
+    xy = np.r_[np.c_[x, np.zeros_like(x)], np.c_[x, np.full_like(x, 400.0)]]
+    gap = typical_gap_m(xy)
+    assert holdout_block_m(xy) == pytest.approx(gap)
+    assert holdout_block_m(xy, vertex_spacing_m=80.0) == pytest.approx(160.0)
+    assert holdout_block_m(xy, correlation_m=150.0) == pytest.approx(300.0)
+    assert holdout_block_m(xy, cell_m=50.0) == pytest.approx(150.0)
+
+
+def _moving_average_line(width_steps, n=4000, step_m=5.0, seed=0):
+    rng = np.random.default_rng(seed)
+    s = np.arange(n) * step_m
+    e = np.convolve(rng.normal(size=n + width_steps), np.ones(width_steps) / width_steps,
+                    "valid")[:n]
+    # a winding line in map view, on a dipping plane, with the correlated error added
+    x, y = s * 0.8 + 30 * np.sin(s / 300.0), s * 0.6
+    return np.column_stack([x, y, 500 - 0.05 * x + 0.02 * y + 5.0 * e]), s
+
+
+def test_residual_correlation_matches_the_moving_average_formula():
+    from strikeline.crossval import residual_correlation_m
+    # Source: textbook autocorrelation of a moving average of W white-noise terms,
+    # rho(h) = 1 - h/W for h < W (Box & Jenkins, Time Series Analysis, 1976; from memory), so
+    # rho = 1/e at h = W (1 - 1/e): 40 steps of 5 m -> 126.4 m. Steps along the line are
+    # slightly longer than 5 m, so lags come out a little longer.
+    xyz, _ = _moving_average_line(40)
+    expected = 40 * 5.0 * (1 - np.exp(-1))
+    assert residual_correlation_m(xyz) == pytest.approx(expected, rel=0.25)
+
+
+def test_residual_correlation_is_not_stretched_by_a_mistraced_stretch():
+    from strikeline.crossval import residual_correlation_m
+    xyz, s = _moving_average_line(40, seed=1)
+    clean = residual_correlation_m(xyz)
+    bad = xyz.copy()
+    bad[(s > 8000) & (s < 9500), 2] += 25.0  # 7.5 % of the line 25 m off: a gross blunder
+    assert residual_correlation_m(bad) == pytest.approx(clean, rel=0.3)
+
+
+# --- model choice against the stated pick error --------------------------------------------
+def _cv(rmse, se=0.1, n=400, groups=40, seed=0, gross=0.0):
+    rng = np.random.default_rng(seed)
+    e = rng.normal(0, rmse, n)
+    if gross:
+        e[: n // 10] += gross
+    r = float(np.sqrt(np.mean(e * e)))
+    return CVScore(r, np.array([r, r]), se, n, 10.0, e, n_groups=groups)
+
+
+def test_choose_model_keeps_the_plane_when_the_gain_is_below_the_stated_error():
+    from strikeline.crossval import choose_model
+    scores = {"plane": _cv(2.4), "trend2": _cv(2.3, seed=1), "spline": _cv(1.5, seed=2)}
+    c = choose_model(scores, order=["plane", "trend2", "spline"], sigma_m=2.0)
+    assert c.chosen == "plane" and "within" in c.reason and c.chi2["plane"]["consistent"]
+    # without a stated error the one-standard-error rule applies: spline is better by > SE
+    assert choose_model(scores, order=["plane", "trend2", "spline"]).chosen == "spline"
+
+
+def test_choose_model_refuses_a_plane_whose_residuals_are_many_times_the_stated_error():
+    from strikeline.crossval import choose_model
+    from scipy.stats import chi2
+    # plane 35 m, spline 2.1 m against sigma 2 m: the chi-square test rejects the plane
+    scores = {"plane": _cv(35.0, se=8.0), "spline": _cv(2.1, seed=3)}
+    c = choose_model(scores, order=["plane", "spline"], sigma_m=2.0)
+    assert c.chosen == "spline"
+    # Source: scipy.stats.chi2.ppf as the reference for the critical value (scipy.special.chdtri)
+    assert c.chi2["plane"]["critical"] == pytest.approx(chi2.ppf(0.999, 40), rel=1e-10)
+    assert not c.chi2["plane"]["consistent"] and c.chi2["spline"]["consistent"]
+    # within the tolerance (plane - best < max(SE, sigma)) yet inconsistent: moved to spline
+    scores = {"plane": _cv(3.6, se=0.5), "spline": _cv(1.9, seed=4)}
+    c = choose_model(scores, order=["plane", "spline"], sigma_m=2.0)
+    assert c.chosen == "spline" and "chi-square" in c.reason
+
+
+def test_choose_model_robust_ignores_a_few_gross_errors():
+    from strikeline.crossval import choose_model
+    # 10 % of the plane's held-out errors are 60 m off (a mistraced stretch): by RMSE the
+    # spline wins, by the robust RMS the plane fits the bulk of the picks
+    scores = {"plane": _cv(1.0, gross=60.0), "spline": _cv(0.9, seed=5, gross=5.0)}
+    order = ["plane", "spline"]
+    assert choose_model(scores, order=order, sigma_m=1.0).chosen == "spline"
+    assert choose_model(scores, order=order, sigma_m=1.0, robust=True).chosen == "plane"
+
+
+def test_error_growth_calibrates_intervals_on_fresh_errors():
+    from strikeline.crossval import fit_error_growth
+    rng = np.random.default_rng(7)
+
+    def draw(n):
+        d = rng.uniform(0, 200, n)
+        # Source: the model itself -- variance 1 + (d/50)^1.5 m^2 with normal errors
+        return d, rng.normal(0, 1, n) * np.sqrt(1 + (d / 50.0) ** 1.5)
+    d, e = draw(3000)
+    g = fit_error_growth(e, d, 1.0)
+    d2, e2 = draw(20000)
+    se = g.kappa * np.sqrt(1 + g.excess_variance(d2))
+    cover = np.mean(np.abs(e2) <= 1.959963984540054 * se)
+    assert 0.93 <= cover <= 0.97  # 95 % intervals hold 95 % of fresh errors
+    assert 1.0 <= g.alpha <= 2.0
