@@ -32,7 +32,12 @@ from strikeline.uncertainty import (
     _confidence_from_covariance,
     _monte_carlo_normals,
     _expand_for_few_blocks,
+    _few_blocks_factor,
     _replicate_half_widths,
+    _replicate_tilt_cov,
+    _tilt_cov_from_normal_cov,
+    _tilt_of_normals,
+    _tilt_z2,
     _window_block_normals,
     dip_is_significant,
 )
@@ -542,18 +547,20 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
                                              sub(0.15, 0.6 if sigma is not None else 0.95),
                                              is_cancelled)
                 dip_ci, dd_ci, cone = _replicate_half_widths(normal, normals)
+                tilt_cov = _replicate_tilt_cov(normal, normals)
             else:
                 seg = segment_groups(p[:, 0], p[:, 1], np.zeros(len(p)) if cid is None else cid,
                                      block_m=block_side)
                 normals, n_blocks[wi] = _window_block_normals(
                     q, counts, seg[slot_pick], n_resamples, rng,
                     sub(0.15, 0.6 if sigma is not None else 0.95), is_cancelled)
-                few = n_blocks[wi] < MIN_WINDOW_BLOCKS
-                dip_ci, dd_ci, cone = _expand_for_few_blocks(*_replicate_half_widths(normal, normals),
-                                                             np.where(few, MIN_WINDOW_BLOCKS, n_blocks[wi]))
+                g = np.maximum(n_blocks[wi], MIN_WINDOW_BLOCKS)
+                dip_ci, dd_ci, cone = _expand_for_few_blocks(*_replicate_half_widths(normal, normals), g)
+                tilt_cov = _replicate_tilt_cov(normal, normals) * (_few_blocks_factor(g) ** 2)[:, None, None]
         else:
             cov = _analytic_covariance_from_eigen(w, v, counts, w[:, 0] / (counts - 3))
             dip_ci, dd_ci, cone = _confidence_from_covariance(normal, cov)
+            tilt_cov = _tilt_cov_from_normal_cov(normal, cov)
         if sigma is not None:
             rng = np.random.default_rng(seed + 1)
             normals = _monte_carlo_normals(q, counts, scatter, sigma[slot_pick], n_draws, rng,
@@ -561,6 +568,7 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
             mc = _replicate_half_widths(normal, normals)
             dip_ci, dd_ci, cone = _combine_arrays([dip_ci, mc[0]], [dd_ci, mc[1]],
                                                   [cone, mc[2]], dip)
+            tilt_cov = tilt_cov + _replicate_tilt_cov(normal, normals)
         qual, code, cop, col = classify_planes(
             w[:, ::-1], n_points=counts, relief_m=relief,
             sigma_z_m=None if sigma is None else float(np.median(sigma)),
@@ -577,7 +585,9 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
         out["rms_m"][wi] = np.sqrt(w[:, 0] / counts)
         shown = qual != "undetermined"
         # horizontal within the confidence: the dip is given, the direction and strike are not
-        directed = shown & dip_is_significant(dip, dip_ci, cone)
+        directed = shown & dip_is_significant(dip, dip_ci, _tilt_z2(_tilt_of_normals(normal), tilt_cov))
+        # the horizontal lies in the 95% region of the tilt: the dip's interval reaches 0
+        dip_ci = np.where(shown & ~directed, np.maximum(dip_ci, dip), dip_ci)
         with np.errstate(divide="ignore", invalid="ignore"):
             elev = centroid[:, 2] - (normal[:, 0] * (cx[wi] - centroid[:, 0])
                                      + normal[:, 1] * (cy[wi] - centroid[:, 1])) / normal[:, 2]

@@ -30,7 +30,8 @@ Nearly horizontal planes
 ------------------------
 The dip of a nearly horizontal plane is the length of a small tilt whose direction the data may
 not fix. :func:`dip_is_significant` calls the dip significant only when its 95% interval
-``dip ± h`` stays above zero *and* the pole's 95% cone does not reach the vertical; otherwise
+``dip ± h`` stays above zero *and* the horizontal lies outside the 95% ellipse of the tilt
+(the covariance of the replicates' tilts, kept in :attr:`PlaneConfidence.tilt_cov`); otherwise
 the plane is horizontal within its confidence, and its dip direction and strike are undefined
 (their half-widths mean nothing there, and a reported direction would be noise).
 
@@ -124,14 +125,31 @@ class PlaneConfidence:
     dip_deg: float
     dip_direction_deg: float
     n_points: int
+    #: Covariance of the plane's tilt - the horizontal part of its unit normal,
+    #: ``sin(dip) * (sin dd, cos dd)``, which is 0 for a horizontal plane - flattened
+    #: ``(c_xx, c_xy, c_yx, c_yy)``; empty when unknown.
+    tilt_cov: tuple = ()
+
+    @property
+    def horizontal_z2(self) -> float:
+        """Squared Mahalanobis distance of the horizontal (tilt 0) from the fitted tilt under
+        ``tilt_cov`` (NaN when unknown); see :func:`dip_is_significant`."""
+        if len(self.tilt_cov) != 4:
+            return float("nan")
+        t = _tilt_of(self.dip_deg, self.dip_direction_deg)
+        return float(_tilt_z2(t, np.asarray(self.tilt_cov, dtype=float).reshape(1, 2, 2))[0])
 
     @property
     def dip_significant(self) -> bool:
         """Whether the dip differs from zero at 95% (see :func:`dip_is_significant`)."""
-        return bool(dip_is_significant(self.dip_deg, self.dip_ci95_deg, self.cone95_deg))
+        return bool(dip_is_significant(self.dip_deg, self.dip_ci95_deg, self.horizontal_z2))
 
 
-def dip_is_significant(dip_deg, dip_ci95_deg, cone95_deg=None):
+#: 95% point of chi-square with 2 degrees of freedom (-2 ln 0.05): the 95% region of a 2-D tilt.
+CHI2_2DOF_95 = float(chi2.ppf(LEVEL, 2))
+
+
+def dip_is_significant(dip_deg, dip_ci95_deg, horizontal_z2=None):
     """Whether a fitted dip differs from zero at the 95% level.
 
     Parameters
@@ -140,38 +158,93 @@ def dip_is_significant(dip_deg, dip_ci95_deg, cone95_deg=None):
         Fitted dip (degrees, 0-90).
     dip_ci95_deg : float or array_like
         95% half-width of the dip (degrees); NaN or ``None`` when no confidence is known.
-    cone95_deg : float or array_like, optional
-        95% cone of the pole (degrees).
+    horizontal_z2 : float or array_like, optional
+        Squared Mahalanobis distance of the horizontal (tilt 0) from the fitted tilt, under
+        the covariance of the tilt (:attr:`PlaneConfidence.horizontal_z2`).
 
     Returns
     -------
     bool or ndarray of bool
-        True where ``dip - dip_ci95 > 0`` and ``cone95 < dip``: the 95% interval of the dip
-        stays above zero and the pole's 95% cone excludes the vertical. False where the plane
-        is horizontal within its confidence; its dip direction and strike are then undefined.
-        Without a confidence (NaN), the dip is significant when it is above zero.
+        True where the 95% interval of the dip stays above zero (``dip - dip_ci95 > 0``) and
+        the horizontal lies outside the 95% confidence ellipse of the tilt
+        (``horizontal_z2 > 5.991``, the 95% point of chi-square with 2 degrees of freedom).
+        False where the plane is horizontal within its confidence; its dip direction and strike
+        are then undefined. Without a confidence (NaN), the dip is significant when it is above
+        zero.
 
     Notes
     -----
-    A fitted dip is a magnitude, so it is biased upward near zero: picks on a truly horizontal
-    plane with any error give a small positive dip in some random direction. Both tests are
-    needed: the percentile interval of the dip can stay clear of zero while the replicates'
-    poles swing across the vertical (their dips all similar, their directions all different),
-    and the pole cone is what shows that (the dip deviation is never larger than the angle
-    between the poles).
+    A fitted dip is the size of a 2-D tilt vector (the horizontal part of the plane's unit
+    normal, ``sin(dip) * (sin dd, cos dd)``, bounded and 0 for a horizontal plane), so it is biased
+    upward near zero: picks on a truly horizontal plane give a small positive dip in a random
+    direction, and a 1-D interval of that length excludes zero too often (about 15% of the
+    time at a nominal 5%, for an isotropic spread). Whether the tilt is zero is a 2-D question:
+    the horizontal must lie outside the 95% ellipse of the tilt, whose covariance comes from the
+    same bootstrap and Monte Carlo replicates as the half-widths (Hotelling's test of a mean
+    vector, with the covariance taken as known: Johnson & Wichern 2007, ch. 5). An isotropic
+    stand-in such as the pole's cone would call steep but poorly oriented planes horizontal.
+
+    References
+    ----------
+    Johnson, R. A. & Wichern, D. W. (2007). *Applied Multivariate Statistical Analysis*, 6th ed.
+    Pearson Prentice Hall, Upper Saddle River (inference about a mean vector; from memory).
 
     Examples
     --------
-    >>> bool(dip_is_significant(0.4, 0.6, 0.7)), bool(dip_is_significant(5.0, 0.6, 0.7))
-    (False, True)
+    >>> bool(dip_is_significant(0.4, 0.6, 9.0)), bool(dip_is_significant(5.0, 0.6, 3.0))
+    (False, False)
+    >>> bool(dip_is_significant(5.0, 0.6, 70.0))
+    True
     """
     dip = np.asarray(dip_deg, dtype=float)
     h = np.asarray(np.nan if dip_ci95_deg is None else dip_ci95_deg, dtype=float)
-    cone = np.asarray(np.nan if cone95_deg is None else cone95_deg, dtype=float)
+    z2 = np.asarray(np.nan if horizontal_z2 is None else horizontal_z2, dtype=float)
     h = np.where(np.isfinite(h), h, 0.0)
-    cone = np.where(np.isfinite(cone), cone, 0.0)
-    out = (dip - h > 0) & (cone < dip)
+    out = (dip - h > 0) & ~(z2 <= CHI2_2DOF_95)
     return out if out.ndim else bool(out)
+
+
+def _tilt_of(dip_deg, dip_direction_deg):
+    """Tilt vectors (W, 2): ``sin(dip) * (sin dd, cos dd)``, the horizontal part of the upward
+    unit normal."""
+    d = np.radians(np.atleast_1d(np.asarray(dip_deg, dtype=float)))
+    a = np.radians(np.atleast_1d(np.asarray(dip_direction_deg, dtype=float)))
+    return np.sin(d)[:, None] * np.stack([np.sin(a), np.cos(a)], axis=-1)
+
+
+def _tilt_of_normals(n):
+    """Tilt vectors ``(nx, ny)`` of unit normals (..., 3): bounded, unlike the gradient
+    ``(nx, ny) / nz``, whose replicates near the vertical would swamp a covariance."""
+    return n[..., :2]
+
+
+def _replicate_tilt_cov(normal_hat, normals):
+    """Covariance (W, 2, 2) of the replicate tilts about the estimate's tilt (mean square
+    deviation, like the percentile half-widths about the estimate)."""
+    dots = np.sum(normals * normal_hat[None], axis=-1)
+    normals = np.where(dots[..., None] < 0, -normals, normals)
+    dev = _tilt_of_normals(normals) - _tilt_of_normals(normal_hat)[None]
+    dev = np.where(np.isfinite(dev), dev, 0.0)
+    return np.einsum("bwi,bwj->wij", dev, dev) / max(len(normals), 1)
+
+
+def _tilt_cov_from_normal_cov(normal, cov):
+    """Covariance (W, 2, 2) of the tilt ``(nx, ny)`` from that of the normal (its x, y block)."""
+    return np.asarray(cov, dtype=float)[..., :2, :2]
+
+
+def _tilt_z2(tilt, cov):
+    """Squared Mahalanobis distance (W,) of tilt 0 from ``tilt`` (W, 2) under ``cov`` (W, 2, 2);
+    inf where the covariance is singular and the tilt is not 0 along its null direction."""
+    cov = np.asarray(cov, dtype=float)
+    tilt = np.asarray(tilt, dtype=float)
+    w, v = np.linalg.eigh(cov)
+    proj = np.einsum("wij,wi->wj", v, tilt)
+    tiny = 1e-30 + 1e-12 * np.max(np.abs(w), axis=-1, keepdims=True)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        terms = np.where(w > tiny, proj ** 2 / np.where(w > tiny, w, 1.0),
+                         np.where(np.abs(proj) > 0, np.inf, 0.0))
+    return np.sum(terms, axis=-1)
 
 
 # --------------------------------------------------------------------------------------------
@@ -467,13 +540,17 @@ def bootstrap_plane(points, *, n_resamples=1000, seed=0, groups=None, progress=N
     if block is None:
         normals = _bootstrap_normals(q, [len(q)], n_resamples, rng, progress, is_cancelled)
         dip_ci, dd_ci, cone = _replicate_half_widths(fit.normal[None], normals)
+        factor = 1.0
     else:
         method = "block_bootstrap"
         normals = _block_bootstrap_normals(q, block, n_resamples, rng, progress, is_cancelled)
         dip_ci, dd_ci, cone = _expand_for_few_blocks(*_replicate_half_widths(fit.normal[None], normals),
                                                      block.max() + 1)
+        factor = float(_few_blocks_factor(block.max() + 1))
+    tilt_cov = _replicate_tilt_cov(fit.normal[None], normals)[0] * factor ** 2
     return PlaneConfidence(float(dip_ci[0]), float(dd_ci[0]), float(cone[0]), n_resamples,
-                           method, fit.dip_deg, fit.dip_direction_deg, fit.n_points)
+                           method, fit.dip_deg, fit.dip_direction_deg, fit.n_points,
+                           tuple(float(c) for c in tilt_cov.ravel()))
 
 
 def _block_bootstrap_normals(q, block, n_resamples, rng, progress=None, is_cancelled=None):
@@ -671,8 +748,10 @@ def analytic_plane_confidence(points, *, sigma_m=None) -> PlaneConfidence:
     """
     fit, cov = _analytic(points, sigma_m)
     dip_ci, dd_ci, cone = _confidence_from_covariance(fit.normal[None], cov[None])
+    tilt_cov = _tilt_cov_from_normal_cov(fit.normal[None], cov[None])[0]
     return PlaneConfidence(float(dip_ci[0]), float(dd_ci[0]), float(cone[0]), 0, "analytic",
-                           fit.dip_deg, fit.dip_direction_deg, fit.n_points)
+                           fit.dip_deg, fit.dip_direction_deg, fit.n_points,
+                           tuple(float(c) for c in tilt_cov.ravel()))
 
 
 def _sigma_per_pick(sigma_z_m, n_total, keep):
@@ -741,8 +820,10 @@ def monte_carlo_plane(points, *, sigma_z_m, seed=0, n_draws=1000, progress=None,
     normals = _monte_carlo_normals(q, [len(q)], scatter[None], sigma, n_draws, rng, progress,
                                    is_cancelled)
     dip_ci, dd_ci, cone = _replicate_half_widths(fit.normal[None], normals)
+    tilt_cov = _replicate_tilt_cov(fit.normal[None], normals)[0]
     return PlaneConfidence(float(dip_ci[0]), float(dd_ci[0]), float(cone[0]), n_draws,
-                           "monte_carlo", fit.dip_deg, fit.dip_direction_deg, fit.n_points)
+                           "monte_carlo", fit.dip_deg, fit.dip_direction_deg, fit.n_points,
+                           tuple(float(c) for c in tilt_cov.ravel()))
 
 
 def _combine_arrays(dip_parts, dd_parts, cone_parts, dip_hat):
@@ -794,9 +875,12 @@ def combine_confidence(*parts: PlaneConfidence) -> PlaneConfidence:
     dip_ci, dd_ci, cone = _combine_arrays([c.dip_ci95_deg for c in parts],
                                           [c.dip_direction_ci95_deg for c in parts],
                                           [c.cone95_deg for c in parts], first.dip_deg)
+    # independent parts: their tilt covariances add (unknown when any part's is)
+    tilt_cov = (tuple(float(sum(c.tilt_cov[i] for c in parts)) for i in range(4))
+                if all(len(c.tilt_cov) == 4 for c in parts) else ())
     return PlaneConfidence(float(dip_ci), float(dd_ci), float(cone), first.n_resamples,
                            "+".join(c.method for c in parts), first.dip_deg,
-                           first.dip_direction_deg, first.n_points)
+                           first.dip_direction_deg, first.n_points, tuple(tilt_cov))
 
 
 def plane_confidence(points, *, sigma_z_m=None, n_resamples=1000, n_draws=1000, seed=0,

@@ -90,9 +90,15 @@ def test_dip_grid_follows_the_limbs(fold_run):
 
 def test_local_attitudes_swing_with_the_fold(fold_run):
     ds = ogr.Open(str(fold_run / "results.gpkg"))
-    rows = [(f.GetGeometryRef().GetX(), f.GetGeometryRef().GetY(), f.GetField("dip_direction"))
+    good = [(f.GetGeometryRef().GetX(), f.GetGeometryRef().GetY(), f.GetField("dip_direction"),
+             f.GetField("dip"), f.GetField("dip_ci95"))
             for f in ds.GetLayerByName("attitudes") if f.GetField("quality") == "good"]
-    assert len(rows) > 20
+    # a window whose dip does not differ from 0 at 95% has no dip direction (horizontal within its
+    # confidence); that may happen only where its interval reaches the hinges' gentle dips
+    level = [r for r in good if r[2] is None]
+    assert all(r[3] - r[4] <= 5.5 for r in level)
+    rows = [r[:3] for r in good if r[2] is not None]
+    assert len(rows) > 20 and len(level) <= len(good) / 4
     x, y, dd = map(np.array, zip(*rows))
     _, true_dd = _fold_dip(_truth(), x, y)
     diff = np.abs((dd - true_dd + 180) % 360 - 180)

@@ -376,7 +376,9 @@ def test_dip_significance_of_horizontal_and_gently_dipping_planes():
     # horizontal plane the 95% interval of the dip reaches 0 in about 95% of samples (more here,
     # since bootstrap and Monte Carlo are added in quadrature), so the dip is called significant
     # in at most about 5%; a 1 degree dip, 70 times its standard error here, always is.
-    from strikeline.uncertainty import dip_is_significant, plane_confidence
+    from scipy.stats import chi2
+
+    from strikeline.uncertainty import CHI2_2DOF_95, dip_is_significant, plane_confidence
 
     n_sets, hits_flat, hits_gentle = 60, 0, 0
     for seed in range(n_sets):
@@ -387,17 +389,45 @@ def test_dip_significance_of_horizontal_and_gently_dipping_planes():
             z = 300.0 - np.tan(np.radians(dip)) * xy[:, 0] + noise
             c = plane_confidence(np.column_stack([xy, z]), sigma_z_m=1.0, n_resamples=200, n_draws=200,
                                  seed=seed)
-            assert c.dip_significant == dip_is_significant(c.dip_deg, c.dip_ci95_deg, c.cone95_deg)
+            assert c.dip_significant == dip_is_significant(c.dip_deg, c.dip_ci95_deg, c.horizontal_z2)
             if counter == "flat":
                 hits_flat += c.dip_significant
             else:
                 hits_gentle += c.dip_significant
     assert hits_flat / n_sets <= 0.1
     assert hits_gentle == n_sets
-    # the two tests of dip_is_significant, worked by hand
-    assert not dip_is_significant(0.4, 0.6, 0.3)  # interval reaches 0
-    assert not dip_is_significant(0.4, 0.3, 0.5)  # cone reaches the vertical
-    assert dip_is_significant(0.4, 0.3, 0.35)
+    # the two tests of dip_is_significant, worked by hand (chi-square 2 dof, 95%: 5.991,
+    # Source: scipy.stats.chi2.ppf(0.95, 2) = -2 ln 0.05)
+    assert CHI2_2DOF_95 == pytest.approx(-2.0 * np.log(0.05), rel=1e-12)
+    assert CHI2_2DOF_95 == pytest.approx(chi2.ppf(0.95, 2), rel=1e-12)
+    assert not dip_is_significant(0.4, 0.6, 100.0)  # interval reaches 0
+    assert not dip_is_significant(0.4, 0.3, 5.9)  # horizontal inside the tilt's 95% ellipse
+    assert dip_is_significant(0.4, 0.3, 6.1)
     assert not dip_is_significant(0.0, None)  # an exactly level three-point plane
     np.testing.assert_array_equal(dip_is_significant(np.array([0.4, 5.0]), np.array([0.6, 0.6]),
-                                                     np.array([0.7, 0.7])), [False, True])
+                                                     np.array([50.0, 50.0])), [False, True])
+
+
+def test_tilt_covariance_and_its_mahalanobis_distance():
+    # Source: hand-worked - a tilt (horizontal part of the unit normal) of 0.1 (dip asin 0.1 =
+    # 5.74 deg toward 090) with a tilt variance of 0.02^2 along the dip and 0.5^2 across it:
+    # z2 = (0.1 / 0.02)^2 = 25; the spread across the dip (a strike poorly fixed) does not make
+    # the plane horizontal
+    from strikeline.uncertainty import PlaneConfidence
+
+    c = PlaneConfidence(0.5, 180.0, 20.0, 100, "bootstrap", float(np.degrees(np.arcsin(0.1))), 90.0, 50,
+                        (0.02 ** 2, 0.0, 0.0, 0.5 ** 2))
+    assert c.horizontal_z2 == pytest.approx(25.0, rel=1e-9)
+    assert c.dip_significant  # although the pole's cone (20 deg) reaches the vertical
+    c = PlaneConfidence(0.5, 180.0, 20.0, 100, "bootstrap", float(np.degrees(np.arcsin(0.1))), 90.0, 50,
+                        (0.5 ** 2, 0.0, 0.0, 0.02 ** 2))
+    assert c.horizontal_z2 == pytest.approx(0.04, rel=1e-9) and not c.dip_significant
+    # replicate-based and analytic tilt covariances of the same noisy plane agree (first order)
+    from strikeline.uncertainty import analytic_plane_confidence, bootstrap_plane
+
+    rng = np.random.default_rng(3)
+    xy = rng.uniform(0, 1000, (400, 2))
+    pts = np.column_stack([xy, 100 - 0.05 * xy[:, 0] + rng.normal(0, 1.0, 400)])
+    boot = np.array(bootstrap_plane(pts, n_resamples=400, seed=1).tilt_cov)
+    ana = np.array(analytic_plane_confidence(pts).tilt_cov)
+    assert np.allclose(boot[[0, 3]], ana[[0, 3]], rtol=0.3)
