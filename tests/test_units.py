@@ -305,3 +305,30 @@ def test_bounds_are_checked():
         fit_surface(np.column_stack([xy, z]), model="plane", bounds=[[0, 0, 5.0, 1.0]])
     with pytest.raises(InputError, match="NaN"):
         fit_surface(np.column_stack([xy, z]), model="plane", bounds=[[0, 0, np.nan, 1.0]])
+
+
+def test_spectral_solve_of_the_pick_system_equals_a_direct_solve():
+    from strikeline.surfaces import _Spectrum, _pairwise_r2, _spectral_solver
+
+    rng = np.random.default_rng(11)
+    u = rng.normal(size=(60, 2))
+    z = rng.normal(size=60)
+    spec = _Spectrum(u, z)
+    nlam = 0.05
+    K = tps_kernel(_pairwise_r2(u, u))
+    T = np.column_stack([np.ones(60), u])
+    M = np.block([[K + nlam * np.eye(60), T], [T.T, np.zeros((3, 3))]])
+    b = rng.normal(size=(63, 4))
+    # Source: numpy.linalg.solve (LAPACK gesv) on the assembled system
+    assert np.allclose(_spectral_solver(spec, nlam)(b), np.linalg.solve(M, b), atol=1e-8)
+
+
+def test_spline_honours_units_and_boreholes_together():
+    g, dem, truth, xyz, polys, units = _fold_case()
+    ub = unit_bounds(polys, units, dem, g, units_above="Upper", units_below="Lower", max_points=600)
+    from strikeline.picks import sample_bilinear
+    bh_xy = np.array([[300.0, 900.0], [800.0, 1000.0]])
+    bh = np.column_stack([bh_xy, sample_bilinear(truth, g, bh_xy[:, 0], bh_xy[:, 1]), [0.5, 0.5]])
+    m = fit_surface(xyz, model="spline", cross_validate_model=False, bounds=ub.bounds, boreholes=bh)
+    assert bound_violation_m(ub.bounds, m.evaluate(ub.bounds[:, 0], ub.bounds[:, 1])).max() <= BOUND_TOLERANCE_M
+    assert np.all(np.abs(m.borehole_misfit_m()) <= 0.5 + 1e-6)
