@@ -16,7 +16,7 @@ import shapely
 from osgeo import ogr
 
 from strikeline import CAUTION, __version__
-from strikeline.crossval import holdout_block_m, segment_groups
+from strikeline.crossval import holdout_block_m, residual_correlation_m, segment_groups
 from strikeline.defaults import (DEFAULT_BOREHOLE_SIGMA_M, DEFAULT_CONTOUR_SIGMA_M, DEFAULT_DEM_SIGMA_M,
                                  DEFAULT_ORIENTATION_SIGMA_DEG, FLAG_CELLS, MODELS, SEGMENT_CELLS,
                                  DEFAULT_CONTACT_SIGMA_M, MISFIT_Z)
@@ -407,6 +407,12 @@ def map_unit_polygons(lyr: VectorLayer, opts: RunOptions, *, names: dict = CLI_O
     return lyr.geoms, labels
 
 
+#: How the spline's smoothing is chosen: until its residuals match the stated pick errors (the
+#: discrepancy principle), because generalized cross-validation assumes independent errors and, with
+#: digitising errors shared along a contact, interpolates the picks (Opsomer, Wang & Yang 2001).
+SPLINE_SMOOTHING = "discrepancy"
+
+
 #: A map-unit bound counts as broken by the final surface beyond this many metres.
 UNIT_VIOLATION_M = 0.01
 #: Constraint points stay this many positional standard errors of the mapped contacts
@@ -577,8 +583,7 @@ def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples:
         return {"quality": "undetermined", "reason": quality.reason, "advice": quality.advice,
                 "n_picks": plane.n_points}
     gamma = meridian_convergence_deg(crs_wkt, plane.centroid[0], plane.centroid[1])
-    significant = dip_is_significant(plane.dip_deg, None if conf is None else conf.dip_ci95_deg,
-                                     None if conf is None else conf.cone95_deg)
+    significant = conf.dip_significant if conf is not None else dip_is_significant(plane.dip_deg, None)
     out = {
         "dip": plane.dip_deg,
         "dip_direction": plane.dip_direction_deg,
@@ -600,7 +605,10 @@ def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples:
         "dip_significant": significant,
     }
     if not significant:
-        ci = "" if conf is None else f" +/- {conf.dip_ci95_deg:.2g}"
+        # the horizontal lies in the 95% region of the tilt, so the dip's interval reaches 0
+        if conf is not None:
+            out["dip_ci95"] = max(conf.dip_ci95_deg, plane.dip_deg)
+        ci = "" if conf is None else f" +/- {out['dip_ci95']:.2g}"
         out.update(dip_direction=None, strike_rhr=None, dip_direction_true=None, dip_direction_ci95=None,
                    horizontal=(f"horizontal within its 95% confidence: dip {plane.dip_deg:.2g}{ci} deg does "
                                "not differ from 0, so the plane has no dip direction or strike"))
@@ -638,8 +646,17 @@ def segment_labels(xyz, contact_id, *, cell_m: float = 1.0, vertex_spacing_m: fl
     xyz = np.asarray(xyz, dtype=float)
     cid = np.asarray(contact_id, dtype=float)
     cid = np.where(np.isfinite(cid), cid, -1).astype(np.int64)
-    block_m = holdout_block_m(xyz[:, :2], vertex_spacing_m=vertex_spacing_m, cell_m=cell_m) if len(xyz) else 1.0
+    block_m = segment_block_m(xyz, cid, cell_m=cell_m, vertex_spacing_m=vertex_spacing_m) if len(xyz) else 1.0
     return segment_groups(xyz[:, 0], xyz[:, 1], cid, block_m=block_m)
+
+
+def segment_block_m(xyz, contact_id, *, cell_m: float, vertex_spacing_m: float = 0.0) -> float:
+    """Side of the contact-segment blocks (:func:`strikeline.crossval.holdout_block_m`), with the
+    correlation length of the picks' errors along the contacts
+    (:func:`strikeline.crossval.residual_correlation_m`)."""
+    xyz = np.asarray(xyz, dtype=float)
+    return holdout_block_m(xyz[:, :2], vertex_spacing_m=vertex_spacing_m, cell_m=cell_m,
+                           correlation_m=residual_correlation_m(xyz, contact_id))
 
 
 def model_surface(picks: PickSet, opts: RunOptions, grid: Grid, *, boreholes=None, orientations=None, bounds=None,
@@ -650,8 +667,9 @@ def model_surface(picks: PickSet, opts: RunOptions, grid: Grid, *, boreholes=Non
     against (default: ``--dem-sigma`` for every pick).
     """
     xyz = picks.xyz
-    block = holdout_block_m(xyz[:, :2], vertex_spacing_m=vertex_spacing_m, cell_m=grid.cell_x_m)
-    groups = contact_segments(picks, cell_m=grid.cell_x_m, vertex_spacing_m=vertex_spacing_m)
+    block = segment_block_m(xyz, picks.contact_id, cell_m=grid.cell_x_m, vertex_spacing_m=vertex_spacing_m)
+    cid = np.asarray(picks.contact_id, dtype=float)
+    groups = segment_groups(xyz[:, 0], xyz[:, 1], np.where(np.isfinite(cid), cid, -1).astype(np.int64), block_m=block)
     bh = None
     if boreholes is not None:
         bh = np.column_stack([boreholes, np.full(len(boreholes), opts.borehole_sigma_m)])
@@ -661,7 +679,8 @@ def model_surface(picks: PickSet, opts: RunOptions, grid: Grid, *, boreholes=Non
     data_sigma = opts.dem_sigma_m if sigma is None else sigma
     try:
         return fit_surface(xyz, model=opts.model, boreholes=bh, orientations=orient, groups=groups,
-                           seed=opts.seed, data_sigma_m=data_sigma, is_cancelled=is_cancelled, bounds=bounds)
+                           seed=opts.seed, data_sigma_m=data_sigma, block_m=block, is_cancelled=is_cancelled, smoothing=SPLINE_SMOOTHING,
+                           bounds=bounds)
     except UndeterminedError as exc:
         raise UndeterminedError(f"{what}: {exc}") from None
 

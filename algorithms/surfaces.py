@@ -123,7 +123,7 @@ from strikeline.crossval import (CVScore, ErrorGrowth, ModelChoice, SELECTION_RU
                                  gcv_from_spectrum, holdout_block_m, make_folds,
                                  segment_groups)
 from strikeline.errors import CancelledError, InputError, UndeterminedError
-from strikeline.fitting import fit_plane
+from strikeline.fitting import fit_plane, robust_lstsq
 from strikeline.grid import Grid
 from strikeline.orientation import dip_from_normal, strike_from_dip_direction
 from strikeline.thinning import thin_picks
@@ -144,7 +144,7 @@ MODELS = ("plane", "trend2", "spline")
 #: Valid ``model`` values of :func:`fit_surface`.
 MODEL_CHOICES = MODELS + ("auto",)
 #: Valid string values of ``smoothing``.
-SMOOTHING_CHOICES = ("gcv", "kfold")
+SMOOTHING_CHOICES = ("gcv", "kfold", "discrepancy")
 #: Default standard error of a dip measurement: a typical compass-clinometer repeatability.
 DEFAULT_ORIENTATION_SIGMA_DEG = 5.0
 #: Steepest dip a height field z(x, y) can follow; steeper measurements are refused.
@@ -689,13 +689,6 @@ def _fit_poly(degree, data: _Data, kind) -> _Poly:
                   "pick_sigma_prior_m": float(sp)})
 
 
-#: Tuning constant of Tukey's biweight: 95 % efficiency at normal errors (Source: Holland &
-#: Welsch 1977, Table 1; from memory).
-_BIWEIGHT_C = 4.685
-#: Consistency factor of the median absolute deviation at normal errors (common practice).
-_MAD_TO_SIGMA = 1.4826
-
-
 def _fit_poly_robust(degree, data: _Data, scale_floor_m: float, *, max_iter: int = 50) -> _Poly:
     """Plane or quadratic trend fitted robustly, for the misfit check only.
 
@@ -722,40 +715,7 @@ def _fit_poly_robust(degree, data: _Data, scale_floor_m: float, *, max_iter: int
     A = np.vstack([_basis(up[:, 0], up[:, 1], degree), _basis(ub[:, 0], ub[:, 1], degree)])
     y = np.concatenate([data.p_z, data.b_z])
     fixed = np.r_[np.zeros(data.n, bool), np.ones(len(data.b_z), bool)]
-    p = A.shape[1]
-    if len(y) < p + 1 or np.linalg.matrix_rank(A) < p:
-        raise UndeterminedError("too few or collinear data for a robust fit")
-    coef = np.linalg.lstsq(A, y, rcond=None)[0]
-    h = max(p + 1, (len(y) + p + 1) // 2)
-    keep = None
-    for _ in range(20):  # concentration steps
-        r = np.abs(y - A @ coef)
-        r[fixed] = -1.0
-        new = np.sort(np.argsort(r, kind="stable")[:h])
-        if keep is not None and np.array_equal(new, keep):
-            break
-        keep = new
-        if np.linalg.matrix_rank(A[keep]) < p:
-            break
-        coef = np.linalg.lstsq(A[keep], y[keep], rcond=None)[0]
-    w = np.ones(len(y))
-    scale = float(scale_floor_m)
-    for _ in range(max_iter):
-        r = y - A @ coef
-        free = ~fixed
-        scale = max(_MAD_TO_SIGMA * float(np.median(np.abs(r[free]))) if free.any() else 0.0,
-                    float(scale_floor_m), PICK_SIGMA_FLOOR_M)
-        t = r / (_BIWEIGHT_C * scale)
-        w_new = np.where(np.abs(t) < 1, (1 - t * t) ** 2, 0.0)
-        w_new[fixed] = 1.0
-        if np.count_nonzero(w_new) < p or np.linalg.matrix_rank(A[w_new > 0]) < p:
-            break
-        sw = np.sqrt(w_new)
-        coef_new = np.linalg.lstsq(A * sw[:, None], y * sw, rcond=None)[0]
-        done = np.max(np.abs(w_new - w)) < 1e-6
-        coef, w = coef_new, w_new
-        if done:
-            break
+    coef, w, scale = robust_lstsq(A, y, fixed=fixed, scale_floor=max(scale_floor_m, PICK_SIGMA_FLOOR_M))
     N = (A * w[:, None]).T @ A
     cov = scale ** 2 * np.linalg.pinv(N)
     return _Poly(degree, coef, cov, scale, {"method": "robust (LTS concentration + biweight)"})
@@ -876,6 +836,45 @@ def _gcv_minimise(spec: _Spectrum):
     return best_nl, best_v
 
 
+def _discrepancy_nlam(spec: _Spectrum, sigma_m: float) -> float:
+    """``nλ`` at which the spline's RMS residual equals the stated pick error.
+
+    Morozov's discrepancy principle (Morozov 1966; Wahba 1990, sect. 4.5): with the noise
+    level known, smooth until the residuals are as large as the noise, no more. Generalized
+    cross-validation assumes independent errors; with digitising errors shared along a
+    contact it takes the correlated part for signal and interpolates the picks (Opsomer,
+    Wang & Yang 2001), which here made the spline oscillate between contacts. ``rss(nλ)`` is
+    monotone in ``nλ``, so a bisection in ``log nλ`` finds the root; when even the linear part
+    alone leaves residuals within the noise, the largest ``nλ`` of the grid (the spline is
+    then the plane), and when the noise is zero, GCV.
+
+    References
+    ----------
+    Morozov, V. A. (1966). On the solution of functional equations by the method of
+    regularization. *Soviet Mathematics Doklady*, 7, 414–417.
+
+    Opsomer, J., Wang, Y. & Yang, Y. (2001). Nonparametric regression with correlated
+    errors. *Statistical Science*, 16(2), 134–153. https://doi.org/10.1214/ss/1009213287
+    """
+    if not sigma_m > 0:
+        return _gcv_minimise(spec)[0]
+    target = spec.n * sigma_m ** 2
+    grid = spec.lambda_grid()
+    rss = spec.gcv(grid)[1]
+    if rss[-1] <= target:
+        return float(grid[-1])
+    if rss[0] >= target:
+        return float(grid[0])
+    lo, hi = np.log(grid[0]), np.log(grid[-1])
+    for _ in range(60):
+        mid = 0.5 * (lo + hi)
+        if float(spec.gcv(np.exp(mid))[1][0]) < target:
+            lo = mid
+        else:
+            hi = mid
+    return float(np.exp(0.5 * (lo + hi)))
+
+
 class _TPS:
     """``s(u) = Σ w_j φ(|u − c_j|) + d₀ + d₁u + d₂v`` in normalised coordinates."""
 
@@ -902,6 +901,8 @@ def _fit_tps(data: _Data, smoothing, lam=None) -> _TPS:
     n = spec.n
     if lam is not None:
         nlam, how = n * float(lam), "kfold"
+    elif isinstance(smoothing, tuple):  # ('discrepancy', sigma_m)
+        nlam, how = _discrepancy_nlam(spec, float(smoothing[1])), "discrepancy"
     elif isinstance(smoothing, str):  # 'gcv', or 'kfold' whose grid search could not run
         nlam, _ = _gcv_minimise(spec)
         how = "gcv" if smoothing == "gcv" else "gcv (k-fold search failed)"
@@ -1176,6 +1177,9 @@ class _Surface:
         self.bound_hull = None
         self.se_cv = None  # (rmse_m, distance_m): the spline's standard error without growth
         self.growth = None  # ErrorGrowth from cross-validation, when there was one
+        self.noise_floor_m = 0.0  # the stated pick error: floor of the model's own error
+        self.picks_per_segment = 1.0  # shared errors along contacts: the design effect's square
+        self.n_fit = data.n
 
     def _uv(self, x, y):
         return (x - self.origin[0]) / self.scale, (y - self.origin[1]) / self.scale
@@ -1204,37 +1208,47 @@ class _Surface:
             gv = tv + tau * (gv - tv) + diff * dtau * dy * self.scale
         return gu / self.scale, gv / self.scale
 
+    def noise_m(self):
+        """The pick noise the model carries: its own estimate, never below the stated pick
+        error (a spline that interpolates noisy picks estimates no noise, yet at a pick it is
+        as wrong as the pick)."""
+        own = self.core.sigma_m if isinstance(self.core, _Poly) else float(self.core.info["sigma_m"])
+        own = own if np.isfinite(own) else 0.0
+        return max(own, self.noise_floor_m)
+
     def base_se(self, x, y):
-        """The model's own standard error: noise plus parameter uncertainty (no distance)."""
-        u, v = self._uv(x, y)
-        if isinstance(self.core, _Poly):
-            se = self.core.se_u(u, v)
-            if self.trend is not None:
-                tau, _ = _taper(self._taper_hull().distance(x, y), self.taper_m)
-                se = tau * se + (1 - tau) * self.trend.se_u(u, v)
-            return se
-        return np.full(np.shape(x), float(self.core.info["sigma_m"]))
+        """Standard error of a NEW pick predicted by the model: noise and parameter part (no
+        distance growth)."""
+        return np.sqrt(self.noise_m() ** 2 + self.param_se(x, y) ** 2)
 
     def param_se(self, x, y):
-        """Parameter part of the standard error (0 for the spline, whose σ̂ is all noise)."""
+        """Standard error of the surface itself from its parameters, inflated by the design
+        effect ``sqrt(n / segments)``: neighbouring picks share their errors, so the data hold
+        about as much independent information as there are contact segments (Kish 1965). For
+        the spline, ``noise · sqrt(edf / segments)`` at most the noise (the average leverage
+        ``edf / n`` of a linear smoother, Hastie & Tibshirani 1990, with the same effect)."""
         u, v = self._uv(x, y)
         if isinstance(self.core, _Poly):
             se = self.core.param_se_u(u, v)
             if self.trend is not None:
                 tau, _ = _taper(self._taper_hull().distance(x, y), self.taper_m)
                 se = tau * se + (1 - tau) * self.trend.param_se_u(u, v)
-            return se
-        return np.zeros(np.shape(x))
+            return se * np.sqrt(self.picks_per_segment)
+        edf = float(self.core.info.get("edf", 0.0))
+        frac = min(1.0, edf * self.picks_per_segment / max(self.n_fit, 1))
+        return np.full(np.shape(x), self.noise_m() * np.sqrt(frac))
 
     def distance(self, x, y):
         return self.tree.query(np.column_stack([np.ravel(x), np.ravel(y)]),
                                workers=-1)[0].reshape(np.shape(x))
 
     def standard_error(self, x, y):
+        """Standard error of the SURFACE (not of a new pick): the parameter part and the
+        growth with distance from data, times the calibration factor."""
         if self.growth is not None:
             g = self.growth
-            base = self.base_se(x, y)
-            return g.kappa * np.sqrt(base ** 2 + g.excess_variance(self.distance(x, y)))
+            return g.kappa * np.sqrt(self.param_se(x, y) ** 2 +
+                                     g.excess_variance(self.distance(x, y)))
         if isinstance(self.core, _Poly):
             return self.base_se(x, y)
         rmse, dcv = self.se_cv
@@ -1391,6 +1405,8 @@ class SurfaceModel:
     growth: ErrorGrowth | None = None
     block_m: float | None = None
     check_block_m: float | None = None
+    check_kind: str | None = None
+    check_reason: str | None = None
     stated_sigma_m: float | None = None
     n_groups: int = 0
     _holdout: object = field(default=None, repr=False, compare=False)
@@ -1589,6 +1605,8 @@ class SurfaceModel:
             "choice": None if self.choice is None else self.choice.summary(),
             "holdout_block_m": num(self.block_m),
             "check_block_m": num(self.check_block_m),
+            "check_model": self.check_kind,
+            "check_model_reason": self.check_reason,
             "n_groups": self.n_groups,
             "stated_pick_error_m": num(self.stated_sigma_m),
             "error_growth": None if self.growth is None else self.growth.summary(),
@@ -1682,9 +1700,10 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
         Cross-validation group of every pick (contact segment ids; see
         :func:`strikeline.crossval.segment_groups`). Default (or fewer than two labels):
         ``4 × n_folds`` square spatial blocks.
-    smoothing : {'gcv', 'kfold'} or float, default 'gcv'
+    smoothing : {'gcv', 'kfold', 'discrepancy'} or float, default 'gcv'
         Spline smoothing λ: ``'gcv'`` minimises V(λ) on each fit's picks (nested in every
-        cross-validation fold); ``'kfold'`` minimises the grouped k-fold CV error of the
+        cross-validation fold); ``'discrepancy'`` smooths until the RMS residual equals the
+        stated pick error ``data_sigma_m`` (:func:`_discrepancy_nlam`; GCV without it); ``'kfold'`` minimises the grouped k-fold CV error of the
         picks-only spline over 29 values of λ, and the spline's CV score then uses that λ in
         every fold (slightly optimistic: the choice saw every fold); a number is a fixed
         λ ``>= 0`` in the normalised coordinates (``0`` interpolates).
@@ -1704,7 +1723,9 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
         cross-validation block (:func:`strikeline.crossval.holdout_block_m` of the picks when
         ``groups`` are not given).
     cross_validate_model : bool, default True
-        Cross-validate a single (non-auto) model too (needed for the spline's uncertainty).
+        Cross-validate with a single (non-auto) model too: all three models are scored, for
+        the calibrated standard error and for the misfit check, which uses the model the
+        ``auto`` rule would choose (:attr:`SurfaceModel.check_kind`).
     max_points : int, default 2000
         Thinning target (:func:`strikeline.thinning.thin_picks`).
     thin_cell_m : float, optional
@@ -1792,7 +1813,7 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
         except (TypeError, ValueError):
             ok = False
         if not ok:
-            raise InputError(f"smoothing must be one of 'gcv', 'kfold' or a number >= 0; got "
+            raise InputError(f"smoothing must be one of 'gcv', 'kfold', 'discrepancy' or a number >= 0; got "
                              f"{smoothing!r}")
     if int(n_folds) < 2:
         raise InputError(f"n_folds must be at least 2, got {n_folds}")
@@ -1813,8 +1834,12 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
     elif not float(taper_m) > 0:
         raise InputError(f"taper_m must be a positive distance in metres, got {taper_m}")
 
-    kinds = MODELS if model == "auto" else (model,)
+    # every model is scored whenever cross-validation runs: a fixed model's misfit check uses
+    # the model the data support (the 'auto' choice), so a flexible model asked for cannot
+    # absorb a mistrace it is checked against
+    kinds = MODELS if (model == "auto" or cross_validate_model) else (model,)
     sigma_stated = _stated_sigma(data_sigma_m, len(np.asarray(xyz)))
+    pps = 1.0  # picks per independent contact segment (set with the folds below)
     folds = None
     if model == "auto" or cross_validate_model or smoothing == "kfold":
         labels = thinned.groups
@@ -1824,6 +1849,7 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
                                     block_m=block_m)
         if len(np.unique(labels)) >= 2:
             folds = make_folds(labels, n_folds=n_folds, seed=seed)
+            pps = max(1.0, data.n / len(np.unique(labels)))
     if folds is None and (model == "auto" or smoothing == "kfold"):
         raise InputError(f"model={model!r} with smoothing={smoothing!r} needs cross-validation, "
                          f"but the {data.n} picks fall into fewer than two groups or blocks; "
@@ -1835,6 +1861,8 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
         if progress is not None:
             progress(min(1.0, (done[0] + f) / n_steps))
 
+    if smoothing == "discrepancy":
+        smoothing = ("discrepancy", sigma_stated) if sigma_stated else "gcv"
     lam = None
     if "spline" in kinds and smoothing == "kfold":
         try:
@@ -1853,6 +1881,7 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
             def fit_predict(train, test, kind=kind):
                 s = _fit_kind(kind, data.picks(train), smoothing=smoothing, lam=lam,
                               taper_m=taper_m)
+                s.noise_floor_m, s.picks_per_segment = sigma_stated or 0.0, pps
                 x, y = data.p_xy[test, 0], data.p_xy[test, 1]
                 base_se[kind][test] = s.base_se(x, y)
                 return s.value(x, y)
@@ -1860,15 +1889,47 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
                                           groups=labels, progress=sub_progress,
                                           is_cancelled=is_cancelled)
             done[0] += 1
+    # the misfit check's model: the simplest the data support when plane and trend2 are also
+    # scored robustly (a mistraced stretch or a faulted block then counts against them only
+    # where it lies), so that a blunder cannot push the check onto a model flexible enough
+    # to absorb it
+    check_scores, check_base = dict(scores), dict(base_se)
+    if folds is not None and (model == "auto" or cross_validate_model):
+        p3 = np.column_stack([data.p_xy, data.p_z])
+        for kind in ("plane", "trend2"):
+            if kind not in scores or not np.isfinite(scores[kind].rmse_m):
+                continue
+            check_base[kind] = np.full(data.n, np.nan)
+
+            def fit_predict_robust(train, test, kind=kind):
+                s = _robust_surface(kind, data.picks(train), sigma_stated, taper_m, pps)
+                x, y = data.p_xy[test, 0], data.p_xy[test, 1]
+                check_base[kind][test] = s.base_se(x, y)
+                return s.value(x, y)
+            check_scores[kind] = cross_validate(fit_predict_robust, p3, folds,
+                                                fixed_xy=data.fixed_xy(), groups=labels,
+                                                is_cancelled=is_cancelled)
     choice = None
-    if model == "auto":
-        choice = choose_model(scores, order=MODELS, rule=selection, sigma_m=sigma_stated)
-        chosen = choice.chosen
-    else:
-        chosen = model
+    if model == "auto" or any(np.isfinite(sc.rmse_m) for sc in scores.values()):
+        try:
+            choice = choose_model(scores, order=MODELS, rule=selection, sigma_m=sigma_stated,
+                                  robust=True)
+        except UndeterminedError:
+            if model == "auto":
+                raise
+    chosen = choice.chosen if model == "auto" else model
+    check_kind, check_choice = chosen, None
+    if check_scores:
+        try:
+            check_choice = choose_model(check_scores, order=MODELS, rule=selection,
+                                        sigma_m=sigma_stated, robust=True)
+            check_kind = check_choice.chosen
+        except UndeterminedError:
+            pass
     _check_cancel(is_cancelled, "surface fitting")
     surface = _fit_kind(chosen, data, smoothing=smoothing, lam=lam, taper_m=taper_m)
     surface.hull, surface.tree = hull, tree
+    surface.noise_floor_m, surface.picks_per_segment = sigma_stated or 0.0, pps
     score = scores.get(chosen)
     if chosen == "spline":
         if score is not None and np.isfinite(score.rmse_m):
@@ -1881,12 +1942,38 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
     holdout = None
     side = None
     if score is not None and np.isfinite(score.rmse_m) and data.n >= 10:
-        growth = fit_error_growth(score.errors_m, score.distances_m, base_se[chosen])
+        errs, dists, bases = [score.errors_m], [score.distances_m], [base_se[chosen]]
+        # a second, coarser hold-out probes the error farther from data (map cells in wide
+        # gaps), so the growth law is fitted over the distances it is used at, not extrapolated
+        coarse_m = COARSE_HOLDOUT_FACTOR * (block_m if block_m is not None else
+                                            holdout_block_m(data.p_xy))
+        coarse = segment_groups(data.p_xy[:, 0], data.p_xy[:, 1], np.zeros(data.n),
+                                block_m=coarse_m)
+        if len(np.unique(coarse)) >= 2:
+            cfolds = make_folds(coarse, n_folds=n_folds, seed=seed)
+            cbase = np.full(data.n, np.nan)
+
+            def fit_predict_coarse(train, test):
+                s = _fit_kind(chosen, data.picks(train), smoothing=smoothing, lam=lam,
+                              taper_m=taper_m)
+                s.noise_floor_m, s.picks_per_segment = sigma_stated or 0.0, pps
+                x, y = data.p_xy[test, 0], data.p_xy[test, 1]
+                cbase[test] = s.base_se(x, y)
+                return s.value(x, y)
+            cs = cross_validate(fit_predict_coarse, np.column_stack([data.p_xy, data.p_z]),
+                                cfolds, fixed_xy=data.fixed_xy(), is_cancelled=is_cancelled)
+            if np.isfinite(cs.rmse_m):
+                errs.append(cs.errors_m), dists.append(cs.distances_m), bases.append(cbase)
+        growth = fit_error_growth(np.concatenate(errs), np.concatenate(dists),
+                                  np.concatenate(bases))
         surface.growth = growth
+        check_score = check_scores[check_kind]
+        check_growth = fit_error_growth(check_score.errors_m, check_score.distances_m,
+                                        check_base[check_kind], exclude_gross=True)
         side = check_block_m if check_block_m is not None else \
             CHECK_BLOCK_FACTOR * (block_m if block_m is not None else holdout_block_m(data.p_xy))
-        holdout = _holdout_checks(chosen, data, side, growth, sigma_stated, taper_m,
-                                  smoothing=smoothing, lam=lam, is_cancelled=is_cancelled)
+        holdout = _holdout_checks(check_kind, data, side, check_growth, sigma_stated, taper_m,
+                                  smoothing=smoothing, lam=lam, pps=pps, is_cancelled=is_cancelled)
     if progress is not None:
         progress(1.0)
     params = _params(surface, data)
@@ -1900,7 +1987,7 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
         cv_se_m=MappingProxyType({k: float(s.se_m) for k, s in scores.items()}),
         cv_skipped=MappingProxyType({k: s.reason for k, s in scores.items() if s.reason}),
         cv_distance_m=float(score.distance_m) if score is not None else float("nan"),
-        selection=f"auto/{choice.rule}" if choice is not None else "fixed",
+        selection=f"auto/{choice.rule}" if (choice is not None and model == "auto") else "fixed",
         n_picks=int(np.count_nonzero(thinned.index >= 0)),
         n_used=int(data.n),
         thin_cell_m=thinned.cell_m,
@@ -1912,6 +1999,8 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
         growth=growth,
         block_m=block_m,
         check_block_m=None if holdout is None else float(side),
+        check_kind=None if holdout is None else check_kind,
+        check_reason=None if (holdout is None or check_choice is None) else check_choice.reason,
         stated_sigma_m=sigma_stated,
         n_groups=0 if score is None else int(score.n_groups),
         _holdout=holdout,
@@ -1933,8 +2022,11 @@ def _stated_sigma(data_sigma_m, n):
     return v if v > 0 else None
 
 
+#: The standard error's growth with distance is also fitted on a hold-out of blocks this many
+#: times the cross-validation block.
+COARSE_HOLDOUT_FACTOR = 4.0
 #: The misfit check holds out square blocks this many times the cross-validation block.
-CHECK_BLOCK_FACTOR = 3.0
+CHECK_BLOCK_FACTOR = 2.0
 
 
 class _Holdout:
@@ -1978,8 +2070,18 @@ class _Holdout:
         return z, se, gx, gy
 
 
+def _robust_surface(kind, data: _Data, sigma_m, taper_m, pps=1.0) -> _Surface:
+    """Plane or trend2 fitted robustly (:func:`_fit_poly_robust`), for the misfit check."""
+    floor = sigma_m if sigma_m is not None else 0.0
+    core = _fit_poly_robust(1 if kind == "plane" else 2, data, floor)
+    trend = None if kind == "plane" else _fit_poly_robust(1, data, floor)
+    s = _Surface(kind, core, trend, data, taper_m)
+    s.noise_floor_m, s.picks_per_segment = floor, pps
+    return s
+
+
 def _holdout_checks(kind, data: _Data, side_m, growth, sigma_m, taper_m, *, smoothing, lam,
-                    is_cancelled=None):
+                    pps=1.0, is_cancelled=None):
     """The fits the misfit check compares held-out contacts with (see :class:`_Holdout`).
 
     The spline is refitted as it was chosen; plane and trend2 are refitted robustly
@@ -2000,9 +2102,7 @@ def _holdout_checks(kind, data: _Data, side_m, growth, sigma_m, taper_m, *, smoo
             try:
                 if kind in ("plane", "trend2"):
                     try:
-                        core = _fit_poly_robust(1 if kind == "plane" else 2, sub, floor)
-                        trend = None if kind == "plane" else _fit_poly_robust(1, sub, floor)
-                        s = _Surface(kind, core, trend, sub, taper_m)
+                        s = _robust_surface(kind, sub, sigma_m, taper_m, pps)
                     except (UndeterminedError, np.linalg.LinAlgError):
                         s = _fit_kind(kind, sub, smoothing=smoothing, lam=lam, taper_m=taper_m)
                 else:
@@ -2010,5 +2110,6 @@ def _holdout_checks(kind, data: _Data, side_m, growth, sigma_m, taper_m, *, smoo
             except UndeterminedError:
                 continue  # points of this colour fall back to no check (NaN)
             s.growth = growth
+            s.noise_floor_m, s.picks_per_segment = floor, pps
             holdout.surfaces[(board, c)] = s
     return holdout if holdout.surfaces else None
