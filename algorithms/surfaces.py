@@ -961,28 +961,16 @@ def _fit_tps(data: _Data, smoothing, lam=None) -> _TPS:
     A[:m, m:] = Tf
     A[m:, :m] = Tf.T
     rhs = np.concatenate([y, np.zeros(3)])
-    diag = np.arange(m)
     bidx = n + np.arange(nb)
 
     def solve(lam_b, unit=None):
-        M = A.copy()
-        M[diag, diag] += np.concatenate([np.full(n, nlam), lam_b, lam_g])
-        try:
-            lu = linalg.lu_factor(M, check_finite=False)
-        except (linalg.LinAlgError, ValueError) as exc:
-            raise UndeterminedError(f"the spline system with constraints is singular ({exc}); "
-                                    "check for boreholes or dip measurements at the same "
-                                    "place as picks with other elevations") from exc
-        if not np.all(np.isfinite(lu[0])) or np.min(np.abs(np.diag(lu[0]))) == 0.0:
-            raise UndeterminedError("the spline system with constraints is singular; check "
-                                    "for picks or boreholes at one place with different "
-                                    "elevations, or use smoothing > 0")
-        sol = linalg.lu_solve(lu, rhs)
+        inverse = _lu_solver(A, np.concatenate([np.full(n, nlam), lam_b, lam_g]))
+        sol = inverse(rhs)
         h = None
         if unit is not None:
             E = np.zeros((m + 3, len(unit)))
             E[unit, np.arange(len(unit))] = 1.0
-            h = linalg.lu_solve(lu, E)[unit, :]
+            h = inverse(E)[unit, :]
         return sol, h
 
     def violators(sol, lam_b):
@@ -1044,6 +1032,9 @@ def _lu_solver(A, diag_add):
         raise UndeterminedError(f"the spline system with constraints is singular ({exc}); check for "
                                 "boreholes or dip measurements at the same place as picks with other "
                                 "elevations") from exc
+    if not np.all(np.isfinite(lu[0])) or np.min(np.abs(np.diag(lu[0]))) == 0.0:
+        raise UndeterminedError("the spline system with constraints is singular; check for picks or "
+                                "boreholes at one place with different elevations, or use smoothing > 0")
     return lambda b: linalg.lu_solve(lu, b, check_finite=False)
 
 
