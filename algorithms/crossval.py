@@ -31,6 +31,7 @@ __all__ = [
     "ModelChoice",
     "typical_gap_m",
     "residual_correlation_m",
+    "trimmed_mean_square",
     "holdout_block_m",
     "ErrorGrowth",
     "fit_error_growth",
@@ -269,7 +270,8 @@ def typical_gap_m(xy, *, n_samples: int = 10_000) -> float:
     return float(np.median(nn))
 
 
-def residual_correlation_m(xyz, contact_id=None, *, max_lag_steps: int = 400) -> float:
+def residual_correlation_m(xyz, contact_id=None, *, trend=None, sigma_m=None,
+                           max_lag_steps: int = 400) -> float:
     """Distance along the contacts over which the residuals of a plane stay correlated.
 
     Digitising errors are shared by neighbouring picks along a mapped line; a hold-out block
@@ -292,6 +294,13 @@ def residual_correlation_m(xyz, contact_id=None, *, max_lag_steps: int = 400) ->
         Picks in the order they were taken along their contacts.
     contact_id : array_like, shape ``(n,)``, optional
         Contact of every pick (lags never cross contacts).
+    trend : array_like, shape ``(n,)``, optional
+        The surface's elevation at every pick from a smooth fit (e.g. a spline smoothed to the
+        stated error), whose residuals are then used instead of a plane's: on a curved surface
+        they are the picks' errors, not the unmodelled shape.
+    sigma_m : float, optional
+        The stated pick error: residuals whose robust RMS is under a quarter of it are too
+        small for their correlation to matter, and the length is 0.
     max_lag_steps : int, default 400
 
     Returns
@@ -319,13 +328,20 @@ def residual_correlation_m(xyz, contact_id=None, *, max_lag_steps: int = 400) ->
     if n < 20:
         return 0.0
     cid = np.zeros(n) if contact_id is None else np.asarray(contact_id, dtype=float).reshape(-1)
-    A = np.column_stack([np.ones(n), p[:, 0] - p[:, 0].mean(), p[:, 1] - p[:, 1].mean()])
-    try:
-        coef = robust_lstsq(A, p[:, 2])[0]
-    except UndeterminedError:  # picks along one straight line: an ordinary fit will do
-        coef = np.linalg.lstsq(A, p[:, 2], rcond=None)[0]
-    r = p[:, 2] - A @ coef
+    if trend is not None:
+        r = p[:, 2] - np.asarray(trend, dtype=float).reshape(-1)
+    else:
+        A = np.column_stack([np.ones(n), p[:, 0] - p[:, 0].mean(), p[:, 1] - p[:, 1].mean()])
+        try:
+            coef = robust_lstsq(A, p[:, 2])[0]
+        except UndeterminedError:  # picks along one straight line: an ordinary fit will do
+            coef = np.linalg.lstsq(A, p[:, 2], rcond=None)[0]
+        r = p[:, 2] - A @ coef
+    if not np.all(np.isfinite(r)):
+        return 0.0
     sill = float(np.median((r - np.median(r)) ** 2)) / _MEDIAN_CHI2_1
+    if sigma_m is not None and sill < (0.25 * float(sigma_m)) ** 2:
+        return 0.0
     step = np.hypot(*np.diff(p[:, :2], axis=0).T)
     same = cid[1:] == cid[:-1]
     if not sill > 0 or not same.any():
@@ -520,7 +536,7 @@ def choose_model(scores: Mapping[str, CVScore], *, order: Sequence[str],
         Number of independent held-out groups (contact segments); default the scores'
         :attr:`CVScore.n_groups`, else the number of held-out picks.
     robust : bool, default False
-        Compare robust RMS errors (``sqrt(median(e²) / 0.4549)``) instead of RMSEs
+        Compare trimmed RMS errors (:func:`trimmed_mean_square`) instead of RMSEs
         everywhere: the model that fits the bulk of the picks, whatever a few gross errors do
         (used to choose the misfit check's model).
 
@@ -579,7 +595,7 @@ def choose_model(scores: Mapping[str, CVScore], *, order: Sequence[str],
         reasons = "; ".join(f"{m}: {scores[m].reason}" for m in order if m in scores)
         raise UndeterminedError(f"no surface model could be cross-validated ({reasons}); "
                                 "add picks, or fit a single model without cross-validation")
-    err = "robust cross-validation error" if robust else "cross-validation error"
+    err = "trimmed cross-validation error" if robust else "cross-validation error"
     if robust:
         scores = {m: _robust_score(scores[m]) for m in finite}
     best = min(finite, key=lambda m: scores[m].rmse_m)
@@ -605,15 +621,15 @@ def choose_model(scores: Mapping[str, CVScore], *, order: Sequence[str],
         for m in finite:
             e = np.asarray(scores[m].errors_m, dtype=float)
             e = e[np.isfinite(e)]
-            robust_ms = float(np.median(e * e)) / _MEDIAN_CHI2_1 if len(e) else scores[m].rmse_m ** 2
+            robust_ms = trimmed_mean_square(e) if len(e) else scores[m].rmse_m ** 2
             t = nu * robust_ms / float(sigma_m) ** 2
             chi2[m] = {"statistic": float(t), "critical": crit, "consistent": bool(t <= crit),
-                       "robust_rms_m": float(np.sqrt(robust_ms))}
+                       "trimmed_rms_m": float(np.sqrt(robust_ms))}
     what = ("the larger of its standard error and the stated pick error"
             if rule_used == "data_error" else "one standard error")
     if chosen == best:
         words = (f"{best} chosen: lowest {err} ({rb:.3g} m)"
-                 + ("" if len(finite) == 1 else
+                 + ("" if len(finite) == 1 or chosen == finite[0] else
                     ", and no simpler model came within " + f"{tol:.3g} m ({what})"))
     else:
         words = (f"{chosen} chosen: its {err} ({scores[chosen].rmse_m:.3g} m) "
@@ -624,9 +640,9 @@ def choose_model(scores: Mapping[str, CVScore], *, order: Sequence[str],
         if later:
             old, chosen = chosen, later[0]
             words = (f"{chosen} chosen: {old} scored within the tolerance but its residuals "
-                     f"(robust RMS {chi2[old]['robust_rms_m']:.3g} m) are far beyond the stated pick error "
+                     f"(trimmed RMS {chi2[old]['trimmed_rms_m']:.3g} m) are far beyond the stated pick error "
                      f"({float(sigma_m):.3g} m; chi-square test with {nu} segments rejects it "
-                     f"at {CHI2_ALPHA:g}), while {chosen} ({chi2[chosen]['robust_rms_m']:.3g} m) is "
+                     f"at {CHI2_ALPHA:g}), while {chosen} ({chi2[chosen]['trimmed_rms_m']:.3g} m) is "
                      "consistent with it")
         elif not any(v["consistent"] for v in chi2.values()):
             words += (f"; no model fits within the stated pick error ({float(sigma_m):.3g} m, "
@@ -637,15 +653,44 @@ def choose_model(scores: Mapping[str, CVScore], *, order: Sequence[str],
 
 
 def _robust_score(score: CVScore) -> CVScore:
-    """The score with its RMSE replaced by the robust RMS of its errors."""
+    """The score with its RMSE replaced by the trimmed RMS of its errors."""
     e = np.asarray(score.errors_m, dtype=float)
     e = e[np.isfinite(e)]
     if not len(e):
         return score
-    r = float(np.sqrt(np.median(e * e) / _MEDIAN_CHI2_1))
+    r = float(np.sqrt(trimmed_mean_square(e)))
     return CVScore(r, score.fold_rmse_m, score.se_m * r / score.rmse_m if score.rmse_m > 0 else
                    score.se_m, score.n_held_out, score.distance_m, score.errors_m, score.reason,
                    score.distances_m, score.n_groups)
+
+
+#: Share of the largest errors a trimmed score leaves out: enough for a mistraced stretch or a
+#: faulted block (here 15-20 % of a contact), too little for a model that fits only half the
+#: picks to look good (a median-based score can be fooled that way).
+TRIM_FRACTION = 0.25
+#: Variance of a standard normal variable truncated to its central 75 % (Source: analytic,
+#: 1 - 2 q phi(q) / 0.75 with q = 1.15035, the 87.5 % quantile; phi the normal density).
+_TRIMMED_NORMAL_VAR = 0.368393
+
+
+def trimmed_mean_square(errors) -> float:
+    """Mean square of the errors without the largest ``TRIM_FRACTION`` of them, scaled to
+    estimate the variance of normal errors (a trimmed estimator; Huber & Ronchetti 2009,
+    ch. 3), robust to a minority of gross errors.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> e = np.random.default_rng(0).normal(0, 2.0, 100000)
+    >>> round(float(np.sqrt(trimmed_mean_square(e))), 1)
+    2.0
+    """
+    e = np.sort(np.abs(np.asarray(errors, dtype=float).reshape(-1)))
+    e = e[np.isfinite(e)]
+    if not len(e):
+        return float("nan")
+    k = max(1, int(round((1 - TRIM_FRACTION) * len(e))))
+    return float(np.mean(e[:k] ** 2) / _TRIMMED_NORMAL_VAR)
 
 
 def select_model(scores: Mapping[str, CVScore], *, order: Sequence[str],
@@ -724,9 +769,10 @@ def fit_error_growth(errors_m, distance_m, base_se_m, *, n_bins: int = 8,
     n_bins : int, default 8
         Distance classes (equal counts).
     exclude_gross : bool, default False
-        Leave out errors beyond ``5 × 1.4826 × MAD`` of all errors first: the growth of the
-        error of good data, for a check that looks for the gross errors (a mistraced stretch,
-        a fault) which would otherwise widen its own tolerance.
+        Leave out gross errors first — beyond 5 standard errors of a first fit scaled on the
+        median error, so that legitimately larger errors far from data stay in: the growth of
+        the error of good data, for a check that looks for the gross errors (a mistraced
+        stretch, a fault) which would otherwise widen its own tolerance.
 
     Returns
     -------
@@ -769,9 +815,15 @@ def fit_error_growth(errors_m, distance_m, base_se_m, *, n_bins: int = 8,
     ok = np.isfinite(e) & np.isfinite(d) & np.isfinite(s)
     e, d, s = e[ok], d[ok], s[ok]
     if exclude_gross and len(e) >= 10:
-        mad = 1.4826 * float(np.median(np.abs(e - np.median(e))))
-        if mad > 0:
-            keep = np.abs(e - np.median(e)) <= 5.0 * mad
+        # a first fit, scaled on the median error (robust), tells how large an error may be at
+        # its distance; errors beyond 5 of those standard errors are gross and left out
+        g0 = fit_error_growth(e, d, s, n_bins=n_bins)
+        se0 = np.sqrt(s ** 2 + g0.excess_variance(d))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            z0 = np.abs(e) / se0
+        k0 = float(np.nanmedian(z0)) / 0.6744897501960817  # median |z| of a normal variable
+        keep = ~(z0 > 5.0 * k0) if k0 > 0 else np.ones(len(e), bool)
+        if keep.sum() >= 10:
             e, d, s = e[keep], d[keep], s[keep]
     if len(e) < 10:
         raise InputError(f"fit_error_growth needs at least 10 held-out errors, got {len(e)}")

@@ -172,7 +172,7 @@ MAD_TO_SIGMA = 1.4826
 
 
 def robust_lstsq(A, y, *, fixed=None, scale_floor: float = 0.0, max_iter: int = 50,
-                 n_starts: int = 50):
+                 n_starts: int = 50, coverage: float = 0.5):
     """Linear least squares that ignores gross errors: LTS concentration steps, then biweight.
 
     First the fit is found by least trimmed squares with the FAST-LTS algorithm — from
@@ -196,6 +196,9 @@ def robust_lstsq(A, y, *, fixed=None, scale_floor: float = 0.0, max_iter: int = 
         Biweight iterations.
     n_starts : int, default 50
         Elemental starts of FAST-LTS.
+    coverage : float, default 0.5
+        Share of the rows the trimmed fit must explain (0.5: the highest breakdown; larger
+        values keep a model from fitting only half of a curved surface).
 
     Returns
     -------
@@ -236,7 +239,8 @@ def robust_lstsq(A, y, *, fixed=None, scale_floor: float = 0.0, max_iter: int = 
     fixed = np.zeros(n, bool) if fixed is None else np.asarray(fixed, bool)
     if n < p + 1 or np.linalg.matrix_rank(A) < p:
         raise UndeterminedError("too few or collinear data for a robust fit")
-    h = max(p + 1, (n + p + 1) // 2)
+    h = max(p + 1, (n + p + 1) // 2, int(np.ceil(float(coverage) * n)))
+    h = min(h, n)
 
     def c_steps(coef, steps):
         keep = None

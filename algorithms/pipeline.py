@@ -172,6 +172,11 @@ def check_options(opts: RunOptions) -> None:
     _positive(opts.dem_sigma_m, "--dem-sigma (metres)", allow_zero=True)
     _positive(opts.contour_sigma_m, "--contour-sigma (metres)", allow_zero=True)
     _positive(opts.contact_sigma_m, "--contact-sigma (metres)", allow_zero=True)
+    for value, flag in ((opts.dem_sigma_m, "--dem-sigma"), (opts.contour_sigma_m, "--contour-sigma"),
+                        (opts.contact_sigma_m, "--contact-sigma")):
+        if value > MAX_SIGMA_M:
+            raise InputError(f"{flag} {value:g} m is not a map's or a DEM's standard error (at most "
+                             f"{MAX_SIGMA_M:g} m); give the error in metres, e.g. {flag} 2")
     _positive(opts.borehole_sigma_m, "--borehole-sigma (metres)", allow_zero=True)
     _positive(opts.orientation_sigma_deg, "--orientation-sigma (degrees)", allow_zero=True)
     if not (isinstance(opts.resamples, int) and opts.resamples >= 100):
@@ -407,10 +412,16 @@ def map_unit_polygons(lyr: VectorLayer, opts: RunOptions, *, names: dict = CLI_O
     return lyr.geoms, labels
 
 
-#: How the spline's smoothing is chosen: until its residuals match the stated pick errors (the
-#: discrepancy principle), because generalized cross-validation assumes independent errors and, with
-#: digitising errors shared along a contact, interpolates the picks (Opsomer, Wang & Yang 2001).
-SPLINE_SMOOTHING = "discrepancy"
+#: How the spline's smoothing is chosen: by the same blocked cross-validation as the models (hold-out
+#: blocks at least twice the correlation length of the picks' errors), because generalized
+#: cross-validation assumes independent errors and, with digitising errors shared along a contact,
+#: interpolates the picks (Opsomer, Wang & Yang 2001); the discrepancy principle against the stated
+#: error ('discrepancy') oversmooths wherever the stated error is larger than the real one.
+SPLINE_SMOOTHING = "kfold"
+
+
+#: Largest standard error accepted for --dem-sigma, --contour-sigma, --contact-sigma (metres).
+MAX_SIGMA_M = 1000.0
 
 
 #: A map-unit bound counts as broken by the final surface beyond this many metres.
@@ -650,13 +661,30 @@ def segment_labels(xyz, contact_id, *, cell_m: float = 1.0, vertex_spacing_m: fl
     return segment_groups(xyz[:, 0], xyz[:, 1], cid, block_m=block_m)
 
 
-def segment_block_m(xyz, contact_id, *, cell_m: float, vertex_spacing_m: float = 0.0) -> float:
+def segment_block_m(xyz, contact_id, *, cell_m: float, vertex_spacing_m: float = 0.0, trend=None,
+                    sigma=None) -> float:
     """Side of the contact-segment blocks (:func:`strikeline.crossval.holdout_block_m`), with the
     correlation length of the picks' errors along the contacts
-    (:func:`strikeline.crossval.residual_correlation_m`)."""
+    (:func:`strikeline.crossval.residual_correlation_m`; residuals from a plane, or from
+    ``trend``, the elevation of a smooth fit at each pick)."""
     xyz = np.asarray(xyz, dtype=float)
     return holdout_block_m(xyz[:, :2], vertex_spacing_m=vertex_spacing_m, cell_m=cell_m,
-                           correlation_m=residual_correlation_m(xyz, contact_id))
+                           correlation_m=residual_correlation_m(
+                               xyz, contact_id, trend=trend,
+                               sigma_m=None if sigma is None else float(np.sqrt(np.mean(np.square(sigma))))))
+
+
+def smooth_trend(xyz, sigma) -> np.ndarray | None:
+    """Elevation at every pick of a thin-plate spline smoothed until its residuals match the
+    stated pick errors (no cross-validation): the surface's shape without the picks' errors, so
+    that the errors' correlation along the contacts can be measured on a curved surface too.
+    ``None`` when no spline can be fitted (too few picks)."""
+    try:
+        m = fit_surface(xyz, model="spline", smoothing="discrepancy", data_sigma_m=sigma,
+                        cross_validate_model=False)
+    except (UndeterminedError, InputError):
+        return None
+    return m.evaluate(xyz[:, 0], xyz[:, 1])
 
 
 def model_surface(picks: PickSet, opts: RunOptions, grid: Grid, *, boreholes=None, orientations=None, bounds=None,
@@ -667,7 +695,10 @@ def model_surface(picks: PickSet, opts: RunOptions, grid: Grid, *, boreholes=Non
     against (default: ``--dem-sigma`` for every pick).
     """
     xyz = picks.xyz
-    block = segment_block_m(xyz, picks.contact_id, cell_m=grid.cell_x_m, vertex_spacing_m=vertex_spacing_m)
+    data_sigma = opts.dem_sigma_m if sigma is None else sigma
+    corr = residual_correlation_m(xyz, picks.contact_id, trend=smooth_trend(xyz, data_sigma),
+                                  sigma_m=float(np.sqrt(np.mean(np.square(data_sigma)))))
+    block = holdout_block_m(xyz[:, :2], vertex_spacing_m=vertex_spacing_m, cell_m=grid.cell_x_m, correlation_m=corr)
     cid = np.asarray(picks.contact_id, dtype=float)
     groups = segment_groups(xyz[:, 0], xyz[:, 1], np.where(np.isfinite(cid), cid, -1).astype(np.int64), block_m=block)
     bh = None
@@ -679,7 +710,7 @@ def model_surface(picks: PickSet, opts: RunOptions, grid: Grid, *, boreholes=Non
     data_sigma = opts.dem_sigma_m if sigma is None else sigma
     try:
         return fit_surface(xyz, model=opts.model, boreholes=bh, orientations=orient, groups=groups,
-                           seed=opts.seed, data_sigma_m=data_sigma, block_m=block, is_cancelled=is_cancelled, smoothing=SPLINE_SMOOTHING,
+                           seed=opts.seed, data_sigma_m=data_sigma, block_m=block, error_correlation_m=corr, is_cancelled=is_cancelled, smoothing=SPLINE_SMOOTHING,
                            bounds=bounds)
     except UndeterminedError as exc:
         raise UndeterminedError(f"{what}: {exc}") from None
@@ -794,6 +825,29 @@ def log_model_choice(model: SurfaceModel, *, what: str, log: Log = _quiet) -> No
         log(f"{what}: {model.choice.reason}")
     else:
         log(f"{what}: {model.kind} as asked (--model)")
+    hint = error_scale_hint(model)
+    if hint:
+        log(f"warning: {what}: {hint}")
+
+
+def error_scale_hint(model: SurfaceModel) -> str | None:
+    """A warning when the stated pick errors and the scatter of held-out picks disagree by more
+    than a factor 3: the stated errors set the model choice's tolerance and the misfit check's
+    threshold, so they should be the map's and the DEM's real errors."""
+    if model.choice is None or not model.stated_sigma_m:
+        return None
+    chi = model.choice.chi2.get(model.choice.best, {})
+    seen = chi.get("trimmed_rms_m")
+    if seen is None:
+        return None
+    ratio = seen / model.stated_sigma_m
+    if 1 / 3 <= ratio <= 3:
+        return None
+    which = "smaller" if ratio < 1 else "larger"
+    return (f"held-out picks scatter by {seen:.3g} m (trimmed RMS of the best model) against a stated pick error of "
+            f"{model.stated_sigma_m:.3g} m: the real errors look {1 / ratio if ratio < 1 else ratio:.0f} times {which}; "
+            "state the DEM's vertical error (--dem-sigma) and the map's positional error (--contact-sigma, "
+            "--contour-sigma), which set the model choice's tolerance and the misfit check's threshold")
 
 
 def _no_thickness_reason(base_in, top_in, model, top_model) -> str:
@@ -988,9 +1042,13 @@ def build_summary(inputs: Inputs, opts: RunOptions, picks: PickSet, plane: dict,
                                 "method": attitudes.method,
                                 "by_quality": {str(a): int(b) for a, b in zip(q, counts)}}
     if segments is not None:
+        unchecked = ~np.isfinite(np.asarray(segments.get("z_score", segments["misfit_m"]), dtype=float))
         summary["contact_misfit"] = {"segment_m": SEGMENT_CELLS * min(inputs.dem_grid.cell_x_m, inputs.dem_grid.cell_y_m),
                                      "check": flag_m, "n_segments": int(len(segments["geoms"])),
-                                     "n_flagged": int(np.sum(segments["flagged"]))}
+                                     "n_flagged": int(np.sum(segments["flagged"])),
+                                     "n_unchecked": int(np.sum(unchecked)),
+                                     "unchecked_reason": "off the DEM, or only reachable by extrapolating a spline "
+                                                         "fitted without them (at the edge of the mapped ground)"}
     if trace_flags is not None and len(trace_flags):
         summary["predicted_trace"] = {"n_lines": int(len(trace_flags)), "n_extrapolated": int(np.sum(trace_flags))}
     if thickness is not None:

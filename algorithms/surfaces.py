@@ -120,7 +120,7 @@ from scipy.spatial import QhullError
 
 from strikeline.crossval import (CVScore, ErrorGrowth, ModelChoice, SELECTION_RULES,
                                  choose_model, cross_validate, fit_error_growth,
-                                 gcv_from_spectrum, holdout_block_m, make_folds,
+                                 gcv_from_spectrum, holdout_block_m, make_folds, TRIM_FRACTION,
                                  segment_groups)
 from strikeline.errors import CancelledError, InputError, UndeterminedError
 from strikeline.fitting import fit_plane, robust_lstsq
@@ -715,7 +715,8 @@ def _fit_poly_robust(degree, data: _Data, scale_floor_m: float, *, max_iter: int
     A = np.vstack([_basis(up[:, 0], up[:, 1], degree), _basis(ub[:, 0], ub[:, 1], degree)])
     y = np.concatenate([data.p_z, data.b_z])
     fixed = np.r_[np.zeros(data.n, bool), np.ones(len(data.b_z), bool)]
-    coef, w, scale = robust_lstsq(A, y, fixed=fixed, scale_floor=max(scale_floor_m, PICK_SIGMA_FLOOR_M))
+    coef, w, scale = robust_lstsq(A, y, fixed=fixed, scale_floor=max(scale_floor_m, PICK_SIGMA_FLOOR_M),
+                                  coverage=1.0 - TRIM_FRACTION)
     N = (A * w[:, None]).T @ A
     cov = scale ** 2 * np.linalg.pinv(N)
     return _Poly(degree, coef, cov, scale, {"method": "robust (LTS concentration + biweight)"})
@@ -1214,10 +1215,19 @@ class _Surface:
 
     def param_se(self, x, y):
         """Standard error of the surface itself from its parameters, inflated by the design
-        effect ``sqrt(n / segments)``: neighbouring picks share their errors, so the data hold
-        about as much independent information as there are contact segments (Kish 1965). For
-        the spline, ``noise · sqrt(edf / segments)`` at most the noise (the average leverage
-        ``edf / n`` of a linear smoother, Hastie & Tibshirani 1990, with the same effect)."""
+        effect ``sqrt(m)``, ``m`` the number of picks that share one error (those within one
+        correlation length along a contact; Kish 1965, the design effect of cluster samples
+        with highly correlated members). For the spline, ``noise · sqrt(edf · m / n)``, at
+        most the noise (the average leverage ``edf / n`` of a linear smoother, Hastie &
+        Tibshirani 1990, with the same effect).
+
+        References
+        ----------
+        Kish, L. (1965). *Survey Sampling*. Wiley, New York.
+
+        Hastie, T. J. & Tibshirani, R. J. (1990). *Generalized Additive Models*. Chapman &
+        Hall, London.
+        """
         u, v = self._uv(x, y)
         if isinstance(self.core, _Poly):
             se = self.core.param_se_u(u, v)
@@ -1238,8 +1248,10 @@ class _Surface:
         growth with distance from data, times the calibration factor."""
         if self.growth is not None:
             g = self.growth
-            return g.kappa * np.sqrt(self.param_se(x, y) ** 2 +
-                                     g.excess_variance(self.distance(x, y)))
+            # the calibration factor scales the growth fitted against the stated errors; the
+            # parameter part comes from the fit's own residuals and is never scaled down
+            return np.sqrt((max(g.kappa, 1.0) * self.param_se(x, y)) ** 2 +
+                           g.kappa ** 2 * g.excess_variance(self.distance(x, y)))
         if isinstance(self.core, _Poly):
             return self.base_se(x, y)
         rmse, dcv = self.se_cv
@@ -1659,7 +1671,8 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
                 orientations=None, orientation_sigma_deg=DEFAULT_ORIENTATION_SIGMA_DEG,
                 orientation_footprint_m: float | None = None, groups=None,
                 smoothing="gcv", n_folds: int = 5, selection: str = "data_error",
-                data_sigma_m=None, block_m: float | None = None,
+                data_sigma_m=None, error_correlation_m: float | None = None,
+                block_m: float | None = None,
                 check_block_m: float | None = None,
                 cross_validate_model: bool = True, max_points: int = 2000,
                 thin_cell_m: float | None = None, thin_by_group: bool = False,
@@ -1705,6 +1718,10 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
     data_sigma_m : float or array_like, optional
         Stated standard error of the picks (metres; one number or one per pick): the error
         the model choice judges the scores against.
+    error_correlation_m : float, optional
+        Distance along the contacts over which pick errors are shared
+        (:func:`strikeline.crossval.residual_correlation_m`); the parameter part of the
+        standard error is inflated by the design effect ``sqrt(1 + correlation / spacing)``.
     block_m : float, optional
         Side of the square blocks that made ``groups`` (recorded; sets the misfit check's
         blocks).
@@ -1830,7 +1847,15 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
     # absorb a mistrace it is checked against
     kinds = MODELS if (model == "auto" or cross_validate_model) else (model,)
     sigma_stated = _stated_sigma(data_sigma_m, len(np.asarray(xyz)))
-    pps = 1.0  # picks per independent contact segment (set with the folds below)
+    # picks that share one error: those within one correlation length along a contact
+    pps = 1.0
+    if error_correlation_m and len(xyz) >= 2:
+        p0 = np.asarray(xyz, dtype=float)[:, :2]
+        p0 = p0[np.all(np.isfinite(p0), axis=1)]
+        nn = cKDTree(p0).query(p0, k=2)[0][:, 1]
+        nn = nn[nn > 0]
+        if len(nn):
+            pps = 1.0 + float(error_correlation_m) / float(np.median(nn))
     folds = None
     if model == "auto" or cross_validate_model or smoothing == "kfold":
         labels = thinned.groups
@@ -1840,7 +1865,7 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
                                     block_m=block_m)
         if len(np.unique(labels)) >= 2:
             folds = make_folds(labels, n_folds=n_folds, seed=seed)
-            pps = max(1.0, data.n / len(np.unique(labels)))
+
     if folds is None and (model == "auto" or smoothing == "kfold"):
         raise InputError(f"model={model!r} with smoothing={smoothing!r} needs cross-validation, "
                          f"but the {data.n} picks fall into fewer than two groups or blocks; "
@@ -2026,7 +2051,9 @@ class _Holdout:
     Two checkerboards of blocks of side ``side``, the second shifted by half a block; each
     colour of each board is one fit without the picks of that colour (up to 8 fits). A point
     takes the fit whose held-out block it lies deepest inside, so the nearest training data
-    lie at least a quarter of a block away whatever a mistrace or fault near it does.
+    lie at least a quarter of a block away whatever a mistrace or fault near it does; for the
+    spline only a fit whose training data surround it (inside their convex hull): its forecast
+    beyond the data is an extrapolation the check cannot judge, and the point stays unchecked.
     """
 
     def __init__(self, origin, side, surfaces):
@@ -2048,11 +2075,23 @@ class _Holdout:
         y = np.asarray(y, float).reshape(-1)
         c0, d0 = self.cells(x, y, 0)
         c1, d1 = self.cells(x, y, 1)
+        # a spline fit only judges points inside the hull of its training data: beyond it (at
+        # the edge of the mapped ground) its forecast is an extrapolation, whose error the
+        # held-out picks never measured (a polynomial's parameter error grows with distance and
+        # covers it); such points take the other board, or stay unchecked (NaN)
+        inside = [np.zeros(len(x), bool), np.zeros(len(x), bool)]
+        for (b, c), s in self.surfaces.items():
+            m = (c0 if b == 0 else c1) == c
+            if m.any():
+                inside[b][m] = (s.hull.distance(x[m], y[m]) <= 0.0) if s.kind == "spline" else True
+        d0 = np.where(inside[0], d0, -1.0)
+        d1 = np.where(inside[1], d1, -1.0)
         board = np.where(d1 > d0, 1, 0)
         colour = np.where(board == 1, c1, c0)
+        usable = np.maximum(d0, d1) >= 0
         z, se, gx, gy = (np.full(len(x), np.nan) for _ in range(4))
         for (b, c), s in self.surfaces.items():
-            m = (board == b) & (colour == c)
+            m = usable & (board == b) & (colour == c)
             if not m.any():
                 continue
             z[m] = s.value(x[m], y[m])

@@ -346,11 +346,12 @@ def test_spline_standard_error_grows_with_distance_as_documented(fold):
     x = np.array([1500.0, 1500.0, 1500.0])
     y = np.array([1500.0, 1700.0, FOLD_EXTENT_M + 2000.0])
     d = m.distance_to_data(x, y)
-    # the documented formula: kappa * sqrt(param² + excess (d/d_ref)^alpha), where the spline's
+    # the documented formula: sqrt((max(kappa, 1) param)² + kappa² excess (d/d_ref)^alpha), where the spline's
     # parameter part is its noise times sqrt(min(1, edf / segments)), at most the noise σ̂
     param = m._surface.param_se(x, y)
     assert np.all(param <= s + 1e-12)
-    ref = g.kappa * np.sqrt(param ** 2 + g.excess_m2 * (d / g.distance_ref_m) ** g.alpha)
+    ref = np.sqrt((max(g.kappa, 1.0) * param) ** 2
+                  + g.kappa ** 2 * g.excess_m2 * (d / g.distance_ref_m) ** g.alpha)
     np.testing.assert_allclose(m.standard_error(x, y), ref, rtol=1e-12)
     assert 0.5 <= g.alpha <= 2.0 and g.kappa > 0
     order = np.argsort(d)

@@ -146,8 +146,10 @@ def report(results, out, stream=sys.stdout) -> None:
         print(f"trace misfit: not computed ({tm.get('note', 'no trace')})", file=stream)
     if "contact_misfit" in s:
         cm = s["contact_misfit"]
+        unchecked = cm.get("n_unchecked", 0)
         print(f"contact segments flagged ({cm['check']['flag_rule']}, each against the surface forecast "
-              f"without it): {cm['n_flagged']} of {cm['n_segments']}", file=stream)
+              f"without it): {cm['n_flagged']} of {cm['n_segments']}"
+              + (f"; {unchecked} not checked ({cm['unchecked_reason']})" if unchecked else ""), file=stream)
     if "map_units" in s:
         mu, c = s["map_units"], s["map_units"]["check"]
         worst = "" if not c["n_violated"] else f", by at most {c['max_violation_m']:.2f} m (layer unit_conflicts)"

@@ -7,7 +7,6 @@
 """
 from __future__ import annotations
 
-import time
 
 import pytest
 from osgeo import gdal, ogr
@@ -195,13 +194,11 @@ def test_cancelled_whole_chain_leaves_no_output(run, sheet, tmp_path, at):
     outs.update({k: str(tmp_path / f"{k.lower()}.gpkg")
                  for k in ("PICKS", "STRUCTURE_CONTOURS", "PREDICTED_TRACE", "CONTACT_MISFIT", "ATTITUDES")})
     fb = cancelling_feedback(at)
-    t0 = time.perf_counter()
     with pytest.raises(QgsProcessingException, match="cancelled"):
         run("modelcontact", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"],
                              "CONTOURS": sheet["contours_uri"], "ELEV_FIELD": "elev_m", "MODEL": 1,
                              "RESAMPLES": 100, "SUMMARY": str(tmp_path / "summary.json"), **outs}, feedback=fb)
-    assert fb.isCanceled()
-    assert time.perf_counter() - t0 < 10.0
+    assert fb.isCanceled()  # (how fast it stops is a benchmark matter, not a test's: no wall clock here)
     assert sorted(p.name for p in tmp_path.iterdir()) == []
 
 
