@@ -53,6 +53,8 @@ bench: setup
 	$(VPY) bench/bench_local_coverage.py
 	$(VPY) bench/bench_surfaces.py
 	$(VPY) bench/bench_run.py
+	$(VPY) bench/bench_recovery.py
+	$(VPY) bench/bench_units.py
 
 clean:
 	rm -rf $(VENV) .venv-qgis dist demo-output .pytest_cache build *.egg-info algorithms/*.egg-info

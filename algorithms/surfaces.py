@@ -1942,6 +1942,11 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
             check_kind = check_choice.chosen
         except UndeterminedError:
             pass
+    if model == "auto" and check_choice is not None:
+        # one choice for the surface and its check: on the trimmed scores, with plane and trend2
+        # scored by robust refits, so that a mistraced stretch or a faulted block does not push
+        # the choice onto a model flexible enough to follow it
+        choice, chosen = check_choice, check_choice.chosen
     _check_cancel(is_cancelled, "surface fitting")
     surface = _fit_kind(chosen, data, smoothing=smoothing, lam=lam, taper_m=taper_m)
     surface.hull, surface.tree = hull, tree
