@@ -623,7 +623,18 @@ def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples:
         out.update(dip_direction=None, strike_rhr=None, dip_direction_true=None, dip_direction_ci95=None,
                    horizontal=(f"horizontal within its 95% confidence: dip {plane.dip_deg:.2g}{ci} deg does "
                                "not differ from 0, so the plane has no dip direction or strike"))
+    elif out["quality"] == "good" and out["dip_direction_ci95"] is not None \
+            and out["dip_direction_ci95"] >= POOR_DIRECTION_DEG:
+        # a dip direction known only to a quadrant or worse is not a good attitude
+        out.update(quality="weak",
+                   reason=f"the dip direction is poorly fixed (+/- {out['dip_direction_ci95']:.0f} deg at 95%); "
+                          + out["reason"],
+                   advice="more relief along the contact, or a dip reading, fixes the direction")
     return out
+
+
+#: A dip direction whose 95% half-width reaches this many degrees makes a plane at best 'weak'.
+POOR_DIRECTION_DEG = 45.0
 
 
 def surface_grid(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet) -> Grid:

@@ -121,3 +121,15 @@ def test_summary_of_the_choice_names_scores_block_and_reason(plane_run):
     assert s["holdout_block_m"] > 0 and s["check_block_m"] >= s["holdout_block_m"]
     assert s["choice"]["rule"] == "data_error" and s["choice"]["reason"]
     assert s["error_growth"]["kappa"] > 0
+
+
+def test_a_plane_whose_dip_direction_is_poorly_fixed_is_not_rated_good():
+    from strikeline.pipeline import attitude_of
+    # 40 scattered picks on a plane dipping 0.5 deg east with 3.4 m noise: the dip differs from 0,
+    # but its direction is known only to +/- 180 deg at 95 % -- not a good attitude (common practice)
+    rng = np.random.default_rng(5)
+    x, y = rng.uniform(-300, 300, 40), rng.uniform(-300, 300, 40)
+    z = 100 - np.tan(np.radians(0.5)) * x + rng.normal(0, 3.4, 40)
+    out = attitude_of(np.c_[x, y, z], np.full(40, 3.4), crs_wkt="EPSG:32631", what="t", strict=False)
+    assert out["dip_significant"] and out["dip_direction_ci95"] >= 45.0
+    assert out["quality"] == "weak" and "poorly fixed" in out["reason"]
