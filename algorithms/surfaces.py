@@ -690,26 +690,14 @@ def _fit_poly(degree, data: _Data, kind) -> _Poly:
 
 
 def _fit_poly_robust(degree, data: _Data, scale_floor_m: float, *, max_iter: int = 50) -> _Poly:
-    """Plane or quadratic trend fitted robustly, for the misfit check only.
+    """Plane or quadratic trend fitted robustly, for scoring and the misfit check only.
 
     A mistraced stretch or a faulted block pulls a least-squares surface towards itself and
-    so hides from a check against that surface. Here the surface is first found by
-    concentration steps of least trimmed squares (refit to the half of the data with the
-    smallest residuals until the half no longer changes; Rousseeuw & Van Driessen 2006),
-    then polished by iteratively reweighted least squares with Tukey's biweight (Beaton &
-    Tukey 1974), the scale being the median absolute deviation (never below
-    ``scale_floor_m``, the stated pick error). Boreholes are rows of full weight; dip
-    measurements are not used. Not used for the mapped surface itself.
-
-    References
-    ----------
-    Beaton, A. E. & Tukey, J. W. (1974). The fitting of power series, meaning polynomials,
-    illustrated on band-spectroscopic data. *Technometrics*, 16(2), 147–185.
-    https://doi.org/10.1080/00401706.1974.10489171
-
-    Rousseeuw, P. J. & Van Driessen, K. (2006). Computing LTS regression for large data sets.
-    *Data Mining and Knowledge Discovery*, 12(1), 29–45.
-    https://doi.org/10.1007/s10618-005-0024-4
+    so hides from a check against that surface. This fits the picks (and boreholes, rows of
+    full weight; dip measurements are not used) with :func:`strikeline.fitting.robust_lstsq`
+    — least trimmed squares covering 75 % of the rows, then Tukey's biweight, the scale never
+    below ``scale_floor_m`` (the stated pick error); the methods and their references are
+    there. Not used for the mapped surface itself.
     """
     up, ub = data.u(data.p_xy), data.u(data.b_xy)
     A = np.vstack([_basis(up[:, 0], up[:, 1], degree), _basis(ub[:, 0], ub[:, 1], degree)])
