@@ -33,8 +33,10 @@ def add_parser(sub) -> argparse.ArgumentParser:
 
     m = p.add_argument_group("surface model")
     m.add_argument("--model", choices=pl.MODELS, default="auto",
-                   help="plane, quadratic trend (trend2), thin-plate spline, or auto: the best by "
-                        "cross-validation on held-out contact segments (default auto)")
+                   help="plane, quadratic trend (trend2), thin-plate spline, or auto (default): cross-validation on "
+                        "held-out contact segments, keeping the simplest model within the larger of its standard "
+                        "error and the stated pick error of the best, unless a chi-square test says its residuals "
+                        "far exceed the stated errors; the reason is printed")
     m.add_argument("--boreholes", metavar="PATH", help="point layer of boreholes that reach the surface")
     m.add_argument("--boreholes-layer", metavar="NAME")
     m.add_argument("--borehole-z-field", metavar="NAME", help="field with the surface's elevation in each hole")
@@ -72,7 +74,9 @@ def add_parser(sub) -> argparse.ArgumentParser:
     a.add_argument("--dem-sigma", type=non_negative, default=pl.DEFAULT_DEM_SIGMA_M, metavar="METRES",
                    dest="dem_sigma_m",
                    help=f"vertical standard error of DEM picks (default {pl.DEFAULT_DEM_SIGMA_M:g}: a typical "
-                        "stated accuracy of 5-25 m national DEMs)")
+                        "stated accuracy of 5-25 m national DEMs; give your DEM's, e.g. 0.2 for lidar). With "
+                        "--contact-sigma and --contour-sigma it sets the model choice's tolerance, the misfit "
+                        "check's threshold and the confidence intervals")
     a.add_argument("--contour-sigma", type=non_negative, default=pl.DEFAULT_CONTOUR_SIGMA_M, metavar="METRES",
                    dest="contour_sigma_m",
                    help=f"positional standard error of contour picks, turned vertical through the ground "
