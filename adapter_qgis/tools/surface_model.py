@@ -35,8 +35,8 @@ from ..styles import attach_style
 #: Surface models in enum order: (library name, label).
 METHODS = (("plane", "Best-fit plane (total least squares)"),
            ("trend2", "Quadratic trend surface"),
-           ("spline", "Thin-plate smoothing spline (GCV)"),
-           ("auto", "Choose by cross-validation (simplest within one standard error)"))
+           ("spline", "Thin-plate smoothing spline"),
+           ("auto", "Choose by cross-validation (simplest within the stated pick error of the best)"))
 
 REF_SPLINE = ("Duchon, J. (1977). Splines minimizing rotation-invariant semi-norms in Sobolev spaces. "
               "Lect. Notes Math. 571, 85–100. doi:10.1007/BFb0086566; Wahba, G. (1990). "
@@ -68,8 +68,10 @@ class SurfaceModel(StrikelineAlgorithm):
         "directions are from grid north of that CRS.")
     METHOD = (
         "Plane: total least squares. Quadratic trend: weighted least squares. Spline: thin-plate "
-        "smoothing spline with the smoothing chosen by generalized cross-validation. Choose: grouped "
-        "k-fold cross-validation of all three, the simplest within one standard error of the best. "
+        "smoothing spline with the smoothing chosen by blocked cross-validation. Choose: cross-validation "
+        "of all three on held-out contact segments (blocks sized from the map and from the correlation of "
+        "the picks' errors), the simplest within the larger of its standard error and the stated pick error "
+        "of the best, unless a chi-square test says its residuals far exceed the stated errors. "
         "Boreholes enter as observations and inequality constraints (least squares with inequality "
         "constraints); dip measurements as slope observations. Outside the data's convex hull the "
         "trend and spline relax smoothly to the plane.")

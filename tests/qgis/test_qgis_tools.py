@@ -625,6 +625,7 @@ def test_whole_chain_with_boreholes_dips_groups_and_top(run, sheet, library, tmp
         "BOREHOLE_DEPTH_FIELD": "depth_m",
         "ORIENTATIONS": f"{d / 'orientations.gpkg'}|layername=dip_readings",
         "TOP_CONTACTS": f"{d / 'top_contacts.gpkg'}|layername=top_contacts", **QUICK_TOOL,
+        "CONTACT_SIGMA": 1.5,
         "PICKS": TMP, "STRUCTURE_CONTOURS": TMP, "SURFACE": TMP, "DIP": TMP, "DIP_DIRECTION": TMP,
         "VERTICAL_THICKNESS": TMP, "TRUE_THICKNESS": TMP, "TOP_PICKS": TMP,
         "SUMMARY": str(tmp_path / "summary.json")})
@@ -636,9 +637,11 @@ def test_whole_chain_with_boreholes_dips_groups_and_top(run, sheet, library, tmp
                       contours=sheet["contours"], elev_field="elev_m", group_by="block",
                       boreholes=str(d / "boreholes.gpkg"), borehole_collar_field="collar_m",
                       borehole_depth_field="depth_m", orientations=str(d / "orientations.gpkg"),
-                      top_contacts=str(d / "top_contacts.gpkg"), model="plane", resamples=100)
+                      top_contacts=str(d / "top_contacts.gpkg"), model="plane", resamples=100,
+                      contact_sigma_m=1.5)
     r = compute(load_inputs(opts), opts)
     summary = json.loads((tmp_path / "summary.json").read_text())
+    assert summary["data_error"]["contact_sigma_m"] == 1.5  # the QGIS parameter reached the library
     assert summary == json.loads(json.dumps(r.summary))
     assert set(summary["groups"]["planes"]) == set(r.summary["groups"]["planes"]) and len(summary["groups"]["planes"]) > 1
     for key, arr in (("SURFACE", r.surface), ("VERTICAL_THICKNESS", r.vertical_thickness_m),
