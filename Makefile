@@ -51,6 +51,7 @@ bench: setup
 	$(VPY) bench/bench_dipgrids.py
 	$(VPY) bench/bench_attitudes.py
 	$(VPY) bench/bench_local_coverage.py
+	$(VPY) bench/bench_thinning.py
 	$(VPY) bench/bench_surfaces.py
 	$(VPY) bench/bench_run.py
 	$(VPY) bench/bench_recovery.py

@@ -108,11 +108,10 @@ def thickness_from_outcrop_width(width_m, dip_deg, *, ground_slope_deg=0.0, slop
     :math:`t = w\\,|\\sin(\\delta - \\sigma)|` when it slopes with the dip (the absolute value
     covers ground steeper than the dip). A horizontal width ``h`` is first turned into the slope
     distance :math:`w = h / \\cos\\sigma`. These are the textbook relations for a section
-    perpendicular to strike (Ragan 2009; Rowland et al. 2007; both from memory; the same
-    relations, and the rule that a horizontal bed's thickness is the elevation difference of its
-    contacts, are set out in the GY403 Structural Geology lab lecture "Thickness and depth
-    problems", https://studylib.net/doc/5702699/thickness-and-depth-problems-lab-lecture). The thickness grows with the angle :math:`\\delta \\pm \\sigma` between ground and
-    bedding in the section; where that angle is 0 the width says nothing about the thickness:
+    perpendicular to strike (Ragan 2009; Rowland et al. 2007; both from memory), which also give
+    the rule that a horizontal bed's thickness is the elevation difference of its contacts. The
+    thickness grows with the angle :math:`\\delta \\pm \\sigma` between ground and bedding in
+    the section; where that angle is 0 the width says nothing about the thickness:
     for a horizontal bed the thickness is the difference in elevation between its top and base
     contacts, and on a dip slope it must be measured between points on the top and the base
     (:func:`thickness_between_points`) or in a borehole.

@@ -118,7 +118,7 @@ def test_common_practice_250_m_at_26_degrees_is_about_110_m(run):
      ["--slope-sense with-dip", "dip slope", "parallel to the bedding"]),
 ])
 def test_outcrop_width_parallel_to_the_bedding_is_refused(run, args, words):
-    # Source: Ragan (2009, from memory) and GY403 lab notes on thickness problems: t = w sin(dip)
+    # Source: Ragan (2009) and Rowland et al. (2007), both from memory: t = w sin(dip)
     # on flat ground and w sin(dip - slope) on ground sloping with the dip are 0 for any width
     # where ground and bedding are parallel, so the width gives no thickness (it printed 0.000 m).
     proc = run("thickness", "outcrop", "--width-m", 100, *args)

@@ -44,13 +44,17 @@ def runs(tmp_path_factory, units_gpkg):
 def test_summary_reports_the_constraints_and_what_still_breaks_them(runs):
     _, out, proc = runs
     s = json.loads((out / "summary.json").read_text())["map_units"]
+    # Source: the unit polygons written by tests/unit_polygons.py from the fold sheet's analytic
+    # truth (test_data/fold/truth.json) -- the upper unit Cawl, the lower Brenlow, cover Alluvium
     assert s["units_above"] == ["Cawl"] and s["units_below"] == ["Brenlow"]
     assert s["units_ignored"] == ["Alluvium"]
     assert s["n_points"] == s["n_above"] + s["n_below"] and s["n_above"] > 100 and s["n_below"] > 100
-    assert s["n_points"] <= 2000
+    assert s["n_points"] <= 2000  # Source: the documented cap of strikeline.units.unit_bounds
     c = s["check"]
     assert c["n_points"] > 2 * s["n_points"]  # checked on a denser lattice than it was fitted on
     # the spline honours the units: at most a few check points between constraint points broken
+    # (1 %: common practice for a tolerance on a lattice check; the fitted points are exact to
+    # scipy's trust-constr in tests/test_units.py)
     assert c["share_violated"] <= 0.01
     ds = ogr.Open(str(out / "results.gpkg"))  # kept: a layer must not outlive its data set
     lyr = ds.GetLayerByName("unit_conflicts")
@@ -66,7 +70,7 @@ def test_the_surface_honours_the_units_on_the_grid(runs):
     dem, gt, _ = _dem()
     r, c = np.mgrid[0:dem.shape[0], 0:dem.shape[1]]
     X, Y = gt[0] + (c + 0.5) * gt[1], gt[3] + (r + 0.5) * gt[5]
-    truth = _fold_z(X, Y)
+    truth = _fold_z(X, Y)  # Source: the fold sheet's analytic surface (test_data/fold/truth.json)
     errs = {}
     for name, folder in (("free", free), ("units", out)):
         ds = gdal.Open(str(folder / "surface.tif"))  # kept while its band is read
@@ -79,7 +83,8 @@ def test_the_surface_honours_the_units_on_the_grid(runs):
 
 
 def test_reprojected_units_are_used(tmp_path):
-    units = _write_units(tmp_path / "units_etrs.gpkg", epsg=25830)  # ETRS89 / UTM 30N
+    # Source: EPSG registry -- 25830 is ETRS89 / UTM zone 30N; the reprojection is GDAL/PROJ's
+    units = _write_units(tmp_path / "units_etrs.gpkg", epsg=25830)
     proc = _run(tmp_path / "out", "--map-units", units, *UNIT_OPTS)
     assert proc.returncode == 0, proc.stderr
     assert "reprojecting map units" in proc.stderr

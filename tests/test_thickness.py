@@ -99,10 +99,10 @@ def test_sloping_ground_matches_projection_on_the_normal(sense, dip, slope):
     (63.5, 63.5, "with_dip", "dip slope"),
 ])
 def test_outcrop_width_refused_where_the_ground_parallels_the_bedding(dip, slope, sense, words):
-    # Source: GY403 Structural Geology lab notes, "Thickness and depth problems" (t = w sin(dip +
-    # slope) against the dip, w sin(dip - slope) with it; a horizontal bed's contacts follow the
-    # topographic contours and its thickness is the elevation difference of its contacts) and
-    # Ragan (2009, from memory): sin(dip -/+ slope) = 0 where ground and bedding are parallel, so
+    # Source: Ragan (2009) and Rowland et al. (2007), both from memory (t = w sin(dip + slope)
+    # against the dip, w sin(dip - slope) with it; a horizontal bed's contacts follow the
+    # topographic contours and its thickness is the elevation difference of its contacts):
+    # sin(dip -/+ slope) = 0 where ground and bedding are parallel, so
     # any width would give 0 m - the width says nothing about the thickness there.
     assert not outcrop_width_gives_thickness(dip, ground_slope_deg=slope, slope_sense=sense)
     with pytest.raises(InputError, match=f"cannot give a thickness in this geometry: .*{words}"):

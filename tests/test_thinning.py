@@ -5,8 +5,6 @@ reference, the plane-preserving property of centroids, groups, and 100,000 clust
 """
 from __future__ import annotations
 
-import time
-
 import numpy as np
 import pytest
 from scipy.stats import binned_statistic_2d
@@ -110,14 +108,12 @@ def test_few_picks_are_not_thinned_and_non_finite_rows_are_dropped():
     assert t.index.tolist() == [0, -1, 1]
 
 
-def test_100k_clustered_picks_thin_fast_to_at_most_max_points():
+def test_100k_clustered_picks_thin_to_at_most_max_points():
+    # (its speed is measured by bench/bench_thinning.py, not asserted here)
     rng = np.random.default_rng(5)
     p = _clustered_lines(100_000, rng)
-    start = time.perf_counter()
     t = thin_picks(p, max_points=2000)
-    seconds = time.perf_counter() - start
     assert 1000 <= len(t) <= 2000  # near the target: the bisection stops at the boundary
-    assert seconds < 2.0
     assert t.counts.sum() == len(p)
     # every pick lies in the cell of its representative
     cell = t.cell_m
