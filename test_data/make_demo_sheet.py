@@ -435,12 +435,8 @@ def write_dem(path, sheet, dem, srs):
     ds = None
 
 
-def write_features(path, layer_name, srs, geom_type, fields, records):
-    """Write shapely geometries with attributes to a fresh GeoPackage (one layer)."""
-    if path.exists():
-        path.unlink()
-    drv = ogr.GetDriverByName("GPKG")
-    ds = drv.CreateDataSource(str(path))
+def write_layer(ds, layer_name, srs, geom_type, fields, records):
+    """Add one layer of shapely geometries with attributes to an open GeoPackage."""
     layer = ds.CreateLayer(layer_name, srs, geom_type, options=["FID=fid", "GEOMETRY_NAME=geom"])
     for name, kind in fields:
         layer.CreateField(ogr.FieldDefn(name, kind))
@@ -452,6 +448,15 @@ def write_features(path, layer_name, srs, geom_type, fields, records):
         feat.SetGeometry(ogr.CreateGeometryFromWkb(shapely.to_wkb(geom, output_dimension=2)))
         layer.CreateFeature(feat)
     layer.CommitTransaction()
+
+
+def write_features(path, layer_name, srs, geom_type, fields, records):
+    """Write shapely geometries with attributes to a fresh GeoPackage (one layer)."""
+    if path.exists():
+        path.unlink()
+    drv = ogr.GetDriverByName("GPKG")
+    ds = drv.CreateDataSource(str(path))
+    write_layer(ds, layer_name, srs, geom_type, fields, records)
     ds = None
 
 

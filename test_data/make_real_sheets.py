@@ -48,7 +48,7 @@ from osgeo import gdal, ogr, osr
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 import real_truth  # noqa: E402
 # The smooth sideways error and the ramped slip are the demo sheet's (one definition).
-from make_demo_sheet import ramp_offset, smooth_gaussian_series  # noqa: E402
+from make_demo_sheet import ramp_offset, smooth_gaussian_series, write_layer  # noqa: E402
 
 gdal.UseExceptions()
 ogr.UseExceptions()
@@ -371,20 +371,6 @@ def digitise_pieces(pieces, rng, spec, frame, *, mistrace=None):
 
 
 # ================================================================ writers
-def write_layer(ds, name, srs, geom_type, fields, records):
-    layer = ds.CreateLayer(name, srs, geom_type, options=["FID=fid", "GEOMETRY_NAME=geom"])
-    for fname, kind in fields:
-        layer.CreateField(ogr.FieldDefn(fname, kind))
-    layer.StartTransaction()
-    for geom, attrs in records:
-        feat = ogr.Feature(layer.GetLayerDefn())
-        for fname, value in attrs.items():
-            feat.SetField(fname, value)
-        feat.SetGeometry(ogr.CreateGeometryFromWkb(shapely.to_wkb(geom, output_dimension=2)))
-        layer.CreateFeature(feat)
-    layer.CommitTransaction()
-
-
 def write_gpkg(path, srs, layers):
     """A fresh GeoPackage with ``layers``: (name, geometry type, fields, records), in order."""
     if path.exists():
