@@ -1875,70 +1875,56 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
         except UndeterminedError:
             lam = None  # the spline's CV below reports why
 
+    def fitted(kind, sub):
+        """The model ``kind`` fitted to ``sub``, with the stated noise and shared-error count."""
+        s = _fit_kind(kind, sub, smoothing=smoothing, lam=lam, taper_m=taper_m)
+        s.noise_floor_m, s.picks_per_segment = sigma_stated or 0.0, pps
+        return s
+
     scores: dict[str, CVScore] = {}
     base_se: dict[str, np.ndarray] = {}
+    # the misfit check's model, and auto's: the simplest the data support when plane and
+    # trend2 are also scored robustly (a mistraced stretch or a faulted block then counts
+    # against them only where it lies), so that a blunder cannot push the choice onto a model
+    # flexible enough to absorb it
+    check_scores: dict[str, CVScore] = {}
+    check_base: dict[str, np.ndarray] = {}
     if folds is not None and (model == "auto" or cross_validate_model):
-        p3 = np.column_stack([data.p_xy, data.p_z])
         for kind in kinds:
-            base_se[kind] = np.full(data.n, np.nan)
-
-            def fit_predict(train, test, kind=kind):
-                s = _fit_kind(kind, data.picks(train), smoothing=smoothing, lam=lam,
-                              taper_m=taper_m)
-                s.noise_floor_m, s.picks_per_segment = sigma_stated or 0.0, pps
-                x, y = data.p_xy[test, 0], data.p_xy[test, 1]
-                base_se[kind][test] = s.base_se(x, y)
-                return s.value(x, y)
-            scores[kind] = cross_validate(fit_predict, p3, folds, fixed_xy=data.fixed_xy(),
-                                          groups=labels, progress=sub_progress,
-                                          is_cancelled=is_cancelled)
+            scores[kind], base_se[kind] = _score_fits(
+                lambda sub, kind=kind: fitted(kind, sub), data, folds, groups=labels,
+                progress=sub_progress, is_cancelled=is_cancelled)
             done[0] += 1
-    # the misfit check's model: the simplest the data support when plane and trend2 are also
-    # scored robustly (a mistraced stretch or a faulted block then counts against them only
-    # where it lies), so that a blunder cannot push the check onto a model flexible enough
-    # to absorb it
-    check_scores, check_base = dict(scores), dict(base_se)
-    if folds is not None and (model == "auto" or cross_validate_model):
-        p3 = np.column_stack([data.p_xy, data.p_z])
+        check_scores, check_base = dict(scores), dict(base_se)
         for kind in ("plane", "trend2"):
-            if kind not in scores or not np.isfinite(scores[kind].rmse_m):
-                continue
-            check_base[kind] = np.full(data.n, np.nan)
-
-            def fit_predict_robust(train, test, kind=kind):
-                s = _robust_surface(kind, data.picks(train), sigma_stated, taper_m, pps)
-                x, y = data.p_xy[test, 0], data.p_xy[test, 1]
-                check_base[kind][test] = s.base_se(x, y)
-                return s.value(x, y)
-            check_scores[kind] = cross_validate(fit_predict_robust, p3, folds,
-                                                fixed_xy=data.fixed_xy(), groups=labels,
-                                                is_cancelled=is_cancelled)
-    choice = None
-    if model == "auto" or any(np.isfinite(sc.rmse_m) for sc in scores.values()):
-        try:
-            choice = choose_model(scores, order=MODELS, rule=selection, sigma_m=sigma_stated,
-                                  robust=True)
-        except UndeterminedError:
-            if model == "auto":
-                raise
-    chosen = choice.chosen if model == "auto" else model
-    check_kind, check_choice = chosen, None
+            if kind in scores and np.isfinite(scores[kind].rmse_m):
+                check_scores[kind], check_base[kind] = _score_fits(
+                    lambda sub, kind=kind: _robust_surface(kind, sub, sigma_stated, taper_m, pps),
+                    data, folds, groups=labels, is_cancelled=is_cancelled)
+    check_choice = None
     if check_scores:
         try:
             check_choice = choose_model(check_scores, order=MODELS, rule=selection,
                                         sigma_m=sigma_stated, robust=True)
-            check_kind = check_choice.chosen
         except UndeterminedError:
-            pass
-    if model == "auto" and check_choice is not None:
-        # one choice for the surface and its check: on the trimmed scores, with plane and trend2
-        # scored by robust refits, so that a mistraced stretch or a faulted block does not push
-        # the choice onto a model flexible enough to follow it
+            if model == "auto":
+                raise
+    if model == "auto":
+        # one choice for the surface and its check
         choice, chosen = check_choice, check_choice.chosen
+    else:
+        chosen = model
+        choice = None  # what auto would choose from the least-squares scores, for the record
+        if any(np.isfinite(sc.rmse_m) for sc in scores.values()):
+            try:
+                choice = choose_model(scores, order=MODELS, rule=selection, sigma_m=sigma_stated,
+                                      robust=True)
+            except UndeterminedError:
+                pass
+    check_kind = check_choice.chosen if check_choice is not None else chosen
     _check_cancel(is_cancelled, "surface fitting")
-    surface = _fit_kind(chosen, data, smoothing=smoothing, lam=lam, taper_m=taper_m)
+    surface = fitted(chosen, data)
     surface.hull, surface.tree = hull, tree
-    surface.noise_floor_m, surface.picks_per_segment = sigma_stated or 0.0, pps
     score = scores.get(chosen)
     if chosen == "spline":
         if score is not None and np.isfinite(score.rmse_m):
@@ -1959,18 +1945,9 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
         coarse = segment_groups(data.p_xy[:, 0], data.p_xy[:, 1], np.zeros(data.n),
                                 block_m=coarse_m)
         if len(np.unique(coarse)) >= 2:
-            cfolds = make_folds(coarse, n_folds=n_folds, seed=seed)
-            cbase = np.full(data.n, np.nan)
-
-            def fit_predict_coarse(train, test):
-                s = _fit_kind(chosen, data.picks(train), smoothing=smoothing, lam=lam,
-                              taper_m=taper_m)
-                s.noise_floor_m, s.picks_per_segment = sigma_stated or 0.0, pps
-                x, y = data.p_xy[test, 0], data.p_xy[test, 1]
-                cbase[test] = s.base_se(x, y)
-                return s.value(x, y)
-            cs = cross_validate(fit_predict_coarse, np.column_stack([data.p_xy, data.p_z]),
-                                cfolds, fixed_xy=data.fixed_xy(), is_cancelled=is_cancelled)
+            cs, cbase = _score_fits(lambda sub: fitted(chosen, sub), data,
+                                    make_folds(coarse, n_folds=n_folds, seed=seed),
+                                    is_cancelled=is_cancelled)
             if np.isfinite(cs.rmse_m):
                 errs.append(cs.errors_m), dists.append(cs.distances_m), bases.append(cbase)
         growth = fit_error_growth(np.concatenate(errs), np.concatenate(dists),
@@ -2018,6 +1995,22 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
         n_groups=0 if score is None else int(score.n_groups),
         _holdout=holdout,
     )
+
+
+def _score_fits(fit, data: _Data, folds, *, groups=None, progress=None, is_cancelled=None):
+    """Cross-validate the surfaces ``fit(training data)`` makes: the :class:`CVScore` and each
+    fit's own standard error at the picks it predicted (for the growth of error with distance)."""
+    base = np.full(data.n, np.nan)
+
+    def fit_predict(train, test):
+        s = fit(data.picks(train))
+        x, y = data.p_xy[test, 0], data.p_xy[test, 1]
+        base[test] = s.base_se(x, y)
+        return s.value(x, y)
+    score = cross_validate(fit_predict, np.column_stack([data.p_xy, data.p_z]), folds,
+                           fixed_xy=data.fixed_xy(), groups=groups, progress=progress,
+                           is_cancelled=is_cancelled)
+    return score, base
 
 
 def _stated_sigma(data_sigma_m, n):
