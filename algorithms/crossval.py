@@ -276,10 +276,10 @@ def residual_correlation_m(xyz, contact_id=None, *, trend=None, sigma_m=None,
 
     Digitising errors are shared by neighbouring picks along a mapped line; a hold-out block
     shorter than their correlation lets a flexible model predict a held-out pick from its
-    neighbours' errors and look better than it is. This fits a plane to the picks by least
-    squares, robustly (:func:`strikeline.fitting.robust_lstsq`, so that a faulted block or a
-    mistraced stretch does not tilt it; vertical residuals), walks each contact in pick order (picks as taken along the
-    line) and estimates the semivariogram of the residuals along the line robustly,
+    neighbours' errors and look better than it is. This takes the residuals of ``trend`` or
+    else of a plane fitted robustly (:func:`strikeline.fitting.robust_lstsq`, so that a
+    faulted block or a mistraced stretch does not tilt it; vertical residuals), walks each
+    contact in pick order (picks as taken along the line) and estimates the semivariogram of the residuals along the line robustly,
     ``γ(h) = median((r_{i+h} − r_i)²) / (2 · 0.4549)``, against the robust variance
     ``median((r − median r)²) / 0.4549`` as sill (medians, so that a mistraced stretch or a
     fault — a few large, locally shared residuals — does not stretch the estimate). It
@@ -556,9 +556,10 @@ def choose_model(scores: Mapping[str, CVScore], *, order: Sequence[str],
     Chi-square test of a model against the stated error: under the hypothesis that the
     model is right and the pick errors have standard deviation ``σ``, ``T = ν · RMSE² / σ²``
     follows a chi-square distribution with ``ν`` degrees of freedom (Bevington & Robinson
-    2003, ch. 11). The mean square is estimated robustly, ``median(e²) / 0.4549`` (the median
-    of a chi-square variable with one degree of freedom), so that a mistraced stretch — a
-    few gross errors — does not condemn a model that fits everything else. ``ν`` counts held-out groups, not picks, because errors along a contact
+    2003, ch. 11). The mean square is estimated robustly, as the trimmed mean square of
+    :func:`trimmed_mean_square` (the largest quarter of the errors left out), so that a
+    mistraced stretch — a minority of gross errors — does not condemn a model that fits
+    everything else. ``ν`` counts held-out groups, not picks, because errors along a contact
     segment are shared; the test rejects at level ``CHI2_ALPHA``, i.e. when
     ``T > χ²_{1−α}(ν)`` (``scipy.special.chdtri``). A model that fails it, when a more
     flexible model passes, is not kept: its residuals exceed the stated errors many times
@@ -596,8 +597,9 @@ def choose_model(scores: Mapping[str, CVScore], *, order: Sequence[str],
         raise UndeterminedError(f"no surface model could be cross-validated ({reasons}); "
                                 "add picks, or fit a single model without cross-validation")
     err = "trimmed cross-validation error" if robust else "cross-validation error"
+    trimmed = {m: _trimmed_rms(scores[m]) for m in finite}
     if robust:
-        scores = {m: _robust_score(scores[m]) for m in finite}
+        scores = {m: _with_rmse(scores[m], trimmed[m]) for m in finite}
     best = min(finite, key=lambda m: scores[m].rmse_m)
     rb = scores[best].rmse_m
     se = scores[best].se_m if np.isfinite(scores[best].se_m) else 0.0
@@ -619,12 +621,9 @@ def choose_model(scores: Mapping[str, CVScore], *, order: Sequence[str],
     if rule_used == "data_error":
         crit = float(chdtri(nu, CHI2_ALPHA))
         for m in finite:
-            e = np.asarray(scores[m].errors_m, dtype=float)
-            e = e[np.isfinite(e)]
-            robust_ms = trimmed_mean_square(e) if len(e) else scores[m].rmse_m ** 2
-            t = nu * robust_ms / float(sigma_m) ** 2
+            t = nu * trimmed[m] ** 2 / float(sigma_m) ** 2
             chi2[m] = {"statistic": float(t), "critical": crit, "consistent": bool(t <= crit),
-                       "trimmed_rms_m": float(np.sqrt(robust_ms))}
+                       "trimmed_rms_m": float(trimmed[m])}
     what = ("the larger of its standard error and the stated pick error"
             if rule_used == "data_error" else "one standard error")
     if chosen == best:
@@ -652,16 +651,18 @@ def choose_model(scores: Mapping[str, CVScore], *, order: Sequence[str],
                        float(sigma_m), nu, chi2, words + tail)
 
 
-def _robust_score(score: CVScore) -> CVScore:
-    """The score with its RMSE replaced by the trimmed RMS of its errors."""
+def _trimmed_rms(score: CVScore) -> float:
+    """The trimmed RMS of a score's held-out errors (its RMSE when it has none)."""
     e = np.asarray(score.errors_m, dtype=float)
     e = e[np.isfinite(e)]
-    if not len(e):
-        return score
-    r = float(np.sqrt(trimmed_mean_square(e)))
-    return CVScore(r, score.fold_rmse_m, score.se_m * r / score.rmse_m if score.rmse_m > 0 else
-                   score.se_m, score.n_held_out, score.distance_m, score.errors_m, score.reason,
-                   score.distances_m, score.n_groups)
+    return float(np.sqrt(trimmed_mean_square(e))) if len(e) else float(score.rmse_m)
+
+
+def _with_rmse(score: CVScore, rmse: float) -> CVScore:
+    """The score with another RMSE (its standard error scaled alike)."""
+    se = score.se_m * rmse / score.rmse_m if score.rmse_m > 0 else score.se_m
+    return CVScore(rmse, score.fold_rmse_m, se, score.n_held_out, score.distance_m, score.errors_m,
+                   score.reason, score.distances_m, score.n_groups)
 
 
 #: Share of the largest errors a trimmed score leaves out: enough for a mistraced stretch or a
