@@ -28,7 +28,7 @@ from qgis.core import (
 from qgis.PyQt.QtCore import QVariant
 
 from strikeline.errors import CancelledError, InputError
-from strikeline.grid import Grid
+from strikeline.geometry.grid import Grid
 from strikeline.io.crs import srs_from_wkt
 from strikeline.io.raster import raster_from_array, read_raster
 from strikeline.io.vector import VectorLayer, layer_from_wkb
@@ -112,7 +112,7 @@ def read_vector(source: QgsProcessingFeatureSource, name: LayerName, *, geometry
     The features (with every attribute) travel as WKB into
     :func:`strikeline.io.vector.layer_from_wkb`, which makes the checks of the command line's
     reader: a layer without features, a CRS that is not projected in metres, the wrong geometry
-    family. Reprojection is the library's too (:func:`strikeline.pipeline.assemble_inputs`).
+    family. Reprojection is the library's too (:func:`strikeline.pipeline.core.assemble_inputs`).
 
     Parameters
     ----------

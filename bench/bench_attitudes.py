@@ -3,8 +3,8 @@
 Workload: 50,000 picks on a synthetic gently folded surface over a 10 km square (picks strung
 along 100 meandering contacts, 1 m vertical noise). Times
 
-* :func:`strikeline.uncertainty.bootstrap_plane` with 1,000 resamples (target under 2 s), and
-* :func:`strikeline.local.local_attitudes` with a 500 m window (target under 5 s),
+* :func:`strikeline.attitude.confidence.bootstrap_plane` with 1,000 resamples (target under 2 s), and
+* :func:`strikeline.attitude.local.local_attitudes` with a 500 m window (target under 5 s),
 
 best of ``--repeat`` runs, and prints the figures.
 
@@ -17,8 +17,8 @@ import time
 
 import numpy as np
 
-from strikeline.local import local_attitudes
-from strikeline.uncertainty import bootstrap_plane
+from strikeline.attitude.local import local_attitudes
+from strikeline.attitude.confidence import bootstrap_plane
 
 N_PICKS = 50_000
 N_CONTACTS = 100

@@ -6,7 +6,7 @@ nodata patch) in a temporary directory, then in the same run:
 * times the command-line programs ``gdaldem slope`` and ``gdaldem aspect`` (gdal-bin) on that
   file, via subprocess: wall time of each program, i.e. reading the GeoTIFF, computing and
   writing its GeoTIFF;
-* times ``strikeline.grids.dip_grids`` on the array already in memory: computation only,
+* times ``strikeline.maps.dipgrids.dip_grids`` on the array already in memory: computation only,
   no reading or writing (the read time of the same file through GDAL is printed separately);
 * as a compute-only cross-check, times GDAL's own slope + aspect in-process
   (``gdal.DEMProcessing`` into MEM rasters);
@@ -35,8 +35,8 @@ import tracemalloc
 import numpy as np
 from osgeo import gdal
 
-from strikeline.grid import Grid
-from strikeline.grids import dip_grids
+from strikeline.geometry.grid import Grid
+from strikeline.maps.dipgrids import dip_grids
 
 NODATA = -99999.0
 CELL_M = 10.0

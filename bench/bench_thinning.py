@@ -1,4 +1,4 @@
-"""Thinning 100,000 clustered picks to at most 2,000 representatives (strikeline.thinning).
+"""Thinning 100,000 clustered picks to at most 2,000 representatives (strikeline.picks.thinning).
 
 Workload: 100 random-walk lines of 1,000 picks each (5 m steps) on a 10 km sheet, the same
 picks as ``tests/test_thinning.py``. Prints the time of ``thin_picks`` (best and median of 5)
@@ -14,7 +14,7 @@ import time
 import numpy as np
 from scipy.stats import binned_statistic_2d
 
-from strikeline.thinning import thin_picks
+from strikeline.picks.thinning import thin_picks
 
 
 def clustered_lines(n, rng, sheet=10_000.0, n_lines=100):

@@ -6,8 +6,7 @@ from pathlib import Path
 
 ALGORITHMS = Path(__file__).resolve().parents[1] / "algorithms"
 # The numerical modules (common practice of this project's design card: no I/O in them).
-NUMERICAL = ["orientation", "fitting", "grid", "errors", "picks", "grids", "trace", "geodesy",
-             "uncertainty", "diagnostics", "local", "thickness", "surfaces", "crossval", "thinning", "units"]
+NUMERICAL = ["errors", "geometry", "picks", "attitude", "stats", "surfaces", "maps"]
 
 
 def _imports(path):

@@ -2,16 +2,16 @@
 
 References: the conventions are common practice (right-hand rule, upward normals, dip direction
 clockwise from north); the apparent-dip law tan(a) = tan(d) sin(b) is the published formula cited
-in strikeline.orientation (Ragan 2009); numpy.linalg.svd is the reference for the TLS normal.
+in strikeline.geometry.orientation (Ragan 2009); numpy.linalg.svd is the reference for the TLS normal.
 """
 import numpy as np
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from strikeline.fitting import fit_plane
-from strikeline.orientation import (apparent_dip, dip_direction_from_strike, dip_from_normal,
+from strikeline.attitude.fitting import fit_plane
+from strikeline.geometry.orientation import (apparent_dip, dip_direction_from_strike, dip_from_normal,
                                     normal_from_dip, strike_from_dip_direction)
-from strikeline.thickness import thickness_from_outcrop_width, vertical_thickness
+from strikeline.maps.thickness import thickness_from_outcrop_width, vertical_thickness
 
 dip_directions = st.floats(0.0, 359.999, allow_nan=False)
 dips = st.floats(0.5, 89.0, allow_nan=False)

@@ -3,7 +3,7 @@ from __future__ import annotations
 
 from qgis.core import QgsProcessingParameterRasterDestination, QgsProcessingParameterRasterLayer
 
-from strikeline.grids import dip_grids
+from strikeline.maps.dipgrids import dip_grids
 
 from ..base import REF_ZT, StrikelineAlgorithm
 from ..inputs import read_dem

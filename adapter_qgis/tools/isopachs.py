@@ -13,7 +13,7 @@ from qgis.core import (
 )
 
 from strikeline.io.contours import contour_lines
-from strikeline.thickness import isopach_grids
+from strikeline.maps.thickness import isopach_grids
 
 from ..base import REF_GDAL_CONTOUR, REF_ZT, StrikelineAlgorithm
 from ..chain import require_same_grid

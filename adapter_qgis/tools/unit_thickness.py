@@ -20,8 +20,8 @@ from qgis.core import (
 from qgis.PyQt.QtCore import QVariant
 
 from strikeline.errors import InputError
-from strikeline.picks import sample_bilinear
-from strikeline.thickness import (
+from strikeline.picks.core import sample_bilinear
+from strikeline.maps.thickness import (
     SLOPE_SENSES,
     WIDTH_KINDS,
     outcrop_width_gives_thickness,

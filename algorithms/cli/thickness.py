@@ -10,7 +10,7 @@ Four cases, each a sub-command, with units in the option names:
 
 ``strikeline thickness --grids TOP.tif BASE.tif --out DIR`` is the same as ``grids``. Each case
 prints the result with the formula used and its reference; the maths is in
-:mod:`strikeline.thickness`.
+:mod:`strikeline.maps.thickness`.
 """
 from __future__ import annotations
 
@@ -131,7 +131,7 @@ def _say(*lines, stream=None) -> None:
 
 # --------------------------------------------------------------------------- cases from arguments
 def _outcrop(args) -> int:
-    from strikeline.thickness import thickness_from_outcrop_width, vertical_thickness
+    from strikeline.maps.thickness import thickness_from_outcrop_width, vertical_thickness
 
     slope = args.ground_slope_deg
     if slope > 0 and args.slope_sense is None:
@@ -173,8 +173,8 @@ def _outcrop(args) -> int:
 def _points(args) -> int:
     import numpy as np
 
-    from strikeline.orientation import normal_from_dip
-    from strikeline.thickness import thickness_between_points, vertical_thickness
+    from strikeline.geometry.orientation import normal_from_dip
+    from strikeline.maps.thickness import thickness_between_points, vertical_thickness
 
     top = np.array(args.top)
     base = np.array(args.base)
@@ -196,8 +196,8 @@ def _points(args) -> int:
 def _borehole(args) -> int:
     import numpy as np
 
-    from strikeline.orientation import normal_from_dip, vector_from_trend_plunge
-    from strikeline.thickness import thickness_from_borehole
+    from strikeline.geometry.orientation import normal_from_dip, vector_from_trend_plunge
+    from strikeline.maps.thickness import thickness_from_borehole
 
     t = float(thickness_from_borehole(args.length_m, args.hole_azimuth_deg, args.hole_plunge_deg,
                                       args.dip_direction_deg, args.dip_deg))
@@ -279,7 +279,7 @@ def grids(top_path: str, base_path: str, out: str, *, overwrite: bool = False, s
     import numpy as np
 
     from strikeline.io.raster import read_raster
-    from strikeline.thickness import isopach_grids
+    from strikeline.maps.thickness import isopach_grids
 
     out_path = _check_out_folder(out, overwrite, (top_path, base_path))
     top, gt = read_raster(top_path, label="top surface")

@@ -13,7 +13,7 @@ import shapely
 from osgeo import gdal, gdal_array, ogr
 
 from strikeline.errors import InputError, RasterReadError
-from strikeline.grid import Grid, check_grid_array
+from strikeline.geometry.grid import Grid, check_grid_array
 from strikeline.io._gdal import gdal_exceptions, gdal_message
 
 __all__ = ["contour_lines"]
@@ -127,7 +127,7 @@ def contour_lines(array, grid: Grid, *, interval_m=None, levels=None, base_m=0.0
     ----------
     array : ndarray, shape ``(rows, cols)``, float
         Values in metres (a modelled surface, a depth grid), NaN for nodata.
-    grid : strikeline.grid.Grid
+    grid : strikeline.geometry.grid.Grid
         Georeferencing of ``array`` (its shape must match).
     interval_m : float, optional
         Spacing of the levels: contours at ``base_m + k * interval_m`` for every integer ``k``
@@ -182,7 +182,7 @@ def contour_lines(array, grid: Grid, *, interval_m=None, levels=None, base_m=0.0
     Examples
     --------
     >>> import numpy as np
-    >>> from strikeline.grid import Grid, check_grid_array
+    >>> from strikeline.geometry.grid import Grid, check_grid_array
     >>> g = Grid((0.0, 10.0, 0.0, 100.0, 0.0, -10.0), (10, 10))
     >>> x, _ = g.mesh()
     >>> geoms, elev = contour_lines(x.copy(), g, interval_m=20.0)

@@ -1,7 +1,7 @@
 """Reading and writing rasters (GeoTIFF) through GDAL.
 
 Rasters come back as ``(array, grid)``: a float64 array with NaN for nodata and a
-:class:`strikeline.grid.Grid` carrying geotransform, CRS WKT and the band's nodata value.
+:class:`strikeline.geometry.grid.Grid` carrying geotransform, CRS WKT and the band's nodata value.
 """
 from __future__ import annotations
 
@@ -11,7 +11,7 @@ import numpy as np
 from osgeo import gdal
 
 from strikeline.errors import InputError, OutputError, RasterReadError
-from strikeline.grid import Grid
+from strikeline.geometry.grid import Grid
 from strikeline.io._gdal import gdal_exceptions, gdal_message
 from strikeline.io.crs import require_projected_metres, srs_from_wkt
 

@@ -1,6 +1,6 @@
 """The thickness tool through QGIS: the library's numbers, and the textbook values.
 
-# Source: strikeline library result as the reference (strikeline.thickness; the numerical truth is
+# Source: strikeline library result as the reference (strikeline.maps.thickness; the numerical truth is
 # tested in tests/test_thickness.py). External values:
 # Source: Ragan, D. M. (2009), Structural Geology, 4th ed., thickness on horizontal and sloping
 #   ground: t = w sin(dip) on level ground, t = w sin(dip + slope) for ground sloping against the dip.
@@ -16,7 +16,7 @@ from qgis.core import QgsFeature, QgsField, QgsGeometry, QgsProcessingException,
 from qgis.PyQt.QtCore import QVariant
 from qgis_helpers import bilinear_reference, table
 
-from strikeline.thickness import thickness_from_borehole, thickness_from_outcrop_width
+from strikeline.maps.thickness import thickness_from_borehole, thickness_from_outcrop_width
 
 pytestmark = pytest.mark.qgis
 
@@ -134,7 +134,7 @@ def test_wrong_field_type_and_missing_field(run):
 
 def test_isopachs_between_the_demo_top_and_base(run, sheet):
     from strikeline.io.raster import read_raster
-    from strikeline.thickness import isopach_grids
+    from strikeline.maps.thickness import isopach_grids
 
     d = sheet["dir"]
     surfaces = {}

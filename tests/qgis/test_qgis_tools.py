@@ -18,8 +18,8 @@ from qgis.core import (
 )
 from qgis_helpers import assert_same_lines, bilinear_reference, memory_copy, raster, table
 
-from strikeline.grid import Grid
-from strikeline.grids import depth_below_ground, dip_grids
+from strikeline.geometry.grid import Grid
+from strikeline.maps.dipgrids import depth_below_ground, dip_grids
 from strikeline.io.contours import contour_lines
 from strikeline.io.raster import read_raster
 
@@ -106,7 +106,7 @@ def test_dem_without_a_plain_file_is_read_through_qgis(run, sheet, reference, tm
 
 
 def test_selected_features_only(run, sheet, reference):
-    from strikeline.pipeline import RunOptions, collect_picks, load_inputs
+    from strikeline.pipeline.core import RunOptions, collect_picks, load_inputs
 
     contacts = memory_copy(sheet["contacts_uri"], "contacts")
     QgsProject.instance().addMapLayer(contacts)
@@ -152,7 +152,7 @@ PICK_SPACING_M = 25.0
 
 
 def test_pick_spacing_is_the_library_spacing(run, sheet):
-    from strikeline.pipeline import RunOptions, collect_picks, load_inputs
+    from strikeline.pipeline.core import RunOptions, collect_picks, load_inputs
 
     res = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"],
                                "PICK_SPACING": PICK_SPACING_M, "PICKS": TMP})
@@ -203,7 +203,7 @@ def test_plane_attitude_is_the_library_fit(run, sheet, reference, kind, tmp_path
 
 
 def test_plane_confidence_and_quality_are_the_library_ones(run, sheet, reference):
-    from strikeline.pipeline import attitude_of, segment_labels
+    from strikeline.pipeline.core import attitude_of, segment_labels
 
     picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "PICKS": TMP})["PICKS"]
     res = run("planeattitude", {"PICKS": picks, "RESAMPLES": 200, "SIGMA_Z": 0.5, "SEED": 3, "ATTITUDE": TMP})
@@ -275,7 +275,7 @@ def test_undetermined_quality_is_a_warning_in_the_log(run):
 
 
 def test_level_picks_give_a_horizontal_plane_without_direction(run):
-    from strikeline.pipeline import attitude_of
+    from strikeline.pipeline.core import attitude_of
 
     # Picks at one height (1 cm of scatter) spread over a square kilometre: only a horizontal
     # plane passes through them (common practice: a horizontal contact follows the contours).
@@ -298,7 +298,7 @@ def test_level_picks_give_a_horizontal_plane_without_direction(run):
 
 
 def test_local_attitudes_are_the_library_ones(run, sheet, reference):
-    from strikeline.local import local_attitudes
+    from strikeline.attitude.local import local_attitudes
 
     picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"],
                                  "CONTOURS": sheet["contours_uri"], "ELEV_FIELD": "elev_m", "PICKS": TMP})["PICKS"]
@@ -377,8 +377,8 @@ def contour_picks(sheet):
 
 @pytest.mark.parametrize("method,model", [(1, "trend2"), (2, "spline")])
 def test_surface_models_are_the_library_models(run, contour_picks, method, model):
-    from strikeline.picks import PickSet
-    from strikeline.pipeline import RunOptions, model_surface
+    from strikeline.picks.core import PickSet
+    from strikeline.pipeline.core import RunOptions, model_surface
 
     layer, xyz = contour_picks
     res = run("surfacemodel", {"PICKS": layer, "METHOD": method, "CELL": 50.0, "SURFACE": TMP,
@@ -408,8 +408,8 @@ def test_surface_models_are_the_library_models(run, contour_picks, method, model
 def test_surface_model_honours_a_borehole(run, contour_picks, sheet):
     from qgis.core import QgsFeature, QgsGeometry, QgsVectorLayer
 
-    from strikeline.picks import sample_bilinear
-    from strikeline.surfaces import fit_surface
+    from strikeline.picks.core import sample_bilinear
+    from strikeline.surfaces.core import fit_surface
 
     layer, xyz = contour_picks
     BOREHOLE = (488000.0, 5215000.0, 560.0)  # a drilled intersection of our own, off the plane
@@ -431,8 +431,8 @@ def test_surface_model_with_the_demo_boreholes_and_dips(run, contour_picks, shee
     """Boreholes by collar and depth fields and dip readings go through the library's own
     conversions (pipeline.borehole_points / orientation_rows), as in strikeline run."""
     from strikeline.io.vector import read_layer
-    from strikeline.picks import PickSet, sample_bilinear
-    from strikeline.pipeline import RunOptions, borehole_points, model_surface, orientation_rows
+    from strikeline.picks.core import PickSet, sample_bilinear
+    from strikeline.pipeline.core import RunOptions, borehole_points, model_surface, orientation_rows
 
     d = sheet["dir"]
     layer, xyz = contour_picks
@@ -557,8 +557,8 @@ def test_depth_trace_and_misfit(run, surface_tif, sheet, reference, kind):
     np.testing.assert_allclose(cols["distance_m"], shapely.distance(pts, trace), atol=1e-9)
     assert res["MISFIT_MEDIAN_M"] == pytest.approx(float(np.median(cols["distance_m"])), abs=1e-12)
     # Contact segments: the library's own segmentation against the same trace.
-    from strikeline.picks import sample_bilinear
-    from strikeline.trace import contact_misfit_segments
+    from strikeline.picks.core import sample_bilinear
+    from strikeline.maps.trace import contact_misfit_segments
 
     ref_contacts = reference[0].contacts
     seg = contact_misfit_segments(ref_contacts.geoms, ref_contacts.fids, ref_trace, segment_m=100.0, flag_m=30.0,
@@ -631,7 +631,7 @@ def test_whole_chain_with_boreholes_dips_groups_and_top(run, sheet, library, tmp
         "SUMMARY": str(tmp_path / "summary.json")})
     import json
 
-    from strikeline.pipeline import RunOptions, compute, load_inputs
+    from strikeline.pipeline.core import RunOptions, compute, load_inputs
 
     opts = RunOptions(contacts=str(d / "contacts_grouped.gpkg"), out="/nonexistent-out", dem=sheet["dem"],
                       contours=sheet["contours"], elev_field="elev_m", group_by="block",

@@ -1,0 +1,36 @@
+"""Surface models of a contact: data preparation, polynomial trends, the thin-plate spline,
+hull and taper, cross-validated model choice and map-unit constraints.
+"""
+from strikeline.surfaces.core import (  # noqa: F401
+    MODELS,
+    MODEL_CHOICES,
+    SMOOTHING_CHOICES,
+    DEFAULT_ORIENTATION_SIGMA_DEG,
+    MAX_DIP_DEG,
+    GRID_TOLERANCE_M,
+    REACH_PERCENTILE,
+    TAPER_FRACTION,
+    FALLBACK_PICK_SIGMA_M,
+    PICK_SIGMA_FLOOR_M,
+    tps_kernel,
+    distance_to_data,
+    MAX_ACTIVE_BOUNDS,
+    MAX_BOUND_ITERATIONS,
+    BOUND_PIN_SIGMA_M,
+    BOUND_TOLERANCE_M,
+    GridEvaluation,
+    SurfaceModel,
+    fit_surface,
+    COARSE_HOLDOUT_FACTOR,
+    CHECK_BLOCK_FACTOR,
+)
+from strikeline.surfaces.units import (  # noqa: F401
+    UNIT_SIDES,
+    DEFAULT_MAX_POINTS,
+    MARGIN_CELLS,
+    MIN_SPACING_CELLS,
+    UnitBounds,
+    parse_unit_names,
+    unit_bounds,
+    bound_violation_m,
+)
