@@ -1,4 +1,4 @@
-"""Library calls that the single-step tools share, in the order :func:`strikeline.pipeline.core.compute`
+"""Library calls that the single-step tools share, in the order :func:`strikeline.pipeline.compute`
 makes them, so a step run on its own gives the numbers the whole chain gives.
 
 No numerical method lives here: each function strings together library functions for one
@@ -15,7 +15,7 @@ from strikeline.geometry.grid import Grid
 from strikeline.io.crs import same_crs, srs_from_wkt
 from strikeline.io.vector import VectorLayer
 from strikeline.picks.core import sample_bilinear
-from strikeline.pipeline.core import Inputs, RunOptions, surface_grid
+from strikeline.pipeline import Inputs, RunOptions, surface_grid
 from strikeline.maps.trace import split_lines_by_flag
 
 

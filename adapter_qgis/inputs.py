@@ -2,7 +2,7 @@
 
 The layers are read here (:mod:`.layers`); what makes them usable together - the checks on the
 named fields, one working CRS with the layers reprojected into it, borehole and dip-measurement
-points - is :func:`strikeline.pipeline.core.assemble_inputs`, the second half of the command line's
+points - is :func:`strikeline.pipeline.assemble_inputs`, the second half of the command line's
 ``load_inputs``. Its messages name the QGIS parameters (:func:`option_names`).
 """
 from __future__ import annotations
@@ -23,7 +23,7 @@ from qgis.core import (
 
 from strikeline.errors import InputError
 from strikeline.io.crs import srs_from_wkt
-from strikeline.pipeline.core import (CLI_OPTION_NAMES, DEFAULT_BOREHOLE_SIGMA_M, DEFAULT_ORIENTATION_SIGMA_DEG,
+from strikeline.pipeline import (CLI_OPTION_NAMES, DEFAULT_BOREHOLE_SIGMA_M, DEFAULT_ORIENTATION_SIGMA_DEG,
                                  Inputs, RunOptions, assemble_inputs, reproject_to)
 
 from .layers import raster_path, read_raster_layer, read_vector, vector_name
@@ -202,8 +202,8 @@ def read_contact_inputs(alg, parameters, context, steps, *, more: dict | None = 
     """Contacts, DEM and contours of a tool (and the layers ``more``, as for :func:`read_layers`)
     as the library's :class:`Inputs`, with the :class:`RunOptions` they were read with.
 
-    As :func:`strikeline.pipeline.core.load_inputs`: at least one topography, the layers read in the
-    command line's order, then :func:`strikeline.pipeline.core.assemble_inputs`. ``options`` are
+    As :func:`strikeline.pipeline.load_inputs`: at least one topography, the layers read in the
+    command line's order, then :func:`strikeline.pipeline.assemble_inputs`. ``options`` are
     further :class:`RunOptions` fields (the elevation field and pick spacing come from the
     parameters of :func:`add_contact_and_topography`).
     """

@@ -112,7 +112,7 @@ def read_vector(source: QgsProcessingFeatureSource, name: LayerName, *, geometry
     The features (with every attribute) travel as WKB into
     :func:`strikeline.io.vector.layer_from_wkb`, which makes the checks of the command line's
     reader: a layer without features, a CRS that is not projected in metres, the wrong geometry
-    family. Reprojection is the library's too (:func:`strikeline.pipeline.core.assemble_inputs`).
+    family. Reprojection is the library's too (:func:`strikeline.pipeline.assemble_inputs`).
 
     Parameters
     ----------

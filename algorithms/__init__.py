@@ -3,7 +3,7 @@
 The numerical modules (:mod:`strikeline.geometry.orientation`, :mod:`strikeline.attitude.fitting`,
 :mod:`strikeline.picks.core`, :mod:`strikeline.maps.dipgrids`, ...) take and return numpy arrays and
 shapely geometries and do no I/O. :mod:`strikeline.io` is the only place that talks to
-GDAL/OGR; :mod:`strikeline.pipeline.core` chains the steps; :mod:`strikeline.cli` is the command line.
+GDAL/OGR; :mod:`strikeline.pipeline` chains the steps; :mod:`strikeline.cli` is the command line.
 """
 from strikeline._version import __version__
 

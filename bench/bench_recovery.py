@@ -47,7 +47,7 @@ sys.path.insert(0, str(REPO / "test_data"))
 
 import real_truth  # noqa: E402
 
-from strikeline.pipeline.core import (RunOptions, attitude_of, collect_picks, contact_segments,  # noqa: E402
+from strikeline.pipeline import (RunOptions, attitude_of, collect_picks, contact_segments,  # noqa: E402
                                  depth_trace_misfit, load_inputs, map_unit_bounds, model_surface,
                                  pick_sigmas, surface_grid)
 from strikeline.maps.trace import vertex_spacing_m  # noqa: E402

@@ -3,7 +3,7 @@
 Builds, deterministically, a fictional 15 km x 15 km sheet in a temporary folder: a 3,000 x 3,000
 float32 DEM at 5 m cells (smooth hills and valleys of a few hundred metres relief), a planar
 dipping contact whose outcrop trace is drawn by GDAL's contour generator (the zero line of
-DEM - plane), and runs :func:`strikeline.pipeline.core.run` on it with ``--model auto``, timing each
+DEM - plane), and runs :func:`strikeline.pipeline.run` on it with ``--model auto``, timing each
 stage (read, picks, confidence, local attitudes, model, grids, contours, trace and misfit, write)
 and the peak resident memory. Prints the workload and the figures.
 

@@ -38,7 +38,7 @@ sys.path.insert(0, str(REPO / "test_data"))
 import real_truth  # noqa: E402
 
 from strikeline.errors import UndeterminedError  # noqa: E402
-from strikeline.pipeline.core import (RunOptions, collect_picks, load_inputs, map_unit_bounds,  # noqa: E402
+from strikeline.pipeline import (RunOptions, collect_picks, load_inputs, map_unit_bounds,  # noqa: E402
                                  map_unit_check, model_surface, pick_sigmas, surface_grid)
 from strikeline.maps.trace import vertex_spacing_m  # noqa: E402
 

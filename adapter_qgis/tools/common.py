@@ -5,7 +5,7 @@ import numpy as np
 import shapely
 from qgis.core import QgsWkbTypes
 
-from strikeline.pipeline.core import picks_layer
+from strikeline.pipeline import picks_layer
 
 from ..outputs import Table
 

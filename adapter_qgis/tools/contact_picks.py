@@ -3,7 +3,7 @@ from __future__ import annotations
 
 from qgis.core import QgsProcessing, QgsProcessingParameterFeatureSink
 
-from strikeline.pipeline.core import collect_picks
+from strikeline.pipeline import collect_picks
 
 from ..base import REF_PRESS, REF_STR, StrikelineAlgorithm
 from ..inputs import add_contact_and_topography, read_contact_inputs

@@ -14,7 +14,7 @@ from qgis.core import (
     QgsWkbTypes,
 )
 
-from strikeline.pipeline.core import depth_trace_misfit
+from strikeline.pipeline import depth_trace_misfit
 
 from ..base import REF_GDAL_CONTOUR, REF_PRESS, StrikelineAlgorithm
 from ..chain import raster_flag, require_same_grid

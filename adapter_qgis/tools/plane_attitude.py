@@ -14,7 +14,7 @@ from qgis.core import (
     QgsWkbTypes,
 )
 
-from strikeline.pipeline.core import attitude_of, segment_labels
+from strikeline.pipeline import attitude_of, segment_labels
 from strikeline.attitude.confidence import MIN_REPLICATES
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
@@ -57,7 +57,7 @@ def report_quality(steps, att: dict, what: str = "plane") -> None:
         steps.warn(f"{line}; {att['advice']}" if att.get("advice") else line)
 
 
-#: Output fields: (field, key of strikeline.pipeline.core.attitude_of's dict, numpy dtype).
+#: Output fields: (field, key of strikeline.pipeline.attitude_of's dict, numpy dtype).
 ATTITUDE_FIELDS = (("dip_deg", "dip", float), ("dip_direction_deg", "dip_direction", float),
                    ("strike_rhr_deg", "strike_rhr", float), ("dip_direction_true_deg", "dip_direction_true", float),
                    ("meridian_convergence_deg", "meridian_convergence_deg", float), ("rms_m", "rms_m", float),

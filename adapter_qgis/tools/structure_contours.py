@@ -12,7 +12,7 @@ from qgis.core import (
 )
 
 from strikeline.maps.dipgrids import depth_below_ground
-from strikeline.pipeline.core import structure_contours
+from strikeline.pipeline import structure_contours
 
 from ..base import REF_GDAL_CONTOUR, StrikelineAlgorithm
 from ..chain import raster_flag, require_same_grid, split_by_flags

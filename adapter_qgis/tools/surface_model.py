@@ -19,7 +19,7 @@ from qgis.core import (
 from strikeline.errors import InputError
 from strikeline.io.crs import same_crs, srs_from_wkt
 from strikeline.picks.core import SOURCES, PickSet
-from strikeline.pipeline.core import (RunOptions, borehole_points, map_unit_bounds, map_unit_check, map_unit_polygons,
+from strikeline.pipeline import (RunOptions, borehole_points, map_unit_bounds, map_unit_check, map_unit_polygons,
                                  model_surface, orientation_rows, reproject_to, unit_conflicts_layer)
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm

@@ -20,7 +20,7 @@ from qgis.core import (
 
 from strikeline import pipeline as pl
 from strikeline.io.files import write_json_atomic
-from strikeline.pipeline.core import compute
+from strikeline.pipeline import compute
 
 from ..base import REF_FERNANDEZ, REF_GDAL_CONTOUR, REF_PRESS, REF_STR, REF_ZT, StrikelineAlgorithm
 from ..inputs import (CONSTRAINT_LAYERS, CONTACTS, GROUP_BY, MAP_UNIT_LAYERS, add_contact_and_topography,

@@ -4,7 +4,7 @@ The points are any layer of points with elevations: the Z of Point Z geometries 
 ``picks`` layer of ``strikeline run``'s ``results.gpkg``) or a numeric field named with
 ``--z-field``. The plane is the total-least-squares fit, its 95% half-widths come from a
 bootstrap of the points (plus a Monte Carlo of ``--dem-sigma`` when it is given) and its
-quality from the eigenvalue shape measures; see :func:`strikeline.pipeline.core.attitude_of`.
+quality from the eigenvalue shape measures; see :func:`strikeline.pipeline.attitude_of`.
 
 Exit status: 0 when a verdict was reached, *including* ``undetermined`` (the verdict is the
 answer: the points cannot fix a plane, and the report says why and what data would help);
@@ -145,7 +145,7 @@ def compute(args, *, log=lambda m: print(m, file=sys.stderr)) -> dict:
     from strikeline import __version__
     from strikeline.io.crs import crs_label
     from strikeline.io.files import file_sha256, json_ready
-    from strikeline.pipeline.core import attitude_of, segment_labels
+    from strikeline.pipeline import attitude_of, segment_labels
 
     layer, xyz, labels, source, cid = load_points(args)
     usable = np.all(np.isfinite(xyz), axis=1)

@@ -26,7 +26,7 @@ def add_parser(sub) -> argparse.ArgumentParser:
 
 
 def demo_options(out, *, overwrite=False):
-    from strikeline.pipeline.core import RunOptions
+    from strikeline.pipeline import RunOptions
 
     d = demo_dir()
     if not (d / "dem.tif").exists():
@@ -43,7 +43,7 @@ def demo_options(out, *, overwrite=False):
 
 def main(args) -> int:
     from strikeline.cli.run import report
-    from strikeline.pipeline.core import run
+    from strikeline.pipeline import run
 
     opts = demo_options(args.out, overwrite=args.overwrite)
     results = run(opts, log=lambda m: print(m, file=sys.stderr))

@@ -107,7 +107,7 @@ OPTION_FIELDS = (
 
 
 def options_from_args(args):
-    from strikeline.pipeline.core import RunOptions
+    from strikeline.pipeline import RunOptions
 
     return RunOptions(**{k: getattr(args, k) for k in OPTION_FIELDS})
 
@@ -169,7 +169,7 @@ def report(results, out, stream=sys.stdout) -> None:
 
 
 def main(args) -> int:
-    from strikeline.pipeline.core import run
+    from strikeline.pipeline import run
 
     opts = options_from_args(args)
     results = run(opts, log=lambda m: print(m, file=sys.stderr))

@@ -105,7 +105,7 @@ QUICK = {"model": "plane", "resamples": 100}
 @pytest.fixture(scope="session")
 def library():
     """The library's own result for the demo sheet's inputs (the reference of these tests)."""
-    from strikeline.pipeline.core import RunOptions, compute, load_inputs
+    from strikeline.pipeline import RunOptions, compute, load_inputs
 
     def _lib(sheet, *, dem=True, contours=True, interval_m=50.0, cell_m=None, **options):
         opts = RunOptions(contacts=sheet["contacts"], out="/nonexistent-out", interval_m=interval_m,

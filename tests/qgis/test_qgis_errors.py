@@ -1,7 +1,7 @@
 """Bad input and cancellation through QGIS: the library's own message, and no output left behind.
 
 # Source: strikeline library result as the reference (the library's messages for the same files,
-# from strikeline.pipeline.core.load_inputs / strikeline.io); the numerical truth is tested in tests/.
+# from strikeline.pipeline.load_inputs / strikeline.io); the numerical truth is tested in tests/.
 # Source: EPSG:4326 is WGS 84 geographic (degrees) and EPSG:32631 is WGS 84 / UTM zone 31N, the
 # UTM zone of the demo sheet's centre (EPSG Geodetic Parameter Dataset).
 """
@@ -22,7 +22,7 @@ from qgis.core import (
 from qgis_helpers import memory_copy
 
 from strikeline.errors import StrikelineError
-from strikeline.pipeline.core import RunOptions, load_inputs
+from strikeline.pipeline import RunOptions, load_inputs
 
 pytestmark = pytest.mark.qgis
 

@@ -106,7 +106,7 @@ def test_dem_without_a_plain_file_is_read_through_qgis(run, sheet, reference, tm
 
 
 def test_selected_features_only(run, sheet, reference):
-    from strikeline.pipeline.core import RunOptions, collect_picks, load_inputs
+    from strikeline.pipeline import RunOptions, collect_picks, load_inputs
 
     contacts = memory_copy(sheet["contacts_uri"], "contacts")
     QgsProject.instance().addMapLayer(contacts)
@@ -152,7 +152,7 @@ PICK_SPACING_M = 25.0
 
 
 def test_pick_spacing_is_the_library_spacing(run, sheet):
-    from strikeline.pipeline.core import RunOptions, collect_picks, load_inputs
+    from strikeline.pipeline import RunOptions, collect_picks, load_inputs
 
     res = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"],
                                "PICK_SPACING": PICK_SPACING_M, "PICKS": TMP})
@@ -203,7 +203,7 @@ def test_plane_attitude_is_the_library_fit(run, sheet, reference, kind, tmp_path
 
 
 def test_plane_confidence_and_quality_are_the_library_ones(run, sheet, reference):
-    from strikeline.pipeline.core import attitude_of, segment_labels
+    from strikeline.pipeline import attitude_of, segment_labels
 
     picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "PICKS": TMP})["PICKS"]
     res = run("planeattitude", {"PICKS": picks, "RESAMPLES": 200, "SIGMA_Z": 0.5, "SEED": 3, "ATTITUDE": TMP})
@@ -275,7 +275,7 @@ def test_undetermined_quality_is_a_warning_in_the_log(run):
 
 
 def test_level_picks_give_a_horizontal_plane_without_direction(run):
-    from strikeline.pipeline.core import attitude_of
+    from strikeline.pipeline import attitude_of
 
     # Picks at one height (1 cm of scatter) spread over a square kilometre: only a horizontal
     # plane passes through them (common practice: a horizontal contact follows the contours).
@@ -378,7 +378,7 @@ def contour_picks(sheet):
 @pytest.mark.parametrize("method,model", [(1, "trend2"), (2, "spline")])
 def test_surface_models_are_the_library_models(run, contour_picks, method, model):
     from strikeline.picks.core import PickSet
-    from strikeline.pipeline.core import RunOptions, model_surface
+    from strikeline.pipeline import RunOptions, model_surface
 
     layer, xyz = contour_picks
     res = run("surfacemodel", {"PICKS": layer, "METHOD": method, "CELL": 50.0, "SURFACE": TMP,
@@ -432,7 +432,7 @@ def test_surface_model_with_the_demo_boreholes_and_dips(run, contour_picks, shee
     conversions (pipeline.borehole_points / orientation_rows), as in strikeline run."""
     from strikeline.io.vector import read_layer
     from strikeline.picks.core import PickSet, sample_bilinear
-    from strikeline.pipeline.core import RunOptions, borehole_points, model_surface, orientation_rows
+    from strikeline.pipeline import RunOptions, borehole_points, model_surface, orientation_rows
 
     d = sheet["dir"]
     layer, xyz = contour_picks
@@ -631,7 +631,7 @@ def test_whole_chain_with_boreholes_dips_groups_and_top(run, sheet, library, tmp
         "SUMMARY": str(tmp_path / "summary.json")})
     import json
 
-    from strikeline.pipeline.core import RunOptions, compute, load_inputs
+    from strikeline.pipeline import RunOptions, compute, load_inputs
 
     opts = RunOptions(contacts=str(d / "contacts_grouped.gpkg"), out="/nonexistent-out", dem=sheet["dem"],
                       contours=sheet["contours"], elev_field="elev_m", group_by="block",

@@ -1,8 +1,8 @@
 """The map's unit polygons through QGIS: the whole chain and the surface-model tool give the
 library's numbers, and bad unit parameters fail with the library's one-line message.
 
-# Source: strikeline library result as the reference (strikeline.pipeline.core.compute and
-# strikeline.pipeline.core.model_surface on the same files); the numerical truth of the constraints
+# Source: strikeline library result as the reference (strikeline.pipeline.compute and
+# strikeline.pipeline.model_surface on the same files); the numerical truth of the constraints
 # is tested in tests/test_units.py against scipy's trust-constr optimum.
 """
 from __future__ import annotations
@@ -40,7 +40,7 @@ def units(tmp_path_factory):
 
 @pytest.fixture(scope="module")
 def library_run(units):
-    from strikeline.pipeline.core import RunOptions, compute, load_inputs
+    from strikeline.pipeline import RunOptions, compute, load_inputs
 
     opts = RunOptions(contacts=str(FOLD / "contacts.gpkg"), dem=str(FOLD / "dem.tif"), out="/nonexistent-out",
                       model="spline", resamples=100, pick_spacing_m=PICK_SPACING_M,
@@ -73,7 +73,7 @@ def test_whole_chain_gives_the_librarys_constraints_and_surface(run, units, libr
 def picks_uri(library_run, tmp_path_factory):
     """The run's picks as a layer (what Contact elevation picks makes), by the library's writer."""
     from strikeline.io.vector import write_gpkg
-    from strikeline.pipeline.core import picks_layer
+    from strikeline.pipeline import picks_layer
 
     pk = tmp_path_factory.mktemp("picks") / "picks.gpkg"
     write_gpkg(pk, [picks_layer("picks", library_run.picks)], library_run.grid.crs_wkt)
@@ -84,7 +84,7 @@ def test_surface_model_tool_gives_the_librarys_constrained_surface(run, units, l
     from strikeline.io.raster import read_raster
     from strikeline.io.vector import read_layer
     from strikeline.picks.core import PickSet
-    from strikeline.pipeline.core import RunOptions, map_unit_bounds, map_unit_polygons, model_surface
+    from strikeline.pipeline import RunOptions, map_unit_bounds, map_unit_polygons, model_surface
 
     picks = library_run.picks
     res = run("surfacemodel", {"PICKS": picks_uri, "METHOD": 2, "REFERENCE": str(FOLD / "dem.tif"),

@@ -20,7 +20,7 @@ sys.path.insert(0, str(REPO / "test_data"))
 
 import real_truth  # noqa: E402
 
-from strikeline.pipeline.core import (RunOptions, collect_picks, depth_trace_misfit, load_inputs,  # noqa: E402
+from strikeline.pipeline import (RunOptions, collect_picks, depth_trace_misfit, load_inputs,  # noqa: E402
                                  model_surface, pick_sigmas, surface_grid)
 from strikeline.maps.trace import vertex_spacing_m  # noqa: E402
 
@@ -124,7 +124,7 @@ def test_summary_of_the_choice_names_scores_block_and_reason(plane_run):
 
 
 def test_a_plane_whose_dip_direction_is_poorly_fixed_is_not_rated_good():
-    from strikeline.pipeline.core import attitude_of
+    from strikeline.pipeline import attitude_of
     # 40 scattered picks on a plane dipping 0.5 deg east with 3.4 m noise: the dip differs from 0,
     # but its direction is known only to +/- 180 deg at 95 % -- not a good attitude (common practice)
     rng = np.random.default_rng(5)

@@ -1,0 +1,188 @@
+"""The chain in memory: from :class:`~strikeline.pipeline.inputs.Inputs` to :class:`Results`.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from strikeline.errors import CancelledError
+from strikeline.attitude.fitting import PlaneFit
+from strikeline.geometry.grid import Grid
+from strikeline.maps.dipgrids import dip_grids
+from strikeline.io.files import json_ready
+from strikeline.attitude.local import LocalAttitudes, fallback_window_m, local_attitudes
+from strikeline.picks.core import (PickSet)
+from strikeline.surfaces.core import SurfaceModel
+from strikeline.maps.thickness import isopach_grids
+from strikeline.maps.trace import (vertex_spacing_m)
+from strikeline.pipeline.inputs import Inputs
+from strikeline.pipeline.options import Log, RunOptions, _quiet
+from strikeline.pipeline.steps import attitude_of, collect_picks, contact_segments, depth_trace_misfit, fit_picks, log_model_choice, model_surface, pick_sigmas, structure_contours, surface_grid
+from strikeline.pipeline.summary import build_summary
+from strikeline.pipeline.units import map_unit_bounds, map_unit_check
+
+
+@dataclass
+class Results:
+    """Everything the chain computed (arrays, geometries and the summary)."""
+
+    picks: PickSet
+    plane: PlaneFit
+    grid: Grid
+    surface: np.ndarray
+    dip_deg: np.ndarray
+    dip_direction_deg: np.ndarray
+    depth_m: np.ndarray | None
+    contour_geoms: np.ndarray
+    contour_elevations_m: np.ndarray
+    trace_geoms: np.ndarray
+    summary: dict
+    model: SurfaceModel | None = None
+    uncertainty_m: np.ndarray | None = None
+    contour_extrapolated: np.ndarray | None = None
+    trace_extrapolated: np.ndarray | None = None
+    contact_misfit: dict | None = None
+    attitudes: LocalAttitudes | None = None
+    vertical_thickness_m: np.ndarray | None = None
+    true_thickness_m: np.ndarray | None = None
+    top_picks: PickSet | None = None
+    unit_check: dict | None = None  # map units: see map_unit_check
+
+
+def _no_thickness_reason(base_in, top_in, model, top_model) -> str:
+    """Why no grid cell gives a unit thickness: the two surfaces' reach of data never overlap."""
+    nb, nt, both = int(base_in.sum()), int(top_in.sum()), int((base_in & top_in).sum())
+    if both == 0:
+        return (f"no grid cell lies within reach of the data of both surfaces (base: {nb} cells within "
+                f"{model.reach_m:.0f} m of its picks, top: {nt} cells within {top_model.reach_m:.0f} m of "
+                "its picks, none in common), so the thickness grids there are extrapolations of one "
+                "surface or both; map the top and base contacts over the same ground, or measure the "
+                "thickness between two points or in a borehole (strikeline thickness)")
+    return (f"the {both} grid cells within reach of both surfaces hold no thickness (a surface has no "
+            "value there); check the grids' extent and the DEM's nodata")
+
+
+def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=None,
+            is_cancelled=None) -> Results:
+    """Run every step of the chain in memory."""
+    steps = 9.0
+
+    def step(k):
+        if is_cancelled is not None and is_cancelled():
+            raise CancelledError("cancelled; nothing was written")
+        if progress is not None:
+            progress(min(1.0, k / steps))
+
+    what = f"picks on contacts {inputs.contacts.what}"
+    picks = collect_picks(inputs, spacing_m=opts.pick_spacing_m, log=log, is_cancelled=is_cancelled)
+    step(1)
+    plane = fit_picks(picks, what=what)
+    sigma = pick_sigmas(inputs, picks, opts)
+    conf_opts = {"crs_wkt": inputs.crs_wkt, "resamples": opts.resamples, "seed": opts.seed,
+                 "is_cancelled": is_cancelled}
+    grid = surface_grid(inputs, opts, log=log)
+    spacing = vertex_spacing_m(inputs.contacts.geoms)
+    blocks = contact_segments(picks, cell_m=grid.cell_x_m, vertex_spacing_m=spacing)
+    plane_summary = attitude_of(picks.xyz, sigma, what=what, strict=True, blocks=blocks, **conf_opts)
+    if plane_summary["quality"] == "weak":
+        log(f"warning: the best-fit plane is weak - {plane_summary['reason']}; "
+            f"{plane_summary['advice']}")
+    groups = {}
+    if opts.group_by:
+        values = dict(zip(inputs.contacts.fids.tolist(), inputs.contacts.fields[opts.group_by].tolist()))
+        labels = np.array([str(values.get(int(c))) for c in picks.contact_id], dtype=object)
+        for g in sorted(set(labels.tolist())):
+            m = labels == g
+            groups[g] = attitude_of(picks.xyz[m], sigma[m], what=f"group {g}", strict=False, blocks=blocks[m],
+                                    **conf_opts)
+    step(2)
+    window, window_note = ((opts.window_m, "") if opts.window_m is not None
+                           else fallback_window_m(picks.xyz))
+    attitudes = None
+    if window_note:  # few picks: the plane was fitted, so the run goes on without the default window
+        log(f"warning: local attitudes: {window_note}")
+    if window is not None:
+        attitudes = local_attitudes(picks.xyz, window_m=window, contact_id=picks.contact_id,
+                                    sigma_z_m=sigma, seed=opts.seed, is_cancelled=is_cancelled)
+    step(3)
+    ub = None
+    if inputs.unit_polygons is not None:
+        ub = map_unit_bounds(inputs.unit_polygons, inputs.unit_names, inputs.dem, inputs.dem_grid, opts, log=log)
+    model = model_surface(picks, opts, grid, boreholes=inputs.boreholes_xyz, orientations=inputs.orientations,
+                          bounds=None if ub is None else ub.bounds,
+                          what=what, is_cancelled=is_cancelled, sigma=sigma, vertex_spacing_m=spacing)
+    log_model_choice(model, what="surface model", log=log)
+    unit_check = None if ub is None else map_unit_check(model, inputs.unit_polygons, inputs.unit_names, inputs.dem,
+                                                        inputs.dem_grid, opts, ub, log=log)
+    surface = model.evaluate_grid(grid, is_cancelled=is_cancelled)
+    uncertainty = model.standard_error_grid(grid, is_cancelled=is_cancelled)
+    step(4)
+    dip, dipdir = dip_grids(surface, grid, is_cancelled=is_cancelled)
+    step(5)
+    cparts, clevels, cflags = structure_contours(surface, grid, interval_m=opts.interval_m,
+                                                 extrapolated_fn=model.is_extrapolated)
+    step(6)
+    depth = None
+    trace = np.empty(0, dtype=object)
+    tflags = np.empty(0, dtype=bool)
+    misfit = {"median": None, "p90": None, "n_vertices": 0,
+              "note": "needs a DEM: the predicted trace is the zero line of depth below ground"}
+    segments = None
+    flag_m = None
+    if inputs.dem is not None:
+        f = depth_trace_misfit(inputs.dem, inputs.dem_grid, surface, inputs.contacts,
+                               extrapolated_fn=model.is_extrapolated, flag_m=opts.misfit_flag_m, model=model,
+                               dem_sigma_m=opts.dem_sigma_m, contact_sigma_m=opts.contact_sigma_m)
+        depth, trace, tflags = f["depth"], f["trace"], f["trace_extrapolated"]
+        misfit, segments, flag_m = f["misfit"], f["segments"], f["check"]
+    step(7)
+    vth = tth = top_picks = None
+    thickness = None
+    if inputs.top_contacts is not None:
+        twhat = f"picks on top contacts {inputs.top_contacts.what}"
+        top_picks = collect_picks(inputs, contacts=inputs.top_contacts, spacing_m=opts.pick_spacing_m, log=log,
+                                  is_cancelled=is_cancelled)
+        fit_picks(top_picks, what=twhat)
+        top_model = model_surface(top_picks, opts, grid, what=twhat, is_cancelled=is_cancelled,
+                                  sigma=pick_sigmas(inputs, top_picks, opts),
+                                  vertex_spacing_m=vertex_spacing_m(inputs.top_contacts.geoms))
+        log_model_choice(top_model, what="top surface model", log=log)
+        top_surface = top_model.evaluate_grid(grid, is_cancelled=is_cancelled)
+        vth, tth = isopach_grids(top_surface, surface, grid)
+        X, Y = grid.mesh()
+        base_in, top_in = ~model.is_extrapolated(X, Y), ~top_model.is_extrapolated(X, Y)
+        supported = base_in & top_in & np.isfinite(tth)
+        del X, Y
+        vals = tth[supported]
+        thickness = {
+            "top_model": top_model.kind,
+            "true_thickness_method": "vertical thickness x cos(local dip of the base surface)",
+            "n_cells": int(vals.size),
+            "mean_m": float(np.mean(vals)) if vals.size else None,
+            "std_m": float(np.std(vals)) if vals.size else None,
+            "p10_m": float(np.percentile(vals, 10)) if vals.size else None,
+            "p90_m": float(np.percentile(vals, 90)) if vals.size else None,
+            "note": "statistics over cells within reach of data of both surfaces",
+        }
+        if vals.size and np.mean(vals) < 0:
+            log("warning: the top contacts model lies below the base on average - check which "
+                "contact is the top (--top-contacts) and which the base (--contacts)")
+        if not vals.size:
+            thickness["note"] = thickness["reason"] = _no_thickness_reason(base_in, top_in, model, top_model)
+            log(f"warning: unit thickness not computed: {thickness['reason']}")
+    step(8)
+    summary = build_summary(inputs, opts, picks, plane_summary, misfit, n_contours=len(cparts),
+                            model=model, groups=groups, attitudes=attitudes, segments=segments,
+                            flag_m=flag_m, thickness=thickness, contour_flags=cflags, trace_flags=tflags,
+                            n_top_picks=None if top_picks is None else len(top_picks))
+    if unit_check is not None:
+        summary["map_units"] = json_ready(unit_check["summary"])
+    if window_note:
+        summary["attitudes"] = {**summary.get("attitudes", {"n": 0}), "note": window_note}
+    step(9)
+    return Results(picks, plane, grid, surface, dip, dipdir, depth, cparts, clevels, trace, summary,
+                   model=model, uncertainty_m=uncertainty, contour_extrapolated=cflags,
+                   trace_extrapolated=tflags, contact_misfit=segments, attitudes=attitudes,
+                   vertical_thickness_m=vth, true_thickness_m=tth, top_picks=top_picks,
+                   unit_check=unit_check)
