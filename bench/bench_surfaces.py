@@ -6,7 +6,7 @@ Workload (deterministic, fictional):
   ``z = 300 + 0.03 x − 0.01 y + 60 sin(2π y / 4,000) + 25 cos(2π x / 5,000)`` (metres);
 * 100,000 picks clustered along 160 meandering synthetic contact lines (a pick every ~6 m,
   like DEM sampling), with 1 m of Gaussian noise; each line is split into 1 km segments for
-  the cross-validation groups (:func:`strikeline.stats.crossval.segment_groups`);
+  the cross-validation groups (:func:`strikeline.stats.segment_groups`);
 * ``fit_surface(model='auto')``: thinning to 2,000 representatives, 5-fold grouped
   cross-validation of plane, trend2 and spline (GCV smoothing), refit of the chosen model;
 * ``evaluate_grid`` on a 2,000 x 2,000 grid of 5 m cells (coarse evaluation + bicubic
@@ -30,7 +30,7 @@ import time
 
 import numpy as np
 
-from strikeline.stats.crossval import segment_groups
+from strikeline.stats import segment_groups
 from strikeline.geometry.grid import Grid
 from strikeline.surfaces.core import fit_surface
 

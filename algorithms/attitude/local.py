@@ -17,7 +17,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.spatial import cKDTree
 
-from strikeline.stats.crossval import segment_groups
+from strikeline.stats import segment_groups
 from strikeline.attitude.quality import classify_planes, map_spread
 from strikeline.errors import InputError
 from strikeline.geometry.orientation import dip_from_normal, strike_from_dip_direction

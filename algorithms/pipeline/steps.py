@@ -7,7 +7,7 @@ from __future__ import annotations
 import numpy as np
 import shapely
 
-from strikeline.stats.crossval import holdout_block_m, residual_correlation_m, segment_groups
+from strikeline.stats import holdout_block_m, residual_correlation_m, segment_groups
 from strikeline.defaults import (DEFAULT_DEM_SIGMA_M,
                                  FLAG_CELLS, SEGMENT_CELLS,
                                  DEFAULT_CONTACT_SIGMA_M, MISFIT_Z)
@@ -193,7 +193,7 @@ def surface_grid(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet) -> Grid
 
 def contact_segments(picks: PickSet, *, cell_m: float, vertex_spacing_m: float = 0.0) -> np.ndarray:
     """Label of the contact segment of every pick: the part of one contact inside one square
-    block of :func:`strikeline.stats.crossval.holdout_block_m` (about the typical distance from the
+    block of :func:`strikeline.stats.holdout_block_m` (about the typical distance from the
     mapped ground to the nearest pick, at least two vertex spacings of the mapped lines and three
     cells). Used for cross-validation folds and for the block bootstrap, so that neighbouring
     picks, which share their errors, stay together."""
@@ -212,9 +212,9 @@ def segment_labels(xyz, contact_id, *, cell_m: float = 1.0, vertex_spacing_m: fl
 
 def segment_block_m(xyz, contact_id, *, cell_m: float, vertex_spacing_m: float = 0.0, trend=None,
                     sigma=None) -> float:
-    """Side of the contact-segment blocks (:func:`strikeline.stats.crossval.holdout_block_m`), with the
+    """Side of the contact-segment blocks (:func:`strikeline.stats.holdout_block_m`), with the
     correlation length of the picks' errors along the contacts
-    (:func:`strikeline.stats.crossval.residual_correlation_m`; residuals from a plane, or from
+    (:func:`strikeline.stats.residual_correlation_m`; residuals from a plane, or from
     ``trend``, the elevation of a smooth fit at each pick)."""
     xyz = np.asarray(xyz, dtype=float)
     return holdout_block_m(xyz[:, :2], vertex_spacing_m=vertex_spacing_m, cell_m=cell_m,

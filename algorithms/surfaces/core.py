@@ -19,7 +19,7 @@ Models
     k-fold cross-validation, or fixed. Without smoothing it interpolates the picks.
 ``'auto'``
     Fits all three, scores each by grouped k-fold cross-validation RMSE on held-out picks
-    (:mod:`strikeline.stats.crossval`) and keeps the simplest model within one standard error of the
+    (:mod:`strikeline.stats`) and keeps the simplest model within one standard error of the
     best (or the best, ``selection='min'``). Every score is kept in ``cv_rmse_m``.
 
 Pipeline of a fit
@@ -118,7 +118,7 @@ from scipy.optimize import minimize_scalar, nnls
 from scipy.spatial import ConvexHull, cKDTree
 from scipy.spatial import QhullError
 
-from strikeline.stats.crossval import (CVScore, ErrorGrowth, ModelChoice, SELECTION_RULES,
+from strikeline.stats import (CVScore, ErrorGrowth, ModelChoice, SELECTION_RULES,
                                  choose_model, cross_validate, fit_error_growth,
                                  gcv_from_spectrum, holdout_block_m, make_folds, TRIM_FRACTION,
                                  segment_groups)
@@ -1691,7 +1691,7 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
         thinned picks).
     groups : array_like, shape ``(n,)``, optional
         Cross-validation group of every pick (contact segment ids; see
-        :func:`strikeline.stats.crossval.segment_groups`). Default (or fewer than two labels):
+        :func:`strikeline.stats.segment_groups`). Default (or fewer than two labels):
         ``4 × n_folds`` square spatial blocks.
     smoothing : {'gcv', 'kfold', 'discrepancy'} or float, default 'gcv'
         Spline smoothing λ: ``'gcv'`` minimises V(λ) on each fit's picks (nested in every
@@ -1702,14 +1702,14 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
         λ ``>= 0`` in the normalised coordinates (``0`` interpolates).
     n_folds : int, default 5
     selection : {'data_error', 'one_se', 'min'}, default 'data_error'
-        Rule of ``model='auto'`` (:func:`strikeline.stats.crossval.choose_model`); ``'data_error'``
+        Rule of ``model='auto'`` (:func:`strikeline.stats.choose_model`); ``'data_error'``
         needs ``data_sigma_m`` and otherwise acts as ``'one_se'``.
     data_sigma_m : float or array_like, optional
         Stated standard error of the picks (metres; one number or one per pick): the error
         the model choice judges the scores against.
     error_correlation_m : float, optional
         Distance along the contacts over which pick errors are shared
-        (:func:`strikeline.stats.crossval.residual_correlation_m`); the parameter part of the
+        (:func:`strikeline.stats.residual_correlation_m`); the parameter part of the
         standard error is inflated by the design effect ``sqrt(1 + correlation / spacing)``.
     block_m : float, optional
         Side of the square blocks that made ``groups`` (recorded; sets the misfit check's
@@ -1717,7 +1717,7 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
     check_block_m : float, optional
         Side of the blocks the misfit check holds out
         (:meth:`SurfaceModel.holdout_prediction`); default ``CHECK_BLOCK_FACTOR`` times the
-        cross-validation block (:func:`strikeline.stats.crossval.holdout_block_m` of the picks when
+        cross-validation block (:func:`strikeline.stats.holdout_block_m` of the picks when
         ``groups`` are not given).
     cross_validate_model : bool, default True
         Cross-validate with a single (non-auto) model too: all three models are scored, for

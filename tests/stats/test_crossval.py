@@ -1,4 +1,4 @@
-"""Cross-validation and GCV (strikeline.stats.crossval, and the spline's smoothing choice).
+"""Cross-validation and GCV (strikeline.stats, and the spline's smoothing choice).
 
 Exact fold assignments on hand-made groups first; then the GCV function against the formula
 of Craven & Wahba (1979) computed directly from the influence matrix, and leave-one-out
@@ -9,7 +9,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from strikeline.stats.crossval import (CVScore, cross_validate, gcv_from_spectrum, make_folds,
+from strikeline.stats import (CVScore, cross_validate, gcv_from_spectrum, make_folds,
                                  segment_groups, select_model, spatial_block_groups)
 from strikeline.errors import InputError
 from strikeline.surfaces.core import fit_surface, tps_kernel
@@ -175,14 +175,14 @@ TWO_LINES_GAP_M = 100.0
 
 
 def test_typical_gap_between_two_parallel_lines_is_a_quarter_of_their_spacing():
-    from strikeline.stats.crossval import typical_gap_m
+    from strikeline.stats import typical_gap_m
     x = np.linspace(0, 2000, 801)
     xy = np.r_[np.c_[x, np.zeros_like(x)], np.c_[x, np.full_like(x, 400.0)]]
     assert typical_gap_m(xy) == pytest.approx(TWO_LINES_GAP_M, rel=0.05)
 
 
 def test_holdout_block_is_the_largest_of_gap_vertex_spacing_correlation_and_cells():
-    from strikeline.stats.crossval import holdout_block_m, typical_gap_m
+    from strikeline.stats import holdout_block_m, typical_gap_m
     x = np.linspace(0, 2000, 801)
     xy = np.r_[np.c_[x, np.zeros_like(x)], np.c_[x, np.full_like(x, 400.0)]]
     gap = typical_gap_m(xy)
@@ -203,7 +203,7 @@ def _moving_average_line(width_steps, n=4000, step_m=5.0, seed=0):
 
 
 def test_residual_correlation_matches_the_moving_average_formula():
-    from strikeline.stats.crossval import residual_correlation_m
+    from strikeline.stats import residual_correlation_m
     # Source: textbook autocorrelation of a moving average of W white-noise terms,
     # rho(h) = 1 - h/W for h < W (Box & Jenkins, Time Series Analysis, 1976; from memory), so
     # rho = 1/e at h = W (1 - 1/e): 40 steps of 5 m -> 126.4 m. Steps along the line are
@@ -214,7 +214,7 @@ def test_residual_correlation_matches_the_moving_average_formula():
 
 
 def test_residual_correlation_is_not_stretched_by_a_mistraced_stretch():
-    from strikeline.stats.crossval import residual_correlation_m
+    from strikeline.stats import residual_correlation_m
     xyz, s = _moving_average_line(40, seed=1)
     clean = residual_correlation_m(xyz)
     bad = xyz.copy()
@@ -233,7 +233,7 @@ def _cv(rmse, se=0.1, n=400, groups=40, seed=0, gross=0.0):
 
 
 def test_choose_model_keeps_the_plane_when_the_gain_is_below_the_stated_error():
-    from strikeline.stats.crossval import choose_model
+    from strikeline.stats import choose_model
     scores = {"plane": _cv(2.4), "trend2": _cv(2.3, seed=1), "spline": _cv(1.5, seed=2)}
     c = choose_model(scores, order=["plane", "trend2", "spline"], sigma_m=2.0)
     assert c.chosen == "plane" and "within" in c.reason and c.chi2["plane"]["consistent"]
@@ -242,7 +242,7 @@ def test_choose_model_keeps_the_plane_when_the_gain_is_below_the_stated_error():
 
 
 def test_choose_model_refuses_a_plane_whose_residuals_are_many_times_the_stated_error():
-    from strikeline.stats.crossval import choose_model
+    from strikeline.stats import choose_model
     from scipy.stats import chi2
     # plane 35 m, spline 2.1 m against sigma 2 m: the chi-square test rejects the plane
     scores = {"plane": _cv(35.0, se=8.0), "spline": _cv(2.1, seed=3)}
@@ -258,7 +258,7 @@ def test_choose_model_refuses_a_plane_whose_residuals_are_many_times_the_stated_
 
 
 def test_choose_model_robust_ignores_a_few_gross_errors():
-    from strikeline.stats.crossval import choose_model
+    from strikeline.stats import choose_model
     # 10 % of the plane's held-out errors are 60 m off (a mistraced stretch): by RMSE the
     # spline wins, by the robust RMS the plane fits the bulk of the picks
     scores = {"plane": _cv(1.0, gross=60.0), "spline": _cv(0.9, seed=5, gross=5.0)}
@@ -268,7 +268,7 @@ def test_choose_model_robust_ignores_a_few_gross_errors():
 
 
 def test_error_growth_calibrates_intervals_on_fresh_errors():
-    from strikeline.stats.crossval import fit_error_growth
+    from strikeline.stats import fit_error_growth
     rng = np.random.default_rng(7)
 
     def draw(n):
