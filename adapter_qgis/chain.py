@@ -12,9 +12,9 @@ import shapely
 
 from strikeline.errors import InputError
 from strikeline.geometry.grid import Grid
-from strikeline.io.crs import same_crs, srs_from_wkt
+from strikeline.io.crs import same_crs
 from strikeline.io.vector import VectorLayer
-from strikeline.picks.core import sample_bilinear
+from strikeline.picks import sample_bilinear
 from strikeline.pipeline import Inputs, RunOptions, surface_grid
 from strikeline.maps.trace import split_lines_by_flag
 
@@ -22,7 +22,7 @@ from strikeline.maps.trace import split_lines_by_flag
 def grid_over(bounds, *, cell_m, crs_wkt, log) -> Grid:
     """The library's output grid over ``bounds`` (``cell_m`` None: its automatic cell size)."""
     box = np.array([shapely.box(*bounds)], dtype=object)
-    holder = VectorLayer("extent", "extent", box, np.zeros(1, np.int64), {}, {}, srs_from_wkt(crs_wkt))
+    holder = VectorLayer("extent", "extent", box, np.zeros(1, np.int64), {}, {}, crs_wkt)
     return surface_grid(Inputs(contacts=holder, crs_wkt=crs_wkt),
                         RunOptions(contacts="extent", out="", cell_m=cell_m), log=log)
 
@@ -31,7 +31,7 @@ def require_same_grid(a: Grid, b: Grid, *, what_a: str, what_b: str) -> None:
     """Refuse two rasters that are not on one grid (cell-by-cell work needs one)."""
     same = (tuple(a.shape) == tuple(b.shape)
             and np.allclose(a.transform, b.transform, rtol=0.0, atol=1e-6 * max(a.cell_x_m, 1e-9))
-            and (not a.crs_wkt or not b.crs_wkt or same_crs(srs_from_wkt(a.crs_wkt), srs_from_wkt(b.crs_wkt))))
+            and (not a.crs_wkt or not b.crs_wkt or same_crs(a.crs_wkt, b.crs_wkt)))
     if not same:
         raise InputError(
             f"{what_a} (grid {a.shape[0]}x{a.shape[1]} cells of {a.cell_x_m:g} m at "

@@ -22,7 +22,6 @@ from qgis.core import (
 )
 
 from strikeline.errors import InputError
-from strikeline.io.crs import srs_from_wkt
 from strikeline.pipeline import (CLI_OPTION_NAMES, DEFAULT_BOREHOLE_SIGMA_M, DEFAULT_ORIENTATION_SIGMA_DEG,
                                  Inputs, RunOptions, assemble_inputs, reproject_to)
 
@@ -227,7 +226,7 @@ def read_contact_inputs(alg, parameters, context, steps, *, more: dict | None = 
 
 def to_dem_crs(layer, dem_grid, *, label, log):
     """``layer`` in the DEM's CRS, reprojected (with its log line) by the library."""
-    return reproject_to(layer, srs_from_wkt(dem_grid.crs_wkt), label=label, log=log)
+    return reproject_to(layer, dem_grid.crs_wkt, label=label, log=log)
 
 
 PICKS = "PICKS"

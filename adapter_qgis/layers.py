@@ -29,7 +29,6 @@ from qgis.PyQt.QtCore import QVariant
 
 from strikeline.errors import CancelledError, InputError
 from strikeline.geometry.grid import Grid
-from strikeline.io.crs import srs_from_wkt
 from strikeline.io.raster import raster_from_array, read_raster
 from strikeline.io.vector import VectorLayer, layer_from_wkb
 
@@ -62,11 +61,11 @@ class LayerName:
         return f"{self.label} layer '{self.layer}' of '{self.path}'"
 
 
-def crs_to_srs(crs: QgsCoordinateReferenceSystem):
-    """A QGIS CRS as the osr SpatialReference the library uses (None when invalid)."""
+def crs_wkt(crs: QgsCoordinateReferenceSystem) -> str:
+    """A QGIS CRS as the WKT text the library takes (``""`` when invalid)."""
     if crs is None or not crs.isValid():
-        return None
-    return srs_from_wkt(crs.toWkt(QgsCoordinateReferenceSystem.WKT_PREFERRED))
+        return ""
+    return crs.toWkt(QgsCoordinateReferenceSystem.WKT_PREFERRED)
 
 
 def qgis_crs(wkt: str) -> QgsCoordinateReferenceSystem:
@@ -144,11 +143,11 @@ def read_vector(source: QgsProcessingFeatureSource, name: LayerName, *, geometry
             values[f].append(feat.attribute(k))
     fields = {f: _attribute_values(v) for f, v in values.items()}
     ftypes = {f: _FIELD_TYPE_NAMES.get(qfields.field(f).type(), qfields.field(f).typeName()) for f in names}
-    srs = crs_to_srs(source.sourceCrs())
+    wkt = crs_wkt(source.sourceCrs())
     if geometry is None:
         return VectorLayer(name.path, name.layer, _geoms(wkbs, keep_z), np.asarray(fids, dtype=np.int64),
-                           fields, ftypes, srs)
-    layer = layer_from_wkb(wkbs, fids=fids, fields=fields, field_types=ftypes, srs=srs, path=name.path,
+                           fields, ftypes, wkt)
+    layer = layer_from_wkb(wkbs, fids=fids, fields=fields, field_types=ftypes, crs_wkt=wkt, path=name.path,
                            layer_name=name.layer, label=name.label, geometry=geometry)
     return replace(layer, geoms=_geoms(wkbs, True)) if keep_z else layer
 

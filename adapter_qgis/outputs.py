@@ -49,10 +49,14 @@ class Table:
         return out
 
 
-def _qgis_wkb_type(ogr_type: int) -> int:
-    """QGIS's type for an OGR geometry type (OGR's 2.5D codes become QGIS's Z types)."""
-    flat = QgsWkbTypes.flatType(ogr_type)
-    return QgsWkbTypes.addZ(flat) if QgsWkbTypes.hasZ(ogr_type) else flat
+#: QGIS's type for each geometry type the library names (:data:`strikeline.io.vector.GEOMETRY_TYPES`).
+_QGIS_WKB_TYPES = {"point": QgsWkbTypes.Point, "point_z": QgsWkbTypes.PointZ, "line": QgsWkbTypes.LineString,
+                   "line_z": QgsWkbTypes.LineStringZ, "polygon": QgsWkbTypes.Polygon}
+
+
+def _qgis_wkb_type(geometry_type: str) -> int:
+    """QGIS's type for a library layer's geometry type (``'point'``, ``'line_z'``, ...)."""
+    return _QGIS_WKB_TYPES[geometry_type]
 
 
 def _py(v):

@@ -24,11 +24,40 @@ def test_nothing_under_algorithms_imports_qgis():
     assert offenders == []
 
 
-def test_only_the_io_package_and_its_users_import_gdal():
-    allowed = {"io", "pipeline", "cli"}
+def test_only_the_io_package_imports_gdal():
+    # The design card: one I/O module speaks GDAL/OGR; everything past it sees CRSs as text.
     offenders = [str(p) for p in ALGORITHMS.rglob("*.py")
-                 if p.relative_to(ALGORITHMS).parts[0].removesuffix(".py") not in allowed
+                 if p.relative_to(ALGORITHMS).parts[0] != "io"
                  and any(m == "osgeo" or m.startswith("osgeo.") for m in _imports(p))]
+    assert offenders == []
+
+
+def test_gdal_objects_do_not_cross_the_io_boundary():
+    # No public function or field of strikeline.io takes or returns an osr/ogr object: a CRS is
+    # WKT text and a geometry type a name. The check reads the signatures' annotations.
+    leaks = []
+    for p in (ALGORITHMS / "io").glob("*.py"):
+        tree = ast.parse(p.read_text())
+        for node in ast.walk(tree):
+            if isinstance(node, (ast.FunctionDef, ast.AsyncFunctionDef)) and not node.name.startswith("_"):
+                notes = [a.annotation for a in node.args.args + node.args.kwonlyargs] + [node.returns]
+            elif isinstance(node, ast.AnnAssign):
+                notes = [node.annotation]
+            else:
+                continue
+            for note in notes:
+                if note is not None and any(s in ast.unparse(note) for s in ("osr.", "ogr.", "gdal.")):
+                    leaks.append(f"{p.name}:{node.lineno} {ast.unparse(note)}")
+    assert leaks == []
+
+
+def test_the_pipeline_and_the_cli_never_touch_gdal_objects():
+    # Past io/ no code calls methods that only GDAL's objects have.
+    gdal_methods = ("ExportToWkt", "ImportFromWkt", "GetSpatialRef", "SetAxisMappingStrategy", "wkbPoint",
+                    "wkbLineString")
+    offenders = [f"{p.relative_to(ALGORITHMS)}: {m}" for p in ALGORITHMS.rglob("*.py")
+                 if p.relative_to(ALGORITHMS).parts[0] != "io"
+                 for m in gdal_methods if m in p.read_text()]
     assert offenders == []
 
 

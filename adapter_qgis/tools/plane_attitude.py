@@ -19,7 +19,7 @@ from strikeline.attitude.confidence import MIN_REPLICATES
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
 from ..inputs import PICKS, add_picks, read_picks
-from ..layers import crs_to_srs
+from ..layers import crs_wkt as wkt_of_crs
 from ..outputs import Table, write_sink
 from ..styles import attach_style
 
@@ -152,7 +152,7 @@ class PlaneAttitude(StrikelineAlgorithm):
         sigma = self.parameterAsDouble(parameters, self.SIGMA_Z, context)
         resamples = self.parameterAsInt(parameters, self.RESAMPLES, context)
         seed = self.parameterAsInt(parameters, self.SEED, context)
-        crs_wkt = crs_to_srs(source.sourceCrs()).ExportToWkt()
+        crs_wkt = wkt_of_crs(source.sourceCrs())
         sigma_all = np.full(len(xyz), sigma) if sigma > 0 else None
         # picks with a contact_id are bootstrapped by contact segment, as strikeline run does
         blocks = segment_labels(xyz, extra["contact_id"][ok]) if "contact_id" in extra else None

@@ -17,8 +17,8 @@ from qgis.core import (
 )
 
 from strikeline.errors import InputError
-from strikeline.io.crs import same_crs, srs_from_wkt
-from strikeline.picks.core import SOURCES, PickSet
+from strikeline.io.crs import same_crs
+from strikeline.picks import SOURCES, PickSet
 from strikeline.pipeline import (RunOptions, borehole_points, map_unit_bounds, map_unit_check, map_unit_polygons,
                                  model_surface, orientation_rows, reproject_to, unit_conflicts_layer)
 
@@ -27,7 +27,7 @@ from ..chain import grid_over
 from ..inputs import (CONSTRAINT_LAYERS, MAP_UNIT_LAYERS, MAP_UNITS, PICKS, add_picks, constraint_options,
                       constraint_parameters, constraint_sigma_parameters, map_unit_options, map_unit_parameters,
                       option_names, read_dem, read_layers, read_picks)
-from ..layers import crs_to_srs
+from ..layers import crs_wkt
 from ..layers import qgis_crs
 from ..outputs import Table, write_raster, write_sink
 from ..styles import attach_style
@@ -126,7 +126,7 @@ class SurfaceModel(StrikelineAlgorithm):
     def _grid(self, parameters, context, steps, source, xyz):
         _, ref_grid, _ = read_dem(self, parameters, self.REFERENCE, context, steps, label="reference grid")
         if ref_grid is not None:
-            if not same_crs(crs_to_srs(source.sourceCrs()), srs_from_wkt(ref_grid.crs_wkt)):
+            if not same_crs(crs_wkt(source.sourceCrs()), ref_grid.crs_wkt):
                 raise InputError("the picks and the reference grid are in different CRSs; reproject the "
                                  "picks to the reference grid's CRS (or make them from that DEM)")
             return ref_grid.with_nodata(None)
@@ -137,7 +137,7 @@ class SurfaceModel(StrikelineAlgorithm):
             ext = self.parameterAsExtent(parameters, self.EXTENT, context, crs)
             bounds = (ext.xMinimum(), ext.yMinimum(), ext.xMaximum(), ext.yMaximum())
         cell = self.parameterAsDouble(parameters, self.CELL, context) or None
-        return grid_over(bounds, cell_m=cell, crs_wkt=crs_to_srs(crs).ExportToWkt(), log=steps.log)
+        return grid_over(bounds, cell_m=cell, crs_wkt=crs_wkt(crs), log=steps.log)
 
     def process(self, parameters, context, steps):
         model = METHODS[self.parameterAsEnum(parameters, self.METHOD_P, context)][0]
@@ -151,8 +151,8 @@ class SurfaceModel(StrikelineAlgorithm):
         # conversions), brought into the picks' CRS.
         extra = read_layers(self, parameters, context, steps, CONSTRAINT_LAYERS)
         names = option_names(self)
-        bh = reproject_to(extra.get("boreholes"), layer.srs, label="boreholes", log=steps.log)
-        ori = reproject_to(extra.get("orientations"), layer.srs, label="dip readings", log=steps.log)
+        bh = reproject_to(extra.get("boreholes"), layer.crs_wkt, label="boreholes", log=steps.log)
+        ori = reproject_to(extra.get("orientations"), layer.crs_wkt, label="dip readings", log=steps.log)
         boreholes_xyz = None if bh is None else borehole_points(bh, opts, names=names)
         orientations = None if ori is None else orientation_rows(ori, opts, names=names)
         grid = self._grid(parameters, context, steps, source, xyz)
@@ -166,7 +166,7 @@ class SurfaceModel(StrikelineAlgorithm):
                 raise InputError(f"the '{self.parameterDefinition(MAP_UNITS).description()}' need the reference "
                                  "grid: give the DEM as the reference grid, so the units can say where the surface "
                                  "lies below or above the ground")
-            units = reproject_to(units, layer.srs, label="map units", log=steps.log)
+            units = reproject_to(units, layer.crs_wkt, label="map units", log=steps.log)
             polys, labels = map_unit_polygons(units, opts, names=names)
             ub = map_unit_bounds(polys, labels, dem, dem_grid, opts, log=steps.log)
         steps.feedback.setProgress(10)

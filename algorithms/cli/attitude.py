@@ -101,7 +101,8 @@ def load_points(args):
     from strikeline.io.vector import read_layer
 
     layer = read_layer(args.points, layer=args.points_layer, where=args.where, label="points",
-                       geometry="point", layer_option="--points-layer")
+                       geometry="point", layer_option="--points-layer",
+                       where_option="--where")
     xy, index = shapely.get_coordinates(layer.geoms, return_index=True)
     if args.z_field:
         z = layer.numeric_field(args.z_field, option="--z-field")[index]
@@ -155,7 +156,7 @@ def compute(args, *, log=lambda m: print(m, file=sys.stderr)) -> dict:
             "and are left out")
     xyz = xyz[usable]
     labels = None if labels is None else labels[usable]
-    crs_wkt = layer.srs.ExportToWkt()
+    crs_wkt = layer.crs_wkt
     sigma_all = None if args.dem_sigma_m == 0 else np.full(len(xyz), args.dem_sigma_m)
 
     # Points with a contact_id (the picks of strikeline run) are bootstrapped by contact segment,
@@ -170,7 +171,7 @@ def compute(args, *, log=lambda m: print(m, file=sys.stderr)) -> dict:
 
     result = {
         "version": __version__,
-        "crs": crs_label(layer.srs),
+        "crs": crs_label(layer.crs_wkt),
         "points": {"file": os.path.basename(args.points), "sha256": file_sha256(args.points),
                    "layer": layer.layer_name, "where": args.where, "elevation_from": source},
         "n_points": int(len(xyz)),

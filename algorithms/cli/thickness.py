@@ -233,9 +233,9 @@ def _check_out_folder(out: str, overwrite: bool, inputs) -> Path:
 
 
 def _same_grid(top_path, gt, base_path, gb) -> None:
-    from strikeline.io.crs import crs_label, same_crs, srs_from_wkt
+    from strikeline.io.crs import crs_label, same_crs
 
-    st, sb = srs_from_wkt(gt.crs_wkt), srs_from_wkt(gb.crs_wkt)
+    st, sb = gt.crs_wkt, gb.crs_wkt
     tol = 1e-6 * min(gt.cell_x_m, gt.cell_y_m)
     differs = []
     if gt.shape != gb.shape:

@@ -1,4 +1,8 @@
-"""Coordinate reference systems: checks that layers are projected in metres, and reprojection."""
+"""Coordinate reference systems: checks that layers are projected in metres, and reprojection.
+
+Past this module a CRS is text: WKT (``""`` for none). GDAL's ``osr`` objects are made here, from
+that text, and never handed out.
+"""
 from __future__ import annotations
 
 import numpy as np
@@ -8,7 +12,8 @@ from osgeo import osr
 from strikeline.errors import CRSError
 
 
-def srs_from_wkt(wkt: str) -> osr.SpatialReference | None:
+def _srs(wkt: str | None) -> osr.SpatialReference | None:
+    """GDAL's object for a WKT string (``None`` for no CRS), axes in x/y (easting, northing) order."""
     if not wkt:
         return None
     srs = osr.SpatialReference()
@@ -17,8 +22,9 @@ def srs_from_wkt(wkt: str) -> osr.SpatialReference | None:
     return srs
 
 
-def crs_label(srs: osr.SpatialReference | None) -> str:
-    """``EPSG:nnnn`` where the CRS has an EPSG code, else its name."""
+def crs_label(wkt: str | None) -> str:
+    """``EPSG:nnnn`` where the CRS (WKT) has an EPSG code, else its name."""
+    srs = _srs(wkt)
     if srs is None:
         return "no CRS"
     probe = srs.Clone()
@@ -39,17 +45,19 @@ def utm_suggestion(lon: float, lat: float) -> str:
     return f"EPSG:{(32600 if lat >= 0 else 32700) + zone}"
 
 
-def require_projected_metres(srs: osr.SpatialReference | None, *, what: str, centre_xy=None) -> None:
+def require_projected_metres(wkt: str | None, *, what: str, centre_xy=None) -> None:
     """Refuse a missing CRS, a geographic CRS, or a projected CRS not in metres.
 
     Parameters
     ----------
-    srs : osr.SpatialReference or None
+    wkt : str or None
+        The CRS as WKT; ``""`` or ``None`` for none.
     what : str
         How to name the input in a message, e.g. ``"DEM 'dem.tif'"``.
     centre_xy : (float, float), optional
         Centre of the data in the layer's own coordinates, used to suggest a UTM zone.
     """
+    srs = _srs(wkt)
     if srs is None:
         raise CRSError(
             f"{what} has no coordinate reference system; assign its projected CRS "
@@ -61,24 +69,33 @@ def require_projected_metres(srs: osr.SpatialReference | None, *, what: str, cen
             lon, lat = centre_xy
             hint = f" such as {utm_suggestion(lon, lat)} (the UTM zone of the data's centre)"
         raise CRSError(
-            f"{what} is in the geographic CRS {crs_label(srs)} (degrees); strikeline works in metres - "
+            f"{what} is in the geographic CRS {crs_label(wkt)} (degrees); strikeline works in metres - "
             f"reproject it to a projected CRS in metres{hint}"
         )
     units = srs.GetLinearUnits()
     if abs(units - 1.0) > 1e-9:
         raise CRSError(
-            f"{what} is in {crs_label(srs)} whose unit is {srs.GetLinearUnitsName()} "
+            f"{what} is in {crs_label(wkt)} whose unit is {srs.GetLinearUnitsName()} "
             f"({units} m); strikeline needs metres - reproject it to a projected CRS in metres"
         )
 
 
-def same_crs(a: osr.SpatialReference, b: osr.SpatialReference) -> bool:
-    return bool(a.IsSame(b))
+def same_crs(a: str | None, b: str | None) -> bool:
+    """Whether two CRSs (WKT) are the same; two missing CRSs are the same, one missing is not."""
+    sa, sb = _srs(a), _srs(b)
+    if sa is None or sb is None:
+        return sa is None and sb is None
+    return bool(sa.IsSame(sb))
 
 
-def reproject_geometries(geoms, src: osr.SpatialReference, dst: osr.SpatialReference):
-    """Reproject an array of shapely geometries from ``src`` to ``dst`` (2-D, vectorised)."""
-    ct = osr.CoordinateTransformation(src, dst)
+def _wkt_of(srs: osr.SpatialReference | None) -> str:
+    """The WKT of a GDAL CRS object (``""`` for none): how io/ hands a CRS on."""
+    return srs.ExportToWkt() if srs is not None else ""
+
+
+def reproject_geometries(geoms, src: str, dst: str):
+    """Reproject an array of shapely geometries from CRS ``src`` to ``dst`` (WKT; 2-D, vectorised)."""
+    ct = osr.CoordinateTransformation(_srs(src), _srs(dst))
 
     def _transform(coords: np.ndarray) -> np.ndarray:
         if len(coords) == 0:

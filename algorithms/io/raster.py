@@ -13,7 +13,7 @@ from osgeo import gdal
 from strikeline.errors import InputError, OutputError, RasterReadError
 from strikeline.geometry.grid import Grid
 from strikeline.io._gdal import gdal_exceptions, gdal_message
-from strikeline.io.crs import require_projected_metres, srs_from_wkt
+from strikeline.io.crs import require_projected_metres
 
 #: Nodata written into strikeline's own float32 GeoTIFFs.
 NODATA_OUT = -99999.0
@@ -58,7 +58,7 @@ def read_raster(path, *, label: str = "raster", band: int = 1) -> tuple[np.ndarr
                 raise InputError(f"{what} has no georeferencing; georeference it and try again")
             wkt = ds.GetProjection() or ""
             shape = (ds.RasterYSize, ds.RasterXSize)
-            require_projected_metres(srs_from_wkt(wkt), what=what, centre_xy=_centre(Grid(gt, shape, wkt)))
+            require_projected_metres(wkt, what=what, centre_xy=_centre(Grid(gt, shape, wkt)))
             b = ds.GetRasterBand(band)
             nodata = b.GetNoDataValue()
             try:
@@ -83,7 +83,7 @@ def raster_from_array(array, grid: Grid, *, what: str, crs_checked: bool = False
     messages (``"DEM 'dem.tif'"``).
     """
     if not crs_checked:
-        require_projected_metres(srs_from_wkt(grid.crs_wkt), what=what, centre_xy=_centre(grid))
+        require_projected_metres(grid.crs_wkt, what=what, centre_xy=_centre(grid))
     arr = np.array(array, dtype=np.float64)
     if arr.shape != grid.shape:
         raise InputError(f"{what}: the band has shape {arr.shape}, its grid {grid.shape}")

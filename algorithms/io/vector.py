@@ -14,7 +14,7 @@ from osgeo import ogr, osr
 
 from strikeline.errors import InputError, OutputError, VectorReadError
 from strikeline.io._gdal import gdal_exceptions, gdal_message
-from strikeline.io.crs import crs_label, reproject_geometries, require_projected_metres
+from strikeline.io.crs import crs_label, reproject_geometries, require_projected_metres, _wkt_of
 
 _LINE_TYPES = {"LineString", "MultiLineString", "LinearRing"}
 _POINT_TYPES = {"Point", "MultiPoint"}
@@ -35,7 +35,8 @@ class VectorLayer:
     fids : ndarray of int64
     fields : dict of str -> ndarray (object arrays of Python values; None for null)
     field_types : dict of str -> OGR field type name
-    srs : osr.SpatialReference
+    crs_wkt : str
+        The layer's CRS as WKT (``""`` for none).
     """
 
     path: str
@@ -44,7 +45,7 @@ class VectorLayer:
     fids: np.ndarray
     fields: dict = field(default_factory=dict)
     field_types: dict = field(default_factory=dict)
-    srs: osr.SpatialReference | None = None
+    crs_wkt: str = ""
     #: Z of point geometries (NaN where a point has none); ``None`` for lines.
     z: np.ndarray | None = None
 
@@ -55,8 +56,12 @@ class VectorLayer:
     def __len__(self) -> int:
         return len(self.geoms)
 
-    def numeric_field(self, name: str, *, option: str = "--elev-field") -> np.ndarray:
-        """Values of a numeric field as float64 (NaN for null), with clear errors."""
+    def numeric_field(self, name: str, *, option: str) -> np.ndarray:
+        """Values of a numeric field as float64 (NaN for null), with clear errors.
+
+        ``option`` is how the caller's user names the setting that chose the field (a command-line
+        flag, a QGIS parameter label); the error tells them to change it.
+        """
         if name not in self.fields:
             have = ", ".join(self.fields) or "none"
             raise InputError(
@@ -70,11 +75,12 @@ class VectorLayer:
         vals = self.fields[name]
         return np.array([np.nan if v is None else float(v) for v in vals], dtype=float)
 
-    def reprojected(self, dst: osr.SpatialReference) -> "VectorLayer":
-        geoms = reproject_geometries(self.geoms, self.srs, dst)
+    def reprojected(self, dst_wkt: str) -> "VectorLayer":
+        """The layer in the CRS ``dst_wkt`` (WKT)."""
+        geoms = reproject_geometries(self.geoms, self.crs_wkt, dst_wkt)
         # Z is carried over as is: a change between projected CRSs leaves heights alone
         return VectorLayer(self.path, self.layer_name, geoms, self.fids, self.fields,
-                           self.field_types, dst, self.z)
+                           self.field_types, dst_wkt, self.z)
 
 
 def _open(path: str, label: str):
@@ -96,8 +102,8 @@ def _open(path: str, label: str):
 
 
 def read_layer(path, *, layer: str | None = None, where: str | None = None,
-               label: str = "layer", geometry: str = "line",
-               layer_option: str = "--contacts-layer") -> VectorLayer:
+               label: str = "layer", geometry: str = "line", layer_option: str,
+               where_option: str = "filter") -> VectorLayer:
     """Read the features of a vector layer.
 
     Parameters
@@ -111,8 +117,9 @@ def read_layer(path, *, layer: str | None = None, where: str | None = None,
         How to name the input in messages (``"contacts"``).
     geometry : {'line', 'point', 'polygon'}
         The geometry family the layer must hold.
-    layer_option : str
-        The command-line option that names the layer, for messages.
+    layer_option, where_option : str
+        How the caller's user names the settings that choose the layer and the filter (a
+        command-line flag, a QGIS parameter label), for messages.
 
     Raises
     ------
@@ -141,7 +148,7 @@ def read_layer(path, *, layer: str | None = None, where: str | None = None,
                     lyr.SetAttributeFilter(where)
                 except RuntimeError as exc:
                     raise InputError(
-                        f"{what}: the filter --where {where!r} is not valid OGR SQL ({gdal_message(exc)}); "
+                        f"{what}: the {where_option} {where!r} is not valid OGR SQL ({gdal_message(exc)}); "
                         "fix the expression"
                     ) from None
             defn = lyr.GetLayerDefn()
@@ -167,12 +174,13 @@ def read_layer(path, *, layer: str | None = None, where: str | None = None,
             extent = lyr.GetExtent() if wkbs else None
         finally:
             ds = None
-    return layer_from_wkb(wkbs, fids=fids, fields=values, field_types=ftypes, srs=srs, path=path,
-                          layer_name=lname, label=label, geometry=geometry, where=where, extent=extent)
+    return layer_from_wkb(wkbs, fids=fids, fields=values, field_types=ftypes, crs_wkt=_wkt_of(srs), path=path,
+                          layer_name=lname, label=label, geometry=geometry, where=where, extent=extent,
+                          where_option=where_option)
 
 
-def layer_from_wkb(wkbs, *, fids, fields, field_types, srs, path, layer_name, label="layer",
-                   geometry="line", where=None, extent=None) -> VectorLayer:
+def layer_from_wkb(wkbs, *, fids, fields, field_types, crs_wkt, path, layer_name, label="layer",
+                   geometry="line", where=None, extent=None, where_option="filter") -> VectorLayer:
     """Build a :class:`VectorLayer` from features already read (as WKB), with every check.
 
     This is the part of :func:`read_layer` after OGR's loop, for callers that hold features in
@@ -186,14 +194,14 @@ def layer_from_wkb(wkbs, *, fids, fields, field_types, srs, path, layer_name, la
     what = f"{label} layer '{layer_name}' of '{path}'"
     wkbs = [bytes(w) for w in wkbs]
     if not wkbs:
-        cond = f" matching --where {where!r}" if where else ""
+        cond = f" matching the {where_option} {where!r}" if where else ""
         raise InputError(f"{what} holds no feature with a geometry{cond}; give a layer with features")
     geoms3 = shapely.from_wkb(wkbs)
     if extent is None:
         xmin, ymin, xmax, ymax = shapely.total_bounds(geoms3)
         extent = (xmin, xmax, ymin, ymax)
     centre = ((extent[0] + extent[1]) / 2, (extent[2] + extent[3]) / 2)
-    require_projected_metres(srs, what=what, centre_xy=centre)
+    require_projected_metres(crs_wkt, what=what, centre_xy=centre)
     z = None
     if geometry == "point":
         z = np.full(len(geoms3), np.nan)
@@ -208,7 +216,7 @@ def layer_from_wkb(wkbs, *, fids, fields, field_types, srs, path, layer_name, la
             f"{what} holds {got} geometries; it must hold {geometry}s - give a {geometry} layer"
         )
     return VectorLayer(path, layer_name, geoms, np.asarray(fids, dtype=np.int64),
-                       {n: np.array(v, dtype=object) for n, v in fields.items()}, dict(field_types), srs, z)
+                       {n: np.array(v, dtype=object) for n, v in fields.items()}, dict(field_types), crs_wkt or "", z)
 
 
 @dataclass
@@ -218,7 +226,12 @@ class LayerOut:
     name: str
     geoms: np.ndarray
     fields: dict  # name -> ndarray; dtype decides the OGR type (float, int, bool, str)
-    geometry_type: int  # ogr.wkb* constant
+    geometry_type: str  # one of GEOMETRY_TYPES: 'point', 'point_z', 'line', 'line_z', 'polygon'
+
+
+#: The geometry types a written layer can have, and OGR's code for each.
+GEOMETRY_TYPES = {"point": ogr.wkbPoint, "point_z": ogr.wkbPoint25D, "line": ogr.wkbLineString,
+                  "line_z": ogr.wkbLineString25D, "polygon": ogr.wkbPolygon}
 
 
 def _ogr_field_type(arr: np.ndarray):
@@ -246,7 +259,7 @@ def write_gpkg(path, layers: list[LayerOut], srs_wkt: str) -> None:
                 os.remove(tmp)
             ds = drv.CreateDataSource(tmp)
             for spec in layers:
-                lyr = ds.CreateLayer(spec.name, srs if srs_wkt else None, spec.geometry_type)
+                lyr = ds.CreateLayer(spec.name, srs if srs_wkt else None, GEOMETRY_TYPES[spec.geometry_type])
                 kinds = {}
                 for fname, arr in spec.fields.items():
                     arr = np.asarray(arr)

@@ -10,7 +10,7 @@ import shapely
 
 from strikeline.errors import InputError
 from strikeline.geometry.grid import Grid
-from strikeline.io.crs import crs_label, same_crs, srs_from_wkt
+from strikeline.io.crs import crs_label, same_crs
 from strikeline.io.raster import read_raster
 from strikeline.io.vector import VectorLayer, read_layer
 from strikeline.geometry.orientation import dip_direction_from_strike
@@ -38,13 +38,13 @@ class Inputs:
 
 # --------------------------------------------------------------------------- loading
 def reproject_to(lyr: VectorLayer | None, target, *, label: str, log: Log = _quiet) -> VectorLayer | None:
-    """``lyr`` in the CRS ``target`` (an ``osr.SpatialReference``), with a log line when it moves.
+    """``lyr`` in the CRS ``target`` (WKT), with a log line when it moves.
 
     ``label`` names the layer in the log line (``"contacts"``, ``"boreholes"``).
     """
-    if lyr is None or same_crs(lyr.srs, target):
+    if lyr is None or same_crs(lyr.crs_wkt, target):
         return lyr
-    log(f"reprojecting {label} '{lyr.path}' from {crs_label(lyr.srs)} to {crs_label(target)}")
+    log(f"reprojecting {label} '{lyr.path}' from {crs_label(lyr.crs_wkt)} to {crs_label(target)}")
     return lyr.reprojected(target)
 
 
@@ -118,7 +118,8 @@ def load_inputs(opts: RunOptions, *, log: Log = _quiet) -> Inputs:
     """Read every input and bring it into one projected CRS (the DEM's, else the contacts')."""
     check_options(opts)
     contacts = read_layer(opts.contacts, layer=opts.contacts_layer, where=opts.where,
-                          label="contacts", geometry="line", layer_option="--contacts-layer")
+                          label="contacts", geometry="line", layer_option="--contacts-layer",
+                          where_option="--where")
     dem = grid = None
     if opts.dem:
         dem, grid = read_raster(opts.dem, label="DEM")
@@ -134,7 +135,8 @@ def load_inputs(opts: RunOptions, *, log: Log = _quiet) -> Inputs:
                                   geometry="point", layer_option="--orientations-layer")
     if opts.top_contacts:
         top = read_layer(opts.top_contacts, layer=opts.top_contacts_layer, where=opts.top_where,
-                         label="top contacts", geometry="line", layer_option="--top-contacts-layer")
+                         label="top contacts", geometry="line", layer_option="--top-contacts-layer",
+                         where_option="--top-where")
     units = None
     if opts.map_units:
         units = read_layer(opts.map_units, layer=opts.map_units_layer, label="map units", geometry="polygon",
@@ -165,7 +167,7 @@ def assemble_inputs(contacts: VectorLayer, opts: RunOptions, *, dem=None, dem_gr
         )
     if dem is not None and dem_grid is None:
         raise InputError("a DEM array needs its grid")
-    target = srs_from_wkt(dem_grid.crs_wkt) if dem is not None else contacts.srs
+    target = dem_grid.crs_wkt if dem is not None else contacts.crs_wkt
     elev = None
     if contours is not None:
         if not opts.elev_field:
@@ -191,7 +193,7 @@ def assemble_inputs(contacts: VectorLayer, opts: RunOptions, *, dem=None, dem_gr
                              "surface lies below or above the ground, and the ground comes from the DEM")
         map_units = reproject_to(map_units, target, label="map units", log=log)
         unit_polys, unit_labels = map_unit_polygons(map_units, opts, names=names)
-    return Inputs(contacts=contacts, crs_wkt=target.ExportToWkt(), dem=dem, dem_grid=dem_grid,
+    return Inputs(contacts=contacts, crs_wkt=target, dem=dem, dem_grid=dem_grid,
                   contours=contours, contour_elevations_m=elev, paths=dict(paths or {}),
                   boreholes_xyz=None if boreholes is None else borehole_points(boreholes, opts, names=names),
                   orientations=None if orientations is None else orientation_rows(orientations, opts, names=names),

@@ -7,13 +7,12 @@ from pathlib import Path
 
 import numpy as np
 import shapely
-from osgeo import ogr
 
 from strikeline.io.files import atomic_folder, dumps_stable
 from strikeline.io.raster import write_geotiff
 from strikeline.io.vector import LayerOut, write_gpkg
 from strikeline.attitude.local import LocalAttitudes
-from strikeline.picks.core import (PickSet)
+from strikeline.picks import (PickSet)
 from strikeline.pipeline.compute import Results
 from strikeline.pipeline.units import unit_conflicts_layer
 
@@ -34,7 +33,7 @@ def picks_layer(name: str, p: PickSet) -> LayerOut:
     """A layer of picks: PointZ with ``contact_id``, ``source`` and ``elevation_m``."""
     return LayerOut(name, shapely.points(p.xyz), {"contact_id": p.contact_id.astype(np.int64),
                                                   "source": p.source.astype(str),
-                                                  "elevation_m": p.xyz[:, 2]}, ogr.wkbPoint25D)
+                                                  "elevation_m": p.xyz[:, 2]}, "point_z")
 
 
 def attitudes_layer(a: LocalAttitudes) -> LayerOut:
@@ -47,7 +46,7 @@ def attitudes_layer(a: LocalAttitudes) -> LayerOut:
         "n_picks": np.asarray(a.n_picks, np.int64), "quality": np.asarray(a.quality, str),
         "reason": np.asarray(a.reason_code, str), "window_kind": np.asarray(a.kind, str),
         "contact_id": cid, "window_m": np.full(len(a.x), float(a.window_m)),
-    }, ogr.wkbPoint)
+    }, "point")
 
 
 def result_rasters(r: Results) -> list[tuple[str, np.ndarray]]:
@@ -71,9 +70,9 @@ def result_layers(r: Results) -> list[LayerOut]:
         LayerOut("structure_contours", shapely.force_3d(r.contour_geoms, r.contour_elevations_m)
                  if len(r.contour_geoms) else r.contour_geoms,
                  {"elevation": np.asarray(r.contour_elevations_m, dtype=float),
-                  "extrapolated": np.asarray(cflags, dtype=bool)}, ogr.wkbLineString25D),
+                  "extrapolated": np.asarray(cflags, dtype=bool)}, "line_z"),
         LayerOut("predicted_trace", r.trace_geoms, {"extrapolated": np.asarray(tflags, dtype=bool)},
-                 ogr.wkbLineString),
+                 "line"),
     ]
     if r.contact_misfit is not None:
         cm = r.contact_misfit
@@ -82,7 +81,7 @@ def result_layers(r: Results) -> list[LayerOut]:
             if key in cm:
                 fields[key] = np.asarray(cm[key], dtype=float)
         fields["flagged"] = cm["flagged"]
-        layers.append(LayerOut("contact_misfit", cm["geoms"], fields, ogr.wkbLineString))
+        layers.append(LayerOut("contact_misfit", cm["geoms"], fields, "line"))
     if r.attitudes is not None:
         layers.append(attitudes_layer(r.attitudes))
     if r.top_picks is not None:

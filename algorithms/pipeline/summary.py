@@ -8,10 +8,10 @@ import numpy as np
 
 from strikeline import CAUTION, __version__
 from strikeline.defaults import (SEGMENT_CELLS)
-from strikeline.io.crs import crs_label, srs_from_wkt
+from strikeline.io.crs import crs_label
 from strikeline.io.files import file_sha256, json_ready
 from strikeline.attitude.local import LocalAttitudes
-from strikeline.picks.core import (PickSet)
+from strikeline.picks import (PickSet)
 from strikeline.surfaces.core import SurfaceModel
 from strikeline.pipeline.inputs import Inputs
 from strikeline.pipeline.options import RunOptions
@@ -25,7 +25,7 @@ def build_summary(inputs: Inputs, opts: RunOptions, picks: PickSet, plane: dict,
                   contour_flags=None, trace_flags=None, n_top_picks=None) -> dict:
     summary = {
         "version": __version__,
-        "crs": crs_label(srs_from_wkt(inputs.crs_wkt)),
+        "crs": crs_label(inputs.crs_wkt),
         "n_picks": len(picks),
         "picks_by_source": picks.counts_by_source(),
         "plane": plane,

@@ -6,7 +6,6 @@ from __future__ import annotations
 
 import numpy as np
 import shapely
-from osgeo import ogr
 
 from strikeline.geometry.grid import Grid
 from strikeline.io.vector import LayerOut
@@ -80,4 +79,4 @@ def unit_conflicts_layer(check: dict) -> LayerOut:
     """The ``unit_conflicts`` layer: check points where the surface breaks the map's units."""
     return LayerOut("unit_conflicts", shapely.points(check["xy"]) if len(check["xy"]) else np.empty(0, dtype=object),
                     {"unit": np.asarray(check["unit"], dtype=str), "side": np.asarray(check["side"], dtype=str),
-                     "violation_m": np.asarray(check["violation_m"], dtype=float)}, ogr.wkbPoint)
+                     "violation_m": np.asarray(check["violation_m"], dtype=float)}, "point")
