@@ -1,7 +1,7 @@
 """strikeline: the 3D geometry of mapped geological contacts.
 
 The numerical modules (:mod:`strikeline.geometry.orientation`, :mod:`strikeline.attitude.fitting`,
-:mod:`strikeline.picks.core`, :mod:`strikeline.maps.dipgrids`, ...) take and return numpy arrays and
+:mod:`strikeline.picks`, :mod:`strikeline.maps.dipgrids`, ...) take and return numpy arrays and
 shapely geometries and do no I/O. :mod:`strikeline.io` is the only place that talks to
 GDAL/OGR; :mod:`strikeline.pipeline` chains the steps; :mod:`strikeline.cli` is the command line.
 """

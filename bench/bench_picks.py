@@ -7,8 +7,8 @@ Builds, deterministically, a fictional 20 km x 20 km sheet:
 * 200 mapped contact lines of 2,000 vertices each, meandering across the sheet;
 * a 5,000 x 5,000 float32 DEM at 4 m cells (about 100 MB) with a nodata hole.
 
-and times :func:`strikeline.picks.core.picks_from_contours` (target: under 2 s) and
-:func:`strikeline.picks.core.picks_from_dem`. Prints the workload, the number of picks and the
+and times :func:`strikeline.picks.picks_from_contours` (target: under 2 s) and
+:func:`strikeline.picks.picks_from_dem`. Prints the workload, the number of picks and the
 seconds (best and median of ``--repeat`` runs).
 
 Run:  .venv/bin/python bench/bench_picks.py [--repeat 3]
@@ -24,7 +24,7 @@ import numpy as np
 import shapely
 
 from strikeline.geometry.grid import Grid
-from strikeline.picks.core import picks_from_contours, picks_from_dem
+from strikeline.picks import picks_from_contours, picks_from_dem
 
 SHEET_M = 20_000.0
 N_HILLS = 250

@@ -20,7 +20,7 @@ from qgis.core import (
 from qgis.PyQt.QtCore import QVariant
 
 from strikeline.errors import InputError
-from strikeline.picks.core import sample_bilinear
+from strikeline.picks import sample_bilinear
 from strikeline.maps.thickness import (
     SLOPE_SENSES,
     WIDTH_KINDS,

@@ -19,7 +19,7 @@ from strikeline.geometry.grid import Grid
 from strikeline.maps.dipgrids import depth_below_ground, dip_grids
 from strikeline.io.contours import contour_lines
 from strikeline.io.vector import VectorLayer
-from strikeline.picks.core import (PickSet, ground_slope_from_contours, picks_from_contours,
+from strikeline.picks import (PickSet, ground_slope_from_contours, picks_from_contours,
                               picks_from_dem, sample_bilinear)
 from strikeline.surfaces.core import SurfaceModel, fit_surface
 from strikeline.maps.trace import (contact_misfit_segments, distance_to_lines, holdout_misfit_segments, split_lines_by_flag,

@@ -20,6 +20,8 @@ from strikeline.stats.growth import _MEDIAN_CHI2_1
 
 #: Smallest hold-out block, in grid cells.
 MIN_BLOCK_CELLS = 3
+
+
 def make_folds(groups, *, n_folds: int = 5, seed: int = 0) -> np.ndarray:
     """Assign whole groups to ``k`` folds of nearly equal numbers of picks.
 

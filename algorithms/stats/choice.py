@@ -24,6 +24,8 @@ SELECTION_RULES = ("data_error", "one_se", "min")
 #: because residuals of neighbouring segments are not quite independent, so the test is
 #: approximate: it is meant to catch residuals many times the stated error, not a marginal excess.
 CHI2_ALPHA = 0.001
+
+
 @dataclass(frozen=True)
 class ModelChoice:
     """A model chosen from cross-validation scores, and why.

@@ -25,7 +25,7 @@ import shapely
 
 from strikeline.errors import InputError
 from strikeline.geometry.grid import Grid, check_grid_array
-from strikeline.picks.core import sample_bilinear
+from strikeline.picks import sample_bilinear
 
 __all__ = ["UNIT_SIDES", "UnitBounds", "unit_bounds", "bound_violation_m", "parse_unit_names"]
 

@@ -1,4 +1,4 @@
-"""Tests of strikeline.picks.core: contour crossings, DEM sampling, densifying, the PickSet.
+"""Tests of strikeline.picks: contour crossings, DEM sampling, densifying, the PickSet.
 
 Exact analytic cases first (crossing points of straight lines worked by hand, planes that
 bilinear interpolation must reproduce), then checks against reference libraries: GEOS
@@ -11,7 +11,7 @@ from shapely import LineString, MultiLineString, Point, Polygon
 
 from strikeline.errors import CancelledError, InputError
 from strikeline.geometry.grid import Grid
-from strikeline.picks.core import (PickSet, densify_lines, picks_from_contours, picks_from_dem,
+from strikeline.picks import (PickSet, densify_lines, picks_from_contours, picks_from_dem,
                               sample_bilinear)
 
 ATOL_M = 1e-9  # exact-arithmetic cases: only floating-point rounding allowed
@@ -257,7 +257,7 @@ def wavy_sheet(seed):
 @pytest.mark.parametrize("piece_segments", [32, 3])
 def test_agrees_with_geos_intersection_of_whole_lines(piece_segments, monkeypatch):
     # With 3-segment pieces nearly every crossing is near a piece junction.
-    monkeypatch.setattr("strikeline.picks.core._PIECE_SEGMENTS", piece_segments)
+    monkeypatch.setattr("strikeline.picks.contours._PIECE_SEGMENTS", piece_segments)
     contacts, contours, z = wavy_sheet(11)
     p = picks_from_contours(contacts, contours, z)
     # Source: GEOS overlay through shapely.intersection on every unsplit pair (reference).

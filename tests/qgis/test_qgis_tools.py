@@ -377,7 +377,7 @@ def contour_picks(sheet):
 
 @pytest.mark.parametrize("method,model", [(1, "trend2"), (2, "spline")])
 def test_surface_models_are_the_library_models(run, contour_picks, method, model):
-    from strikeline.picks.core import PickSet
+    from strikeline.picks import PickSet
     from strikeline.pipeline import RunOptions, model_surface
 
     layer, xyz = contour_picks
@@ -408,7 +408,7 @@ def test_surface_models_are_the_library_models(run, contour_picks, method, model
 def test_surface_model_honours_a_borehole(run, contour_picks, sheet):
     from qgis.core import QgsFeature, QgsGeometry, QgsVectorLayer
 
-    from strikeline.picks.core import sample_bilinear
+    from strikeline.picks import sample_bilinear
     from strikeline.surfaces.core import fit_surface
 
     layer, xyz = contour_picks
@@ -431,7 +431,7 @@ def test_surface_model_with_the_demo_boreholes_and_dips(run, contour_picks, shee
     """Boreholes by collar and depth fields and dip readings go through the library's own
     conversions (pipeline.borehole_points / orientation_rows), as in strikeline run."""
     from strikeline.io.vector import read_layer
-    from strikeline.picks.core import PickSet, sample_bilinear
+    from strikeline.picks import PickSet, sample_bilinear
     from strikeline.pipeline import RunOptions, borehole_points, model_surface, orientation_rows
 
     d = sheet["dir"]
@@ -557,7 +557,7 @@ def test_depth_trace_and_misfit(run, surface_tif, sheet, reference, kind):
     np.testing.assert_allclose(cols["distance_m"], shapely.distance(pts, trace), atol=1e-9)
     assert res["MISFIT_MEDIAN_M"] == pytest.approx(float(np.median(cols["distance_m"])), abs=1e-12)
     # Contact segments: the library's own segmentation against the same trace.
-    from strikeline.picks.core import sample_bilinear
+    from strikeline.picks import sample_bilinear
     from strikeline.maps.trace import contact_misfit_segments
 
     ref_contacts = reference[0].contacts

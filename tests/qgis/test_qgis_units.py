@@ -83,7 +83,7 @@ def picks_uri(library_run, tmp_path_factory):
 def test_surface_model_tool_gives_the_librarys_constrained_surface(run, units, library_run, picks_uri, tmp_path):
     from strikeline.io.raster import read_raster
     from strikeline.io.vector import read_layer
-    from strikeline.picks.core import PickSet
+    from strikeline.picks import PickSet
     from strikeline.pipeline import RunOptions, map_unit_bounds, map_unit_polygons, model_surface
 
     picks = library_run.picks

@@ -212,7 +212,7 @@ def test_spline_matches_the_constrained_smoothing_spline_optimum():
 
 def _fold_case(n=120, cell=10.0):
     """A folded surface under synthetic hills, its traced contact and its unit polygons."""
-    from strikeline.picks.core import sample_bilinear
+    from strikeline.picks import sample_bilinear
 
     g = _grid(n, cell)
     X, Y = g.mesh()
@@ -246,7 +246,7 @@ def test_every_model_honours_the_units_or_says_it_cannot(model):
     g, dem, truth, xyz, polys, units = _fold_case()
     ub = unit_bounds(polys, units, dem, g, units_above="Upper", units_below="Lower", max_points=800)
     # the truth honours its own units (the polygons were made from it)
-    from strikeline.picks.core import sample_bilinear
+    from strikeline.picks import sample_bilinear
     zt = sample_bilinear(truth, g, ub.bounds[:, 0], ub.bounds[:, 1])
     assert bound_violation_m(ub.bounds, zt).max() == 0.0
     free = fit_surface(xyz, model=model, cross_validate_model=False)
@@ -326,7 +326,7 @@ def test_spectral_solve_of_the_pick_system_equals_a_direct_solve():
 def test_spline_honours_units_and_boreholes_together():
     g, dem, truth, xyz, polys, units = _fold_case()
     ub = unit_bounds(polys, units, dem, g, units_above="Upper", units_below="Lower", max_points=600)
-    from strikeline.picks.core import sample_bilinear
+    from strikeline.picks import sample_bilinear
     bh_xy = np.array([[300.0, 900.0], [800.0, 1000.0]])
     bh = np.column_stack([bh_xy, sample_bilinear(truth, g, bh_xy[:, 0], bh_xy[:, 1]), [0.5, 0.5]])
     m = fit_surface(xyz, model="spline", cross_validate_model=False, bounds=ub.bounds, boreholes=bh)
