@@ -265,15 +265,15 @@ def read_picks(alg, parameters, context, steps, *, fields=(), text_fields=()) ->
     layer = read_vector(source, name, geometry="point", keep_z=True, is_cancelled=steps.is_cancelled)
     field = optional_string(alg, parameters, PICKS_FIELD, context)
     coords, owner = shapely.get_coordinates(layer.geoms, include_z=True, return_index=True)
+    for f in text_fields:
+        if f not in layer.fields:
+            raise InputError(f"{name.what} has no field '{f}' (fields: {', '.join(layer.fields) or 'none'}); "
+                             "choose one of its fields")
     if field:
         z = layer.numeric_field(field, option=f"the '{PICKS_FIELD_LABEL}'")[owner]
     elif not shapely.has_z(layer.geoms).all():
         raise InputError(f"{name.what} has points without Z; choose the '{PICKS_FIELD_LABEL}' or give "
                          "points with elevations as Z")
-    for f in text_fields:
-        if f not in layer.fields:
-            raise InputError(f"{name.what} has no field '{f}' (fields: {', '.join(layer.fields) or 'none'}); "
-                             "choose one of its fields")
     else:
         z = coords[:, 2]
     values = {f: layer.numeric_field(f, option=f"the field '{f}'")[owner] for f in fields}

@@ -298,7 +298,7 @@ def test_level_picks_give_a_horizontal_plane_without_direction(run):
 
 
 def test_local_attitudes_are_the_library_ones(run, sheet, reference):
-    from strikeline.attitude.local import local_attitudes
+    from strikeline.attitude import local_attitudes
 
     picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"],
                                  "CONTOURS": sheet["contours_uri"], "ELEV_FIELD": "elev_m", "PICKS": TMP})["PICKS"]
@@ -328,9 +328,22 @@ def test_local_attitudes_are_the_library_ones(run, sheet, reference):
 
 
 def test_plane_attitude_from_a_z_field(run, sheet, reference):
+    from qgis.core import QgsFeature, QgsGeometry, QgsVectorLayer
+
     picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "PICKS": TMP})["PICKS"]
     by_z = run("planeattitude", {"PICKS": picks, "ATTITUDE": TMP})
-    by_field = run("planeattitude", {"PICKS": picks, "PICKS_ELEV_FIELD": "elevation_m", "ATTITUDE": TMP})
+    # The same picks with their Z flattened to 0 m: only the elevation field still holds the
+    # elevations, so a tool that read Z would find a horizontal plane instead.
+    geoms, cols = table(picks)
+    flat = QgsVectorLayer("PointZ?crs=EPSG:32631&field=elevation_m:double", "flattened", "memory")
+    feats = []
+    for (x, y, _), e in zip(shapely.get_coordinates(geoms, include_z=True), cols["elevation_m"]):
+        f = QgsFeature(flat.fields())
+        f.setGeometry(QgsGeometry.fromWkt(f"PointZ ({x!r} {y!r} 0)"))
+        f.setAttributes([float(e)])
+        feats.append(f)
+    assert flat.dataProvider().addFeatures(feats)
+    by_field = run("planeattitude", {"PICKS": flat, "PICKS_ELEV_FIELD": "elevation_m", "ATTITUDE": TMP})
     assert by_field["DIP_DEG"] == pytest.approx(by_z["DIP_DEG"], abs=1e-12)
     assert by_field["DIP_DIRECTION_DEG"] == pytest.approx(by_z["DIP_DIRECTION_DEG"], abs=1e-12)
 
@@ -409,7 +422,7 @@ def test_surface_model_honours_a_borehole(run, contour_picks, sheet):
     from qgis.core import QgsFeature, QgsGeometry, QgsVectorLayer
 
     from strikeline.picks import sample_bilinear
-    from strikeline.surfaces.core import fit_surface
+    from strikeline.surfaces import fit_surface
 
     layer, xyz = contour_picks
     BOREHOLE = (488000.0, 5215000.0, 560.0)  # a drilled intersection of our own, off the plane
