@@ -17,8 +17,8 @@ import time
 
 import numpy as np
 
-from strikeline.attitude.local import local_attitudes
-from strikeline.attitude.confidence import bootstrap_plane
+from strikeline.attitude import local_attitudes
+from strikeline.attitude import bootstrap_plane
 
 N_PICKS = 50_000
 N_CONTACTS = 100

@@ -25,8 +25,8 @@ from pathlib import Path
 import numpy as np
 
 from strikeline import pipeline as pl
-from strikeline.attitude.local import local_attitudes
-from strikeline.geometry.orientation import azimuth_difference
+from strikeline.attitude import local_attitudes
+from strikeline.geometry import azimuth_difference
 
 REPO = Path(__file__).resolve().parents[1]
 DEMO = REPO / "test_data" / "demo"

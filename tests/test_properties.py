@@ -9,8 +9,13 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from strikeline.attitude.fitting import fit_plane
-from strikeline.geometry.orientation import (apparent_dip, dip_direction_from_strike, dip_from_normal,
-                                    normal_from_dip, strike_from_dip_direction)
+from strikeline.geometry import (
+    apparent_dip,
+    dip_direction_from_strike,
+    dip_from_normal,
+    normal_from_dip,
+    strike_from_dip_direction,
+)
 from strikeline.maps.thickness import thickness_from_outcrop_width, vertical_thickness
 
 dip_directions = st.floats(0.0, 359.999, allow_nan=False)

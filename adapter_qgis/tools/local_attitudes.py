@@ -18,7 +18,7 @@ from qgis.core import (
 from qgis.PyQt.QtCore import QVariant
 
 from strikeline.errors import InputError
-from strikeline.attitude.local import CONFIDENCE_METHODS, DEFAULT_MIN_POINTS, local_attitudes
+from strikeline.attitude import CONFIDENCE_METHODS, DEFAULT_MIN_POINTS, local_attitudes
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
 from ..inputs import PICKS, add_picks, read_picks

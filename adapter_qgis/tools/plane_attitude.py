@@ -15,7 +15,7 @@ from qgis.core import (
 )
 
 from strikeline.pipeline import attitude_of, segment_labels
-from strikeline.attitude.confidence import MIN_REPLICATES
+from strikeline.attitude import MIN_REPLICATES
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
 from ..inputs import PICKS, add_picks, read_picks

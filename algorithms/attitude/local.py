@@ -3,12 +3,13 @@
 A single plane summarises a whole sheet; where the strike swings (folds, domes, curved
 surfaces) the local attitude is what matters. :func:`local_attitudes` fits a
 total-least-squares plane (Fernández 2005) to the picks within a circular window of radius
-``window_m`` around each of many centres, with the same 95% confidence and quality verdict as
-the sheet-wide plane (:mod:`strikeline.attitude.confidence`, :mod:`strikeline.attitude.quality`).
+``window_m`` around each of many centres (:mod:`strikeline.attitude.windows`), with the same 95%
+confidence and quality verdict as the sheet-wide plane (:mod:`strikeline.attitude.confidence`,
+:mod:`strikeline.attitude.quality`).
 
 Everything is batched over windows: scatter matrices come from segment sums over a flat list of
 window members, one stacked ``eigh`` gives all normals, and the bootstrap resamples every window
-at once (see ``strikeline.attitude.confidence._bootstrap_normals``).
+at once (the kernels of :mod:`strikeline.attitude.kernels`).
 """
 from __future__ import annotations
 
@@ -17,53 +18,47 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.spatial import cKDTree
 
-from strikeline.stats import segment_groups
+from strikeline.attitude.confidence import dip_is_significant
+from strikeline.attitude.kernels import (
+    analytic_covariance_from_eigen,
+    bootstrap_normals,
+    check_callbacks,
+    check_count,
+    check_seed,
+    combine_half_widths,
+    expand_for_few_blocks,
+    few_blocks_factor,
+    half_widths_from_covariance,
+    monte_carlo_normals,
+    replicate_half_widths,
+    replicate_tilt_cov,
+    tilt_cov_from_normal_cov,
+    tilt_of_normals,
+    tilt_z2,
+    window_block_normals,
+)
 from strikeline.attitude.quality import classify_planes, map_spread
+from strikeline.attitude.resampling import MIN_REPLICATES
+from strikeline.attitude.windows import (
+    DEFAULT_MIN_POINTS,
+    centres_along_contacts,
+    check_positive_m,
+    contact_groups,
+    default_window_m,
+    grid_centres,
+    picks_xy,
+)
 from strikeline.errors import InputError
 from strikeline.geometry.orientation import dip_from_normal, strike_from_dip_direction
-from strikeline.attitude.confidence import (
-    MIN_REPLICATES,
-    _analytic_covariance_from_eigen,
-    _bootstrap_normals,
-    _check_callbacks,
-    _check_count,
-    _check_seed,
-    _combine_arrays,
-    _confidence_from_covariance,
-    _monte_carlo_normals,
-    _expand_for_few_blocks,
-    _few_blocks_factor,
-    _replicate_half_widths,
-    _replicate_tilt_cov,
-    _tilt_cov_from_normal_cov,
-    _tilt_of_normals,
-    _tilt_z2,
-    _window_block_normals,
-    dip_is_significant,
-)
+from strikeline.stats import segment_groups
 
-__all__ = [
-    "LocalAttitudes",
-    "local_attitudes",
-    "default_window_m",
-    "fallback_window_m",
-    "centres_along_contacts",
-    "grid_centres",
-    "CONFIDENCE_METHODS",
-    "DEFAULT_WINDOW_PICKS",
-    "DEFAULT_MIN_POINTS",
-]
+__all__ = ["CONFIDENCE_METHODS", "MIN_WINDOW_BLOCKS", "LocalAttitudes", "local_attitudes"]
 
+#: How the confidence of each window is estimated.
 CONFIDENCE_METHODS = ("bootstrap", "analytic")
-#: The default window holds about this many picks around a typical pick (see default_window_m).
-DEFAULT_WINDOW_PICKS = 50
-#: Fewest picks in a window for a fit.
-DEFAULT_MIN_POINTS = 10
 #: Fewest contact blocks in a window for a block-bootstrap interval that can be rated good
 #: (our choice: with two blocks a resample has three distinct outcomes).
 MIN_WINDOW_BLOCKS = 3
-#: Picks sampled (evenly, deterministically) to estimate the pick density.
-_DENSITY_SAMPLE = 5000
 
 
 @dataclass(frozen=True)
@@ -128,186 +123,6 @@ class LocalAttitudes:
         return len(self.x)
 
 
-def default_window_m(points, *, target_picks=DEFAULT_WINDOW_PICKS):
-    """Default window radius from the pick density.
-
-    Parameters
-    ----------
-    points : array_like, shape ``(n, 2)`` or ``(n, 3)``
-        Picks (only x, y are used).
-    target_picks : int, optional
-        Picks a typical window should hold (default 50).
-
-    Returns
-    -------
-    float
-        The median, over the picks (an even sample of at most 5000 of them), of the distance
-        to the ``target_picks``-th nearest other pick; so a window centred on a typical pick
-        holds about ``target_picks`` picks. It is capped at half the diagonal of the picks'
-        bounding box. Along a contact sampled every ``s`` metres this is about
-        ``target_picks · s / 2``.
-
-    Raises
-    ------
-    InputError
-        With fewer picks than ``target_picks + 1`` or all picks at one point.
-    """
-    xy = _xy(points)
-    target_picks = _check_count("target_picks", target_picks, 3)
-    n = len(xy)
-    if n <= target_picks:
-        raise InputError(
-            f"only {n} picks, fewer than the {target_picks + 1} needed to set a default window "
-            "from the pick density; give window_m explicitly"
-        )
-    tree = cKDTree(xy)
-    sample = xy[np.unique(np.linspace(0, n - 1, min(n, _DENSITY_SAMPLE)).astype(int))]
-    dist, _ = tree.query(sample, k=target_picks + 1)
-    radius = float(np.median(dist[:, -1]))
-    half_diag = 0.5 * float(np.hypot(*np.ptp(xy, axis=0)))
-    radius = min(radius, half_diag)
-    if not radius > 0:
-        raise InputError("all picks lie at one map position; no window can be set from them")
-    return radius
-
-
-def fallback_window_m(points, *, target_picks=DEFAULT_WINDOW_PICKS, min_points=DEFAULT_MIN_POINTS):
-    """A window radius for any pick set, and why it differs from the default (if it does).
-
-    Parameters
-    ----------
-    points : array_like, shape ``(n, 2)`` or ``(n, 3)``
-        Picks (only x, y are used).
-    target_picks, min_points : int, optional
-        As in :func:`default_window_m` and :func:`local_attitudes`.
-
-    Returns
-    -------
-    window_m : float or None
-        :func:`default_window_m` when there are more than ``target_picks`` picks; with fewer
-        but at least ``2 * min_points``, a window holding about half of them (so that windows
-        along a contact still differ); ``None`` when there are fewer (or all picks lie at one
-        map position): no local attitudes can be fitted.
-    note : str
-        Empty for the default window, else the reason in words.
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> x = np.arange(30.0) * 10.0
-    >>> r, note = fallback_window_m(np.column_stack([x, np.zeros(30)]))
-    >>> round(r), note.split(":")[0]
-    (80, 'only 30 picks, too few for the default window of about 50 picks')
-    """
-    xy = _xy(points)
-    target_picks = _check_count("target_picks", target_picks, 3)
-    min_points = _check_count("min_points", min_points, 4)
-    n = len(xy)
-    try:
-        if n > target_picks:
-            return default_window_m(xy, target_picks=target_picks), ""
-        if n >= 2 * min_points:
-            r = default_window_m(xy, target_picks=n // 2)
-            return r, (f"only {n} picks, too few for the default window of about {target_picks} picks: "
-                       f"windows of {r:.0f} m radius hold about {n // 2} picks each instead")
-        return None, (f"only {n} picks: local attitudes need at least {2 * min_points} (windows of at least "
-                      f"{min_points} picks), so none were fitted")
-    except InputError as exc:
-        return None, f"no local attitudes: {exc}"
-
-
-def centres_along_contacts(points, *, spacing_m, contact_id=None):
-    """Window centres along each contact, about ``spacing_m`` apart.
-
-    Parameters
-    ----------
-    points : array_like, shape ``(n, 2)`` or ``(n, 3)``
-        Picks, in their order along the contacts where known.
-    spacing_m : float
-        Spacing of centres (metres).
-    contact_id : array_like, shape ``(n,)``, optional
-        Contact of each pick; all picks form one contact when omitted.
-
-    Returns
-    -------
-    index : ndarray of int
-        Indices of the picks chosen as centres.
-    contact : ndarray of object
-        Contact of each centre (None when ``contact_id`` is omitted).
-
-    Notes
-    -----
-    Greedy thinning, per contact, in pick order: a pick becomes a centre unless it lies
-    within ``spacing_m`` of an earlier centre of the same contact. Centres are thus picks on
-    the contact, no two closer than ``spacing_m``, and every pick lies within ``spacing_m`` of a
-    centre.
-    """
-    xy = _xy(points)
-    spacing = _positive("spacing_m", spacing_m)
-    groups, labels = _groups(contact_id, len(xy))
-    index, contact = [], []
-    for g, members in enumerate(groups):
-        sub = xy[members]
-        tree = cKDTree(sub)
-        covered = np.zeros(len(sub), dtype=bool)
-        for i in range(len(sub)):
-            if covered[i]:
-                continue
-            covered[tree.query_ball_point(sub[i], spacing)] = True
-            index.append(members[i])
-            contact.append(labels[g])
-    out_contact = np.empty(len(contact), dtype=object)
-    out_contact[:] = contact
-    return np.asarray(index, dtype=np.int64), out_contact
-
-
-def grid_centres(points, *, spacing_m):
-    """Centres of a regular grid of ``spacing_m`` over the picks' bounding box.
-
-    The grid is anchored at multiples of ``spacing_m`` (so it does not move when picks are
-    added) and covers the bounding box; returns an ``(m, 2)`` array.
-    """
-    xy = _xy(points)
-    spacing = _positive("spacing_m", spacing_m)
-    lo = np.floor(xy.min(axis=0) / spacing) * spacing
-    hi = np.ceil(xy.max(axis=0) / spacing) * spacing
-    gx = np.arange(lo[0], hi[0] + 0.5 * spacing, spacing)
-    gy = np.arange(lo[1], hi[1] + 0.5 * spacing, spacing)
-    mx, my = np.meshgrid(gx, gy)
-    return np.column_stack([mx.ravel(), my.ravel()])
-
-
-def _xy(points):
-    p = np.asarray(points, dtype=float)
-    if p.ndim != 2 or p.shape[1] not in (2, 3):
-        raise InputError(f"picks must be an (n, 3) array of x, y, z; got shape {p.shape}")
-    if not np.all(np.isfinite(p[:, :2])):
-        raise InputError("picks must have finite x and y; drop rows with NaN first")
-    if len(p) == 0:
-        raise InputError("no picks were given; a local attitude needs picks")
-    return p[:, :2]
-
-
-def _positive(name, value):
-    v = float(value)
-    if not (np.isfinite(v) and v > 0):
-        raise InputError(f"{name} must be a positive number of metres, got {value!r}")
-    return v
-
-
-def _groups(contact_id, n):
-    if contact_id is None:
-        return [np.arange(n)], [None]
-    cid = np.asarray(contact_id)
-    if cid.shape != (n,):
-        raise InputError(f"contact_id must have one value per pick ({n}), got shape {cid.shape}")
-    labels, inverse = np.unique(cid, return_inverse=True)
-    order = np.argsort(inverse, kind="stable")
-    bounds = np.searchsorted(inverse[order], np.arange(len(labels) + 1))
-    groups = [order[bounds[g]:bounds[g + 1]] for g in range(len(labels))]
-    return groups, [lab.item() if hasattr(lab, "item") else lab for lab in labels]
-
-
 def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_MIN_POINTS,
                     contact_id=None, along_contacts=True, across_picks=True,
                     grid_spacing_m=None, method="bootstrap", n_resamples=200, sigma_z_m=None,
@@ -339,7 +154,8 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
     grid_spacing_m : float, optional
         Grid spacing; default ``window_m``.
     method : {"bootstrap", "analytic"}, optional
-        Confidence estimate per window (see :mod:`strikeline.attitude.confidence`).
+        Confidence estimate per window (see :mod:`strikeline.attitude.resampling` and
+        :mod:`strikeline.attitude.analytic`).
     n_resamples : int, optional
         Bootstrap resamples per window (default 200).
     sigma_z_m : float or array_like, shape ``(n,)``, optional
@@ -376,8 +192,8 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
     Notes
     -----
     Each window's plane is the total-least-squares fit of its picks (Fernández 2005); its
-    half-widths follow :func:`strikeline.attitude.confidence.bootstrap_plane` or
-    :func:`strikeline.attitude.confidence.analytic_plane_confidence`. Picks along a digitised contact
+    half-widths follow :func:`strikeline.attitude.resampling.bootstrap_plane` or
+    :func:`strikeline.attitude.analytic.analytic_plane_confidence`. Picks along a digitised contact
     share their errors over tens to hundreds of metres, so by default the bootstrap resamples
     whole blocks - the part of one contact inside one square of side ``block_m`` - within each
     window (a block bootstrap, Künsch 1989; Lahiri 2003), and widens the percentile half-widths
@@ -424,13 +240,13 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
     keep = np.all(np.isfinite(p), axis=1)
     n_all = len(p)
     p = p[keep]
-    _xy(p)
+    picks_xy(p)
     if method not in CONFIDENCE_METHODS:
         raise InputError(f"method must be one of {', '.join(CONFIDENCE_METHODS)}; got {method!r}")
-    min_points = _check_count("min_points", min_points, 4)
-    seed = _check_seed(seed)
+    min_points = check_count("min_points", min_points, 4)
+    seed = check_seed(seed)
     if method == "bootstrap":
-        n_resamples = _check_count("n_resamples", n_resamples, MIN_REPLICATES)
+        n_resamples = check_count("n_resamples", n_resamples, MIN_REPLICATES)
     sigma = None
     if sigma_z_m is not None:
         s = np.asarray(sigma_z_m, dtype=float)
@@ -444,7 +260,7 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
         if not np.any(sigma > 0):
             sigma = None
         else:
-            n_draws = _check_count("n_draws", n_draws, MIN_REPLICATES)
+            n_draws = check_count("n_draws", n_draws, MIN_REPLICATES)
     cid = None
     if contact_id is not None:
         cid = np.asarray(contact_id)
@@ -457,13 +273,13 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
         raise InputError(
             "no window centres: give centres, or set along_contacts or across_picks to true"
         )
-    radius = default_window_m(p) if window_m is None else _positive("window_m", window_m)
+    radius = default_window_m(p) if window_m is None else check_positive_m("window_m", window_m)
     if block_m is None:
         block_side = radius / 2.0
     elif float(block_m) == 0.0:
         block_side = None
     else:
-        block_side = _positive("block_m", block_m)
+        block_side = check_positive_m("block_m", block_m)
     xy = p[:, :2]
     tree = cKDTree(xy)
 
@@ -480,7 +296,7 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
         members += [np.asarray(ix, dtype=np.int64) for ix in tree.query_ball_point(c, radius)]
     else:
         if along_contacts:
-            groups, labels = _groups(cid, len(p))
+            groups, labels = contact_groups(cid, len(p))
             for g, grp in enumerate(groups):
                 idx, _ = centres_along_contacts(xy[grp], spacing_m=radius)
                 sub_tree = cKDTree(xy[grp])
@@ -492,8 +308,8 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
                 members += [grp[np.asarray(ix, dtype=np.int64)]
                             for ix in sub_tree.query_ball_point(cxy, radius)]
         if across_picks:
-            spacing = radius if grid_spacing_m is None else _positive("grid_spacing_m",
-                                                                     grid_spacing_m)
+            spacing = (radius if grid_spacing_m is None
+                       else check_positive_m("grid_spacing_m", grid_spacing_m))
             g = grid_centres(xy, spacing_m=spacing)
             found = tree.query_ball_point(g, radius)
             sizes = np.fromiter((len(ix) for ix in found), dtype=np.int64, count=len(found))
@@ -509,7 +325,7 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
     n_picks = np.fromiter((len(ix) for ix in members), dtype=np.int64, count=m)
     n_blocks = np.zeros(m, dtype=np.int64)
     fit = n_picks >= min_points
-    _check_callbacks(progress, is_cancelled, 0.05)
+    check_callbacks(progress, is_cancelled, 0.05)
 
     out = {name: np.full(m, np.nan) for name in (
         "elevation_m", "dip_deg", "dip_direction_deg", "strike_rhr_deg", "dip_ci95_deg",
@@ -535,7 +351,7 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
         normal = v[:, :, 0] * np.where(v[:, 2:3, 0] < 0, -1.0, 1.0)
         dd, dip = dip_from_normal(normal)
         relief = (np.maximum.reduceat(ps[:, 2], starts) - np.minimum.reduceat(ps[:, 2], starts))
-        _check_callbacks(progress, is_cancelled, 0.15)
+        check_callbacks(progress, is_cancelled, 0.15)
 
         def sub(lo, hi):
             if progress is None:
@@ -545,32 +361,32 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
         if method == "bootstrap":
             rng = np.random.default_rng(seed)
             if block_side is None:
-                normals = _bootstrap_normals(q, counts, n_resamples, rng,
-                                             sub(0.15, 0.6 if sigma is not None else 0.95),
-                                             is_cancelled)
-                dip_ci, dd_ci, cone = _replicate_half_widths(normal, normals)
-                tilt_cov = _replicate_tilt_cov(normal, normals)
+                normals = bootstrap_normals(q, counts, n_resamples, rng,
+                                            sub(0.15, 0.6 if sigma is not None else 0.95),
+                                            is_cancelled)
+                dip_ci, dd_ci, cone = replicate_half_widths(normal, normals)
+                tilt_cov = replicate_tilt_cov(normal, normals)
             else:
                 seg = segment_groups(p[:, 0], p[:, 1], np.zeros(len(p)) if cid is None else cid,
                                      block_m=block_side)
-                normals, n_blocks[wi] = _window_block_normals(
+                normals, n_blocks[wi] = window_block_normals(
                     q, counts, seg[slot_pick], n_resamples, rng,
                     sub(0.15, 0.6 if sigma is not None else 0.95), is_cancelled)
                 g = np.maximum(n_blocks[wi], MIN_WINDOW_BLOCKS)
-                dip_ci, dd_ci, cone = _expand_for_few_blocks(*_replicate_half_widths(normal, normals), g)
-                tilt_cov = _replicate_tilt_cov(normal, normals) * (_few_blocks_factor(g) ** 2)[:, None, None]
+                dip_ci, dd_ci, cone = expand_for_few_blocks(*replicate_half_widths(normal, normals), g)
+                tilt_cov = replicate_tilt_cov(normal, normals) * (few_blocks_factor(g) ** 2)[:, None, None]
         else:
-            cov = _analytic_covariance_from_eigen(w, v, counts, w[:, 0] / (counts - 3))
-            dip_ci, dd_ci, cone = _confidence_from_covariance(normal, cov)
-            tilt_cov = _tilt_cov_from_normal_cov(normal, cov)
+            cov = analytic_covariance_from_eigen(w, v, counts, w[:, 0] / (counts - 3))
+            dip_ci, dd_ci, cone = half_widths_from_covariance(normal, cov)
+            tilt_cov = tilt_cov_from_normal_cov(normal, cov)
         if sigma is not None:
             rng = np.random.default_rng(seed + 1)
-            normals = _monte_carlo_normals(q, counts, scatter, sigma[slot_pick], n_draws, rng,
-                                           sub(0.6, 0.95), is_cancelled)
-            mc = _replicate_half_widths(normal, normals)
-            dip_ci, dd_ci, cone = _combine_arrays([dip_ci, mc[0]], [dd_ci, mc[1]],
-                                                  [cone, mc[2]], dip)
-            tilt_cov = tilt_cov + _replicate_tilt_cov(normal, normals)
+            normals = monte_carlo_normals(q, counts, scatter, sigma[slot_pick], n_draws, rng,
+                                          sub(0.6, 0.95), is_cancelled)
+            mc = replicate_half_widths(normal, normals)
+            dip_ci, dd_ci, cone = combine_half_widths([dip_ci, mc[0]], [dd_ci, mc[1]],
+                                                      [cone, mc[2]], dip)
+            tilt_cov = tilt_cov + replicate_tilt_cov(normal, normals)
         qual, code, cop, col = classify_planes(
             w[:, ::-1], n_points=counts, relief_m=relief,
             sigma_z_m=None if sigma is None else float(np.median(sigma)),
@@ -587,7 +403,7 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
         out["rms_m"][wi] = np.sqrt(w[:, 0] / counts)
         shown = qual != "undetermined"
         # horizontal within the confidence: the dip is given, the direction and strike are not
-        directed = shown & dip_is_significant(dip, dip_ci, _tilt_z2(_tilt_of_normals(normal), tilt_cov))
+        directed = shown & dip_is_significant(dip, dip_ci, tilt_z2(tilt_of_normals(normal), tilt_cov))
         # the horizontal lies in the 95% region of the tilt: the dip's interval reaches 0
         dip_ci = np.where(shown & ~directed, np.maximum(dip_ci, dip), dip_ci)
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -600,7 +416,7 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
                                    ("dip_ci95_deg", dip_ci, shown), ("dip_direction_ci95_deg", dd_ci, directed),
                                    ("cone95_deg", cone, shown)):
             out[name][wi] = np.where(mask, values, np.nan)
-    _check_callbacks(progress, is_cancelled, 1.0)
+    check_callbacks(progress, is_cancelled, 1.0)
     contact_arr = np.empty(m, dtype=object)
     contact_arr[:] = contacts
     return LocalAttitudes(

@@ -61,7 +61,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from strikeline.errors import InputError
-from strikeline.geometry.orientation import _components
+from strikeline.geometry.orientation import vector_components
 
 __all__ = [
     "PlaneQuality",
@@ -236,7 +236,7 @@ def shape_measures(eigenvalues):
     with np.errstate(divide="ignore", invalid="ignore"):
         floor = w[..., :1] * _EIG_FLOOR
         w = np.maximum(w, floor)
-        l1, l2, l3 = _components(w)
+        l1, l2, l3 = vector_components(w)
         m = np.log(l1 / l3)
         num = np.log(l1 / l2)
         den = np.log(l2 / l3)
@@ -407,7 +407,7 @@ def assess_plane(data, *, relief_m=None, sigma_z_m=None, min_relief_m=DEFAULT_MI
         Least elevation range that can show a dip (default 1 m).
     dip_ci95_deg : float, optional
         95% dip half-width of the fitted plane (e.g. from
-        :func:`strikeline.attitude.confidence.plane_confidence`).
+        :func:`strikeline.attitude.resampling.plane_confidence`).
     max_good_dip_ci95_deg : float, optional
         Largest half-width still ``"good"`` (default 5°).
 

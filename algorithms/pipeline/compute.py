@@ -11,7 +11,7 @@ from strikeline.attitude.fitting import PlaneFit
 from strikeline.geometry.grid import Grid
 from strikeline.maps.dipgrids import dip_grids
 from strikeline.io.files import json_ready
-from strikeline.attitude.local import LocalAttitudes, fallback_window_m, local_attitudes
+from strikeline.attitude import LocalAttitudes, fallback_window_m, local_attitudes
 from strikeline.picks import (PickSet)
 from strikeline.surfaces.core import SurfaceModel
 from strikeline.maps.thickness import isopach_grids

@@ -24,8 +24,13 @@ from strikeline.picks import (PickSet, ground_slope_from_contours, picks_from_co
 from strikeline.surfaces.core import SurfaceModel, fit_surface
 from strikeline.maps.trace import (contact_misfit_segments, distance_to_lines, holdout_misfit_segments, split_lines_by_flag,
                               trace_misfit)
-from strikeline.attitude.confidence import (PlaneConfidence, contour_sigma_to_vertical, dip_is_significant, plane_confidence,
-                                   vertical_sigma_of_picks)
+from strikeline.attitude import (
+    PlaneConfidence,
+    contour_sigma_to_vertical,
+    dip_is_significant,
+    plane_confidence,
+    vertical_sigma_of_picks,
+)
 from strikeline.pipeline.inputs import Inputs
 from strikeline.pipeline.options import Log, RunOptions, SPLINE_SMOOTHING, _quiet
 

@@ -6,8 +6,8 @@ import pytest
 
 from strikeline.errors import CancelledError, InputError, UndeterminedError
 from strikeline.attitude.fitting import fit_plane
-from strikeline.geometry.orientation import angle_between_normals, azimuth_difference, normal_from_dip
-from strikeline.attitude.confidence import (
+from strikeline.geometry import angle_between_normals, azimuth_difference, normal_from_dip
+from strikeline.attitude import (
     PlaneConfidence,
     analytic_plane_confidence,
     analytic_plane_covariance,
@@ -346,7 +346,7 @@ def test_block_bootstrap_covers_the_truth_when_picks_share_errors():
     # Source: Kuensch 1989 / Lahiri 2003 - resampling whole blocks keeps the dependence within
     # them; resampling single picks treats one shared error as many independent ones, so its
     # 95% intervals miss the truth far more often than 5% of the time.
-    from strikeline.attitude.confidence import bootstrap_plane
+    from strikeline.attitude import bootstrap_plane
 
     hit_block = hit_pick = 0
     n_sets = 40
@@ -363,7 +363,7 @@ def test_block_bootstrap_covers_the_truth_when_picks_share_errors():
 
 
 def test_block_bootstrap_falls_back_to_picks_with_few_blocks():
-    from strikeline.attitude.confidence import MIN_BOOTSTRAP_BLOCKS, bootstrap_plane
+    from strikeline.attitude import MIN_BOOTSTRAP_BLOCKS, bootstrap_plane
 
     pts, lab = _segment_correlated_picks(0, n_segments=MIN_BOOTSTRAP_BLOCKS - 1)
     assert bootstrap_plane(pts, n_resamples=100, groups=lab).method == "bootstrap"
@@ -378,7 +378,7 @@ def test_dip_significance_of_horizontal_and_gently_dipping_planes():
     # in at most about 5%; a 1 degree dip, 70 times its standard error here, always is.
     from scipy.stats import chi2
 
-    from strikeline.attitude.confidence import CHI2_2DOF_95, dip_is_significant, plane_confidence
+    from strikeline.attitude import CHI2_2DOF_95, dip_is_significant, plane_confidence
 
     n_sets, hits_flat, hits_gentle = 60, 0, 0
     for seed in range(n_sets):
@@ -413,7 +413,7 @@ def test_tilt_covariance_and_its_mahalanobis_distance():
     # 5.74 deg toward 090) with a tilt variance of 0.02^2 along the dip and 0.5^2 across it:
     # z2 = (0.1 / 0.02)^2 = 25; the spread across the dip (a strike poorly fixed) does not make
     # the plane horizontal
-    from strikeline.attitude.confidence import PlaneConfidence
+    from strikeline.attitude import PlaneConfidence
 
     c = PlaneConfidence(0.5, 180.0, 20.0, 100, "bootstrap", float(np.degrees(np.arcsin(0.1))), 90.0, 50,
                         (0.02 ** 2, 0.0, 0.0, 0.5 ** 2))
@@ -423,7 +423,7 @@ def test_tilt_covariance_and_its_mahalanobis_distance():
                         (0.5 ** 2, 0.0, 0.0, 0.02 ** 2))
     assert c.horizontal_z2 == pytest.approx(0.04, rel=1e-9) and not c.dip_significant
     # replicate-based and analytic tilt covariances of the same noisy plane agree (first order)
-    from strikeline.attitude.confidence import analytic_plane_confidence, bootstrap_plane
+    from strikeline.attitude import analytic_plane_confidence, bootstrap_plane
 
     rng = np.random.default_rng(3)
     xy = rng.uniform(0, 1000, (400, 2))

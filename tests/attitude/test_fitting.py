@@ -4,7 +4,7 @@ import pytest
 
 from strikeline.errors import UndeterminedError
 from strikeline.attitude.fitting import fit_plane, plane_elevation
-from strikeline.geometry.orientation import dip_from_normal, normal_from_dip, three_point
+from strikeline.geometry import dip_from_normal, normal_from_dip, three_point
 
 # common practice: a surface falling 600 m over 1,200 m measured perpendicular to strike
 # dips atan(600/1200) = atan(0.5) = 26.565 degrees.

@@ -16,7 +16,7 @@ import shapely
 from osgeo import gdal, ogr, osr
 
 from conftest import run_cli, write_lines
-from strikeline.geometry.orientation import azimuth_difference, normal_from_dip
+from strikeline.geometry import azimuth_difference, normal_from_dip
 
 gdal.UseExceptions()
 

@@ -4,14 +4,14 @@ import pytest
 from scipy.spatial.distance import cdist
 
 from strikeline.errors import CancelledError, InputError
-from strikeline.attitude.local import (
+from strikeline.attitude import (
     DEFAULT_WINDOW_PICKS,
     centres_along_contacts,
     default_window_m,
     grid_centres,
     local_attitudes,
 )
-from strikeline.geometry.orientation import azimuth_difference, normal_from_dip, strike_from_dip_direction
+from strikeline.geometry import azimuth_difference, normal_from_dip, strike_from_dip_direction
 
 # Analytic truth (our own synthetic dome): the cone z = TOP - tan(DOME_DIP) * r dips DOME_DIP
 # everywhere, toward the azimuth pointing away from its apex, so the local RHR strike at a point

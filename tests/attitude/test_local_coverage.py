@@ -25,8 +25,8 @@ import shapely
 
 from conftest import DEMO, REPO
 from strikeline import pipeline as pl
-from strikeline.attitude.local import local_attitudes
-from strikeline.geometry.orientation import azimuth_difference
+from strikeline.attitude import local_attitudes
+from strikeline.geometry import azimuth_difference
 
 #: Issue 8's target for the coverage of 95% intervals.
 COVERAGE_RANGE = (0.90, 0.99)

@@ -13,7 +13,7 @@ from strikeline.attitude.quality import (
     shape_measures,
 )
 from strikeline.errors import InputError
-from strikeline.geometry.orientation import normal_from_dip
+from strikeline.geometry import normal_from_dip
 
 # Source: Woodcock (1977), GSA Bulletin 88, 1231-1236: M = ln(l1/l3), K = ln(l1/l2)/ln(l2/l3)
 # (definitions from memory, as quoted in the issue). Hand-worked: eigenvalues (e^6, e^3, 1)

@@ -3,7 +3,7 @@ import numpy as np
 import pytest
 
 from strikeline.errors import InputError, UndeterminedError
-from strikeline.geometry.orientation import (
+from strikeline.geometry import (
     angle_between_normals,
     apparent_dip,
     apparent_dip_from_strike_angle,

@@ -4,7 +4,7 @@ import pytest
 
 from strikeline.errors import CancelledError, InputError
 from strikeline.geometry.grid import Grid
-from strikeline.geometry.orientation import normal_from_dip
+from strikeline.geometry import normal_from_dip
 from strikeline.maps.thickness import (
     isopach_grids,
     outcrop_width_gives_thickness,

@@ -15,7 +15,7 @@ from osgeo import ogr
 from scipy.spatial.distance import cdist
 
 from conftest import run_cli
-from strikeline.attitude.local import DEFAULT_MIN_POINTS, DEFAULT_WINDOW_PICKS
+from strikeline.attitude import DEFAULT_MIN_POINTS, DEFAULT_WINDOW_PICKS
 
 #: Plane recovered from exact DEM picks of the exact trace (tolerance of tests/test_cli.py).
 DIP_TOL_DEG = 0.5
