@@ -14,7 +14,7 @@ from qgis.core import (
     QgsWkbTypes,
 )
 
-from strikeline.pipeline import attitude_of, segment_labels
+from strikeline.pipeline.planes import group_labels, point_planes
 from strikeline.attitude import MIN_REPLICATES
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
@@ -144,30 +144,20 @@ class PlaneAttitude(StrikelineAlgorithm):
         numeric = ("contact_id",) if "contact_id" in picks_src.fields().names() else ()
         xyz, source, _, name, extra = read_picks(self, parameters, context, steps, fields=numeric,
                                                  text_fields=(group_by,) if group_by else ())
-        ok = np.isfinite(xyz).all(axis=1)
-        if (~ok).any():
-            steps.warn(f"{int((~ok).sum())} of {len(xyz)} picks have no elevation and are left out")
-        xyz = xyz[ok]
-        labels = None if not group_by else np.array([str(v) for v in extra[group_by][ok]], dtype=object)
-        sigma = self.parameterAsDouble(parameters, self.SIGMA_Z, context)
-        resamples = self.parameterAsInt(parameters, self.RESAMPLES, context)
-        seed = self.parameterAsInt(parameters, self.SEED, context)
-        crs_wkt = wkt_of_crs(source.sourceCrs())
-        sigma_all = np.full(len(xyz), sigma) if sigma > 0 else None
-        # picks with a contact_id are bootstrapped by contact segment, as strikeline run does
-        blocks = segment_labels(xyz, extra["contact_id"][ok]) if "contact_id" in extra else None
-
-        def plane_of(mask, what):
-            s = None if sigma_all is None else sigma_all[mask]
-            att = attitude_of(xyz[mask], s, crs_wkt=crs_wkt, what=what, strict=False, resamples=resamples,
-                              seed=seed, blocks=None if blocks is None else blocks[mask],
-                              is_cancelled=steps.is_cancelled)
-            where = att.get("centroid") or (xyz[mask].mean(axis=0).tolist() if mask.any() else [np.nan] * 3)
-            return att, where
-
+        labels = group_labels(extra[group_by]) if group_by else None
         steps.feedback.setProgress(10)
-        whole, where = plane_of(np.ones(len(xyz), dtype=bool), f"picks {name.what}")
-        planes = [("", whole, where)]
+        # picks with a contact_id are bootstrapped by contact segment, as strikeline run does
+        pp = point_planes(xyz, crs_wkt=wkt_of_crs(source.sourceCrs()), labels=labels,
+                          contact_id=extra.get("contact_id"),
+                          sigma_z_m=self.parameterAsDouble(parameters, self.SIGMA_Z, context),
+                          what=f"picks {name.what}", group_what=f"group {group_by} = {{}}",
+                          resamples=self.parameterAsInt(parameters, self.RESAMPLES, context),
+                          seed=self.parameterAsInt(parameters, self.SEED, context),
+                          progress=steps.part(0.1, 0.9), is_cancelled=steps.is_cancelled)
+        if pp.n_missing:
+            steps.warn(f"{pp.n_missing} of {pp.n_points + pp.n_missing} picks have no elevation and are left out")
+        whole = pp.plane
+        planes = [("", whole, pp.location)] + [(g, att, pp.group_locations[g]) for g, att in pp.groups.items()]
         if whole.get("dip") is not None and whole.get("dip_direction") is None:
             steps.log(f"best-fit plane: dip {whole['dip']:.3f}° ± {whole.get('dip_ci95') or 0:.3f}°, horizontal "
                       f"within its 95% confidence: no dip direction or strike; RMS residual {whole['rms_m']:.2f} m "
@@ -180,14 +170,8 @@ class PlaneAttitude(StrikelineAlgorithm):
                 steps.log(f"95% confidence ({whole['confidence_method']}): dip ± {whole['dip_ci95']:.3f}°, "
                           f"dip direction ± {whole['dip_direction_ci95']:.3f}°, pole cone {whole['cone95']:.3f}°")
         report_quality(steps, whole)
-        if labels is not None:
-            groups = sorted(set(labels.tolist()))
-            for k, g in enumerate(groups):
-                steps.check("plane attitude")
-                att, at = plane_of(labels == g, f"group {group_by} = {g}")
-                report_quality(steps, att, f"group {g}")
-                planes.append((g, att, at))
-                steps.feedback.setProgress(10 + 80 * (k + 1) / len(groups))
+        for g, att in pp.groups.items():
+            report_quality(steps, att, f"group {g}")
         steps.check("plane attitude")
         dest = write_sink(self, parameters, self.OUTPUT, context, attitude_table(planes), source.sourceCrs())
         attach_style(context, dest, "attitude")

@@ -141,52 +141,39 @@ def load_points(args):
 # --------------------------------------------------------------------------- computing
 def compute(args, *, log=lambda m: print(m, file=sys.stderr)) -> dict:
     """Everything ``attitude`` reports, as a JSON-ready dict (rounded floats, null for inf/NaN)."""
-    import numpy as np
-
     from strikeline import __version__
     from strikeline.io.crs import crs_label
     from strikeline.io.files import file_sha256, json_ready
-    from strikeline.pipeline import attitude_of, segment_labels
+    from strikeline.pipeline.planes import point_planes
 
     layer, xyz, labels, source, cid = load_points(args)
-    usable = np.all(np.isfinite(xyz), axis=1)
-    n_missing = int((~usable).sum())
+    # Points with a contact_id (the picks of strikeline run) are bootstrapped by contact segment,
+    # as run does, because neighbouring picks along a contact share their errors.
+    planes = point_planes(xyz, crs_wkt=layer.crs_wkt, labels=labels, contact_id=cid, sigma_z_m=args.dem_sigma_m,
+                          what=f"points {layer.what}", group_what=f"group {args.group_by} = {{}}",
+                          resamples=args.resamples, seed=args.seed)
+    n_missing = planes.n_missing
     if n_missing:
         log(f"warning: {n_missing} of {len(xyz)} points have no elevation ({source} is empty) "
             "and are left out")
-    xyz = xyz[usable]
-    labels = None if labels is None else labels[usable]
-    crs_wkt = layer.crs_wkt
-    sigma_all = None if args.dem_sigma_m == 0 else np.full(len(xyz), args.dem_sigma_m)
-
-    # Points with a contact_id (the picks of strikeline run) are bootstrapped by contact segment,
-    # as run does, because neighbouring picks along a contact share their errors.
-    blocks = None if cid is None else segment_labels(xyz, cid[usable])
-
-    def plane_of(mask, what):
-        sigma = None if sigma_all is None else sigma_all[mask]
-        return attitude_of(xyz[mask], sigma, crs_wkt=crs_wkt, what=what, strict=False,
-                           resamples=args.resamples, seed=args.seed,
-                           blocks=None if blocks is None else blocks[mask])
 
     result = {
         "version": __version__,
         "crs": crs_label(layer.crs_wkt),
         "points": {"file": os.path.basename(args.points), "sha256": file_sha256(args.points),
                    "layer": layer.layer_name, "where": args.where, "elevation_from": source},
-        "n_points": int(len(xyz)),
+        "n_points": planes.n_points,
         "n_points_without_elevation": n_missing,
         "options": {"dem_sigma_m": args.dem_sigma_m, "resamples": args.resamples, "seed": args.seed,
                     "group_by": args.group_by},
-        "plane": plane_of(np.ones(len(xyz), dtype=bool), f"points {layer.what}"),
+        "plane": planes.plane,
         "conventions": "dip direction 0-360 clockwise from grid north of the CRS (dip_direction_true "
                        "from true north); dip 0-90 from horizontal; strike by the right-hand rule "
                        "(dip to the right); *_ci95 are 95% half-widths in degrees",
         "caution": CAUTION,
     }
     if labels is not None:
-        result["groups"] = {g: plane_of(labels == g, f"group {args.group_by} = {g}")
-                            for g in sorted(set(labels.tolist()))}
+        result["groups"] = planes.groups
     return json_ready(result)
 
 

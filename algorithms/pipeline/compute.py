@@ -18,6 +18,7 @@ from strikeline.maps.thickness import isopach_grids
 from strikeline.maps.trace import (vertex_spacing_m)
 from strikeline.pipeline.inputs import Inputs
 from strikeline.pipeline.options import Log, RunOptions, _quiet
+from strikeline.pipeline.planes import group_labels, planes_by_group
 from strikeline.pipeline.steps import attitude_of, collect_picks, contact_segments, depth_trace_misfit, fit_picks, log_model_choice, model_surface, pick_sigmas, structure_contours, surface_grid
 from strikeline.pipeline.summary import build_summary
 from strikeline.pipeline.units import map_unit_bounds, map_unit_check
@@ -91,11 +92,8 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     groups = {}
     if opts.group_by:
         values = dict(zip(inputs.contacts.fids.tolist(), inputs.contacts.fields[opts.group_by].tolist()))
-        labels = np.array([str(values.get(int(c))) for c in picks.contact_id], dtype=object)
-        for g in sorted(set(labels.tolist())):
-            m = labels == g
-            groups[g] = attitude_of(picks.xyz[m], sigma[m], what=f"group {g}", strict=False, blocks=blocks[m],
-                                    **conf_opts)
+        labels = group_labels([values.get(int(c)) for c in picks.contact_id])
+        groups = planes_by_group(picks.xyz, labels, sigma=sigma, blocks=blocks, **conf_opts)
     step(2)
     window, window_note = ((opts.window_m, "") if opts.window_m is not None
                            else fallback_window_m(picks.xyz))
