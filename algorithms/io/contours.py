@@ -2,11 +2,10 @@
 
 The grid is handed to GDAL's contour generator as an in-memory raster that views the numpy
 array (no file), the lines are collected in an in-memory OGR layer and come back as shapely 2
-LineStrings with their elevations.
+LineStrings with their elevations. The checks of the levels and the trimming of the lines to
+the valid cell centres need no GDAL and live in :mod:`strikeline.maps.contours`.
 """
 from __future__ import annotations
-
-import numbers
 
 import numpy as np
 import shapely
@@ -15,108 +14,19 @@ from osgeo import gdal, gdal_array, ogr
 from strikeline.errors import InputError, RasterReadError
 from strikeline.geometry.grid import Grid, check_grid_array
 from strikeline.io._gdal import gdal_exceptions, gdal_message
+from strikeline.maps.contours import check_contour_levels, trim_contour_fringe
 
 __all__ = ["contour_lines"]
 
 _ELEV_FIELD = "elevation_m"
 
 
-def _finite_number(value, name: str) -> float:
-    if isinstance(value, bool) or not isinstance(value, (numbers.Real, np.floating, np.integer)):
-        raise InputError(f"{name} must be a number in metres, got {value!r}; pass a float")
-    v = float(value)
-    if not np.isfinite(v):
-        raise InputError(f"{name} must be finite, got {v}; pass a finite number of metres")
-    return v
-
-
 def _level_options(interval_m, levels, base_m) -> list[str]:
-    if levels is not None:
-        lv = np.atleast_1d(np.asarray(levels, dtype=float)) if not isinstance(levels, str) else None
-        if lv is None or lv.ndim != 1 or lv.size == 0 or not np.all(np.isfinite(lv)):
-            raise InputError(
-                f"levels must be a non-empty list of finite elevations in metres, got {levels!r}; "
-                "for example levels=[0.0]"
-            )
-        return ["FIXED_LEVELS=" + ",".join(f"{v:.17g}" for v in np.unique(lv))]
-    if interval_m is None:
-        raise InputError(
-            "contour_lines needs interval_m (spacing of the levels in metres) or levels "
-            "(a list of elevations); neither was given"
-        )
-    step = _finite_number(interval_m, "interval_m")
-    if step <= 0:
-        raise InputError(f"interval_m must be positive, got {step}; pass for example 50.0")
-    base = _finite_number(base_m, "base_m")
+    """GDAL's contour options for the checked levels (:func:`check_contour_levels`)."""
+    fixed, step, base = check_contour_levels(interval_m=interval_m, levels=levels, base_m=base_m)
+    if fixed is not None:
+        return ["FIXED_LEVELS=" + ",".join(f"{v:.17g}" for v in fixed)]
     return [f"LEVEL_INTERVAL={step:.17g}", f"LEVEL_BASE={base:.17g}"]
-
-
-def _supported(xy: np.ndarray, valid: np.ndarray, grid: Grid) -> np.ndarray:
-    """True for vertices that are linear interpolations between valid cell centres.
-
-    A vertex at fractional pixel position ``(c, r)`` (cell centres at integers) needs the
-    centres ``floor/ceil`` of ``c`` and of ``r``; on a side between two centres that is two
-    centres, inside a cell square four.
-    """
-    col, row = grid.xy_to_colrow(xy[:, 0], xy[:, 1])
-    # Snap round-off so that vertices GDAL placed on a centre line count as on it.
-    eps = 1e-7
-    col = np.where(np.abs(col - np.rint(col)) < eps, np.rint(col), col)
-    row = np.where(np.abs(row - np.rint(row)) < eps, np.rint(row), row)
-    rows, cols = valid.shape
-    ok = (col >= 0) & (col <= cols - 1) & (row >= 0) & (row <= rows - 1)
-    c0 = np.floor(np.where(ok, col, 0)).astype(np.intp)
-    r0 = np.floor(np.where(ok, row, 0)).astype(np.intp)
-    c1 = np.ceil(np.where(ok, col, 0)).astype(np.intp)
-    r1 = np.ceil(np.where(ok, row, 0)).astype(np.intp)
-    ok &= valid[r0, c0] & valid[r0, c1] & valid[r1, c0] & valid[r1, c1]
-    return ok
-
-
-def _trim_fringe(geoms: np.ndarray, elev: np.ndarray, valid: np.ndarray, grid: Grid):
-    """Cut GDAL's half-cell extrapolated stubs; split lines where they leave the data."""
-    if geoms.size == 0:
-        return geoms, elev
-    coords, owner = shapely.get_coordinates(geoms, return_index=True)
-    keep = _supported(coords, valid, grid)
-    if keep.all():
-        return geoms, elev
-    parts_xy, parts_owner = [], []
-    starts = np.r_[0, np.flatnonzero(np.diff(owner)) + 1]
-    ends = np.r_[starts[1:], owner.size]
-    closed = shapely.is_closed(geoms)
-    for g_i, (s, e) in enumerate(zip(starts, ends)):
-        k = keep[s:e]
-        if k.all():
-            parts_xy.append(coords[s:e])
-            parts_owner.append(np.full(e - s, g_i))
-            continue
-        if not k.any():
-            continue
-        xy = coords[s:e]
-        if closed[g_i]:
-            # Rotate a ring to start outside the data, so that the piece running through its
-            # start/end point comes back as one line, not two.
-            shift = int(np.flatnonzero(~k[:-1])[0])
-            xy = np.roll(xy[:-1], -shift, axis=0)
-            k = np.roll(k[:-1], -shift)
-        # Runs of consecutive supported vertices with at least two vertices.
-        edges = np.diff(np.r_[0, k.astype(np.int8), 0])
-        run_s = np.flatnonzero(edges == 1)
-        run_e = np.flatnonzero(edges == -1)
-        for a, b in zip(run_s, run_e):
-            if b - a >= 2:
-                parts_xy.append(xy[a:b])
-                parts_owner.append(np.full(b - a, g_i))
-    if not parts_xy:
-        return np.empty(0, dtype=object), np.empty(0, dtype=np.float64)
-    xy = np.concatenate(parts_xy)
-    own = np.concatenate(parts_owner)
-    run_len = np.array([len(p) for p in parts_xy])
-    part_id = np.repeat(np.arange(len(parts_xy)), run_len)
-    lines = shapely.linestrings(xy, indices=part_id)
-    first = np.r_[0, np.cumsum(run_len)[:-1]]
-    return np.asarray(lines, dtype=object), elev[own[first]].astype(np.float64)
 
 
 def contour_lines(array, grid: Grid, *, interval_m=None, levels=None, base_m=0.0,
@@ -244,5 +154,5 @@ def contour_lines(array, grid: Grid, *, interval_m=None, levels=None, base_m=0.0
     geoms = np.asarray(shapely.force_2d(geoms), dtype=object)
     elevation = np.asarray(elev, dtype=np.float64)
     if trim_fringe:
-        geoms, elevation = _trim_fringe(geoms, elevation, ~nan_mask, grid)
+        geoms, elevation = trim_contour_fringe(geoms, elevation, ~nan_mask, grid)
     return geoms, elevation

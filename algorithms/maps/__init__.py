@@ -1,6 +1,12 @@
 """Grids and lines drawn from a surface: dip and depth grids, predicted trace and misfit QA,
-thickness and isopachs.
+thickness and isopachs, and contour lines checked and trimmed to the data (GDAL traces them, in
+:mod:`strikeline.io.contours`).
 """
+from strikeline.maps.contours import (  # noqa: F401
+    check_contour_levels,
+    supported_vertices,
+    trim_contour_fringe,
+)
 from strikeline.maps.dipgrids import (  # noqa: F401
     dip_grids,
     depth_below_ground,

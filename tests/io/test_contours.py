@@ -1,4 +1,5 @@
-"""Contour lines of grids through GDAL's contour generator (strikeline.io.contours).
+"""Contour lines of grids through GDAL's contour generator (strikeline.io.contours); the
+checks of levels and the trimming without GDAL are tested in tests/maps/test_map_contours.py.
 
 The reference for positions is the analytic surface the grid samples (a plane or a ramp,
 where linear interpolation between cell centres is exact); GDAL's contour generator is the
@@ -15,7 +16,7 @@ from strikeline.errors import InputError, RasterReadError
 from strikeline.geometry.grid import Grid
 from strikeline.io.contours import contour_lines
 
-#: Vertices of a contour of a plane lie on the plane (issue 2: within 0.01 m).
+#: Vertices of a contour of a plane lie on the plane within 0.01 m (the project's tolerance).
 ON_PLANE_TOL_M = 0.01
 
 # Source: the analytic plane z = Z0 + GX*(x - X0) + GY*(y - Y0), sampled at cell centres
@@ -200,20 +201,13 @@ def test_zero_line_of_an_oblique_ramp():
 
 # --- errors and GDAL state ---------------------------------------------------------------
 
-@pytest.mark.parametrize("kwargs,match", [
-    ({}, "needs interval_m .* or levels"),
-    ({"interval_m": 0.0}, "interval_m must be positive, got 0.0"),
-    ({"interval_m": -5}, "interval_m must be positive, got -5.0"),
-    ({"interval_m": float("nan")}, "interval_m must be finite"),
-    ({"interval_m": "50"}, "interval_m must be a number"),
-    ({"interval_m": 10.0, "base_m": float("inf")}, "base_m must be finite"),
-    ({"levels": []}, "levels must be a non-empty list"),
-    ({"levels": [0.0, float("nan")]}, "levels must be a non-empty list of finite"),
-])
-def test_bad_levels_are_refused(kwargs, match):
+def test_bad_levels_are_refused_by_the_level_checks():
+    # the checks themselves: tests/maps/test_map_contours.py
     g = _grid(rows=4, cols=4)
-    with pytest.raises(InputError, match=match):
-        contour_lines(_plane_grid(g), g, **kwargs)
+    with pytest.raises(InputError, match="needs interval_m .* or levels"):
+        contour_lines(_plane_grid(g), g)
+    with pytest.raises(InputError, match="interval_m must be positive, got -5.0"):
+        contour_lines(_plane_grid(g), g, interval_m=-5)
 
 
 @pytest.mark.parametrize("array,match", [
