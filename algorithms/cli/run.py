@@ -128,7 +128,10 @@ def describe_plane(pl: dict) -> str:
             f"RMS residual {pl['rms_m']:.2f} m, {pl['n_picks']} picks, quality {pl['quality']}")
 
 
-def report(results, out, stream=sys.stdout) -> None:
+def report(results, out, stream=None) -> None:
+    # sys.stdout is looked up at each call, not bound at import, so that a caller that redirects
+    # it (tests running the command in process) gets the report
+    stream = stream or sys.stdout
     s = results.summary
     pl = s["plane"]
     src = s["picks_by_source"]
