@@ -1,4 +1,6 @@
-"""Confidence of fitted planes (strikeline.attitude.confidence)."""
+"""Confidence of fitted planes: bootstrap and Monte Carlo (strikeline.attitude.resampling), analytic
+covariance (strikeline.attitude.analytic), combination and dip significance
+(strikeline.attitude.confidence)."""
 import dataclasses
 
 import numpy as np
@@ -13,10 +15,8 @@ from strikeline.attitude import (
     analytic_plane_covariance,
     bootstrap_plane,
     combine_confidence,
-    contour_sigma_to_vertical,
     monte_carlo_plane,
     plane_confidence,
-    vertical_sigma_of_picks,
 )
 
 # common practice: the hand estimate of dip from structure contours is good to a degree or two,
@@ -298,27 +298,6 @@ def test_plane_confidence_adds_data_error_when_stated():
     assert both.method == "bootstrap+monte_carlo"
     assert both.dip_ci95_deg > boot.dip_ci95_deg
     assert dataclasses.asdict(both)["n_points"] == 200
-
-
-# ---- contour and DEM errors ------------------------------------------------------------------
-
-def test_contour_sigma_through_the_ground_slope():
-    # Source: a horizontal shift s on ground of slope sigma changes elevation by s tan(sigma)
-    # (used in reverse by the U.S. National Map Accuracy Standards, 1947; from memory)
-    assert np.allclose(contour_sigma_to_vertical(5.0, [0.0, 45.0, 26.5650511771]),
-                       [0.0, 5.0, 2.5])
-    with pytest.raises(InputError, match="slope_deg"):
-        contour_sigma_to_vertical(5.0, 90.0)
-
-
-def test_vertical_sigma_of_picks_by_source():
-    got = vertical_sigma_of_picks(["dem", "contours", "contours"], [10.0, 45.0, 0.0],
-                                  dem_sigma_m=1.5, contour_sigma_m=4.0)
-    assert np.allclose(got, [1.5, 4.0, 0.0])
-    with pytest.raises(InputError, match="dem, contours"):
-        vertical_sigma_of_picks(["lidar"], dem_sigma_m=1.0)
-    with pytest.raises(InputError, match="slope_deg is needed"):
-        vertical_sigma_of_picks(["contours"], contour_sigma_m=1.0)
 
 
 def _segment_correlated_picks(seed, n_segments=24, per_segment=40, sigma_m=3.0):
