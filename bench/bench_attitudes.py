@@ -3,7 +3,7 @@
 Workload: 50,000 picks on a synthetic gently folded surface over a 10 km square (picks strung
 along 100 meandering contacts, 1 m vertical noise). Times
 
-* :func:`strikeline.attitude.confidence.bootstrap_plane` with 1,000 resamples (target under 2 s), and
+* :func:`strikeline.attitude.resampling.bootstrap_plane` with 1,000 resamples (target under 2 s), and
 * :func:`strikeline.attitude.local.local_attitudes` with a 500 m window (target under 5 s),
 
 best of ``--repeat`` runs, and prints the figures.

@@ -1,8 +1,8 @@
 """Tool: true (and vertical) thickness of a planar unit, feature by feature."""
 from __future__ import annotations
 
-import numpy as np
-import shapely
+import math
+
 from qgis.core import (
     QgsFeature,
     QgsFeatureSink,
@@ -20,16 +20,8 @@ from qgis.core import (
 from qgis.PyQt.QtCore import QVariant
 
 from strikeline.errors import InputError
-from strikeline.picks import sample_bilinear
-from strikeline.maps.thickness import (
-    SLOPE_SENSES,
-    WIDTH_KINDS,
-    outcrop_width_gives_thickness,
-    thickness_between_points,
-    thickness_from_borehole,
-    thickness_from_outcrop_width,
-    vertical_thickness,
-)
+from strikeline.maps.thickness import SLOPE_SENSES, WIDTH_KINDS
+from strikeline.pipeline.thickness import thickness_of_boreholes, thickness_of_lines, thickness_of_widths
 
 from ..base import StrikelineAlgorithm
 from ..inputs import read_dem, to_dem_crs
@@ -125,17 +117,9 @@ class UnitThickness(StrikelineAlgorithm):
             lyr = read_vector(source, name, geometry="line", is_cancelled=steps.is_cancelled, keep_z=dem is None)
             if dem is not None:
                 lyr = to_dem_crs(lyr, grid, label="measurement lines", log=steps.log)
-            coords, owner = shapely.get_coordinates(lyr.geoms, include_z=dem is None, return_index=True)
-            first = np.searchsorted(owner, np.arange(len(lyr.geoms)), side="left")
-            last = np.searchsorted(owner, np.arange(len(lyr.geoms)), side="right") - 1
-            if dem is not None:
-                z = sample_bilinear(dem, grid, coords[:, 0], coords[:, 1])
-                coords = np.column_stack([coords[:, :2], z])
-            elif not shapely.has_z(lyr.geoms).all():
-                raise InputError(f"{name.what} has lines without Z; give the DEM for the line ends")
-            top, base = coords[first], coords[last]
-            ok = np.isfinite(top).all(axis=1) & np.isfinite(base).all(axis=1)
-            values = {"top": top, "base": base}
+            steps.check("thickness")
+            res = thickness_of_lines(lyr.geoms, dip_deg=dip, dip_direction_deg=dipdir, dem=dem, dem_grid=grid,
+                                     what=name.what)
         else:
             if method == "outcrop_width":
                 keys = [(self.WIDTH_FIELD, "Outcrop width field (m)", True),
@@ -146,43 +130,28 @@ class UnitThickness(StrikelineAlgorithm):
                         (self.PLUNGE_FIELD, "Borehole plunge field (° below horizontal)", True)]
             fields = {k: self._field(parameters, k, context, name, label, required=req) for k, label, req in keys}
             lyr = read_vector(source, name, geometry=None, is_cancelled=steps.is_cancelled)
-            values = {k: (lyr.numeric_field(f, option=f"the '{dict((a, b) for a, b, _ in keys)[k]}'")
-                          if f else np.zeros(len(lyr.geoms))) for k, f in fields.items()}
-            ok = np.all([np.isfinite(v) for v in values.values()], axis=0)
-        steps.check("thickness")
-        t = np.full(len(lyr.geoms), np.nan)
-        missing = ~ok
-        if ok.any():
-            sel = {k: v[ok] for k, v in values.items()}
-            if method == "two_points":
-                t[ok] = thickness_between_points(sel["top"], sel["base"], dipdir, dip)
-            elif method == "outcrop_width":
-                sense = SLOPE_SENSES[self.parameterAsEnum(parameters, self.SLOPE_SENSE, context)]
-                kind = WIDTH_KINDS[self.parameterAsEnum(parameters, self.WIDTH_KIND, context)]
-                slope = sel[self.SLOPE_FIELD]
-                sense = sense if np.any(slope > 0) else None
-                # ground parallel to the bedding (a level bed on level ground, a dip slope): no thickness
-                cuts = outcrop_width_gives_thickness(dip, ground_slope_deg=slope, slope_sense=sense)
-                if not cuts.all():
-                    steps.warn(f"{int((~cuts).sum())} feature(s) of {name.what} lie where the ground runs parallel "
-                               "to the bedding (a horizontal bed on flat ground, or a dip slope): an outcrop width "
-                               "cannot give a thickness there, so theirs is left empty")
-                    ok[np.flatnonzero(ok)[~cuts]] = False
-                    sel = {k: v[cuts] for k, v in sel.items()}
-                    slope = slope[cuts]
-                if ok.any():
-                    t[ok] = thickness_from_outcrop_width(sel[self.WIDTH_FIELD], dip, ground_slope_deg=slope,
-                                                         slope_sense=sense, width_kind=kind)
+            values = {k: lyr.numeric_field(f, option=f"the '{label}'") if f else None
+                      for (k, label, _), f in zip(keys, fields.values())}
+            steps.check("thickness")
+            if method == "outcrop_width":
+                res = thickness_of_widths(
+                    values[self.WIDTH_FIELD], dip_deg=dip, ground_slope_deg=values[self.SLOPE_FIELD],
+                    slope_sense=SLOPE_SENSES[self.parameterAsEnum(parameters, self.SLOPE_SENSE, context)],
+                    width_kind=WIDTH_KINDS[self.parameterAsEnum(parameters, self.WIDTH_KIND, context)])
             else:
-                t[ok] = thickness_from_borehole(sel[self.LENGTH_FIELD], sel[self.AZIMUTH_FIELD],
-                                                sel[self.PLUNGE_FIELD], dipdir, dip)
-        v = np.full_like(t, np.nan)
-        v[ok] = vertical_thickness(t[ok], dip)
-        if missing.any():
-            steps.warn(f"{int(missing.sum())} feature(s) of {name.what} lack a value (null field, or a line "
+                res = thickness_of_boreholes(values[self.LENGTH_FIELD], values[self.AZIMUTH_FIELD],
+                                             values[self.PLUNGE_FIELD], dip_deg=dip, dip_direction_deg=dipdir)
+        if res.n_parallel:
+            # ground parallel to the bedding (a level bed on level ground, a dip slope): no thickness
+            steps.warn(f"{res.n_parallel} feature(s) of {name.what} lie where the ground runs parallel "
+                       "to the bedding (a horizontal bed on flat ground, or a dip slope): an outcrop width "
+                       "cannot give a thickness there, so theirs is left empty")
+        if res.n_missing:
+            steps.warn(f"{res.n_missing} feature(s) of {name.what} lack a value (null field, or a line "
                        "end off the DEM); their thickness is left empty")
-        steps.log(f"thickness of {int(ok.sum())} feature(s): median {np.nanmedian(t) if ok.any() else float('nan'):.2f} m")
-        return {self.OUTPUT: self._write(parameters, context, source, lyr.fids, t, v), "N": int(ok.sum())}
+        steps.log(f"thickness of {res.n_measured} feature(s): median {res.median_m:.2f} m")
+        return {self.OUTPUT: self._write(parameters, context, source, lyr.fids, res.true_m, res.vertical_m),
+                "N": res.n_measured}
 
     def _write(self, parameters, context, source, fids, t, v):
         fields = QgsFields(source.fields())
@@ -192,11 +161,11 @@ class UnitThickness(StrikelineAlgorithm):
                                           source.sourceCrs())
         by_fid = {int(f): (a, b) for f, a, b in zip(fids, t, v)}
         for feat in source.getFeatures():
-            a, b = by_fid.get(feat.id(), (np.nan, np.nan))
+            a, b = by_fid.get(feat.id(), (None, None))
             out = QgsFeature(fields)
             out.setGeometry(feat.geometry())
-            out.setAttributes(feat.attributes() + [None if not np.isfinite(a) else float(a),
-                                                   None if not np.isfinite(b) else float(b)])
+            out.setAttributes(feat.attributes() + [float(x) if x is not None and math.isfinite(x) else None
+                                                   for x in (a, b)])
             if not sink.addFeature(out, QgsFeatureSink.FastInsert):
                 raise QgsProcessingException(f"output 'Thickness': QGIS could not write a feature "
                                              f"({sink.lastError()}); choose another output format or folder")
