@@ -15,9 +15,9 @@ from qgis.core import (
 )
 
 from strikeline.pipeline import depth_trace_misfit
+from strikeline.pipeline.rasters import raster_flag, require_same_grid
 
 from ..base import REF_GDAL_CONTOUR, REF_PRESS, StrikelineAlgorithm
-from ..chain import raster_flag, require_same_grid
 from ..inputs import read_dem, read_layer, to_dem_crs
 from ..layers import qgis_crs
 from ..outputs import Table, write_raster, write_sink

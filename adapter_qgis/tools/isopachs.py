@@ -14,9 +14,9 @@ from qgis.core import (
 
 from strikeline.io.contours import contour_lines
 from strikeline.maps.thickness import isopach_grids
+from strikeline.pipeline.rasters import require_same_grid
 
 from ..base import REF_GDAL_CONTOUR, REF_ZT, StrikelineAlgorithm
-from ..chain import require_same_grid
 from ..inputs import read_dem
 from ..layers import qgis_crs
 from ..outputs import Table, write_raster, write_sink

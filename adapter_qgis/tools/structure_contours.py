@@ -1,8 +1,6 @@
 """Tool: structure contours of a modelled surface."""
 from __future__ import annotations
 
-import numpy as np
-
 from qgis.core import (
     QgsProcessing,
     QgsProcessingOutputNumber,
@@ -11,11 +9,9 @@ from qgis.core import (
     QgsProcessingParameterRasterLayer,
 )
 
-from strikeline.maps.dipgrids import depth_below_ground
-from strikeline.pipeline import structure_contours
+from strikeline.pipeline.rasters import raster_flag, require_same_grid, structure_contours_on_ground
 
 from ..base import REF_GDAL_CONTOUR, StrikelineAlgorithm
-from ..chain import raster_flag, require_same_grid, split_by_flags
 from ..inputs import read_dem
 from ..layers import qgis_crs
 from ..outputs import write_sink
@@ -72,18 +68,12 @@ class StructureContours(StrikelineAlgorithm):
         if mask is not None:
             require_same_grid(grid, mask_grid, what_a=f"surface '{spath}'", what_b=f"forecast mask '{mpath}'")
             extrapolated_fn = raster_flag(mask, mask_grid, at_least=0.5)
-        # strikeline run's structure contours: split where they leave the reach of the data.
-        geoms, elev, extrapolated = structure_contours(surface, grid, interval_m=interval,
-                                                       extrapolated_fn=extrapolated_fn)
-        parts = {"extrapolated": extrapolated} if mask is not None else {}
         if dem is not None:
             require_same_grid(grid, dem_grid, what_a=f"surface '{spath}'", what_b=f"DEM '{dpath}'")
-            flags = {"below_ground": raster_flag(depth_below_ground(dem, surface), grid, at_least=0.0)}
-            keyed = np.column_stack([elev, *parts.values()]) if parts else elev[:, None]
-            geoms, keyed, more = split_by_flags(geoms, keyed, flags, spacing_m=min(grid.cell_x_m, grid.cell_y_m))
-            elev = keyed[:, 0]
-            parts = {name: keyed[:, i + 1].astype(bool) for i, name in enumerate(parts)}
-            parts.update(more)
+        # strikeline run's structure contours, split where they leave the reach of the data and,
+        # with the ground, where the surface passes from below it to above it.
+        geoms, elev, parts = structure_contours_on_ground(surface, grid, interval_m=interval,
+                                                          extrapolated_fn=extrapolated_fn, dem=dem)
         steps.feedback.setProgress(90)
         steps.check("structure contours")
         steps.log(f"structure contours: {len(geoms)} lines every {interval:g} m")

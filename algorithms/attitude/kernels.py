@@ -5,8 +5,8 @@ and the moving-window attitudes (:mod:`strikeline.attitude.local`) share these f
 are held as one flat ``(T, 3)`` array of "slots", each window a contiguous run of ``counts[w]``
 slots whose coordinates are centred on the window's own centroid (one pick set is one window).
 Replicate normals come back as ``(B, W, 3)`` stacks, covariances as ``(W, 3, 3)`` or ``(W, 2, 2)``;
-per-window sums are sparse matrix products and all eigen-decompositions one stacked ``eigh``, so
-no Python loop runs over windows or replicates. The methods and their references are given in
+per-window sums are (sparse) matrix products and the eigen-decompositions of a chunk of replicates
+one stacked ``eigh``; Python loops run only over chunks, whose size bounds the memory used. The methods and their references are given in
 the public functions that use these kernels: :func:`~strikeline.attitude.resampling.bootstrap_plane`,
 :func:`~strikeline.attitude.resampling.monte_carlo_plane` and
 :func:`~strikeline.attitude.analytic.analytic_plane_covariance`.
@@ -135,6 +135,11 @@ def bootstrap_normals(q, counts, n_resamples, rng, progress=None, is_cancelled=N
     into a counts matrix C (B, T); the resampled first and second moments are then matrix
     products of C with the per-slot vectors ``[1, q, q⊗q]``, and the resampled scatter matrices
     ``S2 − S1 S1ᵀ / n_w`` are decomposed by one stacked ``eigh``.
+
+    References
+    ----------
+    Efron, B. & Tibshirani, R. J. (1993). *An Introduction to the Bootstrap*. Chapman & Hall,
+    New York. https://doi.org/10.1007/978-1-4899-4541-9
     """
     return window_block_normals(q, counts, None, n_resamples, rng, progress, is_cancelled)[0]
 
@@ -155,6 +160,13 @@ def window_block_normals(q, counts, unit_of_slot, n_resamples, rng, progress=Non
     the first and second moments of its picks are summed once; a resample of a window draws as
     many of that window's blocks as it has, with replacement, so its moments are counts times the
     per-block sums, and its scatter matrix ``S2 − S1 S1ᵀ / n_b`` uses its own pick count.
+
+    References
+    ----------
+    Künsch, H. R. (1989). The jackknife and the bootstrap for general stationary observations.
+    *The Annals of Statistics*, 17(3), 1217–1241. https://doi.org/10.1214/aos/1176347265
+
+    Lahiri, S. N. (2003). *Resampling Methods for Dependent Data*. Springer, New York.
     """
     counts = np.asarray(counts, dtype=np.int64)
     n_windows = len(counts)
@@ -208,6 +220,12 @@ def monte_carlo_normals(q, counts, scatter, sigma_slot, n_draws, rng, progress=N
     Perturbing pick elevations by ``e`` changes the centred scatter matrix exactly to
     ``S + a ẑᵀ + ẑ aᵀ + s ẑ ẑᵀ`` with ``a = Σ e_i q_i`` and ``s = Σ e_i² − (Σ e_i)²/n``
     (``q`` centred, so ``Σ q_i = 0``), which needs only matrix products with ``e``.
+
+    References
+    ----------
+    JCGM (2008). *Evaluation of measurement data -- Supplement 1 to the "Guide to the expression
+    of uncertainty in measurement" -- Propagation of distributions using a Monte Carlo method*.
+    JCGM 101:2008, Joint Committee for Guides in Metrology.
     """
     counts = np.asarray(counts, dtype=np.int64)
     n_windows = len(counts)
@@ -283,6 +301,12 @@ def few_blocks_factor(n_blocks):
     correction of Hesterberg's 2015 expanded percentile interval, applied here as a factor on the
     percentile half-width, which is the same for a normal spread). Near 1 for hundreds of blocks;
     inf for ``G < 2``.
+
+    References
+    ----------
+    Hesterberg, T. C. (2015). What teachers should know about the bootstrap: resampling in the
+    undergraduate statistics curriculum. *The American Statistician*, 69(4), 371–386.
+    https://doi.org/10.1080/00031305.2015.1089789 (expanded percentile interval; from memory)
     """
     g = np.asarray(n_blocks, dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -293,7 +317,13 @@ def few_blocks_factor(n_blocks):
 def combine_half_widths(dip_parts, dd_parts, cone_parts, dip_hat):
     """Half-widths (dip, dip direction, cone) of independent parts added in quadrature; the
     dip direction is undetermined (180) where any part's is or the cone reaches ``dip_hat``
-    (see :func:`strikeline.attitude.confidence.combine_confidence`)."""
+    (see :func:`strikeline.attitude.confidence.combine_confidence`).
+
+    References
+    ----------
+    JCGM (2008). *Evaluation of measurement data -- Guide to the expression of uncertainty in
+    measurement*. JCGM 100:2008, Joint Committee for Guides in Metrology (section 5.1).
+    """
     dip_ci = np.sqrt(sum(np.square(d) for d in dip_parts))
     cone = np.sqrt(sum(np.square(c) for c in cone_parts))
     dd_sq = sum(np.square(d) for d in dd_parts)
@@ -311,6 +341,13 @@ def analytic_covariance_from_eigen(w, v, n_points, sigma2):
 
     ``w`` (W, 3) ascending eigenvalues, ``v`` (W, 3, 3) eigenvectors as columns,
     ``sigma2`` (W,) variance of the picks perpendicular to the plane.
+
+    References
+    ----------
+    Stewart, G. W. & Sun, J. (1990). *Matrix Perturbation Theory*. Academic Press, Boston.
+
+    Kanatani, K. (1996). *Statistical Optimization for Geometric Computation: Theory and
+    Practice*. Elsevier, Amsterdam (reprinted Dover, 2005).
     """
     lam3 = w[:, 0]
     cov = np.zeros(v.shape)
@@ -324,7 +361,17 @@ def analytic_covariance_from_eigen(w, v, n_points, sigma2):
 
 
 def half_widths_from_covariance(normal, cov):
-    """95% half-widths (dip, dip direction, cone) from normal covariance stacks (W, 3, 3)."""
+    """95% half-widths (dip, dip direction, cone) from normal covariance stacks (W, 3, 3).
+
+    Dip and dip direction by the delta method (their gradients with respect to the normal,
+    half-widths 1.96 standard deviations); the cone by matching the normal's two variances
+    ``a Z1² + b Z2²`` to a scaled chi-square by its first two moments (Satterthwaite 1946).
+
+    References
+    ----------
+    Satterthwaite, F. E. (1946). An approximate distribution of estimates of variance
+    components. *Biometrics Bulletin*, 2(6), 110–114. https://doi.org/10.2307/3002019
+    """
     nx, ny, nz = vector_components(normal)
     h2 = nx * nx + ny * ny
     h = np.sqrt(h2)
@@ -381,7 +428,13 @@ def tilt_cov_from_normal_cov(normal, cov):
 
 def tilt_z2(tilt, cov):
     """Squared Mahalanobis distance (W,) of tilt 0 from ``tilt`` (W, 2) under ``cov`` (W, 2, 2);
-    inf where the covariance is singular and the tilt is not 0 along its null direction."""
+    inf where the covariance is singular and the tilt is not 0 along its null direction.
+
+    References
+    ----------
+    Johnson, R. A. & Wichern, D. W. (2007). *Applied Multivariate Statistical Analysis*, 6th ed.
+    Pearson Prentice Hall, Upper Saddle River (inference about a mean vector; from memory).
+    """
     cov = np.asarray(cov, dtype=float)
     tilt = np.asarray(tilt, dtype=float)
     w, v = np.linalg.eigh(cov)
