@@ -16,7 +16,7 @@ __all__ = ["PlaneFit", "fit_plane", "plane_elevation", "scatter_eigen"]
 
 #: Collinearity guard: the picks are taken to lie on one line when the spread across the
 #: line (square root of the middle eigenvalue) is below this fraction of the spread along it.
-#: The finer graded shape measures of issue 3 decide "weak" vs "good"; this only refuses
+#: The graded shape measures of strikeline.attitude.quality decide "weak" vs "good"; this only refuses
 #: picks whose dip is undetermined in floating point.
 COLLINEAR_RATIO = 1e-4
 
