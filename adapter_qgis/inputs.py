@@ -9,8 +9,6 @@ from __future__ import annotations
 
 from typing import NamedTuple
 
-import numpy as np
-import shapely
 from qgis.core import (
     QgsProcessing,
     QgsProcessingParameterString,
@@ -22,6 +20,7 @@ from qgis.core import (
 )
 
 from strikeline.errors import InputError
+from strikeline.pipeline.points import point_values, point_xyz
 from strikeline.pipeline import (CLI_OPTION_NAMES, DEFAULT_BOREHOLE_SIGMA_M, DEFAULT_ORIENTATION_SIGMA_DEG,
                                  Inputs, RunOptions, assemble_inputs, reproject_to)
 
@@ -237,7 +236,7 @@ PICKS_FIELD_LABEL = "Elevation field of the picks"
 class Picks(NamedTuple):
     """Elevation picks read from the picks parameter."""
 
-    xyz: np.ndarray  # (n, 3)
+    xyz: object  # (n, 3) float array: x, y, elevation
     source: object  # the QgsProcessingFeatureSource (its CRS is the picks' CRS)
     layer: object  # strikeline.io.vector.VectorLayer (Z kept)
     name: object  # LayerName
@@ -264,18 +263,7 @@ def read_picks(alg, parameters, context, steps, *, fields=(), text_fields=()) ->
     name = vector_name(alg.parameterAsVectorLayer(parameters, PICKS, context), source, "picks")
     layer = read_vector(source, name, geometry="point", keep_z=True, is_cancelled=steps.is_cancelled)
     field = optional_string(alg, parameters, PICKS_FIELD, context)
-    coords, owner = shapely.get_coordinates(layer.geoms, include_z=True, return_index=True)
-    for f in text_fields:
-        if f not in layer.fields:
-            raise InputError(f"{name.what} has no field '{f}' (fields: {', '.join(layer.fields) or 'none'}); "
-                             "choose one of its fields")
-    if field:
-        z = layer.numeric_field(field, option=f"the '{PICKS_FIELD_LABEL}'")[owner]
-    elif not shapely.has_z(layer.geoms).all():
-        raise InputError(f"{name.what} has points without Z; choose the '{PICKS_FIELD_LABEL}' or give "
-                         "points with elevations as Z")
-    else:
-        z = coords[:, 2]
-    values = {f: layer.numeric_field(f, option=f"the field '{f}'")[owner] for f in fields}
-    values.update({f: layer.fields[f][owner] for f in text_fields})
-    return Picks(np.column_stack([coords[:, 0], coords[:, 1], z]), source, layer, name, values)
+    xyz, owner = point_xyz(layer, z_field=field, z_option=f"the '{PICKS_FIELD_LABEL}'", what=name.what,
+                           no_z_fix=f"choose the '{PICKS_FIELD_LABEL}' or give points with elevations as Z")
+    values = point_values(layer, owner, numeric=fields, text=text_fields, what=name.what)
+    return Picks(xyz, source, layer, name, values)

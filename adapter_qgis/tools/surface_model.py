@@ -1,7 +1,6 @@
 """Tool: a surface grid modelled from elevation picks (plane, quadratic trend, thin-plate spline)."""
 from __future__ import annotations
 
-import numpy as np
 from qgis.core import (
     QgsProcessing,
     QgsProcessingParameterFeatureSink,
@@ -18,12 +17,12 @@ from qgis.core import (
 
 from strikeline.errors import InputError
 from strikeline.io.crs import same_crs
-from strikeline.picks import SOURCES, PickSet
+from strikeline.pipeline.points import pick_set_of_points
+from strikeline.pipeline.rasters import forecast_mask, grid_over, points_bounds
 from strikeline.pipeline import (RunOptions, borehole_points, map_unit_bounds, map_unit_check, map_unit_polygons,
                                  model_surface, orientation_rows, reproject_to, unit_conflicts_layer)
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
-from ..chain import grid_over
 from ..inputs import (CONSTRAINT_LAYERS, MAP_UNIT_LAYERS, MAP_UNITS, PICKS, add_picks, constraint_options,
                       constraint_parameters, constraint_sigma_parameters, map_unit_options, map_unit_parameters,
                       option_names, read_dem, read_layers, read_picks)
@@ -132,7 +131,7 @@ class SurfaceModel(StrikelineAlgorithm):
             return ref_grid.with_nodata(None)
         crs = source.sourceCrs()
         if self.parameterAsExtent(parameters, self.EXTENT, context).isNull():
-            bounds = (xyz[:, 0].min(), xyz[:, 1].min(), xyz[:, 0].max(), xyz[:, 1].max())
+            bounds = points_bounds(xyz)
         else:
             ext = self.parameterAsExtent(parameters, self.EXTENT, context, crs)
             bounds = (ext.xMinimum(), ext.yMinimum(), ext.xMaximum(), ext.yMaximum())
@@ -172,13 +171,8 @@ class SurfaceModel(StrikelineAlgorithm):
         steps.feedback.setProgress(10)
         # As strikeline run: cross-validation folds hold out contact segments (the picks'
         # contact_id; all one contact without it). The source only labels picks, it is not used.
-        cid = vals.get("contact_id")
-        cid = np.zeros(len(xyz), np.int64) if cid is None else np.array(
-            [-1 if v is None else int(v) for v in cid], dtype=np.int64)
-        src = vals.get("source")
-        src = np.array([v if v in SOURCES else "dem" for v in src], dtype="<U8") if src is not None \
-            else np.full(len(xyz), "dem", dtype="<U8")
-        surf = model_surface(PickSet(xyz, cid, src), opts, grid, boreholes=boreholes_xyz,
+        picks = pick_set_of_points(xyz, contact_id=vals.get("contact_id"), source=vals.get("source"))
+        surf = model_surface(picks, opts, grid, boreholes=boreholes_xyz,
                              orientations=orientations, bounds=None if ub is None else ub.bounds,
                              what=f"picks {name.what}", is_cancelled=steps.is_cancelled)
         check = None if ub is None else map_unit_check(surf, polys, labels, dem, dem_grid, opts, ub, log=steps.log)
@@ -198,8 +192,7 @@ class SurfaceModel(StrikelineAlgorithm):
         if want_se:
             se = surf.standard_error_grid(grid, is_cancelled=steps.is_cancelled)
         if want_ex:
-            X, Y = grid.mesh()
-            ex = surf.is_extrapolated(X, Y).astype(np.float32)
+            ex = forecast_mask(surf, grid)
         steps.feedback.setProgress(90)
         steps.check("surface model")
         out = {"MODEL": surf.kind, "CV_RMSE_M": rmse, "REACH_M": surf.reach_m, "DIP_DEG": dip,
