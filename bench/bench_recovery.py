@@ -134,8 +134,8 @@ def run_case(dem, case, model, *, units=False):
         if case in ("plane", "horizontal"):
             blocks = contact_segments(picks, cell_m=grid.cell_x_m, vertex_spacing_m=spacing)
             pl = attitude_of(picks.xyz, sigma, crs_wkt=inputs.crs_wkt, what=case, strict=True, blocks=blocks)
-            out["plane"] = {k: pl.get(k) for k in ("dip", "dip_ci95", "dip_direction", "dip_direction_ci95",
-                                                   "quality", "dip_significant")}
+            out["plane"] = {k.replace("_deg", ""): pl.get(k) for k in ("dip_deg", "dip_ci95_deg", "dip_direction_deg",
+                                                                      "dip_direction_ci95_deg", "quality", "dip_significant")}
             out["plane"]["true_dip"] = float(truth.get("dip_deg", 0.0))
             out["plane"]["true_dip_direction"] = truth.get("dip_direction_deg")
     out["seconds"] = time.perf_counter() - t0

@@ -93,8 +93,8 @@ def main(argv=None):
         mark("write outputs")
         total = time.perf_counter() - start
         s = results.summary
-        print(f"picks: {len(picks)}; model chosen: {s['model']['chosen']}; local windows: {s['attitudes']['n']}; "
-              f"plane dip {s['plane']['dip']:.2f} toward {s['plane']['dip_direction']:.1f} (truth 14.0 / 123.0)")
+        print(f"picks: {len(picks)}; model chosen: {s['model']['chosen']}; local windows: {s['attitudes']['n_windows']}; "
+              f"plane dip {s['plane']['dip_deg']:.2f} toward {s['plane']['dip_direction_deg']:.1f} (truth 14.0 / 123.0)")
         for k, v in stages.items():
             print(f"  {k:<90s} {v:7.2f} s")
         peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024 ** 2

@@ -120,11 +120,12 @@ def describe_plane(pl: dict) -> str:
     """The plane in plain words; an undetermined plane gets no number."""
     if pl.get("quality") == "undetermined":
         return f"undetermined - {pl['reason']}; {pl['advice']}"
-    if pl.get("dip_direction") is None:
-        return (f"dip {_pm(pl['dip'], pl.get('dip_ci95'))} deg: horizontal within its 95% confidence (no dip "
+    if pl.get("dip_direction_deg") is None:
+        return (f"dip {_pm(pl['dip_deg'], pl.get('dip_ci95_deg'))} deg: horizontal within its 95% confidence (no dip "
                 f"direction or strike), RMS residual {pl['rms_m']:.2f} m, {pl['n_picks']} picks, quality {pl['quality']}")
-    return (f"dip {_pm(pl['dip'], pl.get('dip_ci95'))} deg toward {_pm(pl['dip_direction'], pl.get('dip_direction_ci95'))} "
-            f"deg (grid north; {pl['dip_direction_true']:.2f} deg from true north), strike {pl['strike_rhr']:.1f} deg RHR, "
+    return (f"dip {_pm(pl['dip_deg'], pl.get('dip_ci95_deg'))} deg toward "
+            f"{_pm(pl['dip_direction_deg'], pl.get('dip_direction_ci95_deg'))} deg (grid north; "
+            f"{pl['dip_direction_true_deg']:.2f} deg from true north), strike {pl['strike_rhr_deg']:.1f} deg RHR, "
             f"RMS residual {pl['rms_m']:.2f} m, {pl['n_picks']} picks, quality {pl['quality']}")
 
 
@@ -145,9 +146,9 @@ def report(results, out, stream=None) -> None:
         print(f"surface model: {m['chosen']}" + (f" (cross-validation RMSE: {scores})" if scores else ""), file=stream)
         if m.get("choice"):
             print(f"  why: {m['choice']['reason']}", file=stream)
-    tm = s["trace_misfit_m"]
-    if tm.get("median") is not None:
-        print(f"trace misfit: median {tm['median']:.1f} m, 90th percentile {tm['p90']:.1f} m "
+    tm = s["trace_misfit"]
+    if tm.get("median_m") is not None:
+        print(f"trace misfit: median {tm['median_m']:.1f} m, 90th percentile {tm['p90_m']:.1f} m "
               f"over {tm['n_vertices']} contact vertices", file=stream)
     else:
         print(f"trace misfit: not computed ({tm.get('note', 'no trace')})", file=stream)

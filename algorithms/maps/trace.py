@@ -51,15 +51,15 @@ def trace_misfit(xy, trace_geoms) -> dict:
     Returns
     -------
     dict
-        ``{"median": m, "p90": m, "n_vertices": n}``; medians are ``None`` when there is no
+        ``{"median_m": m, "p90_m": m, "n_vertices": n}``; both are ``None`` when there is no
         trace or no vertex.
     """
     d = distance_to_lines(xy, trace_geoms)
     d = d[np.isfinite(d)]
     if len(d) == 0:
-        return {"median": None, "p90": None, "n_vertices": 0,
+        return {"median_m": None, "p90_m": None, "n_vertices": 0,
                 "note": "no predicted trace within the DEM, or no contact vertex on it"}
-    return {"median": float(np.median(d)), "p90": float(np.percentile(d, 90)), "n_vertices": int(len(d))}
+    return {"median_m": float(np.median(d)), "p90_m": float(np.percentile(d, 90)), "n_vertices": int(len(d))}
 
 
 def split_lines_by_flag(geoms, flag_fn, *, spacing_m):

@@ -124,7 +124,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     depth = None
     trace = np.empty(0, dtype=object)
     tflags = np.empty(0, dtype=bool)
-    misfit = {"median": None, "p90": None, "n_vertices": 0,
+    misfit = {"median_m": None, "p90_m": None, "n_vertices": 0,
               "note": "needs a DEM: the predicted trace is the zero line of depth below ground"}
     segments = None
     flag_m = None
@@ -177,7 +177,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     if unit_check is not None:
         summary["map_units"] = json_ready(unit_check["summary"])
     if window_note:
-        summary["attitudes"] = {**summary.get("attitudes", {"n": 0}), "note": window_note}
+        summary["attitudes"] = {**summary.get("attitudes", {"n_windows": 0}), "note": window_note}
     step(9)
     return Results(picks, plane, grid, surface, dip, dipdir, depth, cparts, clevels, trace, summary,
                    model=model, uncertainty_m=uncertainty, contour_extrapolated=cflags,

@@ -11,6 +11,7 @@ import shapely
 from strikeline.io.files import atomic_folder, dumps_stable
 from strikeline.io.raster import write_geotiff
 from strikeline.io.vector import LayerOut, write_gpkg
+from strikeline import vocabulary as V
 from strikeline.attitude.local import LocalAttitudes
 from strikeline.picks import (PickSet)
 from strikeline.pipeline.compute import Results
@@ -29,35 +30,86 @@ def write_results(results: Results, out_dir, *, overwrite: bool = False) -> Path
     return Path(out_dir)
 
 
+def vocabulary_layer(spec: V.Layer, geoms, values: dict, *, name: str | None = None) -> LayerOut:
+    """A layer to write with the fields of its vocabulary entry, in the vocabulary's order.
+
+    ``values`` maps field names to arrays; an optional field of ``spec`` may be left out, a required
+    one may not, and a name the vocabulary does not know is refused (so every writer of a layer
+    gives it the same fields).
+    """
+    unknown = sorted(set(values) - set(spec.field_names))
+    missing = [f for f in spec.required_names if f not in values]
+    if unknown or missing:
+        raise ValueError(f"layer '{spec.name}': fields {unknown} are not in strikeline.vocabulary and "
+                         f"{missing} are missing; add them to the vocabulary or give them")
+    return LayerOut(name or spec.name, geoms, {f: values[f] for f in spec.field_names if f in values},
+                    spec.geometry)
+
+
 def picks_layer(name: str, p: PickSet) -> LayerOut:
     """A layer of picks: PointZ with ``contact_id``, ``source`` and ``elevation_m``."""
-    return LayerOut(name, shapely.points(p.xyz), {"contact_id": p.contact_id.astype(np.int64),
-                                                  "source": p.source.astype(str),
-                                                  "elevation_m": p.xyz[:, 2]}, "point_z")
+    spec = V.TOP_PICKS if name == V.TOP_PICKS.name else V.PICKS
+    return vocabulary_layer(spec, shapely.points(p.xyz), {
+        "contact_id": p.contact_id.astype(np.int64), "source": p.source.astype(str),
+        "elevation_m": p.xyz[:, 2]}, name=name)
 
 
 def attitudes_layer(a: LocalAttitudes) -> LayerOut:
-    """The ``attitudes`` layer of local attitudes (one point per window centre)."""
+    """The ``attitudes`` layer of local attitudes (one point per window centre): the layer of
+    ``strikeline run`` and of the QGIS local-attitudes tool. ``contact_id`` is -1 for windows
+    over all picks."""
     cid = np.array([-1 if c is None else int(c) for c in a.contact_id], dtype=np.int64)
-    return LayerOut("attitudes", shapely.points(np.column_stack([a.x, a.y])), {
-        "dip": np.asarray(a.dip_deg, float), "dip_direction": np.asarray(a.dip_direction_deg, float),
-        "strike_rhr": np.asarray(a.strike_rhr_deg, float), "dip_ci95": np.asarray(a.dip_ci95_deg, float),
-        "dip_direction_ci95": np.asarray(a.dip_direction_ci95_deg, float),
+    f = lambda v: np.asarray(v, dtype=float)  # noqa: E731
+    return vocabulary_layer(V.ATTITUDES, shapely.points(np.column_stack([a.x, a.y])) if len(a.x)
+                            else np.empty(0, dtype=object), {
+        "elevation_m": f(a.elevation_m), "dip_deg": f(a.dip_deg), "dip_direction_deg": f(a.dip_direction_deg),
+        "strike_rhr_deg": f(a.strike_rhr_deg), "dip_ci95_deg": f(a.dip_ci95_deg),
+        "dip_direction_ci95_deg": f(a.dip_direction_ci95_deg), "cone95_deg": f(a.cone95_deg),
         "n_picks": np.asarray(a.n_picks, np.int64), "quality": np.asarray(a.quality, str),
-        "reason": np.asarray(a.reason_code, str), "window_kind": np.asarray(a.kind, str),
-        "contact_id": cid, "window_m": np.full(len(a.x), float(a.window_m)),
-    }, "point")
+        "reason_code": np.asarray(a.reason_code, str), "coplanarity": f(a.coplanarity),
+        "collinearity": f(a.collinearity), "rms_m": f(a.rms_m), "window_kind": np.asarray(a.kind, str),
+        "contact_id": cid, "window_m": np.full(len(a.x), float(a.window_m))})
+
+
+def contours_layer(geoms, elevations_m, *, extrapolated=None, below_ground=None) -> LayerOut:
+    """The ``structure_contours`` layer: lines at their elevation (Z), with the flags that are known."""
+    geoms = np.asarray(geoms, dtype=object)
+    elev = np.asarray(elevations_m, dtype=float)
+    values = {"elevation_m": elev}
+    if extrapolated is not None:
+        values["extrapolated"] = np.asarray(extrapolated, dtype=bool)
+    if below_ground is not None:
+        values["below_ground"] = np.asarray(below_ground, dtype=bool)
+    return vocabulary_layer(V.STRUCTURE_CONTOURS, shapely.force_3d(geoms, elev) if len(geoms) else geoms, values)
+
+
+def trace_layer(geoms, *, extrapolated=None) -> LayerOut:
+    """The ``predicted_trace`` layer, with ``extrapolated`` when known."""
+    values = {} if extrapolated is None else {"extrapolated": np.asarray(extrapolated, dtype=bool)}
+    return vocabulary_layer(V.PREDICTED_TRACE, np.asarray(geoms, dtype=object), values)
+
+
+def contact_misfit_layer(segments: dict) -> LayerOut:
+    """The ``contact_misfit`` layer from the segments of :func:`strikeline.pipeline.depth_trace_misfit`
+    (the check against a model gives the vertical misfit and its error as well)."""
+    values = {"contact_id": np.asarray(segments["contact_id"], dtype=np.int64),
+              "misfit_m": np.asarray(segments["misfit_m"], dtype=float),
+              "flagged": np.asarray(segments["flagged"], dtype=bool)}
+    for key in ("misfit_z_m", "se_m", "z_score", "flag_m"):
+        if key in segments:
+            values[key] = np.asarray(segments[key], dtype=float)
+    return vocabulary_layer(V.CONTACT_MISFIT, segments["geoms"], values)
 
 
 def result_rasters(r: Results) -> list[tuple[str, np.ndarray]]:
     """The grids of a run as ``(file name, array)``, in the order they are written."""
-    out = [("surface.tif", r.surface), ("dip.tif", r.dip_deg), ("dip_direction.tif", r.dip_direction_deg)]
+    out = [(V.SURFACE.file, r.surface), (V.DIP.file, r.dip_deg), (V.DIP_DIRECTION.file, r.dip_direction_deg)]
     if r.uncertainty_m is not None:
-        out.append(("uncertainty.tif", r.uncertainty_m))
+        out.append((V.UNCERTAINTY.file, r.uncertainty_m))
     if r.depth_m is not None:
-        out.append(("depth.tif", r.depth_m))
+        out.append((V.DEPTH.file, r.depth_m))
     if r.vertical_thickness_m is not None:
-        out += [("vertical_thickness.tif", r.vertical_thickness_m), ("true_thickness.tif", r.true_thickness_m)]
+        out += [(V.VERTICAL_THICKNESS.file, r.vertical_thickness_m), (V.TRUE_THICKNESS.file, r.true_thickness_m)]
     return out
 
 
@@ -66,26 +118,16 @@ def result_layers(r: Results) -> list[LayerOut]:
     cflags = r.contour_extrapolated if r.contour_extrapolated is not None else np.zeros(len(r.contour_geoms), bool)
     tflags = r.trace_extrapolated if r.trace_extrapolated is not None else np.zeros(len(r.trace_geoms), bool)
     layers = [
-        picks_layer("picks", r.picks),
-        LayerOut("structure_contours", shapely.force_3d(r.contour_geoms, r.contour_elevations_m)
-                 if len(r.contour_geoms) else r.contour_geoms,
-                 {"elevation": np.asarray(r.contour_elevations_m, dtype=float),
-                  "extrapolated": np.asarray(cflags, dtype=bool)}, "line_z"),
-        LayerOut("predicted_trace", r.trace_geoms, {"extrapolated": np.asarray(tflags, dtype=bool)},
-                 "line"),
+        picks_layer(V.PICKS.name, r.picks),
+        contours_layer(r.contour_geoms, r.contour_elevations_m, extrapolated=cflags),
+        trace_layer(r.trace_geoms, extrapolated=tflags),
     ]
     if r.contact_misfit is not None:
-        cm = r.contact_misfit
-        fields = {"contact_id": cm["contact_id"], "misfit_m": cm["misfit_m"]}
-        for key in ("misfit_z_m", "se_m", "z_score", "flag_m"):
-            if key in cm:
-                fields[key] = np.asarray(cm[key], dtype=float)
-        fields["flagged"] = cm["flagged"]
-        layers.append(LayerOut("contact_misfit", cm["geoms"], fields, "line"))
+        layers.append(contact_misfit_layer(r.contact_misfit))
     if r.attitudes is not None:
         layers.append(attitudes_layer(r.attitudes))
     if r.top_picks is not None:
-        layers.append(picks_layer("top_picks", r.top_picks))
+        layers.append(picks_layer(V.TOP_PICKS.name, r.top_picks))
     if r.unit_check is not None:
         layers.append(unit_conflicts_layer(r.unit_check))
     return layers
@@ -94,5 +136,5 @@ def result_layers(r: Results) -> list[LayerOut]:
 def _write_all(r: Results, folder: Path) -> None:
     for name, array in result_rasters(r):
         write_geotiff(folder / name, array, r.grid)
-    write_gpkg(folder / "results.gpkg", result_layers(r), r.grid.crs_wkt)
-    (folder / "summary.json").write_text(dumps_stable(r.summary))
+    write_gpkg(folder / V.RESULTS_FILE, result_layers(r), r.grid.crs_wkt)
+    (folder / V.SUMMARY_FILE).write_text(dumps_stable(r.summary))

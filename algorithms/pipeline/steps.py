@@ -110,7 +110,7 @@ def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples:
 
     A plane whose dip does not differ from zero at 95%
     (:func:`strikeline.attitude.confidence.dip_is_significant`) is horizontal within its confidence:
-    ``dip_significant`` is false, ``dip`` and ``dip_ci95`` are still given, and the dip
+    ``dip_significant`` is false, ``dip_deg`` and ``dip_ci95_deg`` are still given, and the dip
     direction, its half-width, its true-north azimuth and the strike are ``None`` (they are
     undefined for a horizontal plane), with a ``horizontal`` sentence saying so.
     """
@@ -138,39 +138,41 @@ def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples:
                 "n_picks": plane.n_points}
     gamma = meridian_convergence_deg(crs_wkt, plane.centroid[0], plane.centroid[1])
     significant = conf.dip_significant if conf is not None else dip_is_significant(plane.dip_deg, None)
+    # key names: strikeline.vocabulary.PLANE_KEYS
     out = {
-        "dip": plane.dip_deg,
-        "dip_direction": plane.dip_direction_deg,
-        "strike_rhr": plane.strike_rhr_deg,
+        "dip_deg": plane.dip_deg,
+        "dip_direction_deg": plane.dip_direction_deg,
+        "strike_rhr_deg": plane.strike_rhr_deg,
         "rms_m": plane.rms_m,
-        "centroid": list(plane.centroid),
+        "centroid_m": list(plane.centroid),
         "n_picks": plane.n_points,
-        "dip_ci95": None if conf is None else conf.dip_ci95_deg,
-        "dip_direction_ci95": None if conf is None else conf.dip_direction_ci95_deg,
-        "cone95": None if conf is None else conf.cone95_deg,
+        "dip_ci95_deg": None if conf is None else conf.dip_ci95_deg,
+        "dip_direction_ci95_deg": None if conf is None else conf.dip_direction_ci95_deg,
+        "cone95_deg": None if conf is None else conf.cone95_deg,
         "confidence_method": "three-point (no confidence)" if conf is None else conf.method,
         "quality": quality.quality,
         "reason": quality.reason,
         "advice": quality.advice,
-        "coplanarity_M": quality.coplanarity,
-        "collinearity_K": quality.collinearity,
+        "coplanarity": quality.coplanarity,
+        "collinearity": quality.collinearity,
         "meridian_convergence_deg": gamma,
-        "dip_direction_true": float(grid_to_true_azimuth(plane.dip_direction_deg, gamma)),
+        "dip_direction_true_deg": float(grid_to_true_azimuth(plane.dip_direction_deg, gamma)),
         "dip_significant": significant,
     }
     if not significant:
         # the horizontal lies in the 95% region of the tilt, so the dip's interval reaches 0
         if conf is not None:
-            out["dip_ci95"] = max(conf.dip_ci95_deg, plane.dip_deg)
-        ci = "" if conf is None else f" +/- {out['dip_ci95']:.2g}"
-        out.update(dip_direction=None, strike_rhr=None, dip_direction_true=None, dip_direction_ci95=None,
+            out["dip_ci95_deg"] = max(conf.dip_ci95_deg, plane.dip_deg)
+        ci = "" if conf is None else f" +/- {out['dip_ci95_deg']:.2g}"
+        out.update(dip_direction_deg=None, strike_rhr_deg=None, dip_direction_true_deg=None,
+                   dip_direction_ci95_deg=None,
                    horizontal=(f"horizontal within its 95% confidence: dip {plane.dip_deg:.2g}{ci} deg does "
                                "not differ from 0, so the plane has no dip direction or strike"))
-    elif out["quality"] == "good" and out["dip_direction_ci95"] is not None \
-            and out["dip_direction_ci95"] >= POOR_DIRECTION_DEG:
+    elif out["quality"] == "good" and out["dip_direction_ci95_deg"] is not None \
+            and out["dip_direction_ci95_deg"] >= POOR_DIRECTION_DEG:
         # a dip direction known only to a quadrant or worse is not a good attitude
         out.update(quality="weak",
-                   reason=f"the dip direction is poorly fixed (+/- {out['dip_direction_ci95']:.0f} deg at 95%); "
+                   reason=f"the dip direction is poorly fixed (+/- {out['dip_direction_ci95_deg']:.0f} deg at 95%); "
                           + out["reason"],
                    advice="more relief along the contact, or a dip reading, fixes the direction")
     return out
@@ -321,7 +323,7 @@ def depth_trace_misfit(dem, dem_grid: Grid, surface, contacts: VectorLayer | Non
     else:
         trace, tflags = raw_trace, np.zeros(len(raw_trace), dtype=bool)
     out = {"depth": depth, "trace": trace, "trace_extrapolated": tflags, "flag_m": flag_m,
-           "misfit": {"median": None, "p90": None, "n_vertices": 0, "note": "no contacts given"},
+           "misfit": {"median_m": None, "p90_m": None, "n_vertices": 0, "note": "no contacts given"},
            "vertices": np.empty((0, 2)), "vertex_distance": np.empty(0), "segments": None,
            "check": None}
     if contacts is None:

@@ -29,7 +29,7 @@ def build_summary(inputs: Inputs, opts: RunOptions, picks: PickSet, plane: dict,
         "n_picks": len(picks),
         "picks_by_source": picks.counts_by_source(),
         "plane": plane,
-        "trace_misfit_m": misfit,
+        "trace_misfit": misfit,
         "structure_contours": {
             "interval_m": opts.interval_m, "n_lines": n_contours,
             "n_extrapolated": 0 if contour_flags is None else int(np.sum(contour_flags)),
@@ -43,7 +43,7 @@ def build_summary(inputs: Inputs, opts: RunOptions, picks: PickSet, plane: dict,
         },
         "conventions": "dip direction 0-360 clockwise from grid north of the CRS; dip 0-90 from "
                        "horizontal; strike by the right-hand rule (dip to the right); "
-                       "dip_direction_true is the same azimuth from true north",
+                       "dip_direction_true_deg is the same azimuth from true north",
         "inputs": {os.path.basename(p): file_sha256(p) for p in inputs.paths.values() if os.path.isfile(p)},
         "caution": CAUTION,
     }
@@ -55,20 +55,19 @@ def build_summary(inputs: Inputs, opts: RunOptions, picks: PickSet, plane: dict,
                             "least-squares prediction standard error (not calibrated: no cross-validation)"
                             if model.kind in ("plane", "trend2") else
                             "cross-validation RMSE scaled by distance to the nearest datum")
-        m["extrapolated_beyond_m"] = model.reach_m
         if inputs.boreholes_xyz is not None:
             bm = model.borehole_misfit_m()
-            m["boreholes"] = {"n": int(len(bm)), "max_abs_misfit_m": float(np.max(np.abs(bm))) if len(bm) else None,
+            m["boreholes"] = {"n_boreholes": int(len(bm)), "max_abs_misfit_m": float(np.max(np.abs(bm))) if len(bm) else None,
                               "sigma_m": opts.borehole_sigma_m}
         if inputs.orientations is not None:
-            m["orientations"] = {"n": int(len(inputs.orientations)), "sigma_deg": opts.orientation_sigma_deg}
+            m["orientations"] = {"n_orientations": int(len(inputs.orientations)), "sigma_deg": opts.orientation_sigma_deg}
         summary["model"] = m
     if groups:
         summary["groups"] = {"field": opts.group_by, "planes": groups}
     if attitudes is not None:
         q, counts = np.unique(np.asarray(attitudes.quality, dtype=str), return_counts=True)
-        summary["attitudes"] = {"n": int(len(attitudes.x)), "window_m": attitudes.window_m,
-                                "method": attitudes.method,
+        summary["attitudes"] = {"n_windows": int(len(attitudes.x)), "window_m": attitudes.window_m,
+                                "confidence_method": attitudes.method,
                                 "by_quality": {str(a): int(b) for a, b in zip(q, counts)}}
     if segments is not None:
         unchecked = ~np.isfinite(np.asarray(segments.get("z_score", segments["misfit_m"]), dtype=float))

@@ -9,6 +9,7 @@ import shapely
 
 from strikeline.geometry.grid import Grid
 from strikeline.io.vector import LayerOut
+from strikeline.vocabulary import UNIT_CONFLICTS
 from strikeline.surfaces.core import SurfaceModel
 from strikeline.surfaces.units import UnitBounds, bound_violation_m, parse_unit_names, unit_bounds
 from strikeline.pipeline.options import Log, RunOptions, _quiet
@@ -77,6 +78,8 @@ def map_unit_check(model: SurfaceModel, polygons, labels, dem, dem_grid: Grid, o
 
 def unit_conflicts_layer(check: dict) -> LayerOut:
     """The ``unit_conflicts`` layer: check points where the surface breaks the map's units."""
-    return LayerOut("unit_conflicts", shapely.points(check["xy"]) if len(check["xy"]) else np.empty(0, dtype=object),
-                    {"unit": np.asarray(check["unit"], dtype=str), "side": np.asarray(check["side"], dtype=str),
-                     "violation_m": np.asarray(check["violation_m"], dtype=float)}, "point")
+    from strikeline.pipeline.outputs import vocabulary_layer  # outputs imports this module
+
+    return vocabulary_layer(UNIT_CONFLICTS, shapely.points(check["xy"]) if len(check["xy"]) else np.empty(0, dtype=object),
+                            {"unit": np.asarray(check["unit"], dtype=str), "side": np.asarray(check["side"], dtype=str),
+                             "violation_m": np.asarray(check["violation_m"], dtype=float)})

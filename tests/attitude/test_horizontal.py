@@ -73,13 +73,13 @@ def test_horizontal_bed_runs_through_and_reports_no_direction(horizontal_run):
     pl = s["plane"]
     assert pl["quality"] != "undetermined"
     assert pl["dip_significant"] is False
-    assert pl["dip_direction"] is None and pl["strike_rhr"] is None
-    assert pl["dip_direction_true"] is None and pl["dip_direction_ci95"] is None
+    assert pl["dip_direction_deg"] is None and pl["strike_rhr_deg"] is None
+    assert pl["dip_direction_true_deg"] is None and pl["dip_direction_ci95_deg"] is None
     # the 95% interval of the dip reaches 0
-    assert pl["dip"] - pl["dip_ci95"] <= 0.0 or pl["cone95"] >= pl["dip"]
+    assert pl["dip_deg"] - pl["dip_ci95_deg"] <= 0.0 or pl["cone95_deg"] >= pl["dip_deg"]
     assert "horizontal within its 95% confidence" in pl["horizontal"]
     # Source: GDAL's contour generator drew the contact at LEVEL_M
-    assert pl["centroid"][2] == pytest.approx(LEVEL_M, abs=LEVEL_TOL_M)
+    assert pl["centroid_m"][2] == pytest.approx(LEVEL_M, abs=LEVEL_TOL_M)
     line = next(x for x in proc.stdout.splitlines() if x.startswith("best-fit plane"))
     assert "horizontal within its 95% confidence" in line
     assert not re.search(r"strike \d", line) and "toward" not in line
@@ -97,8 +97,8 @@ def test_horizontal_bed_writes_a_level_surface(horizontal_run):
     # local windows along a level contact are level too: none of them gets a direction
     ds = ogr.Open(str(out / "results.gpkg"))
     att = ds.GetLayerByName("attitudes")
-    rows = [(f.GetField("quality"), f.GetField("dip_direction"), f.GetField("strike_rhr")) for f in att]
-    assert rows and s["attitudes"]["n"] == len(rows)
+    rows = [(f.GetField("quality"), f.GetField("dip_direction_deg"), f.GetField("strike_rhr_deg")) for f in att]
+    assert rows and s["attitudes"]["n_windows"] == len(rows)
     determined = [r for r in rows if r[0] != "undetermined"]
     assert determined, "some windows along a winding level contact must be determined"
     assert all(r[1] is None and r[2] is None for r in determined)
@@ -110,7 +110,7 @@ def test_attitude_of_the_level_picks(horizontal_run, tmp_path):
                    "--dem-sigma", "2", "--out", tmp_path / "a.json")
     assert proc.returncode == 0, proc.stderr
     r = json.loads((tmp_path / "a.json").read_text())["plane"]
-    assert r["dip_significant"] is False and r["dip_direction"] is None and r["strike_rhr"] is None
+    assert r["dip_significant"] is False and r["dip_direction_deg"] is None and r["strike_rhr_deg"] is None
     assert r["quality"] == "good"
     text = proc.stdout
     assert "horizontal within its 95% confidence" in text
@@ -133,10 +133,10 @@ def test_gently_dipping_bed_keeps_its_direction(tmp_path, demo):
     assert proc.returncode == 0, proc.stderr
     pl = json.loads((tmp_path / "out" / "summary.json").read_text())["plane"]
     assert pl["dip_significant"] is True
-    assert pl["dip"] == pytest.approx(GENTLE_DIP_DEG, abs=max(0.1, pl["dip_ci95"]))
-    assert abs(azimuth_difference(pl["dip_direction"], GENTLE_DD_DEG)) <= max(2.0, pl["dip_direction_ci95"])
+    assert pl["dip_deg"] == pytest.approx(GENTLE_DIP_DEG, abs=max(0.1, pl["dip_ci95_deg"]))
+    assert abs(azimuth_difference(pl["dip_direction_deg"], GENTLE_DD_DEG)) <= max(2.0, pl["dip_direction_ci95_deg"])
     # common practice: strike by the right-hand rule is the dip direction minus 90
-    assert pl["strike_rhr"] == pytest.approx((pl["dip_direction"] - 90.0) % 360.0, abs=1e-3)
+    assert pl["strike_rhr_deg"] == pytest.approx((pl["dip_direction_deg"] - 90.0) % 360.0, abs=1e-3)
     line = next(x for x in proc.stdout.splitlines() if x.startswith("best-fit plane"))
     assert "toward" in line and "strike" in line and "horizontal" not in line
 
@@ -181,5 +181,5 @@ def test_straight_level_points_are_undetermined_in_attitude(tmp_path):
     proc = run_cli("attitude", "--points", path, "--out", tmp_path / "a.json")
     assert proc.returncode == 0, proc.stderr
     r = json.loads((tmp_path / "a.json").read_text())["plane"]
-    assert r["quality"] == "undetermined" and "dip" not in r
+    assert r["quality"] == "undetermined" and "dip_deg" not in r
     assert "undetermined - no attitude can be given" in proc.stdout

@@ -112,17 +112,17 @@ def test_demo_picks_recover_the_demo_plane(tmp_path, cli, demo, demo_picks):
     t = demo["truth"]  # Source: the analytic plane the demo sheet was generated from (truth.json)
     pl = json.loads(out.read_text())["plane"]
     assert pl["quality"] == "good"
-    assert abs(pl["dip"] - t["dip_deg"]) < DIP_TOL_DEG
-    assert _angle_diff(pl["dip_direction"], t["dip_direction_deg"]) < DIP_DIRECTION_TOL_DEG
+    assert abs(pl["dip_deg"] - t["dip_deg"]) < DIP_TOL_DEG
+    assert _angle_diff(pl["dip_direction_deg"], t["dip_direction_deg"]) < DIP_DIRECTION_TOL_DEG
     # strike by the right-hand rule is dip direction - 90 (common practice)
-    assert _angle_diff(pl["strike_rhr"], pl["dip_direction"] - 90.0) < 1e-3
-    for key in ("dip_ci95", "dip_direction_ci95", "cone95"):
+    assert _angle_diff(pl["strike_rhr_deg"], pl["dip_direction_deg"] - 90.0) < 1e-3
+    for key in ("dip_ci95_deg", "dip_direction_ci95_deg", "cone95_deg"):
         assert 0.0 <= pl[key] < WELL_CONDITIONED_MAX_CI_DEG, key
     # the printout gives the same plane with its half-widths, then the caution
     m = re.search(r"dip ([\d.]+) \+/- ([\d.]+) deg toward ([\d.]+) \+/- ([\d.]+) deg from grid north", proc.stdout)
     assert m, proc.stdout
-    assert float(m.group(1)) == pytest.approx(pl["dip"], abs=0.006)
-    assert float(m.group(3)) == pytest.approx(pl["dip_direction"], abs=0.006)
+    assert float(m.group(1)) == pytest.approx(pl["dip_deg"], abs=0.006)
+    assert float(m.group(3)) == pytest.approx(pl["dip_direction_deg"], abs=0.006)
     assert "from true north" in proc.stdout and "strike 131." in proc.stdout
     assert re.search(r"best-fit plane of all points \(\d+ points\): good", proc.stdout)
     assert proc.stdout.rstrip().endswith("under local codes.")
@@ -136,10 +136,10 @@ def test_true_north_from_pyproj(tmp_path, run, demo_picks):
     # Source: pyproj (PROJ) Proj.get_factors().meridian_convergence at the points' centroid, a
     # general-purpose reference library; true azimuth = grid azimuth + convergence (issue 3).
     c = pyproj.CRS(f"EPSG:{EPSG}")
-    lon, lat = pyproj.Transformer.from_crs(c, c.geodetic_crs, always_xy=True).transform(*pl["centroid"][:2])
+    lon, lat = pyproj.Transformer.from_crs(c, c.geodetic_crs, always_xy=True).transform(*pl["centroid_m"][:2])
     gamma = pyproj.Proj(c).get_factors(lon, lat).meridian_convergence
     assert pl["meridian_convergence_deg"] == pytest.approx(gamma, abs=1e-4)
-    assert pl["dip_direction_true"] == pytest.approx((pl["dip_direction"] + gamma) % 360.0, abs=2e-4)
+    assert pl["dip_direction_true_deg"] == pytest.approx((pl["dip_direction_deg"] + gamma) % 360.0, abs=2e-4)
 
 
 def test_z_field_gives_the_same_plane_and_the_json_is_deterministic(tmp_path, run, demo_picks):
@@ -160,8 +160,8 @@ def test_where_filter_matches_the_group(tmp_path, run, demo_picks):
     assert run("attitude", "--points", demo_picks, "--group-by", "source", "--out", b).returncode == 0
     only_dem, groups = json.loads(a.read_text()), json.loads(b.read_text())
     assert only_dem["points"]["where"] == "source = 'dem'"
-    assert only_dem["plane"] == groups["groups"]["dem"]
-    assert only_dem["n_points"] == groups["groups"]["dem"]["n_picks"] < groups["n_points"]
+    assert only_dem["plane"] == groups["groups"]["planes"]["dem"]
+    assert only_dem["n_points"] == groups["groups"]["planes"]["dem"]["n_picks"] < groups["n_points"]
 
 
 def test_dem_sigma_widens_the_half_widths(tmp_path, run):
@@ -173,8 +173,8 @@ def test_dem_sigma_widens_the_half_widths(tmp_path, run):
     p0, p1 = (json.loads(f.read_text())["plane"] for f in (plain, mc))
     assert p0["confidence_method"] == "bootstrap" and "monte_carlo" in p1["confidence_method"]
     # independent error sources add in quadrature (JCGM 100:2008, 5.1): strictly wider
-    assert p1["dip_ci95"] > p0["dip_ci95"] and p1["cone95"] > p0["cone95"]
-    assert p1["dip"] == p0["dip"]
+    assert p1["dip_ci95_deg"] > p0["dip_ci95_deg"] and p1["cone95_deg"] > p0["cone95_deg"]
+    assert p1["dip_deg"] == p0["dip_deg"]
     assert "Monte Carlo of the 5 m vertical error" in proc.stdout
 
 
@@ -186,13 +186,13 @@ def test_group_by_recovers_two_differently_dipping_planes(tmp_path, run):
     out = tmp_path / "groups.json"
     proc = run("attitude", "--points", pts, "--group-by", "unit", "--out", out)
     assert proc.returncode == 0, proc.stderr
-    groups = json.loads(out.read_text())["groups"]
+    groups = json.loads(out.read_text())["groups"]["planes"]
     assert sorted(groups) == ["Lower Varn", "Upper Varn"]
     for name, truth in (("Lower Varn", PLANE_A), ("Upper Varn", PLANE_B)):
         g = groups[name]  # Source: the analytic plane the group was built on
         assert g["quality"] == "good" and g["n_picks"] == 150
-        assert abs(g["dip"] - truth["dip_deg"]) < DIP_TOL_DEG
-        assert _angle_diff(g["dip_direction"], truth["dip_direction_deg"]) < DIP_DIRECTION_TOL_DEG
+        assert abs(g["dip_deg"] - truth["dip_deg"]) < DIP_TOL_DEG
+        assert _angle_diff(g["dip_direction_deg"], truth["dip_direction_deg"]) < DIP_DIRECTION_TOL_DEG
     assert "group unit = Lower Varn (150 points): good" in proc.stdout
     assert "group unit = Upper Varn (150 points): good" in proc.stdout
 
@@ -221,7 +221,7 @@ def test_near_collinear_points_are_undetermined_without_a_number(tmp_path, run, 
     assert "toward" not in proc.stdout and not re.search(r"strike \d", proc.stdout) and "+/-" not in proc.stdout
     pl = json.loads(out.read_text())["plane"]
     assert pl["quality"] == "undetermined" and pl["advice"] and pl["reason"]
-    assert all(pl.get(k) is None for k in ("dip", "dip_direction", "strike_rhr", "dip_ci95"))
+    assert all(pl.get(k) is None for k in ("dip_deg", "dip_direction_deg", "strike_rhr_deg", "dip_ci95_deg"))
     assert "not a substitute for site investigation" in proc.stdout
 
 
@@ -296,9 +296,9 @@ def test_three_points_give_a_plane_without_half_widths(tmp_path, run):
     proc = run("attitude", "--points", write_points(tmp_path / "three.gpkg", xyz), "--out", out)
     assert proc.returncode == 0, proc.stderr
     pl = json.loads(out.read_text())["plane"]
-    assert pl["dip"] == pytest.approx(PLANE_B["dip_deg"], abs=1e-3)
-    assert _angle_diff(pl["dip_direction"], PLANE_B["dip_direction_deg"]) < 1e-3
-    assert pl["dip_ci95"] is None and pl["dip_direction_ci95"] is None
+    assert pl["dip_deg"] == pytest.approx(PLANE_B["dip_deg"], abs=1e-3)
+    assert _angle_diff(pl["dip_direction_deg"], PLANE_B["dip_direction_deg"]) < 1e-3
+    assert pl["dip_ci95_deg"] is None and pl["dip_direction_ci95_deg"] is None
     assert "no 95% half-widths" in proc.stdout and "+/-" not in proc.stdout
 
 

@@ -42,17 +42,17 @@ def test_few_picks_take_a_larger_window_and_say_so(tmp_path, demo):
     note = s["attitudes"]["note"]
     assert f"only {n} picks" in note and "too few for the default window" in note
     assert "warning: local attitudes: " + note in proc.stderr
-    assert s["attitudes"]["n"] > 0
+    assert s["attitudes"]["n_windows"] > 0
     # the window holds about half the picks: the median distance from a pick to its (n//2)-th
     # nearest other pick (Source: scipy.spatial.distance.cdist as the reference)
     layers, ds = _layers(out / "results.gpkg")
     xy = np.array([f.GetGeometryRef().GetPoint_2D() for f in layers["picks"]])
     d = np.sort(cdist(xy, xy), axis=1)[:, n // 2]
     assert s["attitudes"]["window_m"] == pytest.approx(np.median(d), rel=1e-3)
-    assert layers["attitudes"].GetFeatureCount() == s["attitudes"]["n"]
+    assert layers["attitudes"].GetFeatureCount() == s["attitudes"]["n_windows"]
     ds = None
     t = demo["truth"]  # Source: truth.json, the analytic plane of the demo sheet
-    assert abs(s["plane"]["dip"] - t["dip_deg"]) < DIP_TOL_DEG
+    assert abs(s["plane"]["dip_deg"] - t["dip_deg"]) < DIP_TOL_DEG
 
 
 def test_too_few_picks_for_any_window_skip_local_attitudes_and_say_why(tmp_path, demo):
@@ -60,7 +60,7 @@ def test_too_few_picks_for_any_window_skip_local_attitudes_and_say_why(tmp_path,
     assert proc.returncode == 0, proc.stderr
     s = json.loads((out / "summary.json").read_text())
     assert s["n_picks"] < 2 * DEFAULT_MIN_POINTS
-    assert s["attitudes"]["n"] == 0 and "none were fitted" in s["attitudes"]["note"]
+    assert s["attitudes"]["n_windows"] == 0 and "none were fitted" in s["attitudes"]["note"]
     assert "warning: local attitudes: only" in proc.stderr
     layers, ds = _layers(out / "results.gpkg")
     assert "attitudes" not in layers and "picks" in layers
@@ -68,7 +68,7 @@ def test_too_few_picks_for_any_window_skip_local_attitudes_and_say_why(tmp_path,
     for name in ("surface.tif", "depth.tif", "dip.tif"):
         assert (out / name).exists()
     t = demo["truth"]  # Source: truth.json
-    assert abs(s["plane"]["dip"] - t["dip_deg"]) < DIP_TOL_DEG
+    assert abs(s["plane"]["dip_deg"] - t["dip_deg"]) < DIP_TOL_DEG
 
 
 def test_thickness_of_surfaces_that_never_overlap_says_why(tmp_path, demo):

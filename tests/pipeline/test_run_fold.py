@@ -90,8 +90,8 @@ def test_dip_grid_follows_the_limbs(fold_run):
 
 def test_local_attitudes_swing_with_the_fold(fold_run):
     ds = ogr.Open(str(fold_run / "results.gpkg"))
-    good = [(f.GetGeometryRef().GetX(), f.GetGeometryRef().GetY(), f.GetField("dip_direction"),
-             f.GetField("dip"), f.GetField("dip_ci95"))
+    good = [(f.GetGeometryRef().GetX(), f.GetGeometryRef().GetY(), f.GetField("dip_direction_deg"),
+             f.GetField("dip_deg"), f.GetField("dip_ci95_deg"))
             for f in ds.GetLayerByName("attitudes") if f.GetField("quality") == "good"]
     # a window whose dip does not differ from 0 at 95% has no dip direction (horizontal within its
     # confidence); that may happen only where its interval reaches the hinges' gentle dips

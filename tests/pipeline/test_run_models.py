@@ -80,15 +80,15 @@ def test_plane_has_confidence_quality_and_true_north(demo_out, demo):
     out, proc = demo_out
     pl = _summary(out)["plane"]
     assert pl["quality"] == "good"
-    assert 0 < pl["dip_ci95"] < HAND_METHOD_DIP_DEG  # common practice (see constant)
-    assert 0 < pl["dip_direction_ci95"] < HAND_METHOD_DIP_DEG
-    assert pl["cone95"] > 0
+    assert 0 < pl["dip_ci95_deg"] < HAND_METHOD_DIP_DEG  # common practice (see constant)
+    assert 0 < pl["dip_direction_ci95_deg"] < HAND_METHOD_DIP_DEG
+    assert pl["cone95_deg"] > 0
     # Source: pyproj/PROJ meridian convergence at the centroid (general-purpose reference library)
     c = pyproj.CRS("EPSG:32631")
-    lon, lat = pyproj.Transformer.from_crs(c, c.geodetic_crs, always_xy=True).transform(*pl["centroid"][:2])
+    lon, lat = pyproj.Transformer.from_crs(c, c.geodetic_crs, always_xy=True).transform(*pl["centroid_m"][:2])
     gamma = pyproj.Proj(c).get_factors(lon, lat).meridian_convergence
     assert pl["meridian_convergence_deg"] == pytest.approx(gamma, abs=1e-3)
-    assert _angle_diff(pl["dip_direction_true"], pl["dip_direction"] + gamma) < 1e-3
+    assert _angle_diff(pl["dip_direction_true_deg"], pl["dip_direction_deg"] + gamma) < 1e-3
     assert "± " in proc.stdout and "quality good" in proc.stdout
 
 
@@ -113,9 +113,10 @@ def test_local_attitudes_layer(demo_out, demo):
     lyr = ds.GetLayerByName("attitudes")
     assert lyr is not None and lyr.GetFeatureCount() > 10
     fields = {lyr.GetLayerDefn().GetFieldDefn(i).GetName() for i in range(lyr.GetLayerDefn().GetFieldCount())}
-    assert {"dip", "dip_direction", "strike_rhr", "dip_ci95", "dip_direction_ci95", "n_picks", "quality"} <= fields
+    assert {"dip_deg", "dip_direction_deg", "strike_rhr_deg", "dip_ci95_deg", "dip_direction_ci95_deg", "n_picks",
+            "quality"} <= fields
     t = demo["truth"]  # Source: analytic plane of the demo sheet
-    good = [(f.GetField("dip"), f.GetField("dip_direction")) for f in lyr if f.GetField("quality") == "good"]
+    good = [(f.GetField("dip_deg"), f.GetField("dip_direction_deg")) for f in lyr if f.GetField("quality") == "good"]
     assert len(good) > 10
     for d, dd in good:
         assert abs(d - t["dip_deg"]) < 1.0 and _angle_diff(dd, t["dip_direction_deg"]) < 3.0
@@ -171,7 +172,7 @@ def test_group_by_gives_one_plane_per_group(tmp_path, demo, cli):
     t = demo["truth"]  # Source: analytic plane of the demo sheet
     for g in planes.values():
         if g["quality"] != "undetermined":
-            assert abs(g["dip"] - t["dip_deg"]) < 1.0
+            assert abs(g["dip_deg"] - t["dip_deg"]) < 1.0
 
 
 def test_contact_on_one_contour_is_a_horizontal_plane(tmp_path, demo, cli):
@@ -189,8 +190,8 @@ def test_contact_on_one_contour_is_a_horizontal_plane(tmp_path, demo, cli):
     assert proc.returncode == 0, proc.stderr
     pl = json.loads((tmp_path / "out" / "summary.json").read_text())["plane"]
     assert pl["quality"] != "undetermined" and pl["dip_significant"] is False
-    assert pl["dip_direction"] is None and pl["strike_rhr"] is None
-    assert pl["centroid"][2] == pytest.approx(520.0, abs=0.25)
+    assert pl["dip_direction_deg"] is None and pl["strike_rhr_deg"] is None
+    assert pl["centroid_m"][2] == pytest.approx(520.0, abs=0.25)
     assert "horizontal within its 95% confidence" in proc.stdout
 
 
@@ -207,7 +208,7 @@ def test_boreholes_are_honoured(tmp_path, demo, cli):
                "--borehole-sigma", sigma, "--model", "spline")
     assert proc.returncode == 0, proc.stderr
     m = _summary(tmp_path / "out")["model"]
-    assert m["chosen"] == "spline" and m["boreholes"]["n"] == 3
+    assert m["chosen"] == "spline" and m["boreholes"]["n_boreholes"] == 3
     assert m["boreholes"]["max_abs_misfit_m"] <= sigma + 1e-6
 
 
@@ -223,7 +224,7 @@ def test_orientation_fields_strike_or_dip_direction_agree(tmp_path, demo, cli):
             "--orientations", o, "--strike-field", "rhr", "--model", "plane")
     assert a.returncode == 0 and b.returncode == 0, a.stderr + b.stderr
     assert _summary(tmp_path / "a")["model"]["params"] == _summary(tmp_path / "b")["model"]["params"]
-    assert _summary(tmp_path / "a")["model"]["orientations"]["n"] == 2
+    assert _summary(tmp_path / "a")["model"]["orientations"]["n_orientations"] == 2
 
 
 @pytest.mark.parametrize("args,words", [

@@ -131,5 +131,5 @@ def test_a_plane_whose_dip_direction_is_poorly_fixed_is_not_rated_good():
     x, y = rng.uniform(-300, 300, 40), rng.uniform(-300, 300, 40)
     z = 100 - np.tan(np.radians(0.5)) * x + rng.normal(0, 3.4, 40)
     out = attitude_of(np.c_[x, y, z], np.full(40, 3.4), crs_wkt="EPSG:32631", what="t", strict=False)
-    assert out["dip_significant"] and out["dip_direction_ci95"] >= 45.0
+    assert out["dip_significant"] and out["dip_direction_ci95_deg"] >= 45.0
     assert out["quality"] == "weak" and "poorly fixed" in out["reason"]
