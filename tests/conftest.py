@@ -1,16 +1,54 @@
-"""Shared fixtures: the demo sheet, derived bad inputs, and a CLI runner."""
+"""Shared fixtures: the bundled sheets, the command run in process, and canonical runs.
+
+Canonical runs are session-scoped: each is run once and read by every test that needs it. Their
+folders are made read-only, so a test that would alter a shared output fails instead of changing
+what the next test reads; a test that needs to alter files copies them to its ``tmp_path``.
+Helpers that are not fixtures (paths, writers of derived inputs, ``run_cli``) live in
+``tests/helpers.py``.
+"""
 from __future__ import annotations
 
 import json
 import os
-import subprocess
-import sys
+import stat
+from dataclasses import dataclass
 from pathlib import Path
 
 import pytest
 
-REPO = Path(__file__).resolve().parents[1]
-DEMO = REPO / "test_data" / "demo"
+from helpers import DEMO, FOLD, UNIT_OPTS, CliRun, run_cli
+
+
+@dataclass(frozen=True)
+class SheetRun:
+    """One finished ``strikeline`` command: what it printed and the folder it wrote."""
+
+    proc: CliRun
+    out: Path
+
+
+def _read_only(folder: Path) -> None:
+    """Make a shared output read-only, so that a test cannot alter what the next test reads."""
+    for root, dirs, files in os.walk(folder):
+        for name in files:
+            p = Path(root, name)
+            p.chmod(p.stat().st_mode & ~(stat.S_IWUSR | stat.S_IWGRP | stat.S_IWOTH))
+    for root, dirs, _ in os.walk(folder, topdown=False):
+        for name in dirs:
+            p = Path(root, name)
+            p.chmod(p.stat().st_mode & ~(stat.S_IWUSR | stat.S_IWGRP | stat.S_IWOTH))
+    folder.chmod(folder.stat().st_mode & ~(stat.S_IWUSR | stat.S_IWGRP | stat.S_IWOTH))
+
+
+def _shared_run(tmp_path_factory, name: str, *args) -> SheetRun:
+    """Run ``strikeline ARGS --out <fresh folder>`` once; it must succeed."""
+    base = tmp_path_factory.mktemp(name)
+    out = base / "out"
+    proc = run_cli(*args, "--out", out)
+    assert proc.returncode == 0, proc.stderr
+    _read_only(out)
+    base.chmod(base.stat().st_mode & ~(stat.S_IWUSR | stat.S_IWGRP | stat.S_IWOTH))
+    return SheetRun(proc, out)
 
 
 @pytest.fixture(scope="session")
@@ -27,44 +65,59 @@ def demo():
     }
 
 
-def run_cli(*args, cwd=None):
-    """Run ``strikeline`` as a user would (a subprocess) and return the CompletedProcess."""
-    env = dict(os.environ)
-    env.pop("STRIKELINE_DEBUG", None)
-    return subprocess.run(
-        [sys.executable, "-m", "strikeline.cli.main", *map(str, args)],
-        capture_output=True, text=True, cwd=cwd, env=env, timeout=600,
-    )
-
-
 @pytest.fixture
 def cli():
+    """``strikeline ARGS`` run in this process (see :func:`helpers.run_cli`)."""
     return run_cli
 
 
-def write_lines(path, lines, *, epsg=None, fields=None, layer="lines", driver=None):
-    """Write shapely lines to a vector file with OGR (test inputs only). ``epsg=None``: no CRS."""
-    from osgeo import ogr, osr
-    import shapely
+# --------------------------------------------------------------------------- canonical runs
+@pytest.fixture(scope="session")
+def demo_dem_run(tmp_path_factory, demo) -> SheetRun:
+    """``strikeline run`` on the demo's exact contact and its DEM, default options."""
+    return _shared_run(tmp_path_factory, "demo_dem", "run", "--contacts", demo["contacts"], "--dem", demo["dem"])
 
-    path = str(path)
-    driver = driver or {".gpkg": "GPKG", ".shp": "ESRI Shapefile", ".geojson": "GeoJSON"}[Path(path).suffix]
-    ogr.UseExceptions()
-    ds = ogr.GetDriverByName(driver).CreateDataSource(path)
-    srs = None
-    if epsg is not None:
-        srs = osr.SpatialReference()
-        srs.ImportFromEPSG(epsg)
-    lyr = ds.CreateLayer(layer, srs, ogr.wkbLineString)
-    fields = fields or {}
-    for name, values in fields.items():
-        kind = ogr.OFTReal if isinstance(values[0], float) else ogr.OFTString
-        lyr.CreateField(ogr.FieldDefn(name, kind))
-    for i, g in enumerate(lines):
-        f = ogr.Feature(lyr.GetLayerDefn())
-        f.SetGeometry(ogr.CreateGeometryFromWkb(shapely.to_wkb(g)))
-        for name, values in fields.items():
-            f.SetField(name, values[i])
-        lyr.CreateFeature(f)
-    ds = None
-    return path
+
+@pytest.fixture(scope="session")
+def demo_dem_contours_run(tmp_path_factory, demo) -> SheetRun:
+    """``strikeline run`` on the demo's exact contact with DEM and contour picks, default options."""
+    return _shared_run(tmp_path_factory, "demo_dem_contours", "run", "--contacts", demo["contacts"],
+                       "--dem", demo["dem"], "--contours", demo["contours"], "--elev-field", demo["elev_field"])
+
+
+@pytest.fixture(scope="session")
+def demo_command_run(tmp_path_factory) -> SheetRun:
+    """``strikeline demo``: the whole chain on the demo sheet's mapped contacts, boreholes, dip
+    readings and top contact."""
+    return _shared_run(tmp_path_factory, "demo_command", "demo")
+
+
+@pytest.fixture(scope="session")
+def fold_run(tmp_path_factory) -> SheetRun:
+    """``strikeline run`` on the fold sheet (test_data/fold), default options (``--model auto``)."""
+    return _shared_run(tmp_path_factory, "fold", "run", "--contacts", FOLD / "contacts.gpkg",
+                       "--dem", FOLD / "dem.tif")
+
+
+@pytest.fixture(scope="session")
+def fold_units_gpkg(tmp_path_factory) -> Path:
+    """The fold sheet's unit polygons (helpers.write_fold_units), written once, read-only."""
+    from helpers import write_fold_units
+
+    path = write_fold_units(tmp_path_factory.mktemp("fold_units") / "units.gpkg")
+    _read_only(Path(path))
+    return Path(path)
+
+
+@pytest.fixture(scope="session")
+def fold_spline_run(tmp_path_factory) -> SheetRun:
+    """``strikeline run --model spline`` on the fold sheet without its unit polygons."""
+    return _shared_run(tmp_path_factory, "fold_spline", "run", "--contacts", FOLD / "contacts.gpkg",
+                       "--dem", FOLD / "dem.tif", "--model", "spline")
+
+
+@pytest.fixture(scope="session")
+def fold_units_run(tmp_path_factory, fold_units_gpkg) -> SheetRun:
+    """``strikeline run --model spline`` on the fold sheet bounded by its unit polygons."""
+    return _shared_run(tmp_path_factory, "fold_units", "run", "--contacts", FOLD / "contacts.gpkg",
+                       "--dem", FOLD / "dem.tif", "--model", "spline", "--map-units", fold_units_gpkg, *UNIT_OPTS)

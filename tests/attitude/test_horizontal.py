@@ -15,7 +15,7 @@ import pytest
 import shapely
 from osgeo import gdal, ogr, osr
 
-from conftest import run_cli, write_lines
+from helpers import run_cli, write_lines
 from strikeline.geometry import azimuth_difference, normal_from_dip
 
 gdal.UseExceptions()

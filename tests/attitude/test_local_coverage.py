@@ -23,7 +23,7 @@ import numpy as np
 import pytest
 import shapely
 
-from conftest import DEMO, REPO
+from helpers import DEMO, REPO
 from strikeline import pipeline as pl
 from strikeline.attitude import local_attitudes
 from strikeline.geometry import azimuth_difference

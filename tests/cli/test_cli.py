@@ -12,7 +12,7 @@ import pytest
 import shapely
 from osgeo import gdal, ogr
 
-from conftest import write_lines
+from helpers import write_lines
 
 # Tolerances set by the issue (end-to-end acceptance): 0.5 deg of dip, 1 deg of dip direction,
 # trace misfit median below one DEM cell (10 m on the demo sheet).

@@ -16,7 +16,7 @@ import pyproj
 import pytest
 from osgeo import ogr, osr
 
-from conftest import write_lines
+from helpers import write_lines
 
 # Tolerances of the end-to-end acceptance: 0.5 deg of dip, 1 deg of dip direction.
 DIP_TOL_DEG = 0.5

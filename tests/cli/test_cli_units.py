@@ -1,10 +1,12 @@
 """``strikeline run --map-units``: the map's unit polygons as constraints, end to end, and the
 one-line errors of its options.
 
-The unit polygons are made here from the fold sheet's analytic truth (test_data/fold/truth.json):
-where the ground is above the true surface the upper unit crops out, elsewhere the lower one;
-GDAL's polygoniser (gdal.Polygonize, GDAL 3.x) turns the cells into polygons. A block of
-"superficial cover" is laid over the south-west corner and must be ignored.
+The unit polygons are made from the fold sheet's analytic truth (test_data/fold/truth.json) by
+``helpers.write_fold_units``: where the ground is above the true surface the upper unit crops out,
+elsewhere the lower one; GDAL's polygoniser (gdal.Polygonize, GDAL 3.x) turns the cells into
+polygons. A block of "superficial cover" is laid over the south-west corner and must be ignored.
+The runs with and without the units are the session's (conftest ``fold_spline_run``,
+``fold_units_run``).
 """
 import json
 
@@ -12,18 +14,7 @@ import numpy as np
 import pytest
 from osgeo import gdal, ogr
 
-from conftest import REPO, run_cli
-from unit_polygons import fold_dem as _dem
-from unit_polygons import fold_z as _fold_z
-from unit_polygons import write_fold_units as _write_units
-
-FOLD = REPO / "test_data" / "fold"
-UNIT_OPTS = ("--unit-field", "unit", "--units-above", "Cawl", "--units-below", "Brenlow")
-
-
-@pytest.fixture(scope="module")
-def units_gpkg(tmp_path_factory):
-    return _write_units(tmp_path_factory.mktemp("units") / "units.gpkg")
+from helpers import FOLD, UNIT_OPTS, fold_dem, fold_z, run_cli, write_fold_units
 
 
 def _run(out, *extra):
@@ -32,13 +23,8 @@ def _run(out, *extra):
 
 
 @pytest.fixture(scope="module")
-def runs(tmp_path_factory, units_gpkg):
-    base = tmp_path_factory.mktemp("runs")
-    free = _run(base / "free")
-    bound = _run(base / "units", "--map-units", units_gpkg, *UNIT_OPTS)
-    assert free.returncode == 0, free.stderr
-    assert bound.returncode == 0, bound.stderr
-    return base / "free", base / "units", bound
+def runs(fold_spline_run, fold_units_run):
+    return fold_spline_run.out, fold_units_run.out, fold_units_run.proc
 
 
 def test_summary_reports_the_constraints_and_what_still_breaks_them(runs):
@@ -67,10 +53,10 @@ def test_summary_reports_the_constraints_and_what_still_breaks_them(runs):
 
 def test_the_surface_honours_the_units_on_the_grid(runs):
     free, out, _ = runs
-    dem, gt, _ = _dem()
+    dem, gt, _ = fold_dem()
     r, c = np.mgrid[0:dem.shape[0], 0:dem.shape[1]]
     X, Y = gt[0] + (c + 0.5) * gt[1], gt[3] + (r + 0.5) * gt[5]
-    truth = _fold_z(X, Y)  # Source: the fold sheet's analytic surface (test_data/fold/truth.json)
+    truth = fold_z(X, Y)  # Source: the fold sheet's analytic surface (test_data/fold/truth.json)
     errs = {}
     for name, folder in (("free", free), ("units", out)):
         ds = gdal.Open(str(folder / "surface.tif"))  # kept while its band is read
@@ -82,14 +68,27 @@ def test_the_surface_honours_the_units_on_the_grid(runs):
     assert errs["units"] <= 1.1 * errs["free"] + 0.05
 
 
-def test_reprojected_units_are_used(tmp_path):
-    # Source: EPSG registry -- 25830 is ETRS89 / UTM zone 30N; the reprojection is GDAL/PROJ's
-    units = _write_units(tmp_path / "units_etrs.gpkg", epsg=25830)
-    proc = _run(tmp_path / "out", "--map-units", units, *UNIT_OPTS)
-    assert proc.returncode == 0, proc.stderr
-    assert "reprojecting map units" in proc.stderr
-    s = json.loads((tmp_path / "out" / "summary.json").read_text())["map_units"]
-    assert s["n_points"] > 200
+def test_reprojected_units_are_used(tmp_path, runs):
+    # The pipeline's steps, not the whole command: reading, reprojecting and turning the units into
+    # constraint points is what depends on their CRS; fitting the bounded spline (tested above)
+    # does not. Source: EPSG registry -- 25830 is ETRS89 / UTM zone 30N; the reprojection is
+    # GDAL/PROJ's.
+    from strikeline.pipeline import RunOptions, load_inputs, map_unit_bounds
+
+    units = write_fold_units(tmp_path / "units_etrs.gpkg", epsg=25830)
+    opts = RunOptions(contacts=str(FOLD / "contacts.gpkg"), dem=str(FOLD / "dem.tif"), out=str(tmp_path / "out"),
+                      model="spline", map_units=str(units), unit_field="unit", units_above="Cawl",
+                      units_below="Brenlow")
+    said = []
+    inputs = load_inputs(opts, log=said.append)
+    assert any("reprojecting map units" in m for m in said), said
+    ub = map_unit_bounds(inputs.unit_polygons, inputs.unit_names, inputs.dem, inputs.dem_grid, opts)
+    # the same polygons in the sheet's own CRS gave the session run's constraint points; the round
+    # trip through another UTM zone moves their outlines by millimetres, so the count barely moves
+    # (1 %: common practice for a tolerance on a lattice count)
+    native = json.loads((runs[1] / "summary.json").read_text())["map_units"]
+    assert len(ub) > 200
+    assert abs(len(ub) - native["n_points"]) <= 0.01 * native["n_points"]
 
 
 @pytest.mark.parametrize("args, needle", [
@@ -103,24 +102,24 @@ def test_reprojected_units_are_used(tmp_path):
     (("--units-above", "Cawl"), "name the field that holds each polygon's unit with --unit-field"),
     (("--unit-field", "unit"), "say which units lie above the surface (--units-above)"),
 ])
-def test_bad_unit_options_fail_in_one_line(tmp_path, units_gpkg, args, needle):
-    proc = _run(tmp_path / "out", "--map-units", units_gpkg, *args)
+def test_bad_unit_options_fail_in_one_line(tmp_path, fold_units_gpkg, args, needle):
+    proc = _run(tmp_path / "out", "--map-units", fold_units_gpkg, *args)
     assert proc.returncode == 2
     lines = proc.stderr.strip().splitlines()
     assert len(lines) == 1 and lines[0].startswith("error: ")
-    assert needle.format(u=units_gpkg) in lines[0]
+    assert needle.format(u=fold_units_gpkg) in lines[0]
     assert not (tmp_path / "out").exists()
 
 
-def test_units_need_a_polygon_layer_and_a_dem(tmp_path, units_gpkg):
+def test_units_need_a_polygon_layer_and_a_dem(tmp_path, fold_units_gpkg):
     proc = _run(tmp_path / "out", "--map-units", FOLD / "contacts.gpkg", *UNIT_OPTS)
     assert proc.returncode == 2 and "it must hold polygons - give a polygon layer" in proc.stderr
     assert len(proc.stderr.strip().splitlines()) == 1
     proc = run_cli("run", "--contacts", FOLD / "contacts.gpkg", "--contours", FOLD / "contours.gpkg",
-                   "--elev-field", "elev_m", "--out", tmp_path / "o2", "--map-units", units_gpkg, *UNIT_OPTS)
+                   "--elev-field", "elev_m", "--out", tmp_path / "o2", "--map-units", fold_units_gpkg, *UNIT_OPTS)
     assert proc.returncode == 2 and "--map-units needs a DEM (--dem)" in proc.stderr
     proc = _run(tmp_path / "o3", "--units-below", "Brenlow")
     assert proc.returncode == 2 and "--units-below needs --map-units" in proc.stderr
-    proc = _run(tmp_path / "o4", "--map-units", units_gpkg, "--map-units-layer", "geology", *UNIT_OPTS)
+    proc = _run(tmp_path / "o4", "--map-units", fold_units_gpkg, "--map-units-layer", "geology", *UNIT_OPTS)
     assert proc.returncode == 2 and "has no layer 'geology' (layers: units); name one with --map-units-layer" \
         in proc.stderr

@@ -14,7 +14,7 @@ import shapely
 from osgeo import ogr
 from scipy.spatial.distance import cdist
 
-from conftest import run_cli
+from helpers import run_cli
 from strikeline.attitude import DEFAULT_MIN_POINTS, DEFAULT_WINDOW_PICKS
 
 #: Plane recovered from exact DEM picks of the exact trace (tolerance of tests/test_cli.py).

@@ -10,7 +10,7 @@ import pytest
 import shapely
 from osgeo import gdal, ogr
 
-from conftest import REPO
+from helpers import REPO
 
 FOLD = REPO / "test_data" / "fold"
 # Acceptance of the issue (curved surfaces): spline error against truth under 2 m RMS inside

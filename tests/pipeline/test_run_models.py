@@ -13,7 +13,7 @@ import shapely
 from osgeo import gdal, ogr, osr
 from scipy.ndimage import map_coordinates
 
-from conftest import write_lines
+from helpers import write_lines
 
 # common practice: the hand estimate of dip from structure contours is good to a degree or two,
 # so a well-conditioned case must be better than that.

@@ -18,7 +18,7 @@ from qgis_helpers import raster, table
 from conftest import REPO
 
 sys.path.insert(0, str(REPO / "tests"))
-from unit_polygons import FOLD, write_fold_units  # noqa: E402
+from helpers import FOLD, write_fold_units  # noqa: E402
 
 pytestmark = pytest.mark.qgis
 
