@@ -32,7 +32,7 @@ import numpy as np
 
 from strikeline.stats import segment_groups
 from strikeline.geometry.grid import Grid
-from strikeline.surfaces.core import fit_surface
+from strikeline.surfaces import fit_surface
 
 SHEET_M = 10_000.0
 N_LINES = 160

@@ -13,7 +13,7 @@ from strikeline.maps.dipgrids import dip_grids
 from strikeline.io.files import json_ready
 from strikeline.attitude import LocalAttitudes, fallback_window_m, local_attitudes
 from strikeline.picks import (PickSet)
-from strikeline.surfaces.core import SurfaceModel
+from strikeline.surfaces import SurfaceModel
 from strikeline.maps.thickness import isopach_grids
 from strikeline.maps.trace import (vertex_spacing_m)
 from strikeline.pipeline.inputs import Inputs

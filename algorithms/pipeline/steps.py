@@ -21,7 +21,7 @@ from strikeline.io.contours import contour_lines
 from strikeline.io.vector import VectorLayer
 from strikeline.picks import (PickSet, ground_slope_from_contours, picks_from_contours,
                               picks_from_dem, sample_bilinear)
-from strikeline.surfaces.core import SurfaceModel, fit_surface
+from strikeline.surfaces import SurfaceModel, fit_surface
 from strikeline.maps.trace import (contact_misfit_segments, distance_to_lines, holdout_misfit_segments, split_lines_by_flag,
                               trace_misfit)
 from strikeline.attitude import (
@@ -298,7 +298,7 @@ def depth_trace_misfit(dem, dem_grid: Grid, surface, contacts: VectorLayer | Non
 
     The misfit check cuts the contacts into segments of ``SEGMENT_CELLS`` cells. With the
     fitted ``model`` every segment is compared with the surface forecast WITHOUT the picks
-    near it (:meth:`strikeline.surfaces.core.SurfaceModel.holdout_prediction`), so a mistraced
+    near it (:meth:`strikeline.surfaces.SurfaceModel.holdout_prediction`), so a mistraced
     stretch or an unmapped fault cannot bend the surface it is checked against; it is flagged
     when its vertical misfit exceeds ``z_flag`` standard errors, or, with ``flag_m``, when its horizontal misfit exceeds that many
     metres (:func:`strikeline.maps.trace.holdout_misfit_segments`). Without a model (a surface

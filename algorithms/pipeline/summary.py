@@ -12,7 +12,7 @@ from strikeline.io.crs import crs_label
 from strikeline.io.files import file_sha256, json_ready
 from strikeline.attitude.local import LocalAttitudes
 from strikeline.picks import (PickSet)
-from strikeline.surfaces.core import SurfaceModel
+from strikeline.surfaces import SurfaceModel
 from strikeline.pipeline.inputs import Inputs
 from strikeline.pipeline.options import RunOptions
 

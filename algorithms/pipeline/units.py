@@ -10,7 +10,7 @@ import shapely
 from strikeline.geometry.grid import Grid
 from strikeline.io.vector import LayerOut
 from strikeline.vocabulary import UNIT_CONFLICTS
-from strikeline.surfaces.core import SurfaceModel
+from strikeline.surfaces import SurfaceModel
 from strikeline.surfaces.units import UnitBounds, bound_violation_m, parse_unit_names, unit_bounds
 from strikeline.pipeline.options import Log, RunOptions, _quiet
 

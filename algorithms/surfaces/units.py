@@ -10,7 +10,7 @@ over the polygons, points kept only a margin inside the boundary of the units of
 that digitising error along the mapped contact does not turn into a contradiction with the picks
 on it) and only where the DEM has a value. Each point carries ``lo <= z <= hi`` with one side
 infinite; the other side is the DEM loosened by a tolerance (the DEM's vertical error).
-:func:`strikeline.surfaces.core.fit_surface` honours them (``bounds=``);
+:func:`strikeline.surfaces.fit_surface` honours them (``bounds=``);
 :func:`bound_violation_m` measures by how much a surface still breaks them.
 
 No GDAL here: polygons are shapely geometries, the DEM a float array with its

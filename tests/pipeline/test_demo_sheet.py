@@ -801,7 +801,7 @@ def test_fold_is_recoverable_by_a_spline_but_not_a_plane(fold_contacts, fold_dem
     recovers the fold to under 2 m RMS inside the data hull (a small point budget keeps this fast)."""
     from strikeline.geometry.grid import Grid
     from strikeline.picks import picks_from_dem
-    from strikeline.surfaces.core import fit_surface
+    from strikeline.surfaces import fit_surface
 
     z = fold_dem["array"].astype(np.float64)
     grid = Grid(fold_dem["gt"], z.shape, fold_dem["wkt"], fold_dem["nodata"])

@@ -12,7 +12,7 @@ import pytest
 from strikeline.stats import (CVScore, cross_validate, gcv_from_spectrum, make_folds,
                                  segment_groups, select_model, spatial_block_groups)
 from strikeline.errors import InputError
-from strikeline.surfaces.core import fit_surface, tps_kernel
+from strikeline.surfaces import fit_surface, tps_kernel
 
 #: Source: analytic -- greedy balancing of groups of sizes 3, 2, 1 into 2 folds: {3}, {2, 1}.
 FOLDS_321 = [0, 0, 0, 1, 1, 1]

@@ -1,4 +1,4 @@
-"""Surface models (strikeline.surfaces.core): plane, trend2, thin-plate spline, auto.
+"""Surface models (strikeline.surfaces): plane, trend2, thin-plate spline, auto.
 
 Analytic cases first (a plane and a quadratic recovered exactly, the TPS against scipy's
 RBFInterpolator), then realistic synthetic cases with stated tolerances: a fold with analytic
@@ -16,7 +16,7 @@ from scipy.interpolate import RBFInterpolator
 
 from strikeline.errors import CancelledError, InputError, UndeterminedError
 from strikeline.geometry.grid import Grid
-from strikeline.surfaces.core import MODELS, fit_surface
+from strikeline.surfaces import MODELS, fit_surface
 
 #: Source: scipy.interpolate.RBFInterpolator(kernel="thin_plate_spline") (general-purpose
 #: reference library, version below) -- agreement required by issue 4.

@@ -1,5 +1,5 @@
 """The map's unit polygons as inequality constraints (strikeline.surfaces.units) and every surface model
-honouring them (strikeline.surfaces.core.fit_surface(bounds=...)).
+honouring them (strikeline.surfaces.fit_surface(bounds=...)).
 
 References: the constrained least-squares optimum is computed independently with scipy's
 ``minimize(method="trust-constr")`` (SciPy 1.17; Conn, Gould & Toint 2000 trust-region
@@ -13,7 +13,7 @@ from scipy.optimize import LinearConstraint, minimize
 
 from strikeline.errors import InputError
 from strikeline.geometry.grid import Grid
-from strikeline.surfaces.core import BOUND_TOLERANCE_M, fit_surface, tps_kernel
+from strikeline.surfaces import BOUND_TOLERANCE_M, fit_surface, tps_kernel
 from strikeline.surfaces.units import bound_violation_m, parse_unit_names, unit_bounds
 
 # Tolerance of agreement with scipy's trust-constr optimum (metres): its own gtol/xtol are set
@@ -308,7 +308,8 @@ def test_bounds_are_checked():
 
 
 def test_spectral_solve_of_the_pick_system_equals_a_direct_solve():
-    from strikeline.surfaces.core import _Spectrum, _pairwise_r2, _spectral_solver
+    from strikeline.surfaces.kernel import _pairwise_r2
+    from strikeline.surfaces.spline import _Spectrum, _spectral_solver
 
     rng = np.random.default_rng(11)
     u = rng.normal(size=(60, 2))
