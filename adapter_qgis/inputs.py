@@ -9,56 +9,29 @@ from __future__ import annotations
 
 from typing import NamedTuple
 
-from qgis.core import (
-    QgsProcessing,
-    QgsProcessingParameterString,
-    QgsProcessingParameterDistance,
-    QgsProcessingParameterFeatureSource,
-    QgsProcessingParameterField,
-    QgsProcessingParameterNumber,
-    QgsProcessingParameterRasterLayer,
-)
 
 from strikeline.errors import InputError
 from strikeline.pipeline.points import point_values, point_xyz
-from strikeline.pipeline import (CLI_OPTION_NAMES, DEFAULT_BOREHOLE_SIGMA_M, DEFAULT_ORIENTATION_SIGMA_DEG,
-                                 Inputs, RunOptions, assemble_inputs, reproject_to)
+from strikeline.pipeline import Inputs, RunOptions, assemble_inputs, option, reproject_to
 
 from .layers import raster_path, read_raster_layer, read_vector, vector_name
+from .params import option_names, parameter, values  # noqa: F401 - tools import option_names from here
 
-CONTACTS = "CONTACTS"
-DEM = "DEM"
-CONTOURS = "CONTOURS"
-ELEV_FIELD = "ELEV_FIELD"
-PICK_SPACING = "PICK_SPACING"
-GROUP_BY = "GROUP_BY"
-BOREHOLES = "BOREHOLES"
-ORIENTATIONS = "ORIENTATIONS"
-BOREHOLE_SIGMA = "BOREHOLE_SIGMA"
-ORIENTATION_SIGMA = "ORIENTATION_SIGMA"
-MAP_UNITS = "MAP_UNITS"
-UNIT_FIELD = "UNIT_FIELD"
-UNITS_ABOVE = "UNITS_ABOVE"
-UNITS_BELOW = "UNITS_BELOW"
-
-#: The library's options that name a field (keys of ``pipeline.CLI_OPTION_NAMES``) -> the
-#: parameter that sets them; messages about them name that parameter.
-OPTION_PARAMETERS = {
-    "elev_field": ELEV_FIELD, "group_by": GROUP_BY, "borehole_z_field": "BOREHOLE_Z_FIELD",
-    "borehole_collar_field": "BOREHOLE_COLLAR_FIELD", "borehole_depth_field": "BOREHOLE_DEPTH_FIELD",
-    "dip_field": "DIP_FIELD", "dip_direction_field": "DIP_DIRECTION_FIELD", "strike_field": "STRIKE_FIELD",
-    "map_units": MAP_UNITS, "unit_field": UNIT_FIELD, "units_above": UNITS_ABOVE, "units_below": UNITS_BELOW,
-}
-
-
-def option_names(alg) -> dict:
-    """How messages name the options: ``the '<parameter label>'`` for the tool's parameters."""
-    names = dict(CLI_OPTION_NAMES)
-    for key, param in OPTION_PARAMETERS.items():
-        definition = alg.parameterDefinition(param)
-        if definition is not None:
-            names[key] = f"the '{definition.description()}'"
-    return names
+# The parameters' names, from the table of options (strikeline.pipeline.options).
+CONTACTS = option("contacts").qgis
+DEM = option("dem").qgis
+CONTOURS = option("contours").qgis
+ELEV_FIELD = option("elev_field").qgis
+PICK_SPACING = option("pick_spacing_m").qgis
+GROUP_BY = option("group_by").qgis
+BOREHOLES = option("boreholes").qgis
+ORIENTATIONS = option("orientations").qgis
+BOREHOLE_SIGMA = option("borehole_sigma_m").qgis
+ORIENTATION_SIGMA = option("orientation_sigma_deg").qgis
+MAP_UNITS = option("map_units").qgis
+UNIT_FIELD = option("unit_field").qgis
+UNITS_ABOVE = option("units_above").qgis
+UNITS_BELOW = option("units_below").qgis
 
 
 def optional_string(alg, parameters, key, context) -> str | None:
@@ -73,78 +46,38 @@ def optional_distance(alg, parameters, key, context) -> float | None:
 
 def add_contact_and_topography(alg) -> None:
     """The inputs of picks and of the whole chain: contacts, DEM and/or contours with elevations."""
-    alg.addParameter(QgsProcessingParameterFeatureSource(
-        CONTACTS, alg.tr("Mapped contact lines"), [QgsProcessing.TypeVectorLine]))
-    alg.addParameter(QgsProcessingParameterRasterLayer(
-        DEM, alg.tr("DEM (ground elevation, metres)"), optional=True))
-    alg.addParameter(QgsProcessingParameterFeatureSource(
-        CONTOURS, alg.tr("Topographic contour lines"), [QgsProcessing.TypeVectorLine], optional=True))
-    alg.addParameter(QgsProcessingParameterField(
-        ELEV_FIELD, alg.tr("Elevation field of the contour lines"), parentLayerParameterName=CONTOURS,
-        type=QgsProcessingParameterField.Numeric, optional=True))
-    alg.addParameter(QgsProcessingParameterDistance(
-        PICK_SPACING, alg.tr("Spacing of the DEM picks along the contacts (0: the DEM cell size)"),
-        defaultValue=0.0, parentParameterName=CONTACTS, minValue=0.0, optional=True))
+    for name in ("contacts", "dem", "contours", "elev_field"):
+        alg.addParameter(parameter(alg, name))
+    alg.addParameter(parameter(alg, "pick_spacing_m", parent=CONTACTS))
 
 
 def constraint_parameters(alg) -> list:
     """Boreholes and dip measurements that a surface model honours (as ``strikeline run``)."""
-    num = QgsProcessingParameterField.Numeric
-    return [
-        QgsProcessingParameterFeatureSource(BOREHOLES, alg.tr("Boreholes that reach the surface (points)"),
-                                            [QgsProcessing.TypeVectorPoint], optional=True),
-        QgsProcessingParameterField("BOREHOLE_Z_FIELD", alg.tr("Borehole field: the surface's elevation (empty: Z)"),
-                                    parentLayerParameterName=BOREHOLES, type=num, optional=True),
-        QgsProcessingParameterField("BOREHOLE_COLLAR_FIELD", alg.tr("Borehole field: collar elevation"),
-                                    parentLayerParameterName=BOREHOLES, type=num, optional=True),
-        QgsProcessingParameterField("BOREHOLE_DEPTH_FIELD", alg.tr("Borehole field: depth from collar to the surface"),
-                                    parentLayerParameterName=BOREHOLES, type=num, optional=True),
-        QgsProcessingParameterFeatureSource(ORIENTATIONS, alg.tr("Dip measurements on the surface (points)"),
-                                            [QgsProcessing.TypeVectorPoint], optional=True),
-        QgsProcessingParameterField("DIP_FIELD", alg.tr("Dip field"), defaultValue="dip",
-                                    parentLayerParameterName=ORIENTATIONS, type=num, optional=True),
-        QgsProcessingParameterField("DIP_DIRECTION_FIELD", alg.tr("Dip-direction field"), defaultValue="dip_dir",
-                                    parentLayerParameterName=ORIENTATIONS, type=num, optional=True),
-        QgsProcessingParameterField("STRIKE_FIELD", alg.tr("Strike field (right-hand rule) instead of dip direction"),
-                                    parentLayerParameterName=ORIENTATIONS, type=num, optional=True),
-    ]
+    return [parameter(alg, name) for name in CONSTRAINT_OPTIONS]
+
+
+#: The options of :func:`constraint_parameters`, in order.
+CONSTRAINT_OPTIONS = ("boreholes", "borehole_z_field", "borehole_collar_field", "borehole_depth_field",
+                      "orientations", "dip_field", "dip_direction_field", "strike_field")
 
 
 def constraint_sigma_parameters(alg) -> list:
     """The standard errors of borehole elevations and measured dips."""
-    T = QgsProcessingParameterNumber  # noqa: N806
-    return [
-        T(BOREHOLE_SIGMA, alg.tr("Standard error of the borehole elevations (m, 0: exact)"), T.Double,
-          defaultValue=DEFAULT_BOREHOLE_SIGMA_M, minValue=0.0, optional=True),
-        T(ORIENTATION_SIGMA, alg.tr("Standard error of the measured dips (°, 0: exact)"), T.Double,
-          defaultValue=DEFAULT_ORIENTATION_SIGMA_DEG, minValue=0.0, optional=True),
-    ]
+    return [parameter(alg, "borehole_sigma_m"), parameter(alg, "orientation_sigma_deg")]
 
 
 def constraint_options(alg, parameters, context) -> dict:
     """The parameters of :func:`constraint_parameters` and :func:`constraint_sigma_parameters`
     as :class:`RunOptions` fields."""
-    s = lambda key: optional_string(alg, parameters, key, context)  # noqa: E731
-    return dict(borehole_z_field=s("BOREHOLE_Z_FIELD"), borehole_collar_field=s("BOREHOLE_COLLAR_FIELD"),
-                borehole_depth_field=s("BOREHOLE_DEPTH_FIELD"),
-                borehole_sigma_m=alg.parameterAsDouble(parameters, BOREHOLE_SIGMA, context),
-                dip_field=s("DIP_FIELD") or RunOptions.dip_field, dip_direction_field=s("DIP_DIRECTION_FIELD"),
-                strike_field=s("STRIKE_FIELD"),
-                orientation_sigma_deg=alg.parameterAsDouble(parameters, ORIENTATION_SIGMA, context))
+    opts = values(alg, parameters, context, *CONSTRAINT_OPTIONS[1:4], *CONSTRAINT_OPTIONS[5:],
+                  "borehole_sigma_m", "orientation_sigma_deg")
+    opts["dip_field"] = opts["dip_field"] or RunOptions.dip_field
+    return opts
 
 
 def map_unit_parameters(alg) -> list:
     """The geological map's unit polygons as constraints (as ``strikeline run --map-units``)."""
-    return [
-        QgsProcessingParameterFeatureSource(MAP_UNITS, alg.tr("Geological map units (polygons; needs the DEM)"),
-                                            [QgsProcessing.TypeVectorPolygon], optional=True),
-        QgsProcessingParameterField(UNIT_FIELD, alg.tr("Map units field: the unit of each polygon"),
-                                    parentLayerParameterName=MAP_UNITS, optional=True),
-        QgsProcessingParameterString(UNITS_ABOVE, alg.tr("Units above the surface (comma-separated)"),
-                                     optional=True),
-        QgsProcessingParameterString(UNITS_BELOW, alg.tr("Units below the surface (comma-separated; other "
-                                                         "units are ignored)"), optional=True),
-    ]
+    return [parameter(alg, name) for name in ("map_units", "unit_field", "units_above", "units_below")]
 
 
 def map_unit_options(alg, parameters, context) -> dict:
@@ -212,8 +145,8 @@ def read_contact_inputs(alg, parameters, context, steps, *, more: dict | None = 
     contacts = read_layer(alg, parameters, CONTACTS, context, steps, label="contacts", geometry="line")
     dem, grid, dem_path = read_dem(alg, parameters, DEM, context, steps)
     layers = read_layers(alg, parameters, context, steps, {"contours": (CONTOURS, "contours", "line"), **(more or {})})
-    opts = RunOptions(contacts=contacts.path, out="", elev_field=optional_string(alg, parameters, ELEV_FIELD, context),
-                      pick_spacing_m=optional_distance(alg, parameters, PICK_SPACING, context), **options)
+    opts = RunOptions(contacts=contacts.path, out="", **values(alg, parameters, context, "elev_field", "pick_spacing_m"),
+                      **options)
     # Files are hashed into the summary; other entries only name the input.
     paths = {k: lyr.path for k, lyr in {"contacts": contacts, **layers}.items() if lyr is not None}
     if dem_path:
@@ -228,8 +161,8 @@ def to_dem_crs(layer, dem_grid, *, label, log):
     return reproject_to(layer, dem_grid.crs_wkt, label=label, log=log)
 
 
-PICKS = "PICKS"
-PICKS_FIELD = "PICKS_ELEV_FIELD"
+PICKS = option("points").qgis
+PICKS_FIELD = option("z_field").qgis
 PICKS_FIELD_LABEL = "Elevation field of the picks"
 
 
@@ -245,11 +178,8 @@ class Picks(NamedTuple):
 
 def add_picks(alg) -> None:
     """The picks input of the attitude and surface tools (the output of Contact elevation picks)."""
-    alg.addParameter(QgsProcessingParameterFeatureSource(
-        PICKS, alg.tr("Elevation picks (points)"), [QgsProcessing.TypeVectorPoint]))
-    alg.addParameter(QgsProcessingParameterField(
-        PICKS_FIELD, alg.tr(f"{PICKS_FIELD_LABEL} (empty: the points' Z)"),
-        parentLayerParameterName=PICKS, type=QgsProcessingParameterField.Numeric, optional=True))
+    alg.addParameter(parameter(alg, "points"))
+    alg.addParameter(parameter(alg, "z_field"))
 
 
 def read_picks(alg, parameters, context, steps, *, fields=(), text_fields=()) -> Picks:

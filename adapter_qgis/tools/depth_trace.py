@@ -6,7 +6,6 @@ import shapely
 from qgis.core import (
     QgsProcessing,
     QgsProcessingOutputNumber,
-    QgsProcessingParameterDistance,
     QgsProcessingParameterFeatureSink,
     QgsProcessingParameterFeatureSource,
     QgsProcessingParameterRasterDestination,
@@ -21,6 +20,7 @@ from ..base import REF_GDAL_CONTOUR, REF_PRESS, StrikelineAlgorithm
 from ..inputs import read_dem, read_layer, to_dem_crs
 from ..layers import qgis_crs
 from ..outputs import Table, write_raster, write_sink
+from ..params import option, parameter
 from ..styles import attach_style
 from .common import trace_table
 
@@ -51,7 +51,7 @@ class DepthTrace(StrikelineAlgorithm):
     MISFIT = "MISFIT"
     SEGMENTS = "CONTACT_MISFIT"
     FORECAST_MASK = "FORECAST_MASK"
-    MISFIT_FLAG = "MISFIT_FLAG"
+    MISFIT_FLAG = option("misfit_flag_m").qgis
 
     def initAlgorithm(self, config=None):  # noqa: N802
         self.addParameter(QgsProcessingParameterRasterLayer(
@@ -63,9 +63,7 @@ class DepthTrace(StrikelineAlgorithm):
         self.addParameter(QgsProcessingParameterRasterLayer(
             self.FORECAST_MASK, self.tr("Forecast mask (from Surface model) to mark extrapolated parts"),
             optional=True))
-        self.addParameter(QgsProcessingParameterDistance(
-            self.MISFIT_FLAG, self.tr("Flag contact segments farther than (0: three DEM cells)"),
-            defaultValue=0.0, parentParameterName=self.DEM, minValue=0.0, optional=True))
+        self.addParameter(parameter(self, "misfit_flag_m", parent=self.DEM, advanced=False))
         self.addParameter(QgsProcessingParameterRasterDestination(self.DEPTH, self.tr("Depth below ground")))
         self.addParameter(QgsProcessingParameterFeatureSink(
             self.TRACE, self.tr("Predicted outcrop trace"), QgsProcessing.TypeVectorLine))

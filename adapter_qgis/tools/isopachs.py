@@ -5,7 +5,6 @@ import numpy as np
 from qgis.core import (
     QgsProcessing,
     QgsProcessingOutputNumber,
-    QgsProcessingParameterDistance,
     QgsProcessingParameterFeatureSink,
     QgsProcessingParameterRasterDestination,
     QgsProcessingParameterRasterLayer,
@@ -20,6 +19,7 @@ from ..base import REF_GDAL_CONTOUR, REF_ZT, StrikelineAlgorithm
 from ..inputs import read_dem
 from ..layers import qgis_crs
 from ..outputs import Table, write_raster, write_sink
+from ..params import option, parameter
 from ..styles import attach_style
 from .unit_thickness import REF_RAGAN
 
@@ -40,7 +40,7 @@ class Isopachs(StrikelineAlgorithm):
     REFERENCES = (REF_RAGAN, REF_ZT, REF_GDAL_CONTOUR)
     TOP = "TOP"
     BASE = "BASE"
-    INTERVAL = "INTERVAL"
+    INTERVAL = option("isopach_interval_m").qgis
     VERTICAL = "VERTICAL_THICKNESS"
     TRUE = "TRUE_THICKNESS"
     LINES = "ISOPACHS"
@@ -48,9 +48,7 @@ class Isopachs(StrikelineAlgorithm):
     def initAlgorithm(self, config=None):  # noqa: N802
         self.addParameter(QgsProcessingParameterRasterLayer(self.TOP, self.tr("Top surface of the unit")))
         self.addParameter(QgsProcessingParameterRasterLayer(self.BASE, self.tr("Base surface of the unit")))
-        self.addParameter(QgsProcessingParameterDistance(
-            self.INTERVAL, self.tr("Isopach interval (0: no lines)"), defaultValue=10.0,
-            parentParameterName=self.BASE, minValue=0.0, optional=True))
+        self.addParameter(parameter(self, "isopach_interval_m", parent=self.BASE))
         self.addParameter(QgsProcessingParameterRasterDestination(self.VERTICAL, self.tr("Vertical thickness")))
         self.addParameter(QgsProcessingParameterRasterDestination(self.TRUE, self.tr("True thickness")))
         self.addParameter(QgsProcessingParameterFeatureSink(

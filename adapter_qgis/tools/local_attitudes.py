@@ -6,28 +6,22 @@ import shapely
 from qgis.core import (
     QgsProcessing,
     QgsProcessingOutputNumber,
-    QgsProcessingParameterBoolean,
-    QgsProcessingParameterDefinition,
-    QgsProcessingParameterDistance,
-    QgsProcessingParameterEnum,
     QgsProcessingParameterFeatureSink,
-    QgsProcessingParameterField,
-    QgsProcessingParameterNumber,
     QgsWkbTypes,
 )
 from qgis.PyQt.QtCore import QVariant
 
 from strikeline.errors import InputError
-from strikeline.attitude import CONFIDENCE_METHODS, DEFAULT_MIN_POINTS, local_attitudes
+from strikeline.attitude import CONFIDENCE_METHODS, local_attitudes
+from strikeline.pipeline.options import option
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
 from ..inputs import PICKS, add_picks, read_picks
+from ..params import add_parameters, parameter
+from ..params import add_parameters, parameter
 from ..outputs import Table, write_sink
 from ..styles import attach_style
 from .plane_attitude import REF_EFRON, REF_WOODCOCK
-
-CONFIDENCE_LABELS = ("Bootstrap over the window's picks", "Analytic (first-order covariance of the fit)")
-
 
 class LocalAttitudes(StrikelineAlgorithm):
     NAME = "localattitudes"
@@ -48,52 +42,26 @@ class LocalAttitudes(StrikelineAlgorithm):
         "quality by Woodcock's eigenvalue shape measures, the window's relief and the dip's "
         "half-width.")
     REFERENCES = (REF_FERNANDEZ, REF_WOODCOCK, REF_EFRON)
-    CONTACT_FIELD = "CONTACT_FIELD"
-    WINDOW = "WINDOW"
-    MIN_POINTS = "MIN_POINTS"
-    ALONG = "ALONG_CONTACTS"
-    ACROSS = "ACROSS_PICKS"
-    GRID_SPACING = "GRID_SPACING"
-    CONFIDENCE = "CONFIDENCE"
-    RESAMPLES = "RESAMPLES"
-    SIGMA_Z = "SIGMA_Z"
-    SEED = "SEED"
+    CONTACT_FIELD = option("contact_field").qgis
+    WINDOW = option("window_m").qgis
+    MIN_POINTS = option("min_points").qgis
+    ALONG = option("along_contacts").qgis
+    ACROSS = option("across_picks").qgis
+    GRID_SPACING = option("grid_spacing_m").qgis
+    CONFIDENCE = option("confidence_method").qgis
+    RESAMPLES = option("window_resamples").qgis
+    SIGMA_Z = option("dem_sigma_m").qgis
+    SEED = option("seed").qgis
     OUTPUT = "LOCAL_ATTITUDES"
-    DEFAULT_CONTACT_FIELD = "contact_id"
+    DEFAULT_CONTACT_FIELD = option("contact_field").default
 
     def initAlgorithm(self, config=None):  # noqa: N802
         add_picks(self)
-        self.addParameter(QgsProcessingParameterField(
-            self.CONTACT_FIELD, self.tr("Contact id field of the picks (windows along each contact)"),
-            defaultValue=self.DEFAULT_CONTACT_FIELD, parentLayerParameterName=PICKS, optional=True))
-        self.addParameter(QgsProcessingParameterDistance(
-            self.WINDOW, self.tr("Window radius (0: about 50 picks per window)"), defaultValue=0.0,
-            parentParameterName=PICKS, minValue=0.0, optional=True))
-        self.addParameter(QgsProcessingParameterBoolean(
-            self.ALONG, self.tr("Windows along each contact"), defaultValue=True))
-        self.addParameter(QgsProcessingParameterBoolean(
-            self.ACROSS, self.tr("Windows on a grid across all picks"), defaultValue=True))
-        advanced = [
-            QgsProcessingParameterNumber(self.MIN_POINTS, self.tr("Fewest picks in a window"),
-                                         QgsProcessingParameterNumber.Integer,
-                                         defaultValue=DEFAULT_MIN_POINTS, minValue=4, optional=True),
-            QgsProcessingParameterDistance(self.GRID_SPACING, self.tr("Grid spacing (0: the window radius)"),
-                                           defaultValue=0.0, parentParameterName=PICKS, minValue=0.0,
-                                           optional=True),
-            QgsProcessingParameterEnum(self.CONFIDENCE, self.tr("95% confidence"),
-                                       options=[self.tr(x) for x in CONFIDENCE_LABELS], defaultValue=0),
-            QgsProcessingParameterNumber(self.RESAMPLES, self.tr("Bootstrap resamples per window"),
-                                         QgsProcessingParameterNumber.Integer, defaultValue=200,
-                                         minValue=20, optional=True),
-            QgsProcessingParameterNumber(self.SIGMA_Z, self.tr("Vertical standard error of the picks (m, 0: unknown)"),
-                                         QgsProcessingParameterNumber.Double, defaultValue=0.0,
-                                         minValue=0.0, optional=True),
-            QgsProcessingParameterNumber(self.SEED, self.tr("Random seed"), QgsProcessingParameterNumber.Integer,
-                                         defaultValue=0, minValue=0, optional=True),
-        ]
-        for p in advanced:
-            p.setFlags(p.flags() | QgsProcessingParameterDefinition.FlagAdvanced)
-            self.addParameter(p)
+        self.addParameter(parameter(self, "contact_field"))
+        self.addParameter(parameter(self, "window_m", parent=PICKS, advanced=False))
+        add_parameters(self, "along_contacts", "across_picks", "min_points")
+        self.addParameter(parameter(self, "grid_spacing_m", parent=PICKS))
+        add_parameters(self, "confidence_method", "window_resamples", "dem_sigma_m", "seed")
         self.addParameter(QgsProcessingParameterFeatureSink(
             self.OUTPUT, self.tr("Local attitudes"), QgsProcessing.TypeVectorPoint))
         self.addOutput(QgsProcessingOutputNumber("WINDOW_M", self.tr("Window radius used (m)")))

@@ -7,19 +7,18 @@ from qgis.core import (
     QgsProcessing,
     QgsProcessingOutputNumber,
     QgsProcessingOutputString,
-    QgsProcessingParameterDefinition,
     QgsProcessingParameterFeatureSink,
-    QgsProcessingParameterField,
-    QgsProcessingParameterNumber,
     QgsWkbTypes,
 )
 
 from strikeline.pipeline.planes import group_labels, point_planes
-from strikeline.attitude import MIN_REPLICATES
+from strikeline.pipeline.options import option
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
 from ..inputs import PICKS, add_picks, read_picks
 from ..layers import crs_wkt as wkt_of_crs
+from ..params import add_parameters, parameter
+from ..params import add_parameters, parameter
 from ..outputs import Table, write_sink
 from ..styles import attach_style
 
@@ -109,27 +108,15 @@ class PlaneAttitude(StrikelineAlgorithm):
         "K) with Fernández's limits for a reliable plane, the picks' relief and the dip's half-width.")
     REFERENCES = (REF_FERNANDEZ, REF_WOODCOCK, REF_JONES, REF_EFRON)
     OUTPUT = "ATTITUDE"
-    GROUP_BY = "GROUP_BY"
-    RESAMPLES = "RESAMPLES"
-    SIGMA_Z = "SIGMA_Z"
-    SEED = "SEED"
+    GROUP_BY = option("group_by").qgis
+    RESAMPLES = option("resamples").qgis
+    SIGMA_Z = option("dem_sigma_m").qgis
+    SEED = option("seed").qgis
 
     def initAlgorithm(self, config=None):  # noqa: N802
         add_picks(self)
-        self.addParameter(QgsProcessingParameterField(
-            self.GROUP_BY, self.tr("Also one plane per value of this field"), parentLayerParameterName=PICKS,
-            optional=True))
-        self.addParameter(QgsProcessingParameterNumber(
-            self.RESAMPLES, self.tr("Bootstrap resamples for the 95% confidence"),
-            QgsProcessingParameterNumber.Integer, defaultValue=1000, minValue=MIN_REPLICATES, optional=True))
-        self.addParameter(QgsProcessingParameterNumber(
-            self.SIGMA_Z, self.tr("Vertical standard error of the picks (m, 0: unknown)"),
-            QgsProcessingParameterNumber.Double, defaultValue=0.0, minValue=0.0, optional=True))
-        seed = QgsProcessingParameterNumber(self.SEED, self.tr("Random seed"),
-                                            QgsProcessingParameterNumber.Integer, defaultValue=0, minValue=0,
-                                            optional=True)
-        seed.setFlags(seed.flags() | QgsProcessingParameterDefinition.FlagAdvanced)
-        self.addParameter(seed)
+        self.addParameter(parameter(self, "group_by", parent=PICKS))
+        add_parameters(self, "resamples", "dem_sigma_m", "seed")
         self.addParameter(QgsProcessingParameterFeatureSink(
             self.OUTPUT, self.tr("Plane attitude"), QgsProcessing.TypeVectorPoint))
         add_plane_outputs(self)

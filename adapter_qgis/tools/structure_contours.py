@@ -4,17 +4,18 @@ from __future__ import annotations
 from qgis.core import (
     QgsProcessing,
     QgsProcessingOutputNumber,
-    QgsProcessingParameterDistance,
     QgsProcessingParameterFeatureSink,
     QgsProcessingParameterRasterLayer,
 )
 
 from strikeline.pipeline.rasters import raster_flag, require_same_grid, structure_contours_on_ground
+from strikeline.pipeline.options import option
 
 from ..base import REF_GDAL_CONTOUR, StrikelineAlgorithm
 from ..inputs import read_dem
 from ..layers import qgis_crs
 from ..outputs import write_sink
+from ..params import parameter, value
 from ..styles import attach_style
 from .common import contours_table
 
@@ -38,15 +39,13 @@ class StructureContours(StrikelineAlgorithm):
     SURFACE = "SURFACE"
     GROUND = "GROUND"
     FORECAST_MASK = "FORECAST_MASK"
-    INTERVAL = "INTERVAL"
+    INTERVAL = option("interval_m").qgis
     OUTPUT = "STRUCTURE_CONTOURS"
 
     def initAlgorithm(self, config=None):  # noqa: N802
         self.addParameter(QgsProcessingParameterRasterLayer(
             self.SURFACE, self.tr("Surface elevation (from Surface model)")))
-        self.addParameter(QgsProcessingParameterDistance(
-            self.INTERVAL, self.tr("Contour interval"), defaultValue=50.0,
-            parentParameterName=self.SURFACE, minValue=0.001))
+        self.addParameter(parameter(self, "interval_m", parent=self.SURFACE, optional=False))
         self.addParameter(QgsProcessingParameterRasterLayer(
             self.GROUND, self.tr("Ground (DEM) to mark the parts above and below ground"), optional=True))
         self.addParameter(QgsProcessingParameterRasterLayer(
@@ -58,7 +57,7 @@ class StructureContours(StrikelineAlgorithm):
 
     def process(self, parameters, context, steps):
         surface, grid, spath = read_dem(self, parameters, self.SURFACE, context, steps, label="surface")
-        interval = self.parameterAsDouble(parameters, self.INTERVAL, context)
+        interval = value(self, parameters, "interval_m", context)
         dem, dem_grid, dpath = read_dem(self, parameters, self.GROUND, context, steps, label="DEM")
         mask, mask_grid, mpath = read_dem(self, parameters, self.FORECAST_MASK, context, steps,
                                           label="forecast mask")

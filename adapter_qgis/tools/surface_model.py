@@ -6,17 +6,15 @@ from qgis.core import (
     QgsProcessingParameterFeatureSink,
     QgsProcessingOutputNumber,
     QgsProcessingOutputString,
-    QgsProcessingParameterDefinition,
-    QgsProcessingParameterDistance,
-    QgsProcessingParameterEnum,
     QgsProcessingParameterExtent,
-    QgsProcessingParameterNumber,
     QgsProcessingParameterRasterDestination,
     QgsProcessingParameterRasterLayer,
 )
 
 from strikeline.errors import InputError
 from strikeline.io.crs import same_crs
+from strikeline.pipeline.options import option
+from strikeline.pipeline.options import option
 from strikeline.pipeline.points import pick_set_of_points
 from strikeline.pipeline.rasters import forecast_mask, grid_over, points_bounds
 from strikeline.pipeline import (RunOptions, borehole_points, map_unit_bounds, map_unit_check, map_unit_polygons,
@@ -29,13 +27,9 @@ from ..inputs import (CONSTRAINT_LAYERS, MAP_UNIT_LAYERS, MAP_UNITS, PICKS, add_
 from ..layers import crs_wkt
 from ..layers import qgis_crs
 from ..outputs import Table, write_raster, write_sink
+from ..params import parameter, value
+from ..params import parameter, value
 from ..styles import attach_style
-
-#: Surface models in enum order: (library name, label).
-METHODS = (("plane", "Best-fit plane (total least squares)"),
-           ("trend2", "Quadratic trend surface"),
-           ("spline", "Thin-plate smoothing spline"),
-           ("auto", "Choose by cross-validation (simplest within the stated pick error of the best)"))
 
 REF_SPLINE = ("Duchon, J. (1977). Splines minimizing rotation-invariant semi-norms in Sobolev spaces. "
               "Lect. Notes Math. 571, 85–100. doi:10.1007/BFb0086566; Wahba, G. (1990). "
@@ -75,11 +69,11 @@ class SurfaceModel(StrikelineAlgorithm):
         "constraints); dip measurements as slope observations. Outside the data's convex hull the "
         "trend and spline relax smoothly to the plane.")
     REFERENCES = (REF_FERNANDEZ, REF_SPLINE, REF_GCV, REF_LSI, REF_HILLIER)
-    METHOD_P = "METHOD"
+    METHOD_P = option("model").qgis
     REFERENCE = "REFERENCE"
     EXTENT = "EXTENT"
-    CELL = "CELL"
-    SEED = "SEED"
+    CELL = option("cell_m").qgis
+    SEED = option("seed").qgis
     OUTPUT = "SURFACE"
     STANDARD_ERROR = "STANDARD_ERROR"
     EXTRAPOLATED = "EXTRAPOLATED"
@@ -87,23 +81,15 @@ class SurfaceModel(StrikelineAlgorithm):
 
     def initAlgorithm(self, config=None):  # noqa: N802
         add_picks(self)
-        self.addParameter(QgsProcessingParameterEnum(
-            self.METHOD_P, self.tr("Surface model"), options=[self.tr(m[1]) for m in METHODS],
-            defaultValue=0))
+        self.addParameter(parameter(self, "model"))
         self.addParameter(QgsProcessingParameterRasterLayer(
             self.REFERENCE, self.tr("Reference grid (usually the DEM)"), optional=True))
         self.addParameter(QgsProcessingParameterExtent(
             self.EXTENT, self.tr("Extent without a reference grid (default: the picks')"), optional=True))
-        self.addParameter(QgsProcessingParameterDistance(
-            self.CELL, self.tr("Cell size without a reference grid (0: about 1/500 of the extent)"),
-            defaultValue=0.0, parentParameterName=PICKS, minValue=0.0, optional=True))
+        self.addParameter(parameter(self, "cell_m", parent=PICKS))
         for param in (*constraint_parameters(self), *constraint_sigma_parameters(self), *map_unit_parameters(self)):
             self.addParameter(param)
-        seed = QgsProcessingParameterNumber(self.SEED, self.tr("Random seed (cross-validation folds)"),
-                                            QgsProcessingParameterNumber.Integer, defaultValue=0, minValue=0,
-                                            optional=True)
-        seed.setFlags(seed.flags() | QgsProcessingParameterDefinition.FlagAdvanced)
-        self.addParameter(seed)
+        self.addParameter(parameter(self, "seed"))
         self.addParameter(QgsProcessingParameterRasterDestination(self.OUTPUT, self.tr("Surface elevation")))
         self.addParameter(QgsProcessingParameterRasterDestination(
             self.STANDARD_ERROR, self.tr("Standard error of the surface (m)"), optional=True,
@@ -135,15 +121,15 @@ class SurfaceModel(StrikelineAlgorithm):
         else:
             ext = self.parameterAsExtent(parameters, self.EXTENT, context, crs)
             bounds = (ext.xMinimum(), ext.yMinimum(), ext.xMaximum(), ext.yMaximum())
-        cell = self.parameterAsDouble(parameters, self.CELL, context) or None
+        cell = value(self, parameters, "cell_m", context)
         return grid_over(bounds, cell_m=cell, crs_wkt=crs_wkt(crs), log=steps.log)
 
     def process(self, parameters, context, steps):
-        model = METHODS[self.parameterAsEnum(parameters, self.METHOD_P, context)][0]
+        model, seed = (value(self, parameters, name, context) for name in ("model", "seed"))
         picks_src = self.parameterAsSource(parameters, PICKS, context)
         text = tuple(f for f in ("contact_id", "source") if f in picks_src.fields().names())
         xyz, source, layer, name, vals = read_picks(self, parameters, context, steps, text_fields=text)
-        opts = RunOptions(contacts=name.path, out="", model=model, seed=self.parameterAsInt(parameters, self.SEED, context),
+        opts = RunOptions(contacts=name.path, out="", model=model, seed=seed,
                           **constraint_options(self, parameters, context),
                           **map_unit_options(self, parameters, context))
         # Boreholes and dip measurements as strikeline run takes them (the library's checks and

@@ -14,7 +14,6 @@ from qgis.core import (
     QgsProcessingParameterFeatureSink,
     QgsProcessingParameterFeatureSource,
     QgsProcessingParameterField,
-    QgsProcessingParameterNumber,
     QgsProcessingParameterRasterLayer,
 )
 from qgis.PyQt.QtCore import QVariant
@@ -24,6 +23,7 @@ from strikeline.maps.thickness import SLOPE_SENSES, WIDTH_KINDS
 from strikeline.pipeline.thickness import thickness_of_boreholes, thickness_of_lines, thickness_of_widths
 
 from ..base import StrikelineAlgorithm
+from ..params import add_parameters, option
 from ..inputs import read_dem, to_dem_crs
 from ..layers import read_vector, vector_name
 
@@ -59,8 +59,8 @@ class UnitThickness(StrikelineAlgorithm):
     REFERENCES = (REF_RAGAN, REF_ROWLAND)
     METHOD_P = "METHOD"
     INPUT = "INPUT"
-    DIP = "DIP_DEG"
-    DIP_DIRECTION = "DIP_DIRECTION_DEG"
+    DIP = option("dip_deg").qgis
+    DIP_DIRECTION = option("dip_direction_deg").qgis
     DEM = "DEM"
     WIDTH_FIELD = "WIDTH_FIELD"
     SLOPE_FIELD = "SLOPE_FIELD"
@@ -77,12 +77,7 @@ class UnitThickness(StrikelineAlgorithm):
         self.addParameter(QgsProcessingParameterFeatureSource(
             self.INPUT, self.tr("Measurements (lines top→base, or features with width / borehole fields)"),
             [QgsProcessing.TypeVectorAnyGeometry]))
-        self.addParameter(QgsProcessingParameterNumber(
-            self.DIP, self.tr("Dip of the unit (°)"), QgsProcessingParameterNumber.Double,
-            minValue=0.0, maxValue=90.0))
-        self.addParameter(QgsProcessingParameterNumber(
-            self.DIP_DIRECTION, self.tr("Dip direction of the unit (° clockwise from grid north)"),
-            QgsProcessingParameterNumber.Double, minValue=0.0, maxValue=360.0))
+        add_parameters(self, "dip_deg", "dip_direction_deg")
         self.addParameter(QgsProcessingParameterRasterLayer(
             self.DEM, self.tr("DEM for the line ends (two points; empty: the lines' Z)"), optional=True))
         num = QgsProcessingParameterField.Numeric

@@ -7,14 +7,8 @@ from qgis.core import (
     QgsProcessing,
     QgsProcessingOutputNumber,
     QgsProcessingOutputString,
-    QgsProcessingParameterDefinition,
-    QgsProcessingParameterDistance,
-    QgsProcessingParameterEnum,
     QgsProcessingParameterFeatureSink,
-    QgsProcessingParameterFeatureSource,
-    QgsProcessingParameterField,
     QgsProcessingParameterFileDestination,
-    QgsProcessingParameterNumber,
     QgsProcessingParameterRasterDestination,
 )
 
@@ -23,22 +17,22 @@ from strikeline.io.files import write_json_atomic
 from strikeline.pipeline import compute
 
 from ..base import REF_FERNANDEZ, REF_GDAL_CONTOUR, REF_PRESS, REF_STR, REF_ZT, StrikelineAlgorithm
-from ..inputs import (CONSTRAINT_LAYERS, CONTACTS, GROUP_BY, MAP_UNIT_LAYERS, add_contact_and_topography,
-                      constraint_options, constraint_parameters, constraint_sigma_parameters, map_unit_options,
-                      map_unit_parameters, optional_distance, optional_string, read_contact_inputs)
+from ..inputs import (CONSTRAINT_LAYERS, CONTACTS, MAP_UNIT_LAYERS, add_contact_and_topography, constraint_options,
+                      constraint_parameters, constraint_sigma_parameters, map_unit_options, map_unit_parameters,
+                      read_contact_inputs)
 from ..layers import qgis_crs
+from ..params import parameter, values
+from ..params import parameter, values
+from ..params import parameter, values
 from ..outputs import Table, write_raster, write_sink
 from ..styles import attach_style
 from .plane_attitude import NUMBERS, REF_EFRON, REF_WOODCOCK
 from .surface_model import REF_GCV, REF_SPLINE
 
-#: The options of ``strikeline run --model``, in enum order.
-MODEL_LABELS = {"auto": "Choose by cross-validation (auto)", "plane": "Best-fit plane",
-                "trend2": "Quadratic trend surface", "spline": "Thin-plate smoothing spline"}
-
 #: The chain's layers beyond contacts and topography: ``assemble_inputs`` keyword ->
 #: (parameter, label in messages, geometry).
-CHAIN_LAYERS = {**CONSTRAINT_LAYERS, "top_contacts": ("TOP_CONTACTS", "top contacts", "line"), **MAP_UNIT_LAYERS}
+CHAIN_LAYERS = {**CONSTRAINT_LAYERS, "top_contacts": (pl.option("top_contacts").qgis, "top contacts", "line"),
+                **MAP_UNIT_LAYERS}
 
 #: The vector layers of ``pipeline.result_layers``, each written to the output named as the
 #: layer in upper case: output -> (label, layer type, created by default, style).
@@ -91,44 +85,12 @@ class WholeChain(StrikelineAlgorithm):
 
     def initAlgorithm(self, config=None):  # noqa: N802
         add_contact_and_topography(self)
-        T = QgsProcessingParameterNumber  # noqa: N806
-        self.addParameter(QgsProcessingParameterEnum(
-            "MODEL", self.tr("Surface model"), options=[self.tr(MODEL_LABELS[m]) for m in pl.MODELS],
-            defaultValue=0))
-        self.addParameter(QgsProcessingParameterDistance(
-            "INTERVAL", self.tr("Structure-contour interval"), defaultValue=50.0,
-            parentParameterName=CONTACTS, minValue=0.001))
-        optional = [
-            QgsProcessingParameterDistance("CELL", self.tr("Cell size without a DEM (0: about 1/500 of the contours' extent)"),
-                                           defaultValue=0.0, parentParameterName=CONTACTS, minValue=0.0, optional=True),
-            *constraint_parameters(self),
-            QgsProcessingParameterFeatureSource("TOP_CONTACTS", self.tr("Top contact of the unit (lines): isopachs"),
-                                                [QgsProcessing.TypeVectorLine], optional=True),
-            QgsProcessingParameterField(GROUP_BY, self.tr("Also one plane per value of this contact field"),
-                                        parentLayerParameterName=CONTACTS, optional=True),
-            *map_unit_parameters(self),
-        ]
-        advanced = [
-            QgsProcessingParameterDistance("WINDOW", self.tr("Local-attitude window radius (0: from the pick density)"),
-                                           defaultValue=0.0, parentParameterName=CONTACTS, minValue=0.0, optional=True),
-            QgsProcessingParameterDistance("MISFIT_FLAG", self.tr("Flag contact segments whose horizontal misfit "
-                                                                  "exceeds (0: vertical misfit over 3 standard errors)"),
-                                           defaultValue=0.0, parentParameterName=CONTACTS, minValue=0.0, optional=True),
-            T("DEM_SIGMA", self.tr("Vertical standard error of DEM picks (m)"), T.Double,
-              defaultValue=pl.DEFAULT_DEM_SIGMA_M, minValue=0.0, optional=True),
-            T("CONTOUR_SIGMA", self.tr("Positional standard error of contour picks (m)"), T.Double,
-              defaultValue=pl.DEFAULT_CONTOUR_SIGMA_M, minValue=0.0, optional=True),
-            T("CONTACT_SIGMA", self.tr("Positional standard error of the mapped contact lines (m)"), T.Double,
-              defaultValue=pl.DEFAULT_CONTACT_SIGMA_M, minValue=0.0, optional=True),
-            *constraint_sigma_parameters(self),
-            T("RESAMPLES", self.tr("Bootstrap resamples and Monte Carlo draws"), T.Integer, defaultValue=1000,
-              minValue=100, optional=True),
-            T("SEED", self.tr("Random seed"), T.Integer, defaultValue=0, minValue=0, optional=True),
-        ]
-        for p in optional:
-            self.addParameter(p)
-        for p in advanced:
-            p.setFlags(p.flags() | QgsProcessingParameterDefinition.FlagAdvanced)
+        for p in (parameter(self, "model"), parameter(self, "interval_m", parent=CONTACTS, optional=False),
+                  parameter(self, "cell_m", parent=CONTACTS), *constraint_parameters(self),
+                  parameter(self, "top_contacts"), parameter(self, "group_by"), *map_unit_parameters(self),
+                  parameter(self, "window_m", parent=CONTACTS), parameter(self, "misfit_flag_m", parent=CONTACTS),
+                  parameter(self, "dem_sigma_m"), parameter(self, "contour_sigma_m"), parameter(self, "contact_sigma_m"),
+                  *constraint_sigma_parameters(self), parameter(self, "resamples"), parameter(self, "seed")):
             self.addParameter(p)
         for key, (label, kind, by_default, _) in LAYERS.items():
             self.addParameter(QgsProcessingParameterFeatureSink(
@@ -152,20 +114,10 @@ class WholeChain(StrikelineAlgorithm):
 
     def options(self, parameters, context) -> dict:
         """The QGIS parameters as fields of the command line's :class:`RunOptions` (the inputs'
-        parameters are read by :func:`read_contact_inputs`; their ranges are enforced by the
-        parameter definitions, QGIS checks them)."""
-        d = lambda key: optional_distance(self, parameters, key, context)  # noqa: E731
-        return dict(
-            model=pl.MODELS[self.parameterAsEnum(parameters, "MODEL", context)],
-            interval_m=self.parameterAsDouble(parameters, "INTERVAL", context), cell_m=d("CELL"),
-            misfit_flag_m=d("MISFIT_FLAG"), window_m=d("WINDOW"),
-            dem_sigma_m=self.parameterAsDouble(parameters, "DEM_SIGMA", context),
-            contour_sigma_m=self.parameterAsDouble(parameters, "CONTOUR_SIGMA", context),
-            contact_sigma_m=self.parameterAsDouble(parameters, "CONTACT_SIGMA", context),
-            group_by=optional_string(self, parameters, GROUP_BY, context),
-            resamples=self.parameterAsInt(parameters, "RESAMPLES", context),
-            seed=self.parameterAsInt(parameters, "SEED", context),
-            **constraint_options(self, parameters, context), **map_unit_options(self, parameters, context))
+        parameters are read by :func:`read_contact_inputs`), each checked against the table of options."""
+        return dict(**values(self, parameters, context, "model", "interval_m", "cell_m", "misfit_flag_m", "window_m",
+                             "dem_sigma_m", "contour_sigma_m", "contact_sigma_m", "group_by", "resamples", "seed"),
+                    **constraint_options(self, parameters, context), **map_unit_options(self, parameters, context))
 
     def process(self, parameters, context, steps):
         inputs, opts = read_contact_inputs(self, parameters, context, steps, more=CHAIN_LAYERS,

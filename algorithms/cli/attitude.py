@@ -19,7 +19,7 @@ import sys
 from pathlib import Path
 
 from strikeline import CAUTION
-from strikeline.cli.options import EPILOG, non_negative_metres
+from strikeline.cli.options import EPILOG, add_options
 from strikeline.errors import InputError, OutputError
 
 HELP = "best-fit plane of a points layer with elevations: attitude, 95% confidence and quality"
@@ -35,43 +35,12 @@ DESCRIPTION = (
 )
 
 
-def _count(minimum: int):
-    def parse(text: str) -> int:
-        try:
-            v = int(text)
-        except ValueError:
-            raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
-        if v < minimum:
-            raise argparse.ArgumentTypeError(f"expected a whole number of at least {minimum}, got {text!r}")
-        return v
-    return parse
-
-
 def add_parser(sub) -> argparse.ArgumentParser:
     # argparse %-formats help strings: "95%" must be written "95%%" there
     p = sub.add_parser("attitude", help=HELP.replace("%", "%%"), description=DESCRIPTION, epilog=EPILOG)
-    g = p.add_argument_group("points")
-    g.add_argument("--points", required=True, metavar="PATH",
-                   help="point layer with elevations: GeoPackage, Shapefile, GeoJSON, ...")
-    g.add_argument("--points-layer", metavar="NAME", help="layer name inside PATH (default: the first)")
-    g.add_argument("--where", metavar="SQL", help="OGR SQL filter on the points, e.g. \"source = 'dem'\"")
-    g.add_argument("--z-field", metavar="NAME",
-                   help="numeric field with each point's elevation in metres (default: the geometries' Z)")
-    g.add_argument("--group-by", metavar="FIELD",
-                   help="also fit one plane per value of this field (unit, contact name, ...)")
-    c = p.add_argument_group("confidence")
-    c.add_argument("--dem-sigma", type=non_negative_metres, default=0.0, metavar="METRES", dest="dem_sigma_m",
-                   help="vertical standard error of the elevations, propagated by Monte Carlo "
-                        "(default 0: the points' error is unknown, so the bootstrap of the points "
-                        "alone gives the confidence; for picks from a DEM give the DEM's vertical "
-                        "RMSE, e.g. 2)")
-    c.add_argument("--resamples", type=_count(20), default=1000, metavar="N",
-                   help="bootstrap resamples and Monte Carlo draws (default 1000, at least 20)")
-    c.add_argument("--seed", type=_count(0), default=0, metavar="N",
-                   help="seed of the random draws; equal seeds give identical results (default 0)")
-    o = p.add_argument_group("output")
-    o.add_argument("--out", metavar="FILE.json", help="also write the result as JSON (deterministic bytes)")
-    o.add_argument("--overwrite", action="store_true", help="replace an existing --out file")
+    add_options(p.add_argument_group("points"), "points", "points_layer", "points_where", "z_field", "group_by")
+    add_options(p.add_argument_group("confidence"), "dem_sigma_m", "resamples", "seed")
+    add_options(p.add_argument_group("output"), "json_out", "overwrite")
     p.set_defaults(handler=main)
     return p
 

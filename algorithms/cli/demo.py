@@ -5,7 +5,7 @@ import argparse
 import sys
 from pathlib import Path
 
-from strikeline.cli.options import EPILOG
+from strikeline.cli.options import EPILOG, add_options
 from strikeline.errors import InputError
 
 HELP = ("run the whole chain on the bundled fictional demo sheet: DEM and contour picks, two mapped "
@@ -19,8 +19,7 @@ def demo_dir() -> Path:
 
 def add_parser(sub) -> argparse.ArgumentParser:
     p = sub.add_parser("demo", help=HELP, description=HELP + ".", epilog=EPILOG)
-    p.add_argument("--out", default="demo-output", metavar="DIR", help="output folder (default demo-output)")
-    p.add_argument("--overwrite", action="store_true", help="replace an existing output folder")
+    add_options(p, "demo_out", "overwrite")
     p.set_defaults(handler=main)
     return p
 
@@ -38,7 +37,7 @@ def demo_options(out, *, overwrite=False):
                       boreholes=str(d / "boreholes.gpkg"), borehole_collar_field="collar_m",
                       borehole_depth_field="depth_m",
                       orientations=str(d / "orientations.gpkg"), dip_field="dip", dip_direction_field="dip_dir",
-                      out=str(out), overwrite=overwrite, interval_m=50.0)
+                      out=str(out), overwrite=overwrite)
 
 
 def main(args) -> int:

@@ -14,58 +14,81 @@ class OneLineParser(argparse.ArgumentParser):
         self.exit(2, f"error: {self.prog}: {message}; see '{self.prog} --help'\n")
 
 
-def _number_type(name: str, *, minimum=None, strict: bool = False, unit: str = "", integer: bool = False):
-    """An argparse ``type=`` that parses a finite number and checks its lower bound."""
-    kind = "whole number" if integer else "number"
+def option_type(o):
+    """The argparse ``type=`` of table option ``o``: parses a finite number (three for ``xyz``),
+    checks the table's bounds or takes an angle modulo ``wrap``; None for text."""
+    if o.kind not in (float, int, "xyz"):
+        return None
+    integer = o.kind is int
+    words = "a number" if o.kind == "xyz" else o.kind_words()
 
     def parse(text: str):
         try:
             v = int(text) if integer else float(text)
         except ValueError:
-            raise argparse.ArgumentTypeError(f"expected a {kind}{unit}, got {text!r}") from None
+            raise argparse.ArgumentTypeError(f"expected {words}, got {text!r}") from None
         if not math.isfinite(v):
-            raise argparse.ArgumentTypeError(f"expected a finite {kind}{unit}, got {text!r}")
-        if minimum is not None and (v <= minimum if strict else v < minimum):
-            bound = f"greater than {minimum:g}" if strict else f"at least {minimum:g}"
-            raise argparse.ArgumentTypeError(f"expected a {kind}{unit} {bound}, got {text!r}")
+            raise argparse.ArgumentTypeError(f"expected a finite {words[2:]}, got {text!r}")
+        if o.wrap is not None:
+            return v % o.wrap
+        if not o.within(v):
+            raise argparse.ArgumentTypeError(f"expected {words} {o.limits()}, got {text!r}")
         return v
 
-    parse.__name__ = name
+    parse.__name__ = o.name
     return parse
 
 
-#: A positive number of metres (intervals, cell sizes, windows).
-positive_metres = _number_type("positive_metres", minimum=0, strict=True, unit=" of metres")
-#: Zero or a positive number of metres (standard errors).
-non_negative_metres = _number_type("non_negative_metres", minimum=0, unit=" of metres")
-#: Zero or a positive number (standard errors in degrees).
-non_negative = _number_type("non_negative", minimum=0)
-#: Any finite number (coordinates, angles whose range is checked later).
-finite_number = _number_type("finite_number")
-#: A whole number of at least 1.
-positive_int = _number_type("positive_int", minimum=1, integer=True)
+def option_help(o) -> str:
+    """The option's help with its default (or what leaving it out means), %-escaped for argparse."""
+    said = o.described_default()
+    return (f"{o.help} ({said})" if said else o.help).replace("%", "%%")
+
+
+def add_option(p, name: str, **override):
+    """Add option ``name`` of the table (:data:`strikeline.pipeline.options.OPTIONS`) to parser or
+    group ``p``: its flag, type and bounds, allowed values, default and help. ``override`` replaces
+    argparse keywords (e.g. ``required``) where one command takes the option differently."""
+    from strikeline.pipeline.options import option
+
+    o = option(name)
+    kw = {"dest": o.dest or o.name, "help": option_help(o)}
+    if o.kind is bool:
+        kw["action"] = "store_true"
+    else:
+        if o.choices:
+            kw["choices"] = tuple(o.cli_value(c) for c in o.choices)
+        else:
+            kw["metavar"] = o.metavar
+        if option_type(o) is not None:
+            kw["type"] = option_type(o)
+        if o.default is not None:
+            kw["default"] = o.cli_value(o.default)
+        if o.required:
+            kw["required"] = True
+        if o.nargs:
+            kw["nargs"] = o.nargs
+    kw.update(override)
+    return p.add_argument(o.flag, **kw)
+
+
+def add_options(p, *names: str) -> None:
+    """:func:`add_option` for each of ``names``."""
+    for name in names:
+        add_option(p, name)
 
 
 def add_output(p: argparse.ArgumentParser) -> None:
-    p.add_argument("--out", required=True, metavar="DIR",
-                   help="folder to create for the results (must not exist unless --overwrite)")
-    p.add_argument("--overwrite", action="store_true", help="replace an existing output folder")
+    add_options(p, "out", "overwrite")
 
 
 def add_contacts(p: argparse.ArgumentParser) -> None:
-    g = p.add_argument_group("mapped contacts")
-    g.add_argument("--contacts", required=True, metavar="PATH",
-                   help="line layer of the mapped contact(s): GeoPackage, Shapefile, GeoJSON, ...")
-    g.add_argument("--contacts-layer", metavar="NAME", help="layer name inside PATH (default: the first)")
-    g.add_argument("--where", metavar="SQL", help="OGR SQL filter on the contacts, e.g. \"unit = 'Kv'\"")
+    add_options(p.add_argument_group("mapped contacts"), "contacts", "contacts_layer", "where")
 
 
 def add_topography(p: argparse.ArgumentParser) -> None:
-    g = p.add_argument_group("topography (give at least one)")
-    g.add_argument("--dem", metavar="PATH", help="DEM raster (GeoTIFF or any GDAL raster), metres")
-    g.add_argument("--contours", metavar="PATH", help="line layer of topographic contours")
-    g.add_argument("--contours-layer", metavar="NAME", help="layer name inside the contours file")
-    g.add_argument("--elev-field", metavar="NAME", help="numeric field with each contour's elevation")
+    add_options(p.add_argument_group("topography (give at least one)"), "dem", "contours", "contours_layer",
+                "elev_field")
 
 
 EPILOG = CAUTION

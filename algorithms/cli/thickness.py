@@ -20,7 +20,7 @@ import sys
 from pathlib import Path
 
 from strikeline import CAUTION
-from strikeline.cli.options import EPILOG, OneLineParser, finite_number, non_negative_metres
+from strikeline.cli.options import EPILOG, OneLineParser, add_option, add_options
 from strikeline.errors import InputError
 
 HELP = "true thickness of a unit from outcrop width, two points, a borehole, or two surface grids"
@@ -36,23 +36,12 @@ ZEVENBERGEN = ("Zevenbergen, L. W. & Thorne, C. R. (1987), Quantitative analysis
 #: thickness very sensitive to the attitude.
 _SHALLOW_INTERCEPT_DEG = 10.0
 
-SLOPE_SENSES = {"against-dip": "against_dip", "with-dip": "with_dip"}
-WIDTH_KINDS = ("slope", "horizontal")
+def _slope_senses() -> dict:
+    """--slope-sense as spelt on the command line -> the library's slope sense."""
+    from strikeline.pipeline.options import option
 
-
-def _degrees(lo: float, hi: float, *, hi_open: bool = False):
-    """An argparse type: an angle in degrees within [lo, hi] (or [lo, hi))."""
-    def parse(text: str) -> float:
-        v = finite_number(text)
-        if not (lo <= v and (v < hi if hi_open else v <= hi)):
-            raise argparse.ArgumentTypeError(
-                f"expected degrees in [{lo:g}, {hi:g}{')' if hi_open else ']'}, got {text!r}")
-        return v
-    return parse
-
-
-def _azimuth(text: str) -> float:
-    return finite_number(text) % 360.0
+    o = option("slope_sense")
+    return dict(zip(o.cli_choices, o.choices))
 
 
 def add_parser(sub) -> argparse.ArgumentParser:
@@ -61,10 +50,7 @@ def add_parser(sub) -> argparse.ArgumentParser:
         description=HELP + ". Choose a case: outcrop, points, borehole or grids "
                            "(see 'strikeline thickness CASE --help'); "
                            "'strikeline thickness --grids TOP.tif BASE.tif --out DIR' is the grids case.")
-    p.add_argument("--grids", nargs=2, metavar=("TOP.tif", "BASE.tif"),
-                   help="the grids case: top and base surface grids (the same as 'thickness grids')")
-    p.add_argument("--out", metavar="DIR", help="with --grids: folder to create for the two thickness grids")
-    p.add_argument("--overwrite", action="store_true", help="with --grids: replace an existing output folder")
+    add_options(p, "grids", "grids_out", "overwrite")
     p.set_defaults(handler=main, case=None, run_case=None)
     cases = p.add_subparsers(dest="case", metavar="CASE", parser_class=OneLineParser)
 
@@ -72,56 +58,35 @@ def add_parser(sub) -> argparse.ArgumentParser:
                          help="from the outcrop width measured perpendicular to strike",
                          description="True thickness from the outcrop width measured perpendicular to "
                                      "strike, on flat or sloping ground.")
-    o.add_argument("--width-m", type=non_negative_metres, required=True, metavar="METRES",
-                   help="outcrop width between the top and base contacts, perpendicular to strike")
-    o.add_argument("--dip-deg", type=_degrees(0, 90), required=True, metavar="DEG", help="dip of the unit")
-    o.add_argument("--ground-slope-deg", type=_degrees(0, 90, hi_open=True), default=0.0, metavar="DEG",
-                   help="ground slope along the width measurement (default 0: flat ground)")
-    o.add_argument("--slope-sense", choices=tuple(SLOPE_SENSES),
-                   help="which way the ground descends: against-dip (opposite to the dip, as on a scarp "
-                        "slope) or with-dip (in the dip direction, as on a dip slope); needed on sloping ground")
-    o.add_argument("--width-kind", choices=WIDTH_KINDS, default="slope",
-                   help="slope: the width is measured along the ground (default); horizontal: on the map")
+    add_options(o, "width_m", "dip_deg", "ground_slope_deg", "slope_sense", "width_kind")
     o.set_defaults(run_case=_outcrop)
 
     pt = cases.add_parser("points", epilog=EPILOG, help="from a point on the top and a point on the base",
                           description="Exact true thickness from any point on the top and any point on the "
                                       "base of a planar unit of known attitude.")
-    pt.add_argument("--top", type=finite_number, nargs=3, required=True, metavar=("X", "Y", "Z"),
-                    help="a point on the top of the unit (metres, projected CRS)")
-    pt.add_argument("--base", type=finite_number, nargs=3, required=True, metavar=("X", "Y", "Z"),
-                    help="a point on the base of the unit (metres, same CRS)")
+    add_options(pt, "top", "base")
     _add_attitude(pt)
     pt.set_defaults(run_case=_points)
 
     b = cases.add_parser("borehole", epilog=EPILOG, help="from the drilled length of the unit in a straight hole",
                          description="True thickness from the length of a straight borehole between the top "
                                      "and base of a planar unit.")
-    b.add_argument("--length-m", type=non_negative_metres, required=True, metavar="METRES",
-                   help="length of hole between the top and base of the unit, along the hole")
-    b.add_argument("--hole-azimuth-deg", type=_azimuth, required=True, metavar="DEG",
-                   help="azimuth of the hole's downward direction, clockwise from grid north")
-    b.add_argument("--hole-plunge-deg", type=_degrees(0, 90), required=True, metavar="DEG",
-                   help="plunge of the hole below horizontal (90 = vertical hole)")
+    add_options(b, "length_m", "hole_azimuth_deg", "hole_plunge_deg")
     _add_attitude(b)
     b.set_defaults(run_case=_borehole)
 
     g = cases.add_parser("grids", epilog=EPILOG, help="isopachs between a top and a base surface grid",
                          description="Vertical and true thickness grids between a top and a base surface "
                                      "grid on the same grid (transform, shape, CRS).")
-    g.add_argument("--top", required=True, metavar="TOP.tif", help="elevation grid of the top of the unit")
-    g.add_argument("--base", required=True, metavar="BASE.tif", help="elevation grid of the base of the unit")
-    g.add_argument("--out", required=True, metavar="DIR",
-                   help="folder to create for vertical_thickness.tif and true_thickness.tif")
-    g.add_argument("--overwrite", action="store_true", help="replace an existing output folder")
+    add_options(g, "top_grid", "base_grid")
+    add_option(g, "grids_out", required=True)
+    add_option(g, "overwrite")
     g.set_defaults(run_case=_grids_case)
     return p
 
 
 def _add_attitude(p) -> None:
-    p.add_argument("--dip-deg", type=_degrees(0, 90), required=True, metavar="DEG", help="dip of the unit")
-    p.add_argument("--dip-direction-deg", type=_azimuth, required=True, metavar="DEG",
-                   help="dip direction of the unit, clockwise from grid north")
+    add_options(p, "dip_deg", "dip_direction_deg")
 
 
 def _say(*lines, stream=None) -> None:
@@ -139,7 +104,7 @@ def _outcrop(args) -> int:
             f"--ground-slope-deg {slope:g} needs --slope-sense: against-dip when the ground descends "
             "opposite to the dip, with-dip when it descends in the dip direction"
         )
-    sense = SLOPE_SENSES.get(args.slope_sense) if slope > 0 else None
+    sense = _slope_senses().get(args.slope_sense) if slope > 0 else None
     given = f"--dip-deg {args.dip_deg:g}, --ground-slope-deg {slope:g}" + (
         f" --slope-sense {args.slope_sense}" if sense else "")
     try:

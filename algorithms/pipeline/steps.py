@@ -8,9 +8,6 @@ import numpy as np
 import shapely
 
 from strikeline.stats import holdout_block_m, residual_correlation_m, segment_groups
-from strikeline.defaults import (DEFAULT_DEM_SIGMA_M,
-                                 FLAG_CELLS, SEGMENT_CELLS,
-                                 DEFAULT_CONTACT_SIGMA_M, MISFIT_Z)
 from strikeline.attitude.quality import PlaneQuality, assess_plane
 from strikeline.errors import InputError, UndeterminedError
 from strikeline.attitude.fitting import PlaneFit, fit_plane
@@ -32,7 +29,8 @@ from strikeline.attitude import (
     vertical_sigma_of_picks,
 )
 from strikeline.pipeline.inputs import Inputs
-from strikeline.pipeline.options import Log, RunOptions, SPLINE_SMOOTHING, _quiet
+from strikeline.pipeline.options import (FLAG_CELLS, MISFIT_Z, SEGMENT_CELLS, SPLINE_SMOOTHING, Log, RunOptions,
+                                        _quiet, default)
 
 
 # --------------------------------------------------------------------------- steps
@@ -100,7 +98,7 @@ def pick_sigmas(inputs: Inputs, picks: PickSet, opts: RunOptions) -> np.ndarray:
     return sigma
 
 
-def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples: int = 1000,
+def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples: int = default("resamples"),
                 seed: int = 0, blocks=None, is_cancelled=None) -> dict:
     """Plane, 95% confidence, quality and true-north azimuth of one pick set, as a summary dict.
 
@@ -288,8 +286,8 @@ def structure_contours(surface, grid: Grid, *, interval_m: float, extrapolated_f
 
 def depth_trace_misfit(dem, dem_grid: Grid, surface, contacts: VectorLayer | None = None, *,
                        extrapolated_fn=None, flag_m=None, model: SurfaceModel | None = None,
-                       z_flag: float = MISFIT_Z, dem_sigma_m: float = DEFAULT_DEM_SIGMA_M,
-                       contact_sigma_m: float = DEFAULT_CONTACT_SIGMA_M) -> dict:
+                       z_flag: float = MISFIT_Z, dem_sigma_m: float = default("dem_sigma_m"),
+                       contact_sigma_m: float = default("contact_sigma_m")) -> dict:
     """Depth below ground, the predicted outcrop trace and its misfit to the mapped contacts.
 
     Depth = DEM − surface (positive where the surface lies below ground); the trace is its zero

@@ -55,8 +55,9 @@ from strikeline.surfaces.spline import _Spectrum, _kfold_lambda
 
 #: Fitted model kinds, simplest first (the order of the one-standard-error rule).
 MODELS = ("plane", "trend2", "spline")
-#: Valid ``model`` values of :func:`fit_surface`.
-MODEL_CHOICES = MODELS + ("auto",)
+#: Valid ``model`` values of :func:`fit_surface`: the default first, then the fitted kinds (the
+#: order in which the command line and the QGIS tools list them).
+MODEL_CHOICES = ("auto",) + MODELS
 #: Valid string values of ``smoothing``.
 SMOOTHING_CHOICES = ("gcv", "kfold", "discrepancy")
 #: Percentile of the hull's distance-to-data that defines the default ``reach_m``.

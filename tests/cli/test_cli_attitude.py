@@ -167,7 +167,8 @@ def test_where_filter_matches_the_group(tmp_path, run, demo_picks):
 def test_dem_sigma_widens_the_half_widths(tmp_path, run):
     pts = write_points(tmp_path / "p.gpkg", plane_points(**PLANE_A, noise_m=0.5))
     plain, mc = tmp_path / "plain.json", tmp_path / "mc.json"
-    assert run("attitude", "--points", pts, "--out", plain).returncode == 0
+    # --dem-sigma 0: the points' error unknown, the bootstrap alone (the default is 2 m, as in run)
+    assert run("attitude", "--points", pts, "--dem-sigma", 0, "--out", plain).returncode == 0
     proc = run("attitude", "--points", pts, "--dem-sigma", 5, "--out", mc)
     assert proc.returncode == 0
     p0, p1 = (json.loads(f.read_text())["plane"] for f in (plain, mc))

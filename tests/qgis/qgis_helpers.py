@@ -88,3 +88,10 @@ def bilinear_reference(dem_path):
     f = RegularGridInterpolator((ys[::-1], xs), a[::-1], method="linear", bounds_error=False,
                                 fill_value=np.nan)
     return lambda x, y: f(np.column_stack([np.asarray(y, float), np.asarray(x, float)]))
+
+
+def model_index(model: str) -> int:
+    """The value of the 'Surface model' enum (parameter MODEL) that chooses ``model``."""
+    from strikeline.pipeline.options import option
+
+    return option("model").choices.index(model)

@@ -9,6 +9,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from qgis.core import QgsFeature, QgsGeometry, QgsVectorLayer
+from qgis_helpers import model_index
 
 pytestmark = pytest.mark.qgis
 
@@ -66,7 +67,7 @@ def test_plane_attitude_reads_the_elevation_field(run, kind):
 
 @pytest.mark.parametrize("kind", ["2d", "z"])
 def test_surface_model_reads_the_elevation_field(run, kind):
-    res = run("surfacemodel", {"PICKS": _picks(kind), "PICKS_ELEV_FIELD": "elev", "METHOD": 0, "CELL": 50.0,
+    res = run("surfacemodel", {"PICKS": _picks(kind), "PICKS_ELEV_FIELD": "elev", "MODEL": model_index("plane"), "CELL": 50.0,
                                "SURFACE": TMP})
     assert res["MODEL"] == "plane"
     assert res["DIP_DEG"] == pytest.approx(DIP_DEG, abs=ATTITUDE_TOL_DEG)

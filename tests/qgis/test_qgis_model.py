@@ -25,7 +25,7 @@ from qgis.core import (
     QgsProcessingParameterField,
     QgsProcessingParameterRasterLayer,
 )
-from qgis_helpers import table
+from qgis_helpers import model_index, table
 
 pytestmark = pytest.mark.qgis
 
@@ -58,7 +58,7 @@ def build_model() -> QgsProcessingModelAlgorithm:
     surface.setChildId("surface")
     surface.addParameterSources("PICKS", _param(S.fromChildOutput("picks", "PICKS")))
     surface.addParameterSources("REFERENCE", _param(S.fromModelParameter("dem")))
-    surface.addParameterSources("METHOD", _param(S.fromStaticValue(0)))
+    surface.addParameterSources("MODEL", _param(S.fromStaticValue(model_index("plane"))))
     m.addChildAlgorithm(surface)
 
     contours = QgsProcessingModelChildAlgorithm("strikeline:structurecontours")

@@ -16,7 +16,7 @@ from qgis.core import (
     QgsProcessingFeedback,
     QgsProject,
 )
-from qgis_helpers import assert_same_lines, bilinear_reference, memory_copy, raster, table
+from qgis_helpers import assert_same_lines, bilinear_reference, memory_copy, model_index, raster, table
 
 from strikeline.geometry.grid import Grid
 from strikeline.maps.dipgrids import depth_below_ground, dip_grids
@@ -206,7 +206,7 @@ def test_plane_confidence_and_quality_are_the_library_ones(run, sheet, reference
     from strikeline.pipeline import attitude_of, segment_labels
 
     picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "PICKS": TMP})["PICKS"]
-    res = run("planeattitude", {"PICKS": picks, "RESAMPLES": 200, "SIGMA_Z": 0.5, "SEED": 3, "ATTITUDE": TMP})
+    res = run("planeattitude", {"PICKS": picks, "RESAMPLES": 200, "DEM_SIGMA": 0.5, "SEED": 3, "ATTITUDE": TMP})
     geoms, cols = table(picks)
     xyz = shapely.get_coordinates(geoms, include_z=True)
     # The library's call behind `strikeline attitude --dem-sigma 0.5 --resamples 200 --seed 3`:
@@ -388,13 +388,13 @@ def contour_picks(sheet):
     return out, shapely.get_coordinates(geoms, include_z=True)
 
 
-@pytest.mark.parametrize("method,model", [(1, "trend2"), (2, "spline")])
-def test_surface_models_are_the_library_models(run, contour_picks, method, model):
+@pytest.mark.parametrize("model", ["trend2", "spline"])
+def test_surface_models_are_the_library_models(run, contour_picks, model):
     from strikeline.picks import PickSet
     from strikeline.pipeline import RunOptions, model_surface
 
     layer, xyz = contour_picks
-    res = run("surfacemodel", {"PICKS": layer, "METHOD": method, "CELL": 50.0, "SURFACE": TMP,
+    res = run("surfacemodel", {"PICKS": layer, "MODEL": model_index(model), "CELL": 50.0, "SURFACE": TMP,
                                "STANDARD_ERROR": TMP, "EXTRAPOLATED": TMP})
     got, gt, _ = raster(res["SURFACE"])
     grid = Grid(gt, got.shape)
@@ -430,7 +430,7 @@ def test_surface_model_honours_a_borehole(run, contour_picks, sheet):
     f = QgsFeature()
     f.setGeometry(QgsGeometry.fromWkt("PointZ ({} {} {})".format(*BOREHOLE)))
     holes.dataProvider().addFeatures([f])
-    res = run("surfacemodel", {"PICKS": layer, "METHOD": 0, "REFERENCE": sheet["dem"], "BOREHOLES": holes,
+    res = run("surfacemodel", {"PICKS": layer, "MODEL": model_index("plane"), "REFERENCE": sheet["dem"], "BOREHOLES": holes,
                                "BOREHOLE_SIGMA": 0.0, "SURFACE": TMP})
     surface, grid = read_raster(res["SURFACE"], label="surface")
     ref = fit_surface(xyz, model="plane", boreholes=np.array([BOREHOLE]), cross_validate_model=False)
@@ -449,7 +449,7 @@ def test_surface_model_with_the_demo_boreholes_and_dips(run, contour_picks, shee
 
     d = sheet["dir"]
     layer, xyz = contour_picks
-    res = run("surfacemodel", {"PICKS": layer, "METHOD": 1, "REFERENCE": sheet["dem"],
+    res = run("surfacemodel", {"PICKS": layer, "MODEL": model_index("trend2"), "REFERENCE": sheet["dem"],
                                "BOREHOLES": f"{d / 'boreholes.gpkg'}|layername=boreholes",
                                "BOREHOLE_COLLAR_FIELD": "collar_m", "BOREHOLE_DEPTH_FIELD": "depth_m",
                                "BOREHOLE_SIGMA": 0.0,
@@ -476,7 +476,7 @@ def test_structure_contours_dash_the_forecast(run, contour_picks):
     from scipy.spatial import cKDTree
 
     layer, xyz = contour_picks
-    sm = run("surfacemodel", {"PICKS": layer, "METHOD": 0, "CELL": 25.0, "SURFACE": TMP, "EXTRAPOLATED": TMP})
+    sm = run("surfacemodel", {"PICKS": layer, "MODEL": model_index("plane"), "CELL": 25.0, "SURFACE": TMP, "EXTRAPOLATED": TMP})
     res = run("structurecontours", {"SURFACE": sm["SURFACE"], "FORECAST_MASK": sm["EXTRAPOLATED"],
                                     "INTERVAL": 50.0, "STRUCTURE_CONTOURS": TMP})
     geoms, cols = table(res["STRUCTURE_CONTOURS"], z=False)

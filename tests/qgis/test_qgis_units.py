@@ -13,7 +13,7 @@ import sys
 import numpy as np
 import pytest
 from qgis.core import QgsProcessingException
-from qgis_helpers import raster, table
+from qgis_helpers import model_index, raster, table
 
 from conftest import REPO
 
@@ -50,11 +50,9 @@ def library_run(units):
 
 
 def test_whole_chain_gives_the_librarys_constraints_and_surface(run, units, library_run, tmp_path):
-    from strikeline import pipeline as pl
-
     summary = tmp_path / "summary.json"
     res = run("modelcontact", {"CONTACTS": f"{FOLD / 'contacts.gpkg'}|layername=contacts",
-                               "DEM": str(FOLD / "dem.tif"), "MODEL": pl.MODELS.index("spline"),
+                               "DEM": str(FOLD / "dem.tif"), "MODEL": model_index("spline"),
                                "RESAMPLES": 100, "PICK_SPACING": PICK_SPACING_M, "MAP_UNITS": units, **UNITS,
                                "SUMMARY": str(summary),
                                "PICKS": TMP, "STRUCTURE_CONTOURS": TMP, "SURFACE": str(tmp_path / "s.tif"),
@@ -87,7 +85,7 @@ def test_surface_model_tool_gives_the_librarys_constrained_surface(run, units, l
     from strikeline.pipeline import RunOptions, map_unit_bounds, map_unit_polygons, model_surface
 
     picks = library_run.picks
-    res = run("surfacemodel", {"PICKS": picks_uri, "METHOD": 2, "REFERENCE": str(FOLD / "dem.tif"),
+    res = run("surfacemodel", {"PICKS": picks_uri, "MODEL": model_index("spline"), "REFERENCE": str(FOLD / "dem.tif"),
                                "MAP_UNITS": units, **UNITS, "SURFACE": str(tmp_path / "s.tif"),
                                "UNIT_CONFLICTS": TMP})
     # the library on the same picks, units and grid
@@ -116,7 +114,7 @@ def _message(run, name, params):
 
 def test_bad_unit_parameters_fail_with_the_librarys_words(run, units, picks_uri):
     base = {"CONTACTS": f"{FOLD / 'contacts.gpkg'}|layername=contacts", "DEM": str(FOLD / "dem.tif"),
-            "MODEL": 3, "PICKS": TMP, "STRUCTURE_CONTOURS": TMP, "SURFACE": TMP, "DIP": TMP,
+            "MODEL": model_index("spline"), "PICKS": TMP, "STRUCTURE_CONTOURS": TMP, "SURFACE": TMP, "DIP": TMP,
             "DIP_DIRECTION": TMP}
     msg = _message(run, "modelcontact", {**base, "MAP_UNITS": units, **UNITS, "UNITS_ABOVE": "Cawl,Chalk"})
     assert "unit(s) Chalk not found in field 'unit'" in msg and "(units found: Alluvium, Brenlow, Cawl)" in msg
