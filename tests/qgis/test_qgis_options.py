@@ -1,0 +1,172 @@
+"""Options shared by the command line and a QGIS tool have one default, one set of bounds and one
+set of allowed values in both.
+
+# Source: the reference is the command line itself - its parsers (strikeline.cli.main.build_parser)
+# are probed value by value, and each QGIS parameter must accept and refuse the same values, start
+# from the same default and offer the same choices in the same order.
+"""
+from __future__ import annotations
+
+import argparse
+
+import pytest
+from qgis.core import (
+    QgsApplication,
+    QgsProcessingContext,
+    QgsProcessingException,
+    QgsProcessingParameterBoolean,
+    QgsProcessingParameterEnum,
+    QgsProcessingParameterNumber,
+)
+
+from adapter_qgis.params import value
+from strikeline.cli.main import build_parser
+from strikeline.errors import InputError
+from strikeline.pipeline.options import OPTIONS
+
+pytestmark = pytest.mark.qgis
+
+TMP = "TEMPORARY_OUTPUT"
+
+
+def _cli_actions() -> dict:
+    """(command, flag) -> the argparse action, for every subcommand and thickness case."""
+    def subparsers(p):
+        for a in p._actions:
+            if isinstance(a, argparse._SubParsersAction):
+                yield from a.choices.items()
+
+    out = {}
+    for name, sub in subparsers(build_parser()):
+        parsers = [(name, sub), *((f"{name} {case}", c) for case, c in subparsers(sub))]
+        for command, parser in parsers:
+            for a in parser._actions:
+                for flag in a.option_strings:
+                    out[command, flag] = a
+    return out
+
+
+ACTIONS = _cli_actions()
+#: (option, command, tool) for every option that a command and a QGIS tool both take.
+SHARED = [(o, c, t) for o in OPTIONS.values() if o.flag and o.qgis for c in o.commands for t in o.tools]
+IDS = [f"{o.name}:{c}:{t}" for o, c, t in SHARED]
+
+
+def _tool(name):
+    alg = QgsApplication.processingRegistry().createAlgorithmById(f"strikeline:{name}")
+    assert alg is not None, name
+    return alg
+
+
+def _read(alg, o, given):
+    """What the tool takes for parameter ``o`` given ``given`` ({} for its default)."""
+    return value(alg, given, o.name, QgsProcessingContext())
+
+
+def test_every_shared_option_is_checked():
+    names = {o.name for o, _, _ in SHARED}
+    # the options the issue found defaulted differently in different places
+    assert names >= {"interval_m", "resamples", "model", "dem_sigma_m", "borehole_sigma_m", "seed"}
+
+
+@pytest.mark.parametrize("o,command,tool", SHARED, ids=IDS)
+def test_same_default(o, command, tool):
+    action = ACTIONS[command, o.flag]
+    alg = _tool(tool)
+    param = alg.parameterDefinition(o.qgis)
+    assert param is not None, (tool, o.qgis)
+    cli_default = action.default
+    if isinstance(param, QgsProcessingParameterEnum):
+        assert o.cli_value(o.choices[param.defaultValue()]) == cli_default
+        assert o.cli_value(_read(alg, o, {})) == cli_default
+    elif isinstance(param, QgsProcessingParameterNumber):
+        if action.required:  # no default on either side: the value must be given
+            assert param.defaultValue() is None and not param.flags() & param.FlagOptional
+        elif cli_default is None:  # unset on the command line: 0 in QGIS, read as unset
+            assert param.defaultValue() == 0
+            assert _read(alg, o, {}) is None
+        else:
+            assert param.defaultValue() == cli_default
+            assert _read(alg, o, {}) == cli_default
+        want = QgsProcessingParameterNumber.Integer if o.kind is int else QgsProcessingParameterNumber.Double
+        assert param.dataType() == want
+    elif isinstance(param, QgsProcessingParameterBoolean):
+        assert param.defaultValue() == cli_default
+    else:  # a field, a text or a layer
+        assert param.defaultValue() in ((cli_default,) if cli_default is not None else (None, ""))
+
+
+def _cli_accepts(action, text: str) -> bool:
+    try:
+        action.type(text)
+    except argparse.ArgumentTypeError:
+        return False
+    return True
+
+
+def _qgis_accepts(alg, o, param, v) -> bool:
+    if not param.checkValueIsAcceptable(v):
+        return False
+    try:
+        _read(alg, o, {o.qgis: v})
+    except InputError:
+        return False
+    return True
+
+
+def _probes(o):
+    pts = {-1.0, 0.0, 1.0, 1e6}
+    for b in (o.minimum, o.maximum):
+        if b is not None:
+            pts |= {b - 1.0, b - 0.001, b, b + 0.001, b + 1.0}
+    if o.default is not None and o.is_number:
+        pts.add(float(o.default))
+    return sorted({int(round(p)) for p in pts} if o.kind is int else pts)
+
+
+NUMBERS = [(o, c, t) for o, c, t in SHARED if o.is_number]
+
+
+@pytest.mark.parametrize("o,command,tool", NUMBERS, ids=[f"{o.name}:{c}:{t}" for o, c, t in NUMBERS])
+def test_same_bounds(o, command, tool):
+    action = ACTIONS[command, o.flag]
+    alg = _tool(tool)
+    param = alg.parameterDefinition(o.qgis)
+    checked = 0
+    for v in _probes(o):
+        if v == 0 and o.default is None and not o.required:
+            continue  # 0 is "unset" in QGIS (the library's default), as leaving the flag out is
+        cli, qgis = _cli_accepts(action, repr(v)), _qgis_accepts(alg, o, param, v)
+        assert cli == qgis, (o.name, tool, v, cli, qgis)
+        checked += 1
+    assert checked >= 4
+    # the bounds QGIS shows in its dialog are the command line's limits
+    lo = param.minimum()
+    assert (o.minimum is None and lo < -1e300) or lo == o.minimum
+    hi = param.maximum()
+    assert (o.maximum is None and hi > 1e300) or hi == o.maximum
+
+
+CHOICES = [(o, c, t) for o, c, t in SHARED if o.choices]
+
+
+@pytest.mark.parametrize("o,command,tool", CHOICES, ids=[f"{o.name}:{c}:{t}" for o, c, t in CHOICES])
+def test_same_allowed_values_in_the_same_order(o, command, tool):
+    action = ACTIONS[command, o.flag]
+    alg = _tool(tool)
+    param = alg.parameterDefinition(o.qgis)
+    assert len(param.options()) == len(action.choices)
+    for i, cli_choice in enumerate(action.choices):
+        assert o.cli_value(_read(alg, o, {o.qgis: i})) == cli_choice
+    assert not param.checkValueIsAcceptable(len(action.choices))  # no value beyond the list
+
+
+def test_a_refused_value_names_the_parameter(run, sheet):
+    """The structure-contour interval must be positive: QGIS's range stops at 0, the table's check
+    refuses 0 itself, in one line naming the parameter's label."""
+    alg = _tool("structurecontours")
+    label = alg.parameterDefinition("INTERVAL").description()
+    with pytest.raises(QgsProcessingException) as exc:
+        run("structurecontours", {"SURFACE": sheet["dem"], "INTERVAL": 0.0, alg.OUTPUT: TMP})
+    msg = str(exc.value)
+    assert msg.startswith(f"the '{label}'") and "greater than 0" in msg and "\n" not in msg
