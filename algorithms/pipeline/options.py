@@ -23,7 +23,7 @@ from typing import Any, Callable
 from strikeline.attitude import CONFIDENCE_METHODS, DEFAULT_MIN_POINTS, MIN_REPLICATES
 from strikeline.errors import InputError
 from strikeline.maps import SLOPE_SENSES, WIDTH_KINDS
-from strikeline.surfaces import DEFAULT_ORIENTATION_SIGMA_DEG, MODEL_CHOICES
+from strikeline.surfaces import DEFAULT_BOREHOLE_SIGMA_M, DEFAULT_ORIENTATION_SIGMA_DEG, MODEL_CHOICES
 
 Log = Callable[[str], None]
 
@@ -263,9 +263,11 @@ _OPTION_LIST = (
          flag="--borehole-depth-field", metavar="NAME", qgis="BOREHOLE_DEPTH_FIELD",
          label="Borehole field: depth from collar to the surface", parent="boreholes", numeric=True,
          commands=_RUN, tools=_SURFACE_TOOLS),
-    _opt("borehole_sigma_m", float, "standard error of borehole elevations (0: exact)", default=1.0, unit="m",
-         minimum=0.0, basis="a collar levelled by GNSS or read off a DEM and a logged depth to the contact are "
-         "good to about a metre (common practice)", flag="--borehole-sigma", metavar="METRES",
+    _opt("borehole_sigma_m", float, "standard error of borehole elevations (0: exact)",
+         default=DEFAULT_BOREHOLE_SIGMA_M, unit="m", minimum=0.0,
+         basis="a collar levelled by GNSS or read off a DEM and a logged depth to the contact are good to about "
+               "a metre (common practice); the surface model's own default, "
+               "strikeline.surfaces.DEFAULT_BOREHOLE_SIGMA_M", flag="--borehole-sigma", metavar="METRES",
          qgis="BOREHOLE_SIGMA", label="Standard error of the borehole elevations (m, 0: exact)", advanced=True,
          commands=_RUN, tools=_SURFACE_TOOLS),
     _opt("orientations", "path", "point layer of dip measurements on the surface", flag="--orientations",

@@ -10,6 +10,7 @@ from strikeline.surfaces.bounded import (  # noqa: F401
     MAX_BOUND_ITERATIONS,
 )
 from strikeline.surfaces.data import (  # noqa: F401
+    DEFAULT_BOREHOLE_SIGMA_M,
     DEFAULT_ORIENTATION_SIGMA_DEG,
     MAX_DIP_DEG,
 )

@@ -31,6 +31,10 @@ from strikeline.errors import InputError
 
 #: Default standard error of a dip measurement: a typical compass-clinometer repeatability.
 DEFAULT_ORIENTATION_SIGMA_DEG = 5.0
+#: Default standard error of a borehole's surface elevation (metres): a collar levelled by GNSS or
+#: read off a DEM and a logged depth to the contact are good to about a metre (common practice).
+#: The same default in the library, the command line and the QGIS tools; give 0 for an exact one.
+DEFAULT_BOREHOLE_SIGMA_M = 1.0
 #: Steepest dip a height field z(x, y) can follow; steeper measurements are refused.
 MAX_DIP_DEG = 89.0
 

@@ -43,7 +43,7 @@ from strikeline.geometry.orientation import dip_from_normal, strike_from_dip_dir
 from strikeline.picks.thinning import thin_picks
 from strikeline.stats import (SELECTION_RULES, CVScore, choose_model, fit_error_growth,
                               holdout_block_m, make_folds, segment_groups)
-from strikeline.surfaces.data import DEFAULT_ORIENTATION_SIGMA_DEG, _Data, _prepare
+from strikeline.surfaces.data import DEFAULT_BOREHOLE_SIGMA_M, DEFAULT_ORIENTATION_SIGMA_DEG, _Data, _prepare
 from strikeline.surfaces.fitted import _Surface, _fit_kind
 from strikeline.surfaces.holdout import (CHECK_BLOCK_FACTOR, COARSE_HOLDOUT_FACTOR, _holdout_checks,
                                          _robust_surface, _score_fits)
@@ -113,7 +113,7 @@ def _params(surface: _Surface, data: _Data) -> dict:
     return p
 
 
-def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.0,
+def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=DEFAULT_BOREHOLE_SIGMA_M,
                 orientations=None, orientation_sigma_deg=DEFAULT_ORIENTATION_SIGMA_DEG,
                 orientation_footprint_m: float | None = None, groups=None,
                 smoothing="gcv", n_folds: int = 5, selection: str = "data_error",
@@ -135,8 +135,8 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=0.
     model : {'auto', 'plane', 'trend2', 'spline'}, default 'auto'
     boreholes : array_like, shape ``(nb, 3)`` or ``(nb, 4)``, optional
         ``x, y, z`` of the surface in boreholes, optionally a 4th column ``sigma_m``.
-    borehole_sigma_m : float or array_like, default 0
-        Standard error of borehole elevations when ``boreholes`` has 3 columns.
+    borehole_sigma_m : float or array_like, default 1
+        Standard error of borehole elevations when ``boreholes`` has 3 columns (0: exact).
     orientations : array_like, shape ``(no, 4)`` or ``(no, 5)``, optional
         Dip measurements ``x, y, dip_deg, dip_direction_deg`` and optionally ``sigma_deg``.
         Convert strike (right-hand rule) with

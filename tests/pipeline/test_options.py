@@ -71,6 +71,19 @@ def test_shared_options_have_one_default():
     assert {"run", "attitude"} <= set(option("dem_sigma_m").commands)
 
 
+def test_the_surface_library_defaults_the_stated_errors_as_the_tools():
+    """fit_surface called without the errors of boreholes and dip readings assumes what the
+    command line and QGIS assume (the borehole error was 0 in the library and 1 m in the tools)."""
+    import inspect
+
+    from strikeline.surfaces import fit_surface
+
+    params = inspect.signature(fit_surface).parameters
+    assert params["borehole_sigma_m"].default == option("borehole_sigma_m").default
+    assert params["orientation_sigma_deg"].default == option("orientation_sigma_deg").default
+    assert params["model"].default == option("model").default
+
+
 # --------------------------------------------------------------------------- the parsers
 def _parsers():
     """(command, parser) for every subcommand and thickness case."""

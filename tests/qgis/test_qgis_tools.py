@@ -433,7 +433,8 @@ def test_surface_model_honours_a_borehole(run, contour_picks, sheet):
     res = run("surfacemodel", {"PICKS": layer, "MODEL": model_index("plane"), "REFERENCE": sheet["dem"], "BOREHOLES": holes,
                                "BOREHOLE_SIGMA": 0.0, "SURFACE": TMP})
     surface, grid = read_raster(res["SURFACE"], label="surface")
-    ref = fit_surface(xyz, model="plane", boreholes=np.array([BOREHOLE]), cross_validate_model=False)
+    ref = fit_surface(xyz, model="plane", boreholes=np.array([BOREHOLE]), borehole_sigma_m=0.0,
+                      cross_validate_model=False)
     np.testing.assert_array_equal(surface, ref.evaluate_grid(grid).astype(np.float32).astype(float))
     # common practice: a model that honours a borehole (standard error 0) passes through it.
     z = sample_bilinear(surface, grid, BOREHOLE[0], BOREHOLE[1])

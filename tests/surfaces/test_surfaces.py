@@ -188,9 +188,9 @@ def test_a_plane_cannot_honour_five_exact_boreholes_on_a_dome_and_auto_skips_it(
     pts = [(cx, cy), (cx - 400, cy), (cx + 400, cy), (cx, cy - 400), (cx, cy + 400)]
     bh = np.array([[x, y, truth(x, y) + (15.0 if (x, y) == (cx, cy) else 0.0)] for x, y in pts])
     with pytest.raises(UndeterminedError, match="cannot pass within the stated errors"):
-        fit_surface(picks, model="plane", boreholes=bh, max_points=300,
+        fit_surface(picks, model="plane", boreholes=bh, borehole_sigma_m=0.0, max_points=300,
                     cross_validate_model=False)
-    m = fit_surface(picks, model="auto", boreholes=bh, groups=g, max_points=300)
+    m = fit_surface(picks, model="auto", boreholes=bh, borehole_sigma_m=0.0, groups=g, max_points=300)
     assert m.kind != "plane" and np.isnan(m.cv_rmse_m["plane"])
     assert "boreholes" in m.cv_skipped["plane"]
     assert np.all(np.abs(m.borehole_misfit_m()) < 1e-6)
