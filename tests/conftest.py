@@ -8,6 +8,7 @@ Helpers that are not fixtures (paths, writers of derived inputs, ``run_cli``) li
 """
 from __future__ import annotations
 
+import hashlib
 import json
 import os
 import stat
@@ -40,12 +41,19 @@ def _read_only(folder: Path) -> None:
     folder.chmod(folder.stat().st_mode & ~(stat.S_IWUSR | stat.S_IWGRP | stat.S_IWOTH))
 
 
+def _hashes(*folders) -> dict:
+    return {p: hashlib.sha256(p.read_bytes()).hexdigest() for f in folders for p in Path(f).iterdir() if p.is_file()}
+
+
 def _shared_run(tmp_path_factory, name: str, *args) -> SheetRun:
-    """Run ``strikeline ARGS --out <fresh folder>`` once; it must succeed."""
+    """Run ``strikeline ARGS --out <fresh folder>`` once; it must succeed and leave the bundled
+    sheets as they were (inputs are opened read-only)."""
     base = tmp_path_factory.mktemp(name)
     out = base / "out"
+    before = _hashes(DEMO, FOLD)
     proc = run_cli(*args, "--out", out)
     assert proc.returncode == 0, proc.stderr
+    assert _hashes(DEMO, FOLD) == before, "the bundled sheets must never be modified"
     _read_only(out)
     base.chmod(base.stat().st_mode & ~(stat.S_IWUSR | stat.S_IWGRP | stat.S_IWOTH))
     return SheetRun(proc, out)

@@ -1,15 +1,14 @@
 """``strikeline attitude``: the plane of a points layer with its confidence and quality.
 
-The demo sheet's picks come from ``strikeline run`` (a subprocess, as a user runs it); the
-reference is the analytic plane the demo sheet was built from (test_data/demo/truth.json), the
-analytic planes of synthetic point sets, and pyproj for the meridian convergence. Cases that only
-vary the arguments call ``strikeline.cli.main.main(argv)`` in-process to keep the file fast.
+The demo sheet's picks come from the session's ``strikeline run`` (conftest); the reference is
+the analytic plane the demo sheet was built from (test_data/demo/truth.json), the analytic planes
+of synthetic point sets, and pyproj for the meridian convergence. The command runs in this process
+(``helpers.run_cli``); the console script as a separate process is tested in test_console.py.
 """
 import hashlib
 import json
 import re
 from pathlib import Path
-from types import SimpleNamespace
 
 import numpy as np
 import pyproj
@@ -70,30 +69,15 @@ def plane_points(dip_deg, dip_direction_deg, *, n=150, half_m=1000.0, noise_m=1.
 
 
 @pytest.fixture
-def run(capsys):
-    """``strikeline ARGS`` in-process: the same parser, handlers and exit statuses."""
-    from strikeline.cli.main import main
-
-    def call(*args):
-        try:
-            rc = main([str(a) for a in args])
-        except SystemExit as exc:
-            rc = exc.code
-        out, err = capsys.readouterr()
-        return SimpleNamespace(returncode=rc, stdout=out, stderr=err)
-    return call
+def run(cli):
+    """``strikeline ARGS`` in this process (conftest's ``cli``)."""
+    return cli
 
 
 @pytest.fixture(scope="module")
-def demo_picks(tmp_path_factory, demo):
-    """results.gpkg of ``strikeline run`` on the demo sheet (DEM and contour picks)."""
-    from conftest import run_cli
-
-    out = tmp_path_factory.mktemp("run") / "results"
-    proc = run_cli("run", "--contacts", demo["contacts"], "--dem", demo["dem"], "--contours",
-                   demo["contours"], "--elev-field", demo["elev_field"], "--out", out)
-    assert proc.returncode == 0, proc.stderr
-    return out / "results.gpkg"
+def demo_picks(demo_dem_contours_run):
+    """results.gpkg of the session's ``strikeline run`` on the demo sheet (DEM and contour picks)."""
+    return demo_dem_contours_run.out / "results.gpkg"
 
 
 def _one_error_line(proc):

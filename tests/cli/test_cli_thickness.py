@@ -1,11 +1,10 @@
 """``strikeline thickness``: the worked values of the issue through the command line, and isopachs.
 
-The command's entry point is run as a user would (a subprocess) for one case of each kind; the
-many argument cases call the same ``strikeline.cli.main.main(argv)`` in-process (exit status,
-stdout and stderr captured), which keeps the file fast: each subprocess pays the start-up imports.
+The command runs in this process (``helpers.run_cli``: ``strikeline.cli.main.main(argv)`` with
+exit status, stdout and stderr captured); the console script as a separate process is tested in
+test_console.py.
 """
 import re
-from types import SimpleNamespace
 
 import numpy as np
 import pytest
@@ -54,18 +53,9 @@ WORKED = {
 
 
 @pytest.fixture
-def run(capsys):
-    """``strikeline ARGS`` in-process: the same parser, handlers and exit statuses."""
-    from strikeline.cli.main import main
-
-    def call(*args):
-        try:
-            rc = main([str(a) for a in args])
-        except SystemExit as exc:  # argparse usage errors and --help
-            rc = exc.code
-        out, err = capsys.readouterr()
-        return SimpleNamespace(returncode=rc, stdout=out, stderr=err)
-    return call
+def run(cli):
+    """``strikeline ARGS`` in this process (conftest's ``cli``)."""
+    return cli
 
 
 def _number(pattern, text):
@@ -92,12 +82,8 @@ def test_worked_values_through_the_cli(run, case):
     assert "reference: " in proc.stdout and "Ragan" in proc.stdout
 
 
-def test_entry_point_as_a_subprocess(cli):
-    args, expected, _ = WORKED["borehole 1"]
-    proc = cli("thickness", *args)
-    assert proc.returncode == 0, proc.stderr
-    assert _number(r"true thickness: ([\d.]+) m", proc.stdout) == pytest.approx(expected, abs=TOL_M)
-    _one_error_line(cli("thickness", "outcrop", "--width-m", 100))  # --dip-deg missing
+def test_a_missing_option_is_one_error_line(run):
+    _one_error_line(run("thickness", "outcrop", "--width-m", 100))  # --dip-deg missing
 
 
 def test_flat_ground_reports_the_vertical_thickness(run):

@@ -42,13 +42,9 @@ def _fold_dip(s, x, y):
 
 
 @pytest.fixture(scope="module")
-def fold_run(tmp_path_factory):
-    from conftest import run_cli
-
-    out = tmp_path_factory.mktemp("fold") / "out"
-    proc = run_cli("run", "--contacts", FOLD / "contacts.gpkg", "--dem", FOLD / "dem.tif", "--out", out)
-    assert proc.returncode == 0, proc.stderr
-    return out
+def fold_out(fold_run):
+    """The session's run on the fold sheet, default options (conftest)."""
+    return fold_run.out
 
 
 def _grid(path):
@@ -69,27 +65,27 @@ def _hull(out):
     return shapely.convex_hull(shapely.multipoints(shapely.get_coordinates(np.array(pts))))
 
 
-def test_auto_chooses_the_spline_and_it_follows_the_fold(fold_run):
-    s = json.loads((fold_run / "summary.json").read_text())
+def test_auto_chooses_the_spline_and_it_follows_the_fold(fold_out):
+    s = json.loads((fold_out / "summary.json").read_text())
     assert s["model"]["chosen"] == "spline"
     cv = s["model"]["cv_rmse_m"]
     assert cv["spline"] < cv["plane"] and cv["spline"] < cv["trend2"]
-    z, X, Y = _grid(fold_run / "surface.tif")
-    inside = shapely.contains_xy(_hull(fold_run), X, Y)
+    z, X, Y = _grid(fold_out / "surface.tif")
+    inside = shapely.contains_xy(_hull(fold_out), X, Y)
     err = z[inside] - _fold_z(_truth(), X[inside], Y[inside])
     assert np.sqrt(np.mean(err ** 2)) < SPLINE_RMS_LIMIT_M
 
 
-def test_dip_grid_follows_the_limbs(fold_run):
-    dip, X, Y = _grid(fold_run / "dip.tif")
-    inside = shapely.contains_xy(_hull(fold_run), X, Y) & np.isfinite(dip)
+def test_dip_grid_follows_the_limbs(fold_out):
+    dip, X, Y = _grid(fold_out / "dip.tif")
+    inside = shapely.contains_xy(_hull(fold_out), X, Y) & np.isfinite(dip)
     true_dip, _ = _fold_dip(_truth(), X[inside], Y[inside])
     # the fold's dips range from 5.5 deg (hinges) to 14 deg (limbs): a 1 deg RMS error keeps them apart
     assert np.sqrt(np.mean((dip[inside] - true_dip) ** 2)) < 1.0  # measured 0.35 deg
 
 
-def test_local_attitudes_swing_with_the_fold(fold_run):
-    ds = ogr.Open(str(fold_run / "results.gpkg"))
+def test_local_attitudes_swing_with_the_fold(fold_out):
+    ds = ogr.Open(str(fold_out / "results.gpkg"))
     good = [(f.GetGeometryRef().GetX(), f.GetGeometryRef().GetY(), f.GetField("dip_direction_deg"),
              f.GetField("dip_deg"), f.GetField("dip_ci95_deg"))
             for f in ds.GetLayerByName("attitudes") if f.GetField("quality") == "good"]
@@ -107,7 +103,7 @@ def test_local_attitudes_swing_with_the_fold(fold_run):
     assert np.median(diff) < 8  # measured 4.5 deg
 
 
-def test_one_plane_through_a_fold_is_flagged_not_planar(fold_run):
-    pl = json.loads((fold_run / "summary.json").read_text())["plane"]
+def test_one_plane_through_a_fold_is_flagged_not_planar(fold_out):
+    pl = json.loads((fold_out / "summary.json").read_text())["plane"]
     # the fold's picks scatter tens of metres about one plane, far beyond the 2 m DEM error
     assert pl["rms_m"] > 10 and pl["quality"] == "weak" and "not planar" in pl["reason"]

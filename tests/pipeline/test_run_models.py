@@ -66,14 +66,9 @@ def _summary(folder):
 
 
 @pytest.fixture(scope="module")
-def demo_out(tmp_path_factory, demo):
-    from conftest import run_cli
-
-    out = tmp_path_factory.mktemp("run") / "out"
-    proc = run_cli("run", "--contacts", demo["contacts"], "--dem", demo["dem"], "--contours", demo["contours"],
-                   "--elev-field", "elev_m", "--out", out)
-    assert proc.returncode == 0, proc.stderr
-    return out, proc
+def demo_out(demo_dem_contours_run):
+    """The session's run on the demo contact with DEM and contour picks (conftest)."""
+    return demo_dem_contours_run.out, demo_dem_contours_run.proc
 
 
 def test_plane_has_confidence_quality_and_true_north(demo_out, demo):
