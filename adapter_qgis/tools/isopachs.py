@@ -1,7 +1,6 @@
 """Tool: isopachs, the thickness of a unit between its top and base surface grids."""
 from __future__ import annotations
 
-import numpy as np
 from qgis.core import (
     QgsProcessing,
     QgsProcessingOutputNumber,
@@ -11,9 +10,8 @@ from qgis.core import (
     QgsWkbTypes,
 )
 
-from strikeline.io.contours import contour_lines
-from strikeline.maps.thickness import isopach_grids
 from strikeline.pipeline.rasters import require_same_grid
+from strikeline.pipeline.thickness import isopachs
 
 from ..base import REF_GDAL_CONTOUR, REF_ZT, StrikelineAlgorithm
 from ..inputs import read_dem
@@ -62,25 +60,20 @@ class Isopachs(StrikelineAlgorithm):
         base, bgrid, bpath = read_dem(self, parameters, self.BASE, context, steps, label="base surface")
         require_same_grid(tgrid, bgrid, what_a=f"top surface '{tpath}'", what_b=f"base surface '{bpath}'")
         steps.feedback.setProgress(20)
-        vertical, true = isopach_grids(top, base, bgrid, progress=steps.part(0.2, 0.7),
-                                       is_cancelled=steps.is_cancelled)
         interval = self.parameterAsDouble(parameters, self.INTERVAL, context)
-        geoms, levels = (np.empty(0, object), np.empty(0))
-        if interval > 0:
-            geoms, levels = contour_lines(true, bgrid, interval_m=interval)
+        iso = isopachs(top, base, bgrid, interval_m=interval, progress=steps.part(0.2, 0.7),
+                       is_cancelled=steps.is_cancelled)
         steps.check("isopachs")
-        n_neg = int(np.count_nonzero(vertical < 0))
-        if n_neg:
-            steps.warn(f"the top lies below the base in {n_neg} cells: check which surface is the top")
+        if iso.n_negative:
+            steps.warn(f"the top lies below the base in {iso.n_negative} cells: check which surface is the top")
         grid = bgrid.with_nodata(None)
-        out = {self.VERTICAL: write_raster(self, parameters, self.VERTICAL, context, vertical, grid),
-               self.TRUE: write_raster(self, parameters, self.TRUE, context, true, grid)}
+        out = {self.VERTICAL: write_raster(self, parameters, self.VERTICAL, context, iso.vertical_m, grid),
+               self.TRUE: write_raster(self, parameters, self.TRUE, context, iso.true_m, grid)}
         if interval > 0:
             out[self.LINES] = write_sink(self, parameters, self.LINES, context,
-                                         Table(geoms, {"thickness_m": np.asarray(levels, float)},
-                                               QgsWkbTypes.LineString), qgis_crs(bgrid.crs_wkt))
+                                         Table(iso.lines, {"thickness_m": iso.levels_m}, QgsWkbTypes.LineString),
+                                         qgis_crs(bgrid.crs_wkt))
         for key in (self.VERTICAL, self.TRUE):
             attach_style(context, out[key], "thickness")
-        finite = true[np.isfinite(true)]
-        out.update({"MEDIAN_TRUE_M": float(np.median(finite)) if finite.size else None, "N_NEGATIVE": n_neg})
+        out.update({"MEDIAN_TRUE_M": iso.median_true_m, "N_NEGATIVE": iso.n_negative})
         return out

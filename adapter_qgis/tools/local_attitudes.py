@@ -12,7 +12,8 @@ from qgis.core import (
 from qgis.PyQt.QtCore import QVariant
 
 from strikeline.errors import InputError
-from strikeline.attitude import CONFIDENCE_METHODS, local_attitudes
+from strikeline.attitude import CONFIDENCE_METHODS
+from strikeline.pipeline.planes import point_local_attitudes
 from strikeline.pipeline.options import option
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
@@ -79,30 +80,22 @@ class LocalAttitudes(StrikelineAlgorithm):
             cfield = ""
         xyz, source, _, name, vals = read_picks(self, parameters, context, steps,
                                                 fields=(cfield,) if cfield else ())
-        contact_id = None
-        if cfield:
-            cid = vals[cfield]
-            contact_id = np.where(np.isfinite(cid), cid, -1).astype(np.int64)
         window = self.parameterAsDouble(parameters, self.WINDOW, context) or None
         spacing = self.parameterAsDouble(parameters, self.GRID_SPACING, context) or None
         sigma = self.parameterAsDouble(parameters, self.SIGMA_Z, context) or None
         steps.feedback.setProgress(10)
-        try:
-            la = local_attitudes(
-                xyz, window_m=window, contact_id=contact_id,
-                min_points=self.parameterAsInt(parameters, self.MIN_POINTS, context),
-                along_contacts=self.parameterAsBool(parameters, self.ALONG, context),
-                across_picks=self.parameterAsBool(parameters, self.ACROSS, context),
-                grid_spacing_m=spacing,
-                method=CONFIDENCE_METHODS[self.parameterAsEnum(parameters, self.CONFIDENCE, context)],
-                n_resamples=self.parameterAsInt(parameters, self.RESAMPLES, context), sigma_z_m=sigma,
-                n_draws=self.parameterAsInt(parameters, self.RESAMPLES, context),
-                seed=self.parameterAsInt(parameters, self.SEED, context),
-                progress=steps.part(0.1, 0.9), is_cancelled=steps.is_cancelled)
-        except InputError as exc:
-            raise type(exc)(f"picks {name.what}: {exc}") from None
+        la, counts = point_local_attitudes(
+            xyz, contact_id=vals[cfield] if cfield else None, what=f"picks {name.what}", window_m=window,
+            min_points=self.parameterAsInt(parameters, self.MIN_POINTS, context),
+            along_contacts=self.parameterAsBool(parameters, self.ALONG, context),
+            across_picks=self.parameterAsBool(parameters, self.ACROSS, context),
+            grid_spacing_m=spacing,
+            method=CONFIDENCE_METHODS[self.parameterAsEnum(parameters, self.CONFIDENCE, context)],
+            n_resamples=self.parameterAsInt(parameters, self.RESAMPLES, context), sigma_z_m=sigma,
+            n_draws=self.parameterAsInt(parameters, self.RESAMPLES, context),
+            seed=self.parameterAsInt(parameters, self.SEED, context),
+            progress=steps.part(0.1, 0.9), is_cancelled=steps.is_cancelled)
         steps.check("local attitudes")
-        counts = {q: int(np.count_nonzero(la.quality == q)) for q in ("good", "weak", "undetermined")}
         steps.log(f"local attitudes: {len(la)} windows of radius {la.window_m:.0f} m "
                   f"(good {counts['good']}, weak {counts['weak']}, undetermined {counts['undetermined']})")
         if len(la) and counts["undetermined"] == len(la):
