@@ -120,3 +120,27 @@ def _location(xyz, att: dict) -> tuple[float, float, float]:
     if c is None:
         c = xyz.mean(axis=0) if len(xyz) else (np.nan, np.nan, np.nan)
     return tuple(float(v) for v in c)
+
+
+def point_local_attitudes(xyz, *, contact_id=None, what: str = "the points", **options):
+    """Local attitudes (:func:`strikeline.attitude.local_attitudes`) of a layer of points with
+    elevations, and the count of their windows by quality.
+
+    ``contact_id`` (one number per point, NaN for none -> -1) centres windows along each
+    contact; ``options`` are :func:`~strikeline.attitude.local_attitudes`'s. Input errors name
+    the points (``what``). Returns ``(attitudes, {quality: windows})`` for good, weak and
+    undetermined.
+    """
+    from strikeline.attitude import local_attitudes
+    from strikeline.errors import InputError
+
+    cid = None
+    if contact_id is not None:
+        c = np.asarray(contact_id, dtype=float)
+        cid = np.where(np.isfinite(c), c, -1).astype(np.int64)
+    try:
+        la = local_attitudes(xyz, contact_id=cid, **options)
+    except InputError as exc:
+        raise type(exc)(f"{what}: {exc}") from None
+    counts = {q: int(np.count_nonzero(la.quality == q)) for q in ("good", "weak", "undetermined")}
+    return la, counts

@@ -121,3 +121,37 @@ def thickness_of_boreholes(length_m, azimuth_deg, plunge_deg, *, dip_deg: float,
     if ok.any():
         t[ok] = thickness_from_borehole(length[ok], az[ok], plunge[ok], dip_direction_deg, dip_deg)
     return _result(t, ok, dip_deg, (~ok).sum())
+
+
+@dataclass(frozen=True)
+class Isopachs:
+    """A unit's thickness between its top and base surface grids (:func:`isopachs`)."""
+
+    vertical_m: np.ndarray  # top - base, per cell
+    true_m: np.ndarray  # vertical x cos(local dip of the base), per cell
+    lines: np.ndarray  # isopach lines of the true thickness (empty without an interval)
+    levels_m: np.ndarray  # the true thickness of each line
+    n_negative: int  # cells where the top lies below the base (the surfaces cross)
+
+    @property
+    def median_true_m(self) -> float | None:
+        """Median true thickness over the cells that have one (None if none)."""
+        finite = self.true_m[np.isfinite(self.true_m)]
+        return float(np.median(finite)) if finite.size else None
+
+
+def isopachs(top_m, base_m, grid: Grid, *, interval_m: float = 0.0, progress=None,
+             is_cancelled=None) -> Isopachs:
+    """Vertical and true thickness grids of a unit (:func:`strikeline.maps.thickness.isopach_grids`)
+    and, with ``interval_m`` > 0, isopach lines of the true thickness every ``interval_m`` metres
+    (GDAL's contour generator, :func:`strikeline.io.contours.contour_lines`). The two surfaces
+    must be on one grid (:func:`strikeline.pipeline.rasters.require_same_grid`)."""
+    from strikeline.io.contours import contour_lines
+    from strikeline.maps.thickness import isopach_grids
+
+    vertical, true = isopach_grids(top_m, base_m, grid, progress=progress, is_cancelled=is_cancelled)
+    lines, levels = np.empty(0, dtype=object), np.empty(0)
+    if interval_m > 0:
+        lines, levels = contour_lines(true, grid, interval_m=interval_m)
+    return Isopachs(vertical, true, np.asarray(lines, dtype=object), np.asarray(levels, dtype=float),
+                    int(np.count_nonzero(vertical < 0)))

@@ -118,3 +118,26 @@ def test_cancelled_between_groups():
     xyz, labels = two_blocks(n=10)
     with pytest.raises(CancelledError, match="cancelled"):
         planes_by_group(xyz, labels, crs_wkt=UTM31_WKT, resamples=20, is_cancelled=lambda: True)
+
+
+def test_local_attitudes_of_points_on_one_plane():
+    from strikeline.pipeline.planes import point_local_attitudes
+
+    rng = np.random.default_rng(12)
+    x = 500000.0 + rng.uniform(-1000, 1000, 400)
+    y = 5200000.0 + rng.uniform(-1000, 1000, 400)
+    xyz = np.column_stack([x, y, plane_z(x, y, 25.0, 210.0)])
+    cid = np.repeat(np.arange(8.0), 50)
+    cid[:10] = np.nan
+    la, counts = point_local_attitudes(xyz, contact_id=cid, window_m=400.0, n_resamples=20, n_draws=20)
+    assert sum(counts.values()) == len(la) > 0
+    good = la.quality == "good"
+    assert counts["good"] == int(good.sum()) > 0
+    # Source: plane_z above (the plane's own formula): every window of exact plane points has its attitude.
+    np.testing.assert_allclose(np.asarray(la.dip_deg)[good], 25.0, atol=1e-6)
+    np.testing.assert_allclose(np.asarray(la.dip_direction_deg)[good], 210.0, atol=1e-6)
+    assert -1 in set(int(c) for c in la.contact_id if c is not None)  # the NaN ids became -1
+    from strikeline.errors import InputError
+
+    with pytest.raises(InputError, match=r"^picks layer 'p': window_m must be a positive number"):
+        point_local_attitudes(xyz, what="picks layer 'p'", window_m=-1.0)

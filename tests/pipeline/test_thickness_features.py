@@ -86,3 +86,25 @@ def test_boreholes():
     np.testing.assert_allclose(got.true_m[:2], [100 * math.cos(math.radians(DIP_DEG)), 100.0], atol=1e-9)
     assert got.vertical_m[0] == pytest.approx(100.0, abs=1e-9)
     assert got.n_missing == 1
+
+
+def test_isopachs_of_two_parallel_planes():
+    from strikeline.pipeline.thickness import isopachs
+
+    grid = Grid((0.0, 10.0, 0.0, 500.0, 0.0, -10.0), (50, 50))
+    X, Y = grid.mesh()
+    base = 300.0 - math.tan(math.radians(DIP_DEG)) * X  # dips east
+    top = base + 40.0
+    top[0, 0] = base[0, 0] - 1.0  # one cell where the surfaces cross
+    got = isopachs(top, base, grid, interval_m=10.0)
+    # Source: Ragan 2009 (from memory): between parallel planes the vertical thickness is their
+    # separation (40 m) and the true thickness 40 cos(dip).
+    inner = np.s_[2:-2, 2:-2]
+    np.testing.assert_allclose(got.vertical_m[inner], 40.0, atol=1e-9)
+    np.testing.assert_allclose(got.true_m[inner], 40.0 * math.cos(math.radians(DIP_DEG)), atol=1e-6)
+    assert got.n_negative == 1
+    assert got.median_true_m == pytest.approx(40.0 * math.cos(math.radians(DIP_DEG)), abs=1e-6)
+    # Isopach lines every 10 m of true thickness: a constant 34.64 m gives none but near the
+    # crossing cell, and all lie at multiples of 10 m.
+    assert np.all(np.mod(got.levels_m, 10.0) == 0.0) and len(got.lines) == len(got.levels_m)
+    assert len(isopachs(top, base, grid).lines) == 0
