@@ -23,7 +23,7 @@ from strikeline.maps.thickness import SLOPE_SENSES, WIDTH_KINDS
 from strikeline.pipeline.thickness import thickness_of_boreholes, thickness_of_lines, thickness_of_widths
 
 from ..base import StrikelineAlgorithm
-from ..params import add_parameters, option
+from ..params import add_parameters, option, parameter
 from ..inputs import read_dem, to_dem_crs
 from ..layers import read_vector, vector_name
 
@@ -37,7 +37,6 @@ METHODS = (("two_points", "Two points: a line drawn from the top contact to the 
            ("outcrop_width", "Outcrop width measured perpendicular to strike (a field)"),
            ("borehole", "Borehole intercepts (length, azimuth and plunge fields)"))
 SENSE_LABELS = ("ground descends against the dip", "ground descends with the dip")
-KIND_LABELS = ("along the ground (slope distance)", "horizontal, on the map")
 
 
 class UnitThickness(StrikelineAlgorithm):
@@ -65,7 +64,7 @@ class UnitThickness(StrikelineAlgorithm):
     WIDTH_FIELD = "WIDTH_FIELD"
     SLOPE_FIELD = "SLOPE_FIELD"
     SLOPE_SENSE = "SLOPE_SENSE"
-    WIDTH_KIND = "WIDTH_KIND"
+    WIDTH_KIND = option("width_kind").qgis
     LENGTH_FIELD = "LENGTH_FIELD"
     AZIMUTH_FIELD = "AZIMUTH_FIELD"
     PLUNGE_FIELD = "PLUNGE_FIELD"
@@ -91,8 +90,7 @@ class UnitThickness(StrikelineAlgorithm):
         self.addParameter(QgsProcessingParameterEnum(
             self.SLOPE_SENSE, self.tr("Ground slope sense"), options=[self.tr(x) for x in SENSE_LABELS],
             defaultValue=0))
-        self.addParameter(QgsProcessingParameterEnum(
-            self.WIDTH_KIND, self.tr("Width measured"), options=[self.tr(x) for x in KIND_LABELS], defaultValue=0))
+        self.addParameter(parameter(self, "width_kind"))
         self.addParameter(QgsProcessingParameterFeatureSink(self.OUTPUT, self.tr("Thickness")))
 
     def _field(self, parameters, key, context, name, label, *, required=True):

@@ -416,7 +416,7 @@ _OPTION_LIST = (
          default="slope", choices=WIDTH_KINDS, choice_labels=_labels(WIDTH_KINDS, {
              "slope": "along the ground (slope distance)", "horizontal": "horizontal, on the map"}),
          basis="a tape or pace along the ground measures the slope distance", flag="--width-kind",
-         commands=("thickness outcrop",)),
+         qgis="WIDTH_KIND", label="Width measured", commands=("thickness outcrop",), tools=("unitthickness",)),
     _opt("top", "xyz", "a point on the top of the unit (metres, projected CRS)", flag="--top", nargs=3,
          metavar=("X", "Y", "Z"), required=True, commands=("thickness points",)),
     _opt("base", "xyz", "a point on the base of the unit (metres, same CRS)", flag="--base", nargs=3,

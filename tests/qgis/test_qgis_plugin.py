@@ -109,7 +109,7 @@ def test_plugin_zip_vendors_the_library(tmp_path):
         names = z.namelist()
         meta = z.read("strikeline_qgis/metadata.txt").decode()
     assert {"strikeline_qgis/__init__.py", "strikeline_qgis/metadata.txt", "strikeline_qgis/icon.svg",
-            "strikeline_qgis/provider.py", "strikeline_qgis/_vendor/strikeline/pipeline.py",
+            "strikeline_qgis/provider.py", "strikeline_qgis/_vendor/strikeline/pipeline/options.py",
             "strikeline_qgis/_vendor/strikeline/io/raster.py"} <= set(names)
     assert not [n for n in names if "__pycache__" in n or n.endswith(".pyc") or "/cli/" in n
                 or n.endswith("build_zip.py")]

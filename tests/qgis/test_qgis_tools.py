@@ -284,8 +284,9 @@ def test_level_picks_give_a_horizontal_plane_without_direction(run):
     fb = QgsProcessingFeedback()
     logs = []
     fb.pushInfo = logs.append
-    res = run("planeattitude", {"PICKS": _point_layer("lake_shore", xyz), "RESAMPLES": 50, "ATTITUDE": TMP},
-              feedback=fb)
+    # DEM_SIGMA 0: the picks' error unknown, as in the library call below
+    res = run("planeattitude", {"PICKS": _point_layer("lake_shore", xyz), "RESAMPLES": 50, "DEM_SIGMA": 0.0,
+                                "ATTITUDE": TMP}, feedback=fb)
     att = attitude_of(xyz, None, crs_wkt=QgsCoordinateReferenceSystem("EPSG:32631").toWkt(), what="picks",
                       strict=False, resamples=50)
     assert att["dip_significant"] is False and res["QUALITY"] == att["quality"] == "good"
@@ -302,7 +303,9 @@ def test_local_attitudes_are_the_library_ones(run, sheet, reference):
 
     picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"],
                                  "CONTOURS": sheet["contours_uri"], "ELEV_FIELD": "elev_m", "PICKS": TMP})["PICKS"]
-    res = run("localattitudes", {"PICKS": picks, "WINDOW": 400.0, "RESAMPLES": 50, "LOCAL_ATTITUDES": TMP})
+    # DEM_SIGMA 0: no Monte Carlo of the picks' error, as in the library call below
+    res = run("localattitudes", {"PICKS": picks, "WINDOW": 400.0, "RESAMPLES": 50, "DEM_SIGMA": 0.0,
+                                 "LOCAL_ATTITUDES": TMP})
     geoms, cols = table(picks)
     xyz = shapely.get_coordinates(geoms, include_z=True)
     ref = local_attitudes(xyz, window_m=400.0, contact_id=cols["contact_id"].astype(np.int64), n_resamples=50,
