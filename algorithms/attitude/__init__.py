@@ -29,6 +29,7 @@ from strikeline.attitude.fitting import (  # noqa: F401
 )
 from strikeline.attitude.local import (  # noqa: F401
     CONFIDENCE_METHODS,
+    DEFAULT_WINDOW_RESAMPLES,
     MIN_WINDOW_BLOCKS,
     LocalAttitudes,
     local_attitudes,
@@ -56,6 +57,7 @@ from strikeline.attitude.quality import (  # noqa: F401
     shape_measures,
 )
 from strikeline.attitude.resampling import (  # noqa: F401
+    DEFAULT_RESAMPLES,
     MIN_BOOTSTRAP_BLOCKS,
     MIN_BOOTSTRAP_POINTS,
     MIN_REPLICATES,

@@ -52,10 +52,13 @@ from strikeline.errors import InputError
 from strikeline.geometry.orientation import dip_from_normal, strike_from_dip_direction
 from strikeline.stats import segment_groups
 
-__all__ = ["CONFIDENCE_METHODS", "MIN_WINDOW_BLOCKS", "LocalAttitudes", "local_attitudes"]
+__all__ = ["CONFIDENCE_METHODS", "DEFAULT_WINDOW_RESAMPLES", "MIN_WINDOW_BLOCKS", "LocalAttitudes", "local_attitudes"]
 
 #: How the confidence of each window is estimated.
 CONFIDENCE_METHODS = ("bootstrap", "analytic")
+#: Default bootstrap resamples and Monte Carlo draws per window: fewer than for one plane, since
+#: every window is resampled; 200 keeps a sheet's windows quick (our choice).
+DEFAULT_WINDOW_RESAMPLES = 200
 #: Fewest contact blocks in a window for a block-bootstrap interval that can be rated good
 #: (our choice: with two blocks a resample has three distinct outcomes).
 MIN_WINDOW_BLOCKS = 3
@@ -125,8 +128,8 @@ class LocalAttitudes:
 
 def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_MIN_POINTS,
                     contact_id=None, along_contacts=True, across_picks=True,
-                    grid_spacing_m=None, method="bootstrap", n_resamples=200, sigma_z_m=None,
-                    n_draws=200, seed=0, min_relief_m=1.0, block_m=None, progress=None,
+                    grid_spacing_m=None, method="bootstrap", n_resamples=DEFAULT_WINDOW_RESAMPLES, sigma_z_m=None,
+                    n_draws=DEFAULT_WINDOW_RESAMPLES, seed=0, min_relief_m=1.0, block_m=None, progress=None,
                     is_cancelled=None) -> LocalAttitudes:
     """Attitudes with 95% confidence and quality in moving windows.
 

@@ -42,12 +42,16 @@ __all__ = [
 MIN_BOOTSTRAP_POINTS = 4
 #: Fewest resamples or draws from which a 95th percentile is taken.
 MIN_REPLICATES = 20
+#: Default number of bootstrap resamples and of Monte Carlo draws: about 1000 for percentile
+#: intervals (Efron, B. & Tibshirani, R. J. 1993, An Introduction to the Bootstrap, Chapman &
+#: Hall, ch. 13). The command line and the QGIS tools default to it too.
+DEFAULT_RESAMPLES = 1000
 #: Fewest blocks for a block bootstrap; with fewer, single picks are resampled (our choice:
 #: a resample of fewer blocks has too few distinct outcomes for a 95% percentile).
 MIN_BOOTSTRAP_BLOCKS = 8
 
 
-def bootstrap_plane(points, *, n_resamples=1000, seed=0, groups=None, progress=None,
+def bootstrap_plane(points, *, n_resamples=DEFAULT_RESAMPLES, seed=0, groups=None, progress=None,
                     is_cancelled=None) -> PlaneConfidence:
     """95% confidence of the best-fit plane by bootstrap resampling of the picks (or of blocks).
 
@@ -182,7 +186,7 @@ def _sigma_per_pick(sigma_z_m, n_total, keep):
     return s
 
 
-def monte_carlo_plane(points, *, sigma_z_m, seed=0, n_draws=1000, progress=None,
+def monte_carlo_plane(points, *, sigma_z_m, seed=0, n_draws=DEFAULT_RESAMPLES, progress=None,
                       is_cancelled=None) -> PlaneConfidence:
     """95% confidence of the best-fit plane from stated vertical errors of the picks.
 
@@ -238,7 +242,7 @@ def monte_carlo_plane(points, *, sigma_z_m, seed=0, n_draws=1000, progress=None,
                            tuple(float(c) for c in tilt_cov.ravel()))
 
 
-def plane_confidence(points, *, sigma_z_m=None, n_resamples=1000, n_draws=1000, seed=0,
+def plane_confidence(points, *, sigma_z_m=None, n_resamples=DEFAULT_RESAMPLES, n_draws=DEFAULT_RESAMPLES, seed=0,
                      groups=None, progress=None, is_cancelled=None) -> PlaneConfidence:
     """Reported 95% confidence of a best-fit plane: bootstrap, plus data error when stated.
 

@@ -20,7 +20,8 @@ import math
 from dataclasses import dataclass
 from typing import Any, Callable
 
-from strikeline.attitude import CONFIDENCE_METHODS, DEFAULT_MIN_POINTS, MIN_REPLICATES
+from strikeline.attitude import (CONFIDENCE_METHODS, DEFAULT_MIN_POINTS, DEFAULT_RESAMPLES, DEFAULT_WINDOW_RESAMPLES,
+                                 MIN_REPLICATES)
 from strikeline.errors import InputError
 from strikeline.maps import SLOPE_SENSES, WIDTH_KINDS
 from strikeline.surfaces import DEFAULT_BOREHOLE_SIGMA_M, DEFAULT_ORIENTATION_SIGMA_DEG, MODEL_CHOICES
@@ -342,10 +343,11 @@ _OPTION_LIST = (
          "for attitude: a unit, a contact name, ...)", flag="--group-by", metavar="FIELD", qgis="GROUP_BY",
          label="Also one plane per value of this field", parent="contacts", commands=_PLANE,
          tools=("modelcontact", "planeattitude")),
-    _opt("resamples", int, "bootstrap resamples and Monte Carlo draws", default=1000, minimum=MIN_REPLICATES,
-         basis=f"Efron & Tibshirani (1993, ch. 13) ask for about 1000 resamples for percentile intervals; the "
-               f"library refuses fewer than {MIN_REPLICATES} (strikeline.attitude.MIN_REPLICATES), in every "
-               "command and tool",
+    _opt("resamples", int, "bootstrap resamples and Monte Carlo draws", default=DEFAULT_RESAMPLES,
+         minimum=MIN_REPLICATES,
+         basis=f"Efron & Tibshirani (1993, ch. 13) ask for about 1000 resamples for percentile intervals "
+               f"(strikeline.attitude.DEFAULT_RESAMPLES); the library refuses fewer than {MIN_REPLICATES} "
+               "(strikeline.attitude.MIN_REPLICATES), in every command and tool",
          flag="--resamples", metavar="N", qgis="RESAMPLES", label="Bootstrap resamples and Monte Carlo draws",
          advanced=True, commands=_PLANE, tools=("modelcontact", "planeattitude")),
     _opt("seed", int, "seed of the random draws (bootstrap, Monte Carlo, cross-validation folds): equal seeds "
@@ -385,9 +387,10 @@ _OPTION_LIST = (
              "bootstrap": "Bootstrap over the window's picks",
              "analytic": "Analytic (first-order covariance of the fit)"}),
          qgis="CONFIDENCE", label="95% confidence", advanced=True, tools=("localattitudes",)),
-    _opt("window_resamples", int, "bootstrap resamples and Monte Carlo draws per window", default=200,
-         minimum=MIN_REPLICATES, basis="fewer than for one plane: every window is resampled, and 200 keeps the "
-         "tool interactive (common practice); as the whole chain's local attitudes",
+    _opt("window_resamples", int, "bootstrap resamples and Monte Carlo draws per window",
+         default=DEFAULT_WINDOW_RESAMPLES, minimum=MIN_REPLICATES,
+         basis="strikeline.attitude.DEFAULT_WINDOW_RESAMPLES: fewer than for one plane, since every window is "
+               "resampled (our choice); as the whole chain's local attitudes",
          qgis="RESAMPLES", label="Bootstrap resamples per window", advanced=True, tools=("localattitudes",)),
     # ---- QGIS isopachs
     _opt("isopach_interval_m", float, "interval of the isopach lines (0: no lines)", default=10.0, unit="m",

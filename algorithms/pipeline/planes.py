@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from strikeline.errors import CancelledError
+from strikeline.pipeline.options import default
 from strikeline.pipeline.steps import attitude_of, segment_labels
 
 
@@ -25,7 +26,7 @@ def group_labels(values) -> np.ndarray:
 
 
 def planes_by_group(xyz, labels, *, crs_wkt: str, sigma=None, blocks=None, what: str = "group {}",
-                    resamples: int = 1000, seed: int = 0, progress=None, is_cancelled=None) -> dict:
+                    resamples: int = default("resamples"), seed: int = 0, progress=None, is_cancelled=None) -> dict:
     """One plane per distinct label, as :func:`strikeline.pipeline.attitude_of` reports it.
 
     Parameters
@@ -86,7 +87,7 @@ class PointPlanes:
 
 
 def point_planes(xyz, *, crs_wkt: str, labels=None, contact_id=None, sigma_z_m: float = 0.0,
-                 what: str = "the points", group_what: str = "group {}", resamples: int = 1000,
+                 what: str = "the points", group_what: str = "group {}", resamples: int = default("resamples"),
                  seed: int = 0, progress=None, is_cancelled=None) -> PointPlanes:
     """The attitude step of a layer of points with elevations: the plane of all points and, with
     ``labels``, one per group (:func:`planes_by_group`).

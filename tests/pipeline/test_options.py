@@ -84,6 +84,22 @@ def test_the_surface_library_defaults_the_stated_errors_as_the_tools():
     assert params["model"].default == option("model").default
 
 
+def test_the_attitude_library_defaults_the_resample_counts_as_the_tools():
+    """The resample count was written in ten places: the library's functions and the tools now
+    start from the same numbers."""
+    import inspect
+
+    from strikeline.attitude import bootstrap_plane, local_attitudes, monte_carlo_plane, plane_confidence
+    from strikeline.pipeline import attitude_of
+
+    for fn, keys in ((bootstrap_plane, ("n_resamples",)), (monte_carlo_plane, ("n_draws",)),
+                     (plane_confidence, ("n_resamples", "n_draws")), (attitude_of, ("resamples",))):
+        for k in keys:
+            assert inspect.signature(fn).parameters[k].default == option("resamples").default, (fn, k)
+    for k in ("n_resamples", "n_draws"):
+        assert inspect.signature(local_attitudes).parameters[k].default == option("window_resamples").default
+
+
 # --------------------------------------------------------------------------- the parsers
 def _parsers():
     """(command, parser) for every subcommand and thickness case."""
