@@ -58,6 +58,13 @@ def _tool(name):
     return alg
 
 
+def _both(o, command, tool):
+    """The command's argparse action, the tool (kept alive: QGIS owns the parameter) and the
+    tool's parameter for option ``o``."""
+    alg = _tool(tool)
+    return ACTIONS[command, o.flag], alg, alg.parameterDefinition(o.qgis)
+
+
 def _read(alg, o, given):
     """What the tool takes for parameter ``o`` given ``given`` ({} for its default)."""
     return value(alg, given, o.name, QgsProcessingContext())
@@ -71,9 +78,7 @@ def test_every_shared_option_is_checked():
 
 @pytest.mark.parametrize("o,command,tool", SHARED, ids=IDS)
 def test_same_default(o, command, tool):
-    action = ACTIONS[command, o.flag]
-    alg = _tool(tool)
-    param = alg.parameterDefinition(o.qgis)
+    action, alg, param = _both(o, command, tool)
     assert param is not None, (tool, o.qgis)
     cli_default = action.default
     if isinstance(param, QgsProcessingParameterEnum):
@@ -129,9 +134,7 @@ NUMBERS = [(o, c, t) for o, c, t in SHARED if o.is_number]
 
 @pytest.mark.parametrize("o,command,tool", NUMBERS, ids=[f"{o.name}:{c}:{t}" for o, c, t in NUMBERS])
 def test_same_bounds(o, command, tool):
-    action = ACTIONS[command, o.flag]
-    alg = _tool(tool)
-    param = alg.parameterDefinition(o.qgis)
+    action, alg, param = _both(o, command, tool)
     checked = 0
     for v in _probes(o):
         if v == 0 and o.default is None and not o.required:
@@ -152,9 +155,7 @@ CHOICES = [(o, c, t) for o, c, t in SHARED if o.choices]
 
 @pytest.mark.parametrize("o,command,tool", CHOICES, ids=[f"{o.name}:{c}:{t}" for o, c, t in CHOICES])
 def test_same_allowed_values_in_the_same_order(o, command, tool):
-    action = ACTIONS[command, o.flag]
-    alg = _tool(tool)
-    param = alg.parameterDefinition(o.qgis)
+    action, alg, param = _both(o, command, tool)
     assert len(param.options()) == len(action.choices)
     for i, cli_choice in enumerate(action.choices):
         assert o.cli_value(_read(alg, o, {o.qgis: i})) == cli_choice
