@@ -316,10 +316,11 @@ _OPTION_LIST = (
          label="Units below the surface (comma-separated; other units are ignored)", commands=_RUN,
          tools=_SURFACE_TOOLS),
     # ---- stated errors, confidence and local attitudes
-    _opt("dem_sigma_m", float, "vertical standard error of DEM elevations (picks or points); give your DEM's, e.g. "
-         "0.2 for lidar, or 0 when it is unknown (the bootstrap of the points alone then gives the confidence). "
-         "With --contact-sigma and --contour-sigma it sets the model choice's tolerance, the misfit check's "
-         "threshold and the confidence intervals", default=2.0, unit="m", minimum=0.0, maximum=MAX_SIGMA_M,
+    _opt("dem_sigma_m", float, "vertical standard error of DEM elevations (picks or points); the default is a "
+         "typical stated accuracy of 5-25 m national DEMs: give your DEM's, e.g. 0.2 for lidar, or 0 when it is "
+         "unknown (the bootstrap of the points alone then gives the confidence). In run, with --contact-sigma and "
+         "--contour-sigma, it also sets the model choice's tolerance, the misfit check's threshold and the "
+         "confidence intervals", default=2.0, unit="m", minimum=0.0, maximum=MAX_SIGMA_M,
          basis=_DEM_BASIS + "; the same in run, attitude and every QGIS tool, so the same picks get the same "
                "confidence everywhere",
          flag="--dem-sigma", metavar="METRES", qgis="DEM_SIGMA", label="Vertical standard error of DEM elevations "

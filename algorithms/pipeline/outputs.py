@@ -101,6 +101,36 @@ def contact_misfit_layer(segments: dict) -> LayerOut:
     return vocabulary_layer(V.CONTACT_MISFIT, segments["geoms"], values)
 
 
+def trace_misfit_layer(vertices, distance_m) -> LayerOut:
+    """The ``trace_misfit`` layer: contact vertices on the DEM with their distance to the predicted
+    trace (``vertices`` and ``vertex_distance`` of :func:`strikeline.pipeline.depth_trace_misfit`)."""
+    vxy = np.asarray(vertices, dtype=float).reshape(-1, 2)
+    return vocabulary_layer(V.TRACE_MISFIT, shapely.points(vxy) if len(vxy) else np.empty(0, dtype=object),
+                            {"distance_m": np.asarray(distance_m, dtype=float)})
+
+
+def plane_attitudes_layer(planes) -> LayerOut:
+    """The ``plane_attitudes`` layer: one PointZ per plane of
+    :func:`strikeline.pipeline.planes.point_planes` (all points first, group ``''``, then each
+    group) at its points' centroid, with the values of its attitude that the layer's fields name
+    (null where a value is undefined, e.g. no dip direction for a horizontal plane)."""
+    rows = [("", planes.plane, planes.location)]
+    rows += [(g, att, planes.group_locations[g]) for g, att in planes.groups.items()]
+    cols = {}
+    for spec in V.PLANE_ATTITUDES.fields:
+        vals = [g if spec.name == "group" else att.get(spec.name) for g, att, _ in rows]
+        if spec.type == "real":
+            cols[spec.name] = np.array([np.nan if v is None else float(v) for v in vals], dtype=float)
+        elif spec.type == "integer":
+            cols[spec.name] = np.array([0 if v is None else int(v) for v in vals], dtype=np.int64)
+        else:
+            arr = np.empty(len(vals), dtype=object)
+            arr[:] = vals
+            cols[spec.name] = arr
+    pts = np.array([where for _, _, where in rows], dtype=float).reshape(-1, 3)
+    return vocabulary_layer(V.PLANE_ATTITUDES, shapely.points(pts), cols)
+
+
 def result_rasters(r: Results) -> list[tuple[str, np.ndarray]]:
     """The grids of a run as ``(file name, array)``, in the order they are written."""
     out = [(V.SURFACE.file, r.surface), (V.DIP.file, r.dip_deg), (V.DIP_DIRECTION.file, r.dip_direction_deg)]
