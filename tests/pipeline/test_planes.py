@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+import shapely
 
 from strikeline.pipeline.planes import group_labels, planes_by_group, point_planes
 
@@ -141,3 +142,19 @@ def test_local_attitudes_of_points_on_one_plane():
 
     with pytest.raises(InputError, match=r"^picks layer 'p': window_m must be a positive number"):
         point_local_attitudes(xyz, what="picks layer 'p'", window_m=-1.0)
+
+
+def test_plane_attitudes_layer_one_point_per_plane_at_its_centroid():
+    from strikeline.pipeline.outputs import plane_attitudes_layer
+
+    xyz, labels = two_blocks()
+    pp = point_planes(xyz, crs_wkt=UTM31_WKT, labels=labels, resamples=20)
+    layer = plane_attitudes_layer(pp)
+    assert layer.fields["group"].tolist() == ["", *sorted(PLANES)]
+    pts = shapely.get_coordinates(layer.geoms, include_z=True)
+    for k, name in enumerate(sorted(PLANES), start=1):
+        # Source: numpy mean - a TLS plane passes through its points' centroid (Fernandez 2005).
+        np.testing.assert_allclose(pts[k], xyz[labels == name].mean(axis=0), rtol=0, atol=1e-6)
+        # Source: the plane's own formula (plane_z), as in test_each_group_recovers_its_own_plane.
+        assert layer.fields["dip_deg"][k] == pytest.approx(PLANES[name][0], abs=EXACT_TOL_DEG)
+    assert layer.fields["n_picks"].dtype == np.int64

@@ -125,3 +125,12 @@ def test_forecast_mask_marks_cells_beyond_the_reach_of_the_data():
     far = (d > model.reach_m).reshape(GRID.shape)
     near = (d < model.reach_m * (1 - 1e-9)).reshape(GRID.shape)
     assert mask[far].min() == 1.0 and mask[near].max() == 0.0
+
+
+def test_trace_misfit_layer():
+    from strikeline.pipeline.outputs import trace_misfit_layer
+
+    layer = trace_misfit_layer(np.array([[1.0, 2.0], [3.0, 4.0]]), [0.5, 7.0])
+    np.testing.assert_array_equal(shapely.get_coordinates(layer.geoms), [[1, 2], [3, 4]])
+    assert layer.fields["distance_m"].tolist() == [0.5, 7.0] and layer.name == "trace_misfit"
+    assert len(trace_misfit_layer(np.empty((0, 2)), []).geoms) == 0
