@@ -118,14 +118,7 @@ def fold_units_gpkg(tmp_path_factory) -> Path:
 
 
 @pytest.fixture(scope="session")
-def fold_spline_run(tmp_path_factory) -> SheetRun:
-    """``strikeline run --model spline`` on the fold sheet without its unit polygons."""
-    return _shared_run(tmp_path_factory, "fold_spline", "run", "--contacts", FOLD / "contacts.gpkg",
-                       "--dem", FOLD / "dem.tif", "--model", "spline")
-
-
-@pytest.fixture(scope="session")
 def fold_units_run(tmp_path_factory, fold_units_gpkg) -> SheetRun:
     """``strikeline run --model spline`` on the fold sheet bounded by its unit polygons."""
-    return _shared_run(tmp_path_factory, "fold_units", "run", "--contacts", FOLD / "contacts.gpkg",
+    return _shared_run(tmp_path_factory, "fold_units_run", "run", "--contacts", FOLD / "contacts.gpkg",
                        "--dem", FOLD / "dem.tif", "--model", "spline", "--map-units", fold_units_gpkg, *UNIT_OPTS)

@@ -142,13 +142,9 @@ def test_module_prints_the_reference():
 
 # --------------------------------------------------------------------------- a demo run
 @pytest.fixture(scope="module")
-def demo_results(tmp_path_factory):
-    from strikeline.cli.demo import demo_options
-    from strikeline.pipeline import run
-
-    out = tmp_path_factory.mktemp("vocabulary") / "demo"
-    run(demo_options(out))
-    return out
+def demo_results(demo_command_run):
+    """The output folder of the session's ``strikeline demo`` (conftest)."""
+    return demo_command_run.out
 
 
 def test_demo_summary_uses_exactly_the_vocabulary(demo_results):

@@ -5,8 +5,8 @@ The unit polygons are made from the fold sheet's analytic truth (test_data/fold/
 ``helpers.write_fold_units``: where the ground is above the true surface the upper unit crops out,
 elsewhere the lower one; GDAL's polygoniser (gdal.Polygonize, GDAL 3.x) turns the cells into
 polygons. A block of "superficial cover" is laid over the south-west corner and must be ignored.
-The runs with and without the units are the session's (conftest ``fold_spline_run``,
-``fold_units_run``).
+The runs with and without the units are the session's (conftest ``fold_run``, where auto chooses
+the spline, and ``fold_units_run``, the spline bounded by the units).
 """
 import json
 
@@ -23,14 +23,17 @@ def _run(out, *extra):
 
 
 @pytest.fixture(scope="module")
-def runs(fold_spline_run, fold_units_run):
-    return fold_spline_run.out, fold_units_run.out, fold_units_run.proc
+def runs(fold_run, fold_units_run):
+    # the free model is the session's default run on the fold sheet: auto chooses the spline there
+    # (tests/pipeline/test_run_fold.py), the same spline as --model spline writes
+    assert json.loads((fold_run.out / "summary.json").read_text())["model"]["chosen"] == "spline"
+    return fold_run.out, fold_units_run.out, fold_units_run.proc
 
 
 def test_summary_reports_the_constraints_and_what_still_breaks_them(runs):
     _, out, proc = runs
     s = json.loads((out / "summary.json").read_text())["map_units"]
-    # Source: the unit polygons written by tests/unit_polygons.py from the fold sheet's analytic
+    # Source: the unit polygons written by helpers.write_fold_units from the fold sheet's analytic
     # truth (test_data/fold/truth.json) -- the upper unit Cawl, the lower Brenlow, cover Alluvium
     assert s["units_above"] == ["Cawl"] and s["units_below"] == ["Brenlow"]
     assert s["units_ignored"] == ["Alluvium"]
