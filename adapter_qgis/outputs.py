@@ -17,10 +17,13 @@ from qgis.core import (
     QgsFields,
     QgsGeometry,
     QgsProcessingException,
+    QgsProcessingOutputNumber,
+    QgsProcessingOutputString,
     QgsWkbTypes,
 )
 from qgis.PyQt.QtCore import QVariant
 
+from strikeline import vocabulary as V
 from strikeline.io.raster import write_geotiff
 from strikeline.io.vector import LayerOut
 
@@ -103,3 +106,15 @@ def write_raster(alg, parameters, name: str, context, array, grid) -> str | None
         return None
     write_geotiff(path, array, grid)
     return path
+
+
+def add_outputs(alg, labels: dict) -> None:
+    """Declare the numbers and strings a tool returns: ``{name: label}``, every name one of
+    :data:`strikeline.vocabulary.QGIS_OUTPUTS` (a text output becomes a string, the rest numbers)."""
+    specs = {n.name: n for n in V.QGIS_OUTPUTS}
+    for name, label in labels.items():
+        spec = specs.get(name)
+        if spec is None:
+            raise KeyError(f"QGIS output '{name}' is not in strikeline.vocabulary.QGIS_OUTPUTS; add it there")
+        kind = QgsProcessingOutputString if spec.type == "text" else QgsProcessingOutputNumber
+        alg.addOutput(kind(name, alg.tr(label)))

@@ -96,7 +96,7 @@ def style_surface(layer) -> None:
     layer.triggerRepaint()
 
 
-def _contour_labels(field: str = "elevation") -> QgsVectorLayerSimpleLabeling:
+def _contour_labels(field: str = "elevation_m") -> QgsVectorLayerSimpleLabeling:
     s = QgsPalLayerSettings()
     s.fieldName = f'round("{field}")'
     s.isExpression = True
@@ -138,7 +138,7 @@ def style_structure_contours(layer) -> None:
         layer.setRenderer(QgsRuleBasedRenderer(root))
     else:
         layer.setRenderer(QgsSingleSymbolRenderer(contour_symbol()))
-    layer.setLabeling(_contour_labels("elevation"))
+    layer.setLabeling(_contour_labels("elevation_m"))
     layer.setLabelsEnabled(True)
     layer.triggerRepaint()
 
@@ -217,13 +217,11 @@ def style_attitude(layer) -> None:
 
 def style_local_attitudes(layer) -> None:
     """A strike line rotated to the local strike (RHR), labelled with the dip; grey where the
-    window's quality is weak, nothing where it is undetermined (no attitude). Works on the tool's
-    layer (``strike_rhr_deg``, ``dip_deg``) and on ``strikeline run``'s (``strike_rhr``, ``dip``)."""
+    window's quality is weak, nothing where it is undetermined (no attitude); the ``attitudes``
+    layer of the tool and of ``strikeline run`` (one field list)."""
     from qgis.core import QgsProperty, QgsSymbolLayer
 
-    names = layer.fields().names()
-    strike = "strike_rhr_deg" if "strike_rhr_deg" in names else "strike_rhr"
-    dip = "dip_deg" if "dip_deg" in names else "dip"
+    strike, dip = "strike_rhr_deg", "dip_deg"
     root = QgsRuleBasedRenderer.Rule(None)
     for expr, colour, label in (('"quality" = \'good\'', "#1b1b1b", "good"),
                                 ('"quality" = \'weak\'', "#8a8a8a", "weak")):

@@ -1,11 +1,8 @@
-"""Output tables shared by several tools (the same layers the command line writes)."""
+"""Output tables shared by several tools: the layers the command line writes, built by the same
+library functions, so a single-step tool and the whole chain give a layer the same fields."""
 from __future__ import annotations
 
-import numpy as np
-import shapely
-from qgis.core import QgsWkbTypes
-
-from strikeline.pipeline import picks_layer
+from strikeline.pipeline import contours_layer, picks_layer, trace_layer
 
 from ..outputs import Table
 
@@ -16,25 +13,12 @@ def picks_table(picks) -> Table:
 
 
 def contours_table(geoms, elevations_m, below_ground=None, extrapolated=None) -> Table:
-    """Structure contours: LineStringZ at their elevation, field ``elevation`` (the layer of
-    ``strikeline run``), and the part flags ``extrapolated`` (beyond the reach of the data: a
-    forecast) / ``below_ground`` when they are known."""
-    geoms = np.asarray(geoms, dtype=object)
-    elev = np.asarray(elevations_m, dtype=float)
-    if len(geoms):
-        geoms = shapely.force_3d(geoms, elev)
-    fields = {"elevation": elev}
-    if below_ground is not None:
-        fields["below_ground"] = np.asarray(below_ground, dtype=bool)
-    if extrapolated is not None:
-        fields["extrapolated"] = np.asarray(extrapolated, dtype=bool)
-    return Table(geoms, fields, QgsWkbTypes.LineStringZ)
+    """The ``structure_contours`` layer: LineStringZ with ``elevation_m``, and the part flags
+    ``extrapolated`` (beyond the reach of the data: a forecast) / ``below_ground`` when known."""
+    return Table.of_layer(contours_layer(geoms, elevations_m, extrapolated=extrapolated,
+                                         below_ground=below_ground))
 
 
 def trace_table(geoms, extrapolated=None) -> Table:
-    """The predicted outcrop trace: lines, with ``extrapolated`` (as ``strikeline run``) when known."""
-    geoms = np.asarray(geoms, dtype=object)
-    fields = {}
-    if extrapolated is not None:
-        fields["extrapolated"] = np.asarray(extrapolated, dtype=bool)
-    return Table(geoms, fields, QgsWkbTypes.LineString)
+    """The ``predicted_trace`` layer: lines, with ``extrapolated`` (as ``strikeline run``) when known."""
+    return Table.of_layer(trace_layer(geoms, extrapolated=extrapolated))

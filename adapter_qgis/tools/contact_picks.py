@@ -3,12 +3,13 @@ from __future__ import annotations
 
 from qgis.core import QgsProcessing, QgsProcessingParameterFeatureSink
 
+from strikeline import vocabulary as V
 from strikeline.pipeline import collect_picks
 
 from ..base import REF_PRESS, REF_STR, StrikelineAlgorithm
 from ..inputs import add_contact_and_topography, read_contact_inputs
 from ..layers import qgis_crs
-from ..outputs import write_sink
+from ..outputs import add_outputs, write_sink
 from ..styles import attach_style
 from .common import picks_table
 
@@ -31,12 +32,14 @@ class ContactPicks(StrikelineAlgorithm):
         "R-tree, and intersected exactly (GEOS); touching and tangent contacts give one pick; "
         "picks of one contact at one elevation closer than 1 mm are merged.")
     REFERENCES = (REF_PRESS, REF_STR)
-    OUTPUT = "PICKS"
+    OUTPUT = V.PICKS.name
 
     def initAlgorithm(self, config=None):  # noqa: N802
         add_contact_and_topography(self)
         self.addParameter(QgsProcessingParameterFeatureSink(
             self.OUTPUT, self.tr("Contact picks"), QgsProcessing.TypeVectorPoint))
+        add_outputs(self, {"n_picks": "Picks", "n_picks_dem": "Picks from the DEM",
+                           "n_picks_contours": "Picks from contour lines"})
 
     def process(self, parameters, context, steps):
         inputs, opts = read_contact_inputs(self, parameters, context, steps)
@@ -49,5 +52,5 @@ class ContactPicks(StrikelineAlgorithm):
         dest = write_sink(self, parameters, self.OUTPUT, context, picks_table(picks),
                           qgis_crs(inputs.crs_wkt))
         attach_style(context, dest, "picks")
-        return {self.OUTPUT: dest, "N_PICKS": len(picks), "N_DEM": counts["dem"],
-                "N_CONTOURS": counts["contours"]}
+        return {self.OUTPUT: dest, "n_picks": len(picks), "n_picks_dem": counts["dem"],
+                "n_picks_contours": counts["contours"]}

@@ -1,25 +1,22 @@
 """Tool: depth of the surface below ground, its predicted outcrop trace, and the trace misfit."""
 from __future__ import annotations
 
-import numpy as np
-import shapely
 from qgis.core import (
     QgsProcessing,
-    QgsProcessingOutputNumber,
     QgsProcessingParameterFeatureSink,
     QgsProcessingParameterFeatureSource,
     QgsProcessingParameterRasterDestination,
     QgsProcessingParameterRasterLayer,
-    QgsWkbTypes,
 )
 
-from strikeline.pipeline import depth_trace_misfit
+from strikeline import vocabulary as V
+from strikeline.pipeline import contact_misfit_layer, depth_trace_misfit, trace_misfit_layer
 from strikeline.pipeline.rasters import raster_flag, require_same_grid
 
 from ..base import REF_GDAL_CONTOUR, REF_PRESS, StrikelineAlgorithm
 from ..inputs import read_dem, read_layer, to_dem_crs
 from ..layers import qgis_crs
-from ..outputs import Table, write_raster, write_sink
+from ..outputs import Table, add_outputs, write_raster, write_sink
 from ..params import option, parameter
 from ..styles import attach_style
 from .common import trace_table
@@ -46,10 +43,10 @@ class DepthTrace(StrikelineAlgorithm):
     SURFACE = "SURFACE"
     DEM = "DEM"
     CONTACTS = "CONTACTS"
-    DEPTH = "DEPTH"
-    TRACE = "PREDICTED_TRACE"
-    MISFIT = "MISFIT"
-    SEGMENTS = "CONTACT_MISFIT"
+    DEPTH = V.DEPTH.name
+    TRACE = V.PREDICTED_TRACE.name
+    MISFIT = V.TRACE_MISFIT.name
+    SEGMENTS = V.CONTACT_MISFIT.name
     FORECAST_MASK = "FORECAST_MASK"
     MISFIT_FLAG = option("misfit_flag_m").qgis
 
@@ -73,9 +70,9 @@ class DepthTrace(StrikelineAlgorithm):
         self.addParameter(QgsProcessingParameterFeatureSink(
             self.SEGMENTS, self.tr("Contact segments and their misfit"), QgsProcessing.TypeVectorLine,
             optional=True, createByDefault=True))
-        for key, label in (("MISFIT_MEDIAN_M", "Median misfit (m)"), ("MISFIT_P90_M", "90th percentile misfit (m)"),
-                           ("MISFIT_N", "Contact vertices measured")):
-            self.addOutput(QgsProcessingOutputNumber(key, self.tr(label)))
+        add_outputs(self, {"trace_misfit_median_m": "Median misfit (m)",
+                           "trace_misfit_p90_m": "90th percentile misfit (m)",
+                           "trace_misfit_n_vertices": "Contact vertices measured"})
 
     def process(self, parameters, context, steps):
         dem, dem_grid, dpath = read_dem(self, parameters, self.DEM, context, steps, label="DEM")
@@ -96,17 +93,18 @@ class DepthTrace(StrikelineAlgorithm):
         res = depth_trace_misfit(dem, dem_grid, surface, contacts, extrapolated_fn=extrapolated_fn, flag_m=flag_m)
         steps.check("depth and trace")
         misfit = res["misfit"]
-        out = {"MISFIT_MEDIAN_M": None, "MISFIT_P90_M": None, "MISFIT_N": 0}
-        if misfit is not None and misfit.get("median") is not None:
-            out = {"MISFIT_MEDIAN_M": misfit["median"], "MISFIT_P90_M": misfit["p90"],
-                   "MISFIT_N": misfit["n_vertices"]}
-            steps.log(f"trace misfit: median {misfit['median']:.1f} m, 90th percentile "
-                      f"{misfit['p90']:.1f} m over {misfit['n_vertices']} contact vertices")
+        out = {"trace_misfit_median_m": None, "trace_misfit_p90_m": None, "trace_misfit_n_vertices": 0}
+        if misfit is not None and misfit.get("median_m") is not None:
+            out = {"trace_misfit_median_m": misfit["median_m"], "trace_misfit_p90_m": misfit["p90_m"],
+                   "trace_misfit_n_vertices": misfit["n_vertices"]}
+            steps.log(f"trace misfit: median {misfit['median_m']:.1f} m, 90th percentile "
+                      f"{misfit['p90_m']:.1f} m over {misfit['n_vertices']} contact vertices")
         elif contacts is not None:
             steps.warn(f"trace misfit not computed: {misfit.get('note', 'no predicted trace')}")
         seg = res["segments"]
-        if seg is not None and int(np.sum(seg["flagged"])):
-            steps.warn(f"{int(np.sum(seg['flagged']))} of {len(seg['geoms'])} contact segments lie farther "
+        n_flagged = 0 if seg is None else sum(bool(f) for f in seg["flagged"])
+        if n_flagged:
+            steps.warn(f"{n_flagged} of {len(seg['geoms'])} contact segments lie farther "
                        "from the predicted trace than the flag distance: check the map or the model there")
         crs = qgis_crs(dem_grid.crs_wkt)
         out_grid = dem_grid.with_nodata(None)
@@ -116,13 +114,10 @@ class DepthTrace(StrikelineAlgorithm):
                                          if extrapolated_fn is not None else None), crs)
         d_misfit = d_seg = None
         if contacts is not None:
-            vxy = res["vertices"]
-            table = Table(shapely.points(vxy) if len(vxy) else np.empty(0, object),
-                          {"distance_m": np.asarray(res["vertex_distance"], dtype=float)}, QgsWkbTypes.Point)
-            d_misfit = write_sink(self, parameters, self.MISFIT, context, table, crs)
-            d_seg = write_sink(self, parameters, self.SEGMENTS, context,
-                               Table(seg["geoms"], {"contact_id": seg["contact_id"], "misfit_m": seg["misfit_m"],
-                                                    "flagged": seg["flagged"]}, QgsWkbTypes.LineString), crs)
+            vertices = trace_misfit_layer(res["vertices"], res["vertex_distance"])
+            d_misfit = write_sink(self, parameters, self.MISFIT, context, Table.of_layer(vertices), crs)
+            d_seg = write_sink(self, parameters, self.SEGMENTS, context, Table.of_layer(contact_misfit_layer(seg)),
+                               crs)
             attach_style(context, d_seg, "contact_misfit")
         attach_style(context, p_depth, "depth")
         attach_style(context, d_trace, "trace")

@@ -3,7 +3,8 @@ from __future__ import annotations
 
 from qgis.core import QgsProcessingParameterRasterDestination, QgsProcessingParameterRasterLayer
 
-from strikeline.maps.dipgrids import dip_grids
+from strikeline import vocabulary as V
+from strikeline.pipeline.rasters import surface_dip_grids
 
 from ..base import REF_ZT, StrikelineAlgorithm
 from ..inputs import read_dem
@@ -22,8 +23,8 @@ class DipGrids(StrikelineAlgorithm):
               "nodata); dip = atan|∇z|, dip direction = azimuth of −∇z.")
     REFERENCES = (REF_ZT,)
     SURFACE = "SURFACE"
-    DIP = "DIP"
-    DIP_DIRECTION = "DIP_DIRECTION"
+    DIP = V.DIP.name
+    DIP_DIRECTION = V.DIP_DIRECTION.name
 
     def initAlgorithm(self, config=None):  # noqa: N802
         self.addParameter(QgsProcessingParameterRasterLayer(
@@ -35,8 +36,8 @@ class DipGrids(StrikelineAlgorithm):
     def process(self, parameters, context, steps):
         surface, grid, _ = read_dem(self, parameters, self.SURFACE, context, steps, label="surface")
         steps.feedback.setProgress(20)
-        dip, dipdir = dip_grids(surface, grid.with_nodata(None), progress=steps.part(0.2, 0.9),
-                                is_cancelled=steps.is_cancelled)
+        dip, dipdir = surface_dip_grids(surface, grid, progress=steps.part(0.2, 0.9),
+                                        is_cancelled=steps.is_cancelled)
         steps.check("dip grids")
         out_grid = grid.with_nodata(None)
         p_dip = write_raster(self, parameters, self.DIP, context, dip, out_grid)

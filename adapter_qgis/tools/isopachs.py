@@ -3,20 +3,20 @@ from __future__ import annotations
 
 from qgis.core import (
     QgsProcessing,
-    QgsProcessingOutputNumber,
     QgsProcessingParameterFeatureSink,
     QgsProcessingParameterRasterDestination,
     QgsProcessingParameterRasterLayer,
-    QgsWkbTypes,
 )
 
+from strikeline import vocabulary as V
+from strikeline.pipeline import vocabulary_layer
 from strikeline.pipeline.rasters import require_same_grid
 from strikeline.pipeline.thickness import isopachs
 
 from ..base import REF_GDAL_CONTOUR, REF_ZT, StrikelineAlgorithm
 from ..inputs import read_dem
 from ..layers import qgis_crs
-from ..outputs import Table, write_raster, write_sink
+from ..outputs import Table, add_outputs, write_raster, write_sink
 from ..params import option, parameter
 from ..styles import attach_style
 from .unit_thickness import REF_RAGAN
@@ -39,9 +39,9 @@ class Isopachs(StrikelineAlgorithm):
     TOP = "TOP"
     BASE = "BASE"
     INTERVAL = option("isopach_interval_m").qgis
-    VERTICAL = "VERTICAL_THICKNESS"
-    TRUE = "TRUE_THICKNESS"
-    LINES = "ISOPACHS"
+    VERTICAL = V.VERTICAL_THICKNESS.name
+    TRUE = V.TRUE_THICKNESS.name
+    LINES = V.ISOPACHS.name
 
     def initAlgorithm(self, config=None):  # noqa: N802
         self.addParameter(QgsProcessingParameterRasterLayer(self.TOP, self.tr("Top surface of the unit")))
@@ -51,9 +51,8 @@ class Isopachs(StrikelineAlgorithm):
         self.addParameter(QgsProcessingParameterRasterDestination(self.TRUE, self.tr("True thickness")))
         self.addParameter(QgsProcessingParameterFeatureSink(
             self.LINES, self.tr("Isopachs (true thickness)"), QgsProcessing.TypeVectorLine, optional=True))
-        for key, label in (("MEDIAN_TRUE_M", "Median true thickness (m)"),
-                           ("N_NEGATIVE", "Cells where the top lies below the base")):
-            self.addOutput(QgsProcessingOutputNumber(key, self.tr(label)))
+        add_outputs(self, {"true_thickness_median_m": "Median true thickness (m)",
+                           "n_negative_cells": "Cells where the top lies below the base"})
 
     def process(self, parameters, context, steps):
         top, tgrid, tpath = read_dem(self, parameters, self.TOP, context, steps, label="top surface")
@@ -70,10 +69,10 @@ class Isopachs(StrikelineAlgorithm):
         out = {self.VERTICAL: write_raster(self, parameters, self.VERTICAL, context, iso.vertical_m, grid),
                self.TRUE: write_raster(self, parameters, self.TRUE, context, iso.true_m, grid)}
         if interval > 0:
-            out[self.LINES] = write_sink(self, parameters, self.LINES, context,
-                                         Table(iso.lines, {"thickness_m": iso.levels_m}, QgsWkbTypes.LineString),
+            lines = vocabulary_layer(V.ISOPACHS, iso.lines, {"true_thickness_m": iso.levels_m})
+            out[self.LINES] = write_sink(self, parameters, self.LINES, context, Table.of_layer(lines),
                                          qgis_crs(bgrid.crs_wkt))
         for key in (self.VERTICAL, self.TRUE):
             attach_style(context, out[key], "thickness")
-        out.update({"MEDIAN_TRUE_M": iso.median_true_m, "N_NEGATIVE": iso.n_negative})
+        out.update({"true_thickness_median_m": iso.median_true_m, "n_negative_cells": iso.n_negative})
         return out

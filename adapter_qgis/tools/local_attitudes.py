@@ -1,17 +1,14 @@
 """Tool: local attitudes in moving windows along the contacts and across the picks."""
 from __future__ import annotations
 
-import numpy as np
-import shapely
 from qgis.core import (
     QgsProcessing,
-    QgsProcessingOutputNumber,
     QgsProcessingParameterFeatureSink,
-    QgsWkbTypes,
 )
-from qgis.PyQt.QtCore import QVariant
 
+from strikeline import vocabulary as V
 from strikeline.errors import InputError
+from strikeline.pipeline import attitudes_layer
 from strikeline.attitude import CONFIDENCE_METHODS
 from strikeline.pipeline.planes import point_local_attitudes
 from strikeline.pipeline.options import option
@@ -19,8 +16,7 @@ from strikeline.pipeline.options import option
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
 from ..inputs import PICKS, add_picks, read_picks
 from ..params import add_parameters, parameter
-from ..params import add_parameters, parameter
-from ..outputs import Table, write_sink
+from ..outputs import Table, add_outputs, write_sink
 from ..styles import attach_style
 from .plane_attitude import REF_EFRON, REF_WOODCOCK
 
@@ -53,7 +49,7 @@ class LocalAttitudes(StrikelineAlgorithm):
     RESAMPLES = option("window_resamples").qgis
     SIGMA_Z = option("dem_sigma_m").qgis
     SEED = option("seed").qgis
-    OUTPUT = "LOCAL_ATTITUDES"
+    OUTPUT = V.ATTITUDES.name
     DEFAULT_CONTACT_FIELD = option("contact_field").default
 
     def initAlgorithm(self, config=None):  # noqa: N802
@@ -65,9 +61,8 @@ class LocalAttitudes(StrikelineAlgorithm):
         add_parameters(self, "confidence_method", "window_resamples", "dem_sigma_m", "seed")
         self.addParameter(QgsProcessingParameterFeatureSink(
             self.OUTPUT, self.tr("Local attitudes"), QgsProcessing.TypeVectorPoint))
-        self.addOutput(QgsProcessingOutputNumber("WINDOW_M", self.tr("Window radius used (m)")))
-        self.addOutput(QgsProcessingOutputNumber("N_WINDOWS", self.tr("Windows")))
-        self.addOutput(QgsProcessingOutputNumber("N_DETERMINED", self.tr("Windows with an attitude")))
+        add_outputs(self, {"window_m": "Window radius used (m)", "n_windows": "Windows",
+                           "n_windows_determined": "Windows with an attitude"})
 
     def process(self, parameters, context, steps):
         source = self.parameterAsSource(parameters, PICKS, context)
@@ -100,18 +95,9 @@ class LocalAttitudes(StrikelineAlgorithm):
                   f"(good {counts['good']}, weak {counts['weak']}, undetermined {counts['undetermined']})")
         if len(la) and counts["undetermined"] == len(la):
             steps.warn("every window is undetermined: use a larger window, or picks with more relief")
-        cid_col = np.empty(len(la), dtype=object)
-        cid_col[:] = [None if c is None else int(c) for c in la.contact_id]
-        table = Table(shapely.points(np.column_stack([la.x, la.y])) if len(la) else np.empty(0, object),
-                      {"elevation_m": la.elevation_m, "dip_deg": la.dip_deg,
-                       "dip_direction_deg": la.dip_direction_deg, "strike_rhr_deg": la.strike_rhr_deg,
-                       "dip_ci95_deg": la.dip_ci95_deg, "dip_direction_ci95_deg": la.dip_direction_ci95_deg,
-                       "cone95_deg": la.cone95_deg, "n_picks": la.n_picks.astype(np.int64),
-                       "quality": la.quality.astype(object), "reason_code": la.reason_code.astype(object),
-                       "coplanarity_m": la.coplanarity, "collinearity_k": la.collinearity,
-                       "rms_m": la.rms_m, "contact_id": cid_col, "kind": la.kind.astype(object)},
-                      QgsWkbTypes.Point, types={"contact_id": QVariant.LongLong})
-        dest = write_sink(self, parameters, self.OUTPUT, context, table, source.sourceCrs())
+        # the attitudes layer of strikeline run: same fields, same builder
+        dest = write_sink(self, parameters, self.OUTPUT, context, Table.of_layer(attitudes_layer(la)),
+                          source.sourceCrs())
         attach_style(context, dest, "local_attitudes")
-        return {self.OUTPUT: dest, "WINDOW_M": la.window_m, "N_WINDOWS": len(la),
-                "N_DETERMINED": len(la) - counts["undetermined"]}
+        return {self.OUTPUT: dest, "window_m": la.window_m, "n_windows": len(la),
+                "n_windows_determined": len(la) - counts["undetermined"]}

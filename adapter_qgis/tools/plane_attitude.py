@@ -1,25 +1,20 @@
 """Tool: the best-fit plane through elevation picks: attitude, 95% confidence and quality."""
 from __future__ import annotations
 
-import numpy as np
-import shapely
 from qgis.core import (
     QgsProcessing,
-    QgsProcessingOutputNumber,
-    QgsProcessingOutputString,
     QgsProcessingParameterFeatureSink,
-    QgsWkbTypes,
 )
 
-from strikeline.pipeline.planes import group_labels, point_planes
+from strikeline import vocabulary as V
+from strikeline.pipeline import group_labels, plane_attitudes_layer, point_planes
 from strikeline.pipeline.options import option
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
 from ..inputs import PICKS, add_picks, read_picks
 from ..layers import crs_wkt as wkt_of_crs
 from ..params import add_parameters, parameter
-from ..params import add_parameters, parameter
-from ..outputs import Table, write_sink
+from ..outputs import Table, add_outputs, write_sink
 from ..styles import attach_style
 
 REF_WOODCOCK = ("Woodcock, N. H. (1977). Specification of fabric shapes using an eigenvalue method. "
@@ -30,20 +25,21 @@ REF_JONES = ("Jones, R. R., Pearce, M. A., Jacquemyn, C. & Watson, F. E. (2016).
 REF_EFRON = ("Efron, B. & Tibshirani, R. J. (1993). An Introduction to the Bootstrap. Chapman & "
              "Hall, New York (percentile intervals).")
 
-NUMBERS = (("DIP_DEG", "Dip (°)"), ("DIP_DIRECTION_DEG", "Dip direction (° from grid north)"),
-           ("STRIKE_RHR_DEG", "Strike, right-hand rule (°)"), ("RMS_M", "RMS orthogonal residual (m)"),
-           ("N_PICKS", "Picks used"))
-CONFIDENCE_NUMBERS = (("DIP_DIRECTION_TRUE_DEG", "Dip direction from true north (°)"),
-                      ("DIP_CI95_DEG", "Dip, 95% half-width (°)"),
-                      ("DIP_DIRECTION_CI95_DEG", "Dip direction, 95% half-width (°)"),
-                      ("CONE95_DEG", "95% confidence cone of the pole (°)"),
-                      ("COPLANARITY_M", "Coplanarity M (Woodcock)"),
-                      ("COLLINEARITY_K", "Collinearity K (Woodcock)"))
+#: Numbers of the plane returned as outputs (names: strikeline.vocabulary.QGIS_OUTPUTS, the keys
+#: of strikeline.pipeline.attitude_of's dict): name -> label.
+NUMBERS = {"dip_deg": "Dip (°)", "dip_direction_deg": "Dip direction (° from grid north)",
+           "strike_rhr_deg": "Strike, right-hand rule (°)", "rms_m": "RMS orthogonal residual (m)",
+           "n_picks": "Picks used"}
+CONFIDENCE_NUMBERS = {"dip_direction_true_deg": "Dip direction from true north (°)",
+                      "dip_ci95_deg": "Dip, 95% half-width (°)",
+                      "dip_direction_ci95_deg": "Dip direction, 95% half-width (°)",
+                      "cone95_deg": "95% confidence cone of the pole (°)",
+                      "coplanarity": "Coplanarity M (Woodcock)",
+                      "collinearity": "Collinearity K (Woodcock)"}
 
 
 def add_plane_outputs(alg) -> None:
-    for key, label in NUMBERS:
-        alg.addOutput(QgsProcessingOutputNumber(key, alg.tr(label)))
+    add_outputs(alg, NUMBERS)
 
 
 def report_quality(steps, att: dict, what: str = "plane") -> None:
@@ -54,37 +50,6 @@ def report_quality(steps, att: dict, what: str = "plane") -> None:
         steps.log(line)
     else:
         steps.warn(f"{line}; {att['advice']}" if att.get("advice") else line)
-
-
-#: Output fields: (field, key of strikeline.pipeline.attitude_of's dict, numpy dtype).
-ATTITUDE_FIELDS = (("dip_deg", "dip", float), ("dip_direction_deg", "dip_direction", float),
-                   ("strike_rhr_deg", "strike_rhr", float), ("dip_direction_true_deg", "dip_direction_true", float),
-                   ("meridian_convergence_deg", "meridian_convergence_deg", float), ("rms_m", "rms_m", float),
-                   ("n_picks", "n_picks", np.int64), ("dip_ci95_deg", "dip_ci95", float),
-                   ("dip_direction_ci95_deg", "dip_direction_ci95", float), ("cone95_deg", "cone95", float),
-                   ("confidence_method", "confidence_method", object), ("quality", "quality", object),
-                   ("reason", "reason", object), ("advice", "advice", object),
-                   ("coplanarity_m", "coplanarity_M", float), ("collinearity_k", "collinearity_K", float))
-
-
-def attitude_table(planes: list) -> Table:
-    """One PointZ per plane (at the picks' centroid) with every value of ``attitude_of``."""
-    cols = {}
-    for f, key, dt in ATTITUDE_FIELDS:
-        vals = [p[1].get(key) for p in planes]
-        if dt is float:
-            cols[f] = np.array([np.nan if v is None else float(v) for v in vals])
-        elif dt is np.int64:
-            cols[f] = np.array([0 if v is None else int(v) for v in vals], dtype=np.int64)
-        else:
-            arr = np.empty(len(vals), dtype=object)
-            arr[:] = vals
-            cols[f] = arr
-    group = np.empty(len(planes), dtype=object)
-    group[:] = [p[0] for p in planes]
-    cols["group"] = group
-    pts = np.array([p[2] for p in planes], dtype=float).reshape(-1, 3)
-    return Table(shapely.points(pts), cols, QgsWkbTypes.PointZ)
 
 
 class PlaneAttitude(StrikelineAlgorithm):
@@ -107,7 +72,7 @@ class PlaneAttitude(StrikelineAlgorithm):
         "vertical error). Quality: Woodcock's eigenvalue shape measures (coplanarity M, collinearity "
         "K) with Fernández's limits for a reliable plane, the picks' relief and the dip's half-width.")
     REFERENCES = (REF_FERNANDEZ, REF_WOODCOCK, REF_JONES, REF_EFRON)
-    OUTPUT = "ATTITUDE"
+    OUTPUT = V.PLANE_ATTITUDES.name
     GROUP_BY = option("group_by").qgis
     RESAMPLES = option("resamples").qgis
     SIGMA_Z = option("dem_sigma_m").qgis
@@ -120,10 +85,8 @@ class PlaneAttitude(StrikelineAlgorithm):
         self.addParameter(QgsProcessingParameterFeatureSink(
             self.OUTPUT, self.tr("Plane attitude"), QgsProcessing.TypeVectorPoint))
         add_plane_outputs(self)
-        for key, label in CONFIDENCE_NUMBERS:
-            self.addOutput(QgsProcessingOutputNumber(key, self.tr(label)))
-        self.addOutput(QgsProcessingOutputString("QUALITY", self.tr("Quality (good, weak, undetermined)")))
-        self.addOutput(QgsProcessingOutputString("QUALITY_REASON", self.tr("Reason for the quality")))
+        add_outputs(self, {**CONFIDENCE_NUMBERS, "quality": "Quality (good, weak, undetermined)",
+                           "reason": "Reason for the quality"})
 
     def process(self, parameters, context, steps):
         group_by = self.parameterAsString(parameters, self.GROUP_BY, context)
@@ -144,29 +107,24 @@ class PlaneAttitude(StrikelineAlgorithm):
         if pp.n_missing:
             steps.warn(f"{pp.n_missing} of {pp.n_points + pp.n_missing} picks have no elevation and are left out")
         whole = pp.plane
-        planes = [("", whole, pp.location)] + [(g, att, pp.group_locations[g]) for g, att in pp.groups.items()]
-        if whole.get("dip") is not None and whole.get("dip_direction") is None:
-            steps.log(f"best-fit plane: dip {whole['dip']:.3f}° ± {whole.get('dip_ci95') or 0:.3f}°, horizontal "
+        if whole.get("dip_deg") is not None and whole.get("dip_direction_deg") is None:
+            steps.log(f"best-fit plane: dip {whole['dip_deg']:.3f}° ± {whole.get('dip_ci95_deg') or 0:.3f}°, horizontal "
                       f"within its 95% confidence: no dip direction or strike; RMS residual {whole['rms_m']:.2f} m "
                       f"from {whole['n_picks']} picks")
-        elif whole.get("dip") is not None:
-            steps.log(f"best-fit plane: dip {whole['dip']:.2f}° toward {whole['dip_direction']:.1f}° "
-                      f"(strike {whole['strike_rhr']:.1f}° RHR; {whole['dip_direction_true']:.1f}° from true "
+        elif whole.get("dip_deg") is not None:
+            steps.log(f"best-fit plane: dip {whole['dip_deg']:.2f}° toward {whole['dip_direction_deg']:.1f}° "
+                      f"(strike {whole['strike_rhr_deg']:.1f}° RHR; {whole['dip_direction_true_deg']:.1f}° from true "
                       f"north), RMS residual {whole['rms_m']:.2f} m from {whole['n_picks']} picks")
-            if whole.get("dip_ci95") is not None:
-                steps.log(f"95% confidence ({whole['confidence_method']}): dip ± {whole['dip_ci95']:.3f}°, "
-                          f"dip direction ± {whole['dip_direction_ci95']:.3f}°, pole cone {whole['cone95']:.3f}°")
+            if whole.get("dip_ci95_deg") is not None:
+                steps.log(f"95% confidence ({whole['confidence_method']}): dip ± {whole['dip_ci95_deg']:.3f}°, "
+                          f"dip direction ± {whole['dip_direction_ci95_deg']:.3f}°, pole cone {whole['cone95_deg']:.3f}°")
         report_quality(steps, whole)
         for g, att in pp.groups.items():
             report_quality(steps, att, f"group {g}")
         steps.check("plane attitude")
-        dest = write_sink(self, parameters, self.OUTPUT, context, attitude_table(planes), source.sourceCrs())
+        dest = write_sink(self, parameters, self.OUTPUT, context, Table.of_layer(plane_attitudes_layer(pp)), source.sourceCrs())
         attach_style(context, dest, "attitude")
-        out = {self.OUTPUT: dest, "QUALITY": whole["quality"], "QUALITY_REASON": whole["reason"]}
-        for key, k in (("DIP_DEG", "dip"), ("DIP_DIRECTION_DEG", "dip_direction"), ("STRIKE_RHR_DEG", "strike_rhr"),
-                       ("RMS_M", "rms_m"), ("N_PICKS", "n_picks"), ("DIP_DIRECTION_TRUE_DEG", "dip_direction_true"),
-                       ("DIP_CI95_DEG", "dip_ci95"), ("DIP_DIRECTION_CI95_DEG", "dip_direction_ci95"),
-                       ("CONE95_DEG", "cone95"), ("COPLANARITY_M", "coplanarity_M"),
-                       ("COLLINEARITY_K", "collinearity_K")):
-            out[key] = whole.get(k)
+        out = {self.OUTPUT: dest}
+        for key in (*NUMBERS, *CONFIDENCE_NUMBERS, "quality", "reason"):
+            out[key] = whole.get(key)
         return out

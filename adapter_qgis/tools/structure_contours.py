@@ -3,18 +3,18 @@ from __future__ import annotations
 
 from qgis.core import (
     QgsProcessing,
-    QgsProcessingOutputNumber,
     QgsProcessingParameterFeatureSink,
     QgsProcessingParameterRasterLayer,
 )
 
+from strikeline import vocabulary as V
 from strikeline.pipeline.rasters import raster_flag, require_same_grid, structure_contours_on_ground
 from strikeline.pipeline.options import option
 
 from ..base import REF_GDAL_CONTOUR, StrikelineAlgorithm
 from ..inputs import read_dem
 from ..layers import qgis_crs
-from ..outputs import write_sink
+from ..outputs import add_outputs, write_sink
 from ..params import parameter, value
 from ..styles import attach_style
 from .common import contours_table
@@ -40,7 +40,7 @@ class StructureContours(StrikelineAlgorithm):
     GROUND = "GROUND"
     FORECAST_MASK = "FORECAST_MASK"
     INTERVAL = option("interval_m").qgis
-    OUTPUT = "STRUCTURE_CONTOURS"
+    OUTPUT = V.STRUCTURE_CONTOURS.name
 
     def initAlgorithm(self, config=None):  # noqa: N802
         self.addParameter(QgsProcessingParameterRasterLayer(
@@ -53,7 +53,7 @@ class StructureContours(StrikelineAlgorithm):
             optional=True))
         self.addParameter(QgsProcessingParameterFeatureSink(
             self.OUTPUT, self.tr("Structure contours"), QgsProcessing.TypeVectorLine))
-        self.addOutput(QgsProcessingOutputNumber("N_LINES", self.tr("Number of lines")))
+        add_outputs(self, {"n_lines": "Number of lines"})
 
     def process(self, parameters, context, steps):
         surface, grid, spath = read_dem(self, parameters, self.SURFACE, context, steps, label="surface")
@@ -79,4 +79,4 @@ class StructureContours(StrikelineAlgorithm):
         dest = write_sink(self, parameters, self.OUTPUT, context, contours_table(geoms, elev, **parts),
                           qgis_crs(grid.crs_wkt))
         attach_style(context, dest, "structure_contours")
-        return {self.OUTPUT: dest, "N_LINES": len(geoms)}
+        return {self.OUTPUT: dest, "n_lines": len(geoms)}

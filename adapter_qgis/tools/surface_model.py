@@ -4,19 +4,17 @@ from __future__ import annotations
 from qgis.core import (
     QgsProcessing,
     QgsProcessingParameterFeatureSink,
-    QgsProcessingOutputNumber,
-    QgsProcessingOutputString,
     QgsProcessingParameterExtent,
     QgsProcessingParameterRasterDestination,
     QgsProcessingParameterRasterLayer,
 )
 
+from strikeline import vocabulary as V
 from strikeline.errors import InputError
 from strikeline.io.crs import same_crs
-from strikeline.pipeline.options import option
-from strikeline.pipeline.options import option
 from strikeline.pipeline.points import pick_set_of_points
 from strikeline.pipeline.rasters import forecast_mask, grid_over, points_bounds
+from strikeline.pipeline.options import option
 from strikeline.pipeline import (RunOptions, borehole_points, map_unit_bounds, map_unit_check, map_unit_polygons,
                                  model_surface, orientation_rows, reproject_to, unit_conflicts_layer)
 
@@ -26,8 +24,7 @@ from ..inputs import (CONSTRAINT_LAYERS, MAP_UNIT_LAYERS, MAP_UNITS, PICKS, add_
                       option_names, read_dem, read_layers, read_picks)
 from ..layers import crs_wkt
 from ..layers import qgis_crs
-from ..outputs import Table, write_raster, write_sink
-from ..params import parameter, value
+from ..outputs import Table, add_outputs, write_raster, write_sink
 from ..params import parameter, value
 from ..styles import attach_style
 
@@ -74,10 +71,10 @@ class SurfaceModel(StrikelineAlgorithm):
     EXTENT = "EXTENT"
     CELL = option("cell_m").qgis
     SEED = option("seed").qgis
-    OUTPUT = "SURFACE"
-    STANDARD_ERROR = "STANDARD_ERROR"
-    EXTRAPOLATED = "EXTRAPOLATED"
-    UNIT_CONFLICTS = "UNIT_CONFLICTS"
+    OUTPUT = V.SURFACE.name
+    STANDARD_ERROR = V.UNCERTAINTY.name
+    EXTRAPOLATED = V.FORECAST_MASK.name
+    UNIT_CONFLICTS = V.UNIT_CONFLICTS.name
 
     def initAlgorithm(self, config=None):  # noqa: N802
         add_picks(self)
@@ -100,13 +97,11 @@ class SurfaceModel(StrikelineAlgorithm):
         self.addParameter(QgsProcessingParameterFeatureSink(
             self.UNIT_CONFLICTS, self.tr("Where the surface still breaks the map units (with map units)"),
             QgsProcessing.TypeVectorPoint, optional=True, createByDefault=False))
-        self.addOutput(QgsProcessingOutputNumber("UNIT_CHECK_VIOLATED", self.tr(
-            "Map-unit check points the surface still breaks (with map units)")))
-        self.addOutput(QgsProcessingOutputString("MODEL", self.tr("Model used")))
-        for key, label in (("CV_RMSE_M", "Cross-validation RMSE of the model used (m)"),
-                           ("REACH_M", "Reach of the data (m)"), ("DIP_DEG", "Dip of the (trend) plane (°)"),
-                           ("DIP_DIRECTION_DEG", "Dip direction of the (trend) plane (°)")):
-            self.addOutput(QgsProcessingOutputNumber(key, self.tr(label)))
+        add_outputs(self, {"unit_check_n_violated": "Map-unit check points the surface still breaks (with map units)",
+                           "model_chosen": "Model used",
+                           "cv_rmse_m": "Cross-validation RMSE of the model used (m)",
+                           "reach_m": "Reach of the data (m)", "dip_deg": "Dip of the (trend) plane (°)",
+                           "dip_direction_deg": "Dip direction of the (trend) plane (°)"})
 
     def _grid(self, parameters, context, steps, source, xyz):
         _, ref_grid, _ = read_dem(self, parameters, self.REFERENCE, context, steps, label="reference grid")
@@ -181,8 +176,8 @@ class SurfaceModel(StrikelineAlgorithm):
             ex = forecast_mask(surf, grid)
         steps.feedback.setProgress(90)
         steps.check("surface model")
-        out = {"MODEL": surf.kind, "CV_RMSE_M": rmse, "REACH_M": surf.reach_m, "DIP_DEG": dip,
-               "DIP_DIRECTION_DEG": dipdir}
+        out = {"model_chosen": surf.kind, "cv_rmse_m": rmse, "reach_m": surf.reach_m, "dip_deg": dip,
+               "dip_direction_deg": dipdir}
         out[self.OUTPUT] = write_raster(self, parameters, self.OUTPUT, context, z, grid)
         if se is not None:
             out[self.STANDARD_ERROR] = write_raster(self, parameters, self.STANDARD_ERROR, context, se, grid)
@@ -190,7 +185,7 @@ class SurfaceModel(StrikelineAlgorithm):
             out[self.EXTRAPOLATED] = write_raster(self, parameters, self.EXTRAPOLATED, context, ex, grid)
         attach_style(context, out[self.OUTPUT], "surface")
         if check is not None:
-            out["UNIT_CHECK_VIOLATED"] = check["summary"]["check"]["n_violated"]
+            out["unit_check_n_violated"] = check["summary"]["check"]["n_violated"]
             dest = write_sink(self, parameters, self.UNIT_CONFLICTS, context,
                               Table.of_layer(unit_conflicts_layer(check)), qgis_crs(grid.crs_wkt))
             if dest is not None:

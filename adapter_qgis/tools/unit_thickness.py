@@ -18,6 +18,7 @@ from qgis.core import (
 )
 from qgis.PyQt.QtCore import QVariant
 
+from strikeline import vocabulary as V
 from strikeline.errors import InputError
 from strikeline.maps.thickness import SLOPE_SENSES, WIDTH_KINDS
 from strikeline.pipeline.thickness import thickness_of_boreholes, thickness_of_lines, thickness_of_widths
@@ -26,6 +27,7 @@ from ..base import StrikelineAlgorithm
 from ..params import add_parameters, option, parameter
 from ..inputs import read_dem, to_dem_crs
 from ..layers import read_vector, vector_name
+from ..outputs import add_outputs
 
 REF_RAGAN = ("Ragan, D. M. (2009). Structural Geology: An Introduction to Geometrical Techniques, 4th "
              "ed. Cambridge University Press (thickness and depth; vector methods).")
@@ -50,7 +52,7 @@ class UnitThickness(StrikelineAlgorithm):
         "line's own Z); an outcrop width measured perpendicular to strike, with the ground slope; or "
         "the drilled length of the unit in a straight borehole with its azimuth and plunge. Give the "
         "attitude from Best-fit plane attitude (in a model, its outputs). The output is the input "
-        "layer with the fields thickness_m and vertical_thickness_m.")
+        "layer with the fields true_thickness_m and vertical_thickness_m.")
     METHOD = (
         "Two points and boreholes: the projection of the top-to-base vector (or the hole's intercept) "
         "on the unit normal. Outcrop width: t = w·sin(δ ± σ) for a slope width w on ground sloping σ "
@@ -68,7 +70,7 @@ class UnitThickness(StrikelineAlgorithm):
     LENGTH_FIELD = "LENGTH_FIELD"
     AZIMUTH_FIELD = "AZIMUTH_FIELD"
     PLUNGE_FIELD = "PLUNGE_FIELD"
-    OUTPUT = "OUTPUT"
+    OUTPUT = V.UNIT_THICKNESS.name
 
     def initAlgorithm(self, config=None):  # noqa: N802
         self.addParameter(QgsProcessingParameterEnum(
@@ -92,6 +94,7 @@ class UnitThickness(StrikelineAlgorithm):
             defaultValue=0))
         self.addParameter(parameter(self, "width_kind"))
         self.addParameter(QgsProcessingParameterFeatureSink(self.OUTPUT, self.tr("Thickness")))
+        add_outputs(self, {"n_measurements": "Measurements given a thickness"})
 
     def _field(self, parameters, key, context, name, label, *, required=True):
         f = self.parameterAsString(parameters, key, context)
@@ -144,12 +147,12 @@ class UnitThickness(StrikelineAlgorithm):
                        "end off the DEM); their thickness is left empty")
         steps.log(f"thickness of {res.n_measured} feature(s): median {res.median_m:.2f} m")
         return {self.OUTPUT: self._write(parameters, context, source, lyr.fids, res.true_m, res.vertical_m),
-                "N": res.n_measured}
+                "n_measurements": res.n_measured}
 
     def _write(self, parameters, context, source, fids, t, v):
         fields = QgsFields(source.fields())
-        fields.append(QgsField("thickness_m", QVariant.Double))
-        fields.append(QgsField("vertical_thickness_m", QVariant.Double))
+        for name in V.UNIT_THICKNESS.field_names:  # true_thickness_m, vertical_thickness_m
+            fields.append(QgsField(name, QVariant.Double))
         sink, dest = self.parameterAsSink(parameters, self.OUTPUT, context, fields, source.wkbType(),
                                           source.sourceCrs())
         by_fid = {int(f): (a, b) for f, a, b in zip(fids, t, v)}

@@ -5,14 +5,13 @@ import os
 
 from qgis.core import (
     QgsProcessing,
-    QgsProcessingOutputNumber,
-    QgsProcessingOutputString,
     QgsProcessingParameterFeatureSink,
     QgsProcessingParameterFileDestination,
     QgsProcessingParameterRasterDestination,
 )
 
 from strikeline import pipeline as pl
+from strikeline import vocabulary as V
 from strikeline.io.files import write_json_atomic
 from strikeline.pipeline import compute
 
@@ -22,9 +21,7 @@ from ..inputs import (CONSTRAINT_LAYERS, CONTACTS, MAP_UNIT_LAYERS, add_contact_
                       read_contact_inputs)
 from ..layers import qgis_crs
 from ..params import parameter, values
-from ..params import parameter, values
-from ..params import parameter, values
-from ..outputs import Table, write_raster, write_sink
+from ..outputs import Table, add_outputs, write_raster, write_sink
 from ..styles import attach_style
 from .plane_attitude import NUMBERS, REF_EFRON, REF_WOODCOCK
 from .surface_model import REF_GCV, REF_SPLINE
@@ -35,30 +32,32 @@ CHAIN_LAYERS = {**CONSTRAINT_LAYERS, "top_contacts": (pl.option("top_contacts").
                 **MAP_UNIT_LAYERS}
 
 #: The vector layers of ``pipeline.result_layers``, each written to the output named as the
-#: layer in upper case: output -> (label, layer type, created by default, style).
+#: layer (strikeline.vocabulary.RUN_LAYERS): output -> (label, layer type, created by default, style).
 LAYERS = {
-    "PICKS": ("Contact picks", QgsProcessing.TypeVectorPoint, True, "picks"),
-    "STRUCTURE_CONTOURS": ("Structure contours", QgsProcessing.TypeVectorLine, True, "structure_contours"),
-    "PREDICTED_TRACE": ("Predicted outcrop trace (needs a DEM)", QgsProcessing.TypeVectorLine, True, "trace"),
-    "CONTACT_MISFIT": ("Contact segments and their misfit (needs a DEM)", QgsProcessing.TypeVectorLine, True,
-                       "contact_misfit"),
-    "ATTITUDES": ("Local attitudes", QgsProcessing.TypeVectorPoint, True, "local_attitudes"),
-    "TOP_PICKS": ("Top-contact picks (with top contacts)", QgsProcessing.TypeVectorPoint, False, "picks"),
-    "UNIT_CONFLICTS": ("Where the surface still breaks the map units (with map units)", QgsProcessing.TypeVectorPoint,
-                       False, ""),
+    V.PICKS.name: ("Contact picks", QgsProcessing.TypeVectorPoint, True, "picks"),
+    V.STRUCTURE_CONTOURS.name: ("Structure contours", QgsProcessing.TypeVectorLine, True, "structure_contours"),
+    V.PREDICTED_TRACE.name: ("Predicted outcrop trace (needs a DEM)", QgsProcessing.TypeVectorLine, True, "trace"),
+    V.CONTACT_MISFIT.name: ("Contact segments and their misfit (needs a DEM)", QgsProcessing.TypeVectorLine, True,
+                            "contact_misfit"),
+    V.ATTITUDES.name: ("Local attitudes", QgsProcessing.TypeVectorPoint, True, "local_attitudes"),
+    V.TOP_PICKS.name: ("Top-contact picks (with top contacts)", QgsProcessing.TypeVectorPoint, False, "picks"),
+    V.UNIT_CONFLICTS.name: ("Where the surface still breaks the map units (with map units)",
+                            QgsProcessing.TypeVectorPoint, False, ""),
 }
 #: The grids of ``pipeline.result_rasters``, each written to the output named as the file
-#: without ``.tif`` in upper case: output -> (label, created by default, style).
+#: without ``.tif`` (strikeline.vocabulary.RASTERS): output -> (label, created by default, style).
 RASTERS = {
-    "SURFACE": ("Surface elevation", True, "surface"), "DIP": ("Dip (°)", True, "dip"),
-    "DIP_DIRECTION": ("Dip direction (° from grid north)", True, "dip_direction"),
-    "UNCERTAINTY": ("Standard error of the surface (m)", True, "uncertainty"),
-    "DEPTH": ("Depth below ground (needs a DEM)", True, "depth"),
-    "VERTICAL_THICKNESS": ("Vertical thickness (with top contacts)", False, "thickness"),
-    "TRUE_THICKNESS": ("True thickness (with top contacts)", False, "thickness"),
+    V.SURFACE.name: ("Surface elevation", True, "surface"), V.DIP.name: ("Dip (°)", True, "dip"),
+    V.DIP_DIRECTION.name: ("Dip direction (° from grid north)", True, "dip_direction"),
+    V.UNCERTAINTY.name: ("Standard error of the surface (m)", True, "uncertainty"),
+    V.DEPTH.name: ("Depth below ground (needs a DEM)", True, "depth"),
+    V.VERTICAL_THICKNESS.name: ("Vertical thickness (with top contacts)", False, "thickness"),
+    V.TRUE_THICKNESS.name: ("True thickness (with top contacts)", False, "thickness"),
 }
 #: Outputs that every run makes.
-REQUIRED = {"PICKS", "STRUCTURE_CONTOURS", "SURFACE", "DIP", "DIP_DIRECTION"}
+REQUIRED = {V.PICKS.name, V.STRUCTURE_CONTOURS.name, V.SURFACE.name, V.DIP.name, V.DIP_DIRECTION.name}
+#: The summary JSON's destination.
+SUMMARY = "summary"
 
 
 class WholeChain(StrikelineAlgorithm):
@@ -99,18 +98,13 @@ class WholeChain(StrikelineAlgorithm):
             self.addParameter(QgsProcessingParameterRasterDestination(
                 key, self.tr(label), optional=key not in REQUIRED, createByDefault=by_default))
         self.addParameter(QgsProcessingParameterFileDestination(
-            "SUMMARY", self.tr("Summary (JSON)"), fileFilter="JSON (*.json)", optional=True,
+            SUMMARY, self.tr("Summary (JSON)"), fileFilter="JSON (*.json)", optional=True,
             createByDefault=False))
-        for key, label in NUMBERS:
-            self.addOutput(QgsProcessingOutputNumber(key, self.tr(label)))
-        for key, label in (("DIP_CI95_DEG", "Dip, 95% half-width (°)"),
-                           ("MISFIT_MEDIAN_M", "Median trace misfit (m)"),
-                           ("MISFIT_P90_M", "90th percentile trace misfit (m)")):
-            self.addOutput(QgsProcessingOutputNumber(key, self.tr(label)))
-        self.addOutput(QgsProcessingOutputString("QUALITY", self.tr("Quality of the sheet-wide plane")))
-        self.addOutput(QgsProcessingOutputString("MODEL_USED", self.tr("Surface model used")))
-        self.addOutput(QgsProcessingOutputNumber("UNIT_CHECK_VIOLATED", self.tr(
-            "Map-unit check points the surface still breaks (with map units)")))
+        add_outputs(self, {**NUMBERS, "dip_ci95_deg": "Dip, 95% half-width (°)",
+                           "trace_misfit_median_m": "Median trace misfit (m)",
+                           "trace_misfit_p90_m": "90th percentile trace misfit (m)",
+                           "quality": "Quality of the sheet-wide plane", "model_chosen": "Surface model used",
+                           "unit_check_n_violated": "Map-unit check points the surface still breaks (with map units)"})
 
     def options(self, parameters, context) -> dict:
         """The QGIS parameters as fields of the command line's :class:`RunOptions` (the inputs'
@@ -126,23 +120,21 @@ class WholeChain(StrikelineAlgorithm):
         r = compute(inputs, opts, log=steps.log, progress=steps.part(0.05, 0.8), is_cancelled=steps.is_cancelled)
         s = r.summary
         plane = s["plane"]
-        toward = (f"toward {plane['dip_direction']:.1f}° (strike {plane['strike_rhr']:.1f}° RHR)"
-                  if plane.get("dip_direction") is not None else
+        toward = (f"toward {plane['dip_direction_deg']:.1f}° (strike {plane['strike_rhr_deg']:.1f}° RHR)"
+                  if plane.get("dip_direction_deg") is not None else
                   "horizontal within its 95% confidence (no dip direction or strike)")
-        steps.log(f"best-fit plane: dip {plane['dip']:.2f}° ± {plane['dip_ci95'] or 0:.2f}° {toward}, quality "
+        steps.log(f"best-fit plane: dip {plane['dip_deg']:.2f}° ± {plane['dip_ci95_deg'] or 0:.2f}° {toward}, quality "
                   f"{plane['quality']}; surface model {s['model']['chosen']}")
         steps.feedback.setProgress(85)
         # Last chance to stop: from here on the outputs are written, all or nothing.
         steps.check("whole chain")
         out = self._write(parameters, context, inputs, r)
-        tm = s["trace_misfit_m"]
-        out.update({"DIP_DEG": plane.get("dip"), "DIP_DIRECTION_DEG": plane.get("dip_direction"),
-                    "STRIKE_RHR_DEG": plane.get("strike_rhr"), "RMS_M": plane.get("rms_m"),
-                    "N_PICKS": plane.get("n_picks"), "DIP_CI95_DEG": plane.get("dip_ci95"),
-                    "QUALITY": plane.get("quality"), "MODEL_USED": s["model"]["chosen"],
-                    "MISFIT_MEDIAN_M": tm.get("median"), "MISFIT_P90_M": tm.get("p90")})
+        tm = s["trace_misfit"]
+        out.update({k: plane.get(k) for k in (*NUMBERS, "dip_ci95_deg", "quality")})
+        out.update({"model_chosen": s["model"]["chosen"], "trace_misfit_median_m": tm.get("median_m"),
+                    "trace_misfit_p90_m": tm.get("p90_m")})
         if "map_units" in s:
-            out["UNIT_CHECK_VIOLATED"] = s["map_units"]["check"]["n_violated"]
+            out["unit_check_n_violated"] = s["map_units"]["check"]["n_violated"]
         if inputs.dem is None:
             steps.warn("no DEM: depth below ground, the predicted trace and the contact misfit are not made")
         return out
@@ -153,17 +145,17 @@ class WholeChain(StrikelineAlgorithm):
         crs = qgis_crs(inputs.crs_wkt)
         out = {}
         for layer in pl.result_layers(r):
-            key = layer.name.upper()
-            if key == "PREDICTED_TRACE" and inputs.dem is None:
+            key = layer.name
+            if key == V.PREDICTED_TRACE.name and inputs.dem is None:
                 continue  # no trace without ground to cut the surface with
             out[key] = write_sink(self, parameters, key, context, Table.of_layer(layer), crs)
             attach_style(context, out[key], LAYERS[key][3])
         for file_name, array in pl.result_rasters(r):
-            key = os.path.splitext(file_name)[0].upper()
+            key = os.path.splitext(file_name)[0]
             out[key] = write_raster(self, parameters, key, context, array, r.grid)
             attach_style(context, out[key], RASTERS[key][2])
-        summary_path = self.parameterAsFileOutput(parameters, "SUMMARY", context)
+        summary_path = self.parameterAsFileOutput(parameters, SUMMARY, context)
         if summary_path:
             write_json_atomic(summary_path, r.summary, overwrite=True)  # the bytes of summary.json
-            out["SUMMARY"] = summary_path
+            out[SUMMARY] = summary_path
         return {k: v for k, v in out.items() if v is not None}

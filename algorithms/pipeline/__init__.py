@@ -71,8 +71,12 @@ _LAZY = {
     ),
     "outputs": (
         "write_results",
+        "vocabulary_layer",
         "picks_layer",
         "attitudes_layer",
+        "contours_layer",
+        "trace_layer",
+        "contact_misfit_layer",
         "result_rasters",
         "result_layers",
         "trace_misfit_layer",
@@ -98,6 +102,7 @@ _LAZY = {
         "split_by_flags",
         "structure_contours_on_ground",
         "forecast_mask",
+        "surface_dip_grids",
     ),
     "thickness": (
         "FeatureThickness",

@@ -59,16 +59,16 @@ def _picks(kind: str) -> QgsVectorLayer:
 @pytest.mark.parametrize("kind", ["2d", "z"])
 def test_plane_attitude_reads_the_elevation_field(run, kind):
     res = run("planeattitude", {"PICKS": _picks(kind), "PICKS_ELEV_FIELD": "elev", "RESAMPLES": 50,
-                                "ATTITUDE": TMP})
-    assert res["QUALITY"] == "good"
-    assert res["DIP_DEG"] == pytest.approx(DIP_DEG, abs=ATTITUDE_TOL_DEG)
-    assert res["DIP_DIRECTION_DEG"] == pytest.approx(DIP_DIRECTION_DEG, abs=ATTITUDE_TOL_DEG)
+                                "plane_attitudes": TMP})
+    assert res["quality"] == "good"
+    assert res["dip_deg"] == pytest.approx(DIP_DEG, abs=ATTITUDE_TOL_DEG)
+    assert res["dip_direction_deg"] == pytest.approx(DIP_DIRECTION_DEG, abs=ATTITUDE_TOL_DEG)
 
 
 @pytest.mark.parametrize("kind", ["2d", "z"])
 def test_surface_model_reads_the_elevation_field(run, kind):
     res = run("surfacemodel", {"PICKS": _picks(kind), "PICKS_ELEV_FIELD": "elev", "MODEL": model_index("plane"), "CELL": 50.0,
-                               "SURFACE": TMP})
-    assert res["MODEL"] == "plane"
-    assert res["DIP_DEG"] == pytest.approx(DIP_DEG, abs=ATTITUDE_TOL_DEG)
-    assert res["DIP_DIRECTION_DEG"] == pytest.approx(DIP_DIRECTION_DEG, abs=ATTITUDE_TOL_DEG)
+                               "surface": TMP})
+    assert res["model_chosen"] == "plane"
+    assert res["dip_deg"] == pytest.approx(DIP_DEG, abs=ATTITUDE_TOL_DEG)
+    assert res["dip_direction_deg"] == pytest.approx(DIP_DIRECTION_DEG, abs=ATTITUDE_TOL_DEG)

@@ -30,7 +30,7 @@ TMP = "TEMPORARY_OUTPUT"
 GEOGRAPHIC = "EPSG:4326"  # Source: EPSG dataset, WGS 84 geographic 2D
 SHEET_UTM = "EPSG:32631"  # Source: EPSG dataset, WGS 84 / UTM zone 31N (the demo sheet's CRS)
 #: The required outputs of the whole chain, as temporary layers.
-OUTPUTS = {"PICKS": TMP, "STRUCTURE_CONTOURS": TMP, "SURFACE": TMP, "DIP": TMP, "DIP_DIRECTION": TMP}
+OUTPUTS = {"picks": TMP, "structure_contours": TMP, "surface": TMP, "dip": TMP, "dip_direction": TMP}
 
 
 def library_message(**opts) -> str:
@@ -61,16 +61,16 @@ def geographic_contacts(tmp_path_factory, sheet):
 # -------------------------------------------------------------------------------- bad inputs
 def test_geographic_contacts_file(run, sheet, geographic_contacts):
     want = library_message(contacts=geographic_contacts, dem=sheet["dem"])
-    got = qgis_message(run, "contactpicks", {"CONTACTS": geographic_contacts, "DEM": sheet["dem"], "PICKS": TMP})
+    got = qgis_message(run, "contactpicks", {"CONTACTS": geographic_contacts, "DEM": sheet["dem"], "picks": TMP})
     assert got == want
     assert f"geographic CRS {GEOGRAPHIC}" in got and SHEET_UTM in got
 
 
 def test_geographic_contacts_memory_layer(run, sheet, geographic_contacts):
     mem = memory_copy(geographic_contacts, "contacts_wgs84")
-    got = qgis_message(run, "modelcontact", {"CONTACTS": mem, "DEM": sheet["dem"], "PICKS": TMP,
-                                             "STRUCTURE_CONTOURS": TMP, "SURFACE": TMP, "DIP": TMP,
-                                             "DIP_DIRECTION": TMP})
+    got = qgis_message(run, "modelcontact", {"CONTACTS": mem, "DEM": sheet["dem"], "picks": TMP,
+                                             "structure_contours": TMP, "surface": TMP, "dip": TMP,
+                                             "dip_direction": TMP})
     want = library_message(contacts=geographic_contacts, dem=sheet["dem"])
     # Same words after the layer's name ("... of 'memory'" instead of the file path).
     assert got.split(" is in ", 1)[1] == want.split(" is in ", 1)[1]
@@ -80,7 +80,7 @@ def test_geographic_dem(run, sheet, tmp_path):
     dem_geo = str(tmp_path / "dem_wgs84.tif")
     gdal.Warp(dem_geo, sheet["dem"], dstSRS=GEOGRAPHIC)
     want = library_message(contacts=sheet["contacts"], dem=dem_geo)
-    got = qgis_message(run, "contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": dem_geo, "PICKS": TMP})
+    got = qgis_message(run, "contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": dem_geo, "picks": TMP})
     assert got == want and "(degrees)" in got
 
 
@@ -93,13 +93,13 @@ def test_empty_layer_file(run, sheet, tmp_path):
     ds = None
     want = library_message(contacts=path, dem=sheet["dem"])
     got = qgis_message(run, "contactpicks", {"CONTACTS": f"{path}|layername=contacts", "DEM": sheet["dem"],
-                                             "PICKS": TMP})
+                                             "picks": TMP})
     assert got == want and "holds no feature" in got
 
 
 def test_empty_memory_layer(run, sheet):
     mem = QgsVectorLayer(f"LineString?crs={SHEET_UTM}", "nothing_mapped", "memory")
-    got = qgis_message(run, "contactpicks", {"CONTACTS": mem, "DEM": sheet["dem"], "PICKS": TMP})
+    got = qgis_message(run, "contactpicks", {"CONTACTS": mem, "DEM": sheet["dem"], "picks": TMP})
     assert got == ("contacts layer 'nothing_mapped' of 'memory' holds no feature with a geometry; "
                    "give a layer with features")
 
@@ -113,7 +113,7 @@ def test_text_elevation_field(run, sheet, tmp_path):
         "FORMULA": 'to_string("elev_m")', "OUTPUT": path})
     want = library_message(contacts=sheet["contacts"], contours=path, elev_field="elev_txt")
     got = qgis_message(run, "contactpicks", {"CONTACTS": sheet["contacts_uri"], "CONTOURS": path,
-                                             "ELEV_FIELD": "elev_txt", "PICKS": TMP})
+                                             "ELEV_FIELD": "elev_txt", "picks": TMP})
     # The fix names QGIS's parameter instead of the command line's option.
     assert got == want.replace("--elev-field", "the 'Elevation field of the contour lines'")
     assert "is of type String, not numeric" in got
@@ -135,14 +135,14 @@ def test_messages_name_the_qgis_parameters(run, sheet):
         want = want.replace(option, label)
     assert got == want and "give both" in got
     got = qgis_message(run, "contactpicks", {"CONTACTS": sheet["contacts_uri"], "CONTOURS": sheet["contours_uri"],
-                                             "PICKS": TMP})
+                                             "picks": TMP})
     want = library_message(contacts=sheet["contacts"], contours=sheet["contours"])
     assert "the elevation field is not named" in got
     assert got == want.replace("--elev-field", "the 'Elevation field of the contour lines'")
 
 
 def test_no_topography(run, sheet):
-    got = qgis_message(run, "contactpicks", {"CONTACTS": sheet["contacts_uri"], "PICKS": TMP})
+    got = qgis_message(run, "contactpicks", {"CONTACTS": sheet["contacts_uri"], "picks": TMP})
     assert got.startswith("no topography given")
 
 
@@ -158,8 +158,8 @@ def test_too_few_picks(run):
     fb = QgsProcessingFeedback()
     warnings = []
     fb.pushWarning = warnings.append
-    res = run("planeattitude", {"PICKS": mem, "ATTITUDE": TMP}, feedback=fb)
-    assert res["QUALITY"] == "undetermined" and res["DIP_DEG"] is None
+    res = run("planeattitude", {"PICKS": mem, "plane_attitudes": TMP}, feedback=fb)
+    assert res["quality"] == "undetermined" and res["dip_deg"] is None
     assert any("only 2 pick(s)" in w and "at least three" in w for w in warnings)
 
 
@@ -168,15 +168,15 @@ def test_points_without_z(run):
     f = QgsFeature()
     f.setGeometry(QgsGeometry.fromPointXY(QgsPointXY(1.0, 2.0)))
     mem.dataProvider().addFeatures([f])
-    got = qgis_message(run, "planeattitude", {"PICKS": mem, "ATTITUDE": TMP})
+    got = qgis_message(run, "planeattitude", {"PICKS": mem, "plane_attitudes": TMP})
     assert "points without Z" in got
 
 
 def test_surface_off_the_dem_grid(run, sheet, tmp_path):
-    picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "PICKS": TMP})["PICKS"]
-    surf = run("surfacemodel", {"PICKS": picks, "CELL": 25.0, "SURFACE": str(tmp_path / "s.tif")})["SURFACE"]
-    got = qgis_message(run, "depthtrace", {"SURFACE": surf, "DEM": sheet["dem"], "DEPTH": TMP,
-                                           "PREDICTED_TRACE": TMP})
+    picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "picks": TMP})["picks"]
+    surf = run("surfacemodel", {"PICKS": picks, "CELL": 25.0, "surface": str(tmp_path / "s.tif")})["surface"]
+    got = qgis_message(run, "depthtrace", {"SURFACE": surf, "DEM": sheet["dem"], "depth": TMP,
+                                           "predicted_trace": TMP})
     assert "are not on one grid" in got
 
 
@@ -190,21 +190,21 @@ def cancelling_feedback(at_percent: float) -> QgsProcessingFeedback:
 
 @pytest.mark.parametrize("at", [6.0, 40.0, 81.0])
 def test_cancelled_whole_chain_leaves_no_output(run, sheet, tmp_path, at):
-    outs = {k: str(tmp_path / f"{k.lower()}.tif") for k in ("SURFACE", "DIP", "DIP_DIRECTION", "DEPTH", "UNCERTAINTY")}
+    outs = {k: str(tmp_path / f"{k.lower()}.tif") for k in ("surface", "dip", "dip_direction", "depth", "uncertainty")}
     outs.update({k: str(tmp_path / f"{k.lower()}.gpkg")
-                 for k in ("PICKS", "STRUCTURE_CONTOURS", "PREDICTED_TRACE", "CONTACT_MISFIT", "ATTITUDES")})
+                 for k in ("picks", "structure_contours", "predicted_trace", "contact_misfit", "attitudes")})
     fb = cancelling_feedback(at)
     with pytest.raises(QgsProcessingException, match="cancelled"):
         run("modelcontact", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"],
                              "CONTOURS": sheet["contours_uri"], "ELEV_FIELD": "elev_m", "MODEL": 1,
-                             "RESAMPLES": 100, "SUMMARY": str(tmp_path / "summary.json"), **outs}, feedback=fb)
+                             "RESAMPLES": 100, "summary": str(tmp_path / "summary.json"), **outs}, feedback=fb)
     assert fb.isCanceled()  # (how fast it stops is a benchmark matter, not a test's: no wall clock here)
     assert sorted(p.name for p in tmp_path.iterdir()) == []
 
 
 @pytest.mark.parametrize("tool,params", [
-    ("contactpicks", {"PICKS": "picks.gpkg"}),
-    ("dipgrids", {"DIP": "dip.tif", "DIP_DIRECTION": "dd.tif"}),
+    ("contactpicks", {"picks": "picks.gpkg"}),
+    ("dipgrids", {"dip": "dip.tif", "dip_direction": "dd.tif"}),
 ])
 def test_cancelled_step_leaves_no_output(run, sheet, tmp_path, tool, params):
     inputs = {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"]} if tool == "contactpicks" \

@@ -56,18 +56,18 @@ def build_model() -> QgsProcessingModelAlgorithm:
 
     surface = QgsProcessingModelChildAlgorithm("strikeline:surfacemodel")
     surface.setChildId("surface")
-    surface.addParameterSources("PICKS", _param(S.fromChildOutput("picks", "PICKS")))
+    surface.addParameterSources("PICKS", _param(S.fromChildOutput("picks", "picks")))
     surface.addParameterSources("REFERENCE", _param(S.fromModelParameter("dem")))
     surface.addParameterSources("MODEL", _param(S.fromStaticValue(model_index("plane"))))
     m.addChildAlgorithm(surface)
 
     contours = QgsProcessingModelChildAlgorithm("strikeline:structurecontours")
     contours.setChildId("contours")
-    contours.addParameterSources("SURFACE", _param(S.fromChildOutput("surface", "SURFACE")))
+    contours.addParameterSources("SURFACE", _param(S.fromChildOutput("surface", "surface")))
     contours.addParameterSources("INTERVAL", _param(S.fromStaticValue(INTERVAL_M)))
     out = QgsProcessingModelOutput("structure_contours", "Structure contours")
     out.setChildId("contours")
-    out.setChildOutputName("STRUCTURE_CONTOURS")
+    out.setChildOutputName("structure_contours")
     contours.setModelOutputs({"structure_contours": out})
     m.addChildAlgorithm(contours)
     m.updateDestinationParameters()
@@ -98,7 +98,7 @@ def test_model_gives_the_contours_of_strikeline_run(sheet, tmp_path):
     wkbs, levels = [], []
     for f in lyr:
         wkbs.append(bytes(f.GetGeometryRef().ExportToIsoWkb()))
-        levels.append(f.GetField("elevation"))
+        levels.append(f.GetField("elevation_m"))
     ds = None
     ref_geoms = shapely.force_2d(shapely.from_wkb(wkbs))
     ref_z = np.asarray(levels, dtype=float)
@@ -106,9 +106,9 @@ def test_model_gives_the_contours_of_strikeline_run(sheet, tmp_path):
     # `strikeline run` cuts its lines where they leave the reach of the data; the model's
     # structure contours are whole lines: per level, the same line work.
     levels = np.unique(ref_z)
-    np.testing.assert_array_equal(np.unique(got_cols["elevation"]), levels)
+    np.testing.assert_array_equal(np.unique(got_cols["elevation_m"]), levels)
     for z in levels:
-        got = shapely.line_merge(shapely.union_all(got_geoms[got_cols["elevation"] == z]))
+        got = shapely.line_merge(shapely.union_all(got_geoms[got_cols["elevation_m"] == z]))
         ref = shapely.line_merge(shapely.union_all(ref_geoms[ref_z == z]))
         assert shapely.hausdorff_distance(got, ref) <= FLOAT32_CONTOUR_TOL_M, z
         assert abs(got.length - ref.length) <= FLOAT32_CONTOUR_TOL_M * 10, z
@@ -116,12 +116,12 @@ def test_model_gives_the_contours_of_strikeline_run(sheet, tmp_path):
     # External: the vertices lie on the TLS plane of the picks (numpy SVD of the centred picks).
     picks = processing.run("strikeline:contactpicks", {
         "CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "CONTOURS": sheet["contours_uri"],
-        "ELEV_FIELD": sheet["elev_field"], "PICKS": "TEMPORARY_OUTPUT"})["PICKS"]
+        "ELEV_FIELD": sheet["elev_field"], "picks": "TEMPORARY_OUTPUT"})["picks"]
     pg, _ = table(picks)
     p = shapely.get_coordinates(pg, include_z=True)
     c = p.mean(axis=0)
     n = np.linalg.svd(p - c)[2][-1]
-    for g, z in zip(got_geoms, got_cols["elevation"]):
+    for g, z in zip(got_geoms, got_cols["elevation_m"]):
         xy = shapely.get_coordinates(g)
         plane_z = c[2] - (n[0] * (xy[:, 0] - c[0]) + n[1] * (xy[:, 1] - c[1])) / n[2]
         np.testing.assert_allclose(plane_z, z, atol=FLOAT32_CONTOUR_TOL_M)

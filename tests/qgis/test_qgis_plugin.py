@@ -65,19 +65,30 @@ def test_every_tool_has_outputs_the_next_tool_can_take():
         dests = alg.destinationParameterDefinitions()
         assert dests, alg.name()
         assert all(isinstance(d, (QgsProcessingParameterFeatureSink, QgsProcessingParameterRasterDestination))
-                   or d.name() == "SUMMARY" for d in dests)
+                   or d.name() == "summary" for d in dests)
     contours = QgsApplication.processingRegistry().algorithmById("strikeline:structurecontours")
     interval = contours.parameterDefinition("INTERVAL")
     assert isinstance(interval, QgsProcessingParameterDistance) and interval.defaultValue() == 50.0
     plane = QgsApplication.processingRegistry().algorithmById("strikeline:planeattitude")
     assert {o.name() for o in plane.outputDefinitions() if isinstance(o, QgsProcessingOutputNumber)} >= {
-        "DIP_DEG", "DIP_DIRECTION_DEG", "STRIKE_RHR_DEG", "RMS_M"}
+        "dip_deg", "dip_direction_deg", "strike_rhr_deg", "rms_m"}
+
+
+def test_every_output_is_named_by_the_vocabulary():
+    """Every tool's outputs (layers, rasters, numbers, strings, the summary file) carry a name of
+    strikeline.vocabulary: a layer's, a raster's (its file without .tif) or a QGIS output's."""
+    from strikeline import vocabulary as V
+
+    known = set(V.LAYERS) | set(V.RASTERS) | V.QGIS_OUTPUT_NAMES
+    for alg in provider().algorithms():
+        names = {o.name() for o in alg.outputDefinitions()}
+        assert names and names <= known, (alg.name(), sorted(names - known))
 
 
 def test_strike_output_follows_the_right_hand_rule(run, sheet):
-    res = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "PICKS": "TEMPORARY_OUTPUT"})
-    att = run("planeattitude", {"PICKS": res["PICKS"], "ATTITUDE": "TEMPORARY_OUTPUT"})
-    assert att["STRIKE_RHR_DEG"] == pytest.approx((att["DIP_DIRECTION_DEG"] - 90.0) % 360.0, abs=1e-9)
+    res = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "picks": "TEMPORARY_OUTPUT"})
+    att = run("planeattitude", {"PICKS": res["picks"], "plane_attitudes": "TEMPORARY_OUTPUT"})
+    assert att["strike_rhr_deg"] == pytest.approx((att["dip_direction_deg"] - 90.0) % 360.0, abs=1e-9)
 
 
 def test_metadata_icon_and_entry_points():

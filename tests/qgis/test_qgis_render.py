@@ -48,23 +48,23 @@ def outputs(tmp_path_factory, sheet):
     contacts, dem = sheet["contacts_uri"], sheet["dem"]
     picks = processing.run("strikeline:contactpicks", {
         "CONTACTS": contacts, "DEM": dem, "CONTOURS": sheet["contours_uri"],
-        "ELEV_FIELD": "elev_m", "PICKS": str(d / "picks.gpkg")})["PICKS"]
+        "ELEV_FIELD": "elev_m", "picks": str(d / "picks.gpkg")})["picks"]
     sm = processing.run("strikeline:surfacemodel", {"PICKS": picks, "REFERENCE": dem,
-                                                    "SURFACE": str(d / "surface.tif"),
-                                                    "EXTRAPOLATED": str(d / "forecast.tif")})
-    surface = sm["SURFACE"]
-    dip = processing.run("strikeline:dipgrids", {"SURFACE": surface, "DIP": str(d / "dip.tif"),
-                                                 "DIP_DIRECTION": str(d / "dd.tif")})["DIP"]
+                                                    "surface": str(d / "surface.tif"),
+                                                    "forecast_mask": str(d / "forecast.tif")})
+    surface = sm["surface"]
+    dip = processing.run("strikeline:dipgrids", {"SURFACE": surface, "dip": str(d / "dip.tif"),
+                                                 "dip_direction": str(d / "dd.tif")})["dip"]
     sc = processing.run("strikeline:structurecontours", {
-        "SURFACE": surface, "GROUND": dem, "FORECAST_MASK": sm["EXTRAPOLATED"], "INTERVAL": 50.0,
-        "STRUCTURE_CONTOURS": str(d / "contours.gpkg")})["STRUCTURE_CONTOURS"]
+        "SURFACE": surface, "GROUND": dem, "FORECAST_MASK": sm["forecast_mask"], "INTERVAL": 50.0,
+        "structure_contours": str(d / "contours.gpkg")})["structure_contours"]
     dt = processing.run("strikeline:depthtrace", {"SURFACE": surface, "DEM": dem, "CONTACTS": contacts,
-                                                  "DEPTH": str(d / "depth.tif"),
-                                                  "PREDICTED_TRACE": str(d / "trace.gpkg")})
+                                                  "depth": str(d / "depth.tif"),
+                                                  "predicted_trace": str(d / "trace.gpkg")})
     local = processing.run("strikeline:localattitudes", {"PICKS": picks, "WINDOW": 500.0, "ACROSS_PICKS": False,
-                                                          "RESAMPLES": 50, "LOCAL_ATTITUDES": str(d / "local.gpkg")})
-    return {"local": local["LOCAL_ATTITUDES"], "contacts": contacts, "dip": dip, "contours": sc, "depth": dt["DEPTH"],
-            "trace": dt["PREDICTED_TRACE"], "dir": d}
+                                                          "RESAMPLES": 50, "attitudes": str(d / "local.gpkg")})
+    return {"local": local["attitudes"], "contacts": contacts, "dip": dip, "contours": sc, "depth": dt["depth"],
+            "trace": dt["predicted_trace"], "dir": d}
 
 
 def render(layers, extent, crs, path) -> np.ndarray:
@@ -137,19 +137,19 @@ def test_styles_are_attached_to_loaded_outputs(sheet):
     context.setProject(project)
     fb = QgsProcessingFeedback()
     picks = processing.run("strikeline:contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"],
-                                                      "PICKS": TMP})["PICKS"]
+                                                      "picks": TMP})["picks"]
     sm = processing.run("strikeline:surfacemodel", {"PICKS": picks, "REFERENCE": sheet["dem"],
-                                                    "SURFACE": TMP, "EXTRAPOLATED": TMP})
-    surface = sm["SURFACE"]
+                                                    "surface": TMP, "forecast_mask": TMP})
+    surface = sm["surface"]
     res = processing.run("strikeline:structurecontours", {
-        "SURFACE": surface, "GROUND": sheet["dem"], "FORECAST_MASK": sm["EXTRAPOLATED"], "INTERVAL": 50.0,
-        "STRUCTURE_CONTOURS": QgsProcessingOutputLayerDefinition(TMP, project)}, context=context, feedback=fb)
+        "SURFACE": surface, "GROUND": sheet["dem"], "FORECAST_MASK": sm["forecast_mask"], "INTERVAL": 50.0,
+        "structure_contours": QgsProcessingOutputLayerDefinition(TMP, project)}, context=context, feedback=fb)
     dips = processing.run("strikeline:dipgrids", {
-        "SURFACE": surface, "DIP": QgsProcessingOutputLayerDefinition(TMP, project),
-        "DIP_DIRECTION": QgsProcessingOutputLayerDefinition(TMP, project)}, context=context, feedback=fb)
+        "SURFACE": surface, "dip": QgsProcessingOutputLayerDefinition(TMP, project),
+        "dip_direction": QgsProcessingOutputLayerDefinition(TMP, project)}, context=context, feedback=fb)
     details = context.layersToLoadOnCompletion()
     assert len(details) == 3
-    layer = res["STRUCTURE_CONTOURS"]
+    layer = res["structure_contours"]
     for key, det in details.items():
         pp = det.postProcessor()
         assert pp is not None
@@ -168,4 +168,4 @@ def test_styles_are_attached_to_loaded_outputs(sheet):
         else:
             assert isinstance(target.renderer(), QgsSingleBandPseudoColorRenderer)
     assert {det.postProcessor().style for det in details.values()} == {"structure_contours", "dip", "dip_direction"}
-    assert dips["DIP"] and dips["DIP_DIRECTION"]
+    assert dips["dip"] and dips["dip_direction"]

@@ -47,15 +47,15 @@ def test_outcrop_width_level_and_sloping_ground(run):
     lyr = memory("Point", [("w", QVariant.Double), ("slope", QVariant.Double), ("name", QVariant.String)],
                  [("Point (0 0)", [100.0, 0.0, "level"]), ("Point (10 0)", [100.0, 20.0, "scarp"])])
     res = run("unitthickness", {"METHOD": 1, "INPUT": lyr, "DIP_DEG": 30.0, "DIP_DIRECTION_DEG": 120.0,
-                                "WIDTH_FIELD": "w", "SLOPE_FIELD": "slope", "SLOPE_SENSE": 0, "OUTPUT": TMP})
-    _, cols = table(res["OUTPUT"])
+                                "WIDTH_FIELD": "w", "SLOPE_FIELD": "slope", "SLOPE_SENSE": 0, "unit_thickness": TMP})
+    _, cols = table(res["unit_thickness"])
     LEVEL = 100.0 * np.sin(np.radians(30.0))  # Source: Ragan (2009), t = w sin(dip) = 50 m
     SCARP = 100.0 * np.sin(np.radians(50.0))  # Source: Ragan (2009), t = w sin(dip + slope) = 76.604 m
-    np.testing.assert_allclose(cols["thickness_m"], [LEVEL, SCARP], atol=1e-9)
-    np.testing.assert_allclose(cols["thickness_m"], thickness_from_outcrop_width(
+    np.testing.assert_allclose(cols["true_thickness_m"], [LEVEL, SCARP], atol=1e-9)
+    np.testing.assert_allclose(cols["true_thickness_m"], thickness_from_outcrop_width(
         np.array([100.0, 100.0]), 30.0, ground_slope_deg=np.array([0.0, 20.0]), slope_sense="against_dip"))
     # common practice: vertical thickness = true thickness / cos(dip)
-    np.testing.assert_allclose(cols["vertical_thickness_m"], cols["thickness_m"] / np.cos(np.radians(30.0)))
+    np.testing.assert_allclose(cols["vertical_thickness_m"], cols["true_thickness_m"] / np.cos(np.radians(30.0)))
     assert cols["name"].tolist() == ["level", "scarp"]  # the input's own fields are kept
 
 
@@ -68,13 +68,13 @@ def test_outcrop_width_on_a_dip_slope_is_left_empty_with_a_warning(run):
     warnings = []
     fb.pushWarning = warnings.append
     res = run("unitthickness", {"METHOD": 1, "INPUT": lyr, "DIP_DEG": 30.0, "DIP_DIRECTION_DEG": 120.0,
-                                "WIDTH_FIELD": "w", "SLOPE_FIELD": "slope", "SLOPE_SENSE": 1, "OUTPUT": TMP},
+                                "WIDTH_FIELD": "w", "SLOPE_FIELD": "slope", "SLOPE_SENSE": 1, "unit_thickness": TMP},
               feedback=fb)
-    _, cols = table(res["OUTPUT"])
-    assert cols["thickness_m"][0] is None or not np.isfinite(cols["thickness_m"][0])
+    _, cols = table(res["unit_thickness"])
+    assert cols["true_thickness_m"][0] is None or not np.isfinite(cols["true_thickness_m"][0])
     # Source: Ragan (2009), t = w |sin(dip - slope)| = 100 sin 10 = 17.365 m
-    assert cols["thickness_m"][1] == pytest.approx(100.0 * np.sin(np.radians(10.0)), abs=1e-9)
-    assert res["N"] == 1
+    assert cols["true_thickness_m"][1] == pytest.approx(100.0 * np.sin(np.radians(10.0)), abs=1e-9)
+    assert res["n_measurements"] == 1
     assert any("parallel to the bedding" in w for w in warnings)
 
 
@@ -87,9 +87,9 @@ def test_borehole_intercepts(run):
     fb.pushWarning = warnings.append
     res = run("unitthickness", {"METHOD": 2, "INPUT": lyr, "DIP_DEG": 40.0, "DIP_DIRECTION_DEG": 135.0,
                                 "LENGTH_FIELD": "len", "AZIMUTH_FIELD": "az", "PLUNGE_FIELD": "pl",
-                                "OUTPUT": TMP}, feedback=fb)
-    _, cols = table(res["OUTPUT"])
-    t = cols["thickness_m"]
+                                "unit_thickness": TMP}, feedback=fb)
+    _, cols = table(res["unit_thickness"])
+    t = cols["true_thickness_m"]
     n = unit_normal(135.0, 40.0)
     az, pl = np.radians(45.0), np.radians(70.0)
     hole = np.array([np.sin(az) * np.cos(pl), np.cos(az) * np.cos(pl), -np.sin(pl)])
@@ -103,20 +103,20 @@ def test_borehole_intercepts(run):
 def test_two_points_with_z_and_with_the_dem(run, sheet):
     lyr = memory("LineStringZ", [], [("LineStringZ (0 0 100, 3 4 90)", [])])
     res = run("unitthickness", {"METHOD": 0, "INPUT": lyr, "DIP_DEG": 60.0, "DIP_DIRECTION_DEG": 90.0,
-                                "OUTPUT": TMP})
-    _, cols = table(res["OUTPUT"])
+                                "unit_thickness": TMP})
+    _, cols = table(res["unit_thickness"])
     want = abs(np.array([3.0, 4.0, -10.0]) @ unit_normal(90.0, 60.0))
-    assert cols["thickness_m"][0] == pytest.approx(want, abs=1e-12)
+    assert cols["true_thickness_m"][0] == pytest.approx(want, abs=1e-12)
 
     # Lines across the demo sheet: ends take the DEM's bilinear elevation.
     ends = [((487000.0, 5216000.0), (487150.0, 5215900.0)), ((489000.0, 5214500.0), (488900.0, 5214420.0))]
     lines = memory("LineString", [], [(f"LineString ({a[0]} {a[1]}, {b[0]} {b[1]})", []) for a, b in ends])
     res = run("unitthickness", {"METHOD": 0, "INPUT": lines, "DEM": sheet["dem"], "DIP_DEG": 18.7,
-                                "DIP_DIRECTION_DEG": 221.3, "OUTPUT": TMP})
-    geoms, cols = table(res["OUTPUT"])
+                                "DIP_DIRECTION_DEG": 221.3, "unit_thickness": TMP})
+    geoms, cols = table(res["unit_thickness"])
     f = bilinear_reference(sheet["dem"])  # Source: scipy RegularGridInterpolator (linear), scipy 1.10
     n = unit_normal(221.3, 18.7)
-    for (a, b), t in zip(ends, cols["thickness_m"]):
+    for (a, b), t in zip(ends, cols["true_thickness_m"]):
         za, zb = f([a[0]], [a[1]])[0], f([b[0]], [b[1]])[0]
         assert t == pytest.approx(abs((np.array([*b, zb]) - np.array([*a, za])) @ n), abs=1e-6)
     assert len(shapely.get_coordinates(geoms)) == 4
@@ -126,10 +126,10 @@ def test_wrong_field_type_and_missing_field(run):
     lyr = memory("Point", [("w", QVariant.String)], [("Point (0 0)", ["100"])])
     with pytest.raises(QgsProcessingException, match="is of type String, not numeric"):
         run("unitthickness", {"METHOD": 1, "INPUT": lyr, "DIP_DEG": 30.0, "DIP_DIRECTION_DEG": 0.0,
-                              "WIDTH_FIELD": "w", "OUTPUT": TMP})
+                              "WIDTH_FIELD": "w", "unit_thickness": TMP})
     with pytest.raises(QgsProcessingException, match="choose the 'Outcrop width field"):
         run("unitthickness", {"METHOD": 1, "INPUT": lyr, "DIP_DEG": 30.0, "DIP_DIRECTION_DEG": 0.0,
-                              "OUTPUT": TMP})
+                              "unit_thickness": TMP})
 
 
 def test_isopachs_between_the_demo_top_and_base(run, sheet):
@@ -139,19 +139,19 @@ def test_isopachs_between_the_demo_top_and_base(run, sheet):
     d = sheet["dir"]
     surfaces = {}
     for key, uri in (("top", f"{d / 'top_contacts.gpkg'}|layername=top_contacts"), ("base", sheet["contacts_uri"])):
-        picks = run("contactpicks", {"CONTACTS": uri, "DEM": sheet["dem"], "PICKS": TMP})["PICKS"]
-        surfaces[key] = run("surfacemodel", {"PICKS": picks, "REFERENCE": sheet["dem"], "SURFACE": TMP})["SURFACE"]
+        picks = run("contactpicks", {"CONTACTS": uri, "DEM": sheet["dem"], "picks": TMP})["picks"]
+        surfaces[key] = run("surfacemodel", {"PICKS": picks, "REFERENCE": sheet["dem"], "surface": TMP})["surface"]
     res = run("isopachs", {"TOP": surfaces["top"], "BASE": surfaces["base"], "INTERVAL": 10.0,
-                           "VERTICAL_THICKNESS": TMP, "TRUE_THICKNESS": TMP, "ISOPACHS": TMP})
+                           "vertical_thickness": TMP, "true_thickness": TMP, "isopachs": TMP})
     top, grid = read_raster(surfaces["top"], label="top")
     base, _ = read_raster(surfaces["base"], label="base")
     v_ref, t_ref = isopach_grids(top, base, grid)
-    v, _ = read_raster(res["VERTICAL_THICKNESS"], label="v")
-    t, _ = read_raster(res["TRUE_THICKNESS"], label="t")
+    v, _ = read_raster(res["vertical_thickness"], label="v")
+    t, _ = read_raster(res["true_thickness"], label="t")
     np.testing.assert_array_equal(v, v_ref.astype(np.float32).astype(float))
     np.testing.assert_array_equal(t, t_ref.astype(np.float32).astype(float))
     TRUE_M = sheet["truth"]["true_thickness_m"]  # Source: truth.json of the demo generator (73.6 m)
     VERTICAL_M = TRUE_M / np.cos(np.radians(sheet["truth"]["dip_deg"]))  # common practice: t / cos(dip)
-    assert res["MEDIAN_TRUE_M"] == pytest.approx(TRUE_M, abs=0.5)
+    assert res["true_thickness_median_m"] == pytest.approx(TRUE_M, abs=0.5)
     assert np.nanmedian(v) == pytest.approx(VERTICAL_M, abs=0.5)
-    assert res["N_NEGATIVE"] == 0
+    assert res["n_negative_cells"] == 0

@@ -53,8 +53,8 @@ def surface_tif(tmp_path_factory, sheet):
     out = tmp_path_factory.mktemp("surface") / "surface.tif"
     picks = processing.run("strikeline:contactpicks", {
         "CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "CONTOURS": sheet["contours_uri"],
-        "ELEV_FIELD": "elev_m", "PICKS": TMP})["PICKS"]
-    processing.run("strikeline:surfacemodel", {"PICKS": picks, "REFERENCE": sheet["dem"], "SURFACE": str(out)})
+        "ELEV_FIELD": "elev_m", "picks": TMP})["picks"]
+    processing.run("strikeline:surfacemodel", {"PICKS": picks, "REFERENCE": sheet["dem"], "surface": str(out)})
     return str(out)
 
 
@@ -63,15 +63,15 @@ def surface_tif(tmp_path_factory, sheet):
 def test_contact_picks_are_the_library_picks(run, sheet, reference, kind):
     contacts, contours = topo(sheet, kind)
     res = run("contactpicks", {"CONTACTS": contacts, "DEM": sheet["dem"], "CONTOURS": contours,
-                               "ELEV_FIELD": "elev_m", "PICKS": TMP})
+                               "ELEV_FIELD": "elev_m", "picks": TMP})
     ref = reference[1].picks
-    geoms, cols = table(res["PICKS"])
+    geoms, cols = table(res["picks"])
     xyz = shapely.get_coordinates(geoms, include_z=True)
     np.testing.assert_array_equal(xyz, ref.xyz)
     np.testing.assert_array_equal(cols["source"], ref.source)
     np.testing.assert_array_equal(cols["elevation_m"], ref.xyz[:, 2])
     np.testing.assert_array_equal(cols["contact_id"], ref.contact_id)
-    assert (res["N_PICKS"], res["N_DEM"], res["N_CONTOURS"]) == (
+    assert (res["n_picks"], res["n_picks_dem"], res["n_picks_contours"]) == (
         len(ref), ref.counts_by_source()["dem"], ref.counts_by_source()["contours"])
     # External: DEM picks are bilinear samples of the DEM between cell centres.
     # Source: scipy.interpolate.RegularGridInterpolator(method="linear"), scipy 1.10.
@@ -99,8 +99,8 @@ def test_dem_without_a_plain_file_is_read_through_qgis(run, sheet, reference, tm
     assert grid.transform == ref_grid.transform
     # Source: GDAL's own GeoPackage driver (gdal.Translate) as the reference copy of the DEM.
     np.testing.assert_array_equal(arr, ref_arr)
-    res = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": layer, "PICKS": TMP})
-    geoms, _ = table(res["PICKS"])
+    res = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": layer, "picks": TMP})
+    geoms, _ = table(res["picks"])
     ref = reference[1].picks
     np.testing.assert_array_equal(shapely.get_coordinates(geoms, include_z=True), ref.xyz[ref.source == "dem"])
 
@@ -115,15 +115,15 @@ def test_selected_features_only(run, sheet, reference):
         chosen = ids[: max(1, len(ids) // 2)]
         contacts.selectByIds(chosen)
         src = QgsProcessingFeatureSourceDefinition(contacts.id(), selectedFeaturesOnly=True)
-        res = run("contactpicks", {"CONTACTS": src, "DEM": sheet["dem"], "PICKS": TMP})
+        res = run("contactpicks", {"CONTACTS": src, "DEM": sheet["dem"], "picks": TMP})
     finally:
         QgsProject.instance().removeMapLayer(contacts.id())
-    _, cols = table(res["PICKS"])
+    _, cols = table(res["picks"])
     assert set(cols["contact_id"].tolist()) <= set(chosen)
     opts = RunOptions(contacts=sheet["contacts"], out="/nonexistent-out", dem=sheet["dem"],
                       where=f"fid IN ({', '.join(map(str, chosen))})")
     lib = collect_picks(load_inputs(opts))
-    geoms, _ = table(res["PICKS"])
+    geoms, _ = table(res["picks"])
     np.testing.assert_array_equal(shapely.get_coordinates(geoms, include_z=True), lib.xyz)
 
 
@@ -136,9 +136,9 @@ def test_layers_in_another_crs_are_transformed(run, sheet, reference):
     fb = QgsProcessingFeedback()
     messages = []
     fb.pushInfo = messages.append  # collect the log lines
-    res = run("contactpicks", {"CONTACTS": moved, "DEM": sheet["dem"], "PICKS": TMP}, feedback=fb)
+    res = run("contactpicks", {"CONTACTS": moved, "DEM": sheet["dem"], "picks": TMP}, feedback=fb)
     assert any("reprojecting contacts" in m and "EPSG:32632" in m and "EPSG:32631" in m for m in messages)
-    geoms, _ = table(res["PICKS"])
+    geoms, _ = table(res["picks"])
     xyz = shapely.get_coordinates(geoms, include_z=True)
     ref = reference[1].picks
     dem_ref = ref.xyz[ref.source == "dem"]
@@ -155,14 +155,14 @@ def test_pick_spacing_is_the_library_spacing(run, sheet):
     from strikeline.pipeline import RunOptions, collect_picks, load_inputs
 
     res = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"],
-                               "PICK_SPACING": PICK_SPACING_M, "PICKS": TMP})
+                               "PICK_SPACING": PICK_SPACING_M, "picks": TMP})
     inputs = load_inputs(RunOptions(contacts=sheet["contacts"], out="/nonexistent-out", dem=sheet["dem"]))
     ref = collect_picks(inputs, spacing_m=PICK_SPACING_M)
-    geoms, cols = table(res["PICKS"])
+    geoms, cols = table(res["picks"])
     xyz = shapely.get_coordinates(geoms, include_z=True)
     np.testing.assert_array_equal(xyz, ref.xyz)
     np.testing.assert_array_equal(cols["contact_id"], ref.contact_id)
-    assert res["N_PICKS"] == len(ref) < len(collect_picks(inputs))  # the default is one DEM cell
+    assert res["n_picks"] == len(ref) < len(collect_picks(inputs))  # the default is one DEM cell
     # common practice: samples at equal steps no longer than the spacing along a line are never
     # farther apart than the spacing (a chord is no longer than its arc); the few longer steps
     # are gaps where the contact leaves the DEM's valid cells or a new part begins.
@@ -178,14 +178,14 @@ def test_plane_attitude_is_the_library_fit(run, sheet, reference, kind, tmp_path
     contacts, contours = topo(sheet, kind)
     picks_out = str(tmp_path / "picks.gpkg") if kind == "file" else TMP
     picks = run("contactpicks", {"CONTACTS": contacts, "DEM": sheet["dem"], "CONTOURS": contours,
-                                 "ELEV_FIELD": "elev_m", "PICKS": picks_out})["PICKS"]
-    res = run("planeattitude", {"PICKS": picks, "ATTITUDE": TMP})
+                                 "ELEV_FIELD": "elev_m", "picks": picks_out})["picks"]
+    res = run("planeattitude", {"PICKS": picks, "plane_attitudes": TMP})
     plane = reference[1].plane
-    for key, value in (("DIP_DEG", plane.dip_deg), ("DIP_DIRECTION_DEG", plane.dip_direction_deg),
-                       ("STRIKE_RHR_DEG", plane.strike_rhr_deg), ("RMS_M", plane.rms_m)):
+    for key, value in (("dip_deg", plane.dip_deg), ("dip_direction_deg", plane.dip_direction_deg),
+                       ("strike_rhr_deg", plane.strike_rhr_deg), ("rms_m", plane.rms_m)):
         assert res[key] == pytest.approx(value, abs=1e-9), key
-    assert res["N_PICKS"] == plane.n_points
-    geoms, cols = table(res["ATTITUDE"])
+    assert res["n_picks"] == plane.n_points
+    geoms, cols = table(res["plane_attitudes"])
     np.testing.assert_allclose(shapely.get_coordinates(geoms, include_z=True)[0], plane.centroid, atol=1e-6)
     assert cols["dip_deg"][0] == pytest.approx(plane.dip_deg, abs=1e-9)
     # External: the total-least-squares normal is the right singular vector of the centred
@@ -196,17 +196,17 @@ def test_plane_attitude_is_the_library_fit(run, sheet, reference, kind, tmp_path
     svd_dip = np.degrees(np.arctan2(np.hypot(n[0], n[1]), n[2]))
     # common practice: the downhill azimuth of a plane with upward normal n is atan2(nx, ny)
     svd_dd = np.degrees(np.arctan2(n[0], n[1])) % 360.0
-    assert res["DIP_DEG"] == pytest.approx(svd_dip, abs=1e-6)
-    assert res["DIP_DIRECTION_DEG"] == pytest.approx(svd_dd, abs=1e-6)
+    assert res["dip_deg"] == pytest.approx(svd_dip, abs=1e-6)
+    assert res["dip_direction_deg"] == pytest.approx(svd_dd, abs=1e-6)
     # common practice: strike by the right-hand rule is the dip direction minus 90°.
-    assert res["STRIKE_RHR_DEG"] == pytest.approx((svd_dd - 90.0) % 360.0, abs=1e-6)
+    assert res["strike_rhr_deg"] == pytest.approx((svd_dd - 90.0) % 360.0, abs=1e-6)
 
 
 def test_plane_confidence_and_quality_are_the_library_ones(run, sheet, reference):
     from strikeline.pipeline import attitude_of, segment_labels
 
-    picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "PICKS": TMP})["PICKS"]
-    res = run("planeattitude", {"PICKS": picks, "RESAMPLES": 200, "DEM_SIGMA": 0.5, "SEED": 3, "ATTITUDE": TMP})
+    picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "picks": TMP})["picks"]
+    res = run("planeattitude", {"PICKS": picks, "RESAMPLES": 200, "DEM_SIGMA": 0.5, "SEED": 3, "plane_attitudes": TMP})
     geoms, cols = table(picks)
     xyz = shapely.get_coordinates(geoms, include_z=True)
     # The library's call behind `strikeline attitude --dem-sigma 0.5 --resamples 200 --seed 3`:
@@ -215,13 +215,13 @@ def test_plane_confidence_and_quality_are_the_library_ones(run, sheet, reference
     att = attitude_of(xyz, np.full(len(xyz), 0.5), crs_wkt=reference[0].crs_wkt, what="picks", strict=False,
                       resamples=200, seed=3, blocks=blocks)
     assert att["confidence_method"] == "block_bootstrap+monte_carlo"
-    for key, k in (("DIP_CI95_DEG", "dip_ci95"), ("DIP_DIRECTION_CI95_DEG", "dip_direction_ci95"),
-                   ("CONE95_DEG", "cone95"), ("DIP_DIRECTION_TRUE_DEG", "dip_direction_true"),
-                   ("COPLANARITY_M", "coplanarity_M"), ("COLLINEARITY_K", "collinearity_K")):
-        assert res[key] == att[k], key
-    assert (res["QUALITY"], res["QUALITY_REASON"]) == (att["quality"], att["reason"])
-    _, row = table(res["ATTITUDE"])
-    assert row["quality"][0] == att["quality"] and row["cone95_deg"][0] == att["cone95"]
+    # one name for each value: the tool's output, the library's key (strikeline.vocabulary)
+    for key in ("dip_ci95_deg", "dip_direction_ci95_deg", "cone95_deg", "dip_direction_true_deg", "coplanarity",
+                "collinearity"):
+        assert res[key] == att[key], key
+    assert (res["quality"], res["reason"]) == (att["quality"], att["reason"])
+    _, row = table(res["plane_attitudes"])
+    assert row["quality"][0] == att["quality"] and row["cone95_deg"][0] == att["cone95_deg"]
     assert row["meridian_convergence_deg"][0] == att["meridian_convergence_deg"]
     # External: grid north and true north differ by the meridian convergence of UTM zone 31N at
     # the centroid; the true azimuth is the grid azimuth plus the convergence.
@@ -229,20 +229,20 @@ def test_plane_confidence_and_quality_are_the_library_ones(run, sheet, reference
     import pyproj
 
     lon, lat = pyproj.Transformer.from_crs("EPSG:32631", "EPSG:4326", always_xy=True).transform(
-        *att["centroid"][:2])
+        *att["centroid_m"][:2])
     gamma = pyproj.Proj("EPSG:32631").get_factors(lon, lat).meridian_convergence
     assert abs(abs(att["meridian_convergence_deg"]) - abs(gamma)) < 1e-6
-    assert (res["DIP_DIRECTION_TRUE_DEG"] - res["DIP_DIRECTION_DEG"]) % 360.0 == pytest.approx(
+    assert (res["dip_direction_true_deg"] - res["dip_direction_deg"]) % 360.0 == pytest.approx(
         att["meridian_convergence_deg"] % 360.0, abs=1e-9)
 
 
 def test_plane_per_group(run, sheet):
     picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"],
-                                 "CONTOURS": sheet["contours_uri"], "ELEV_FIELD": "elev_m", "PICKS": TMP})["PICKS"]
-    res = run("planeattitude", {"PICKS": picks, "GROUP_BY": "source", "RESAMPLES": 50, "ATTITUDE": TMP})
-    _, rows = table(res["ATTITUDE"])
+                                 "CONTOURS": sheet["contours_uri"], "ELEV_FIELD": "elev_m", "picks": TMP})["picks"]
+    res = run("planeattitude", {"PICKS": picks, "GROUP_BY": "source", "RESAMPLES": 50, "plane_attitudes": TMP})
+    _, rows = table(res["plane_attitudes"])
     assert rows["group"].tolist() == ["", "contours", "dem"]
-    assert rows["dip_deg"][0] == pytest.approx(res["DIP_DEG"], abs=1e-12)
+    assert rows["dip_deg"][0] == pytest.approx(res["dip_deg"], abs=1e-12)
     # common practice: contour and DEM picks of one planar contact give (nearly) the same dip.
     assert abs(rows["dip_deg"][1] - rows["dip_deg"][2]) < 0.5
 
@@ -268,10 +268,10 @@ def test_undetermined_quality_is_a_warning_in_the_log(run):
     fb = QgsProcessingFeedback()
     warnings = []
     fb.pushWarning = warnings.append
-    res = run("planeattitude", {"PICKS": mem, "RESAMPLES": 50, "ATTITUDE": TMP}, feedback=fb)
-    assert res["QUALITY"] == "undetermined"
+    res = run("planeattitude", {"PICKS": mem, "RESAMPLES": 50, "plane_attitudes": TMP}, feedback=fb)
+    assert res["quality"] == "undetermined"
     assert any("plane quality undetermined" in w and "data that would help" in w for w in warnings)
-    assert res["DIP_DEG"] is None  # an undetermined plane reports no attitude
+    assert res["dip_deg"] is None  # an undetermined plane reports no attitude
 
 
 def test_level_picks_give_a_horizontal_plane_without_direction(run):
@@ -286,15 +286,15 @@ def test_level_picks_give_a_horizontal_plane_without_direction(run):
     fb.pushInfo = logs.append
     # DEM_SIGMA 0: the picks' error unknown, as in the library call below
     res = run("planeattitude", {"PICKS": _point_layer("lake_shore", xyz), "RESAMPLES": 50, "DEM_SIGMA": 0.0,
-                                "ATTITUDE": TMP}, feedback=fb)
+                                "plane_attitudes": TMP}, feedback=fb)
     att = attitude_of(xyz, None, crs_wkt=QgsCoordinateReferenceSystem("EPSG:32631").toWkt(), what="picks",
                       strict=False, resamples=50)
-    assert att["dip_significant"] is False and res["QUALITY"] == att["quality"] == "good"
-    assert res["DIP_DEG"] == pytest.approx(att["dip"], abs=1e-12) and res["DIP_CI95_DEG"] == att["dip_ci95"]
-    assert res["DIP_DIRECTION_DEG"] is None and res["STRIKE_RHR_DEG"] is None
-    assert res["DIP_DIRECTION_TRUE_DEG"] is None and res["DIP_DIRECTION_CI95_DEG"] is None
+    assert att["dip_significant"] is False and res["quality"] == att["quality"] == "good"
+    assert res["dip_deg"] == pytest.approx(att["dip_deg"], abs=1e-12) and res["dip_ci95_deg"] == att["dip_ci95_deg"]
+    assert res["dip_direction_deg"] is None and res["strike_rhr_deg"] is None
+    assert res["dip_direction_true_deg"] is None and res["dip_direction_ci95_deg"] is None
     assert any("horizontal within its 95% confidence" in m for m in logs)
-    _, row = table(res["ATTITUDE"])
+    _, row = table(res["plane_attitudes"])
     assert row["dip_direction_deg"][0] is None and row["strike_rhr_deg"][0] is None  # null fields
 
 
@@ -302,23 +302,26 @@ def test_local_attitudes_are_the_library_ones(run, sheet, reference):
     from strikeline.attitude import local_attitudes
 
     picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"],
-                                 "CONTOURS": sheet["contours_uri"], "ELEV_FIELD": "elev_m", "PICKS": TMP})["PICKS"]
+                                 "CONTOURS": sheet["contours_uri"], "ELEV_FIELD": "elev_m", "picks": TMP})["picks"]
     # DEM_SIGMA 0: no Monte Carlo of the picks' error, as in the library call below
-    res = run("localattitudes", {"PICKS": picks, "WINDOW": 400.0, "RESAMPLES": 50, "DEM_SIGMA": 0.0,
-                                 "LOCAL_ATTITUDES": TMP})
+    res = run("localattitudes", {"PICKS": picks, "WINDOW": 400.0, "RESAMPLES": 50, "DEM_SIGMA": 0.0, "attitudes": TMP})
     geoms, cols = table(picks)
     xyz = shapely.get_coordinates(geoms, include_z=True)
     ref = local_attitudes(xyz, window_m=400.0, contact_id=cols["contact_id"].astype(np.int64), n_resamples=50,
                           n_draws=50)
-    assert res["N_WINDOWS"] == len(ref) > 0 and res["WINDOW_M"] == ref.window_m
-    g, out = table(res["LOCAL_ATTITUDES"], z=False)
+    assert res["n_windows"] == len(ref) > 0 and res["window_m"] == ref.window_m
+    g, out = table(res["attitudes"], z=False)
     np.testing.assert_array_equal(shapely.get_coordinates(g), np.column_stack([ref.x, ref.y]))
     for f in ("dip_deg", "dip_direction_deg", "strike_rhr_deg", "dip_ci95_deg", "cone95_deg", "elevation_m"):
         got = np.array([np.nan if v is None else v for v in out[f]], dtype=float)
         np.testing.assert_array_equal(got, getattr(ref, f), err_msg=f)
     assert out["quality"].tolist() == ref.quality.tolist()
-    assert [None if c is None else int(c) for c in out["contact_id"]] == [
-        None if c is None else int(c) for c in ref.contact_id]
+    # windows over all picks have no contact: -1, as in the attitudes layer of strikeline run
+    assert [int(c) for c in out["contact_id"]] == [-1 if c is None else int(c) for c in ref.contact_id]
+    # the same layer as the whole chain's: the fields of strikeline.vocabulary.ATTITUDES, in order
+    from strikeline import vocabulary as V
+
+    assert [f for f in out if f != "fid"] == list(V.ATTITUDES.field_names)
     # External: a window over a plane dips as the plane (the demo sheet's contact is planar).
     # Source: numpy.linalg.svd normal of all picks, as in test_plane_attitude_is_the_library_fit.
     p = reference[1].picks.xyz
@@ -333,8 +336,8 @@ def test_local_attitudes_are_the_library_ones(run, sheet, reference):
 def test_plane_attitude_from_a_z_field(run, sheet, reference):
     from qgis.core import QgsFeature, QgsGeometry, QgsVectorLayer
 
-    picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "PICKS": TMP})["PICKS"]
-    by_z = run("planeattitude", {"PICKS": picks, "ATTITUDE": TMP})
+    picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "picks": TMP})["picks"]
+    by_z = run("planeattitude", {"PICKS": picks, "plane_attitudes": TMP})
     # The same picks with their Z flattened to 0 m: only the elevation field still holds the
     # elevations, so a tool that read Z would find a horizontal plane instead.
     geoms, cols = table(picks)
@@ -346,9 +349,9 @@ def test_plane_attitude_from_a_z_field(run, sheet, reference):
         f.setAttributes([float(e)])
         feats.append(f)
     assert flat.dataProvider().addFeatures(feats)
-    by_field = run("planeattitude", {"PICKS": flat, "PICKS_ELEV_FIELD": "elevation_m", "ATTITUDE": TMP})
-    assert by_field["DIP_DEG"] == pytest.approx(by_z["DIP_DEG"], abs=1e-12)
-    assert by_field["DIP_DIRECTION_DEG"] == pytest.approx(by_z["DIP_DIRECTION_DEG"], abs=1e-12)
+    by_field = run("planeattitude", {"PICKS": flat, "PICKS_ELEV_FIELD": "elevation_m", "plane_attitudes": TMP})
+    assert by_field["dip_deg"] == pytest.approx(by_z["dip_deg"], abs=1e-12)
+    assert by_field["dip_direction_deg"] == pytest.approx(by_z["dip_direction_deg"], abs=1e-12)
 
 
 # ------------------------------------------------------------------------------------- surface
@@ -369,9 +372,9 @@ def test_surface_model_on_the_dem_grid(surface_tif, reference, sheet):
 
 def test_surface_model_over_an_extent(run, sheet, reference):
     picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"],
-                                 "CONTOURS": sheet["contours_uri"], "ELEV_FIELD": "elev_m", "PICKS": TMP})["PICKS"]
-    res = run("surfacemodel", {"PICKS": picks, "CELL": 25.0, "SURFACE": TMP})
-    got, gt, _ = raster(res["SURFACE"])
+                                 "CONTOURS": sheet["contours_uri"], "ELEV_FIELD": "elev_m", "picks": TMP})["picks"]
+    res = run("surfacemodel", {"PICKS": picks, "CELL": 25.0, "surface": TMP})
+    got, gt, _ = raster(res["surface"])
     xyz = reference[1].picks.xyz
     want = Grid.from_bounds(xyz[:, 0].min(), xyz[:, 1].min(), xyz[:, 0].max(), xyz[:, 1].max(), cell_m=25.0)
     assert gt == want.transform and got.shape == want.shape
@@ -386,7 +389,7 @@ def contour_picks(sheet):
 
     out = processing.run("strikeline:contactpicks", {
         "CONTACTS": sheet["contacts_uri"], "CONTOURS": sheet["contours_uri"], "ELEV_FIELD": "elev_m",
-        "PICKS": TMP})["PICKS"]
+        "picks": TMP})["picks"]
     geoms, _ = table(out)
     return out, shapely.get_coordinates(geoms, include_z=True)
 
@@ -397,20 +400,20 @@ def test_surface_models_are_the_library_models(run, contour_picks, model):
     from strikeline.pipeline import RunOptions, model_surface
 
     layer, xyz = contour_picks
-    res = run("surfacemodel", {"PICKS": layer, "MODEL": model_index(model), "CELL": 50.0, "SURFACE": TMP,
-                               "STANDARD_ERROR": TMP, "EXTRAPOLATED": TMP})
-    got, gt, _ = raster(res["SURFACE"])
+    res = run("surfacemodel", {"PICKS": layer, "MODEL": model_index(model), "CELL": 50.0, "surface": TMP,
+                               "uncertainty": TMP, "forecast_mask": TMP})
+    got, gt, _ = raster(res["surface"])
     grid = Grid(gt, got.shape)
     _, cols = table(layer)
     # The library's surface step of `strikeline run --model ...` (folds by contact segment).
     ref = model_surface(PickSet(xyz, cols["contact_id"].astype(np.int64), cols["source"].astype(str)),
                         RunOptions(contacts="picks", out="", model=model), grid, what="picks")
-    assert res["MODEL"] == ref.kind == model
-    assert res["CV_RMSE_M"] == pytest.approx(ref.cv_rmse_m[model], abs=1e-12)
+    assert res["model_chosen"] == ref.kind == model
+    assert res["cv_rmse_m"] == pytest.approx(ref.cv_rmse_m[model], abs=1e-12)
     np.testing.assert_array_equal(got, ref.evaluate_grid(grid).astype(np.float32).astype(float))
-    se, _, _ = raster(res["STANDARD_ERROR"])
+    se, _, _ = raster(res["uncertainty"])
     np.testing.assert_array_equal(se, ref.standard_error_grid(grid).astype(np.float32).astype(float))
-    ex, _, _ = raster(res["EXTRAPOLATED"])
+    ex, _, _ = raster(res["forecast_mask"])
     X, Y = grid.mesh()
     np.testing.assert_array_equal(ex.astype(bool), ref.is_extrapolated(X, Y))
     # External: the mask is "farther than the reach from every datum".
@@ -418,7 +421,7 @@ def test_surface_models_are_the_library_models(run, contour_picks, model):
     from scipy.spatial import cKDTree
 
     d, _ = cKDTree(ref.data_xy).query(np.column_stack([X.ravel(), Y.ravel()]))
-    np.testing.assert_array_equal(ex.ravel().astype(bool), d > res["REACH_M"])
+    np.testing.assert_array_equal(ex.ravel().astype(bool), d > res["reach_m"])
 
 
 def test_surface_model_honours_a_borehole(run, contour_picks, sheet):
@@ -434,8 +437,8 @@ def test_surface_model_honours_a_borehole(run, contour_picks, sheet):
     f.setGeometry(QgsGeometry.fromWkt("PointZ ({} {} {})".format(*BOREHOLE)))
     holes.dataProvider().addFeatures([f])
     res = run("surfacemodel", {"PICKS": layer, "MODEL": model_index("plane"), "REFERENCE": sheet["dem"], "BOREHOLES": holes,
-                               "BOREHOLE_SIGMA": 0.0, "SURFACE": TMP})
-    surface, grid = read_raster(res["SURFACE"], label="surface")
+                               "BOREHOLE_SIGMA": 0.0, "surface": TMP})
+    surface, grid = read_raster(res["surface"], label="surface")
     ref = fit_surface(xyz, model="plane", boreholes=np.array([BOREHOLE]), borehole_sigma_m=0.0,
                       cross_validate_model=False)
     np.testing.assert_array_equal(surface, ref.evaluate_grid(grid).astype(np.float32).astype(float))
@@ -458,8 +461,8 @@ def test_surface_model_with_the_demo_boreholes_and_dips(run, contour_picks, shee
                                "BOREHOLE_COLLAR_FIELD": "collar_m", "BOREHOLE_DEPTH_FIELD": "depth_m",
                                "BOREHOLE_SIGMA": 0.0,
                                "ORIENTATIONS": f"{d / 'orientations.gpkg'}|layername=dip_readings",
-                               "SURFACE": TMP})
-    surface, grid = read_raster(res["SURFACE"], label="surface")
+                               "surface": TMP})
+    surface, grid = read_raster(res["surface"], label="surface")
     opts = RunOptions(contacts="picks", out="", model="trend2", borehole_collar_field="collar_m",
                       borehole_depth_field="depth_m", borehole_sigma_m=0.0)
     holes = borehole_points(read_layer(d / "boreholes.gpkg", label="boreholes", geometry="point"), opts)
@@ -480,10 +483,10 @@ def test_structure_contours_dash_the_forecast(run, contour_picks):
     from scipy.spatial import cKDTree
 
     layer, xyz = contour_picks
-    sm = run("surfacemodel", {"PICKS": layer, "MODEL": model_index("plane"), "CELL": 25.0, "SURFACE": TMP, "EXTRAPOLATED": TMP})
-    res = run("structurecontours", {"SURFACE": sm["SURFACE"], "FORECAST_MASK": sm["EXTRAPOLATED"],
-                                    "INTERVAL": 50.0, "STRUCTURE_CONTOURS": TMP})
-    geoms, cols = table(res["STRUCTURE_CONTOURS"], z=False)
+    sm = run("surfacemodel", {"PICKS": layer, "MODEL": model_index("plane"), "CELL": 25.0, "surface": TMP, "forecast_mask": TMP})
+    res = run("structurecontours", {"SURFACE": sm["surface"], "FORECAST_MASK": sm["forecast_mask"],
+                                    "INTERVAL": 50.0, "structure_contours": TMP})
+    geoms, cols = table(res["structure_contours"], z=False)
     forecast = cols["extrapolated"].astype(bool)
     assert forecast.any() and (~forecast).any()
     # External: distance of each vertex to the nearest pick (scipy cKDTree): beyond the reach on
@@ -492,29 +495,29 @@ def test_structure_contours_dash_the_forecast(run, contour_picks):
     slack = 25.0 * np.sqrt(2.0)
     for g, fc in zip(geoms, forecast):
         d, _ = tree.query(shapely.get_coordinates(g))
-        assert (d > sm["REACH_M"] - slack).all() if fc else (d <= sm["REACH_M"] + slack).all()
+        assert (d > sm["reach_m"] - slack).all() if fc else (d <= sm["reach_m"] + slack).all()
 
 
 # ----------------------------------------------------------------------- maps from the surface
 def test_structure_contours_are_the_library_contours(run, surface_tif):
-    res = run("structurecontours", {"SURFACE": surface_tif, "INTERVAL": 50.0, "STRUCTURE_CONTOURS": TMP})
+    res = run("structurecontours", {"SURFACE": surface_tif, "INTERVAL": 50.0, "structure_contours": TMP})
     surface, grid = read_raster(surface_tif, label="surface")
     ref_g, ref_z = contour_lines(surface, grid, interval_m=50.0)
-    geoms, cols = table(res["STRUCTURE_CONTOURS"])
-    assert res["N_LINES"] == len(ref_g) > 0
-    np.testing.assert_array_equal(cols["elevation"], ref_z)
+    geoms, cols = table(res["structure_contours"])
+    assert res["n_lines"] == len(ref_g) > 0
+    np.testing.assert_array_equal(cols["elevation_m"], ref_z)
     for g, rg, z in zip(geoms, ref_g, ref_z):
         xyz = shapely.get_coordinates(g, include_z=True)
         np.testing.assert_array_equal(xyz[:, :2], shapely.get_coordinates(rg))
         assert np.all(xyz[:, 2] == z)
     # common practice: structure contours sit at whole multiples of the interval.
-    assert np.all(np.mod(cols["elevation"], 50.0) == 0.0)
+    assert np.all(np.mod(cols["elevation_m"], 50.0) == 0.0)
 
 
 def test_structure_contours_split_at_the_ground(run, surface_tif, sheet):
     res = run("structurecontours", {"SURFACE": surface_tif, "GROUND": sheet["dem"], "INTERVAL": 50.0,
-                                    "STRUCTURE_CONTOURS": TMP})
-    geoms, cols = table(res["STRUCTURE_CONTOURS"], z=False)
+                                    "structure_contours": TMP})
+    geoms, cols = table(res["structure_contours"], z=False)
     below = cols["below_ground"].astype(bool)
     assert below.any() and (~below).any()
     # External: ground minus surface at the vertices, both interpolated by scipy's linear
@@ -531,11 +534,11 @@ def test_structure_contours_split_at_the_ground(run, surface_tif, sheet):
 
 
 def test_dip_grids_are_the_library_grids(run, surface_tif):
-    res = run("dipgrids", {"SURFACE": surface_tif, "DIP": TMP, "DIP_DIRECTION": TMP})
+    res = run("dipgrids", {"SURFACE": surface_tif, "dip": TMP, "dip_direction": TMP})
     surface, grid = read_raster(surface_tif, label="surface")
     ref_dip, ref_dd = dip_grids(surface, grid)
-    dip, _, _ = raster(res["DIP"])
-    dd, _, _ = raster(res["DIP_DIRECTION"])
+    dip, _, _ = raster(res["dip"])
+    dd, _, _ = raster(res["dip_direction"])
     np.testing.assert_array_equal(dip, ref_dip.astype(float))
     np.testing.assert_array_equal(dd, ref_dd.astype(float))
     # External: GDAL's own slope and aspect of the same file (aspect = downhill azimuth from north).
@@ -553,26 +556,26 @@ def test_dip_grids_are_the_library_grids(run, surface_tif):
 def test_depth_trace_and_misfit(run, surface_tif, sheet, reference, kind):
     contacts, _ = topo(sheet, kind)
     res = run("depthtrace", {"SURFACE": surface_tif, "DEM": sheet["dem"], "CONTACTS": contacts,
-                             "DEPTH": TMP, "PREDICTED_TRACE": TMP, "MISFIT": TMP, "CONTACT_MISFIT": TMP})
+                             "depth": TMP, "predicted_trace": TMP, "trace_misfit": TMP, "contact_misfit": TMP})
     dem, dgrid = read_raster(sheet["dem"], label="DEM")
     surface, _ = read_raster(surface_tif, label="surface")
-    depth, _, _ = raster(res["DEPTH"])
+    depth, _, _ = raster(res["depth"])
     np.testing.assert_array_equal(depth, depth_below_ground(dem, surface).astype(np.float32).astype(float))
     r = reference[1]
     np.testing.assert_allclose(depth, r.depth_m, atol=F32_ELEVATION_TOL_M, equal_nan=True)
-    geoms, _ = table(res["PREDICTED_TRACE"])
+    geoms, _ = table(res["predicted_trace"])
     ref_trace, _ = contour_lines(depth_below_ground(dem, surface), dgrid, levels=[0.0])
     assert_same_lines(geoms, np.zeros(len(geoms)), ref_trace, np.zeros(len(ref_trace)), tol_m=1e-9)
     assert_same_lines(geoms, np.zeros(len(geoms)), r.trace_geoms, np.zeros(len(r.trace_geoms)), tol_m=0.01)
-    tm = r.summary["trace_misfit_m"]
-    assert res["MISFIT_MEDIAN_M"] == pytest.approx(tm["median"], abs=1e-3)
-    assert res["MISFIT_P90_M"] == pytest.approx(tm["p90"], abs=1e-3)
-    assert res["MISFIT_N"] == tm["n_vertices"]
+    tm = r.summary["trace_misfit"]
+    assert res["trace_misfit_median_m"] == pytest.approx(tm["median_m"], abs=1e-3)
+    assert res["trace_misfit_p90_m"] == pytest.approx(tm["p90_m"], abs=1e-3)
+    assert res["trace_misfit_n_vertices"] == tm["n_vertices"]
     # External: each vertex's distance to the trace. Source: GEOS point-line distance (shapely 2.0).
-    pts, cols = table(res["MISFIT"], z=False)
+    pts, cols = table(res["trace_misfit"], z=False)
     trace = shapely.multilinestrings(list(geoms))
     np.testing.assert_allclose(cols["distance_m"], shapely.distance(pts, trace), atol=1e-9)
-    assert res["MISFIT_MEDIAN_M"] == pytest.approx(float(np.median(cols["distance_m"])), abs=1e-12)
+    assert res["trace_misfit_median_m"] == pytest.approx(float(np.median(cols["distance_m"])), abs=1e-12)
     # Contact segments: the library's own segmentation against the same trace.
     from strikeline.picks import sample_bilinear
     from strikeline.maps.trace import contact_misfit_segments
@@ -580,7 +583,7 @@ def test_depth_trace_and_misfit(run, surface_tif, sheet, reference, kind):
     ref_contacts = reference[0].contacts
     seg = contact_misfit_segments(ref_contacts.geoms, ref_contacts.fids, ref_trace, segment_m=100.0, flag_m=30.0,
                                   valid_fn=lambda x, y: np.isfinite(sample_bilinear(dem, dgrid, x, y)))
-    sg, sc = table(res["CONTACT_MISFIT"], z=False)
+    sg, sc = table(res["contact_misfit"], z=False)
     assert len(sg) == len(seg["geoms"]) > 0
     np.testing.assert_array_equal(np.array([np.nan if v is None else v for v in sc["misfit_m"]], float),
                                   seg["misfit_m"])
@@ -596,32 +599,35 @@ def test_whole_chain_is_the_library_chain(run, sheet, reference, kind, tmp_path)
     import json
 
     contacts, contours = topo(sheet, kind)
-    rasters = ("SURFACE", "DIP", "DIP_DIRECTION", "UNCERTAINTY", "DEPTH")
+    rasters = ("surface", "dip", "dip_direction", "uncertainty", "depth")
     out = {k: str(tmp_path / f"{k.lower()}.tif") for k in rasters}
-    layers = ("PICKS", "STRUCTURE_CONTOURS", "PREDICTED_TRACE", "CONTACT_MISFIT", "ATTITUDES")
+    layers = ("picks", "structure_contours", "predicted_trace", "contact_misfit", "attitudes")
     out.update({k: str(tmp_path / f"{k.lower()}.gpkg") for k in layers})
     res = run("modelcontact", {"CONTACTS": contacts, "DEM": sheet["dem"], "CONTOURS": contours,
-                               "ELEV_FIELD": "elev_m", "INTERVAL": 50.0, "SUMMARY": str(tmp_path / "summary.json"),
+                               "ELEV_FIELD": "elev_m", "INTERVAL": 50.0, "summary": str(tmp_path / "summary.json"),
                                **QUICK_TOOL, **out})
     inputs, r = reference
     for key, arr in zip(rasters, (r.surface, r.dip_deg, r.dip_direction_deg, r.uncertainty_m, r.depth_m)):
         got, gt, _ = raster(res[key])
         assert gt == r.grid.transform
         np.testing.assert_array_equal(got, np.asarray(arr, dtype=np.float32).astype(float), err_msg=key)
-    geoms, cols = table(res["STRUCTURE_CONTOURS"])
-    np.testing.assert_array_equal(cols["elevation"], r.contour_elevations_m)
+    geoms, cols = table(res["structure_contours"])
+    np.testing.assert_array_equal(cols["elevation_m"], r.contour_elevations_m)
     assert cols["extrapolated"].astype(bool).tolist() == r.contour_extrapolated.tolist()
     assert r.contour_extrapolated.any() and not r.contour_extrapolated.all()
     for g, rg in zip(geoms, r.contour_geoms):
         np.testing.assert_array_equal(shapely.get_coordinates(g), shapely.get_coordinates(rg))
-    geoms, _ = table(res["PICKS"])
+    geoms, _ = table(res["picks"])
     np.testing.assert_array_equal(shapely.get_coordinates(geoms, include_z=True), r.picks.xyz)
-    geoms, cols = table(res["PREDICTED_TRACE"], z=False)
+    geoms, cols = table(res["predicted_trace"], z=False)
     assert len(geoms) == len(r.trace_geoms) and cols["extrapolated"].astype(bool).tolist() == r.trace_extrapolated.tolist()
-    geoms, cols = table(res["CONTACT_MISFIT"], z=False)
+    geoms, cols = table(res["contact_misfit"], z=False)
     assert len(geoms) == len(r.contact_misfit["geoms"])
     assert cols["flagged"].astype(bool).tolist() == r.contact_misfit["flagged"].tolist()
-    geoms, cols = table(res["ATTITUDES"], z=False)
+    geoms, cols = table(res["attitudes"], z=False)
+    from strikeline import vocabulary as V
+
+    assert [f for f in cols if f != "fid"] == list(V.ATTITUDES.field_names)  # as the local-attitudes tool's
     np.testing.assert_array_equal(shapely.get_coordinates(geoms), np.column_stack([r.attitudes.x, r.attitudes.y]))
     assert cols["quality"].tolist() == r.attitudes.quality.tolist()
     summary = json.loads((tmp_path / "summary.json").read_text())
@@ -629,8 +635,8 @@ def test_whole_chain_is_the_library_chain(run, sheet, reference, kind, tmp_path)
     if kind == "memory":  # only files are hashed; the DEM is the one file among the inputs
         want["inputs"] = {k: v for k, v in want["inputs"].items() if k == "dem.tif"}
     assert summary == json.loads(json.dumps(want))
-    assert res["DIP_DEG"] == r.summary["plane"]["dip"] and res["MODEL_USED"] == "plane"
-    assert res["MISFIT_MEDIAN_M"] == r.summary["trace_misfit_m"]["median"]
+    assert res["dip_deg"] == r.summary["plane"]["dip_deg"] and res["model_chosen"] == "plane"
+    assert res["trace_misfit_median_m"] == r.summary["trace_misfit"]["median_m"]
 
 
 def test_whole_chain_with_boreholes_dips_groups_and_top(run, sheet, library, tmp_path):
@@ -643,9 +649,9 @@ def test_whole_chain_with_boreholes_dips_groups_and_top(run, sheet, library, tmp
         "ORIENTATIONS": f"{d / 'orientations.gpkg'}|layername=dip_readings",
         "TOP_CONTACTS": f"{d / 'top_contacts.gpkg'}|layername=top_contacts", **QUICK_TOOL,
         "CONTACT_SIGMA": 1.5,
-        "PICKS": TMP, "STRUCTURE_CONTOURS": TMP, "SURFACE": TMP, "DIP": TMP, "DIP_DIRECTION": TMP,
-        "VERTICAL_THICKNESS": TMP, "TRUE_THICKNESS": TMP, "TOP_PICKS": TMP,
-        "SUMMARY": str(tmp_path / "summary.json")})
+        "picks": TMP, "structure_contours": TMP, "surface": TMP, "dip": TMP, "dip_direction": TMP,
+        "vertical_thickness": TMP, "true_thickness": TMP, "top_picks": TMP,
+        "summary": str(tmp_path / "summary.json")})
     import json
 
     from strikeline.pipeline import RunOptions, compute, load_inputs
@@ -661,11 +667,11 @@ def test_whole_chain_with_boreholes_dips_groups_and_top(run, sheet, library, tmp
     assert summary["data_error"]["contact_sigma_m"] == 1.5  # the QGIS parameter reached the library
     assert summary == json.loads(json.dumps(r.summary))
     assert set(summary["groups"]["planes"]) == set(r.summary["groups"]["planes"]) and len(summary["groups"]["planes"]) > 1
-    for key, arr in (("SURFACE", r.surface), ("VERTICAL_THICKNESS", r.vertical_thickness_m),
-                     ("TRUE_THICKNESS", r.true_thickness_m)):
+    for key, arr in (("surface", r.surface), ("vertical_thickness", r.vertical_thickness_m),
+                     ("true_thickness", r.true_thickness_m)):
         got, _, _ = raster(res[key])
         np.testing.assert_array_equal(got, np.asarray(arr, dtype=np.float32).astype(float), err_msg=key)
-    geoms, _ = table(res["TOP_PICKS"])
+    geoms, _ = table(res["top_picks"])
     np.testing.assert_array_equal(shapely.get_coordinates(geoms, include_z=True), r.top_picks.xyz)
     # External: the demo's top lies 73.6 m (true thickness) above the base, both planar and
     # parallel; within reach of the data the isopach is that thickness.
@@ -674,38 +680,38 @@ def test_whole_chain_with_boreholes_dips_groups_and_top(run, sheet, library, tmp
     assert summary["thickness"]["mean_m"] == pytest.approx(TRUE_THICKNESS_M, abs=1.0)
     # common practice: vertical thickness = true thickness / cos(dip) for parallel planes
     VERTICAL_M = TRUE_THICKNESS_M / np.cos(np.radians(sheet["truth"]["dip_deg"]))
-    v, _, _ = raster(res["VERTICAL_THICKNESS"])
+    v, _, _ = raster(res["vertical_thickness"])
     assert np.nanmedian(v) == pytest.approx(VERTICAL_M, abs=1.0)
 
 
 def test_whole_chain_pick_spacing_is_the_command_line_one(run, sheet, library):
     res = run("modelcontact", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"],
                                "PICK_SPACING": PICK_SPACING_M, "INTERVAL": 50.0, **QUICK_TOOL,
-                               "PICKS": TMP, "STRUCTURE_CONTOURS": TMP, "SURFACE": TMP, "DIP": TMP,
-                               "DIP_DIRECTION": TMP})
+                               "picks": TMP, "structure_contours": TMP, "surface": TMP, "dip": TMP,
+                               "dip_direction": TMP})
     # The reference: the library's run with --pick-spacing (RunOptions.pick_spacing_m).
     _, r = library(sheet, contours=False, pick_spacing_m=PICK_SPACING_M)
-    geoms, _ = table(res["PICKS"])
+    geoms, _ = table(res["picks"])
     np.testing.assert_array_equal(shapely.get_coordinates(geoms, include_z=True), r.picks.xyz)
-    assert res["N_PICKS"] == len(r.picks) == r.summary["n_picks"]
-    got, _, _ = raster(res["SURFACE"])
+    assert res["n_picks"] == len(r.picks) == r.summary["n_picks"]
+    got, _, _ = raster(res["surface"])
     np.testing.assert_array_equal(got, r.surface.astype(np.float32).astype(float))
     # External: the plane through picks at any spacing along the one planar contact is the
     # demo's plane. Source: test_data/demo/truth.json (the plane the sheet was built from).
-    assert res["DIP_DEG"] == pytest.approx(sheet["truth"]["dip_deg"], abs=0.5)
-    assert res["DIP_DIRECTION_DEG"] == pytest.approx(sheet["truth"]["dip_direction_deg"], abs=1.0)
+    assert res["dip_deg"] == pytest.approx(sheet["truth"]["dip_deg"], abs=0.5)
+    assert res["dip_direction_deg"] == pytest.approx(sheet["truth"]["dip_direction_deg"], abs=1.0)
 
 
 def test_whole_chain_without_a_dem(run, sheet, library):
     res = run("modelcontact", {"CONTACTS": sheet["contacts_uri"], "CONTOURS": sheet["contours_uri"],
-                               "ELEV_FIELD": "elev_m", "INTERVAL": 50.0, "PICKS": TMP, **QUICK_TOOL,
-                               "STRUCTURE_CONTOURS": TMP, "SURFACE": TMP, "DIP": TMP, "DIP_DIRECTION": TMP})
+                               "ELEV_FIELD": "elev_m", "INTERVAL": 50.0, "picks": TMP, **QUICK_TOOL,
+                               "structure_contours": TMP, "surface": TMP, "dip": TMP, "dip_direction": TMP})
     _, r = library(sheet, dem=False)
-    got, gt, _ = raster(res["SURFACE"])
+    got, gt, _ = raster(res["surface"])
     assert gt == r.grid.transform
     np.testing.assert_array_equal(got, r.surface.astype(np.float32).astype(float))
-    assert res["N_PICKS"] == len(r.picks) == r.picks.counts_by_source()["contours"]
-    assert "PREDICTED_TRACE" not in res and "DEPTH" not in res
+    assert res["n_picks"] == len(r.picks) == r.picks.counts_by_source()["contours"]
+    assert "predicted_trace" not in res and "depth" not in res
 
 
 def test_whole_chain_on_a_level_contact_gives_a_horizontal_plane(run, sheet, tmp_path):
@@ -726,12 +732,12 @@ def test_whole_chain_on_a_level_contact_gives_a_horizontal_plane(run, sheet, tmp
     fb = QgsProcessingFeedback()
     logs = []
     fb.pushInfo = logs.append
-    res = run("modelcontact", {"CONTACTS": mem, "DEM": sheet["dem"], "INTERVAL": 50.0, "PICKS": TMP, **QUICK_TOOL,
-                               "STRUCTURE_CONTOURS": TMP, "SURFACE": TMP, "DIP": TMP, "DIP_DIRECTION": TMP},
+    res = run("modelcontact", {"CONTACTS": mem, "DEM": sheet["dem"], "INTERVAL": 50.0, "picks": TMP, **QUICK_TOOL,
+                               "structure_contours": TMP, "surface": TMP, "dip": TMP, "dip_direction": TMP},
               feedback=fb)
-    assert res["QUALITY"] != "undetermined"
-    assert res["DIP_DIRECTION_DEG"] is None and res["STRIKE_RHR_DEG"] is None
-    assert res["DIP_DEG"] < 0.05  # level to centimetres over kilometres
+    assert res["quality"] != "undetermined"
+    assert res["dip_direction_deg"] is None and res["strike_rhr_deg"] is None
+    assert res["dip_deg"] < 0.05  # level to centimetres over kilometres
     assert any("horizontal within its 95% confidence" in m for m in logs)
-    got, _, _ = raster(res["SURFACE"])
+    got, _, _ = raster(res["surface"])
     assert np.nanmax(np.abs(got - 500.0)) < 1.0  # a level surface at the contour's height

@@ -54,15 +54,15 @@ def test_whole_chain_gives_the_librarys_constraints_and_surface(run, units, libr
     res = run("modelcontact", {"CONTACTS": f"{FOLD / 'contacts.gpkg'}|layername=contacts",
                                "DEM": str(FOLD / "dem.tif"), "MODEL": model_index("spline"),
                                "RESAMPLES": 100, "PICK_SPACING": PICK_SPACING_M, "MAP_UNITS": units, **UNITS,
-                               "SUMMARY": str(summary),
-                               "PICKS": TMP, "STRUCTURE_CONTOURS": TMP, "SURFACE": str(tmp_path / "s.tif"),
-                               "DIP": TMP, "DIP_DIRECTION": TMP, "UNIT_CONFLICTS": TMP})
+                               "summary": str(summary),
+                               "picks": TMP, "structure_contours": TMP, "surface": str(tmp_path / "s.tif"),
+                               "dip": TMP, "dip_direction": TMP, "unit_conflicts": TMP})
     got = json.loads(summary.read_text())["map_units"]
     assert got == library_run.summary["map_units"]
-    assert res["UNIT_CHECK_VIOLATED"] == got["check"]["n_violated"]
-    z, _, _ = raster(res["SURFACE"])
+    assert res["unit_check_n_violated"] == got["check"]["n_violated"]
+    z, _, _ = raster(res["surface"])
     assert np.nanmax(np.abs(z - library_run.surface)) < FLOAT32_TOL_M
-    geoms, cols = table(res["UNIT_CONFLICTS"], z=False)
+    geoms, cols = table(res["unit_conflicts"], z=False)
     assert len(geoms) == got["check"]["n_violated"]
     assert set(cols) >= {"unit", "side", "violation_m"}
 
@@ -86,8 +86,8 @@ def test_surface_model_tool_gives_the_librarys_constrained_surface(run, units, l
 
     picks = library_run.picks
     res = run("surfacemodel", {"PICKS": picks_uri, "MODEL": model_index("spline"), "REFERENCE": str(FOLD / "dem.tif"),
-                               "MAP_UNITS": units, **UNITS, "SURFACE": str(tmp_path / "s.tif"),
-                               "UNIT_CONFLICTS": TMP})
+                               "MAP_UNITS": units, **UNITS, "surface": str(tmp_path / "s.tif"),
+                               "unit_conflicts": TMP})
     # the library on the same picks, units and grid
     dem, grid = read_raster(str(FOLD / "dem.tif"), label="DEM")
     opts = RunOptions(contacts="", out="", model="spline", unit_field="unit", units_above="Cawl",
@@ -98,10 +98,10 @@ def test_surface_model_tool_gives_the_librarys_constrained_surface(run, units, l
     m = model_surface(PickSet(picks.xyz, picks.contact_id, picks.source), opts, grid, bounds=ub.bounds,
                       what="picks")
     ref = m.evaluate_grid(grid.with_nodata(None))
-    z, _, _ = raster(res["SURFACE"])
+    z, _, _ = raster(res["surface"])
     assert np.nanmax(np.abs(z - ref)) < FLOAT32_TOL_M
-    assert res["MODEL"] == "spline"
-    assert res["UNIT_CHECK_VIOLATED"] == len(table(res["UNIT_CONFLICTS"])[0])
+    assert res["model_chosen"] == "spline"
+    assert res["unit_check_n_violated"] == len(table(res["unit_conflicts"])[0])
 
 
 def _message(run, name, params):
@@ -114,8 +114,8 @@ def _message(run, name, params):
 
 def test_bad_unit_parameters_fail_with_the_librarys_words(run, units, picks_uri):
     base = {"CONTACTS": f"{FOLD / 'contacts.gpkg'}|layername=contacts", "DEM": str(FOLD / "dem.tif"),
-            "MODEL": model_index("spline"), "PICKS": TMP, "STRUCTURE_CONTOURS": TMP, "SURFACE": TMP, "DIP": TMP,
-            "DIP_DIRECTION": TMP}
+            "MODEL": model_index("spline"), "picks": TMP, "structure_contours": TMP, "surface": TMP, "dip": TMP,
+            "dip_direction": TMP}
     msg = _message(run, "modelcontact", {**base, "MAP_UNITS": units, **UNITS, "UNITS_ABOVE": "Cawl,Chalk"})
     assert "unit(s) Chalk not found in field 'unit'" in msg and "(units found: Alluvium, Brenlow, Cawl)" in msg
     assert "the 'Units above the surface (comma-separated)'" in msg
@@ -124,5 +124,5 @@ def test_bad_unit_parameters_fail_with_the_librarys_words(run, units, picks_uri)
     msg = _message(run, "modelcontact", {**base, "MAP_UNITS": units, **UNITS, "UNITS_BELOW": "Cawl"})
     assert "both name Cawl" in msg
     msg = _message(run, "surfacemodel", {"PICKS": picks_uri, "CELL": 50.0, "MAP_UNITS": units, **UNITS,
-                                         "SURFACE": TMP})
+                                         "surface": TMP})
     assert "need the reference grid: give the DEM as the reference grid" in msg
