@@ -136,13 +136,14 @@ def compute(args, *, log=lambda m: print(m, file=sys.stderr)) -> dict:
         "options": {"dem_sigma_m": args.dem_sigma_m, "resamples": args.resamples, "seed": args.seed,
                     "group_by": args.group_by},
         "plane": planes.plane,
-        "conventions": "dip direction 0-360 clockwise from grid north of the CRS (dip_direction_true "
+        "conventions": "dip direction 0-360 clockwise from grid north of the CRS (dip_direction_true_deg "
                        "from true north); dip 0-90 from horizontal; strike by the right-hand rule "
-                       "(dip to the right); *_ci95 are 95% half-widths in degrees",
+                       "(dip to the right); *_ci95_deg are 95% half-widths in degrees",
         "caution": CAUTION,
     }
     if labels is not None:
-        result["groups"] = planes.groups
+        result["groups"] = {"field": args.group_by,
+                            "planes": planes.groups}
     return json_ready(result)
 
 
@@ -170,23 +171,23 @@ def _plane_lines(title: str, pl: dict, options: dict) -> list[str]:
             return ""
         return f" +/- {v:.1f}" if v >= 1 else (f" +/- {v:.2f}" if v >= 0.01 else f" +/- {v:.3f}")
 
-    dd_ci = pl.get("dip_direction_ci95")
+    dd_ci = pl.get("dip_direction_ci95_deg")
     lines = [f"{title} ({n} points): {q}"]
-    if pl.get("dip_direction") is None:
-        lines.append(f"  dip {pl['dip']:.2f}{pm(pl['dip_ci95'])} deg: horizontal within its 95% confidence "
+    if pl.get("dip_direction_deg") is None:
+        lines.append(f"  dip {pl['dip_deg']:.2f}{pm(pl['dip_ci95_deg'])} deg: horizontal within its 95% confidence "
                      "(the dip does not differ from 0, so there is no dip direction or strike)")
     elif dd_ci is not None and dd_ci >= _DD_UNDETERMINED:
-        lines.append(f"  dip {pl['dip']:.2f}{pm(pl['dip_ci95'])} deg; dip direction undetermined within "
-                     f"the 95% confidence (estimate {pl['dip_direction']:.1f} deg from grid north, "
-                     f"{pl['dip_direction_true']:.1f} deg from true north): the plane is nearly horizontal")
+        lines.append(f"  dip {pl['dip_deg']:.2f}{pm(pl['dip_ci95_deg'])} deg; dip direction undetermined within "
+                     f"the 95% confidence (estimate {pl['dip_direction_deg']:.1f} deg from grid north, "
+                     f"{pl['dip_direction_true_deg']:.1f} deg from true north): the plane is nearly horizontal")
     else:
-        lines.append(f"  dip {pl['dip']:.2f}{pm(pl['dip_ci95'])} deg toward {pl['dip_direction']:.2f}"
+        lines.append(f"  dip {pl['dip_deg']:.2f}{pm(pl['dip_ci95_deg'])} deg toward {pl['dip_direction_deg']:.2f}"
                      f"{pm(dd_ci)} deg from grid north")
-        lines.append(f"  dip direction from true north {pl['dip_direction_true']:.2f}{pm(dd_ci)} deg "
+        lines.append(f"  dip direction from true north {pl['dip_direction_true_deg']:.2f}{pm(dd_ci)} deg "
                      f"(meridian convergence {pl['meridian_convergence_deg']:+.3f} deg at the points' centre)")
-    if pl.get("strike_rhr") is not None:
-        lines.append(f"  strike {pl['strike_rhr']:.2f} deg (right-hand rule, grid north)")
-    if pl.get("dip_ci95") is None:
+    if pl.get("strike_rhr_deg") is not None:
+        lines.append(f"  strike {pl['strike_rhr_deg']:.2f} deg (right-hand rule, grid north)")
+    if pl.get("dip_ci95_deg") is None:
         lines.append(f"  RMS residual {pl['rms_m']:.2f} m; no 95% half-widths: {n} points fix a plane exactly "
                      "but leave no scatter to estimate its error (a bootstrap needs at least 4); add points")
     else:
@@ -205,7 +206,7 @@ def report(result: dict, stream=None) -> None:
     for line in _plane_lines("best-fit plane of all points", result["plane"], result["options"]):
         print(line, file=stream)
     field = result["options"]["group_by"]
-    for g, pl in result.get("groups", {}).items():
+    for g, pl in result.get("groups", {}).get("planes", {}).items():
         for line in _plane_lines(f"group {field} = {g}", pl, result["options"]):
             print(line, file=stream)
 

@@ -22,6 +22,7 @@ from pathlib import Path
 from strikeline import CAUTION
 from strikeline.cli.options import EPILOG, OneLineParser, add_option, add_options
 from strikeline.errors import InputError
+from strikeline.vocabulary import TRUE_THICKNESS, VERTICAL_THICKNESS
 
 HELP = "true thickness of a unit from outcrop width, two points, a borehole, or two surface grids"
 
@@ -260,7 +261,7 @@ def grids(top_path: str, base_path: str, out: str, *, overwrite: bool = False, s
     if n_neg:
         print(f"warning: in {n_neg} cells the top lies below the base (negative thickness): the two "
               "surfaces cross there, or --top and --base are swapped", file=sys.stderr)
-    _write_folder(out_path, {"vertical_thickness.tif": vertical, "true_thickness.tif": true},
+    _write_folder(out_path, {VERTICAL_THICKNESS.file: vertical, TRUE_THICKNESS.file: true},
                   gt.with_nodata(None), overwrite=overwrite)
     sv, st = _spread(vertical), _spread(true)
 
@@ -276,7 +277,7 @@ def grids(top_path: str, base_path: str, out: str, *, overwrite: bool = False, s
          "from central differences (exact for a top parallel to the base); std over cells, p10/p90 "
          "the 10th and 90th percentiles",
          f"reference: {RAGAN} (vertical thickness); {ZEVENBERGEN}",
-         f"written to {out}/ (vertical_thickness.tif, true_thickness.tif)",
+         f"written to {out}/ ({VERTICAL_THICKNESS.file}, {TRUE_THICKNESS.file})",
          CAUTION, stream=stream)
     return 0
 
