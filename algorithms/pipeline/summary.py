@@ -10,8 +10,6 @@ from strikeline import CAUTION, __version__
 from strikeline.io.crs import crs_label
 from strikeline.io.files import file_sha256, json_ready
 from strikeline.pipeline.options import SEGMENT_CELLS
-from strikeline.pipeline.options import SEGMENT_CELLS
-from strikeline.pipeline.options import SEGMENT_CELLS
 from strikeline.attitude.local import LocalAttitudes
 from strikeline.picks import (PickSet)
 from strikeline.surfaces import SurfaceModel
