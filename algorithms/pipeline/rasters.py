@@ -106,3 +106,12 @@ def forecast_mask(model, grid: Grid) -> np.ndarray:
     (:meth:`strikeline.surfaces.SurfaceModel.is_extrapolated` at the cell centres)."""
     X, Y = grid.mesh()
     return model.is_extrapolated(X, Y).astype(np.float32)
+
+
+def surface_dip_grids(surface, grid: Grid, *, progress=None, is_cancelled=None):
+    """Dip and dip-direction grids (degrees) of a modelled surface read back from its GeoTIFF, as
+    the whole chain makes them (:func:`strikeline.maps.dipgrids.dip_grids`); the surface's nodata
+    cells are NaN already, so the grid is taken without a nodata value."""
+    from strikeline.maps.dipgrids import dip_grids
+
+    return dip_grids(surface, grid.with_nodata(None), progress=progress, is_cancelled=is_cancelled)

@@ -134,3 +134,13 @@ def test_trace_misfit_layer():
     np.testing.assert_array_equal(shapely.get_coordinates(layer.geoms), [[1, 2], [3, 4]])
     assert layer.fields["distance_m"].tolist() == [0.5, 7.0] and layer.name == "trace_misfit"
     assert len(trace_misfit_layer(np.empty((0, 2)), []).geoms) == 0
+
+
+def test_surface_dip_grids_of_a_plane():
+    from strikeline.pipeline.rasters import surface_dip_grids
+
+    surface, _ = surface_and_ground()
+    dip, dipdir = surface_dip_grids(surface, GRID.with_nodata(-9999.0))
+    # Source: the plane's own formula above: 20 deg toward the east (90 deg) everywhere.
+    np.testing.assert_allclose(dip, DIP_DEG, atol=1e-9)
+    np.testing.assert_allclose(dipdir, 90.0, atol=1e-9)
