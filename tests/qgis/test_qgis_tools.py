@@ -465,8 +465,10 @@ def test_surface_model_with_the_demo_boreholes_and_dips(run, contour_picks, shee
     surface, grid = read_raster(res["surface"], label="surface")
     opts = RunOptions(contacts="picks", out="", model="trend2", borehole_collar_field="collar_m",
                       borehole_depth_field="depth_m", borehole_sigma_m=0.0)
-    holes = borehole_points(read_layer(d / "boreholes.gpkg", label="boreholes", geometry="point"), opts)
-    dips = orientation_rows(read_layer(d / "orientations.gpkg", label="orientations", geometry="point"), opts)
+    holes = borehole_points(read_layer(d / "boreholes.gpkg", label="boreholes", geometry="point",
+                                       layer_option="--boreholes-layer"), opts)
+    dips = orientation_rows(read_layer(d / "orientations.gpkg", label="orientations", geometry="point",
+                                       layer_option="--orientations-layer"), opts)
     _, cols = table(layer)
     ref = model_surface(PickSet(xyz, cols["contact_id"].astype(np.int64), cols["source"].astype(str)), opts,
                         grid, boreholes=holes, orientations=dips, what="picks")

@@ -92,7 +92,7 @@ def test_surface_model_tool_gives_the_librarys_constrained_surface(run, units, l
     dem, grid = read_raster(str(FOLD / "dem.tif"), label="DEM")
     opts = RunOptions(contacts="", out="", model="spline", unit_field="unit", units_above="Cawl",
                       units_below="Brenlow")
-    lyr = read_layer(units.split("|")[0], label="map units", geometry="polygon")
+    lyr = read_layer(units.split("|")[0], label="map units", geometry="polygon", layer_option="--map-units-layer")
     polys, labels = map_unit_polygons(lyr, opts)
     ub = map_unit_bounds(polys, labels, dem, grid, opts)
     m = model_surface(PickSet(picks.xyz, picks.contact_id, picks.source), opts, grid, bounds=ub.bounds,
