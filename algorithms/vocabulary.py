@@ -223,7 +223,12 @@ _MODEL_PARAMS = (
     _s("bayes_scale", None, "spline: scale of the Bayesian standard error"),
     _s("n_nodes", None, "spline: nodes", "integer"), _s("n_boreholes", None, "boreholes used", "integer"),
     _s("n_orientations", None, "dip readings used", "integer"),
-    _s("n_bounds", None, "inequality bounds (map units)", "integer"))
+    _s("n_bounds", None, "inequality bounds (map units)", "integer"),
+    _s("n_active_bounds", None, "spline with bounds: bounds held as equalities at the end", "integer"),
+    _s("bound_iterations", None, "spline with bounds: rounds of the active-set solver", "integer"),
+    _s("n_bounds_broken", None, "spline with bounds: bounds still broken beyond the tolerance", "integer"),
+    _s("max_bound_violation_m", "m", "spline with bounds: largest violation of a bound"),
+    _s("bound_method", None, "spline with bounds: how the bounds were solved", "text"))
 _MODEL = (
     _s("chosen", None, "the surface model used: plane, trend2 or spline", "text"),
     _s("selection", None, "how it was chosen (asked, or auto and the rule)", "text"),

@@ -178,3 +178,43 @@ def test_demo_results_gpkg_and_rasters_use_exactly_the_vocabulary(demo_results):
     tifs = {p.name for p in demo_results.glob("*.tif")}
     assert tifs <= {r.file for r in V.RASTERS.values()} and {"surface.tif", "dip.tif", "depth.tif"} <= tifs
     assert {p.name for p in demo_results.iterdir()} == tifs | {V.RESULTS_FILE, V.SUMMARY_FILE}
+
+
+def _gpkg_fields(path):
+    from osgeo import ogr  # Source: GDAL/OGR reads the GeoPackage back, independent of our writer
+
+    ds = ogr.Open(str(path))
+    got = {}
+    for i in range(ds.GetLayerCount()):
+        defn = ds.GetLayerByIndex(i).GetLayerDefn()
+        got[ds.GetLayerByIndex(i).GetName()] = [defn.GetFieldDefn(k).GetName() for k in range(defn.GetFieldCount())]
+    ds = None
+    return got
+
+
+@pytest.mark.parametrize("shared_run", ["demo_dem_run", "fold_run", "fold_units_run"])
+def test_other_runs_use_exactly_the_vocabulary(shared_run, request):
+    """The session's other runs (DEM picks only; the fold with auto; the fold bounded by map units,
+    which adds map_units and unit_conflicts) write only the vocabulary's names too."""
+    out = request.getfixturevalue(shared_run).out
+    summary = json.loads((out / V.SUMMARY_FILE).read_text())
+    assert sorted(V.json_paths(summary) - V.summary_path_names()) == []
+    for name, fields in _gpkg_fields(out / V.RESULTS_FILE).items():
+        spec = V.LAYERS[name]
+        assert fields == [f for f in spec.field_names if f in fields] and set(spec.required_names) <= set(fields), name
+    assert {p.name for p in out.glob("*.tif")} <= {r.file for r in V.RASTERS.values()}
+    if shared_run == "fold_units_run":
+        assert "map_units" in summary and "map_units.check.n_violated" in V.json_paths(summary)
+
+
+def test_attitude_report_uses_exactly_the_vocabulary(demo_results, tmp_path):
+    from helpers import run_cli
+
+    out = tmp_path / "plane.json"
+    done = run_cli("attitude", "--points", demo_results / V.RESULTS_FILE, "--points-layer", "picks",
+                   "--group-by", "source", "--resamples", 50, "--out", out)
+    assert done.returncode == 0, done.stderr
+    report = json.loads(out.read_text())
+    paths = V.json_paths(report, V.ATTITUDE_REPORT_KEYS)
+    assert sorted(paths - V.summary_path_names(V.ATTITUDE_REPORT_KEYS)) == []
+    assert {"plane.dip_deg", "groups.field", "groups.planes.*.dip_deg", "points.sha256"} <= paths
