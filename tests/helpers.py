@@ -74,9 +74,7 @@ def _process_state() -> dict:
         "logging handlers": (list(logging.getLogger().handlers), logging.getLogger().level,
                              {n: list(lg.handlers) for n, lg in logging.Logger.manager.loggerDict.items()
                               if isinstance(lg, logging.Logger) and n.startswith("strikeline")}),
-        "warning filters": list(warnings.filters),
         "numpy error state": np.geterr(),
-        "sys.stdout/sys.stderr": (sys.stdout, sys.stderr),
         "open files": _open_files(),
     }
 
@@ -104,9 +102,11 @@ def run_cli(*args, cwd=None) -> CliRun:
     print).
 
     The command must leave the process as it found it - working folder, environment, GDAL's
-    exception mode, signal and logging handlers, warning filters, open files - because many
-    commands share one test process; a leak fails here, naming what leaked. ``STRIKELINE_DEBUG``
-    is unset for the run, as for a user who did not ask for tracebacks.
+    exception mode, signal and logging handlers, numpy's error state, open files - because many
+    commands share one test process; a leak fails here, naming what leaked. The runner itself
+    restores what it swaps for the run (``sys.stdout``/``sys.stderr``, file descriptors 1 and 2,
+    the warning filters). ``STRIKELINE_DEBUG`` is unset for the run, as for a user who did not
+    ask for tracebacks.
     """
     from strikeline.cli.main import main
 
