@@ -13,10 +13,11 @@ from strikeline import vocabulary as V
 from strikeline.errors import InputError
 from strikeline.io.crs import same_crs
 from strikeline.pipeline.points import pick_set_of_points
-from strikeline.pipeline.rasters import forecast_mask, grid_over, points_bounds
+from strikeline.pipeline.picks_surface import surface_from_picks
+from strikeline.pipeline.rasters import grid_over, points_bounds
 from strikeline.pipeline.options import option
-from strikeline.pipeline import (RunOptions, borehole_points, map_unit_bounds, map_unit_check, map_unit_polygons,
-                                 model_surface, orientation_rows, reproject_to, unit_conflicts_layer)
+from strikeline.pipeline import (RunOptions, borehole_points, map_unit_polygons, orientation_rows, reproject_to,
+                                 unit_conflicts_layer)
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
 from ..inputs import (CONSTRAINT_LAYERS, MAP_UNIT_LAYERS, MAP_UNITS, PICKS, add_picks, constraint_options,
@@ -139,7 +140,7 @@ class SurfaceModel(StrikelineAlgorithm):
         # The map's units as strikeline run takes them: polygons and unit lists checked by the
         # library, the bounds built from the reference grid (the DEM), in the picks' CRS.
         units = read_layers(self, parameters, context, steps, MAP_UNIT_LAYERS)["map_units"]
-        ub = dem = None
+        polys = labels = dem = dem_grid = None
         if units is not None:
             dem, dem_grid, _ = read_dem(self, parameters, self.REFERENCE, context, steps, label="reference grid")
             if dem is None:
@@ -148,36 +149,21 @@ class SurfaceModel(StrikelineAlgorithm):
                                  "lies below or above the ground")
             units = reproject_to(units, layer.crs_wkt, label="map units", log=steps.log)
             polys, labels = map_unit_polygons(units, opts, names=names)
-            ub = map_unit_bounds(polys, labels, dem, dem_grid, opts, log=steps.log)
         steps.feedback.setProgress(10)
         # As strikeline run: cross-validation folds hold out contact segments (the picks'
         # contact_id; all one contact without it). The source only labels picks, it is not used.
         picks = pick_set_of_points(xyz, contact_id=vals.get("contact_id"), source=vals.get("source"))
-        surf = model_surface(picks, opts, grid, boreholes=boreholes_xyz,
-                             orientations=orientations, bounds=None if ub is None else ub.bounds,
-                             what=f"picks {name.what}", is_cancelled=steps.is_cancelled)
-        check = None if ub is None else map_unit_check(surf, polys, labels, dem, dem_grid, opts, ub, log=steps.log)
-        steps.feedback.setProgress(60)
-        s = surf.summary()
-        p = s["params"]
-        dip = p.get("dip_deg", p.get("trend_dip_deg"))
-        dipdir = p.get("dip_direction_deg", p.get("trend_dip_direction_deg"))
-        rmse = s["cv_rmse_m"].get(surf.kind)
-        steps.log(f"surface model: {surf.kind} ({s['selection']}) from {surf.n_used} of {surf.n_picks} picks"
-                  + (f", cross-validation RMSE {rmse:.2f} m" if rmse is not None else "")
-                  + f"; plane dip {dip:.2f}° toward {dipdir:.1f}°; reach of the data {surf.reach_m:.0f} m")
-        z = surf.evaluate_grid(grid, progress=steps.part(0.6, 0.85), is_cancelled=steps.is_cancelled)
-        want_se = bool(self.parameterAsOutputLayer(parameters, self.STANDARD_ERROR, context))
-        want_ex = bool(self.parameterAsOutputLayer(parameters, self.EXTRAPOLATED, context))
-        se = ex = None
-        if want_se:
-            se = surf.standard_error_grid(grid, is_cancelled=steps.is_cancelled)
-        if want_ex:
-            ex = forecast_mask(surf, grid)
+        res = surface_from_picks(
+            picks, opts, grid, boreholes=boreholes_xyz, orientations=orientations, unit_polygons=polys,
+            unit_names=labels, dem=dem, dem_grid=dem_grid, what=f"picks {name.what}",
+            standard_error=bool(self.parameterAsOutputLayer(parameters, self.STANDARD_ERROR, context)),
+            mask=bool(self.parameterAsOutputLayer(parameters, self.EXTRAPOLATED, context)),
+            log=steps.log, progress=steps.part(0.1, 0.85), is_cancelled=steps.is_cancelled)
+        surf, z, se, ex, check = res.model, res.elevation_m, res.standard_error_m, res.forecast_mask, res.unit_check
         steps.feedback.setProgress(90)
         steps.check("surface model")
-        out = {"model_chosen": surf.kind, "cv_rmse_m": rmse, "reach_m": surf.reach_m, "dip_deg": dip,
-               "dip_direction_deg": dipdir}
+        out = {"model_chosen": surf.kind, "cv_rmse_m": res.cv_rmse_m, "reach_m": surf.reach_m, "dip_deg": res.dip_deg,
+               "dip_direction_deg": res.dip_direction_deg}
         out[self.OUTPUT] = write_raster(self, parameters, self.OUTPUT, context, z, grid)
         if se is not None:
             out[self.STANDARD_ERROR] = write_raster(self, parameters, self.STANDARD_ERROR, context, se, grid)

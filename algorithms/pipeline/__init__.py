@@ -104,6 +104,10 @@ _LAZY = {
         "forecast_mask",
         "surface_dip_grids",
     ),
+    "picks_surface": (
+        "PicksSurface",
+        "surface_from_picks",
+    ),
     "thickness": (
         "FeatureThickness",
         "line_ends",
