@@ -117,7 +117,7 @@ def point_planes(xyz, *, crs_wkt: str, labels=None, contact_id=None, sigma_z_m: 
 
 
 def _location(xyz, att: dict) -> tuple[float, float, float]:
-    c = att.get("centroid_m", att.get("centroid"))
+    c = att.get("centroid_m")
     if c is None:
         c = xyz.mean(axis=0) if len(xyz) else (np.nan, np.nan, np.nan)
     return tuple(float(v) for v in c)

@@ -51,8 +51,8 @@ def test_each_group_recovers_its_own_plane():
     for name, (dip, dd) in PLANES.items():
         att = planes[name]
         assert att["quality"] == "good"
-        got_dip = att.get("dip_deg", att.get("dip"))
-        got_dd = att.get("dip_direction_deg", att.get("dip_direction"))
+        got_dip = att["dip_deg"]
+        got_dd = att["dip_direction_deg"]
         assert got_dip == pytest.approx(dip, abs=EXACT_TOL_DEG)
         assert got_dd == pytest.approx(dd, abs=EXACT_TOL_DEG)
         assert att["n_picks"] == int((labels == name).sum())
@@ -84,7 +84,7 @@ def test_point_planes_leave_out_points_without_elevation_and_locate_each_plane()
     xyz[[0, 50], 2] = np.nan
     pp = point_planes(xyz, crs_wkt=UTM31_WKT, labels=labels, resamples=50)
     assert (pp.n_points, pp.n_missing) == (len(xyz) - 2, 2)
-    dip = pp.plane.get("dip_deg", pp.plane.get("dip"))
+    dip = pp.plane["dip_deg"]
     assert dip is not None
     for name in PLANES:
         keep = (labels == name) & np.isfinite(xyz[:, 2])
@@ -108,8 +108,8 @@ def test_point_planes_whole_plane_is_the_svd_plane_of_noisy_points():
     n = n if n[2] > 0 else -n
     svd_dip = np.degrees(np.arctan2(np.hypot(n[0], n[1]), n[2]))
     svd_dd = np.degrees(np.arctan2(n[0], n[1])) % 360.0  # the upward normal leans down-dip
-    assert pp.plane.get("dip_deg", pp.plane.get("dip")) == pytest.approx(svd_dip, abs=1e-9)
-    assert pp.plane.get("dip_direction_deg", pp.plane.get("dip_direction")) == pytest.approx(svd_dd, abs=1e-9)
+    assert pp.plane["dip_deg"] == pytest.approx(svd_dip, abs=1e-9)
+    assert pp.plane["dip_direction_deg"] == pytest.approx(svd_dd, abs=1e-9)
     assert pp.groups == {}
 
 
