@@ -57,11 +57,34 @@ def test_strikeline_debug_is_unset_for_the_run_and_restored(monkeypatch):
 _HANDLER = logging.NullHandler()
 
 
-def _toggle_gdal_exceptions():
-    if gdal.GetUseExceptions():
-        gdal.DontUseExceptions()
-    else:
-        gdal.UseExceptions()
+class _GdalModeLeak:
+    """Flip GDAL/OGR/OSR's exception modes, and back. GDAL keeps a stack of error handlers: pop
+    in the reverse order of pushing (osr, ogr, gdal), as strikeline.io does."""
+
+    def __init__(self):
+        self.popped = self.pushed = ()
+
+    def leak(self):
+        from osgeo import ogr, osr
+
+        was = dict(zip((gdal, ogr, osr), (gdal.GetUseExceptions(), ogr.GetUseExceptions(), osr.GetUseExceptions())))
+        if all(was.values()):
+            self.popped = (osr, ogr, gdal)
+            for m in self.popped:
+                m.DontUseExceptions()
+        else:
+            self.pushed = tuple(m for m, on in was.items() if not on)
+            for m in self.pushed:
+                m.UseExceptions()
+
+    def undo(self):
+        for m in reversed(self.popped):
+            m.UseExceptions()
+        for m in reversed(self.pushed):
+            m.DontUseExceptions()
+
+
+_GDAL_LEAK = _GdalModeLeak()
 
 
 @pytest.mark.parametrize("leak, undo, name", [
@@ -69,7 +92,7 @@ def _toggle_gdal_exceptions():
      "environment"),
     (lambda: os.chdir("/"), None, "cwd"),
     (lambda: signal.signal(signal.SIGTERM, lambda *a: None), None, "signal handlers"),
-    (_toggle_gdal_exceptions, _toggle_gdal_exceptions, "GDAL/OGR/OSR exception modes"),
+    (_GDAL_LEAK.leak, _GDAL_LEAK.undo, "GDAL/OGR/OSR exception modes"),
     (lambda: logging.getLogger().addHandler(_HANDLER), lambda: logging.getLogger().removeHandler(_HANDLER),
      "logging handlers"),
     (lambda: np.seterr(all="raise"), None, "numpy error state"),
