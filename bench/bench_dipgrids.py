@@ -14,7 +14,7 @@ nodata patch) in a temporary directory, then in the same run:
   which numpy reports its allocations to), relative to the grid's size; the two float32
   outputs are included.
 
-Each timing is the best of ``--repeat`` runs. Targets (issue 2): dip_grids at most 1.0x
+Each timing is the best of ``--repeat`` runs. Targets (the project's): dip_grids at most 1.0x
 gdaldem's combined time; peak memory under 3x the grid's size.
 
 Usage::

@@ -6,8 +6,8 @@ Workload: the demo sheet's exact base trace (``test_data/demo/contacts.gpkg``, a
 100 m - but with a new seed each time and no mistraced stretch; DEM and contour picks as
 ``strikeline run`` takes them, the DEM and contour errors of its defaults. Every replicate gives
 about 50 windows rated good; the script prints, for each way of resampling, the share of good
-windows whose 95% interval holds the true dip, the true dip direction, and both. The target of
-issue 8 is 90-99%. Then the same for the real-terrain plane sheets in ``test_data/real/`` when
+windows whose 95% interval holds the true dip, the true dip direction, and both;
+the project's target is 90-99%. Then the same for the real-terrain plane sheets in ``test_data/real/`` when
 they are present (a window horizontal within its confidence has no dip direction and counts as
 holding any). A script, not a test (``make bench`` runs it); the figures go into the README.
 

@@ -17,7 +17,7 @@ full evaluation at 20,000 random cells (independent of the method's own check ce
 peak memory as the process's peak resident set size (``resource.getrusage(RUSAGE_SELF)
 .ru_maxrss``: everything the process held, Python and libraries included).
 
-Targets (issue 4): under 30 s on 2 cores and under 2 GiB peak memory.
+Targets (the project's): under 30 s on 2 cores and under 2 GiB peak memory.
 
 Run:  .venv/bin/python bench/bench_surfaces.py [--picks 100000] [--cells 2000]
 """

@@ -14,7 +14,7 @@ polygons, the gain (1 - with/without), the number of constraint points, how many
 active, the share of check points the final surface still breaks and the fit time. A model that
 cannot honour the units (a plane or quadratic on a fold) is reported as refused.
 
-Target (issue 8): the polygons improve the fold by at least 15 % where relief allows. Not a
+Target (the project's): the polygons improve the fold by at least 15 % where relief allows. Not a
 timed test: figures go into the README.
 
 With ``--half`` the sheets are also run with every other trace piece left out (``--where "FID % 2 = 0"``):

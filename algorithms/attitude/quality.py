@@ -18,7 +18,7 @@ Quality verdict (:func:`assess_plane`)
 --------------------------------------
 ``good``
     :math:`M > 4` and :math:`K < 0.8`, the limits Fernández (2005) gives for a reliable
-    best-fit plane (values as quoted in the project's issue from memory of the paper; check
+    best-fit plane (values from memory of the paper; check
     against the paper), and, when a confidence is given, a 95% dip half-width of at most 5°.
 ``undetermined``
     Fewer than three picks; or :math:`K \\ge 2` (the picks are strung along a line: twice
@@ -83,7 +83,7 @@ __all__ = [
 
 QUALITIES = ("good", "weak", "undetermined")
 
-#: Fernández (2005): a reliable best-fit plane needs M > 4 ... (quoted from memory in the issue)
+#: Fernández (2005): a reliable best-fit plane needs M > 4 ... (from memory)
 GOOD_MIN_COPLANARITY = 4.0
 #: ... and K < 0.8 (Fernández 2005; same caveat).
 GOOD_MAX_COLLINEARITY = 0.8

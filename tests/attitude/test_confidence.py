@@ -22,10 +22,10 @@ from strikeline.attitude import (
 # common practice: the hand estimate of dip from structure contours is good to a degree or two,
 # so a well-conditioned synthetic case must give a 95% half-width under 2 degrees
 HAND_ESTIMATE_DEG = 2.0
-# Source: the project's issue 3 -- bootstrap and analytic half-widths agree within about 25%
+# Project target: bootstrap and analytic half-widths agree within about 25%
 # on a well-conditioned case
 AGREEMENT = 0.25
-# Source: the project's issue 3 -- the true plane lies inside the reported 95% interval
+# Project target: the true plane lies inside the reported 95% interval
 # 90-99% of the time over 200 seeded synthetic sets
 COVERAGE_RANGE = (0.90, 0.99)
 N_COVERAGE_SETS = 200

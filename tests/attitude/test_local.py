@@ -19,7 +19,7 @@ from strikeline.geometry import azimuth_difference, normal_from_dip, strike_from
 TOP_M = 900.0
 DOME_DIP_DEG = 25.0
 TAN_DOME = np.tan(np.radians(DOME_DIP_DEG))
-# "within a few degrees" (issue 3); the cone's curvature across a window biases the fitted dip
+# "within a few degrees" (the project's target); the cone's curvature across a window biases the fitted dip
 # of a narrow contact strip low by up to about (w / R)^2 radians, hence the looser dip limit there
 STRIKE_TOLERANCE_DEG = 2.5
 DIP_TOLERANCE_SCATTERED_DEG = 1.5
@@ -106,7 +106,7 @@ def test_a_plane_gives_the_same_attitude_in_every_window():
     assert good.sum() > 20
     assert np.abs(boot.dip_deg[good] - 40.0).max() < 1.0
     assert np.abs(azimuth_difference(boot.dip_direction_deg[good], 300.0)).max() < 1.0
-    # Source: the project's issue 3 -- bootstrap and analytic agree within about 25%; per
+    # Project target: bootstrap and analytic agree within about 25%; per
     # window with 200 resamples, within 25% on the median ratio
     ratio = boot.dip_ci95_deg[good] / ana.dip_ci95_deg[good]
     assert abs(np.median(ratio) - 1.0) < 0.25

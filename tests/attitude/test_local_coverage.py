@@ -2,7 +2,7 @@
 
 A coverage test, not a timing: on a true plane (the demo's base, dip 18.7 toward 221.3, from
 ``test_data/demo/truth.json``) the 95% intervals of the windows rated good must hold the true
-attitude in about 95% of windows - issue 8 asks for 90-99%. Picks along a digitised contact
+attitude in about 95% of windows - the project's target is 90-99%. Picks along a digitised contact
 share their errors over ~100 m, so resampling single picks gave 74-90% (measured); resampling
 contact blocks within each window (Kuensch 1989; Lahiri 2003) is what brings them into range.
 
@@ -28,7 +28,8 @@ from strikeline import pipeline as pl
 from strikeline.attitude import local_attitudes
 from strikeline.geometry import azimuth_difference
 
-#: Issue 8's target for the coverage of 95% intervals.
+#: The project's target for the coverage of 95% intervals (a 95% interval should hold the truth
+#: about 95% of the time; 90-99% allows for the windows' finite number).
 COVERAGE_RANGE = (0.90, 0.99)
 #: Re-digitised copies of the exact trace pooled with the demo's own contact.
 N_COPIES = 6
@@ -100,7 +101,7 @@ def test_block_resampled_intervals_hold_the_truth_90_to_99_percent(coverage):
 
 def test_single_pick_intervals_were_too_narrow(coverage):
     # the reason for the blocks: the same windows resampled by single picks miss the truth too
-    # often (measured 82% / 77% over 12 copies; 74-80% in issue 8)
+    # often (measured 82% / 77% over 12 copies; 74-80% in an earlier measurement)
     _, dip, dd, method = coverage["single picks"]
     assert method == "bootstrap+monte_carlo"
     assert dip.mean() < COVERAGE_RANGE[0] or dd.mean() < COVERAGE_RANGE[0]

@@ -16,12 +16,12 @@ from strikeline.errors import InputError
 from strikeline.geometry import normal_from_dip
 
 # Source: Woodcock (1977), GSA Bulletin 88, 1231-1236: M = ln(l1/l3), K = ln(l1/l2)/ln(l2/l3)
-# (definitions from memory, as quoted in the issue). Hand-worked: eigenvalues (e^6, e^3, 1)
+# (definitions from memory). Hand-worked: eigenvalues (e^6, e^3, 1)
 # give M = 6 and K = 3/3 = 1; (e^5, e^4, 1) give M = 5 and K = 1/4.
 EIG_M6_K1 = (np.e ** 6, np.e ** 3, 1.0)
 EIG_M5_K025 = (np.e ** 5, np.e ** 4, 1.0)
 # Source: Fernandez (2005), J. Struct. Geol. 27, 855-858 -- a reliable plane needs about M > 4
-# and K < 0.8 (from memory, as quoted in the issue)
+# and K < 0.8 (from memory)
 FERNANDEZ_M, FERNANDEZ_K = 4.0, 0.8
 
 HELPFUL_DATA = ("relief", "second contact", "borehole")

@@ -21,7 +21,7 @@ from helpers import write_lines
 DIP_TOL_DEG = 0.5
 DIP_DIRECTION_TOL_DEG = 1.0
 # common practice: the hand estimate from structure contours is good to a degree or two, so a
-# well-conditioned case must report a 95% half-width under 2 deg (issue 3).
+# well-conditioned case must report a 95% half-width under 2 deg (project target).
 WELL_CONDITIONED_MAX_CI_DEG = 2.0
 # Two synthetic contacts (our own invented attitudes); Source: the analytic planes they are built on.
 PLANE_A = {"dip_deg": 25.0, "dip_direction_deg": 120.0}
@@ -118,7 +118,7 @@ def test_true_north_from_pyproj(tmp_path, run, demo_picks):
     assert run("attitude", "--points", demo_picks, "--out", out).returncode == 0
     pl = json.loads(out.read_text())["plane"]
     # Source: pyproj (PROJ) Proj.get_factors().meridian_convergence at the points' centroid, a
-    # general-purpose reference library; true azimuth = grid azimuth + convergence (issue 3).
+    # general-purpose reference library; true azimuth = grid azimuth + convergence (common practice).
     c = pyproj.CRS(f"EPSG:{EPSG}")
     lon, lat = pyproj.Transformer.from_crs(c, c.geodetic_crs, always_xy=True).transform(*pl["centroid_m"][:2])
     gamma = pyproj.Proj(c).get_factors(lon, lat).meridian_convergence

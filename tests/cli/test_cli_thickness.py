@@ -29,7 +29,7 @@ ABOUT_110_M = 110.0
 # Source: vector geometry: points 10 m apart on the vertical, bed dipping 60 deg:
 # t = 10 cos 60 = 5.000 m (recomputed by hand)
 TWO_POINTS_M = 5.000
-# Source: analytic geometry: planes 80 m apart along their normal (the isopach case of issue 4)
+# Source: analytic geometry: planes 80 m apart along their normal (the isopach case)
 ISOPACH_NORMAL_M = 80.0
 
 TOL_M = 5e-4  # the worked values are given to 3 decimals

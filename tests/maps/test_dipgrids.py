@@ -26,7 +26,7 @@ DIP_ATAN_HALF_DEG = 26.565051177077990  # common practice: degrees(atan(0.5))
 # common practice: azimuths are clockwise from grid north: N 0°, E 90°, S 180°, W 270°.
 AZ_NORTH, AZ_EAST, AZ_SOUTH, AZ_WEST = 0.0, 90.0, 180.0, 270.0
 
-#: Tolerance against GDAL's slope/aspect where both are defined (issue 2).
+#: Tolerance against GDAL's slope/aspect where both are defined (project target).
 GDAL_TOL_DEG = 0.05
 #: float32 storage of angles near 90-360°: a few ulp.
 EXACT_TOL_DEG = 1e-4

@@ -247,7 +247,7 @@ def test_generator_reproduces_shipped_files(tmp_path, dem, contacts, contours, t
         for (a1, g1), (a2, g2) in zip(fresh[3], shipped[3]):
             assert a1 == a2
             assert shapely.equals_exact(g1, g2, tolerance=ROUNDTRIP_TOL_M)
-    # the layers added for issues 3-4 come back the same too
+    # the top contact, boreholes, dip readings and grouped contacts come back the same too
     for name, layer in NEW_DEMO_LAYERS:
         shipped = read_lines(DEMO / name, layer)
         fresh = read_lines(tmp_path / name, layer)
@@ -259,7 +259,7 @@ def test_generator_reproduces_shipped_files(tmp_path, dem, contacts, contours, t
 
 
 # ============================================================================================
-# Layers added for issues 3-4: top contact, boreholes, dip readings, grouped contacts
+# The extra layers: top contact, boreholes, dip readings, grouped contacts
 # ============================================================================================
 NEW_DEMO_LAYERS = [
     ("top_contacts.gpkg", "top_contacts"),
@@ -637,7 +637,7 @@ def test_mapped_generator_is_deterministic(tmp_path, mapped, truth):
 
 
 # ============================================================================================
-# Tolvane Fell: the fold sheet (issue 4)
+# Tolvane Fell: the fold sheet
 # ============================================================================================
 FOLD_DIR = REPO / "test_data" / "fold"
 FOLD_SHAPE = (300, 300)
@@ -645,7 +645,7 @@ FOLD_CRS = "EPSG:32630"  # the task: same CRS family (UTM on WGS 84), a differen
 MIN_HINGE_CROSSINGS = 5  # "crosses the fold's hinge region several times", from the task
 MIN_HULL_FRACTION = 0.85
 MAX_GAP_P95_M = 250.0  # 95 % of the hull lies within this distance of the trace
-SPLINE_RMS_MAX_M = 2.0  # Source: issue 4, "spline model's error against truth under 2 m RMS"
+SPLINE_RMS_MAX_M = 2.0  # Project target: the spline's error against the truth under 2 m RMS
 PLANE_RMS_MIN_M = 10.0  # a plane cannot fit the fold: the data really are curved
 GRADIENT_TOL = 1e-6  # m/m, analytic gradient vs central differences with a 0.5 m step
 # Hand computation from the truth formula at t = wavelength / 4 (steepest part of a limb):
@@ -797,7 +797,7 @@ def test_fold_trace_covers_the_sheet(fold_contacts, fold_dem):
 
 
 def test_fold_is_recoverable_by_a_spline_but_not_a_plane(fold_contacts, fold_dem, fold_truth):
-    """The data can do what issue 4 asks of them: a spline fitted to DEM picks along the trace
+    """The data can meet the project's target for the spline: a spline fitted to DEM picks along the trace
     recovers the fold to under 2 m RMS inside the data hull (a small point budget keeps this fast)."""
     from strikeline.geometry.grid import Grid
     from strikeline.picks import picks_from_dem

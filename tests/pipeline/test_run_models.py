@@ -172,7 +172,7 @@ def test_group_by_gives_one_plane_per_group(tmp_path, demo, cli):
 
 def test_contact_on_one_contour_is_a_horizontal_plane(tmp_path, demo, cli):
     # A "contact" drawn along the 520 m topographic contour: every pick has the same height while
-    # the line winds around the hills - the textbook signature of a horizontal bed (issue 8; it
+    # the line winds around the hills - the textbook signature of a horizontal bed (it
     # used to stop as undetermined). Source: the demo's contours were drawn by GDAL's contour
     # generator from its DEM (test_data/make_demo_sheet.py), so the level is 520 m.
     ds = ogr.Open(demo["contours"])

@@ -29,7 +29,7 @@ TMP = "TEMPORARY_OUTPUT"
 #: float32 GeoTIFF storage of elevations near 600 m: half a unit in the last place is ~3e-5 m.
 F32_ELEVATION_TOL_M = 1e-4  # common practice: float32 has a 24-bit significand
 #: gdaldem's Horn kernel is exact on a plane; allow for float32 storage of the surface.
-GDAL_DIP_TOL_DEG = 0.05  # Source: tolerance of issue 2's dip-grid check against gdal.DEMProcessing
+GDAL_DIP_TOL_DEG = 0.05  # Project target: the dip grids' tolerance against gdal.DEMProcessing
 
 
 def topo(sheet, kind):

@@ -19,10 +19,10 @@ from strikeline.geometry.grid import Grid
 from strikeline.surfaces import MODELS, fit_surface
 
 #: Source: scipy.interpolate.RBFInterpolator(kernel="thin_plate_spline") (general-purpose
-#: reference library, version below) -- agreement required by issue 4.
+#: reference library, version below) -- the agreement the project requires.
 SCIPY_VERSION = scipy.__version__
 SCIPY_TPS_TOL_M = 1e-6
-#: Source: issue 4 acceptance criteria.
+#: Project target (acceptance criterion of the surface models).
 FOLD_RMS_TOL_M = 2.0
 PLANE_EQUIVALENT_TOL_M = 0.5
 GRID_TOL_M = 0.1
