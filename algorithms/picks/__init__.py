@@ -22,3 +22,16 @@ from strikeline.picks.thinning import (  # noqa: F401
     choose_cell_size,
     thin_picks,
 )
+
+__all__ = [
+    "ground_slope_from_contours",
+    "picks_from_contours",
+    "picks_from_dem",
+    "sample_bilinear",
+    "densify_lines",
+    "SOURCES",
+    "PickSet",
+    "ThinnedPicks",
+    "choose_cell_size",
+    "thin_picks",
+]

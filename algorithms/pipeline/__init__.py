@@ -123,6 +123,10 @@ _LAZY = {
 }
 _MODULE_OF = {name: module for module, names in _LAZY.items() for name in names}
 
+#: The package's public names (the option table's and every step's), so ``help()`` lists them.
+__all__ = sorted({n for n in globals() if not n.startswith("_") and n.isidentifier()
+                  and n not in ("annotations",)} | set(_MODULE_OF))
+
 
 def __getattr__(name):
     module = _MODULE_OF.get(name)

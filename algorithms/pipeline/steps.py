@@ -107,7 +107,7 @@ def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples:
     (one label per pick, e.g. contact segments) makes the bootstrap resample whole blocks.
 
     A plane whose dip does not differ from zero at 95%
-    (:func:`strikeline.attitude.confidence.dip_is_significant`) is horizontal within its confidence:
+    (:func:`strikeline.attitude.dip_is_significant`) is horizontal within its confidence:
     ``dip_significant`` is false, ``dip_deg`` and ``dip_ci95_deg`` are still given, and the dip
     direction, its half-width, its true-north azimuth and the strike are ``None`` (they are
     undefined for a horizontal plane), with a ``horizontal`` sentence saying so.

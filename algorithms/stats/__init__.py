@@ -34,3 +34,28 @@ from strikeline.stats.scores import (  # noqa: F401
     cross_validate,
     gcv_from_spectrum,
 )
+
+__all__ = [
+    "MIN_BLOCK_CELLS",
+    "holdout_block_m",
+    "make_folds",
+    "residual_correlation_m",
+    "segment_groups",
+    "spatial_block_groups",
+    "typical_gap_m",
+    "CHI2_ALPHA",
+    "SELECTION_RULES",
+    "TRIM_FRACTION",
+    "ModelChoice",
+    "choose_model",
+    "select_model",
+    "trimmed_mean_square",
+    "ErrorGrowth",
+    "fit_error_growth",
+    "BIWEIGHT_C",
+    "MAD_TO_SIGMA",
+    "robust_lstsq",
+    "CVScore",
+    "cross_validate",
+    "gcv_from_spectrum",
+]
