@@ -163,14 +163,24 @@ def read_layer(path, *, layer: str | None = None, where: str | None = None,
                 srs.SetAxisMappingStrategy(osr.OAMS_TRADITIONAL_GIS_ORDER)
             wkbs, fids, values = [], [], {n: [] for n in fnames}
             lyr.ResetReading()
-            for feat in lyr:
-                g = feat.GetGeometryRef()
-                if g is None or g.IsEmpty():
-                    continue
-                wkbs.append(bytes(g.ExportToIsoWkb()))
-                fids.append(feat.GetFID())
-                for i, n in enumerate(fnames):
-                    values[n].append(feat.GetField(i) if feat.IsFieldSetAndNotNull(i) else None)
+            try:
+                for feat in lyr:
+                    g = feat.GetGeometryRef()
+                    if g is None or g.IsEmpty():
+                        continue
+                    wkbs.append(bytes(g.ExportToIsoWkb()))
+                    fids.append(feat.GetFID())
+                    for i, n in enumerate(fnames):
+                        values[n].append(feat.GetField(i) if feat.IsFieldSetAndNotNull(i) else None)
+            except RuntimeError as exc:
+                # Some drivers (GeoPackage: SQLite) check a filter only when the first feature is read.
+                if where:
+                    raise InputError(
+                        f"{what}: the {where_option} {where!r} is not valid OGR SQL ({gdal_message(exc)}); "
+                        "fix the expression"
+                    ) from None
+                raise VectorReadError(f"{what}: OGR could not read its features ({gdal_message(exc)}); "
+                                      "check the file, e.g. with ogrinfo") from None
             extent = lyr.GetExtent() if wkbs else None
         finally:
             ds = None
