@@ -46,9 +46,12 @@ def test_demo_exits_0_and_matches_the_in_process_run(tmp_path, demo_command_run)
     proc = console("demo", cwd=tmp_path)  # the default output folder, demo-output, in the working folder
     assert proc.returncode == 0, proc.stderr
     out = tmp_path / "demo-output"
+    # Source: the project's design brief - every summary carries the caution in these words
     assert "not a substitute for site investigation" in proc.stdout
     # the same bytes as the session's run in the test process: the in-process runner shows what a
-    # user sees, and nothing in the summary depends on the process (hash seed, import order)
+    # user sees, and nothing in the summary depends on the process (hash seed, import order). The
+    # numbers themselves are checked against the demo's analytic truth (test_data/demo/truth.json)
+    # in tests/cli/test_cli.py; here the reference is the other process's output.
     assert (out / "summary.json").read_bytes() == (demo_command_run.out / "summary.json").read_bytes()
     assert sorted(p.name for p in out.iterdir()) == sorted(p.name for p in demo_command_run.out.iterdir())
     # the output folder is named in the report; elsewhere the two printed the same lines
@@ -62,6 +65,8 @@ def test_demo_exits_0_and_matches_the_in_process_run(tmp_path, demo_command_run)
 def test_bad_input_exits_2_with_one_line_and_writes_nothing(tmp_path, demo, case):
     inputs = tmp_path / "inputs"
     inputs.mkdir()
+    # Source: the demo DEM (test_data/demo/dem.tif, EPSG:32631 as truth.json records; gdalinfo gives
+    # 486,300-490,300 m E, 5,213,700-5,217,700 m N): a line at 600 km E, 5,000 km N lies off it
     far = write_lines(inputs / "far.gpkg", [shapely.LineString([(600000, 5000000), (601000, 5001000)])], epsg=32631)
     args = {
         "usage": ["run", "--contacts"],
@@ -71,6 +76,7 @@ def test_bad_input_exits_2_with_one_line_and_writes_nothing(tmp_path, demo, case
     }[case]
     before = _files(tmp_path)
     proc = console(*args, "--out", tmp_path / "results")
+    # common practice: exit status 2 for bad command-line input (argparse's and POSIX utilities')
     assert proc.returncode == 2, (proc.returncode, proc.stderr)
     lines = proc.stderr.splitlines()
     assert len(lines) == 1 and lines[0].startswith("error: "), proc.stderr
