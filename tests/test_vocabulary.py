@@ -87,31 +87,27 @@ def test_vocabulary_layer_refuses_a_field_outside_the_vocabulary():
 
 
 # --------------------------------------------------------------------------- README
+def _table_rows(markdown):
+    """``(table heading, cell, ...)`` of every data row of the reference's markdown tables."""
+    rows, table = set(), None
+    for line in markdown.splitlines():
+        if line.startswith("### "):
+            table = line[4:]
+        elif line.startswith("| ") and not line.startswith("| ---"):
+            cells = tuple(c.strip() for c in line.strip().strip("|").split("|"))
+            if cells[0] not in ("layer", "file", "key", "output"):
+                rows.add((table,) + cells)
+    return rows
+
+
 def _readme_rows():
     text = (ROOT / "README.md").read_text()
     assert text.count(V.README_START) == 1 and text.count(V.README_END) == 1, "README: output reference markers"
-    section = text.split(V.README_START, 1)[1].split(V.README_END, 1)[0]
-    rows, table = set(), None
-    for line in section.splitlines():
-        if line.startswith("### "):
-            table = line[4:]
-        elif line.startswith("| ") and not line.startswith("| ---"):
-            cells = tuple(c.strip() for c in line.strip().strip("|").split("|"))
-            if cells[0] not in ("layer", "file", "key", "output"):
-                rows.add((table,) + cells)
-    return rows
+    return _table_rows(text.split(V.README_START, 1)[1].split(V.README_END, 1)[0])
 
 
 def _module_rows():
-    rows, table = set(), None
-    for line in V.reference_markdown().splitlines():
-        if line.startswith("### "):
-            table = line[4:]
-        elif line.startswith("| ") and not line.startswith("| ---"):
-            cells = tuple(c.strip() for c in line.strip().strip("|").split("|"))
-            if cells[0] not in ("layer", "file", "key", "output"):
-                rows.add((table,) + cells)
-    return rows
+    return _table_rows(V.reference_markdown())
 
 
 def test_readme_output_reference_agrees_with_the_module_both_ways():
