@@ -59,6 +59,32 @@ def _shared_run(tmp_path_factory, name: str, *args) -> SheetRun:
     return SheetRun(proc, out)
 
 
+def _gdal_modes():
+    from osgeo import gdal, ogr, osr
+
+    return gdal.GetUseExceptions(), ogr.GetUseExceptions(), osr.GetUseExceptions()
+
+
+@pytest.fixture(autouse=True)
+def _gdal_exception_mode_kept(request):
+    """Fail a test (or module) that leaves GDAL/OGR/OSR's process-wide exception mode changed.
+
+    strikeline switches exceptions on only around its own calls (``strikeline.io._gdal``), because
+    inside QGIS other code relies on the mode it set. A test that switched them on for good would
+    run every later test with them on and hide a library call that forgot to (so the test data
+    writers check return values instead)."""
+    before = _gdal_modes()
+    yield
+    after = _gdal_modes()
+    if after != before:
+        from osgeo import gdal, ogr, osr
+
+        for module, was in zip((gdal, ogr, osr), before):
+            module.UseExceptions() if was else module.DontUseExceptions()
+        pytest.fail(f"{request.node.nodeid} changed the GDAL/OGR/OSR exception modes from {before} to {after}; "
+                    "use strikeline.io._gdal.gdal_exceptions() around the calls instead")
+
+
 @pytest.fixture(scope="session")
 def demo():
     """Paths of the bundled demo sheet and its truth (the plane it was built from)."""

@@ -160,12 +160,13 @@ def run_cli(*args, cwd=None) -> CliRun:
 def write_lines(path, lines, *, epsg=None, fields=None, layer="lines", driver=None):
     """Write shapely lines to a vector file with OGR (test inputs only). ``epsg=None``: no CRS."""
     import shapely
-    from osgeo import ogr, osr
+    from osgeo import gdal, ogr, osr
 
     path = str(path)
     driver = driver or {".gpkg": "GPKG", ".shp": "ESRI Shapefile", ".geojson": "GeoJSON"}[Path(path).suffix]
-    ogr.UseExceptions()
     ds = ogr.GetDriverByName(driver).CreateDataSource(path)
+    if ds is None:
+        raise RuntimeError(f"OGR could not create the test input '{path}': {gdal.GetLastErrorMsg()}")
     srs = None
     if epsg is not None:
         srs = osr.SpatialReference()

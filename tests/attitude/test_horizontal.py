@@ -18,8 +18,6 @@ from osgeo import gdal, ogr, osr
 from helpers import run_cli, write_lines
 from strikeline.geometry import azimuth_difference, normal_from_dip
 
-gdal.UseExceptions()
-
 #: The level of the horizontal bed (metres): a contour of the demo DEM (300-865 m).
 LEVEL_M = 500.0
 #: GDAL interpolates contours linearly between cell centres and strikeline samples the DEM

@@ -36,8 +36,8 @@ def _angle_diff(a, b):
 
 def write_points(path, xyz, *, fields=None, epsg=EPSG, with_z=True, layer="points"):
     """Write points to a GeoPackage with OGR (test input only)."""
-    ogr.UseExceptions()
     ds = ogr.GetDriverByName("GPKG").CreateDataSource(str(path))
+    assert ds is not None, f"OGR could not create the test input {path}"
     srs = osr.SpatialReference()
     srs.ImportFromEPSG(epsg)
     lyr = ds.CreateLayer(layer, srs, ogr.wkbPoint25D if with_z else ogr.wkbPoint)

@@ -367,7 +367,6 @@ def test_bilinear_matches_scipy_map_coordinates_on_a_random_dem():
 
 def test_bilinear_matches_gdal_warp():
     gdal = pytest.importorskip("osgeo.gdal")
-    gdal.UseExceptions()
     rng = np.random.default_rng(3)
     g = Grid((1000.0, 10.0, 0.0, 5000.0, 0.0, -10.0), (20, 24))
     dem = rng.uniform(100.0, 200.0, g.shape)

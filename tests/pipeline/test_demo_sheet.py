@@ -27,9 +27,6 @@ gdal = pytest.importorskip("osgeo.gdal")
 from osgeo import ogr, osr  # noqa: E402
 from scipy.ndimage import map_coordinates  # noqa: E402
 
-gdal.UseExceptions()
-ogr.UseExceptions()
-
 REPO = Path(__file__).resolve().parents[2]
 DEMO = REPO / "test_data" / "demo"
 GENERATOR = REPO / "test_data" / "make_demo_sheet.py"

@@ -25,9 +25,6 @@ gdal = pytest.importorskip("osgeo.gdal")
 from osgeo import ogr, osr  # noqa: E402
 from scipy.ndimage import map_coordinates, maximum_filter  # noqa: E402
 
-gdal.UseExceptions()
-ogr.UseExceptions()
-
 REPO = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(REPO / "test_data"))
 import real_truth  # noqa: E402

@@ -42,8 +42,8 @@ def _dem_at(demo, x, y):
 
 
 def _write_points(path, xy, fields, epsg=32631, layer="points"):
-    ogr.UseExceptions()
     ds = ogr.GetDriverByName("GPKG").CreateDataSource(str(path))
+    assert ds is not None, f"OGR could not create the test input {path}"
     srs = osr.SpatialReference()
     srs.ImportFromEPSG(epsg)
     lyr = ds.CreateLayer(layer, srs, ogr.wkbPoint)
