@@ -40,8 +40,9 @@ def option_type(o):
 
 
 def option_help(o) -> str:
-    """The option's help with its default (or what leaving it out means), %-escaped for argparse."""
-    said = o.described_default()
+    """The option's help with its default (or what leaving it out means) and its bounds,
+    %-escaped for argparse: ``... (default 1000; at least 20)``."""
+    said = "; ".join(t for t in (o.described_default(), o.limits() if o.is_number else "") if t)
     return (f"{o.help} ({said})" if said else o.help).replace("%", "%%")
 
 

@@ -273,4 +273,9 @@ def test_help_states_each_default():
             assert f"default {o.default:g}" in option_help(o), o.name
         if o.flag and o.default is None and o.unset:
             assert o.unset.replace("%", "%%") in option_help(o), o.name
+        if o.flag and o.is_number and o.bounded:
+            # a user who gives a value out of bounds is refused: the help says the bounds first
+            assert o.limits() in option_help(o), o.name
     assert math.isfinite(option("dem_sigma_m").maximum)
+    # Source: strikeline.attitude.MIN_REPLICATES, the least count the library accepts
+    assert "at least 20" in option_help(option("resamples"))
