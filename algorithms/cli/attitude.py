@@ -38,8 +38,9 @@ DESCRIPTION = (
 def add_parser(sub) -> argparse.ArgumentParser:
     # argparse %-formats help strings: "95%" must be written "95%%" there
     p = sub.add_parser("attitude", help=HELP.replace("%", "%%"), description=DESCRIPTION, epilog=EPILOG)
-    add_options(p.add_argument_group("points"), "points", "points_layer", "points_where", "z_field", "group_by")
-    add_options(p.add_argument_group("confidence"), "dem_sigma_m", "resamples", "seed")
+    add_options(p.add_argument_group("points"), "points", "points_layer", "points_where", "z_field", "group_by",
+                command="attitude")
+    add_options(p.add_argument_group("confidence"), "dem_sigma_m", "resamples", "seed", command="attitude")
     add_options(p.add_argument_group("output"), "json_out", "overwrite")
     p.set_defaults(handler=main)
     return p

@@ -39,21 +39,23 @@ def option_type(o):
     return parse
 
 
-def option_help(o) -> str:
-    """The option's help with its default (or what leaving it out means) and its bounds,
-    %-escaped for argparse: ``... (default 1000; at least 20)``."""
+def option_help(o, command: str | None = None) -> str:
+    """The option's help as ``command`` gives it, with its default (or what leaving it out means)
+    and its bounds, %-escaped for argparse: ``... (default 1000; at least 20)``."""
     said = "; ".join(t for t in (o.described_default(), o.limits() if o.is_number else "") if t)
-    return (f"{o.help} ({said})" if said else o.help).replace("%", "%%")
+    text = o.help_for(command)
+    return (f"{text} ({said})" if said else text).replace("%", "%%")
 
 
-def add_option(p, name: str, **override):
+def add_option(p, name: str, *, command: str | None = None, **override):
     """Add option ``name`` of the table (:data:`strikeline.pipeline.options.OPTIONS`) to parser or
-    group ``p``: its flag, type and bounds, allowed values, default and help. ``override`` replaces
-    argparse keywords (e.g. ``required``) where one command takes the option differently."""
+    group ``p``: its flag, type and bounds, allowed values, default and help (in the words of
+    subcommand ``command`` where the table gives it its own). ``override`` replaces argparse
+    keywords (e.g. ``required``) where one command takes the option differently."""
     from strikeline.pipeline.options import option
 
     o = option(name)
-    kw = {"dest": o.dest or o.name, "help": option_help(o)}
+    kw = {"dest": o.dest or o.name, "help": option_help(o, command)}
     if o.kind is bool:
         kw["action"] = "store_true"
     else:
@@ -73,10 +75,10 @@ def add_option(p, name: str, **override):
     return p.add_argument(o.flag, **kw)
 
 
-def add_options(p, *names: str) -> None:
+def add_options(p, *names: str, command: str | None = None) -> None:
     """:func:`add_option` for each of ``names``."""
     for name in names:
-        add_option(p, name)
+        add_option(p, name, command=command)
 
 
 def add_output(p: argparse.ArgumentParser) -> None:

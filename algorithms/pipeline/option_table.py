@@ -94,6 +94,7 @@ class Option:
     qgis: str | None = None
     label: str | None = None
     labels: tuple = ()  # ((tool, label), ...)
+    helps: tuple = ()  # ((command, help), ...): a command's own words where they differ from ``help``
     geometry: str | None = None
     parent: str | None = None
     numeric: bool = False
@@ -122,6 +123,10 @@ class Option:
 
     def label_for(self, tool: str | None = None) -> str:
         return dict(self.labels).get(tool, self.label or self.name)
+
+    def help_for(self, command: str | None = None) -> str:
+        """The help text as subcommand ``command`` gives it (``help`` unless ``helps`` says otherwise)."""
+        return dict(self.helps).get(command, self.help)
 
     def cli_value(self, value):
         """How the command line spells the allowed value ``value`` (``choices`` -> ``cli_choices``)."""
@@ -317,9 +322,13 @@ _OPTION_LIST = (
     # ---- stated errors, confidence and local attitudes
     _opt("dem_sigma_m", float, "vertical standard error of DEM elevations (picks or points); the default is a "
          "typical stated accuracy of 5-25 m national DEMs: give your DEM's, e.g. 0.2 for lidar, or 0 when it is "
-         "unknown (the bootstrap of the points alone then gives the confidence). In run, with --contact-sigma and "
+         "unknown (the bootstrap of the points alone then gives the confidence). With --contact-sigma and "
          "--contour-sigma, it also sets the model choice's tolerance, the misfit check's threshold and the "
-         "confidence intervals", default=2.0, unit="m", minimum=0.0, maximum=MAX_SIGMA_M,
+         "confidence intervals",
+         helps=(("attitude", "vertical standard error of the points' elevations when they come from a DEM; the "
+                 "default is a typical stated accuracy of 5-25 m national DEMs: give your DEM's, e.g. 0.2 for "
+                 "lidar, or 0 when it is unknown (the bootstrap of the points alone then gives the confidence)"),),
+         default=2.0, unit="m", minimum=0.0, maximum=MAX_SIGMA_M,
          basis=_DEM_BASIS + "; the same in run, attitude and every QGIS tool, so the same picks get the same "
                "confidence everywhere",
          flag="--dem-sigma", metavar="METRES", qgis="DEM_SIGMA", label="Vertical standard error of DEM elevations "
@@ -339,8 +348,9 @@ _OPTION_LIST = (
          metavar="METRES", qgis="WINDOW", label="Local-attitude window radius (0: about 50 picks per window)",
          labels=(("localattitudes", "Window radius (0: about 50 picks per window)"),), advanced=True,
          commands=_RUN, tools=("modelcontact", "localattitudes")),
-    _opt("group_by", "field", "also fit one plane per value of this field (of the contacts for run, of the points "
-         "for attitude: a unit, a contact name, ...)", flag="--group-by", metavar="FIELD", qgis="GROUP_BY",
+    _opt("group_by", "field", "also fit one plane per value of this field of the contacts (a unit, a contact "
+         "name, ...)", helps=(("attitude", "also fit one plane per value of this field of the points (a unit, a "
+                               "contact name, ...)"),), flag="--group-by", metavar="FIELD", qgis="GROUP_BY",
          label="Also one plane per value of this field", parent="contacts", commands=_PLANE,
          tools=("modelcontact", "planeattitude")),
     _opt("resamples", int, "bootstrap resamples and Monte Carlo draws", default=DEFAULT_RESAMPLES,
@@ -351,7 +361,9 @@ _OPTION_LIST = (
          flag="--resamples", metavar="N", qgis="RESAMPLES", label="Bootstrap resamples and Monte Carlo draws",
          advanced=True, commands=_PLANE, tools=("modelcontact", "planeattitude")),
     _opt("seed", int, "seed of the random draws (bootstrap, Monte Carlo, cross-validation folds): equal seeds "
-         "give identical results", default=0, minimum=0, flag="--seed", metavar="N", qgis="SEED",
+         "give identical results",
+         helps=(("attitude", "seed of the random draws (bootstrap and Monte Carlo): equal seeds give identical "
+                 "results"),), default=0, minimum=0, flag="--seed", metavar="N", qgis="SEED",
          label="Random seed", advanced=True, commands=_PLANE,
          tools=("modelcontact", "planeattitude", "localattitudes", "surfacemodel")),
     # ---- strikeline attitude

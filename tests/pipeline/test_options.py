@@ -279,3 +279,18 @@ def test_help_states_each_default():
     assert math.isfinite(option("dem_sigma_m").maximum)
     # Source: strikeline.attitude.MIN_REPLICATES, the least count the library accepts
     assert "at least 20" in option_help(option("resamples"))
+
+
+def test_each_command_help_speaks_of_its_own_inputs():
+    """A shared option's help names the inputs of the command that shows it: attitude's --group-by
+    groups the points, not "the contacts for run" (common practice: help describes the command at hand)."""
+    import argparse
+
+    from strikeline.cli.main import build_parser
+
+    sub = next(a for a in build_parser()._actions if isinstance(a, argparse._SubParsersAction))
+    helps = {name: {a.dest: a.help for a in p._actions} for name, p in sub.choices.items()}
+    for name in ("group_by", "dem_sigma_m", "seed"):
+        assert " run" not in helps["attitude"][name] and "contacts" not in helps["attitude"][name], name
+        assert helps["attitude"][name] != helps["run"][name], name
+    assert "points" in helps["attitude"]["group_by"] and "contacts" in helps["run"]["group_by"]
