@@ -290,6 +290,14 @@ _MAP_UNITS = (
     _s("check.n_violated_below", None, "broken points under units below", "integer"),
     _s("meaning", None, "what the bounds mean, in words", "text"))
 
+#: The stretches of the contacts where the DEM has no value (outside it or over nodata): no DEM picks.
+CONTACTS_OFF_DEM = _s("contacts_off_dem", None, "length of the contacts off the DEM (outside it or over nodata), "
+                      "where no DEM pick is made (with a DEM)", _SEC)
+_OFF_DEM = (_s("length_m", "m", "length of the contacts off the DEM"),
+            _s("total_length_m", "m", "total length of the contacts"),
+            _s("percent", None, "the length off the DEM as a percentage of the total"),
+            _s("n_lines", None, "contact lines with a stretch off the DEM", "integer"))
+
 SUMMARY_KEYS: tuple[Name, ...] = (
     _s("version", None, "strikeline version", "text"),
     _s("crs", None, "the CRS of the outputs (authority code or name)", "text"),
@@ -340,6 +348,7 @@ SUMMARY_KEYS: tuple[Name, ...] = (
     _s("predicted_trace", None, "the predicted outcrop trace", _SEC),
     _s("predicted_trace.n_lines", None, "lines", "integer"),
     _s("predicted_trace.n_extrapolated", None, "lines beyond the reach of the data", "integer"),
+    CONTACTS_OFF_DEM, *_under(CONTACTS_OFF_DEM.name, _OFF_DEM),
     _s("thickness", None, "the unit's thickness between the base and the top surface", _SEC),
     _s("thickness.top_model", None, "surface model of the top", "text"),
     _s("thickness.true_thickness_method", None, "in words", "text"),

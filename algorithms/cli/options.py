@@ -91,7 +91,7 @@ def add_contacts(p: argparse.ArgumentParser) -> None:
 
 def add_topography(p: argparse.ArgumentParser) -> None:
     add_options(p.add_argument_group("topography (give at least one)"), "dem", "contours", "contours_layer",
-                "elev_field")
+                "elev_field", "dem_unit", "contour_unit")
 
 
 EPILOG = CAUTION

@@ -87,6 +87,26 @@ class Grid:
         return cls((float(xmin), float(cell_m), 0.0, float(ymax), 0.0, -float(cell_m)),
                    (rows, cols), crs_wkt, nodata)
 
+    @classmethod
+    def aligned(cls, xmin, ymin, xmax, ymax, *, cell_m, crs_wkt="", nodata=None) -> "Grid":
+        """A grid of square ``cell_m`` cells covering the bounds, its corners on multiples of the
+        cell size (the bounds widened outward to the nearest multiples), so that grids of the same
+        cell over neighbouring sheets share cell edges and tile without gaps or overlaps.
+
+        >>> Grid.aligned(103.0, 207.0, 151.0, 260.0, cell_m=10.0).transform
+        (100.0, 10.0, 0.0, 260.0, 0.0, -10.0)
+        """
+        check_extent((xmin, ymin, xmax, ymax), allow_empty=True)
+        if not (np.isfinite(cell_m) and cell_m > 0):
+            raise InputError(f"cell size must be a positive number of metres, got {cell_m}")
+        # a bound already on a multiple (to a millionth of a cell) is kept, not widened a cell
+        c0 = np.floor(xmin / cell_m + 1e-6)
+        r0 = np.ceil(ymax / cell_m - 1e-6)
+        c1 = max(np.ceil(xmax / cell_m - 1e-6), c0 + 1)
+        r1 = min(np.floor(ymin / cell_m + 1e-6), r0 - 1)
+        return cls((float(c0 * cell_m), float(cell_m), 0.0, float(r0 * cell_m), 0.0, -float(cell_m)),
+                   (int(r0 - r1), int(c1 - c0)), crs_wkt, nodata)
+
     def cell_centres(self) -> tuple[np.ndarray, np.ndarray]:
         """1-D coordinates of cell centres: ``(x of each column, y of each row)``."""
         x0, dx, _, y0, _, dy = self.transform
@@ -128,3 +148,46 @@ def check_grid_array(array, grid: "Grid | None", name: str) -> np.ndarray:
             "belongs to the array"
         )
     return z
+
+
+#: Most cells an output grid may have: the chain holds about ten float64 grids of it at once
+#: (surface, standard error, dip, dip direction, depth, thickness, ...), 80 bytes a cell, so
+#: 50 million cells take about 4 GB (our choice, for a desktop machine).
+MAX_GRID_CELLS = 50_000_000
+
+
+def check_extent(extent, *, what: str = "--extent", allow_empty: bool = False) -> tuple:
+    """``(xmin, ymin, xmax, ymax)`` as floats, refused in one line unless four finite numbers with
+    ``xmin < xmax`` and ``ymin < ymax`` (equal allowed with ``allow_empty``)."""
+    try:
+        vals = tuple(float(v) for v in extent)
+    except (TypeError, ValueError):
+        raise InputError(f"{what} must be four numbers XMIN YMIN XMAX YMAX, got {extent!r}") from None
+    if len(vals) != 4 or not all(np.isfinite(vals)):
+        raise InputError(f"{what} must be four finite numbers XMIN YMIN XMAX YMAX, got {extent!r}")
+    xmin, ymin, xmax, ymax = vals
+    bad = (xmin > xmax or ymin > ymax) if allow_empty else (xmin >= xmax or ymin >= ymax)
+    if bad:
+        raise InputError(f"{what} {xmin:g} {ymin:g} {xmax:g} {ymax:g}: XMIN must be less than XMAX and YMIN less "
+                         "than YMAX; give the corners in the order XMIN YMIN XMAX YMAX")
+    return vals
+
+
+def auto_cell_m(bounds) -> float:
+    """About 1/500 of the larger side of ``bounds``, rounded up to 1, 2 or 5 times a power of ten
+    (a round cell size; common practice for map grids)."""
+    xmin, ymin, xmax, ymax = bounds
+    raw = max(xmax - xmin, ymax - ymin) / 500.0
+    if not raw > 0:
+        return 1.0
+    mag = 10 ** np.floor(np.log10(raw))
+    return float(min((m * mag for m in (1, 2, 5, 10) if m * mag >= raw * (1 - 1e-12)), default=raw))
+
+
+def check_grid_size(grid: "Grid", *, what: str = "the output grid", fix: str = "give a larger --cell or a "
+                    "smaller --extent") -> None:
+    """Refuse a grid of more than :data:`MAX_GRID_CELLS` cells, before any work, in one line."""
+    n = grid.rows * grid.cols
+    if n > MAX_GRID_CELLS:
+        raise InputError(f"{what} would have {grid.rows} x {grid.cols} = {n:,} cells of {grid.cell_x_m:g} m, more "
+                         f"than the {MAX_GRID_CELLS:,} strikeline holds in memory; {fix}")

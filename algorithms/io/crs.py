@@ -23,20 +23,59 @@ def _srs(wkt: str | None) -> osr.SpatialReference | None:
 
 
 def crs_label(wkt: str | None) -> str:
-    """``EPSG:nnnn`` where the CRS (WKT) has an EPSG code, else its name."""
+    """How messages and summary.json name a CRS given as WKT.
+
+    ``EPSG:nnnn`` where the CRS as a whole has an authority code: written in the WKT, or found by
+    GDAL (``AutoIdentifyEPSG``, else an exact match, confidence 100, in PROJ's database). Otherwise
+    its own name (osr's ``GetName``; ``unnamed <projection method>`` when it has none), the words
+    ``no EPSG code`` and its unit: ``"Sheet grid (no EPSG code, US survey foot)"``. The code of a
+    part - the geographic CRS a custom projected CRS is based on - never labels the whole. A
+    compound CRS is its horizontal and vertical labels joined by ``" + "``; no CRS is ``"no CRS"``.
+    """
     srs = _srs(wkt)
-    if srs is None:
+    # a GeoPackage layer without a CRS reads back as GDAL's placeholder for srs_id 0 or -1
+    # (OGC 12-128r18, requirement 11): no CRS, not a geographic one
+    if srs is None or not srs.ExportToWkt() or srs.GetName() in ("Undefined geographic SRS",
+                                                                  "Undefined Cartesian SRS"):
         return "no CRS"
+    code = _authority_code(srs)
+    if code:
+        return code
+    if srs.IsCompound():
+        horizontal = srs.Clone()
+        horizontal.StripVertical()
+        vcode = (f"{srs.GetAuthorityName('VERT_CS')}:{srs.GetAuthorityCode('VERT_CS')}"
+                 if srs.GetAuthorityName("VERT_CS") and srs.GetAuthorityCode("VERT_CS") else
+                 f"{srs.GetAttrValue('VERT_CS') or 'unnamed vertical CRS'} (no EPSG code, "
+                 f"{srs.GetAttrValue('VERT_CS|UNIT') or 'unknown unit'})")
+        return f"{crs_label(horizontal.ExportToWkt())} + {vcode}"
+    name = srs.GetName()
+    if not name or name.lower() == "unknown":
+        method = (srs.GetAttrValue("PROJECTION") or "").replace("_", " ")
+        name = f"unnamed {method} CRS" if method else "unnamed CRS"
+    unit = srs.GetAngularUnitsName() if srs.IsGeographic() else srs.GetLinearUnitsName()
+    return f"{name} (no EPSG code, {unit or 'unknown unit'})"
+
+
+def _authority_code(srs: osr.SpatialReference) -> str | None:
+    """``AUTH:code`` of the CRS as a whole (its root node), as written or identified; else None."""
+    auth, code = srs.GetAuthorityName(None), srs.GetAuthorityCode(None)
+    if auth and code:
+        return f"{auth}:{code}"
     probe = srs.Clone()
     try:
-        probe.AutoIdentifyEPSG()
+        if probe.AutoIdentifyEPSG() == 0 and probe.GetAuthorityName(None) and probe.GetAuthorityCode(None):
+            return f"{probe.GetAuthorityName(None)}:{probe.GetAuthorityCode(None)}"
     except RuntimeError:
         pass
-    for key in ("PROJCS", "GEOGCS", None):
-        auth, code = probe.GetAuthorityName(key), probe.GetAuthorityCode(key)
-        if auth and code:
-            return f"{auth}:{code}"
-    return probe.GetName() or "unnamed CRS"
+    try:
+        matches = srs.FindMatches() or []
+    except RuntimeError:
+        matches = []
+    for match, confidence in matches:
+        if confidence == 100 and match.GetAuthorityName(None) and match.GetAuthorityCode(None):
+            return f"{match.GetAuthorityName(None)}:{match.GetAuthorityCode(None)}"
+    return None
 
 
 def utm_suggestion(lon: float, lat: float) -> str:

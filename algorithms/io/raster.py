@@ -124,3 +124,96 @@ def write_geotiff(path, array, grid: Grid, *, nodata: float = NODATA_OUT) -> Non
                 os.remove(tmp)
             raise OutputError(f"'{path}': GDAL could not write it ({gdal_message(exc)})") from None
     os.replace(tmp, path)
+
+
+def read_vertical_unit(path, *, band: int = 1) -> dict:
+    """The unit a raster declares for its values: its band's unit type and the vertical axis of a
+    compound CRS (horizontal + vertical), as text and numbers.
+
+    Returns
+    -------
+    dict
+        ``band_unit``: the band's unit type as written (``"m"``, ``"ft"``, ``"US survey foot"``,
+        ``""`` when none); ``crs_unit``: the name of the vertical axis unit of a compound or
+        vertical CRS (``""`` when the CRS has no vertical part); ``crs_metres_per_unit``: that
+        unit in metres (``None`` without a vertical part); ``crs_vertical``: the vertical CRS's name.
+
+    Raises
+    ------
+    RasterReadError
+        GDAL cannot open the file (GDAL's message is included).
+    """
+    path = os.fspath(path)
+    with gdal_exceptions():
+        try:
+            ds = gdal.Open(path, gdal.GA_ReadOnly)
+            try:
+                band_unit = (ds.GetRasterBand(band).GetUnitType() or "") if band <= ds.RasterCount else ""
+                wkt = ds.GetProjection() or ""
+            finally:
+                ds = None
+        except RuntimeError as exc:
+            raise RasterReadError(f"'{path}': GDAL cannot read its band unit ({gdal_message(exc)})") from None
+    return {"band_unit": band_unit.strip(), **vertical_unit_of_crs(wkt)}
+
+
+def vertical_unit_of_crs(wkt: str | None) -> dict:
+    """The vertical axis unit of a compound (or vertical) CRS given as WKT: ``crs_unit`` (name,
+    ``""`` when the CRS has no vertical part), ``crs_metres_per_unit`` (``None`` then) and
+    ``crs_vertical`` (the vertical CRS's name)."""
+    from osgeo import osr
+
+    out = {"crs_unit": "", "crs_metres_per_unit": None, "crs_vertical": ""}
+    if not wkt:
+        return out
+    with gdal_exceptions():
+        srs = osr.SpatialReference()
+        try:
+            srs.ImportFromWkt(wkt)
+        except RuntimeError:
+            return out
+        if not (srs.IsCompound() or srs.IsVertical()):
+            return out
+        out["crs_unit"] = srs.GetAttrValue("VERT_CS|UNIT") or ""
+        out["crs_metres_per_unit"] = float(srs.GetTargetLinearUnits("VERT_CS"))
+        out["crs_vertical"] = srs.GetAttrValue("VERT_CS") or ""
+    return out
+
+
+def resample_to_grid(array, grid: Grid, target: Grid, *, what: str = "raster") -> np.ndarray:
+    """A band resampled onto another grid of the same CRS by GDAL's warper (bilinear).
+
+    ``array`` (float, NaN for nodata) on ``grid`` is handed to ``gdal.Warp`` as an in-memory
+    raster and warped onto ``target``'s geotransform and shape; cells outside ``array`` or whose
+    bilinear neighbourhood holds no valid cell are NaN. This is ``gdalwarp -r bilinear -te ...
+    -tr ...`` on the same data.
+    """
+    a = np.asarray(array, dtype=np.float64)
+    if a.shape != grid.shape:
+        raise InputError(f"{what}: the band has shape {a.shape}, its grid {grid.shape}")
+    with gdal_exceptions():
+        try:
+            mem = gdal.GetDriverByName("MEM")
+            src = mem.Create("", grid.cols, grid.rows, 1, gdal.GDT_Float64)
+            src.SetGeoTransform(grid.transform)
+            if grid.crs_wkt:
+                src.SetProjection(grid.crs_wkt)
+            b = src.GetRasterBand(1)
+            b.SetNoDataValue(float("nan"))
+            b.WriteArray(a)
+            dst = mem.Create("", target.cols, target.rows, 1, gdal.GDT_Float64)
+            dst.SetGeoTransform(target.transform)
+            if grid.crs_wkt:
+                dst.SetProjection(grid.crs_wkt)
+            db = dst.GetRasterBand(1)
+            db.SetNoDataValue(float("nan"))
+            db.Fill(float("nan"))
+            gdal.Warp(dst, src, resampleAlg="bilinear", srcNodata=float("nan"), dstNodata=float("nan"))
+            out = db.ReadAsArray().astype(np.float64)
+        except RuntimeError as exc:
+            raise RasterReadError(f"{what}: GDAL could not resample it onto the output grid "
+                                  f"({gdal_message(exc)})") from None
+        finally:
+            src = dst = b = db = None
+    out[~np.isfinite(out)] = np.nan
+    return out

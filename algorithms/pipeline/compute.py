@@ -22,6 +22,8 @@ from strikeline.pipeline.planes import group_labels, planes_by_group
 from strikeline.pipeline.steps import attitude_of, collect_picks, contact_segments, depth_trace_misfit, fit_picks, log_model_choice, model_surface, pick_sigmas, structure_contours, surface_grid
 from strikeline.pipeline.summary import build_summary
 from strikeline.pipeline.units import map_unit_bounds, map_unit_check
+from strikeline.pipeline.rasters import ground_on_grid, length_off_raster
+from strikeline import vocabulary as V
 
 
 @dataclass
@@ -76,13 +78,17 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
             progress(min(1.0, k / steps))
 
     what = f"picks on contacts {inputs.contacts.what}"
+    grid_notes = []  # said once the picks give a plane: an input error stays the only line
+    grid = surface_grid(inputs, opts, log=grid_notes.append)  # first: an extent or cell refused before any work
     picks = collect_picks(inputs, spacing_m=opts.pick_spacing_m, log=log, is_cancelled=is_cancelled)
     step(1)
     plane = fit_picks(picks, what=what)
     sigma = pick_sigmas(inputs, picks, opts)
     conf_opts = {"crs_wkt": inputs.crs_wkt, "resamples": opts.resamples, "seed": opts.seed,
                  "is_cancelled": is_cancelled}
-    grid = surface_grid(inputs, opts, log=log)
+    for note in grid_notes:
+        log(note)
+    off_dem = None if inputs.dem is None else contacts_off_dem(inputs, log=log)
     spacing = vertex_spacing_m(inputs.contacts.geoms)
     blocks = contact_segments(picks, cell_m=grid.cell_x_m, vertex_spacing_m=spacing)
     plane_summary = attitude_of(picks.xyz, sigma, what=what, strict=True, blocks=blocks, **conf_opts)
@@ -129,7 +135,8 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     segments = None
     flag_m = None
     if inputs.dem is not None:
-        f = depth_trace_misfit(inputs.dem, inputs.dem_grid, surface, inputs.contacts,
+        ground, ground_grid = ground_on_grid(inputs.dem, inputs.dem_grid, grid, log=log)
+        f = depth_trace_misfit(ground, ground_grid, surface, inputs.contacts,
                                extrapolated_fn=model.is_extrapolated, flag_m=opts.misfit_flag_m, model=model,
                                dem_sigma_m=opts.dem_sigma_m, contact_sigma_m=opts.contact_sigma_m)
         depth, trace, tflags = f["depth"], f["trace"], f["trace_extrapolated"]
@@ -176,6 +183,8 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
                             n_top_picks=None if top_picks is None else len(top_picks))
     if unit_check is not None:
         summary["map_units"] = json_ready(unit_check["summary"])
+    if off_dem is not None:
+        summary[V.CONTACTS_OFF_DEM.name] = json_ready(off_dem)
     if window_note:
         summary["attitudes"] = {**summary.get("attitudes", {"n_windows": 0}), "note": window_note}
     step(9)
@@ -184,3 +193,17 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
                    trace_extrapolated=tflags, contact_misfit=segments, attitudes=attitudes,
                    vertical_thickness_m=vth, true_thickness_m=tth, top_picks=top_picks,
                    unit_check=unit_check)
+
+
+def contacts_off_dem(inputs: Inputs, *, log: Log = _quiet) -> dict:
+    """The length of the contacts that lies off the DEM (outside it or over nodata), where no DEM
+    pick is made (:func:`strikeline.pipeline.rasters.length_off_raster`), with a warning in the
+    log when there is any: never dropped without a word."""
+    off = length_off_raster(inputs.contacts.geoms, inputs.dem, inputs.dem_grid)
+    if off["length_m"] > 0:
+        dem = f"DEM '{inputs.paths['dem']}'" if "dem" in inputs.paths else "the DEM"
+        log(f"warning: {off['length_m']:.0f} m of the contacts ({off['percent']:.1f}% of {off['total_length_m']:.0f} m, "
+            f"on {off['n_lines']} line(s)) lie off {dem} (outside it or over nodata): no DEM picks there"
+            + ("; contour picks may still cover them" if inputs.contours is not None else
+               "; give a DEM that covers them, or contours (--contours) for those stretches"))
+    return off

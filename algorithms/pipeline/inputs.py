@@ -11,7 +11,8 @@ import shapely
 from strikeline.errors import InputError
 from strikeline.geometry.grid import Grid
 from strikeline.io.crs import crs_label, same_crs
-from strikeline.io.raster import read_raster
+from strikeline.io.raster import read_raster, read_vertical_unit
+from strikeline.pipeline.elevation_units import contour_elevations_in_metres, dem_in_metres
 from strikeline.io.vector import VectorLayer, read_layer
 from strikeline.geometry.orientation import dip_direction_from_strike
 from strikeline.surfaces.units import parse_unit_names
@@ -123,6 +124,7 @@ def load_inputs(opts: RunOptions, *, log: Log = _quiet) -> Inputs:
     dem = grid = None
     if opts.dem:
         dem, grid = read_raster(opts.dem, label="DEM")
+        dem = dem_in_metres(dem, read_vertical_unit(opts.dem), opts.dem_unit, what=f"DEM '{opts.dem}'", log=log)
     contours = boreholes = orientations = top = None
     if opts.contours:
         contours = read_layer(opts.contours, layer=opts.contours_layer, label="contours",
@@ -183,6 +185,11 @@ def assemble_inputs(contacts: VectorLayer, opts: RunOptions, *, dem=None, dem_gr
             )
     contacts = reproject_to(contacts, target, label="contacts", log=log)
     contours = reproject_to(contours, target, label="contours", log=log)
+    if contours is not None:  # metres, and checked against the DEM where both exist
+        elev = contour_elevations_in_metres(
+            elev, contours.geoms, getattr(opts, "contour_unit", None), what=f"contours {contours.what}", dem=dem,
+            dem_grid=dem_grid, dem_what=f"DEM '{paths['dem']}'" if paths and "dem" in paths else "the DEM",
+            names=names, log=log)
     boreholes = reproject_to(boreholes, target, label="boreholes", log=log)
     orientations = reproject_to(orientations, target, label="orientations", log=log)
     top_contacts = reproject_to(top_contacts, target, label="top contacts", log=log)

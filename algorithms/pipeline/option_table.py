@@ -24,6 +24,7 @@ from strikeline.attitude import (CONFIDENCE_METHODS, DEFAULT_MIN_POINTS, DEFAULT
                                  MIN_REPLICATES)
 from strikeline.maps import SLOPE_SENSES, WIDTH_KINDS
 from strikeline.surfaces import DEFAULT_BOREHOLE_SIGMA_M, DEFAULT_ORIENTATION_SIGMA_DEG, MODEL_CHOICES
+from strikeline.pipeline.elevation_units import ELEVATION_UNITS
 
 Log = Callable[[str], None]
 
@@ -211,6 +212,12 @@ _OPTION_LIST = (
     _opt("elev_field", "field", "numeric field with each contour's elevation", flag="--elev-field",
          metavar="NAME", qgis="ELEV_FIELD", label="Elevation field of the contour lines", parent="contours",
          numeric=True, commands=_RUN, tools=_PICK_TOOLS),
+    _opt("dem_unit", str, "unit of the DEM's elevations: m, ft (international foot, 0.3048 m) or us-ft (US "
+         "survey foot, 1200/3937 m); converted to metres at load", choices=ELEVATION_UNITS,
+         unset="the unit the DEM declares (band unit type or the vertical axis of a compound CRS), else metres",
+         flag="--dem-unit", commands=_RUN),
+    _opt("contour_unit", str, "unit of the contours' elevation field: m, ft or us-ft; converted to metres at load",
+         choices=ELEVATION_UNITS, unset="metres", flag="--contour-unit", commands=_RUN),
     # ---- outputs
     _opt("out", "path", "folder to create for the results (must not exist unless --overwrite)", flag="--out",
          metavar="DIR", required=True, commands=_RUN),
@@ -223,10 +230,17 @@ _OPTION_LIST = (
          "relief of a few hundred metres (common practice)", flag="--interval", metavar="METRES",
          qgis="INTERVAL", label="Structure-contour interval", commands=_RUN,
          tools=("modelcontact", "structurecontours")),
-    _opt("cell_m", float, "output cell size when there is no DEM (or reference grid)", unit="m", minimum=0.0,
-         minimum_open=True, unset="about 1/500 of the contours' (or picks') extent", flag="--cell",
-         metavar="METRES", qgis="CELL", label="Cell size without a DEM or reference grid (0: about 1/500 of the "
-         "extent)", commands=_RUN, tools=_SURFACE_TOOLS),
+    _opt("cell_m", float, "output cell size; the grid's corners lie on multiples of it, so sheets tile; with a "
+         "DEM, the DEM is resampled onto it (GDAL, bilinear) for depth and trace", unit="m", minimum=0.0,
+         minimum_open=True, unset="the DEM's grid, unchanged; without a DEM about 1/500 of the contours' (or "
+         "picks') extent", flag="--cell", metavar="METRES", qgis="CELL",
+         label="Output cell size (0: the DEM's grid; without a DEM about 1/500 of the extent)",
+         labels=(("surfacemodel", "Cell size without a reference grid (0: about 1/500 of the extent)"),),
+         commands=_RUN, tools=_SURFACE_TOOLS),
+    _opt("extent", float, "output grid extent XMIN YMIN XMAX YMAX in the output CRS (the DEM's, else the "
+         "contacts'), widened to multiples of the cell size", unit="m", nargs=4,
+         metavar=("XMIN", "YMIN", "XMAX", "YMAX"), unset="the DEM's grid, else the contours' (or contacts') "
+         "extent", flag="--extent", commands=_RUN),
     _opt("pick_spacing_m", float, "spacing of DEM picks along the contacts", unit="m", minimum=0.0,
          minimum_open=True, unset="the DEM cell size", flag="--pick-spacing", metavar="METRES", qgis="PICK_SPACING",
          label="Spacing of the DEM picks along the contacts (0: the DEM cell size)", commands=_RUN,

@@ -42,8 +42,11 @@ class RunOptions:
     contours: str | None = default("contours")
     contours_layer: str | None = default("contours_layer")
     elev_field: str | None = default("elev_field")
+    dem_unit: str | None = default("dem_unit")  # m, ft, us-ft (strikeline.pipeline.elevation_units)
+    contour_unit: str | None = default("contour_unit")
     interval_m: float = default("interval_m")
     cell_m: float | None = default("cell_m")
+    extent: tuple | None = default("extent")  # (xmin, ymin, xmax, ymax) of the output grid
     overwrite: bool = default("overwrite")
     pick_spacing_m: float | None = default("pick_spacing_m")
     # surface model and extra constraints
@@ -125,6 +128,10 @@ def check_options(opts: RunOptions, *, names: dict | None = None) -> None:
         if (o.bounded or o.choices) and hasattr(opts, o.name):
             check_value(o.name, getattr(opts, o.name), names=names)
     check_unit_options(opts, names=names)
+    if getattr(opts, "extent", None) is not None:
+        from strikeline.geometry.grid import check_extent
+
+        check_extent(opts.extent, what=(names or CLI_OPTION_NAMES).get("extent") or "--extent")
     check_out_folder(opts.out, overwrite=opts.overwrite,
                      inputs=(opts.contacts, opts.dem, opts.contours, opts.boreholes, opts.orientations,
                              opts.top_contacts, opts.map_units))

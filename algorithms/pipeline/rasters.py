@@ -1,6 +1,7 @@
-"""Steps on grids made by an earlier step (the QGIS single-step tools chain them through GeoTIFFs):
-the output grid over an extent, the check that two rasters share one grid, flags read from a
-raster, and structure contours split where the surface passes above or below the ground.
+"""Steps on grids (the QGIS single-step tools chain them through GeoTIFFs): the output grid (its
+extent, cell and aligned origin) and the DEM resampled onto it, the length of contact off the DEM,
+the check that two rasters share one grid, flags read from a raster, and structure contours split
+where the surface passes above or below the ground.
 """
 from __future__ import annotations
 
@@ -8,24 +9,91 @@ import numpy as np
 import shapely
 
 from strikeline.errors import InputError
-from strikeline.geometry.grid import Grid
+from strikeline.geometry.grid import Grid, auto_cell_m, check_extent, check_grid_size
 from strikeline.io.crs import same_crs
-from strikeline.io.vector import VectorLayer
 from strikeline.maps.dipgrids import depth_below_ground
 from strikeline.maps.trace import split_lines_by_flag
 from strikeline.picks import sample_bilinear
-from strikeline.pipeline.inputs import Inputs
-from strikeline.pipeline.options import Log, RunOptions, _quiet
-from strikeline.pipeline.steps import structure_contours, surface_grid
+from strikeline.pipeline.options import Log, _quiet
+from strikeline.pipeline.steps import structure_contours
 
 
 def grid_over(bounds, *, cell_m: float | None, crs_wkt: str, log: Log = _quiet) -> Grid:
     """The output grid of :func:`strikeline.pipeline.surface_grid` over ``bounds`` = (xmin, ymin,
-    xmax, ymax) without a DEM (``cell_m`` None: its automatic cell size, about 1/500 of the extent)."""
-    box = np.array([shapely.box(*bounds)], dtype=object)
-    holder = VectorLayer("extent", "extent", box, np.zeros(1, np.int64), {}, {}, crs_wkt)
-    return surface_grid(Inputs(contacts=holder, crs_wkt=crs_wkt),
-                        RunOptions(contacts="extent", out="", cell_m=cell_m), log=log)
+    xmax, ymax) without a DEM (``cell_m`` None: its automatic cell size, about 1/500 of the extent),
+    its corners on multiples of the cell."""
+    return output_grid(dem_grid=None, bounds=bounds, cell_m=cell_m, extent=None, crs_wkt=crs_wkt, log=log)
+
+
+def output_grid(*, dem_grid: Grid | None, bounds, cell_m: float | None, extent, crs_wkt: str,
+                log: Log = _quiet) -> Grid:
+    """The grid the surface and every output raster are made on.
+
+    With a DEM and neither ``extent`` nor ``cell_m``: the DEM's own grid, unchanged. Otherwise
+    square cells of ``cell_m`` (default: the DEM's cell width, else :func:`auto_cell_m` of the
+    extent) over ``extent`` (default: the DEM's extent, else ``bounds``, the data's), widened to
+    multiples of the cell (:meth:`Grid.aligned`), so that grids of neighbouring sheets made with
+    the same cell share their cell edges. Refuses a grid of more than
+    :data:`~strikeline.geometry.grid.MAX_GRID_CELLS` cells in one line.
+    """
+    if dem_grid is not None and cell_m is None and extent is None:
+        return dem_grid.with_nodata(None)
+    box = check_extent(extent) if extent is not None else dem_grid.bounds if dem_grid is not None else tuple(bounds)
+    whose = "--extent" if extent is not None else "the DEM's extent" if dem_grid is not None else \
+        "the contour layer's extent"
+    cell = cell_m
+    if cell is None:
+        if dem_grid is not None:
+            cell = dem_grid.cell_x_m
+        else:
+            cell = auto_cell_m(box)
+            log(f"no --cell given: using {cell:g} m cells over {whose}")
+    grid = Grid.aligned(*box, cell_m=float(cell), crs_wkt=crs_wkt)
+    check_grid_size(grid)
+    x0, y0 = grid.transform[0], grid.transform[3]
+    log(f"output grid: {grid.rows} x {grid.cols} cells of {grid.cell_x_m:g} m over {whose}, top-left corner "
+        f"({x0:.10g}, {y0:.10g}) on multiples of the cell")
+    return grid
+
+
+def ground_on_grid(dem, dem_grid: Grid, grid: Grid, *, what: str = "DEM", log: Log = _quiet):
+    """The DEM on the output grid: itself when the grids are one, else resampled by GDAL's warper
+    (bilinear; :func:`strikeline.io.raster.resample_to_grid`). Returns ``(array, grid)``."""
+    if tuple(dem_grid.shape) == tuple(grid.shape) and np.allclose(dem_grid.transform, grid.transform, rtol=0.0,
+                                                                  atol=1e-6 * dem_grid.cell_x_m):
+        return dem, dem_grid
+    from strikeline.io.raster import resample_to_grid
+
+    log(f"{what} resampled (GDAL warp, bilinear) from {dem_grid.cell_x_m:g} m cells onto the output grid of "
+        f"{grid.cell_x_m:g} m cells for depth, predicted trace and misfit")
+    return resample_to_grid(dem, dem_grid, grid.with_nodata(None), what=what), grid.with_nodata(None)
+
+
+def length_off_raster(geoms, array, grid: Grid) -> dict:
+    """How much of the lines lies where a raster has no value (outside it, or over nodata).
+
+    Every line is cut into pieces of at most a quarter cell (``shapely.segmentize``); a piece whose
+    midpoint the raster cannot give a bilinear value for
+    (:func:`strikeline.picks.sample_bilinear`: NaN outside the outer cell edges and next to
+    nodata) is off. These are the stretches where no DEM pick can be made.
+
+    Returns ``{"length_m", "total_length_m", "percent", "n_lines"}`` (``n_lines``: lines with
+    any length off).
+    """
+    g = shapely.segmentize(np.asarray(geoms, dtype=object), max(0.25 * min(grid.cell_x_m, grid.cell_y_m), 1e-9))
+    xy, idx = shapely.get_coordinates(g, return_index=True)
+    total = float(np.sum(shapely.length(np.asarray(geoms, dtype=object))))
+    if len(xy) < 2:
+        return {"length_m": 0.0, "total_length_m": total, "percent": 0.0, "n_lines": 0}
+    same = idx[1:] == idx[:-1]
+    a, b = xy[:-1][same], xy[1:][same]
+    mid = 0.5 * (a + b)
+    seg = np.hypot(*(b - a).T)
+    off = ~np.isfinite(sample_bilinear(array, grid, mid[:, 0], mid[:, 1]))
+    length = float(np.sum(seg[off]))
+    return {"length_m": length, "total_length_m": total,
+            "percent": 100.0 * length / total if total > 0 else 0.0,
+            "n_lines": int(len(np.unique(idx[:-1][same][off])))}
 
 
 def points_bounds(xyz) -> tuple[float, float, float, float]:

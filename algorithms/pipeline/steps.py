@@ -181,19 +181,15 @@ POOR_DIRECTION_DEG = 45.0
 
 
 def surface_grid(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet) -> Grid:
-    """The output grid: the DEM's grid, else ``--cell`` metres over the contour layer's extent."""
-    if inputs.dem_grid is not None:
-        return inputs.dem_grid.with_nodata(None)
+    """The output grid: the DEM's grid; with ``--extent`` or ``--cell`` (or without a DEM) square
+    cells of ``--cell`` over ``--extent`` (defaults: the DEM's cell and extent, else about 1/500 of
+    the contour layer's extent), corners on multiples of the cell
+    (:func:`strikeline.pipeline.rasters.output_grid`)."""
+    from strikeline.pipeline.rasters import output_grid  # rasters builds on these steps
+
     geoms = inputs.contours.geoms if inputs.contours is not None else inputs.contacts.geoms
-    xmin, ymin, xmax, ymax = shapely.total_bounds(geoms)
-    cell = opts.cell_m
-    if cell is None:
-        span = max(xmax - xmin, ymax - ymin)
-        raw = span / 500.0
-        mag = 10 ** np.floor(np.log10(raw))
-        cell = float(min((m * mag for m in (1, 2, 5, 10) if m * mag >= raw), default=raw))
-        log(f"no --cell given: using {cell:g} m cells over the contour layer's extent")
-    return Grid.from_bounds(xmin, ymin, xmax, ymax, cell_m=cell, crs_wkt=inputs.crs_wkt)
+    return output_grid(dem_grid=inputs.dem_grid, bounds=tuple(shapely.total_bounds(geoms)), cell_m=opts.cell_m,
+                       extent=getattr(opts, "extent", None), crs_wkt=inputs.crs_wkt, log=log)
 
 
 def contact_segments(picks: PickSet, *, cell_m: float, vertex_spacing_m: float = 0.0) -> np.ndarray:
