@@ -17,7 +17,7 @@ from strikeline.surfaces import SurfaceModel
 from strikeline.maps.thickness import isopach_grids
 from strikeline.maps.trace import (vertex_spacing_m)
 from strikeline.pipeline.inputs import Inputs
-from strikeline.pipeline.options import Log, RunOptions, _quiet
+from strikeline.pipeline.options import SEGMENT_CELLS, Log, RunOptions, _quiet
 from strikeline.pipeline.planes import group_labels, planes_by_group
 from strikeline.pipeline.steps import attitude_of, collect_picks, contact_segments, depth_trace_misfit, fit_picks, log_model_choice, model_surface, pick_sigmas, structure_contours, surface_grid
 from strikeline.pipeline.summary import build_summary
@@ -185,6 +185,8 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
         summary["map_units"] = json_ready(unit_check["summary"])
     if off_dem is not None:
         summary[V.CONTACTS_OFF_DEM.name] = json_ready(off_dem)
+    if segments is not None and ground_grid is not inputs.dem_grid:  # the segments were cut on the output grid
+        summary["contact_misfit"]["segment_m"] = SEGMENT_CELLS * min(ground_grid.cell_x_m, ground_grid.cell_y_m)
     if window_note:
         summary["attitudes"] = {**summary.get("attitudes", {"n_windows": 0}), "note": window_note}
     step(9)

@@ -203,7 +203,8 @@ _OPTION_LIST = (
          metavar="NAME", commands=_RUN),
     _opt("where", str, "OGR SQL filter on the contacts, e.g. \"unit = 'Kv'\"", flag="--where", metavar="SQL",
          commands=_RUN),
-    _opt("dem", "path", "DEM raster (GeoTIFF or any GDAL raster), metres", flag="--dem", metavar="PATH",
+    _opt("dem", "path", "DEM raster (GeoTIFF or any GDAL raster); elevations in metres unless it declares feet "
+         "or --dem-unit says so", flag="--dem", metavar="PATH",
          qgis="DEM", label="DEM (ground elevation, metres)", geometry="raster", commands=_RUN, tools=_PICK_TOOLS),
     _opt("contours", "path", "line layer of topographic contours", flag="--contours", metavar="PATH",
          qgis="CONTOURS", label="Topographic contour lines", geometry="line", commands=_RUN, tools=_PICK_TOOLS),

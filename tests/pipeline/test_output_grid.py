@@ -13,6 +13,7 @@ from helpers import DEMO
 from strikeline.errors import InputError
 from strikeline.geometry.grid import MAX_GRID_CELLS, Grid
 from strikeline.pipeline import RunOptions, load_inputs
+from strikeline.pipeline.options import SEGMENT_CELLS
 from strikeline.pipeline.rasters import ground_on_grid, length_off_raster, output_grid
 from strikeline.pipeline.steps import surface_grid
 
@@ -155,6 +156,8 @@ def test_run_on_a_cropped_dem_warns_and_records_the_length_off_it(tmp_path, cli)
     outside = float(np.sum(shapely.length(shapely.difference(geoms, box))))
     assert outside > 0 and off["length_m"] == pytest.approx(outside, rel=0.02)
     assert f"warning: {off['length_m']:.0f} m of the contacts ({off['percent']:.1f}%" in r.stderr
+    # the misfit segments are cut on the output grid the DEM was resampled onto
+    assert s["contact_misfit"]["segment_m"] == pytest.approx(SEGMENT_CELLS * cell)
     ds = gdal.Open(str(out / "surface.tif"))
     sgt = ds.GetGeoTransform()
     ds = None
