@@ -165,6 +165,7 @@ def test_demo_results_gpkg_and_rasters_use_exactly_the_vocabulary(demo_results):
         defn = lyr.GetLayerDefn()
         got[lyr.GetName()] = [defn.GetFieldDefn(k).GetName() for k in range(defn.GetFieldCount())]
     ds = None
+    assert got.pop(V.STYLES_TABLE, None) is not None  # QGIS's table of the layers' styles, not a layer
     assert set(got) <= set(V.LAYERS) and {"picks", "structure_contours", "attitudes", "top_picks"} <= set(got)
     for name, fields in got.items():
         spec = V.LAYERS[name]
@@ -185,6 +186,7 @@ def _gpkg_fields(path):
         defn = ds.GetLayerByIndex(i).GetLayerDefn()
         got[ds.GetLayerByIndex(i).GetName()] = [defn.GetFieldDefn(k).GetName() for k in range(defn.GetFieldCount())]
     ds = None
+    got.pop(V.STYLES_TABLE, None)  # QGIS's table of the layers' styles (strikeline.io.gpkg_styles), not a layer
     return got
 
 
