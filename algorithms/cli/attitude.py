@@ -40,6 +40,8 @@ def add_parser(sub) -> argparse.ArgumentParser:
     p = sub.add_parser("attitude", help=HELP.replace("%", "%%"), description=DESCRIPTION, epilog=EPILOG)
     add_options(p.add_argument_group("points"), "points", "points_layer", "points_where", "z_field", "group_by",
                 command="attitude")
+    add_options(p.add_argument_group("points from delimited text (.csv, read by OGR's CSV driver)"), "x_field",
+                "y_field", "crs")
     add_options(p.add_argument_group("confidence"), "dem_sigma_m", "resamples", "seed", command="attitude")
     add_options(p.add_argument_group("output"), "json_out", "overwrite")
     p.set_defaults(handler=main)
@@ -68,13 +70,19 @@ def load_points(args):
     import numpy as np
     import shapely
 
-    from strikeline.io.vector import read_layer
+    from strikeline.io.vector import DelimitedPoints, read_layer
 
+    # in delimited text the --z-field column becomes the points' Z (OGR's Z_POSSIBLE_NAMES)
     layer = read_layer(args.points, layer=args.points_layer, where=args.where, label="points",
                        geometry="point", layer_option="--points-layer",
-                       where_option="--where")
+                       where_option="--where",
+                       delimited=DelimitedPoints(x_field=args.x_field, y_field=args.y_field,
+                                                 z_field=args.z_field, crs=args.crs))
     xy, index = shapely.get_coordinates(layer.geoms, return_index=True)
-    if args.z_field:
+    if args.z_field and args.z_field not in layer.fields and layer.z is not None and np.isfinite(layer.z).any():
+        z = layer.z[index]
+        source = f"column '{args.z_field}' (the points' Z)"
+    elif args.z_field:
         z = layer.numeric_field(args.z_field, option="--z-field")[index]
         source = f"field '{args.z_field}'"
     else:

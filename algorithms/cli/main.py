@@ -31,8 +31,11 @@ def main(argv=None) -> int:
     if not getattr(args, "handler", None):
         parser.print_help(sys.stderr)
         return 2
+    from strikeline.pipeline.command import command_line  # recorded in summary.json
+
     try:
-        return int(args.handler(args) or 0)
+        with command_line(sys.argv[1:] if argv is None else argv):
+            return int(args.handler(args) or 0)
     except CancelledError as exc:
         print(f"error: {one_line(exc)}", file=sys.stderr)
         return 130

@@ -193,27 +193,27 @@ def resample_to_grid(array, grid: Grid, target: Grid, *, what: str = "raster") -
         raise InputError(f"{what}: the band has shape {a.shape}, its grid {grid.shape}")
     with gdal_exceptions():
         try:
-            src = _mem_float64(grid, grid.crs_wkt)
-            src.GetRasterBand(1).WriteArray(a)
-            dst = _mem_float64(target, grid.crs_wkt)
+            mem = gdal.GetDriverByName("MEM")
+            src = mem.Create("", grid.cols, grid.rows, 1, gdal.GDT_Float64)
+            src.SetGeoTransform(grid.transform)
+            if grid.crs_wkt:
+                src.SetProjection(grid.crs_wkt)
+            b = src.GetRasterBand(1)
+            b.SetNoDataValue(float("nan"))
+            b.WriteArray(a)
+            dst = mem.Create("", target.cols, target.rows, 1, gdal.GDT_Float64)
+            dst.SetGeoTransform(target.transform)
+            if grid.crs_wkt:
+                dst.SetProjection(grid.crs_wkt)
+            db = dst.GetRasterBand(1)
+            db.SetNoDataValue(float("nan"))
+            db.Fill(float("nan"))
             gdal.Warp(dst, src, resampleAlg="bilinear", srcNodata=float("nan"), dstNodata=float("nan"))
-            out = dst.GetRasterBand(1).ReadAsArray().astype(np.float64)
+            out = db.ReadAsArray().astype(np.float64)
         except RuntimeError as exc:
             raise RasterReadError(f"{what}: GDAL could not resample it onto the output grid "
                                   f"({gdal_message(exc)})") from None
         finally:
-            src = dst = None
+            src = dst = b = db = None
     out[~np.isfinite(out)] = np.nan
     return out
-
-
-def _mem_float64(grid: Grid, crs_wkt: str):
-    """An in-memory float64 raster of ``grid``, NaN its nodata and every cell's value."""
-    ds = gdal.GetDriverByName("MEM").Create("", grid.cols, grid.rows, 1, gdal.GDT_Float64)
-    ds.SetGeoTransform(grid.transform)
-    if crs_wkt:
-        ds.SetProjection(crs_wkt)
-    band = ds.GetRasterBand(1)
-    band.SetNoDataValue(float("nan"))
-    band.Fill(float("nan"))
-    return ds

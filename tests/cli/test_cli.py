@@ -65,9 +65,13 @@ def test_demo_summary_recovers_the_plane(demo_run, demo):
     # strike by the right-hand rule is dip direction - 90 (common practice)
     assert _angle_diff(s["plane"]["strike_rhr_deg"], s["plane"]["dip_direction_deg"] - 90.0) < 1e-6
     assert s["trace_misfit"]["median_m"] < DEMO_CELL_M
-    assert set(s["inputs"]) == {"contacts_mapped.gpkg", "dem.tif", "contours.gpkg", "top_contacts.gpkg",
-                                "boreholes.gpkg", "orientations.gpkg"}
-    assert all(len(h) == 64 for h in s["inputs"].values())
+    # every input by role, the repeatable ones as lists (tests/pipeline/test_summary_inputs.py checks the records)
+    assert set(s["inputs"]) == {"contacts", "dem", "contours", "top_contacts", "boreholes", "orientations"}
+    named = [s["inputs"][r]["path"] for r in ("dem", "contours", "boreholes", "orientations")]
+    named += [rec["path"] for r in ("contacts", "top_contacts") for rec in s["inputs"][r]]
+    assert sorted(Path(p).name for p in named) == sorted(["contacts_mapped.gpkg", "dem.tif", "contours.gpkg",
+                                                          "top_contacts.gpkg", "boreholes.gpkg", "orientations.gpkg"])
+    assert all(len(s["inputs"][r]["sha256"]) == 64 for r in ("dem", "contours", "boreholes", "orientations"))
     # Source: truth.json - the top contact was built parallel to the base at this true thickness
     assert s["thickness"]["mean_m"] == pytest.approx(t["true_thickness_m"], abs=0.5)
     assert set(s["groups"]["planes"]) == set(t["grouped_contacts"]["blocks"])
@@ -167,10 +171,15 @@ def test_overwrite_replaces_an_existing_folder(overwritten):
 
 
 def test_summary_is_byte_identical_between_runs(overwritten, demo_dem_run):
-    # two runs of the same command (into different folders) write the same bytes; across separate
-    # processes (another hash seed) in test_console.py
-    _, _, out = overwritten
-    assert (out / "summary.json").read_bytes() == (demo_dem_run.out / "summary.json").read_bytes()
+    # two runs of the same command (into different folders) write the same summary but for the
+    # command line each records (its --out); across separate processes (another hash seed) in
+    # test_console.py
+    proc, out = overwritten[0], overwritten[2]
+    a, b = (out / "summary.json").read_text(), (demo_dem_run.out / "summary.json").read_text()
+    sa, sb = json.loads(a), json.loads(b)
+    assert sa.pop("command_line") == ["strikeline", *map(str, proc.args)]
+    assert sb.pop("command_line") == ["strikeline", *map(str, demo_dem_run.proc.args)]
+    assert sa == sb
 
 
 def test_version(cli):
