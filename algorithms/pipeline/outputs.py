@@ -10,6 +10,7 @@ import shapely
 
 from strikeline.io.files import atomic_folder, dumps_stable
 from strikeline.io.raster import write_geotiff
+from strikeline.io.gpkg_styles import write_layer_styles
 from strikeline.io.vector import LayerOut, write_gpkg
 from strikeline import vocabulary as V
 from strikeline.attitude.local import LocalAttitudes
@@ -183,4 +184,5 @@ def _write_all(r: Results, folder: Path) -> None:
     for name, array in result_rasters(r):
         write_geotiff(folder / name, array, r.grid)
     write_gpkg(folder / V.RESULTS_FILE, result_layers(r), r.grid.crs_wkt)
+    write_layer_styles(folder / V.RESULTS_FILE)  # QGIS opens the layers styled (layer_styles)
     (folder / V.SUMMARY_FILE).write_text(dumps_stable(r.summary))
