@@ -204,6 +204,8 @@ RASTERS = {r.name: r for r in (SURFACE, DIP, DIP_DIRECTION, UNCERTAINTY, DEPTH, 
 #: The name of the run's summary file and of the QGIS whole chain's summary destination.
 SUMMARY_FILE = "summary.json"
 RESULTS_FILE = "results.gpkg"
+#: The list of the files strikeline wrote into an output folder (size, SHA-256): what --overwrite may replace.
+MANIFEST_FILE = "strikeline_manifest.json"
 #: The table of results.gpkg that holds its layers' QGIS styles (QGIS's own name; not a layer).
 STYLES_TABLE = "layer_styles"
 

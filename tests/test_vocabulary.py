@@ -179,7 +179,7 @@ def test_demo_results_gpkg_and_rasters_use_exactly_the_vocabulary(demo_results):
     assert got["attitudes"] == list(V.ATTITUDES.field_names)
     tifs = {p.name for p in demo_results.glob("*.tif")}
     assert tifs <= {r.file for r in V.RASTERS.values()} and {"surface.tif", "dip.tif", "depth.tif"} <= tifs
-    assert {p.name for p in demo_results.iterdir()} == tifs | {V.RESULTS_FILE, V.SUMMARY_FILE}
+    assert {p.name for p in demo_results.iterdir()} == tifs | {V.RESULTS_FILE, V.SUMMARY_FILE, V.MANIFEST_FILE}
 
 
 def _named_fields(spec, fields):

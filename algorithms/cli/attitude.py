@@ -14,6 +14,7 @@ exists without ``--overwrite``).
 from __future__ import annotations
 
 import argparse
+import json
 import os
 import sys
 from pathlib import Path
@@ -62,6 +63,22 @@ def _check_out(out: str | None, overwrite: bool, points: str) -> None:
         raise OutputError(f"cannot write '{out}': the folder '{path.resolve().parent}' does not exist; create it first")
     if os.path.exists(points) and path.exists() and path.resolve() == Path(points).resolve():
         raise OutputError(f"--out '{out}' is the points file itself; name another file")
+    if path.exists() and not _is_own_report(path):
+        raise OutputError(f"output file '{out}' is not a report of strikeline attitude, and --overwrite replaces "
+                          "only the tool's own reports; name a new file, or move that one away")
+
+
+#: The keys every report of ``strikeline attitude --out`` has: how an earlier report is recognised.
+_REPORT_KEYS = ("version", "points", "plane", "conventions")
+
+
+def _is_own_report(path: Path) -> bool:
+    """Whether ``path`` holds a JSON report this command wrote (so --overwrite may replace it)."""
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return False
+    return isinstance(data, dict) and all(k in data for k in _REPORT_KEYS)
 
 
 def load_points(args):

@@ -13,7 +13,7 @@ import shapely
 from osgeo import gdal, ogr, osr
 
 from strikeline.errors import InputError, OutputError, VectorReadError
-from strikeline.io._gdal import gdal_exceptions, gdal_message
+from strikeline.io._gdal import gdal_exceptions, gdal_message, quiet_close
 from strikeline.io.crs import crs_label, reproject_geometries, require_projected_metres, _wkt_of
 
 _LINE_TYPES = {"LineString", "MultiLineString", "LinearRing"}
@@ -320,18 +320,30 @@ def _ogr_field_type(arr: np.ndarray):
 
 
 def write_gpkg(path, layers: list[LayerOut], srs_wkt: str) -> None:
-    """Write layers into a new GeoPackage (written under a temporary name, then renamed)."""
+    """Write layers into a new GeoPackage (written under a temporary name, checked, then renamed).
+
+    Each layer's features are written in one transaction whose commit is checked; the file is
+    flushed and closed, GDAL's last error after the close is checked (GDAL 3.6 does not raise
+    it), and the file is opened again to compare its layers and feature counts with what was
+    written. Only then is it renamed to ``path``; on any failure or interruption nothing is left.
+
+    Raises
+    ------
+    OutputError
+        OGR could not write, commit or close the file (a full disk among others; OGR's message
+        is included), or the file read back lacks features.
+    """
     path = os.fspath(path)
     root, ext = os.path.splitext(path)
     tmp = f"{root}.part{ext or '.gpkg'}"  # keep the .gpkg extension GDAL expects
     srs = osr.SpatialReference()
     if srs_wkt:
         srs.ImportFromWkt(srs_wkt)
+    ds = lyr = None
     with gdal_exceptions():
         try:
             drv = ogr.GetDriverByName("GPKG")
-            if os.path.exists(tmp):
-                os.remove(tmp)
+            _remove_gpkg(tmp)
             ds = drv.CreateDataSource(tmp)
             for spec in layers:
                 lyr = ds.CreateLayer(spec.name, srs if srs_wkt else None, GEOMETRY_TYPES[spec.geometry_type])
@@ -360,14 +372,42 @@ def write_gpkg(path, layers: list[LayerOut], srs_wkt: str) -> None:
                         elif v is not None:
                             feat.SetField(fname, str(v))
                     lyr.CreateFeature(feat)
-                lyr.CommitTransaction()
-            ds = None
-        except RuntimeError as exc:
-            ds = None
-            if os.path.exists(tmp):
-                os.remove(tmp)
-            raise OutputError(f"'{path}': OGR could not write it ({gdal_message(exc)})") from None
+                if lyr.CommitTransaction() != ogr.OGRERR_NONE:  # raises in exception mode; checked anyway
+                    raise RuntimeError(f"the commit of layer '{spec.name}' failed")
+            lyr = None
+            ds.FlushCache()
+            gdal.ErrorReset()
+            ds = None  # closes the file; GDAL 3.6 reports a failure here only as its last error
+            if gdal.GetLastErrorType() >= gdal.CE_Failure:
+                raise RuntimeError(gdal.GetLastErrorMsg())
+            _check_gpkg(tmp, {spec.name: len(spec.geoms) for spec in layers})
+        except BaseException as exc:
+            with quiet_close():
+                lyr = ds = None
+            _remove_gpkg(tmp)
+            if isinstance(exc, RuntimeError):
+                raise OutputError(f"'{path}': OGR could not write it ({gdal_message(exc)}); free some space or "
+                                  "choose another folder") from None
+            raise
     os.replace(tmp, path)
+
+
+def _remove_gpkg(path: str) -> None:
+    """Remove a GeoPackage and SQLite's side files of it."""
+    for p in (path, path + "-journal", path + "-wal", path + "-shm"):
+        if os.path.exists(p):
+            os.remove(p)
+
+
+def _check_gpkg(path: str, counts: dict) -> None:
+    """Open a GeoPackage just written and compare its layers' feature counts with ``counts``."""
+    ds = ogr.Open(path, 0)
+    try:
+        got = {ds.GetLayer(i).GetName(): ds.GetLayer(i).GetFeatureCount() for i in range(ds.GetLayerCount())}
+    finally:
+        ds = None
+    if got != counts:
+        raise RuntimeError(f"the file read back holds {got}, not the {counts} features written")
 
 
 __all__ = ["VectorLayer", "DelimitedPoints", "LayerOut", "read_layer", "layer_from_wkb", "write_gpkg", "crs_label"]

@@ -8,7 +8,7 @@ from pathlib import Path
 import numpy as np
 import shapely
 
-from strikeline.io.files import atomic_folder, dumps_stable
+from strikeline.io.files import dumps_stable, output_folder, write_text_checked
 from strikeline.io.raster import write_geotiff
 from strikeline.io.gpkg_styles import write_layer_styles
 from strikeline.io.vector import LayerOut, write_gpkg
@@ -16,18 +16,24 @@ from strikeline import vocabulary as V
 from strikeline.attitude.local import LocalAttitudes
 from strikeline.picks import (PickSet)
 from strikeline.pipeline.compute import Results
+from strikeline.pipeline.options import Log, _quiet
 from strikeline.pipeline.units import unit_conflicts_layer
 
 
 # --------------------------------------------------------------------------- writing
-def write_results(results: Results, out_dir, *, overwrite: bool = False) -> Path:
-    """Write every output into ``out_dir`` atomically.
+def write_results(results: Results, out_dir, *, overwrite: bool = False, inputs=(), log: Log = _quiet,
+                  is_cancelled=None) -> Path:
+    """Write every output into ``out_dir``, all or nothing.
 
-    Everything goes into a temporary sibling folder first; only when every file is complete is
-    it renamed to ``out_dir`` (an existing ``out_dir`` is replaced only with ``overwrite``).
+    Everything goes into a temporary sibling folder first, with a manifest of the files
+    (:data:`strikeline.vocabulary.MANIFEST_FILE`); only when every file is complete and checked
+    is it renamed to ``out_dir``. An existing ``out_dir`` is replaced only with ``overwrite`` and
+    only when it holds nothing but strikeline's own earlier results; ``out_dir`` may not hold,
+    lie inside or be one of ``inputs`` (paths). The folder is locked while it is written; see
+    :func:`strikeline.io.files.output_folder` for the steps and what a kill leaves.
     """
-    with atomic_folder(out_dir, overwrite=overwrite) as tmp:
-        _write_all(results, tmp)
+    with output_folder(out_dir, overwrite=overwrite, inputs=inputs, log=log) as tmp:
+        _write_all(results, tmp, is_cancelled=is_cancelled)
     return Path(out_dir)
 
 
@@ -180,9 +186,20 @@ def result_layers(r: Results) -> list[LayerOut]:
     return layers
 
 
-def _write_all(r: Results, folder: Path) -> None:
+#: The vocabulary's entry of each raster file (its band's description and unit).
+_RASTER_OF_FILE = {spec.file: spec for spec in V.RASTERS.values()}
+
+
+def _write_all(r: Results, folder: Path, *, is_cancelled=None) -> None:
+    """Write every output of a run into ``folder`` (a new, empty folder).
+
+    Each writer checks its own file (GDAL's close, the file read back) and raises
+    :class:`strikeline.errors.OutputError` on failure; a new output is one more call here.
+    """
     for name, array in result_rasters(r):
-        write_geotiff(folder / name, array, r.grid)
+        spec = _RASTER_OF_FILE[name]
+        write_geotiff(folder / name, array, r.grid, description=spec.meaning, unit=spec.unit,
+                      is_cancelled=is_cancelled)
     write_gpkg(folder / V.RESULTS_FILE, result_layers(r), r.grid.crs_wkt)
     write_layer_styles(folder / V.RESULTS_FILE)  # QGIS opens the layers styled (layer_styles)
-    (folder / V.SUMMARY_FILE).write_text(dumps_stable(r.summary))
+    write_text_checked(folder / V.SUMMARY_FILE, dumps_stable(r.summary))

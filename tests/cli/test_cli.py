@@ -154,20 +154,35 @@ def test_reprojected_contacts_give_the_same_answer(tmp_path, demo, cli, demo_dem
 
 @pytest.fixture(scope="module")
 def overwritten(tmp_path_factory, demo):
-    """The session's demo run repeated with ``--overwrite`` into a folder that already holds a file."""
+    """The session's demo run repeated with ``--overwrite`` into a folder that holds strikeline's
+    earlier results of another run (the demo with contours), one of them a stale extra grid."""
     base = tmp_path_factory.mktemp("overwrite")
     out = base / "out"
-    out.mkdir()
-    (out / "old.txt").write_text("old")
+    first = run_cli("run", "--contacts", demo["contacts"], "--dem", demo["dem"], "--contours", demo["contours"],
+                    "--elev-field", demo["elev_field"], "--out", out, "--interval", "7")
+    assert first.returncode == 0, first.stderr
+    old_summary = (out / "summary.json").read_bytes()
     proc = run_cli("run", "--contacts", demo["contacts"], "--dem", demo["dem"], "--out", out, "--overwrite")
-    return proc, base, out
+    return proc, base, out, old_summary
 
 
 def test_overwrite_replaces_an_existing_folder(overwritten):
-    proc, base, out = overwritten
+    proc, base, out, old_summary = overwritten
     assert proc.returncode == 0, proc.stderr
-    assert not (out / "old.txt").exists() and (out / "summary.json").exists()
-    assert [p.name for p in base.iterdir()] == ["out"]  # no temporary siblings left behind
+    assert (out / "summary.json").read_bytes() != old_summary
+    assert [p.name for p in base.iterdir()] == ["out"]  # no temporary siblings or lock left behind
+
+
+def test_overwrite_refuses_a_folder_with_files_strikeline_did_not_write(tmp_path, demo, cli):
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "old.txt").write_text("old")
+    (out / "sub").mkdir()
+    (out / "sub" / "notes.txt").write_text("mine")
+    proc = cli("run", "--contacts", demo["contacts"], "--dem", demo["dem"], "--out", out, "--overwrite")
+    assert proc.returncode == 2 and proc.stderr.count("\n") == 1, proc.stderr
+    assert "old.txt" in proc.stderr and "sub/notes.txt" in proc.stderr
+    assert sorted(p.relative_to(out).as_posix() for p in out.rglob("*")) == ["old.txt", "sub", "sub/notes.txt"]
 
 
 def test_summary_is_byte_identical_between_runs(overwritten, demo_dem_run):
