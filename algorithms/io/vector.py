@@ -10,10 +10,10 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import shapely
-from osgeo import ogr, osr
+from osgeo import gdal, ogr, osr
 
 from strikeline.errors import InputError, OutputError, VectorReadError
-from strikeline.io._gdal import gdal_exceptions, gdal_message
+from strikeline.io._gdal import gdal_exceptions, gdal_message, quiet_close
 from strikeline.io.crs import crs_label, reproject_geometries, require_projected_metres, _wkt_of
 
 _LINE_TYPES = {"LineString", "MultiLineString", "LinearRing"}
@@ -104,9 +104,70 @@ def _open(path: str, label: str):
     return ds
 
 
+@dataclass(frozen=True)
+class DelimitedPoints:
+    """How to read points from delimited text (CSV): the columns of x, y and (optionally) z, and
+    the CRS (a CSV declares none; any text ``OSRSetFromUserInput`` takes: ``EPSG:32633``, WKT,
+    PROJ). ``*_option`` name the settings in messages (flags or QGIS labels)."""
+
+    x_field: str | None = None
+    y_field: str | None = None
+    z_field: str | None = None
+    crs: str | None = None
+    x_option: str = "--x-field"
+    y_option: str = "--y-field"
+    z_option: str = "--z-field"
+    crs_option: str = "--crs"
+
+
+def _delimited(ds, path: str, label: str, spec: DelimitedPoints | None):
+    """``(data set, CRS or None)``: a file OGR reads with its CSV driver is opened again with the
+    driver's open options (X/Y/Z_POSSIBLE_NAMES from ``spec``, AUTODETECT_TYPE=YES,
+    KEEP_GEOM_COLUMNS=NO), after the named columns are checked against its header; other data
+    sets are returned as they are. Without ``spec`` (a line or polygon input) a CSV is read as
+    OGR reads it by default."""
+    if spec is None or ds.GetDriver().GetName() != "CSV":
+        return ds, None
+    lyr = ds.GetLayer(0)
+    defn = lyr.GetLayerDefn()
+    header = [defn.GetFieldDefn(i).GetName() for i in range(defn.GetFieldCount())]
+    # let go of this opening now: an error below must not keep the file open through its traceback
+    ds = lyr = defn = None
+    shown = ", ".join(header) or "none"
+    what = f"{label} '{path}' (delimited text)"
+    if not spec.x_field or not spec.y_field:
+        raise InputError(f"{what}: name the columns of the points' coordinates with {spec.x_option} and "
+                         f"{spec.y_option} (columns: {shown})")
+    by_lower = {h.lower(): h for h in header}
+    chosen = {}
+    for name, option in ((spec.x_field, spec.x_option), (spec.y_field, spec.y_option),
+                         (spec.z_field, spec.z_option)):
+        if not name:
+            continue
+        if "," in name or name.lower() not in by_lower:
+            raise InputError(f"{what} has no column '{name}' (columns: {shown}); name one of them with {option}")
+        chosen[option] = by_lower[name.lower()]
+    if not spec.crs:
+        raise InputError(f"{what} declares no CRS; give the CRS of its coordinates with {spec.crs_option}, e.g. "
+                         f"{spec.crs_option} EPSG:32633")
+    srs = osr.SpatialReference()
+    try:
+        srs.SetFromUserInput(spec.crs)
+    except RuntimeError as exc:
+        raise InputError(f"{spec.crs_option} {spec.crs!r} is not a CRS OSR understands ({gdal_message(exc)}); "
+                         "give an EPSG code (EPSG:32633), WKT or a PROJ string") from None
+    srs.SetAxisMappingStrategy(osr.OAMS_TRADITIONAL_GIS_ORDER)
+    opts = [f"X_POSSIBLE_NAMES={chosen[spec.x_option]}", f"Y_POSSIBLE_NAMES={chosen[spec.y_option]}",
+            "AUTODETECT_TYPE=YES", "KEEP_GEOM_COLUMNS=NO"]
+    if spec.z_option in chosen:
+        opts.append(f"Z_POSSIBLE_NAMES={chosen[spec.z_option]}")
+    ds = gdal.OpenEx(path, gdal.OF_VECTOR | gdal.OF_READONLY, allowed_drivers=["CSV"], open_options=opts)
+    return ds, srs
+
+
 def read_layer(path, *, layer: str | None = None, where: str | None = None,
                label: str = "layer", geometry: str = "line", layer_option: str,
-               where_option: str = "filter") -> VectorLayer:
+               where_option: str = "filter", delimited: DelimitedPoints | None = None) -> VectorLayer:
     """Read the features of a vector layer.
 
     Parameters
@@ -123,6 +184,9 @@ def read_layer(path, *, layer: str | None = None, where: str | None = None,
     layer_option, where_option : str
         How the caller's user names the settings that choose the layer and the filter (a
         command-line flag, a QGIS parameter label), for messages.
+    delimited : DelimitedPoints, optional
+        For point inputs: how to read points from delimited text (a file OGR's CSV driver
+        opens), through that driver's open options; refused without its x and y columns and CRS.
 
     Raises
     ------
@@ -134,6 +198,7 @@ def read_layer(path, *, layer: str | None = None, where: str | None = None,
     with gdal_exceptions():
         ds = _open(path, label)
         try:
+            ds, given_srs = _delimited(ds, path, label, delimited)
             if layer is None:
                 lyr = ds.GetLayer(0)
             else:
@@ -160,7 +225,7 @@ def read_layer(path, *, layer: str | None = None, where: str | None = None,
                 defn.GetFieldDefn(i).GetName(): defn.GetFieldDefn(i).GetFieldTypeName(defn.GetFieldDefn(i).GetType())
                 for i in range(defn.GetFieldCount())
             }
-            srs = lyr.GetSpatialRef()
+            srs = given_srs if given_srs is not None else lyr.GetSpatialRef()
             if srs is not None:
                 srs = srs.Clone()
                 srs.SetAxisMappingStrategy(osr.OAMS_TRADITIONAL_GIS_ORDER)
@@ -407,18 +472,30 @@ def _ogr_field_type(arr: np.ndarray):
 
 
 def write_gpkg(path, layers: list[LayerOut], srs_wkt: str) -> None:
-    """Write layers into a new GeoPackage (written under a temporary name, then renamed)."""
+    """Write layers into a new GeoPackage (written under a temporary name, checked, then renamed).
+
+    Each layer's features are written in one transaction whose commit is checked; the file is
+    flushed and closed, GDAL's last error after the close is checked (GDAL 3.6 does not raise
+    it), and the file is opened again to compare its layers and feature counts with what was
+    written. Only then is it renamed to ``path``; on any failure or interruption nothing is left.
+
+    Raises
+    ------
+    OutputError
+        OGR could not write, commit or close the file (a full disk among others; OGR's message
+        is included), or the file read back lacks features.
+    """
     path = os.fspath(path)
     root, ext = os.path.splitext(path)
     tmp = f"{root}.part{ext or '.gpkg'}"  # keep the .gpkg extension GDAL expects
     srs = osr.SpatialReference()
     if srs_wkt:
         srs.ImportFromWkt(srs_wkt)
+    ds = lyr = None
     with gdal_exceptions():
         try:
             drv = ogr.GetDriverByName("GPKG")
-            if os.path.exists(tmp):
-                os.remove(tmp)
+            _remove_gpkg(tmp)
             ds = drv.CreateDataSource(tmp)
             for spec in layers:
                 lyr = ds.CreateLayer(spec.name, srs if srs_wkt else None, GEOMETRY_TYPES[spec.geometry_type])
@@ -447,14 +524,42 @@ def write_gpkg(path, layers: list[LayerOut], srs_wkt: str) -> None:
                         elif v is not None:
                             feat.SetField(fname, str(v))
                     lyr.CreateFeature(feat)
-                lyr.CommitTransaction()
-            ds = None
-        except RuntimeError as exc:
-            ds = None
-            if os.path.exists(tmp):
-                os.remove(tmp)
-            raise OutputError(f"'{path}': OGR could not write it ({gdal_message(exc)})") from None
+                if lyr.CommitTransaction() != ogr.OGRERR_NONE:  # raises in exception mode; checked anyway
+                    raise RuntimeError(f"the commit of layer '{spec.name}' failed")
+            lyr = None
+            ds.FlushCache()
+            gdal.ErrorReset()
+            ds = None  # closes the file; GDAL 3.6 reports a failure here only as its last error
+            if gdal.GetLastErrorType() >= gdal.CE_Failure:
+                raise RuntimeError(gdal.GetLastErrorMsg())
+            _check_gpkg(tmp, {spec.name: len(spec.geoms) for spec in layers})
+        except BaseException as exc:
+            with quiet_close():
+                lyr = ds = None
+            _remove_gpkg(tmp)
+            if isinstance(exc, RuntimeError):
+                raise OutputError(f"'{path}': OGR could not write it ({gdal_message(exc)}); free some space or "
+                                  "choose another folder") from None
+            raise
     os.replace(tmp, path)
 
 
-__all__ = ["VectorLayer", "LayerOut", "read_layer", "layer_from_wkb", "write_gpkg", "crs_label"]
+def _remove_gpkg(path: str) -> None:
+    """Remove a GeoPackage and SQLite's side files of it."""
+    for p in (path, path + "-journal", path + "-wal", path + "-shm"):
+        if os.path.exists(p):
+            os.remove(p)
+
+
+def _check_gpkg(path: str, counts: dict) -> None:
+    """Open a GeoPackage just written and compare its layers' feature counts with ``counts``."""
+    ds = ogr.Open(path, 0)
+    try:
+        got = {ds.GetLayer(i).GetName(): ds.GetLayer(i).GetFeatureCount() for i in range(ds.GetLayerCount())}
+    finally:
+        ds = None
+    if got != counts:
+        raise RuntimeError(f"the file read back holds {got}, not the {counts} features written")
+
+
+__all__ = ["VectorLayer", "DelimitedPoints", "LayerOut", "read_layer", "layer_from_wkb", "write_gpkg", "crs_label"]

@@ -52,6 +52,9 @@ class Results:
     true_thickness_m: np.ndarray | None = None
     top_picks: PickSet | None = None
     unit_check: dict | None = None  # map units: see map_unit_check
+    # where each contact (top contact) came from and its attributes: written with picks and misfit segments
+    contact_sources: object | None = None  # strikeline.pipeline.inputs.ContactSources
+    top_contact_sources: object | None = None
 
 
 def _no_thickness_reason(base_in, top_in, model, top_model) -> str:
@@ -196,7 +199,8 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
                    model=model, uncertainty_m=uncertainty, contour_extrapolated=cflags,
                    trace_extrapolated=tflags, contact_misfit=segments, attitudes=attitudes,
                    vertical_thickness_m=vth, true_thickness_m=tth, top_picks=top_picks,
-                   unit_check=unit_check)
+                   unit_check=unit_check, contact_sources=inputs.contact_sources,
+                   top_contact_sources=inputs.top_contact_sources)
 
 
 def contacts_off_dem(inputs: Inputs, *, log: Log = _quiet) -> dict:
