@@ -100,11 +100,13 @@ def write_sink(alg, parameters, name: str, context, table: Table, crs) -> str | 
 
 
 def write_raster(alg, parameters, name: str, context, array, grid) -> str | None:
-    """Write ``array`` on ``grid`` to the raster destination ``name`` (None when skipped)."""
+    """Write ``array`` on ``grid`` to the raster destination ``name`` (None when skipped); ``name``
+    is a raster of :data:`strikeline.vocabulary.RASTERS`, whose meaning and unit the band carries."""
     path = alg.parameterAsOutputLayer(parameters, name, context)
     if not path:
         return None
-    write_geotiff(path, array, grid)
+    spec = V.RASTERS[name]
+    write_geotiff(path, array, grid, description=spec.meaning, unit=spec.unit)
     return path
 
 

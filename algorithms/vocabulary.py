@@ -52,6 +52,9 @@ class Layer:
     fields: tuple[Name, ...]
     optional: tuple[str, ...] = ()
     written_when: str = ""
+    #: Prefix under which the layer also carries the attributes of the input feature each row
+    #: came from (``attr_`` + the input's own field name, after the fields above); "" for none.
+    input_attributes: str = ""
 
     @property
     def field_names(self) -> tuple[str, ...]:
@@ -114,13 +117,22 @@ PLANE_KEYS: tuple[Name, ...] = (
     _n("horizontal", None, "sentence saying the plane is horizontal within its confidence", "text"),
 )
 
+#: Where a contact came from, when several contact inputs are joined (``--contacts`` repeated).
+_CONTACT_INPUT = _n("contact_input", None, "which contacts input the contact came from: 0 for the first, in the "
+                    "order given (summary: inputs.contacts; top_picks: inputs.top_contacts)", "integer")
+_CONTACT_FID = _n("contact_fid", None, "feature id of the contact in its own file (contact_id is unique over all "
+                  "inputs: the first input's feature ids, later inputs numbered on after them)", "integer")
+#: The prefix of the contact's own attributes copied into the picks and misfit segments.
+CONTACT_ATTRIBUTE_PREFIX = "attr_"
 _PICK_FIELDS = (_CONTACT_ID, _n("source", None, "where the pick came from: dem or contours", "text"),
-                _n("elevation_m", "m", "elevation of the pick (also its Z)"))
+                _n("elevation_m", "m", "elevation of the pick (also its Z)"), _CONTACT_INPUT, _CONTACT_FID)
 
 # --------------------------------------------------------------------------- layers
-PICKS = Layer("picks", "point_z", "elevation picks on the mapped contacts", _PICK_FIELDS)
+PICKS = Layer("picks", "point_z", "elevation picks on the mapped contacts", _PICK_FIELDS,
+              optional=("contact_input", "contact_fid"), input_attributes=CONTACT_ATTRIBUTE_PREFIX)
 TOP_PICKS = Layer("top_picks", "point_z", "elevation picks on the unit's top contacts", _PICK_FIELDS,
-                  written_when="with top contacts")
+                  optional=("contact_input", "contact_fid"), written_when="with top contacts",
+                  input_attributes=CONTACT_ATTRIBUTE_PREFIX)
 STRUCTURE_CONTOURS = Layer(
     "structure_contours", "line_z", "lines of equal elevation of the modelled surface",
     (_n("elevation_m", "m", "elevation of the line (also its Z)"), _EXTRAPOLATED,
@@ -138,8 +150,9 @@ CONTACT_MISFIT = Layer(
      _n("se_m", "m", "standard error of that vertical misfit"),
      _n("z_score", None, "vertical misfit / its standard error"),
      _n("flag_m", "m", "horizontal misfit at which the segment would be flagged"),
-     _n("flagged", None, "true where the segment misfits", "bool")),
-    optional=("misfit_z_m", "se_m", "z_score", "flag_m"), written_when="with a DEM")
+     _n("flagged", None, "true where the segment misfits", "bool"), _CONTACT_INPUT, _CONTACT_FID),
+    optional=("misfit_z_m", "se_m", "z_score", "flag_m", "contact_input", "contact_fid"), written_when="with a DEM",
+    input_attributes=CONTACT_ATTRIBUTE_PREFIX)
 _PLANE = {n.name: n for n in PLANE_KEYS}
 ATTITUDES = Layer(
     "attitudes", "point", "local attitudes: one point per moving window's centre",
@@ -191,6 +204,10 @@ RASTERS = {r.name: r for r in (SURFACE, DIP, DIP_DIRECTION, UNCERTAINTY, DEPTH, 
 #: The name of the run's summary file and of the QGIS whole chain's summary destination.
 SUMMARY_FILE = "summary.json"
 RESULTS_FILE = "results.gpkg"
+#: The list of the files strikeline wrote into an output folder (size, SHA-256): what --overwrite may replace.
+MANIFEST_FILE = "strikeline_manifest.json"
+#: The table of results.gpkg that holds its layers' QGIS styles (QGIS's own name; not a layer).
+STYLES_TABLE = "layer_styles"
 
 
 # --------------------------------------------------------------------------- summary.json
@@ -290,6 +307,15 @@ _MAP_UNITS = (
     _s("check.n_violated_below", None, "broken points under units below", "integer"),
     _s("meaning", None, "what the bounds mean, in words", "text"))
 
+#: What the summary records of one input (``strikeline.pipeline.inputs.input_record``).
+_INPUT_RECORD = (
+    _s("path", None, "the file as given", "text"),
+    _s("path_absolute", None, "the file as an absolute path (null: not a file)", "text"),
+    _s("layer", None, "the layer read (null: a raster)", "text"),
+    _s("where", None, "the SQL filter applied (null: none)", "text"),
+    _s("fields", None, "the fields used, by option", _SEC), _s("fields.*", None, "the field one option names", "text"),
+    _s("sha256", None, "SHA-256 of the file (null: not a file)", "text"))
+
 #: The stretches of the contacts where the DEM has no value (outside it or over nodata): no DEM picks.
 CONTACTS_OFF_DEM = _s("contacts_off_dem", None, "length of the contacts off the DEM (outside it or over nodata), "
                       "where no DEM pick is made (with a DEM)", _SEC)
@@ -321,7 +347,16 @@ SUMMARY_KEYS: tuple[Name, ...] = (
     _s("data_error.resamples", None, "bootstrap resamples and Monte Carlo draws", "integer"),
     _s("data_error.seed", None, "seed of the random draws", "integer"),
     _s("conventions", None, "angle conventions, in words", "text"),
-    _s("inputs", None, "checksums of the input files", _SEC), _s("inputs.*", None, "SHA-256 of one file", "text"),
+    _s("inputs", None, "every input by role (contacts, dem, contours, boreholes, orientations, top_contacts, "
+       "map_units)", _SEC),
+    _s("inputs.contacts", None, "one record per contacts input, in the order given, with the keys of inputs.dem; "
+       "its position is the picks' contact_input", "list"),
+    _s("inputs.top_contacts", None, "one record per top-contacts input, as inputs.contacts", "list"),
+    *(k for role in ("dem", "contours", "boreholes", "orientations", "map_units")
+      for k in (_s(f"inputs.{role}", None, f"the {role.replace('_', ' ')} input", _SEC),
+                *_under(f"inputs.{role}", _INPUT_RECORD))),
+    _s("command_line", None, "the strikeline command as given, one item per argument (outside the command line, "
+       "e.g. in QGIS: the process's sys.argv)", "list"),
     _s("caution", None, "the caution on forecasts", "text"),
     _s("model", None, "the surface model", _SEC), *_under("model", _MODEL),
     _s("groups", None, "one plane per group of contacts", _SEC),
@@ -465,6 +500,10 @@ def reference_markdown() -> str:
         for f in layer.fields:
             opt = " (when known)" if f.name in layer.optional else ""
             lines.append(_row(f"`{layer.name}`", f"`{f.name}`", _unit(f.unit), f.meaning + opt))
+        if layer.input_attributes:
+            lines.append(_row(f"`{layer.name}`", f"`{layer.input_attributes}*`", "-",
+                              "each attribute of the contact feature, under its own name after this prefix "
+                              "(numbers as real, others as text; null where its input lacks the field)"))
     lines += ["", "### Rasters (float32 GeoTIFF)", "", _row("file", "unit", "meaning"), _row("---", "---", "---")]
     lines += [_row(f"`{r.file}`", _unit(r.unit), r.meaning) for r in RASTERS.values()]
     for title, keys in (("`summary.json`", SUMMARY_KEYS), ("`strikeline attitude --out`", ATTITUDE_REPORT_KEYS)):

@@ -91,14 +91,15 @@ _GDAL_LEAK = _GdalModeLeak()
     (lambda: os.environ.__setitem__("STRIKELINE_LEAK", "1"), lambda: os.environ.pop("STRIKELINE_LEAK", None),
      "environment"),
     (lambda: os.chdir("/"), None, "cwd"),
-    (lambda: signal.signal(signal.SIGTERM, lambda *a: None), None, "signal handlers"),
+    # SIGHUP: the command restores its own SIGINT/SIGTERM handlers itself (strikeline.io.interrupt)
+    (lambda: signal.signal(signal.SIGHUP, lambda *a: None), None, "signal handlers"),
     (_GDAL_LEAK.leak, _GDAL_LEAK.undo, "GDAL/OGR/OSR exception modes"),
     (lambda: logging.getLogger().addHandler(_HANDLER), lambda: logging.getLogger().removeHandler(_HANDLER),
      "logging handlers"),
     (lambda: np.seterr(all="raise"), None, "numpy error state"),
 ], ids=["environment", "cwd", "signal", "gdal exceptions", "logging", "numpy"])
 def test_a_leak_fails_the_run_and_names_it(monkeypatch, tmp_path, leak, undo, name):
-    cwd, term, err = os.getcwd(), signal.getsignal(signal.SIGTERM), np.geterr()
+    cwd, hup, err = os.getcwd(), signal.getsignal(signal.SIGHUP), np.geterr()
 
     def handler(args):
         leak()
@@ -111,7 +112,7 @@ def test_a_leak_fails_the_run_and_names_it(monkeypatch, tmp_path, leak, undo, na
         if undo is not None:
             undo()
         os.chdir(cwd)
-        signal.signal(signal.SIGTERM, term)
+        signal.signal(signal.SIGHUP, hup)
         np.seterr(**err)
 
 

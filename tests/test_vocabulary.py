@@ -150,7 +150,8 @@ def test_demo_summary_uses_exactly_the_vocabulary(demo_results):
     # the sections and plane keys every run with a DEM, groups and top contacts writes
     for key in ("plane.dip_deg", "plane.dip_direction_deg", "plane.strike_rhr_deg", "plane.coplanarity",
                 "plane.centroid_m", "trace_misfit.median_m", "attitudes.n_windows", "model.chosen",
-                "groups.planes.*.dip_deg", "thickness.mean_m", "contact_misfit.n_flagged", "inputs.*"):
+                "groups.planes.*.dip_deg", "thickness.mean_m", "contact_misfit.n_flagged", "inputs.dem.sha256",
+                "inputs.contacts", "command_line"):
         assert key in paths, key
 
 
@@ -165,15 +166,30 @@ def test_demo_results_gpkg_and_rasters_use_exactly_the_vocabulary(demo_results):
         defn = lyr.GetLayerDefn()
         got[lyr.GetName()] = [defn.GetFieldDefn(k).GetName() for k in range(defn.GetFieldCount())]
     ds = None
+    assert got.pop(V.STYLES_TABLE, None) is not None  # QGIS's table of the layers' styles, not a layer
     assert set(got) <= set(V.LAYERS) and {"picks", "structure_contours", "attitudes", "top_picks"} <= set(got)
+    # the demo's contacts carry name, unit, kind and block: copied under the vocabulary's prefix, after its fields
+    assert [f for f in got["picks"] if f.startswith(V.CONTACT_ATTRIBUTE_PREFIX)] == [
+        V.CONTACT_ATTRIBUTE_PREFIX + f for f in ("name", "unit", "kind", "block")]
     for name, fields in got.items():
         spec = V.LAYERS[name]
+        fields = _named_fields(spec, fields)
         assert fields == [f for f in spec.field_names if f in fields], name  # vocabulary order
         assert set(spec.required_names) <= set(fields), name
     assert got["attitudes"] == list(V.ATTITUDES.field_names)
     tifs = {p.name for p in demo_results.glob("*.tif")}
     assert tifs <= {r.file for r in V.RASTERS.values()} and {"surface.tif", "dip.tif", "depth.tif"} <= tifs
-    assert {p.name for p in demo_results.iterdir()} == tifs | {V.RESULTS_FILE, V.SUMMARY_FILE}
+    assert {p.name for p in demo_results.iterdir()} == tifs | {V.RESULTS_FILE, V.SUMMARY_FILE, V.MANIFEST_FILE}
+
+
+def _named_fields(spec, fields):
+    """``fields`` without the input's own attributes (``spec.input_attributes`` + a name), which
+    must all come after the named ones."""
+    if not spec.input_attributes:
+        return fields
+    own = [f.startswith(spec.input_attributes) for f in fields]
+    assert own == sorted(own), (spec.name, fields)  # the input's attributes last
+    return [f for f, o in zip(fields, own) if not o]
 
 
 def _gpkg_fields(path):
@@ -185,6 +201,7 @@ def _gpkg_fields(path):
         defn = ds.GetLayerByIndex(i).GetLayerDefn()
         got[ds.GetLayerByIndex(i).GetName()] = [defn.GetFieldDefn(k).GetName() for k in range(defn.GetFieldCount())]
     ds = None
+    got.pop(V.STYLES_TABLE, None)  # QGIS's table of the layers' styles (strikeline.io.gpkg_styles), not a layer
     return got
 
 
@@ -197,6 +214,7 @@ def test_other_runs_use_exactly_the_vocabulary(shared_run, request):
     assert sorted(V.json_paths(summary) - V.summary_path_names()) == []
     for name, fields in _gpkg_fields(out / V.RESULTS_FILE).items():
         spec = V.LAYERS[name]
+        fields = _named_fields(spec, fields)
         assert fields == [f for f in spec.field_names if f in fields] and set(spec.required_names) <= set(fields), name
     assert {p.name for p in out.glob("*.tif")} <= {r.file for r in V.RASTERS.values()}
     if shared_run == "fold_units_run":

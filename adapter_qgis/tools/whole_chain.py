@@ -42,7 +42,7 @@ LAYERS = {
     V.ATTITUDES.name: ("Local attitudes", QgsProcessing.TypeVectorPoint, True, "local_attitudes"),
     V.TOP_PICKS.name: ("Top-contact picks (with top contacts)", QgsProcessing.TypeVectorPoint, True, "picks"),
     V.UNIT_CONFLICTS.name: ("Where the surface still breaks the map units (with map units)",
-                            QgsProcessing.TypeVectorPoint, True, ""),
+                            QgsProcessing.TypeVectorPoint, True, "unit_conflicts"),
 }
 #: The grids of ``pipeline.result_rasters``, each written to the output named as the file
 #: without ``.tif`` (strikeline.vocabulary.RASTERS): output -> (label, created by default, style).

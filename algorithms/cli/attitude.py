@@ -14,6 +14,7 @@ exists without ``--overwrite``).
 from __future__ import annotations
 
 import argparse
+import json
 import os
 import sys
 from pathlib import Path
@@ -40,6 +41,8 @@ def add_parser(sub) -> argparse.ArgumentParser:
     p = sub.add_parser("attitude", help=HELP.replace("%", "%%"), description=DESCRIPTION, epilog=EPILOG)
     add_options(p.add_argument_group("points"), "points", "points_layer", "points_where", "z_field", "group_by",
                 command="attitude")
+    add_options(p.add_argument_group("points from delimited text (.csv, read by OGR's CSV driver)"), "x_field",
+                "y_field", "crs")
     add_options(p.add_argument_group("confidence"), "dem_sigma_m", "resamples", "seed", command="attitude")
     add_options(p.add_argument_group("output"), "json_out", "overwrite")
     p.set_defaults(handler=main)
@@ -60,6 +63,22 @@ def _check_out(out: str | None, overwrite: bool, points: str) -> None:
         raise OutputError(f"cannot write '{out}': the folder '{path.resolve().parent}' does not exist; create it first")
     if os.path.exists(points) and path.exists() and path.resolve() == Path(points).resolve():
         raise OutputError(f"--out '{out}' is the points file itself; name another file")
+    if path.exists() and not _is_own_report(path):
+        raise OutputError(f"output file '{out}' is not a report of strikeline attitude, and --overwrite replaces "
+                          "only the tool's own reports; name a new file, or move that one away")
+
+
+#: The keys every report of ``strikeline attitude --out`` has: how an earlier report is recognised.
+_REPORT_KEYS = ("version", "points", "plane", "conventions")
+
+
+def _is_own_report(path: Path) -> bool:
+    """Whether ``path`` holds a JSON report this command wrote (so --overwrite may replace it)."""
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return False
+    return isinstance(data, dict) and all(k in data for k in _REPORT_KEYS)
 
 
 def load_points(args):
@@ -68,13 +87,19 @@ def load_points(args):
     import numpy as np
     import shapely
 
-    from strikeline.io.vector import read_layer
+    from strikeline.io.vector import DelimitedPoints, read_layer
 
+    # in delimited text the --z-field column becomes the points' Z (OGR's Z_POSSIBLE_NAMES)
     layer = read_layer(args.points, layer=args.points_layer, where=args.where, label="points",
                        geometry="point", layer_option="--points-layer",
-                       where_option="--where")
+                       where_option="--where",
+                       delimited=DelimitedPoints(x_field=args.x_field, y_field=args.y_field,
+                                                 z_field=args.z_field, crs=args.crs))
     xy, index = shapely.get_coordinates(layer.geoms, return_index=True)
-    if args.z_field:
+    if args.z_field and args.z_field not in layer.fields and layer.z is not None and np.isfinite(layer.z).any():
+        z = layer.z[index]
+        source = f"column '{args.z_field}' (the points' Z)"
+    elif args.z_field:
         z = layer.numeric_field(args.z_field, option="--z-field")[index]
         source = f"field '{args.z_field}'"
     else:
@@ -116,7 +141,10 @@ def compute(args, *, log=lambda m: print(m, file=sys.stderr)) -> dict:
     from strikeline.io.files import file_sha256, json_ready
     from strikeline.pipeline.planes import point_planes
 
+    from strikeline.pipeline.workload import check_resamples
+
     layer, xyz, labels, source, cid = load_points(args)
+    check_resamples(args.resamples, len(xyz))  # before any resample is drawn
     # Points with a contact_id (the picks of strikeline run) are bootstrapped by contact segment,
     # as run does, because neighbouring picks along a contact share their errors.
     planes = point_planes(xyz, crs_wkt=layer.crs_wkt, labels=labels, contact_id=cid, sigma_z_m=args.dem_sigma_m,

@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import os
+import signal
 import sys
 
 from strikeline import CAUTION, __version__
@@ -31,8 +32,14 @@ def main(argv=None) -> int:
     if not getattr(args, "handler", None):
         parser.print_help(sys.stderr)
         return 2
+    from strikeline.io.interrupt import signals_as_exceptions
+    from strikeline.pipeline.command import command_line  # recorded in summary.json
+
     try:
-        return int(args.handler(args) or 0)
+        # SIGTERM (schedulers, `timeout`) and SIGINT (Ctrl-C) become exceptions for the run, so
+        # the output writers remove what they started; the handlers are restored after it
+        with signals_as_exceptions(), command_line(sys.argv[1:] if argv is None else argv):
+            return int(args.handler(args) or 0)
     except CancelledError as exc:
         print(f"error: {one_line(exc)}", file=sys.stderr)
         return 130
@@ -46,9 +53,12 @@ def main(argv=None) -> int:
         except OSError:
             pass
         return 0
-    except KeyboardInterrupt:
-        print("error: interrupted; nothing was written", file=sys.stderr)
-        return 130
+    except KeyboardInterrupt as exc:
+        # 128 + the signal's number: the shell's convention for a process stopped by a signal
+        status = getattr(exc, "exit_status", 128 + signal.SIGINT)
+        name = signal.Signals(status - 128).name
+        print(f"error: stopped by {name}; no partial output was left", file=sys.stderr)
+        return status
     except Exception as exc:  # a bug, not bad input: still one line, unless debugging
         if os.environ.get("STRIKELINE_DEBUG"):
             raise

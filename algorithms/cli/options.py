@@ -71,6 +71,9 @@ def add_option(p, name: str, *, command: str | None = None, **override):
             kw["required"] = True
         if o.nargs:
             kw["nargs"] = o.nargs
+        if o.repeatable:
+            # each time given adds one item: a second --contacts adds to the first, never replaces it
+            kw["action"] = "append"
     kw.update(override)
     return p.add_argument(o.flag, **kw)
 

@@ -22,6 +22,8 @@ def add_parser(sub) -> argparse.ArgumentParser:
                 "borehole_collar_field", "borehole_depth_field", "borehole_sigma_m", "orientations",
                 "orientations_layer", "dip_field", "dip_direction_field", "strike_field", "orientation_sigma_deg",
                 "top_contacts", "top_contacts_layer", "top_where")
+    add_options(p.add_argument_group("points from delimited text (.csv boreholes or orientations; OGR's CSV driver)"),
+                "x_field", "y_field", "crs")
     add_options(p.add_argument_group("geological map units (need --dem)"), "map_units", "map_units_layer",
                 "unit_field", "units_above", "units_below")
     add_options(p.add_argument_group("attitude confidence and local attitudes"), "dem_sigma_m", "contour_sigma_m",

@@ -230,14 +230,17 @@ def _spread(a) -> dict:
             "p90": float(np.percentile(v, 90)), "n_cells": int(v.size)}
 
 
-def _write_folder(out: Path, arrays: dict, grid, *, overwrite: bool) -> None:
-    """Write GeoTIFFs into ``out`` atomically: a temporary sibling folder renamed into place."""
-    from strikeline.io.files import atomic_folder
+def _write_folder(out: Path, arrays: dict, grid, *, overwrite: bool, inputs=()) -> None:
+    """Write GeoTIFFs (``{vocabulary raster: array}``, each band with its vocabulary meaning and
+    unit) into ``out``, all or nothing: :func:`strikeline.io.files.output_folder` (manifest,
+    lock, crash-safe replace of strikeline's own earlier results only)."""
+    from strikeline.io.files import output_folder
     from strikeline.io.raster import write_geotiff
 
-    with atomic_folder(out, overwrite=overwrite) as tmp:
-        for name, arr in arrays.items():
-            write_geotiff(tmp / name, arr, grid)
+    with output_folder(out, overwrite=overwrite, inputs=inputs,
+                       log=lambda m: print(m, file=sys.stderr)) as tmp:
+        for spec, arr in arrays.items():
+            write_geotiff(tmp / spec.file, arr, grid, description=spec.meaning, unit=spec.unit)
 
 
 def grids(top_path: str, base_path: str, out: str, *, overwrite: bool = False, stream=None) -> int:
@@ -261,8 +264,8 @@ def grids(top_path: str, base_path: str, out: str, *, overwrite: bool = False, s
     if n_neg:
         print(f"warning: in {n_neg} cells the top lies below the base (negative thickness): the two "
               "surfaces cross there, or --top and --base are swapped", file=sys.stderr)
-    _write_folder(out_path, {VERTICAL_THICKNESS.file: vertical, TRUE_THICKNESS.file: true},
-                  gt.with_nodata(None), overwrite=overwrite)
+    _write_folder(out_path, {VERTICAL_THICKNESS: vertical, TRUE_THICKNESS: true},
+                  gt.with_nodata(None), overwrite=overwrite, inputs=(top_path, base_path))
     sv, st = _spread(vertical), _spread(true)
 
     def line(name, s):

@@ -31,3 +31,24 @@ def gdal_exceptions():
 def gdal_message(exc: BaseException) -> str:
     """GDAL's own text for an exception, on one line."""
     return one_line(str(exc)) or type(exc).__name__
+
+
+@contextlib.contextmanager
+def quiet_close():
+    """Drop GDAL/OGR handles on a failure path without a second error: inside the block GDAL's
+    exception mode is off and its messages silenced (a dataset closed after a failed write may
+    report more errors, which Python could only print as "Exception ignored"); the mode of the
+    caller is restored after it."""
+    previous = (gdal.GetUseExceptions(), ogr.GetUseExceptions(), osr.GetUseExceptions())
+    for module, was in reversed(list(zip((gdal, ogr, osr), previous))):
+        if was:
+            module.DontUseExceptions()
+    gdal.PushErrorHandler("CPLQuietErrorHandler")
+    try:
+        yield
+    finally:
+        gdal.PopErrorHandler()
+        gdal.ErrorReset()
+        for module, was in zip((gdal, ogr, osr), previous):
+            if was:
+                module.UseExceptions()

@@ -21,6 +21,7 @@ from strikeline.pipeline.options import SEGMENT_CELLS, Log, RunOptions, _quiet
 from strikeline.pipeline.planes import group_labels, planes_by_group
 from strikeline.pipeline.steps import attitude_of, collect_picks, contact_segments, depth_trace_misfit, fit_picks, log_model_choice, model_surface, pick_sigmas, structure_contours, surface_grid
 from strikeline.pipeline.summary import build_summary
+from strikeline.pipeline.workload import check_workload
 from strikeline.pipeline.units import map_unit_bounds, map_unit_check
 from strikeline.pipeline.rasters import ground_on_grid, length_off_raster
 from strikeline import vocabulary as V
@@ -51,6 +52,9 @@ class Results:
     true_thickness_m: np.ndarray | None = None
     top_picks: PickSet | None = None
     unit_check: dict | None = None  # map units: see map_unit_check
+    # where each contact (top contact) came from and its attributes: written with picks and misfit segments
+    contact_sources: object | None = None  # strikeline.pipeline.inputs.ContactSources
+    top_contact_sources: object | None = None
 
 
 def _no_thickness_reason(base_in, top_in, model, top_model) -> str:
@@ -80,6 +84,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     what = f"picks on contacts {inputs.contacts.what}"
     grid_notes = []  # said once the picks give a plane: an input error stays the only line
     grid = surface_grid(inputs, opts, log=grid_notes.append)  # first: an extent or cell refused before any work
+    check_workload(inputs, opts, grid=grid)  # every size-driving option, before any work
     picks = collect_picks(inputs, spacing_m=opts.pick_spacing_m, log=log, is_cancelled=is_cancelled)
     step(1)
     plane = fit_picks(picks, what=what)
@@ -194,7 +199,8 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
                    model=model, uncertainty_m=uncertainty, contour_extrapolated=cflags,
                    trace_extrapolated=tflags, contact_misfit=segments, attitudes=attitudes,
                    vertical_thickness_m=vth, true_thickness_m=tth, top_picks=top_picks,
-                   unit_check=unit_check)
+                   unit_check=unit_check, contact_sources=inputs.contact_sources,
+                   top_contact_sources=inputs.top_contact_sources)
 
 
 def contacts_off_dem(inputs: Inputs, *, log: Log = _quiet) -> dict:

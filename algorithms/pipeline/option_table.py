@@ -91,6 +91,9 @@ class Option:
     metavar: str | None = None
     required: bool = False
     nargs: int | None = None
+    #: The option may be given several times (argparse ``action="append"``): its value is then a
+    #: list, one item per time given. A QGIS parameter stays single (one layer per parameter).
+    repeatable: bool = False
     dest: str | None = None
     qgis: str | None = None
     label: str | None = None
@@ -196,13 +199,14 @@ _LINEWORK_BASIS = ("half of a 5 m positional tolerance, i.e. 0.5 mm at 1:10,000 
 
 _OPTION_LIST = (
     # ---- inputs of the whole chain
-    _opt("contacts", "path", "line layer of the mapped contact(s): GeoPackage, Shapefile, GeoJSON, ...",
-         flag="--contacts", metavar="PATH", required=True, qgis="CONTACTS", label="Mapped contact lines",
-         geometry="line", commands=_RUN, tools=_PICK_TOOLS),
-    _opt("contacts_layer", str, "layer name inside PATH", unset="the first", flag="--contacts-layer",
-         metavar="NAME", commands=_RUN),
-    _opt("where", str, "OGR SQL filter on the contacts, e.g. \"unit = 'Kv'\"", flag="--where", metavar="SQL",
-         commands=_RUN),
+    _opt("contacts", "path", "line layer of the mapped contact(s): GeoPackage, Shapefile, GeoJSON, ...; give it "
+         "several times for several files or layers (all are used), each as PATH or PATH:LAYER",
+         flag="--contacts", metavar="PATH[:LAYER]", required=True, repeatable=True, qgis="CONTACTS",
+         label="Mapped contact lines", geometry="line", commands=_RUN, tools=_PICK_TOOLS),
+    _opt("contacts_layer", str, "layer name inside PATH, for every --contacts that names no :LAYER",
+         unset="the first", flag="--contacts-layer", metavar="NAME", commands=_RUN),
+    _opt("where", str, "OGR SQL filter on the contacts (on every --contacts input), e.g. \"unit = 'Kv'\"",
+         flag="--where", metavar="SQL", commands=_RUN),
     _opt("dem", "path", "DEM raster (GeoTIFF or any GDAL raster); elevations in metres unless it declares feet "
          "or --dem-unit says so", flag="--dem", metavar="PATH",
          qgis="DEM", label="DEM (ground elevation, metres)", geometry="raster", commands=_RUN, tools=_PICK_TOOLS),
@@ -311,12 +315,21 @@ _OPTION_LIST = (
          flag="--orientation-sigma", metavar="DEGREES", qgis="ORIENTATION_SIGMA",
          label="Standard error of the measured dips (°, 0: exact)", advanced=True, commands=_RUN,
          tools=_SURFACE_TOOLS),
-    _opt("top_contacts", "path", "line layer of the unit's top contact: models it too and writes isopach grids",
-         flag="--top-contacts", metavar="PATH", qgis="TOP_CONTACTS", label="Top contact of the unit (lines): isopachs",
+    _opt("top_contacts", "path", "line layer of the unit's top contact: models it too and writes isopach grids; "
+         "repeatable, each as PATH or PATH:LAYER", flag="--top-contacts", metavar="PATH[:LAYER]", repeatable=True,
+         qgis="TOP_CONTACTS", label="Top contact of the unit (lines): isopachs",
          geometry="line", commands=_RUN, tools=_CHAIN),
-    _opt("top_contacts_layer", str, "layer name inside the top-contacts file", flag="--top-contacts-layer",
-         metavar="NAME", commands=_RUN),
-    _opt("top_where", str, "OGR SQL filter on the top contacts", flag="--top-where", metavar="SQL", commands=_RUN),
+    _opt("top_contacts_layer", str, "layer name inside the top-contacts file, for every --top-contacts that names "
+         "no :LAYER", flag="--top-contacts-layer", metavar="NAME", commands=_RUN),
+    _opt("top_where", str, "OGR SQL filter on the top contacts (on every --top-contacts input)", flag="--top-where",
+         metavar="SQL", commands=_RUN),
+    # ---- points from delimited text (CSV), read by OGR's CSV driver
+    _opt("x_field", str, "points from delimited text (.csv): the column of the x (easting) coordinate, in every "
+         "CSV point input", flag="--x-field", metavar="NAME", commands=("run", "attitude")),
+    _opt("y_field", str, "points from delimited text (.csv): the column of the y (northing) coordinate",
+         flag="--y-field", metavar="NAME", commands=("run", "attitude")),
+    _opt("crs", str, "points from delimited text (.csv): their CRS, e.g. EPSG:32633 or a WKT or PROJ string "
+         "(a CSV declares none)", flag="--crs", metavar="CRS", commands=("run", "attitude")),
     # ---- the geological map's units
     _opt("map_units", "path", "polygon layer of the map's units: the surface stays below ground where a unit above "
          "it crops out and above ground where a unit below it crops out", flag="--map-units", metavar="PATH",
@@ -389,7 +402,8 @@ _OPTION_LIST = (
          commands=("attitude",)),
     _opt("points_where", str, "OGR SQL filter on the points, e.g. \"source = 'dem'\"", flag="--where",
          metavar="SQL", dest="where", commands=("attitude",)),
-    _opt("z_field", "field", "numeric field with each point's elevation in metres", unset="the geometries' Z",
+    _opt("z_field", "field", "numeric field with each point's elevation in metres (in a .csv: the column read as "
+         "the points' Z)", unset="the geometries' Z",
          flag="--z-field", metavar="NAME", qgis="PICKS_ELEV_FIELD",
          label="Elevation field of the picks (empty: the points' Z)", parent="points", numeric=True,
          commands=("attitude",), tools=("planeattitude", "localattitudes", "surfacemodel")),

@@ -34,7 +34,7 @@ from strikeline.pipeline.option_table import (  # noqa: F401  (re-exported: the 
 class RunOptions:
     """What ``strikeline run`` was asked to do; the defaults are the table's (:data:`OPTIONS`)."""
 
-    contacts: str
+    contacts: str | list  # PATH or PATH:LAYER, or a list of them (strikeline.pipeline.inputs.layer_specs)
     out: str
     contacts_layer: str | None = default("contacts_layer")
     where: str | None = default("where")
@@ -63,9 +63,13 @@ class RunOptions:
     dip_direction_field: str | None = default("dip_direction_field")
     strike_field: str | None = default("strike_field")
     orientation_sigma_deg: float = default("orientation_sigma_deg")
-    top_contacts: str | None = default("top_contacts")
+    top_contacts: str | list | None = default("top_contacts")
     top_contacts_layer: str | None = default("top_contacts_layer")
     top_where: str | None = default("top_where")
+    # points from delimited text (CSV)
+    x_field: str | None = default("x_field")
+    y_field: str | None = default("y_field")
+    crs: str | None = default("crs")
     # the geological map's unit polygons as constraints
     map_units: str | None = default("map_units")
     map_units_layer: str | None = default("map_units_layer")
@@ -132,9 +136,21 @@ def check_options(opts: RunOptions, *, names: dict | None = None) -> None:
         from strikeline.geometry.grid import check_extent
 
         check_extent(opts.extent, what=(names or CLI_OPTION_NAMES).get("extent") or "--extent")
-    check_out_folder(opts.out, overwrite=opts.overwrite,
-                     inputs=(opts.contacts, opts.dem, opts.contours, opts.boreholes, opts.orientations,
-                             opts.top_contacts, opts.map_units))
+    check_out_folder(opts.out, overwrite=opts.overwrite, inputs=input_paths(opts))
+
+
+def input_paths(opts: RunOptions) -> list:
+    """Every input file of a run, for the checks that keep --out apart from the inputs
+    (:func:`strikeline.io.files.check_out_folder`; None where an input is not given)."""
+    return [*input_files(opts.contacts), opts.dem, opts.contours, opts.boreholes, opts.orientations,
+            *input_files(opts.top_contacts), opts.map_units]
+
+
+def input_files(value) -> list:
+    """The files of a repeatable layer option (``PATH`` or ``PATH:LAYER``, or a list of them)."""
+    from strikeline.pipeline.inputs import layer_specs
+
+    return [path for path, _ in layer_specs(value)]
 
 
 def check_unit_options(opts: RunOptions, *, names: dict | None = None) -> None:

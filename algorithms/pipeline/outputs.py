@@ -8,25 +8,32 @@ from pathlib import Path
 import numpy as np
 import shapely
 
-from strikeline.io.files import atomic_folder, dumps_stable
+from strikeline.io.files import dumps_stable, output_folder, write_text_checked
 from strikeline.io.raster import write_geotiff
+from strikeline.io.gpkg_styles import write_layer_styles
 from strikeline.io.vector import LayerOut, write_gpkg
 from strikeline import vocabulary as V
 from strikeline.attitude.local import LocalAttitudes
 from strikeline.picks import (PickSet)
 from strikeline.pipeline.compute import Results
+from strikeline.pipeline.options import Log, _quiet
 from strikeline.pipeline.units import unit_conflicts_layer
 
 
 # --------------------------------------------------------------------------- writing
-def write_results(results: Results, out_dir, *, overwrite: bool = False) -> Path:
-    """Write every output into ``out_dir`` atomically.
+def write_results(results: Results, out_dir, *, overwrite: bool = False, inputs=(), log: Log = _quiet,
+                  is_cancelled=None) -> Path:
+    """Write every output into ``out_dir``, all or nothing.
 
-    Everything goes into a temporary sibling folder first; only when every file is complete is
-    it renamed to ``out_dir`` (an existing ``out_dir`` is replaced only with ``overwrite``).
+    Everything goes into a temporary sibling folder first, with a manifest of the files
+    (:data:`strikeline.vocabulary.MANIFEST_FILE`); only when every file is complete and checked
+    is it renamed to ``out_dir``. An existing ``out_dir`` is replaced only with ``overwrite`` and
+    only when it holds nothing but strikeline's own earlier results; ``out_dir`` may not hold,
+    lie inside or be one of ``inputs`` (paths). The folder is locked while it is written; see
+    :func:`strikeline.io.files.output_folder` for the steps and what a kill leaves.
     """
-    with atomic_folder(out_dir, overwrite=overwrite) as tmp:
-        _write_all(results, tmp)
+    with output_folder(out_dir, overwrite=overwrite, inputs=inputs, log=log) as tmp:
+        _write_all(results, tmp, is_cancelled=is_cancelled)
     return Path(out_dir)
 
 
@@ -46,12 +53,27 @@ def vocabulary_layer(spec: V.Layer, geoms, values: dict, *, name: str | None = N
                     spec.geometry)
 
 
-def picks_layer(name: str, p: PickSet) -> LayerOut:
-    """A layer of picks: PointZ with ``contact_id``, ``source`` and ``elevation_m``."""
+def picks_layer(name: str, p: PickSet, sources=None) -> LayerOut:
+    """A layer of picks: PointZ with ``contact_id``, ``source`` and ``elevation_m``; with
+    ``sources`` (:class:`strikeline.pipeline.inputs.ContactSources`) also the contact's input,
+    its feature id in its file and its own attributes (:func:`with_contact_sources`)."""
     spec = V.TOP_PICKS if name == V.TOP_PICKS.name else V.PICKS
-    return vocabulary_layer(spec, shapely.points(p.xyz), {
+    return with_contact_sources(vocabulary_layer(spec, shapely.points(p.xyz), {
         "contact_id": p.contact_id.astype(np.int64), "source": p.source.astype(str),
-        "elevation_m": p.xyz[:, 2]}, name=name)
+        "elevation_m": p.xyz[:, 2]}, name=name), spec, sources)
+
+
+def with_contact_sources(layer: LayerOut, spec: V.Layer, sources) -> LayerOut:
+    """``layer`` with ``contact_input`` and ``contact_fid`` (in the vocabulary's order) and the
+    contact's own attributes after them under ``spec.input_attributes``, looked up by each row's
+    ``contact_id``; unchanged without ``sources``."""
+    if sources is None:
+        return layer
+    cols = sources.columns(layer.fields["contact_id"], prefix=spec.input_attributes)
+    named = {f: v for f, v in {**layer.fields, **cols}.items() if f in spec.field_names}
+    ordered = {f: named[f] for f in spec.field_names if f in named}
+    ordered.update({f: v for f, v in cols.items() if f not in spec.field_names})
+    return LayerOut(layer.name, layer.geoms, ordered, layer.geometry_type)
 
 
 def attitudes_layer(a: LocalAttitudes) -> LayerOut:
@@ -89,7 +111,7 @@ def trace_layer(geoms, *, extrapolated=None) -> LayerOut:
     return vocabulary_layer(V.PREDICTED_TRACE, np.asarray(geoms, dtype=object), values)
 
 
-def contact_misfit_layer(segments: dict) -> LayerOut:
+def contact_misfit_layer(segments: dict, sources=None) -> LayerOut:
     """The ``contact_misfit`` layer from the segments of :func:`strikeline.pipeline.depth_trace_misfit`
     (the check against a model gives the vertical misfit and its error as well)."""
     values = {"contact_id": np.asarray(segments["contact_id"], dtype=np.int64),
@@ -98,7 +120,8 @@ def contact_misfit_layer(segments: dict) -> LayerOut:
     for key in ("misfit_z_m", "se_m", "z_score", "flag_m"):
         if key in segments:
             values[key] = np.asarray(segments[key], dtype=float)
-    return vocabulary_layer(V.CONTACT_MISFIT, segments["geoms"], values)
+    return with_contact_sources(vocabulary_layer(V.CONTACT_MISFIT, segments["geoms"], values), V.CONTACT_MISFIT,
+                                sources)
 
 
 def trace_misfit_layer(vertices, distance_m) -> LayerOut:
@@ -148,23 +171,35 @@ def result_layers(r: Results) -> list[LayerOut]:
     cflags = r.contour_extrapolated if r.contour_extrapolated is not None else np.zeros(len(r.contour_geoms), bool)
     tflags = r.trace_extrapolated if r.trace_extrapolated is not None else np.zeros(len(r.trace_geoms), bool)
     layers = [
-        picks_layer(V.PICKS.name, r.picks),
+        picks_layer(V.PICKS.name, r.picks, r.contact_sources),
         contours_layer(r.contour_geoms, r.contour_elevations_m, extrapolated=cflags),
         trace_layer(r.trace_geoms, extrapolated=tflags),
     ]
     if r.contact_misfit is not None:
-        layers.append(contact_misfit_layer(r.contact_misfit))
+        layers.append(contact_misfit_layer(r.contact_misfit, r.contact_sources))
     if r.attitudes is not None:
         layers.append(attitudes_layer(r.attitudes))
     if r.top_picks is not None:
-        layers.append(picks_layer(V.TOP_PICKS.name, r.top_picks))
+        layers.append(picks_layer(V.TOP_PICKS.name, r.top_picks, r.top_contact_sources))
     if r.unit_check is not None:
         layers.append(unit_conflicts_layer(r.unit_check))
     return layers
 
 
-def _write_all(r: Results, folder: Path) -> None:
+#: The vocabulary's entry of each raster file (its band's description and unit).
+_RASTER_OF_FILE = {spec.file: spec for spec in V.RASTERS.values()}
+
+
+def _write_all(r: Results, folder: Path, *, is_cancelled=None) -> None:
+    """Write every output of a run into ``folder`` (a new, empty folder).
+
+    Each writer checks its own file (GDAL's close, the file read back) and raises
+    :class:`strikeline.errors.OutputError` on failure; a new output is one more call here.
+    """
     for name, array in result_rasters(r):
-        write_geotiff(folder / name, array, r.grid)
+        spec = _RASTER_OF_FILE[name]
+        write_geotiff(folder / name, array, r.grid, description=spec.meaning, unit=spec.unit,
+                      is_cancelled=is_cancelled)
     write_gpkg(folder / V.RESULTS_FILE, result_layers(r), r.grid.crs_wkt)
-    (folder / V.SUMMARY_FILE).write_text(dumps_stable(r.summary))
+    write_layer_styles(folder / V.RESULTS_FILE)  # QGIS opens the layers styled (layer_styles)
+    write_text_checked(folder / V.SUMMARY_FILE, dumps_stable(r.summary))

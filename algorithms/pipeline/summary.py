@@ -2,18 +2,40 @@
 """
 from __future__ import annotations
 
-import os
-
 import numpy as np
 
 from strikeline import CAUTION, __version__
 from strikeline.io.crs import crs_label
-from strikeline.io.files import file_sha256, json_ready
+from strikeline.io.files import json_ready
 from strikeline.pipeline.options import SEGMENT_CELLS
 from strikeline.attitude.local import LocalAttitudes
 from strikeline.picks import (PickSet)
 from strikeline.surfaces import SurfaceModel
-from strikeline.pipeline.inputs import Inputs
+from strikeline.pipeline.command import current_command_line
+from strikeline.pipeline.inputs import Inputs, input_record
+
+#: The roles whose inputs may be several (a list in ``inputs`` of the summary).
+LIST_ROLES = ("contacts", "top_contacts")
+#: Every role, in the order the summary lists them.
+INPUT_ROLES = ("contacts", "dem", "contours", "boreholes", "orientations", "top_contacts", "map_units")
+
+
+def summary_inputs(inputs: Inputs) -> dict:
+    """Every input by role: ``contacts`` and ``top_contacts`` as lists (one record per input, in
+    the order given), the others as one record each (:func:`strikeline.pipeline.inputs.input_record`:
+    path as given and absolute, layer, filter, fields used, SHA-256). Keyed by role, never by file
+    name, so two files of the same name in different folders are both recorded."""
+    records = dict(inputs.records) if inputs.records else {k: input_record(v) for k, v in inputs.paths.items()}
+    out = {}
+    for role in INPUT_ROLES:
+        if role not in records:
+            continue
+        rec = records[role]
+        if role in LIST_ROLES:
+            out[role] = list(rec) if isinstance(rec, (list, tuple)) else [rec]
+        else:
+            out[role] = rec
+    return out
 from strikeline.pipeline.options import RunOptions
 
 
@@ -44,7 +66,9 @@ def build_summary(inputs: Inputs, opts: RunOptions, picks: PickSet, plane: dict,
         "conventions": "dip direction 0-360 clockwise from grid north of the CRS; dip 0-90 from "
                        "horizontal; strike by the right-hand rule (dip to the right); "
                        "dip_direction_true_deg is the same azimuth from true north",
-        "inputs": {os.path.basename(p): file_sha256(p) for p in inputs.paths.values() if os.path.isfile(p)},
+        "inputs": summary_inputs(inputs),
+        # the strikeline command as given (outside the command line: the process's sys.argv)
+        "command_line": current_command_line(),
         "caution": CAUTION,
     }
     if model is not None:

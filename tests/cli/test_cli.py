@@ -65,9 +65,13 @@ def test_demo_summary_recovers_the_plane(demo_run, demo):
     # strike by the right-hand rule is dip direction - 90 (common practice)
     assert _angle_diff(s["plane"]["strike_rhr_deg"], s["plane"]["dip_direction_deg"] - 90.0) < 1e-6
     assert s["trace_misfit"]["median_m"] < DEMO_CELL_M
-    assert set(s["inputs"]) == {"contacts_mapped.gpkg", "dem.tif", "contours.gpkg", "top_contacts.gpkg",
-                                "boreholes.gpkg", "orientations.gpkg"}
-    assert all(len(h) == 64 for h in s["inputs"].values())
+    # every input by role, the repeatable ones as lists (tests/pipeline/test_summary_inputs.py checks the records)
+    assert set(s["inputs"]) == {"contacts", "dem", "contours", "top_contacts", "boreholes", "orientations"}
+    named = [s["inputs"][r]["path"] for r in ("dem", "contours", "boreholes", "orientations")]
+    named += [rec["path"] for r in ("contacts", "top_contacts") for rec in s["inputs"][r]]
+    assert sorted(Path(p).name for p in named) == sorted(["contacts_mapped.gpkg", "dem.tif", "contours.gpkg",
+                                                          "top_contacts.gpkg", "boreholes.gpkg", "orientations.gpkg"])
+    assert all(len(s["inputs"][r]["sha256"]) == 64 for r in ("dem", "contours", "boreholes", "orientations"))
     # Source: truth.json - the top contact was built parallel to the base at this true thickness
     assert s["thickness"]["mean_m"] == pytest.approx(t["true_thickness_m"], abs=0.5)
     assert set(s["groups"]["planes"]) == set(t["grouped_contacts"]["blocks"])
@@ -150,27 +154,47 @@ def test_reprojected_contacts_give_the_same_answer(tmp_path, demo, cli, demo_dem
 
 @pytest.fixture(scope="module")
 def overwritten(tmp_path_factory, demo):
-    """The session's demo run repeated with ``--overwrite`` into a folder that already holds a file."""
+    """The session's demo run repeated with ``--overwrite`` into a folder that holds strikeline's
+    earlier results of another run (the demo with contours), one of them a stale extra grid."""
     base = tmp_path_factory.mktemp("overwrite")
     out = base / "out"
-    out.mkdir()
-    (out / "old.txt").write_text("old")
+    first = run_cli("run", "--contacts", demo["contacts"], "--dem", demo["dem"], "--contours", demo["contours"],
+                    "--elev-field", demo["elev_field"], "--out", out, "--interval", "7")
+    assert first.returncode == 0, first.stderr
+    old_summary = (out / "summary.json").read_bytes()
     proc = run_cli("run", "--contacts", demo["contacts"], "--dem", demo["dem"], "--out", out, "--overwrite")
-    return proc, base, out
+    return proc, base, out, old_summary
 
 
 def test_overwrite_replaces_an_existing_folder(overwritten):
-    proc, base, out = overwritten
+    proc, base, out, old_summary = overwritten
     assert proc.returncode == 0, proc.stderr
-    assert not (out / "old.txt").exists() and (out / "summary.json").exists()
-    assert [p.name for p in base.iterdir()] == ["out"]  # no temporary siblings left behind
+    assert (out / "summary.json").read_bytes() != old_summary
+    assert [p.name for p in base.iterdir()] == ["out"]  # no temporary siblings or lock left behind
+
+
+def test_overwrite_refuses_a_folder_with_files_strikeline_did_not_write(tmp_path, demo, cli):
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "old.txt").write_text("old")
+    (out / "sub").mkdir()
+    (out / "sub" / "notes.txt").write_text("mine")
+    proc = cli("run", "--contacts", demo["contacts"], "--dem", demo["dem"], "--out", out, "--overwrite")
+    assert proc.returncode == 2 and proc.stderr.count("\n") == 1, proc.stderr
+    assert "old.txt" in proc.stderr and "sub/notes.txt" in proc.stderr
+    assert sorted(p.relative_to(out).as_posix() for p in out.rglob("*")) == ["old.txt", "sub", "sub/notes.txt"]
 
 
 def test_summary_is_byte_identical_between_runs(overwritten, demo_dem_run):
-    # two runs of the same command (into different folders) write the same bytes; across separate
-    # processes (another hash seed) in test_console.py
-    _, _, out = overwritten
-    assert (out / "summary.json").read_bytes() == (demo_dem_run.out / "summary.json").read_bytes()
+    # two runs of the same command (into different folders) write the same summary but for the
+    # command line each records (its --out); across separate processes (another hash seed) in
+    # test_console.py
+    proc, out = overwritten[0], overwritten[2]
+    a, b = (out / "summary.json").read_text(), (demo_dem_run.out / "summary.json").read_text()
+    sa, sb = json.loads(a), json.loads(b)
+    assert sa.pop("command_line") == ["strikeline", *map(str, proc.args)]
+    assert sb.pop("command_line") == ["strikeline", *map(str, demo_dem_run.proc.args)]
+    assert sa == sb
 
 
 def test_version(cli):

@@ -268,6 +268,11 @@ def test_existing_json_needs_overwrite(tmp_path, run, demo_picks):
     line = _one_error_line(run("attitude", "--points", demo_picks, "--out", out))
     assert "already exists" in line and "--overwrite" in line
     assert out.read_text() == "mine"
+    # --overwrite replaces only a report the command wrote, not a file of the user's
+    line = _one_error_line(run("attitude", "--points", demo_picks, "--out", out, "--overwrite"))
+    assert "not a report of strikeline attitude" in line and out.read_text() == "mine"
+    out.unlink()
+    assert run("attitude", "--points", demo_picks, "--out", out, "--seed", "2").returncode == 0
     assert run("attitude", "--points", demo_picks, "--out", out, "--overwrite").returncode == 0
     assert json.loads(out.read_text())["plane"]["quality"] == "good"
     assert [p.name for p in tmp_path.iterdir()] == ["plane.json"]

@@ -268,9 +268,16 @@ def test_existing_folder_needs_overwrite(tmp_path, run, planes):
     line = _one_error_line(run("thickness", "--grids", top, base, "--out", out))
     assert "already exists" in line and "--overwrite" in line
     assert [p.name for p in out.iterdir()] == ["keep.txt"]
+    # --overwrite replaces only what strikeline wrote: a folder with a file of the user's is refused
+    line = _one_error_line(run("thickness", "--grids", top, base, "--out", out, "--overwrite"))
+    assert "keep.txt" in line and "strikeline_manifest.json" in line
+    assert [p.name for p in out.iterdir()] == ["keep.txt"]
+    (out / "keep.txt").unlink()
+    assert run("thickness", "--grids", top, base, "--out", out).returncode == 0  # an empty folder is used
     proc = run("thickness", "--grids", top, base, "--out", out, "--overwrite")
     assert proc.returncode == 0, proc.stderr
-    assert sorted(p.name for p in out.iterdir()) == ["true_thickness.tif", "vertical_thickness.tif"]
+    assert sorted(p.name for p in out.iterdir()) == ["strikeline_manifest.json", "true_thickness.tif",
+                                                     "vertical_thickness.tif"]
     assert sorted(p.name for p in tmp_path.iterdir()) == ["base.tif", "iso", "top.tif"]
 
 

@@ -376,7 +376,8 @@ def test_surface_model_over_an_extent(run, sheet, reference):
     res = run("surfacemodel", {"PICKS": picks, "CELL": 25.0, "surface": TMP})
     got, gt, _ = raster(res["surface"])
     xyz = reference[1].picks.xyz
-    want = Grid.from_bounds(xyz[:, 0].min(), xyz[:, 1].min(), xyz[:, 0].max(), xyz[:, 1].max(), cell_m=25.0)
+    # the picks' extent widened to multiples of the cell, so that sheets tile (strikeline's output grid)
+    want = Grid.aligned(xyz[:, 0].min(), xyz[:, 1].min(), xyz[:, 0].max(), xyz[:, 1].max(), cell_m=25.0)
     assert gt == want.transform and got.shape == want.shape
     X, Y = want.mesh()
     np.testing.assert_allclose(got, reference[1].plane.elevation(X, Y), atol=F32_ELEVATION_TOL_M)

@@ -1,0 +1,95 @@
+"""Stopping on request (strikeline.io.interrupt): GDAL's long steps stop at their next progress
+report when cancelled or signalled, signals become exceptions only inside the block that asks for
+it, and held signals are raised after the block.
+
+Reference: GDAL's progress contract - a GDALProgressFunc that returns FALSE makes the algorithm
+stop and fail ("User terminated"), GDAL API documentation (gdal_priv.h / cpl_progress.h).
+"""
+from __future__ import annotations
+
+import os
+import signal
+
+import numpy as np
+import pytest
+from osgeo import osr
+
+from strikeline.errors import CancelledError
+from strikeline.geometry.grid import Grid
+from strikeline.io.contours import contour_lines
+from strikeline.io.interrupt import Interrupted, deferred_signals, signals_as_exceptions
+from strikeline.io.raster import write_geotiff
+
+#: Stop once GDAL reports this fraction done; GDAL must then stop well before the end.
+STOP_AT = 0.1
+
+
+def _big_surface(n=1500):
+    srs = osr.SpatialReference()
+    srs.ImportFromEPSG(32633)
+    y, x = np.mgrid[0:n, 0:n].astype(float)
+    z = 50 * np.sin(x / 40.0) * np.cos(y / 55.0) + 0.05 * x
+    return z, Grid((500_000.0, 1.0, 0.0, 4_100_000.0, 0.0, -1.0), (n, n), srs.ExportToWkt())
+
+
+def test_contours_report_progress_to_the_end():
+    z, grid = _big_surface(400)
+    seen = []
+    geoms, _ = contour_lines(z, grid, interval_m=10.0, progress=seen.append)
+    assert len(geoms) > 0 and len(seen) > 10 and seen[-1] == pytest.approx(1.0)
+
+
+def test_cancelling_stops_gdals_contour_generator_early():
+    z, grid = _big_surface()
+    seen = []
+    with pytest.raises(CancelledError, match="contour lines: cancelled"):
+        contour_lines(z, grid, interval_m=1.0, progress=seen.append,
+                      is_cancelled=lambda: bool(seen) and seen[-1] >= STOP_AT)
+    assert STOP_AT <= seen[-1] < 0.5  # GDAL stopped at its next report, not at the end
+
+
+def test_a_signal_stops_gdals_contour_generator_and_raises_after_it():
+    z, grid = _big_surface()
+    seen, sent = [], []
+
+    def progress(fraction):
+        seen.append(fraction)
+        if fraction >= STOP_AT and not sent:
+            sent.append(fraction)
+            os.kill(os.getpid(), signal.SIGINT)  # Ctrl-C while GDAL works
+
+    before = signal.getsignal(signal.SIGINT)
+    with signals_as_exceptions(), pytest.raises(Interrupted) as e:
+        contour_lines(z, grid, interval_m=1.0, progress=progress)
+    assert e.value.signum == signal.SIGINT and e.value.exit_status == 130
+    assert seen[-1] < 0.5
+    assert signal.getsignal(signal.SIGINT) is before
+
+
+def test_sigterm_is_an_exception_only_inside_the_block():
+    before = signal.getsignal(signal.SIGTERM)
+    with pytest.raises(Interrupted) as e, signals_as_exceptions():
+        os.kill(os.getpid(), signal.SIGTERM)
+        for _ in range(1000):  # the handler runs between bytecodes
+            pass
+    assert e.value.exit_status == 143  # Source: common practice, 128 + SIGTERM (15)
+    assert signal.getsignal(signal.SIGTERM) is before
+
+
+def test_a_signal_inside_a_deferred_block_is_raised_after_it():
+    done = []
+    with signals_as_exceptions(), pytest.raises(Interrupted), deferred_signals():
+        os.kill(os.getpid(), signal.SIGTERM)
+        for _ in range(1000):
+            pass
+        done.append("the block ran to its end")
+    assert done == ["the block ran to its end"]
+
+
+def test_cancelling_a_geotiff_write_leaves_nothing(tmp_path):
+    z, grid = _big_surface(1200)
+    path = tmp_path / "surface.tif"
+    polls = []
+    with pytest.raises(CancelledError):
+        write_geotiff(path, z, grid, description="x", unit="m", is_cancelled=lambda: polls.append(1) or True)
+    assert polls and list(tmp_path.iterdir()) == []
