@@ -310,7 +310,7 @@ def style_local_attitudes(layer) -> None:
                                                    f'"{quality}" = \'{q}\' AND "{dd}" IS NOT NULL', q))
         root.appendChild(QgsRuleBasedRenderer.Rule(horizontal_symbol(colour), 0, 0,
                                                    f'"{quality}" = \'{q}\' AND "{dd}" IS NULL',
-                                                   f"{q}, horizontal"))
+                                                   f"{q}, horizontal within its 95% confidence"))
     layer.setRenderer(QgsRuleBasedRenderer(root))
     layer.setLabeling(_dip_label(f'if("{quality}" = \'{undetermined}\', \'\', round("{dip}"))'))
     layer.setLabelsEnabled(True)

@@ -95,7 +95,8 @@ DESCRIPTIONS = {
                                "forecast beyond the reach of the data; labelled by elevation",
     V.PREDICTED_TRACE.name: "predicted outcrop: vermilion dash, dotted beyond the reach of the data",
     V.CONTACT_MISFIT.name: "contact segments: thick magenta where flagged, thin grey where they match",
-    V.ATTITUDES.name: "strike line with a dip tick toward the dip direction, labelled with the dip",
+    V.ATTITUDES.name: "strike line with a dip tick toward the dip direction, labelled with the dip; an "
+                      "open circle where the plane is horizontal within its confidence",
     V.UNIT_CONFLICTS.name: "where the surface breaks the map units: yellow diamonds",
 }
 

@@ -3,9 +3,9 @@
  <renderer-v2 enableorderby="0" forceraster="0" referencescale="-1" symbollevels="0" type="RuleRenderer">
   <rules key="attitudes-root">
    <rule filter="&quot;quality&quot; = 'good' AND &quot;dip_direction_deg&quot; IS NOT NULL" key="attitudes-0" label="good" symbol="0"></rule>
-   <rule filter="&quot;quality&quot; = 'good' AND &quot;dip_direction_deg&quot; IS NULL" key="attitudes-1" label="good, horizontal" symbol="1"></rule>
+   <rule filter="&quot;quality&quot; = 'good' AND &quot;dip_direction_deg&quot; IS NULL" key="attitudes-1" label="good, horizontal within its 95% confidence" symbol="1"></rule>
    <rule filter="&quot;quality&quot; = 'weak' AND &quot;dip_direction_deg&quot; IS NOT NULL" key="attitudes-2" label="weak" symbol="2"></rule>
-   <rule filter="&quot;quality&quot; = 'weak' AND &quot;dip_direction_deg&quot; IS NULL" key="attitudes-3" label="weak, horizontal" symbol="3"></rule>
+   <rule filter="&quot;quality&quot; = 'weak' AND &quot;dip_direction_deg&quot; IS NULL" key="attitudes-3" label="weak, horizontal within its 95% confidence" symbol="3"></rule>
   </rules>
   <symbols>
    <symbol alpha="1" clip_to_extent="1" force_rhr="0" name="0" type="marker">
