@@ -424,9 +424,6 @@ def assemble_inputs(contacts, opts: RunOptions, *, dem=None, dem_grid: Grid | No
         top_contacts = None
     if records is None:
         records = {k: input_record(v) for k, v in (paths or {}).items()}
-    for lyr in (contacts, contours, boreholes, orientations, top_contacts, map_units):
-        for note in getattr(lyr, "notes", ()):  # curved geometries linearised, unusable ones skipped
-            log(note)
     if opts.group_by and opts.group_by not in contacts.fields:
         raise InputError(
             f"{names['group_by']}: {contacts.what} has no field '{opts.group_by}' "
