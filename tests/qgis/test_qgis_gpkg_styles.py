@@ -31,6 +31,7 @@ from qgis.core import (
     QgsReadWriteContext,
     QgsRectangle,
     QgsRuleBasedRenderer,
+    QgsSimpleMarkerSymbolLayerBase,
     QgsSymbolLayer,
     QgsVectorLayer,
 )
@@ -326,3 +327,40 @@ def test_results_render_in_their_embedded_styles(results, tmp_path):
     assert count(rgb, "#1b1b1b") > 100  # attitude marks
     assert isinstance(layers[-1].renderer(), QgsCategorizedSymbolRenderer)
 
+
+
+def _looks(symbol) -> dict:
+    """What tells a legend class apart without colour hue: width, dash, marker shape, lightness."""
+    sl = symbol.symbolLayer(0)
+    dash = None
+    if hasattr(sl, "penStyle") and sl.penStyle() != Qt.SolidLine:
+        dash = tuple(sl.customDashVector()) if sl.useCustomDashPattern() else int(sl.penStyle())
+    return {"width": getattr(sl, "width", lambda: None)(), "dash": dash,
+            "shape": (int(sl.shape()), symbol.symbolLayerCount()) if hasattr(sl, "shape") else None,
+            "size": getattr(sl, "size", lambda: None)(),
+            "lightness": QColor(sl.strokeColor() if hasattr(sl, "shape") and (sl.color().alpha() == 0 or sl.shape() in (
+                QgsSimpleMarkerSymbolLayerBase.Line, QgsSimpleMarkerSymbolLayerBase.Cross,
+                QgsSimpleMarkerSymbolLayerBase.Cross2)) else sl.color()).lightness()}
+
+
+def _apart_in_greyscale(a, b) -> bool:
+    ratio = lambda x, y: max(x, y) / min(x, y) if x and y else 1.0  # noqa: E731
+    return (a["dash"] != b["dash"] or a["shape"] != b["shape"] or ratio(a["width"], b["width"]) >= 1.5
+            or ratio(a["size"], b["size"]) >= 1.5 or abs(a["lightness"] - b["lightness"]) >= 80)
+
+
+@pytest.mark.parametrize("stem", [s.stem for s in gpkg_styles.STYLE_FILES])
+def test_every_pair_of_classes_reads_apart_in_greyscale(stem):
+    """Within each embedded style, every two legend classes differ by line weight (x1.5), dash,
+    marker shape or size, or by lightness (80 of 255), not by hue alone."""
+    style = next(s for s in gpkg_styles.STYLE_FILES if s.stem == stem)
+    lyr = export_styles.template_layer(style)
+    msg, ok = lyr.loadNamedStyle(str(gpkg_styles.style_dir() / style.file))
+    assert ok, msg
+    items = [(i.label(), _looks(i.symbol())) for i in lyr.renderer().legendSymbolItems() if i.symbol()]
+    assert items
+    # The criterion is not vacuous: a class that differs only a little in tone is not apart.
+    assert not _apart_in_greyscale(items[0][1], dict(items[0][1], lightness=items[0][1]["lightness"] + 40))
+    for k, (la, a) in enumerate(items):
+        for lb, b in items[k + 1:]:
+            assert _apart_in_greyscale(a, b), (stem, la, a, lb, b)
