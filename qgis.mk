@@ -7,15 +7,18 @@ QGIS_VENV     := .venv-qgis
 QGIS_PY       := $(QGIS_VENV)/bin/python
 QGIS_PIP      := $(QGIS_PY) -m pip --disable-pip-version-check -q
 QGIS_STAMP    := $(QGIS_VENV)/.strikeline-qgis-installed
-QGIS_APT      := python3-qgis qgis-providers python3-venv python3-scipy python3-pyproj python3-gdal
+# python3-shapely (1.8 on Debian 12) is what a desktop user has: the plugin's dependency check is
+# tested against it; python3-pip runs the README's install step (.ci/qgis-installed-plugin).
+QGIS_APT      := python3-qgis qgis-providers python3-venv python3-scipy python3-pyproj python3-gdal \
+                 python3-shapely python3-pip
 # Added on top of Debian's stack; numpy and scipy are pinned to Debian's own versions (constraints
 # written at build time) so pip never replaces them.
 QGIS_PIP_PKGS := shapely==2.0.6 pytest==8.3.4
-QGIS_PROBE    := import qgis.core, venv, ensurepip, scipy, pyproj; from osgeo import gdal_array
+QGIS_PROBE    := import qgis.core, venv, ensurepip, scipy, pyproj, shapely, pip; from osgeo import gdal_array
 PLUGIN_NAME   := strikeline_qgis
 PLUGIN_ZIP    := dist/$(PLUGIN_NAME).zip
 
-.PHONY: test-qgis plugin qgis-sysdeps qgis-setup
+.PHONY: test-qgis test-qgis-installed plugin qgis-sysdeps qgis-setup
 
 qgis-sysdeps:
 	@if ! $(QGIS_SYS_PY) -c '$(QGIS_PROBE)' >/dev/null 2>&1; then \
@@ -44,6 +47,12 @@ $(QGIS_STAMP): pyproject.toml qgis.mk | qgis-sysdeps
 
 test-qgis: $(QGIS_STAMP)
 	QT_QPA_PLATFORM=offscreen bash .ci/pytest-strict $(QGIS_PY) tests/qgis
+	$(MAKE) --no-print-directory test-qgis-installed
+
+# The plugin as the README installs it: Debian's packages, the README's pip step for a fresh
+# user, the zip in a fresh profile, the whole chain in QGIS's own Python (no venv).
+test-qgis-installed: | qgis-sysdeps
+	bash .ci/qgis-installed-plugin
 
 # An installable plugin zip: the adapter plus the pure library vendored as `strikeline`.
 plugin:

@@ -1,23 +1,48 @@
 """What every strikeline Processing tool shares: names, help, feedback and error handling."""
 from __future__ import annotations
 
-from qgis.core import QgsProcessingAlgorithm, QgsProcessingException
+import configparser
+import os
+import re
+import traceback
+
+from qgis.core import (
+    Qgis,
+    QgsMessageLog,
+    QgsProcessingAlgorithm,
+    QgsProcessingException,
+)
 from qgis.PyQt.QtCore import QCoreApplication
 from qgis.PyQt.QtGui import QIcon
-
 from strikeline import CAUTION
 from strikeline.errors import CancelledError, StrikelineError
 
 from .provider import ICON_PATH
 
-#: Group id -> display name. Tools are grouped by the step of the chain they belong to.
+#: Group id -> display name. Tools are grouped by the step of the chain they belong to; the
+#: Processing toolbox sorts groups by their displayed name, so the number puts them in the order
+#: of the work (the whole chain first, then picks, surfaces, maps, thickness).
 GROUPS = {
-    "chain": "Whole chain",
-    "picks": "Picks and attitudes",
-    "surfaces": "Surface models",
-    "maps": "Maps from a surface",
-    "thickness": "Thickness",
+    "chain": "1 · Whole chain",
+    "picks": "2 · Picks and attitudes",
+    "surfaces": "3 · Surface models",
+    "maps": "4 · Maps from a surface",
+    "thickness": "5 · Thickness",
 }
+
+
+def _metadata() -> dict:
+    meta = configparser.ConfigParser(interpolation=None)
+    meta.read(os.path.join(os.path.dirname(os.path.abspath(__file__)), "metadata.txt"), encoding="utf-8")
+    return dict(meta["general"]) if meta.has_section("general") else {}
+
+
+#: The plugin's metadata (homepage, tags, ...), read once; the help link and tags come from it.
+METADATA = _metadata()
+#: Where each tool's help button leads: the README's QGIS section.
+HELP_URL = f"{METADATA.get('homepage', '').rstrip('/')}/README.md#in-qgis"
+#: Words the toolbox search finds every tool by (the plugin's tags), besides each tool's own.
+TAGS = tuple(t.strip() for t in METADATA.get("tags", "").split(",") if t.strip())
 
 CONVENTIONS = (
     "Dip direction is 0–360° clockwise from grid north of the layer CRS (not true or magnetic "
@@ -90,6 +115,7 @@ class StrikelineAlgorithm(QgsProcessingAlgorithm):
     METHOD = ""
     REFERENCES: tuple = ()
     FORECAST = False  # True for tools whose outputs are forecasts (carry the caution)
+    TAGS: tuple = ()  # words of this tool for the toolbox search, besides the plugin's TAGS
 
     def name(self):
         return self.NAME
@@ -115,27 +141,59 @@ class StrikelineAlgorithm(QgsProcessingAlgorithm):
     def createInstance(self):  # noqa: N802
         return type(self)()
 
+    def tags(self):
+        return [self.tr(t) for t in (*self.TAGS, *TAGS)]
+
+    def shortDescription(self):  # noqa: N802 - the toolbox's tooltip: the summary's first sentence
+        return self.tr(self.SUMMARY).split(". ")[0].rstrip(".") + "."
+
+    def helpUrl(self):  # noqa: N802
+        return HELP_URL
+
     def shortHelpString(self):  # noqa: N802
-        parts = [f"<p>{self.tr(self.SUMMARY)}</p>"]
+        # The caution comes first on forecasts: the help panel shows its top, not its foot.
+        parts = [f"<p><b>{self.tr(CAUTION)}</b></p>"] if self.FORECAST else []
+        parts.append(f"<p>{self.tr(self.SUMMARY)}</p>")
         if self.METHOD:
             parts.append(f"<p><b>{self.tr('Method')}.</b> {self.tr(self.METHOD)}</p>")
         parts.append(f"<p><b>{self.tr('Conventions')}.</b> {self.tr(CONVENTIONS)}</p>")
         if self.REFERENCES:
             refs = "".join(f"<li>{r}</li>" for r in self.REFERENCES)
             parts.append(f"<p><b>{self.tr('References')}</b></p><ul>{refs}</ul>")
-        if self.FORECAST:
-            parts.append(f"<p><i>{self.tr(CAUTION)}</i></p>")
         return "".join(parts)
 
     def processAlgorithm(self, parameters, context, feedback):  # noqa: N802
+        """Run :meth:`process`; every failure leaves as ONE line of ``QgsProcessingException``.
+
+        The library's errors keep their own message (as the command line prints it); anything
+        else is an internal failure, named with its type and message, and its traceback goes
+        to QGIS's message log (*strikeline* tab) for a bug report, not into the dialog.
+        """
         steps = Steps(feedback)
+        if self.FORECAST:
+            feedback.pushInfo(CAUTION)
         try:
             results = self.process(parameters, context, steps)
         except StrikelineError as exc:
-            raise QgsProcessingException(str(exc)) from None
-        if self.FORECAST:
-            feedback.pushInfo(CAUTION)
+            raise QgsProcessingException(one_line(str(exc))) from None
+        except QgsProcessingException as exc:
+            raise QgsProcessingException(one_line(str(exc))) from None
+        except MemoryError:
+            raise QgsProcessingException(
+                f"{self.displayName()}: out of memory; use a coarser cell size, a smaller extent or "
+                "fewer resamples") from None
+        except Exception as exc:  # noqa: BLE001 - the one place where every other failure is caught
+            QgsMessageLog.logMessage(f"{self.displayName()}: internal failure:\n{traceback.format_exc()}",
+                                     "strikeline", Qgis.Critical)
+            raise QgsProcessingException(one_line(
+                f"{self.displayName()}: internal failure ({type(exc).__name__}: {exc}); please report it "
+                "with the traceback from the log's strikeline tab")) from None
         return results
 
     def process(self, parameters, context, steps: Steps) -> dict:
         raise NotImplementedError(f"{type(self).__name__} must implement process()")
+
+
+def one_line(text: str) -> str:
+    """A message on one line: its lines joined, runs of white space made one space."""
+    return re.sub(r"\s+", " ", str(text)).strip()

@@ -16,7 +16,7 @@ from pathlib import Path
 HERE = Path(__file__).resolve().parent
 REPO = HERE.parent
 SKIP_DIRS = {"__pycache__", ".pytest_cache", ".mypy_cache", "_vendor"}
-SKIP_FILES = {"build_zip.py"}
+SKIP_FILES = {"build_zip.py", "export_styles.py"}  # build helpers
 SKIP_SUFFIXES = {".pyc", ".pyo", ".orig", ".rej", ".swp"}
 
 

@@ -62,10 +62,31 @@ class LayerName:
 
 
 def crs_wkt(crs: QgsCoordinateReferenceSystem) -> str:
-    """A QGIS CRS as the WKT text the library takes (``""`` when invalid)."""
+    """A QGIS CRS as the WKT text the library takes (``""`` when invalid).
+
+    A known QGIS quirk: a CRS with an authority id (``EPSG:32631``) can come back from a
+    background run with ``toWkt()`` empty, so a valid layer would look CRS-less. Then the WKT
+    is made again from the authority id: by QGIS's CRS database, else by GDAL's OSR.
+    """
     if crs is None or not crs.isValid():
         return ""
-    return crs.toWkt(QgsCoordinateReferenceSystem.WKT_PREFERRED)
+    wkt = crs.toWkt(QgsCoordinateReferenceSystem.WKT_PREFERRED)
+    if wkt:
+        return wkt
+    authid = crs.authid()
+    if not authid:
+        return ""
+    wkt = QgsCoordinateReferenceSystem(authid).toWkt(QgsCoordinateReferenceSystem.WKT_PREFERRED)
+    if wkt:
+        return wkt
+    from osgeo import osr
+
+    srs = osr.SpatialReference()
+    try:
+        srs.SetFromUserInput(authid)
+    except RuntimeError:
+        return ""
+    return srs.ExportToWkt(["FORMAT=WKT2_2018"]) or ""
 
 
 def qgis_crs(wkt: str) -> QgsCoordinateReferenceSystem:
@@ -104,6 +125,60 @@ def _as_geos_wkb(geom: QgsGeometry) -> bytes:
     return bytes(g.asWkb())
 
 
+def _finite_xy(wkb: bytes) -> bool:
+    """True when every x and y of a linear geometry's WKB (ISO, as :func:`_as_geos_wkb` gives it,
+    or 2.5D/extended) is a finite number. The WKB is walked part by part and each run of coordinates checked at
+    once (numpy over the buffer), so a layer of long lines costs no Python loop per vertex."""
+    view = memoryview(wkb)
+
+    def walk(pos: int) -> int:
+        order = "<" if view[pos] == 1 else ">"
+        kind = int.from_bytes(view[pos + 1:pos + 5], "little" if order == "<" else "big")
+        pos += 5
+        # ISO types add 1000 (Z), 2000 (M), 3000 (ZM); the older 2.5D/EWKB ones set high bits
+        # (Z 0x80000000, M 0x40000000, an SRID following the type 0x20000000).
+        flags, kind = kind & 0xF0000000, kind & 0x0FFFFFFF
+        if flags & 0x20000000:
+            pos += 4
+        has_z = kind // 1000 in (1, 3) or bool(flags & 0x80000000)
+        has_m = kind // 1000 in (2, 3) or bool(flags & 0x40000000)
+        dims = 2 + has_z + has_m
+        base = kind % 1000
+        if base == 1:  # point
+            counts = [1]
+        elif base in (2, 3):  # line string, polygon (its rings)
+            n = int.from_bytes(view[pos:pos + 4], "little" if order == "<" else "big")
+            pos += 4
+            if base == 2:
+                counts = [n]
+            else:
+                for _ in range(n):
+                    m = int.from_bytes(view[pos:pos + 4], "little" if order == "<" else "big")
+                    pos = check(pos + 4, m, dims, order)
+                return pos
+        else:  # multi-geometries and collections: their parts are whole WKB geometries
+            n = int.from_bytes(view[pos:pos + 4], "little" if order == "<" else "big")
+            pos += 4
+            for _ in range(n):
+                pos = walk(pos)
+            return pos
+        for m in counts:
+            pos = check(pos, m, dims, order)
+        return pos
+
+    def check(pos: int, m: int, dims: int, order: str) -> int:
+        xyz = np.frombuffer(view, dtype=np.dtype(f"{order}f8"), count=m * dims, offset=pos)
+        if m and not np.isfinite(xyz.reshape(m, dims)[:, :2]).all():
+            raise ValueError
+        return pos + 8 * m * dims
+
+    try:
+        walk(0)
+    except ValueError:
+        return False
+    return True
+
+
 def read_vector(source: QgsProcessingFeatureSource, name: LayerName, *, geometry: str | None,
                 is_cancelled=None, keep_z: bool = False) -> VectorLayer:
     """Read a Processing feature source into a library :class:`VectorLayer`, in its own CRS.
@@ -129,7 +204,7 @@ def read_vector(source: QgsProcessingFeatureSource, name: LayerName, *, geometry
     """
     qfields = source.fields()
     names = qfields.names()
-    wkbs, fids = [], []
+    wkbs, fids, bad = [], [], []
     values = {f: [] for f in names}
     for i, feat in enumerate(source.getFeatures()):
         if is_cancelled is not None and i % _CHECK_EVERY == 0 and is_cancelled():
@@ -137,10 +212,18 @@ def read_vector(source: QgsProcessingFeatureSource, name: LayerName, *, geometry
         g = feat.geometry()
         if g is None or g.isNull() or g.isEmpty():
             continue
-        wkbs.append(_as_geos_wkb(g))
+        wkb = _as_geos_wkb(g)
+        if not _finite_xy(wkb):
+            bad.append(feat.id())
+            continue
+        wkbs.append(wkb)
         fids.append(feat.id())
         for k, f in enumerate(names):
             values[f].append(feat.attribute(k))
+    if bad:
+        shown = ", ".join(str(f) for f in bad[:10]) + (f" and {len(bad) - 10} more" if len(bad) > 10 else "")
+        raise InputError(f"{name.what}: feature(s) with fid {shown} have a coordinate that is not a finite number "
+                         "(NaN or infinity); fix or delete those vertices (e.g. with QGIS's vertex tool) and try again")
     fields = {f: _attribute_values(v) for f, v in values.items()}
     ftypes = {f: _FIELD_TYPE_NAMES.get(qfields.field(f).type(), qfields.field(f).typeName()) for f in names}
     wkt = crs_wkt(source.sourceCrs())
@@ -191,7 +274,7 @@ def read_raster_layer(layer: QgsRasterLayer, *, label: str = "DEM", band: int = 
     if cols <= 0 or rows <= 0:
         raise InputError(f"{what} has no native cell grid; save it as a GeoTIFF and use that")
     transform = (ext.xMinimum(), ext.width() / cols, 0.0, ext.yMaximum(), 0.0, -ext.height() / rows)
-    crs_wkt = layer.crs().toWkt(QgsCoordinateReferenceSystem.WKT_PREFERRED) if layer.crs().isValid() else ""
+    wkt = crs_wkt(layer.crs())
     if is_cancelled is not None and is_cancelled():
         raise CancelledError(f"reading {what}: cancelled; nothing was written")
     block = prov.block(band, ext, cols, rows)
@@ -203,4 +286,4 @@ def read_raster_layer(layer: QgsRasterLayer, *, label: str = "DEM", band: int = 
                          "give a single-band elevation raster")
     arr = np.frombuffer(bytes(block.data()), dtype=dtype).reshape(rows, cols)
     nodata = prov.sourceNoDataValue(band) if prov.sourceHasNoDataValue(band) else None
-    return raster_from_array(arr, Grid(transform, (rows, cols), crs_wkt, nodata), what=what)
+    return raster_from_array(arr, Grid(transform, (rows, cols), wkt, nodata), what=what)

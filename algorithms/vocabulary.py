@@ -206,6 +206,8 @@ SUMMARY_FILE = "summary.json"
 RESULTS_FILE = "results.gpkg"
 #: The list of the files strikeline wrote into an output folder (size, SHA-256): what --overwrite may replace.
 MANIFEST_FILE = "strikeline_manifest.json"
+#: The table of results.gpkg that holds its layers' QGIS styles (QGIS's own name; not a layer).
+STYLES_TABLE = "layer_styles"
 
 
 # --------------------------------------------------------------------------- summary.json

@@ -166,6 +166,7 @@ def test_demo_results_gpkg_and_rasters_use_exactly_the_vocabulary(demo_results):
         defn = lyr.GetLayerDefn()
         got[lyr.GetName()] = [defn.GetFieldDefn(k).GetName() for k in range(defn.GetFieldCount())]
     ds = None
+    assert got.pop(V.STYLES_TABLE, None) is not None  # QGIS's table of the layers' styles, not a layer
     assert set(got) <= set(V.LAYERS) and {"picks", "structure_contours", "attitudes", "top_picks"} <= set(got)
     # the demo's contacts carry name, unit, kind and block: copied under the vocabulary's prefix, after its fields
     assert [f for f in got["picks"] if f.startswith(V.CONTACT_ATTRIBUTE_PREFIX)] == [
@@ -200,6 +201,7 @@ def _gpkg_fields(path):
         defn = ds.GetLayerByIndex(i).GetLayerDefn()
         got[ds.GetLayerByIndex(i).GetName()] = [defn.GetFieldDefn(k).GetName() for k in range(defn.GetFieldCount())]
     ds = None
+    got.pop(V.STYLES_TABLE, None)  # QGIS's table of the layers' styles (strikeline.io.gpkg_styles), not a layer
     return got
 
 

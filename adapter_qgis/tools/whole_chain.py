@@ -40,9 +40,9 @@ LAYERS = {
     V.CONTACT_MISFIT.name: ("Contact segments and their misfit (needs a DEM)", QgsProcessing.TypeVectorLine, True,
                             "contact_misfit"),
     V.ATTITUDES.name: ("Local attitudes", QgsProcessing.TypeVectorPoint, True, "local_attitudes"),
-    V.TOP_PICKS.name: ("Top-contact picks (with top contacts)", QgsProcessing.TypeVectorPoint, False, "picks"),
+    V.TOP_PICKS.name: ("Top-contact picks (with top contacts)", QgsProcessing.TypeVectorPoint, True, "picks"),
     V.UNIT_CONFLICTS.name: ("Where the surface still breaks the map units (with map units)",
-                            QgsProcessing.TypeVectorPoint, False, ""),
+                            QgsProcessing.TypeVectorPoint, True, "unit_conflicts"),
 }
 #: The grids of ``pipeline.result_rasters``, each written to the output named as the file
 #: without ``.tif`` (strikeline.vocabulary.RASTERS): output -> (label, created by default, style).
@@ -51,9 +51,12 @@ RASTERS = {
     V.DIP_DIRECTION.name: ("Dip direction (° from grid north)", True, "dip_direction"),
     V.UNCERTAINTY.name: ("Standard error of the surface (m)", True, "uncertainty"),
     V.DEPTH.name: ("Depth below ground (needs a DEM)", True, "depth"),
-    V.VERTICAL_THICKNESS.name: ("Vertical thickness (with top contacts)", False, "thickness"),
-    V.TRUE_THICKNESS.name: ("True thickness (with top contacts)", False, "thickness"),
+    V.VERTICAL_THICKNESS.name: ("Vertical thickness (with top contacts)", True, "thickness"),
+    V.TRUE_THICKNESS.name: ("True thickness (with top contacts)", True, "thickness"),
 }
+# Every output is created by default (the dialog offers each as a temporary layer); those whose
+# input is not given (top contacts, map units, a DEM) are simply not written, and QGIS loads only
+# what a tool wrote (an output joins the layers to load when the tool asks for its file).
 #: Outputs that every run makes.
 REQUIRED = {V.PICKS.name, V.STRUCTURE_CONTOURS.name, V.SURFACE.name, V.DIP.name, V.DIP_DIRECTION.name}
 #: The summary JSON's destination.
@@ -125,6 +128,8 @@ class WholeChain(StrikelineAlgorithm):
                   "horizontal within its 95% confidence (no dip direction or strike)")
         steps.log(f"best-fit plane: dip {plane['dip_deg']:.2f}° ± {plane['dip_ci95_deg'] or 0:.2f}° {toward}, quality "
                   f"{plane['quality']}; surface model {s['model']['chosen']}")
+        for line in report_lines(r):
+            steps.log(line)
         steps.feedback.setProgress(85)
         # Last chance to stop: from here on the outputs are written, all or nothing.
         steps.check("whole chain")
@@ -148,6 +153,8 @@ class WholeChain(StrikelineAlgorithm):
             key = layer.name
             if key == V.PREDICTED_TRACE.name and inputs.dem is None:
                 continue  # no trace without ground to cut the surface with
+            if key == V.STRUCTURE_CONTOURS.name and r.depth_m is not None:
+                layer = contours_on_ground(r)
             out[key] = write_sink(self, parameters, key, context, Table.of_layer(layer), crs)
             attach_style(context, out[key], LAYERS[key][3])
         for file_name, array in pl.result_rasters(r):
@@ -159,3 +166,55 @@ class WholeChain(StrikelineAlgorithm):
             write_json_atomic(summary_path, r.summary, overwrite=True)  # the bytes of summary.json
             out[SUMMARY] = summary_path
         return {k: v for k, v in out.items() if v is not None}
+
+
+def contours_on_ground(r):
+    """The run's structure contours split where the surface passes from below the ground to above
+    it (eroded away), with ``below_ground`` besides ``extrapolated`` - as the structure-contours
+    tool splits them when given the DEM (:func:`strikeline.pipeline.split_by_flags` on the depth
+    below ground, DEM - surface, interpolated bilinearly; NaN off the DEM counts as not below)."""
+    below = {"below_ground": pl.raster_flag(r.depth_m, r.grid, at_least=0.0)}
+    parts, src, flags = pl.split_by_flags(r.contour_geoms, list(range(len(r.contour_geoms))), below,
+                                          spacing_m=min(r.grid.cell_x_m, r.grid.cell_y_m))
+    extrapolated = r.contour_extrapolated[src] if r.contour_extrapolated is not None else None
+    return pl.contours_layer(parts, r.contour_elevations_m[src], extrapolated=extrapolated,
+                             below_ground=flags["below_ground"])
+
+
+def _m(v, digits=2) -> str:
+    return "n/a" if v is None else f"{v:.{digits}f} m"
+
+
+def report_lines(r) -> list[str]:
+    """The run in plain lines for the log: picks, plane, model scores, flagged segments,
+    thickness (from the summary, in the words of summary.json)."""
+    s = r.summary
+    plane, model = s["plane"], s["model"]
+    by_source = ", ".join(f"{n} from {src}" for src, n in (s.get("picks_by_source") or {}).items())
+    out = [f"picks: {s['n_picks']}" + (f" ({by_source})" if by_source else "")]
+    toward = (f"toward {plane['dip_direction_deg']:.1f}° (strike {plane['strike_rhr_deg']:.1f}° right-hand rule)"
+              if plane.get("dip_direction_deg") is not None else "with no dip direction (horizontal)")
+    out.append(f"plane: dip {plane['dip_deg']:.2f}° {toward}, 95% half-width {plane.get('dip_ci95_deg') or 0:.2f}°, "
+               f"RMS {_m(plane.get('rms_m'))}, quality {plane.get('quality')}")
+    scores = ", ".join(f"{k} {_m(v, 4)}" for k, v in (model.get("cv_rmse_m") or {}).items())
+    out.append(f"surface model: {model['chosen']}" + (f"; cross-validation RMSE {scores}" if scores else ""))
+    cm = s.get("contact_misfit")
+    if cm:
+        seg = r.contact_misfit or {}
+        ids = sorted({int(c) for c, f in zip(seg.get("contact_id", ()), seg.get("flagged", ())) if f})
+        rule = (cm.get("check") or {}).get("flag_rule")
+        out.append(f"flagged segments: {cm['n_flagged']} of {cm['n_segments']} contact segments"
+                   + (f" ({rule})" if rule else "") + (f", on contacts {', '.join(map(str, ids))}" if ids else ""))
+    tm = s.get("trace_misfit") or {}
+    if tm.get("median_m") is not None:
+        out.append(f"trace misfit: median {_m(tm['median_m'])}, 90th percentile {_m(tm.get('p90_m'))} over "
+                   f"{tm.get('n_vertices')} contact vertices")
+    th = s.get("thickness")
+    if th:
+        if th.get("mean_m") is not None:
+            out.append(f"thickness: true thickness mean {_m(th['mean_m'])}, standard deviation {_m(th.get('std_m'))}, "
+                       f"10th to 90th percentile {_m(th.get('p10_m'))} to {_m(th.get('p90_m'))} over {th['n_cells']} "
+                       f"cells; top surface model {th.get('top_model')}")
+        else:
+            out.append(f"thickness: not computed - {th.get('reason') or th.get('note')}")
+    return out

@@ -141,7 +141,10 @@ def compute(args, *, log=lambda m: print(m, file=sys.stderr)) -> dict:
     from strikeline.io.files import file_sha256, json_ready
     from strikeline.pipeline.planes import point_planes
 
+    from strikeline.pipeline.workload import check_resamples
+
     layer, xyz, labels, source, cid = load_points(args)
+    check_resamples(args.resamples, len(xyz))  # before any resample is drawn
     # Points with a contact_id (the picks of strikeline run) are bootstrapped by contact segment,
     # as run does, because neighbouring picks along a contact share their errors.
     planes = point_planes(xyz, crs_wkt=layer.crs_wkt, labels=labels, contact_id=cid, sigma_z_m=args.dem_sigma_m,

@@ -84,6 +84,17 @@ def utm_suggestion(lon: float, lat: float) -> str:
     return f"EPSG:{(32600 if lat >= 0 else 32700) + zone}"
 
 
+#: Names GDAL gives the placeholders a GeoPackage records for a layer without a CRS (srs_id 0 and
+#: -1 of the GeoPackage standard, OGC 12-128r18, requirement 11): no CRS, not a geographic one.
+UNDEFINED_CRS_NAMES = ("Undefined geographic SRS", "Undefined Cartesian SRS")
+
+
+def _degrees(xy) -> bool:
+    """Whether a point can be a longitude and latitude."""
+    x, y = xy
+    return bool(np.isfinite(x) and np.isfinite(y) and -360.0 <= x <= 360.0 and -90.0 <= y <= 90.0)
+
+
 def require_projected_metres(wkt: str | None, *, what: str, centre_xy=None) -> None:
     """Refuse a missing CRS, a geographic CRS, or a projected CRS not in metres.
 
@@ -97,12 +108,28 @@ def require_projected_metres(wkt: str | None, *, what: str, centre_xy=None) -> N
         Centre of the data in the layer's own coordinates, used to suggest a UTM zone.
     """
     srs = _srs(wkt)
-    if srs is None:
+    placeholder = srs is not None and srs.GetName() in UNDEFINED_CRS_NAMES
+    if srs is None or placeholder:
+        said = f" (its file records only the placeholder '{srs.GetName()}')" if placeholder else ""
         raise CRSError(
-            f"{what} has no coordinate reference system; assign its projected CRS "
-            "(for example with gdal_edit.py -a_srs or ogr2ogr -a_srs) and try again"
+            f"{what} has no coordinate reference system{said}; assign the projected CRS its coordinates are in "
+            "(gdal_edit.py -a_srs EPSG:nnnn for a raster, ogr2ogr -a_srs EPSG:nnnn for a vector layer) "
+            "and try again"
+        )
+    if srs.IsLocal():
+        raise CRSError(
+            f"{what} has only a local (engineering) coordinate system '{srs.GetName()}', not a projected CRS; "
+            "assign the projected CRS its coordinates are in (gdal_edit.py -a_srs or ogr2ogr -a_srs) and try again"
         )
     if srs.IsGeographic() or not srs.IsProjected():
+        if centre_xy is not None and srs.IsGeographic() and not _degrees(centre_xy):
+            x, y = centre_xy
+            raise CRSError(
+                f"{what} declares the geographic CRS {crs_label(wkt)} (degrees) but its coordinates (centre "
+                f"{x:.10g}, {y:.10g}) are not longitudes and latitudes, so the declared CRS is wrong (a GeoJSON "
+                "file without a 'crs' member is read as WGS 84); assign the projected CRS the coordinates are "
+                "really in (ogr2ogr -a_srs EPSG:nnnn, gdal_edit.py -a_srs for a raster) and try again"
+            )
         hint = ""
         if centre_xy is not None and srs.IsGeographic():
             lon, lat = centre_xy

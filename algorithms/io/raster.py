@@ -10,6 +10,7 @@ import os
 import numpy as np
 from osgeo import gdal
 
+from strikeline.budget import memory_budget_bytes, size_words
 from strikeline.errors import InputError, OutputError, RasterReadError
 from strikeline.geometry.grid import Grid
 from strikeline.io._gdal import gdal_exceptions, gdal_message, quiet_close
@@ -54,21 +55,101 @@ def read_raster(path, *, label: str = "raster", band: int = 1) -> tuple[np.ndarr
         try:
             if band > ds.RasterCount:
                 raise InputError(f"{what} has {ds.RasterCount} band(s), band {band} was asked for")
+            _require_elevation_band(ds, band, what=what, path=path)
             gt = ds.GetGeoTransform(can_return_null=True)
             if gt is None:
                 raise InputError(f"{what} has no georeferencing; georeference it and try again")
             wkt = ds.GetProjection() or ""
             shape = (ds.RasterYSize, ds.RasterXSize)
-            require_projected_metres(wkt, what=what, centre_xy=_centre(Grid(gt, shape, wkt)))
+            require_projected_metres(wkt, what=what, centre_xy=_centre(_grid(gt, shape, wkt, None, what=what)))
             b = ds.GetRasterBand(band)
             nodata = b.GetNoDataValue()
+            need = shape[0] * shape[1] * (gdal.GetDataTypeSize(b.DataType) // 8 + 16)
+            if need > memory_budget_bytes():
+                raise InputError(
+                    f"{what} has {shape[1]} x {shape[0]} cells, which need about {size_words(need)} to read, "
+                    f"more than this run's memory budget of {size_words(memory_budget_bytes())} (half the "
+                    "machine's memory); clip it to the area of the contacts (gdalwarp -te) or coarsen it "
+                    "(gdalwarp -tr)"
+                )
             try:
                 arr = b.ReadAsArray().astype(np.float64)
             except RuntimeError as exc:
                 raise RasterReadError(f"{what}: GDAL could not read band {band} ({gdal_message(exc)})") from None
         finally:
             ds = None
-    return raster_from_array(arr, Grid(gt, shape, wkt, nodata), what=what, crs_checked=True)
+    return raster_from_array(arr, _grid(gt, shape, wkt, nodata, what=what), what=what, crs_checked=True,
+                             path=path)
+
+
+def _grid(gt, shape, wkt, nodata, *, what: str) -> Grid:
+    """The band's :class:`Grid`; a rotated, sheared or south-up geotransform is refused naming the file."""
+    try:
+        return Grid(gt, shape, wkt, nodata)
+    except InputError as exc:
+        raise InputError(f"{what}: {exc}") from None
+
+
+#: Band colour interpretations that mark a picture, not a surface.
+_PICTURE_BANDS = {gdal.GCI_RedBand: "red", gdal.GCI_GreenBand: "green", gdal.GCI_BlueBand: "blue",
+                  gdal.GCI_AlphaBand: "alpha", gdal.GCI_PaletteIndex: "palette index"}
+_ELEVATION_FIX = "a DEM must be a single band of elevations (Int16, Float32, ...)"
+
+
+def _require_elevation_band(ds, band: int, *, what: str, path: str) -> None:
+    """Refuse a raster that is not a single band of elevations: several bands (an RGB picture), a
+    colour table (a palette picture or a classified map), or 8-bit data (0-255)."""
+    if ds.RasterCount > 1:
+        kinds = [_PICTURE_BANDS.get(ds.GetRasterBand(i).GetColorInterpretation())
+                 for i in range(1, ds.RasterCount + 1)]
+        said = f" ({', '.join(kinds)}: a picture)" if all(kinds) else ""
+        raise InputError(
+            f"{what} has {ds.RasterCount} bands{said}; {_ELEVATION_FIX} - give the elevation raster, or "
+            f"extract its elevation band with gdal_translate -b N '{path}' dem.tif"
+        )
+    b = ds.GetRasterBand(band)
+    if b.GetColorTable() is not None or b.GetColorInterpretation() == gdal.GCI_PaletteIndex:
+        raise InputError(
+            f"{what}: band {band} has a colour table (a palette picture or a classified map, not "
+            f"elevations); {_ELEVATION_FIX} - give the elevation raster itself"
+        )
+    if b.DataType in _EIGHT_BIT:
+        raise InputError(
+            f"{what}: band {band} holds {gdal.GetDataTypeName(b.DataType)} data (whole numbers 0-255 or "
+            f"-128-127: a picture, a hillshade or a classification, not elevations); {_ELEVATION_FIX} - give "
+            "the elevation raster itself"
+        )
+
+
+_EIGHT_BIT = {gdal.GDT_Byte} | ({gdal.GDT_Int8} if hasattr(gdal, "GDT_Int8") else set())
+#: Values GIS software writes into cells without data (common practice): -9999 and -99999 (ASCII
+#: grids, many DEM producers), -32768 and -32767 (signed 16-bit voids, e.g. SRTM), and the lowest
+#: float32 (-3.4028235e38, written by ArcGIS). Cells equal to one of them, or beyond
+#: :data:`SENTINEL_ABS_LIMIT`, are holes, never elevations.
+NODATA_SENTINELS = (-9999.0, -99999.0, -32768.0, -32767.0, float(np.finfo(np.float32).min))
+#: Any cell whose absolute value reaches this is a marker, not an elevation (our choice).
+SENTINEL_ABS_LIMIT = 1e30
+
+
+def _undeclared_holes(arr: np.ndarray, nodata) -> tuple[float, int] | None:
+    """The most frequent nodata marker among the cells (other than the declared ``nodata``) and its count."""
+    found = []
+    for v in NODATA_SENTINELS:
+        if nodata is not None and v == nodata:
+            continue
+        n = int(np.count_nonzero(arr == v))
+        if n:
+            found.append((n, v))
+    huge = np.abs(arr) >= SENTINEL_ABS_LIMIT
+    if nodata is not None:
+        huge &= arr != nodata
+    n_huge = int(np.count_nonzero(huge & np.isfinite(arr)))
+    if n_huge and not any(abs(v) >= SENTINEL_ABS_LIMIT for _, v in found):
+        found.append((n_huge, float(arr[huge & np.isfinite(arr)].flat[0])))
+    if not found:
+        return None
+    n, v = max(found)
+    return v, n
 
 
 def _centre(grid: Grid):
@@ -76,18 +157,36 @@ def _centre(grid: Grid):
     return ((xmin + xmax) / 2, (ymin + ymax) / 2)
 
 
-def raster_from_array(array, grid: Grid, *, what: str, crs_checked: bool = False) -> tuple[np.ndarray, Grid]:
+def raster_from_array(array, grid: Grid, *, what: str, crs_checked: bool = False,
+                      path: str | None = None) -> tuple[np.ndarray, Grid]:
     """The checks of :func:`read_raster` for a band already in memory.
 
-    The CRS must be projected in metres; the grid's nodata value and non-finite cells become
-    NaN (float64 copy); a band without a valid cell is refused. ``what`` names the raster in
-    messages (``"DEM 'dem.tif'"``).
+    The CRS must be projected in metres; 8-bit data (a picture, not elevations) is refused; cells
+    equal to a common nodata marker (:data:`NODATA_SENTINELS`, or beyond
+    :data:`SENTINEL_ABS_LIMIT`) that the grid does not declare as its nodata are refused, naming
+    the command that declares it, so that -9999 never becomes an elevation; the grid's nodata value
+    and non-finite cells become NaN (float64 copy); a band without a valid cell is refused.
+    ``what`` names the raster in messages (``"DEM 'dem.tif'"``), ``path`` its file if it has one.
     """
     if not crs_checked:
         require_projected_metres(grid.crs_wkt, what=what, centre_xy=_centre(grid))
+    if np.asarray(array).dtype in (np.uint8, np.int8):
+        raise InputError(f"{what} holds 8-bit data (a picture or a classification, not elevations); "
+                         f"{_ELEVATION_FIX} - give the elevation raster itself")
     arr = np.array(array, dtype=np.float64)
     if arr.shape != grid.shape:
         raise InputError(f"{what}: the band has shape {arr.shape}, its grid {grid.shape}")
+    holes = _undeclared_holes(arr, grid.nodata)
+    if holes is not None:
+        value, n = holes
+        declared = ("declares no nodata value" if grid.nodata is None
+                    else f"declares {grid.nodata:g} as its nodata, not this value")
+        target = f"'{path}'" if path else "the file"
+        raise InputError(
+            f"{what}: {n} cell(s) equal {value:g}, a common nodata marker, but the raster {declared}; so that "
+            f"they are not read as elevations, declare it: gdal_edit.py -a_nodata {value:g} {target} (or "
+            f"gdal_translate -a_nodata {value:g} to a copy), then run again"
+        )
     if grid.nodata is not None:
         arr[arr == grid.nodata] = np.nan
     arr[~np.isfinite(arr)] = np.nan
@@ -257,27 +356,27 @@ def resample_to_grid(array, grid: Grid, target: Grid, *, what: str = "raster") -
         raise InputError(f"{what}: the band has shape {a.shape}, its grid {grid.shape}")
     with gdal_exceptions():
         try:
-            mem = gdal.GetDriverByName("MEM")
-            src = mem.Create("", grid.cols, grid.rows, 1, gdal.GDT_Float64)
-            src.SetGeoTransform(grid.transform)
-            if grid.crs_wkt:
-                src.SetProjection(grid.crs_wkt)
-            b = src.GetRasterBand(1)
-            b.SetNoDataValue(float("nan"))
-            b.WriteArray(a)
-            dst = mem.Create("", target.cols, target.rows, 1, gdal.GDT_Float64)
-            dst.SetGeoTransform(target.transform)
-            if grid.crs_wkt:
-                dst.SetProjection(grid.crs_wkt)
-            db = dst.GetRasterBand(1)
-            db.SetNoDataValue(float("nan"))
-            db.Fill(float("nan"))
+            src = _mem_float64(grid, grid.crs_wkt)
+            src.GetRasterBand(1).WriteArray(a)
+            dst = _mem_float64(target, grid.crs_wkt)
             gdal.Warp(dst, src, resampleAlg="bilinear", srcNodata=float("nan"), dstNodata=float("nan"))
-            out = db.ReadAsArray().astype(np.float64)
+            out = dst.GetRasterBand(1).ReadAsArray().astype(np.float64)
         except RuntimeError as exc:
             raise RasterReadError(f"{what}: GDAL could not resample it onto the output grid "
                                   f"({gdal_message(exc)})") from None
         finally:
-            src = dst = b = db = None
+            src = dst = None
     out[~np.isfinite(out)] = np.nan
     return out
+
+
+def _mem_float64(grid: Grid, crs_wkt: str):
+    """An in-memory float64 raster of ``grid``, NaN its nodata and every cell's value."""
+    ds = gdal.GetDriverByName("MEM").Create("", grid.cols, grid.rows, 1, gdal.GDT_Float64)
+    ds.SetGeoTransform(grid.transform)
+    if crs_wkt:
+        ds.SetProjection(crs_wkt)
+    band = ds.GetRasterBand(1)
+    band.SetNoDataValue(float("nan"))
+    band.Fill(float("nan"))
+    return ds

@@ -48,6 +48,9 @@ class VectorLayer:
     crs_wkt: str = ""
     #: Z of point geometries (NaN where a point has none); ``None`` for lines.
     z: np.ndarray | None = None
+    #: What reading changed, one log line each: curved geometries linearised, degenerate or empty
+    #: geometries skipped (with counts). The pipeline logs them.
+    notes: tuple = ()
 
     @property
     def what(self) -> str:
@@ -80,7 +83,7 @@ class VectorLayer:
         geoms = reproject_geometries(self.geoms, self.crs_wkt, dst_wkt)
         # Z is carried over as is: a change between projected CRSs leaves heights alone
         return VectorLayer(self.path, self.layer_name, geoms, self.fids, self.fields,
-                           self.field_types, dst_wkt, self.z)
+                           self.field_types, dst_wkt, self.z, self.notes)
 
 
 def _open(path: str, label: str):
@@ -231,9 +234,8 @@ def read_layer(path, *, layer: str | None = None, where: str | None = None,
             try:
                 for feat in lyr:
                     g = feat.GetGeometryRef()
-                    if g is None or g.IsEmpty():
-                        continue
-                    wkbs.append(bytes(g.ExportToIsoWkb()))
+                    # null and empty geometries go on to layer_from_wkb, which skips them with a count
+                    wkbs.append(None if g is None else bytes(g.ExportToIsoWkb()))
                     fids.append(feat.GetFID())
                     for i, n in enumerate(fnames):
                         values[n].append(feat.GetField(i) if feat.IsFieldSetAndNotNull(i) else None)
@@ -254,26 +256,182 @@ def read_layer(path, *, layer: str | None = None, where: str | None = None,
                           where_option=where_option)
 
 
+#: Largest angle of arc (degrees) one chord may span when GDAL linearises a curved geometry
+#: (``ogr.Geometry.GetLinearGeometry``). A chord over an angle ``a`` of a circle of radius ``R``
+#: departs from the arc by at most ``R (1 - cos(a / 2))`` (the sagitta; from memory): 3.8e-5 R at
+#: 1 degree, 4 cm on a 1 km radius, finer than any mapped line. GDAL's own default
+#: (``OGR_ARC_STEPSIZE``) is 4 degrees, 0.6 m on a 1 km radius.
+CURVE_STEP_DEG = 1.0
+#: WKB type codes of the curved geometry types (OGC Simple Features 1.2.1 / ISO SQL/MM).
+_CURVED_WKB = {8: "CircularString", 9: "CompoundCurve", 10: "CurvePolygon", 11: "MultiCurve",
+               12: "MultiSurface", 13: "Curve", 14: "Surface"}
+_GEOMETRY_COLLECTION_WKB = 7
+#: How many feature ids a message lists before "and N more".
+_SHOWN_FIDS = 10
+
+
+def _wkb_type(wkb: bytes) -> int:
+    """The base type code of a WKB geometry (ISO's +1000/2000/3000 for Z/M and EWKB's flag bits removed)."""
+    if len(wkb) < 5:
+        return 0
+    code = int.from_bytes(wkb[1:5], "little" if wkb[0] == 1 else "big") & 0x0FFFFFFF
+    return code % 1000
+
+
+def _linearised(wkbs: list) -> tuple[list, dict]:
+    """``wkbs`` with every curved geometry replaced by GDAL's linear approximation
+    (``GetLinearGeometry`` at :data:`CURVE_STEP_DEG`), and how many of each curved type there were."""
+    out, kinds = list(wkbs), {}
+    with gdal_exceptions():
+        for i, w in enumerate(wkbs):
+            if w is None:
+                continue
+            t = _wkb_type(w)
+            if t not in _CURVED_WKB and t != _GEOMETRY_COLLECTION_WKB:
+                continue
+            try:
+                g = ogr.CreateGeometryFromWkb(w)
+            except RuntimeError:
+                out[i] = b""  # unreadable: counted with the unusable geometries
+                continue
+            if t == _GEOMETRY_COLLECTION_WKB and not g.HasCurveGeometry():
+                continue
+            name = _CURVED_WKB.get(t, "GeometryCollection with curves")
+            kinds[name] = kinds.get(name, 0) + 1
+            out[i] = bytes(g.GetLinearGeometry(CURVE_STEP_DEG).ExportToIsoWkb())
+    return out, kinds
+
+
+def _without_short_parts(wkb: bytes) -> tuple[bytes | None, int]:
+    """A multi-line WKB without its parts of fewer than two vertices (which GEOS refuses to read), and
+    how many parts were dropped; ``(None, 0)`` for anything else."""
+    with gdal_exceptions():
+        try:
+            g = ogr.CreateGeometryFromWkb(wkb)
+        except RuntimeError:
+            return None, 0
+        if ogr.GT_Flatten(g.GetGeometryType()) != ogr.wkbMultiLineString:
+            return None, 0
+        dropped = 0
+        for k in reversed(range(g.GetGeometryCount())):
+            if g.GetGeometryRef(k).GetPointCount() < 2:
+                g.RemoveGeometry(k)
+                dropped += 1
+        if g.IsEmpty():
+            return None, 0
+        return bytes(g.ExportToIsoWkb()), dropped
+
+
+def _fid_list(fids) -> str:
+    fids = [int(f) for f in fids]
+    shown = ", ".join(map(str, fids[:_SHOWN_FIDS]))
+    return shown + (f" and {len(fids) - _SHOWN_FIDS} more" if len(fids) > _SHOWN_FIDS else "")
+
+
+def _zero_length_parts_removed(geoms: np.ndarray) -> int:
+    """Remove (in place) the zero-length parts of multi-lines that also hold longer parts; returns
+    how many parts were removed."""
+    multi = np.flatnonzero(shapely.get_type_id(geoms) == shapely.GeometryType.MULTILINESTRING)
+    if not len(multi):
+        return 0
+    parts, idx = shapely.get_parts(geoms[multi], return_index=True)
+    zero = shapely.length(parts) == 0
+    removed = 0
+    for j in np.unique(idx[zero]):
+        keep = parts[(idx == j) & ~zero]
+        if len(keep):
+            geoms[multi[j]] = shapely.multilinestrings(keep)
+            removed += int(((idx == j) & zero).sum())
+    return removed
+
+
 def layer_from_wkb(wkbs, *, fids, fields, field_types, crs_wkt, path, layer_name, label="layer",
                    geometry="line", where=None, extent=None, where_option="filter") -> VectorLayer:
     """Build a :class:`VectorLayer` from features already read (as WKB), with every check.
 
     This is the part of :func:`read_layer` after OGR's loop, for callers that hold features in
-    memory (the QGIS adapter): the empty-layer error, the CRS check, WKB to 2-D shapely, the Z of
-    points, and the geometry-family check. ``extent`` is ``(xmin, xmax, ymin, ymax)`` as OGR gives
-    it, used to suggest a UTM zone for a geographic layer (computed from the features if omitted).
+    memory (the QGIS adapter): curved geometries linearised by GDAL (:data:`CURVE_STEP_DEG`), the
+    empty-layer error, non-finite coordinates refused with the feature ids, the CRS check, WKB to
+    2-D shapely, the Z of points, the geometry-family check, and unusable geometries skipped with a
+    count (``None`` or empty WKB for a feature without geometry; a line of one vertex or of zero
+    length; an empty point; a polygon of no area). What was linearised or skipped is said in
+    :attr:`VectorLayer.notes`. ``extent`` is ``(xmin, xmax, ymin, ymax)`` as OGR gives it, used to
+    suggest a UTM zone for a geographic layer (computed from the features if omitted).
     """
     if geometry not in _FAMILIES:
         raise InputError(f"geometry must be one of 'line', 'point', 'polygon'; got {geometry!r}")
     wanted = _FAMILIES[geometry]
     what = f"{label} layer '{layer_name}' of '{path}'"
-    wkbs = [bytes(w) for w in wkbs]
-    if not wkbs:
-        cond = f" matching the {where_option} {where!r}" if where else ""
+    wkbs = [None if w is None or len(w) == 0 else bytes(w) for w in wkbs]
+    fids = np.asarray(fids, dtype=np.int64)
+    cond = f" matching the {where_option} {where!r}" if where else ""
+    if not wkbs or all(w is None for w in wkbs):
         raise InputError(f"{what} holds no feature with a geometry{cond}; give a layer with features")
-    geoms3 = shapely.from_wkb(wkbs)
-    if extent is None:
-        xmin, ymin, xmax, ymax = shapely.total_bounds(geoms3)
+    notes = []
+    wkbs, curved = _linearised(wkbs)
+    if curved:
+        kinds = ", ".join(f"{n} {k}" for k, n in sorted(curved.items()))
+        notes.append(f"{what}: {sum(curved.values())} curved geometries ({kinds}) linearised by GDAL, "
+                     f"chords spanning at most {CURVE_STEP_DEG:g} degree of arc")
+    null = np.array([w is None for w in wkbs])
+    with np.errstate(invalid="ignore"):  # NaN coordinates are refused below, by feature
+        geoms3 = shapely.from_wkb(wkbs, on_invalid="ignore")
+    dropped_parts = 0
+    for i in np.flatnonzero(shapely.is_missing(geoms3) & ~null):
+        if geometry == "line":  # GEOS reads no line of one vertex: drop such parts of a multi-line
+            repaired, n = _without_short_parts(wkbs[i])
+            if repaired is not None:
+                with np.errstate(invalid="ignore"):
+                    geoms3[i] = shapely.from_wkb(repaired, on_invalid="ignore")
+                dropped_parts += n
+    present = ~shapely.is_missing(geoms3)
+    coords, owner = shapely.get_coordinates(geoms3[present], return_index=True)
+    bad = ~np.isfinite(coords).all(axis=1)
+    if bad.any():
+        bad_fids = np.unique(fids[np.flatnonzero(present)[owner[bad]]])
+        raise InputError(
+            f"{what}: feature(s) with fid {_fid_list(bad_fids)} have a coordinate that is not a finite number "
+            "(NaN or infinity); fix or delete those vertices (e.g. with QGIS's vertex tool) and try again"
+        )
+    geoms = shapely.force_2d(geoms3)
+    usable = present & ~shapely.is_empty(geoms)
+    type_ids = set(shapely.get_type_id(geoms[usable]).tolist())
+    if not {shapely.GeometryType(t).name for t in type_ids} <= {n.upper() for n in wanted}:
+        got = ", ".join(sorted(shapely.GeometryType(t).name.lower() for t in type_ids))
+        raise InputError(
+            f"{what} holds {got} geometries; it must hold {geometry}s - give a {geometry} layer"
+        )
+    if geometry == "line":
+        dropped_parts += _zero_length_parts_removed(geoms)
+        usable &= shapely.length(geoms) > 0
+    elif geometry == "polygon":
+        usable &= shapely.area(geoms) > 0
+    degenerate = ~usable & ~null & present & ~shapely.is_empty(geoms)
+    n_skipped = int((~usable).sum())
+    if not usable.any():
+        kind = {"line": "line of at least two distinct vertices", "point": "point",
+                "polygon": "polygon with an area"}[geometry]
+        raise InputError(
+            f"{what} holds no usable {geometry}{cond}: all {len(wkbs)} features are empty, have no geometry or "
+            f"are degenerate (fids {_fid_list(fids)}); give a layer with at least one {kind}"
+        )
+    if n_skipped:
+        shape = {"line": "one vertex or zero length", "point": "no coordinates",
+                 "polygon": "no area"}[geometry]
+        parts = [f"{int(null.sum())} without geometry" if null.any() else "",
+                 f"{int((~present & ~null).sum() + degenerate.sum())} with {shape}"
+                 if (~present & ~null).any() or degenerate.any() else "",
+                 f"{int((present & shapely.is_empty(geoms)).sum())} empty"
+                 if (present & shapely.is_empty(geoms)).any() else ""]
+        notes.append(f"warning: {what}: skipped {n_skipped} of {len(wkbs)} features that hold no usable {geometry} "
+                     f"({', '.join(p for p in parts if p)}; fids {_fid_list(fids[~usable])}); fix or delete them "
+                     "to silence this warning")
+    if dropped_parts:
+        notes.append(f"warning: {what}: dropped {dropped_parts} part(s) of one vertex or zero length from "
+                     f"multi-part {geometry}s")
+    geoms3, geoms = geoms3[usable], geoms[usable]
+    if extent is None or n_skipped:
+        xmin, ymin, xmax, ymax = shapely.total_bounds(geoms)
         extent = (xmin, xmax, ymin, ymax)
     centre = ((extent[0] + extent[1]) / 2, (extent[2] + extent[3]) / 2)
     require_projected_metres(crs_wkt, what=what, centre_xy=centre)
@@ -283,15 +441,9 @@ def layer_from_wkb(wkbs, *, fids, fields, field_types, crs_wkt, path, layer_name
         has_z = shapely.has_z(geoms3) & (shapely.get_type_id(geoms3) == shapely.GeometryType.POINT)
         if has_z.any():
             z[has_z] = shapely.get_coordinates(geoms3[has_z], include_z=True)[:, 2]
-    geoms = shapely.force_2d(geoms3)
-    type_ids = set(shapely.get_type_id(geoms).tolist())
-    if not {shapely.GeometryType(t).name for t in type_ids} <= {n.upper() for n in wanted}:
-        got = ", ".join(sorted(shapely.GeometryType(t).name.lower() for t in type_ids))
-        raise InputError(
-            f"{what} holds {got} geometries; it must hold {geometry}s - give a {geometry} layer"
-        )
-    return VectorLayer(path, layer_name, geoms, np.asarray(fids, dtype=np.int64),
-                       {n: np.array(v, dtype=object) for n, v in fields.items()}, dict(field_types), crs_wkt or "", z)
+    return VectorLayer(path, layer_name, geoms, fids[usable],
+                       {n: np.array(v, dtype=object)[usable] for n, v in fields.items()}, dict(field_types),
+                       crs_wkt or "", z, tuple(notes))
 
 
 @dataclass

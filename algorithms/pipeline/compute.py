@@ -21,6 +21,7 @@ from strikeline.pipeline.options import SEGMENT_CELLS, Log, RunOptions, _quiet
 from strikeline.pipeline.planes import group_labels, planes_by_group
 from strikeline.pipeline.steps import attitude_of, collect_picks, contact_segments, depth_trace_misfit, fit_picks, log_model_choice, model_surface, pick_sigmas, structure_contours, surface_grid
 from strikeline.pipeline.summary import build_summary
+from strikeline.pipeline.workload import check_workload
 from strikeline.pipeline.units import map_unit_bounds, map_unit_check
 from strikeline.pipeline.rasters import ground_on_grid, length_off_raster
 from strikeline import vocabulary as V
@@ -83,6 +84,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     what = f"picks on contacts {inputs.contacts.what}"
     grid_notes = []  # said once the picks give a plane: an input error stays the only line
     grid = surface_grid(inputs, opts, log=grid_notes.append)  # first: an extent or cell refused before any work
+    check_workload(inputs, opts, grid=grid)  # every size-driving option, before any work
     picks = collect_picks(inputs, spacing_m=opts.pick_spacing_m, log=log, is_cancelled=is_cancelled)
     step(1)
     plane = fit_picks(picks, what=what)

@@ -10,6 +10,7 @@ import shapely
 
 from strikeline.io.files import dumps_stable, output_folder, write_text_checked
 from strikeline.io.raster import write_geotiff
+from strikeline.io.gpkg_styles import write_layer_styles
 from strikeline.io.vector import LayerOut, write_gpkg
 from strikeline import vocabulary as V
 from strikeline.attitude.local import LocalAttitudes
@@ -200,4 +201,5 @@ def _write_all(r: Results, folder: Path, *, is_cancelled=None) -> None:
         write_geotiff(folder / name, array, r.grid, description=spec.meaning, unit=spec.unit,
                       is_cancelled=is_cancelled)
     write_gpkg(folder / V.RESULTS_FILE, result_layers(r), r.grid.crs_wkt)
+    write_layer_styles(folder / V.RESULTS_FILE)  # QGIS opens the layers styled (layer_styles)
     write_text_checked(folder / V.SUMMARY_FILE, dumps_stable(r.summary))

@@ -1,0 +1,45 @@
+"""How much memory one run of strikeline may plan to use.
+
+Options and inputs that drive the size of a run (cells of the output grid, picks, windows,
+contour levels, resamples) are checked against this budget before any work starts, so that an
+absurd value is refused in one line instead of exhausting the machine
+(:mod:`strikeline.pipeline.workload`). Imports neither GDAL nor QGIS.
+"""
+from __future__ import annotations
+
+import os
+
+#: Share of the machine's physical memory one run may plan to fill: the rest is left to the
+#: operating system, QGIS and the user's other programs (our choice).
+MEMORY_SHARE = 0.5
+#: The budget where the physical memory cannot be read (``os.sysconf`` missing, e.g. Windows):
+#: 4 GiB, half of a common 8 GiB laptop (our choice).
+FALLBACK_BUDGET_BYTES = 4 * 2**30
+
+
+def physical_memory_bytes() -> int | None:
+    """The machine's physical memory (``os.sysconf('SC_PHYS_PAGES') * SC_PAGE_SIZE``), or None."""
+    try:
+        pages, size = os.sysconf("SC_PHYS_PAGES"), os.sysconf("SC_PAGE_SIZE")
+    except (AttributeError, ValueError, OSError):
+        return None
+    if pages <= 0 or size <= 0:
+        return None
+    return int(pages) * int(size)
+
+
+def memory_budget_bytes() -> int:
+    """Bytes one run may plan to use: :data:`MEMORY_SHARE` of the physical memory, else
+    :data:`FALLBACK_BUDGET_BYTES`."""
+    phys = physical_memory_bytes()
+    return FALLBACK_BUDGET_BYTES if phys is None else int(phys * MEMORY_SHARE)
+
+
+def size_words(n_bytes: float) -> str:
+    """A byte count in words: ``'3.2 GiB'``, ``'800 MiB'``, ``'2.1e+04 GiB'``."""
+    gib = n_bytes / 2**30
+    if gib >= 1e4:
+        return f"{gib:.2g} GiB"
+    if gib >= 1:
+        return f"{gib:.1f} GiB"
+    return f"{n_bytes / 2**20:.0f} MiB"

@@ -1,0 +1,259 @@
+<!DOCTYPE qgis PUBLIC 'http://mrcc.com/qgis.dtd' 'SYSTEM'>
+<qgis hasScaleBasedVisibilityFlag="0" labelsEnabled="1" maxScale="0" minScale="100000000" simplifyAlgorithm="0" simplifyDrawingHints="1" simplifyDrawingTol="1" simplifyLocal="1" simplifyMaxScale="1" styleCategories="Symbology|Labeling|Rendering" symbologyReferenceScale="-1" version="3.22.16-Białowieża">
+ <renderer-v2 enableorderby="0" forceraster="0" referencescale="-1" symbollevels="0" type="RuleRenderer">
+  <rules key="structure_contours_forecast-root">
+   <rule filter="&quot;extrapolated&quot;" key="structure_contours_forecast-0" label="forecast (beyond the reach of the data)" symbol="0"></rule>
+   <rule filter="NOT &quot;extrapolated&quot;" key="structure_contours_forecast-1" label="within reach of the data" symbol="1"></rule>
+  </rules>
+  <symbols>
+   <symbol alpha="1" clip_to_extent="1" force_rhr="0" name="0" type="line">
+    <data_defined_properties>
+     <Option type="Map">
+      <Option name="name" type="QString" value=""></Option>
+      <Option name="properties"></Option>
+      <Option name="type" type="QString" value="collection"></Option>
+     </Option>
+    </data_defined_properties>
+    <layer class="SimpleLine" enabled="1" locked="0" pass="0">
+     <Option type="Map">
+      <Option name="align_dash_pattern" type="QString" value="0"></Option>
+      <Option name="capstyle" type="QString" value="flat"></Option>
+      <Option name="customdash" type="QString" value="1.8;0.9"></Option>
+      <Option name="customdash_map_unit_scale" type="QString" value="3x:0,0,0,0,0,0"></Option>
+      <Option name="customdash_unit" type="QString" value="MM"></Option>
+      <Option name="dash_pattern_offset" type="QString" value="0"></Option>
+      <Option name="dash_pattern_offset_map_unit_scale" type="QString" value="3x:0,0,0,0,0,0"></Option>
+      <Option name="dash_pattern_offset_unit" type="QString" value="MM"></Option>
+      <Option name="draw_inside_polygon" type="QString" value="0"></Option>
+      <Option name="joinstyle" type="QString" value="bevel"></Option>
+      <Option name="line_color" type="QString" value="31,78,121,255"></Option>
+      <Option name="line_style" type="QString" value="dash"></Option>
+      <Option name="line_width" type="QString" value="0.45"></Option>
+      <Option name="line_width_unit" type="QString" value="MM"></Option>
+      <Option name="offset" type="QString" value="0"></Option>
+      <Option name="offset_map_unit_scale" type="QString" value="3x:0,0,0,0,0,0"></Option>
+      <Option name="offset_unit" type="QString" value="MM"></Option>
+      <Option name="ring_filter" type="QString" value="0"></Option>
+      <Option name="trim_distance_end" type="QString" value="0"></Option>
+      <Option name="trim_distance_end_map_unit_scale" type="QString" value="3x:0,0,0,0,0,0"></Option>
+      <Option name="trim_distance_end_unit" type="QString" value="MM"></Option>
+      <Option name="trim_distance_start" type="QString" value="0"></Option>
+      <Option name="trim_distance_start_map_unit_scale" type="QString" value="3x:0,0,0,0,0,0"></Option>
+      <Option name="trim_distance_start_unit" type="QString" value="MM"></Option>
+      <Option name="tweak_dash_pattern_on_corners" type="QString" value="0"></Option>
+      <Option name="use_custom_dash" type="QString" value="1"></Option>
+      <Option name="width_map_unit_scale" type="QString" value="3x:0,0,0,0,0,0"></Option>
+     </Option>
+     <prop k="align_dash_pattern" v="0"></prop>
+     <prop k="capstyle" v="flat"></prop>
+     <prop k="customdash" v="1.8;0.9"></prop>
+     <prop k="customdash_map_unit_scale" v="3x:0,0,0,0,0,0"></prop>
+     <prop k="customdash_unit" v="MM"></prop>
+     <prop k="dash_pattern_offset" v="0"></prop>
+     <prop k="dash_pattern_offset_map_unit_scale" v="3x:0,0,0,0,0,0"></prop>
+     <prop k="dash_pattern_offset_unit" v="MM"></prop>
+     <prop k="draw_inside_polygon" v="0"></prop>
+     <prop k="joinstyle" v="bevel"></prop>
+     <prop k="line_color" v="31,78,121,255"></prop>
+     <prop k="line_style" v="dash"></prop>
+     <prop k="line_width" v="0.45"></prop>
+     <prop k="line_width_unit" v="MM"></prop>
+     <prop k="offset" v="0"></prop>
+     <prop k="offset_map_unit_scale" v="3x:0,0,0,0,0,0"></prop>
+     <prop k="offset_unit" v="MM"></prop>
+     <prop k="ring_filter" v="0"></prop>
+     <prop k="trim_distance_end" v="0"></prop>
+     <prop k="trim_distance_end_map_unit_scale" v="3x:0,0,0,0,0,0"></prop>
+     <prop k="trim_distance_end_unit" v="MM"></prop>
+     <prop k="trim_distance_start" v="0"></prop>
+     <prop k="trim_distance_start_map_unit_scale" v="3x:0,0,0,0,0,0"></prop>
+     <prop k="trim_distance_start_unit" v="MM"></prop>
+     <prop k="tweak_dash_pattern_on_corners" v="0"></prop>
+     <prop k="use_custom_dash" v="1"></prop>
+     <prop k="width_map_unit_scale" v="3x:0,0,0,0,0,0"></prop>
+     <data_defined_properties>
+      <Option type="Map">
+       <Option name="name" type="QString" value=""></Option>
+       <Option name="properties"></Option>
+       <Option name="type" type="QString" value="collection"></Option>
+      </Option>
+     </data_defined_properties>
+    </layer>
+   </symbol>
+   <symbol alpha="1" clip_to_extent="1" force_rhr="0" name="1" type="line">
+    <data_defined_properties>
+     <Option type="Map">
+      <Option name="name" type="QString" value=""></Option>
+      <Option name="properties"></Option>
+      <Option name="type" type="QString" value="collection"></Option>
+     </Option>
+    </data_defined_properties>
+    <layer class="SimpleLine" enabled="1" locked="0" pass="0">
+     <Option type="Map">
+      <Option name="align_dash_pattern" type="QString" value="0"></Option>
+      <Option name="capstyle" type="QString" value="round"></Option>
+      <Option name="customdash" type="QString" value="5;2"></Option>
+      <Option name="customdash_map_unit_scale" type="QString" value="3x:0,0,0,0,0,0"></Option>
+      <Option name="customdash_unit" type="QString" value="MM"></Option>
+      <Option name="dash_pattern_offset" type="QString" value="0"></Option>
+      <Option name="dash_pattern_offset_map_unit_scale" type="QString" value="3x:0,0,0,0,0,0"></Option>
+      <Option name="dash_pattern_offset_unit" type="QString" value="MM"></Option>
+      <Option name="draw_inside_polygon" type="QString" value="0"></Option>
+      <Option name="joinstyle" type="QString" value="bevel"></Option>
+      <Option name="line_color" type="QString" value="31,78,121,255"></Option>
+      <Option name="line_style" type="QString" value="solid"></Option>
+      <Option name="line_width" type="QString" value="0.45"></Option>
+      <Option name="line_width_unit" type="QString" value="MM"></Option>
+      <Option name="offset" type="QString" value="0"></Option>
+      <Option name="offset_map_unit_scale" type="QString" value="3x:0,0,0,0,0,0"></Option>
+      <Option name="offset_unit" type="QString" value="MM"></Option>
+      <Option name="ring_filter" type="QString" value="0"></Option>
+      <Option name="trim_distance_end" type="QString" value="0"></Option>
+      <Option name="trim_distance_end_map_unit_scale" type="QString" value="3x:0,0,0,0,0,0"></Option>
+      <Option name="trim_distance_end_unit" type="QString" value="MM"></Option>
+      <Option name="trim_distance_start" type="QString" value="0"></Option>
+      <Option name="trim_distance_start_map_unit_scale" type="QString" value="3x:0,0,0,0,0,0"></Option>
+      <Option name="trim_distance_start_unit" type="QString" value="MM"></Option>
+      <Option name="tweak_dash_pattern_on_corners" type="QString" value="0"></Option>
+      <Option name="use_custom_dash" type="QString" value="0"></Option>
+      <Option name="width_map_unit_scale" type="QString" value="3x:0,0,0,0,0,0"></Option>
+     </Option>
+     <prop k="align_dash_pattern" v="0"></prop>
+     <prop k="capstyle" v="round"></prop>
+     <prop k="customdash" v="5;2"></prop>
+     <prop k="customdash_map_unit_scale" v="3x:0,0,0,0,0,0"></prop>
+     <prop k="customdash_unit" v="MM"></prop>
+     <prop k="dash_pattern_offset" v="0"></prop>
+     <prop k="dash_pattern_offset_map_unit_scale" v="3x:0,0,0,0,0,0"></prop>
+     <prop k="dash_pattern_offset_unit" v="MM"></prop>
+     <prop k="draw_inside_polygon" v="0"></prop>
+     <prop k="joinstyle" v="bevel"></prop>
+     <prop k="line_color" v="31,78,121,255"></prop>
+     <prop k="line_style" v="solid"></prop>
+     <prop k="line_width" v="0.45"></prop>
+     <prop k="line_width_unit" v="MM"></prop>
+     <prop k="offset" v="0"></prop>
+     <prop k="offset_map_unit_scale" v="3x:0,0,0,0,0,0"></prop>
+     <prop k="offset_unit" v="MM"></prop>
+     <prop k="ring_filter" v="0"></prop>
+     <prop k="trim_distance_end" v="0"></prop>
+     <prop k="trim_distance_end_map_unit_scale" v="3x:0,0,0,0,0,0"></prop>
+     <prop k="trim_distance_end_unit" v="MM"></prop>
+     <prop k="trim_distance_start" v="0"></prop>
+     <prop k="trim_distance_start_map_unit_scale" v="3x:0,0,0,0,0,0"></prop>
+     <prop k="trim_distance_start_unit" v="MM"></prop>
+     <prop k="tweak_dash_pattern_on_corners" v="0"></prop>
+     <prop k="use_custom_dash" v="0"></prop>
+     <prop k="width_map_unit_scale" v="3x:0,0,0,0,0,0"></prop>
+     <data_defined_properties>
+      <Option type="Map">
+       <Option name="name" type="QString" value=""></Option>
+       <Option name="properties"></Option>
+       <Option name="type" type="QString" value="collection"></Option>
+      </Option>
+     </data_defined_properties>
+    </layer>
+   </symbol>
+  </symbols>
+ </renderer-v2>
+ <labeling type="simple">
+  <settings calloutType="simple">
+   <text-style allowHtml="0" blendMode="0" capitalization="0" fieldName="round(&quot;elevation_m&quot;)" fontFamily="DejaVu LGC Sans" fontItalic="0" fontKerning="1" fontLetterSpacing="0" fontSize="8" fontSizeMapUnitScale="3x:0,0,0,0,0,0" fontSizeUnit="Point" fontStrikeout="0" fontUnderline="0" fontWeight="50" fontWordSpacing="0" isExpression="1" legendString="Aa" multilineHeight="1" namedStyle="" previewBkgrdColor="255,255,255,255" textColor="31,78,121,255" textOpacity="1" textOrientation="horizontal" useSubstitutions="0">
+    <families></families>
+    <text-buffer bufferBlendMode="0" bufferColor="255,255,255,255" bufferDraw="1" bufferJoinStyle="128" bufferNoFill="1" bufferOpacity="1" bufferSize="0.80000000000000004" bufferSizeMapUnitScale="3x:0,0,0,0,0,0" bufferSizeUnits="MM"></text-buffer>
+    <text-mask maskEnabled="0" maskJoinStyle="128" maskOpacity="1" maskSize="1.5" maskSizeMapUnitScale="3x:0,0,0,0,0,0" maskSizeUnits="MM" maskType="0" maskedSymbolLayers=""></text-mask>
+    <background shapeBlendMode="0" shapeBorderColor="128,128,128,255" shapeBorderWidth="0" shapeBorderWidthMapUnitScale="3x:0,0,0,0,0,0" shapeBorderWidthUnit="MM" shapeDraw="0" shapeFillColor="255,255,255,255" shapeJoinStyle="64" shapeOffsetMapUnitScale="3x:0,0,0,0,0,0" shapeOffsetUnit="MM" shapeOffsetX="0" shapeOffsetY="0" shapeOpacity="1" shapeRadiiMapUnitScale="3x:0,0,0,0,0,0" shapeRadiiUnit="MM" shapeRadiiX="0" shapeRadiiY="0" shapeRotation="0" shapeRotationType="0" shapeSVGFile="" shapeSizeMapUnitScale="3x:0,0,0,0,0,0" shapeSizeType="0" shapeSizeUnit="MM" shapeSizeX="0" shapeSizeY="0" shapeType="0">
+     <symbol alpha="1" clip_to_extent="1" force_rhr="0" name="fillSymbol" type="fill">
+      <data_defined_properties>
+       <Option type="Map">
+        <Option name="name" type="QString" value=""></Option>
+        <Option name="properties"></Option>
+        <Option name="type" type="QString" value="collection"></Option>
+       </Option>
+      </data_defined_properties>
+      <layer class="SimpleFill" enabled="1" locked="0" pass="0">
+       <Option type="Map">
+        <Option name="border_width_map_unit_scale" type="QString" value="3x:0,0,0,0,0,0"></Option>
+        <Option name="color" type="QString" value="255,255,255,255"></Option>
+        <Option name="joinstyle" type="QString" value="bevel"></Option>
+        <Option name="offset" type="QString" value="0,0"></Option>
+        <Option name="offset_map_unit_scale" type="QString" value="3x:0,0,0,0,0,0"></Option>
+        <Option name="offset_unit" type="QString" value="MM"></Option>
+        <Option name="outline_color" type="QString" value="128,128,128,255"></Option>
+        <Option name="outline_style" type="QString" value="no"></Option>
+        <Option name="outline_width" type="QString" value="0"></Option>
+        <Option name="outline_width_unit" type="QString" value="MM"></Option>
+        <Option name="style" type="QString" value="solid"></Option>
+       </Option>
+       <prop k="border_width_map_unit_scale" v="3x:0,0,0,0,0,0"></prop>
+       <prop k="color" v="255,255,255,255"></prop>
+       <prop k="joinstyle" v="bevel"></prop>
+       <prop k="offset" v="0,0"></prop>
+       <prop k="offset_map_unit_scale" v="3x:0,0,0,0,0,0"></prop>
+       <prop k="offset_unit" v="MM"></prop>
+       <prop k="outline_color" v="128,128,128,255"></prop>
+       <prop k="outline_style" v="no"></prop>
+       <prop k="outline_width" v="0"></prop>
+       <prop k="outline_width_unit" v="MM"></prop>
+       <prop k="style" v="solid"></prop>
+       <data_defined_properties>
+        <Option type="Map">
+         <Option name="name" type="QString" value=""></Option>
+         <Option name="properties"></Option>
+         <Option name="type" type="QString" value="collection"></Option>
+        </Option>
+       </data_defined_properties>
+      </layer>
+     </symbol>
+    </background>
+    <shadow shadowBlendMode="6" shadowColor="0,0,0,255" shadowDraw="0" shadowOffsetAngle="135" shadowOffsetDist="1" shadowOffsetGlobal="1" shadowOffsetMapUnitScale="3x:0,0,0,0,0,0" shadowOffsetUnit="MM" shadowOpacity="0.69999999999999996" shadowRadius="1.5" shadowRadiusAlphaOnly="0" shadowRadiusMapUnitScale="3x:0,0,0,0,0,0" shadowRadiusUnit="MM" shadowScale="100" shadowUnder="0"></shadow>
+    <dd_properties>
+     <Option type="Map">
+      <Option name="name" type="QString" value=""></Option>
+      <Option name="properties"></Option>
+      <Option name="type" type="QString" value="collection"></Option>
+     </Option>
+    </dd_properties>
+    <substitutions></substitutions>
+   </text-style>
+   <text-format addDirectionSymbol="0" autoWrapLength="0" decimals="3" formatNumbers="0" leftDirectionSymbol="&lt;" multilineAlign="3" placeDirectionSymbol="0" plussign="0" reverseDirectionSymbol="0" rightDirectionSymbol=">" useMaxLineLengthForAutoWrap="1" wrapChar=""></text-format>
+   <placement centroidInside="0" centroidWhole="0" dist="0" distMapUnitScale="3x:0,0,0,0,0,0" distUnits="MM" fitInPolygonOnly="0" geometryGenerator="" geometryGeneratorEnabled="0" geometryGeneratorType="PointGeometry" labelOffsetMapUnitScale="3x:0,0,0,0,0,0" layerType="UnknownGeometry" lineAnchorClipping="0" lineAnchorPercent="0.5" lineAnchorType="0" maxCurvedCharAngleIn="25" maxCurvedCharAngleOut="-25" offsetType="0" offsetUnits="MM" overrunDistance="0" overrunDistanceMapUnitScale="3x:0,0,0,0,0,0" overrunDistanceUnit="MM" placement="2" placementFlags="10" polygonPlacementFlags="2" predefinedPositionOrder="TR,TL,BR,BL,R,L,TSR,BSR" preserveRotation="1" priority="5" quadOffset="4" repeatDistance="0" repeatDistanceMapUnitScale="3x:0,0,0,0,0,0" repeatDistanceUnits="MM" rotationAngle="0" rotationUnit="AngleDegrees" xOffset="0" yOffset="0"></placement>
+   <rendering displayAll="0" drawLabels="1" fontLimitPixelSize="0" fontMaxPixelSize="10000" fontMinPixelSize="0" labelPerPart="0" limitNumLabels="0" maxNumLabels="2000" mergeLines="0" minFeatureSize="0" obstacle="1" obstacleFactor="1" obstacleType="1" scaleMax="0" scaleMin="0" scaleVisibility="0" unplacedVisibility="0" upsidedownLabels="0" zIndex="0"></rendering>
+   <dd_properties>
+    <Option type="Map">
+     <Option name="name" type="QString" value=""></Option>
+     <Option name="properties"></Option>
+     <Option name="type" type="QString" value="collection"></Option>
+    </Option>
+   </dd_properties>
+   <callout type="simple">
+    <Option type="Map">
+     <Option name="anchorPoint" type="QString" value="pole_of_inaccessibility"></Option>
+     <Option name="blendMode" type="int" value="0"></Option>
+     <Option name="ddProperties" type="Map">
+      <Option name="name" type="QString" value=""></Option>
+      <Option name="properties"></Option>
+      <Option name="type" type="QString" value="collection"></Option>
+     </Option>
+     <Option name="drawToAllParts" type="bool" value="false"></Option>
+     <Option name="enabled" type="QString" value="0"></Option>
+     <Option name="labelAnchorPoint" type="QString" value="point_on_exterior"></Option>
+     <Option name="lineSymbol" type="QString" value="&lt;symbol alpha=&quot;1&quot; clip_to_extent=&quot;1&quot; force_rhr=&quot;0&quot; name=&quot;symbol&quot; type=&quot;line&quot;>&lt;data_defined_properties>&lt;Option type=&quot;Map&quot;>&lt;Option name=&quot;name&quot; type=&quot;QString&quot; value=&quot;&quot;>&lt;/Option>&lt;Option name=&quot;properties&quot;>&lt;/Option>&lt;Option name=&quot;type&quot; type=&quot;QString&quot; value=&quot;collection&quot;>&lt;/Option>&lt;/Option>&lt;/data_defined_properties>&lt;layer class=&quot;SimpleLine&quot; enabled=&quot;1&quot; locked=&quot;0&quot; pass=&quot;0&quot;>&lt;Option type=&quot;Map&quot;>&lt;Option name=&quot;align_dash_pattern&quot; type=&quot;QString&quot; value=&quot;0&quot;>&lt;/Option>&lt;Option name=&quot;capstyle&quot; type=&quot;QString&quot; value=&quot;square&quot;>&lt;/Option>&lt;Option name=&quot;customdash&quot; type=&quot;QString&quot; value=&quot;5;2&quot;>&lt;/Option>&lt;Option name=&quot;customdash_map_unit_scale&quot; type=&quot;QString&quot; value=&quot;3x:0,0,0,0,0,0&quot;>&lt;/Option>&lt;Option name=&quot;customdash_unit&quot; type=&quot;QString&quot; value=&quot;MM&quot;>&lt;/Option>&lt;Option name=&quot;dash_pattern_offset&quot; type=&quot;QString&quot; value=&quot;0&quot;>&lt;/Option>&lt;Option name=&quot;dash_pattern_offset_map_unit_scale&quot; type=&quot;QString&quot; value=&quot;3x:0,0,0,0,0,0&quot;>&lt;/Option>&lt;Option name=&quot;dash_pattern_offset_unit&quot; type=&quot;QString&quot; value=&quot;MM&quot;>&lt;/Option>&lt;Option name=&quot;draw_inside_polygon&quot; type=&quot;QString&quot; value=&quot;0&quot;>&lt;/Option>&lt;Option name=&quot;joinstyle&quot; type=&quot;QString&quot; value=&quot;bevel&quot;>&lt;/Option>&lt;Option name=&quot;line_color&quot; type=&quot;QString&quot; value=&quot;60,60,60,255&quot;>&lt;/Option>&lt;Option name=&quot;line_style&quot; type=&quot;QString&quot; value=&quot;solid&quot;>&lt;/Option>&lt;Option name=&quot;line_width&quot; type=&quot;QString&quot; value=&quot;0.3&quot;>&lt;/Option>&lt;Option name=&quot;line_width_unit&quot; type=&quot;QString&quot; value=&quot;MM&quot;>&lt;/Option>&lt;Option name=&quot;offset&quot; type=&quot;QString&quot; value=&quot;0&quot;>&lt;/Option>&lt;Option name=&quot;offset_map_unit_scale&quot; type=&quot;QString&quot; value=&quot;3x:0,0,0,0,0,0&quot;>&lt;/Option>&lt;Option name=&quot;offset_unit&quot; type=&quot;QString&quot; value=&quot;MM&quot;>&lt;/Option>&lt;Option name=&quot;ring_filter&quot; type=&quot;QString&quot; value=&quot;0&quot;>&lt;/Option>&lt;Option name=&quot;trim_distance_end&quot; type=&quot;QString&quot; value=&quot;0&quot;>&lt;/Option>&lt;Option name=&quot;trim_distance_end_map_unit_scale&quot; type=&quot;QString&quot; value=&quot;3x:0,0,0,0,0,0&quot;>&lt;/Option>&lt;Option name=&quot;trim_distance_end_unit&quot; type=&quot;QString&quot; value=&quot;MM&quot;>&lt;/Option>&lt;Option name=&quot;trim_distance_start&quot; type=&quot;QString&quot; value=&quot;0&quot;>&lt;/Option>&lt;Option name=&quot;trim_distance_start_map_unit_scale&quot; type=&quot;QString&quot; value=&quot;3x:0,0,0,0,0,0&quot;>&lt;/Option>&lt;Option name=&quot;trim_distance_start_unit&quot; type=&quot;QString&quot; value=&quot;MM&quot;>&lt;/Option>&lt;Option name=&quot;tweak_dash_pattern_on_corners&quot; type=&quot;QString&quot; value=&quot;0&quot;>&lt;/Option>&lt;Option name=&quot;use_custom_dash&quot; type=&quot;QString&quot; value=&quot;0&quot;>&lt;/Option>&lt;Option name=&quot;width_map_unit_scale&quot; type=&quot;QString&quot; value=&quot;3x:0,0,0,0,0,0&quot;>&lt;/Option>&lt;/Option>&lt;prop k=&quot;align_dash_pattern&quot; v=&quot;0&quot;>&lt;/prop>&lt;prop k=&quot;capstyle&quot; v=&quot;square&quot;>&lt;/prop>&lt;prop k=&quot;customdash&quot; v=&quot;5;2&quot;>&lt;/prop>&lt;prop k=&quot;customdash_map_unit_scale&quot; v=&quot;3x:0,0,0,0,0,0&quot;>&lt;/prop>&lt;prop k=&quot;customdash_unit&quot; v=&quot;MM&quot;>&lt;/prop>&lt;prop k=&quot;dash_pattern_offset&quot; v=&quot;0&quot;>&lt;/prop>&lt;prop k=&quot;dash_pattern_offset_map_unit_scale&quot; v=&quot;3x:0,0,0,0,0,0&quot;>&lt;/prop>&lt;prop k=&quot;dash_pattern_offset_unit&quot; v=&quot;MM&quot;>&lt;/prop>&lt;prop k=&quot;draw_inside_polygon&quot; v=&quot;0&quot;>&lt;/prop>&lt;prop k=&quot;joinstyle&quot; v=&quot;bevel&quot;>&lt;/prop>&lt;prop k=&quot;line_color&quot; v=&quot;60,60,60,255&quot;>&lt;/prop>&lt;prop k=&quot;line_style&quot; v=&quot;solid&quot;>&lt;/prop>&lt;prop k=&quot;line_width&quot; v=&quot;0.3&quot;>&lt;/prop>&lt;prop k=&quot;line_width_unit&quot; v=&quot;MM&quot;>&lt;/prop>&lt;prop k=&quot;offset&quot; v=&quot;0&quot;>&lt;/prop>&lt;prop k=&quot;offset_map_unit_scale&quot; v=&quot;3x:0,0,0,0,0,0&quot;>&lt;/prop>&lt;prop k=&quot;offset_unit&quot; v=&quot;MM&quot;>&lt;/prop>&lt;prop k=&quot;ring_filter&quot; v=&quot;0&quot;>&lt;/prop>&lt;prop k=&quot;trim_distance_end&quot; v=&quot;0&quot;>&lt;/prop>&lt;prop k=&quot;trim_distance_end_map_unit_scale&quot; v=&quot;3x:0,0,0,0,0,0&quot;>&lt;/prop>&lt;prop k=&quot;trim_distance_end_unit&quot; v=&quot;MM&quot;>&lt;/prop>&lt;prop k=&quot;trim_distance_start&quot; v=&quot;0&quot;>&lt;/prop>&lt;prop k=&quot;trim_distance_start_map_unit_scale&quot; v=&quot;3x:0,0,0,0,0,0&quot;>&lt;/prop>&lt;prop k=&quot;trim_distance_start_unit&quot; v=&quot;MM&quot;>&lt;/prop>&lt;prop k=&quot;tweak_dash_pattern_on_corners&quot; v=&quot;0&quot;>&lt;/prop>&lt;prop k=&quot;use_custom_dash&quot; v=&quot;0&quot;>&lt;/prop>&lt;prop k=&quot;width_map_unit_scale&quot; v=&quot;3x:0,0,0,0,0,0&quot;>&lt;/prop>&lt;data_defined_properties>&lt;Option type=&quot;Map&quot;>&lt;Option name=&quot;name&quot; type=&quot;QString&quot; value=&quot;&quot;>&lt;/Option>&lt;Option name=&quot;properties&quot;>&lt;/Option>&lt;Option name=&quot;type&quot; type=&quot;QString&quot; value=&quot;collection&quot;>&lt;/Option>&lt;/Option>&lt;/data_defined_properties>&lt;/layer>&lt;/symbol>"></Option>
+     <Option name="minLength" type="double" value="0"></Option>
+     <Option name="minLengthMapUnitScale" type="QString" value="3x:0,0,0,0,0,0"></Option>
+     <Option name="minLengthUnit" type="QString" value="MM"></Option>
+     <Option name="offsetFromAnchor" type="double" value="0"></Option>
+     <Option name="offsetFromAnchorMapUnitScale" type="QString" value="3x:0,0,0,0,0,0"></Option>
+     <Option name="offsetFromAnchorUnit" type="QString" value="MM"></Option>
+     <Option name="offsetFromLabel" type="double" value="0"></Option>
+     <Option name="offsetFromLabelMapUnitScale" type="QString" value="3x:0,0,0,0,0,0"></Option>
+     <Option name="offsetFromLabelUnit" type="QString" value="MM"></Option>
+    </Option>
+   </callout>
+  </settings>
+ </labeling>
+ <blendMode>0</blendMode>
+ <featureBlendMode>0</featureBlendMode>
+ <layerOpacity>1</layerOpacity>
+ <layerGeometryType>1</layerGeometryType>
+</qgis>
