@@ -35,6 +35,13 @@ def memory_budget_bytes() -> int:
     return FALLBACK_BUDGET_BYTES if phys is None else int(phys * MEMORY_SHARE)
 
 
+def budget_words() -> str:
+    """The memory budget and its basis, for messages: ``'11.8 GiB (half the machine's memory)'``."""
+    basis = ("half the machine's memory" if physical_memory_bytes() is not None
+             else "the fixed budget used where the machine's memory cannot be read")
+    return f"{size_words(memory_budget_bytes())} ({basis})"
+
+
 def size_words(n_bytes: float) -> str:
     """A byte count in words: ``'3.2 GiB'``, ``'800 MiB'``, ``'2.1e+04 GiB'``."""
     gib = n_bytes / 2**30

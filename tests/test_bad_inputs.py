@@ -173,6 +173,14 @@ def _dem_variant(folder, name, fn, **kw):
     return write_raster(folder / name, fn(a, a == nd), **kw)
 
 
+def _huge_vrt(folder):
+    """A VRT that presents the demo DEM as 300,000 x 300,000 cells (nothing is read to make it)."""
+    path = str(folder / "huge.vrt")
+    with _exceptions():
+        gdal.Translate(path, str(DEM), format="VRT", width=300000, height=300000)
+    return path
+
+
 def _with_sentinel(value, dtype):
     def fn(a, holes):
         out = a.copy()
@@ -364,6 +372,8 @@ CASES = [
     Case("dem-palette", lambda d: _args(CONTACTS, _dem_variant(d, "classes.tif", lambda a, h: np.clip(a, 0, 900),
                                                                 dtype=gdal.GDT_UInt16, palette=True)),
          ("classes.tif", "colour table", "single band of elevations")),
+    Case("dem-too-large-to-read", lambda d: _args(CONTACTS, _huge_vrt(d)),
+         ("huge.vrt", "300000 x 300000 cells", "memory budget", "gdalwarp -te")),
     Case("dem-all-nodata", lambda d: _args(CONTACTS, _dem_variant(d, "void.tif", lambda a, h: np.full(a.shape, -1.0),
                                                                    nodata=-1.0)),
          ("void.tif", "no valid cell")),

@@ -10,7 +10,7 @@ import os
 import numpy as np
 from osgeo import gdal
 
-from strikeline.budget import memory_budget_bytes, size_words
+from strikeline.budget import budget_words, memory_budget_bytes, size_words
 from strikeline.errors import InputError, OutputError, RasterReadError
 from strikeline.geometry.grid import Grid
 from strikeline.io._gdal import gdal_exceptions, gdal_message, quiet_close
@@ -68,9 +68,8 @@ def read_raster(path, *, label: str = "raster", band: int = 1) -> tuple[np.ndarr
             if need > memory_budget_bytes():
                 raise InputError(
                     f"{what} has {shape[1]} x {shape[0]} cells, which need about {size_words(need)} to read, "
-                    f"more than this run's memory budget of {size_words(memory_budget_bytes())} (half the "
-                    "machine's memory); clip it to the area of the contacts (gdalwarp -te) or coarsen it "
-                    "(gdalwarp -tr)"
+                    f"more than this run's memory budget of {budget_words()}; clip it to the area of the "
+                    "contacts (gdalwarp -te) or coarsen it (gdalwarp -tr)"
                 )
             try:
                 arr = b.ReadAsArray().astype(np.float64)

@@ -20,7 +20,7 @@ import numpy as np
 import shapely
 
 from strikeline.attitude import DEFAULT_WINDOW_RESAMPLES
-from strikeline.budget import memory_budget_bytes, size_words
+from strikeline.budget import budget_words, memory_budget_bytes, size_words
 from strikeline.errors import InputError
 from strikeline.pipeline.option_table import CLI_OPTION_NAMES
 
@@ -74,7 +74,7 @@ class Estimate:
     def message(self) -> str:
         if self.unit == "bytes":
             need = (f"which need about {size_words(self.need)}, more than this run's memory budget of "
-                    f"{size_words(self.limit)} (half the machine's memory)")
+                    f"{budget_words()}")
         else:
             need = f"more than the limit of {self.limit:g} {self.unit}"
         return f"{self.option}: about {self.count:.3g} {self.what}, {need}; {self.fix}"
