@@ -13,6 +13,7 @@ from typing import NamedTuple
 from strikeline.errors import InputError
 from strikeline.pipeline.points import point_values, point_xyz
 from strikeline.pipeline import Inputs, RunOptions, assemble_inputs, option, reproject_to
+from strikeline.pipeline.inputs import input_record
 
 from .layers import raster_path, read_raster_layer, read_vector, vector_name
 from .params import option_names, parameter, values  # noqa: F401 - tools import option_names from here
@@ -152,8 +153,32 @@ def read_contact_inputs(alg, parameters, context, steps, *, more: dict | None = 
     if dem_path:
         paths["dem"] = dem_path
     inputs = assemble_inputs(contacts, opts, dem=dem, dem_grid=grid, paths=paths, log=steps.log,
+                             records=input_records(opts, contacts, layers, dem_path),
                              names=option_names(alg), **layers)
     return inputs, opts
+
+
+def input_records(opts: RunOptions, contacts, layers: dict, dem_path) -> dict:
+    """summary.json's ``inputs``: every input by role with its path, layer and the fields used,
+    as :func:`strikeline.pipeline.load_inputs` records the command line's (the contacts and top
+    contacts as lists, one record per input)."""
+    fields = {
+        "contours": {"elev_field": opts.elev_field},
+        "boreholes": {"borehole_z_field": opts.borehole_z_field, "borehole_collar_field": opts.borehole_collar_field,
+                      "borehole_depth_field": opts.borehole_depth_field},
+        "orientations": {"dip_field": opts.dip_field, "strike_field": opts.strike_field,
+                         "dip_direction_field": None if opts.strike_field else (opts.dip_direction_field or "dip_dir")},
+        "map_units": {"unit_field": opts.unit_field},
+    }
+    records = {"contacts": [input_record(contacts.path, layer=contacts.layer_name, fields={"group_by": opts.group_by})]}
+    if dem_path:
+        records["dem"] = input_record(dem_path)
+    for role, lyr in layers.items():
+        if lyr is None:
+            continue
+        record = input_record(lyr.path, layer=lyr.layer_name, fields=fields.get(role))
+        records[role] = [record] if role == "top_contacts" else record
+    return records
 
 
 def to_dem_crs(layer, dem_grid, *, label, log):
