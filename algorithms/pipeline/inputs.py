@@ -115,15 +115,21 @@ def join_layers(layers: list, *, label: str) -> tuple[VectorLayer, ContactSource
         fids.append(f)
         names.append(f"{lyr.path}:{lyr.layer_name}")
     fields, types = {}, {}
-    for name in dict.fromkeys(n for lyr in layers for n in lyr.fields):
-        cols = []
+    # one field per name regardless of case (GeoPackage columns are case-insensitive): the first spelling
+    spelling = {}
+    for n in (n for lyr in layers for n in lyr.fields):
+        spelling.setdefault(n.lower(), n)
+    for key, name in spelling.items():
+        cols, kinds = [], []
         for lyr in layers:
-            if name in lyr.fields:
-                cols.append(np.asarray(lyr.fields[name], dtype=object))
+            own = next((n for n in lyr.fields if n.lower() == key), None)
+            if own is not None:
+                cols.append(np.asarray(lyr.fields[own], dtype=object))
+                kinds.append(lyr.field_types[own])
             else:
                 cols.append(np.full(len(lyr), None, dtype=object))
         fields[name] = np.concatenate(cols) if cols else np.empty(0, dtype=object)
-        types[name] = _joined_type([lyr.field_types[name] for lyr in layers if name in lyr.field_types])
+        types[name] = _joined_type(kinds)
     contact_id = np.concatenate(ids)
     sources = ContactSources(contact_id, np.concatenate(index), np.concatenate(fids), tuple(names), fields, types)
     if len(layers) == 1:

@@ -21,6 +21,7 @@ from strikeline.cli.main import build_parser
 from strikeline.cli.run import options_from_args
 from strikeline.errors import InputError
 from strikeline.io.vector import read_layer, write_gpkg
+from strikeline.picks import PickSet
 from strikeline.pipeline import RunOptions, collect_picks, load_inputs
 from strikeline.pipeline.inputs import layer_specs, split_layer_spec
 from strikeline.pipeline.outputs import picks_layer
@@ -149,13 +150,19 @@ def test_where_filters_every_input_and_the_layer_option_names_the_unnamed(tmp_pa
 def test_fields_of_different_inputs_are_joined(tmp_path):
     line = [shapely.LineString([(489000.0, 5214000), (489200.0, 5214300)])]
     a = write_lines(tmp_path / "a.gpkg", line, epsg=32631, fields={"unit": ["Kv"], "age_ma": [70.0]})
-    b = write_lines(tmp_path / "b.gpkg", line, epsg=32631, fields={"unit": ["Kl"], "mapper": ["tv"]})
+    b = write_lines(tmp_path / "b.gpkg", line, epsg=32631, fields={"UNIT": ["Kl"], "mapper": ["tv"]})
     src = load_inputs(_opts([a, b], tmp_path)).contact_sources
     assert list(src.attributes) == ["unit", "age_ma", "mapper"]
     assert src.attributes["age_ma"].tolist() == [70.0, None] and src.attributes["mapper"].tolist() == [None, "tv"]
     cols = src.columns(np.array([2, 1, 99]), prefix=V.CONTACT_ATTRIBUTE_PREFIX)
     assert cols["contact_input"].tolist() == [1, 0, -1] and cols["attr_unit"].tolist() == ["Kl", "Kv", None]
     assert np.isnan(cols["attr_age_ma"][0]) and cols["attr_age_ma"][1] == 70.0
+    # 'unit' and 'UNIT' are one column: a GeoPackage's column names ignore case (SQLite), so both
+    # could not be written (Source: SQLite documentation, identifiers are case-insensitive)
+    gpkg = tmp_path / "joined.gpkg"
+    write_gpkg(gpkg, [picks_layer(V.PICKS.name, PickSet(np.array([[489000.0, 5214000.0, 1.0]] * 2), [1, 2],
+                                                         ["dem", "dem"]), src)], "")
+    assert [r["attr_unit"] for r in _read_layer_table(gpkg, V.PICKS.name)] == ["Kv", "Kl"]  # read back by OGR
 
 
 # --------------------------------------------------------------------------- written layers
