@@ -566,3 +566,31 @@ def test_an_undeclared_marker_in_memory_is_refused_too(value):
     # declared, the same cell is nodata: read as NaN, the rest kept
     arr, _ = raster_from_array(a, Grid(grid.transform, grid.shape, grid.crs_wkt, value), what="DEM 'x'")
     assert np.isnan(arr[0, 0]) and np.count_nonzero(np.isfinite(arr)) == 15
+
+
+def test_the_workload_estimates_count_what_the_chain_makes():
+    from types import SimpleNamespace
+
+    from strikeline.geometry.grid import Grid
+    from strikeline.pipeline.workload import MAX_CONTOUR_LEVELS, estimate_workload
+
+    # one straight contact 1,000 m long (2 vertices) on a 100 x 200 DEM of 5 m cells, relief 0-300 m
+    class Layer(SimpleNamespace):
+        def __len__(self):
+            return len(self.geoms)
+
+    contact = Layer(geoms=np.array([shapely.LineString([(0, 0), (600, 800)])], dtype=object))
+    dem = np.linspace(0.0, 300.0, 100 * 200).reshape(100, 200)
+    grid = Grid((0.0, 5.0, 0.0, 1000.0, 0.0, -5.0), (100, 200))
+    inputs = SimpleNamespace(contacts=contact, top_contacts=None, dem=dem, dem_grid=grid, paths={"dem": "d.tif"},
+                             contours=None, contour_elevations_m=None, boreholes_xyz=None)
+    opts = SimpleNamespace(cell_m=None, pick_spacing_m=2.0, window_m=100.0, interval_m=0.1, resamples=1000)
+    est = {e.option: e for e in estimate_workload(inputs, opts)}
+    # Reference: arithmetic on the figures above (length sqrt(600^2 + 800^2) = 1000 m, a 3-4-5 triangle)
+    assert est["DEM 'd.tif'"].count == 100 * 200
+    assert est["--pick-spacing"].count == pytest.approx(1000.0 / 2.0 + 2)
+    # windows: 1000/100 along the contact + 1 per contact; grid centres (600/100 + 1) x (800/100 + 1)
+    assert est["--window"].count == pytest.approx(1000.0 / 100.0 + 1 + 7 * 9)
+    levels = [e for e in estimate_workload(inputs, opts) if e.option == "--interval"][0]
+    assert levels.count == pytest.approx(300.0 / 0.1 + 1) and levels.exceeded and levels.limit == MAX_CONTOUR_LEVELS
+    assert not est["DEM 'd.tif'"].exceeded and not est["--pick-spacing"].exceeded

@@ -24,10 +24,10 @@ from strikeline.budget import budget_words, memory_budget_bytes, size_words
 from strikeline.errors import InputError
 from strikeline.pipeline.option_table import CLI_OPTION_NAMES
 
-#: Bytes of the chain's arrays per cell of the output grid. Measured: 42 bytes per cell more for
-#: each further cell (peak resident memory, plane model, the demo sheet's DEM resampled to 1.4 M and
-#: 5.8 M cells); 200 allows for the spline's standard-error grids, the thickness grids and writing
-#: (our choice).
+#: Bytes of the chain's arrays per cell of the output grid. Measured: 42 (plane) and 47 (spline)
+#: bytes more for each further cell (peak resident memory of load_inputs and compute, the demo sheet's
+#: DEM resampled to 1.4 M and 5.8 M cells); 200 allows for the thickness grids, the map-unit checks
+#: and writing (our choice).
 BYTES_PER_CELL = 200
 #: Bytes per DEM pick (coordinates, source, contact, sigma, segment labels, k-d trees, windows'
 #: member lists). Measured: 4.0 kB more for each further pick (peak resident memory, plane model,
