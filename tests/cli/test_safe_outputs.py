@@ -228,20 +228,30 @@ def test_a_signal_mid_run_leaves_no_partial_output(tmp_path, sets, signum, statu
 
 
 # --------------------------------------------------------------------------- a full disk
-@pytest.fixture
-def small_disk(tmp_path):
-    """A 200 KiB tmpfs (needs root and permission to mount; skipped otherwise)."""
-    mnt = tmp_path / "small"
-    mnt.mkdir()
+def _mount_small(folder: Path, size: str):
+    folder.mkdir()
     # Source: mount(8), tmpfs(5) - a size-limited RAM file system answers ENOSPC when full
-    proc = subprocess.run(["mount", "-t", "tmpfs", "-o", "size=200k", "tmpfs", str(mnt)],
+    proc = subprocess.run(["mount", "-t", "tmpfs", "-o", f"size={size}", "tmpfs", str(folder)],
                           check=False, capture_output=True, text=True)
     if proc.returncode != 0:
         pytest.skip(f"cannot mount a small tmpfs for the disk-full test ({proc.stderr.strip() or 'not root'})")
     try:
-        yield mnt
+        yield folder
     finally:
-        subprocess.run(["umount", str(mnt)], check=False)
+        subprocess.run(["umount", str(folder)], check=False)
+
+
+@pytest.fixture
+def small_disk(tmp_path):
+    """A 200 KiB tmpfs (needs root and permission to mount; skipped otherwise)."""
+    yield from _mount_small(tmp_path / "small", "200k")
+
+
+@pytest.fixture
+def gpkg_short_disk(tmp_path):
+    """A 1200 KiB tmpfs: room for the GeoTIFFs of a run on the demo's contact and DEM (about
+    720 KiB, measured) but not for its 1.1 MB results.gpkg."""
+    yield from _mount_small(tmp_path / "short", "1200k")
 
 
 def test_a_full_disk_gives_one_line_and_keeps_the_old_results(tmp_path, small_disk, cli):
@@ -257,6 +267,21 @@ def test_a_full_disk_gives_one_line_and_keeps_the_old_results(tmp_path, small_di
     assert "free some space" in line and str(out) in line, line
     assert _complete_set(out) == old
     assert sorted(p.name for p in small_disk.iterdir()) == ["out"]
+
+
+def test_a_full_disk_at_the_geopackage_is_exit_2_not_results_written(tmp_path, gpkg_short_disk, cli):
+    old_top, old_base = _grids(tmp_path / "inputs", "old")
+    out = gpkg_short_disk / "out"
+    assert cli("thickness", "--grids", old_top, old_base, "--out", out).returncode == 0
+    old = _complete_set(out)
+    proc = cli("run", "--contacts", DEMO / "contacts.gpkg", "--dem", DEMO / "dem.tif", "--out", out, "--overwrite")
+    assert proc.returncode == 2, proc.stderr
+    line = _one_error_line(proc.stderr)
+    # Source: SQLite's own message for SQLITE_FULL, passed on by OGR
+    assert f"'{out / 'results.gpkg'}'" in line and "database or disk is full" in line, line
+    assert "results written" not in proc.stdout
+    assert _complete_set(out) == old
+    assert sorted(p.name for p in gpkg_short_disk.iterdir()) == ["out"]
 
 
 def test_a_geopackage_that_does_not_fit_is_an_error_and_leaves_nothing(small_disk):
