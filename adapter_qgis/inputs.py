@@ -9,11 +9,16 @@ from __future__ import annotations
 
 from typing import NamedTuple
 
-
 from strikeline.errors import InputError
-from strikeline.pipeline.points import point_values, point_xyz
-from strikeline.pipeline import Inputs, RunOptions, assemble_inputs, option, reproject_to
+from strikeline.pipeline import (
+    Inputs,
+    RunOptions,
+    assemble_inputs,
+    option,
+    reproject_to,
+)
 from strikeline.pipeline.inputs import input_record
+from strikeline.pipeline.points import point_values, point_xyz
 
 from .layers import raster_path, read_raster_layer, read_vector, vector_name
 from .params import option_names, parameter, values  # noqa: F401 - tools import option_names from here

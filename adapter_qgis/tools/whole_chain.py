@@ -9,19 +9,34 @@ from qgis.core import (
     QgsProcessingParameterFileDestination,
     QgsProcessingParameterRasterDestination,
 )
-
 from strikeline import pipeline as pl
 from strikeline import vocabulary as V
 from strikeline.io.files import write_json_atomic
 from strikeline.pipeline import compute
 
-from ..base import REF_FERNANDEZ, REF_GDAL_CONTOUR, REF_PRESS, REF_STR, REF_ZT, StrikelineAlgorithm
-from ..inputs import (CONSTRAINT_LAYERS, CONTACTS, MAP_UNIT_LAYERS, add_contact_and_topography, constraint_options,
-                      constraint_parameters, constraint_sigma_parameters, map_unit_options, map_unit_parameters,
-                      read_contact_inputs)
+from ..base import (
+    REF_FERNANDEZ,
+    REF_GDAL_CONTOUR,
+    REF_PRESS,
+    REF_STR,
+    REF_ZT,
+    StrikelineAlgorithm,
+)
+from ..inputs import (
+    CONSTRAINT_LAYERS,
+    CONTACTS,
+    MAP_UNIT_LAYERS,
+    add_contact_and_topography,
+    constraint_options,
+    constraint_parameters,
+    constraint_sigma_parameters,
+    map_unit_options,
+    map_unit_parameters,
+    read_contact_inputs,
+)
 from ..layers import qgis_crs
-from ..params import parameter, values
 from ..outputs import Table, add_outputs, write_raster, write_sink
+from ..params import parameter, values
 from ..styles import attach_style
 from .plane_attitude import NUMBERS, REF_EFRON, REF_WOODCOCK
 from .surface_model import REF_GCV, REF_SPLINE
@@ -123,11 +138,6 @@ class WholeChain(StrikelineAlgorithm):
         r = compute(inputs, opts, log=steps.log, progress=steps.part(0.05, 0.8), is_cancelled=steps.is_cancelled)
         s = r.summary
         plane = s["plane"]
-        toward = (f"toward {plane['dip_direction_deg']:.1f}° (strike {plane['strike_rhr_deg']:.1f}° RHR)"
-                  if plane.get("dip_direction_deg") is not None else
-                  "horizontal within its 95% confidence (no dip direction or strike)")
-        steps.log(f"best-fit plane: dip {plane['dip_deg']:.2f}° ± {plane['dip_ci95_deg'] or 0:.2f}° {toward}, quality "
-                  f"{plane['quality']}; surface model {s['model']['chosen']}")
         for line in report_lines(r):
             steps.log(line)
         steps.feedback.setProgress(85)
@@ -193,7 +203,8 @@ def report_lines(r) -> list[str]:
     by_source = ", ".join(f"{n} from {src}" for src, n in (s.get("picks_by_source") or {}).items())
     out = [f"picks: {s['n_picks']}" + (f" ({by_source})" if by_source else "")]
     toward = (f"toward {plane['dip_direction_deg']:.1f}° (strike {plane['strike_rhr_deg']:.1f}° right-hand rule)"
-              if plane.get("dip_direction_deg") is not None else "with no dip direction (horizontal)")
+              if plane.get("dip_direction_deg") is not None else
+              "horizontal within its 95% confidence (no dip direction or strike)")
     out.append(f"plane: dip {plane['dip_deg']:.2f}° {toward}, 95% half-width {plane.get('dip_ci95_deg') or 0:.2f}°, "
                f"RMS {_m(plane.get('rms_m'))}, quality {plane.get('quality')}")
     scores = ", ".join(f"{k} {_m(v, 4)}" for k, v in (model.get("cv_rmse_m") or {}).items())
