@@ -16,9 +16,9 @@ import json
 import os
 import sqlite3
 import struct
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Callable
 
 import numpy as np
 import pytest
@@ -226,11 +226,13 @@ def _nan_line(value, folder, name):
 def _curved_contacts(folder):
     """The demo contacts as CompoundCurves: one circular arc through three consecutive vertices of
     each, the rest straight pieces (a GeoPackage layer of type CompoundCurve)."""
+    def fmt(pts):
+        return ", ".join(f"{x!r} {y!r}" for x, y in pts)
+
     geoms = []
     for line in demo_lines():
         c = np.asarray(line.coords)
         k = len(c) // 2
-        fmt = lambda pts: ", ".join(f"{x!r} {y!r}" for x, y in pts)  # noqa: E731
         geoms.append(f"COMPOUNDCURVE(({fmt(c[:k + 1])}), CIRCULARSTRING({fmt(c[k:k + 3])}), ({fmt(c[k + 2:])}))")
     return write_vector(folder / "curved.gpkg", geoms, geom_type=ogr.wkbCompoundCurve)
 
@@ -522,10 +524,10 @@ def test_attitude_refuses_resamples_beyond_memory_before_drawing(tmp_path):
 #: One geometry of each curved type around the demo sheet, and the family it is read as.
 CURVED = {
     "CircularString": ("CIRCULARSTRING(487000 5215000, 487500 5215500, 488000 5215000)", "line"),
-    "CompoundCurve": ("COMPOUNDCURVE(CIRCULARSTRING(487000 5215000, 487500 5215500, 488000 5215000), "
-                      "(488000 5215000, 488500 5215000))", "line"),
-    "MultiCurve": ("MULTICURVE(CIRCULARSTRING(487000 5215000, 487500 5215500, 488000 5215000), "
-                   "(488000 5215000, 488500 5215000))", "line"),
+    "CompoundCurve": (("COMPOUNDCURVE(CIRCULARSTRING(487000 5215000, 487500 5215500, 488000 5215000), "
+                       "(488000 5215000, 488500 5215000))"), "line"),
+    "MultiCurve": (("MULTICURVE(CIRCULARSTRING(487000 5215000, 487500 5215500, 488000 5215000), "
+                    "(488000 5215000, 488500 5215000))"), "line"),
     "CurvePolygon": ("CURVEPOLYGON(CIRCULARSTRING(487000 5215000, 488000 5215000, 487000 5215000))", "polygon"),
     "MultiSurface": ("MULTISURFACE(CURVEPOLYGON(CIRCULARSTRING(487000 5215000, 488000 5215000, 487000 5215000)))",
                      "polygon"),
@@ -591,6 +593,6 @@ def test_the_workload_estimates_count_what_the_chain_makes():
     assert est["--pick-spacing"].count == pytest.approx(1000.0 / 2.0 + 2)
     # windows: 1000/100 along the contact + 1 per contact; grid centres (600/100 + 1) x (800/100 + 1)
     assert est["--window"].count == pytest.approx(1000.0 / 100.0 + 1 + 7 * 9)
-    levels = [e for e in estimate_workload(inputs, opts) if e.option == "--interval"][0]
+    levels = next(e for e in estimate_workload(inputs, opts) if e.option == "--interval")
     assert levels.count == pytest.approx(300.0 / 0.1 + 1) and levels.exceeded and levels.limit == MAX_CONTOUR_LEVELS
     assert not est["DEM 'd.tif'"].exceeded and not est["--pick-spacing"].exceeded
