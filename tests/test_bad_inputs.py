@@ -320,10 +320,11 @@ CASES = [
     Case("where-matches-nothing", lambda d: _args(CONTACTS, DEM, "--where", "unit = 'none'"),
          ("contacts.gpkg", "--where", "no feature")),
     Case("where-invalid-gpkg", lambda d: _args(CONTACTS, DEM, "--where", "unit = "),
-         ("contacts.gpkg", "--where", "not valid OGR SQL", "fix the expression")),
+         # OGR's own words (GDAL 3.6, GeoPackage driver: SQLite prepares the statement)
+         ("contacts.gpkg", "--where", "not valid OGR SQL", "failed to prepare SQL", "fix the expression")),
     Case("where-invalid-shp", lambda d: _args(_lines_file(d, "c.shp", demo_lines(), fields={"unit": ["a", "b"]}),
                                                DEM, "--where", "nope ==="),
-         ("c.shp", "--where", "not valid OGR SQL")),
+         ("c.shp", "--where", "not valid OGR SQL", "SQL Expression Parsing Error")),  # OGR's own words
     Case("contours-no-elev-field", lambda d: _args(CONTACTS, None, "--contours", CONTOURS),
          ("contours.gpkg", "--elev-field")),
     Case("contours-elev-field-missing", lambda d: _args(CONTACTS, None, "--contours", CONTOURS, "--elev-field", "z"),

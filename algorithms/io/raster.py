@@ -114,9 +114,9 @@ def _require_elevation_band(ds, band: int, *, what: str, path: str) -> None:
         )
     if b.DataType in _EIGHT_BIT:
         raise InputError(
-            f"{what}: band {band} holds {gdal.GetDataTypeName(b.DataType)} data (whole numbers 0-255 or "
-            f"-128-127: a picture, a hillshade or a classification, not elevations); {_ELEVATION_FIX} - give "
-            "the elevation raster itself"
+            f"{what}: band {band} holds {gdal.GetDataTypeName(b.DataType)} data (8-bit whole numbers, "
+            f"{'0 to 255' if b.DataType == gdal.GDT_Byte else '-128 to 127'}: a picture, a hillshade or a "
+            f"classification, not elevations); {_ELEVATION_FIX} - give the elevation raster itself"
         )
 
 
