@@ -41,6 +41,8 @@ if QgsApplication is not None:
     import adapter_qgis
 
     _provider = adapter_qgis.initProcessing()
+    if _provider is None:
+        raise RuntimeError(f"the strikeline plugin registered no tools: {adapter_qgis.LOAD_PROBLEM}")
     if _provider.load_error:
         raise RuntimeError(f"the strikeline provider loaded no tools: {_provider.load_error}")
 
