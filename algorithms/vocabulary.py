@@ -450,8 +450,8 @@ def summary_path_names(keys=SUMMARY_KEYS) -> frozenset[str]:
 def json_paths(obj, keys=SUMMARY_KEYS, prefix: str = "") -> set[str]:
     """The dotted paths of a JSON object, with ``*`` where the vocabulary says the keys are data.
 
-    >>> sorted(json_paths({"inputs": {"dem.tif": "ab"}, "n_picks": 3}))
-    ['inputs', 'inputs.*', 'n_picks']
+    >>> sorted(json_paths({"groups": {"planes": {"Kv": {}}}, "n_picks": 3}))
+    ['groups', 'groups.planes', 'groups.planes.*', 'n_picks']
     """
     known = summary_path_names(keys)
     out = set()
