@@ -90,7 +90,8 @@ class DepthTrace(StrikelineAlgorithm):
         steps.feedback.setProgress(30)
         steps.check("depth and trace")
         flag_m = self.parameterAsDouble(parameters, self.MISFIT_FLAG, context) or None
-        res = depth_trace_misfit(dem, dem_grid, surface, contacts, extrapolated_fn=extrapolated_fn, flag_m=flag_m)
+        res = depth_trace_misfit(dem, dem_grid, surface, contacts, extrapolated_fn=extrapolated_fn, flag_m=flag_m,
+                                 is_cancelled=steps.is_cancelled)
         steps.check("depth and trace")
         misfit = res["misfit"]
         out = {"trace_misfit_median_m": None, "trace_misfit_p90_m": None, "trace_misfit_n_vertices": 0}

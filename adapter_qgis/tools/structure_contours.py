@@ -72,7 +72,8 @@ class StructureContours(StrikelineAlgorithm):
         # strikeline run's structure contours, split where they leave the reach of the data and,
         # with the ground, where the surface passes from below it to above it.
         geoms, elev, parts = structure_contours_on_ground(surface, grid, interval_m=interval,
-                                                          extrapolated_fn=extrapolated_fn, dem=dem)
+                                                          extrapolated_fn=extrapolated_fn, dem=dem,
+                                                          is_cancelled=steps.is_cancelled)
         steps.feedback.setProgress(90)
         steps.check("structure contours")
         steps.log(f"structure contours: {len(geoms)} lines every {interval:g} m")

@@ -130,7 +130,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     dip, dipdir = dip_grids(surface, grid, is_cancelled=is_cancelled)
     step(5)
     cparts, clevels, cflags = structure_contours(surface, grid, interval_m=opts.interval_m,
-                                                 extrapolated_fn=model.is_extrapolated)
+                                                 extrapolated_fn=model.is_extrapolated, is_cancelled=is_cancelled)
     step(6)
     depth = None
     trace = np.empty(0, dtype=object)
@@ -143,7 +143,8 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
         ground, ground_grid = ground_on_grid(inputs.dem, inputs.dem_grid, grid, log=log)
         f = depth_trace_misfit(ground, ground_grid, surface, inputs.contacts,
                                extrapolated_fn=model.is_extrapolated, flag_m=opts.misfit_flag_m, model=model,
-                               dem_sigma_m=opts.dem_sigma_m, contact_sigma_m=opts.contact_sigma_m)
+                               dem_sigma_m=opts.dem_sigma_m, contact_sigma_m=opts.contact_sigma_m,
+                               is_cancelled=is_cancelled)
         depth, trace, tflags = f["depth"], f["trace"], f["trace_extrapolated"]
         misfit, segments, flag_m = f["misfit"], f["segments"], f["check"]
     step(7)

@@ -146,7 +146,8 @@ def split_by_flags(geoms, values, flags: dict, *, spacing_m: float):
     return parts, vals, out
 
 
-def structure_contours_on_ground(surface, grid: Grid, *, interval_m: float, extrapolated_fn=None, dem=None):
+def structure_contours_on_ground(surface, grid: Grid, *, interval_m: float, extrapolated_fn=None, dem=None,
+                                 is_cancelled=None):
     """Structure contours of a surface grid (:func:`strikeline.pipeline.structure_contours`), split
     where they leave the reach of the data (with ``extrapolated_fn``) and, with the ground's
     ``dem`` on the surface's grid, where the surface passes from below the ground to above it
@@ -157,7 +158,7 @@ def structure_contours_on_ground(surface, grid: Grid, *, interval_m: float, extr
     DEM − surface interpolated bilinearly, is at least 0), one bool per line.
     """
     geoms, elev, extrapolated = structure_contours(surface, grid, interval_m=interval_m,
-                                                   extrapolated_fn=extrapolated_fn)
+                                                   extrapolated_fn=extrapolated_fn, is_cancelled=is_cancelled)
     flags = {"extrapolated": extrapolated} if extrapolated_fn is not None else {}
     if dem is None:
         return geoms, elev, flags

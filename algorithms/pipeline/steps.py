@@ -266,13 +266,14 @@ def model_surface(picks: PickSet, opts: RunOptions, grid: Grid, *, boreholes=Non
         raise UndeterminedError(f"{what}: {exc}") from None
 
 
-def structure_contours(surface, grid: Grid, *, interval_m: float, extrapolated_fn=None):
+def structure_contours(surface, grid: Grid, *, interval_m: float, extrapolated_fn=None, is_cancelled=None):
     """Structure contours of a surface grid, split where they leave the reach of the data.
 
     Returns ``(lines, elevation_m, extrapolated)``; ``extrapolated`` is all false without an
-    ``extrapolated_fn(x, y)``.
+    ``extrapolated_fn(x, y)``. ``is_cancelled`` is asked at each progress step of GDAL's contour
+    generator, so a cancel stops it there.
     """
-    geoms, levels = contour_lines(surface, grid, interval_m=interval_m)
+    geoms, levels = contour_lines(surface, grid, interval_m=interval_m, is_cancelled=is_cancelled)
     if extrapolated_fn is None:
         return geoms, np.asarray(levels, dtype=float), np.zeros(len(geoms), dtype=bool)
     spacing = min(grid.cell_x_m, grid.cell_y_m)
@@ -283,7 +284,7 @@ def structure_contours(surface, grid: Grid, *, interval_m: float, extrapolated_f
 def depth_trace_misfit(dem, dem_grid: Grid, surface, contacts: VectorLayer | None = None, *,
                        extrapolated_fn=None, flag_m=None, model: SurfaceModel | None = None,
                        z_flag: float = MISFIT_Z, dem_sigma_m: float = default("dem_sigma_m"),
-                       contact_sigma_m: float = default("contact_sigma_m")) -> dict:
+                       contact_sigma_m: float = default("contact_sigma_m"), is_cancelled=None) -> dict:
     """Depth below ground, the predicted outcrop trace and its misfit to the mapped contacts.
 
     Depth = DEM − surface (positive where the surface lies below ground); the trace is its zero
@@ -311,7 +312,7 @@ def depth_trace_misfit(dem, dem_grid: Grid, surface, contacts: VectorLayer | Non
     """
     spacing = min(dem_grid.cell_x_m, dem_grid.cell_y_m)
     depth = depth_below_ground(dem, surface)
-    raw_trace, _ = contour_lines(depth, dem_grid, levels=[0.0])
+    raw_trace, _ = contour_lines(depth, dem_grid, levels=[0.0], is_cancelled=is_cancelled)
     if extrapolated_fn is not None:
         trace, tflags, _ = split_lines_by_flag(raw_trace, extrapolated_fn, spacing_m=spacing)
     else:

@@ -152,6 +152,6 @@ def isopachs(top_m, base_m, grid: Grid, *, interval_m: float = 0.0, progress=Non
     vertical, true = isopach_grids(top_m, base_m, grid, progress=progress, is_cancelled=is_cancelled)
     lines, levels = np.empty(0, dtype=object), np.empty(0)
     if interval_m > 0:
-        lines, levels = contour_lines(true, grid, interval_m=interval_m)
+        lines, levels = contour_lines(true, grid, interval_m=interval_m, is_cancelled=is_cancelled)
     return Isopachs(vertical, true, np.asarray(lines, dtype=object), np.asarray(levels, dtype=float),
                     int(np.count_nonzero(vertical < 0)))

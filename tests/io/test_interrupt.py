@@ -93,3 +93,31 @@ def test_cancelling_a_geotiff_write_leaves_nothing(tmp_path):
     with pytest.raises(CancelledError):
         write_geotiff(path, z, grid, description="x", unit="m", is_cancelled=lambda: polls.append(1) or True)
     assert polls and list(tmp_path.iterdir()) == []
+
+
+@pytest.mark.parametrize("step", ["structure_contours", "structure_contours_on_ground", "depth_trace",
+                                  "isopachs"])
+def test_the_chains_contour_steps_pass_a_cancel_on_to_gdal(step):
+    """A cancel (QGIS's Cancel button) reaches GDAL's contour generator in every step that draws
+    contours, not only between steps: the first poll comes from inside GDAL's progress report
+    (GDAL's progress contract, as above), so the generator stops at once."""
+    from strikeline.pipeline.rasters import structure_contours_on_ground
+    from strikeline.pipeline.steps import depth_trace_misfit, structure_contours
+    from strikeline.pipeline.thickness import isopachs
+
+    z, grid = _big_surface(300)
+    polls = []
+
+    def cancelled():
+        polls.append(1)
+        return True
+
+    call = {"structure_contours": lambda: structure_contours(z, grid, interval_m=1.0, is_cancelled=cancelled),
+            "structure_contours_on_ground": lambda: structure_contours_on_ground(
+                z, grid, interval_m=1.0, dem=z + 5.0, is_cancelled=cancelled),
+            "depth_trace": lambda: depth_trace_misfit(z + 0.5 * np.sin(z), grid, z, is_cancelled=cancelled),
+            "isopachs": lambda: isopachs(z + 100.0, z, grid, interval_m=1.0,
+                                         is_cancelled=lambda: bool(polls) or polls.append(0))}[step]
+    with pytest.raises(CancelledError):
+        call()
+    assert polls, "the cancel was never asked"
