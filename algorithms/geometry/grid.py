@@ -150,10 +150,14 @@ def check_grid_array(array, grid: "Grid | None", name: str) -> np.ndarray:
     return z
 
 
-#: Most cells an output grid may have: the chain holds about ten float64 grids of it at once
-#: (surface, standard error, dip, dip direction, depth, thickness, ...), 80 bytes a cell, so
-#: 50 million cells take about 4 GB (our choice, for a desktop machine).
-MAX_GRID_CELLS = 50_000_000
+def max_grid_cells() -> int:
+    """Most cells an output grid may have: the run's memory budget over the chain's bytes per cell
+    (:data:`strikeline.budget.BYTES_PER_CELL`), the same limit as the run's workload check
+    (:mod:`strikeline.pipeline.workload`), so a tool that makes a grid alone refuses what the run
+    refuses."""
+    from strikeline.budget import BYTES_PER_CELL, memory_budget_bytes
+
+    return int(memory_budget_bytes() // BYTES_PER_CELL)
 
 
 def check_extent(extent, *, what: str = "--extent", allow_empty: bool = False) -> tuple:
@@ -186,8 +190,10 @@ def auto_cell_m(bounds) -> float:
 
 def check_grid_size(grid: "Grid", *, what: str = "the output grid", fix: str = "give a larger --cell or a "
                     "smaller --extent") -> None:
-    """Refuse a grid of more than :data:`MAX_GRID_CELLS` cells, before any work, in one line."""
-    n = grid.rows * grid.cols
-    if n > MAX_GRID_CELLS:
+    """Refuse a grid of more than :func:`max_grid_cells` cells, before any work, in one line."""
+    from strikeline.budget import budget_words
+
+    n, most = grid.rows * grid.cols, max_grid_cells()
+    if n > most:
         raise InputError(f"{what} would have {grid.rows} x {grid.cols} = {n:,} cells of {grid.cell_x_m:g} m, more "
-                         f"than the {MAX_GRID_CELLS:,} strikeline holds in memory; {fix}")
+                         f"than the {most:,} that fit the memory budget of {budget_words()}; {fix}")

@@ -34,7 +34,7 @@ def output_grid(*, dem_grid: Grid | None, bounds, cell_m: float | None, extent, 
     extent) over ``extent`` (default: the DEM's extent, else ``bounds``, the data's), widened to
     multiples of the cell (:meth:`Grid.aligned`), so that grids of neighbouring sheets made with
     the same cell share their cell edges. Refuses a grid of more than
-    :data:`~strikeline.geometry.grid.MAX_GRID_CELLS` cells in one line.
+    :func:`~strikeline.geometry.grid.max_grid_cells` cells in one line.
     """
     if dem_grid is not None and cell_m is None and extent is None:
         return dem_grid.with_nodata(None)

@@ -20,15 +20,10 @@ import numpy as np
 import shapely
 
 from strikeline.attitude import DEFAULT_WINDOW_RESAMPLES
-from strikeline.budget import budget_words, memory_budget_bytes, size_words
+from strikeline.budget import BYTES_PER_CELL, budget_words, memory_budget_bytes, size_words
 from strikeline.errors import InputError
 from strikeline.pipeline.option_table import CLI_OPTION_NAMES
 
-#: Bytes of the chain's arrays per cell of the output grid. Measured: 42 (plane) and 47 (spline)
-#: bytes more for each further cell (peak resident memory of load_inputs and compute, the demo sheet's
-#: DEM resampled to 1.4 M and 5.8 M cells); 200 allows for the thickness grids, the map-unit checks
-#: and writing (our choice).
-BYTES_PER_CELL = 200
 #: Bytes per DEM pick (coordinates, source, contact, sigma, segment labels, k-d trees, windows'
 #: member lists). Measured: 4.0 kB more for each further pick (peak resident memory, plane model,
 #: the demo sheet's contacts picked every 1 m and every 0.2 m: 8.8 k and 44 k picks); 8 kB allows

@@ -11,7 +11,7 @@ from osgeo import gdal
 
 from helpers import DEMO
 from strikeline.errors import InputError
-from strikeline.geometry.grid import MAX_GRID_CELLS, Grid
+from strikeline.geometry.grid import Grid, max_grid_cells
 from strikeline.pipeline import RunOptions, load_inputs
 from strikeline.pipeline.options import SEGMENT_CELLS
 from strikeline.pipeline.rasters import ground_on_grid, length_off_raster, output_grid
@@ -69,7 +69,7 @@ def test_with_a_dem_and_no_extent_or_cell_the_grid_is_the_dems():
 def test_refused_in_one_line(extent, cell):
     dem_grid = Grid((0.0, 10.0, 0.0, 1000.0, 0.0, -10.0), (100, 100))
     if extent is None:  # too many cells: refused before any work
-        with pytest.raises(InputError, match=rf"more than the {MAX_GRID_CELLS:,}.*--cell"):
+        with pytest.raises(InputError, match=rf"more than the {max_grid_cells():,} that fit the memory budget.*--cell"):
             output_grid(dem_grid=dem_grid, bounds=None, cell_m=0.001, extent=None, crs_wkt="")
     else:
         with pytest.raises(InputError, match=r"^--extent .*XMIN must be less than XMAX"):
