@@ -157,33 +157,74 @@ def run_cli(*args, cwd=None) -> CliRun:
 
 
 # --------------------------------------------------------------------------- derived inputs
-def write_lines(path, lines, *, epsg=None, fields=None, layer="lines", driver=None):
-    """Write shapely lines to a vector file with OGR (test inputs only). ``epsg=None``: no CRS."""
+@contextlib.contextmanager
+def gdal_exceptions():
+    """GDAL/OGR exceptions on inside the block, the previous modes restored after (GDAL 3.6 has no
+    ExceptionMgr)."""
+    from osgeo import gdal, ogr
+
+    was = gdal.GetUseExceptions(), ogr.GetUseExceptions()
+    gdal.UseExceptions()
+    ogr.UseExceptions()
+    try:
+        yield
+    finally:
+        if not was[1]:
+            ogr.DontUseExceptions()
+        if not was[0]:
+            gdal.DontUseExceptions()
+
+
+def srs_of(epsg):
+    """An OSR spatial reference of an EPSG code (``None``: no CRS)."""
+    from osgeo import osr
+
+    if epsg is None:
+        return None
+    s = osr.SpatialReference()
+    s.ImportFromEPSG(epsg)
+    return s
+
+
+def write_vector(path, geoms, *, epsg=None, geom_type=None, fields=None, layer="lines", driver=None, options=()):
+    """Write geometries (WKT text, WKB bytes, shapely geometries or None) to a vector file with OGR
+    (test inputs only). ``epsg=None``: no CRS; ``geom_type``: an ``ogr.wkb*`` code (default unknown);
+    the driver follows the suffix (.gpkg, .shp, .geojson) unless named."""
     import shapely
-    from osgeo import gdal, ogr, osr
+    from osgeo import ogr
 
     path = str(path)
     driver = driver or {".gpkg": "GPKG", ".shp": "ESRI Shapefile", ".geojson": "GeoJSON"}[Path(path).suffix]
-    ds = ogr.GetDriverByName(driver).CreateDataSource(path)
-    if ds is None:
-        raise RuntimeError(f"OGR could not create the test input '{path}': {gdal.GetLastErrorMsg()}")
-    srs = None
-    if epsg is not None:
-        srs = osr.SpatialReference()
-        srs.ImportFromEPSG(epsg)
-    lyr = ds.CreateLayer(layer, srs, ogr.wkbLineString)
-    fields = fields or {}
-    for name, values in fields.items():
-        kind = ogr.OFTReal if isinstance(values[0], float) else ogr.OFTString
-        lyr.CreateField(ogr.FieldDefn(name, kind))
-    for i, g in enumerate(lines):
-        f = ogr.Feature(lyr.GetLayerDefn())
-        f.SetGeometry(ogr.CreateGeometryFromWkb(shapely.to_wkb(g)))
+    with gdal_exceptions():
+        ds = ogr.GetDriverByName(driver).CreateDataSource(path)
+        lyr = ds.CreateLayer(layer, srs_of(epsg), ogr.wkbUnknown if geom_type is None else geom_type,
+                             options=list(options))
+        fields = fields or {}
         for name, values in fields.items():
-            f.SetField(name, values[i])
-        lyr.CreateFeature(f)
-    ds = None
+            kind = ogr.OFTReal if isinstance(values[0], float) else ogr.OFTString
+            lyr.CreateField(ogr.FieldDefn(name, kind))
+        for i, g in enumerate(geoms):
+            f = ogr.Feature(lyr.GetLayerDefn())
+            if isinstance(g, str):
+                f.SetGeometry(ogr.CreateGeometryFromWkt(g))
+            elif isinstance(g, bytes):
+                f.SetGeometry(ogr.CreateGeometryFromWkb(g))
+            elif g is not None:
+                f.SetGeometry(ogr.CreateGeometryFromWkb(shapely.to_wkb(g)))
+            for name, values in fields.items():
+                if values[i] is not None:
+                    f.SetField(name, values[i])
+            lyr.CreateFeature(f)
+        ds = None
     return path
+
+
+def write_lines(path, lines, *, epsg=None, fields=None, layer="lines", driver=None):
+    """Write shapely lines to a vector file with OGR (test inputs only). ``epsg=None``: no CRS."""
+    from osgeo import ogr
+
+    return write_vector(path, lines, epsg=epsg, geom_type=ogr.wkbLineString, fields=fields, layer=layer,
+                        driver=driver)
 
 
 # --------------------------------------------------------------------------- the fold sheet's units

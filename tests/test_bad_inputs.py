@@ -10,7 +10,7 @@ user needs to act: the culprit file or option and the fix.
 """
 from __future__ import annotations
 
-import contextlib
+import functools
 import hashlib
 import json
 import os
@@ -25,7 +25,8 @@ import pytest
 import shapely
 from osgeo import gdal, ogr, osr
 
-from helpers import DEMO, run_cli
+from helpers import DEMO, gdal_exceptions, run_cli, srs_of
+from helpers import write_vector as write_any_vector
 
 CONTACTS = DEMO / "contacts.gpkg"
 DEM = DEMO / "dem.tif"
@@ -41,56 +42,8 @@ FAST = ("--model", "plane", "--resamples", "100")
 
 
 # --------------------------------------------------------------------------- writers (OGR/GDAL only)
-@contextlib.contextmanager
-def _exceptions():
-    """GDAL/OGR exceptions on inside the block, the previous modes restored after (GDAL 3.6 has no
-    ExceptionMgr)."""
-    was = gdal.GetUseExceptions(), ogr.GetUseExceptions()
-    gdal.UseExceptions()
-    ogr.UseExceptions()
-    try:
-        yield
-    finally:
-        if not was[1]:
-            ogr.DontUseExceptions()
-        if not was[0]:
-            gdal.DontUseExceptions()
-
-
-def _srs(epsg):
-    if epsg is None:
-        return None
-    s = osr.SpatialReference()
-    s.ImportFromEPSG(epsg)
-    return s
-
-
-def write_vector(path, geoms, *, epsg=DEMO_EPSG, geom_type=ogr.wkbUnknown, fields=None, layer="contacts",
-                 driver=None, options=()):
-    """Write geometries (WKT text, WKB bytes, shapely geometries or None) with OGR."""
-    path = str(path)
-    driver = driver or {".gpkg": "GPKG", ".shp": "ESRI Shapefile", ".geojson": "GeoJSON"}[Path(path).suffix]
-    with _exceptions():
-        ds = ogr.GetDriverByName(driver).CreateDataSource(path)
-        lyr = ds.CreateLayer(layer, _srs(epsg), geom_type, options=list(options))
-        fields = fields or {}
-        for name, values in fields.items():
-            kind = ogr.OFTReal if isinstance(values[0], float) else ogr.OFTString
-            lyr.CreateField(ogr.FieldDefn(name, kind))
-        for i, g in enumerate(geoms):
-            f = ogr.Feature(lyr.GetLayerDefn())
-            if isinstance(g, str):
-                f.SetGeometry(ogr.CreateGeometryFromWkt(g))
-            elif isinstance(g, bytes):
-                f.SetGeometry(ogr.CreateGeometryFromWkb(g))
-            elif g is not None:
-                f.SetGeometry(ogr.CreateGeometryFromWkb(shapely.to_wkb(g)))
-            for name, values in fields.items():
-                if values[i] is not None:
-                    f.SetField(name, values[i])
-            lyr.CreateFeature(f)
-        ds = None
-    return path
+#: Test inputs in the demo's CRS, in a layer named like the demo's contacts.
+write_vector = functools.partial(write_any_vector, epsg=DEMO_EPSG, layer="contacts")
 
 
 def demo_lines():
@@ -115,12 +68,12 @@ def write_raster(path, bands, *, gt=None, epsg=DEMO_EPSG, dtype=gdal.GDT_Float32
     """A GeoTIFF of the given bands (2-D arrays) with GDAL."""
     bands = [np.asarray(b) for b in (bands if isinstance(bands, (list, tuple)) else [bands])]
     rows, cols = bands[0].shape
-    with _exceptions():
+    with gdal_exceptions():
         ds = gdal.GetDriverByName("GTiff").Create(str(path), cols, rows, len(bands), dtype)
         if georeferenced:
             ds.SetGeoTransform(gt or demo_dem()[1])
             if epsg is not None:
-                ds.SetProjection(_srs(epsg).ExportToWkt())
+                ds.SetProjection(srs_of(epsg).ExportToWkt())
         for i, a in enumerate(bands, start=1):
             b = ds.GetRasterBand(i)
             b.WriteArray(a)
@@ -176,7 +129,7 @@ def _dem_variant(folder, name, fn, **kw):
 def _huge_vrt(folder):
     """A VRT that presents the demo DEM as 300,000 x 300,000 cells (nothing is read to make it)."""
     path = str(folder / "huge.vrt")
-    with _exceptions():
+    with gdal_exceptions():
         gdal.Translate(path, str(DEM), format="VRT", width=300000, height=300000)
     return path
 
@@ -263,7 +216,7 @@ def _geojson_without_crs(folder):
 
 
 def _geographic_contacts(folder):
-    src, dst = _srs(DEMO_EPSG), _srs(4326)
+    src, dst = srs_of(DEMO_EPSG), srs_of(4326)
     for s in (src, dst):
         s.SetAxisMappingStrategy(osr.OAMS_TRADITIONAL_GIS_ORDER)
     ct = osr.CoordinateTransformation(src, dst)
@@ -284,9 +237,9 @@ def _contours_with(folder, field_kind):
         vals.append(f.GetField("elev_m"))
     ds = None
     path = str(folder / "contours.gpkg")
-    with _exceptions():
+    with gdal_exceptions():
         out = ogr.GetDriverByName("GPKG").CreateDataSource(path)
-        lyr = out.CreateLayer("topo_contours", _srs(DEMO_EPSG), ogr.wkbLineString)
+        lyr = out.CreateLayer("topo_contours", srs_of(DEMO_EPSG), ogr.wkbLineString)
         lyr.CreateField(ogr.FieldDefn("elev_m", ogr.OFTString if field_kind == "text" else ogr.OFTReal))
         for wkt, v in zip(geoms, vals):
             f = ogr.Feature(lyr.GetLayerDefn())
@@ -563,7 +516,7 @@ def test_an_undeclared_marker_in_memory_is_refused_too(value):
 
     a = np.full((4, 4), 120.0)
     a[0, 0] = value
-    grid = Grid((486300.0, 10.0, 0.0, 5217700.0, 0.0, -10.0), (4, 4), _srs(DEMO_EPSG).ExportToWkt())
+    grid = Grid((486300.0, 10.0, 0.0, 5217700.0, 0.0, -10.0), (4, 4), srs_of(DEMO_EPSG).ExportToWkt())
     with pytest.raises(InputError, match="a common nodata marker"):
         raster_from_array(a, grid, what="DEM 'x'")
     # declared, the same cell is nodata: read as NaN, the rest kept
