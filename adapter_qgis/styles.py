@@ -124,16 +124,22 @@ def _contour_labels(field: str = "elevation_m") -> QgsVectorLayerSimpleLabeling:
     s.fieldName = f'round("{field}")'
     s.isExpression = True
     s.placement = QgsPalLayerSettings.Line
+    s.setFormat(_haloed_text(halo_mm=0.8, colour=CONTOUR_BLUE))
+    return QgsVectorLayerSimpleLabeling(s)
+
+
+def _haloed_text(*, halo_mm: float, colour: str | None = None, size_pt: float = 8) -> QgsTextFormat:
+    """Label text with a white halo of ``halo_mm`` millimetres, so it reads over any symbol."""
     fmt = QgsTextFormat()
-    fmt.setSize(8)
-    fmt.setColor(QColor(CONTOUR_BLUE))
+    fmt.setSize(size_pt)
+    if colour is not None:
+        fmt.setColor(QColor(colour))
     buf = QgsTextBufferSettings()
     buf.setEnabled(True)
-    buf.setSize(0.8)
+    buf.setSize(halo_mm)
     buf.setColor(QColor("white"))
     fmt.setBuffer(buf)
-    s.setFormat(fmt)
-    return QgsVectorLayerSimpleLabeling(s)
+    return fmt
 
 
 def _line(colour: str, width_mm: float, dash_mm: tuple[float, float] | None = None) -> QgsLineSymbol:
@@ -272,14 +278,7 @@ def _dip_label(expression: str) -> QgsVectorLayerSimpleLabeling:
     s.placement = QgsPalLayerSettings.OverPoint
     s.quadOffset = QgsPalLayerSettings.QuadrantBelowRight
     s.xOffset, s.yOffset = 1.2, 1.2
-    fmt = QgsTextFormat()
-    fmt.setSize(8)
-    buf = QgsTextBufferSettings()
-    buf.setEnabled(True)
-    buf.setSize(0.6)
-    buf.setColor(QColor("white"))
-    fmt.setBuffer(buf)
-    s.setFormat(fmt)
+    s.setFormat(_haloed_text(halo_mm=0.6))
     return QgsVectorLayerSimpleLabeling(s)
 
 
