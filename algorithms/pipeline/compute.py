@@ -6,7 +6,6 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from strikeline.errors import CancelledError
 from strikeline.attitude.fitting import PlaneFit
 from strikeline.geometry.grid import Grid
 from strikeline.maps.dipgrids import dip_grids

@@ -17,10 +17,20 @@ def run(opts: RunOptions, *, log: Log = _quiet, progress=None, is_cancelled=None
     ``opts.out`` only when every file is written and checked
     (:func:`strikeline.io.files.output_folder`). An error or an interruption at any point leaves
     ``opts.out`` as it was.
+
+    The named steps of :data:`strikeline.pipeline.progress.RUN_STEPS` (timings, messages) go to
+    ``reporter``, each event marked with ``sheet`` when given; every log line also goes to ``log``,
+    and ``progress(fraction)`` hears the whole run's share done.
     """
+    tracker = RunProgress(reporter, steps=RUN_STEPS, progress=progress, is_cancelled=is_cancelled, sheet=sheet,
+                          log=log)
+    log = tracker.log
     check_options(opts)
     with output_folder(opts.out, overwrite=opts.overwrite, inputs=input_paths(opts), log=log) as part:
+        tracker.step(READING)
         inputs = load_inputs(opts, log=log)
-        results = compute(inputs, opts, log=log, progress=progress, is_cancelled=is_cancelled)
+        results = compute(inputs, opts, log=log, tracker=tracker)
+        tracker.step(WRITING)
         _write_all(results, part, is_cancelled=is_cancelled)
+    tracker.finish()
     return results
