@@ -18,6 +18,7 @@ from strikeline.maps.trace import (vertex_spacing_m)
 from strikeline.pipeline.inputs import Inputs
 from strikeline.pipeline.options import SEGMENT_CELLS, Log, RunOptions, _quiet
 from strikeline.pipeline.planes import group_labels, planes_by_group
+from strikeline.pipeline.progress import COMPUTE_STEPS, RunProgress
 from strikeline.pipeline.steps import attitude_of, collect_picks, contact_segments, depth_trace_misfit, fit_picks, log_model_choice, model_surface, pick_sigmas, structure_contours, surface_grid
 from strikeline.pipeline.summary import build_summary
 from strikeline.pipeline.workload import check_workload
@@ -70,22 +71,27 @@ def _no_thickness_reason(base_in, top_in, model, top_model) -> str:
 
 
 def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=None,
-            is_cancelled=None) -> Results:
-    """Run every step of the chain in memory."""
-    steps = 9.0
+            is_cancelled=None, tracker: RunProgress | None = None) -> Results:
+    """Run every step of the chain in memory.
 
-    def step(k):
-        if is_cancelled is not None and is_cancelled():
-            raise CancelledError("cancelled; nothing was written")
-        if progress is not None:
-            progress(min(1.0, k / steps))
+    Each named step of :data:`strikeline.pipeline.progress.COMPUTE_STEPS` is marked as it begins
+    on ``tracker`` (a :class:`~strikeline.pipeline.progress.RunProgress` of the whole run, which
+    times it and checks for cancellation), or, without one, on a tracker of these steps made from
+    ``progress(fraction)`` and ``is_cancelled()``.
+    """
+    own = tracker is None
+    if own:
+        tracker = RunProgress(steps=COMPUTE_STEPS, progress=progress, is_cancelled=is_cancelled)
+    is_cancelled = is_cancelled or tracker.is_cancelled
+    step = tracker.step
 
+    step("picks")
     what = f"picks on contacts {inputs.contacts.what}"
     grid_notes = []  # said once the picks give a plane: an input error stays the only line
     grid = surface_grid(inputs, opts, log=grid_notes.append)  # first: an extent or cell refused before any work
     check_workload(inputs, opts, grid=grid)  # every size-driving option, before any work
     picks = collect_picks(inputs, spacing_m=opts.pick_spacing_m, log=log, is_cancelled=is_cancelled)
-    step(1)
+    step("attitude and confidence")
     plane = fit_picks(picks, what=what)
     sigma = pick_sigmas(inputs, picks, opts)
     conf_opts = {"crs_wkt": inputs.crs_wkt, "resamples": opts.resamples, "seed": opts.seed,
@@ -104,7 +110,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
         values = dict(zip(inputs.contacts.fids.tolist(), inputs.contacts.fields[opts.group_by].tolist()))
         labels = group_labels([values.get(int(c)) for c in picks.contact_id])
         groups = planes_by_group(picks.xyz, labels, sigma=sigma, blocks=blocks, **conf_opts)
-    step(2)
+    step("local attitudes")
     window, window_note = ((opts.window_m, "") if opts.window_m is not None
                            else fallback_window_m(picks.xyz))
     attitudes = None
@@ -113,7 +119,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     if window is not None:
         attitudes = local_attitudes(picks.xyz, window_m=window, contact_id=picks.contact_id,
                                     sigma_z_m=sigma, seed=opts.seed, is_cancelled=is_cancelled)
-    step(3)
+    step("surface model")
     ub = None
     if inputs.unit_polygons is not None:
         ub = map_unit_bounds(inputs.unit_polygons, inputs.unit_names, inputs.dem, inputs.dem_grid, opts, log=log)
@@ -123,14 +129,14 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     log_model_choice(model, what="surface model", log=log)
     unit_check = None if ub is None else map_unit_check(model, inputs.unit_polygons, inputs.unit_names, inputs.dem,
                                                         inputs.dem_grid, opts, ub, log=log)
+    step("grids")
     surface = model.evaluate_grid(grid, is_cancelled=is_cancelled)
     uncertainty = model.standard_error_grid(grid, is_cancelled=is_cancelled)
-    step(4)
     dip, dipdir = dip_grids(surface, grid, is_cancelled=is_cancelled)
-    step(5)
+    step("structure contours")
     cparts, clevels, cflags = structure_contours(surface, grid, interval_m=opts.interval_m,
                                                  extrapolated_fn=model.is_extrapolated, is_cancelled=is_cancelled)
-    step(6)
+    step("depth, trace and misfit")
     depth = None
     trace = np.empty(0, dtype=object)
     tflags = np.empty(0, dtype=bool)
@@ -146,7 +152,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
                                is_cancelled=is_cancelled)
         depth, trace, tflags = f["depth"], f["trace"], f["trace_extrapolated"]
         misfit, segments, flag_m = f["misfit"], f["segments"], f["check"]
-    step(7)
+    step("thickness")
     vth = tth = top_picks = None
     thickness = None
     if inputs.top_contacts is not None:
@@ -181,7 +187,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
         if not vals.size:
             thickness["note"] = thickness["reason"] = _no_thickness_reason(base_in, top_in, model, top_model)
             log(f"warning: unit thickness not computed: {thickness['reason']}")
-    step(8)
+    step("summary")
     summary = build_summary(inputs, opts, picks, plane_summary, misfit, n_contours=len(cparts),
                             model=model, groups=groups, attitudes=attitudes, segments=segments,
                             flag_m=flag_m, thickness=thickness, contour_flags=cflags, trace_flags=tflags,
@@ -194,7 +200,8 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
         summary["contact_misfit"]["segment_m"] = SEGMENT_CELLS * min(ground_grid.cell_x_m, ground_grid.cell_y_m)
     if window_note:
         summary["attitudes"] = {**summary.get("attitudes", {"n_windows": 0}), "note": window_note}
-    step(9)
+    if own:
+        tracker.finish()
     return Results(picks, plane, grid, surface, dip, dipdir, depth, cparts, clevels, trace, summary,
                    model=model, uncertainty_m=uncertainty, contour_extrapolated=cflags,
                    trace_extrapolated=tflags, contact_misfit=segments, attitudes=attitudes,

@@ -7,9 +7,11 @@ from strikeline.pipeline.compute import Results, compute
 from strikeline.pipeline.inputs import load_inputs
 from strikeline.pipeline.options import Log, RunOptions, _quiet, check_options, input_paths
 from strikeline.pipeline.outputs import _write_all
+from strikeline.pipeline.progress import READING, RUN_STEPS, WRITING, Reporter, RunProgress
 
 
-def run(opts: RunOptions, *, log: Log = _quiet, progress=None, is_cancelled=None) -> Results:
+def run(opts: RunOptions, *, log: Log = _quiet, progress=None, is_cancelled=None,
+        reporter: Reporter | None = None, sheet: str | None = None) -> Results:
     """Load, compute and write: the whole of ``strikeline run``.
 
     The options and ``--out`` are checked first; then the output folder is locked (a second run
