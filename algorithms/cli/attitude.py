@@ -45,6 +45,7 @@ def add_parser(sub) -> argparse.ArgumentParser:
                 "y_field", "crs")
     add_options(p.add_argument_group("confidence"), "dem_sigma_m", "resamples", "seed", command="attitude")
     add_options(p.add_argument_group("output"), "json_out", "overwrite")
+    add_options(p.add_argument_group("progress and log"), "quiet", "log_json")
     p.set_defaults(handler=main)
     return p
 
@@ -249,7 +250,7 @@ def write_json(result: dict, out: str, *, overwrite: bool) -> None:
 
 def main(args) -> int:
     _check_out(args.out, args.overwrite, args.points)
-    result = compute(args)
+    result = compute(args, log=args.reporter.log)  # log lines and --log-json: strikeline.cli.progress
     if args.out:
         write_json(result, args.out, overwrite=args.overwrite)
     report(result)

@@ -2,7 +2,6 @@
 from __future__ import annotations
 
 import argparse
-import sys
 from pathlib import Path
 
 from strikeline.cli.options import EPILOG, add_options
@@ -19,7 +18,7 @@ def demo_dir() -> Path:
 
 def add_parser(sub) -> argparse.ArgumentParser:
     p = sub.add_parser("demo", help=HELP, description=HELP + ".", epilog=EPILOG)
-    add_options(p, "demo_out", "overwrite")
+    add_options(p, "demo_out", "overwrite", "quiet", "log_json")
     p.set_defaults(handler=main)
     return p
 
@@ -45,6 +44,6 @@ def main(args) -> int:
     from strikeline.pipeline import run
 
     opts = demo_options(args.out, overwrite=args.overwrite)
-    results = run(opts, log=lambda m: print(m, file=sys.stderr))
+    results = run(opts, reporter=args.reporter)  # log lines, progress bar, --log-json: strikeline.cli.progress
     report(results, opts.out)
     return 0

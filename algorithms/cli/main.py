@@ -32,40 +32,49 @@ def main(argv=None) -> int:
     if not getattr(args, "handler", None):
         parser.print_help(sys.stderr)
         return 2
+    from strikeline.cli.progress import command_reporter
     from strikeline.io.interrupt import signals_as_exceptions
-    from strikeline.pipeline.command import command_line  # recorded in summary.json
+    from strikeline.pipeline.command import command_line, current_command_line  # recorded in summary.json
 
+    reporter = None
+    status, error = 0, None
     try:
         # SIGTERM (schedulers, `timeout`) and SIGINT (Ctrl-C) become exceptions for the run, so
         # the output writers remove what they started; the handlers are restored after it
         with signals_as_exceptions(), command_line(sys.argv[1:] if argv is None else argv):
-            return int(args.handler(args) or 0)
+            # the progress bar on a terminal and --log-json FILE (checked before any work)
+            args.reporter = reporter = command_reporter(args, command=current_command_line())
+            status = int(args.handler(args) or 0)
     except CancelledError as exc:
-        print(f"error: {one_line(exc)}", file=sys.stderr)
-        return 130
+        status, error = 130, one_line(exc)
     except StrikelineError as exc:
-        print(f"error: {one_line(exc)}", file=sys.stderr)
-        return 2
+        status, error = 2, one_line(exc)
     except BrokenPipeError:
         # the reader went away (e.g. `| head`): not an error of ours; silence the final flush
         try:
             sys.stdout = open(os.devnull, "w")
         except OSError:
             pass
-        return 0
+        status = 0
     except KeyboardInterrupt as exc:
         # 128 + the signal's number: the shell's convention for a process stopped by a signal
         status = getattr(exc, "exit_status", 128 + signal.SIGINT)
         name = signal.Signals(status - 128).name
-        print(f"error: stopped by {name}; no partial output was left", file=sys.stderr)
-        return status
+        error = f"stopped by {name}; no partial output was left"
     except Exception as exc:  # a bug, not bad input: still one line, unless debugging
+        if reporter is not None:
+            reporter.end(3, f"internal failure ({type(exc).__name__}: {one_line(exc)})")
+            reporter = None
         if os.environ.get("STRIKELINE_DEBUG"):
             raise
-        print(f"error: internal failure ({type(exc).__name__}: {one_line(exc)}); this is a bug in "
-              "strikeline - please report it with the command line (set STRIKELINE_DEBUG=1 for details)",
-              file=sys.stderr)
-        return 3
+        status, error = 3, (f"internal failure ({type(exc).__name__}: {one_line(exc)}); this is a bug in "
+                            "strikeline - please report it with the command line (set STRIKELINE_DEBUG=1 for details)")
+    finally:
+        if reporter is not None:  # the bar is cleared before the error line; the log gets the status
+            reporter.end(status, error)
+    if error is not None:
+        print(f"error: {error}", file=sys.stderr)
+    return status
 
 
 if __name__ == "__main__":

@@ -28,6 +28,7 @@ def add_parser(sub) -> argparse.ArgumentParser:
                 "unit_field", "units_above", "units_below")
     add_options(p.add_argument_group("attitude confidence and local attitudes"), "dem_sigma_m", "contour_sigma_m",
                 "contact_sigma_m", "window_m", "group_by", "resamples", "seed")
+    add_options(p.add_argument_group("progress and log"), "quiet", "log_json")
     p.set_defaults(handler=main)
     return p
 
@@ -105,6 +106,6 @@ def main(args) -> int:
     from strikeline.pipeline import run
 
     opts = options_from_args(args)
-    results = run(opts, log=lambda m: print(m, file=sys.stderr))
+    results = run(opts, reporter=args.reporter)  # log lines, progress bar, --log-json: strikeline.cli.progress
     report(results, opts.out)
     return 0

@@ -188,6 +188,7 @@ def _labels(choices, words: dict) -> tuple:
 
 
 _RUN = ("run",)
+_TOLD = ("run", "demo", "attitude")  # the commands that take --quiet and --log-json
 _CHAIN = ("modelcontact",)
 _PICK_TOOLS = ("modelcontact", "contactpicks")
 _PLANE = ("run", "attitude")
@@ -230,6 +231,13 @@ _OPTION_LIST = (
          flag="--overwrite", commands=("run", "demo", "attitude", "thickness", "thickness grids")),
     _opt("demo_out", "path", "output folder", default="demo-output", flag="--out", metavar="DIR", dest="out",
          commands=("demo",)),
+    # ---- what a command says while it works (strikeline.cli.progress)
+    _opt("quiet", bool, "no progress bar and no information lines on stderr; warnings, errors and the results "
+         "on stdout are still printed", default=False, flag="--quiet", commands=_TOLD),
+    _opt("log_json", "path", "write the command's steps (wall and CPU seconds, peak memory), messages and final "
+         "status to FILE as JSON Lines while it runs; FILE must lie outside --out and be new or an earlier "
+         "strikeline log, which is replaced", unset="no log file", flag="--log-json", metavar="FILE",
+         commands=_TOLD),
     _opt("interval_m", float, "structure-contour interval; levels at multiples of it", default=50.0, unit="m",
          minimum=0.0, minimum_open=True, basis="a round interval that gives a handful of lines over a map sheet's "
          "relief of a few hundred metres (common practice)", flag="--interval", metavar="METRES",

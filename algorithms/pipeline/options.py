@@ -85,6 +85,9 @@ class RunOptions:
     group_by: str | None = default("group_by")
     resamples: int = default("resamples")
     seed: int = default("seed")
+    # what the command line says while it works (no effect on the results)
+    quiet: bool = default("quiet")
+    log_json: str | None = default("log_json")
 
 
 # --------------------------------------------------------------------------- checks on options
