@@ -13,7 +13,10 @@ Peak memory in process is the growth of the resident set's high-water mark (``Vm
 ``/proc/self/status``) over the resident size at the start of the workload; the mark is reset
 before each workload by writing ``5`` to ``/proc/self/clear_refs`` (Linux 4.0 and later,
 documented in proc(5)). Where the reset is refused, the figure is the high-water mark of the
-whole process so far, and the line says so. CPU time is ``resource.getrusage(RUSAGE_SELF)``
+whole process so far, and the line says so. So that memory a workload frees goes back to the
+system (and the next workload's growth is its own), this module fixes glibc's mmap threshold at
+128 KiB on import (``mallopt(M_MMAP_THRESHOLD)``, documented in mallopt(3)): every large block is
+then its own mapping, returned when freed, instead of heap memory kept for reuse. CPU time is ``resource.getrusage(RUSAGE_SELF)``
 (user + system, every thread of the process); a child process is measured with ``os.wait4``,
 which returns that one child's own resource usage (peak resident set ``ru_maxrss``, CPU time).
 """
@@ -47,6 +50,15 @@ class Measure:
     @property
     def cpu_per_wall(self) -> float:
         return self.cpu_s / self.wall_s if self.wall_s > 0 else float("nan")
+
+
+def _fix_mmap_threshold() -> None:
+    with contextlib.suppress(OSError, AttributeError):
+        import ctypes
+        ctypes.CDLL("libc.so.6").mallopt(-3, 128 * 1024)  # -3: M_MMAP_THRESHOLD
+
+
+_fix_mmap_threshold()
 
 
 def _status_kib(key: str) -> int:
