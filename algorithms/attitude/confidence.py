@@ -41,9 +41,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.stats import chi2
-
-from strikeline.attitude.kernels import LEVEL, Z95, combine_half_widths, tilt_z2
+from strikeline.attitude.kernels import LEVEL, Z95, chi2_quantile, combine_half_widths, tilt_z2
 from strikeline.errors import InputError
 
 __all__ = [
@@ -109,7 +107,7 @@ class PlaneConfidence:
 
 
 #: 95% point of chi-square with 2 degrees of freedom (-2 ln 0.05): the 95% region of a 2-D tilt.
-CHI2_2DOF_95 = float(chi2.ppf(LEVEL, 2))
+CHI2_2DOF_95 = float(chi2_quantile(LEVEL, 2))
 
 
 def dip_is_significant(dip_deg, dip_ci95_deg, horizontal_z2=None):
