@@ -43,7 +43,7 @@ $(STAMP): pyproject.toml | sysdeps
 	@$(VPY) -c 'from osgeo import gdal_array' 2>/dev/null || \
 	  $(VPIP) install --no-build-isolation --no-cache-dir GDAL==$$(gdal-config --version)
 	$(VPY) -c 'from osgeo import gdal, gdal_array; print("strikeline: GDAL", gdal.__version__, "with numpy arrays")'
-	$(VPIP) install -e '.[dev]' $(NUMPY_PIN)
+	$(VPIP) install -e '.[dev,plot,dask]' $(NUMPY_PIN)
 	@touch $(STAMP)
 
 bench: setup

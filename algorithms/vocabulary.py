@@ -510,6 +510,15 @@ def reference_markdown() -> str:
         lines += ["", f"### Keys of {title} (`*`: a key that is data - file, group, model or class)", "",
                   _row("key", "unit", "meaning"), _row("---", "---", "---")]
         lines += [_row(f"`{k.name}`", _unit(k.unit), k.meaning) for k in keys]
+    lines += ["", "### Layers of a batch's `index.gpkg` (`strikeline batch`)", "",
+              _row("layer", "field", "unit", "meaning"), _row("---", "---", "---", "---")]
+    for layer in INDEX_LAYERS:
+        lines.append(_row(f"`{layer.name}`", f"({layer.geometry})", "-", layer.meaning))
+        lines += [_row(f"`{layer.name}`", f"`{f.name}`", _unit(f.unit),
+                       f.meaning + (" (when known)" if f.name in layer.optional else "")) for f in layer.fields]
+    lines += ["", "### Keys of a batch's `batch.json` (`*`: a sheet's or an edge's name)", "",
+              _row("key", "unit", "meaning"), _row("---", "---", "---")]
+    lines += [_row(f"`{k.name}`", _unit(k.unit), k.meaning) for k in BATCH_KEYS]
     lines += ["", "### QGIS numbers and strings (besides the layers and rasters above)", "",
               _row("output", "unit", "meaning"), _row("---", "---", "---")]
     lines += [_row(f"`{n.name}`", _unit(n.unit), n.meaning) for n in QGIS_OUTPUTS]

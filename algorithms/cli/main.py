@@ -10,7 +10,7 @@ from strikeline.cli import attitude, demo, run, thickness
 from strikeline.cli.options import OneLineParser
 from strikeline.errors import CancelledError, StrikelineError, one_line
 
-SUBCOMMANDS = (run, demo, attitude, thickness)
+SUBCOMMANDS = (run, demo, attitude, thickness, batch)
 
 
 def build_parser() -> OneLineParser:

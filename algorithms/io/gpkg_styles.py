@@ -169,6 +169,9 @@ def _insert(ds, table, rows) -> None:
                   "owner": ""}
         for key, value in values.items():
             feat.SetField(key, value)
+        stamp = gdal.GetConfigOption("OGR_CURRENT_DATE")
+        if stamp:  # a fixed date asked for (strikeline.io._gdal.file_date): not SQLite's clock either
+            feat.SetField("update_time", stamp)
         table.CreateFeature(feat)
     ds.CommitTransaction()
 

@@ -1,0 +1,154 @@
+"""Running a job's sheets: in this process, in local worker processes, or on a dask cluster.
+
+Every sheet is one :func:`strikeline.pipeline.run` into ``OUT/NAME`` (atomic: a failed sheet
+leaves its folder as it was). A sheet whose inputs (SHA-256 of every file, GDAL's side files
+included) and options are those recorded for its intact earlier results is skipped; ``force``
+redoes every sheet. A failing sheet is recorded with its one-line error and the others go on.
+
+Where a sheet runs does not change what it writes: the sheet's command line in summary.json is
+the batch's without the options that only say where and how verbosely it runs, and GDAL dates the
+GeoPackages by the batch's date (``SOURCE_DATE_EPOCH`` when set, else the batch's start), so the
+serial, the local-process and the dask run write the same bytes.
+"""
+from __future__ import annotations
+
+import concurrent.futures as cf
+import multiprocessing
+import os
+import time
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+from pathlib import Path
+
+from strikeline.errors import InputError, StrikelineError, one_line
+
+#: The extra that installs dask.distributed, as pip spells it.
+DASK_EXTRA = "strikeline[dask]"
+
+
+@dataclass
+class SheetResult:
+    """What became of one sheet."""
+
+    name: str
+    status: str  # ok, failed, unchanged (strikeline.vocabulary.SHEET_STATUSES)
+    error: str | None = None
+    seconds: float | None = None
+    inputs: dict = field(default_factory=dict)
+
+
+def file_stamp(now: float | None = None) -> str:
+    """The date GDAL writes into the GeoPackages of a batch (ISO 8601, UTC): ``SOURCE_DATE_EPOCH``
+    (the reproducible-builds convention, seconds since 1970) when set, else ``now``."""
+    epoch = os.environ.get("SOURCE_DATE_EPOCH")
+    if epoch is not None:
+        try:
+            now = float(int(epoch))
+        except ValueError:
+            raise InputError(f"SOURCE_DATE_EPOCH is {epoch!r}; set it to whole seconds since 1970 or unset it") \
+                from None
+    stamp = datetime.fromtimestamp(time.time() if now is None else now, tz=timezone.utc)
+    return stamp.strftime("%Y-%m-%dT%H:%M:%S.000Z")
+
+
+def input_checksums(opts) -> dict:
+    """SHA-256 of every file of every input of a sheet (GDAL's side files included), by absolute path."""
+    from strikeline.io.files import file_sha256, input_files
+    from strikeline.pipeline.options import input_paths
+
+    out = {}
+    for given in input_paths(opts):
+        if given is None:
+            continue
+        for f in input_files(given):
+            p = Path(f).resolve()
+            if p.is_file():
+                out[str(p)] = file_sha256(p)
+    return dict(sorted(out.items()))
+
+
+def run_sheet(name: str, opts, command: list, stamp: str) -> dict:
+    """Run one sheet as ``strikeline run`` would (SIGINT/SIGTERM as exceptions where this is a
+    process's main thread, the command line recorded as ``command``, GeoPackages dated ``stamp``)
+    and say how it went: ``{"name", "status", "error", "seconds"}``. Picklable, so it runs in a
+    worker process or on a dask worker."""
+    from strikeline.io._gdal import file_date
+    from strikeline.io.interrupt import signals_as_exceptions
+    from strikeline.pipeline import run
+    from strikeline.pipeline.command import command_line
+
+    start = time.perf_counter()
+    status, error = "ok", None
+    try:
+        with signals_as_exceptions(), command_line(command), file_date(stamp):
+            run(opts)
+    except StrikelineError as exc:
+        status, error = "failed", one_line(exc)
+    except Exception as exc:  # a bug, not bad input: recorded, and the other sheets go on
+        status, error = "failed", (f"internal failure ({type(exc).__name__}: {one_line(exc)}); this is a bug in "
+                                   "strikeline - please report it with the job file")
+    return {"name": name, "status": status, "error": error, "seconds": time.perf_counter() - start}
+
+
+def _pool_context():
+    methods = multiprocessing.get_all_start_methods()
+    return multiprocessing.get_context("forkserver" if "forkserver" in methods else "spawn")
+
+
+def dask_client(address: str):
+    """A client of the dask.distributed scheduler at ``address`` (one-line errors)."""
+    try:
+        from distributed import Client
+    except ImportError:
+        raise InputError(f"--scheduler needs dask.distributed, which is not installed; install the dask extra "
+                         f"(pip install '{DASK_EXTRA}') or run without --scheduler") from None
+    try:
+        return Client(address, timeout="20s", set_as_default=False)
+    except (OSError, TimeoutError, ValueError) as exc:
+        raise InputError(f"--scheduler {address}: cannot reach a dask scheduler there ({one_line(exc)}); start one "
+                         "(dask scheduler) and its workers (dask worker ADDRESS), or check the address") from None
+
+
+def run_sheets(tasks: list, *, workers: int = 1, scheduler: str | None = None, done=None) -> dict:
+    """Run ``tasks`` (argument tuples of :func:`run_sheet`); ``done(result)`` is called as each
+    sheet finishes. Returns the results by sheet name."""
+    done = done or (lambda r: None)
+    results = {}
+    if not tasks:
+        return results
+    if scheduler:
+        client = dask_client(scheduler)
+        try:
+            from distributed import as_completed
+
+            futures = [client.submit(run_sheet, *t, key=f"strikeline-sheet-{t[0]}-{os.getpid()}-{time.time_ns()}",
+                                     pure=False) for t in tasks]
+            try:
+                for fut in as_completed(futures):
+                    r = fut.result()
+                    results[r["name"]] = r
+                    done(r)
+            except BaseException:
+                client.cancel(futures)
+                raise
+        finally:
+            client.close()
+        return results
+    if workers <= 1:
+        for t in tasks:
+            r = run_sheet(*t)
+            results[r["name"]] = r
+            done(r)
+        return results
+    with cf.ProcessPoolExecutor(max_workers=min(workers, len(tasks)), mp_context=_pool_context()) as pool:
+        futures = [pool.submit(run_sheet, *t) for t in tasks]
+        try:
+            for fut in cf.as_completed(futures):
+                r = fut.result()
+                results[r["name"]] = r
+                done(r)
+        except BaseException:
+            for f in futures:
+                f.cancel()
+            raise
+    return results
