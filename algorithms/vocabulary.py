@@ -209,6 +209,45 @@ MANIFEST_FILE = "strikeline_manifest.json"
 #: The table of results.gpkg that holds its layers' QGIS styles (QGIS's own name; not a layer).
 STYLES_TABLE = "layer_styles"
 
+# --------------------------------------------------------------------------- strikeline batch
+#: The files a batch writes into its output folder, beside one folder per sheet.
+BATCH_FILE = "batch.json"
+INDEX_FILE = "index.gpkg"
+INDEX_PAGE = "index.html"
+#: Status of a sheet in a batch: run now and written, failed (its error in batch.json), or skipped
+#: because its inputs and options are those of its intact earlier results.
+SHEET_STATUSES = ("ok", "failed", "unchanged")
+_SHEET = _n("sheet", None, "name of the sheet in the job file", "text")
+_EDGE_FIELDS = (
+    _n("sheet_a", None, "the first sheet of the edge (names in sorted order)", "text"),
+    _n("sheet_b", None, "the second sheet of the edge", "text"),
+    _n("contact", None, "the contact both sheets model (the job file's contact key)", "text"),
+    _n("n_samples", None, "points along the edge where both surfaces have a value", "integer"),
+    _n("median_dz_m", "m", "median absolute elevation difference of the two surfaces along the edge"),
+    _n("max_dz_m", "m", "largest absolute elevation difference along the edge"),
+    _n("median_offset_m", "m", "median distance along the edge between the two sheets' crossings of one "
+       "structure-contour elevation"),
+    _n("max_offset_m", "m", "largest such distance"))
+SHEETS = Layer("sheets", "polygon", "batch: one footprint per sheet (its surface grid; else its DEM)",
+               (_SHEET, _n("status", None, "ok, failed or unchanged (skipped: inputs and options as before)", "text"),
+                _n("contact", None, "the contact the sheet models (the job file's contact key; null: none)", "text"),
+                _n("error", None, "why the sheet failed, in one line (null: it did not)", "text")),
+               optional=("contact", "error"))
+SHEET_PLANES = Layer("sheet_planes", "point_z", "batch: each sheet's best-fit plane at its picks' centroid",
+                     (_SHEET, *(_PLANE[k] for k in ("dip_deg", "dip_direction_deg", "strike_rhr_deg", "rms_m",
+                                                    "n_picks", "dip_ci95_deg", "dip_direction_ci95_deg",
+                                                    "cone95_deg", "quality"))))
+SHEET_ATTITUDES = Layer("sheet_attitudes", "point", "batch: every sheet's local attitudes (its attitudes layer)",
+                        (_SHEET, *ATTITUDES.fields))
+SHEET_CONTOURS = Layer("sheet_structure_contours", "line_z",
+                       "batch: every sheet's structure contours (its structure_contours layer)",
+                       (_SHEET, *STRUCTURE_CONTOURS.fields), optional=STRUCTURE_CONTOURS.optional)
+SHARED_EDGES = Layer("shared_edges", "line", "batch: where two sheets that model the same contact meet, with the "
+                     "mismatch of their surfaces along the edge", _EDGE_FIELDS,
+                     optional=("median_dz_m", "max_dz_m", "median_offset_m", "max_offset_m"))
+#: The layers of a batch's index.gpkg in the order they are written.
+INDEX_LAYERS = (SHEETS, SHEET_PLANES, SHEET_ATTITUDES, SHEET_CONTOURS, SHARED_EDGES)
+
 
 # --------------------------------------------------------------------------- summary.json
 def _under(prefix: str, names) -> tuple[Name, ...]:
@@ -441,6 +480,38 @@ QGIS_OUTPUTS: tuple[Name, ...] = (
 )
 QGIS_OUTPUT_NAMES = frozenset(n.name for n in QGIS_OUTPUTS)
 
+#: The keys of a batch's batch.json (``strikeline batch``; ``*``: a sheet's or an edge's name).
+BATCH_KEYS: tuple[Name, ...] = (
+    _s("version", None, "strikeline version", "text"),
+    _s("job_file", None, "the job file, as an absolute path", "text"),
+    _s("caution", None, "the caution on forecasts", "text"),
+    _s("n_ok", None, "sheets run and written", "integer"), _s("n_failed", None, "sheets that failed", "integer"),
+    _s("n_unchanged", None, "sheets skipped: inputs and options as in their intact earlier results", "integer"),
+    _s("seconds", None, "wall-clock time of the batch, in seconds (a timing: differs between runs)"),
+    _s("sheets", None, "one record per sheet, by name", _SEC), _s("sheets.*", None, "one sheet", _SEC),
+    _s("sheets.*.status", None, "ok, failed or unchanged", "text"),
+    _s("sheets.*.error", None, "why the sheet failed, in one line (null: it did not)", "text"),
+    _s("sheets.*.folder", None, "the sheet's output folder, relative to the batch folder", "text"),
+    _s("sheets.*.contact", None, "the contact the sheet models (the job file's contact key)", "text"),
+    _s("sheets.*.inputs", None, "SHA-256 of every input file (GDAL's side files included), by absolute path", _SEC),
+    _s("sheets.*.inputs.*", None, "SHA-256 of one file", "text"),
+    _s("sheets.*.options", None, "the run options of the sheet (absolute paths; out and overwrite left out)", _SEC),
+    _s("sheets.*.options.*", None, "one option, by its name", "text"),
+    _s("sheets.*.version", None, "strikeline version of the sheet's record (a new version redoes the sheet)", "text"),
+    _s("sheets.*.seconds", None, "wall-clock time of the sheet's run, in seconds (a timing; null: not run now)"),
+    _s("sheets.*.plane", None, "the sheet's best-fit plane (its summary's plane)", _SEC),
+    *_under("sheets.*.plane", tuple(_PLANE[k] for k in ("dip_deg", "dip_direction_deg", "strike_rhr_deg",
+                                                        "dip_ci95_deg", "dip_direction_ci95_deg", "n_picks",
+                                                        "quality"))),
+    _s("edges", None, "one record per shared edge of two sheets that model the same contact", _SEC),
+    _s("edges.*", None, "one edge, named sheet_a/sheet_b", _SEC),
+    *_under("edges.*", _EDGE_FIELDS),
+    _s("edges.*.length_m", "m", "length of the shared edge"),
+    _s("edges.*.n_levels", None, "structure-contour elevations crossing the edge in both sheets", "integer"),
+    _s("edges.*.interval_m", "m", "elevation step of the compared crossings (the finer contour interval)"),
+    _s("edges.*.note", None, "why the edge was not compared, or how it was sampled, in words", "text"),
+)
+
 
 def summary_path_names(keys=SUMMARY_KEYS) -> frozenset[str]:
     """The dotted paths of a summary's vocabulary."""
@@ -472,6 +543,8 @@ def all_names() -> dict[str, tuple]:
     out["summary"] = SUMMARY_KEYS
     out["attitude_report"] = ATTITUDE_REPORT_KEYS
     out["qgis_outputs"] = QGIS_OUTPUTS
+    out.update({f"layer:{layer.name}": layer.fields for layer in INDEX_LAYERS})
+    out["batch"] = BATCH_KEYS
     return out
 
 
@@ -510,6 +583,15 @@ def reference_markdown() -> str:
         lines += ["", f"### Keys of {title} (`*`: a key that is data - file, group, model or class)", "",
                   _row("key", "unit", "meaning"), _row("---", "---", "---")]
         lines += [_row(f"`{k.name}`", _unit(k.unit), k.meaning) for k in keys]
+    lines += ["", "### Layers of a batch's `index.gpkg` (`strikeline batch`)", "",
+              _row("layer", "field", "unit", "meaning"), _row("---", "---", "---", "---")]
+    for layer in INDEX_LAYERS:
+        lines.append(_row(f"`{layer.name}`", f"({layer.geometry})", "-", layer.meaning))
+        lines += [_row(f"`{layer.name}`", f"`{f.name}`", _unit(f.unit),
+                       f.meaning + (" (when known)" if f.name in layer.optional else "")) for f in layer.fields]
+    lines += ["", "### Keys of a batch's `batch.json` (`*`: a sheet's or an edge's name)", "",
+              _row("key", "unit", "meaning"), _row("---", "---", "---")]
+    lines += [_row(f"`{k.name}`", _unit(k.unit), k.meaning) for k in BATCH_KEYS]
     lines += ["", "### Layers of a batch's `index.gpkg` (`strikeline batch`)", "",
               _row("layer", "field", "unit", "meaning"), _row("---", "---", "---", "---")]
     for layer in INDEX_LAYERS:

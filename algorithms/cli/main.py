@@ -6,7 +6,7 @@ import signal
 import sys
 
 from strikeline import CAUTION, __version__
-from strikeline.cli import attitude, demo, run, thickness
+from strikeline.cli import attitude, batch, demo, run, thickness
 from strikeline.cli.options import OneLineParser
 from strikeline.errors import CancelledError, StrikelineError, one_line
 
