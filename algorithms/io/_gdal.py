@@ -44,22 +44,6 @@ def file_date(stamp: str | None):
         gdal.SetThreadLocalConfigOption(name, previous)
 
 
-@contextlib.contextmanager
-def file_date(stamp: str | None):
-    """Within the block (this thread), GDAL dates what it writes by ``stamp`` (ISO 8601, e.g.
-    ``2026-01-31T12:00:00.000Z``) instead of its clock: GeoPackage layers' ``last_change``
-    (GDAL's ``OGR_CURRENT_DATE``) and strikeline's layer styles, so the same results written
-    twice are the same bytes. ``None`` leaves the clock."""
-    name = "OGR_CURRENT_DATE"
-    previous = gdal.GetThreadLocalConfigOption(name, None)
-    if stamp is not None:
-        gdal.SetThreadLocalConfigOption(name, stamp)
-    try:
-        yield
-    finally:
-        gdal.SetThreadLocalConfigOption(name, previous)
-
-
 def gdal_message(exc: BaseException) -> str:
     """GDAL's own text for an exception, on one line."""
     return one_line(str(exc)) or type(exc).__name__
