@@ -22,6 +22,10 @@ FALLBACK_BUDGET_BYTES = 4 * 2**30
 #: DEM resampled to 1.4 M and 5.8 M cells); 200 allows for the thickness grids, the map-unit checks
 #: and writing (our choice).
 BYTES_PER_CELL = 200
+#: Share of the budget the grid's arrays may fill in memory; beyond it a run computes and writes its
+#: grids block by block (:mod:`strikeline.pipeline.tiled`), leaving the rest to the DEM, the picks
+#: and the models (our choice).
+GRID_SHARE = 0.5
 
 
 def physical_memory_bytes() -> int | None:

@@ -17,7 +17,7 @@ def add_parser(sub) -> argparse.ArgumentParser:
     add_topography(p)
     g = p.add_argument_group("outputs")
     add_output(g)
-    add_options(g, "interval_m", "cell_m", "extent", "pick_spacing_m", "misfit_flag_m")
+    add_options(g, "interval_m", "cell_m", "extent", "block_cells", "pick_spacing_m", "misfit_flag_m")
     add_options(p.add_argument_group("surface model"), "model", "boreholes", "boreholes_layer", "borehole_z_field",
                 "borehole_collar_field", "borehole_depth_field", "borehole_sigma_m", "orientations",
                 "orientations_layer", "dip_field", "dip_direction_field", "strike_field", "orientation_sigma_deg",

@@ -24,6 +24,8 @@ from strikeline.pipeline.summary import build_summary
 from strikeline.pipeline.workload import check_workload
 from strikeline.pipeline.units import map_unit_bounds, map_unit_check
 from strikeline.pipeline.rasters import ground_on_grid, length_off_raster
+from strikeline.pipeline.tiled import (block_shape_of, contours_of_blocks, grids_by_blocks, isopachs_by_blocks,
+                                       trace_of_blocks)
 from strikeline import vocabulary as V
 
 
@@ -55,11 +57,14 @@ class Results:
     # where each contact (top contact) came from and its attributes: written with picks and misfit segments
     contact_sources: object | None = None  # strikeline.pipeline.inputs.ContactSources
     top_contact_sources: object | None = None
+    # the grids written block by block (strikeline.pipeline.tiled.BlockGrids): the grid fields
+    # above are then GridFile objects, whose files these keep
+    block_grids: tuple = ()
 
 
-def _no_thickness_reason(base_in, top_in, model, top_model) -> str:
-    """Why no grid cell gives a unit thickness: the two surfaces' reach of data never overlap."""
-    nb, nt, both = int(base_in.sum()), int(top_in.sum()), int((base_in & top_in).sum())
+def _no_thickness_reason(nb: int, nt: int, both: int, model, top_model) -> str:
+    """Why no grid cell gives a unit thickness: the two surfaces' reach of data never overlap
+    (``nb``, ``nt``, ``both``: cells within reach of the base's, the top's and both surfaces' data)."""
     if both == 0:
         return (f"no grid cell lies within reach of the data of both surfaces (base: {nb} cells within "
                 f"{model.reach_m:.0f} m of its picks, top: {nt} cells within {top_model.reach_m:.0f} m of "
@@ -71,8 +76,14 @@ def _no_thickness_reason(base_in, top_in, model, top_model) -> str:
 
 
 def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=None,
-            is_cancelled=None, tracker: RunProgress | None = None) -> Results:
-    """Run every step of the chain in memory.
+            is_cancelled=None, tracker: RunProgress | None = None, folder=None) -> Results:
+    """Run every step of the chain.
+
+    The grids are arrays in memory, or, for a grid too large for that or with ``opts.block_cells``
+    (:func:`strikeline.pipeline.tiled.block_shape_of`), computed block by block and written as
+    GeoTIFFs into ``folder`` (the run's temporary output folder; default a temporary folder kept
+    with the results): the grid fields of :class:`Results` are then
+    :class:`~strikeline.pipeline.tiled.GridFile` objects, and the files equal those the arrays give.
 
     Each named step of :data:`strikeline.pipeline.progress.COMPUTE_STEPS` is marked as it begins
     on ``tracker`` (a :class:`~strikeline.pipeline.progress.RunProgress` of the whole run, which
@@ -130,12 +141,23 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     unit_check = None if ub is None else map_unit_check(model, inputs.unit_polygons, inputs.unit_names, inputs.dem,
                                                         inputs.dem_grid, opts, ub, log=log)
     step("grids")
-    surface = model.evaluate_grid(grid, is_cancelled=is_cancelled)
-    uncertainty = model.standard_error_grid(grid, is_cancelled=is_cancelled)
-    dip, dipdir = dip_grids(surface, grid, is_cancelled=is_cancelled)
+    block_shape, tiles = block_shape_of(grid, opts), None
+    if block_shape is None:
+        surface = model.evaluate_grid(grid, is_cancelled=is_cancelled)
+        uncertainty = model.standard_error_grid(grid, is_cancelled=is_cancelled)
+        dip, dipdir = dip_grids(surface, grid, is_cancelled=is_cancelled)
+    else:
+        log(f"grids computed and written in blocks of {block_shape[0]} x {block_shape[1]} cells")
+        ground, ground_grid = (None, None) if inputs.dem is None else ground_on_grid(
+            inputs.dem, inputs.dem_grid, grid, log=log)
+        tiles = grids_by_blocks(model, grid, folder, ground=ground, ground_grid=ground_grid, block_shape=block_shape,
+                                is_cancelled=is_cancelled)
+        surface, uncertainty = tiles.files[V.SURFACE.file], tiles.files[V.UNCERTAINTY.file]
+        dip, dipdir = tiles.files[V.DIP.file], tiles.files[V.DIP_DIRECTION.file]
     step("structure contours")
-    cparts, clevels, cflags = structure_contours(surface, grid, interval_m=opts.interval_m,
-                                                 extrapolated_fn=model.is_extrapolated, is_cancelled=is_cancelled)
+    cparts, clevels, cflags = (structure_contours if tiles is None else contours_of_blocks)(
+        surface if tiles is None else tiles, grid, interval_m=opts.interval_m, extrapolated_fn=model.is_extrapolated,
+        is_cancelled=is_cancelled)
     step("depth, trace and misfit")
     depth = None
     trace = np.empty(0, dtype=object)
@@ -145,13 +167,20 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     segments = None
     flag_m = None
     if inputs.dem is not None:
-        ground, ground_grid = ground_on_grid(inputs.dem, inputs.dem_grid, grid, log=log)
+        if tiles is None:
+            ground, ground_grid = ground_on_grid(inputs.dem, inputs.dem_grid, grid, log=log)
         f = depth_trace_misfit(ground, ground_grid, surface, inputs.contacts,
                                extrapolated_fn=model.is_extrapolated, flag_m=opts.misfit_flag_m, model=model,
                                dem_sigma_m=opts.dem_sigma_m, contact_sigma_m=opts.contact_sigma_m,
-                               is_cancelled=is_cancelled)
+                               is_cancelled=is_cancelled,
+                               raw_trace=None if tiles is None else trace_of_blocks(tiles, ground_grid,
+                                                                                    is_cancelled=is_cancelled))
         depth, trace, tflags = f["depth"], f["trace"], f["trace_extrapolated"]
+        if tiles is not None:
+            depth = tiles.files[V.DEPTH.file]
         misfit, segments, flag_m = f["misfit"], f["segments"], f["check"]
+    if tiles is not None:
+        tiles.remove_scratch()
     step("thickness")
     vth = tth = top_picks = None
     thickness = None
@@ -164,13 +193,21 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
                                   sigma=pick_sigmas(inputs, top_picks, opts),
                                   vertex_spacing_m=vertex_spacing_m(inputs.top_contacts.geoms))
         log_model_choice(top_model, what="top surface model", log=log)
-        top_surface = top_model.evaluate_grid(grid, is_cancelled=is_cancelled)
-        vth, tth = isopach_grids(top_surface, surface, grid)
-        X, Y = grid.mesh()
-        base_in, top_in = ~model.is_extrapolated(X, Y), ~top_model.is_extrapolated(X, Y)
-        supported = base_in & top_in & np.isfinite(tth)
-        del X, Y
-        vals = tth[supported]
+        if tiles is None:
+            top_surface = top_model.evaluate_grid(grid, is_cancelled=is_cancelled)
+            vth, tth = isopach_grids(top_surface, surface, grid)
+            X, Y = grid.mesh()
+            base_in, top_in = ~model.is_extrapolated(X, Y), ~top_model.is_extrapolated(X, Y)
+            supported = base_in & top_in & np.isfinite(tth)
+            del X, Y
+            vals = tth[supported]
+            n_in = (int(base_in.sum()), int(top_in.sum()), int((base_in & top_in).sum()))
+        else:
+            iso = isopachs_by_blocks(top_model, model, grid, folder, block_shape=block_shape,
+                                     is_cancelled=is_cancelled)
+            tiles = (tiles, iso)
+            vth, tth = iso.files[V.VERTICAL_THICKNESS.file], iso.files[V.TRUE_THICKNESS.file]
+            vals, n_in = iso.thickness_values, (iso.n_base_in, iso.n_top_in, iso.n_both_in)
         thickness = {
             "top_model": top_model.kind,
             "true_thickness_method": "vertical thickness x cos(local dip of the base surface)",
@@ -185,7 +222,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
             log("warning: the top contacts model lies below the base on average - check which "
                 "contact is the top (--top-contacts) and which the base (--contacts)")
         if not vals.size:
-            thickness["note"] = thickness["reason"] = _no_thickness_reason(base_in, top_in, model, top_model)
+            thickness["note"] = thickness["reason"] = _no_thickness_reason(*n_in, model, top_model)
             log(f"warning: unit thickness not computed: {thickness['reason']}")
     step("summary")
     summary = build_summary(inputs, opts, picks, plane_summary, misfit, n_contours=len(cparts),
@@ -207,7 +244,8 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
                    trace_extrapolated=tflags, contact_misfit=segments, attitudes=attitudes,
                    vertical_thickness_m=vth, true_thickness_m=tth, top_picks=top_picks,
                    unit_check=unit_check, contact_sources=inputs.contact_sources,
-                   top_contact_sources=inputs.top_contact_sources)
+                   top_contact_sources=inputs.top_contact_sources,
+                   block_grids=() if tiles is None else tuple(tiles) if isinstance(tiles, tuple) else (tiles,))
 
 
 def contacts_off_dem(inputs: Inputs, *, log: Log = _quiet) -> dict:

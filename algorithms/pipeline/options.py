@@ -47,6 +47,7 @@ class RunOptions:
     interval_m: float = default("interval_m")
     cell_m: float | None = default("cell_m")
     extent: tuple | None = default("extent")  # (xmin, ymin, xmax, ymax) of the output grid
+    block_cells: int | tuple | None = default("block_cells")  # N, or (rows, cols) from the library
     overwrite: bool = default("overwrite")
     pick_spacing_m: float | None = default("pick_spacing_m")
     # surface model and extra constraints

@@ -16,6 +16,7 @@ from strikeline import vocabulary as V
 from strikeline.attitude.local import LocalAttitudes
 from strikeline.picks import (PickSet)
 from strikeline.pipeline.compute import Results
+from strikeline.pipeline.tiled import GridFile, place_grid_file
 from strikeline.pipeline.options import Log, _quiet
 from strikeline.pipeline.units import unit_conflicts_layer
 
@@ -198,6 +199,9 @@ def _write_all(r: Results, folder: Path, *, is_cancelled=None) -> None:
     """
     for name, array in result_rasters(r):
         spec = _RASTER_OF_FILE[name]
+        if isinstance(array, GridFile):  # written block by block (strikeline.pipeline.tiled)
+            place_grid_file(array, folder / name)
+            continue
         write_geotiff(folder / name, array, r.grid, description=spec.meaning, unit=spec.unit,
                       is_cancelled=is_cancelled)
     write_gpkg(folder / V.RESULTS_FILE, result_layers(r), r.grid.crs_wkt)

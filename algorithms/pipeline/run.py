@@ -31,7 +31,7 @@ def run(opts: RunOptions, *, log: Log = _quiet, progress=None, is_cancelled=None
     with output_folder(opts.out, overwrite=opts.overwrite, inputs=input_paths(opts), log=log) as part:
         tracker.step(READING)
         inputs = load_inputs(opts, log=log)
-        results = compute(inputs, opts, log=log, tracker=tracker)
+        results = compute(inputs, opts, log=log, tracker=tracker, folder=part)
         tracker.step(WRITING)
         _write_all(results, part, is_cancelled=is_cancelled)
     tracker.finish()

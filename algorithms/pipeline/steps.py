@@ -266,14 +266,17 @@ def model_surface(picks: PickSet, opts: RunOptions, grid: Grid, *, boreholes=Non
         raise UndeterminedError(f"{what}: {exc}") from None
 
 
-def structure_contours(surface, grid: Grid, *, interval_m: float, extrapolated_fn=None, is_cancelled=None):
+def structure_contours(surface, grid: Grid, *, interval_m: float, extrapolated_fn=None, is_cancelled=None,
+                       lines=None):
     """Structure contours of a surface grid, split where they leave the reach of the data.
 
     Returns ``(lines, elevation_m, extrapolated)``; ``extrapolated`` is all false without an
     ``extrapolated_fn(x, y)``. ``is_cancelled`` is asked at each progress step of GDAL's contour
-    generator, so a cancel stops it there.
+    generator, so a cancel stops it there. ``lines`` = ``(geoms, levels)`` already drawn (from a
+    grid written block by block, :mod:`strikeline.pipeline.tiled`) are split instead.
     """
-    geoms, levels = contour_lines(surface, grid, interval_m=interval_m, is_cancelled=is_cancelled)
+    geoms, levels = lines if lines is not None else contour_lines(surface, grid, interval_m=interval_m,
+                                                                  is_cancelled=is_cancelled)
     if extrapolated_fn is None:
         return geoms, np.asarray(levels, dtype=float), np.zeros(len(geoms), dtype=bool)
     spacing = min(grid.cell_x_m, grid.cell_y_m)
@@ -284,7 +287,8 @@ def structure_contours(surface, grid: Grid, *, interval_m: float, extrapolated_f
 def depth_trace_misfit(dem, dem_grid: Grid, surface, contacts: VectorLayer | None = None, *,
                        extrapolated_fn=None, flag_m=None, model: SurfaceModel | None = None,
                        z_flag: float = MISFIT_Z, dem_sigma_m: float = default("dem_sigma_m"),
-                       contact_sigma_m: float = default("contact_sigma_m"), is_cancelled=None) -> dict:
+                       contact_sigma_m: float = default("contact_sigma_m"), is_cancelled=None,
+                       raw_trace=None) -> dict:
     """Depth below ground, the predicted outcrop trace and its misfit to the mapped contacts.
 
     Depth = DEM − surface (positive where the surface lies below ground); the trace is its zero
@@ -309,10 +313,15 @@ def depth_trace_misfit(dem, dem_grid: Grid, surface, contacts: VectorLayer | Non
         ``depth``, ``trace``, ``trace_extrapolated``, ``misfit`` (dict), ``vertices`` and
         ``vertex_distance`` (contact vertices on the DEM and their distance to the trace),
         ``segments``, ``flag_m``, ``check`` (how segments were checked).
+
+    ``raw_trace``: the zero line of the depth already drawn (from a depth grid written block by
+    block, :mod:`strikeline.pipeline.tiled`); ``surface`` is not used then and ``depth`` is None.
     """
     spacing = min(dem_grid.cell_x_m, dem_grid.cell_y_m)
-    depth = depth_below_ground(dem, surface)
-    raw_trace, _ = contour_lines(depth, dem_grid, levels=[0.0], is_cancelled=is_cancelled)
+    depth = None
+    if raw_trace is None:
+        depth = depth_below_ground(dem, surface)
+        raw_trace, _ = contour_lines(depth, dem_grid, levels=[0.0], is_cancelled=is_cancelled)
     if extrapolated_fn is not None:
         trace, tflags, _ = split_lines_by_flag(raw_trace, extrapolated_fn, spacing_m=spacing)
     else:

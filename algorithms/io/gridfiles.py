@@ -1,0 +1,274 @@
+"""Grids too large for memory: GeoTIFFs written and read a window at a time.
+
+:class:`StripWriter` takes the rows of a grid in order, a band of rows at a time, and writes them
+in strips one tile high, so that GDAL compresses and places the tiles in the same order as a
+whole-array write (:func:`strikeline.io.raster.write_geotiff`): a grid written in strips is the
+same file, byte for byte. :func:`read_window` reads a window back, :class:`FileMask` answers
+"does this cell hold data" for scattered cells, and :func:`contour_lines_from_file` hands a
+written band to GDAL's contour generator, which reads it a block of lines at a time.
+
+Scratch grids (float64, uncompressed, the lowest float64 as nodata) hold the exact values a
+contour is drawn on, so that lines drawn from a file equal the lines drawn from the array.
+"""
+from __future__ import annotations
+
+import hashlib
+import os
+
+import numpy as np
+from osgeo import gdal
+
+from strikeline.errors import OutputError, RasterReadError
+from strikeline.geometry.grid import Grid
+from strikeline.io._gdal import gdal_exceptions, gdal_message, quiet_close
+from strikeline.io.contours import _contour_band, _level_options
+from strikeline.io.interrupt import GdalStop
+from strikeline.io.raster import NODATA_OUT
+from strikeline.maps.contours import trim_contour_fringe
+
+__all__ = ["StripWriter", "read_window", "FileMask", "contour_lines_from_file", "OUTPUT_OPTIONS",
+           "SCRATCH_NODATA"]
+
+#: Creation options of strikeline's output GeoTIFFs: those of
+#: :func:`strikeline.io.raster.write_geotiff` (the block path's files must equal its files).
+OUTPUT_OPTIONS = ("COMPRESS=DEFLATE", "PREDICTOR=3", "TILED=YES", "BIGTIFF=IF_SAFER")
+#: Scratch grids: tiled, uncompressed (read back once or twice, then removed), BigTIFF.
+SCRATCH_OPTIONS = ("TILED=YES", "BIGTIFF=YES")
+#: Nodata of the float64 scratch grids: the lowest float64, below every value a surface takes,
+#: the sentinel :func:`strikeline.io.contours.contour_lines` gives GDAL for NaN cells.
+SCRATCH_NODATA = float(np.finfo(np.float64).min)
+
+
+class StripWriter:
+    """A GeoTIFF written a band of rows at a time, in strips one tile high.
+
+    Parameters
+    ----------
+    path : str or PathLike
+        The file; written as ``path + '.part'`` and renamed by :meth:`close` once checked.
+    grid : Grid
+    description, unit : str
+        The band's description and unit (as :func:`strikeline.io.raster.write_geotiff`).
+    scratch : bool, default False
+        A float64 scratch grid (uncompressed, nodata :data:`SCRATCH_NODATA`, values unchanged)
+        instead of a float32 output (:data:`OUTPUT_OPTIONS`, nodata
+        :data:`strikeline.io.raster.NODATA_OUT`, values rounded to float32 as
+        ``write_geotiff`` does).
+
+    Notes
+    -----
+    GDAL compresses a tile when it leaves the block cache and appends it to the file, so the
+    order in which tiles are completed decides where they lie in the file. Rows are kept until a
+    strip of whole tile rows is complete and then written with one ``WriteArray`` across the
+    width, which completes the tiles row by row, left to right, as a whole-array write does.
+    Each strip's bytes are hashed; :meth:`close` closes the file (GDAL's last error checked, as
+    GDAL 3.6 does not raise it on close), reads every strip back and compares the hashes.
+    Use from one thread at a time; create and close it on the thread that holds GDAL's exception
+    mode.
+    """
+
+    def __init__(self, path, grid: Grid, *, description: str = "", unit: str | None = "", scratch: bool = False):
+        self.path = os.fspath(path)
+        self.tmp = self.path + ".part"
+        self.grid, self.scratch = grid, scratch
+        self.description, self.unit = description, unit or ""
+        self.dtype = np.float64 if scratch else np.float32
+        self.nodata = SCRATCH_NODATA if scratch else NODATA_OUT
+        self._pending: list[np.ndarray] = []
+        self._n_pending = 0
+        self._next_row = 0
+        self._hashes: list[bytes] = []
+        self._any_valid = False
+        try:
+            with gdal_exceptions():
+                drv = gdal.GetDriverByName("GTiff")
+                opts = list(SCRATCH_OPTIONS if scratch else OUTPUT_OPTIONS)
+                self._ds = drv.Create(self.tmp, grid.cols, grid.rows, 1,
+                                      gdal.GDT_Float64 if scratch else gdal.GDT_Float32, options=opts)
+                self._ds.SetGeoTransform(grid.transform)
+                if grid.crs_wkt:
+                    self._ds.SetProjection(grid.crs_wkt)
+                b = self._ds.GetRasterBand(1)
+                b.SetNoDataValue(self.nodata)
+                if not scratch:
+                    b.SetDescription(self.description)
+                    b.SetUnitType(self.unit)
+                self.strip_rows = int(b.GetBlockSize()[1])
+                b = None
+        except RuntimeError as exc:
+            self.abort()
+            raise OutputError(f"'{self.path}': GDAL could not create it ({gdal_message(exc)}); free some space "
+                              "or choose another folder") from None
+
+    @property
+    def any_valid(self) -> bool:
+        """Whether any cell written so far holds a value (not nodata)."""
+        return self._any_valid
+
+    def write_rows(self, r0: int, values) -> None:
+        """Append the rows ``r0 .. r0 + len(values)`` (full width; NaN for no value)."""
+        if r0 != self._next_row:
+            raise ValueError(f"rows must come in order: expected row {self._next_row}, got {r0}")
+        v = np.asarray(values)
+        if v.ndim != 2 or v.shape[1] != self.grid.cols:
+            raise ValueError(f"rows of shape {v.shape} for a grid {self.grid.shape}")
+        if self.scratch:
+            out = np.array(v, dtype=np.float64)  # a copy: the caller keeps its rows
+        else:
+            out = np.asarray(v, dtype=np.float32)
+        ok = np.isfinite(out)
+        self._any_valid = self._any_valid or bool(ok.any())
+        out = np.where(ok, out, self.dtype(self.nodata))
+        self._pending.append(out)
+        self._n_pending += len(out)
+        self._next_row += len(out)
+        done = self._next_row == self.grid.rows
+        while self._n_pending >= self.strip_rows or (done and self._n_pending):
+            self._write_strip()
+
+    def _write_strip(self) -> None:
+        rows = np.concatenate(self._pending) if len(self._pending) > 1 else self._pending[0]
+        n = min(self.strip_rows, len(rows))
+        strip, rest = np.ascontiguousarray(rows[:n]), rows[n:]
+        r0 = self._next_row - self._n_pending
+        # no switch of GDAL's exception mode here (it is process-wide and strips of several files
+        # are written on several threads): a failure is an exception or an error code
+        failed = None
+        try:
+            if self._ds.GetRasterBand(1).WriteArray(strip, 0, r0) != gdal.CE_None:
+                failed = gdal.GetLastErrorMsg() or "write failed"
+        except RuntimeError as exc:
+            failed = gdal_message(exc)
+        if failed is not None:
+            raise OutputError(f"'{self.path}': GDAL could not write it ({failed}); free some space or "
+                              "choose another folder")
+        self._hashes.append(hashlib.blake2b(strip.tobytes(), digest_size=16).digest())
+        self._pending = [rest] if len(rest) else []
+        self._n_pending = len(rest)
+
+    def close(self) -> str:
+        """Flush, close and check the file, then rename it into place; returns the path."""
+        if self._next_row != self.grid.rows:
+            raise ValueError(f"'{self.path}': {self._next_row} of {self.grid.rows} rows written")
+        try:
+            with gdal_exceptions():
+                self._ds.FlushCache()
+                gdal.ErrorReset()
+                self._ds = None  # closes the file; GDAL 3.6 reports a failure here only as its last error
+                if gdal.GetLastErrorType() >= gdal.CE_Failure:
+                    raise RuntimeError(gdal.GetLastErrorMsg())
+                self._check()
+        except RuntimeError as exc:
+            self.abort()
+            raise OutputError(f"'{self.path}': GDAL could not write it ({gdal_message(exc)}); free some space or "
+                              "choose another folder") from None
+        os.replace(self.tmp, self.path)
+        return self.path
+
+    def _check(self) -> None:
+        ds = gdal.Open(self.tmp, gdal.GA_ReadOnly)
+        try:
+            b = ds.GetRasterBand(1)
+            if not self.scratch and (b.GetDescription() != self.description or (b.GetUnitType() or "") != self.unit):
+                raise RuntimeError("the file read back differs from what was written (band description or unit)")
+            for k, digest in enumerate(self._hashes):
+                r0 = k * self.strip_rows
+                got = b.ReadAsArray(0, r0, self.grid.cols, min(self.strip_rows, self.grid.rows - r0))
+                if got is None or hashlib.blake2b(np.ascontiguousarray(got, dtype=self.dtype).tobytes(),
+                                                  digest_size=16).digest() != digest:
+                    raise RuntimeError(f"the file read back differs from what was written (rows from {r0})")
+        finally:
+            b = ds = None
+
+    def abort(self) -> None:
+        """Drop the file being written (nothing is left at ``path`` or its temporary name)."""
+        with quiet_close():
+            self._ds = None
+        if os.path.exists(self.tmp):
+            os.remove(self.tmp)
+
+
+def read_window(path, r0: int, r1: int, c0: int, c1: int) -> np.ndarray:
+    """Rows ``r0:r1`` and columns ``c0:c1`` of a band as float64, NaN for nodata."""
+    path = os.fspath(path)
+    with gdal_exceptions():
+        try:
+            ds = gdal.Open(path, gdal.GA_ReadOnly)
+            b = ds.GetRasterBand(1)
+            nodata = b.GetNoDataValue()
+            a = b.ReadAsArray(int(c0), int(r0), int(c1 - c0), int(r1 - r0)).astype(np.float64)
+        except RuntimeError as exc:
+            raise RasterReadError(f"'{path}': GDAL could not read rows {r0}-{r1}, columns {c0}-{c1} "
+                                  f"({gdal_message(exc)})") from None
+        finally:
+            b = ds = None
+    if nodata is not None:
+        a[a == nodata] = np.nan
+    a[~np.isfinite(a)] = np.nan
+    return a
+
+
+class FileMask:
+    """Whether cells of a band written to a file hold a value, looked up without reading it whole.
+
+    ``mask[rows, cols]`` with integer arrays of cell indices gives a bool array (like indexing a
+    boolean array of the band's shape); the tiles holding the cells are read one at a time.
+    """
+
+    def __init__(self, path, grid: Grid, *, tile: int = 256):
+        self.path, self.shape, self.tile = os.fspath(path), tuple(grid.shape), int(tile)
+
+    def __getitem__(self, key) -> np.ndarray:
+        r, c = (np.asarray(k, dtype=np.int64) for k in key)
+        r, c = np.broadcast_arrays(r, c)
+        out = np.zeros(r.shape, dtype=bool)
+        if r.size == 0:
+            return out
+        t = self.tile
+        tiles = (r // t) * (self.shape[1] // t + 1) + c // t
+        order = np.argsort(tiles.ravel(), kind="stable")
+        keys, starts = np.unique(tiles.ravel()[order], return_index=True)
+        ends = np.append(starts[1:], len(order))
+        rf, cf, of = r.ravel(), c.ravel(), out.reshape(-1)
+        for s, e in zip(starts, ends):
+            idx = order[s:e]
+            tr, tc = int(rf[idx[0]] // t), int(cf[idx[0]] // t)
+            r0, c0 = tr * t, tc * t
+            win = read_window(self.path, r0, min(r0 + t, self.shape[0]), c0, min(c0 + t, self.shape[1]))
+            of[idx] = np.isfinite(win[rf[idx] - r0, cf[idx] - c0])
+        return out
+
+
+def contour_lines_from_file(path, grid: Grid, *, interval_m=None, levels=None, base_m=0.0, any_valid: bool = True,
+                            progress=None, is_cancelled=None) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`strikeline.io.contours.contour_lines` of a float64 scratch grid (:class:`StripWriter`
+    with ``scratch=True``) read by GDAL's contour generator from the file, a block of lines at a
+    time; the lines trimmed to the valid cell centres (:func:`strikeline.maps.contours.trim_contour_fringe`
+    with a :class:`FileMask`). ``any_valid`` False (no cell holds a value) gives no lines, as an
+    all-NaN array does. Returns ``(geoms, elevation_m)``, equal to the lines of the array."""
+    import shapely
+
+    empty = (np.empty(0, dtype=object), np.empty(0, dtype=np.float64))
+    options = _level_options(interval_m, levels, base_m)
+    if not any_valid or grid.rows * grid.cols == 0:
+        return empty
+    options += [f"NODATA={SCRATCH_NODATA:.17g}", "ID_FIELD=0", "ELEV_FIELD=1"]
+    src = band = None
+    with gdal_exceptions(), GdalStop(progress, is_cancelled, what="contour lines") as stop:
+        try:
+            src = gdal.Open(os.fspath(path), gdal.GA_ReadOnly)
+            band = src.GetRasterBand(1)
+            wkb, elev = _contour_band(band, options, stop)
+        except RuntimeError as exc:
+            stop.check()
+            raise RasterReadError(
+                f"contour lines ({' '.join(options[:2])}) of '{os.fspath(path)}': GDAL's contour generator failed "
+                f"({gdal_message(exc)}); check the grid and the levels") from None
+        finally:
+            band = src = None
+    if not wkb:
+        return empty
+    geoms = np.asarray(shapely.force_2d(shapely.from_wkb(np.array(wkb, dtype=object))), dtype=object)
+    elevation = np.asarray(elev, dtype=np.float64)
+    return trim_contour_fringe(geoms, elevation, FileMask(path, grid), grid)
+

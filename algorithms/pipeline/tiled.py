@@ -1,0 +1,317 @@
+"""The grid steps of a run block by block, straight into GeoTIFFs: grids larger than memory.
+
+The output grid is cut into blocks (a band of rows at a time, blocks across it); every block is
+computed with a halo of one cell where a value needs its neighbours (dip and dip direction, the
+base's dip in the true thickness), on two threads (numpy, scipy's k-d tree queries and GDAL
+release Python's lock), and the band is written to each GeoTIFF in strips
+(:class:`strikeline.io.gridfiles.StripWriter`) before the next band is computed. Memory holds a
+band of each grid, not the grid. Structure contours and the predicted trace are then drawn by
+GDAL's contour generator from float64 scratch copies of the surface and the depth, which it
+reads a block of lines at a time.
+
+Every value is the one the in-memory chain (:func:`strikeline.pipeline.compute`) computes for
+the same cell: the surface and its standard error come from
+:meth:`~strikeline.surfaces.SurfaceModel.evaluate_grid` and
+:meth:`~strikeline.surfaces.SurfaceModel.standard_error_grid` on the block's window (which give
+the values of the whole grid's call), the other grids are cell-wise, and the strips give the
+GeoTIFF bytes of a whole-array write. ``tests/pipeline/test_tiled.py`` checks the files byte for
+byte against the in-memory run with blocks of 7 x 5 cells.
+"""
+from __future__ import annotations
+
+import contextlib
+import os
+import shutil
+import tempfile
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from strikeline import vocabulary as V
+from strikeline.errors import CancelledError
+from strikeline.geometry.grid import Grid
+from strikeline.maps.dipgrids import dip_grids
+from strikeline.maps.thickness import isopach_grids
+
+#: Block of the automatic block path: 256 rows (one tile row of the GeoTIFFs) by 2048 columns;
+#: a band of 256 rows of a 30,000-column grid holds 7.7 million cells (our choice).
+DEFAULT_BLOCK = (256, 2048)
+#: Threads over the blocks of a band: the machine's cores, at most 2 (the project's test machine).
+THREADS = max(1, min(2, os.cpu_count() or 1))
+#: The scratch folder's name inside the run's output folder (removed before the run ends).
+SCRATCH_DIR = ".blocks-scratch"
+
+
+@dataclass(frozen=True)
+class GridFile:
+    """A grid of a run that lives in a GeoTIFF instead of memory (the block path).
+
+    ``read()`` gives the whole band (float64, NaN for nodata), ``read(r0, r1, c0, c1)`` a window.
+    """
+
+    path: Path
+    grid: Grid
+
+    def read(self, r0: int = 0, r1: int | None = None, c0: int = 0, c1: int | None = None) -> np.ndarray:
+        from strikeline.io.gridfiles import read_window
+
+        return read_window(self.path, r0, self.grid.rows if r1 is None else r1, c0,
+                           self.grid.cols if c1 is None else c1)
+
+    @property
+    def shape(self) -> tuple:
+        return self.grid.shape
+
+
+def place_grid_file(gf: GridFile, target) -> None:
+    """Put a grid written block by block at ``target`` (an output folder's file): nothing when it
+    is there already (written into the run's own folder), else a byte-for-byte copy written under a
+    temporary name, its size checked, and renamed into place."""
+    from strikeline.errors import OutputError
+
+    target = Path(target)
+    if target.exists() and os.path.samefile(gf.path, target):
+        return
+    tmp = target.with_name(target.name + ".part")
+    try:
+        shutil.copyfile(gf.path, tmp)
+        if os.path.getsize(tmp) != os.path.getsize(gf.path):
+            raise OSError("the copy's size differs from the original's")
+    except OSError as exc:
+        if tmp.exists():
+            tmp.unlink()
+        raise OutputError(f"'{target}': could not copy the grid from '{gf.path}' ({exc}); free some space or "
+                          "choose another folder") from None
+    os.replace(tmp, target)
+
+
+@dataclass
+class BlockGrids:
+    """What :func:`grids_by_blocks` or :func:`isopachs_by_blocks` wrote and counted."""
+
+    files: dict  # output file name -> GridFile, in the order they are written
+    scratch: dict = field(default_factory=dict)  # 'surface' / 'depth' -> float64 scratch file
+    any_valid: dict = field(default_factory=dict)  # scratch name -> whether any cell holds a value
+    thickness_values: np.ndarray | None = None  # true thickness where both surfaces are within reach, row-major
+    n_base_in: int = 0
+    n_top_in: int = 0
+    n_both_in: int = 0
+    _owned: object | None = field(default=None, repr=False)  # a TemporaryDirectory kept alive with the files
+
+    def remove_scratch(self) -> None:
+        """Remove the float64 scratch copies (once the contours and the trace are drawn)."""
+        for p in self.scratch.values():
+            if os.path.exists(p):
+                os.remove(p)
+            with contextlib.suppress(OSError):
+                os.rmdir(os.path.dirname(p))  # the scratch folder, once empty
+
+
+def block_shape_of(grid: Grid, opts) -> tuple[int, int] | None:
+    """The block shape of a run, or None for the whole grid in memory.
+
+    ``opts.block_cells`` N gives N x N blocks ((rows, cols) from the library); unset, the run
+    goes block by block (:data:`DEFAULT_BLOCK`) when the grid's arrays
+    (:data:`strikeline.budget.BYTES_PER_CELL` per cell) would fill more than
+    :data:`strikeline.budget.GRID_SHARE` of the memory budget.
+    """
+    from strikeline.budget import BYTES_PER_CELL, GRID_SHARE, memory_budget_bytes
+
+    given = getattr(opts, "block_cells", None)
+    if given is not None:
+        r, c = (given, given) if np.ndim(given) == 0 else given
+        return max(1, int(r)), max(1, int(c))
+    if float(grid.rows) * float(grid.cols) * BYTES_PER_CELL > GRID_SHARE * memory_budget_bytes():
+        return DEFAULT_BLOCK
+    return None
+
+
+def block_windows(shape, block_shape) -> list[list[tuple[int, int, int, int]]]:
+    """The blocks of a grid of ``shape`` as bands of ``(r0, r1, c0, c1)``, top to bottom, each
+    band left to right; edge blocks are smaller.
+
+    >>> block_windows((5, 7), (2, 3))[0]
+    [(0, 2, 0, 3), (0, 2, 3, 6), (0, 2, 6, 7)]
+    """
+    rows, cols = (int(v) for v in shape)
+    br, bc = (max(1, int(v)) for v in block_shape)
+    return [[(r0, min(rows, r0 + br), c0, min(cols, c0 + bc)) for c0 in range(0, cols, bc)]
+            for r0 in range(0, rows, br)]
+
+
+def window_grid(grid: Grid, r0: int, r1: int, c0: int, c1: int) -> Grid:
+    """The grid of rows ``r0:r1`` and columns ``c0:c1`` of ``grid`` (same cells, same CRS).
+
+    >>> window_grid(Grid((100.0, 10.0, 0.0, 500.0, 0.0, -10.0), (8, 9)), 2, 5, 3, 9).transform
+    (130.0, 10.0, 0.0, 480.0, 0.0, -10.0)
+    """
+    x0, dx, _, y0, _, dy = grid.transform
+    return Grid((x0 + c0 * dx, dx, 0.0, y0 + r0 * dy, 0.0, dy), (r1 - r0, c1 - c0), grid.crs_wkt, grid.nodata)
+
+
+def _with_halo(win, shape, halo: int = 1):
+    r0, r1, c0, c1 = win
+    rows, cols = shape
+    return max(0, r0 - halo), min(rows, r1 + halo), max(0, c0 - halo), min(cols, c1 + halo)
+
+
+def _block(model, grid: Grid, win, *, ground=None) -> dict:
+    """The grids of one block: the surface on the window with a one-cell halo, its dip grids
+    (``dip_grids`` of the haloed surface cut to the window: the central differences at the
+    window's edge cells see their neighbours as in the whole grid), the standard error and the
+    depth below ``ground`` (the ground on the output grid)."""
+    r0, r1, c0, c1 = win
+    h0, h1, k0, k1 = _with_halo(win, grid.shape)
+    hgrid = window_grid(grid, h0, h1, k0, k1)
+    inner = (slice(r0 - h0, r1 - h0), slice(c0 - k0, c1 - k0))
+    s_halo = model.evaluate_grid(hgrid)
+    dip, ddir = dip_grids(s_halo, hgrid)
+    surface = s_halo[inner]
+    out = {"surface": surface, "dip": dip[inner], "dip_direction": ddir[inner],
+           "uncertainty": model.standard_error_grid(window_grid(grid, r0, r1, c0, c1))}
+    if ground is not None:
+        out["depth"] = np.subtract(ground[r0:r1, c0:c1], surface)
+    return out
+
+
+def _isopach_block(top_model, model, grid: Grid, win) -> dict:
+    """The isopachs of one block (the base's dip needs the one-cell halo) and which of its cells
+    lie within reach of each surface's data."""
+    r0, r1, c0, c1 = win
+    h0, h1, k0, k1 = _with_halo(win, grid.shape)
+    hgrid = window_grid(grid, h0, h1, k0, k1)
+    inner = (slice(r0 - h0, r1 - h0), slice(c0 - k0, c1 - k0))
+    vth, tth = isopach_grids(top_model.evaluate_grid(hgrid), model.evaluate_grid(hgrid), hgrid)
+    X, Y = window_grid(grid, r0, r1, c0, c1).mesh()
+    return {"vertical_thickness": vth[inner], "true_thickness": tth[inner],
+            "base_in": ~model.is_extrapolated(X, Y), "top_in": ~top_model.is_extrapolated(X, Y)}
+
+
+def grids_by_blocks(model, grid: Grid, folder=None, *, ground=None, ground_grid: Grid | None = None,
+                    block_shape=DEFAULT_BLOCK, threads: int = THREADS, progress=None,
+                    is_cancelled=None) -> BlockGrids:
+    """Evaluate the surface and its grids block by block and write them as GeoTIFFs into ``folder``.
+
+    Parameters
+    ----------
+    model : strikeline.surfaces.SurfaceModel
+        The fitted surface.
+    grid : Grid
+        The output grid.
+    folder : path, optional
+        Where the GeoTIFFs go under their vocabulary names (the run's temporary output folder);
+        the float64 scratch copies of the surface and the depth go into its :data:`SCRATCH_DIR`.
+        Default: a new temporary folder that lives as long as the returned object.
+    ground : ndarray, optional
+        The ground (DEM) on the output grid, for the depth below ground.
+    ground_grid : Grid, optional
+        The ground's grid (the output grid's cells; its georeferencing is the depth's scratch copy's,
+        which the trace is drawn on). Default ``grid``.
+    block_shape : (int, int)
+        Rows and columns of a block; the values never depend on it.
+    threads : int
+        Blocks of a band computed at once.
+    progress, is_cancelled : callable, optional
+        Fraction of the rows done; polled between bands (:class:`CancelledError`).
+
+    Returns
+    -------
+    BlockGrids
+        The surface, dip, dip direction, uncertainty (and depth) files, with scratch copies
+        ``'surface'`` (and ``'depth'``).
+    """
+    outs = [("surface", V.SURFACE), ("dip", V.DIP), ("dip_direction", V.DIP_DIRECTION),
+            ("uncertainty", V.UNCERTAINTY)] + ([("depth", V.DEPTH)] if ground is not None else [])
+    scratch = {"surface": grid} if ground is None else {"surface": grid, "depth": ground_grid or grid}
+    return _by_blocks(lambda w: _block(model, grid, w, ground=ground), outs, scratch, grid, folder,
+                      block_shape=block_shape, threads=threads, progress=progress, is_cancelled=is_cancelled)
+
+
+def isopachs_by_blocks(top_model, model, grid: Grid, folder=None, *, block_shape=DEFAULT_BLOCK,
+                       threads: int = THREADS, progress=None, is_cancelled=None) -> BlockGrids:
+    """The vertical and true thickness grids between ``top_model`` and the base ``model``
+    (:func:`strikeline.maps.thickness.isopach_grids`) block by block into ``folder``, with the
+    counts of cells within reach of each surface's data and the true thickness of the cells within
+    reach of both (row-major, as the in-memory chain takes them). Parameters as
+    :func:`grids_by_blocks`."""
+    outs = [("vertical_thickness", V.VERTICAL_THICKNESS), ("true_thickness", V.TRUE_THICKNESS)]
+    return _by_blocks(lambda w: _isopach_block(top_model, model, grid, w), outs, {}, grid, folder,
+                      block_shape=block_shape, threads=threads, progress=progress, is_cancelled=is_cancelled)
+
+
+def _by_blocks(block_fn, outs, scratch_grids: dict, grid: Grid, folder, *, block_shape, threads, progress,
+               is_cancelled) -> BlockGrids:
+    """Run ``block_fn(window) -> {key: array}`` over the blocks of ``grid`` a band at a time on
+    ``threads`` threads and write the bands: ``outs`` ((key, vocabulary raster) pairs) as output
+    GeoTIFFs, ``scratch_grids`` (key -> grid) as float64 scratch copies; the blocks of a band come
+    back in their order (``map``), so nothing depends on which thread finishes first."""
+    from strikeline.io.gridfiles import StripWriter
+
+    owned = None
+    if folder is None:
+        owned = tempfile.TemporaryDirectory(prefix="strikeline-blocks-")
+        folder = owned.name
+    folder = Path(folder)
+    scratch_dir = folder / SCRATCH_DIR
+    if scratch_grids:
+        scratch_dir.mkdir(exist_ok=True)
+    writers, scratch_writers = {}, {}
+    values, counts = [], {"base": 0, "top": 0, "both": 0}
+    try:
+        for key, spec in outs:
+            writers[key] = StripWriter(folder / spec.file, grid, description=spec.meaning, unit=spec.unit)
+        for key, g in scratch_grids.items():
+            scratch_writers[key] = StripWriter(scratch_dir / f"{key}_f64.tif", g, scratch=True)
+        jobs = [(k, w) for k, w in writers.items()] + [(k, w) for k, w in scratch_writers.items()]
+        with ThreadPoolExecutor(max_workers=max(1, int(threads))) as pool:
+            for band in block_windows(grid.shape, block_shape):
+                if is_cancelled is not None and is_cancelled():
+                    raise CancelledError("cancelled; nothing was written")
+                parts = list(pool.map(block_fn, band))
+                rows = {k: np.hstack([p[k] for p in parts]) for k in parts[0]}
+                r0 = band[0][0]
+                list(pool.map(lambda job: job[1].write_rows(r0, rows[job[0]]), jobs))
+                if "base_in" in rows:
+                    b_in, t_in, tth = rows["base_in"], rows["top_in"], rows["true_thickness"]
+                    counts["base"] += int(b_in.sum())
+                    counts["top"] += int(t_in.sum())
+                    counts["both"] += int((b_in & t_in).sum())
+                    values.append(tth[b_in & t_in & np.isfinite(tth)])
+                if progress is not None:
+                    progress(band[0][1] / grid.rows)
+        files = {spec.file: GridFile(Path(writers[key].close()), grid) for key, spec in outs}
+        any_valid = {k: w.any_valid for k, w in scratch_writers.items()}
+        scratch = {k: Path(w.close()) for k, w in scratch_writers.items()}
+    except BaseException:
+        for w in [*writers.values(), *scratch_writers.values()]:
+            w.abort()
+        shutil.rmtree(scratch_dir, ignore_errors=True)
+        raise
+    thick = np.concatenate(values) if values else (np.empty(0) if "true_thickness" in dict(outs) else None)
+    return BlockGrids(files, scratch, any_valid, thick, counts["base"], counts["top"], counts["both"],
+                      _owned=owned)
+
+
+def contours_of_blocks(tiles: BlockGrids, grid: Grid, *, interval_m: float, extrapolated_fn=None,
+                       is_cancelled=None):
+    """Structure contours of the surface written block by block
+    (:func:`strikeline.pipeline.steps.structure_contours` on the lines GDAL's contour generator
+    draws from the float64 scratch copy, :func:`strikeline.io.gridfiles.contour_lines_from_file`)."""
+    from strikeline.io.gridfiles import contour_lines_from_file
+    from strikeline.pipeline.steps import structure_contours
+
+    lines = contour_lines_from_file(tiles.scratch["surface"], grid, interval_m=interval_m,
+                                    any_valid=tiles.any_valid["surface"], is_cancelled=is_cancelled)
+    return structure_contours(None, grid, interval_m=interval_m, extrapolated_fn=extrapolated_fn, lines=lines)
+
+
+def trace_of_blocks(tiles: BlockGrids, ground_grid: Grid, *, is_cancelled=None) -> np.ndarray:
+    """The zero line of the depth written block by block (the raw predicted trace of
+    :func:`strikeline.pipeline.steps.depth_trace_misfit`), drawn from its float64 scratch copy."""
+    from strikeline.io.gridfiles import contour_lines_from_file
+
+    geoms, _ = contour_lines_from_file(tiles.scratch["depth"], ground_grid, levels=[0.0],
+                                       any_valid=tiles.any_valid["depth"], is_cancelled=is_cancelled)
+    return geoms
