@@ -109,30 +109,27 @@ def dask_client(address: str):
                          "(dask scheduler) and its workers (dask worker ADDRESS), or check the address") from None
 
 
-def run_sheets(tasks: list, *, workers: int = 1, scheduler: str | None = None, done=None) -> dict:
-    """Run ``tasks`` (argument tuples of :func:`run_sheet`); ``done(result)`` is called as each
+def run_sheets(tasks: list, *, workers: int = 1, client=None, done=None) -> dict:
+    """Run ``tasks`` (argument tuples of :func:`run_sheet`) here, in ``workers`` local processes,
+    or on the dask ``client``'s cluster (:func:`dask_client`); ``done(result)`` is called as each
     sheet finishes. Returns the results by sheet name."""
     done = done or (lambda r: None)
     results = {}
     if not tasks:
         return results
-    if scheduler:
-        client = dask_client(scheduler)
-        try:
-            from distributed import as_completed
+    if client is not None:
+        from distributed import as_completed
 
-            futures = [client.submit(run_sheet, *t, key=f"strikeline-sheet-{t[0]}-{os.getpid()}-{time.time_ns()}",
-                                     pure=False) for t in tasks]
-            try:
-                for fut in as_completed(futures):
-                    r = fut.result()
-                    results[r["name"]] = r
-                    done(r)
-            except BaseException:
-                client.cancel(futures)
-                raise
-        finally:
-            client.close()
+        futures = [client.submit(run_sheet, *t, key=f"strikeline-sheet-{t[0]}-{os.getpid()}-{time.time_ns()}",
+                                 pure=False) for t in tasks]
+        try:
+            for fut in as_completed(futures):
+                r = fut.result()
+                results[r["name"]] = r
+                done(r)
+        except BaseException:
+            client.cancel(futures)
+            raise
         return results
     if workers <= 1:
         for t in tasks:

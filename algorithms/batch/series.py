@@ -8,6 +8,7 @@ manifest (:mod:`strikeline.batch.folder`).
 """
 from __future__ import annotations
 
+import contextlib
 import json
 import time
 from dataclasses import dataclass
@@ -18,7 +19,7 @@ from strikeline import vocabulary as V
 from strikeline.batch import folder as bf
 from strikeline.batch.index import PLANE_SHOWN, compare_edges, index_layers, index_page, read_sheet
 from strikeline.batch.job import Job, options_record, read_job
-from strikeline.batch.runner import file_stamp, input_checksums, run_sheets
+from strikeline.batch.runner import dask_client, file_stamp, input_checksums, run_sheets
 from strikeline.pipeline.options import input_paths
 
 #: Options of ``strikeline batch`` that say only where and how verbosely sheets run: left out of
@@ -101,7 +102,9 @@ def run_batch(job_path, out, *, argv=(), workers: int = 1, scheduler: str | None
     job: Job = read_job(job_path, out=out)
     names = [s.name for s in job.sheets]
     out = bf.check_batch_folder(out, inputs=[input_paths(s.options) for s in job.sheets], sheets=names)
-    with bf.BatchLock(out):
+    # the cluster is reached before anything is written: no scheduler there, nothing changed here
+    with contextlib.closing(dask_client(scheduler)) if scheduler else contextlib.nullcontext() as client, \
+            bf.BatchLock(out):
         bf.check_batch_folder(out, inputs=[input_paths(s.options) for s in job.sheets], sheets=names)
         manifest = read_manifest(out) if out.exists() else None
         known = set((manifest or {}).get("sheets", [])) | set(names)
@@ -129,7 +132,7 @@ def run_batch(job_path, out, *, argv=(), workers: int = 1, scheduler: str | None
             rec.update(status=r["status"], error=r["error"], seconds=r["seconds"])
             done(r["name"], r["status"], r["error"] or f"{r['seconds']:.1f} s")
 
-        run_sheets(tasks, workers=workers, scheduler=scheduler, done=finished)
+        run_sheets(tasks, workers=workers, client=client, done=finished)
         sheets = [read_sheet(out / s.name, s.name, records[s.name]["status"], s.contact, records[s.name]["error"],
                              s.options, log) for s in job.sheets]
         for s in sheets:

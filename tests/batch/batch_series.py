@@ -85,6 +85,6 @@ def make_series(folder: Path, sheets=("A", "B", "C", "D", "E"), *, defaults: str
         tables.append(f'[[sheet]]\nname = "{name}"\ncontacts = "data/contacts_{name}.gpkg"\n'
                       f'dem = "data/dem_{name}.tif"\n' + (extra or {}).get(name, ""))
     job = folder / "job.toml"
-    job.write_text('[defaults]\ncontact = "base_of_unit"\nmodel = "plane"\nresamples = 200\ninterval = 10\n'
+    job.write_text('[defaults]\ncontact = "base_of_unit"\nmodel = "plane"\nresamples = 50\ninterval = 10\n'
                    + defaults + "\n" + "\n".join(tables))
     return job
