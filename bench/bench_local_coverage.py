@@ -24,6 +24,7 @@ from pathlib import Path
 
 import numpy as np
 
+from _measure import load_line, machine_line, measured, result_line
 from strikeline import pipeline as pl
 from strikeline.attitude import local_attitudes
 from strikeline.geometry import azimuth_difference
@@ -114,24 +115,38 @@ def real_sheets(*, variants=VARIANTS, seeds=(0, 1, 2)):
 
 def report(title, hits):
     print(title)
+    both = {}
     for name, (d, a, n) in hits.items():
         d, a = np.concatenate(d), np.concatenate(a)
+        both[name] = 100 * (d & a).mean()
         print(f"  {name:24s} {n:5d} good windows: dip {100 * d.mean():5.1f}%  dip direction "
-              f"{100 * a.mean():5.1f}%  both {100 * (d & a).mean():5.1f}%")
+              f"{100 * a.mean():5.1f}%  both {both[name]:5.1f}%")
+    return both
 
 
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--replicates", type=int, default=20)
     args = ap.parse_args(argv)
-    report(f"demo sheet, exact trace digitised {args.replicates} times (3 m error correlated over 100 m):",
-           demo_replicates(args.replicates))
+    machine_line()
+    with measured() as m:
+        both = _main(args)
+    result_line(f"local attitudes' coverage, demo sheet x {args.replicates} replicates and the real plane sheets", m,
+                extra="demo sheet, both dip and direction covered: "
+                      + ", ".join(f"{k.strip()} {v:.1f}%" for k, v in both.items()) + " (target 90-99%)")
+    load_line("at the end")
+
+
+def _main(args):
+    both = report(f"demo sheet, exact trace digitised {args.replicates} times (3 m error correlated over 100 m):",
+                  demo_replicates(args.replicates))
     for dem, (hits, truth, n) in real_sheets().items():
         d = truth["digitising"]
         report(f"real terrain '{dem}' plane sheet ({n} DEM picks, dip {truth['dip_deg']:g} toward "
                f"{truth['dip_direction_deg']:g}; digitised with {d['sigma_m']:g} m error correlated over "
                f"{d['correlation_m']:g} m; --dem-sigma {truth['dem_grid']['error_m']:g}, --contact-sigma "
                f"{d['sigma_m']:g}), 3 bootstrap seeds:", hits)
+    return both
 
 
 if __name__ == "__main__":

@@ -42,6 +42,8 @@ import numpy as np
 import shapely
 from scipy.interpolate import RBFInterpolator
 
+from _measure import load_line, machine_line, measured, result_line
+
 REPO = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(REPO / "test_data"))
 
@@ -158,6 +160,18 @@ def main(argv=None):
     ap.add_argument("--cases", default=",".join(real_truth.CASES))
     ap.add_argument("--models", default=",".join(MODELS))
     args = ap.parse_args(argv)
+    machine_line()
+    with measured() as m:
+        rows = _run_all(args)
+    ratios = [r["rms_m"] / r["ref_rms_m"] for r in rows if r.get("ref_rms_m")]
+    result_line(f"recovery on real terrain, {len(rows)} case x model runs", m,
+                ratio=float(np.median(ratios)) if ratios else None,
+                reference="scipy RBFInterpolator RMS (median of RMS ratios)")
+    _checks(args, rows)
+    load_line("at the end")
+
+
+def _run_all(args):
     rows = []
     for dem in args.dems.split(","):
         for case in args.cases.split(","):
@@ -174,6 +188,10 @@ def main(argv=None):
                     r["model"] = "auto+units"
                     rows.append(r)
                     print(_fmt(r), flush=True)
+    return rows
+
+
+def _checks(args, rows):
     print()
     print("Checks against the targets")
     for dem in args.dems.split(","):

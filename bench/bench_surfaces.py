@@ -17,6 +17,11 @@ full evaluation at 20,000 random cells (independent of the method's own check ce
 peak memory as the process's peak resident set size (``resource.getrusage(RUSAGE_SELF)
 .ru_maxrss``: everything the process held, Python and libraries included).
 
+Reference measured in the same run: ``scipy.interpolate.griddata`` (linear on the Delaunay
+triangulation) from as many picks as the model keeps (a random subset) onto the same grid, its time,
+peak memory and RMS against the truth inside the hull - a general-purpose interpolator's speed
+and accuracy on the same picks.
+
 Targets (the project's): under 30 s on 2 cores and under 2 GiB peak memory.
 
 Run:  .venv/bin/python bench/bench_surfaces.py [--picks 100000] [--cells 2000]
@@ -26,10 +31,11 @@ from __future__ import annotations
 import argparse
 import os
 import resource
-import time
 
 import numpy as np
+from scipy.interpolate import griddata
 
+from _measure import load_line, machine_line, measured, result_line
 from strikeline.stats import segment_groups
 from strikeline.geometry.grid import Grid
 from strikeline.surfaces import fit_surface
@@ -73,6 +79,7 @@ def main():
     ap.add_argument("--cells", type=int, default=2_000)
     ap.add_argument("--max-points", type=int, default=2_000)
     args = ap.parse_args()
+    machine_line()
     rng = np.random.default_rng(20240604)
     xyz, line = make_picks(args.picks, rng)
     groups = segment_groups(xyz[:, 0], xyz[:, 1], line, block_m=SEGMENT_M)
@@ -82,13 +89,14 @@ def main():
           f"segments of <= {SEGMENT_M:.0f} m), noise {NOISE_M} m; grid {args.cells:,} x "
           f"{args.cells:,} cells of {cell:g} m; cores {os.cpu_count()}")
 
-    t0 = time.perf_counter()
-    model = fit_surface(xyz, model="auto", groups=groups, max_points=args.max_points)
-    t1 = time.perf_counter()
-    z, rep = model.evaluate_grid(grid, return_report=True)
-    t2 = time.perf_counter()
-    se = model.standard_error_grid(grid)
-    t3 = time.perf_counter()
+    with measured() as m_all:
+        with measured() as m_fit:
+            model = fit_surface(xyz, model="auto", groups=groups, max_points=args.max_points)
+        with measured() as m_grid:
+            z, rep = model.evaluate_grid(grid, return_report=True)
+        with measured() as m_se:
+            se = model.standard_error_grid(grid)
+    t0, t1, t2, t3 = 0.0, m_fit.wall_s, m_fit.wall_s + m_grid.wall_s, m_fit.wall_s + m_grid.wall_s + m_se.wall_s
 
     r = rng.integers(0, args.cells, 20_000)
     c = rng.integers(0, args.cells, 20_000)
@@ -113,6 +121,21 @@ def main():
           f"{t3 - t2:.2f}; total {t3 - t0:.2f} (target < {TARGET_S:.0f})")
     print(f"peak memory (ru_maxrss, whole process): {peak_gib:.2f} GiB (target < "
           f"{TARGET_GIB:.0f})")
+    sub = rng.choice(len(xyz), size=min(len(xyz), model.n_used), replace=False)
+    with measured() as m_ref:
+        zref = griddata(xyz[sub, :2], xyz[sub, 2], (xs[None, :], ys[:, None]), method="linear")
+    ref_err = zref[r, c][inside] - truth(X, Y)[inside]
+    ref_rms = float(np.sqrt(np.nanmean(ref_err ** 2)))
+    del zref
+    rms = float(np.sqrt(np.mean(err_truth ** 2)))
+    result_line(f"scipy griddata linear from {len(sub):,} picks to {args.cells:,}^2 (reference)", m_ref,
+                extra=f"RMS vs truth in hull {ref_rms:.2f} m")
+    result_line(f"fit_surface auto from {len(xyz):,} picks + grid + standard error, {args.cells:,}^2", m_all,
+                ratio=m_all.wall_s / m_ref.wall_s, reference="scipy griddata",
+                extra=f"fit {m_fit.wall_s:.1f} s (cpu/wall {m_fit.cpu_per_wall:.2f}), grid {m_grid.wall_s:.1f} s, "
+                      f"se {m_se.wall_s:.1f} s; model {model.kind}, RMS vs truth in hull {rms:.2f} m "
+                      f"(reference's {ref_rms:.2f})")
+    load_line("at the end")
 
 
 if __name__ == "__main__":

@@ -32,6 +32,8 @@ from pathlib import Path
 import numpy as np
 import shapely
 
+from _measure import load_line, machine_line, measured, result_line
+
 REPO = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(REPO / "test_data"))
 
@@ -102,6 +104,20 @@ def main(argv=None):
                     help="also with every other trace piece left out (a map whose contacts are traced only "
                          "in part while its unit polygons are complete)")
     a = ap.parse_args(argv)
+    machine_line()
+    with measured() as m:
+        done = _main(a)
+    t = [u["s"] / f["s"] for f, u in done if f["s"] > 0]
+    gain = [100 * (1 - u["hull"] / f["hull"]) for f, u in done]
+    result_line(f"unit polygons as constraints, {len(done)} sheet x model fits with and without", m,
+                ratio=float(np.median(t)) if t else None, reference="fit time without units (median)",
+                extra=f"median gain in hull RMS {np.median(gain):.1f}% (target >= 15% where relief allows)"
+                if gain else "no fit with units ran")
+    load_line("at the end")
+
+
+def _main(a):
+    done = []
     print("sheet        model   picks bounds | without: model  hull RMS  sheet RMS | with units: model  hull RMS  "
           "sheet RMS  active broken  time | gain hull  gain sheet")
     todo = [(dem, None) for dem in a.dems.split(",")]
@@ -118,10 +134,12 @@ def main(argv=None):
             if "refused" in u:
                 print(left + f"refused: {u['refused']}")
                 continue
+            done.append((f, u))
             print(left + f"{u['kind']:7s} {u['hull']:8.3f} {u['sheet']:9.3f} {u['active'] or 0:7d} "
                   f"{100 * (u['broken'] or 0):5.1f}% {u['s']:5.1f}s | {100 * (1 - u['hull'] / f['hull']):8.1f}% "
                   f"{100 * (1 - u['sheet'] / f['sheet']):9.1f}%   (relief {row['relief_m']:.0f} m, "
                   f"fit without {f['s']:.1f}s)")
+    return done
 
 
 if __name__ == "__main__":

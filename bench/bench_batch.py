@@ -1,0 +1,124 @@
+"""Benchmark: a series of 16 sheets with `strikeline batch`, on 1 and on 2 worker processes.
+
+Workload (deterministic, invented): a 4 x 4 mosaic of neighbouring sheets, each an N x N float32
+DEM at 10 m cells (``--cells``, default 500: 5 km squares, a 20 km mosaic) of fictional hills
+written by GDAL, and one gently folded contact across the whole mosaic (amplitude 60 m,
+wavelength 7 km, dipping 1 deg toward 123 deg) whose trace GDAL's contour generator draws on each
+sheet. A job file (TOML, one ``[[sheet]]`` table per sheet with ``name``, ``contacts`` and
+``dem``) is run by the console command ``strikeline batch JOB.toml --out DIR --workers N`` in a
+child process, once with ``--workers 1`` and once with ``--workers 2`` (fresh output folders, so
+neither run skips a sheet), each measured alone: wall time, CPU time of the batch and its worker
+processes, and the peak resident memory of the largest single process (``ru_maxrss``).
+
+The reference is the 1-worker run of the same job in the same run; the figure is the speed-up
+t(1 worker) / t(2 workers) (the project's target: at least 1.7). Where the installed
+``strikeline`` has no ``batch`` command the script prints ``batch: not available``.
+
+Run:  .venv/bin/python bench/bench_batch.py [--cells 500] [--sheets-per-side 4]
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import shutil
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+import _sheets
+from _measure import load_line, machine_line, result_line, run_child, status_line, strikeline_command
+
+CELL_M = 10.0
+TARGET_SPEEDUP = 1.7
+
+
+def gentle_fold(mosaic_m: float):
+    """An open fold that crops out on every sheet of the mosaic (relief of the hills: 310-890 m)."""
+    cx, cy = _sheets.X0 + mosaic_m / 2, _sheets.Y0 + mosaic_m / 2
+    a = np.radians(123.0)
+
+    def f(x, y):
+        across = (x - cx) * np.sin(a) + (y - cy) * np.cos(a)
+        return 600.0 + 60.0 * np.cos(2 * np.pi * across / 7_000.0) - np.tan(np.radians(1.0)) * across
+    return f
+
+
+def make_job(tmp: Path, cells: int, per_side: int) -> tuple[Path, int]:
+    size_m = cells * CELL_M
+    mosaic_m = size_m * per_side
+    surface = gentle_fold(mosaic_m)
+    lines = ["# 16 invented neighbouring sheets (strikeline bench)", ""]
+    n_lines = 0
+    for j in range(per_side):
+        for i in range(per_side):
+            name = f"sheet_{j}{i}"
+            x0, y0 = _sheets.X0 + i * size_m, _sheets.Y0 + j * size_m
+            dem = _sheets.write_dem(tmp / f"{name}_dem.tif", cells, size_m, x0=x0, y0=y0)
+            contacts = tmp / f"{name}_contacts.gpkg"
+            k = _sheets.write_traces(contacts, size_m, [surface], x0=x0, y0=y0, trace_cells=min(cells, 1000))
+            n_lines += k
+            lines += ["[[sheet]]", f'name = "{name}"', f'contacts = "{contacts.name}"', f'dem = "{dem.name}"', ""]
+    job = tmp / "job.toml"
+    job.write_text("\n".join(lines))
+    return job, n_lines
+
+
+def failed_sheets(out: Path) -> str:
+    """What batch.json says failed, in a few words (empty when it cannot tell)."""
+    try:
+        data = json.loads((out / "batch.json").read_text())
+    except (OSError, ValueError):
+        return ""
+    sheets = data.get("sheets", data) if isinstance(data, dict) else data
+    items = sheets.items() if isinstance(sheets, dict) else enumerate(sheets if isinstance(sheets, list) else [])
+    bad = [str(v.get("name", k)) for k, v in items if isinstance(v, dict) and v.get("status") not in (None, "ok")]
+    return f"{len(bad)} sheet(s) not ok: {', '.join(bad[:4])}" if bad else ""
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--cells", type=int, default=500, help="cells per side of each sheet")
+    ap.add_argument("--sheets-per-side", type=int, default=4, help="the mosaic is this many sheets square")
+    args = ap.parse_args(argv)
+    machine_line()
+    probe = run_child(strikeline_command() + ["batch", "--help"])
+    if probe.returncode != 0:
+        print("batch: not available")
+        status_line("batch of sheets", f"not available: 'strikeline batch --help' says: {probe.error_line()}")
+        return 0
+    n_sheets = args.sheets_per_side ** 2
+    with tempfile.TemporaryDirectory(prefix="strikeline-bench-batch-") as tmp:
+        tmp = Path(tmp)
+        t0 = time.perf_counter()
+        job, n_lines = make_job(tmp, args.cells, args.sheets_per_side)
+        print(f"workload: {n_sheets} sheets of {args.cells:,} x {args.cells:,} cells at {CELL_M:g} m, "
+              f"{n_lines} contact lines in all; made in {time.perf_counter() - t0:.1f} s", flush=True)
+        runs = {}
+        for workers in (1, 2):
+            out = tmp / f"out{workers}"
+            r = run_child(strikeline_command() + ["batch", str(job), "--out", str(out), "--workers", str(workers)])
+            runs[workers] = r
+            label = f"batch of {n_sheets} sheets {args.cells:,}^2, {workers} worker(s)"
+            bad = failed_sheets(out)
+            problem = bad or (r.error_line() if r.returncode != 0 else "")
+            shutil.rmtree(out, ignore_errors=True)
+            if r.returncode != 0 and not bad:  # the batch itself failed, not some of its sheets
+                status_line(label, f"failed (exit {r.returncode}): {problem}")
+                continue
+            if workers == 1:
+                result_line(label, r, extra=f"peak of the largest process; {problem}".rstrip("; "))
+            elif 1 in runs and runs[1].returncode == 0:
+                speedup = runs[1].wall_s / r.wall_s
+                result_line(label, r, ratio=r.wall_s / runs[1].wall_s, reference="1 worker",
+                            extra=f"speed-up {speedup:.2f} (target >= {TARGET_SPEEDUP}: "
+                                  f"{'met' if speedup >= TARGET_SPEEDUP else 'NOT met'}); {problem}".rstrip("; "))
+            else:
+                result_line(label, r, extra=problem)
+    load_line("at the end")
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
