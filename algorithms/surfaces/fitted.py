@@ -72,9 +72,12 @@ class _Surface:
     def _taper_hull(self):
         return self.hull if self.bound_hull is None else self.bound_hull
 
-    def value(self, x, y):
+    def value(self, x, y, *, by_point=False):
+        """The surface at points; ``by_point``: each value independent of the other points asked
+        for (see :func:`strikeline.surfaces.kernel._kernel_sum`)."""
         u, v = self._uv(x, y)
-        f = self.core.value_u(u, v)
+        f = self.core.value_u(u, v, by_point=True) if by_point and not isinstance(self.core, _Poly) \
+            else self.core.value_u(u, v)
         if self.trend is not None:
             tau, _ = _taper(self._taper_hull().distance(x, y), self.taper_m)
             t = self.trend.value_u(u, v)
@@ -136,20 +139,26 @@ class _Surface:
         return self.tree.query(np.column_stack([np.ravel(x), np.ravel(y)]),
                                workers=-1)[0].reshape(np.shape(x))
 
-    def standard_error(self, x, y):
+    def needs_distance(self) -> bool:
+        """Whether :meth:`standard_error` depends on the distance to the nearest datum."""
+        return self.growth is not None or not isinstance(self.core, _Poly)
+
+    def standard_error(self, x, y, *, distance=None):
         """Standard error of the SURFACE (not of a new pick): the parameter part and the
-        growth with distance from data, times the calibration factor."""
+        growth with distance from data, times the calibration factor. ``distance``: the
+        distance of each point to the nearest datum when already known (else a KD-tree search)."""
+        dist = (lambda: self.distance(x, y)) if distance is None else (lambda: np.reshape(distance, np.shape(x)))
         if self.growth is not None:
             g = self.growth
             # the calibration factor scales the growth fitted against the stated errors; the
             # parameter part comes from the fit's own residuals and is never scaled down
             return np.sqrt((max(g.kappa, 1.0) * self.param_se(x, y)) ** 2 +
-                           g.kappa ** 2 * g.excess_variance(self.distance(x, y)))
+                           g.kappa ** 2 * g.excess_variance(dist()))
         if isinstance(self.core, _Poly):
             return self.base_se(x, y)
         rmse, dcv = self.se_cv
         sigma = self.core.info["sigma_m"]
-        d = self.distance(x, y)
+        d = dist()
         excess = max(rmse ** 2 - sigma ** 2, 0.0)
         return np.sqrt(sigma ** 2 + excess * (d / dcv) ** 2)
 

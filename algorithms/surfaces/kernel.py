@@ -51,8 +51,12 @@ def _pairwise_r2(a, b):
     return d
 
 
-def _kernel_sum(u, v, cu, cv, w, *, grad=False):
-    """``Σ_j w_j φ(|p − c_j|)`` (and its gradient) for many points, blockwise on two threads."""
+def _kernel_sum(u, v, cu, cv, w, *, grad=False, by_point=False):
+    """``Σ_j w_j φ(|p − c_j|)`` (and its gradient) for many points, blockwise on two threads.
+
+    ``by_point``: each point's sum by numpy's reduction of its own row, so that its value does not
+    depend on which other points are evaluated with it (BLAS's matrix-vector product, used
+    otherwise, may sum a row differently by its place in a block; the two differ by rounding)."""
     n, m = len(u), len(cu)
     if n == 0:
         return (np.empty(0), np.empty(0), np.empty(0)) if grad else np.empty(0)
@@ -76,7 +80,11 @@ def _kernel_sum(u, v, cu, cv, w, *, grad=False):
             gu[a:b] = (du * t).sum(axis=1)
             gv[a:b] = (dv * t).sum(axis=1)
         lg *= r2
-        out[a:b] = 0.5 * (lg @ w)
+        if by_point:
+            lg *= w
+            out[a:b] = 0.5 * lg.sum(axis=1)
+        else:
+            out[a:b] = 0.5 * (lg @ w)
 
     workers = min(2, os.cpu_count() or 1, len(starts))
     if workers > 1:
@@ -97,8 +105,8 @@ class _TPS:
         self.d = d
         self.info = info
 
-    def value_u(self, u, v):
-        s = _kernel_sum(u, v, self.centres[:, 0], self.centres[:, 1], self.w)
+    def value_u(self, u, v, *, by_point=False):
+        s = _kernel_sum(u, v, self.centres[:, 0], self.centres[:, 1], self.w, by_point=by_point)
         return s + self.d[0] + self.d[1] * u + self.d[2] * v
 
     def grad_u(self, u, v):

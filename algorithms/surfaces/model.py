@@ -13,6 +13,8 @@ outside it are flagged.
 """
 from __future__ import annotations
 
+import os
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from typing import Callable, Mapping
 
@@ -23,7 +25,7 @@ from strikeline.errors import CancelledError, InputError
 from strikeline.geometry.grid import Grid
 from strikeline.stats import ErrorGrowth, ModelChoice
 from strikeline.surfaces.fitted import _Surface
-from strikeline.surfaces.hull import distance_to_data
+from strikeline.surfaces.hull import distance_grid, distance_to_data
 
 
 #: Default error allowed between coarse-grid interpolation and full evaluation.
@@ -35,21 +37,65 @@ def _check_cancel(is_cancelled, what):
         raise CancelledError(f"{what} was cancelled")
 
 
-def _evaluate_by_rows(fn, grid: Grid, *, cells_per_chunk: int, what: str, progress=None,
-                      is_cancelled=None) -> np.ndarray:
-    """``fn(X, Y)`` at every cell centre of ``grid``, a block of rows at a time (bounded memory)."""
+def _window(grid: Grid, window) -> tuple[int, int, int, int]:
+    """``(row0, row1, col0, col1)`` of a window of ``grid`` (the whole grid for ``None``)."""
     rows, cols = grid.shape
-    xs, ys = grid.cell_centres()
-    out = np.empty((rows, cols))
-    chunk = max(1, cells_per_chunk // max(cols, 1))
-    for r0 in range(0, rows, chunk):
+    if window is None:
+        return 0, rows, 0, cols
+    r0, r1, c0, c1 = (int(v) for v in window)
+    if not (0 <= r0 < r1 <= rows and 0 <= c0 < c1 <= cols):
+        raise InputError(f"window {tuple(window)} is not (row0, row1, col0, col1) inside a grid of {rows} x {cols} "
+                         "cells with row0 < row1 and col0 < col1")
+    return r0, r1, c0, c1
+
+
+def _grid_workers(workers) -> int:
+    return max(1, int(workers)) if workers is not None else max(1, min(4, os.cpu_count() or 1))
+
+
+def _by_rows(fn, xs, ys, *, cells_per_chunk: int, what: str, workers: int = 1, progress=None,
+             is_cancelled=None) -> np.ndarray:
+    """``fn(xs, ys_block)`` (an array ``(len(ys_block), len(xs))``) for blocks of rows (bounded
+    memory), ``workers`` blocks at a time in threads (numpy, scipy's KD-tree and qhull release
+    Python's lock for most of their work); each block fills its own rows, so the result does not
+    depend on the order in which blocks finish."""
+    rows = len(ys)
+    out = np.empty((rows, len(xs)))
+    chunk = max(1, cells_per_chunk // max(len(xs), 1))
+    starts = list(range(0, rows, chunk))
+
+    def one(r0):
         _check_cancel(is_cancelled, what)
         r1 = min(rows, r0 + chunk)
-        X, Y = np.meshgrid(xs, ys[r0:r1])
-        out[r0:r1] = fn(X, Y)
-        if progress is not None:
-            progress(r1 / rows)
+        out[r0:r1] = fn(xs, ys[r0:r1])
+        return r1
+
+    if workers <= 1 or len(starts) < 2:
+        for r0 in starts:
+            r1 = one(r0)
+            if progress is not None:
+                progress(r1 / rows)
+        return out
+    with ThreadPoolExecutor(max_workers=workers) as pool:
+        futures = [pool.submit(one, r0) for r0 in starts]
+        try:
+            for f in futures:
+                r1 = f.result()
+                if progress is not None:
+                    progress(r1 / rows)
+        except BaseException:
+            for f in futures:
+                f.cancel()
+            raise
     return out
+
+
+@dataclass(frozen=True)
+class _GridPlan:
+    """How a grid is evaluated: the checked coarse spline (``None``: every cell) and the report."""
+
+    spline: object
+    report: "GridEvaluation"
 
 
 @dataclass(frozen=True)
@@ -132,6 +178,7 @@ class SurfaceModel:
     stated_sigma_m: float | None = None
     n_groups: int = 0
     _holdout: object = field(default=None, repr=False, compare=False)
+    _grid_plans: dict = field(default_factory=dict, init=False, repr=False, compare=False)
 
     @property
     def data_xy(self) -> np.ndarray:
@@ -181,8 +228,21 @@ class SurfaceModel:
         return distance_to_data(x, y, self._surface.tree)
 
     def is_extrapolated(self, x, y):
-        """``True`` where the nearest datum is farther than :attr:`reach_m`."""
-        return self.distance_to_data(x, y) > self.reach_m
+        """``True`` where the nearest datum is farther than :attr:`reach_m`.
+
+        The KD-tree search is bounded just beyond the reach (a point with no datum within the
+        bound is extrapolated without finding its nearest datum, much the most of the work far
+        from the data); a point within the bound gets the same distance as
+        :meth:`distance_to_data`, so the flags are those of ``distance_to_data(x, y) > reach_m``.
+        """
+        reach = float(self.reach_m)
+        if not np.isfinite(reach):
+            return self.distance_to_data(x, y) > reach
+        x, y = np.broadcast_arrays(np.asarray(x, float), np.asarray(y, float))
+        bound = reach * (1.0 + 1e-9) + 1e-9  # a datum at exactly reach_m is still found
+        d, _ = self._surface.tree.query(np.column_stack([x.ravel(), y.ravel()]), distance_upper_bound=bound,
+                                        workers=-1)
+        return (d > reach).reshape(x.shape)
 
     def hull_distance(self, x, y):
         """Distance (metres) outside the convex hull of the data (0 inside)."""
@@ -220,9 +280,9 @@ class SurfaceModel:
     # -- grids -------------------------------------------------------------------------------
     def evaluate_grid(self, grid: Grid, *, tolerance_m: float = GRID_TOLERANCE_M,
                       initial_step: int | None = None, return_report: bool = False,
-                      seed: int = 0, progress: Callable | None = None,
-                      is_cancelled: Callable | None = None):
-        """The surface at every cell centre of a grid.
+                      seed: int = 0, window=None, workers: int | None = None,
+                      progress: Callable | None = None, is_cancelled: Callable | None = None):
+        """The surface at every cell centre of a grid (or of a window of it).
 
         The plane is evaluated at every cell. The other models are evaluated on a coarse
         lattice of every ``step``-th cell (the last row and column included) and interpolated
@@ -243,21 +303,55 @@ class SurfaceModel:
             Also return a :class:`GridEvaluation`.
         seed : int, default 0
             Seed for the random check cells.
+        window : tuple of 4 int, optional
+            ``(row0, row1, col0, col1)``: only these rows and columns of ``grid``. The lattice,
+            the check and the spline are those of the whole grid (made once per grid and kept
+            with the model), and each cell's value depends on that cell only, so a window holds
+            exactly the values of the same cells of the whole grid's call (a grid made for the
+            window alone would have its own lattice and cell-centre rounding). Where every cell is
+            evaluated, a spline's kernel sum is reduced point by point for the same reason.
+        workers : int, optional
+            Threads over blocks of rows where every cell is evaluated (default: the CPUs, at
+            most 4); the values do not depend on it.
         progress, is_cancelled : callable, optional
 
         Returns
         -------
-        ndarray, shape ``grid.shape``, float64 (and a GridEvaluation if asked).
+        ndarray, shape ``grid.shape`` (or of the window), float64 (and a GridEvaluation if asked).
         """
         if not float(tolerance_m) > 0:
             raise InputError(f"tolerance_m must be positive, got {tolerance_m}")
+        r0, r1, c0, c1 = _window(grid, window)
+        plan = self._grid_plan(grid, float(tolerance_m), initial_step, seed, progress, is_cancelled)
+        if plan.spline is not None:
+            z = plan.spline(np.arange(r0, r1), np.arange(c0, c1))
+        else:
+            xs, ys = grid.cell_centres()
+
+            def values(x, y):
+                X, Y = np.meshgrid(x, y)
+                return self._surface.value(X.ravel(), Y.ravel(), by_point=True).reshape(X.shape)
+            z = _by_rows(values, xs[c0:c1], ys[r0:r1], cells_per_chunk=1 << 18, what="grid evaluation",
+                         workers=_grid_workers(workers) if self.kind == "plane" else 1,
+                         progress=progress, is_cancelled=is_cancelled)
+        if progress is not None:
+            progress(1.0)
+        return (z, plan.report) if return_report else z
+
+    def _grid_plan(self, grid: Grid, tolerance_m, initial_step, seed, progress, is_cancelled) -> _GridPlan:
+        """The coarse lattice's checked spline for ``grid`` (or full evaluation), made once per
+        grid and options."""
+        key = (grid.transform, grid.shape, tolerance_m, initial_step, seed)
+        plan = self._grid_plans.get(key)
+        if plan is not None:
+            return plan
         rows, cols = grid.shape
         xs, ys = grid.cell_centres()
-        report = None
         step = initial_step or int(np.ceil(max(rows, cols) / 128))
         if self.kind == "plane":
             step = 1
         rng = np.random.default_rng(seed)
+        plan = _GridPlan(None, GridEvaluation("full", 1, 0.0, 0))
         while step > 1:
             _check_cancel(is_cancelled, "grid evaluation")
             ri = np.unique(np.append(np.arange(0, rows, step), rows - 1))
@@ -273,17 +367,13 @@ class SurfaceModel:
             if progress is not None:
                 progress(0.5)
             if emax < tolerance_m:
-                z = spl(np.arange(rows), np.arange(cols))
-                report = GridEvaluation("coarse", int(step), emax, int(len(err)))
+                plan = _GridPlan(spl, GridEvaluation("coarse", int(step), emax, int(len(err))))
                 break
             step //= 2
-        if report is None:
-            z = _evaluate_by_rows(self.evaluate, grid, cells_per_chunk=1 << 18, what="grid evaluation",
-                                  progress=progress, is_cancelled=is_cancelled)
-            report = GridEvaluation("full", 1, 0.0, 0)
-        if progress is not None:
-            progress(1.0)
-        return (z, report) if return_report else z
+        if len(self._grid_plans) >= 4:
+            self._grid_plans.clear()
+        self._grid_plans[key] = plan
+        return plan
 
     def _check_cells(self, grid, ri, ci, rng, n_each=2048):
         rows, cols = grid.shape
@@ -303,10 +393,28 @@ class SurfaceModel:
         mc = mc[rng.integers(0, len(mc), n_each)]
         return np.concatenate([r, rr, mr]), np.concatenate([c, rc, mc])
 
-    def standard_error_grid(self, grid: Grid, *, progress=None, is_cancelled=None):
-        """:meth:`standard_error` at every cell centre of a grid (float64, ``grid.shape``)."""
-        return _evaluate_by_rows(self.standard_error, grid, cells_per_chunk=1 << 20,
-                                 what="standard error grid", progress=progress, is_cancelled=is_cancelled)
+    def standard_error_grid(self, grid: Grid, *, window=None, workers: int | None = None, progress=None,
+                            is_cancelled=None):
+        """:meth:`standard_error` at every cell centre of a grid (float64, ``grid.shape``), or of
+        a window ``(row0, row1, col0, col1)`` of it (the same values as those cells of the whole
+        grid's call).
+
+        Blocks of rows in ``workers`` threads (default: the CPUs, at most 4). The distance to the
+        nearest datum comes from :func:`strikeline.surfaces.hull.distance_grid` (row by row, the
+        values of a KD-tree search per cell, several times faster), the rest is the formula of
+        :meth:`standard_error` cell by cell.
+        """
+        r0, r1, c0, c1 = _window(grid, window)
+        xs, ys = grid.cell_centres()
+        s = self._surface
+
+        def block(x, y):
+            X, Y = np.meshgrid(x, y)
+            d = distance_grid(x, y, s.tree.data, tree=s.tree) if s.needs_distance() else None
+            return s.standard_error(X.ravel(), Y.ravel(), distance=None if d is None else d.ravel()).reshape(X.shape)
+
+        return _by_rows(block, xs[c0:c1], ys[r0:r1], cells_per_chunk=1 << 18, what="standard error grid",
+                        workers=_grid_workers(workers), progress=progress, is_cancelled=is_cancelled)
 
     def summary(self) -> dict:
         """A JSON-ready description: ``{"chosen": ..., "cv_rmse_m": {...}, ...}``."""
