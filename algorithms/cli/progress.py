@@ -55,21 +55,22 @@ class TerminalReporter(Reporter):
     def stream(self):
         return self._stream if self._stream is not None else sys.stderr
 
-    def _make_bar(self, total: int):
+    def _make_bar(self, total: int, desc: str):
         from tqdm import tqdm
 
         class _Bar(tqdm):
             monitor_interval = 0  # no monitor thread left behind in the process
 
-        return _Bar(total=total, file=self.stream, leave=False, dynamic_ncols=True, unit="step",
+        return _Bar(total=total, desc=desc, file=self.stream, leave=False, dynamic_ncols=True, unit="step",
                     bar_format="{desc}: {percentage:3.0f}%|{bar}| {elapsed}")
 
     def start(self, step):
         if not self.draw:
             return
+        desc = f"{step.label} ({step.index}/{step.total})"
         if self._bar is None:
-            self._bar = self._make_bar(step.total)
-        self._bar.set_description_str(f"{step.label} ({step.index}/{step.total})", refresh=False)
+            self._bar = self._make_bar(step.total, desc)
+        self._bar.set_description_str(desc, refresh=False)
         self._set(step.index - 1)
 
     def advance(self, step, fraction):
@@ -79,6 +80,8 @@ class TerminalReporter(Reporter):
     def finish(self, step, timing):
         if self._bar is not None:
             self._set(step.index)
+            if step.index == step.total:  # cleared before the results are printed
+                self.close(status="ok")
 
     def _set(self, n: float) -> None:
         self._bar.n = n
@@ -129,15 +132,17 @@ def check_log_path(path: str, *, out: str | None = None, flag: str = "--log-json
     if os.path.isdir(full):
         raise InputError(f"{flag} '{path}' is a folder; give a file name for the log (e.g. {path.rstrip('/')}/run.jsonl "
                          "beside the results, not inside --out)")
+    if out:
+        real, real_out = os.path.realpath(full), os.path.realpath(os.path.abspath(out))
+        if real == real_out:
+            raise InputError(f"{flag} '{path}' is the --out path itself; give the log a file name of its own")
+        if real.startswith(real_out.rstrip(os.sep) + os.sep):
+            raise InputError(f"{flag} '{path}' lies inside --out '{out}', which the run replaces as a whole; "
+                             "write the log beside the output folder")
     parent = os.path.dirname(full)
     if not os.path.isdir(parent):
         raise InputError(f"{flag} '{path}': its folder '{parent}' does not exist; create it or give a log path in "
                          "an existing folder")
-    if out:
-        real, real_out = os.path.realpath(full), os.path.realpath(os.path.abspath(out))
-        if real == real_out or real.startswith(real_out.rstrip(os.sep) + os.sep):
-            raise InputError(f"{flag} '{path}' lies inside --out '{out}', which the run replaces as a whole; "
-                             "write the log beside the output folder")
     if os.path.lexists(full) and not is_strikeline_log(full):
         raise InputError(f"{flag} '{path}' exists and is not a strikeline log (its first line does not mark one); "
                          "give a new file name - a strikeline log from an earlier run is replaced, nothing else is")

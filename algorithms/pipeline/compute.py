@@ -101,7 +101,8 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     grid_notes = []  # said once the picks give a plane: an input error stays the only line
     grid = surface_grid(inputs, opts, log=grid_notes.append)  # first: an extent or cell refused before any work
     check_workload(inputs, opts, grid=grid)  # every size-driving option, before any work
-    picks = collect_picks(inputs, spacing_m=opts.pick_spacing_m, log=log, is_cancelled=is_cancelled)
+    picks = collect_picks(inputs, spacing_m=opts.pick_spacing_m, log=log, is_cancelled=is_cancelled,
+                          progress=tracker.part())
     step("attitude and confidence")
     plane = fit_picks(picks, what=what)
     sigma = pick_sigmas(inputs, picks, opts)
@@ -129,7 +130,8 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
         log(f"warning: local attitudes: {window_note}")
     if window is not None:
         attitudes = local_attitudes(picks.xyz, window_m=window, contact_id=picks.contact_id,
-                                    sigma_z_m=sigma, seed=opts.seed, is_cancelled=is_cancelled)
+                                    sigma_z_m=sigma, seed=opts.seed, is_cancelled=is_cancelled,
+                                    progress=tracker.part())
     step("surface model")
     ub = None
     if inputs.unit_polygons is not None:
