@@ -206,6 +206,14 @@ SUMMARY_FILE = "summary.json"
 RESULTS_FILE = "results.gpkg"
 #: The list of the files strikeline wrote into an output folder (size, SHA-256): what --overwrite may replace.
 MANIFEST_FILE = "strikeline_manifest.json"
+#: The run's report: one self-contained HTML page with the caution, the answer and the figures.
+REPORT_FILE = "report.html"
+#: The files of a run's folder besides its GeoTIFFs, with their meaning (the README's output reference).
+RUN_FILES = ((RESULTS_FILE, "the vector layers (above) and their QGIS styles"),
+             (SUMMARY_FILE, "the run's numbers and words (keys below)"),
+             (REPORT_FILE, "the caution, the answer in plain words and the figures, as one self-contained page "
+                           "(strikeline run, unless --no-report; needs the plot extra)"),
+             (MANIFEST_FILE, "the files strikeline wrote into the folder, with size and SHA-256"))
 #: The table of results.gpkg that holds its layers' QGIS styles (QGIS's own name; not a layer).
 STYLES_TABLE = "layer_styles"
 
@@ -579,6 +587,8 @@ def reference_markdown() -> str:
                               "(numbers as real, others as text; null where its input lacks the field)"))
     lines += ["", "### Rasters (float32 GeoTIFF)", "", _row("file", "unit", "meaning"), _row("---", "---", "---")]
     lines += [_row(f"`{r.file}`", _unit(r.unit), r.meaning) for r in RASTERS.values()]
+    lines += ["", "### Other files of a run's folder", "", _row("file", "unit", "meaning"), _row("---", "---", "---")]
+    lines += [_row(f"`{name}`", "-", meaning) for name, meaning in RUN_FILES]
     for title, keys in (("`summary.json`", SUMMARY_KEYS), ("`strikeline attitude --out`", ATTITUDE_REPORT_KEYS)):
         lines += ["", f"### Keys of {title} (`*`: a key that is data - file, group, model or class)", "",
                   _row("key", "unit", "meaning"), _row("---", "---", "---")]

@@ -127,6 +127,8 @@ def test_readme_lists_every_name_of_the_module():
             assert (f"`{layer.name}`", f"`{f.name}`", f.unit or "-") in names, (layer.name, f.name)
     for r in V.RASTERS.values():
         assert (r.file, r.unit or "-") in plain, r.file
+    for name, _ in V.RUN_FILES:
+        assert (name, "-") in plain, name
     for k in (*V.SUMMARY_KEYS, *V.ATTITUDE_REPORT_KEYS, *V.QGIS_OUTPUTS):
         assert (k.name, k.unit or "-") in plain, k.name
 
@@ -179,7 +181,8 @@ def test_demo_results_gpkg_and_rasters_use_exactly_the_vocabulary(demo_results):
     assert got["attitudes"] == list(V.ATTITUDES.field_names)
     tifs = {p.name for p in demo_results.glob("*.tif")}
     assert tifs <= {r.file for r in V.RASTERS.values()} and {"surface.tif", "dip.tif", "depth.tif"} <= tifs
-    assert {p.name for p in demo_results.iterdir()} == tifs | {V.RESULTS_FILE, V.SUMMARY_FILE, V.MANIFEST_FILE}
+    assert {p.name for p in demo_results.iterdir()} == tifs | {V.RESULTS_FILE, V.SUMMARY_FILE, V.MANIFEST_FILE,
+                                                               V.REPORT_FILE}
 
 
 def _named_fields(spec, fields):

@@ -18,12 +18,12 @@ def demo_dir() -> Path:
 
 def add_parser(sub) -> argparse.ArgumentParser:
     p = sub.add_parser("demo", help=HELP, description=HELP + ".", epilog=EPILOG)
-    add_options(p, "demo_out", "overwrite", "quiet", "log_json")
+    add_options(p, "demo_out", "overwrite", "no_report", "quiet", "log_json")
     p.set_defaults(handler=main)
     return p
 
 
-def demo_options(out, *, overwrite=False):
+def demo_options(out, *, overwrite=False, no_report=False):
     from strikeline.pipeline import RunOptions
 
     d = demo_dir()
@@ -36,14 +36,14 @@ def demo_options(out, *, overwrite=False):
                       boreholes=str(d / "boreholes.gpkg"), borehole_collar_field="collar_m",
                       borehole_depth_field="depth_m",
                       orientations=str(d / "orientations.gpkg"), dip_field="dip", dip_direction_field="dip_dir",
-                      out=str(out), overwrite=overwrite)
+                      out=str(out), overwrite=overwrite, no_report=no_report)
 
 
 def main(args) -> int:
     from strikeline.cli.run import report
     from strikeline.pipeline import run
 
-    opts = demo_options(args.out, overwrite=args.overwrite)
+    opts = demo_options(args.out, overwrite=args.overwrite, no_report=args.no_report)
     results = run(opts, reporter=args.reporter)  # log lines, progress bar, --log-json: strikeline.cli.progress
     report(results, opts.out)
     return 0

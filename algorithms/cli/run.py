@@ -3,8 +3,10 @@ from __future__ import annotations
 
 import argparse
 import sys
+from pathlib import Path
 
 from strikeline import CAUTION
+from strikeline import vocabulary as V
 from strikeline.cli.options import EPILOG, add_contacts, add_options, add_output, add_topography
 
 HELP = ("model a mapped contact: picks, attitude with confidence, surface model, structure contours, "
@@ -17,6 +19,7 @@ def add_parser(sub) -> argparse.ArgumentParser:
     add_topography(p)
     g = p.add_argument_group("outputs")
     add_output(g)
+    add_options(g, "no_report")
     add_options(g, "interval_m", "cell_m", "extent", "block_cells", "pick_spacing_m", "misfit_flag_m")
     add_options(p.add_argument_group("surface model"), "model", "boreholes", "boreholes_layer", "borehole_z_field",
                 "borehole_collar_field", "borehole_depth_field", "borehole_sigma_m", "orientations",
@@ -99,6 +102,9 @@ def report(results, out, stream=None) -> None:
         print(f"true thickness: mean {t['mean_m']:.1f} m, std {t['std_m']:.1f} m "
               f"(10-90%: {t['p10_m']:.1f}-{t['p90_m']:.1f} m)", file=stream)
     print(f"results written to {out}/", file=stream)
+    page = Path(out) / V.REPORT_FILE
+    if page.is_file():
+        print(f"report: {page}", file=stream)
     print(CAUTION, file=stream)
 
 

@@ -229,6 +229,8 @@ _OPTION_LIST = (
          metavar="DIR", required=True, commands=_RUN),
     _opt("overwrite", bool, "replace an existing output (the --out folder or file)", default=False,
          flag="--overwrite", commands=("run", "demo", "attitude", "thickness", "thickness grids")),
+    _opt("no_report", bool, "do not write report.html, the page of figures (drawing it needs matplotlib, the plot "
+         "extra)", default=False, flag="--no-report", commands=("run", "demo")),
     _opt("demo_out", "path", "output folder", default="demo-output", flag="--out", metavar="DIR", dest="out",
          commands=("demo",)),
     # ---- what a command says while it works (strikeline.cli.progress)

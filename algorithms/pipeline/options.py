@@ -49,6 +49,7 @@ class RunOptions:
     extent: tuple | None = default("extent")  # (xmin, ymin, xmax, ymax) of the output grid
     block_cells: int | tuple | None = default("block_cells")  # N, or (rows, cols) from the library
     overwrite: bool = default("overwrite")
+    no_report: bool = default("no_report")
     pick_spacing_m: float | None = default("pick_spacing_m")
     # surface model and extra constraints
     model: str = default("model")

@@ -191,11 +191,13 @@ def result_layers(r: Results) -> list[LayerOut]:
 _RASTER_OF_FILE = {spec.file: spec for spec in V.RASTERS.values()}
 
 
-def _write_all(r: Results, folder: Path, *, is_cancelled=None) -> None:
+def _write_all(r: Results, folder: Path, *, is_cancelled=None, report: bool = False, log: Log = _quiet) -> None:
     """Write every output of a run into ``folder`` (a new, empty folder).
 
     Each writer checks its own file (GDAL's close, the file read back) and raises
-    :class:`strikeline.errors.OutputError` on failure; a new output is one more call here.
+    :class:`strikeline.errors.OutputError` on failure; a new output is one more call here. With
+    ``report``, the page of figures (:func:`strikeline.report.write_report`) is drawn last, from
+    the files already in ``folder``; without matplotlib it is left out with one line to ``log``.
     """
     for name, array in result_rasters(r):
         spec = _RASTER_OF_FILE[name]
@@ -207,3 +209,7 @@ def _write_all(r: Results, folder: Path, *, is_cancelled=None) -> None:
     write_gpkg(folder / V.RESULTS_FILE, result_layers(r), r.grid.crs_wkt)
     write_layer_styles(folder / V.RESULTS_FILE)  # QGIS opens the layers styled (layer_styles)
     write_text_checked(folder / V.SUMMARY_FILE, dumps_stable(r.summary))
+    if report:
+        from strikeline.report import write_report
+
+        write_report(folder, log=log)

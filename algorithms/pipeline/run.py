@@ -33,6 +33,6 @@ def run(opts: RunOptions, *, log: Log = _quiet, progress=None, is_cancelled=None
         inputs = load_inputs(opts, log=log)
         results = compute(inputs, opts, log=log, tracker=tracker, folder=part)
         tracker.step(WRITING)
-        _write_all(results, part, is_cancelled=is_cancelled)
+        _write_all(results, part, is_cancelled=is_cancelled, report=not opts.no_report, log=log)
     tracker.finish()
     return results

@@ -1,0 +1,228 @@
+"""Bounded-memory views of written outputs: a raster read decimated, a raster sampled at points,
+a point layer thinned to a regular sample, a layer's names.
+
+What a run wrote may be far larger than memory (a 30,000 x 30,000 grid is 3.6 GB as float32); a
+picture of it needs at most a few million cells and a few thousand points. These readers ask GDAL
+for no more than that: a decimated raster comes from GDAL's own resampling in ``RasterIO`` (the
+buffer smaller than the window), samples at points read only the strips of rows around them, and
+a point layer is read feature by feature keeping every k-th.
+"""
+from __future__ import annotations
+
+import math
+import os
+
+import numpy as np
+from osgeo import gdal, ogr
+
+from strikeline.errors import InputError, RasterReadError, VectorReadError
+from strikeline.geometry.grid import Grid
+from strikeline.io._gdal import gdal_exceptions, gdal_message
+
+#: GDAL's resampling of a decimated read, by name.
+_RESAMPLING = {"average": gdal.GRIORA_Average, "nearest": gdal.GRIORA_NearestNeighbour}
+
+
+def _open_raster(path: str, label: str):
+    if not os.path.exists(path):
+        raise InputError(f"{label} '{path}': file not found; check the path")
+    try:
+        return gdal.Open(path, gdal.GA_ReadOnly)
+    except RuntimeError as exc:
+        raise RasterReadError(f"{label} '{path}': GDAL cannot open it as a raster ({gdal_message(exc)}); "
+                              "give a GeoTIFF") from None
+
+
+def _as_float(arr: np.ndarray, nodata) -> np.ndarray:
+    out = np.asarray(arr, dtype=np.float64)
+    if nodata is not None:
+        out[out == nodata] = np.nan
+    out[~np.isfinite(out)] = np.nan
+    return out
+
+
+def decimation(shape, max_cells: int) -> int:
+    """The whole factor by which a grid of ``shape`` (rows, cols) is thinned to hold at most
+    ``max_cells`` cells (1: read as it is).
+
+    >>> decimation((30000, 30000), 1_000_000), decimation((400, 400), 1_000_000)
+    (30, 1)
+    """
+    rows, cols = int(shape[0]), int(shape[1])
+    if max_cells < 1:
+        raise ValueError(f"max_cells must be at least 1, got {max_cells}")
+    k = max(1, math.ceil(math.sqrt(rows * cols / max_cells)))
+    while math.ceil(rows / k) * math.ceil(cols / k) > max_cells:
+        k += 1
+    return k
+
+
+def read_decimated(path, *, max_cells: int = 1_000_000, resampling: str = "average",
+                   label: str = "raster") -> tuple[np.ndarray, Grid]:
+    """Band 1 of a raster thinned by a whole factor to at most ``max_cells`` cells.
+
+    GDAL resamples while it reads (``ReadAsArray`` with ``buf_xsize``/``buf_ysize`` smaller than
+    the band), so memory is that of the result, whatever the raster's size.
+
+    Parameters
+    ----------
+    path : str or PathLike
+    max_cells : int
+        Most cells of the result.
+    resampling : {'average', 'nearest'}
+        How GDAL makes one result cell of ``k x k`` cells: their mean (nodata cells left out) or
+        the one nearest the centre.
+    label : str
+        How to name the raster in messages.
+
+    Returns
+    -------
+    array : ndarray of float64, NaN for nodata
+    grid : Grid
+        The result's georeferencing (cells ``k`` times larger; the last row and column may reach
+        past the raster by less than one cell when its size is not a multiple of ``k``).
+    """
+    path = os.fspath(path)
+    if resampling not in _RESAMPLING:
+        raise ValueError(f"resampling must be one of {sorted(_RESAMPLING)}, got {resampling!r}")
+    with gdal_exceptions():
+        ds = _open_raster(path, label)
+        try:
+            band = ds.GetRasterBand(1)
+            rows, cols = ds.RasterYSize, ds.RasterXSize
+            k = decimation((rows, cols), max_cells)
+            by, bx = math.ceil(rows / k), math.ceil(cols / k)
+            try:
+                arr = band.ReadAsArray(0, 0, cols, rows, buf_xsize=bx, buf_ysize=by,
+                                       buf_type=gdal.GDT_Float64, resample_alg=_RESAMPLING[resampling])
+            except RuntimeError as exc:
+                raise RasterReadError(f"{label} '{path}': GDAL could not read it ({gdal_message(exc)})") from None
+            x0, dx, _, y0, _, dy = ds.GetGeoTransform()
+            nodata = band.GetNoDataValue()
+            wkt = ds.GetProjection() or ""
+        finally:
+            ds = None
+    grid = Grid((x0, dx * cols / bx, 0.0, y0, 0.0, dy * rows / by), (by, bx), wkt, nodata)
+    return _as_float(arr, nodata), grid
+
+
+def sample_bilinear(path, x, y, *, block_rows: int = 256, label: str = "raster") -> np.ndarray:
+    """Band 1 of a raster interpolated bilinearly between cell centres at the points ``(x, y)``.
+
+    A point is NaN outside the cell centres' hull widened by half a cell (there the nearest edge
+    cell's values are used along the edge) or where one of its four cells is nodata. Rows are read
+    in strips of ``block_rows`` around the points, so memory is one strip, whatever the raster's
+    size.
+
+    The interpolation is the bilinear one of e.g. Press et al. 2007, *Numerical Recipes*, 3rd ed.,
+    sec. 3.6.1 (eq. 3.6.5).
+    """
+    path = os.fspath(path)
+    x = np.asarray(x, dtype=float).ravel()
+    y = np.asarray(y, dtype=float).ravel()
+    out = np.full(x.shape, np.nan)
+    if not len(x):
+        return out
+    with gdal_exceptions():
+        ds = _open_raster(path, label)
+        try:
+            band = ds.GetRasterBand(1)
+            rows, cols = ds.RasterYSize, ds.RasterXSize
+            x0, dx, _, y0, _, dy = ds.GetGeoTransform()
+            nodata = band.GetNoDataValue()
+            fc = (x - x0) / dx - 0.5
+            fr = (y - y0) / dy - 0.5
+            inside = np.isfinite(fc) & np.isfinite(fr) & (fc >= -0.5) & (fc <= cols - 0.5) \
+                & (fr >= -0.5) & (fr <= rows - 0.5)
+            fc = np.clip(fc, 0.0, cols - 1.0)
+            fr = np.clip(fr, 0.0, rows - 1.0)
+            c0 = np.minimum(np.floor(fc).astype(np.int64), max(cols - 2, 0))
+            r0 = np.minimum(np.floor(fr).astype(np.int64), max(rows - 2, 0))
+            tc, tr = fc - c0, fr - r0
+            idx = np.flatnonzero(inside)
+            for start in range(0, rows, block_rows):
+                sel = idx[(r0[idx] >= start) & (r0[idx] < start + block_rows)]
+                if not len(sel):
+                    continue
+                ra, rb = start, min(start + block_rows + 1, rows)
+                ca, cb = int(c0[sel].min()), min(int(c0[sel].max()) + 2, cols)
+                try:
+                    block = _as_float(band.ReadAsArray(ca, ra, cb - ca, rb - ra), nodata)
+                except RuntimeError as exc:
+                    raise RasterReadError(f"{label} '{path}': GDAL could not read it ({gdal_message(exc)})") from None
+                i, j = r0[sel] - ra, c0[sel] - ca
+                i1 = np.minimum(i + 1, block.shape[0] - 1)
+                j1 = np.minimum(j + 1, block.shape[1] - 1)
+                u, v = tc[sel], tr[sel]
+                out[sel] = ((1 - u) * (1 - v) * block[i, j] + u * (1 - v) * block[i, j1]
+                            + (1 - u) * v * block[i1, j] + u * v * block[i1, j1])
+        finally:
+            ds = None
+    return out
+
+
+def layer_names(path) -> list[str]:
+    """The names of the layers of a vector file (an empty list when OGR cannot open it)."""
+    path = os.fspath(path)
+    if not os.path.exists(path):
+        return []
+    with gdal_exceptions():
+        try:
+            ds = ogr.Open(path, 0)
+        except RuntimeError:
+            return []
+        try:
+            return [ds.GetLayer(i).GetName() for i in range(ds.GetLayerCount())]
+        finally:
+            ds = None
+
+
+def read_point_sample(path, *, layer: str, fields=(), max_points: int = 20_000) -> dict:
+    """Every k-th point of a point layer (in feature order), at most ``max_points`` of them.
+
+    Returns
+    -------
+    dict
+        ``x``, ``y``, ``z`` (NaN without Z) as float arrays, one array per name of ``fields``
+        (None for null), and ``n_total``, the features of the layer, and ``step``, the ``k``.
+    """
+    path = os.fspath(path)
+    with gdal_exceptions():
+        try:
+            ds = ogr.Open(path, 0)
+        except RuntimeError as exc:
+            raise VectorReadError(f"'{path}': OGR cannot open it ({gdal_message(exc)})") from None
+        try:
+            lyr = ds.GetLayerByName(layer)
+            if lyr is None:
+                raise InputError(f"'{path}' has no layer '{layer}'")
+            n = lyr.GetFeatureCount()
+            step = max(1, math.ceil(n / max_points)) if max_points > 0 else max(n, 1)
+            defn = lyr.GetLayerDefn()
+            index = {f: defn.GetFieldIndex(f) for f in fields}
+            missing = [f for f, i in index.items() if i < 0]
+            if missing:
+                raise InputError(f"layer '{layer}' of '{path}' has no field(s) {', '.join(missing)}")
+            xs, ys, zs = [], [], []
+            vals = {f: [] for f in fields}
+            lyr.ResetReading()
+            for k, feat in enumerate(lyr):
+                if k % step:
+                    continue
+                g = feat.GetGeometryRef()
+                if g is None or g.IsEmpty():
+                    continue
+                xs.append(g.GetX())
+                ys.append(g.GetY())
+                zs.append(g.GetZ() if g.Is3D() else np.nan)
+                for f, i in index.items():
+                    vals[f].append(feat.GetField(i) if feat.IsFieldSetAndNotNull(i) else None)
+        finally:
+            ds = None
+    out = {"x": np.asarray(xs, float), "y": np.asarray(ys, float), "z": np.asarray(zs, float),
+           "n_total": int(n), "step": int(step)}
+    for f in fields:
+        arr = np.empty(len(vals[f]), dtype=object)
+        arr[:] = vals[f]
+        out[f] = arr
+    return out

@@ -1,0 +1,8 @@
+"""The run report: ``report.html``, one self-contained page with the caution, the answer in plain
+words and the figures (map, equal-area net, residuals, model scores, thickness), made from a run's
+output folder in bounded memory. Drawing needs matplotlib (the ``plot`` extra); without it
+:func:`write_report` writes nothing and says how to install it.
+"""
+from strikeline.report.page import MISSING_PLOT, answer_sentences, plane_words, render_report, write_report
+
+__all__ = ["MISSING_PLOT", "answer_sentences", "plane_words", "render_report", "write_report"]

@@ -1,0 +1,127 @@
+"""What the report shows, read back from a run's output folder in bounded memory.
+
+Everything comes from the files the run wrote (``summary.json``, the layers of ``results.gpkg``,
+the GeoTIFFs), so the report needs no array of the run in memory: grids are read decimated to at
+most :data:`MAX_MAP_CELLS` cells, points thinned to at most :data:`MAX_POINTS`, and the residuals
+of the picks are the surface GeoTIFF interpolated at them.
+"""
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from strikeline import vocabulary as V
+from strikeline.errors import StrikelineError
+from strikeline.io.sampling import layer_names, read_decimated, read_point_sample, sample_bilinear
+from strikeline.io.vector import read_layer
+
+#: Most cells of a grid read for a picture: a map panel is about 1,000 pixels across.
+MAX_MAP_CELLS = 1_000_000
+#: Most points of a layer drawn (every k-th beyond it).
+MAX_POINTS = 20_000
+#: Most cells of a grid read for a histogram (a regular sample of them).
+MAX_HISTOGRAM_CELLS = 4_000_000
+
+
+@dataclass
+class Raster:
+    """A grid read decimated: values (NaN for nodata) and the extent ``(xmin, xmax, ymin, ymax)``."""
+
+    values: np.ndarray
+    extent: tuple
+    cell_m: float  # of the grid as read (the file's cell times the decimation)
+
+
+@dataclass
+class Lines:
+    """Lines of a layer with their fields (shapely geometries, 2-D)."""
+
+    geoms: np.ndarray
+    fields: dict = field(default_factory=dict)
+
+    def __len__(self) -> int:
+        return len(self.geoms)
+
+
+@dataclass
+class ReportData:
+    """The contents of an output folder that the report draws."""
+
+    folder: Path
+    summary: dict
+    ground: Raster | None = None  # surface + depth: the DEM on the output grid
+    depth: Raster | None = None
+    surface: Raster | None = None
+    true_thickness: Raster | None = None
+    thickness_sample: np.ndarray | None = None
+    contours: Lines | None = None
+    trace: Lines | None = None
+    misfit: Lines | None = None
+    picks: dict | None = None  # x, y, z, residual_m, n_total, step
+    attitudes: dict | None = None  # by quality: (dip_deg, dip_direction_deg)
+    notes: list = field(default_factory=list)
+
+
+def _raster(path: Path, *, max_cells: int, resampling: str = "average") -> Raster | None:
+    if not path.exists():
+        return None
+    arr, grid = read_decimated(path, max_cells=max_cells, resampling=resampling, label=path.name)
+    xmin, ymin, xmax, ymax = grid.bounds
+    return Raster(arr, (xmin, xmax, ymin, ymax), grid.cell_x_m)
+
+
+def _lines(gpkg: Path, name: str, names: list) -> Lines | None:
+    if name not in names:
+        return None
+    try:
+        layer = read_layer(gpkg, layer=name, label="results", geometry="line", layer_option="the layer name")
+    except StrikelineError:  # an empty layer: nothing to draw
+        return Lines(np.empty(0, dtype=object))
+    return Lines(layer.geoms, layer.fields)
+
+
+def _bool(values) -> np.ndarray:
+    return np.array([bool(v) for v in values], dtype=bool)
+
+
+def load_outputs(folder, *, max_cells: int = MAX_MAP_CELLS, max_points: int = MAX_POINTS) -> ReportData:
+    """Read what the report shows from a run's output ``folder`` (bounded memory, read-only)."""
+    folder = Path(folder)
+    summary = json.loads((folder / V.SUMMARY_FILE).read_text(encoding="utf-8"))
+    d = ReportData(folder, summary)
+    d.surface = _raster(folder / V.SURFACE.file, max_cells=max_cells)
+    d.depth = _raster(folder / V.DEPTH.file, max_cells=max_cells)
+    if d.surface is not None and d.depth is not None and d.surface.values.shape == d.depth.values.shape:
+        # depth below ground = ground - surface, so the ground is their sum on the output grid
+        d.ground = Raster(d.surface.values + d.depth.values, d.surface.extent, d.surface.cell_m)
+    tt = folder / V.TRUE_THICKNESS.file
+    d.true_thickness = _raster(tt, max_cells=max_cells)
+    if tt.exists():
+        vals, _ = read_decimated(tt, max_cells=MAX_HISTOGRAM_CELLS, resampling="nearest", label=tt.name)
+        d.thickness_sample = vals[np.isfinite(vals)]
+    gpkg = folder / V.RESULTS_FILE
+    names = layer_names(gpkg)
+    d.contours = _lines(gpkg, V.STRUCTURE_CONTOURS.name, names)
+    d.trace = _lines(gpkg, V.PREDICTED_TRACE.name, names)
+    d.misfit = _lines(gpkg, V.CONTACT_MISFIT.name, names)
+    for lines, key in ((d.contours, "extrapolated"), (d.trace, "extrapolated"), (d.misfit, "flagged")):
+        if lines is not None and key in lines.fields:
+            lines.fields[key] = _bool(lines.fields[key])
+    if V.PICKS.name in names:
+        p = read_point_sample(gpkg, layer=V.PICKS.name, fields=("elevation_m",), max_points=max_points)
+        z = np.array([np.nan if v is None else float(v) for v in p["elevation_m"]], dtype=float)
+        surf = folder / V.SURFACE.file
+        at = sample_bilinear(surf, p["x"], p["y"], label=surf.name) if surf.exists() else np.full(len(z), np.nan)
+        d.picks = {"x": p["x"], "y": p["y"], "z": z, "residual_m": z - at, "n_total": p["n_total"],
+                   "step": p["step"]}
+    if V.ATTITUDES.name in names:
+        a = read_point_sample(gpkg, layer=V.ATTITUDES.name, fields=("dip_deg", "dip_direction_deg", "quality"),
+                              max_points=max_points)
+        num = lambda v: np.array([np.nan if x is None else float(x) for x in v], dtype=float)  # noqa: E731
+        q = np.array(["" if x is None else str(x) for x in a["quality"]])
+        d.attitudes = {str(k): (num(a["dip_deg"][q == k]), num(a["dip_direction_deg"][q == k]))
+                       for k in sorted(set(q.tolist()))}
+    return d

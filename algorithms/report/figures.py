@@ -1,0 +1,305 @@
+"""The report's figures, drawn with matplotlib's Agg renderer into PNG bytes.
+
+No pyplot: each figure is a :class:`matplotlib.figure.Figure` on its own Agg canvas, drawn under
+matplotlib's default style (a user's ``matplotlibrc`` changes nothing) and saved without the
+``Software`` text chunk, so the same outputs give the same bytes. Colours come from
+:mod:`strikeline.report.palette` (lightness falls monotonically, so a greyscale print still reads
+them); classes differ by line style, width or marker as well as by colour.
+"""
+from __future__ import annotations
+
+import contextlib
+import io
+
+import numpy as np
+import shapely
+
+from strikeline.report.palette import CONTACT, DEPTH_CMAP, ELEVATION_CMAP, FLAG, MAGNITUDE_CMAP, TRACE
+from strikeline.report.stereonet import draw_attitudes, draw_net, equal_area_xy
+from strikeline.geometry.orientation import pole_from_dip
+
+#: Pixels per inch of every figure.
+DPI = 110
+#: Size of each figure in inches (width, height); in pixels ``DPI`` times these.
+SIZES_IN = {"map": (12.0, 10.2), "stereonet": (12.0, 6.2), "residuals": (12.0, 5.4), "models": (12.0, 4.4),
+            "thickness": (12.0, 5.0)}
+#: The models from the simplest to the most flexible (the order of the scores' chart).
+MODEL_ORDER = ("plane", "trend2", "spline")
+#: Most structure contours labelled with their elevation on the map.
+MAX_LABELS = 40
+
+
+def pixel_size(name: str) -> tuple[int, int]:
+    """Width and height in pixels of figure ``name``.
+
+    >>> pixel_size("map")
+    (1320, 1122)
+    """
+    w, h = SIZES_IN[name]
+    return int(round(w * DPI)), int(round(h * DPI))
+
+
+def _figure(name: str):
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=SIZES_IN[name], dpi=DPI)
+    FigureCanvasAgg(fig)
+    return fig
+
+
+def png_bytes(fig) -> bytes:
+    """The figure as PNG bytes of exactly its pixel size, without time or software chunks."""
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=DPI, metadata={"Software": None})
+    return buf.getvalue()
+
+
+@contextlib.contextmanager
+def style():
+    """The drawing style of every figure: matplotlib's defaults (whatever a user's matplotlibrc
+    says), then ours; the caller's settings come back after the block."""
+    import matplotlib as mpl
+    import matplotlib.style
+
+    with matplotlib.style.context("default"), mpl.rc_context({
+            "font.size": 10, "axes.titlesize": 11, "axes.labelsize": 10, "legend.fontsize": 9,
+            "axes.formatter.useoffset": False, "svg.hashsalt": "strikeline", "path.simplify": True}):
+        yield
+
+
+def _plain_axes(ax) -> None:
+    from matplotlib.ticker import MaxNLocator
+
+    ax.ticklabel_format(useOffset=False, style="plain")
+    ax.xaxis.set_major_locator(MaxNLocator(5))
+    ax.yaxis.set_major_locator(MaxNLocator(6))
+    ax.set_xlabel("easting (m)")
+    ax.set_ylabel("northing (m)")
+    ax.set_aspect("equal")
+
+
+def _line_xy(geom):
+    """The parts of a (multi)line as coordinate arrays."""
+    parts = shapely.get_parts(geom)
+    return [np.asarray(shapely.get_coordinates(p))[:, :2] for p in parts]
+
+
+def _draw_lines(ax, geoms, **kw):
+    first = True
+    for g in geoms:
+        for xy in _line_xy(g):
+            ax.plot(xy[:, 0], xy[:, 1], **(kw if first else {k: v for k, v in kw.items() if k != "label"}))
+            first = False
+
+
+def hillshade(ground: np.ndarray, cell_m: float) -> np.ndarray:
+    """Shaded relief (0-1) lit from the north-west at 45 degrees (matplotlib's LightSource, the
+    Lambertian shading of Horn 1981, 'Hill shading and the reflectance map', Proc. IEEE 69)."""
+    from matplotlib.colors import LightSource
+
+    z = np.where(np.isfinite(ground), ground, np.nanmean(ground) if np.isfinite(ground).any() else 0.0)
+    hs = LightSource(azdeg=315, altdeg=45).hillshade(z, vert_exag=1.0, dx=cell_m, dy=cell_m)
+    return np.where(np.isfinite(ground), hs, np.nan)
+
+
+def _label_lines(geoms, elev) -> list[int]:
+    """Which lines get a label: the longest piece of each elevation, at most :data:`MAX_LABELS`
+    elevations spread evenly over the range."""
+    length = shapely.length(geoms)
+    levels = np.unique(elev)
+    keep = levels[np.unique(np.linspace(0, len(levels) - 1, min(MAX_LABELS, len(levels))).round().astype(int))]
+    out = []
+    for z in keep:
+        idx = np.flatnonzero(elev == z)
+        out.append(int(idx[np.argmax(length[idx])]))
+    return out
+
+
+def map_figure(d) -> bytes:
+    """The sheet: relief, depth tint, contacts, picks, structure contours, trace and flagged misfit."""
+    fig = _figure("map")
+    ax = fig.add_axes([0.07, 0.13, 0.72, 0.82])
+    if d.ground is not None:
+        ax.imshow(hillshade(d.ground.values, d.ground.cell_m), cmap="gray", vmin=0, vmax=1,
+                  extent=d.ground.extent, interpolation="nearest", zorder=0)
+    if d.depth is not None:
+        depth = np.ma.masked_invalid(np.where(d.depth.values >= 0, d.depth.values, np.nan))
+        if depth.count():
+            im = ax.imshow(depth, cmap=DEPTH_CMAP, alpha=0.6, extent=d.depth.extent, interpolation="nearest",
+                           vmin=0, vmax=float(depth.max()) or 1.0, zorder=1)
+            cax = fig.add_axes([0.84, 0.58, 0.022, 0.36])
+            fig.colorbar(im, cax=cax).set_label("depth of the surface below ground (m)")
+    elif d.surface is not None:
+        im = ax.imshow(np.ma.masked_invalid(d.surface.values), cmap=DEPTH_CMAP.reversed(), alpha=0.6,
+                       extent=d.surface.extent, interpolation="nearest", zorder=1)
+        cax = fig.add_axes([0.84, 0.58, 0.022, 0.36])
+        fig.colorbar(im, cax=cax).set_label("elevation of the modelled surface (m)")
+    if d.contours is not None and len(d.contours):
+        ex = d.contours.fields.get("extrapolated", np.zeros(len(d.contours), bool))
+        elev = np.asarray(d.contours.fields["elevation_m"], dtype=float)
+        _draw_lines(ax, d.contours.geoms[~ex], color="0.08", lw=0.9, zorder=3,
+                    label="structure contour (m above datum)")
+        _draw_lines(ax, d.contours.geoms[ex], color="0.08", lw=0.9, ls=(0, (5, 3)), zorder=3,
+                    label="structure contour, forecast beyond the data")
+        for i in _label_lines(d.contours.geoms, elev):
+            pt = shapely.line_interpolate_point(d.contours.geoms[i], 0.5, normalized=True)
+            ax.text(shapely.get_x(pt), shapely.get_y(pt), f"{elev[i]:g}", fontsize=7, ha="center", va="center",
+                    zorder=6, bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none", alpha=0.85), clip_on=True)
+    if d.misfit is not None and len(d.misfit):
+        fl = d.misfit.fields.get("flagged", np.zeros(len(d.misfit), bool))
+        _draw_lines(ax, d.misfit.geoms[fl], color="black", lw=13.0, solid_capstyle="butt", zorder=4)
+        _draw_lines(ax, d.misfit.geoms[fl], color=FLAG, lw=10.0, solid_capstyle="butt", zorder=4,
+                    label="contact segment flagged by the misfit check (wide band)")
+        _draw_lines(ax, d.misfit.geoms, color=CONTACT, lw=1.8, zorder=5, label="mapped contact")
+    if d.trace is not None and len(d.trace):
+        ex = d.trace.fields.get("extrapolated", np.zeros(len(d.trace), bool))
+        _draw_lines(ax, d.trace.geoms[~ex], color=TRACE, lw=1.3, ls=(0, (8, 2, 1.5, 2)), zorder=8,
+                    label="predicted outcrop trace")
+        _draw_lines(ax, d.trace.geoms[ex], color=TRACE, lw=1.3, ls=(0, (1.5, 2.5)), zorder=8,
+                    label="predicted outcrop trace, forecast beyond the data")
+    if d.picks is not None and len(d.picks["x"]):
+        sc = ax.scatter(d.picks["x"], d.picks["y"], c=d.picks["z"], cmap=ELEVATION_CMAP, s=16, marker="o",
+                        edgecolors="black", linewidths=0.2, zorder=6, label="pick on a contact")
+        cax = fig.add_axes([0.84, 0.13, 0.022, 0.38])
+        fig.colorbar(sc, cax=cax).set_label("elevation of the pick (m)")
+    ref = d.ground or d.surface or d.depth
+    if ref is not None:
+        ax.set_xlim(ref.extent[0], ref.extent[1])
+        ax.set_ylim(ref.extent[2], ref.extent[3])
+    _plain_axes(ax)
+    ax.set_title("The sheet: shaded relief tinted by the depth of the surface, with the model's lines")
+    handles, labels = ax.get_legend_handles_labels()
+    fig.legend(handles, labels, loc="lower left", bbox_to_anchor=(0.07, 0.005), ncol=2, frameon=False)
+    return png_bytes(fig)
+
+
+def stereonet_figure(d) -> bytes:
+    """Poles of the local attitudes and the sheet's plane on the lower-hemisphere equal-area net,
+    with a close-up around the sheet's pole."""
+    s = d.summary
+    plane = s.get("plane") or {}
+    groups = sorted((s.get("groups") or {}).get("planes", {}).items())
+    fig = _figure("stereonet")
+    ax = fig.add_axes([0.03, 0.08, 0.42, 0.84])
+    draw_net(ax)
+    handles = draw_attitudes(ax, local=d.attitudes, plane=plane, groups=groups)
+    ax.set_xlim(-1.12, 1.12)
+    ax.set_ylim(-1.12, 1.12)
+    ax.set_aspect("equal")
+    ax.axis("off")
+    ax.set_title("Equal-area net, lower hemisphere")
+    if plane.get("dip_deg") is not None:
+        zx = fig.add_axes([0.50, 0.40, 0.30, 0.52])
+        draw_net(zx, step_deg=1.0)
+        draw_attitudes(zx, local=d.attitudes, plane=plane, groups=groups, pole_size=7.0)
+        x, y = equal_area_xy(*pole_from_dip(plane.get("dip_direction_deg") or 0.0, plane["dip_deg"]))
+        half = max(0.03, 3.0 * np.sqrt(2) * np.sin(np.radians(plane.get("cone95_deg") or 0.0) / 2))
+        zx.set_xlim(float(x) - half, float(x) + half)
+        zx.set_ylim(float(y) - half, float(y) + half)
+        zx.set_aspect("equal")
+        zx.set_xticks([])
+        zx.set_yticks([])
+        zx.set_title("Close-up around the sheet's pole (grid: 1° circles)")
+    fig.legend(handles, [h.get_label() for h in handles], loc="lower left", bbox_to_anchor=(0.50, 0.02),
+               frameon=False)
+    return png_bytes(fig)
+
+
+def residuals_figure(d) -> bytes:
+    """Residuals of the picks against the model: histogram and map."""
+    p = d.picks
+    r = p["residual_m"]
+    ok = np.isfinite(r)
+    fig = _figure("residuals")
+    ax = fig.add_axes([0.07, 0.13, 0.36, 0.77])
+    if ok.any():
+        ax.hist(r[ok], bins=max(10, min(60, int(np.sqrt(ok.sum())))), color="0.55", edgecolor="0.15", lw=0.5)
+        rms = float(np.sqrt(np.mean(r[ok] ** 2)))
+        ax.axvline(0.0, color="black", lw=1.0)
+        ax.set_title(f"{ok.sum()} picks: median {np.median(r[ok]):+.2f} m, RMS {rms:.2f} m")
+    ax.set_xlabel("pick elevation minus the modelled surface (m)")
+    ax.set_ylabel("number of picks")
+    mx = fig.add_axes([0.52, 0.13, 0.36, 0.77])
+    if ok.any():
+        order = np.argsort(np.abs(r[ok]), kind="stable")  # the largest drawn last, on top
+        res = r[ok][order]
+        mag = np.abs(res)
+        top = float(np.percentile(mag, 99)) or 1.0
+        up = res >= 0
+        x, y = p["x"][ok][order], p["y"][ok][order]
+        sc = mx.scatter(x[up], y[up], c=mag[up], cmap=MAGNITUDE_CMAP, vmin=0, vmax=top, marker="^", s=22,
+                        edgecolors="black", linewidths=0.3, label="pick above the surface")
+        mx.scatter(x[~up], y[~up], c=mag[~up], cmap=MAGNITUDE_CMAP, vmin=0, vmax=top, marker="v", s=22,
+                   edgecolors="black", linewidths=0.3, label="pick below the surface")
+        cax = fig.add_axes([0.90, 0.13, 0.018, 0.77])
+        fig.colorbar(sc, cax=cax).set_label("size of the residual (m)")
+        mx.legend(loc="best", frameon=True)
+    _plain_axes(mx)
+    mx.set_title("Where the picks depart from the surface")
+    return png_bytes(fig)
+
+
+def models_figure(d) -> bytes:
+    """Cross-validation RMSE of each model, with its standard error, the chosen one marked."""
+    m = d.summary["model"]
+    rank = {k: i for i, k in enumerate(MODEL_ORDER)}
+    names = sorted((k for k, v in m.get("cv_rmse_m", {}).items() if v is not None),
+                   key=lambda k: (-rank.get(k, len(rank)), k))  # the simplest at the top
+    rmse = np.array([m["cv_rmse_m"][k] for k in names], float)
+    se = np.array([(m.get("cv_se_m") or {}).get(k) or 0.0 for k in names], float)
+    fig = _figure("models")
+    ax = fig.add_axes([0.12, 0.16, 0.55, 0.72])
+    ys = np.arange(len(names))
+    for i, k in enumerate(names):
+        chosen = k == m.get("chosen")
+        ax.barh(i, rmse[i], xerr=se[i], height=0.6, color="0.25" if chosen else "0.82", edgecolor="black",
+                hatch="" if chosen else "//", capsize=4, error_kw=dict(lw=1.0),
+                label="chosen model" if chosen else None)
+        ax.text(rmse[i] + se[i], i, f"  {rmse[i]:.2f} m" + ("  (chosen)" if chosen else ""), va="center", fontsize=9)
+    trimmed = (m.get("choice") or {}).get("chi2") or {}
+    if trimmed:
+        tx = [trimmed.get(k, {}).get("trimmed_rms_m") for k in names]
+        keep = [i for i, v in enumerate(tx) if v is not None]
+        ax.plot([tx[i] for i in keep], [ys[i] for i in keep], ls="none", marker="D", mfc="white", mec="black",
+                ms=7, label="trimmed error the choice compares")
+        tol = (m.get("choice") or {}).get("tolerance_m")
+        good = [tx[i] for i in keep]
+        if tol is not None and good:
+            ax.axvline(min(good) + tol, color="black", ls=(0, (2, 2)), lw=1.2,
+                       label="best trimmed error + tolerance")
+    ax.set_yticks(ys, [f"{k}" for k in names])
+    ax.set_xlabel("cross-validation error, RMSE of held-out picks (m); bars: ± one standard error")
+    ax.set_title(f"Surface models compared; chosen: {m.get('chosen')}")
+    ax.set_xlim(0, max(float(np.max(rmse + se)) if len(rmse) else 1.0, 1e-9) * 1.35)
+    ax.legend(loc="upper left", bbox_to_anchor=(1.02, 1.0), frameon=False)
+    return png_bytes(fig)
+
+
+def thickness_figure(d) -> bytes:
+    """True thickness: its distribution over the cells within reach of both surfaces, and its map."""
+    t = d.summary.get("thickness") or {}
+    fig = _figure("thickness")
+    ax = fig.add_axes([0.07, 0.14, 0.38, 0.76])
+    v = d.thickness_sample
+    if v is not None and len(v):
+        counts, _, _ = ax.hist(v, bins=50, color="0.6", edgecolor="0.2", lw=0.4)
+        ax.set_ylim(0, max(float(counts.max()), 1.0) * 1.4)  # room for the legend above the bars
+    for key, ls, word in (("mean_m", "-", "mean"), ("p10_m", (0, (4, 2)), "10th percentile"),
+                          ("p90_m", (0, (1, 2)), "90th percentile")):
+        if t.get(key) is not None:
+            ax.axvline(t[key], color="black", ls=ls, lw=1.4, label=f"{word} {t[key]:.1f} m")
+    ax.set_xlabel("true thickness (m)")
+    ax.set_ylabel("number of cells (a regular sample)")
+    ax.set_title("True thickness between the base and the top")
+    if ax.get_legend_handles_labels()[0]:
+        ax.legend(loc="best")
+    mx = fig.add_axes([0.53, 0.14, 0.34, 0.76])
+    if d.true_thickness is not None and np.isfinite(d.true_thickness.values).any():
+        im = mx.imshow(np.ma.masked_invalid(d.true_thickness.values), cmap=DEPTH_CMAP, extent=d.true_thickness.extent,
+                       interpolation="nearest")
+        cax = fig.add_axes([0.89, 0.14, 0.018, 0.76])
+        fig.colorbar(im, cax=cax).set_label("true thickness (m)")
+    _plain_axes(mx)
+    mx.set_title("Where the unit is thicker or thinner")
+    return png_bytes(fig)

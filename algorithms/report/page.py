@@ -1,0 +1,236 @@
+"""The report page: one self-contained HTML file (figures as base64 PNG, no script, no link out),
+opening with the caution, then the answer in plain words, then the figures with their captions.
+
+The page is made from the output folder alone (:func:`strikeline.report.data.load_outputs`) and
+holds no date, path of the run or random id, so the same outputs give the same bytes.
+"""
+from __future__ import annotations
+
+import base64
+import html
+from pathlib import Path
+
+from strikeline import CAUTION, __version__
+from strikeline import vocabulary as V
+
+#: What a reader sees when matplotlib is missing (one log line; the run still succeeds).
+MISSING_PLOT = (f"report: {V.REPORT_FILE} not written because matplotlib is not installed; install the plot "
+                "extra (pip install 'strikeline[plot]', or pip install -e '.[plot]' in a checkout) and run again")
+#: The colour of the frame around every figure (the rendering test finds the figures by it).
+FRAME_RGB = (43, 62, 80)
+
+MODEL_WORDS = {"plane": "a plane", "trend2": "a quadratic trend surface",
+               "spline": "a thin-plate smoothing spline"}
+
+_CSS = """
+body { font-family: 'DejaVu Sans', Arial, sans-serif; color: #1b1b1b; background: #ffffff; margin: 0 auto;
+       max-width: 1340px; padding: 16px 24px 48px 24px; line-height: 1.45; }
+p.caution { border: 3px solid #1b1b1b; background: #f4f4f4; padding: 12px 16px; font-weight: bold; }
+h1 { font-size: 26px; margin: 18px 0 8px 0; }
+h2 { font-size: 20px; margin: 28px 0 6px 0; border-bottom: 1px solid #999999; }
+ul.answer li { margin: 4px 0; }
+figure { margin: 8px 0 0 0; }
+img.figure { display: block; width: 1320px; max-width: 100%; height: auto;
+             border: 4px solid FRAME; }
+figcaption { font-size: 14px; color: #333333; margin-top: 6px; }
+table { border-collapse: collapse; font-size: 14px; }
+td, th { border: 1px solid #bbbbbb; padding: 3px 8px; text-align: left; vertical-align: top; }
+p.note { font-style: italic; }
+""".replace("FRAME", "rgb(%d, %d, %d)" % FRAME_RGB)
+
+
+def _e(text) -> str:
+    return html.escape(str(text), quote=True)
+
+
+def _limits(value, half, unit="°") -> str:
+    if half is None:
+        return f"{value:.1f}{unit}"
+    return f"{value:.1f}{unit} (95% limits {value - half:.1f}-{value + half:.1f}{unit})"
+
+
+def plane_words(pl: dict, *, who: str = "The contact") -> str:
+    """The plane in a plain sentence, with its 95% limits (an undetermined plane gets no number).
+
+    >>> plane_words({"dip_deg": 30.0, "dip_ci95_deg": 1.0, "dip_direction_deg": 90.0,
+    ...              "dip_direction_ci95_deg": 2.0, "dip_direction_true_deg": 89.5, "strike_rhr_deg": 0.0,
+    ...              "rms_m": 1.2, "n_picks": 40, "quality": "good"})[:62]
+    'The contact dips 30.0° (95% limits 29.0-31.0°) toward 90.0° (95'
+    """
+    if pl.get("quality") == "undetermined" or pl.get("dip_deg") is None:
+        return f"{who}'s attitude is undetermined: {pl.get('reason', '')}. {pl.get('advice', '')}".strip()
+    fit = (f"The picks lie within {pl['rms_m']:.2f} m (RMS) of this plane; {pl['n_picks']} picks; "
+           f"quality {pl['quality']}.")
+    if pl.get("dip_direction_deg") is None:
+        return (f"{who} is horizontal within its 95% confidence (dip {_limits(pl['dip_deg'], pl.get('dip_ci95_deg'))}"
+                f"; no dip direction or strike). " + fit)
+    return (f"{who} dips {_limits(pl['dip_deg'], pl.get('dip_ci95_deg'))} toward "
+            f"{_limits(pl['dip_direction_deg'], pl.get('dip_direction_ci95_deg'))} from grid north "
+            f"({pl['dip_direction_true_deg']:.1f}° from true north); strike {pl['strike_rhr_deg']:.1f}° by the "
+            f"right-hand rule. " + fit)
+
+
+def answer_sentences(s: dict) -> list[str]:
+    """The run's answer in plain sentences, from ``summary.json``."""
+    out = [plane_words(s["plane"])]
+    for name, g in sorted((s.get("groups") or {}).get("planes", {}).items()):
+        out.append(plane_words(g, who=f"Group '{name}'"))
+    src = s.get("picks_by_source", {})
+    out.append(f"{s['n_picks']} picks were taken along the mapped contacts ("
+               + ", ".join(f"{n} from the {k}" for k, n in sorted(src.items()) if n) + ").")
+    m = s.get("model")
+    if m:
+        scores = ", ".join(f"{k} {v:.2f} m" for k, v in sorted(m.get("cv_rmse_m", {}).items()) if v is not None)
+        why = (m.get("choice") or {}).get("reason") or m.get("check_model_reason") or ""
+        out.append(f"The surface is modelled as {MODEL_WORDS.get(m['chosen'], m['chosen'])}"
+                   + (f" (cross-validation error of held-out picks: {scores})" if scores else "") + "."
+                   + (f" Why: {why}." if why else ""))
+    sc = s.get("structure_contours") or {}
+    if sc.get("n_lines"):
+        out.append(f"{sc['n_lines']} structure contours every {sc['interval_m']:g} m; {sc.get('n_extrapolated', 0)} "
+                   "of them are forecasts beyond the reach of the data (dashed on the map).")
+    tm = s.get("trace_misfit") or {}
+    if tm.get("median_m") is not None:
+        out.append(f"The predicted outcrop trace lies a median {tm['median_m']:.1f} m from the mapped contact "
+                   f"(90% of its {tm['n_vertices']} vertices within {tm['p90_m']:.1f} m).")
+    cm = s.get("contact_misfit")
+    if cm:
+        out.append(f"{cm['n_flagged']} of {cm['n_segments']} contact segments of {cm['segment_m']:g} m disagree with "
+                   f"the surface forecast without them ({cm['check']['flag_rule']}) and are flagged on the map.")
+    mu = s.get("map_units")
+    if mu:
+        c = mu["check"]
+        out.append(f"Against the map's units the surface breaks {c['n_violated']} of {c['n_points']} check points.")
+    t = s.get("thickness") or {}
+    if t.get("mean_m") is not None:
+        out.append(f"The unit's true thickness averages {t['mean_m']:.1f} m (standard deviation {t['std_m']:.1f} m; "
+                   f"10-90%: {t['p10_m']:.1f}-{t['p90_m']:.1f} m) over {t['n_cells']} cells.")
+    elif t.get("reason"):
+        out.append(f"No thickness: {t['reason']}.")
+    return out
+
+
+def _img(fid: str, png: bytes, size: tuple, alt: str) -> str:
+    data = base64.b64encode(png).decode("ascii")
+    return (f'<img id="{fid}" class="figure" width="{size[0]}" height="{size[1]}" alt="{_e(alt)}" '
+            f'src="data:image/png;base64,{data}">')
+
+
+def figure_list(d) -> list[tuple[str, str, object, str]]:
+    """The figures this folder supports, in order: ``(name, title, drawer, caption)``."""
+    from strikeline.report import figures as F
+
+    s = d.summary
+    out = []
+    interval = (s.get("structure_contours") or {}).get("interval_m")
+    reach = (s.get("model") or {}).get("reach_m")
+    shown = ""
+    if d.picks is not None and d.picks["step"] > 1:
+        shown = f" Every {d.picks['step']}th of the {d.picks['n_total']} picks is drawn."
+    relief = ("Shaded relief of the ground on the output grid (the surface plus its depth below ground, lit from "
+              "the north-west), tinted by the depth of the surface below ground; untinted where the surface lies "
+              "above the ground (eroded)." if d.ground is not None else
+              "The modelled surface's elevation (no DEM: no relief or depth).")
+    out.append(("map", "The sheet", F.map_figure,
+                relief + (f" Structure contours every {interval:g} m are labelled with their elevation in metres; "
+                          "solid within the reach of the data"
+                          + (f" ({reach:.0f} m)" if reach else "") + ", dashed where forecast beyond it."
+                          if interval else "")
+                + " Picks are coloured by elevation; the predicted outcrop trace is dash-dotted (dotted where "
+                "forecast); contact segments flagged by the misfit check carry a wide pale band." + shown))
+    pl = s.get("plane") or {}
+    if pl.get("dip_deg") is not None or d.attitudes:
+        cone = (f" The sheet's plane: its pole (star) with the 95% confidence cone of half-angle "
+                f"{pl['cone95_deg']:.2f}° (circle) and the plane itself (dashed great circle)."
+                if pl.get("cone95_deg") is not None else "")
+        out.append(("stereonet", "Attitudes on the equal-area net", F.stereonet_figure,
+                    "Poles of the local attitudes (filled circles: good; open: weak) and of the group planes "
+                    "(squares) on the lower hemisphere of the equal-area (Schmidt) net: the Lambert azimuthal "
+                    "equal-area projection, a line at angle θ from the vertical plotted at r = √2·sin(θ/2) of the "
+                    "net's radius (Snyder 1987, Map Projections - A Working Manual, USGS Professional Paper 1395). "
+                    "A pole lies opposite the dip direction, 90° minus the dip from the rim." + cone))
+    if d.picks is not None and len(d.picks["x"]):
+        out.append(("residuals", "Residuals of the picks", F.residuals_figure,
+                    "Residual: the elevation of a pick minus the modelled surface (surface.tif) interpolated "
+                    "bilinearly between cell centres at the pick; positive (triangle up) where the pick lies above "
+                    "the surface. Picks where the surface has no value are left out." + shown))
+    if s.get("model", {}).get("cv_rmse_m"):
+        m = s["model"]
+        ch = m.get("choice") or {}
+        out.append(("models", "Surface models and the choice", F.models_figure,
+                    f"Each model's error on picks held out in blocks of {m.get('holdout_block_m', 0):.0f} m "
+                    f"(cross-validation RMSE, {m.get('n_folds', '?')} folds). "
+                    + (f"Choice rule: {ch.get('rule')}; tolerance {ch['tolerance_m']:.2f} m. "
+                       if ch.get("tolerance_m") is not None else "")
+                    + f"{ch.get('reason') or m.get('check_model_reason') or ''}."))
+    t = s.get("thickness") or {}
+    if t.get("mean_m") is not None:
+        n = 0 if d.thickness_sample is None else len(d.thickness_sample)
+        out.append(("thickness", "Thickness of the unit", F.thickness_figure,
+                    f"True thickness ({t.get('true_thickness_method', '')}) over {n} cells of true_thickness.tif "
+                    f"(a regular sample when the grid is large); the lines mark the mean and the 10th and 90th "
+                    f"percentiles of summary.json, over {t['n_cells']} cells within reach of data of both "
+                    "surfaces."))
+    return out
+
+
+def _run_table(s: dict) -> str:
+    rows = [("strikeline version", s.get("version", __version__)), ("CRS", s.get("crs", ""))]
+    for role, rec in sorted((s.get("inputs") or {}).items()):
+        recs = rec if isinstance(rec, list) else [rec]
+        for r in recs:
+            if isinstance(r, dict) and r.get("path"):
+                rows.append((f"input: {role.replace('_', ' ')}", f"{Path(r['path']).name}"
+                             + (f" (layer {r['layer']})" if r.get("layer") else "")
+                             + (f", sha256 {r['sha256'][:12]}…" if r.get("sha256") else "")))
+    de = s.get("data_error") or {}
+    for key, word in (("dem_sigma_m", "DEM vertical standard error"), ("contour_sigma_m", "contour positional error"),
+                      ("contact_sigma_m", "contact positional error")):
+        if de.get(key) is not None:
+            rows.append((word, f"{de[key]:g} m"))
+    if s.get("conventions"):
+        rows.append(("conventions", s["conventions"]))
+    return "<table>" + "".join(f"<tr><th>{_e(a)}</th><td>{_e(b)}</td></tr>" for a, b in rows) + "</table>"
+
+
+def render_report(folder) -> str:
+    """The report's HTML for a run's output ``folder`` (needs matplotlib)."""
+    from strikeline.report.data import load_outputs
+    from strikeline.report.figures import pixel_size, style
+
+    d = load_outputs(folder)
+    s = d.summary
+    parts = ["<!DOCTYPE html>", '<html lang="en"><head><meta charset="utf-8">',
+             "<title>strikeline report</title>", f"<style>{_CSS}</style></head><body>",
+             f'<p class="caution" id="caution">{_e(s.get("caution", CAUTION))}</p>',
+             "<h1>What the map says about the contact</h1>", '<ul class="answer">']
+    parts += [f"<li>{_e(line)}</li>" for line in answer_sentences(s)]
+    parts.append("</ul>")
+    with style():
+        for i, (name, title, draw, caption) in enumerate(figure_list(d), start=1):
+            png = draw(d)
+            parts += [f'<h2 id="section-{name}">{i}. {_e(title)}</h2>', "<figure>",
+                      _img(f"fig-{name}", png, pixel_size(name), title),
+                      f"<figcaption>{_e(caption)}</figcaption>", "</figure>"]
+    parts += ["<h2>The run</h2>", _run_table(s), f'<p class="note">{_e(CAUTION)}</p>', "</body></html>"]
+    return "\n".join(parts) + "\n"
+
+
+def write_report(folder, *, log=None) -> Path | None:
+    """Write :data:`strikeline.vocabulary.REPORT_FILE` into a run's output ``folder`` (the
+    temporary folder of :func:`strikeline.io.files.output_folder`, before its swap).
+
+    Without matplotlib nothing is written and ``log`` gets one line saying how to install it;
+    returns the file written, or None.
+    """
+    from strikeline.io.files import write_text_checked
+
+    try:
+        import matplotlib  # noqa: F401
+    except ImportError:
+        if log is not None:
+            log(MISSING_PLOT)
+        return None
+    path = Path(folder) / V.REPORT_FILE
+    write_text_checked(path, render_report(folder))
+    return path
