@@ -16,6 +16,7 @@ from qgis.PyQt.QtCore import QCoreApplication
 from qgis.PyQt.QtGui import QIcon
 from strikeline import CAUTION
 from strikeline.errors import CancelledError, StrikelineError
+from strikeline.pipeline.progress import RUN_STEPS, WARNING, Reporter, RunProgress
 
 from .provider import ICON_PATH
 
@@ -97,6 +98,36 @@ class Steps:
     def check(self, what: str = "cancelled") -> None:
         if self.is_cancelled():
             raise CancelledError(f"{what}: cancelled; nothing was written")
+
+    def tracker(self, steps=RUN_STEPS, *, lo: float = 0.0, hi: float = 1.0) -> RunProgress:
+        """The named steps of a chain (:class:`strikeline.pipeline.progress.RunProgress`) shown on
+        the feedback: each step's name as the progress text, the share done of ``lo``-``hi`` as
+        the progress bar, each step's timing and every message in the log."""
+        return RunProgress(FeedbackReporter(self), steps=steps, progress=self.part(lo, hi),
+                           is_cancelled=self.is_cancelled)
+
+
+class FeedbackReporter(Reporter):
+    """The library's run events on a Processing feedback (through :class:`Steps`): the step in
+    progress as ``setProgressText``, its wall and CPU seconds and peak memory as a log line when
+    it ends, messages as ``pushInfo`` or ``pushWarning``."""
+
+    def __init__(self, steps: Steps):
+        self.steps = steps
+
+    def start(self, step):
+        self.steps.feedback.setProgressText(f"{step.label} ({step.index}/{step.total})")
+
+    def finish(self, step, timing):
+        self.steps.feedback.pushInfo(f"step {step.index}/{step.total} {step.label}: {timing.wall_s:.2f} s, "
+                                     f"CPU {timing.cpu_s:.2f} s, peak memory {timing.peak_rss_mib:.0f} MiB")
+
+    def message(self, text, *, level="info", sheet=None):
+        line = text if sheet is None else f"{sheet}: {text}"
+        if level == WARNING and not line.startswith("warning:"):
+            self.steps.warn(line)
+        else:
+            self.steps.log(line)
 
 
 class StrikelineAlgorithm(QgsProcessingAlgorithm):

@@ -13,6 +13,7 @@ from strikeline import pipeline as pl
 from strikeline import vocabulary as V
 from strikeline.io.files import write_json_atomic
 from strikeline.pipeline import compute
+from strikeline.pipeline.progress import READING, WRITING
 
 from ..base import (
     REF_FERNANDEZ,
@@ -132,18 +133,20 @@ class WholeChain(StrikelineAlgorithm):
                     **constraint_options(self, parameters, context), **map_unit_options(self, parameters, context))
 
     def process(self, parameters, context, steps):
+        tracker = steps.tracker()  # the steps of strikeline run, named on the feedback
+        tracker.step(READING)
         inputs, opts = read_contact_inputs(self, parameters, context, steps, more=CHAIN_LAYERS,
                                            **self.options(parameters, context))
-        steps.feedback.setProgress(5)
-        r = compute(inputs, opts, log=steps.log, progress=steps.part(0.05, 0.8), is_cancelled=steps.is_cancelled)
+        r = compute(inputs, opts, log=tracker.log, tracker=tracker)
         s = r.summary
         plane = s["plane"]
         for line in report_lines(r):
             steps.log(line)
-        steps.feedback.setProgress(85)
         # Last chance to stop: from here on the outputs are written, all or nothing.
         steps.check("whole chain")
+        tracker.step(WRITING)
         out = self._write(parameters, context, inputs, r)
+        tracker.finish()
         tm = s["trace_misfit"]
         out.update({k: plane.get(k) for k in (*NUMBERS, "dip_ci95_deg", "quality")})
         out.update({"model_chosen": s["model"]["chosen"], "trace_misfit_median_m": tm.get("median_m"),
