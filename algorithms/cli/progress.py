@@ -152,8 +152,8 @@ def check_log_path(path: str, *, out: str | None = None, flag: str = "--log-json
 class JsonLogReporter(Reporter):
     """The events of a command as JSON Lines in ``path`` (checked by :func:`check_log_path`).
 
-    Lines (``event`` first): ``start`` (format mark, version, program version, command line,
-    UTC time), ``step_start`` and ``step_end`` (step, index, total, sheet when in a series;
+    Lines (``event`` first): ``start`` (format mark, the log layout's version, strikeline's
+    version, command line, UTC time), ``step_start`` and ``step_end`` (step, index, total, sheet when in a series;
     ``wall_s``, ``cpu_s`` and ``peak_rss_mib`` at the end), ``message`` (``level`` info,
     warning or error; text), ``end`` (``status`` ok or error, the one-line ``message``,
     ``exit_code``, the command's own ``wall_s``, ``cpu_s``, ``peak_rss_mib``). Every line is
@@ -165,8 +165,8 @@ class JsonLogReporter(Reporter):
         exists = os.path.lexists(path)
         self._f = open(path, "w" if exists else "x", encoding="utf-8")  # noqa: SIM115 - closed by close()
         self._clock = Clock()
-        self._write({"event": "start", "format": LOG_FORMAT, "version": LOG_VERSION,
-                     "strikeline_version": __version__, "command": list(command or []),
+        self._write({"event": "start", "format": LOG_FORMAT, "log_version": LOG_VERSION,
+                     "version": __version__, "command": list(command or []),
                      "time_utc": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())})
 
     def _write(self, record: dict) -> None:
