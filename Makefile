@@ -7,10 +7,12 @@ VPY         := $(VENV)/bin/python
 VPIP        := $(VPY) -m pip --disable-pip-version-check -q
 STAMP       := $(VENV)/.strikeline-installed
 APT_PKGS    := libgdal-dev gdal-bin
+# for the tests only: Debian's headless Chromium renders report.html (tests/report)
+TEST_APT    := chromium
 # numpy is pinned below 2 because GDAL 3.6's bindings (Debian 12) predate numpy 2's C API.
 NUMPY_PIN   := numpy==1.26.4
 
-.PHONY: demo test setup sysdeps bench clean
+.PHONY: demo test setup sysdeps testdeps bench clean
 
 # QGIS adapter: its environment, tests and plugin zip live in qgis.mk
 include qgis.mk
@@ -18,11 +20,21 @@ include qgis.mk
 demo: setup
 	$(VENV)/bin/strikeline demo --out demo-output --overwrite
 
-test: setup
+test: setup testdeps
 	bash .ci/pytest-strict $(VPY) tests algorithms --doctest-modules --ignore=tests/qgis
 	$(MAKE) --no-print-directory test-qgis
 
 setup: $(STAMP)
+
+testdeps:
+	@if ! command -v chromium >/dev/null 2>&1; then \
+	  if [ "$$(id -u)" = 0 ]; then \
+	    echo "strikeline: installing Debian packages for the tests: $(TEST_APT)"; \
+	    apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq $(TEST_APT) >/dev/null; \
+	  else \
+	    echo "strikeline: the report's browser test needs: sudo apt-get install -y $(TEST_APT)"; \
+	  fi; \
+	fi
 
 sysdeps:
 	@if ! command -v gdal-config >/dev/null 2>&1 || ! command -v gdal_contour >/dev/null 2>&1 \

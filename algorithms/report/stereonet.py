@@ -60,21 +60,37 @@ def _split_at_rim(x, y, *, jump: float = 0.5):
     return [(a, b) for a, b in zip(np.split(x, cut), np.split(y, cut)) if len(a) > 1]
 
 
-def draw_net(ax, *, step_deg: float = 10.0) -> None:
+def _within(x, y, window):
+    """``(x, y)`` with the points outside ``window`` (xmin, xmax, ymin, ymax) as NaN (a gap)."""
+    if window is None:
+        return x, y
+    out = (x < window[0]) | (x > window[1]) | (y < window[2]) | (y > window[3])
+    return np.where(out, np.nan, x), np.where(out, np.nan, y)
+
+
+def draw_net(ax, *, step_deg: float = 10.0, window=None) -> None:
     """The net's frame on ``ax``: the horizon, great circles through N-S every ``step_deg`` and
-    small circles about the N-S axis every ``step_deg``, in light grey, with N, E, S, W marked."""
+    small circles about the N-S axis every ``step_deg``, in light grey, with N, E, S, W marked.
+    With ``window`` (xmin, xmax, ymin, ymax) only the grid inside it is drawn (a close-up)."""
     grid = dict(color="0.85", lw=0.5, zorder=0)
+    n = 181 if window is None else 2001
+    curves = []
     for a in np.arange(step_deg, 180.0, step_deg):  # great circles striking N-S
         dip, ddir = (a, 90.0) if a <= 90 else (180.0 - a, 270.0)
-        t, p = great_circle(dip, ddir)
-        for x, y in _split_at_rim(*equal_area_xy(t, p)):
-            ax.plot(x, y, **grid)
+        curves.append(great_circle(dip, ddir, n=n))
     for a in np.arange(step_deg, 180.0, step_deg):  # small circles about the N-S horizontal axis
-        if abs(a - 90.0) < 1e-9:
-            continue
-        t, p = small_circle(0.0, 0.0, a)
+        if abs(a - 90.0) > 1e-9:
+            curves.append(small_circle(0.0, 0.0, a, n=2 * n - 1))
+    segments = []
+    for t, p in curves:
         for x, y in _split_at_rim(*equal_area_xy(t, p)):
-            ax.plot(x, y, **grid)
+            x, y = _within(x, y, window)
+            ok = np.isfinite(x)
+            edges = np.flatnonzero(np.diff(np.r_[0, ok.astype(np.int8), 0]))
+            segments += [np.column_stack([x[a:b], y[a:b]]) for a, b in zip(edges[::2], edges[1::2]) if b - a > 1]
+    from matplotlib.collections import LineCollection
+
+    ax.add_collection(LineCollection(segments, colors=grid["color"], linewidths=grid["lw"], zorder=grid["zorder"]))
     phi = np.linspace(0, 2 * np.pi, 721)
     ax.plot(np.cos(phi), np.sin(phi), color="0.2", lw=1.2, zorder=3)
     for word, (x, y) in {"N": (0, 1.06), "E": (1.06, 0), "S": (0, -1.06), "W": (-1.06, 0)}.items():
