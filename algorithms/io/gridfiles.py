@@ -23,6 +23,7 @@ from strikeline.geometry.grid import Grid
 from strikeline.io._gdal import gdal_exceptions, gdal_message, quiet_close
 from strikeline.io.contours import _contour_band, _level_options
 from strikeline.io.interrupt import GdalStop
+from strikeline.io.geotiff import CREATION_OPTIONS
 from strikeline.io.raster import NODATA_OUT
 from strikeline.maps.contours import trim_contour_fringe
 
@@ -31,7 +32,7 @@ __all__ = ["StripWriter", "read_window", "FileMask", "contour_lines_from_file", 
 
 #: Creation options of strikeline's output GeoTIFFs: those of
 #: :func:`strikeline.io.raster.write_geotiff` (the block path's files must equal its files).
-OUTPUT_OPTIONS = ("COMPRESS=DEFLATE", "PREDICTOR=3", "TILED=YES", "BIGTIFF=IF_SAFER")
+OUTPUT_OPTIONS = CREATION_OPTIONS
 #: Scratch grids: tiled, uncompressed (read back once or twice, then removed), BigTIFF.
 SCRATCH_OPTIONS = ("TILED=YES", "BIGTIFF=YES")
 #: Nodata of the float64 scratch grids: the lowest float64, below every value a surface takes,

@@ -11,14 +11,13 @@ import numpy as np
 from osgeo import gdal
 
 from strikeline.budget import budget_words, memory_budget_bytes, size_words
-from strikeline.errors import InputError, OutputError, RasterReadError
+from strikeline.errors import InputError, RasterReadError
 from strikeline.geometry.grid import Grid
-from strikeline.io._gdal import gdal_exceptions, gdal_message, quiet_close
+from strikeline.io._gdal import gdal_exceptions, gdal_message
 from strikeline.io.crs import require_projected_metres
-from strikeline.io.interrupt import GdalStop
 
-#: Nodata written into strikeline's own float32 GeoTIFFs.
-NODATA_OUT = -99999.0
+# Writing lives in strikeline.io.geotiff; its names stay importable from here.
+from strikeline.io.geotiff import NODATA_OUT, write_geotiff  # noqa: E402,F401
 
 
 def read_raster(path, *, label: str = "raster", band: int = 1) -> tuple[np.ndarray, Grid]:
@@ -192,100 +191,6 @@ def raster_from_array(array, grid: Grid, *, what: str, crs_checked: bool = False
     if not np.isfinite(arr).any():
         raise InputError(f"{what} holds no valid cell (every cell is nodata); give a raster with data")
     return arr, grid
-
-
-def write_geotiff(path, array, grid: Grid, *, description: str, unit: str | None,
-                  nodata: float = NODATA_OUT, progress=None, is_cancelled=None) -> None:
-    """Write a float32 GeoTIFF (DEFLATE, tiled) with CRS, nodata, band description and unit.
-
-    Parameters
-    ----------
-    path : str or PathLike
-    array : ndarray, shape ``grid.shape``
-        Values; NaN becomes ``nodata``.
-    grid : strikeline.geometry.grid.Grid
-    description : str
-        What the band holds (GDAL's band description, shown by QGIS and ``gdalinfo``); strikeline
-        passes the meaning of the raster's :mod:`strikeline.vocabulary` entry.
-    unit : str or None
-        The unit of the values (GDAL's band unit type: ``"m"``, ``"deg"``); ``None`` for a
-        unitless band.
-    nodata : float
-    progress, is_cancelled : callable, optional
-        Progress (fraction) of GDAL's write and a poll that stops it; SIGINT/SIGTERM stop it too
-        (:class:`strikeline.io.interrupt.GdalStop`).
-
-    Raises
-    ------
-    OutputError
-        GDAL could not write, flush or close the file (a full disk among others: GDAL's message
-        is included), or the file read back differs from what was written.
-    CancelledError, strikeline.io.interrupt.Interrupted
-        Stopped on request; nothing is left at ``path``.
-
-    Notes
-    -----
-    The file is written under a temporary name, closed, checked (GDAL's last error after the
-    close, which ``ds = None`` does not raise in GDAL 3.6; then opened again and its values,
-    description and unit compared) and only then renamed into place, so a failed write leaves
-    nothing at ``path``.
-    """
-    path = os.fspath(path)
-    a = np.asarray(array, dtype=np.float32)
-    if a.shape != grid.shape:
-        raise OutputError(f"'{path}': array shape {a.shape} does not match the grid {grid.shape}")
-    tmp = path + ".part"
-    values = np.where(np.isfinite(a), a, np.float32(nodata))
-    unit = unit or ""
-    ds = b = None
-    with gdal_exceptions(), GdalStop(progress, is_cancelled, what=f"writing '{path}'") as stop:
-        try:
-            drv = gdal.GetDriverByName("GTiff")
-            opts = ["COMPRESS=DEFLATE", "PREDICTOR=3", "TILED=YES", "BIGTIFF=IF_SAFER"]
-            ds = drv.Create(tmp, grid.cols, grid.rows, 1, gdal.GDT_Float32, options=opts)
-            ds.SetGeoTransform(grid.transform)
-            if grid.crs_wkt:
-                ds.SetProjection(grid.crs_wkt)
-            b = ds.GetRasterBand(1)
-            b.SetNoDataValue(nodata)
-            b.SetDescription(description)
-            b.SetUnitType(unit)
-            b.WriteArray(values, callback=stop.callback)
-            stop.check()
-            b.FlushCache()
-            ds.FlushCache()
-            b = None
-            gdal.ErrorReset()
-            ds = None  # closes the file; GDAL 3.6 reports a failure here only as its last error
-            if gdal.GetLastErrorType() >= gdal.CE_Failure:
-                raise RuntimeError(gdal.GetLastErrorMsg())
-            _check_written(tmp, values, description, unit)
-            stop.check()  # a signal received while closing
-        except BaseException as exc:
-            with quiet_close():
-                b = ds = None
-            if os.path.exists(tmp):
-                os.remove(tmp)
-            stop.check()
-            if isinstance(exc, RuntimeError):
-                raise OutputError(f"'{path}': GDAL could not write it ({gdal_message(exc)}); free some space or "
-                                  "choose another folder") from None
-            raise
-    os.replace(tmp, path)
-
-
-def _check_written(tmp: str, values: np.ndarray, description: str, unit: str) -> None:
-    """Open a GeoTIFF just written and compare it with what was meant to be written."""
-    ds = gdal.Open(tmp, gdal.GA_ReadOnly)
-    try:
-        b = ds.GetRasterBand(1)
-        got = b.ReadAsArray()
-        same = (got is not None and got.shape == values.shape
-                and np.array_equal(got.view(np.uint32), values.view(np.uint32)))
-        if not same or b.GetDescription() != description or (b.GetUnitType() or "") != unit:
-            raise RuntimeError("the file read back differs from what was written")
-    finally:
-        b = ds = None
 
 
 def read_vertical_unit(path, *, band: int = 1) -> dict:
