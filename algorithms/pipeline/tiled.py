@@ -166,11 +166,11 @@ def _block(model, grid: Grid, win, *, ground=None) -> dict:
     h0, h1, k0, k1 = _with_halo(win, grid.shape)
     hgrid = window_grid(grid, h0, h1, k0, k1)
     inner = (slice(r0 - h0, r1 - h0), slice(c0 - k0, c1 - k0))
-    s_halo = model.evaluate_grid(hgrid)
+    s_halo = model.evaluate_grid(grid, window=(h0, h1, k0, k1), workers=1)  # the whole grid's values
     dip, ddir = dip_grids(s_halo, hgrid)
     surface = s_halo[inner]
     out = {"surface": surface, "dip": dip[inner], "dip_direction": ddir[inner],
-           "uncertainty": model.standard_error_grid(window_grid(grid, r0, r1, c0, c1))}
+           "uncertainty": model.standard_error_grid(grid, window=win, workers=1)}
     if ground is not None:
         out["depth"] = np.subtract(ground[r0:r1, c0:c1], surface)
     return out
@@ -183,7 +183,8 @@ def _isopach_block(top_model, model, grid: Grid, win) -> dict:
     h0, h1, k0, k1 = _with_halo(win, grid.shape)
     hgrid = window_grid(grid, h0, h1, k0, k1)
     inner = (slice(r0 - h0, r1 - h0), slice(c0 - k0, c1 - k0))
-    vth, tth = isopach_grids(top_model.evaluate_grid(hgrid), model.evaluate_grid(hgrid), hgrid)
+    vth, tth = isopach_grids(top_model.evaluate_grid(grid, window=(h0, h1, k0, k1), workers=1),
+                             model.evaluate_grid(grid, window=(h0, h1, k0, k1), workers=1), hgrid)
     X, Y = window_grid(grid, r0, r1, c0, c1).mesh()
     return {"vertical_thickness": vth[inner], "true_thickness": tth[inner],
             "base_in": ~model.is_extrapolated(X, Y), "top_in": ~top_model.is_extrapolated(X, Y)}
