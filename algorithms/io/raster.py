@@ -71,7 +71,13 @@ def read_raster(path, *, label: str = "raster", band: int = 1) -> tuple[np.ndarr
                     "contacts (gdalwarp -te) or coarsen it (gdalwarp -tr)"
                 )
             try:
-                arr = b.ReadAsArray().astype(np.float64)
+                # the band's own type (float64 once, in raster_from_array); tiles decoded on every CPU
+                previous = gdal.GetThreadLocalConfigOption("GDAL_NUM_THREADS", None)
+                gdal.SetThreadLocalConfigOption("GDAL_NUM_THREADS", "ALL_CPUS")
+                try:
+                    arr = b.ReadAsArray()
+                finally:
+                    gdal.SetThreadLocalConfigOption("GDAL_NUM_THREADS", previous)
             except RuntimeError as exc:
                 raise RasterReadError(f"{what}: GDAL could not read band {band} ({gdal_message(exc)})") from None
         finally:
@@ -130,20 +136,29 @@ SENTINEL_ABS_LIMIT = 1e30
 
 
 def _undeclared_holes(arr: np.ndarray, nodata) -> tuple[float, int] | None:
-    """The most frequent nodata marker among the cells (other than the declared ``nodata``) and its count."""
-    found = []
-    for v in NODATA_SENTINELS:
-        if nodata is not None and v == nodata:
-            continue
-        n = int(np.count_nonzero(arr == v))
-        if n:
-            found.append((n, v))
-    huge = np.abs(arr) >= SENTINEL_ABS_LIMIT
-    if nodata is not None:
-        huge &= arr != nodata
-    n_huge = int(np.count_nonzero(huge & np.isfinite(arr)))
+    """The most frequent nodata marker among the cells (other than the declared ``nodata``) and its count.
+
+    Counted a block of rows at a time, so that the comparisons' temporaries stay small."""
+    sentinels = [v for v in NODATA_SENTINELS if nodata is None or v != nodata]
+    counts = dict.fromkeys(sentinels, 0)
+    n_huge, first_huge = 0, None
+    flat = arr.reshape(arr.shape[0], -1) if arr.ndim > 1 else arr.reshape(1, -1)
+    step = max(1, (1 << 20) // max(flat.shape[1], 1))
+    for r in range(0, flat.shape[0], step):
+        a = flat[r:r + step]
+        for v in sentinels:
+            counts[v] += int(np.count_nonzero(a == v))
+        huge = np.abs(a) >= SENTINEL_ABS_LIMIT
+        if nodata is not None:
+            huge &= a != nodata
+        huge &= np.isfinite(a)
+        k = int(np.count_nonzero(huge))
+        if k and first_huge is None:
+            first_huge = float(a[huge].flat[0])
+        n_huge += k
+    found = [(n, v) for v, n in counts.items() if n]
     if n_huge and not any(abs(v) >= SENTINEL_ABS_LIMIT for _, v in found):
-        found.append((n_huge, float(arr[huge & np.isfinite(arr)].flat[0])))
+        found.append((n_huge, first_huge))
     if not found:
         return None
     n, v = max(found)
