@@ -9,7 +9,7 @@ import numpy as np
 import shapely
 
 from strikeline.io.files import dumps_stable, output_folder, write_text_checked
-from strikeline.io.raster import write_geotiff
+from strikeline.io.geotiff import RasterOut, write_geotiffs
 from strikeline.io.gpkg_styles import write_layer_styles
 from strikeline.io.vector import LayerOut, write_gpkg
 from strikeline import vocabulary as V
@@ -199,13 +199,15 @@ def _write_all(r: Results, folder: Path, *, is_cancelled=None, report: bool = Fa
     ``report``, the page of figures (:func:`strikeline.report.write_report`) is drawn last, from
     the files already in ``folder``; without matplotlib it is left out with one line to ``log``.
     """
+    in_memory = []
     for name, array in result_rasters(r):
         spec = _RASTER_OF_FILE[name]
         if isinstance(array, GridFile):  # written block by block (strikeline.pipeline.tiled)
             place_grid_file(array, folder / name)
             continue
-        write_geotiff(folder / name, array, r.grid, description=spec.meaning, unit=spec.unit,
-                      is_cancelled=is_cancelled)
+        in_memory.append(RasterOut(folder / name, array, spec.meaning, spec.unit))
+    # several files at once: GDAL compresses and writes without Python's lock
+    write_geotiffs(in_memory, r.grid, is_cancelled=is_cancelled)
     write_gpkg(folder / V.RESULTS_FILE, result_layers(r), r.grid.crs_wkt)
     write_layer_styles(folder / V.RESULTS_FILE)  # QGIS opens the layers styled (layer_styles)
     write_text_checked(folder / V.SUMMARY_FILE, dumps_stable(r.summary))

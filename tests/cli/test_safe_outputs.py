@@ -100,7 +100,7 @@ def _env():
 #: happens, or (target ``pause``) announce the part folder and wait for a go file.
 CHILD = textwrap.dedent("""
     import os, signal, sys, time
-    from strikeline.io import files, raster
+    from strikeline.io import files, geotiff
     target, nth, swap = sys.argv[1], int(sys.argv[2]), sys.argv[3] == "swap"
     seen = {}
     def hook(step):
@@ -114,11 +114,11 @@ CHILD = textwrap.dedent("""
     files._STEP_HOOK = hook
     if not swap:
         files._exchange = lambda a, b: False
-    real = raster.write_geotiff
-    def write_geotiff(*a, **k):
+    real = geotiff._write_one
+    def write_one(*a, **k):
         real(*a, **k)
         hook("geotiff_written")
-    raster.write_geotiff = write_geotiff
+    geotiff._write_one = write_one
     from strikeline.cli.main import main
     sys.exit(main(sys.argv[5:]))
 """)
