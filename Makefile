@@ -58,16 +58,9 @@ $(STAMP): pyproject.toml | sysdeps
 	$(VPIP) install -e '.[dev,plot,dask]' $(NUMPY_PIN)
 	@touch $(STAMP)
 
+# the suite, one table at the end; BENCH_ARGS=--huge adds the 30,000 x 30,000 sheet, --quick the smallest sizes
 bench: setup
-	$(VPY) bench/bench_picks.py
-	$(VPY) bench/bench_dipgrids.py
-	$(VPY) bench/bench_attitudes.py
-	$(VPY) bench/bench_local_coverage.py
-	$(VPY) bench/bench_thinning.py
-	$(VPY) bench/bench_surfaces.py
-	$(VPY) bench/bench_run.py
-	$(VPY) bench/bench_recovery.py
-	$(VPY) bench/bench_units.py
+	$(VPY) bench/run_all.py $(BENCH_ARGS)
 
 clean:
 	rm -rf $(VENV) .venv-qgis dist demo-output .pytest_cache build *.egg-info algorithms/*.egg-info

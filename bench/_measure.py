@@ -14,8 +14,8 @@ Peak memory in process is the growth of the resident set's high-water mark (``Vm
 before each workload by writing ``5`` to ``/proc/self/clear_refs`` (Linux 4.0 and later,
 documented in proc(5)). Where the reset is refused, the figure is the high-water mark of the
 whole process so far, and the line says so. So that memory a workload frees goes back to the
-system (and the next workload's growth is its own), this module fixes glibc's mmap threshold at
-128 KiB on import (``mallopt(M_MMAP_THRESHOLD)``, documented in mallopt(3)): every large block is
+system (and the next workload's growth is its own), the first :func:`measured` fixes glibc's mmap
+threshold at 128 KiB (``mallopt(M_MMAP_THRESHOLD)``, documented in mallopt(3)): every large block is
 then its own mapping, returned when freed, instead of heap memory kept for reuse. CPU time is ``resource.getrusage(RUSAGE_SELF)``
 (user + system, every thread of the process); a child process is measured with ``os.wait4``,
 which returns that one child's own resource usage (peak resident set ``ru_maxrss``, CPU time).
@@ -52,13 +52,16 @@ class Measure:
         return self.cpu_s / self.wall_s if self.wall_s > 0 else float("nan")
 
 
+_MMAP_FIXED = []
+
+
 def _fix_mmap_threshold() -> None:
+    if _MMAP_FIXED:
+        return
+    _MMAP_FIXED.append(True)
     with contextlib.suppress(OSError, AttributeError):
         import ctypes
         ctypes.CDLL("libc.so.6").mallopt(-3, 128 * 1024)  # -3: M_MMAP_THRESHOLD
-
-
-_fix_mmap_threshold()
 
 
 def _status_kib(key: str) -> int:
@@ -87,6 +90,7 @@ def _cpu_self() -> float:
 @contextlib.contextmanager
 def measured():
     """``with measured() as m:`` fills ``m`` (a :class:`Measure`) when the block ends."""
+    _fix_mmap_threshold()
     m = Measure()
     m.peak_whole_process = not reset_peak()
     rss0 = _status_kib("VmRSS")

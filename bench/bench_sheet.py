@@ -12,7 +12,8 @@ Reference, same run, same DEM file: GDAL's own command ``gdaldem slope -alg Zeve
 (the dip method of ``strikeline.maps.dip_grids``) writing a compressed tiled GeoTIFF - one
 streaming pass of GDAL over the DEM, read and written block by block.
 
-Printed per size: time and peak memory, nanoseconds and bytes per cell, CPU/wall, the ratio to
+Where the command has ``--log-json``, each step's wall and CPU seconds are printed from its log
+(CPU/wall above 1: more than one core at work). Printed per size: time and peak memory, nanoseconds and bytes per cell, CPU/wall, the ratio to
 the reference; then the growth exponents b of time ~ cells^b and peak ~ cells^b (least-squares
 line through log-log points of the sizes that ran). A size the tool refuses (its workload check)
 prints ``refused: <its one-line reason>``.
@@ -22,6 +23,8 @@ Run:  .venv/bin/python bench/bench_sheet.py [--sizes 1000,4000,12000] [--huge] [
 from __future__ import annotations
 
 import argparse
+import contextlib
+import json
 import shutil
 import sys
 import tempfile
@@ -48,7 +51,32 @@ def growth_exponent(cells, values):
     return float(np.polyfit(np.log(cells), np.log(values), 1)[0])
 
 
-def run_size(tmp: Path, n: int, contacts: Path, *, gdaldem: str | None) -> dict | None:
+#: Steps of ``strikeline run`` whose work is over the grid's cells.
+GRID_STEPS = ("surface model", "grids", "structure contours", "depth, trace and misfit", "writing outputs")
+
+
+def has_option(flag: str) -> bool:
+    """Whether the installed ``strikeline run`` takes ``flag`` (it is in its --help)."""
+    return flag in run_child(strikeline_command() + ["run", "--help"]).stdout
+
+
+def print_steps(log: Path) -> str:
+    """Print each step's wall and CPU seconds from a ``--log-json`` file; return the grid steps' CPU/wall."""
+    rows = []
+    for line in log.read_text().splitlines():
+        with contextlib.suppress(ValueError):
+            e = json.loads(line)
+            if e.get("event") == "step_end":
+                rows.append((e["step"], e["wall_s"], e["cpu_s"], e.get("peak_rss_mib", float("nan"))))
+    for step, wall, cpu, peak in rows:
+        r = f"{cpu / wall:5.2f}" if wall > 0.005 else "    -"
+        print(f"    {step:<26s} {wall:8.2f} s  CPU {cpu:8.2f} s  CPU/wall {r}  peak RSS so far {peak:8.0f} MiB")
+    gw = sum(w for s, w, _, _ in rows if s in GRID_STEPS)
+    gc = sum(c for s, _, c, _ in rows if s in GRID_STEPS)
+    return f"grid steps cpu/wall {gc / gw:.2f}" if gw > 0 else ""
+
+
+def run_size(tmp: Path, n: int, contacts: Path, *, gdaldem: str | None, log_json: bool = False) -> dict | None:
     label = f"sheet {n:,}^2 cells end to end (strikeline run)"
     free = shutil.disk_usage(tmp).free
     if free < DISK_BYTES_PER_CELL * n * n:
@@ -60,6 +88,18 @@ def run_size(tmp: Path, n: int, contacts: Path, *, gdaldem: str | None) -> dict 
     _sheets.write_dem(dem, n, SIZE_M)
     print(f"  DEM {n:,} x {n:,} at {SIZE_M / n:g} m written block by block in {time.perf_counter() - t0:.1f} s "
           f"({mib(dem.stat().st_size)} on disk)", flush=True)
+    out = tmp / f"out{n}"
+    log = tmp / f"run{n}.jsonl"
+    run = run_child(strikeline_command() + ["run", "--contacts", str(contacts), "--dem", str(dem),
+                                            "--out", str(out)]
+                    + (["--quiet", "--log-json", str(log)] if log_json else []))
+    shutil.rmtree(out, ignore_errors=True)
+    steps = print_steps(log) if log_json and log.exists() else ""
+    if run.returncode != 0:
+        dem.unlink()
+        what = "refused" if run.returncode == 2 else f"failed (exit {run.returncode})"
+        status_line(label, f"{what}: {run.error_line()} (after {run.wall_s:.1f} s)")
+        return None
     ref = None
     if gdaldem:
         ref = run_child([gdaldem, "slope", str(dem), str(tmp / "slope.tif"), "-alg", "ZevenbergenThorne", "-q",
@@ -69,17 +109,10 @@ def run_size(tmp: Path, n: int, contacts: Path, *, gdaldem: str | None) -> dict 
         if ref.returncode != 0:
             print(f"  reference gdaldem slope failed: {ref.error_line()}")
             ref = None
-    out = tmp / f"out{n}"
-    run = run_child(strikeline_command() + ["run", "--contacts", str(contacts), "--dem", str(dem),
-                                            "--out", str(out)])
-    shutil.rmtree(out, ignore_errors=True)
     dem.unlink()
-    if run.returncode != 0:
-        what = "refused" if run.returncode == 2 else f"failed (exit {run.returncode})"
-        status_line(label, f"{what}: {run.error_line()} (after {run.wall_s:.1f} s)")
-        return None
     cells = n * n
-    extra = f"{1e9 * run.wall_s / cells:.0f} ns/cell, {run.peak_bytes / cells:.1f} B/cell"
+    extra = f"{1e9 * run.wall_s / cells:.0f} ns/cell, {run.peak_bytes / cells:.1f} B/cell" + (
+        f", {steps}" if steps else "")
     if ref is not None:
         result_line(label, run, ratio=run.wall_s / ref.wall_s,
                     reference=f"gdaldem slope file to file ({ref.wall_s:.2f} s, {mib(ref.peak_bytes)})",
@@ -110,7 +143,8 @@ def main(argv=None) -> int:
         n_lines = _sheets.write_traces(contacts, SIZE_M, [f])
         print(f"workload: {SIZE_M / 1000:g} km square sheet, one {args.surface} contact in {n_lines} line(s); "
               f"sizes {', '.join(f'{n:,}^2' for n in sizes)} cells", flush=True)
-        done = [r for n in sizes if (r := run_size(tmp, n, contacts, gdaldem=gdaldem)) is not None]
+        log_json = has_option("--log-json")
+        done = [r for n in sizes if (r := run_size(tmp, n, contacts, gdaldem=gdaldem, log_json=log_json)) is not None]
     cells = [r["cells"] for r in done]
     bt = growth_exponent(cells, [r["time"] for r in done])
     bm = growth_exponent(cells, [r["peak"] for r in done])

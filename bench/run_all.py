@@ -6,6 +6,7 @@ its output shown as it comes; every line it prints that starts with ``result:`` 
 commit and the load average before and after. A script that fails is a row saying so; the
 others still run.
 
+Any other ``bench_*.py`` in this folder runs after the named ones, with no arguments.
 ``--quick`` runs every script at its smallest size (a check that the suite works, not figures
 to quote); ``--huge`` adds the 30,000 x 30,000 sheet to ``bench_sheet.py``; ``--only`` picks
 scripts by name.
@@ -32,14 +33,26 @@ SUITE = (
     ("bench_attitudes.py", [], ["--repeat", "1"]),
     ("bench_thinning.py", [], []),
     ("bench_local_coverage.py", ["--replicates", "5"], ["--replicates", "1"]),
-    ("bench_surfaces.py", [], ["--picks", "3000", "--cells", "200"]),
+    ("bench_surfaces.py", [], ["--picks", "3000", "--cells", "200", "--max-points", "300"]),
     ("bench_run.py", [], ["--cells", "300"]),
-    ("bench_sheet.py", [], ["--sizes", "300,500"]),
+    ("bench_sheet.py", [], ["--sizes", "300,400"]),
     ("bench_contacts.py", [], ["--cells", "600", "--contacts", "20"]),
     ("bench_batch.py", [], ["--cells", "150", "--sheets-per-side", "2"]),
     ("bench_recovery.py", [], ["--dems", "volcano", "--cases", "plane", "--models", "plane"]),
     ("bench_units.py", [], ["--dems", "volcano", "--models", "plane"]),
 )
+
+
+
+#: Smallest sizes of other scripts of this folder, where known (the rest run with no arguments).
+OTHER_QUICK = {"bench_writes.py": ["--cells", "300"], "bench_report.py": ["--sizes", "300"]}
+
+
+def suite() -> list:
+    """:data:`SUITE`, then any other ``bench_*.py`` of this folder (figures: no arguments)."""
+    named = {s for s, _, _ in SUITE}
+    extra = sorted(p.name for p in HERE.glob("bench_*.py") if p.name not in named)
+    return list(SUITE) + [(s, [], OTHER_QUICK.get(s, [])) for s in extra]
 
 
 def run_script(script: str, args: list, log) -> tuple[list, int, float]:
@@ -68,12 +81,13 @@ def main(argv=None) -> int:
     ap.add_argument("--log", help="also write every script's output to this file")
     args = ap.parse_args(argv)
     only = {o.strip().removeprefix("bench_").removesuffix(".py") for o in args.only.split(",") if o.strip()}
-    chosen = [(s, q if args.quick else a) for s, a, q in SUITE
+    scripts = suite()
+    chosen = [(s, q if args.quick else a) for s, a, q in scripts
               if not only or s.removeprefix("bench_").removesuffix(".py") in only]
-    unknown = only - {s.removeprefix("bench_").removesuffix(".py") for s, _, _ in SUITE}
+    unknown = only - {s.removeprefix("bench_").removesuffix(".py") for s, _, _ in scripts}
     if unknown:
         raise SystemExit(f"run_all: no bench script named {', '.join(sorted(unknown))}; "
-                         f"the suite: {', '.join(s for s, _, _ in SUITE)}")
+                         f"the suite: {', '.join(s for s, _, _ in scripts)}")
     log = open(args.log, "w") if args.log else None
     try:
         head = [machine_line()]
