@@ -521,6 +521,31 @@ BATCH_KEYS: tuple[Name, ...] = (
 )
 
 
+#: The keys of a ``--log-json`` file (``strikeline.cli.progress``): one JSON object per line and
+#: event; each line holds ``event`` and the keys of its kind.
+LOG_KEYS: tuple[Name, ...] = (
+    _s("event", None, "start, step_start, step_end, message or end", "text"),
+    _s("format", None, "start: strikeline-log, the mark that lets a later run replace the file", "text"),
+    _s("log_version", None, "start: version of this layout of events", "integer"),
+    _s("version", None, "start: strikeline version", "text"),
+    _s("command", None, "start: the command line, as a list of words", "text"),
+    _s("time_utc", None, "start: when the command began (ISO 8601, UTC)", "text"),
+    _s("step", None, "step_start, step_end: the step's name (reading inputs, picks, ..., writing outputs)", "text"),
+    _s("index", None, "step_start, step_end: the step's place in the run, from 1", "integer"),
+    _s("total", None, "step_start, step_end: steps in the run", "integer"),
+    _s("sheet", None, "the sheet of a series the event belongs to (absent for a single run)", "text"),
+    _s("wall_s", None, "step_end, end: wall-clock seconds of the step or the command (a timing)"),
+    _s("cpu_s", None, "step_end, end: CPU seconds of the process over the step or the command, all threads"),
+    _s("peak_rss_mib", None, "step_end, end: peak resident memory of the process so far, MiB"),
+    _s("level", None, "message: info, warning or error", "text"),
+    _s("text", None, "message: the line, as the log prints it", "text"),
+    _s("status", None, "end: ok or error", "text"),
+    _s("message", None, "end: the one-line error (null when ok)", "text"),
+    _s("exit_code", None, "end: the command's exit status", "integer"),
+    _s("t_s", None, "every event but start: seconds since the log began"),
+)
+
+
 def summary_path_names(keys=SUMMARY_KEYS) -> frozenset[str]:
     """The dotted paths of a summary's vocabulary."""
     return frozenset(k.name for k in keys)
