@@ -578,6 +578,7 @@ def all_names() -> dict[str, tuple]:
     out["qgis_outputs"] = QGIS_OUTPUTS
     out.update({f"layer:{layer.name}": layer.fields for layer in INDEX_LAYERS})
     out["batch"] = BATCH_KEYS
+    out["log"] = LOG_KEYS
     return out
 
 
