@@ -637,6 +637,9 @@ def reference_markdown() -> str:
     lines += ["", "### Keys of a batch's `batch.json` (`*`: a sheet's or an edge's name)", "",
               _row("key", "unit", "meaning"), _row("---", "---", "---")]
     lines += [_row(f"`{k.name}`", _unit(k.unit), k.meaning) for k in BATCH_KEYS]
+    lines += ["", "### Keys of a `--log-json` file (one JSON object per line and event)", "",
+              _row("key", "unit", "meaning"), _row("---", "---", "---")]
+    lines += [_row(f"`{k.name}`", _unit(k.unit), k.meaning) for k in LOG_KEYS]
     lines += ["", "### QGIS numbers and strings (besides the layers and rasters above)", "",
               _row("output", "unit", "meaning"), _row("---", "---", "---")]
     lines += [_row(f"`{n.name}`", _unit(n.unit), n.meaning) for n in QGIS_OUTPUTS]
