@@ -22,6 +22,7 @@ from pathlib import Path
 import pytest
 
 from helpers import DEMO, run_cli
+from strikeline import vocabulary as V
 from strikeline.cli.progress import LOG_FORMAT, check_log_path, is_strikeline_log
 from strikeline.errors import InputError
 from strikeline.pipeline.progress import RUN_STEPS
@@ -53,6 +54,8 @@ def test_the_log_has_every_step_once_in_order_with_non_negative_costs(quiet_logg
     _, events, _ = quiet_logged
     assert events[0]["event"] == "start" and events[0]["format"] == LOG_FORMAT
     assert events[-1]["event"] == "end"
+    # every key written is a name of the vocabulary, with its meaning in the README's reference
+    assert set().union(*events) <= {k.name for k in V.LOG_KEYS}
     starts = [e["step"] for e in events if e["event"] == "step_start"]
     ends = [e for e in events if e["event"] == "step_end"]
     assert starts == list(RUN_STEPS) == [e["step"] for e in ends]
