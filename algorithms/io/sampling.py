@@ -19,6 +19,9 @@ from strikeline.errors import InputError, RasterReadError, VectorReadError
 from strikeline.geometry.grid import Grid
 from strikeline.io._gdal import gdal_exceptions, gdal_message
 
+#: Rows of the file read at once (then dropped from GDAL's block cache, which would otherwise keep up
+#: to GDAL_CACHEMAX - 5% of the memory - of a large grid's blocks).
+STRIP_ROWS = 512
 #: GDAL's resampling of a decimated read, by name.
 _RESAMPLING = {"average": gdal.GRIORA_Average, "nearest": gdal.GRIORA_NearestNeighbour}
 
@@ -62,7 +65,9 @@ def read_decimated(path, *, max_cells: int = 1_000_000, resampling: str = "avera
     """Band 1 of a raster thinned by a whole factor to at most ``max_cells`` cells.
 
     GDAL resamples while it reads (``ReadAsArray`` with ``buf_xsize``/``buf_ysize`` smaller than
-    the band), so memory is that of the result, whatever the raster's size.
+    the window), in strips of about :data:`STRIP_ROWS` rows (a multiple of the factor ``k``), each
+    dropped from GDAL's block cache after, so memory is that of the result and one strip,
+    whatever the raster's size.
 
     Parameters
     ----------
@@ -79,8 +84,9 @@ def read_decimated(path, *, max_cells: int = 1_000_000, resampling: str = "avera
     -------
     array : ndarray of float64, NaN for nodata
     grid : Grid
-        The result's georeferencing (cells ``k`` times larger; the last row and column may reach
-        past the raster by less than one cell when its size is not a multiple of ``k``).
+        The result's georeferencing: rows ``k`` cells high (the last one may reach past the raster
+        by less than ``k`` cells when its height is not a multiple of ``k``), columns spread evenly
+        over the width (``cols / ceil(cols / k)`` cells each).
     """
     path = os.fspath(path)
     if resampling not in _RESAMPLING:
@@ -92,17 +98,24 @@ def read_decimated(path, *, max_cells: int = 1_000_000, resampling: str = "avera
             rows, cols = ds.RasterYSize, ds.RasterXSize
             k = decimation((rows, cols), max_cells)
             by, bx = math.ceil(rows / k), math.ceil(cols / k)
-            try:
-                arr = band.ReadAsArray(0, 0, cols, rows, buf_xsize=bx, buf_ysize=by,
-                                       buf_type=gdal.GDT_Float64, resample_alg=_RESAMPLING[resampling])
-            except RuntimeError as exc:
-                raise RasterReadError(f"{label} '{path}': GDAL could not read it ({gdal_message(exc)})") from None
+            arr = np.empty((by, bx), dtype=np.float64)
+            step = k * max(1, STRIP_ROWS // k)  # source rows per strip, a multiple of k
+            for r0 in range(0, rows, step):
+                h = min(step, rows - r0)
+                b0 = r0 // k
+                try:
+                    arr[b0:b0 + math.ceil(h / k)] = band.ReadAsArray(
+                        0, r0, cols, h, buf_xsize=bx, buf_ysize=math.ceil(h / k), buf_type=gdal.GDT_Float64,
+                        resample_alg=_RESAMPLING[resampling])
+                except RuntimeError as exc:
+                    raise RasterReadError(f"{label} '{path}': GDAL could not read it ({gdal_message(exc)})") from None
+                band.FlushCache()  # drop the strip's blocks from GDAL's cache: memory stays one strip
             x0, dx, _, y0, _, dy = ds.GetGeoTransform()
             nodata = band.GetNoDataValue()
             wkt = ds.GetProjection() or ""
         finally:
             ds = None
-    grid = Grid((x0, dx * cols / bx, 0.0, y0, 0.0, dy * rows / by), (by, bx), wkt, nodata)
+    grid = Grid((x0, dx * cols / bx, 0.0, y0, 0.0, dy * k), (by, bx), wkt, nodata)
     return _as_float(arr, nodata), grid
 
 
@@ -111,8 +124,8 @@ def sample_bilinear(path, x, y, *, block_rows: int = 256, label: str = "raster")
 
     A point is NaN outside the cell centres' hull widened by half a cell (there the nearest edge
     cell's values are used along the edge) or where one of its four cells is nodata. Rows are read
-    in strips of ``block_rows`` around the points, so memory is one strip, whatever the raster's
-    size.
+    in strips of ``block_rows`` around the points, each dropped from GDAL's block cache after, so
+    memory is one strip, whatever the raster's size.
 
     The interpolation is the bilinear one of e.g. Press et al. 2007, *Numerical Recipes*, 3rd ed.,
     sec. 3.6.1 (eq. 3.6.5).
@@ -150,6 +163,7 @@ def sample_bilinear(path, x, y, *, block_rows: int = 256, label: str = "raster")
                     block = _as_float(band.ReadAsArray(ca, ra, cb - ca, rb - ra), nodata)
                 except RuntimeError as exc:
                     raise RasterReadError(f"{label} '{path}': GDAL could not read it ({gdal_message(exc)})") from None
+                band.FlushCache()
                 i, j = r0[sel] - ra, c0[sel] - ca
                 i1 = np.minimum(i + 1, block.shape[0] - 1)
                 j1 = np.minimum(j + 1, block.shape[1] - 1)

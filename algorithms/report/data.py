@@ -33,6 +33,7 @@ class Raster:
     values: np.ndarray
     extent: tuple
     cell_m: float  # of the grid as read (the file's cell times the decimation)
+    crs_wkt: str = ""
 
 
 @dataclass
@@ -60,6 +61,7 @@ class ReportData:
     contours: Lines | None = None
     trace: Lines | None = None
     misfit: Lines | None = None
+    contacts: Lines | None = None  # the input contacts, drawn when there is no contact_misfit layer
     picks: dict | None = None  # x, y, z, residual_m, n_total, step
     attitudes: dict | None = None  # by quality: (dip_deg, dip_direction_deg)
     notes: list = field(default_factory=list)
@@ -70,7 +72,23 @@ def _raster(path: Path, *, max_cells: int, resampling: str = "average") -> Raste
         return None
     arr, grid = read_decimated(path, max_cells=max_cells, resampling=resampling, label=path.name)
     xmin, ymin, xmax, ymax = grid.bounds
-    return Raster(arr, (xmin, xmax, ymin, ymax), grid.cell_x_m)
+    return Raster(arr, (xmin, xmax, ymin, ymax), grid.cell_x_m, grid.crs_wkt)
+
+
+def _input_contacts(summary: dict, crs_wkt: str) -> Lines | None:
+    """The contacts inputs the summary names (read-only, in the outputs' CRS); None when one of them
+    cannot be read any more (moved or changed since the run)."""
+    geoms = []
+    for rec in (summary.get("inputs") or {}).get("contacts") or []:
+        try:
+            layer = read_layer(rec.get("path_absolute") or rec["path"], layer=rec.get("layer"), where=rec.get("where"),
+                               label="contacts", geometry="line", layer_option="--contacts-layer")
+            if crs_wkt and layer.crs_wkt:
+                layer = layer.reprojected(crs_wkt)
+        except (StrikelineError, KeyError):
+            return None
+        geoms += list(layer.geoms)
+    return Lines(np.array(geoms, dtype=object)) if geoms else None
 
 
 def _lines(gpkg: Path, name: str, names: list) -> Lines | None:
@@ -96,7 +114,7 @@ def load_outputs(folder, *, max_cells: int = MAX_MAP_CELLS, max_points: int = MA
     d.depth = _raster(folder / V.DEPTH.file, max_cells=max_cells)
     if d.surface is not None and d.depth is not None and d.surface.values.shape == d.depth.values.shape:
         # depth below ground = ground - surface, so the ground is their sum on the output grid
-        d.ground = Raster(d.surface.values + d.depth.values, d.surface.extent, d.surface.cell_m)
+        d.ground = Raster(d.surface.values + d.depth.values, d.surface.extent, d.surface.cell_m, d.surface.crs_wkt)
     tt = folder / V.TRUE_THICKNESS.file
     d.true_thickness = _raster(tt, max_cells=max_cells)
     if tt.exists():
@@ -107,6 +125,8 @@ def load_outputs(folder, *, max_cells: int = MAX_MAP_CELLS, max_points: int = MA
     d.contours = _lines(gpkg, V.STRUCTURE_CONTOURS.name, names)
     d.trace = _lines(gpkg, V.PREDICTED_TRACE.name, names)
     d.misfit = _lines(gpkg, V.CONTACT_MISFIT.name, names)
+    if d.misfit is None or not len(d.misfit):
+        d.contacts = _input_contacts(summary, d.surface.crs_wkt if d.surface is not None else "")
     for lines, key in ((d.contours, "extrapolated"), (d.trace, "extrapolated"), (d.misfit, "flagged")):
         if lines is not None and key in lines.fields:
             lines.fields[key] = _bool(lines.fields[key])

@@ -152,6 +152,8 @@ def map_figure(d) -> bytes:
         _draw_lines(ax, d.misfit.geoms[fl], color=FLAG, lw=10.0, solid_capstyle="butt", zorder=4,
                     label="contact segment flagged by the misfit check (wide band)")
         _draw_lines(ax, d.misfit.geoms, color=CONTACT, lw=1.8, zorder=5, label="mapped contact")
+    elif d.contacts is not None and len(d.contacts):
+        _draw_lines(ax, d.contacts.geoms, color=CONTACT, lw=1.8, zorder=5, label="mapped contact")
     if d.trace is not None and len(d.trace):
         ex = d.trace.fields.get("extrapolated", np.zeros(len(d.trace), bool))
         _draw_lines(ax, d.trace.geoms[~ex], color=TRACE, lw=1.3, ls=(0, (8, 2, 1.5, 2)), zorder=8,
@@ -170,7 +172,8 @@ def map_figure(d) -> bytes:
     _plain_axes(ax)
     ax.set_title("The sheet: shaded relief tinted by the depth of the surface, with the model's lines")
     handles, labels = ax.get_legend_handles_labels()
-    fig.legend(handles, labels, loc="lower left", bbox_to_anchor=(0.07, 0.005), ncol=2, frameon=False)
+    if handles:
+        fig.legend(handles, labels, loc="lower left", bbox_to_anchor=(0.07, 0.005), ncol=2, frameon=False)
     return png_bytes(fig)
 
 
@@ -202,8 +205,9 @@ def stereonet_figure(d) -> bytes:
         zx.set_xticks([])
         zx.set_yticks([])
         zx.set_title("Close-up around the sheet's pole (grid: 1° circles)")
-    fig.legend(handles, [h.get_label() for h in handles], loc="lower left", bbox_to_anchor=(0.50, 0.02),
-               frameon=False)
+    if handles:
+        fig.legend(handles, [h.get_label() for h in handles], loc="lower left", bbox_to_anchor=(0.50, 0.02),
+                   frameon=False)
     return png_bytes(fig)
 
 

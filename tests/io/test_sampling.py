@@ -37,6 +37,19 @@ def test_read_decimated_averages_blocks_leaving_nodata_out(tmp_path):
     assert grid.transform == (500000.0, 40.0, 0.0, 5000000.0, 0.0, -40.0)
 
 
+def test_read_decimated_in_strips_is_the_whole_read(tmp_path, monkeypatch):
+    import strikeline.io.sampling as sampling
+
+    rng = np.random.default_rng(5)
+    values = rng.normal(0.0, 1.0, (96, 36)).astype(np.float32)
+    _tif(tmp_path / "s.tif", values)
+    monkeypatch.setattr(sampling, "STRIP_ROWS", 10)  # strips of 9 rows (k = 3), 11 of them
+    arr, grid = read_decimated(tmp_path / "s.tif", max_cells=400)
+    # Source: numpy - the mean of each 3 x 3 block
+    ref = values.astype(float).reshape(32, 3, 12, 3).mean(axis=(1, 3))
+    np.testing.assert_allclose(arr, ref, rtol=1e-6)
+
+
 def test_read_decimated_nearest_and_whole(tmp_path):
     values = np.arange(36, dtype=np.float32).reshape(6, 6)
     _tif(tmp_path / "b.tif", values)

@@ -161,3 +161,33 @@ def test_a_folder_without_a_model_or_dem(tmp_path, demo_command_run):
     page = render_report(out)
     assert [f[0] for f in IMG.findall(page)] == ["map", "stereonet", "residuals"]
     assert "modelled surface's elevation" in html.unescape(page)
+
+
+def test_without_misfit_segments_the_map_draws_the_input_contacts(tmp_path, demo_command_run):
+    # no contact_misfit layer (e.g. no DEM to check against): the contacts inputs the summary names
+    # are drawn instead, read-only and whole
+    import shutil
+
+    from osgeo import ogr
+
+    from strikeline.io._gdal import gdal_exceptions
+    from strikeline.report.data import load_outputs
+
+    out = tmp_path / "out"
+    out.mkdir()
+    for name in (V.SUMMARY_FILE, V.RESULTS_FILE, V.SURFACE.file, V.DEPTH.file):
+        shutil.copy(demo_command_run.out / name, out / name)
+    with gdal_exceptions():
+        ds = ogr.Open(str(out / V.RESULTS_FILE), 1)
+        names = [ds.GetLayer(i).GetName() for i in range(ds.GetLayerCount())]
+        ds.DeleteLayer(names.index(V.CONTACT_MISFIT.name))
+        ds = None
+    d = load_outputs(out)
+    assert d.misfit is None and d.contacts is not None
+    # Source: the run's own measure of its input contacts (summary contacts_off_dem.total_length_m, from OGR's
+    # reading of the same files)
+    total = json.loads((out / V.SUMMARY_FILE).read_text())["contacts_off_dem"]["total_length_m"]
+    import shapely
+
+    assert float(shapely.length(d.contacts.geoms).sum()) == pytest.approx(total, rel=1e-6)
+    assert [f[0] for f in IMG.findall(render_report(out))] == DEMO_FIGURES

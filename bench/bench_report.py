@@ -1,0 +1,113 @@
+"""Benchmark: drawing report.html from an output folder whose grids grow, in bounded memory.
+
+Runs ``strikeline run`` once on the demo sheet's exact contact and DEM (``--no-report``), then
+makes output folders whose ``surface.tif``, ``depth.tif`` and ``uncertainty.tif`` cover the same
+ground with N x N cells (``--sizes``, default 1,000 and 10,000; the DEM resampled bilinearly by
+GDAL, the run's plane as the surface, written block by block), beside the run's own
+``summary.json`` and ``results.gpkg``. Each folder's report is drawn in a child process of its own
+(``strikeline.report.write_report``), measured alone (wall, CPU, peak resident memory), against
+the reference of the same run: the report of the run's own folder (400 x 400 cells). Memory that
+stays flat while the grids grow 600-fold is what the report promises (rasters are read decimated
+to a million cells, picks thinned to 20,000).
+
+Usage::
+
+    .venv/bin/python bench/bench_report.py [--sizes 1000 10000]
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import shutil
+import sys
+import tempfile
+from pathlib import Path
+
+import numpy as np
+from osgeo import gdal
+
+from _measure import load_line, machine_line, mib, result_line, run_child, strikeline_command
+from strikeline import vocabulary as V
+
+DEMO = Path(__file__).resolve().parents[1] / "test_data" / "demo"
+BLOCK_ROWS = 512
+
+
+def _child(folder: Path):
+    code = "import sys; from strikeline.report import write_report; write_report(sys.argv[1])"
+    done = run_child([sys.executable, "-c", code, str(folder)])
+    if done.returncode:
+        raise SystemExit(f"report of {folder} failed: {done.error_line()}")
+    return done
+
+
+def _grid_folder(run: Path, n: int, dest: Path) -> int:
+    """``dest`` with the run's summary and GeoPackage and N x N grids over the same ground; returns
+    the bytes of the three grids as float32."""
+    dest.mkdir()
+    for name in (V.SUMMARY_FILE, V.RESULTS_FILE):
+        shutil.copy(run / name, dest / name)
+    plane = json.loads((run / V.SUMMARY_FILE).read_text())["model"]["params"]
+    c0, cu, cv = plane["coefficients"]
+    (x0, y0), scale = plane["origin_m"], plane["scale_m"]
+    src = gdal.Open(str(run / V.SURFACE.file))
+    xmin, dx, _, ymax, _, dy = src.GetGeoTransform()
+    xmax, ymin = xmin + dx * src.RasterXSize, ymax + dy * src.RasterYSize
+    ground = dest / "ground.tif"
+    gdal.Warp(str(ground), str(DEMO / "dem.tif"), width=n, height=n, outputBounds=(xmin, ymin, xmax, ymax),
+              resampleAlg="bilinear", outputType=gdal.GDT_Float32, creationOptions=["TILED=YES", "COMPRESS=DEFLATE"])
+    g = gdal.Open(str(ground))
+    gt, wkt = g.GetGeoTransform(), g.GetProjection()
+    outs = {}
+    for name in (V.SURFACE.file, V.DEPTH.file, V.UNCERTAINTY.file):
+        ds = gdal.GetDriverByName("GTiff").Create(str(dest / name), n, n, 1, gdal.GDT_Float32,
+                                                  ["TILED=YES", "COMPRESS=DEFLATE", "PREDICTOR=3", "BIGTIFF=YES"])
+        ds.SetGeoTransform(gt)
+        ds.SetProjection(wkt)
+        ds.GetRasterBand(1).SetNoDataValue(-99999.0)
+        outs[name] = ds
+    x = gt[0] + gt[1] * (np.arange(n) + 0.5)
+    for r0 in range(0, n, BLOCK_ROWS):
+        rows = min(BLOCK_ROWS, n - r0)
+        y = gt[3] + gt[5] * (np.arange(r0, r0 + rows) + 0.5)
+        surf = (c0 + cu * (x[None, :] - x0) / scale + cv * (y[:, None] - y0) / scale).astype(np.float32)
+        dem = g.GetRasterBand(1).ReadAsArray(0, r0, n, rows).astype(np.float32)
+        outs[V.SURFACE.file].GetRasterBand(1).WriteArray(surf, 0, r0)
+        outs[V.DEPTH.file].GetRasterBand(1).WriteArray(dem - surf, 0, r0)
+        outs[V.UNCERTAINTY.file].GetRasterBand(1).WriteArray(np.full_like(surf, 2.5), 0, r0)
+    for ds in outs.values():
+        ds.FlushCache()
+    outs.clear()
+    g = None
+    ground.unlink()
+    return 3 * 4 * n * n
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    ap.add_argument("--sizes", type=int, nargs="+", default=[1000, 10000])
+    args = ap.parse_args()
+    gdal.UseExceptions()
+    machine_line()
+    with tempfile.TemporaryDirectory(prefix="strikeline-bench-report-") as d:
+        run = Path(d) / "run"
+        done = run_child(strikeline_command() + [
+            "run", "--contacts", str(DEMO / "contacts.gpkg"), "--dem", str(DEMO / "dem.tif"), "--out", str(run),
+            "--no-report", "--quiet"])
+        if done.returncode:
+            raise SystemExit(f"strikeline run failed: {done.error_line()}")
+        ref = _child(run)
+        result_line("report of the demo's own folder (400 x 400 cells)", ref, extra="reference")
+        for n in args.sizes:
+            folder = Path(d) / f"grids_{n}"
+            nbytes = _grid_folder(run, n, folder)
+            m = _child(folder)
+            result_line(f"report of {n:,} x {n:,} cells", m, ratio=m.peak_bytes / ref.peak_bytes,
+                        reference="the reference's peak memory",
+                        extra=f"three float32 grids of {mib(nbytes)} in all")
+            shutil.rmtree(folder)
+    load_line("at the end")
+
+
+if __name__ == "__main__":
+    main()
