@@ -18,6 +18,7 @@ from __future__ import annotations
 import json
 import os
 import sys
+import threading
 import time
 
 from strikeline import __version__
@@ -50,6 +51,10 @@ class TerminalReporter(Reporter):
         out = self.stream
         self.draw = (not quiet and _isatty(out)) if bar is None else (bar and not quiet)
         self._bar = None
+        self._lock = threading.Lock()  # the bar is redrawn by the run and by the ticker
+        self._ticker: threading.Thread | None = None
+        self._stop = threading.Event()
+        self._drawn = 0.0  # perf_counter of the last redraw
 
     @property
     def stream(self):
@@ -68,38 +73,59 @@ class TerminalReporter(Reporter):
         if not self.draw:
             return
         desc = f"{step.label} ({step.index}/{step.total})"
-        if self._bar is None:
-            self._bar = self._make_bar(step.total, desc)
-        self._bar.set_description_str(desc, refresh=False)
-        self._set(step.index - 1)
+        with self._lock:
+            if self._bar is None:
+                self._bar = self._make_bar(step.total, desc)
+                self._stop.clear()
+                # a step without progress reports of its own (the model fit) still shows its time pass
+                self._ticker = threading.Thread(target=self._tick, name="strikeline-progress", daemon=True)
+                self._ticker.start()
+            self._bar.set_description_str(desc, refresh=False)
+        self._set(step.index - 1, force=True)
 
     def advance(self, step, fraction):
-        if self._bar is not None:
-            self._set(step.index - 1 + fraction)
+        self._set(step.index - 1 + fraction)
 
     def finish(self, step, timing):
-        if self._bar is not None:
-            self._set(step.index)
-            if step.index == step.total:  # cleared before the results are printed
-                self.close(status="ok")
+        self._set(step.index, force=True)
+        if step.index == step.total:  # cleared before the results are printed
+            self.close(status="ok")
 
-    def _set(self, n: float) -> None:
-        self._bar.n = n
-        self._bar.refresh()
+    def _set(self, n: float, *, force: bool = False) -> None:
+        with self._lock:
+            if self._bar is None:
+                return
+            self._bar.n = n
+            now = time.perf_counter()
+            if force or now - self._drawn >= 0.1:  # at most ten redraws a second from a long loop
+                self._bar.refresh()
+                self._drawn = now
+
+    def _tick(self) -> None:
+        while not self._stop.wait(1.0):
+            with self._lock:
+                if self._bar is not None:
+                    self._bar.refresh()
 
     def message(self, text, *, level=INFO, sheet=None):
         if self.quiet and level == INFO:
             return
         line = text if sheet is None else f"{sheet}: {text}"
-        if self._bar is not None:
-            self._bar.write(line, file=self.stream)
-        else:
-            print(line, file=self.stream)
+        with self._lock:
+            if self._bar is not None:
+                self._bar.write(line, file=self.stream)
+                return
+        print(line, file=self.stream)
 
     def close(self, *, status, message=None, exit_code=0, timing=None):
-        if self._bar is not None:
-            self._bar.close()
-            self._bar = None
+        self._stop.set()
+        if self._ticker is not None:
+            self._ticker.join()
+            self._ticker = None
+        with self._lock:
+            if self._bar is not None:
+                self._bar.close()
+                self._bar = None
 
 
 def _isatty(stream) -> bool:
