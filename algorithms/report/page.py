@@ -43,10 +43,15 @@ def _e(text) -> str:
     return html.escape(str(text), quote=True)
 
 
-def _limits(value, half, unit="°") -> str:
+def _limits(value, half, unit="°", *, azimuth: bool = False) -> str:
+    """``value`` with its 95% limits; an azimuth's limits are taken modulo 360 (``toward 1.0° (95%
+    limits 359.0-3.0°)``)."""
     if half is None:
         return f"{value:.1f}{unit}"
-    return f"{value:.1f}{unit} (95% limits {value - half:.1f}-{value + half:.1f}{unit})"
+    lo, hi = value - half, value + half
+    if azimuth:
+        lo, hi = lo % 360.0, hi % 360.0
+    return f"{value:.1f}{unit} (95% limits {lo:.1f}-{hi:.1f}{unit})"
 
 
 def plane_words(pl: dict, *, who: str = "The contact") -> str:
@@ -54,8 +59,8 @@ def plane_words(pl: dict, *, who: str = "The contact") -> str:
 
     >>> plane_words({"dip_deg": 30.0, "dip_ci95_deg": 1.0, "dip_direction_deg": 90.0,
     ...              "dip_direction_ci95_deg": 2.0, "dip_direction_true_deg": 89.5, "strike_rhr_deg": 0.0,
-    ...              "rms_m": 1.2, "n_picks": 40, "quality": "good"})[:62]
-    'The contact dips 30.0° (95% limits 29.0-31.0°) toward 90.0° (95'
+    ...              "rms_m": 1.2, "n_picks": 40, "quality": "good"}).split(" from grid north")[0]
+    'The contact dips 30.0° (95% limits 29.0-31.0°) toward 90.0° (95% limits 88.0-92.0°)'
     """
     if pl.get("quality") == "undetermined" or pl.get("dip_deg") is None:
         return f"{who}'s attitude is undetermined: {pl.get('reason', '')}. {pl.get('advice', '')}".strip()
@@ -65,7 +70,7 @@ def plane_words(pl: dict, *, who: str = "The contact") -> str:
         return (f"{who} is horizontal within its 95% confidence (dip {_limits(pl['dip_deg'], pl.get('dip_ci95_deg'))}"
                 f"; no dip direction or strike). " + fit)
     return (f"{who} dips {_limits(pl['dip_deg'], pl.get('dip_ci95_deg'))} toward "
-            f"{_limits(pl['dip_direction_deg'], pl.get('dip_direction_ci95_deg'))} from grid north "
+            f"{_limits(pl['dip_direction_deg'], pl.get('dip_direction_ci95_deg'), azimuth=True)} from grid north "
             f"({pl['dip_direction_true_deg']:.1f}° from true north); strike {pl['strike_rhr_deg']:.1f}° by the "
             f"right-hand rule. " + fit)
 

@@ -191,3 +191,13 @@ def test_without_misfit_segments_the_map_draws_the_input_contacts(tmp_path, demo
 
     assert float(shapely.length(d.contacts.geoms).sum()) == pytest.approx(total, rel=1e-6)
     assert [f[0] for f in IMG.findall(render_report(out))] == DEMO_FIGURES
+
+
+def test_dip_direction_limits_wrap_round_north():
+    from strikeline.report import plane_words
+
+    # Source: azimuths are modulo 360 (common practice): 1.5 ± 3 spans 358.5 to 4.5
+    words = plane_words({"dip_deg": 12.0, "dip_ci95_deg": 0.5, "dip_direction_deg": 1.5,
+                         "dip_direction_ci95_deg": 3.0, "dip_direction_true_deg": 1.0, "strike_rhr_deg": 271.5,
+                         "rms_m": 0.8, "n_picks": 30, "quality": "good"})
+    assert "toward 1.5° (95% limits 358.5-4.5°) from grid north" in words
