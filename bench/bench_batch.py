@@ -66,15 +66,14 @@ def make_job(tmp: Path, cells: int, per_side: int) -> tuple[Path, int]:
 
 
 def failed_sheets(out: Path) -> str:
-    """What batch.json says failed, in a few words (empty when it cannot tell)."""
+    """What batch.json says did not succeed, in a few words (empty when all did or it cannot tell)."""
     try:
         data = json.loads((out / "batch.json").read_text())
     except (OSError, ValueError):
         return ""
-    sheets = data.get("sheets", data) if isinstance(data, dict) else data
-    items = sheets.items() if isinstance(sheets, dict) else enumerate(sheets if isinstance(sheets, list) else [])
-    bad = [str(v.get("name", k)) for k, v in items if isinstance(v, dict) and v.get("status") not in (None, "ok")]
-    return f"{len(bad)} sheet(s) not ok: {', '.join(bad[:4])}" if bad else ""
+    sheets = data.get("sheets", {}) if isinstance(data, dict) else {}
+    bad = [k for k, v in sheets.items() if isinstance(v, dict) and v.get("status") != "ok"]
+    return f"{len(bad)} of {len(sheets)} sheet(s) not ok: {', '.join(bad[:4])}" if bad else ""
 
 
 def main(argv=None) -> int:
