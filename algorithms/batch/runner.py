@@ -5,14 +5,17 @@ leaves its folder as it was). A sheet whose inputs (SHA-256 of every file, GDAL'
 included) and options are those recorded for its intact earlier results is skipped; ``force``
 redoes every sheet. A failing sheet is recorded with its one-line error and the others go on.
 
-Where a sheet runs does not change what it writes: the sheet's command line in summary.json is
-the batch's without the options that only say where and how verbosely it runs, and GDAL dates the
-GeoPackages by the batch's date (``SOURCE_DATE_EPOCH`` when set, else the batch's start), so the
-serial, the local-process and the dask run write the same bytes.
+Where a sheet runs does not change what it writes: every sheet runs in a process of its own with
+one thread of the numerical libraries (:data:`ONE_THREAD`, as on dask's workers), the sheet's
+command line in summary.json is the batch's without the options that only say where and how
+verbosely it runs, and GDAL dates the GeoPackages by the batch's date (``SOURCE_DATE_EPOCH`` when
+set, else the batch's start), so the serial, the local-process and the dask run write the same
+bytes.
 """
 from __future__ import annotations
 
 import concurrent.futures as cf
+import contextlib
 import multiprocessing
 import os
 import time
@@ -90,9 +93,27 @@ def run_sheet(name: str, opts, command: list, stamp: str) -> dict:
     return {"name": name, "status": status, "error": error, "seconds": time.perf_counter() - start}
 
 
-def _pool_context():
-    methods = multiprocessing.get_all_start_methods()
-    return multiprocessing.get_context("forkserver" if "forkserver" in methods else "spawn")
+#: Threads of the numerical libraries (OpenBLAS, MKL, OpenMP) in a sheet's process: one, as
+#: dask's workers set them by default (``distributed.nanny.pre-spawn-environ``). A linear solve
+#: sums in another order on more threads, which moves the last bits of a result; with one thread
+#: everywhere the same sheet gives the same bytes here, in a worker process and on a cluster.
+ONE_THREAD = {"OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1", "OPENBLAS_NUM_THREADS": "1"}
+
+
+@contextlib.contextmanager
+def _environment(values: dict):
+    """``os.environ`` with ``values`` inside the block (the worker processes started in it
+    inherit them), as it was after."""
+    old = {k: os.environ.get(k) for k in values}
+    os.environ.update(values)
+    try:
+        yield
+    finally:
+        for k, v in old.items():
+            if v is None:
+                os.environ.pop(k, None)
+            else:
+                os.environ[k] = v
 
 
 def dask_client(address: str):
@@ -120,24 +141,22 @@ def run_sheets(tasks: list, *, workers: int = 1, client=None, done=None) -> dict
     if client is not None:
         from distributed import as_completed
 
-        futures = [client.submit(run_sheet, *t, key=f"strikeline-sheet-{t[0]}-{os.getpid()}-{time.time_ns()}",
-                                 pure=False) for t in tasks]
-        try:
-            for fut in as_completed(futures):
-                r = fut.result()
-                results[r["name"]] = r
-                done(r)
-        except BaseException:
-            client.cancel(futures)
-            raise
+        with client.as_current():  # as_completed finds the client here, not in a process-wide default
+            futures = [client.submit(run_sheet, *t, key=f"strikeline-sheet-{t[0]}-{os.getpid()}-{time.time_ns()}",
+                                     pure=False) for t in tasks]
+            try:
+                for fut in as_completed(futures):
+                    r = fut.result()
+                    results[r["name"]] = r
+                    done(r)
+            except BaseException:
+                client.cancel(futures)
+                raise
         return results
-    if workers <= 1:
-        for t in tasks:
-            r = run_sheet(*t)
-            results[r["name"]] = r
-            done(r)
-        return results
-    with cf.ProcessPoolExecutor(max_workers=min(workers, len(tasks)), mp_context=_pool_context()) as pool:
+    # every sheet in a fresh process (spawn: it starts with ONE_THREAD in its environment before
+    # numpy loads its libraries), one at a time with workers=1
+    with _environment(ONE_THREAD), cf.ProcessPoolExecutor(
+            max_workers=min(max(workers, 1), len(tasks)), mp_context=multiprocessing.get_context("spawn")) as pool:
         futures = [pool.submit(run_sheet, *t) for t in tasks]
         try:
             for fut in cf.as_completed(futures):
