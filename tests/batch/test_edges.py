@@ -1,0 +1,62 @@
+"""The shared-edge comparison on its own: sampling a grid up to its edge, the line two footprints
+share, and the mismatch of two planes against the plane equation."""
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import shapely
+from shapely.geometry import box
+
+from strikeline.batch.edges import edge_mismatch, sample_grid, shared_edge
+from strikeline.geometry.grid import Grid
+
+
+def plane_grid(a, b, c, *, x0=0.0, y0=0.0, cols=20, rows=10, cell=10.0):
+    grid = Grid((x0, cell, 0.0, y0 + rows * cell, 0.0, -cell), (rows, cols))
+    xs, ys = grid.mesh()
+    return a * xs + b * ys + c, grid
+
+
+def test_sampling_is_exact_for_a_plane_up_to_the_grid_edge():
+    z, grid = plane_grid(0.3, -0.2, 100.0)
+    x = np.array([0.0, 5.0, 123.4, 200.0, 200.0, 0.0])
+    y = np.array([0.0, 5.0, 77.7, 100.0, 0.0, 100.0])
+    # Source: bilinear interpolation (and its linear extension) reproduces any plane exactly
+    # (common practice: it is exact for functions linear in x and y)
+    assert sample_grid(z, grid, x, y) == pytest.approx(0.3 * x - 0.2 * y + 100.0, abs=1e-9)
+    assert np.isnan(sample_grid(z, grid, np.array([-0.1, 200.1]), np.array([50.0, 50.0]))).all()
+
+
+def test_a_hole_next_to_a_sample_gives_no_value():
+    z, grid = plane_grid(0.0, 0.0, 1.0)
+    z[0, 0] = np.nan
+    got = sample_grid(z, grid, np.array([2.0, 150.0]), np.array([98.0, 50.0]))
+    assert np.isnan(got[0]) and got[1] == 1.0
+
+
+def test_shared_edge_of_touching_and_corner_footprints():
+    a, b, c = box(0, 0, 100, 100), box(100, 20, 200, 120), box(100, 100, 200, 200)
+    edge = shared_edge(a, b)
+    assert edge.length == pytest.approx(80.0)
+    assert shared_edge(a, c) is None  # a corner: no line
+    assert shared_edge(a, box(300, 0, 400, 100)) is None
+
+
+def test_two_planes_apart_by_dz_along_an_edge():
+    dz, slope = 4.0, 0.25
+    line = shapely.LineString([(0, 0), (0, 400)])
+
+    def za(x, y):
+        return 100.0 + slope * np.asarray(y)
+
+    def zb(x, y):
+        return 100.0 + slope * np.asarray(y) + dz
+
+    got = edge_mismatch(line, za, zb, cell_m=10.0, interval_m=5.0)
+    # Source: plane equation: equal elevations of two parallel planes dz apart lie dz / slope apart
+    # along a line on which the elevation changes by `slope` per metre (common practice)
+    assert got["median_dz_m"] == pytest.approx(dz) and got["max_dz_m"] == pytest.approx(dz)
+    assert got["median_offset_m"] == pytest.approx(dz / slope) and got["max_offset_m"] == pytest.approx(dz / slope)
+    assert got["n_samples"] == 81 and got["length_m"] == 400.0
+    # levels 105..200 cross in both profiles: 100 + 0.25 * 400 = 200 and the second starts at 104
+    assert got["n_levels"] == len(range(105, 201, 5))
