@@ -208,3 +208,50 @@ def test_quiet_on_a_terminal_draws_no_bar_and_piped_stderr_gets_none(tmp_path):
     assert piped.returncode == 2
     assert "\r" not in piped.stderr and "%|" not in piped.stderr
     assert piped.stderr.splitlines()[-1].startswith("error: ")
+
+
+# --------------------------------------------------------------------------- a run that is stopped
+def _stopped_at(step: str, sig: int, tmp_path) -> tuple[int, list[dict]]:
+    """Start ``python -m strikeline.cli.main`` with --log-json, send it ``sig`` once the log
+    shows ``step`` begun, and return its exit status (negative: killed by the signal, as
+    ``subprocess`` reports it) and the log's lines as written when it ended."""
+    log = tmp_path / "run.jsonl"
+    env = {k: v for k, v in os.environ.items() if k != "STRIKELINE_DEBUG"}
+    proc = subprocess.Popen([sys.executable, "-m", "strikeline.cli.main", *map(str, QUICK), "--out", tmp_path / "out",
+                             "--log-json", log], stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, env=env)
+    try:
+        while proc.poll() is None:
+            if log.exists() and f'"step": "{step}"' in log.read_text(encoding="utf-8"):
+                proc.send_signal(sig)
+                break
+            select.select([], [], [], 0.05)  # poll the log file again shortly
+        code = proc.wait(timeout=600)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+        proc.stderr.close()
+    return code, read_log(log)
+
+
+def test_a_killed_run_leaves_every_event_so_far(tmp_path):
+    import signal
+
+    code, events = _stopped_at("surface model", signal.SIGKILL, tmp_path)
+    assert code == -signal.SIGKILL  # Source: Python docs, subprocess.Popen.returncode (-N: killed by signal N)
+    # every line is whole JSON (read_log parsed them); the steps up to the kill are there, no end
+    starts = [e["step"] for e in events if e["event"] == "step_start"]
+    assert starts == list(RUN_STEPS[:RUN_STEPS.index("surface model") + 1])
+    assert events[-1]["event"] != "end"
+    assert not (tmp_path / "out").exists()
+
+
+def test_a_run_stopped_by_sigterm_ends_its_log_with_exit_143(tmp_path):
+    import signal
+
+    code, events = _stopped_at("surface model", signal.SIGTERM, tmp_path)
+    # Source: the shell's convention, exit status 128 + signal number (bash manual, "Exit Status")
+    assert code == 128 + signal.SIGTERM
+    end = events[-1]
+    assert (end["event"], end["status"], end["exit_code"]) == ("end", "error", 128 + signal.SIGTERM)
+    assert "SIGTERM" in end["message"]
+    assert not (tmp_path / "out").exists()
