@@ -7,7 +7,7 @@ outside points to it (:class:`_Hull`), and the smoothstep taper ``τ(d) = 1 − 
 from __future__ import annotations
 
 import numpy as np
-from scipy.spatial import ConvexHull, cKDTree
+from scipy.spatial import ConvexHull, Voronoi, cKDTree
 from scipy.spatial import QhullError
 
 from strikeline.surfaces.kernel import _BLOCK_ELEMENTS
@@ -88,36 +88,90 @@ def distance_grid(xs, ys, data_xy, *, tree: cKDTree | None = None) -> np.ndarray
     Felzenszwalb, P. F. & Huttenlocher, D. P. (2012). Distance transforms of sampled functions.
     *Theory of Computing*, 8, 415–428. https://doi.org/10.4086/toc.2012.v008a019
     """
-    xs = np.asarray(xs, float).ravel()
-    ys = np.asarray(ys, float).ravel()
-    xy = np.asarray(data_xy, float).reshape(-1, 2)
-    out = np.empty((len(ys), len(xs)))
-    px, py = xy[:, 0], xy[:, 1]
-    xref = float(np.mean(px)) if len(px) else 0.0
-    a = -2.0 * (px - xref)
-    a2 = (px - xref) ** 2
-    xl = xs - xref
-    spread = len(np.unique(px)) > 1
-    for i, y in enumerate(ys):
-        b = a2 + (y - py) ** 2
-        low = _lower_envelope(a, b) if spread else None
-        if low is None:
-            if tree is None:
-                tree = cKDTree(xy)
-            out[i] = tree.query(np.column_stack([xs, np.full(len(xs), y)]))[0]
-            continue
-        with np.errstate(divide="ignore", invalid="ignore"):
-            brk = -(b[low[1:]] - b[low[:-1]]) / (a[low[1:]] - a[low[:-1]])  # falling along the hull
-        k = np.searchsorted(-brk, -xl)  # the number of breakpoints right of x: the envelope's vertex
-        best = None
-        for step in (-1, 0, 1):
-            j = low[np.clip(k + step, 0, len(low) - 1)]
-            dx = xs - px[j]
-            dy = y - py[j]
-            d2 = dx * dx + dy * dy
-            best = d2 if best is None else np.minimum(best, d2)
-        out[i] = np.sqrt(best)
-    return out
+    return RowDistance(data_xy, tree=tree)(xs, ys)
+
+
+class RowDistance:
+    """:func:`distance_grid` with the data prepared once (their Voronoi rows), for many blocks of
+    rows; read-only after construction, so threads may share one."""
+
+    def __init__(self, data_xy, *, tree: cKDTree | None = None):
+        self.xy = np.unique(np.asarray(data_xy, float).reshape(-1, 2), axis=0)  # a repeated datum: one distance
+        self.tree = tree if tree is not None else cKDTree(self.xy)
+        px = self.xy[:, 0]
+        self.xref = float(np.mean(px)) if len(px) else 0.0
+        self.a = -2.0 * (px - self.xref)
+        self.a2 = (px - self.xref) ** 2
+        self.ylo, self.yhi = _voronoi_rows(self.xy)
+
+    def __call__(self, xs, ys) -> np.ndarray:
+        xs = np.asarray(xs, float).ravel()
+        ys = np.asarray(ys, float).ravel()
+        out = np.empty((len(ys), len(xs)))
+        px, py, a, a2, ylo, yhi, tree = (self.xy[:, 0], self.xy[:, 1], self.a, self.a2, self.ylo, self.yhi,
+                                         self.tree)
+        xl = xs - self.xref
+        for i, y in enumerate(ys):
+            # only data whose Voronoi cell meets the row can be the nearest to one of its cells
+            c = np.flatnonzero((ylo <= y) & (yhi >= y))
+            b = a2[c] + (y - py[c]) ** 2
+            low = _lower_envelope(a[c], b) if len(c) >= 3 else None
+            if low is None:
+                if len(c) and len(c) * len(xs) <= (1 << 22):  # few candidates: every one of them
+                    dx = xs[:, None] - px[c]
+                    dy = y - py[c]
+                    out[i] = np.sqrt((dx * dx + dy * dy).min(axis=1))
+                    continue
+                out[i] = tree.query(np.column_stack([xs, np.full(len(xs), y)]))[0]
+                continue
+            cb, ca = b[low], a[c][low]
+            with np.errstate(divide="ignore", invalid="ignore"):
+                brk = -(cb[1:] - cb[:-1]) / (ca[1:] - ca[:-1])  # falling along the hull
+            k = np.searchsorted(-brk, -xl)  # the number of breakpoints right of x: the envelope's vertex
+            low = c[low]
+            best = None
+            for step in (-1, 0, 1):
+                j = low[np.clip(k + step, 0, len(low) - 1)]
+                dx = xs - px[j]
+                dy = y - py[j]
+                d2 = dx * dx + dy * dy
+                best = d2 if best is None else np.minimum(best, d2)
+            out[i] = np.sqrt(best)
+        return out
+
+
+def _voronoi_rows(xy):
+    """The lowest and highest y of each datum's Voronoi cell (the region nearer to it than to any
+    other datum), widened by a margin for qhull's rounding; ``-inf, inf`` for an unbounded cell
+    or when there is no diagram. The diagram is computed about the data's centre (map
+    coordinates of millions of metres cost qhull most of its precision), and the margin is ten
+    times the worst amount by which a computed cell corner lies farther from its datum than from
+    the nearest datum, plus a millimetre."""
+    lo, hi = np.full(len(xy), -np.inf), np.full(len(xy), np.inf)
+    if len(xy) < 4:
+        return lo, hi
+    centre = xy.mean(axis=0)
+    p = xy - centre
+    try:
+        vor = Voronoi(p)
+    except (QhullError, ValueError):
+        return lo, hi
+    regions = [(i, vor.regions[r]) for i, r in enumerate(vor.point_region)]
+    regions = [(i, r) for i, r in regions if r and -1 not in r]
+    if not regions:
+        return lo, hi
+    idx = np.array([i for i, _ in regions])
+    corners = np.concatenate([r for _, r in regions])
+    owner = np.repeat(idx, [len(r) for _, r in regions])
+    v = vor.vertices[corners]
+    nearest = cKDTree(p).query(v)[0]
+    excess = float(np.max(np.hypot(v[:, 0] - p[owner, 0], v[:, 1] - p[owner, 1]) - nearest))
+    pad = 10.0 * max(excess, 0.0) + 1e-9 * float(np.ptp(p, axis=0).max()) + 1e-3
+    vy = v[:, 1] + centre[1]
+    starts = np.concatenate([[0], np.cumsum([len(r) for _, r in regions])[:-1]])
+    lo[idx] = np.minimum.reduceat(vy, starts) - pad
+    hi[idx] = np.maximum.reduceat(vy, starts) + pad
+    return lo, hi
 
 
 def _lower_envelope(a, b):

@@ -25,7 +25,7 @@ from strikeline.errors import CancelledError, InputError
 from strikeline.geometry.grid import Grid
 from strikeline.stats import ErrorGrowth, ModelChoice
 from strikeline.surfaces.fitted import _Surface
-from strikeline.surfaces.hull import distance_grid, distance_to_data
+from strikeline.surfaces.hull import RowDistance, distance_to_data
 
 
 #: Default error allowed between coarse-grid interpolation and full evaluation.
@@ -408,9 +408,11 @@ class SurfaceModel:
         xs, ys = grid.cell_centres()
         s = self._surface
 
+        rows_distance = RowDistance(s.tree.data, tree=s.tree) if s.needs_distance() else None
+
         def block(x, y):
             X, Y = np.meshgrid(x, y)
-            d = distance_grid(x, y, s.tree.data, tree=s.tree) if s.needs_distance() else None
+            d = rows_distance(x, y) if rows_distance is not None else None
             return s.standard_error(X.ravel(), Y.ravel(), distance=None if d is None else d.ravel()).reshape(X.shape)
 
         return _by_rows(block, xs[c0:c1], ys[r0:r1], cells_per_chunk=1 << 18, what="standard error grid",
