@@ -198,7 +198,7 @@ def stereonet_figure(d) -> bytes:
         half = max(0.03, 3.0 * np.sqrt(2) * np.sin(np.radians(plane.get("cone95_deg") or 0.0) / 2))
         window = (float(x) - half, float(x) + half, float(y) - half, float(y) + half)
         draw_net(zx, step_deg=1.0, window=tuple(w + e for w, e in zip(window, (-half, half, -half, half))))
-        draw_attitudes(zx, local=d.attitudes, plane=plane, groups=groups, pole_size=7.0)
+        draw_attitudes(zx, local=d.attitudes, plane=plane, groups=groups, pole_size=12.0)
         zx.set_xlim(*window[:2])
         zx.set_ylim(*window[2:])
         zx.set_aspect("equal")
