@@ -10,6 +10,8 @@ towards the rim as on the equal-angle (Wulff) net.
 """
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 
 from strikeline.geometry.orientation import pole_from_dip, trend_plunge_from_vector, vector_from_trend_plunge
@@ -68,12 +70,9 @@ def _within(x, y, window):
     return np.where(out, np.nan, x), np.where(out, np.nan, y)
 
 
-def draw_net(ax, *, step_deg: float = 10.0, window=None) -> None:
-    """The net's frame on ``ax``: the horizon, great circles through N-S every ``step_deg`` and
-    small circles about the N-S axis every ``step_deg``, in light grey, with N, E, S, W marked.
-    With ``window`` (xmin, xmax, ymin, ymax) only the grid inside it is drawn (a close-up)."""
-    grid = dict(color="0.85", lw=0.5, zorder=0)
-    n = 181 if window is None else 2001
+@functools.lru_cache(maxsize=4)
+def _net_curves(step_deg: float, n: int) -> tuple:
+    """The net's grid as projected curves (computed once per spacing and resolution)."""
     curves = []
     for a in np.arange(step_deg, 180.0, step_deg):  # great circles striking N-S
         dip, ddir = (a, 90.0) if a <= 90 else (180.0 - a, 270.0)
@@ -81,13 +80,20 @@ def draw_net(ax, *, step_deg: float = 10.0, window=None) -> None:
     for a in np.arange(step_deg, 180.0, step_deg):  # small circles about the N-S horizontal axis
         if abs(a - 90.0) > 1e-9:
             curves.append(small_circle(0.0, 0.0, a, n=2 * n - 1))
+    return tuple(xy for t, p in curves for xy in _split_at_rim(*equal_area_xy(t, p)))
+
+
+def draw_net(ax, *, step_deg: float = 10.0, window=None) -> None:
+    """The net's frame on ``ax``: the horizon, great circles through N-S every ``step_deg`` and
+    small circles about the N-S axis every ``step_deg``, in light grey, with N, E, S, W marked.
+    With ``window`` (xmin, xmax, ymin, ymax) only the grid inside it is drawn (a close-up)."""
+    grid = dict(color="0.85", lw=0.5, zorder=0)
     segments = []
-    for t, p in curves:
-        for x, y in _split_at_rim(*equal_area_xy(t, p)):
-            x, y = _within(x, y, window)
-            ok = np.isfinite(x)
-            edges = np.flatnonzero(np.diff(np.r_[0, ok.astype(np.int8), 0]))
-            segments += [np.column_stack([x[a:b], y[a:b]]) for a, b in zip(edges[::2], edges[1::2]) if b - a > 1]
+    for x, y in _net_curves(float(step_deg), 181 if window is None else 2001):
+        x, y = _within(x, y, window)
+        ok = np.isfinite(x)
+        edges = np.flatnonzero(np.diff(np.r_[0, ok.astype(np.int8), 0]))
+        segments += [np.column_stack([x[a:b], y[a:b]]) for a, b in zip(edges[::2], edges[1::2]) if b - a > 1]
     from matplotlib.collections import LineCollection
 
     ax.add_collection(LineCollection(segments, colors=grid["color"], linewidths=grid["lw"], zorder=grid["zorder"]))
