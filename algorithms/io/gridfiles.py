@@ -136,8 +136,16 @@ class StripWriter:
         # are written on several threads): a failure is an exception or an error code
         failed = None
         try:
-            if self._ds.GetRasterBand(1).WriteArray(strip, 0, r0) != gdal.CE_None:
+            band = self._ds.GetRasterBand(1)
+            # the strip's tiles are compressed and written now, on this thread, in the order a
+            # whole-array write gives them; GDAL's block cache then holds one strip of this file
+            gdal.ErrorReset()  # this thread's last error (GDAL keeps one per thread)
+            if band.WriteArray(strip, 0, r0) != gdal.CE_None:
                 failed = gdal.GetLastErrorMsg() or "write failed"
+            else:
+                band.FlushCache()  # returns nothing in GDAL 3.6's bindings: its failure is the last error
+                if gdal.GetLastErrorType() >= gdal.CE_Failure:
+                    failed = gdal.GetLastErrorMsg()
         except RuntimeError as exc:
             failed = gdal_message(exc)
         if failed is not None:

@@ -12,9 +12,9 @@ reads a block of lines at a time.
 Every value is the one the in-memory chain (:func:`strikeline.pipeline.compute`) computes for
 the same cell: the surface and its standard error come from
 :meth:`~strikeline.surfaces.SurfaceModel.evaluate_grid` and
-:meth:`~strikeline.surfaces.SurfaceModel.standard_error_grid` on the block's window (which give
-the values of the whole grid's call), the other grids are cell-wise, and the strips give the
-GeoTIFF bytes of a whole-array write. ``tests/pipeline/test_tiled.py`` checks the files byte for
+:meth:`~strikeline.surfaces.SurfaceModel.standard_error_grid` with the block's ``window`` of the
+whole grid (which gives the values of the whole grid's call), the other grids are cell-wise, and
+the strips give the GeoTIFF bytes of a whole-array write. ``tests/pipeline/test_tiled.py`` checks the files byte for
 byte against the in-memory run with blocks of 7 x 5 cells.
 """
 from __future__ import annotations
@@ -142,7 +142,9 @@ def block_windows(shape, block_shape) -> list[list[tuple[int, int, int, int]]]:
 
 
 def window_grid(grid: Grid, r0: int, r1: int, c0: int, c1: int) -> Grid:
-    """The grid of rows ``r0:r1`` and columns ``c0:c1`` of ``grid`` (same cells, same CRS).
+    """The grid of rows ``r0:r1`` and columns ``c0:c1`` of ``grid`` (same cells, same CRS; its cell
+    centres may differ from the whole grid's by rounding, so values at cell centres are taken with
+    the whole grid and a window, as :meth:`~strikeline.surfaces.SurfaceModel.evaluate_grid` does).
 
     >>> window_grid(Grid((100.0, 10.0, 0.0, 500.0, 0.0, -10.0), (8, 9)), 2, 5, 3, 9).transform
     (130.0, 10.0, 0.0, 480.0, 0.0, -10.0)
@@ -161,13 +163,14 @@ def _block(model, grid: Grid, win, *, ground=None) -> dict:
     """The grids of one block: the surface on the window with a one-cell halo, its dip grids
     (``dip_grids`` of the haloed surface cut to the window: the central differences at the
     window's edge cells see their neighbours as in the whole grid), the standard error and the
-    depth below ``ground`` (the ground on the output grid)."""
+    depth below ``ground`` (the ground on the output grid). The model evaluates windows of the
+    whole grid (``window=``), which hold the whole grid's values for those cells."""
     r0, r1, c0, c1 = win
-    h0, h1, k0, k1 = _with_halo(win, grid.shape)
-    hgrid = window_grid(grid, h0, h1, k0, k1)
+    halo = _with_halo(win, grid.shape)
+    h0, h1, k0, k1 = halo
     inner = (slice(r0 - h0, r1 - h0), slice(c0 - k0, c1 - k0))
-    s_halo = model.evaluate_grid(grid, window=(h0, h1, k0, k1), workers=1)  # the whole grid's values
-    dip, ddir = dip_grids(s_halo, hgrid)
+    s_halo = model.evaluate_grid(grid, window=halo, workers=1)
+    dip, ddir = dip_grids(s_halo, window_grid(grid, *halo))  # only its cell sizes are used
     surface = s_halo[inner]
     out = {"surface": surface, "dip": dip[inner], "dip_direction": ddir[inner],
            "uncertainty": model.standard_error_grid(grid, window=win, workers=1)}
@@ -178,14 +181,15 @@ def _block(model, grid: Grid, win, *, ground=None) -> dict:
 
 def _isopach_block(top_model, model, grid: Grid, win) -> dict:
     """The isopachs of one block (the base's dip needs the one-cell halo) and which of its cells
-    lie within reach of each surface's data."""
+    lie within reach of each surface's data (at the whole grid's cell centres)."""
     r0, r1, c0, c1 = win
-    h0, h1, k0, k1 = _with_halo(win, grid.shape)
-    hgrid = window_grid(grid, h0, h1, k0, k1)
+    halo = _with_halo(win, grid.shape)
+    h0, h1, k0, k1 = halo
     inner = (slice(r0 - h0, r1 - h0), slice(c0 - k0, c1 - k0))
-    vth, tth = isopach_grids(top_model.evaluate_grid(grid, window=(h0, h1, k0, k1), workers=1),
-                             model.evaluate_grid(grid, window=(h0, h1, k0, k1), workers=1), hgrid)
-    X, Y = window_grid(grid, r0, r1, c0, c1).mesh()
+    vth, tth = isopach_grids(top_model.evaluate_grid(grid, window=halo, workers=1),
+                             model.evaluate_grid(grid, window=halo, workers=1), window_grid(grid, *halo))
+    xs, ys = grid.cell_centres()
+    X, Y = np.meshgrid(xs[c0:c1], ys[r0:r1])
     return {"vertical_thickness": vth[inner], "true_thickness": tth[inner],
             "base_in": ~model.is_extrapolated(X, Y), "top_in": ~top_model.is_extrapolated(X, Y)}
 

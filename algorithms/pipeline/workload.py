@@ -20,9 +20,10 @@ import numpy as np
 import shapely
 
 from strikeline.attitude import DEFAULT_WINDOW_RESAMPLES
-from strikeline.budget import BYTES_PER_CELL, budget_words, memory_budget_bytes, size_words
+from strikeline.budget import BLOCK_BYTES_PER_CELL, BYTES_PER_CELL, budget_words, memory_budget_bytes, size_words
 from strikeline.errors import InputError
 from strikeline.pipeline.option_table import CLI_OPTION_NAMES
+from strikeline.pipeline.tiled import block_shape_of
 
 #: Bytes per DEM pick (coordinates, source, contact, sigma, segment labels, k-d trees, windows'
 #: member lists). Measured: 4.0 kB more for each further pick (peak resident memory, plane model,
@@ -111,20 +112,22 @@ def estimate_workload(inputs, opts, *, grid=None, names: dict | None = None) -> 
     contacts = [inputs.contacts] + ([inputs.top_contacts] if inputs.top_contacts is not None else [])
     length = sum(_lines_length_m(c) for c in contacts)
     n_vertices = sum(int(shapely.get_num_coordinates(c.geoms).sum()) for c in contacts)
-    # ---- the output grid
+    # ---- the output grid: its arrays in memory, or block by block (strikeline.pipeline.tiled), where
+    # what still grows with the cells is the DEM read whole and the arrays made from it
     if grid is not None or inputs.dem_grid is not None:
         g = grid if grid is not None else inputs.dem_grid
         cells = float(g.rows) * float(g.cols)
+        per_cell = BYTES_PER_CELL if block_shape_of(g, opts) is None else BLOCK_BYTES_PER_CELL
         if opts.cell_m is not None or inputs.dem_grid is None:
             named = names.get("cell_m", "cell_m")
             out.append(Estimate(named, f"output grid cells of {g.cell_x_m:g} m ({g.cols} x {g.rows})", cells,
-                                cells * BYTES_PER_CELL, budget,
+                                cells * per_cell, budget,
                                 f"give a larger {named} (leave it out for the DEM's cells, or about 1/500 of "
                                 "the extent without a DEM)"))
         else:
             out.append(Estimate(f"DEM '{inputs.paths.get('dem', 'in memory')}'",
                                 f"output grid cells (the DEM's {g.cols} x {g.rows})", cells,
-                                cells * BYTES_PER_CELL, budget,
+                                cells * per_cell, budget,
                                 "clip the DEM to the area of the contacts (gdalwarp -te) or coarsen it "
                                 "(gdalwarp -tr)"))
     # ---- DEM picks along the contacts

@@ -19,10 +19,9 @@ import pytest
 gdal = pytest.importorskip("osgeo.gdal")
 from osgeo import ogr  # noqa: E402
 
-from strikeline.geometry.grid import Grid  # noqa: E402
 from strikeline.pipeline import compute, load_inputs, write_results  # noqa: E402
 from strikeline.pipeline.options import RunOptions  # noqa: E402
-from strikeline.pipeline.tiled import block_windows, grids_by_blocks, window_grid  # noqa: E402
+from strikeline.pipeline.tiled import block_windows, grids_by_blocks  # noqa: E402
 
 REPO = Path(__file__).resolve().parents[2]
 DEMO = REPO / "test_data" / "demo"
@@ -104,13 +103,6 @@ def test_block_windows_cover_every_cell_once():
     assert (seen == 1).all()  # Source: arithmetic - a partition of the grid
 
 
-def test_window_grid_cell_centres_are_the_grids():
-    g = Grid((1000.0, 10.0, 0.0, 5000.0, 0.0, -10.0), (23, 17), "")
-    xs, ys = g.cell_centres()
-    wx, wy = window_grid(g, 4, 11, 6, 9).cell_centres()
-    assert np.array_equal(wx, xs[6:9]) and np.array_equal(wy, ys[4:11])  # same floats, same cells
-
-
 def _volcano_model(case: str, kind: str):
     from strikeline.pipeline.steps import collect_picks
     from strikeline.surfaces import fit_surface
@@ -120,18 +112,18 @@ def _volcano_model(case: str, kind: str):
     return fit_surface(collect_picks(inputs).xyz, model=kind), inputs.dem_grid
 
 
-@pytest.mark.parametrize("kind", [
-    "plane", "trend2", "spline",
-])
-def test_surface_on_a_window_equals_the_whole_grid(kind):
-    """What the block path relies on: the surface and its standard error on a block window are the
-    whole grid's values for those cells, bit for bit."""
-    model, grid = _volcano_model("fold", kind)
+@pytest.mark.parametrize("case", ["plane", "fold"])
+@pytest.mark.parametrize("kind", ["plane", "trend2", "spline"])
+def test_surface_on_a_window_equals_the_whole_grid(kind, case):
+    """What the block path relies on: the surface and its standard error on a block window
+    (``window=``) are the whole grid's values for those cells, bit for bit."""
+    model, grid = _volcano_model(case, kind)
     whole, se = model.evaluate_grid(grid), model.standard_error_grid(grid)
     for r0, r1, c0, c1 in [(10, 17, 20, 25), (0, 7, 0, 5), (80, 87, 56, 61), (40, 41, 30, 31)]:
-        g = window_grid(grid, r0, r1, c0, c1)
-        assert np.array_equal(model.evaluate_grid(g), whole[r0:r1, c0:c1], equal_nan=True)
-        assert np.array_equal(model.standard_error_grid(g), se[r0:r1, c0:c1], equal_nan=True)
+        win = (r0, r1, c0, c1)
+        assert np.array_equal(model.evaluate_grid(grid, window=win, workers=1), whole[r0:r1, c0:c1], equal_nan=True)
+        assert np.array_equal(model.standard_error_grid(grid, window=win, workers=1), se[r0:r1, c0:c1],
+                              equal_nan=True)
 
 
 def test_contours_from_the_file_are_those_of_the_array(tmp_path):
@@ -208,3 +200,46 @@ def test_command_line_block_cells_writes_the_same_grids(tmp_path, cli):
             assert _sha(tmp_path / "a" / n) == _sha(tmp_path / "b" / n), n
     manifest = json.loads((tmp_path / "b" / "strikeline_manifest.json").read_text())
     assert not [f for f in manifest["files"] if "scratch" in f]
+
+
+# ---------------------------------------------------------------- the workload check
+def test_workload_budgets_the_block_path_per_cell(monkeypatch):
+    """A DEM grid whose arrays would not fit the budget in memory goes block by block and is
+    budgeted at BLOCK_BYTES_PER_CELL per cell; one that fits stays in memory at BYTES_PER_CELL."""
+    from types import SimpleNamespace
+
+    import shapely
+
+    import strikeline.budget as budget
+    import strikeline.pipeline.workload as workload
+    from strikeline.geometry.grid import Grid
+
+    class Layer(SimpleNamespace):
+        def __len__(self):
+            return len(self.geoms)
+
+    grid = Grid((0.0, 5.0, 0.0, 1000.0, 0.0, -5.0), (100, 200))
+    cells = 100 * 200
+    inputs = SimpleNamespace(contacts=Layer(geoms=np.array([shapely.LineString([(0, 0), (600, 800)])], dtype=object)),
+                             top_contacts=None, dem=np.zeros(grid.shape), dem_grid=grid, paths={"dem": "d.tif"},
+                             contours=None, contour_elevations_m=None, boreholes_xyz=None)
+    opts = SimpleNamespace(cell_m=None, pick_spacing_m=None, window_m=None, interval_m=None, resamples=None,
+                           block_cells=None)
+
+    def dem_estimate():
+        return next(e for e in workload.estimate_workload(inputs, opts) if e.option == "DEM 'd.tif'")
+
+    # a budget of 100 bytes per cell: the arrays in memory (BYTES_PER_CELL) would not fit, so the
+    # grid goes block by block, which fits (Reference: arithmetic on the figures above)
+    for mod in (budget, workload):
+        monkeypatch.setattr(mod, "memory_budget_bytes", lambda: 100 * cells)
+    assert budget.BYTES_PER_CELL > 100 > budget.BLOCK_BYTES_PER_CELL
+    e = dem_estimate()
+    assert e.need == cells * budget.BLOCK_BYTES_PER_CELL and not e.exceeded
+    # a budget that holds the arrays in memory twice over: in memory, at BYTES_PER_CELL
+    for mod in (budget, workload):
+        monkeypatch.setattr(mod, "memory_budget_bytes", lambda: 2 * budget.BYTES_PER_CELL * cells + 1)
+    assert dem_estimate().need == cells * budget.BYTES_PER_CELL
+    # asked for blocks: budgeted as blocks whatever the size
+    opts.block_cells = 64
+    assert dem_estimate().need == cells * budget.BLOCK_BYTES_PER_CELL
