@@ -38,6 +38,10 @@ SCRATCH_OPTIONS = ("TILED=YES", "BIGTIFF=YES")
 #: Nodata of the float64 scratch grids: the lowest float64, below every value a surface takes,
 #: the sentinel :func:`strikeline.io.contours.contour_lines` gives GDAL for NaN cells.
 SCRATCH_NODATA = float(np.finfo(np.float64).min)
+#: GDAL's block cache while the contour generator reads a scratch grid: three rows of 256 x 256
+#: float64 tiles across the grid (two lines it compares may lie in two tile rows), at least 64 MiB
+#: (our choice): memory grows with the grid's width, not its cells.
+CONTOUR_CACHE_BYTES = 64 * 2**20
 
 
 class StripWriter:
@@ -183,6 +187,7 @@ class StripWriter:
             for k, digest in enumerate(self._hashes):
                 r0 = k * self.strip_rows
                 got = b.ReadAsArray(0, r0, self.grid.cols, min(self.strip_rows, self.grid.rows - r0))
+                b.FlushCache()  # drop the strip's blocks from GDAL's cache: memory stays one strip
                 if got is None or hashlib.blake2b(np.ascontiguousarray(got, dtype=self.dtype).tobytes(),
                                                   digest_size=16).digest() != digest:
                     raise RuntimeError(f"the file read back differs from what was written (rows from {r0})")
@@ -263,8 +268,12 @@ def contour_lines_from_file(path, grid: Grid, *, interval_m=None, levels=None, b
         return empty
     options += [f"NODATA={SCRATCH_NODATA:.17g}", "ID_FIELD=0", "ELEV_FIELD=1"]
     src = band = None
+    cache = gdal.GetCacheMax()
     with gdal_exceptions(), GdalStop(progress, is_cancelled, what="contour lines") as stop:
         try:
+            # GDAL's generator reads the band a line at a time through the block cache, which would
+            # keep up to GDAL_CACHEMAX (5% of the memory) of the file's blocks: bound it meanwhile
+            gdal.SetCacheMax(min(cache, max(CONTOUR_CACHE_BYTES, 3 * grid.cols * 256 * 8)))
             src = gdal.Open(os.fspath(path), gdal.GA_ReadOnly)
             band = src.GetRasterBand(1)
             wkb, elev = _contour_band(band, options, stop)
@@ -275,6 +284,7 @@ def contour_lines_from_file(path, grid: Grid, *, interval_m=None, levels=None, b
                 f"({gdal_message(exc)}); check the grid and the levels") from None
         finally:
             band = src = None
+            gdal.SetCacheMax(cache)
     if not wkb:
         return empty
     geoms = np.asarray(shapely.force_2d(shapely.from_wkb(np.array(wkb, dtype=object))), dtype=object)
