@@ -28,9 +28,10 @@ BYTES_PER_CELL = 200
 GRID_SHARE = 0.5
 #: Bytes per cell of the output grid that a run still holds when its grids go block by block: the
 #: DEM read whole (the reader's 4 + 16 bytes per cell, :func:`strikeline.io.raster.read_raster`)
-#: and its slope for the pick errors (two float32 grids). Measured: 8 to 13 bytes more per further
-#: cell (peak resident memory of strikeline run with --block-cells 256, invented sheets of 2,000^2
-#: and 4,000^2 cells); 32 with a margin (our choice).
+#: and its slope for the pick errors (two float32 grids). Measured: 8 to 21 bytes more per further
+#: cell (peak resident memory of strikeline run in blocks on invented sheets of 2,000^2, 4,000^2 and
+#: 8,000^2 cells: 570, 665 and 1,624 MiB, the peak reached before the grids); 32 with a margin (our
+#: choice).
 BLOCK_BYTES_PER_CELL = 32
 
 
