@@ -2,7 +2,7 @@
 
 :class:`StripWriter` takes the rows of a grid in order, a band of rows at a time, and writes them
 in strips one tile high, so that GDAL compresses and places the tiles in the same order as a
-whole-array write (:func:`strikeline.io.raster.write_geotiff`): a grid written in strips is the
+whole-array write (:func:`strikeline.io.geotiff.write_geotiffs`): a grid written in strips is the
 same file, byte for byte. :func:`read_window` reads a window back, :class:`FileMask` answers
 "does this cell hold data" for scattered cells, and :func:`contour_lines_from_file` hands a
 written band to GDAL's contour generator, which reads it a block of lines at a time.
@@ -31,7 +31,7 @@ __all__ = ["StripWriter", "read_window", "FileMask", "contour_lines_from_file", 
            "SCRATCH_NODATA"]
 
 #: Creation options of strikeline's output GeoTIFFs: those of
-#: :func:`strikeline.io.raster.write_geotiff` (the block path's files must equal its files).
+#: :data:`strikeline.io.geotiff.CREATION_OPTIONS` (the block path's files must equal its files).
 OUTPUT_OPTIONS = CREATION_OPTIONS
 #: Scratch grids: tiled, uncompressed (read back once or twice, then removed), BigTIFF.
 SCRATCH_OPTIONS = ("TILED=YES", "BIGTIFF=YES")
@@ -53,12 +53,12 @@ class StripWriter:
         The file; written as ``path + '.part'`` and renamed by :meth:`close` once checked.
     grid : Grid
     description, unit : str
-        The band's description and unit (as :func:`strikeline.io.raster.write_geotiff`).
+        The band's description and unit (as :func:`strikeline.io.geotiff.write_geotiffs`).
     scratch : bool, default False
         A float64 scratch grid (uncompressed, nodata :data:`SCRATCH_NODATA`, values unchanged)
         instead of a float32 output (:data:`OUTPUT_OPTIONS`, nodata
-        :data:`strikeline.io.raster.NODATA_OUT`, values rounded to float32 as
-        ``write_geotiff`` does).
+        :data:`strikeline.io.raster.NODATA_OUT`, values rounded to float32 as the whole-array
+        writer does).
 
     Notes
     -----
