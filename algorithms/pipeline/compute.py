@@ -79,10 +79,10 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
             is_cancelled=None, tracker: RunProgress | None = None, folder=None) -> Results:
     """Run every step of the chain.
 
-    The grids are arrays in memory, or, for a grid too large for that or with ``opts.block_cells``
-    (:func:`strikeline.pipeline.tiled.block_shape_of`), computed block by block and written as
-    GeoTIFFs into ``folder`` (the run's temporary output folder; default a temporary folder kept
-    with the results): the grid fields of :class:`Results` are then
+    The grids are arrays in memory, or, with ``opts.block_cells`` or (given ``folder``) for a grid
+    too large for memory (:func:`strikeline.pipeline.tiled.block_shape_of`), computed block by
+    block and written as GeoTIFFs into ``folder`` (the run's temporary output folder; default a
+    temporary folder kept with the results): the grid fields of :class:`Results` are then
     :class:`~strikeline.pipeline.tiled.GridFile` objects, and the files equal those the arrays give.
 
     Each named step of :data:`strikeline.pipeline.progress.COMPUTE_STEPS` is marked as it begins
@@ -100,7 +100,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     what = f"picks on contacts {inputs.contacts.what}"
     grid_notes = []  # said once the picks give a plane: an input error stays the only line
     grid = surface_grid(inputs, opts, log=grid_notes.append)  # first: an extent or cell refused before any work
-    check_workload(inputs, opts, grid=grid)  # every size-driving option, before any work
+    check_workload(inputs, opts, grid=grid, auto_blocks=folder is not None)  # every size-driving option, first
     picks = collect_picks(inputs, spacing_m=opts.pick_spacing_m, log=log, is_cancelled=is_cancelled,
                           progress=tracker.part())
     step("attitude and confidence")
@@ -143,7 +143,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     unit_check = None if ub is None else map_unit_check(model, inputs.unit_polygons, inputs.unit_names, inputs.dem,
                                                         inputs.dem_grid, opts, ub, log=log)
     step("grids")
-    block_shape, tiles = block_shape_of(grid, opts), None
+    block_shape, tiles = block_shape_of(grid, opts, auto=folder is not None), None
     if block_shape is None:
         surface = model.evaluate_grid(grid, is_cancelled=is_cancelled)
         uncertainty = model.standard_error_grid(grid, is_cancelled=is_cancelled)

@@ -99,12 +99,14 @@ def relief_m(inputs) -> float | None:
     return float(max(hi) - min(lo)) if lo else None
 
 
-def estimate_workload(inputs, opts, *, grid=None, names: dict | None = None) -> list[Estimate]:
+def estimate_workload(inputs, opts, *, grid=None, names: dict | None = None, auto_blocks: bool = True
+                      ) -> list[Estimate]:
     """The sizes of a run on loaded ``inputs`` (:class:`~strikeline.pipeline.inputs.Inputs`) with
     ``opts`` (:class:`~strikeline.pipeline.options.RunOptions`), each with its limit.
 
     ``grid`` is the output grid (:class:`~strikeline.geometry.grid.Grid`; default the DEM's);
-    ``names`` says how to name the options (default the command line's flags).
+    ``names`` says how to name the options (default the command line's flags); ``auto_blocks``
+    says whether a large grid may go block by block (:func:`strikeline.pipeline.tiled.block_shape_of`).
     """
     names = names or CLI_OPTION_NAMES
     budget = memory_budget_bytes()
@@ -117,7 +119,7 @@ def estimate_workload(inputs, opts, *, grid=None, names: dict | None = None) -> 
     if grid is not None or inputs.dem_grid is not None:
         g = grid if grid is not None else inputs.dem_grid
         cells = float(g.rows) * float(g.cols)
-        per_cell = BYTES_PER_CELL if block_shape_of(g, opts) is None else BLOCK_BYTES_PER_CELL
+        per_cell = BYTES_PER_CELL if block_shape_of(g, opts, auto=auto_blocks) is None else BLOCK_BYTES_PER_CELL
         if opts.cell_m is not None or inputs.dem_grid is None:
             named = names.get("cell_m", "cell_m")
             out.append(Estimate(named, f"output grid cells of {g.cell_x_m:g} m ({g.cols} x {g.rows})", cells,
@@ -190,10 +192,11 @@ def _round_interval(relief: float) -> str:
     return f"{min((m * mag for m in (1, 2, 5, 10) if m * mag >= raw), default=raw):g}"
 
 
-def check_workload(inputs, opts, *, grid=None, names: dict | None = None) -> list[Estimate]:
+def check_workload(inputs, opts, *, grid=None, names: dict | None = None, auto_blocks: bool = True
+                   ) -> list[Estimate]:
     """Refuse a run whose size (:func:`estimate_workload`) exceeds its limits, in one line naming the
     option, the estimate and the limit; returns the estimates otherwise."""
-    estimates = estimate_workload(inputs, opts, grid=grid, names=names)
+    estimates = estimate_workload(inputs, opts, grid=grid, names=names, auto_blocks=auto_blocks)
     for e in estimates:
         if e.exceeded:
             raise InputError(e.message())

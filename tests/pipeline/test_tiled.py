@@ -237,6 +237,9 @@ def test_workload_budgets_the_block_path_per_cell(monkeypatch):
     assert budget.BYTES_PER_CELL > 100 > budget.BLOCK_BYTES_PER_CELL
     e = dem_estimate()
     assert e.need == cells * budget.BLOCK_BYTES_PER_CELL and not e.exceeded
+    # where the grids must be arrays (compute without an output folder: the QGIS tools) it is refused
+    e = next(e for e in workload.estimate_workload(inputs, opts, auto_blocks=False) if e.option == "DEM 'd.tif'")
+    assert e.need == cells * budget.BYTES_PER_CELL and e.exceeded
     # a budget that holds the arrays in memory twice over: in memory, at BYTES_PER_CELL
     for mod in (budget, workload):
         monkeypatch.setattr(mod, "memory_budget_bytes", lambda: 2 * budget.BYTES_PER_CELL * cells + 1)
