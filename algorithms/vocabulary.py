@@ -628,15 +628,6 @@ def reference_markdown() -> str:
     lines += ["", "### Keys of a batch's `batch.json` (`*`: a sheet's or an edge's name)", "",
               _row("key", "unit", "meaning"), _row("---", "---", "---")]
     lines += [_row(f"`{k.name}`", _unit(k.unit), k.meaning) for k in BATCH_KEYS]
-    lines += ["", "### Layers of a batch's `index.gpkg` (`strikeline batch`)", "",
-              _row("layer", "field", "unit", "meaning"), _row("---", "---", "---", "---")]
-    for layer in INDEX_LAYERS:
-        lines.append(_row(f"`{layer.name}`", f"({layer.geometry})", "-", layer.meaning))
-        lines += [_row(f"`{layer.name}`", f"`{f.name}`", _unit(f.unit),
-                       f.meaning + (" (when known)" if f.name in layer.optional else "")) for f in layer.fields]
-    lines += ["", "### Keys of a batch's `batch.json` (`*`: a sheet's or an edge's name)", "",
-              _row("key", "unit", "meaning"), _row("---", "---", "---")]
-    lines += [_row(f"`{k.name}`", _unit(k.unit), k.meaning) for k in BATCH_KEYS]
     lines += ["", "### Keys of a `--log-json` file (one JSON object per line and event)", "",
               _row("key", "unit", "meaning"), _row("---", "---", "---")]
     lines += [_row(f"`{k.name}`", _unit(k.unit), k.meaning) for k in LOG_KEYS]

@@ -226,7 +226,18 @@ _OPTION_LIST = (
          choices=ELEVATION_UNITS, unset="metres", flag="--contour-unit", commands=_RUN),
     # ---- outputs
     _opt("out", "path", "folder to create for the results (must not exist unless --overwrite)", flag="--out",
-         metavar="DIR", required=True, commands=_RUN),
+         metavar="DIR", required=True, commands=("run", "batch"),
+         helps=(("batch", "the batch folder: one folder per sheet, index.gpkg, index.html, batch.json; a rerun into "
+                          "it redoes only the sheets whose inputs or options changed"),)),
+    # ---- a series of sheets (strikeline batch)
+    _opt("workers", int, "sheets run at once in local processes (1: one after the other)", default=1, minimum=1,
+         basis="one sheet at a time: a sheet's own grid steps already use the cores (common practice)",
+         flag="--workers", metavar="N", commands=("batch",)),
+    _opt("scheduler", str, "run the sheets on the dask.distributed cluster whose scheduler listens at ADDRESS "
+         "(e.g. tcp://host:8786; the dask extra); every worker must see the job's paths",
+         unset="the sheets run on this machine", flag="--scheduler", metavar="ADDRESS", commands=("batch",)),
+    _opt("force", bool, "redo every sheet, even those unchanged since the last run", default=False, flag="--force",
+         commands=("batch",)),
     _opt("overwrite", bool, "replace an existing output (the --out folder or file)", default=False,
          flag="--overwrite", commands=("run", "demo", "attitude", "thickness", "thickness grids")),
     _opt("no_report", bool, "do not write report.html, the page of figures (drawing it needs matplotlib, the plot "
@@ -235,7 +246,8 @@ _OPTION_LIST = (
          commands=("demo",)),
     # ---- what a command says while it works (strikeline.cli.progress)
     _opt("quiet", bool, "no progress bar and no information lines on stderr; warnings, errors and the results "
-         "on stdout are still printed", default=False, flag="--quiet", commands=_TOLD),
+         "on stdout are still printed", default=False, flag="--quiet", commands=(*_TOLD, "batch"),
+         helps=(("batch", "print nothing but errors and the final line"),)),
     _opt("log_json", "path", "write the command's steps (wall and CPU seconds, peak memory), messages and final "
          "status to FILE as JSON Lines while it runs; FILE must lie outside --out and be new or an earlier "
          "strikeline log, which is replaced", unset="no log file", flag="--log-json", metavar="FILE",
