@@ -271,21 +271,20 @@ def test_every_raster_of_the_vocabulary_keeps_its_description_and_unit(tmp_path,
 
 
 def test_geotiff_read_back_mismatch_is_an_error_and_leaves_nothing(tmp_path, monkeypatch):
-    from strikeline.io import raster
+    from strikeline.io import geotiff
 
-    real = raster._check_written
+    real = geotiff.GeoTiffWriter._check
 
-    def corrupt(tmp, values, description, unit):
-        with open(tmp, "r+b") as f:  # damage the file after GDAL closed it
-            f.seek(os.path.getsize(tmp) // 2)  # inside the compressed tiles
-            f.write(b"\0" * 64)
-        real(tmp, values, description, unit)
+    def truncated(self):
+        with open(self.tmp, "r+b") as f:  # cut the file after GDAL closed it, as a full disk would
+            f.truncate(os.path.getsize(self.tmp) // 2)
+        real(self)
 
-    monkeypatch.setattr(raster, "_check_written", corrupt)
+    monkeypatch.setattr(geotiff.GeoTiffWriter, "_check", truncated)
     path = tmp_path / "x.tif"
     rng = np.random.default_rng(1)
     with pytest.raises(OutputError, match="GDAL could not write it"):
-        write_geotiff(path, rng.normal(size=(64, 64)), _utm_grid((64, 64)), description="x", unit="m")
+        write_geotiff(path, rng.normal(size=(600, 600)), _utm_grid((600, 600)), description="x", unit="m")
     assert list(tmp_path.iterdir()) == []
 
 
