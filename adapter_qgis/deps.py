@@ -37,6 +37,9 @@ REQUIREMENTS = (
     Requirement("pyproj", "pyproj", (3, 4)),
     Requirement("GDAL's Python bindings with numpy arrays (osgeo.gdal_array)", "osgeo.gdal_array", None),
 )
+#: pyproject.toml's dependencies that only the command line imports (its progress bar), so the
+#: plugin neither checks nor asks for them.
+COMMAND_LINE_ONLY = ("tqdm",)
 
 #: The commands, per platform (see :func:`install_commands`); the README shows each one as is.
 DEBIAN_APT = "sudo apt-get install python3-scipy python3-pyproj python3-gdal python3-pip"

@@ -84,7 +84,14 @@ def test_minimum_versions_are_pyproject_s():
         if m:
             floors[m.group(1).lower()] = tuple(int(x) for x in m.group(2).split(".")[:2])
     checked = {r.module: r.minimum for r in deps.REQUIREMENTS if r.minimum is not None}
-    assert checked == floors
+    assert checked == {k: v for k, v in floors.items() if k not in deps.COMMAND_LINE_ONLY}
+    # what the plugin does not check, it must not import: the command-line-only packages stay out
+    # of the library and the adapter except the command line itself
+    for name in deps.COMMAND_LINE_ONLY:
+        users = sorted(str(p.relative_to(REPO)) for p in [*(REPO / "algorithms").rglob("*.py"),
+                                                         *(REPO / "adapter_qgis").rglob("*.py")]
+                       if re.search(rf"^\s*(from|import) {name}\b", p.read_text(), re.M))
+        assert users == ["algorithms/cli/progress.py"], (name, users)
 
 
 def _fake_import(versions: dict):
