@@ -74,6 +74,7 @@ def test_a_child_is_measured_alone():
     assert r.returncode == 0, r.stderr
     own_kib = int(r.stdout.strip())
     if _measure.GNU_TIME:
+        # Source: proc(5), VmHWM is the process's peak resident set; GNU time(1) reports the same maxrss
         assert abs(r.peak_bytes / 1024 - own_kib) <= 2048, (r.peak_bytes / 1024, own_kib)
     assert r.peak_bytes >= 40 * 2**20
     assert r.cpu_s >= 0 and r.wall_s > 0
@@ -88,11 +89,13 @@ def test_in_process_peak_is_the_workload_growth():
         a += 1.0
     del a
     if not m.peak_whole_process:
+        # Source: numpy docs - a float64 array of n items holds 8n bytes, resident once written
         assert 64 * 2**20 <= m.peak_bytes < 64 * 2**20 + 32 * 2**20, m.peak_bytes
 
 
 def test_growth_exponent_is_the_log_log_slope():
-    # exact power laws (arithmetic): time ~ cells^1.0, memory ~ cells^0.5
+    # exact power laws: the log-log slope of y = c * x^k is k (Source: arithmetic,
+    # log y = log c + k log x; common practice for growth exponents)
     cells = [1e6, 1.6e7, 1.44e8]
     assert growth_exponent(cells, [3e-6 * c for c in cells]) == pytest.approx(1.0)
     assert growth_exponent(cells, [7 * c ** 0.5 for c in cells]) == pytest.approx(0.5)

@@ -30,10 +30,15 @@ LAYOUT = {"A": (0, 0), "B": (1, 0), "C": (0, 1), "D": (1, 1), "E": (2, 0)}
 
 
 def plane_z(u, v, raised=0.0):
+    """The reference surface the batch tests check against. Source: the equation of a plane,
+    z = z0 + a*u + b*v, whose dip is atan(sqrt(a^2 + b^2)) and whose dip direction is down the
+    gradient (-a, -b) (common practice; any structural geology text's plane geometry)."""
     return Z0 + A * np.asarray(u) + B * np.asarray(v) + raised
 
 
 def ground_z(u, v, raised=0.0):
+    """The ground: the plane plus a product of sines that is zero on the contact lines (arithmetic:
+    sin(k pi) = 0 and cos(pi/2 + k pi) = 0), so the contacts lie on the plane by construction."""
     return plane_z(u, v, raised) + H * np.sin(2 * math.pi * np.asarray(u) / LU) * np.cos(2 * math.pi * np.asarray(v) / LV)
 
 
