@@ -144,6 +144,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
                                                         inputs.dem_grid, opts, ub, log=log)
     step("grids")
     block_shape, tiles = block_shape_of(grid, opts, auto=folder is not None), None
+    block_grids = []  # every BlockGrids whose files the results keep
     if block_shape is None:
         surface = model.evaluate_grid(grid, is_cancelled=is_cancelled)
         uncertainty = model.standard_error_grid(grid, is_cancelled=is_cancelled)
@@ -154,6 +155,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
             inputs.dem, inputs.dem_grid, grid, log=log)
         tiles = grids_by_blocks(model, grid, folder, ground=ground, ground_grid=ground_grid, block_shape=block_shape,
                                 is_cancelled=is_cancelled)
+        block_grids.append(tiles)
         surface, uncertainty = tiles.files[V.SURFACE.file], tiles.files[V.UNCERTAINTY.file]
         dip, dipdir = tiles.files[V.DIP.file], tiles.files[V.DIP_DIRECTION.file]
     step("structure contours")
@@ -207,7 +209,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
         else:
             iso = isopachs_by_blocks(top_model, model, grid, folder, block_shape=block_shape,
                                      is_cancelled=is_cancelled)
-            tiles = (tiles, iso)
+            block_grids.append(iso)
             vth, tth = iso.files[V.VERTICAL_THICKNESS.file], iso.files[V.TRUE_THICKNESS.file]
             vals, n_in = iso.thickness_values, (iso.n_base_in, iso.n_top_in, iso.n_both_in)
         thickness = {
@@ -247,7 +249,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
                    vertical_thickness_m=vth, true_thickness_m=tth, top_picks=top_picks,
                    unit_check=unit_check, contact_sources=inputs.contact_sources,
                    top_contact_sources=inputs.top_contact_sources,
-                   block_grids=() if tiles is None else tuple(tiles) if isinstance(tiles, tuple) else (tiles,))
+                   block_grids=tuple(block_grids))
 
 
 def contacts_off_dem(inputs: Inputs, *, log: Log = _quiet) -> dict:
