@@ -50,7 +50,8 @@ from strikeline.surfaces.holdout import (CHECK_BLOCK_FACTOR, COARSE_HOLDOUT_FACT
 from strikeline.surfaces.hull import _Hull
 from strikeline.surfaces.model import SurfaceModel, _check_cancel
 from strikeline.surfaces.polynomial import _Poly, _TERMS
-from strikeline.surfaces.spline import _Spectrum, _kfold_lambda
+from strikeline.surfaces.reduced import _Reduced
+from strikeline.surfaces.spline import _kfold_lambda
 
 
 #: Fitted model kinds, simplest first (the order of the one-standard-error rule).
@@ -330,7 +331,7 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=DE
     lam = None
     if "spline" in kinds and smoothing == "kfold":
         try:
-            full = _Spectrum(data.u(data.p_xy), data.p_z)
+            full = _Reduced(data.u(data.p_xy), data.p_z)  # the λ grid needs only its top eigenvalue
             lam = _kfold_lambda(data, folds, full.lambda_grid(29) / full.n)
         except UndeterminedError:
             lam = None  # the spline's CV below reports why

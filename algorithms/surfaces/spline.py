@@ -48,74 +48,25 @@ from strikeline.stats import gcv_from_spectrum
 from strikeline.surfaces.bounded import _tps_bounded
 from strikeline.surfaces.data import _Data
 from strikeline.surfaces.kernel import _TPS, _pairwise_r2, tps_kernel
-
-
-def _householder(T):
-    """Householder QR of a tall ``(n, p)`` matrix: reflectors ``(v_k, β_k)`` and ``R`` (p×p)."""
-    A = np.array(T, dtype=float)
-    n, p = A.shape
-    vs, betas = [], []
-    for k in range(p):
-        x = A[k:, k]
-        alpha = -np.copysign(np.linalg.norm(x), x[0] if x[0] != 0 else 1.0)
-        v = x.copy()
-        v[0] -= alpha
-        vv = v @ v
-        beta = 2.0 / vv if vv > 0 else 0.0
-        A[k:, k:] -= beta * np.outer(v, v @ A[k:, k:])
-        vs.append(v)
-        betas.append(beta)
-    return vs, betas, np.triu(A[:p])
-
-
-def _apply_qt(vs, betas, X):
-    """``Qᵀ X`` for the Householder ``Q = H₀H₁…`` (rows of X), in O(n·cols) per reflector."""
-    X = np.array(X, dtype=float)
-    for k, (v, b) in enumerate(zip(vs, betas)):
-        X[k:] -= b * np.outer(v, v @ X[k:])
-    return X
-
-
-def _apply_q(vs, betas, X):
-    """``Q X``."""
-    X = np.array(X, dtype=float)
-    for k in range(len(vs) - 1, -1, -1):
-        v, b = vs[k], betas[k]
-        X[k:] -= b * np.outer(v, v @ X[k:])
-    return X
+from strikeline.surfaces.reduced import _FixedSmoothing, _Reduced
 
 
 class _Spectrum:
-    """Eigen-decomposition of a TPS pick system for GCV (Wahba 1990).
-
-    ``T = Q [R; 0]`` by three Householder reflections, so ``Qᵀ K Q`` costs ``O(n²)``; its
-    trailing block ``Q₂ᵀ K Q₂ = U diag(μ) Uᵀ``.
+    """Eigen-decomposition of a TPS pick system for GCV (Wahba 1990): the trailing block of
+    ``Qᵀ K Q`` (:class:`~strikeline.surfaces.reduced._Reduced`, ``T = Q [R; 0]``) is
+    ``Q₂ᵀ K Q₂ = U diag(μ) Uᵀ``.
     """
 
-    def __init__(self, u, z):
-        n = len(z)
-        if n < 4:
-            raise UndeterminedError(f"the spline model needs at least 4 picks, got {n}; "
-                                    "use the plane model")
-        T = np.column_stack([np.ones(n), u])
-        vs, betas, R = _householder(T)
-        dR = np.abs(np.diag(R))
-        if dR.min() <= 1e-9 * dR.max():
-            raise UndeterminedError(
-                f"the spline model needs picks that are not all in one line ({n} picks are); "
-                "use the plane model with a dip measurement, or add picks off the line")
-        self.n, self.u, self.z, self.T = n, u, z, T
-        self.K = tps_kernel(_pairwise_r2(u, u))
-        QtKQ = _apply_qt(vs, betas, _apply_qt(vs, betas, self.K).T)  # K symmetric
-        M = QtKQ[3:, 3:]
-        mu, U = np.linalg.eigh(0.5 * (M + M.T))
+    def __init__(self, u, z, *, reduced: _Reduced | None = None):
+        red = reduced if reduced is not None else _Reduced(u, z)
+        self.n, self.u, self.z, self.T = red.n, red.u, red.z, red.T
+        self.K = red.K
+        mu, U = np.linalg.eigh(red.M)
         self.mu = np.clip(mu, 0.0, None)
-        self.Q2U = _apply_q(vs, betas, np.vstack([np.zeros((3, n - 3)), U]))
-        self.b = self.Q2U.T @ z
-        e = np.zeros((n, 3))
-        e[:3] = np.eye(3)
-        self.Q1 = _apply_q(vs, betas, e)
-        self.R1 = R
+        self.Q2U = red.q2(U)
+        self.b = self.Q2U.T @ self.z
+        self.Q1 = red.Q1
+        self.R1 = red.R1
 
     def gcv(self, nlam):
         return gcv_from_spectrum(self.mu, self.b, self.n, nlam)
@@ -204,17 +155,22 @@ def _discrepancy_nlam(spec: _Spectrum, sigma_m: float) -> float:
 def _fit_tps(data: _Data, smoothing, lam=None) -> _TPS:
     """Thin-plate smoothing spline with boreholes and dip-measurement functionals."""
     up = data.u(data.p_xy)
-    spec = _Spectrum(up, data.p_z)
-    n = spec.n
-    if lam is not None:
-        nlam, how = n * float(lam), "kfold"
-    elif isinstance(smoothing, tuple):  # ('discrepancy', sigma_m)
-        nlam, how = _discrepancy_nlam(spec, float(smoothing[1])), "discrepancy"
-    elif isinstance(smoothing, str):  # 'gcv', or 'kfold' whose grid search could not run
-        nlam, _ = _gcv_minimise(spec)
-        how = "gcv" if smoothing == "gcv" else "gcv (k-fold search failed)"
-    else:
-        nlam, how = n * float(smoothing), "fixed"
+    red = _Reduced(up, data.p_z)
+    n = red.n
+    spec = None
+    if lam is not None or not isinstance(smoothing, (str, tuple)):
+        nlam, how = (n * float(lam), "kfold") if lam is not None else (n * float(smoothing), "fixed")
+        try:  # one smoothing: a Cholesky factor does, no eigen-decomposition
+            spec = _FixedSmoothing(red, nlam)
+        except np.linalg.LinAlgError:
+            spec = None
+    if spec is None:
+        spec = _Spectrum(up, data.p_z, reduced=red)
+        if isinstance(smoothing, tuple) and lam is None:  # ('discrepancy', sigma_m)
+            nlam, how = _discrepancy_nlam(spec, float(smoothing[1])), "discrepancy"
+        elif isinstance(smoothing, str) and lam is None:  # 'gcv', or 'kfold' whose grid search could not run
+            nlam, _ = _gcv_minimise(spec)
+            how = "gcv" if smoothing == "gcv" else "gcv (k-fold search failed)"
     if nlam == 0.0 and spec.mu.min() <= 1e-12 * max(spec.mu.max(), 1e-300):
         raise UndeterminedError(
             "the spline cannot interpolate these picks exactly: some lie at the same place "
@@ -229,7 +185,8 @@ def _fit_tps(data: _Data, smoothing, lam=None) -> _TPS:
     nb, no = len(data.b_z), len(data.o_sig)
     if nb == 0 and no == 0 and data.n_bounds:  # picks only: the spectrum solves the system
         n3 = np.zeros(3)
-        return _tps_bounded(data, _spectral_solver(spec, nlam), np.concatenate([data.p_z, n3]), up,
+        solver = spec.solver() if isinstance(spec, _FixedSmoothing) else _spectral_solver(spec, nlam)
+        return _tps_bounded(data, solver, np.concatenate([data.p_z, n3]), up,
                             sparse.identity(n, format="csr"), bhat, info)
     if nb == 0 and no == 0 and data.n_bounds == 0:
         C, D = spec.coefficients(nlam)
