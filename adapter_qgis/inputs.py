@@ -17,11 +17,13 @@ from strikeline.pipeline import (
     option,
     reproject_to,
 )
+from strikeline.io.raster import read_vertical_unit
+from strikeline.pipeline.elevation_units import dem_in_metres
 from strikeline.pipeline.inputs import input_record
 from strikeline.pipeline.points import point_values, point_xyz
 
 from .layers import raster_path, read_raster_layer, read_vector, vector_name
-from .params import option_names, parameter, values  # noqa: F401 - tools import option_names from here
+from .params import option_names, parameter, value, values  # noqa: F401 - tools import option_names from here
 
 # The parameters' names, from the table of options (strikeline.pipeline.options).
 CONTACTS = option("contacts").qgis
@@ -55,6 +57,8 @@ def add_contact_and_topography(alg) -> None:
     for name in ("contacts", "dem", "contours", "elev_field"):
         alg.addParameter(parameter(alg, name))
     alg.addParameter(parameter(alg, "pick_spacing_m", parent=CONTACTS))
+    for name in ("dem_unit", "contour_unit"):  # elevations in feet are converted to metres at load
+        alg.addParameter(parameter(alg, name))
 
 
 def constraint_parameters(alg) -> list:
@@ -125,13 +129,24 @@ def read_layers(alg, parameters, context, steps, layers: dict) -> dict:
             for k, (p, label, geom) in layers.items()}
 
 
-def read_dem(alg, parameters, key, context, steps, *, label="DEM"):
-    """``(array, grid, path-or-name)`` of the raster parameter ``key``, or ``(None, None, None)``."""
+def read_dem(alg, parameters, key, context, steps, *, label="DEM", unit=False):
+    """``(array, grid, path-or-name)`` of the raster parameter ``key``, or ``(None, None, None)``.
+
+    With ``unit``, the values are turned into metres as the command line turns a DEM's
+    (:func:`strikeline.pipeline.elevation_units.dem_in_metres`): the unit of the tool's
+    ``dem_unit`` parameter, else the unit the file declares (band unit, vertical CRS), else metres.
+    """
     layer = alg.parameterAsRasterLayer(parameters, key, context)
     if layer is None:
         return None, None, None
     arr, grid = read_raster_layer(layer, label=label, is_cancelled=steps.is_cancelled)
-    return arr, grid, raster_path(layer) or layer.name()
+    path = raster_path(layer)
+    if unit:
+        declared = read_vertical_unit(path) if path else {}
+        arr = dem_in_metres(arr, declared, value(alg, parameters, "dem_unit", context),
+                            what=f"{label} '{path or layer.name()}'", option=option_names(alg)["dem_unit"],
+                            log=steps.log)
+    return arr, grid, path or layer.name()
 
 
 def read_contact_inputs(alg, parameters, context, steps, *, more: dict | None = None,
@@ -149,10 +164,10 @@ def read_contact_inputs(alg, parameters, context, steps, *, more: dict | None = 
         raise InputError("no topography given: give a DEM, topographic contour lines with their "
                          "elevation field, or both")
     contacts = read_layer(alg, parameters, CONTACTS, context, steps, label="contacts", geometry="line")
-    dem, grid, dem_path = read_dem(alg, parameters, DEM, context, steps)
+    dem, grid, dem_path = read_dem(alg, parameters, DEM, context, steps, unit=True)
     layers = read_layers(alg, parameters, context, steps, {"contours": (CONTOURS, "contours", "line"), **(more or {})})
-    opts = RunOptions(contacts=contacts.path, out="", **values(alg, parameters, context, "elev_field", "pick_spacing_m"),
-                      **options)
+    opts = RunOptions(contacts=contacts.path, out="", **values(alg, parameters, context, "elev_field", "pick_spacing_m",
+                                                               "dem_unit", "contour_unit"), **options)
     # Files are hashed into the summary; other entries only name the input.
     paths = {k: lyr.path for k, lyr in {"contacts": contacts, **layers}.items() if lyr is not None}
     if dem_path:

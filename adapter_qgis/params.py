@@ -14,6 +14,7 @@ from qgis.core import (
     QgsProcessingParameterDefinition,
     QgsProcessingParameterDistance,
     QgsProcessingParameterEnum,
+    QgsProcessingParameterExtent,
     QgsProcessingParameterFeatureSource,
     QgsProcessingParameterField,
     QgsProcessingParameterNumber,
@@ -52,9 +53,11 @@ def parameter(alg, name: str, *, parent: str | None = None, optional: bool | Non
         kind = QgsProcessingParameterField.Numeric if o.numeric else QgsProcessingParameterField.Any
         p = QgsProcessingParameterField(o.qgis, label, defaultValue=o.default, parentLayerParameterName=parent,
                                         type=kind, optional=optional)
-    elif o.choices:
+    elif o.choices:  # without a default the choice may stay empty: the library then chooses (o.unset)
         p = QgsProcessingParameterEnum(o.qgis, label, options=[alg.tr(x) for x in o.choice_labels],
-                                       defaultValue=o.qgis_default)
+                                       defaultValue=o.qgis_default, optional=o.default is None)
+    elif o.nargs == 4 and o.unit == "m":  # an extent XMIN YMIN XMAX YMAX: read with extent_value()
+        p = QgsProcessingParameterExtent(o.qgis, label, optional=True)
     elif o.kind is bool:
         p = QgsProcessingParameterBoolean(o.qgis, label, defaultValue=o.default)
     elif o.kind is str:
@@ -104,7 +107,11 @@ def value(alg, parameters, name: str, context):
     label (:func:`strikeline.pipeline.options.check_value`).
     """
     o = option(name)
-    if o.choices:
+    if o.nargs == 4:
+        raise ValueError(f"option {name!r} is an extent: read it with extent_value(), in the CRS it is meant in")
+    if o.choices and o.default is None and parameters.get(o.qgis) in (None, ""):
+        v = None  # left empty: the library chooses, as without the flag
+    elif o.choices:
         v = o.choices[alg.parameterAsEnum(parameters, o.qgis, context)]
     elif o.kind is bool:
         v = alg.parameterAsBool(parameters, o.qgis, context)
@@ -122,3 +129,42 @@ def value(alg, parameters, name: str, context):
 def values(alg, parameters, context, *names: str) -> dict:
     """``{name: value(...)}`` for each of ``names``."""
     return {name: value(alg, parameters, name, context) for name in names}
+
+
+def extent_value(alg, parameters, name: str, context, crs_wkt: str) -> tuple | None:
+    """The extent parameter of option ``name`` as ``(xmin, ymin, xmax, ymax)`` in the CRS
+    ``crs_wkt`` (QGIS transforms an extent drawn or taken from a layer in another CRS), checked as
+    the command line checks ``--extent``; None when it is left empty."""
+    from strikeline.geometry.grid import check_extent
+
+    from .layers import qgis_crs
+
+    o = option(name)
+    if alg.parameterAsExtent(parameters, o.qgis, context).isNull():
+        return None
+    ext = alg.parameterAsExtent(parameters, o.qgis, context, qgis_crs(crs_wkt))
+    return check_extent((ext.xMinimum(), ext.yMinimum(), ext.xMaximum(), ext.yMaximum()),
+                        what=option_names(alg)[name])
+
+
+#: The options of ``strikeline run`` that the whole-chain tool has no parameter for, and why: every
+#: other option of ``run`` is one of its parameters (tests/qgis/test_qgis_options.py holds both ways).
+CLI_ONLY = {
+    "contacts_layer": "a QGIS layer parameter names its layer; a GeoPackage's layers are chosen as layers",
+    "where": "QGIS filters a layer itself (the layer's filter, or 'Selected features only')",
+    "contours_layer": "a QGIS layer parameter names its layer",
+    "out": "each QGIS output has a destination of its own",
+    "overwrite": "QGIS asks before it replaces a destination",
+    "quiet": "QGIS shows progress and messages in the tool's dialog and log",
+    "log_json": "the step timings and messages go to the QGIS log",
+    "block_cells": "the QGIS tools hand their grids to QGIS from memory; block-wise grids written to files "
+                   "are the command line's (the workload check refuses a grid too large for memory)",
+    "boreholes_layer": "a QGIS layer parameter names its layer",
+    "orientations_layer": "a QGIS layer parameter names its layer",
+    "top_contacts_layer": "a QGIS layer parameter names its layer",
+    "top_where": "QGIS filters a layer itself (the layer's filter, or 'Selected features only')",
+    "x_field": "QGIS opens delimited text as a point layer with its own X and Y fields",
+    "y_field": "QGIS opens delimited text as a point layer with its own X and Y fields",
+    "crs": "a QGIS layer carries its CRS (set it in the layer's properties)",
+    "map_units_layer": "a QGIS layer parameter names its layer",
+}

@@ -485,6 +485,8 @@ QGIS_OUTPUTS: tuple[Name, ...] = (
     _n("n_negative_cells", None, "cells where the top lies below the base", "integer"),
     _n("n_measurements", None, "measurements given a thickness", "integer"),
     _n("summary", None, "path of the summary JSON (the whole chain)", "text"),
+    _n("report", None, "path of report.html (the whole chain; absent without matplotlib or with its no-report "
+                       "parameter)", "text"),
 )
 QGIS_OUTPUT_NAMES = frozenset(n.name for n in QGIS_OUTPUTS)
 

@@ -33,7 +33,10 @@ NUMPY_ALLOWED = {"array", "asarray", "empty", "frombuffer", "ndarray", "dtype", 
 #: ... and of shapely: WKB in and out, and dropping or adding Z.
 SHAPELY_ALLOWED = {"from_wkb", "to_wkb", "force_2d", "force_3d"}
 #: Library packages a tool may take functions from.
-STEP_PACKAGES = ("strikeline.pipeline", "strikeline.io", "strikeline.errors", "strikeline.vocabulary")
+#: What a tool may call: the pipeline's steps, I/O, errors, names, and the report's words (sentences
+#: of a summary, no computation).
+STEP_PACKAGES = ("strikeline.pipeline", "strikeline.io", "strikeline.errors", "strikeline.vocabulary",
+                 "strikeline.report")
 
 
 def _modules():

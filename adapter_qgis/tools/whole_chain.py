@@ -1,6 +1,7 @@
 """Tool: the whole chain in one run, as ``strikeline run`` does it."""
 from __future__ import annotations
 
+import dataclasses
 import os
 
 from qgis.core import (
@@ -13,7 +14,9 @@ from strikeline import pipeline as pl
 from strikeline import vocabulary as V
 from strikeline.io.files import write_json_atomic
 from strikeline.pipeline import compute
+from strikeline.pipeline.outputs import write_report_file
 from strikeline.pipeline.progress import READING, WRITING
+from strikeline.report.sentences import plain_answer
 
 from ..base import (
     REF_FERNANDEZ,
@@ -37,7 +40,7 @@ from ..inputs import (
 )
 from ..layers import qgis_crs
 from ..outputs import Table, add_outputs, write_raster, write_sink
-from ..params import parameter, values
+from ..params import extent_value, parameter, value, values
 from ..styles import attach_style
 from .plane_attitude import NUMBERS, REF_EFRON, REF_WOODCOCK
 from .surface_model import REF_GCV, REF_SPLINE
@@ -77,6 +80,12 @@ RASTERS = {
 REQUIRED = {V.PICKS.name, V.STRUCTURE_CONTOURS.name, V.SURFACE.name, V.DIP.name, V.DIP_DIRECTION.name}
 #: The summary JSON's destination.
 SUMMARY = "summary"
+#: The report page's destination (strikeline.vocabulary.REPORT_FILE of ``strikeline run``).
+REPORT = "report"
+#: Where QGIS's own Python gets matplotlib, said after the library's line when it is missing.
+MATPLOTLIB_IN_QGIS = ("report: in QGIS, install matplotlib into the Python that QGIS runs (Debian/Ubuntu: sudo "
+                      "apt-get install python3-matplotlib; Windows: python -m pip install matplotlib in the OSGeo4W "
+                      "Shell; macOS: the QGIS app's bin/python3 -m pip install --user matplotlib), then restart QGIS")
 
 
 class WholeChain(StrikelineAlgorithm):
@@ -93,7 +102,8 @@ class WholeChain(StrikelineAlgorithm):
         "outcrop trace flagged where they are extrapolated beyond the data, dip and dip-direction "
         "grids, and, with a DEM, depth below ground, the trace misfit and the contact segments that "
         "misfit; with the unit's top contacts also isopachs (vertical and true thickness). The "
-        "summary JSON is the command line's summary.json.")
+        "summary JSON is the command line's summary.json, and the report is its report.html: the caution, the "
+        "answer in plain words and the figures on one page (needs matplotlib).")
     METHOD = ("Picks: bilinear DEM sampling and exact contour crossings; attitude: total least "
               "squares with bootstrap confidence and eigenvalue shape quality; surfaces: least squares "
               "and thin-plate splines with cross-validation; contours and trace: GDAL's contour "
@@ -104,11 +114,12 @@ class WholeChain(StrikelineAlgorithm):
     def initAlgorithm(self, config=None):  # noqa: N802
         add_contact_and_topography(self)
         for p in (parameter(self, "model"), parameter(self, "interval_m", parent=CONTACTS, optional=False),
-                  parameter(self, "cell_m", parent=CONTACTS), *constraint_parameters(self),
+                  parameter(self, "cell_m", parent=CONTACTS), parameter(self, "extent"), *constraint_parameters(self),
                   parameter(self, "top_contacts"), parameter(self, "group_by"), *map_unit_parameters(self),
                   parameter(self, "window_m", parent=CONTACTS), parameter(self, "misfit_flag_m", parent=CONTACTS),
                   parameter(self, "dem_sigma_m"), parameter(self, "contour_sigma_m"), parameter(self, "contact_sigma_m"),
-                  *constraint_sigma_parameters(self), parameter(self, "resamples"), parameter(self, "seed")):
+                  *constraint_sigma_parameters(self), parameter(self, "resamples"), parameter(self, "seed"),
+                  parameter(self, "no_report")):
             self.addParameter(p)
         for key, (label, kind, by_default, _) in LAYERS.items():
             self.addParameter(QgsProcessingParameterFeatureSink(
@@ -119,6 +130,10 @@ class WholeChain(StrikelineAlgorithm):
         self.addParameter(QgsProcessingParameterFileDestination(
             SUMMARY, self.tr("Summary (JSON)"), fileFilter="JSON (*.json)", optional=True,
             createByDefault=False))
+        # An HTML destination is an HTML output: QGIS's results viewer opens it, a model chains its path.
+        self.addParameter(QgsProcessingParameterFileDestination(
+            REPORT, self.tr("Report (the caution, the answer and the figures on one page)"),
+            fileFilter="HTML (*.html)", optional=True, createByDefault=True))
         add_outputs(self, {**NUMBERS, "dip_ci95_deg": "Dip, 95% half-width (°)",
                            "trace_misfit_median_m": "Median trace misfit (m)",
                            "trace_misfit_p90_m": "90th percentile trace misfit (m)",
@@ -137,15 +152,18 @@ class WholeChain(StrikelineAlgorithm):
         tracker.step(READING)
         inputs, opts = read_contact_inputs(self, parameters, context, steps, more=CHAIN_LAYERS,
                                            **self.options(parameters, context))
+        # the extent is read in the run's CRS (the DEM's, else the contacts'), known once they are read
+        opts = dataclasses.replace(opts, extent=extent_value(self, parameters, "extent", context, inputs.crs_wkt))
         r = compute(inputs, opts, log=tracker.log, tracker=tracker)
         s = r.summary
         plane = s["plane"]
-        for line in report_lines(r):
+        for line in plain_answer(s):  # the caution, then the report page's sentences
             steps.log(line)
         # Last chance to stop: from here on the outputs are written, all or nothing.
         steps.check("whole chain")
         tracker.step(WRITING)
         out = self._write(parameters, context, inputs, r)
+        out.update(self._report(parameters, context, steps, r))
         tracker.finish()
         tm = s["trace_misfit"]
         out.update({k: plane.get(k) for k in (*NUMBERS, "dip_ci95_deg", "quality")})
@@ -180,6 +198,19 @@ class WholeChain(StrikelineAlgorithm):
             out[SUMMARY] = summary_path
         return {k: v for k, v in out.items() if v is not None}
 
+    def _report(self, parameters, context, steps, r) -> dict:
+        """``report.html`` of ``strikeline run`` at the report destination, unless the "no report"
+        parameter is set or no destination is given (:func:`strikeline.pipeline.outputs.write_report_file`)."""
+        path = self.parameterAsFileOutput(parameters, REPORT, context)
+        if not path or value(self, parameters, "no_report", context):
+            return {}
+        written = write_report_file(r, path, log=steps.log, is_cancelled=steps.is_cancelled)
+        if written is None:  # no matplotlib: the run still succeeds, the log says how to get it
+            steps.log(MATPLOTLIB_IN_QGIS)
+            return {}
+        steps.log(f"report: {written}")
+        return {REPORT: str(written)}
+
 
 def contours_on_ground(r):
     """The run's structure contours split where the surface passes from below the ground to above
@@ -192,43 +223,3 @@ def contours_on_ground(r):
     extrapolated = r.contour_extrapolated[src] if r.contour_extrapolated is not None else None
     return pl.contours_layer(parts, r.contour_elevations_m[src], extrapolated=extrapolated,
                              below_ground=flags["below_ground"])
-
-
-def _m(v, digits=2) -> str:
-    return "n/a" if v is None else f"{v:.{digits}f} m"
-
-
-def report_lines(r) -> list[str]:
-    """The run in plain lines for the log: picks, plane, model scores, flagged segments,
-    thickness (from the summary, in the words of summary.json)."""
-    s = r.summary
-    plane, model = s["plane"], s["model"]
-    by_source = ", ".join(f"{n} from {src}" for src, n in (s.get("picks_by_source") or {}).items())
-    out = [f"picks: {s['n_picks']}" + (f" ({by_source})" if by_source else "")]
-    toward = (f"toward {plane['dip_direction_deg']:.1f}° (strike {plane['strike_rhr_deg']:.1f}° right-hand rule)"
-              if plane.get("dip_direction_deg") is not None else
-              "horizontal within its 95% confidence (no dip direction or strike)")
-    out.append(f"plane: dip {plane['dip_deg']:.2f}° {toward}, 95% half-width {plane.get('dip_ci95_deg') or 0:.2f}°, "
-               f"RMS {_m(plane.get('rms_m'))}, quality {plane.get('quality')}")
-    scores = ", ".join(f"{k} {_m(v, 4)}" for k, v in (model.get("cv_rmse_m") or {}).items())
-    out.append(f"surface model: {model['chosen']}" + (f"; cross-validation RMSE {scores}" if scores else ""))
-    cm = s.get("contact_misfit")
-    if cm:
-        seg = r.contact_misfit or {}
-        ids = sorted({int(c) for c, f in zip(seg.get("contact_id", ()), seg.get("flagged", ())) if f})
-        rule = (cm.get("check") or {}).get("flag_rule")
-        out.append(f"flagged segments: {cm['n_flagged']} of {cm['n_segments']} contact segments"
-                   + (f" ({rule})" if rule else "") + (f", on contacts {', '.join(map(str, ids))}" if ids else ""))
-    tm = s.get("trace_misfit") or {}
-    if tm.get("median_m") is not None:
-        out.append(f"trace misfit: median {_m(tm['median_m'])}, 90th percentile {_m(tm.get('p90_m'))} over "
-                   f"{tm.get('n_vertices')} contact vertices")
-    th = s.get("thickness")
-    if th:
-        if th.get("mean_m") is not None:
-            out.append(f"thickness: true thickness mean {_m(th['mean_m'])}, standard deviation {_m(th.get('std_m'))}, "
-                       f"10th to 90th percentile {_m(th.get('p10_m'))} to {_m(th.get('p90_m'))} over {th['n_cells']} "
-                       f"cells; top surface model {th.get('top_model')}")
-        else:
-            out.append(f"thickness: not computed - {th.get('reason') or th.get('note')}")
-    return out

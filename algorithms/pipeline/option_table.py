@@ -195,6 +195,8 @@ _PLANE = ("run", "attitude")
 _SURFACE_TOOLS = ("modelcontact", "surfacemodel")
 _DEM_BASIS = ("national DEMs of 5-25 m cells state vertical accuracies (RMSE) of about 1-5 m; 2 m is a middle "
               "value (common practice)")
+#: The elevation units in words (QGIS's choices).
+_UNIT_LABELS = {"m": "metres", "ft": "international feet (0.3048 m)", "us-ft": "US survey feet (1200/3937 m)"}
 _LINEWORK_BASIS = ("half of a 5 m positional tolerance, i.e. 0.5 mm at 1:10,000 (common practice for digitised "
                    "line work)")
 
@@ -221,9 +223,13 @@ _OPTION_LIST = (
     _opt("dem_unit", str, "unit of the DEM's elevations: m, ft (international foot, 0.3048 m) or us-ft (US "
          "survey foot, 1200/3937 m); converted to metres at load", choices=ELEVATION_UNITS,
          unset="the unit the DEM declares (band unit type or the vertical axis of a compound CRS), else metres",
-         flag="--dem-unit", commands=_RUN),
+         flag="--dem-unit", qgis="DEM_UNIT", choice_labels=_labels(ELEVATION_UNITS, _UNIT_LABELS),
+         label="Unit of the DEM's elevations (empty: the unit the DEM declares, else metres)", advanced=True,
+         commands=_RUN, tools=_PICK_TOOLS),
     _opt("contour_unit", str, "unit of the contours' elevation field: m, ft or us-ft; converted to metres at load",
-         choices=ELEVATION_UNITS, unset="metres", flag="--contour-unit", commands=_RUN),
+         choices=ELEVATION_UNITS, unset="metres", flag="--contour-unit", qgis="CONTOUR_UNIT",
+         choice_labels=_labels(ELEVATION_UNITS, _UNIT_LABELS), label="Unit of the contours' elevation field "
+         "(empty: metres)", advanced=True, commands=_RUN, tools=_PICK_TOOLS),
     # ---- outputs
     _opt("out", "path", "folder to create for the results (must not exist unless --overwrite)", flag="--out",
          metavar="DIR", required=True, commands=("run", "batch"),
@@ -241,7 +247,9 @@ _OPTION_LIST = (
     _opt("overwrite", bool, "replace an existing output (the --out folder or file)", default=False,
          flag="--overwrite", commands=("run", "demo", "attitude", "thickness", "thickness grids")),
     _opt("no_report", bool, "do not write report.html, the page of figures (drawing it needs matplotlib, the plot "
-         "extra)", default=False, flag="--no-report", commands=("run", "demo")),
+         "extra)", default=False, flag="--no-report", qgis="NO_REPORT",
+         label="No report (report.html, the page of figures; drawing it needs matplotlib)", commands=("run", "demo"),
+         tools=_CHAIN),
     _opt("demo_out", "path", "output folder", default="demo-output", flag="--out", metavar="DIR", dest="out",
          commands=("demo",)),
     # ---- what a command says while it works (strikeline.cli.progress)
@@ -267,7 +275,8 @@ _OPTION_LIST = (
     _opt("extent", float, "output grid extent XMIN YMIN XMAX YMAX in the output CRS (the DEM's, else the "
          "contacts'), widened to multiples of the cell size", unit="m", nargs=4,
          metavar=("XMIN", "YMIN", "XMAX", "YMAX"), unset="the DEM's grid, else the contours' (or contacts') "
-         "extent", flag="--extent", commands=_RUN),
+         "extent", flag="--extent", qgis="EXTENT", label="Output grid extent (empty: the DEM's grid, else the "
+         "contours' or contacts' extent)", commands=_RUN, tools=_CHAIN),
     _opt("block_cells", int, "compute and write the grids in blocks of N x N cells (one band of blocks in memory "
          "at a time, two threads); the files are the same as without it", minimum=1,
          unset="blocks of 256 x 2048 cells when the grid's arrays would fill more than half the memory budget, "

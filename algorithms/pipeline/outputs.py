@@ -215,3 +215,46 @@ def _write_all(r: Results, folder: Path, *, is_cancelled=None, report: bool = Fa
         from strikeline.report import write_report
 
         write_report(folder, log=log)
+
+
+def write_report_file(r: Results, path, *, log: Log = _quiet, is_cancelled=None) -> Path | None:
+    """Write the ``report.html`` of ``strikeline run`` to the file ``path``, for a caller that
+    writes the run's layers and grids elsewhere (the QGIS whole-chain tool).
+
+    The page is drawn from the files, as the command line draws it: every output is written by
+    :func:`_write_all` into a scratch folder beside ``path`` (so the page's figures read the same
+    bytes), the page is drawn there and moved onto ``path`` in one rename; the scratch folder,
+    which this function made, is removed however it ends. Without matplotlib nothing is written
+    and ``log`` gets :data:`strikeline.report.MISSING_PLOT`.
+
+    Returns
+    -------
+    Path or None
+        ``path`` when the page was written.
+    """
+    import os
+    import shutil
+    import tempfile
+
+    from strikeline.errors import OutputError
+    from strikeline.report import MISSING_PLOT
+
+    try:
+        import matplotlib  # noqa: F401 - the plot extra; checked before any file is written
+    except ImportError:
+        log(MISSING_PLOT)
+        return None
+    path = Path(path).resolve()
+    try:
+        scratch = Path(tempfile.mkdtemp(prefix=f".{path.name}.strikeline-report-", dir=path.parent))
+    except OSError as exc:
+        raise OutputError(f"cannot write the report '{path}': {exc.strerror}; choose a writable folder") from None
+    try:
+        _write_all(r, scratch, is_cancelled=is_cancelled, report=True, log=log)
+        os.replace(scratch / V.REPORT_FILE, path)
+    except OSError as exc:
+        raise OutputError(f"cannot write the report '{path}': {exc.strerror}; free some space or choose a "
+                          "writable folder") from None
+    finally:
+        shutil.rmtree(scratch, ignore_errors=True)
+    return path

@@ -1,7 +1,8 @@
 """The report page: one self-contained HTML file (figures as base64 PNG, no script, no link out),
 opening with the caution, then the answer in plain words, then the figures with their captions.
 
-The page is made from the output folder alone (:func:`strikeline.report.data.load_outputs`) and
+The sentences are :func:`strikeline.report.sentences.plain_answer`'s (the QGIS log's too). The
+page is made from the output folder alone (:func:`strikeline.report.data.load_outputs`) and
 holds no date, path of the run or random id, so the same outputs give the same bytes.
 """
 from __future__ import annotations
@@ -12,15 +13,13 @@ from pathlib import Path
 
 from strikeline import CAUTION, __version__
 from strikeline import vocabulary as V
+from strikeline.report.sentences import MODEL_WORDS, answer_sentences, plain_answer, plane_words  # noqa: F401
 
 #: What a reader sees when matplotlib is missing (one log line; the run still succeeds).
 MISSING_PLOT = (f"report: {V.REPORT_FILE} not written because matplotlib is not installed; install the plot "
                 "extra (pip install 'strikeline[plot]', or pip install -e '.[plot]' in a checkout) and run again")
 #: The colour of the frame around every figure (the rendering test finds the figures by it).
 FRAME_RGB = (43, 62, 80)
-
-MODEL_WORDS = {"plane": "a plane", "trend2": "a quadratic trend surface",
-               "spline": "a thin-plate smoothing spline"}
 
 _CSS = """
 body { font-family: 'DejaVu Sans', Arial, sans-serif; color: #1b1b1b; background: #ffffff; margin: 0 auto;
@@ -41,78 +40,6 @@ p.note { font-style: italic; }
 
 def _e(text) -> str:
     return html.escape(str(text), quote=True)
-
-
-def _limits(value, half, unit="°", *, azimuth: bool = False) -> str:
-    """``value`` with its 95% limits; an azimuth's limits are taken modulo 360 (``toward 1.0° (95%
-    limits 359.0-3.0°)``)."""
-    if half is None:
-        return f"{value:.1f}{unit}"
-    lo, hi = value - half, value + half
-    if azimuth:
-        lo, hi = lo % 360.0, hi % 360.0
-    return f"{value:.1f}{unit} (95% limits {lo:.1f}-{hi:.1f}{unit})"
-
-
-def plane_words(pl: dict, *, who: str = "The contact") -> str:
-    """The plane in a plain sentence, with its 95% limits (an undetermined plane gets no number).
-
-    >>> plane_words({"dip_deg": 30.0, "dip_ci95_deg": 1.0, "dip_direction_deg": 90.0,
-    ...              "dip_direction_ci95_deg": 2.0, "dip_direction_true_deg": 89.5, "strike_rhr_deg": 0.0,
-    ...              "rms_m": 1.2, "n_picks": 40, "quality": "good"}).split(" from grid north")[0]
-    'The contact dips 30.0° (95% limits 29.0-31.0°) toward 90.0° (95% limits 88.0-92.0°)'
-    """
-    if pl.get("quality") == "undetermined" or pl.get("dip_deg") is None:
-        return f"{who}'s attitude is undetermined: {pl.get('reason', '')}. {pl.get('advice', '')}".strip()
-    fit = (f"The picks lie within {pl['rms_m']:.2f} m (RMS) of this plane; {pl['n_picks']} picks; "
-           f"quality {pl['quality']}.")
-    if pl.get("dip_direction_deg") is None:
-        return (f"{who} is horizontal within its 95% confidence (dip {_limits(pl['dip_deg'], pl.get('dip_ci95_deg'))}"
-                f"; no dip direction or strike). " + fit)
-    return (f"{who} dips {_limits(pl['dip_deg'], pl.get('dip_ci95_deg'))} toward "
-            f"{_limits(pl['dip_direction_deg'], pl.get('dip_direction_ci95_deg'), azimuth=True)} from grid north "
-            f"({pl['dip_direction_true_deg']:.1f}° from true north); strike {pl['strike_rhr_deg']:.1f}° by the "
-            f"right-hand rule. " + fit)
-
-
-def answer_sentences(s: dict) -> list[str]:
-    """The run's answer in plain sentences, from ``summary.json``."""
-    out = [plane_words(s["plane"])]
-    for name, g in sorted((s.get("groups") or {}).get("planes", {}).items()):
-        out.append(plane_words(g, who=f"Group '{name}'"))
-    src = s.get("picks_by_source", {})
-    out.append(f"{s['n_picks']} picks were taken along the mapped contacts ("
-               + ", ".join(f"{n} from the {k}" for k, n in sorted(src.items()) if n) + ").")
-    m = s.get("model")
-    if m:
-        scores = ", ".join(f"{k} {v:.2f} m" for k, v in sorted(m.get("cv_rmse_m", {}).items()) if v is not None)
-        why = (m.get("choice") or {}).get("reason") or m.get("check_model_reason") or ""
-        out.append(f"The surface is modelled as {MODEL_WORDS.get(m['chosen'], m['chosen'])}"
-                   + (f" (cross-validation error of held-out picks: {scores})" if scores else "") + "."
-                   + (f" Why: {why}." if why else ""))
-    sc = s.get("structure_contours") or {}
-    if sc.get("n_lines"):
-        out.append(f"{sc['n_lines']} structure contours every {sc['interval_m']:g} m; {sc.get('n_extrapolated', 0)} "
-                   "of them are forecasts beyond the reach of the data (dashed on the map).")
-    tm = s.get("trace_misfit") or {}
-    if tm.get("median_m") is not None:
-        out.append(f"The predicted outcrop trace lies a median {tm['median_m']:.1f} m from the mapped contact "
-                   f"(90% of its {tm['n_vertices']} vertices within {tm['p90_m']:.1f} m).")
-    cm = s.get("contact_misfit")
-    if cm:
-        out.append(f"{cm['n_flagged']} of {cm['n_segments']} contact segments of {cm['segment_m']:g} m disagree with "
-                   f"the surface forecast without them ({cm['check']['flag_rule']}) and are flagged on the map.")
-    mu = s.get("map_units")
-    if mu:
-        c = mu["check"]
-        out.append(f"Against the map's units the surface breaks {c['n_violated']} of {c['n_points']} check points.")
-    t = s.get("thickness") or {}
-    if t.get("mean_m") is not None:
-        out.append(f"The unit's true thickness averages {t['mean_m']:.1f} m (standard deviation {t['std_m']:.1f} m; "
-                   f"10-90%: {t['p10_m']:.1f}-{t['p90_m']:.1f} m) over {t['n_cells']} cells.")
-    elif t.get("reason"):
-        out.append(f"No thickness: {t['reason']}.")
-    return out
 
 
 def _img(fid: str, png: bytes, size: tuple, alt: str) -> str:
@@ -205,11 +132,12 @@ def render_report(folder) -> str:
 
     d = load_outputs(folder)
     s = d.summary
+    caution, *answer = plain_answer(s)  # the QGIS log says the same, in the same order
     parts = ["<!DOCTYPE html>", '<html lang="en"><head><meta charset="utf-8">',
              "<title>strikeline report</title>", f"<style>{_CSS}</style></head><body>",
-             f'<p class="caution" id="caution">{_e(s.get("caution", CAUTION))}</p>',
+             f'<p class="caution" id="caution">{_e(caution)}</p>',
              "<h1>What the map says about the contact</h1>", '<ul class="answer">']
-    parts += [f"<li>{_e(line)}</li>" for line in answer_sentences(s)]
+    parts += [f"<li>{_e(line)}</li>" for line in answer]
     parts.append("</ul>")
     with style():
         for i, (name, title, draw, caption) in enumerate(figure_list(d), start=1):

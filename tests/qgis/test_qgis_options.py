@@ -16,13 +16,14 @@ from qgis.core import (
     QgsProcessingException,
     QgsProcessingParameterBoolean,
     QgsProcessingParameterEnum,
+    QgsProcessingParameterExtent,
     QgsProcessingParameterNumber,
 )
 
-from adapter_qgis.params import value
+from adapter_qgis.params import CLI_ONLY, value
 from strikeline.cli.main import build_parser
 from strikeline.errors import InputError
-from strikeline.pipeline.options import OPTIONS
+from strikeline.pipeline.options import OPTIONS, options_of
 
 pytestmark = pytest.mark.qgis
 
@@ -81,9 +82,16 @@ def test_same_default(o, command, tool):
     action, alg, param = _both(o, command, tool)
     assert param is not None, (tool, o.qgis)
     cli_default = action.default
-    if isinstance(param, QgsProcessingParameterEnum):
+    if isinstance(param, QgsProcessingParameterEnum) and cli_default is None:
+        # unset on the command line: an empty choice in QGIS, read as unset (the library chooses)
+        assert param.defaultValue() is None and param.flags() & param.FlagOptional
+        assert _read(alg, o, {}) is None and _read(alg, o, {o.qgis: None}) is None
+    elif isinstance(param, QgsProcessingParameterEnum):
         assert o.cli_value(o.choices[param.defaultValue()]) == cli_default
         assert o.cli_value(_read(alg, o, {})) == cli_default
+    elif isinstance(param, QgsProcessingParameterExtent):  # --extent: four numbers, unset by default
+        assert cli_default is None and action.nargs == 4
+        assert param.defaultValue() is None and param.flags() & param.FlagOptional
     elif isinstance(param, QgsProcessingParameterNumber):
         if action.required:  # no default on either side: the value must be given
             assert param.defaultValue() is None and not param.flags() & param.FlagOptional
@@ -129,7 +137,7 @@ def _probes(o):
     return sorted({int(round(p)) for p in pts} if o.kind is int else pts)
 
 
-NUMBERS = [(o, c, t) for o, c, t in SHARED if o.is_number]
+NUMBERS = [(o, c, t) for o, c, t in SHARED if o.is_number and o.nargs is None]
 
 
 @pytest.mark.parametrize("o,command,tool", NUMBERS, ids=[f"{o.name}:{c}:{t}" for o, c, t in NUMBERS])
@@ -171,3 +179,33 @@ def test_a_refused_value_names_the_parameter(run, sheet):
         run("structurecontours", {"SURFACE": sheet["dem"], "INTERVAL": 0.0, alg.OUTPUT: TMP})
     msg = str(exc.value)
     assert msg.startswith(f"the '{label}'") and "greater than 0" in msg and "\n" not in msg
+
+
+# ------------------------------------------------------------------ the whole chain and strikeline run
+def test_every_option_of_run_is_a_whole_chain_parameter_or_said_why_not():
+    """An option added to ``strikeline run`` fails here until the whole chain has its parameter
+    (the table's ``tools``) or ``adapter_qgis.params.CLI_ONLY`` says why QGIS does without it."""
+    alg = _tool("modelcontact")
+    run_options = {o.name: o for o in options_of(command="run")}
+    in_qgis = {name for name, o in run_options.items() if "modelcontact" in o.tools}
+    missing = sorted(set(run_options) - in_qgis - set(CLI_ONLY))
+    assert not missing, f"options of run with no whole-chain parameter and no reason in CLI_ONLY: {missing}"
+    assert not in_qgis & set(CLI_ONLY), "an option has a parameter and is listed as the command line's alone"
+    assert set(CLI_ONLY) <= set(run_options), "CLI_ONLY names an option that run does not have"
+    assert all(len(why) > 20 for why in CLI_ONLY.values())
+    for name in sorted(in_qgis):
+        assert alg.parameterDefinition(run_options[name].qgis) is not None, (name, run_options[name].qgis)
+    # every option the table gives the tool is a parameter of it, and none of its parameters
+    # that the table names belongs to another option
+    for o in options_of(tool="modelcontact"):
+        assert alg.parameterDefinition(o.qgis) is not None, (o.name, o.qgis)
+
+
+def test_the_elevation_units_extent_cell_and_no_report_are_parameters():
+    """The elevation units, the extent and the cell of the output grid, and --no-report."""
+    alg = _tool("modelcontact")
+    for name in ("dem_unit", "contour_unit", "extent", "cell_m", "no_report"):
+        assert alg.parameterDefinition(OPTIONS[name].qgis) is not None, name
+    picks = _tool("contactpicks")  # the picks tool reads the same DEM and contours
+    for name in ("dem_unit", "contour_unit"):
+        assert picks.parameterDefinition(OPTIONS[name].qgis) is not None, name
