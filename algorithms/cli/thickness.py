@@ -11,6 +11,12 @@ Four cases, each a sub-command, with units in the option names:
 ``strikeline thickness --grids TOP.tif BASE.tif --out DIR`` is the same as ``grids``. Each case
 prints the result with the formula used and its reference; the maths is in
 :mod:`strikeline.maps.thickness`.
+
+As ``strikeline run``, every case takes ``--quiet`` (no information lines on stderr; warnings and
+the answer on stdout stay) and ``--log-json FILE`` (its messages, the grids case's named steps
+:data:`GRID_STEPS` with their costs, and the final status as JSON Lines): its information and
+warning lines go through the command's reporter (:mod:`strikeline.cli.progress`). Both may be
+given before or after the case's name.
 """
 from __future__ import annotations
 
@@ -33,6 +39,9 @@ ROWLAND = ("Rowland, S. M., Duebendorfer, E. M. & Schiefelbein, I. M. (2007), St
 ZEVENBERGEN = ("Zevenbergen, L. W. & Thorne, C. R. (1987), Quantitative analysis of land surface "
                "topography, Earth Surface Processes and Landforms 12(1), 47-56, doi:10.1002/esp.3290120107")
 
+#: The named steps of the grids case (timed in --log-json, as a run's steps are).
+GRID_STEPS = ("reading surfaces", "thickness", "writing outputs")
+
 #: A hole (or, for an outcrop width, the ground) within this angle of the bedding gives a
 #: thickness very sensitive to the attitude.
 _SHALLOW_INTERCEPT_DEG = 10.0
@@ -52,6 +61,7 @@ def add_parser(sub) -> argparse.ArgumentParser:
                            "(see 'strikeline thickness CASE --help'); "
                            "'strikeline thickness --grids TOP.tif BASE.tif --out DIR' is the grids case.")
     add_options(p, "grids", "grids_out", "overwrite")
+    add_options(p.add_argument_group("progress and log"), "quiet", "log_json")
     p.set_defaults(handler=main, case=None, run_case=None)
     cases = p.add_subparsers(dest="case", metavar="CASE", parser_class=OneLineParser)
 
@@ -60,6 +70,7 @@ def add_parser(sub) -> argparse.ArgumentParser:
                          description="True thickness from the outcrop width measured perpendicular to "
                                      "strike, on flat or sloping ground.")
     add_options(o, "width_m", "dip_deg", "ground_slope_deg", "slope_sense", "width_kind")
+    _add_told(o)
     o.set_defaults(run_case=_outcrop)
 
     pt = cases.add_parser("points", epilog=EPILOG, help="from a point on the top and a point on the base",
@@ -67,6 +78,7 @@ def add_parser(sub) -> argparse.ArgumentParser:
                                       "base of a planar unit of known attitude.")
     add_options(pt, "top", "base")
     _add_attitude(pt)
+    _add_told(pt)
     pt.set_defaults(run_case=_points)
 
     b = cases.add_parser("borehole", epilog=EPILOG, help="from the drilled length of the unit in a straight hole",
@@ -74,6 +86,7 @@ def add_parser(sub) -> argparse.ArgumentParser:
                                      "and base of a planar unit.")
     add_options(b, "length_m", "hole_azimuth_deg", "hole_plunge_deg")
     _add_attitude(b)
+    _add_told(b)
     b.set_defaults(run_case=_borehole)
 
     g = cases.add_parser("grids", epilog=EPILOG, help="isopachs between a top and a base surface grid",
@@ -82,12 +95,30 @@ def add_parser(sub) -> argparse.ArgumentParser:
     add_options(g, "top_grid", "base_grid")
     add_option(g, "grids_out", required=True)
     add_option(g, "overwrite")
+    _add_told(g)
     g.set_defaults(run_case=_grids_case)
     return p
 
 
 def _add_attitude(p) -> None:
     add_options(p, "dip_deg", "dip_direction_deg")
+
+
+def _add_told(p) -> None:
+    """--quiet and --log-json on a case's parser too, left out of the parsed values unless given
+    there: a case's own default would otherwise replace the value given before the case's name."""
+    group = p.add_argument_group("progress and log")
+    for name in ("quiet", "log_json"):
+        add_option(group, name, default=argparse.SUPPRESS)
+
+
+def _warn(args, text: str) -> None:
+    """A warning line on stderr (kept by --quiet) and in --log-json."""
+    reporter = getattr(args, "reporter", None)
+    if reporter is None:
+        print(f"warning: {text}", file=sys.stderr)
+    else:
+        reporter.log(f"warning: {text}")
 
 
 def _say(*lines, stream=None) -> None:
@@ -115,9 +146,8 @@ def _outcrop(args) -> int:
         raise InputError(f"{given}: {exc}") from None
     grazing = abs(args.dip_deg + (slope if sense != "with_dip" else -slope))
     if grazing < _SHALLOW_INTERCEPT_DEG:
-        print(f"warning: the ground runs within {grazing:.1f} deg of the bedding along the measurement line "
-              f"({given}), so the thickness is very sensitive to errors in the dip and the slope",
-              file=sys.stderr)
+        _warn(args, f"the ground runs within {grazing:.1f} deg of the bedding along the measurement line "
+                    f"({given}), so the thickness is very sensitive to errors in the dip and the slope")
     v = float(vertical_thickness(t, args.dip_deg))
     if slope == 0:
         formula = "t = w * sin(dip), flat ground"
@@ -147,9 +177,8 @@ def _points(args) -> int:
     t = float(thickness_between_points(top, base, args.dip_direction_deg, args.dip_deg))
     n = normal_from_dip(args.dip_direction_deg, args.dip_deg)
     if float(np.dot(top - base, n)) < 0:
-        print("warning: the --top point lies below the --base point across the bedding "
-              "((top - base) . n < 0); check that the two are not swapped, or whether the beds are "
-              "overturned", file=sys.stderr)
+        _warn(args, "the --top point lies below the --base point across the bedding ((top - base) . n < 0); "
+                    "check that the two are not swapped, or whether the beds are overturned")
     _say(f"true thickness: {t:.3f} m",
          f"vertical thickness: {_metres(float(vertical_thickness(t, args.dip_deg)))} (t / cos(dip))",
          f"straight distance between the points: {float(np.linalg.norm(top - base)):.3f} m",
@@ -171,8 +200,8 @@ def _borehole(args) -> int:
                               normal_from_dip(args.dip_direction_deg, args.dip_deg))))
     angle = math.degrees(math.asin(min(1.0, cosine)))
     if angle < _SHALLOW_INTERCEPT_DEG:
-        print(f"warning: the hole runs within {angle:.1f} deg of the bedding, so the thickness is very "
-              "sensitive to errors in the hole's direction and the bed's attitude", file=sys.stderr)
+        _warn(args, f"the hole runs within {angle:.1f} deg of the bedding, so the thickness is very sensitive "
+                    "to errors in the hole's direction and the bed's attitude")
     _say(f"true thickness: {t:.3f} m",
          f"angle between the hole and the bedding: {angle:.2f} deg",
          "formula: t = L * |b . n|, b = (cos(plunge) sin(az), cos(plunge) cos(az), -sin(plunge)) the "
@@ -189,7 +218,7 @@ def _metres(v: float) -> str:
 
 # --------------------------------------------------------------------------- grids
 def _grids_case(args) -> int:
-    return grids(args.top, args.base, args.out, overwrite=args.overwrite)
+    return grids(args.top, args.base, args.out, overwrite=args.overwrite, reporter=getattr(args, "reporter", None))
 
 
 def _check_out_folder(out: str, overwrite: bool, inputs) -> Path:
@@ -230,7 +259,7 @@ def _spread(a) -> dict:
             "p90": float(np.percentile(v, 90)), "n_cells": int(v.size)}
 
 
-def _write_folder(out: Path, arrays: dict, grid, *, overwrite: bool, inputs=()) -> None:
+def _write_folder(out: Path, arrays: dict, grid, *, overwrite: bool, inputs=(), log=None) -> None:
     """Write GeoTIFFs (``{vocabulary raster: array}``, each band with its vocabulary meaning and
     unit) into ``out``, all or nothing: :func:`strikeline.io.files.output_folder` (manifest,
     lock, crash-safe replace of strikeline's own earlier results only)."""
@@ -238,22 +267,48 @@ def _write_folder(out: Path, arrays: dict, grid, *, overwrite: bool, inputs=()) 
     from strikeline.io.raster import write_geotiff
 
     with output_folder(out, overwrite=overwrite, inputs=inputs,
-                       log=lambda m: print(m, file=sys.stderr)) as tmp:
+                       log=log or (lambda m: print(m, file=sys.stderr))) as tmp:
         for spec, arr in arrays.items():
             write_geotiff(tmp / spec.file, arr, grid, description=spec.meaning, unit=spec.unit)
 
 
-def grids(top_path: str, base_path: str, out: str, *, overwrite: bool = False, stream=None) -> int:
-    """The grids case: read, check, compute, write atomically, report."""
+def grids(top_path: str, base_path: str, out: str, *, overwrite: bool = False, stream=None,
+          reporter=None) -> int:
+    """The grids case: read, check, compute, write atomically, report.
+
+    Parameters
+    ----------
+    top_path, base_path : str
+        The top and base surface grids.
+    out : str
+        The folder to create for the two thickness grids.
+    overwrite : bool, keyword-only
+        Replace an earlier result of strikeline in ``out``.
+    stream : file, optional, keyword-only
+        Where the answer goes (default stdout).
+    reporter : strikeline.pipeline.progress.Reporter, optional, keyword-only
+        Told of the steps :data:`GRID_STEPS` (their costs) and of every information and warning
+        line (the command's reporter: stderr and --log-json); without it the lines go to stderr.
+
+    Returns
+    -------
+    int
+        The exit status, 0.
+    """
     import numpy as np
 
     from strikeline.io.raster import read_raster
     from strikeline.maps.thickness import isopach_grids
+    from strikeline.pipeline.progress import RunProgress
 
+    tracker = RunProgress(reporter, steps=GRID_STEPS)
+    log = tracker.log if reporter is not None else (lambda m: print(m, file=sys.stderr))
     out_path = _check_out_folder(out, overwrite, (top_path, base_path))
+    tracker.step(GRID_STEPS[0])
     top, gt = read_raster(top_path, label="top surface")
     base, gb = read_raster(base_path, label="base surface")
     _same_grid(top_path, gt, base_path, gb)
+    tracker.step(GRID_STEPS[1])
     vertical, true = isopach_grids(top, base, gt)
     if not np.isfinite(true).any():
         raise InputError(
@@ -262,11 +317,13 @@ def grids(top_path: str, base_path: str, out: str, *, overwrite: bool = False, s
         )
     n_neg = int(np.count_nonzero(vertical < 0))
     if n_neg:
-        print(f"warning: in {n_neg} cells the top lies below the base (negative thickness): the two "
-              "surfaces cross there, or --top and --base are swapped", file=sys.stderr)
-    _write_folder(out_path, {VERTICAL_THICKNESS: vertical, TRUE_THICKNESS: true},
-                  gt.with_nodata(None), overwrite=overwrite, inputs=(top_path, base_path))
+        log(f"warning: in {n_neg} cells the top lies below the base (negative thickness): the two "
+            "surfaces cross there, or --top and --base are swapped")
     sv, st = _spread(vertical), _spread(true)
+    tracker.step(GRID_STEPS[2])
+    _write_folder(out_path, {VERTICAL_THICKNESS: vertical, TRUE_THICKNESS: true},
+                  gt.with_nodata(None), overwrite=overwrite, inputs=(top_path, base_path), log=log)
+    tracker.finish()
 
     def line(name, s):
         return (f"{name}: mean {s['mean']:.3f} m, std {s['std']:.3f} m, p10 {s['p10']:.3f} m, "
@@ -302,4 +359,4 @@ def main(args) -> int:
         raise InputError("--grids TOP.tif BASE.tif needs --out DIR, the folder to create for "
                          "vertical_thickness.tif and true_thickness.tif")
     top, base = args.grids
-    return grids(top, base, args.out, overwrite=args.overwrite)
+    return grids(top, base, args.out, overwrite=args.overwrite, reporter=getattr(args, "reporter", None))

@@ -188,7 +188,8 @@ def _labels(choices, words: dict) -> tuple:
 
 
 _RUN = ("run",)
-_TOLD = ("run", "demo", "attitude")  # the commands that take --quiet and --log-json
+_THICKNESS = ("thickness", "thickness outcrop", "thickness points", "thickness borehole", "thickness grids")
+_TOLD = ("run", "demo", "attitude", *_THICKNESS)  # the commands that take --quiet and --log-json
 _CHAIN = ("modelcontact",)
 _PICK_TOOLS = ("modelcontact", "contactpicks")
 _PLANE = ("run", "attitude")

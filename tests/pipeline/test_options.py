@@ -135,6 +135,9 @@ def test_parser_defaults_and_choices_are_the_tables(command):
         flags[o.flag] = o
         assert a.dest == (o.dest or o.name)
         want = None if o.default is None else o.cli_value(o.default)
+        if command.startswith("thickness ") and o.name in ("quiet", "log_json"):
+            # also on the thickness parser before the case: the case leaves it unset unless given there
+            want = argparse.SUPPRESS
         assert a.default == want, (command, o.flag)
         if o.choices:
             assert tuple(a.choices) == tuple(o.cli_value(c) for c in o.choices)
