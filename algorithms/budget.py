@@ -33,6 +33,15 @@ GRID_SHARE = 0.5
 #: 8,000^2 cells: 570, 665 and 1,624 MiB, the peak reached before the grids); 32 with a margin (our
 #: choice).
 BLOCK_BYTES_PER_CELL = 32
+#: Bytes per cell of the output grid that a run holds when its grids go block by block and its DEM
+#: stays in its file, read by windows (:mod:`strikeline.pipeline.dem_access`): nothing grows with
+#: the cells but the thickness statistics (the true thickness of every cell within reach of both
+#: surfaces, float64, and the sorted copy its percentiles take), with top contacts only. 1 byte
+#: per cell is our allowance without them (our choice, checked against the peaks of the sheet
+#: bench: see the README's Performance section).
+WINDOWED_BYTES_PER_CELL = 1
+#: What the thickness statistics add per cell with top contacts (two float64 copies).
+THICKNESS_BYTES_PER_CELL = 16
 
 
 def physical_memory_bytes() -> int | None:

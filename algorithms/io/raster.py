@@ -41,28 +41,12 @@ def read_raster(path, *, label: str = "raster", band: int = 1) -> tuple[np.ndarr
     """
     path = os.fspath(path)
     what = f"{label} '{path}'"
-    if not os.path.exists(path):
-        raise InputError(f"{what}: file not found; check the path")
     with gdal_exceptions():
+        ds = open_raster(path, label=label)
         try:
-            ds = gdal.Open(path, gdal.GA_ReadOnly)
-        except RuntimeError as exc:
-            raise RasterReadError(
-                f"{what}: GDAL cannot open it as a raster ({gdal_message(exc)}); give a GeoTIFF or "
-                "another raster format GDAL reads"
-            ) from None
-        try:
-            if band > ds.RasterCount:
-                raise InputError(f"{what} has {ds.RasterCount} band(s), band {band} was asked for")
-            _require_elevation_band(ds, band, what=what, path=path)
-            gt = ds.GetGeoTransform(can_return_null=True)
-            if gt is None:
-                raise InputError(f"{what} has no georeferencing; georeference it and try again")
-            wkt = ds.GetProjection() or ""
-            shape = (ds.RasterYSize, ds.RasterXSize)
-            require_projected_metres(wkt, what=what, centre_xy=_centre(_grid(gt, shape, wkt, None, what=what)))
+            grid = checked_grid(ds, band, what=what, path=path)
+            gt, shape, wkt, nodata = grid.transform, grid.shape, grid.crs_wkt, grid.nodata
             b = ds.GetRasterBand(band)
-            nodata = b.GetNoDataValue()
             need = shape[0] * shape[1] * (gdal.GetDataTypeSize(b.DataType) // 8 + 16)
             if need > memory_budget_bytes():
                 raise InputError(
@@ -84,6 +68,57 @@ def read_raster(path, *, label: str = "raster", band: int = 1) -> tuple[np.ndarr
             ds = None
     return raster_from_array(arr, _grid(gt, shape, wkt, nodata, what=what), what=what, crs_checked=True,
                              path=path)
+
+
+def open_raster(path, *, label: str = "raster"):
+    """A GDAL dataset of the raster at ``path``, opened read-only (call inside ``gdal_exceptions()``).
+
+    The one opener of :func:`read_raster`, :class:`strikeline.io.demfile.DemFile` and
+    :mod:`strikeline.io.sampling`, so that every reader says the same of a missing or unreadable file.
+
+    Raises
+    ------
+    InputError
+        The file does not exist.
+    RasterReadError
+        GDAL cannot open it (GDAL's message is included).
+    """
+    path = os.fspath(path)
+    what = f"{label} '{path}'"
+    if not os.path.exists(path):
+        raise InputError(f"{what}: file not found; check the path")
+    try:
+        return gdal.Open(path, gdal.GA_ReadOnly)
+    except RuntimeError as exc:
+        raise RasterReadError(
+            f"{what}: GDAL cannot open it as a raster ({gdal_message(exc)}); give a GeoTIFF or "
+            "another raster format GDAL reads"
+        ) from None
+
+
+def checked_grid(ds, band: int, *, what: str, path: str) -> Grid:
+    """The :class:`Grid` of one band of an open dataset (its nodata the band's), after the checks of
+    :func:`read_raster`: the band exists and holds elevations, georeferencing, a projected CRS in metres."""
+    if band > ds.RasterCount:
+        raise InputError(f"{what} has {ds.RasterCount} band(s), band {band} was asked for")
+    _require_elevation_band(ds, band, what=what, path=path)
+    gt = ds.GetGeoTransform(can_return_null=True)
+    if gt is None:
+        raise InputError(f"{what} has no georeferencing; georeference it and try again")
+    wkt = ds.GetProjection() or ""
+    shape = (ds.RasterYSize, ds.RasterXSize)
+    require_projected_metres(wkt, what=what, centre_xy=_centre(_grid(gt, shape, wkt, None, what=what)))
+    return _grid(gt, shape, wkt, ds.GetRasterBand(band).GetNoDataValue(), what=what)
+
+
+def as_float(array, nodata) -> np.ndarray:
+    """A band as float64 with NaN for ``nodata`` and for non-finite cells (a copy): the conversion of
+    every reader, so that a window of a raster holds the very values of the whole band read at once."""
+    arr = np.array(array, dtype=np.float64)
+    if nodata is not None:
+        arr[arr == nodata] = np.nan
+    arr[~np.isfinite(arr)] = np.nan
+    return arr
 
 
 def _grid(gt, shape, wkt, nodata, *, what: str) -> Grid:
@@ -139,30 +174,50 @@ def _undeclared_holes(arr: np.ndarray, nodata) -> tuple[float, int] | None:
     """The most frequent nodata marker among the cells (other than the declared ``nodata``) and its count.
 
     Counted a block of rows at a time, so that the comparisons' temporaries stay small."""
-    sentinels = [v for v in NODATA_SENTINELS if nodata is None or v != nodata]
-    counts = dict.fromkeys(sentinels, 0)
-    n_huge, first_huge = 0, None
-    flat = arr.reshape(arr.shape[0], -1) if arr.ndim > 1 else arr.reshape(1, -1)
-    step = max(1, (1 << 20) // max(flat.shape[1], 1))
-    for r in range(0, flat.shape[0], step):
-        a = flat[r:r + step]
-        for v in sentinels:
-            counts[v] += int(np.count_nonzero(a == v))
-        huge = np.abs(a) >= SENTINEL_ABS_LIMIT
-        if nodata is not None:
-            huge &= a != nodata
-        huge &= np.isfinite(a)
-        k = int(np.count_nonzero(huge))
-        if k and first_huge is None:
-            first_huge = float(a[huge].flat[0])
-        n_huge += k
-    found = [(n, v) for v, n in counts.items() if n]
-    if n_huge and not any(abs(v) >= SENTINEL_ABS_LIMIT for _, v in found):
-        found.append((n_huge, first_huge))
-    if not found:
-        return None
-    n, v = max(found)
-    return v, n
+    return HoleCount(nodata).add(arr).result()
+
+
+class HoleCount:
+    """Counts of the nodata markers (:data:`NODATA_SENTINELS`, other than the declared ``nodata``,
+    and values beyond :data:`SENTINEL_ABS_LIMIT`) over the pieces of a band given to :meth:`add`;
+    :meth:`result` is that of :func:`_undeclared_holes` on the whole band."""
+
+    def __init__(self, nodata):
+        self.nodata = nodata
+        self.sentinels = [v for v in NODATA_SENTINELS if nodata is None or v != nodata]
+        self.counts = dict.fromkeys(self.sentinels, 0)
+        self.n_huge, self.first_huge = 0, None
+
+    def add(self, arr: np.ndarray) -> "HoleCount":
+        """Count the cells of ``arr`` (a band or a strip of it, in the band's own values), a block
+        of rows at a time so that the comparisons' temporaries stay small."""
+        nodata, counts = self.nodata, self.counts
+        flat = arr.reshape(arr.shape[0], -1) if arr.ndim > 1 else arr.reshape(1, -1)
+        step = max(1, (1 << 20) // max(flat.shape[1], 1))
+        for r in range(0, flat.shape[0], step):
+            a = flat[r:r + step]
+            for v in self.sentinels:
+                counts[v] += int(np.count_nonzero(a == v))
+            huge = np.abs(a) >= SENTINEL_ABS_LIMIT
+            if nodata is not None:
+                huge &= a != nodata
+            huge &= np.isfinite(a)
+            k = int(np.count_nonzero(huge))
+            if k and self.first_huge is None:
+                self.first_huge = float(a[huge].flat[0])
+            self.n_huge += k
+        return self
+
+    def result(self) -> tuple[float, int] | None:
+        """The most frequent marker and its count, or None."""
+        counts, n_huge, first_huge = self.counts, self.n_huge, self.first_huge
+        found = [(n, v) for v, n in counts.items() if n]
+        if n_huge and not any(abs(v) >= SENTINEL_ABS_LIMIT for _, v in found):
+            found.append((n_huge, first_huge))
+        if not found:
+            return None
+        n, v = max(found)
+        return v, n
 
 
 def _centre(grid: Grid):
@@ -189,23 +244,28 @@ def raster_from_array(array, grid: Grid, *, what: str, crs_checked: bool = False
     arr = np.array(array, dtype=np.float64)
     if arr.shape != grid.shape:
         raise InputError(f"{what}: the band has shape {arr.shape}, its grid {grid.shape}")
-    holes = _undeclared_holes(arr, grid.nodata)
-    if holes is not None:
-        value, n = holes
-        declared = ("declares no nodata value" if grid.nodata is None
-                    else f"declares {grid.nodata:g} as its nodata, not this value")
-        target = f"'{path}'" if path else "the file"
-        raise InputError(
-            f"{what}: {n} cell(s) equal {value:g}, a common nodata marker, but the raster {declared}; so that "
-            f"they are not read as elevations, declare it: gdal_edit.py -a_nodata {value:g} {target} (or "
-            f"gdal_translate -a_nodata {value:g} to a copy), then run again"
-        )
+    check_holes(_undeclared_holes(arr, grid.nodata), grid.nodata, what=what, path=path)
     if grid.nodata is not None:
         arr[arr == grid.nodata] = np.nan
     arr[~np.isfinite(arr)] = np.nan
     if not np.isfinite(arr).any():
         raise InputError(f"{what} holds no valid cell (every cell is nodata); give a raster with data")
     return arr, grid
+
+
+def check_holes(holes, nodata, *, what: str, path: str | None) -> None:
+    """Refuse undeclared nodata markers (``holes``: :meth:`HoleCount.result`), naming the command
+    that declares the marker as the raster's nodata."""
+    if holes is not None:
+        value, n = holes
+        declared = ("declares no nodata value" if nodata is None
+                    else f"declares {nodata:g} as its nodata, not this value")
+        target = f"'{path}'" if path else "the file"
+        raise InputError(
+            f"{what}: {n} cell(s) equal {value:g}, a common nodata marker, but the raster {declared}; so that "
+            f"they are not read as elevations, declare it: gdal_edit.py -a_nodata {value:g} {target} (or "
+            f"gdal_translate -a_nodata {value:g} to a copy), then run again"
+        )
 
 
 def read_vertical_unit(path, *, band: int = 1) -> dict:

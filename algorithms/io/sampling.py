@@ -18,6 +18,7 @@ from osgeo import gdal, ogr
 from strikeline.errors import InputError, RasterReadError, VectorReadError
 from strikeline.geometry.grid import Grid
 from strikeline.io._gdal import gdal_exceptions, gdal_message
+from strikeline.io.raster import as_float, open_raster
 
 #: Rows of the file read at once (then dropped from GDAL's block cache, which would otherwise keep up
 #: to GDAL_CACHEMAX - 5% of the memory - of a large grid's blocks).
@@ -27,21 +28,11 @@ _RESAMPLING = {"average": gdal.GRIORA_Average, "nearest": gdal.GRIORA_NearestNei
 
 
 def _open_raster(path: str, label: str):
-    if not os.path.exists(path):
-        raise InputError(f"{label} '{path}': file not found; check the path")
-    try:
-        return gdal.Open(path, gdal.GA_ReadOnly)
-    except RuntimeError as exc:
-        raise RasterReadError(f"{label} '{path}': GDAL cannot open it as a raster ({gdal_message(exc)}); "
-                              "give a GeoTIFF") from None
+    return open_raster(path, label=label)
 
 
 def _as_float(arr: np.ndarray, nodata) -> np.ndarray:
-    out = np.asarray(arr, dtype=np.float64)
-    if nodata is not None:
-        out[out == nodata] = np.nan
-    out[~np.isfinite(out)] = np.nan
-    return out
+    return as_float(arr, nodata)
 
 
 def decimation(shape, max_cells: int) -> int:

@@ -21,17 +21,30 @@ _BATCH = 8192
 _DEM_DEDUPE_M = 1e-3
 
 
-def sample_bilinear(dem, grid, x, y) -> np.ndarray:
+def is_windowed(dem) -> bool:
+    """Whether ``dem`` is a raster read by windows (an object with its own ``sample_bilinear(x, y)``,
+    e.g. :class:`strikeline.io.demfile.DemFile`) rather than an array."""
+    return not isinstance(dem, np.ndarray) and callable(getattr(dem, "sample_bilinear", None))
+
+
+def sample_bilinear(dem, grid, x, y, *, origin=None) -> np.ndarray:
     """Bilinear interpolation of a raster between cell centres.
 
     Parameters
     ----------
-    dem : ndarray, shape ``grid.shape``
-        Raster values, indexed ``[row, col]``, row 0 at the top.
+    dem : ndarray, shape ``grid.shape``, or a raster read by windows
+        Raster values, indexed ``[row, col]``, row 0 at the top. An object with its own
+        ``sample_bilinear(x, y)`` method (:func:`is_windowed`) gives the values itself; it must
+        give those of this function on the whole band.
     grid : strikeline.geometry.grid.Grid
         Its georeferencing; ``grid.nodata`` (if set) marks missing cells, as does NaN.
     x, y : array_like
         Map coordinates (metres), broadcast together.
+    origin : (int, int), optional
+        ``dem`` is the window of the whole band ``grid`` describes whose first cell is
+        ``[origin[0], origin[1]]``: positions and weights are those of the whole band (so the
+        values are too), only the cells are read from the window. Every cell a point needs
+        must lie in the window (:class:`IndexError` otherwise).
 
     Returns
     -------
@@ -76,8 +89,13 @@ def sample_bilinear(dem, grid, x, y) -> np.ndarray:
     >>> float(sample_bilinear(dem, g, 10.0, 10.0))  # midway between the four centres
     1.5
     """
+    if origin is None and is_windowed(dem):
+        return dem.sample_bilinear(x, y)
     arr = np.asarray(dem)
-    if arr.ndim != 2 or arr.shape != tuple(grid.shape):
+    r_off, c_off = (0, 0) if origin is None else (int(origin[0]), int(origin[1]))
+    if arr.ndim != 2 or (origin is None and arr.shape != tuple(grid.shape)) or (
+            origin is not None and (r_off < 0 or c_off < 0 or r_off + arr.shape[0] > grid.rows
+                                    or c_off + arr.shape[1] > grid.cols)):
         raise InputError(f"the DEM array has shape {arr.shape} but its grid has shape "
                          f"{tuple(grid.shape)}; pass the array and grid read together")
     mask = np.ma.getmaskarray(dem) if np.ma.isMaskedArray(dem) else None
@@ -105,12 +123,15 @@ def sample_bilinear(dem, grid, x, y) -> np.ndarray:
     bad = np.zeros(len(col), dtype=bool)
     for rr, cc, w in ((r0, c0, (1 - t) * (1 - u)), (r0, c1, t * (1 - u)),
                       (r1, c0, (1 - t) * u), (r1, c1, t * u)):
-        z = arr[rr, cc].astype(np.float64)
+        wr, wc = (rr, cc) if origin is None else (rr - r_off, cc - c_off)
+        if origin is not None and len(wr) and (wr.min() < 0 or wc.min() < 0):
+            raise IndexError("a point needs cells before the window's first row or column")
+        z = arr[wr, wc].astype(np.float64)
         missing = ~np.isfinite(z)
         if check_nodata:
             missing |= z == nodata
         if mask is not None:
-            missing |= mask[rr, cc]
+            missing |= mask[wr, wc]
         used = w > 0
         bad |= used & missing
         value += np.where(used & ~missing, w * np.where(missing, 0.0, z), 0.0)
@@ -150,8 +171,9 @@ def picks_from_dem(contacts, dem, grid, *, contact_ids=None, spacing_m=None,
     contacts : sequence of shapely LineString / MultiLineString
         The mapped contact lines (map coordinates in the DEM's CRS, metres). ``None`` and
         empty entries are skipped.
-    dem : ndarray, shape ``grid.shape``
-        Elevations (metres); NaN or ``grid.nodata`` marks missing cells.
+    dem : ndarray, shape ``grid.shape``, or a raster read by windows
+        Elevations (metres); NaN or ``grid.nodata`` marks missing cells. A raster read by
+        windows (:func:`is_windowed`) is sampled by its own ``sample_bilinear``.
     grid : strikeline.geometry.grid.Grid
         Georeferencing of ``dem``.
     contact_ids : array_like of int, optional
@@ -194,10 +216,11 @@ def picks_from_dem(contacts, dem, grid, *, contact_ids=None, spacing_m=None,
     _check_callbacks(progress, is_cancelled)
     geoms = _as_geometries(contacts, "contacts")
     ids = _contact_ids(contact_ids, len(geoms))
-    arr = np.asarray(dem)
-    if arr.ndim != 2 or arr.shape != tuple(grid.shape):
-        raise InputError(f"the DEM array has shape {arr.shape} but its grid has shape "
-                         f"{tuple(grid.shape)}; pass the array and grid read together")
+    if not is_windowed(dem):
+        arr = np.asarray(dem)
+        if arr.ndim != 2 or arr.shape != tuple(grid.shape):
+            raise InputError(f"the DEM array has shape {arr.shape} but its grid has shape "
+                             f"{tuple(grid.shape)}; pass the array and grid read together")
     spacing = (min(grid.cell_x_m, grid.cell_y_m) if spacing_m is None
                else _positive(spacing_m, "spacing_m"))
     _cancel_check(is_cancelled, "DEM sampling")

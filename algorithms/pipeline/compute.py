@@ -23,7 +23,8 @@ from strikeline.pipeline.steps import attitude_of, collect_picks, contact_segmen
 from strikeline.pipeline.summary import build_summary
 from strikeline.pipeline.workload import check_workload
 from strikeline.pipeline.units import map_unit_bounds, map_unit_check
-from strikeline.pipeline.rasters import ground_on_grid, length_off_raster
+from strikeline.pipeline.rasters import length_off_raster
+from strikeline.pipeline.dem_access import ground_on_grid
 from strikeline.pipeline.tiled import (block_shape_of, contours_of_blocks, grids_by_blocks, isopachs_by_blocks,
                                        trace_of_blocks)
 from strikeline import vocabulary as V
@@ -172,7 +173,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     flag_m = None
     if inputs.dem is not None:
         if tiles is None:
-            ground, ground_grid = ground_on_grid(inputs.dem, inputs.dem_grid, grid, log=log)
+            ground, ground_grid = ground_on_grid(inputs.dem, inputs.dem_grid, grid, log=log, whole=True)
         f = depth_trace_misfit(ground, ground_grid, surface, inputs.contacts,
                                extrapolated_fn=model.is_extrapolated, flag_m=opts.misfit_flag_m, model=model,
                                dem_sigma_m=opts.dem_sigma_m, contact_sigma_m=opts.contact_sigma_m,

@@ -255,6 +255,11 @@ def dem_in_metres(dem, declared: dict, override: str | None, *, what: str, optio
         source = f"its vertical CRS '{declared.get('crs_vertical') or declared['crs_unit']}'"
     else:
         source = ""
+    from strikeline.picks.dem import is_windowed
+
+    if is_windowed(dem):  # a DEM in its file: each window is multiplied as the whole array would be
+        factor = to_metres(np.ones(1), unit, what=what, log=log, source=source)[0]
+        return dem.in_metres(factor)
     return to_metres(dem, unit, what=what, log=log, source=source)
 
 

@@ -13,7 +13,9 @@ from strikeline.errors import InputError
 from strikeline.geometry.grid import Grid
 from strikeline.io.crs import crs_label, same_crs
 from strikeline.io.files import file_sha256
+from strikeline.io.demfile import open_dem, raster_shape
 from strikeline.io.raster import read_raster, read_vertical_unit
+from strikeline.pipeline.dem_access import dem_stays_in_file
 from strikeline.pipeline.elevation_units import contour_elevations_in_metres, dem_in_metres
 from strikeline.io.vector import DelimitedPoints, VectorLayer, read_layer
 from strikeline.geometry.orientation import dip_direction_from_strike
@@ -157,7 +159,7 @@ class Inputs:
 
     contacts: VectorLayer
     crs_wkt: str
-    dem: np.ndarray | None = None
+    dem: np.ndarray | None = None  # or a DemFile read by windows (strikeline.pipeline.dem_access)
     dem_grid: Grid | None = None
     contours: VectorLayer | None = None
     contour_elevations_m: np.ndarray | None = None
@@ -339,7 +341,12 @@ def load_inputs(opts: RunOptions, *, log: Log = _quiet) -> Inputs:
     records = {"contacts": contact_records}
     dem = grid = None
     if opts.dem:
-        dem, grid = read_raster(opts.dem, label="DEM")
+        shape = raster_shape(opts.dem, label="DEM")
+        if shape is not None and dem_stays_in_file(shape, opts):  # read by windows (pipeline.dem_access)
+            dem = open_dem(opts.dem, label="DEM")
+            grid = dem.grid
+        else:
+            dem, grid = read_raster(opts.dem, label="DEM")
         dem = dem_in_metres(dem, read_vertical_unit(opts.dem), opts.dem_unit, what=f"DEM '{opts.dem}'", log=log)
         records["dem"] = input_record(opts.dem)
     contours = boreholes = orientations = top = None

@@ -13,7 +13,7 @@ from strikeline.errors import InputError, UndeterminedError
 from strikeline.attitude.fitting import PlaneFit, fit_plane
 from strikeline.geometry.geodesy import grid_to_true_azimuth, meridian_convergence_deg
 from strikeline.geometry.grid import Grid
-from strikeline.maps.dipgrids import depth_below_ground, dip_grids
+from strikeline.maps.dipgrids import depth_below_ground
 from strikeline.io.contours import contour_lines
 from strikeline.io.vector import VectorLayer
 from strikeline.picks import (PickSet, ground_slope_from_contours, picks_from_contours,
@@ -75,8 +75,9 @@ def pick_sigmas(inputs: Inputs, picks: PickSet, opts: RunOptions) -> np.ndarray:
     dem_slope = None
     if inputs.dem is not None and ((is_contour.any() and opts.contour_sigma_m > 0)
                                    or (~is_contour).any() and opts.contact_sigma_m > 0):
-        dem_dip, _ = dip_grids(inputs.dem, inputs.dem_grid)
-        dem_slope = sample_bilinear(dem_dip.astype(float), inputs.dem_grid, picks.xyz[:, 0], picks.xyz[:, 1])
+        from strikeline.pipeline.dem_access import ground_slope_at  # the DEM in memory or read by windows
+
+        dem_slope = ground_slope_at(inputs.dem, inputs.dem_grid, picks.xyz[:, 0], picks.xyz[:, 1])
     if is_contour.any() and opts.contour_sigma_m > 0:
         xy = picks.xyz[is_contour, :2]
         s = dem_slope[is_contour] if dem_slope is not None else np.full(len(xy), np.nan)

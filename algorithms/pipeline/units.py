@@ -12,6 +12,7 @@ from strikeline.io.vector import LayerOut
 from strikeline.vocabulary import UNIT_CONFLICTS
 from strikeline.surfaces import SurfaceModel
 from strikeline.surfaces.units import UnitBounds, bound_violation_m, parse_unit_names, unit_bounds
+from strikeline.pipeline.dem_access import dem_for_units
 from strikeline.pipeline.options import Log, RunOptions, _quiet
 
 
@@ -29,6 +30,7 @@ def map_unit_bounds(polygons, labels, dem, dem_grid: Grid, opts: RunOptions, *, 
     DEM loosened by ``--dem-sigma``, points ``UNIT_MARGIN_SIGMAS`` times ``--contact-sigma`` (at least
     two DEM cells) inside the units' outlines."""
     margin = max(2.0 * max(dem_grid.cell_x_m, dem_grid.cell_y_m), UNIT_MARGIN_SIGMAS * opts.contact_sigma_m)
+    dem, dem_grid = dem_for_units(dem, dem_grid, polygons)
     ub = unit_bounds(polygons, labels, dem, dem_grid, units_above=opts.units_above, units_below=opts.units_below,
                      tolerance_m=opts.dem_sigma_m, spacing_m=spacing_m, margin_m=margin, max_points=max_points)
     log(f"map units: {len(ub)} constraint points every {ub.spacing_m:.4g} m ({ub.n_above} under units above "
@@ -48,6 +50,7 @@ def map_unit_check(model: SurfaceModel, polygons, labels, dem, dem_grid: Grid, o
     ``UNIT_VIOLATION_M`` and ``"summary"`` (the ``map_units`` entry of summary.json).
     """
     spacing = ub.spacing_m / 2 if np.isfinite(ub.spacing_m) else None
+    dem, dem_grid = dem_for_units(dem, dem_grid, polygons)
     chk = unit_bounds(polygons, labels, dem, dem_grid, units_above=opts.units_above, units_below=opts.units_below,
                       tolerance_m=opts.dem_sigma_m, spacing_m=spacing, margin_m=ub.margin_m,
                       max_points=4 * max(len(ub), 1) + 100)

@@ -20,7 +20,8 @@ import numpy as np
 import shapely
 
 from strikeline.attitude import DEFAULT_WINDOW_RESAMPLES
-from strikeline.budget import BLOCK_BYTES_PER_CELL, BYTES_PER_CELL, budget_words, memory_budget_bytes, size_words
+from strikeline.budget import (BLOCK_BYTES_PER_CELL, BYTES_PER_CELL, THICKNESS_BYTES_PER_CELL,
+                               WINDOWED_BYTES_PER_CELL, budget_words, memory_budget_bytes, size_words)
 from strikeline.errors import InputError
 from strikeline.pipeline.option_table import CLI_OPTION_NAMES
 from strikeline.pipeline.tiled import block_shape_of
@@ -92,6 +93,10 @@ def relief_m(inputs) -> float | None:
                    None if inputs.boreholes_xyz is None else inputs.boreholes_xyz[:, 2]):
         if values is None:
             continue
+        if getattr(values, "minimum", None) is not None and hasattr(values, "sample_bilinear"):
+            lo.append(values.minimum)  # a DEM in its file: its range was found when it was opened
+            hi.append(values.maximum)
+            continue
         v = np.asarray(values, dtype=float)
         if np.isfinite(v).any():
             lo.append(np.nanmin(v))
@@ -120,6 +125,11 @@ def estimate_workload(inputs, opts, *, grid=None, names: dict | None = None, aut
         g = grid if grid is not None else inputs.dem_grid
         cells = float(g.rows) * float(g.cols)
         per_cell = BYTES_PER_CELL if block_shape_of(g, opts, auto=auto_blocks) is None else BLOCK_BYTES_PER_CELL
+        if per_cell == BLOCK_BYTES_PER_CELL and hasattr(inputs.dem, "sample_bilinear"):  # the DEM read by windows
+            per_cell = WINDOWED_BYTES_PER_CELL + (THICKNESS_BYTES_PER_CELL if inputs.top_contacts is not None else 0)
+            if g is not inputs.dem_grid and not (g.shape == inputs.dem_grid.shape
+                                                 and g.transform == inputs.dem_grid.transform):
+                per_cell += 8  # the DEM resampled onto another grid is an array (dem_access.ground_on_grid)
         if opts.cell_m is not None or inputs.dem_grid is None:
             named = names.get("cell_m", "cell_m")
             out.append(Estimate(named, f"output grid cells of {g.cell_x_m:g} m ({g.cols} x {g.rows})", cells,

@@ -1,0 +1,264 @@
+"""A DEM left in its file and read by windows: grids larger than memory.
+
+:func:`open_dem` checks a DEM as :func:`strikeline.io.raster.read_raster` does (the same one-line
+messages: missing file, not a raster, not one band of elevations, no georeferencing, CRS not
+projected in metres, undeclared nodata markers, no valid cell), reading it once in strips of rows
+to count its markers and its valid cells and to find its lowest and highest values. The
+:class:`DemFile` it returns holds no cell: each use reads the window it needs (and GDAL drops the
+window's blocks from its cache after), converted as the whole band would be (float64, NaN for
+nodata and non-finite cells, then times the unit's metres), so every value is the one the whole
+array holds. Memory is one window, whatever the DEM's size.
+"""
+from __future__ import annotations
+
+import os
+import threading
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+from osgeo import gdal
+
+from strikeline.errors import InputError, RasterReadError
+from strikeline.geometry.grid import Grid
+from strikeline.io._gdal import gdal_exceptions, gdal_message
+from strikeline.io.raster import HoleCount, as_float, check_holes, checked_grid, open_raster
+from strikeline.picks.dem import sample_bilinear
+
+#: Cells read at once by the strips of the check at opening and of the samplers (about 32 MiB as
+#: float64; our choice).
+STRIP_CELLS = 1 << 22
+#: Most cells of the window kept for the next read (128 MiB as float64; our choice).
+CACHE_CELLS = 1 << 24
+#: GDAL's exception mode is process-wide (strikeline.io._gdal): windows read on several threads
+#: (the blocks of a band) take turns.
+_READ_LOCK = threading.Lock()
+
+
+@dataclass(frozen=True)
+class DemFile:
+    """One band of a raster file, read by windows.
+
+    Attributes
+    ----------
+    path : str
+    grid : Grid
+        Georeferencing, shape, CRS (WKT) and the band's nodata value.
+    band : int
+    label : str
+        How messages name it (``"DEM"``).
+    scale : float
+        Metres per unit of the file's values (1 for metres): every window is multiplied by it.
+    minimum, maximum : float
+        The lowest and highest valid value, in metres.
+    dtype : str
+        GDAL's name of the band's type (``"Float32"``).
+    """
+
+    path: str
+    grid: Grid
+    band: int = 1
+    label: str = "DEM"
+    scale: float = 1.0
+    minimum: float = float("nan")
+    maximum: float = float("nan")
+    dtype: str = ""
+    # the last window read (r0, r1, c0, c1, array): the blocks of a band and the samples of one
+    # stretch of a contact read it once
+    _last: list = field(default_factory=lambda: [None], repr=False, compare=False)
+
+    # ---------------------------------------------------------------- array-like facts
+    @property
+    def shape(self) -> tuple:
+        return tuple(self.grid.shape)
+
+    @property
+    def ndim(self) -> int:
+        return 2
+
+    @property
+    def what(self) -> str:
+        return f"{self.label} '{self.path}'"
+
+    def in_metres(self, metres_per_unit: float) -> "DemFile":
+        """The same file with its values multiplied by ``metres_per_unit`` (as
+        :func:`strikeline.pipeline.elevation_units.to_metres` multiplies an array)."""
+        f = float(metres_per_unit)
+        if f == 1.0:
+            return self
+        lo, hi = np.float64(self.minimum) * f, np.float64(self.maximum) * f
+        return replace(self, scale=self.scale * f, minimum=float(min(lo, hi)), maximum=float(max(lo, hi)),
+                       _last=[None])
+
+    # ---------------------------------------------------------------- reading
+    def read_window(self, r0: int, r1: int, c0: int, c1: int) -> np.ndarray:
+        """Rows ``r0:r1`` and columns ``c0:c1`` (clipped to the band) as float64 metres, NaN for nodata."""
+        rows, cols = self.shape
+        r0, r1 = max(0, int(r0)), min(rows, int(r1))
+        c0, c1 = max(0, int(c0)), min(cols, int(c1))
+        if r1 <= r0 or c1 <= c0:
+            return np.empty((max(r1 - r0, 0), max(c1 - c0, 0)))
+        last = self._last[0]
+        if last is not None and last[0] <= r0 and r1 <= last[1] and last[2] <= c0 and c1 <= last[3]:
+            return last[4][r0 - last[0]:r1 - last[0], c0 - last[2]:c1 - last[2]].copy()
+        with _READ_LOCK, gdal_exceptions():
+            ds = open_raster(self.path, label=self.label)
+            try:
+                b = ds.GetRasterBand(self.band)
+                try:
+                    raw = b.ReadAsArray(c0, r0, c1 - c0, r1 - r0)
+                except RuntimeError as exc:
+                    raise RasterReadError(f"{self.what}: GDAL could not read band {self.band} "
+                                          f"({gdal_message(exc)})") from None
+                b.FlushCache()  # drop the window's blocks: memory stays one window
+            finally:
+                ds = None
+        out = as_float(raw, self.grid.nodata)
+        del raw
+        if self.scale != 1.0:
+            out *= self.scale
+        if out.size > CACHE_CELLS:
+            return out
+        self._last[0] = (r0, r1, c0, c1, out)
+        return out.copy()
+
+    def read(self) -> np.ndarray:
+        """The whole band (for a DEM that fits in memory)."""
+        return self.read_window(0, self.grid.rows, 0, self.grid.cols)
+
+    def __array__(self, dtype=None):
+        arr = self.read()
+        return arr if dtype is None else arr.astype(dtype)
+
+    def __getitem__(self, key) -> np.ndarray:
+        """``dem[r0:r1, c0:c1]``: a window (slices with unit steps only)."""
+        if not (isinstance(key, tuple) and len(key) == 2 and all(isinstance(k, slice) for k in key)):
+            raise TypeError("a DEM file is indexed by two slices, dem[r0:r1, c0:c1]")
+        (r0, r1, rs), (c0, c1, cs) = key[0].indices(self.grid.rows), key[1].indices(self.grid.cols)
+        if rs != 1 or cs != 1:
+            raise TypeError("a DEM file is read by windows with unit steps")
+        last = self._last[0]
+        if (last is None or not (last[0] <= r0 and r1 <= last[1] and last[2] == 0 and last[3] == self.grid.cols)) \
+                and (r1 - r0) * self.grid.cols <= CACHE_CELLS:
+            self.read_window(r0, r1, 0, self.grid.cols)  # the band's rows whole: its other blocks follow
+        return self.read_window(r0, r1, c0, c1)
+
+    # ---------------------------------------------------------------- sampling
+    def sample_bilinear(self, x, y, *, derive=None, halo: int = 0) -> np.ndarray:
+        """Bilinear values at the points ``(x, y)``: those of
+        :func:`strikeline.picks.dem.sample_bilinear` on the whole band (or on ``derive`` of it).
+
+        The points are taken a strip of rows at a time; each strip's window holds the columns its
+        points need. ``derive(window, grid)`` turns a window into another grid of the same cells
+        (e.g. the ground's slope) computed cell by cell from neighbours at most ``halo`` cells away:
+        the window is read ``halo`` cells wider on every side (short of the band's edges), so its
+        cells in use see the neighbours they see in the whole band.
+        """
+        x, y = np.broadcast_arrays(np.asarray(x, dtype=float), np.asarray(y, dtype=float))
+        shape = x.shape
+        x, y = x.ravel(), y.ravel()
+        out = np.full(x.shape, np.nan)
+        rows, cols = self.shape
+        col, row = self.grid.xy_to_colrow(x, y)
+        inside = np.isfinite(col) & np.isfinite(row) & (col >= -0.5) & (col <= cols - 0.5) \
+            & (row >= -0.5) & (row <= rows - 0.5)
+        idx = np.flatnonzero(inside)
+        if not len(idx):
+            return out.reshape(shape)
+        r0 = np.floor(np.clip(row[idx], 0.0, rows - 1.0)).astype(np.int64)
+        c0 = np.floor(np.clip(col[idx], 0.0, cols - 1.0)).astype(np.int64)
+        step = max(1, STRIP_CELLS // max(cols, 1))
+        h = max(0, int(halo))
+        for start in range(int(r0.min()) - int(r0.min()) % step, int(r0.max()) + 1, step):
+            here = (r0 >= start) & (r0 < start + step)
+            if not here.any():
+                continue
+            sel = idx[here]
+            ra, rb = max(0, start - h), min(rows, start + step + 1 + h)
+            ca, cb = max(0, int(c0[here].min()) - h), min(cols, int(c0[here].max()) + 2 + h)
+            window = self.read_window(ra, rb, ca, cb)
+            if derive is not None:
+                window = derive(window, _window_grid(self.grid, ra, rb, ca, cb))
+            out[sel] = sample_bilinear(window, self.grid, x[sel], y[sel], origin=(ra, ca))
+        return out.reshape(shape)
+
+    def window_of_bounds(self, bounds, *, margin_cells: int = 2) -> tuple[int, int, int, int]:
+        """``(r0, r1, c0, c1)`` of the cells under ``bounds`` (xmin, ymin, xmax, ymax) widened by
+        ``margin_cells`` cells, clipped to the band."""
+        xmin, ymin, xmax, ymax = (float(v) for v in bounds)
+        cs, rs = self.grid.xy_to_colrow(np.array([xmin, xmax]), np.array([ymax, ymin]))
+        rows, cols = self.shape
+        m = int(margin_cells)
+        c0 = int(np.clip(np.floor(cs.min()) - m, 0, cols))
+        c1 = int(np.clip(np.ceil(cs.max()) + 1 + m, 0, cols))
+        r0 = int(np.clip(np.floor(rs.min()) - m, 0, rows))
+        r1 = int(np.clip(np.ceil(rs.max()) + 1 + m, 0, rows))
+        return r0, r1, c0, c1
+
+
+def _window_grid(grid: Grid, r0: int, r1: int, c0: int, c1: int) -> Grid:
+    """The grid of rows ``r0:r1``, columns ``c0:c1`` of ``grid`` (same cells, same nodata)."""
+    x0, dx, _, y0, _, dy = grid.transform
+    return Grid((x0 + c0 * dx, dx, 0.0, y0 + r0 * dy, 0.0, dy), (r1 - r0, c1 - c0), grid.crs_wkt, grid.nodata)
+
+
+def window_grid(dem: DemFile, r0: int, r1: int, c0: int, c1: int) -> Grid:
+    """The :class:`Grid` of a window of ``dem`` (rows ``r0:r1``, columns ``c0:c1``)."""
+    return _window_grid(dem.grid, r0, r1, c0, c1)
+
+
+def open_dem(path, *, label: str = "DEM", band: int = 1) -> DemFile:
+    """Check a raster as :func:`strikeline.io.raster.read_raster` does and leave it in its file.
+
+    The band is read once in strips of rows (each dropped from GDAL's block cache after) to refuse
+    undeclared nodata markers and a band without a valid cell, and to find its lowest and highest
+    value; memory is one strip whatever the raster's size.
+
+    Raises
+    ------
+    InputError, RasterReadError, CRSError
+        As :func:`strikeline.io.raster.read_raster`, with its messages.
+    """
+    path = os.fspath(path)
+    what = f"{label} '{path}'"
+    with gdal_exceptions():
+        ds = open_raster(path, label=label)
+        try:
+            grid = checked_grid(ds, band, what=what, path=path)
+            b = ds.GetRasterBand(band)
+            dtype = gdal.GetDataTypeName(b.DataType)
+            holes = HoleCount(grid.nodata)
+            lo, hi, any_valid = np.inf, -np.inf, False
+            rows, cols = grid.shape
+            step = max(1, STRIP_CELLS // max(cols, 1))
+            for r0 in range(0, rows, step):
+                try:
+                    raw = b.ReadAsArray(0, r0, cols, min(step, rows - r0))
+                except RuntimeError as exc:
+                    raise RasterReadError(f"{what}: GDAL could not read band {band} ({gdal_message(exc)})") from None
+                b.FlushCache()
+                holes.add(np.asarray(raw, dtype=np.float64))
+                strip = as_float(raw, grid.nodata)
+                if np.isfinite(strip).any():
+                    any_valid = True
+                    lo, hi = min(lo, float(np.nanmin(strip))), max(hi, float(np.nanmax(strip)))
+                del raw, strip
+        finally:
+            ds = None
+    check_holes(holes.result(), grid.nodata, what=what, path=path)
+    if not any_valid:
+        raise InputError(f"{what} holds no valid cell (every cell is nodata); give a raster with data")
+    return DemFile(path, grid, band=band, label=label, minimum=lo, maximum=hi, dtype=dtype)
+
+
+def raster_shape(path, *, label: str = "DEM") -> tuple[int, int] | None:
+    """``(rows, cols)`` of a raster's first band without reading it, or None when GDAL cannot open
+    it (the reader that follows then says why)."""
+    try:
+        with gdal_exceptions():
+            ds = open_raster(path, label=label)
+            try:
+                return ds.RasterYSize, ds.RasterXSize
+            finally:
+                ds = None
+    except (InputError, RasterReadError):
+        return None
