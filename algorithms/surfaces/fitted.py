@@ -124,8 +124,8 @@ class _Surface:
         Hastie, T. J. & Tibshirani, R. J. (1990). *Generalized Additive Models*. Chapman &
         Hall, London.
         """
-        u, v = self._uv(x, y)
         if isinstance(self.core, _Poly):
+            u, v = self._uv(x, y)
             se = self.core.param_se_u(u, v)
             if self.trend is not None:
                 tau, _ = _taper(self._taper_hull().distance(x, y), self.taper_m)
