@@ -2,13 +2,17 @@
 
 Workload (deterministic, invented): a 4 x 4 mosaic of neighbouring sheets, each an N x N float32
 DEM at 10 m cells (``--cells``, default 500: 5 km squares, a 20 km mosaic) of fictional hills
-written by GDAL, and one gently folded contact across the whole mosaic (amplitude 60 m,
-wavelength 7 km, dipping 1 deg toward 123 deg) whose trace GDAL's contour generator draws on each
-sheet. A job file (TOML, one ``[[sheet]]`` table per sheet with ``name``, ``contacts`` and
-``dem``) is run by the console command ``strikeline batch JOB.toml --out DIR --workers N`` in a
-child process, once with ``--workers 1`` and once with ``--workers 2`` (fresh output folders, so
-neither run skips a sheet), each measured alone: wall time, CPU time of the batch and its worker
-processes, and the peak resident memory of the largest single process (``ru_maxrss``).
+written by GDAL, and one upright folded contact across the whole mosaic (hinges trending 033,
+amplitude 400 m about 600 m, wavelength one sheet side) whose trace GDAL's contour generator
+draws on each sheet. The fold is made so that every sheet has a trace, whatever its size: across
+any one sheet the contact passes through a whole wavelength, from 200 m to 1,000 m, beyond the
+terrain's 290-910 m on both sides, so it crosses the ground on every sheet (a gentler fold left
+sheets of 2-3 km with no contact at all, which the batch rightly reported as failed). The job
+file (TOML, one ``[[sheet]]`` table per sheet with ``name``, ``contacts`` and ``dem``) is run by
+the console command ``strikeline batch JOB.toml --out DIR --workers N`` in a child process, once
+with ``--workers 1`` and once with ``--workers 2`` (fresh output folders, so neither run skips a
+sheet), each measured alone: wall time, CPU time of the batch and its worker processes, and the
+peak resident memory of the largest single process (``ru_maxrss``).
 
 The reference is the 1-worker run of the same job in the same run; the figure is the speed-up
 t(1 worker) / t(2 workers) (the project's target: at least 1.7). Where the installed
@@ -34,22 +38,33 @@ CELL_M = 10.0
 TARGET_SPEEDUP = 1.7
 
 
-def gentle_fold(mosaic_m: float):
-    """An open fold that crops out on every sheet of the mosaic (relief of the hills: 310-890 m)."""
+#: The terrain's range (m): ``_sheets.terrain`` is 600 m plus terms of amplitude 180, 90 and 40 m.
+TERRAIN_MIN_M, TERRAIN_MAX_M = 600.0 - 310.0, 600.0 + 310.0
+FOLD_MEAN_M, FOLD_AMPLITUDE_M = 600.0, 400.0
+
+
+def mosaic_fold(mosaic_m: float, wavelength_m: float):
+    """An upright fold across the mosaic (hinges trending 033), ``wavelength_m`` from crest to
+    crest, between 200 m and 1,000 m: beyond the terrain's range on both sides, so that on any
+    square at least ``wavelength_m`` wide the contact lies above the ground along one crest and
+    below it along one trough, and so crosses it (a trace on every sheet)."""
+    assert FOLD_MEAN_M - FOLD_AMPLITUDE_M < TERRAIN_MIN_M and FOLD_MEAN_M + FOLD_AMPLITUDE_M > TERRAIN_MAX_M
     cx, cy = _sheets.X0 + mosaic_m / 2, _sheets.Y0 + mosaic_m / 2
     a = np.radians(123.0)
 
     def f(x, y):
         across = (x - cx) * np.sin(a) + (y - cy) * np.cos(a)
-        return 600.0 + 60.0 * np.cos(2 * np.pi * across / 7_000.0) - np.tan(np.radians(1.0)) * across
+        return FOLD_MEAN_M + FOLD_AMPLITUDE_M * np.cos(2 * np.pi * across / wavelength_m)
     return f
 
 
 def make_job(tmp: Path, cells: int, per_side: int) -> tuple[Path, int]:
+    """Write the mosaic's DEMs and contact layers into ``tmp`` and the job file naming them; return
+    the job file and the number of contact lines in all (every sheet has at least one)."""
     size_m = cells * CELL_M
     mosaic_m = size_m * per_side
-    surface = gentle_fold(mosaic_m)
-    lines = ["# 16 invented neighbouring sheets (strikeline bench)", ""]
+    surface = mosaic_fold(mosaic_m, size_m)
+    lines = [f"# {per_side ** 2} invented neighbouring sheets (strikeline bench)", ""]
     n_lines = 0
     for j in range(per_side):
         for i in range(per_side):
@@ -58,6 +73,9 @@ def make_job(tmp: Path, cells: int, per_side: int) -> tuple[Path, int]:
             dem = _sheets.write_dem(tmp / f"{name}_dem.tif", cells, size_m, x0=x0, y0=y0)
             contacts = tmp / f"{name}_contacts.gpkg"
             k = _sheets.write_traces(contacts, size_m, [surface], x0=x0, y0=y0, trace_cells=min(cells, 1000))
+            if k == 0:  # a sheet without a contact fails in the batch: the workload would be wrong
+                raise RuntimeError(f"bench_batch: sheet {name} ({cells} cells a side) has no contact trace; "
+                                   "the mosaic's fold must cross the ground on every sheet")
             n_lines += k
             lines += ["[[sheet]]", f'name = "{name}"', f'contacts = "{contacts.name}"', f'dem = "{dem.name}"', ""]
     job = tmp / "job.toml"

@@ -13,6 +13,7 @@ import subprocess
 import sys
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 BENCH = Path(__file__).resolve().parent.parent / "bench"
@@ -105,3 +106,32 @@ def test_growth_exponent_is_the_log_log_slope():
 def test_child_error_line_is_the_tools_one_line():
     r = _measure.ChildRun(2, "", "some log\nerror: the output grid would need 29 GiB; use --cell\n", 1.0, 1.0, 0.0)
     assert r.error_line() == "the output grid would need 29 GiB; use --cell"
+
+
+@pytest.mark.parametrize("cells", [60, 150, 300])
+def test_every_sheet_of_the_batch_mosaic_has_a_contact(tmp_path, cells):
+    """The batch workload's 16 sheets each carry a contact trace at any size (a sheet without one
+    fails in the batch, which then times 15 sheets and a refusal). The contact is an upright fold
+    from 200 m to 1,000 m across every sheet and the terrain keeps within 290-910 m. The mosaic is
+    made in a child process, as the bench makes it (its GDAL calls switch exceptions on)."""
+    import json
+
+    import _sheets
+    import bench_batch
+
+    xs = np.linspace(0.0, 40_000.0, 801)
+    ground = _sheets.terrain(_sheets.X0 + xs[:, None], _sheets.Y0 + xs[None, :])
+    # Source: arithmetic - 600 m plus sines of amplitude 180, 90 and 40 m stays within 600 -/+ 310 m
+    assert bench_batch.TERRAIN_MIN_M <= ground.min() and ground.max() <= bench_batch.TERRAIN_MAX_M
+    code = ("import json, sys; from pathlib import Path; from osgeo import ogr; import bench_batch; "
+            f"t = Path(sys.argv[1]); job, n = bench_batch.make_job(t, {cells}, 4); "
+            "ds = {p.name: ogr.Open(str(p)) for p in sorted(t.glob('*_contacts.gpkg'))}; "
+            "c = {k: d.GetLayer(0).GetFeatureCount() for k, d in ds.items()}; "
+            "print(json.dumps({'n': n, 'counts': c, 'sheets': job.read_text().count('[[sheet]]')}))")
+    proc = subprocess.run([sys.executable, "-c", code, str(tmp_path)], capture_output=True, text=True, cwd=BENCH,
+                          timeout=600)
+    assert proc.returncode == 0, proc.stderr[-2000:]
+    made = json.loads(proc.stdout)
+    counts = made["counts"]
+    assert len(counts) == 16 and min(counts.values()) >= 1, counts
+    assert sum(counts.values()) == made["n"] and made["sheets"] == 16
