@@ -30,6 +30,7 @@ import subprocess
 import sys
 import tempfile
 import time
+import tracemalloc
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -102,6 +103,23 @@ def measured():
         m.cpu_s = _cpu_self() - cpu0
         hwm = _status_kib("VmHWM")
         m.peak_bytes = 1024.0 * (hwm if m.peak_whole_process else max(0, hwm - rss0))
+
+
+def traced(fn):
+    """Run ``fn()`` once with Python's allocation tracer on: its result and a :class:`Measure`
+    whose ``peak_bytes`` is the largest memory that Python's allocators (numpy's arrays among
+    them) held at once during the call beyond what they held before it (``tracemalloc``, from its
+    start); wall and CPU seconds as :func:`measured` takes them. Memory that libraries such as
+    GDAL allocate in C is not seen; the resident-set figures of :func:`measured` see it."""
+    tracemalloc.start()
+    try:
+        cpu0, t0 = _cpu_self(), time.perf_counter()
+        result = fn()
+        wall, cpu = time.perf_counter() - t0, _cpu_self() - cpu0
+        peak = tracemalloc.get_traced_memory()[1]
+    finally:
+        tracemalloc.stop()
+    return result, Measure(wall_s=wall, cpu_s=cpu, peak_bytes=float(peak))
 
 
 def measure(fn, repeat: int = 1):
@@ -184,10 +202,12 @@ def mib(n_bytes: float) -> str:
 
 
 def result_line(workload: str, m, *, ratio: float | None = None, reference: str = "",
-                extra: str = "") -> str:
-    """Print and return one ``result:`` line for a :class:`Measure` or :class:`ChildRun`."""
+                extra: str = "", peak_note: str = "") -> str:
+    """Print and return one ``result:`` line for a :class:`Measure` or :class:`ChildRun`
+    (``peak_note``: what the peak counts, when not the resident set, e.g. ``tracemalloc``)."""
     parts = [f"{RESULT} {workload}", f"time {m.wall_s:.2f} s", f"peak {mib(m.peak_bytes)}"
-             + (" (whole process)" if getattr(m, "peak_whole_process", False) else ""),
+             + (" (whole process)" if getattr(m, "peak_whole_process", False) else "")
+             + (f" ({peak_note})" if peak_note else ""),
              f"cpu/wall {m.cpu_per_wall:.2f}"]
     if ratio is not None:
         parts.append(f"ratio {ratio:.2f} x {reference}".rstrip())

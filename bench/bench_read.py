@@ -4,7 +4,7 @@ A fictional 4,000 x 4,000 float32 DEM (DEFLATE, tiled, as surveys ship them) rea
 strikeline.io.raster.read_raster, against the previous reading in the same run: the band decoded on
 one thread, converted to float64, copied again and scanned for nodata markers on the whole array.
 Prints time and the peak of numpy's memory (tracemalloc) per cell, and checks that both give the
-same array.
+same array; one ``result:`` line (``bench/_measure.py``) with the ratio to the previous reading.
 
 Run:  .venv/bin/python bench/bench_read.py [--cells 4000]
 """
@@ -13,13 +13,12 @@ from __future__ import annotations
 import argparse
 import os
 import tempfile
-import time
-import tracemalloc
 from pathlib import Path
 
 import numpy as np
 from osgeo import gdal, osr
 
+from _measure import load_line, machine_line, result_line, traced
 from strikeline.io.raster import NODATA_SENTINELS, SENTINEL_ABS_LIMIT, read_raster
 
 
@@ -60,34 +59,30 @@ def previous_read(path: Path) -> np.ndarray:
     return arr
 
 
-def measured(fn):
-    tracemalloc.start()
-    t = time.perf_counter()
-    out = fn()
-    wall = time.perf_counter() - t
-    peak = tracemalloc.get_traced_memory()[1]
-    tracemalloc.stop()
-    return out, wall, peak
-
-
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--cells", type=int, default=4000)
     args = ap.parse_args(argv)
     gdal.UseExceptions()
+    machine_line()
     with tempfile.TemporaryDirectory() as tmp:
         path = Path(tmp) / "dem.tif"
         make_dem(path, args.cells)
         n = args.cells ** 2
         print(f"workload: {args.cells} x {args.cells} float32 DEM, DEFLATE, tiled "
               f"({os.path.getsize(path) / 2 ** 20:.0f} MiB); {os.cpu_count()} CPUs, load {os.getloadavg()[0]:.1f}")
-        old, t_old, p_old = measured(lambda: previous_read(path))
-        (new, _), t_new, p_new = measured(lambda: read_raster(path, label="DEM"))
-        print(f"  previous reading      {t_old:6.2f} s  peak {p_old / n:5.1f} bytes/cell")
-        print(f"  read_raster           {t_new:6.2f} s  peak {p_new / n:5.1f} bytes/cell")
-        print(f"  speed-up {t_old / t_new:.2f}x; memory {p_new / p_old:.2f}x; same array: "
-              f"{np.array_equal(old, new, equal_nan=True)}")
-
+        old, m_old = traced(lambda: previous_read(path))
+        (new, _), m_new = traced(lambda: read_raster(path, label="DEM"))
+        same = np.array_equal(old, new, equal_nan=True)
+        print(f"  previous reading      {m_old.wall_s:6.2f} s  peak {m_old.peak_bytes / n:5.1f} bytes/cell")
+        print(f"  read_raster           {m_new.wall_s:6.2f} s  peak {m_new.peak_bytes / n:5.1f} bytes/cell")
+        print(f"  speed-up {m_old.wall_s / m_new.wall_s:.2f}x; memory {m_new.peak_bytes / m_old.peak_bytes:.2f}x; "
+              f"same array: {same}")
+        result_line(f"read a {args.cells:,}^2 float32 DEM (read_raster)", m_new, peak_note="tracemalloc",
+                    ratio=m_new.wall_s / m_old.wall_s,
+                    reference=f"the previous reading ({m_old.wall_s:.2f} s, {m_old.peak_bytes / n:.1f} B/cell)",
+                    extra=f"{m_new.peak_bytes / n:.1f} B/cell; same array: {same}")
+    load_line("at the end")
 
 if __name__ == "__main__":
     main()

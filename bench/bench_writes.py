@@ -20,12 +20,12 @@ import argparse
 import os
 import tempfile
 import time
-import tracemalloc
 from pathlib import Path
 
 import numpy as np
 from osgeo import gdal
 
+from _measure import load_line, machine_line, result_line, traced
 from strikeline.geometry.grid import Grid
 from strikeline.io.geotiff import NODATA_OUT, RasterOut, write_geotiffs
 
@@ -79,22 +79,12 @@ def read(path) -> np.ndarray:
     return a
 
 
-def measured(fn):
-    tracemalloc.start()
-    t = time.perf_counter()
-    c = time.process_time()
-    fn()
-    wall, cpu = time.perf_counter() - t, time.process_time() - c
-    peak = tracemalloc.get_traced_memory()[1]
-    tracemalloc.stop()
-    return wall, cpu, peak
-
-
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--cells", type=int, default=4000)
     args = ap.parse_args(argv)
     gdal.UseExceptions()
+    machine_line()
     grids, grid = sheet_grids(args.cells)
     mib = 2 ** 20
     print(f"workload: {len(grids)} grids of {args.cells} x {args.cells} cells (float64 in memory, "
@@ -104,18 +94,22 @@ def main(argv=None):
         old_dir, new_dir = Path(tmp) / "old", Path(tmp) / "new"
         old_dir.mkdir()
         new_dir.mkdir()
-        t_old = measured(lambda: [old_write(str(old_dir / f"{k}.tif"), a, grid, k) for k, a in grids.items()])
+        _, m_old = traced(lambda: [old_write(str(old_dir / f"{k}.tif"), a, grid, k) for k, a in grids.items()])
         items = [RasterOut(new_dir / f"{k}.tif", a, k, "m") for k, a in grids.items()]
-        t_new = measured(lambda: write_geotiffs(items, grid))
+        _, m_new = traced(lambda: write_geotiffs(items, grid))
         size = {d: sum(os.path.getsize(d / f"{k}.tif") for k in grids) for d in (old_dir, new_dir)}
         same = all(np.array_equal(read(old_dir / f"{k}.tif").view(np.uint32), read(new_dir / f"{k}.tif").view(np.uint32))
                    for k in grids)
         print(f"  {'writer':<52s} {'wall s':>7s} {'cpu s':>7s} {'MiB':>7s} {'extra MiB':>9s}")
-        for name, (wall, cpu, peak), d in (("reference: one by one, DEFLATE 6, whole read-back", t_old, old_dir),
-                                           ("write_geotiffs: threads, DEFLATE 1, two-tile check", t_new, new_dir)):
-            print(f"  {name:<52s} {wall:7.2f} {cpu:7.2f} {size[d] / mib:7.1f} {peak / mib:9.0f}")
-        print(f"  speed-up {t_old[0] / t_new[0]:.2f}x; size {size[new_dir] / size[old_dir]:.2f}x; "
+        for name, m, d in (("reference: one by one, DEFLATE 6, whole read-back", m_old, old_dir),
+                           ("write_geotiffs: threads, DEFLATE 1, two-tile check", m_new, new_dir)):
+            print(f"  {name:<52s} {m.wall_s:7.2f} {m.cpu_s:7.2f} {size[d] / mib:7.1f} {m.peak_bytes / mib:9.0f}")
+        print(f"  speed-up {m_old.wall_s / m_new.wall_s:.2f}x; size {size[new_dir] / size[old_dir]:.2f}x; "
               f"pixel values identical: {same}")
+        result_line(f"write {len(grids)} GeoTIFFs of {args.cells:,}^2 cells (write_geotiffs)", m_new,
+                    peak_note="tracemalloc", ratio=m_new.wall_s / m_old.wall_s,
+                    reference=f"one by one, DEFLATE 6, whole read-back ({m_old.wall_s:.2f} s)",
+                    extra=f"size {size[new_dir] / size[old_dir]:.2f}x; pixel values identical: {same}")
         print("one grid (surface), one file, other compressions (GDAL 3.6, 256 x 256 tiles):")
         a = np.where(np.isfinite(grids["surface"]), grids["surface"], NODATA_OUT).astype(np.float32)
         for name, opts in (("DEFLATE 6, PREDICTOR=3", ["COMPRESS=DEFLATE", "PREDICTOR=3"]),
@@ -138,6 +132,7 @@ def main(argv=None):
             print(f"  {name:<26s} write {tw:6.2f} s  read {tr:6.2f} s  {os.path.getsize(p) / mib:7.1f} MiB  "
                   f"values identical: {same}")
             os.remove(p)
+    load_line("at the end")
 
 
 if __name__ == "__main__":

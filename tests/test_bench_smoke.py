@@ -22,7 +22,7 @@ import _measure  # noqa: E402
 import run_all  # noqa: E402
 from bench_sheet import growth_exponent  # noqa: E402
 
-FIGURES = re.compile(r"^result: .+ \| time \d+\.\d\d s \| peak [\d,]+ MiB( \(whole process\))? \| cpu/wall "
+FIGURES = re.compile(r"^result: .+ \| time \d+\.\d\d s \| peak [\d,]+ MiB( \([^)|]+\))* \| cpu/wall "
                      r"(\d+\.\d\d|nan)( \| .*)?$")
 STATUS = re.compile(r"^result: .+ \| (refused|not available|failed[^:]*): .+$")
 EXPONENTS = re.compile(r"^result: sheet growth exponents over \d+ sizes \| time ~ cells\^-?\d+\.\d\d \| "
