@@ -253,6 +253,12 @@ def machine() -> dict:
     with contextlib.suppress(ImportError):
         from osgeo import gdal
         info["gdal"] = gdal.__version__
+    with contextlib.suppress(ImportError):
+        import scipy
+        info["scipy"] = scipy.__version__
+    with contextlib.suppress(ImportError):
+        import shapely
+        info["shapely"] = f"{shapely.__version__} (GEOS {shapely.geos_version_string})"
     return info
 
 

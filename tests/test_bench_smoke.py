@@ -36,11 +36,11 @@ def run_script(script: str, args: list) -> str:
     return proc.stdout
 
 
-NAMED = {s for s, _, _ in run_all.SUITE}
+NAMED = {s for s, *_ in run_all.SUITE}
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("script,args", [(s, q) for s, _, q in run_all.suite()], ids=lambda v: str(v))
+@pytest.mark.parametrize("script,args", [(s, q) for s, _, q, _ in run_all.suite()], ids=lambda v: str(v))
 def test_each_script_prints_its_figures(script, args):
     out = run_script(script, args)
     results = [ln for ln in out.splitlines() if ln.startswith("result:")]
@@ -60,8 +60,23 @@ def test_each_script_prints_its_figures(script, args):
 def test_run_all_prints_one_table():
     out = run_script("run_all.py", ["--quick", "--only", "dipgrids,thinning"])
     table = out[out.index("=== results"):]
-    assert table.count("bench_dipgrids.py") == 2 and table.count("bench_thinning.py") == 2, table
+    results = [ln for ln in out[:out.index("=== results")].splitlines() if ln.startswith("result:")]
+    rows = [ln for ln in table.splitlines() if ln.startswith("| ") and not ln.startswith("| workload")]
+    assert len(rows) == len(results) >= 2, table
+    assert "| workload | strikeline: wall; CPU/wall; peak | reference in the same run | ratio | target |" in table
     assert "machine:" in table and "load average after the suite" in table
+    assert "Load average (1/5/15 min):" in table and "numpy" in table and "GDAL" in table
+
+
+def test_a_result_line_becomes_a_readme_row():
+    line = ("5 contacts on a 600^2 sheet end to end (strikeline run) | time 12.34 s | peak 456 MiB | cpu/wall 0.98 | "
+            "ratio 1.10 x the same trace as 2 whole lines (11.2 s, 400 MiB) | target < 60 s: met")
+    # Source: the README's Performance table (its five columns)
+    assert run_all.table_row(line) == ("| 5 contacts on a 600^2 sheet end to end (strikeline run) | 12.34 s; 0.98; "
+                                       "456 MiB | the same trace as 2 whole lines (11.2 s, 400 MiB) | 1.10 × | "
+                                       "target < 60 s: met |")
+    assert run_all.table_row("batch of sheets | not available: no batch command") == \
+        "| batch of sheets | not available: no batch command | — | — | — |"
 
 
 def test_a_child_is_measured_alone():
