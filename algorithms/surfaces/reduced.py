@@ -11,7 +11,7 @@ One smoothing (:class:`_FixedSmoothing`)
     Cholesky factor of ``B = M + nλI`` (Golub & Van Loan 2013, sect. 4.2), about a sixth of the
     cost of the eigen-decomposition that generalized cross-validation needs for many λ: with
     ``z₂ = Q₂ᵀ z`` and ``y = B⁻¹ z₂``, the residual sum of squares ``||(I − A)z||² = (nλ)²
-    ||y||²``, ``tr(I − A) = nλ tr(B⁻¹)`` (``B⁻¹`` from the factor, LAPACK ``potri``), the Bayesian
+    ||y||²``, ``tr(I − A) = nλ tr(B⁻¹)`` (``tr(B⁻¹) = ||L⁻¹||²``, LAPACK ``trtri``), the Bayesian
     scale ``b̂ = ||y||² / tr(B⁻¹)`` and the radial coefficients ``c = Q₂ y`` — the same sums
     :func:`strikeline.stats.gcv_from_spectrum` takes over the eigenvalues (Wahba 1990), rounded
     differently (they agree to about 1e-12 relative).
@@ -171,10 +171,11 @@ class _FixedSmoothing:
         if info != 0:
             raise np.linalg.LinAlgError("M + nλI is not positive definite")
         self.red, self.nlam, self.chol = red, nlam, c
-        inv, info = linalg.lapack.dpotri(c, lower=1, overwrite_c=0)
+        # tr(B⁻¹) = ||L⁻¹||²_F for B = LLᵀ: one triangular inverse (LAPACK trtri), half of potri
+        inv, info = linalg.lapack.dtrtri(c, lower=1, overwrite_c=0)
         if info != 0:
             raise np.linalg.LinAlgError("M + nλI could not be inverted")
-        self.trace_inv = float(np.trace(inv))
+        self.trace_inv = float(np.einsum("ij,ij->", inv, inv))
         self.n = red.n
         self.y = self._solve(red.q2t(red.z))
 
