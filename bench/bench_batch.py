@@ -8,8 +8,9 @@ draws on each sheet. The fold is made so that every sheet has a trace, whatever 
 any one sheet the contact passes through a whole wavelength, from 200 m to 1,000 m, beyond the
 terrain's 290-910 m on both sides, so it crosses the ground on every sheet (a gentler fold left
 sheets of 2-3 km with no contact at all, which the batch rightly reported as failed). The job
-file (TOML, one ``[[sheet]]`` table per sheet with ``name``, ``contacts`` and ``dem``) is run by
-the console command ``strikeline batch JOB.toml --out DIR --workers N`` in a child process, once
+file (TOML, one ``[[sheet]]`` table per sheet with ``name``, ``contact`` - the same for all, so the
+batch compares neighbours along their shared edges - ``contacts`` and ``dem``) is run by the
+console command ``strikeline batch JOB.toml --out DIR --workers N`` in a child process, once
 with ``--workers 1`` and once with ``--workers 2`` (fresh output folders, so neither run skips a
 sheet), each measured alone: wall time, CPU time of the batch and its worker processes, and the
 peak resident memory of the largest single process (``ru_maxrss``).
@@ -35,6 +36,9 @@ import _sheets
 from _measure import load_line, machine_line, result_line, run_child, status_line, strikeline_command
 
 CELL_M = 10.0
+#: The contact every sheet models, named in the job so that the batch compares the surfaces of
+#: neighbouring sheets along their shared edges (part of the timed work, as in a survey's job).
+CONTACT = "base of the folded unit"
 TARGET_SPEEDUP = 1.7
 
 
@@ -77,10 +81,21 @@ def make_job(tmp: Path, cells: int, per_side: int) -> tuple[Path, int]:
                 raise RuntimeError(f"bench_batch: sheet {name} ({cells} cells a side) has no contact trace; "
                                    "the mosaic's fold must cross the ground on every sheet")
             n_lines += k
-            lines += ["[[sheet]]", f'name = "{name}"', f'contacts = "{contacts.name}"', f'dem = "{dem.name}"', ""]
+            lines += ["[[sheet]]", f'name = "{name}"', f'contact = "{CONTACT}"', f'contacts = "{contacts.name}"',
+                      f'dem = "{dem.name}"', ""]
     job = tmp / "job.toml"
     job.write_text("\n".join(lines))
     return job, n_lines
+
+
+def shared_edges(out: Path) -> str:
+    """How many shared edges batch.json compared and their largest mismatch, in a few words."""
+    try:
+        edges = json.loads((out / "batch.json").read_text()).get("edges", {})
+    except (OSError, ValueError, AttributeError):
+        return ""
+    worst = [e.get("max_dz_m") for e in edges.values() if isinstance(e, dict) and e.get("max_dz_m") is not None]
+    return f"{len(edges)} shared edges compared" + (f" (largest mismatch {max(worst):.2f} m)" if worst else "")
 
 
 def failed_sheets(out: Path) -> str:
@@ -122,7 +137,8 @@ def main(argv=None) -> int:
             runs[workers] = r
             label = f"batch of {n_sheets} sheets {args.cells:,}^2, {workers} worker(s)"
             bad = failed_sheets(out)
-            problem = bad or (r.error_line() if r.returncode != 0 else "")
+            problem = "; ".join(t for t in (shared_edges(out), bad or (r.error_line() if r.returncode != 0 else ""))
+                                if t)
             shutil.rmtree(out, ignore_errors=True)
             if r.returncode != 0 and not bad:  # the batch itself failed, not some of its sheets
                 status_line(label, f"failed (exit {r.returncode}): {problem}")
