@@ -9,11 +9,12 @@ from qgis.core import (
 from strikeline import vocabulary as V
 from strikeline.pipeline import group_labels, plane_attitudes_layer, point_planes
 from strikeline.pipeline.options import option
+from strikeline.pipeline.workload import check_resamples
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
 from ..inputs import PICKS, add_picks, read_picks
 from ..layers import crs_wkt as wkt_of_crs
-from ..params import add_parameters, parameter
+from ..params import add_parameters, option_names, parameter, value
 from ..outputs import Table, add_outputs, write_sink
 from ..styles import attach_style
 
@@ -95,13 +96,15 @@ class PlaneAttitude(StrikelineAlgorithm):
         xyz, source, _, name, extra = read_picks(self, parameters, context, steps, fields=numeric,
                                                  text_fields=(group_by,) if group_by else ())
         labels = group_labels(extra[group_by]) if group_by else None
+        resamples = value(self, parameters, "resamples", context)
+        check_resamples(resamples, len(xyz), names=option_names(self))  # as strikeline attitude, before any draw
         steps.feedback.setProgress(10)
         # picks with a contact_id are bootstrapped by contact segment, as strikeline run does
         pp = point_planes(xyz, crs_wkt=wkt_of_crs(source.sourceCrs()), labels=labels,
                           contact_id=extra.get("contact_id"),
                           sigma_z_m=self.parameterAsDouble(parameters, self.SIGMA_Z, context),
                           what=f"picks {name.what}", group_what=f"group {group_by} = {{}}",
-                          resamples=self.parameterAsInt(parameters, self.RESAMPLES, context),
+                          resamples=resamples,
                           seed=self.parameterAsInt(parameters, self.SEED, context),
                           progress=steps.part(0.1, 0.9), is_cancelled=steps.is_cancelled)
         if pp.n_missing:

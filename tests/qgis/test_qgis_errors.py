@@ -213,3 +213,24 @@ def test_cancelled_step_leaves_no_output(run, sheet, tmp_path, tool, params):
     with pytest.raises(QgsProcessingException, match="cancelled"):
         run(tool, {**inputs, **outs}, feedback=cancelling_feedback(15.0))
     assert list(tmp_path.iterdir()) == []
+
+
+def test_too_many_resamples_for_the_plane_tool_are_refused_before_any_draw(run, sheet, tmp_path):
+    """As ``strikeline attitude --resamples`` (strikeline.pipeline.workload.check_resamples, the
+    reference): 10^9 resamples of a few hundred picks exceed the work and memory limits; the tool
+    refuses them in one line naming its parameter, and writes nothing."""
+    from strikeline.pipeline.workload import check_resamples
+
+    picks = run("contactpicks", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "picks": TMP})["picks"]
+    from qgis.core import QgsApplication
+
+    alg = QgsApplication.processingRegistry().algorithmById("strikeline:planeattitude")
+    label = alg.parameterDefinition("RESAMPLES").description()
+    n_picks = QgsVectorLayer(picks, "p", "ogr").featureCount() if isinstance(picks, str) else picks.featureCount()
+    with pytest.raises(StrikelineError) as lib:
+        check_resamples(10**9, n_picks, names={"resamples": f"the '{label}'"})
+    out = tmp_path / "planes.gpkg"
+    with pytest.raises(QgsProcessingException) as exc:
+        run("planeattitude", {"PICKS": picks, "RESAMPLES": 10**9, "plane_attitudes": str(out)})
+    assert str(exc.value) == str(lib.value) and "\n" not in str(exc.value)
+    assert not out.exists()
