@@ -54,6 +54,7 @@ class DepthTrace(StrikelineAlgorithm):
         self.addParameter(QgsProcessingParameterRasterLayer(
             self.SURFACE, self.tr("Surface elevation (from Surface model, on the DEM's grid)")))
         self.addParameter(QgsProcessingParameterRasterLayer(self.DEM, self.tr("DEM (ground elevation)")))
+        self.addParameter(parameter(self, "dem_unit"))  # a DEM in feet is turned into metres, as in the chain
         self.addParameter(QgsProcessingParameterFeatureSource(
             self.CONTACTS, self.tr("Mapped contact lines (for the misfit)"), [QgsProcessing.TypeVectorLine],
             optional=True))
@@ -75,7 +76,7 @@ class DepthTrace(StrikelineAlgorithm):
                            "trace_misfit_n_vertices": "Contact vertices measured"})
 
     def process(self, parameters, context, steps):
-        dem, dem_grid, dpath = read_dem(self, parameters, self.DEM, context, steps, label="DEM")
+        dem, dem_grid, dpath = read_dem(self, parameters, self.DEM, context, steps, label="DEM", unit=True)
         surface, grid, spath = read_dem(self, parameters, self.SURFACE, context, steps, label="surface")
         require_same_grid(grid, dem_grid, what_a=f"surface '{spath}'", what_b=f"DEM '{dpath}'")
         mask, mask_grid, mpath = read_dem(self, parameters, self.FORECAST_MASK, context, steps,

@@ -48,6 +48,7 @@ class StructureContours(StrikelineAlgorithm):
         self.addParameter(parameter(self, "interval_m", parent=self.SURFACE, optional=False))
         self.addParameter(QgsProcessingParameterRasterLayer(
             self.GROUND, self.tr("Ground (DEM) to mark the parts above and below ground"), optional=True))
+        self.addParameter(parameter(self, "dem_unit"))  # a ground DEM in feet is turned into metres
         self.addParameter(QgsProcessingParameterRasterLayer(
             self.FORECAST_MASK, self.tr("Forecast mask (from Surface model) to mark extrapolated parts"),
             optional=True))
@@ -58,7 +59,7 @@ class StructureContours(StrikelineAlgorithm):
     def process(self, parameters, context, steps):
         surface, grid, spath = read_dem(self, parameters, self.SURFACE, context, steps, label="surface")
         interval = value(self, parameters, "interval_m", context)
-        dem, dem_grid, dpath = read_dem(self, parameters, self.GROUND, context, steps, label="DEM")
+        dem, dem_grid, dpath = read_dem(self, parameters, self.GROUND, context, steps, label="DEM", unit=True)
         mask, mask_grid, mpath = read_dem(self, parameters, self.FORECAST_MASK, context, steps,
                                           label="forecast mask")
         steps.feedback.setProgress(30)

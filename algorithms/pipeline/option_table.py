@@ -226,7 +226,7 @@ _OPTION_LIST = (
          unset="the unit the DEM declares (band unit type or the vertical axis of a compound CRS), else metres",
          flag="--dem-unit", qgis="DEM_UNIT", choice_labels=_labels(ELEVATION_UNITS, _UNIT_LABELS),
          label="Unit of the DEM's elevations (empty: the unit the DEM declares, else metres)", advanced=True,
-         commands=_RUN, tools=_PICK_TOOLS),
+         commands=_RUN, tools=(*_PICK_TOOLS, "depthtrace", "structurecontours")),
     _opt("contour_unit", str, "unit of the contours' elevation field: m, ft or us-ft; converted to metres at load",
          choices=ELEVATION_UNITS, unset="metres", flag="--contour-unit", qgis="CONTOUR_UNIT",
          choice_labels=_labels(ELEVATION_UNITS, _UNIT_LABELS), label="Unit of the contours' elevation field "

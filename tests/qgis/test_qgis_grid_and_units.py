@@ -79,3 +79,17 @@ def test_extent_and_cell_give_the_command_lines_grid(run, sheet, library):
     assert all(v / cell == round(v / cell) for v in (x0, y0, x1, y1))
     assert x0 <= xmin and y1 <= ymin and x1 >= xmax and y0 >= ymax
     assert x0 > xmin - cell and y1 > ymin - cell and x1 < xmax + cell and y0 < ymax + cell
+
+
+def test_the_depth_tool_turns_a_dem_in_feet_into_metres(run, sheet):
+    # the demo DEM as the surface (read as it is, metres) and as the ground declared in feet:
+    # depth = 0.3048 z - z wherever the DEM has a value
+    from strikeline.io.raster import read_raster
+
+    res = run("depthtrace", {"SURFACE": sheet["dem"], "DEM": sheet["dem"], "DEM_UNIT": FT, "depth": TMP,
+                             "predicted_trace": TMP})
+    z, _ = read_raster(sheet["dem"], label="DEM")
+    got, _, _ = raster(res["depth"])
+    want = (z * FOOT_M - z).astype(np.float32).astype(float)
+    np.testing.assert_allclose(got, want, rtol=0, atol=1e-4, equal_nan=True)
+    assert np.isfinite(got).sum() == np.isfinite(z).sum() > 0
