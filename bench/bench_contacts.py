@@ -10,13 +10,17 @@ contact mapped in stretches between drift cover, and the 200 longest pieces are 
 
 Reference in the same run: the same command on the same DEM with the same trace left whole (the
 contour generator's few long lines) - the same ground and picks, so the ratio is the cost of
-the 200 separate contacts. Target (the project's): under 60 s on the development machine.
+the 200 separate contacts. Target (the project's): under 60 s on the development machine. Each
+run's steps (wall and CPU seconds, from ``--log-json``) are printed, and the result line names
+the step that took the most CPU.
 
 Run:  .venv/bin/python bench/bench_contacts.py [--cells 5000] [--contacts 200]
 """
 from __future__ import annotations
 
 import argparse
+import contextlib
+import json
 import shutil
 import tempfile
 import time
@@ -27,6 +31,7 @@ from osgeo import ogr
 
 import _sheets
 from _measure import load_line, machine_line, result_line, run_child, status_line, strikeline_command
+from bench_sheet import has_option, print_steps
 
 CELL_M = 5.0
 TARGET_S = 60.0
@@ -39,10 +44,35 @@ def trace_length_m(path: Path) -> float:
     return total
 
 
-def run(contacts: Path, dem: Path, out: Path):
-    r = run_child(strikeline_command() + ["run", "--contacts", str(contacts), "--dem", str(dem), "--out", str(out)])
+def largest_step(log: Path) -> str:
+    """The step of a ``--log-json`` file that took the most CPU, with its share of the run's CPU."""
+    steps, total = {}, 0.0
+    for line in log.read_text().splitlines():
+        with contextlib.suppress(ValueError):
+            e = json.loads(line)
+            if e.get("event") == "step_end":
+                steps[e["step"]] = e["cpu_s"]
+            elif e.get("event") == "end":
+                total = e.get("cpu_s") or 0.0
+    if not steps or total <= 0:
+        return ""
+    name = max(steps, key=steps.get)
+    return f"largest step: {name} {steps[name]:.1f} s CPU ({100 * steps[name] / total:.0f}% of the run's)"
+
+
+def run(contacts: Path, dem: Path, out: Path, *, log_json: bool):
+    """``strikeline run`` on one contacts layer, measured alone; each step's seconds printed from its
+    ``--log-json`` (where the command has it); the run and its largest step in a few words."""
+    log = out.with_suffix(".jsonl")
+    r = run_child(strikeline_command() + ["run", "--contacts", str(contacts), "--dem", str(dem), "--out", str(out)]
+                  + (["--quiet", "--log-json", str(log)] if log_json else []))
     shutil.rmtree(out, ignore_errors=True)
-    return r
+    print(f"  {contacts.name}: {r.wall_s:.1f} s wall, {r.cpu_s:.1f} s CPU", flush=True)
+    largest = ""
+    if log_json and log.exists():
+        print_steps(log)
+        largest = largest_step(log)
+    return r, largest
 
 
 def main(argv=None) -> int:
@@ -68,13 +98,16 @@ def main(argv=None) -> int:
         print(f"workload: {n:,} x {n:,} DEM at {CELL_M:g} m ({size_m / 1000:g} km square); one folded contact, "
               f"{length / 1000:.0f} km of trace, as {k} lines (reference: {n_whole} whole lines); "
               f"made in {time.perf_counter() - t0:.1f} s", flush=True)
-        ref = run(whole, dem, tmp / "out_whole")
-        many = run(pieces, dem, tmp / "out_pieces")
+        log_json = has_option("--log-json")
+        ref, _ = run(whole, dem, tmp / "out_whole", log_json=log_json)
+        many, largest = run(pieces, dem, tmp / "out_pieces", log_json=log_json)
     label = f"{k} contacts on a {n:,}^2 sheet end to end (strikeline run)"
     if many.returncode != 0:
         status_line(label, f"{'refused' if many.returncode == 2 else 'failed'}: {many.error_line()}")
         return 0
-    verdict = f"target < {TARGET_S:.0f} s: {'met' if many.wall_s < TARGET_S else 'NOT met'}"
+    verdict = "; ".join(t for t in (f"CPU {many.cpu_s:.1f} s", largest,
+                                    f"target < {TARGET_S:.0f} s: {'met' if many.wall_s < TARGET_S else 'NOT met'}")
+                        if t)
     if ref.returncode != 0:
         result_line(label, many, extra=f"{verdict}; reference failed: {ref.error_line()}")
     else:
