@@ -16,6 +16,8 @@ from strikeline.io.files import write_json_atomic
 from strikeline.pipeline import compute
 from strikeline.pipeline.outputs import write_report_file
 from strikeline.pipeline.progress import READING, WRITING
+from strikeline.pipeline.steps import surface_grid
+from strikeline.pipeline.workload import check_workload
 from strikeline.report.sentences import plain_answer
 
 from ..base import (
@@ -40,7 +42,7 @@ from ..inputs import (
 )
 from ..layers import qgis_crs
 from ..outputs import Table, add_outputs, write_raster, write_sink
-from ..params import extent_value, parameter, value, values
+from ..params import extent_value, option_names, parameter, value, values
 from ..styles import attach_style
 from .plane_attitude import NUMBERS, REF_EFRON, REF_WOODCOCK
 from .surface_model import REF_GCV, REF_SPLINE
@@ -154,6 +156,9 @@ class WholeChain(StrikelineAlgorithm):
                                            **self.options(parameters, context))
         # the extent is read in the run's CRS (the DEM's, else the contacts'), known once they are read
         opts = dataclasses.replace(opts, extent=extent_value(self, parameters, "extent", context, inputs.crs_wkt))
+        # compute's own size checks, first, in the words of this tool's parameters (not the command's flags);
+        # the grids stay in memory here (no output folder for blocks), as compute then checks them
+        check_workload(inputs, opts, grid=surface_grid(inputs, opts), names=option_names(self), auto_blocks=False)
         r = compute(inputs, opts, log=tracker.log, tracker=tracker)
         s = r.summary
         plane = s["plane"]

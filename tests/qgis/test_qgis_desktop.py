@@ -11,6 +11,7 @@ the whole chain's contours split at the ground, thickness by default, CRS from a
 from __future__ import annotations
 
 import math
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -264,14 +265,19 @@ def test_whole_chain_contours_are_split_at_the_ground(chain_run, sheet):
 
 
 def test_whole_chain_log_is_plain_lines(chain_run, sheet):
-    _, lines, _ = chain_run
+    res, lines, _ = chain_run
     text = "\n".join(lines)
-    for head in ("picks: ", "plane: dip ", "surface model: ", "flagged segments: ", "thickness: "):
-        assert any(line.startswith(head) for line in lines), (head, text)
-    ours = [ln for ln in lines if ln.split(":")[0] in ("picks", "plane", "surface model", "flagged segments",
-                                                       "thickness")]
+    # the report page's sentences (strikeline.report.sentences), the caution before them
+    heads = ("The contact dips ", "picks were taken along the mapped contacts", "The surface is modelled as ",
+             "contact segments of", "The unit's true thickness averages ")
+    for head in heads:
+        assert any(head in line for line in lines), (head, text)
+    ours = [ln for ln in lines if any(h in ln for h in heads)]
     assert not any("{" in ln or "}" in ln for ln in ours), ours
-    plane = next(ln for ln in lines if ln.startswith("plane: dip "))
+    plane = next(ln for ln in lines if ln.startswith("The contact dips "))
+    assert lines[lines.index(plane) - 1] == CAUTION
     # Source: truth.json - the demo plane's dip.
-    assert float(plane.split()[2].rstrip("°")) == pytest.approx(sheet["truth"]["dip_deg"], abs=0.5)
+    assert float(plane.split()[3].rstrip("°")) == pytest.approx(sheet["truth"]["dip_deg"], abs=0.5)
     assert lines[0] == CAUTION  # the caution first in the log too
+    # the dialog's default report destination (a temporary file) gets the page, named in the log
+    assert Path(res["report"]).is_file() and f"report: {res['report']}" in lines

@@ -234,3 +234,21 @@ def test_too_many_resamples_for_the_plane_tool_are_refused_before_any_draw(run, 
         run("planeattitude", {"PICKS": picks, "RESAMPLES": 10**9, "plane_attitudes": str(out)})
     assert str(exc.value) == str(lib.value) and "\n" not in str(exc.value)
     assert not out.exists()
+
+
+def test_the_whole_chains_size_checks_name_its_parameters(run, sheet):
+    """The run's size checks (strikeline.pipeline.workload.check_workload, the reference: the same
+    refusal the command line gives for --resamples) name the tool's parameter, not the flag."""
+    from qgis.core import QgsApplication
+
+    from strikeline.pipeline import RunOptions, compute, load_inputs
+
+    label = QgsApplication.processingRegistry().algorithmById("strikeline:modelcontact") \
+        .parameterDefinition("RESAMPLES").description()
+    opts = RunOptions(contacts=sheet["contacts"], dem=sheet["dem"], out="/nonexistent-out", resamples=10**9)
+    with pytest.raises(StrikelineError) as lib:
+        compute(load_inputs(opts), opts)
+    assert "--resamples" in str(lib.value)
+    with pytest.raises(QgsProcessingException) as exc:
+        run("modelcontact", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "RESAMPLES": 10**9, **OUTPUTS})
+    assert str(exc.value) == str(lib.value).replace("--resamples", f"the '{label}'")
