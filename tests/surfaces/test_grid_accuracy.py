@@ -4,7 +4,7 @@ the same smoothing on the diagonal, in the model's normalised coordinates.
 
 What is guaranteed: every cell evaluated in full ('full') holds the kernel sum to rounding; on the
 coarse lattice ('coarse') the bicubic spline differs from full evaluation by less than
-``tolerance_m`` at the check cells (data cells, random cells, centres of lattice cells), the
+``tolerance_m``, or by at most ``se_fraction`` of the model's standard error, at the check cells (data cells, random cells, centres of lattice cells), the
 largest error being reported. Elsewhere the bound is not proved; it is measured here at every
 cell inside the data's hull (where the surface is the spline itself, untapered).
 """
@@ -14,7 +14,7 @@ from scipy.interpolate import RBFInterpolator
 
 from strikeline.geometry.grid import Grid
 from strikeline.surfaces import fit_surface
-from strikeline.surfaces.model import GRID_TOLERANCE_M
+from strikeline.surfaces.model import GRID_SE_FRACTION, GRID_TOLERANCE_M
 
 #: Full evaluation against scipy: the same sums in another order (common practice: rounding of
 #: kernel sums of a few hundred terms of size ~1e3 m).
@@ -49,7 +49,7 @@ def _inside(m, grid):
 
 def test_full_evaluation_is_the_kernel_sum(spline_sheet):
     m, grid, ref = spline_sheet
-    z, rep = m.evaluate_grid(grid, tolerance_m=1e-12, return_report=True)
+    z, rep = m.evaluate_grid(grid, tolerance_m=1e-12, se_fraction=0.0, return_report=True)
     assert rep.method == "full"
     x, y, inside = _inside(m, grid)
     assert np.max(np.abs(z[inside] - ref(x, y))) < FULL_TOL_M
@@ -57,10 +57,21 @@ def test_full_evaluation_is_the_kernel_sum(spline_sheet):
 
 def test_coarse_evaluation_within_the_tolerance(spline_sheet):
     m, grid, ref = spline_sheet
-    z, rep = m.evaluate_grid(grid, return_report=True)
+    z, rep = m.evaluate_grid(grid, se_fraction=0.0, return_report=True)
     assert rep.method == "coarse" and rep.step_cells > 1
     assert rep.max_checked_error_m < GRID_TOLERANCE_M
     x, y, inside = _inside(m, grid)
     err = np.abs(z[inside] - ref(x, y))
     # measured at every cell inside the hull, not only at the check cells
     assert err.max() < GRID_TOLERANCE_M
+
+
+def test_coarse_evaluation_within_a_fraction_of_the_standard_error(spline_sheet):
+    m, grid, ref = spline_sheet
+    # a tolerance no lattice meets: only the standard-error bound can accept one
+    z, rep = m.evaluate_grid(grid, tolerance_m=1e-9, se_fraction=GRID_SE_FRACTION, return_report=True)
+    assert rep.method == "coarse" and 0 < rep.max_error_per_se <= GRID_SE_FRACTION
+    x, y, inside = _inside(m, grid)
+    err = np.abs(z[inside] - ref(x, y))
+    # measured at every cell inside the hull, against the standard error there
+    assert np.max(err / m.standard_error(x, y)) <= GRID_SE_FRACTION
