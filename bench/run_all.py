@@ -9,9 +9,9 @@ GDAL, scipy and shapely, the commit, the date and the load average at the start 
 A script that fails is a row saying so; the others still run.
 
 Sizes. Without options every workload runs at the size :data:`SUITE` gives it, chosen so that
-the suite takes about 20 minutes on a quiet machine of two cores (the estimate of each script, from
-the CPU seconds of earlier runs, is in :data:`SUITE`; each script's own time is printed with its
-rows): the whole-sheet series at 1,000^2 and 4,000^2 cells, the 200-contact sheet at 5,000^2, the
+the suite takes about 20 minutes on a quiet machine of two cores (a rough estimate for each script
+is in :data:`SUITE`: the CPU seconds of earlier runs under load where the README has them, a guess
+from the workload's size where not; each script's own time is printed after the table): the whole-sheet series at 1,000^2 and 4,000^2 cells, the 200-contact sheet at 5,000^2, the
 16-sheet batch of 500^2 sheets. ``--full`` adds the 12,000^2 sheet (about 15 minutes more);
 ``--huge`` the 30,000^2 sheet. ``--quick`` runs every script at its smallest size (a check that
 the suite works, not figures to quote); ``--only`` picks scripts by name. Any other
@@ -33,8 +33,8 @@ from _measure import RESULT, load_line, machine, machine_line
 
 HERE = Path(__file__).resolve().parent
 
-#: (script, arguments for the figures, arguments for --quick: its smallest size, estimated
-#: seconds on a quiet 2-core machine at the figures' size: the CPU seconds of earlier runs)
+#: (script, arguments for the figures, arguments for --quick: its smallest size, rough estimate of
+#: its seconds on a quiet 2-core machine at the figures' size)
 SUITE = (
     ("bench_picks.py", ["--repeat", "2"], ["--scale", "0.02", "--repeat", "1"], 60),
     ("bench_dipgrids.py", [], ["--size", "300", "--repeat", "1"], 30),
