@@ -18,6 +18,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 from osgeo import gdal
 
+from strikeline.budget import WINDOWED_BYTES_PER_CELL, budget_words, memory_budget_bytes, size_words
 from strikeline.errors import InputError, RasterReadError
 from strikeline.geometry.grid import Grid
 from strikeline.io._gdal import gdal_exceptions, gdal_message
@@ -224,11 +225,17 @@ def open_dem(path, *, label: str = "DEM", band: int = 1) -> DemFile:
         ds = open_raster(path, label=label)
         try:
             grid = checked_grid(ds, band, what=what, path=path)
+            rows, cols = grid.shape
+            need = float(rows) * float(cols) * WINDOWED_BYTES_PER_CELL
+            if need > memory_budget_bytes():  # refused before the pass over its cells (hours for such a file)
+                raise InputError(
+                    f"{what} has {cols} x {rows} cells, which need about {size_words(need)} even read by windows "
+                    f"and computed in blocks, more than this run's memory budget of {budget_words()}; clip it to "
+                    "the area of the contacts (gdalwarp -te) or coarsen it (gdalwarp -tr)")
             b = ds.GetRasterBand(band)
             dtype = gdal.GetDataTypeName(b.DataType)
             holes = HoleCount(grid.nodata)
             lo, hi, any_valid = np.inf, -np.inf, False
-            rows, cols = grid.shape
             step = max(1, STRIP_CELLS // max(cols, 1))
             for r0 in range(0, rows, step):
                 try:
