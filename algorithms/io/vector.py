@@ -471,6 +471,42 @@ def _ogr_field_type(arr: np.ndarray):
     return ogr.OFTString, None
 
 
+def _field_column(arr: np.ndarray) -> tuple:
+    """One field's values as plain Python objects, with the OGR setter that writes them.
+
+    Returns ``(setter_name, values)``: a float column is written with ``SetField`` (a double) and its
+    non-finite values become ``None`` (the field is left unset, a NULL in the file); integers and
+    booleans with ``SetFieldInteger64``; anything else with ``SetFieldString``, ``None`` left unset.
+    """
+    if arr.dtype.kind == "f":
+        vals = arr.astype(float)
+        out = vals.tolist()
+        for i in np.flatnonzero(~np.isfinite(vals)).tolist():
+            out[i] = None
+        return "SetField", out
+    if arr.dtype.kind in "iub":
+        return "SetFieldInteger64", arr.astype(np.int64).tolist()
+    return "SetFieldString", [None if v is None else str(v) for v in arr.tolist()]
+
+
+def _write_features(lyr, geoms: np.ndarray, columns: list) -> None:
+    """Create one feature per geometry, its fields set by index from ``columns`` (``_field_column``)."""
+    if not len(geoms):
+        return
+    defn = lyr.GetLayerDefn()
+    wkbs = shapely.to_wkb(geoms, output_dimension=3)
+    setters = [(j, getattr(ogr.Feature, name), vals) for j, (name, vals) in enumerate(columns)]
+    make, from_wkb, create = ogr.Feature, ogr.CreateGeometryFromWkb, lyr.CreateFeature
+    for i, wkb in enumerate(wkbs.tolist()):
+        feat = make(defn)
+        feat.SetGeometryDirectly(from_wkb(wkb))
+        for j, setter, vals in setters:
+            v = vals[i]
+            if v is not None:
+                setter(feat, j, v)
+        create(feat)
+
+
 def write_gpkg(path, layers: list[LayerOut], srs_wkt: str) -> None:
     """Write layers into a new GeoPackage (written under a temporary name, checked, then renamed).
 
@@ -499,7 +535,7 @@ def write_gpkg(path, layers: list[LayerOut], srs_wkt: str) -> None:
             ds = drv.CreateDataSource(tmp)
             for spec in layers:
                 lyr = ds.CreateLayer(spec.name, srs if srs_wkt else None, GEOMETRY_TYPES[spec.geometry_type])
-                kinds = {}
+                columns = []
                 for fname, arr in spec.fields.items():
                     arr = np.asarray(arr)
                     ftype, subtype = _ogr_field_type(arr)
@@ -507,23 +543,9 @@ def write_gpkg(path, layers: list[LayerOut], srs_wkt: str) -> None:
                     if subtype is not None:
                         fd.SetSubType(subtype)
                     lyr.CreateField(fd)
-                    kinds[fname] = arr
-                defn = lyr.GetLayerDefn()
+                    columns.append(_field_column(arr))
                 lyr.StartTransaction()
-                wkbs = shapely.to_wkb(spec.geoms, output_dimension=3) if len(spec.geoms) else []
-                for i, wkb in enumerate(wkbs):
-                    feat = ogr.Feature(defn)
-                    feat.SetGeometry(ogr.CreateGeometryFromWkb(wkb))
-                    for fname, arr in kinds.items():
-                        v = arr[i]
-                        if arr.dtype.kind == "f":
-                            if np.isfinite(v):
-                                feat.SetField(fname, float(v))
-                        elif arr.dtype.kind in "iub":
-                            feat.SetField(fname, int(v))
-                        elif v is not None:
-                            feat.SetField(fname, str(v))
-                    lyr.CreateFeature(feat)
+                _write_features(lyr, spec.geoms, columns)
                 if lyr.CommitTransaction() != ogr.OGRERR_NONE:  # raises in exception mode; checked anyway
                     raise RuntimeError(f"the commit of layer '{spec.name}' failed")
             lyr = None
