@@ -79,18 +79,26 @@ def _plain_axes(ax) -> None:
     ax.set_aspect("equal")
 
 
-def _line_xy(geom):
-    """The parts of a (multi)line as coordinate arrays."""
-    parts = shapely.get_parts(geom)
-    return [np.asarray(shapely.get_coordinates(p))[:, :2] for p in parts]
+def _line_parts(geoms) -> list:
+    """The parts of (multi)lines as 2-D coordinate arrays, one per part, in order."""
+    parts = shapely.get_parts(np.asarray(geoms, dtype=object))
+    xy, which = shapely.get_coordinates(parts, return_index=True)
+    return np.split(xy, np.flatnonzero(np.diff(which)) + 1) if len(xy) else []
 
 
-def _draw_lines(ax, geoms, **kw):
-    first = True
-    for g in geoms:
-        for xy in _line_xy(g):
-            ax.plot(xy[:, 0], xy[:, 1], **(kw if first else {k: v for k, v in kw.items() if k != "label"}))
-            first = False
+def _draw_lines(ax, geoms, *, color, lw, zorder, ls="solid", solid_capstyle="projecting", label=None):
+    """Every part of ``geoms`` as one :class:`~matplotlib.collections.LineCollection` (one artist,
+    one legend entry), drawn as ``ax.plot`` would draw each line: the same colour, width, dashes
+    and zorder, :class:`~matplotlib.lines.Line2D`'s default caps (projecting when solid, butt
+    when dashed) and round joins. Nothing is added for no geometries."""
+    from matplotlib.collections import LineCollection
+
+    if not len(geoms):
+        return
+    solid = ls in ("solid", "-")
+    ax.add_collection(LineCollection(_line_parts(geoms), colors=color, linewidths=lw, linestyles=ls,
+                                     capstyle=solid_capstyle if solid else "butt", joinstyle="round",
+                                     zorder=zorder, label=label))
 
 
 def hillshade(ground: np.ndarray, cell_m: float) -> np.ndarray:
