@@ -90,7 +90,8 @@ def _draw_lines(ax, geoms, *, color, lw, zorder, ls="solid", solid_capstyle="pro
     """Every part of ``geoms`` as one :class:`~matplotlib.collections.LineCollection` (one artist,
     one legend entry), drawn as ``ax.plot`` would draw each line: the same colour, width, dashes
     and zorder, :class:`~matplotlib.lines.Line2D`'s default caps (projecting when solid, butt
-    when dashed) and round joins. Nothing is added for no geometries."""
+    when dashed) and round joins. The legend entry is an empty line with the same style, so the
+    legend reads as it would for ``ax.plot``. Nothing is added for no geometries."""
     from matplotlib.collections import LineCollection
 
     if not len(geoms):
@@ -98,7 +99,9 @@ def _draw_lines(ax, geoms, *, color, lw, zorder, ls="solid", solid_capstyle="pro
     solid = ls in ("solid", "-")
     ax.add_collection(LineCollection(_line_parts(geoms), colors=color, linewidths=lw, linestyles=ls,
                                      capstyle=solid_capstyle if solid else "butt", joinstyle="round",
-                                     zorder=zorder, label=label))
+                                     zorder=zorder))
+    if label is not None:
+        ax.plot([], [], color=color, lw=lw, ls=ls, solid_capstyle=solid_capstyle, zorder=zorder, label=label)
 
 
 def hillshade(ground: np.ndarray, cell_m: float) -> np.ndarray:
