@@ -122,3 +122,18 @@ def test_dem_resampled_from_its_window_is_gdals_warp_of_the_whole(cell_factor, i
     assert np.array_equal(np.isnan(got), np.isnan(want))
     assert np.allclose(got, want, rtol=0.0, atol=1e-9, equal_nan=True)
 
+
+def test_fold_sheet_with_map_units_from_dem_windows(tmp_path):
+    """The map units read the window of the DEM under their polygons (its own grid, whose origin
+    is a whole number of cells from the DEM's: on this sheet's round coordinates the samples are
+    the whole DEM's, so the files are the same byte for byte)."""
+    from helpers import UNIT_OPTS, write_fold_units
+
+    fold = DEMO.parent / "fold"
+    units = write_fold_units(tmp_path / "units.gpkg") or tmp_path / "units.gpkg"
+    mem, win = _run_windowed_and_whole(tmp_path, {
+        "contacts": str(fold / "contacts.gpkg"), "dem": str(fold / "dem.tif"), "map_units": str(units),
+        "unit_field": UNIT_OPTS[1], "units_above": UNIT_OPTS[3], "units_below": UNIT_OPTS[5]}, block=(64, 48))
+    _assert_same_outputs(mem, win)
+    summary = json.loads((win / "summary.json").read_text())
+    assert summary["map_units"]["n_points"] > 0
