@@ -56,3 +56,20 @@ def test_typical_gap_is_the_median_distance_over_the_lattice_inside():
     inside = q[Delaunay(p).find_simplex(q) >= 0]
     expected = float(np.median(cKDTree(p).query(inside)[0]))
     assert typical_gap_m(p) == expected
+
+
+def test_inside_triangulation_falls_back_to_find_simplex_when_geos_sees_a_conflict(monkeypatch):
+    # The demo sheet's picks made GEOS's coverage union report a "side location conflict" among
+    # nearly flat triangles; the answer must then be scipy's own, not an internal failure.
+    import shapely
+
+    def conflict(*args, **kwargs):
+        raise shapely.errors.GEOSException("TopologyException: side location conflict")
+
+    monkeypatch.setattr(shapely, "coverage_union_all", conflict)
+    p = np.unique(_layouts()["picks along curved lines"], axis=0)
+    q = _lattice(p)
+    # Source: scipy.spatial.Delaunay.find_simplex (scipy's own point location, -1 outside)
+    expected = Delaunay(p).find_simplex(q) >= 0
+    assert np.array_equal(inside_triangulation(Delaunay(p), q), expected)
+    assert 0 < expected.sum() < len(q)
