@@ -23,6 +23,7 @@ import time
 
 import numpy as np
 import shapely
+from _measure import load_line, machine_line, measure, result_line
 
 from strikeline.geometry.grid import Grid
 from strikeline.surfaces import fit_surface
@@ -61,6 +62,8 @@ def main(argv=None):
     extent = n * CELL_M
     grid = Grid((400_000.0, CELL_M, 0.0, 5_300_000.0 + extent, 0.0, -CELL_M), (n, n))
     xyz = contact_picks(extent, np.random.default_rng(7))
+    machine_line()
+    load_line("start")
     print(f"workload: {n} x {n} grid of {CELL_M:g} m cells; {len(xyz)} picks on 8 lines; "
           f"{os.cpu_count()} CPUs, load {os.getloadavg()[0]:.1f}")
     for kind in ("plane", "spline"):
@@ -75,11 +78,17 @@ def main(argv=None):
                 X, Y = np.meshgrid(xs, ys[r0:r0 + step])
                 out[r0:r0 + step] = model.standard_error(X, Y)
             return out
-        old, t_old, c_old = timed(previous)
-        new, t_new, c_new = timed(lambda: model.standard_error_grid(grid))
-        print(f"  standard-error grid: per-cell KD-tree {t_old:6.2f} s (cpu {c_old:6.2f}); "
-              f"standard_error_grid {t_new:6.2f} s (cpu {c_new:6.2f}); {t_old / t_new:.1f}x; "
-              f"identical: {np.array_equal(old, new)}")
+        old, m_old = measure(previous)
+        new, m_new = measure(lambda: model.standard_error_grid(grid))
+        same = np.array_equal(old, new)
+        print(f"  standard-error grid: per-cell KD-tree {m_old.wall_s:6.2f} s (cpu {m_old.cpu_s:6.2f}); "
+              f"standard_error_grid {m_new.wall_s:6.2f} s (cpu {m_new.cpu_s:6.2f}); "
+              f"{m_old.wall_s / m_new.wall_s:.1f}x; identical: {same}")
+        result_line(f"standard-error grid of a {kind} surface, {n:,}^2 cells, {len(xyz):,} picks "
+                    f"(standard_error_grid)", m_new, ratio=m_new.wall_s / m_old.wall_s,
+                    reference=(f"of the per-cell formula with one KD-tree search per cell "
+                               f"({m_old.wall_s:.2f} s, {m_old.cpu_s:.2f} s CPU)"),
+                    extra=f"values identical: {same}")
         z = model.evaluate_grid(grid)
         from strikeline.io.contours import contour_lines
         geoms, _ = contour_lines(z, grid, interval_m=10.0)
@@ -89,6 +98,7 @@ def main(argv=None):
         print(f"  extrapolation flag at {len(pts)} contour points: unbounded {t_old:6.2f} s; bounded "
               f"{t_new:6.2f} s; {t_old / t_new:.1f}x; identical: {np.array_equal(old_f, new_f)} "
               f"({old_f.mean():.0%} extrapolated)")
+    load_line("end")
 
 
 if __name__ == "__main__":
