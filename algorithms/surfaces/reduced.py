@@ -213,19 +213,32 @@ class _FixedSmoothing:
         return C, D
 
     def solver(self):
-        """``b -> M⁻¹ b`` for the bordered pick system ``[[K + nλI, T], [Tᵀ, 0]]`` (as
-        :func:`strikeline.surfaces.spline._spectral_solver`, with ``B⁻¹`` from the factor)."""
-        red, n, nlam = self.red, self.n, self.nlam
+        """``b -> M⁻¹ b`` for the bordered pick system ``[[K + nλI, T], [Tᵀ, 0]]``
+        (:func:`bordered_solver`, with ``B⁻¹`` from the factor)."""
+        red = self.red
+        return bordered_solver(red.Q1, red.R1, red.K, self.nlam,
+                               lambda v: red.q2(self._solve(red.q2t(v))))
 
-        def solve(b):
-            b = np.asarray(b, dtype=float)
-            flat = b.ndim == 1
-            b = b.reshape(n + 3, -1)
-            r, t = b[:n], b[n:]
-            c = red.Q1 @ linalg.solve_triangular(red.R1, t, trans="T")
-            c = c + red.q2(self._solve(red.q2t(r - red.K @ c - nlam * c)))
-            d = linalg.solve_triangular(red.R1, red.Q1.T @ (r - red.K @ c - nlam * c))
-            out = np.vstack([c, d])
-            return out[:, 0] if flat else out
 
-        return solve
+def bordered_solver(Q1, R1, K, nlam, null_solve):
+    """``b -> M⁻¹ b`` for the pick system ``M = [[K + nλI, T], [Tᵀ, 0]]`` with ``T = Q₁R``.
+
+    The solution of ``(K + nλI) c + T d = r``, ``Tᵀc = t`` is ``c = c₁ + Q₂B⁻¹Q₂ᵀ (r − (K + nλI)
+    c₁)`` with ``c₁ = Q₁R⁻ᵀt`` and ``B = Q₂ᵀ(K + nλI)Q₂``, and ``d = R⁻¹Q₁ᵀ(r − (K + nλI) c)``;
+    ``null_solve(v)`` applies ``Q₂B⁻¹Q₂ᵀ`` (from the spectrum or from a Cholesky factor):
+    ``O(n²)`` per right-hand side, no factorisation beyond the one already made.
+    """
+    n = K.shape[0]
+
+    def solve(b):
+        b = np.asarray(b, dtype=float)
+        flat = b.ndim == 1
+        b = b.reshape(n + 3, -1)
+        r, t = b[:n], b[n:]
+        c = Q1 @ linalg.solve_triangular(R1, t, trans="T")
+        c = c + null_solve(r - K @ c - nlam * c)
+        d = linalg.solve_triangular(R1, Q1.T @ (r - K @ c - nlam * c))
+        out = np.vstack([c, d])
+        return out[:, 0] if flat else out
+
+    return solve

@@ -48,7 +48,7 @@ from strikeline.stats import gcv_from_spectrum
 from strikeline.surfaces.bounded import _tps_bounded
 from strikeline.surfaces.data import _Data
 from strikeline.surfaces.kernel import _TPS, _pairwise_r2, tps_kernel
-from strikeline.surfaces.reduced import _FixedSmoothing, _Reduced
+from strikeline.surfaces.reduced import _FixedSmoothing, _Reduced, bordered_solver
 
 
 class _Spectrum:
@@ -300,21 +300,9 @@ def _spectral_solver(spec: _Spectrum, nlam):
     with ``c₁ = Q₁R⁻ᵀt``, and ``d = R⁻¹Q₁ᵀ(r − (K + nλI) c)``: ``O(n²)`` per right-hand side,
     no factorisation beyond the one GCV already made.
     """
-    n = spec.n
     scale = 1.0 / (spec.mu + nlam)
-
-    def solve(b):
-        b = np.asarray(b, dtype=float)
-        flat = b.ndim == 1
-        b = b.reshape(n + 3, -1)
-        r, t = b[:n], b[n:]
-        c = spec.Q1 @ linalg.solve_triangular(spec.R1, t, trans="T")
-        c = c + spec.Q2U @ (scale[:, None] * (spec.Q2U.T @ (r - spec.K @ c - nlam * c)))
-        d = linalg.solve_triangular(spec.R1, spec.Q1.T @ (r - spec.K @ c - nlam * c))
-        out = np.vstack([c, d])
-        return out[:, 0] if flat else out
-
-    return solve
+    return bordered_solver(spec.Q1, spec.R1, spec.K, nlam,
+                           lambda v: spec.Q2U @ (scale[:, None] * (spec.Q2U.T @ v)))
 
 
 def _kfold_lambda(data: _Data, folds, lam_grid):
