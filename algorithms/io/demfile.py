@@ -22,7 +22,7 @@ from strikeline.budget import WINDOWED_BYTES_PER_CELL, budget_words, memory_budg
 from strikeline.errors import InputError, RasterReadError
 from strikeline.geometry.grid import Grid
 from strikeline.io._gdal import gdal_exceptions, gdal_message
-from strikeline.io.raster import HoleCount, as_float, check_holes, checked_grid, open_raster
+from strikeline.io.raster import HoleCount, as_float, check_holes, checked_band, open_raster
 from strikeline.picks.dem import sample_bilinear
 
 #: Cells read at once by the strips of the check at opening and of the samplers (about 32 MiB as
@@ -220,37 +220,31 @@ def open_dem(path, *, label: str = "DEM", band: int = 1) -> DemFile:
         As :func:`strikeline.io.raster.read_raster`, with its messages.
     """
     path = os.fspath(path)
-    what = f"{label} '{path}'"
-    with gdal_exceptions():
-        ds = open_raster(path, label=label)
-        try:
-            grid = checked_grid(ds, band, what=what, path=path)
-            rows, cols = grid.shape
-            need = float(rows) * float(cols) * WINDOWED_BYTES_PER_CELL
-            if need > memory_budget_bytes():  # refused before the pass over its cells (hours for such a file)
-                raise InputError(
-                    f"{what} has {cols} x {rows} cells, which need about {size_words(need)} even read by windows "
-                    f"and computed in blocks, more than this run's memory budget of {budget_words()}; clip it to "
-                    "the area of the contacts (gdalwarp -te) or coarsen it (gdalwarp -tr)")
-            b = ds.GetRasterBand(band)
-            dtype = gdal.GetDataTypeName(b.DataType)
-            holes = HoleCount(grid.nodata)
-            lo, hi, any_valid = np.inf, -np.inf, False
-            step = max(1, STRIP_CELLS // max(cols, 1))
-            for r0 in range(0, rows, step):
-                try:
-                    raw = b.ReadAsArray(0, r0, cols, min(step, rows - r0))
-                except RuntimeError as exc:
-                    raise RasterReadError(f"{what}: GDAL could not read band {band} ({gdal_message(exc)})") from None
-                b.FlushCache()
-                holes.add(np.asarray(raw, dtype=np.float64))
-                strip = as_float(raw, grid.nodata)
-                if np.isfinite(strip).any():
-                    any_valid = True
-                    lo, hi = min(lo, float(np.nanmin(strip))), max(hi, float(np.nanmax(strip)))
-                del raw, strip
-        finally:
-            ds = None
+    with checked_band(path, band=band, label=label) as (b, grid, what):
+        rows, cols = grid.shape
+        need = float(rows) * float(cols) * WINDOWED_BYTES_PER_CELL
+        if need > memory_budget_bytes():  # refused before the pass over its cells (hours for such a file)
+            raise InputError(
+                f"{what} has {cols} x {rows} cells, which need about {size_words(need)} even read by windows "
+                f"and computed in blocks, more than this run's memory budget of {budget_words()}; clip it to "
+                "the area of the contacts (gdalwarp -te) or coarsen it (gdalwarp -tr)")
+        dtype = gdal.GetDataTypeName(b.DataType)
+        holes = HoleCount(grid.nodata)
+        lo, hi, any_valid = np.inf, -np.inf, False
+        step = max(1, STRIP_CELLS // max(cols, 1))
+        for r0 in range(0, rows, step):
+            try:
+                raw = b.ReadAsArray(0, r0, cols, min(step, rows - r0))
+            except RuntimeError as exc:
+                raise RasterReadError(f"{what}: GDAL could not read band {band} ({gdal_message(exc)})") from None
+            b.FlushCache()
+            holes.add(np.asarray(raw, dtype=np.float64))
+            strip = as_float(raw, grid.nodata)
+            if np.isfinite(strip).any():
+                any_valid = True
+                lo, hi = min(lo, float(np.nanmin(strip))), max(hi, float(np.nanmax(strip)))
+            del raw, strip
+        del b
     check_holes(holes.result(), grid.nodata, what=what, path=path)
     if not any_valid:
         raise InputError(f"{what} holds no valid cell (every cell is nodata); give a raster with data")

@@ -6,6 +6,7 @@ Rasters come back as ``(array, grid)``: a float64 array with NaN for nodata and 
 from __future__ import annotations
 
 import os
+from contextlib import contextmanager
 
 import numpy as np
 from osgeo import gdal
@@ -40,34 +41,44 @@ def read_raster(path, *, label: str = "raster", band: int = 1) -> tuple[np.ndarr
         The raster has no CRS, or its CRS is geographic or not in metres.
     """
     path = os.fspath(path)
+    with checked_band(path, band=band, label=label) as (b, grid, what):
+        gt, shape, wkt, nodata = grid.transform, grid.shape, grid.crs_wkt, grid.nodata
+        need = shape[0] * shape[1] * (gdal.GetDataTypeSize(b.DataType) // 8 + 16)
+        if need > memory_budget_bytes():
+            raise InputError(
+                f"{what} has {shape[1]} x {shape[0]} cells, which need about {size_words(need)} to read, "
+                f"more than this run's memory budget of {budget_words()}; clip it to the area of the "
+                "contacts (gdalwarp -te) or coarsen it (gdalwarp -tr)"
+            )
+        try:
+            # the band's own type (float64 once, in raster_from_array); tiles decoded on every CPU
+            previous = gdal.GetThreadLocalConfigOption("GDAL_NUM_THREADS", None)
+            gdal.SetThreadLocalConfigOption("GDAL_NUM_THREADS", "ALL_CPUS")
+            try:
+                arr = b.ReadAsArray()
+            finally:
+                gdal.SetThreadLocalConfigOption("GDAL_NUM_THREADS", previous)
+        except RuntimeError as exc:
+            raise RasterReadError(f"{what}: GDAL could not read band {band} ({gdal_message(exc)})") from None
+        del b
+    return raster_from_array(arr, _grid(gt, shape, wkt, nodata, what=what), what=what, crs_checked=True,
+                             path=path)
+
+
+@contextmanager
+def checked_band(path, *, band: int = 1, label: str = "raster"):
+    """``(band object, checked Grid, "label 'path'")`` of a raster opened read-only, with
+    :func:`checked_grid`'s checks and messages, inside ``gdal_exceptions()``; the dataset is
+    released when the block ends (callers drop the band object before it ends)."""
+    path = os.fspath(path)
     what = f"{label} '{path}'"
     with gdal_exceptions():
         ds = open_raster(path, label=label)
         try:
             grid = checked_grid(ds, band, what=what, path=path)
-            gt, shape, wkt, nodata = grid.transform, grid.shape, grid.crs_wkt, grid.nodata
-            b = ds.GetRasterBand(band)
-            need = shape[0] * shape[1] * (gdal.GetDataTypeSize(b.DataType) // 8 + 16)
-            if need > memory_budget_bytes():
-                raise InputError(
-                    f"{what} has {shape[1]} x {shape[0]} cells, which need about {size_words(need)} to read, "
-                    f"more than this run's memory budget of {budget_words()}; clip it to the area of the "
-                    "contacts (gdalwarp -te) or coarsen it (gdalwarp -tr)"
-                )
-            try:
-                # the band's own type (float64 once, in raster_from_array); tiles decoded on every CPU
-                previous = gdal.GetThreadLocalConfigOption("GDAL_NUM_THREADS", None)
-                gdal.SetThreadLocalConfigOption("GDAL_NUM_THREADS", "ALL_CPUS")
-                try:
-                    arr = b.ReadAsArray()
-                finally:
-                    gdal.SetThreadLocalConfigOption("GDAL_NUM_THREADS", previous)
-            except RuntimeError as exc:
-                raise RasterReadError(f"{what}: GDAL could not read band {band} ({gdal_message(exc)})") from None
+            yield ds.GetRasterBand(band), grid, what
         finally:
             ds = None
-    return raster_from_array(arr, _grid(gt, shape, wkt, nodata, what=what), what=what, crs_checked=True,
-                             path=path)
 
 
 def open_raster(path, *, label: str = "raster"):
