@@ -11,8 +11,10 @@ array holds. Memory is one window, whatever the DEM's size.
 """
 from __future__ import annotations
 
+import contextlib
 import os
 import threading
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -33,6 +35,39 @@ CACHE_CELLS = 1 << 24
 #: GDAL's exception mode is process-wide (strikeline.io._gdal): windows read on several threads
 #: (the blocks of a band) take turns.
 _READ_LOCK = threading.Lock()
+#: Threads on which GDAL decodes the blocks of one read (GDAL 3.6's multithreaded GeoTIFF decoding,
+#: its ``GDAL_NUM_THREADS`` option, taken when the file is opened): the machine's cores, at most 2.
+DECODE_THREADS = max(1, min(2, os.cpu_count() or 1))
+
+
+@contextlib.contextmanager
+def decode_threads(n: int | None = None):
+    """Within the block, rasters opened by this thread decode a read's compressed blocks on ``n``
+    threads (default :data:`DECODE_THREADS`): GDAL's ``GDAL_NUM_THREADS`` set as a thread-local
+    configuration option, the caller's value restored after. GDAL's GeoTIFF driver reads the
+    option when it opens the file and uses it for reads that cross several blocks (GDAL 3.6 NEWS:
+    multithreaded decoding); the values read do not depend on it."""
+    name = "GDAL_NUM_THREADS"
+    previous = gdal.GetThreadLocalConfigOption(name, None)
+    gdal.SetThreadLocalConfigOption(name, str(max(1, int(n if n is not None else DECODE_THREADS))))
+    try:
+        yield
+    finally:
+        gdal.SetThreadLocalConfigOption(name, previous)
+
+
+def strip_rows(cols: int, block_rows: int, *, cells: int | None = None) -> int:
+    """Rows of a strip of about ``cells`` cells (default :data:`STRIP_CELLS`) of a band ``cols``
+    wide whose blocks are ``block_rows`` high: a whole number of block rows when a strip holds
+    one or more, so that no block is decoded twice (each strip's blocks leave GDAL's cache after
+    it: a strip ending inside a block row would decode that row again for the next).
+
+    >>> strip_rows(8000, 256), strip_rows(8000, 1), strip_rows(100_000, 256)
+    (512, 524, 41)
+    """
+    rows = max(1, (STRIP_CELLS if cells is None else int(cells)) // max(int(cols), 1))
+    b = max(1, int(block_rows))
+    return rows // b * b if rows >= b else rows
 
 
 @dataclass(frozen=True)
@@ -101,7 +136,7 @@ class DemFile:
         last = self._last[0]
         if last is not None and last[0] <= r0 and r1 <= last[1] and last[2] <= c0 and c1 <= last[3]:
             return last[4][r0 - last[0]:r1 - last[0], c0 - last[2]:c1 - last[2]].copy()
-        with _READ_LOCK, gdal_exceptions():
+        with _READ_LOCK, gdal_exceptions(), decode_threads():
             ds = open_raster(self.path, label=self.label)
             try:
                 b = ds.GetRasterBand(self.band)
@@ -210,9 +245,11 @@ def window_grid(dem: DemFile, r0: int, r1: int, c0: int, c1: int) -> Grid:
 def open_dem(path, *, label: str = "DEM", band: int = 1) -> DemFile:
     """Check a raster as :func:`strikeline.io.raster.read_raster` does and leave it in its file.
 
-    The band is read once in strips of rows (each dropped from GDAL's block cache after) to refuse
-    undeclared nodata markers and a band without a valid cell, and to find its lowest and highest
-    value; memory is one strip whatever the raster's size.
+    The band is read once in strips of whole block rows (each dropped from GDAL's block cache
+    after) to refuse undeclared nodata markers and a band without a valid cell, and to find its
+    lowest and highest value; memory is two strips whatever the raster's size. GDAL decodes each
+    strip's blocks on :data:`DECODE_THREADS` threads (:func:`decode_threads`) while the strip
+    before is checked on this one.
 
     Raises
     ------
@@ -220,7 +257,7 @@ def open_dem(path, *, label: str = "DEM", band: int = 1) -> DemFile:
         As :func:`strikeline.io.raster.read_raster`, with its messages.
     """
     path = os.fspath(path)
-    with checked_band(path, band=band, label=label) as (b, grid, what):
+    with decode_threads(), checked_band(path, band=band, label=label) as (b, grid, what):
         rows, cols = grid.shape
         need = float(rows) * float(cols) * WINDOWED_BYTES_PER_CELL
         if need > memory_budget_bytes():  # refused before the pass over its cells (hours for such a file)
@@ -231,20 +268,37 @@ def open_dem(path, *, label: str = "DEM", band: int = 1) -> DemFile:
         dtype = gdal.GetDataTypeName(b.DataType)
         holes = HoleCount(grid.nodata)
         lo, hi, any_valid = np.inf, -np.inf, False
-        step = max(1, STRIP_CELLS // max(cols, 1))
-        for r0 in range(0, rows, step):
+        step = strip_rows(cols, b.GetBlockSize()[1])
+
+        def read(source, r0):
             try:
-                raw = b.ReadAsArray(0, r0, cols, min(step, rows - r0))
+                raw = source.ReadAsArray(0, r0, cols, min(step, rows - r0))
             except RuntimeError as exc:
                 raise RasterReadError(f"{what}: GDAL could not read band {band} ({gdal_message(exc)})") from None
-            b.FlushCache()
-            holes.add(np.asarray(raw, dtype=np.float64))
-            strip = as_float(raw, grid.nodata)
-            if np.isfinite(strip).any():
-                any_valid = True
-                lo, hi = min(lo, float(np.nanmin(strip))), max(hi, float(np.nanmax(strip)))
-            del raw, strip
-        del b
+            source.FlushCache()
+            return raw
+
+        # one strip read ahead on a second thread (GDAL decodes without Python's lock) while this
+        # one counts the strip before: the band is only ever used by that thread
+        with ThreadPoolExecutor(max_workers=1, thread_name_prefix="strikeline-dem-check") as pool:
+            starts = list(range(0, rows, step))
+            ahead = pool.submit(read, b, starts[0])
+            try:
+                for k in range(len(starts)):
+                    raw = ahead.result()
+                    ahead = pool.submit(read, b, starts[k + 1]) if k + 1 < len(starts) else None
+                    holes.add(np.asarray(raw, dtype=np.float64))
+                    strip = as_float(raw, grid.nodata)
+                    if np.isfinite(strip).any():
+                        any_valid = True
+                        lo, hi = min(lo, float(np.nanmin(strip))), max(hi, float(np.nanmax(strip)))
+                    del raw, strip
+            finally:
+                if ahead is not None:
+                    ahead.cancel()
+                    with contextlib.suppress(BaseException):
+                        ahead.result()  # a read under way ends before the band is released
+        del b, ahead
     check_holes(holes.result(), grid.nodata, what=what, path=path)
     if not any_valid:
         raise InputError(f"{what} holds no valid cell (every cell is nodata); give a raster with data")

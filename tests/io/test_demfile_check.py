@@ -1,0 +1,110 @@
+"""The check at opening of a DEM left in its file: strips of whole block rows read one ahead on a
+second thread, GDAL's multithreaded decoding scoped to the reads.
+
+References: GDAL's own ReadAsArray of the whole band (osgeo.gdal 3.6) for the values and the
+lowest/highest cell; GDAL's block size (Band.GetBlockSize) for the strips; GDAL 3.6's
+GetThreadLocalConfigOption for the scope of GDAL_NUM_THREADS.
+"""
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from osgeo import gdal, osr
+
+import strikeline.io.demfile as demfile
+from strikeline.errors import RasterReadError
+from strikeline.io._gdal import gdal_exceptions
+from strikeline.io.demfile import decode_threads, open_dem, strip_rows
+
+
+def _dem(path, z, *, block=16, nodata=-9999.0):
+    srs = osr.SpatialReference()
+    srs.ImportFromEPSG(32633)
+    with gdal_exceptions():
+        ds = gdal.GetDriverByName("GTiff").Create(
+            str(path), z.shape[1], z.shape[0], 1, gdal.GDT_Float32,
+            options=["COMPRESS=DEFLATE", "TILED=YES", f"BLOCKXSIZE={block}", f"BLOCKYSIZE={block}"])
+        ds.SetGeoTransform((400000.0, 5.0, 0.0, 5301500.0, 0.0, -5.0))
+        ds.SetProjection(srs.ExportToWkt())
+        ds.GetRasterBand(1).SetNoDataValue(nodata)
+        ds.GetRasterBand(1).WriteArray(z)
+        ds = None
+    return str(path)
+
+
+def _gdal_whole(path):
+    """The band as GDAL reads it whole (the reference)."""
+    with gdal_exceptions():
+        ds = gdal.Open(path)
+        a = ds.GetRasterBand(1).ReadAsArray().astype(float)
+        ds = None
+    return a
+
+
+def test_strip_rows_are_whole_block_rows():
+    # common practice: a strip of n block rows of height b is n * b rows
+    assert strip_rows(100, 16, cells=100 * 50) == 48
+    assert strip_rows(100, 16, cells=100 * 10) == 10  # less than a block row: as many rows as fit
+    assert strip_rows(100, 1, cells=100 * 50) == 50
+    assert strip_rows(0, 16, cells=10) == 10
+
+
+@pytest.mark.parametrize("strip_cells", [97 * 3, 97 * 40, 97 * 1000])
+def test_check_reads_whole_block_rows_and_finds_gdals_extremes(tmp_path, monkeypatch, strip_cells):
+    rng = np.random.default_rng(7)
+    z = (300 + 500 * rng.random((83, 97))).astype(np.float32)
+    z[5:9, 10:30] = -9999.0  # declared nodata
+    path = _dem(tmp_path / "dem.tif", z)
+    whole = _gdal_whole(path)
+    monkeypatch.setattr(demfile, "STRIP_CELLS", strip_cells)
+    starts = []
+    real = gdal.Band.ReadAsArray
+
+    def spy(self, xoff=0, yoff=0, *args, **kwargs):
+        starts.append(yoff)
+        return real(self, xoff, yoff, *args, **kwargs)
+
+    monkeypatch.setattr(gdal.Band, "ReadAsArray", spy)
+    d = open_dem(path)
+    valid = whole != -9999.0
+    assert d.minimum == whole[valid].min() and d.maximum == whole[valid].max()
+    step = strip_rows(97, 16, cells=strip_cells)
+    assert starts == list(range(0, 83, step))
+    if step >= 16:
+        assert all(s % 16 == 0 for s in starts)  # no block row is decoded twice
+
+
+def test_undeclared_marker_found_in_a_later_strip(tmp_path, monkeypatch):
+    z = np.full((64, 40), 500.0, dtype=np.float32)
+    z[60, 3] = -32768.0  # a marker the file does not declare, in the last strip
+    path = _dem(tmp_path / "dem.tif", z, nodata=-9999.0)
+    monkeypatch.setattr(demfile, "STRIP_CELLS", 40 * 16)
+    with pytest.raises(ValueError, match="-32768"):
+        open_dem(path)
+
+
+def test_a_read_failing_on_the_second_thread_is_the_callers_error(tmp_path, monkeypatch):
+    z = np.full((64, 40), 500.0, dtype=np.float32)
+    path = _dem(tmp_path / "dem.tif", z)
+    monkeypatch.setattr(demfile, "STRIP_CELLS", 40 * 16)
+    real = gdal.Band.ReadAsArray
+
+    def failing(self, xoff=0, yoff=0, *args, **kwargs):
+        if yoff >= 32:
+            raise RuntimeError("TIFFReadEncodedTile() failed")  # as GDAL raises for a damaged tile
+        return real(self, xoff, yoff, *args, **kwargs)
+
+    monkeypatch.setattr(gdal.Band, "ReadAsArray", failing)
+    with pytest.raises(RasterReadError, match=r"could not read band 1 \(TIFFReadEncodedTile\(\) failed\)"):
+        open_dem(path)
+
+
+def test_decode_threads_is_scoped_to_the_block():
+    name = "GDAL_NUM_THREADS"
+    gdal.SetThreadLocalConfigOption(name, None)
+    with decode_threads(2):
+        assert gdal.GetThreadLocalConfigOption(name, None) == "2"
+        with decode_threads(1):
+            assert gdal.GetThreadLocalConfigOption(name, None) == "1"
+        assert gdal.GetThreadLocalConfigOption(name, None) == "2"
+    assert gdal.GetThreadLocalConfigOption(name, None) is None
