@@ -36,21 +36,35 @@ def sample_grid(array: np.ndarray, grid, x, y) -> np.ndarray:
     plane and, for a curved surface, the first-order estimate of its value at the boundary.
     """
     a = np.asarray(array, dtype=float)
+    return sample_cells(lambda r0, r1, c0, c1: a[r0:r1, c0:c1], grid, x, y)
+
+
+def sample_cells(read, grid, x, y) -> np.ndarray:
+    """:func:`sample_grid` with the grid's values fetched by ``read(r0, r1, c0, c1)`` (rows
+    ``r0:r1`` and columns ``c0:c1`` as float64, NaN for nodata): one window around all the points,
+    so a caller that reads a file passes points close together (e.g. a stretch of an edge) and
+    never holds the whole grid. The values are those of :func:`sample_grid` on the whole array,
+    bit for bit (the same four cells and the same arithmetic)."""
     x, y = np.asarray(x, dtype=float), np.asarray(y, dtype=float)
-    rows, cols = a.shape
+    rows, cols = grid.shape
     out = np.full(x.shape, np.nan)
-    if rows < 2 or cols < 2:
+    if rows < 2 or cols < 2 or not x.size:
         return out
     x0, dx, _, y0, _, dy = grid.transform
     fc = (x - x0) / dx - 0.5
     fr = (y - y0) / dy - 0.5
     eps = 1e-9
     ok = (fc >= -0.5 - eps) & (fc <= cols - 0.5 + eps) & (fr >= -0.5 - eps) & (fr <= rows - 0.5 + eps)
-    c0 = np.clip(np.floor(fc), 0, cols - 2).astype(int)
-    r0 = np.clip(np.floor(fr), 0, rows - 2).astype(int)
+    if not ok.any():
+        return out
+    c0 = np.clip(np.floor(np.where(ok, fc, 0.0)), 0, cols - 2).astype(int)
+    r0 = np.clip(np.floor(np.where(ok, fr, 0.0)), 0, rows - 2).astype(int)
+    ra, ca = int(r0[ok].min()), int(c0[ok].min())
+    a = read(ra, int(r0[ok].max()) + 2, ca, int(c0[ok].max()) + 2)
     tc, tr = fc - c0, fr - r0
-    z = ((1 - tr) * (1 - tc) * a[r0, c0] + (1 - tr) * tc * a[r0, c0 + 1]
-         + tr * (1 - tc) * a[r0 + 1, c0] + tr * tc * a[r0 + 1, c0 + 1])
+    i, j = np.where(ok, r0 - ra, 0), np.where(ok, c0 - ca, 0)
+    z = ((1 - tr) * (1 - tc) * a[i, j] + (1 - tr) * tc * a[i, j + 1]
+         + tr * (1 - tc) * a[i + 1, j] + tr * tc * a[i + 1, j + 1])
     out[ok] = z[ok]
     return out
 

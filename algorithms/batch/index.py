@@ -17,12 +17,15 @@ import shapely
 
 from strikeline import CAUTION
 from strikeline import vocabulary as V
-from strikeline.batch.edges import edge_mismatch, footprint, sample_grid, shared_edge
+from strikeline.batch.edges import edge_mismatch, footprint, sample_cells, shared_edge
 from strikeline.errors import StrikelineError, one_line
 
 #: The plane's keys the index and batch.json repeat for each sheet.
 PLANE_SHOWN = ("dip_deg", "dip_direction_deg", "strike_rhr_deg", "dip_ci95_deg", "dip_direction_ci95_deg",
                "n_picks", "quality")
+#: Edge samples whose surface cells are read from the file at once: consecutive samples half a cell
+#: apart, so a window of at most about (CHUNK / 2 + 2) cells a side (our choice).
+SAMPLE_CHUNK = 512
 
 
 @dataclass
@@ -35,22 +38,34 @@ class SheetOutputs:
     error: str | None
     footprint: object = None  # shapely polygon (empty when unknown)
     crs_wkt: str = ""
-    surface: tuple | None = None  # (array, grid) of surface.tif
+    surface: tuple | None = None  # (path, grid) of surface.tif, read by windows along the edges
     summary: dict = field(default_factory=dict)
     attitudes: object = None  # VectorLayer
     contours: object = None  # VectorLayer
 
 
+def raster_grid(path, *, label: str):
+    """The georeferencing of a raster (:class:`strikeline.geometry.grid.Grid`), checked as
+    :func:`strikeline.io.raster.read_raster` checks it, without reading a cell: a sheet of any size
+    is indexed in the same small memory."""
+    from strikeline.io.raster import checked_band
+
+    with checked_band(path, label=label) as (band, grid, _):
+        del band
+    return grid
+
+
 def read_sheet(folder: Path, name: str, status: str, contact, error, opts, log) -> SheetOutputs:
     """The footprint (the surface grid, else the DEM), summary, attitudes and structure contours
-    of one sheet; a sheet without results gets the DEM's footprint when the DEM reads."""
-    from strikeline.io.raster import read_raster
+    of one sheet; a sheet without results gets the DEM's footprint when the DEM reads. Rasters
+    give only their georeferencing here; the edges read the surface along them."""
     from strikeline.io.vector import read_layer
 
     s = SheetOutputs(name, status, contact, error, footprint=shapely.Polygon())
     if status in ("ok", "unchanged"):
-        array, grid = read_raster(folder / V.SURFACE.file, label=f"sheet '{name}' surface")
-        s.surface, s.footprint, s.crs_wkt = (array, grid), footprint(grid), grid.crs_wkt
+        path = folder / V.SURFACE.file
+        grid = raster_grid(path, label=f"sheet '{name}' surface")
+        s.surface, s.footprint, s.crs_wkt = (path, grid), footprint(grid), grid.crs_wkt
         s.summary = json.loads((folder / V.SUMMARY_FILE).read_text(encoding="utf-8"))
         for attr, spec, geometry in (("attitudes", V.ATTITUDES, "point"), ("contours", V.STRUCTURE_CONTOURS, "line")):
             try:
@@ -60,7 +75,7 @@ def read_sheet(folder: Path, name: str, status: str, contact, error, opts, log) 
                 log(f"sheet {name}: {spec.name} not indexed ({one_line(exc)})")
     elif opts.dem:
         try:
-            _, grid = read_raster(opts.dem, label=f"sheet '{name}' DEM")
+            grid = raster_grid(opts.dem, label=f"sheet '{name}' DEM")
             s.footprint, s.crs_wkt = footprint(grid), grid.crs_wkt
         except StrikelineError:
             pass
@@ -101,6 +116,21 @@ def _from_layer(s: SheetOutputs, lyr, spec: V.Layer, z_field: str | None = None)
     return geoms, rows
 
 
+def surface_sampler(path, grid):
+    """``f(x, y) -> z`` of a surface GeoTIFF (:func:`strikeline.batch.edges.sample_grid`'s values)
+    that reads only the cells around :data:`SAMPLE_CHUNK` consecutive points at a time."""
+    from strikeline.io.gridfiles import read_window
+
+    def read(r0, r1, c0, c1):
+        return read_window(path, r0, r1, c0, c1)
+
+    def sample(x, y):
+        x, y = np.asarray(x, dtype=float), np.asarray(y, dtype=float)
+        return np.concatenate([sample_cells(read, grid, x[k:k + SAMPLE_CHUNK], y[k:k + SAMPLE_CHUNK])
+                               for k in range(0, x.size, SAMPLE_CHUNK)] or [np.empty(0)])
+    return sample
+
+
 def compare_edges(sheets: list[SheetOutputs], interval_of: dict) -> list[dict]:
     """The shared edge of every two sheets that model the same contact and whose footprints touch."""
     edges = []
@@ -123,10 +153,9 @@ def compare_edges(sheets: list[SheetOutputs], interval_of: dict) -> list[dict]:
             elif a.crs_wkt != b.crs_wkt:
                 rec["note"] = "not compared: the two sheets' surfaces are in different CRSs"
             else:
-                (za, ga), (zb, gb) = first.surface, second.surface
+                (pa, ga), (pb, gb) = first.surface, second.surface
                 cell = min(ga.cell_x_m, ga.cell_y_m, gb.cell_x_m, gb.cell_y_m)
-                rec.update(edge_mismatch(line, lambda x, y: sample_grid(za, ga, x, y),
-                                         lambda x, y: sample_grid(zb, gb, x, y), cell_m=cell,
+                rec.update(edge_mismatch(line, surface_sampler(pa, ga), surface_sampler(pb, gb), cell_m=cell,
                                          interval_m=rec["interval_m"]))
                 rec["note"] = (f"both surface grids sampled every {cell / 2:g} m along the edge (bilinear between "
                                "cell centres, extended linearly to the grid's edge)")

@@ -7,7 +7,7 @@ import pytest
 import shapely
 from shapely.geometry import box
 
-from strikeline.batch.edges import edge_mismatch, sample_grid, shared_edge
+from strikeline.batch.edges import edge_mismatch, footprint, sample_grid, shared_edge
 from strikeline.geometry.grid import Grid
 
 
@@ -60,3 +60,57 @@ def test_two_planes_apart_by_dz_along_an_edge():
     assert got["n_samples"] == 81 and got["length_m"] == 400.0
     # levels 105..200 cross in both profiles: 100 + 0.25 * 400 = 200 and the second starts at 104
     assert got["n_levels"] == len(range(105, 201, 5))
+
+
+def _write_curved_geotiff(path, *, rows=37, cols=53, cell=10.0, block=16):
+    """A curved surface with a hole, written with GDAL directly (tiled float32, nodata -9999)."""
+    from osgeo import gdal, osr
+
+    x0, y0 = 500000.0, 4000000.0 + rows * cell
+    xs = x0 + cell * (np.arange(cols) + 0.5)
+    ys = y0 - cell * (np.arange(rows) + 0.5)
+    X, Y = np.meshgrid(xs, ys)
+    z = (300.0 + 40.0 * np.sin((X - x0) / 97.0) * np.cos((Y - y0) / 61.0)).astype(np.float32)
+    z[5:8, 40:44] = -9999.0
+    ds = gdal.GetDriverByName("GTiff").Create(str(path), cols, rows, 1, gdal.GDT_Float32,
+                                              options=["TILED=YES", f"BLOCKXSIZE={block}", f"BLOCKYSIZE={block}"])
+    ds.SetGeoTransform((x0, cell, 0.0, y0, 0.0, -cell))
+    srs = osr.SpatialReference()
+    srs.ImportFromEPSG(32633)
+    ds.SetProjection(srs.ExportToWkt())
+    b = ds.GetRasterBand(1)
+    b.SetNoDataValue(-9999.0)
+    b.WriteArray(z)
+    b = ds = None
+    return (x0, cell, 0.0, y0, 0.0, -cell), (rows, cols)
+
+
+def test_footprint_and_edge_samples_of_a_file_match_the_whole_array(tmp_path):
+    """The batch index reads only a raster's georeferencing for its footprint and the surface cells
+    along an edge: the footprint of the corner coordinates GDAL reports, and the samples of
+    sample_grid on the whole band as GDAL reads it, bit for bit."""
+    from osgeo import gdal
+
+    from strikeline.batch.index import SAMPLE_CHUNK, raster_grid, surface_sampler
+
+    path = tmp_path / "surface.tif"
+    gt, (rows, cols) = _write_curved_geotiff(path)
+    grid = raster_grid(path, label="surface")
+    # Source: GDAL's geotransform: the outer corners are (gt0, gt3) and (gt0 + cols gt1, gt3 + rows gt5)
+    want = box(gt[0], gt[3] + rows * gt[5], gt[0] + cols * gt[1], gt[3])
+    assert footprint(grid).equals_exact(want, 0.0)
+    ds = gdal.Open(str(path))  # Source: GDAL reads the whole band, independent of strikeline's reader
+    whole = ds.GetRasterBand(1).ReadAsArray().astype(np.float64)
+    ds = None
+    whole[whole == -9999.0] = np.nan
+    # an edge-like path that runs along, across and around the grid, beyond it and through the hole,
+    # longer than one chunk of samples
+    t = np.linspace(0.0, 1.0, 3 * SAMPLE_CHUNK + 17)
+    x = gt[0] - 3.0 + (cols * 10.0 + 6.0) * t
+    y = gt[3] - 65.0 + 40.0 * np.sin(9.0 * t)
+    x = np.concatenate([x, np.full(40, gt[0] + 5 * 10.0), [gt[0] + 415.0]])
+    y = np.concatenate([y, np.linspace(gt[3], gt[3] - rows * 10.0, 40), [gt[3] - 65.0]])
+    got = surface_sampler(path, grid)(x, y)
+    ref = sample_grid(whole, grid, x, y)
+    assert np.isnan(ref).any() and np.isfinite(ref).sum() > 1000
+    np.testing.assert_array_equal(got, ref)
