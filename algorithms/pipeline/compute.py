@@ -27,6 +27,9 @@ from strikeline.pipeline.rasters import length_off_raster
 from strikeline.pipeline.dem_access import ground_on_grid
 from strikeline.pipeline.tiled import (block_shape_of, contours_of_blocks, grids_by_blocks, isopachs_by_blocks,
                                        trace_of_blocks)
+from strikeline.pipeline.tiled import STATS_SCRATCH
+from strikeline.pipeline.thickness_stats import in_reach_values
+from strikeline.maps.cellstats import cell_statistics
 from strikeline import vocabulary as V
 
 
@@ -212,21 +215,21 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
                                      is_cancelled=is_cancelled)
             block_grids.append(iso)
             vth, tth = iso.files[V.VERTICAL_THICKNESS.file], iso.files[V.TRUE_THICKNESS.file]
-            vals, n_in = iso.thickness_values, (iso.n_base_in, iso.n_top_in, iso.n_both_in)
+            n_in = (iso.n_base_in, iso.n_top_in, iso.n_both_in)
+            vals = in_reach_values(iso.scratch[STATS_SCRATCH], grid)  # read again by bands: bounded memory
+        stats = cell_statistics(vals, percentiles=(10, 90))
+        if tiles is not None:
+            iso.remove_scratch()
         thickness = {
             "top_model": top_model.kind,
             "true_thickness_method": "vertical thickness x cos(local dip of the base surface)",
-            "n_cells": int(vals.size),
-            "mean_m": float(np.mean(vals)) if vals.size else None,
-            "std_m": float(np.std(vals)) if vals.size else None,
-            "p10_m": float(np.percentile(vals, 10)) if vals.size else None,
-            "p90_m": float(np.percentile(vals, 90)) if vals.size else None,
+            **stats,
             "note": "statistics over cells within reach of data of both surfaces",
         }
-        if vals.size and np.mean(vals) < 0:
+        if stats["n_cells"] and stats["mean_m"] < 0:
             log("warning: the top contacts model lies below the base on average - check which "
                 "contact is the top (--top-contacts) and which the base (--contacts)")
-        if not vals.size:
+        if not stats["n_cells"]:
             thickness["note"] = thickness["reason"] = _no_thickness_reason(*n_in, model, top_model)
             log(f"warning: unit thickness not computed: {thickness['reason']}")
     step("summary")

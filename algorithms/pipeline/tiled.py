@@ -42,6 +42,8 @@ DEFAULT_BLOCK = (256, 2048)
 THREADS = max(1, min(2, os.cpu_count() or 1))
 #: The scratch folder's name inside the run's output folder (removed before the run ends).
 SCRATCH_DIR = ".blocks-scratch"
+#: The scratch copy of the isopach blocks from which the thickness statistics are read.
+STATS_SCRATCH = "true_thickness_in_reach"
 
 
 @dataclass(frozen=True)
@@ -94,7 +96,6 @@ class BlockGrids:
     files: dict  # output file name -> GridFile, in the order they are written
     scratch: dict = field(default_factory=dict)  # 'surface' / 'depth' -> float64 scratch file
     any_valid: dict = field(default_factory=dict)  # scratch name -> whether any cell holds a value
-    thickness_values: np.ndarray | None = None  # true thickness where both surfaces are within reach, row-major
     n_base_in: int = 0
     n_top_in: int = 0
     n_both_in: int = 0
@@ -191,8 +192,9 @@ def _isopach_block(top_model, model, grid: Grid, win) -> dict:
                              model.evaluate_grid(grid, window=halo, workers=1), window_grid(grid, *halo))
     xs, ys = grid.cell_centres()
     X, Y = np.meshgrid(xs[c0:c1], ys[r0:r1])
-    return {"vertical_thickness": vth[inner], "true_thickness": tth[inner],
-            "base_in": ~model.is_extrapolated(X, Y), "top_in": ~top_model.is_extrapolated(X, Y)}
+    base_in, top_in = ~model.is_extrapolated(X, Y), ~top_model.is_extrapolated(X, Y)
+    return {"vertical_thickness": vth[inner], "true_thickness": tth[inner], "base_in": base_in, "top_in": top_in,
+            STATS_SCRATCH: np.where(base_in & top_in, tth[inner], np.nan)}
 
 
 def grids_by_blocks(model, grid: Grid, folder=None, *, ground=None, ground_grid: Grid | None = None,
@@ -239,11 +241,11 @@ def isopachs_by_blocks(top_model, model, grid: Grid, folder=None, *, block_shape
                        threads: int = THREADS, progress=None, is_cancelled=None) -> BlockGrids:
     """The vertical and true thickness grids between ``top_model`` and the base ``model``
     (:func:`strikeline.maps.thickness.isopach_grids`) block by block into ``folder``, with the
-    counts of cells within reach of each surface's data and the true thickness of the cells within
-    reach of both (row-major, as the in-memory chain takes them). Parameters as
-    :func:`grids_by_blocks`."""
+    counts of cells within reach of each surface's data and a float64 scratch copy of the true
+    thickness of the cells within reach of both (NaN elsewhere; ``scratch[STATS_SCRATCH]``), from
+    which the statistics are read. Parameters as :func:`grids_by_blocks`."""
     outs = [("vertical_thickness", V.VERTICAL_THICKNESS), ("true_thickness", V.TRUE_THICKNESS)]
-    return _by_blocks(lambda w: _isopach_block(top_model, model, grid, w), outs, {}, grid, folder,
+    return _by_blocks(lambda w: _isopach_block(top_model, model, grid, w), outs, {STATS_SCRATCH: grid}, grid, folder,
                       block_shape=block_shape, threads=threads, progress=progress, is_cancelled=is_cancelled)
 
 
@@ -264,7 +266,7 @@ def _by_blocks(block_fn, outs, scratch_grids: dict, grid: Grid, folder, *, block
     if scratch_grids:
         scratch_dir.mkdir(exist_ok=True)
     writers, scratch_writers = {}, {}
-    values, counts = [], {"base": 0, "top": 0, "both": 0}
+    counts = {"base": 0, "top": 0, "both": 0}
     try:
         for key, spec in outs:
             writers[key] = StripWriter(folder / spec.file, grid, description=spec.meaning, unit=spec.unit)
@@ -280,11 +282,10 @@ def _by_blocks(block_fn, outs, scratch_grids: dict, grid: Grid, folder, *, block
                 r0 = band[0][0]
                 list(pool.map(lambda job: job[1].write_rows(r0, rows[job[0]]), jobs))
                 if "base_in" in rows:
-                    b_in, t_in, tth = rows["base_in"], rows["top_in"], rows["true_thickness"]
+                    b_in, t_in = rows["base_in"], rows["top_in"]
                     counts["base"] += int(b_in.sum())
                     counts["top"] += int(t_in.sum())
                     counts["both"] += int((b_in & t_in).sum())
-                    values.append(tth[b_in & t_in & np.isfinite(tth)])
                 if progress is not None:
                     progress(band[0][1] / grid.rows)
         files = {spec.file: GridFile(Path(writers[key].close()), grid) for key, spec in outs}
@@ -295,8 +296,7 @@ def _by_blocks(block_fn, outs, scratch_grids: dict, grid: Grid, folder, *, block
             w.abort()
         shutil.rmtree(scratch_dir, ignore_errors=True)
         raise
-    thick = np.concatenate(values) if values else (np.empty(0) if "true_thickness" in dict(outs) else None)
-    return BlockGrids(files, scratch, any_valid, thick, counts["base"], counts["top"], counts["both"],
+    return BlockGrids(files, scratch, any_valid, counts["base"], counts["top"], counts["both"],
                       _owned=owned)
 
 
