@@ -235,7 +235,14 @@ _EDGE_FIELDS = (
     _n("max_dz_m", "m", "largest absolute elevation difference along the edge"),
     _n("median_offset_m", "m", "median distance along the edge between the two sheets' crossings of one "
        "structure-contour elevation"),
-    _n("max_offset_m", "m", "largest such distance"))
+    _n("max_offset_m", "m", "largest such distance"),
+    _n("n_samples_in_reach", None, "of those, points within reach of both sheets' data (each sheet's picks within its "
+       "model's reach: where its structure contours are not forecasts)", "integer"),
+    _n("median_dz_in_reach_m", "m", "median absolute elevation difference there: where both surfaces model data "
+       "and should meet"),
+    _n("max_dz_in_reach_m", "m", "largest absolute elevation difference there"),
+    _n("max_dz_extrapolated_m", "m", "largest absolute elevation difference where one or both sheets extrapolate "
+       "(forecasts, which sheets fitting their own surfaces may disagree on by much)"))
 SHEETS = Layer("sheets", "polygon", "batch: one footprint per sheet (its surface grid; else its DEM)",
                (_SHEET, _n("status", None, "ok, failed or unchanged (skipped: inputs and options as before)", "text"),
                 _n("contact", None, "the contact the sheet models (the job file's contact key; null: none)", "text"),
@@ -252,7 +259,8 @@ SHEET_CONTOURS = Layer("sheet_structure_contours", "line_z",
                        (_SHEET, *STRUCTURE_CONTOURS.fields), optional=STRUCTURE_CONTOURS.optional)
 SHARED_EDGES = Layer("shared_edges", "line", "batch: where two sheets that model the same contact meet, with the "
                      "mismatch of their surfaces along the edge", _EDGE_FIELDS,
-                     optional=("median_dz_m", "max_dz_m", "median_offset_m", "max_offset_m"))
+                     optional=("median_dz_m", "max_dz_m", "median_offset_m", "max_offset_m", "n_samples_in_reach",
+                               "median_dz_in_reach_m", "max_dz_in_reach_m", "max_dz_extrapolated_m"))
 #: The layers of a batch's index.gpkg in the order they are written.
 INDEX_LAYERS = (SHEETS, SHEET_PLANES, SHEET_ATTITUDES, SHEET_CONTOURS, SHARED_EDGES)
 

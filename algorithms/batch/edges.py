@@ -10,6 +10,14 @@ surface grids are sampled along it, and two figures say how well they meet:
   crosses it, measured along the edge (median and largest over the matched crossings). For two
   planes a constant ``dz`` apart this is ``dz`` over the slope of the surface along the edge.
 
+The elevation difference is also split by where it is measured: within reach of both sheets' data
+(each sheet's picks no farther than its model's reach, the rule that draws its structure
+contours solid), where the two surfaces are interpretations of data and should meet, and where
+one sheet or both extrapolate (their contours dashed as forecasts), where two sheets that each fit
+their own surface - a plane on one, a spline on the other - may disagree by much, the more the
+farther from data; a large figure there says how uncertain the forecasts are, not that the edge
+is wrong.
+
 Arrays and shapely geometries in, numbers out; the grids come from the caller.
 """
 from __future__ import annotations
@@ -98,7 +106,7 @@ def _crossings(s: np.ndarray, z: np.ndarray, interval: float) -> dict:
     return found
 
 
-def edge_mismatch(line, sample_a, sample_b, *, cell_m: float, interval_m: float) -> dict:
+def edge_mismatch(line, sample_a, sample_b, *, cell_m: float, interval_m: float, in_reach=None) -> dict:
     """The mismatch of two surfaces along ``line``.
 
     Parameters
@@ -111,14 +119,19 @@ def edge_mismatch(line, sample_a, sample_b, *, cell_m: float, interval_m: float)
         The finer grid's cell: the edge is sampled every ``cell_m / SAMPLES_PER_CELL``.
     interval_m : float
         Elevation step of the compared crossings (structure-contour interval).
+    in_reach : callable, optional
+        ``f(x, y) -> bool`` array: whether a point lies within reach of both sheets' data. Without
+        it the split figures are None.
 
     Returns
     -------
     dict
         ``length_m``, ``n_samples``, ``median_dz_m``, ``max_dz_m``, ``n_levels``,
-        ``median_offset_m``, ``max_offset_m`` (None where nothing was compared).
+        ``median_offset_m``, ``max_offset_m``, and the split ``n_samples_in_reach``,
+        ``median_dz_in_reach_m``, ``max_dz_in_reach_m``, ``max_dz_extrapolated_m`` (None where
+        nothing was compared).
     """
-    dz, offsets, levels = [], [], 0
+    dz, offsets, levels, reach = [], [], 0, []
     step = cell_m / SAMPLES_PER_CELL
     for part in shapely.get_parts(line):
         n = max(int(np.ceil(part.length / step)), 1)
@@ -128,6 +141,8 @@ def edge_mismatch(line, sample_a, sample_b, *, cell_m: float, interval_m: float)
         za, zb = sample_a(xy[:, 0], xy[:, 1]), sample_b(xy[:, 0], xy[:, 1])
         both = np.isfinite(za) & np.isfinite(zb)
         dz.append(np.abs(za - zb)[both])
+        if in_reach is not None:
+            reach.append(np.asarray(in_reach(xy[:, 0], xy[:, 1]), dtype=bool)[both])
         ca = _crossings(s, np.where(both, za, np.nan), interval_m)
         cb = _crossings(s, np.where(both, zb, np.nan), interval_m)
         for k in sorted(set(ca) & set(cb)):
@@ -136,7 +151,16 @@ def edge_mismatch(line, sample_a, sample_b, *, cell_m: float, interval_m: float)
             offsets += [float(np.min(np.abs(other - sa))) for sa in ca[k]]
     dz = np.concatenate(dz) if dz else np.empty(0)
     offsets = np.asarray(offsets)
-    return {"length_m": float(line.length), "n_samples": int(dz.size),
+    split = {"n_samples_in_reach": None, "median_dz_in_reach_m": None, "max_dz_in_reach_m": None,
+             "max_dz_extrapolated_m": None}
+    if in_reach is not None:
+        inside = np.concatenate(reach) if reach else np.zeros(0, dtype=bool)
+        near, far = dz[inside], dz[~inside]
+        split = {"n_samples_in_reach": int(near.size),
+                 "median_dz_in_reach_m": float(np.median(near)) if near.size else None,
+                 "max_dz_in_reach_m": float(np.max(near)) if near.size else None,
+                 "max_dz_extrapolated_m": float(np.max(far)) if far.size else None}
+    return {**split, "length_m": float(line.length), "n_samples": int(dz.size),
             "median_dz_m": float(np.median(dz)) if dz.size else None,
             "max_dz_m": float(np.max(dz)) if dz.size else None, "n_levels": levels,
             "median_offset_m": float(np.median(offsets)) if offsets.size else None,

@@ -42,6 +42,8 @@ class SheetOutputs:
     summary: dict = field(default_factory=dict)
     attitudes: object = None  # VectorLayer
     contours: object = None  # VectorLayer
+    data_xy: object = None  # (n, 2) positions of the picks of the sheet's contact (its model's data)
+    reach_m: float | None = None  # the model's reach (summary model.reach_m)
 
 
 def raster_grid(path, *, label: str):
@@ -73,6 +75,13 @@ def read_sheet(folder: Path, name: str, status: str, contact, error, opts, log) 
                                             label=f"sheet '{name}' {spec.name}", layer_option="layer"))
             except StrikelineError as exc:  # an empty layer, for one
                 log(f"sheet {name}: {spec.name} not indexed ({one_line(exc)})")
+        s.reach_m = (s.summary.get("model") or {}).get("reach_m")
+        try:
+            picks = read_layer(folder / V.RESULTS_FILE, layer=V.PICKS.name, geometry="point",
+                               label=f"sheet '{name}' {V.PICKS.name}", layer_option="layer")
+            s.data_xy = shapely.get_coordinates(np.asarray(picks.geoms, dtype=object))
+        except StrikelineError as exc:
+            log(f"sheet {name}: {V.PICKS.name} not read, its edges not split by reach ({one_line(exc)})")
     elif opts.dem:
         try:
             grid = raster_grid(opts.dem, label=f"sheet '{name}' DEM")
@@ -131,6 +140,32 @@ def surface_sampler(path, grid):
     return sample
 
 
+def reach_test(sheets: list[SheetOutputs]):
+    """``f(x, y) -> bool``: within reach of every one of ``sheets``' data (its nearest pick no farther
+    than its model's reach: :meth:`strikeline.surfaces.SurfaceModel.is_extrapolated`'s rule on the
+    picks the sheet wrote), or None when a sheet's picks or reach are unknown."""
+    from scipy.spatial import cKDTree
+
+    if any(s.data_xy is None or not len(s.data_xy) or s.reach_m is None for s in sheets):
+        return None
+    trees = [(cKDTree(s.data_xy), float(s.reach_m)) for s in sheets]
+
+    def within(x, y):
+        xy = np.column_stack([np.ravel(x), np.ravel(y)])
+        ok = np.ones(len(xy), dtype=bool)
+        for tree, reach in trees:
+            bound = reach * (1.0 + 1e-9) + 1e-9  # a pick at exactly the reach is found
+            ok &= tree.query(xy, distance_upper_bound=bound)[0] <= reach
+        return ok
+    return within
+
+
+#: What the split of the elevation difference means, in batch.json's words.
+REACH_NOTE = ("*_in_reach_m: where both sheets have picks within their model's reach, the surfaces model "
+              "data and should meet; max_dz_extrapolated_m: where one or both extrapolate (their structure "
+              "contours are forecasts), two sheets fitting their own surfaces can disagree by much")
+
+
 def compare_edges(sheets: list[SheetOutputs], interval_of: dict) -> list[dict]:
     """The shared edge of every two sheets that model the same contact and whose footprints touch."""
     edges = []
@@ -156,9 +191,9 @@ def compare_edges(sheets: list[SheetOutputs], interval_of: dict) -> list[dict]:
                 (pa, ga), (pb, gb) = first.surface, second.surface
                 cell = min(ga.cell_x_m, ga.cell_y_m, gb.cell_x_m, gb.cell_y_m)
                 rec.update(edge_mismatch(line, surface_sampler(pa, ga), surface_sampler(pb, gb), cell_m=cell,
-                                         interval_m=rec["interval_m"]))
+                                         interval_m=rec["interval_m"], in_reach=reach_test([first, second])))
                 rec["note"] = (f"both surface grids sampled every {cell / 2:g} m along the edge (bilinear between "
-                               "cell centres, extended linearly to the grid's edge)")
+                               "cell centres, extended linearly to the grid's edge); " + REACH_NOTE)
             edges.append(rec)
     return edges
 
@@ -203,6 +238,17 @@ def headline(plane: dict | None) -> str:
             f"quality {plane.get('quality')}")
 
 
+def _split_words(e: dict) -> str:
+    """The elevation difference within reach of both sheets' data and where extrapolated, in words."""
+    n = e.get("n_samples_in_reach")
+    if n is None:
+        return "not split (picks or reach unknown)" if e.get("median_dz_m") is not None else ""
+    near = (f"median {e['median_dz_in_reach_m']:.2f} m, max {e['max_dz_in_reach_m']:.2f} m over {n} of "
+            f"{e['n_samples']} samples" if n else "no sample within reach of both")
+    far = e.get("max_dz_extrapolated_m")
+    return html.escape(near + (f"; extrapolated: max {far:.2f} m" if far is not None else "; none extrapolated"))
+
+
 def index_page(sheets: list[SheetOutputs], out: Path, edges: list[dict]) -> str:
     """index.html: the caution, then one row per sheet (status, headline attitude, its report)."""
     report = getattr(V, "REPORT_FILE", None)
@@ -217,7 +263,7 @@ def index_page(sheets: list[SheetOutputs], out: Path, edges: list[dict]) -> str:
         rows.append(f"<tr><td>{link}</td><td>{esc(s.status)}</td><td>{what}</td></tr>")
     edge_rows = [f"<tr><td>{esc(e['sheet_a'])} / {esc(e['sheet_b'])}</td><td>{esc(e['contact'])}</td><td>"
                  + (f"median {e['median_dz_m']:.2f} m, max {e['max_dz_m']:.2f} m" if e.get("median_dz_m") is not None
-                    else esc(e.get("note", ""))) + "</td><td>"
+                    else esc(e.get("note", ""))) + "</td><td>" + _split_words(e) + "</td><td>"
                  + (f"median {e['median_offset_m']:.1f} m, max {e['max_offset_m']:.1f} m"
                     if e.get("median_offset_m") is not None else "") + "</td></tr>" for e in edges]
     return "\n".join([
@@ -228,7 +274,13 @@ def index_page(sheets: list[SheetOutputs], out: Path, edges: list[dict]) -> str:
         f'<p class="caution">{esc(CAUTION)}</p>', "<h1>Sheets</h1>",
         "<table><tr><th>sheet</th><th>status</th><th>best-fit plane (95% half-widths), or the error</th></tr>",
         *rows, "</table>", "<h2>Shared edges</h2>",
-        "<table><tr><th>sheets</th><th>contact</th><th>elevation difference</th><th>offset of equal-elevation "
+        "<p>Both sheets' surfaces are compared along the edge they share. Where both sheets have data "
+        "within reach (their structure contours drawn solid) the surfaces interpret data and should meet; "
+        "where one or both extrapolate (contours dashed as forecasts), sheets that each fit their own "
+        "surface may disagree by much, the more the farther from data: that figure says how uncertain the "
+        "forecasts are there, not that the edge is wrong.</p>",
+        "<table><tr><th>sheets</th><th>contact</th><th>elevation difference (all of the edge)</th>"
+        "<th>within reach of both sheets' data / where extrapolated</th><th>offset of equal-elevation "
         "crossings</th></tr>", *edge_rows, "</table>",
         f"<p>Layers of every sheet: {esc(V.INDEX_FILE)}; status, checksums and edges: {esc(V.BATCH_FILE)}.</p>",
         "</body></html>", ""])

@@ -71,6 +71,17 @@ def test_edges_of_one_surface_meet_and_a_raised_contact_does_not(series):
     assert e["max_dz_m"] == pytest.approx(RAISED_M, abs=1e-3)
     assert e["median_offset_m"] == pytest.approx(RAISED_M / abs(B), abs=0.05)
     assert e["n_levels"] >= 10
+    # split by the reach of each sheet's picks: the contacts cross every sheet, so the edges lie
+    # within reach of both sheets' data along much of their length, and the figures there are
+    # those of the plane equation again (0 m for one surface, RAISED_M for B/E)
+    for name, want in (("A/B", 0.0), ("A/C", 0.0), ("B/D", 0.0), ("C/D", 0.0), ("B/E", RAISED_M)):
+        e = edges[name]
+        assert 0 < e["n_samples_in_reach"] <= e["n_samples"], (name, e)
+        assert e["max_dz_in_reach_m"] == pytest.approx(want, abs=1e-3), (name, e)
+        if e["n_samples_in_reach"] < e["n_samples"]:
+            assert e["max_dz_extrapolated_m"] == pytest.approx(want, abs=1e-3), (name, e)
+        else:
+            assert e["max_dz_extrapolated_m"] is None
 
 
 def test_each_sheet_recovers_the_plane(series):
@@ -129,6 +140,7 @@ def test_index_page_and_batch_json(series):
     for name in "ABCDE":
         assert f"<td>{name}</td>" in page or f">{name}</a>" in page
     assert sorted(V.json_paths(record, V.BATCH_KEYS) - V.summary_path_names(V.BATCH_KEYS)) == []
+    assert "within reach of both sheets' data / where extrapolated" in page and "extrapolated: max" in page
     assert record["n_ok"] == 5 and record["n_failed"] == 0
     a = record["sheets"]["A"]
     assert all(len(h) == 64 for h in a["inputs"].values()) and any(p.endswith("dem_A.tif") for p in a["inputs"])

@@ -114,3 +114,41 @@ def test_footprint_and_edge_samples_of_a_file_match_the_whole_array(tmp_path):
     ref = sample_grid(whole, grid, x, y)
     assert np.isnan(ref).any() and np.isfinite(ref).sum() > 1000
     np.testing.assert_array_equal(got, ref)
+
+
+def test_mismatch_split_by_reach_of_the_data():
+    """Two surfaces equal where both sheets have data and ``dz`` apart beyond: the split puts the
+    difference where extrapolated, none within reach."""
+    dz, slope = 25.0, 0.1
+    line = shapely.LineString([(0, 0), (0, 400)])
+
+    def za(x, y):
+        return 100.0 + slope * np.asarray(y)
+
+    def zb(x, y):
+        return za(x, y) + np.where(np.asarray(y) > 150.0, dz, 0.0)
+
+    got = edge_mismatch(line, za, zb, cell_m=10.0, interval_m=5.0, in_reach=lambda x, y: np.asarray(y) <= 150.0)
+    # Source: arithmetic on the two surfaces above: 0 m apart for y <= 150 m, dz apart beyond; samples
+    # every 5 m from 0 to 400 m, 31 of them at y <= 150 m
+    assert got["n_samples"] == 81 and got["n_samples_in_reach"] == 31
+    assert got["median_dz_in_reach_m"] == 0.0 and got["max_dz_in_reach_m"] == 0.0
+    assert got["max_dz_extrapolated_m"] == pytest.approx(dz) and got["max_dz_m"] == pytest.approx(dz)
+    none = edge_mismatch(line, za, zb, cell_m=10.0, interval_m=5.0)
+    assert none["n_samples_in_reach"] is None and none["max_dz_extrapolated_m"] is None
+
+
+def test_reach_test_is_the_distance_to_the_nearest_pick_of_each_sheet():
+    from strikeline.batch.index import SheetOutputs, reach_test
+
+    rng = np.random.default_rng(2)
+    a = SheetOutputs("a", "ok", "c", None, data_xy=rng.random((40, 2)) * 500.0, reach_m=60.0)
+    b = SheetOutputs("b", "ok", "c", None, data_xy=rng.random((30, 2)) * 500.0 + 200.0, reach_m=90.0)
+    x, y = rng.random(2000) * 800.0, rng.random(2000) * 800.0
+    got = reach_test([a, b])(x, y)
+
+    def near(s):  # Source: brute force, every point against every pick (the nearest-datum distance)
+        return np.min(np.hypot(x[:, None] - s.data_xy[:, 0], y[:, None] - s.data_xy[:, 1]), axis=1) <= s.reach_m
+    np.testing.assert_array_equal(got, near(a) & near(b))
+    assert got.any() and not got.all()
+    assert reach_test([a, SheetOutputs("c", "ok", "c", None)]) is None
