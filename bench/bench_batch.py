@@ -89,13 +89,20 @@ def make_job(tmp: Path, cells: int, per_side: int) -> tuple[Path, int]:
 
 
 def shared_edges(out: Path) -> str:
-    """How many shared edges batch.json compared and their largest mismatch, in a few words."""
+    """How many shared edges batch.json compared and their largest mismatch, in a few words: over
+    the whole edges, within reach of both sheets' data and where one or both extrapolate."""
     try:
         edges = json.loads((out / "batch.json").read_text()).get("edges", {})
     except (OSError, ValueError, AttributeError):
         return ""
-    worst = [e.get("max_dz_m") for e in edges.values() if isinstance(e, dict) and e.get("max_dz_m") is not None]
-    return f"{len(edges)} shared edges compared" + (f" (largest mismatch {max(worst):.2f} m)" if worst else "")
+    def largest(key):
+        got = [e.get(key) for e in edges.values() if isinstance(e, dict) and e.get(key) is not None]
+        return f"{max(got):.2f} m" if got else "none"
+
+    if not any(isinstance(e, dict) and e.get("max_dz_m") is not None for e in edges.values()):
+        return f"{len(edges)} shared edges compared"
+    return (f"{len(edges)} shared edges compared (largest mismatch {largest('max_dz_m')}: within reach of both "
+            f"sheets' data {largest('max_dz_in_reach_m')}, where extrapolated {largest('max_dz_extrapolated_m')})")
 
 
 def failed_sheets(out: Path) -> str:
