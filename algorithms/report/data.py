@@ -4,10 +4,16 @@ Everything comes from the files the run wrote (``summary.json``, the layers of `
 the GeoTIFFs), so the report needs no array of the run in memory: grids are read decimated to at
 most :data:`MAX_MAP_CELLS` cells, points thinned to at most :data:`MAX_POINTS`, and the residuals
 of the picks are the surface GeoTIFF interpolated at them.
+
+The grids are read on :data:`READ_THREADS` threads, one file each (GDAL decodes and resamples
+without Python's lock): on a large sheet decoding every block of the surface and the depth is
+most of the report's time, and each read gives the values it gives alone.
 """
 from __future__ import annotations
 
 import json
+import os
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -15,6 +21,7 @@ import numpy as np
 
 from strikeline import vocabulary as V
 from strikeline.errors import StrikelineError
+from strikeline.io._gdal import gdal_exceptions
 from strikeline.io.sampling import layer_names, read_decimated, read_point_sample, sample_bilinear
 from strikeline.io.vector import read_layer
 
@@ -24,6 +31,8 @@ MAX_MAP_CELLS = 1_000_000
 MAX_POINTS = 20_000
 #: Most cells of a grid read for a histogram (a regular sample of them).
 MAX_HISTOGRAM_CELLS = 4_000_000
+#: Grid files read at once: the machine's cores, at most 2.
+READ_THREADS = max(1, min(2, os.cpu_count() or 1))
 
 
 @dataclass
@@ -106,42 +115,62 @@ def _bool(values) -> np.ndarray:
 
 
 def load_outputs(folder, *, max_cells: int = MAX_MAP_CELLS, max_points: int = MAX_POINTS) -> ReportData:
-    """Read what the report shows from a run's output ``folder`` (bounded memory, read-only)."""
+    """Read what the report shows from a run's output ``folder`` (bounded memory, read-only).
+
+    The grid files are read on :data:`READ_THREADS` threads while this one reads the layers of
+    ``results.gpkg``; the values are those of one read after the other."""
     folder = Path(folder)
     summary = json.loads((folder / V.SUMMARY_FILE).read_text(encoding="utf-8"))
     d = ReportData(folder, summary)
-    d.surface = _raster(folder / V.SURFACE.file, max_cells=max_cells)
-    d.depth = _raster(folder / V.DEPTH.file, max_cells=max_cells)
+    tt, surf = folder / V.TRUE_THICKNESS.file, folder / V.SURFACE.file
+    # GDAL's exception mode is the process's: set here, once, for the reads on the other threads
+    with gdal_exceptions(), ThreadPoolExecutor(max_workers=READ_THREADS,
+                                               thread_name_prefix="strikeline-report-read") as pool:
+        grids = {"surface": pool.submit(_raster, surf, max_cells=max_cells),
+                 "depth": pool.submit(_raster, folder / V.DEPTH.file, max_cells=max_cells),
+                 "true_thickness": pool.submit(_raster, tt, max_cells=max_cells),
+                 "thickness_sample": pool.submit(_sample_of, tt)}
+        gpkg = folder / V.RESULTS_FILE
+        names = layer_names(gpkg)
+        d.contours = _lines(gpkg, V.STRUCTURE_CONTOURS.name, names)
+        d.trace = _lines(gpkg, V.PREDICTED_TRACE.name, names)
+        d.misfit = _lines(gpkg, V.CONTACT_MISFIT.name, names)
+        for lines, key in ((d.contours, "extrapolated"), (d.trace, "extrapolated"), (d.misfit, "flagged")):
+            if lines is not None and key in lines.fields:
+                lines.fields[key] = _bool(lines.fields[key])
+        residual_at = None
+        if V.PICKS.name in names:
+            p = read_point_sample(gpkg, layer=V.PICKS.name, fields=("elevation_m",), max_points=max_points)
+            z = np.array([np.nan if v is None else float(v) for v in p["elevation_m"]], dtype=float)
+            if surf.exists():
+                residual_at = pool.submit(sample_bilinear, surf, p["x"], p["y"], label=surf.name)
+        if V.ATTITUDES.name in names:
+            a = read_point_sample(gpkg, layer=V.ATTITUDES.name, fields=("dip_deg", "dip_direction_deg", "quality"),
+                                  max_points=max_points)
+            num = lambda v: np.array([np.nan if x is None else float(x) for x in v], dtype=float)  # noqa: E731
+            q = np.array(["" if x is None else str(x) for x in a["quality"]])
+            d.attitudes = {str(k): (num(a["dip_deg"][q == k]), num(a["dip_direction_deg"][q == k]))
+                           for k in sorted(set(q.tolist()))}
+        got = {k: f.result() for k, f in grids.items()}
+        if V.PICKS.name in names:
+            at = residual_at.result() if residual_at is not None else np.full(len(z), np.nan)
+            d.picks = {"x": p["x"], "y": p["y"], "z": z, "residual_m": z - at, "n_total": p["n_total"],
+                       "step": p["step"]}
+    d.surface, d.depth, d.true_thickness = got["surface"], got["depth"], got["true_thickness"]
     if d.surface is not None and d.depth is not None and d.surface.values.shape == d.depth.values.shape:
         # depth below ground = ground - surface, so the ground is their sum on the output grid
         d.ground = Raster(d.surface.values + d.depth.values, d.surface.extent, d.surface.cell_m, d.surface.crs_wkt)
-    tt = folder / V.TRUE_THICKNESS.file
-    d.true_thickness = _raster(tt, max_cells=max_cells)
-    if tt.exists():
-        vals, _ = read_decimated(tt, max_cells=MAX_HISTOGRAM_CELLS, resampling="nearest", label=tt.name)
-        d.thickness_sample = vals[np.isfinite(vals)]
-    gpkg = folder / V.RESULTS_FILE
-    names = layer_names(gpkg)
-    d.contours = _lines(gpkg, V.STRUCTURE_CONTOURS.name, names)
-    d.trace = _lines(gpkg, V.PREDICTED_TRACE.name, names)
-    d.misfit = _lines(gpkg, V.CONTACT_MISFIT.name, names)
+    if got["thickness_sample"] is not None:
+        d.thickness_sample = got["thickness_sample"]
     if d.misfit is None or not len(d.misfit):
         d.contacts = _input_contacts(summary, d.surface.crs_wkt if d.surface is not None else "")
-    for lines, key in ((d.contours, "extrapolated"), (d.trace, "extrapolated"), (d.misfit, "flagged")):
-        if lines is not None and key in lines.fields:
-            lines.fields[key] = _bool(lines.fields[key])
-    if V.PICKS.name in names:
-        p = read_point_sample(gpkg, layer=V.PICKS.name, fields=("elevation_m",), max_points=max_points)
-        z = np.array([np.nan if v is None else float(v) for v in p["elevation_m"]], dtype=float)
-        surf = folder / V.SURFACE.file
-        at = sample_bilinear(surf, p["x"], p["y"], label=surf.name) if surf.exists() else np.full(len(z), np.nan)
-        d.picks = {"x": p["x"], "y": p["y"], "z": z, "residual_m": z - at, "n_total": p["n_total"],
-                   "step": p["step"]}
-    if V.ATTITUDES.name in names:
-        a = read_point_sample(gpkg, layer=V.ATTITUDES.name, fields=("dip_deg", "dip_direction_deg", "quality"),
-                              max_points=max_points)
-        num = lambda v: np.array([np.nan if x is None else float(x) for x in v], dtype=float)  # noqa: E731
-        q = np.array(["" if x is None else str(x) for x in a["quality"]])
-        d.attitudes = {str(k): (num(a["dip_deg"][q == k]), num(a["dip_direction_deg"][q == k]))
-                       for k in sorted(set(q.tolist()))}
     return d
+
+
+def _sample_of(path: Path) -> np.ndarray | None:
+    """The valid cells of a regular sample of at most :data:`MAX_HISTOGRAM_CELLS` cells of a grid
+    file (None without the file)."""
+    if not path.exists():
+        return None
+    vals, _ = read_decimated(path, max_cells=MAX_HISTOGRAM_CELLS, resampling="nearest", label=path.name)
+    return vals[np.isfinite(vals)]
