@@ -6,8 +6,10 @@ most :data:`MAX_MAP_CELLS` cells, points thinned to at most :data:`MAX_POINTS`, 
 of the picks are the surface GeoTIFF interpolated at them.
 
 The grids are read on :data:`READ_THREADS` threads, one file each (GDAL decodes and resamples
-without Python's lock): on a large sheet decoding every block of the surface and the depth is
-most of the report's time, and each read gives the values it gives alone.
+without Python's lock), each with GDAL's multithreaded decoding of the blocks a read crosses
+(:func:`strikeline.io.demfile.decode_threads`): on a large sheet decoding every block of the
+surface and the depth is most of the report's time, and each read gives the values it gives
+alone.
 """
 from __future__ import annotations
 
@@ -22,6 +24,7 @@ import numpy as np
 from strikeline import vocabulary as V
 from strikeline.errors import StrikelineError
 from strikeline.io._gdal import gdal_exceptions
+from strikeline.io.demfile import decode_threads
 from strikeline.io.sampling import layer_names, read_decimated, read_point_sample, sample_bilinear
 from strikeline.io.vector import read_layer
 
@@ -79,7 +82,8 @@ class ReportData:
 def _raster(path: Path, *, max_cells: int, resampling: str = "average") -> Raster | None:
     if not path.exists():
         return None
-    arr, grid = read_decimated(path, max_cells=max_cells, resampling=resampling, label=path.name)
+    with decode_threads():
+        arr, grid = read_decimated(path, max_cells=max_cells, resampling=resampling, label=path.name)
     xmin, ymin, xmax, ymax = grid.bounds
     return Raster(arr, (xmin, xmax, ymin, ymax), grid.cell_x_m, grid.crs_wkt)
 
@@ -172,5 +176,6 @@ def _sample_of(path: Path) -> np.ndarray | None:
     file (None without the file)."""
     if not path.exists():
         return None
-    vals, _ = read_decimated(path, max_cells=MAX_HISTOGRAM_CELLS, resampling="nearest", label=path.name)
+    with decode_threads():
+        vals, _ = read_decimated(path, max_cells=MAX_HISTOGRAM_CELLS, resampling="nearest", label=path.name)
     return vals[np.isfinite(vals)]
