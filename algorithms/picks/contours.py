@@ -1,28 +1,33 @@
 """Picks from topographic contour lines: where a contact crosses a contour, the contour's
-elevation (:func:`picks_from_contours`; ``source='contours'``), found by a spatial join of
-short pieces of both line sets and their intersection on a thread pool; and the ground slope
-at points from the spacing of the contours (:func:`ground_slope_from_contours`).
+elevation (:func:`picks_from_contours`; ``source='contours'``), found segment by segment with
+numpy (:mod:`strikeline.picks.crossings`) and, where that cannot settle a piece pair, by GEOS's
+overlay (:mod:`strikeline.picks.overlay`); and the ground slope at points from the spacing of the
+contours (:func:`ground_slope_from_contours`).
 """
 from __future__ import annotations
 
 import os
-from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
 import shapely
 
 from strikeline.errors import InputError
-from strikeline.picks.dem import _BATCH, _dedupe
-from strikeline.picks.lines import (_LINE_TYPES, _as_geometries, _cancel_check, _check_callbacks,
-                                    _contact_ids, _cut_into_pieces, _explode, _line_parts,
-                                    _positive, densify_lines)
+from strikeline.picks import contour_points
+from strikeline.picks.lines import (_as_geometries, _cancel_check, _check_callbacks, _contact_ids,
+                                    _line_parts, _positive, densify_lines)
 from strikeline.picks.pickset import PickSet
 
 
-#: Lines are cut into pieces of at most this many segments before the spatial join, so the
-#: index's boxes stay tight and each GEOS intersection works on small inputs. Measured on the
-#: benchmark sheet (bench/bench_picks.py): 32 segments gave the lowest total time of 8-64.
+#: Lines are cut into pieces of at most this many segments: the unit of GEOS's overlay where it
+#: is needed (and of the order in which crossings are listed before merging). Measured on the
+#: benchmark sheet (bench/bench_picks.py) when every piece pair went through GEOS: 32 segments
+#: gave the lowest total time of 8-64.
 _PIECE_SEGMENTS = 32
+
+#: ``'segments'``: crossings computed in bulk with numpy, GEOS only for the piece pairs that
+#: needs; ``'overlay'``: every intersecting piece pair through GEOS (the method the numpy one
+#: reproduces bit for bit; also taken for inputs with non-finite coordinates).
+_ENGINE = "segments"
 
 
 def _elevations(elevations_m, n: int) -> np.ndarray:
@@ -35,32 +40,6 @@ def _elevations(elevations_m, n: int) -> np.ndarray:
         raise InputError(f"elevations_m has {len(z)} values but there are {n} contour lines; "
                          "give one elevation per contour feature")
     return z
-
-
-def _run_batches(fn, n_items: int, *, workers: int, is_cancelled, progress, lo: float,
-                 hi: float, what: str) -> list:
-    """``fn(slice)`` over consecutive batches of ``range(n_items)`` on a thread pool.
-
-    shapely's array functions release the GIL, so batches run in parallel. Cancellation is
-    checked and progress reported as batches finish; results come back in order.
-    """
-    bounds = list(range(0, n_items, _BATCH)) + [n_items]
-    slices = [slice(a, b) for a, b in zip(bounds[:-1], bounds[1:])]
-    results = [None] * len(slices)
-    if not slices:
-        return []
-    with ThreadPoolExecutor(max_workers=workers) as pool:
-        # Submit a window of batches at a time so cancellation takes effect promptly.
-        window = 2 * workers
-        for w0 in range(0, len(slices), window):
-            _cancel_check(is_cancelled, what)
-            futures = {i: pool.submit(fn, slices[i])
-                       for i in range(w0, min(w0 + window, len(slices)))}
-            for i, f in futures.items():
-                results[i] = f.result()
-            if progress is not None:
-                progress(lo + (hi - lo) * min(len(slices), w0 + window) / len(slices))
-    return results
 
 
 def picks_from_contours(contacts, contours, elevations_m, *, contact_ids=None,
@@ -108,34 +87,58 @@ def picks_from_contours(contacts, contours, elevations_m, *, contact_ids=None,
 
     Notes
     -----
-    Method (all steps vectorised over arrays of geometries):
+    What is computed (all steps vectorised over arrays):
 
     1. Contacts and contours are exploded into single parts (multi-part lines and
        collections), and every part is cut into pieces of at most 32 segments that share
-       their junction vertices, so the bounding boxes in the index are tight and each exact
-       intersection is computed on small inputs.
-    2. The contour pieces go into a ``shapely.STRtree`` (Sort-Tile-Recursive R-tree;
-       Leutenegger et al. 1997); one bulk ``query(..., predicate="intersects")`` with all
-       contact pieces gives the pairs that really meet, and ``shapely.intersection`` (GEOS
-       overlay) computes each pair's intersection exactly.
-    3. Point results (crossings, and touches of a contact tangent to a contour or ending on
-       it) become picks at the contour's elevation. Line results (a contact running along a
-       contour) are first re-joined per contact and contour with ``shapely.line_merge``, then
-       give their end points (and, with ``overlap_spacing_m``, points along them).
-    4. Picks of the same contact and elevation within ``tolerance_m`` are merged (KD-tree
-       pairs and connected components, single linkage; the first pick of each group stays).
-       This removes the copies made where a crossing falls on a piece junction, on a
-       duplicated vertex, or where a contour is split into several features at that point.
+       their junction vertices.
+    2. The picks are the intersection of every contact piece with every contour piece, as
+       GEOS's overlay (``shapely.intersection``) gives it: point results (crossings, and
+       touches of a contact tangent to a contour or ending on it) become picks at the
+       contour's elevation; line results (a contact running along a contour) are re-joined per
+       contact and contour with ``shapely.line_merge`` and give their end points (and, with
+       ``overlap_spacing_m``, points along them).
+    3. Picks of the same contact and elevation within ``tolerance_m`` are merged (KD-tree
+       pairs and connected components, single linkage; the first pick of each group in the
+       overlay's order stays). This removes the copies made where a crossing falls on a piece
+       junction, on a duplicated vertex, or where a contour is split into several features at
+       that point.
+
+    How step 2 is computed: all segments at once with numpy
+    (:func:`strikeline.picks.crossings.segment_crossings`). Pairs of contact and contour
+    segments whose boxes overlap come from a grid of buckets; the four orientation signs of a
+    pair are taken where a floating-point filter proves them (Shewchuk 1997), and a proper
+    crossing's point is the crossing of the two lines in homogeneous coordinates (O'Rourke
+    1998, §7.2) evaluated in double-double arithmetic (Dekker 1971) in the same operations as
+    GEOS, so it is GEOS's point to the last bit. A piece pair with anything else - a touch, a
+    vertex on or within a guard distance of the other line, a collinear stretch, two crossings
+    of one segment at nearly one point - goes to GEOS's overlay whole, which handles every
+    case. The points are listed in the overlay's order (``shapely.STRtree`` of the contour
+    pieces, Sort-Tile-Recursive R-tree, Leutenegger et al. 1997): it matters only within a
+    group of picks merged in step 3 that do not all lie on one spot, and there the index's
+    own order and GEOS's order of a pair's points are taken. The picks are those of the
+    overlay of every piece pair, byte for byte. Inputs with non-finite coordinates go through
+    the overlay whole.
 
     A touch counts once: GEOS returns one point per touch, and any copies from neighbouring
-    pieces are merged in step 4. Picks a contact makes at two different elevations at one
+    pieces are merged in step 3. Picks a contact makes at two different elevations at one
     place (contours that meet on a cliff) are both kept.
 
     References
     ----------
+    Dekker, T. J. (1971). A floating-point technique for extending the available precision.
+    *Numerische Mathematik* 18, 224-242. https://doi.org/10.1007/BF01397083
+
     Leutenegger, S. T., Lopez, M. A. & Edgington, J. (1997). STR: a simple and efficient
     algorithm for R-tree packing. *Proceedings of the 13th International Conference on Data
     Engineering*, 497-506. https://doi.org/10.1109/ICDE.1997.582015
+
+    O'Rourke, J. (1998). *Computational Geometry in C*, 2nd ed., Cambridge University Press,
+    §7.2 (segment-segment intersection).
+
+    Shewchuk, J. R. (1997). Adaptive precision floating-point arithmetic and fast robust
+    geometric predicates. *Discrete & Computational Geometry* 18, 305-363.
+    https://doi.org/10.1007/PL00009321
 
     Examples
     --------
@@ -167,73 +170,16 @@ def picks_from_contours(contacts, contours, elevations_m, *, contact_ids=None,
         if progress is not None:
             progress(1.0)
         return PickSet.empty()
-    t_pieces, t_piece_owner = _cut_into_pieces(t_parts, t_owner, _PIECE_SEGMENTS)
-    c_pieces, c_piece_owner = _cut_into_pieces(c_parts, c_owner, _PIECE_SEGMENTS)
-    if progress is not None:
-        progress(0.1)
-
-    tree = shapely.STRtree(t_pieces)
-
-    def query(s):
-        a, b = tree.query(c_pieces[s], predicate="intersects")
-        return a + s.start, b
-
-    found = _run_batches(query, len(c_pieces), workers=n_workers, is_cancelled=is_cancelled,
-                         progress=progress, lo=0.1, hi=0.4, what="contour intersection")
-    ia = np.concatenate([f[0] for f in found]).astype(np.intp)
-    ib = np.concatenate([f[1] for f in found]).astype(np.intp)
-
-    def intersect(s):
-        return shapely.intersection(c_pieces[ia[s]], t_pieces[ib[s]])
-
-    inter = _run_batches(intersect, len(ia), workers=n_workers, is_cancelled=is_cancelled,
-                         progress=progress, lo=0.4, hi=0.9, what="contour intersection")
-    inter = np.concatenate(inter) if inter else np.empty(0, dtype=object)
-    contact_of = c_piece_owner[ia]
-    contour_of = t_piece_owner[ib]
-
-    # Explode results into single points and single lines, remembering the pair.
-    parts, pair, types = _explode(inter)
-
-    is_point = types == 0
-    pt_xy = shapely.get_coordinates(parts[is_point])
-    pt_contact = contact_of[pair[is_point]]
-    pt_contour = contour_of[pair[is_point]]
-
-    is_line = np.isin(types, _LINE_TYPES)
-    ov_xy = np.empty((0, 2))
-    ov_contact = np.empty(0, dtype=np.intp)
-    ov_contour = np.empty(0, dtype=np.intp)
-    if is_line.any():
-        lines = parts[is_line]
-        lc, lt = contact_of[pair[is_line]], contour_of[pair[is_line]]
-        # Re-join stretches cut at piece junctions: one group per (contact, contour).
-        group_key = np.column_stack([lc, lt])
-        uniq, group = np.unique(group_key, axis=0, return_inverse=True)
-        group = group.reshape(-1)
-        order = np.argsort(group, kind="stable")
-        merged = shapely.line_merge(
-            shapely.multilinestrings(lines[order], indices=group[order]))
-        m_parts, m_group = shapely.get_parts(merged, return_index=True)
-        m_parts = np.asarray(m_parts)
-        if overlap_spacing is None:
-            ends = np.concatenate([shapely.get_point(m_parts, 0), shapely.get_point(m_parts, -1)])
-            ov_xy = shapely.get_coordinates(ends)
-            g = np.concatenate([m_group, m_group])
-        else:
-            ov_xy, j = densify_lines(m_parts, overlap_spacing)
-            g = m_group[j]
-        ov_contact, ov_contour = uniq[g, 0], uniq[g, 1]
-
-    xy = np.concatenate([pt_xy, ov_xy])
-    contact = np.concatenate([pt_contact, ov_contact]).astype(np.intp)
-    z = elev[np.concatenate([pt_contour, ov_contour]).astype(np.intp)]
+    engine = {"segments": contour_points.by_segments,
+              "overlay": contour_points.by_overlay}[_ENGINE]
+    xy, contact, z = engine(c_parts, c_owner, t_parts, t_owner, elev, tol=tol,
+                            overlap_spacing=overlap_spacing, workers=n_workers,
+                            progress=progress, is_cancelled=is_cancelled,
+                            max_segments=_PIECE_SEGMENTS)
     if len(xy) == 0:
         if progress is not None:
             progress(1.0)
         return PickSet.empty()
-    keep = _dedupe(xy, np.column_stack([contact.astype(np.float64), z]), tol)
-    xy, contact, z = xy[keep], contact[keep], z[keep]
     order = np.lexsort((xy[:, 1], xy[:, 0], z, contact))
     result = PickSet(np.column_stack([xy[order], z[order]]), ids[contact[order]],
                      np.full(len(order), "contours", dtype="<U8"))
