@@ -433,6 +433,8 @@ SUMMARY_KEYS: tuple[Name, ...] = (
     _s("contact_misfit.check.contact_sigma_m", "m", "positional standard error of the mapped contacts"),
     _s("contact_misfit.n_segments", None, "segments", "integer"),
     _s("contact_misfit.n_flagged", None, "segments flagged", "integer"),
+    _s("contact_misfit.flagged_contact_ids", None, "contact_id of every contact with a flagged segment, ascending",
+       "list"),
     _s("contact_misfit.n_unchecked", None, "segments that could not be checked", "integer"),
     _s("contact_misfit.unchecked_reason", None, "why, in words", "text"),
     _s("predicted_trace", None, "the predicted outcrop trace", _SEC),

@@ -98,6 +98,8 @@ def build_summary(inputs: Inputs, opts: RunOptions, picks: PickSet, plane: dict,
         summary["contact_misfit"] = {"segment_m": SEGMENT_CELLS * min(inputs.dem_grid.cell_x_m, inputs.dem_grid.cell_y_m),
                                      "check": flag_m, "n_segments": int(len(segments["geoms"])),
                                      "n_flagged": int(np.sum(segments["flagged"])),
+                                     "flagged_contact_ids": sorted({int(c) for c, f in zip(
+                                         segments["contact_id"], segments["flagged"]) if f}),
                                      "n_unchecked": int(np.sum(unchecked)),
                                      "unchecked_reason": "off the DEM, or only reachable by extrapolating a spline "
                                                          "fitted without them (at the edge of the mapped ground)"}

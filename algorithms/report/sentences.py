@@ -1,8 +1,8 @@
 """A run's answer in plain sentences, built from its summary (``summary.json``'s dict) alone.
 
 One text for every place that tells the user what a run found: the report page lists the
-sentences under its caution box (:mod:`strikeline.report.page`), the QGIS whole-chain tool writes
-them to its log, one line each. :func:`plain_answer` puts the caution first, as every summary of
+sentences under its caution box (:mod:`strikeline.report.page`), ``strikeline run`` prints them
+(:mod:`strikeline.cli.run`) and the QGIS whole-chain tool writes them to its log, one line each. :func:`plain_answer` puts the caution first, as every summary of
 a forecast must; :func:`answer_sentences` is the answer without it.
 
 Imports neither matplotlib, GDAL nor QGIS: the sentences need no drawing.
@@ -10,6 +10,10 @@ Imports neither matplotlib, GDAL nor QGIS: the sentences need no drawing.
 from __future__ import annotations
 
 from strikeline import CAUTION
+from strikeline import vocabulary as V
+
+#: Most contact ids a sentence names; beyond them it says how many more.
+MAX_IDS = 10
 
 #: The surface models in words.
 MODEL_WORDS = {"plane": "a plane", "trend2": "a quadratic trend surface",
@@ -77,14 +81,40 @@ def _model(m: dict) -> str:
             + (f" Why: {why}." if why else ""))
 
 
+def id_list(ids, *, most: int = MAX_IDS) -> str:
+    """``ids`` in words, the first ``most`` of them and how many more.
+
+    >>> id_list([3, 7]), id_list(range(13), most=10)
+    ('3 and 7', '0, 1, 2, 3, 4, 5, 6, 7, 8, 9 and 3 more')
+    """
+    ids = [str(i) for i in ids]
+    shown, more = ids[:most], len(ids) - most
+    if more > 0:
+        return f"{', '.join(shown)} and {more} more"
+    return shown[0] if len(shown) == 1 else f"{', '.join(shown[:-1])} and {shown[-1]}"
+
+
 def _contact_misfit(cm: dict) -> str:
     rule = (cm.get("check") or {}).get("flag_rule")
     text = (f"{cm['n_flagged']} of {cm['n_segments']} contact segments of {cm['segment_m']:g} m disagree with the "
             "surface forecast without them" + (f" ({rule})" if rule else "") + " and are flagged on the map")
+    ids = cm.get("flagged_contact_ids") or []
+    if ids:
+        text += (f"; they lie on contact{'s' if len(ids) > 1 else ''} {id_list(ids)} (contact_id in the "
+                 f"{V.CONTACT_MISFIT.name} layer)")
     unchecked = cm.get("n_unchecked") or 0
     if unchecked:
         text += f"; {unchecked} were not checked ({cm.get('unchecked_reason') or 'no forecast there'})"
     return text + "."
+
+
+def _map_units(mu: dict) -> str:
+    c = mu["check"]
+    held = (f" ({mu['n_points']} constraint points: {mu['n_above']} under units above the surface, "
+            f"{mu['n_below']} under units below)" if mu.get("n_points") is not None else "")
+    worst = (f", by at most {c['max_violation_m']:.2f} m ({V.UNIT_CONFLICTS.name} layer)"
+             if c["n_violated"] and c.get("max_violation_m") is not None else "")
+    return f"Against the map's units{held} the surface breaks {c['n_violated']} of {c['n_points']} check points{worst}."
 
 
 def _thickness(t: dict) -> str | None:
@@ -99,7 +129,8 @@ def answer_sentences(s: dict) -> list[str]:
     """The run's answer in plain sentences, from ``summary.json``'s dict ``s`` (no caution).
 
     In order: the sheet's plane, each group's plane, the picks, the surface model and why, the
-    structure contours, the predicted trace's misfit, the flagged contact segments, the map-unit
+    structure contours, the predicted trace's misfit (or why it was not measured), the flagged
+    contact segments and the contacts they lie on (at most :data:`MAX_IDS` named), the map-unit
     check, the thickness; a sentence is left out when the run did not make its result.
 
     Parameters
@@ -127,10 +158,10 @@ def answer_sentences(s: dict) -> list[str]:
                    f"(90% of its {tm['n_vertices']} vertices within {tm['p90_m']:.1f} m).")
     if s.get("contact_misfit"):
         out.append(_contact_misfit(s["contact_misfit"]))
-    mu = s.get("map_units")
-    if mu:
-        c = mu["check"]
-        out.append(f"Against the map's units the surface breaks {c['n_violated']} of {c['n_points']} check points.")
+    elif tm.get("note"):
+        out.append(f"The predicted trace's misfit was not measured: {tm['note']}.")
+    if s.get("map_units"):
+        out.append(_map_units(s["map_units"]))
     thickness = _thickness(s.get("thickness") or {})
     if thickness:
         out.append(thickness)

@@ -78,7 +78,7 @@ def test_horizontal_bed_runs_through_and_reports_no_direction(horizontal_run):
     assert "horizontal within its 95% confidence" in pl["horizontal"]
     # Source: GDAL's contour generator drew the contact at LEVEL_M
     assert pl["centroid_m"][2] == pytest.approx(LEVEL_M, abs=LEVEL_TOL_M)
-    line = next(x for x in proc.stdout.splitlines() if x.startswith("best-fit plane"))
+    line = next(x for x in proc.stdout.splitlines() if x.startswith("The contact"))  # sentences.plane_words
     assert "horizontal within its 95% confidence" in line
     assert not re.search(r"strike \d", line) and "toward" not in line
 
@@ -135,7 +135,7 @@ def test_gently_dipping_bed_keeps_its_direction(tmp_path, demo):
     assert abs(azimuth_difference(pl["dip_direction_deg"], GENTLE_DD_DEG)) <= max(2.0, pl["dip_direction_ci95_deg"])
     # common practice: strike by the right-hand rule is the dip direction minus 90
     assert pl["strike_rhr_deg"] == pytest.approx((pl["dip_direction_deg"] - 90.0) % 360.0, abs=1e-3)
-    line = next(x for x in proc.stdout.splitlines() if x.startswith("best-fit plane"))
+    line = next(x for x in proc.stdout.splitlines() if x.startswith("The contact"))  # sentences.plane_words
     assert "toward" in line and "strike" in line and "horizontal" not in line
 
 

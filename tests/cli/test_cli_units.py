@@ -51,7 +51,9 @@ def test_summary_reports_the_constraints_and_what_still_breaks_them(runs):
     names = [lyr.GetLayerDefn().GetFieldDefn(i).GetName() for i in range(lyr.GetLayerDefn().GetFieldCount())]
     lyr = ds = None
     assert names == ["unit", "side", "violation_m"]
-    assert "map units:" in proc.stdout and "constraint points" in proc.stdout
+    line = next(x for x in proc.stdout.splitlines() if x.startswith("Against the map's units"))
+    assert f"({s['n_points']} constraint points: {s['n_above']} under units above" in line
+    assert f"breaks {c['n_violated']} of {c['n_points']} check points" in line
 
 
 def test_the_surface_honours_the_units_on_the_grid(runs):

@@ -59,6 +59,28 @@ def test_each_result_of_the_summary_has_its_sentence_with_its_numbers():
         assert words in text, words
 
 
+def test_flagged_contacts_are_named_up_to_a_limit_then_counted():
+    from strikeline.report.sentences import MAX_IDS
+
+    cm = {"n_flagged": 20, "n_segments": 90, "segment_m": 100.0, "check": {}}
+    few = " ".join(answer_sentences(_summary(contact_misfit={**cm, "flagged_contact_ids": [4, 9]})))
+    assert "they lie on contacts 4 and 9 (contact_id in the contact_misfit layer)" in few
+    ids = list(range(100, 100 + MAX_IDS + 3))  # three more than a sentence names
+    many = " ".join(answer_sentences(_summary(contact_misfit={**cm, "flagged_contact_ids": ids})))
+    assert f"contacts {', '.join(map(str, ids[:MAX_IDS - 1]))} and {ids[MAX_IDS - 1]}" not in many
+    assert f"contacts {', '.join(map(str, ids[:MAX_IDS]))} and 3 more " in many
+
+
+def test_the_map_unit_check_and_a_trace_not_measured_say_why():
+    text = " ".join(answer_sentences(_summary(
+        map_units={"n_points": 300, "n_above": 180, "n_below": 120,
+                   "check": {"n_violated": 4, "n_points": 900, "max_violation_m": 1.234}},
+        trace_misfit={"median_m": None, "p90_m": None, "n_vertices": 0, "note": "needs a DEM"})))
+    assert ("Against the map's units (300 constraint points: 180 under units above the surface, 120 under units "
+            "below) the surface breaks 4 of 900 check points, by at most 1.23 m (unit_conflicts layer).") in text
+    assert "The predicted trace's misfit was not measured: needs a DEM." in text
+
+
 def test_results_the_run_did_not_make_have_no_sentence():
     lines = answer_sentences(_summary(thickness={"mean_m": None, "reason": "no top contacts within reach"}))
     assert len(lines) == 3  # the plane, the picks, why there is no thickness
