@@ -39,10 +39,13 @@ import numpy as np
 #: The values numpy's reductions sum pairwise at a time (its ufunc buffer, ``np.getbufsize()``):
 #: a float64 sum is the block sums of this many values added in order.
 SUM_BLOCK = 8192
+#: Blocks handled at once (a million values): the working copies (keys, digits, squared
+#: deviations) stay a few megabytes whatever the size of the pieces given.
+PIECE_BLOCKS = 128
 #: Bits of one radix-select digit (a histogram of 2**16 counts).
 DIGIT_BITS = 16
 #: A bin holding at most this many values is collected and its ranks taken by np.partition.
-COLLECT_CAP = 1 << 22
+COLLECT_CAP = 1 << 20
 _SIGN = np.uint64(1 << 63)
 
 
@@ -134,8 +137,8 @@ def _blocks(pieces: Iterable) -> Iterable[np.ndarray]:
         if held.size:
             p = np.concatenate([held, p])
         whole = p.size - p.size % SUM_BLOCK
-        if whole:
-            yield p[:whole]
+        for k in range(0, whole, PIECE_BLOCKS * SUM_BLOCK):
+            yield p[k:min(whole, k + PIECE_BLOCKS * SUM_BLOCK)]
         held = p[whole:]
     if held.size:
         yield held

@@ -8,8 +8,9 @@ import numpy as np
 
 from strikeline.geometry.grid import Grid
 
-#: Rows read at a time (one tile row of the scratch GeoTIFF).
-BAND_ROWS = 256
+#: Rows read at a time (a quarter of a tile row of the scratch GeoTIFF: memory of a few copies of
+#: a 64-row band, about 15 MB each at 30,000 columns).
+BAND_ROWS = 64
 
 
 def in_reach_values(path, grid: Grid, *, band_rows: int = BAND_ROWS):
