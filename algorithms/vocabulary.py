@@ -238,8 +238,8 @@ _EDGE_FIELDS = (
     _n("max_offset_m", "m", "largest such distance"),
     _n("n_samples_in_reach", None, "of those, points within reach of both sheets' data (each sheet's picks within its "
        "model's reach: where its structure contours are not forecasts)", "integer"),
-    _n("median_dz_in_reach_m", "m", "median absolute elevation difference there: where both surfaces model data "
-       "and should meet"),
+    _n("median_dz_in_reach_m", "m", "median absolute elevation difference there, where both surfaces interpret "
+       "nearby data"),
     _n("max_dz_in_reach_m", "m", "largest absolute elevation difference there"),
     _n("max_dz_extrapolated_m", "m", "largest absolute elevation difference where one or both sheets extrapolate "
        "(forecasts, which sheets fitting their own surfaces may disagree on by much)"))

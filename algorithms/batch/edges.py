@@ -12,7 +12,7 @@ surface grids are sampled along it, and two figures say how well they meet:
 
 The elevation difference is also split by where it is measured: within reach of both sheets' data
 (each sheet's picks no farther than its model's reach, the rule that draws its structure
-contours solid), where the two surfaces are interpretations of data and should meet, and where
+contours solid), where the two surfaces are interpretations of nearby data, and where
 one sheet or both extrapolate (their contours dashed as forecasts), where two sheets that each fit
 their own surface - a plane on one, a spline on the other - may disagree by much, the more the
 farther from data; a large figure there says how uncertain the forecasts are, not that the edge

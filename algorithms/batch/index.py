@@ -161,9 +161,10 @@ def reach_test(sheets: list[SheetOutputs]):
 
 
 #: What the split of the elevation difference means, in batch.json's words.
-REACH_NOTE = ("*_in_reach_m: where both sheets have picks within their model's reach, the surfaces model "
-              "data and should meet; max_dz_extrapolated_m: where one or both extrapolate (their structure "
-              "contours are forecasts), two sheets fitting their own surfaces can disagree by much")
+REACH_NOTE = ("*_in_reach_m: where both sheets have picks within their model's reach, the surfaces interpret "
+              "nearby data (a large difference there is worth a look); max_dz_extrapolated_m: where one or both "
+              "extrapolate (their structure contours are forecasts), two sheets fitting their own surfaces can "
+              "disagree by much")
 
 
 def compare_edges(sheets: list[SheetOutputs], interval_of: dict) -> list[dict]:
@@ -275,7 +276,9 @@ def index_page(sheets: list[SheetOutputs], out: Path, edges: list[dict]) -> str:
         "<table><tr><th>sheet</th><th>status</th><th>best-fit plane (95% half-widths), or the error</th></tr>",
         *rows, "</table>", "<h2>Shared edges</h2>",
         "<p>Both sheets' surfaces are compared along the edge they share. Where both sheets have data "
-        "within reach (their structure contours drawn solid) the surfaces interpret data and should meet; "
+        "within reach (their structure contours drawn solid) the surfaces interpret nearby data, and a large "
+        "difference is worth a look (a mistraced contact, a different model on either side, a surface curving "
+        "within the reach); "
         "where one or both extrapolate (contours dashed as forecasts), sheets that each fit their own "
         "surface may disagree by much, the more the farther from data: that figure says how uncertain the "
         "forecasts are there, not that the edge is wrong.</p>",
