@@ -46,6 +46,10 @@ GUARD_SHARE = 2.0 ** -26
 #: At most this many grid buckets (int64 counts of 32 MiB).
 _MAX_CELLS = 1 << 22
 
+#: ``b``'s segments are taken this many at a time, which bounds the working memory (a few
+#: hundred bytes per segment of a range) whatever the size of the input.
+_CHUNK_SEGMENTS = 1 << 18
+
 
 # --------------------------------------------------------------------------------------------
 # Double-double arithmetic (hi + lo pairs), vectorised
@@ -388,8 +392,9 @@ def segment_crossings(a: Segments, b: Segments, guard: float, *, workers: int = 
     pair for GEOS, as does a computed point outside either segment's box and a segment crossed
     twice, at points very close together, by segments of one other piece.
 
-    ``b``'s segments are handled in consecutive ranges, ``workers`` at a time on a thread pool
-    (numpy releases the GIL in its loops); the result does not depend on ``workers``.
+    ``b``'s segments are handled in consecutive ranges of at most 2**18, ``workers`` at a time
+    on a thread pool (numpy releases the GIL in its loops); the result does not depend on
+    ``workers``.
     """
     n_b = np.int64(b.n_pieces)
     empty = np.empty(0, np.int64)
@@ -397,15 +402,15 @@ def segment_crossings(a: Segments, b: Segments, guard: float, *, workers: int = 
         return Crossings(empty, empty, np.empty(0), np.empty(0), empty)
     buckets = _Buckets(a, b, guard)
     n_seg = len(b.valid)
-    n_chunks = 1 if workers <= 1 else 2 * workers
+    n_chunks = max(1 if workers <= 1 else 2 * workers, -(-n_seg // _CHUNK_SEGMENTS))
     bounds = np.linspace(0, n_seg, n_chunks + 1).astype(np.int64)
 
     def work(c):
         i, j = buckets.pairs(b, int(bounds[c]), int(bounds[c + 1]))
         return _classify(a, b, i, j, guard)
 
-    if n_chunks == 1:
-        parts = [work(0)]
+    if workers <= 1:
+        parts = [work(c) for c in range(n_chunks)]
     else:
         with ThreadPoolExecutor(max_workers=workers) as pool:
             parts = list(pool.map(work, range(n_chunks)))
