@@ -143,7 +143,8 @@ def surface_sampler(path, grid):
 def reach_test(sheets: list[SheetOutputs]):
     """``f(x, y) -> bool``: within reach of every one of ``sheets``' data (its nearest pick no farther
     than its model's reach: :meth:`strikeline.surfaces.SurfaceModel.is_extrapolated`'s rule on the
-    picks the sheet wrote), or None when a sheet's picks or reach are unknown."""
+    picks the sheet wrote: its model's data unless boreholes add some or thinning leaves some out),
+    or None when a sheet's picks or reach are unknown."""
     from scipy.spatial import cKDTree
 
     if any(s.data_xy is None or not len(s.data_xy) or s.reach_m is None for s in sheets):
