@@ -85,6 +85,26 @@ def _write_curved_geotiff(path, *, rows=37, cols=53, cell=10.0, block=16):
     return (x0, cell, 0.0, y0, 0.0, -cell), (rows, cols)
 
 
+def test_footprint_and_edges_of_a_sheet_too_large_to_read_whole(tmp_path, monkeypatch):
+    """With a memory budget too small for the whole band (as a 30,000^2 sheet's against this
+    machine's), read_raster refuses it, and the index still gets its footprint and edge samples."""
+    import strikeline.io.raster as raster
+    from strikeline.batch.index import raster_grid, surface_sampler
+    from strikeline.errors import InputError
+
+    path = tmp_path / "surface.tif"
+    gt, (rows, cols) = _write_curved_geotiff(path)
+    whole, _ = raster.read_raster(path)
+    monkeypatch.setattr(raster, "memory_budget_bytes", lambda: 4096)
+    with pytest.raises(InputError, match="memory budget"):
+        raster.read_raster(path)
+    grid = raster_grid(path, label="surface")
+    assert grid.shape == (rows, cols)
+    x = np.linspace(gt[0], gt[0] + cols * 10.0, 300)
+    y = np.full(300, gt[3] - rows * 10.0)  # the south edge
+    np.testing.assert_array_equal(surface_sampler(path, grid)(x, y), sample_grid(whole, grid, x, y))
+
+
 def test_footprint_and_edge_samples_of_a_file_match_the_whole_array(tmp_path):
     """The batch index reads only a raster's georeferencing for its footprint and the surface cells
     along an edge: the footprint of the corner coordinates GDAL reports, and the samples of
