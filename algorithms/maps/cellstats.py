@@ -6,7 +6,8 @@ The pieces are the values in the order of the whole array (row-major), from a ca
 starts a new pass over them each time it is called; each figure is computed from them exactly:
 
 * the sum as numpy sums a contiguous float64 array: pairwise summation (Higham 1993) within
-  consecutive blocks of :data:`SUM_BLOCK` values (numpy's reduction buffer), the block sums added
+  consecutive blocks of ``np.getbufsize()`` values (numpy's reduction buffer, 8,192 unless a
+  program changes it with ``np.setbufsize``: it is read at each call), the block sums added
   one after another from the first block; the mean is the sum over the count and the standard
   deviation numpy's two-pass formula (the same block sums of the squared deviations from that
   mean, over the count, square root);
@@ -36,9 +37,6 @@ from collections.abc import Callable, Iterable
 
 import numpy as np
 
-#: The values numpy's reductions sum pairwise at a time (its ufunc buffer, ``np.getbufsize()``):
-#: a float64 sum is the block sums of this many values added in order.
-SUM_BLOCK = 8192
 #: Blocks handled at once (a million values): the working copies (keys, digits, squared
 #: deviations) stay a few megabytes whatever the size of the pieces given.
 PIECE_BLOCKS = 128
@@ -128,17 +126,24 @@ def _value_of_key(key: int) -> float:
     return float(u.view(np.float64)[0])
 
 
+def _sum_block() -> int:
+    """The values numpy's reductions sum pairwise at a time (its ufunc buffer): a float64 sum is
+    the block sums of this many values added in order."""
+    return int(np.getbufsize())
+
+
 def _blocks(pieces: Iterable) -> Iterable[np.ndarray]:
-    """The values of ``pieces`` as whole :data:`SUM_BLOCK` blocks in order (the last may be short),
+    """The values of ``pieces`` as whole blocks of numpy's buffer size in order (the last may be short),
     several blocks at a time, holding back at most one short block between pieces."""
     held = np.empty(0)
     for p in pieces:
         p = np.asarray(p, dtype=np.float64).ravel()
         if held.size:
             p = np.concatenate([held, p])
-        whole = p.size - p.size % SUM_BLOCK
-        for k in range(0, whole, PIECE_BLOCKS * SUM_BLOCK):
-            yield p[k:min(whole, k + PIECE_BLOCKS * SUM_BLOCK)]
+        block = _sum_block()
+        whole = p.size - p.size % block
+        for k in range(0, whole, PIECE_BLOCKS * block):
+            yield p[k:min(whole, k + PIECE_BLOCKS * block)]
         held = p[whole:]
     if held.size:
         yield held
@@ -147,8 +152,9 @@ def _blocks(pieces: Iterable) -> Iterable[np.ndarray]:
 def _block_sum(total, values: np.ndarray):
     """Add the block sums of ``values`` (whole blocks but perhaps the last) to ``total`` in order,
     as numpy's reduction does (``total`` None before the first block)."""
-    whole = values.size - values.size % SUM_BLOCK
-    sums = [np.sum(values[:whole].reshape(-1, SUM_BLOCK), axis=1)] if whole else []
+    block = _sum_block()
+    whole = values.size - values.size % block
+    sums = [np.sum(values[:whole].reshape(-1, block), axis=1)] if whole else []
     if whole < values.size:
         sums.append(np.array([np.sum(values[whole:])]))
     for s in np.concatenate(sums):

@@ -55,6 +55,17 @@ def test_deep_selection_when_bins_are_crowded(monkeypatch, case):
     assert cell_statistics(_pieces(x, [3000, 17]), percentiles=QS) == _numpy(x)
 
 
+def test_numpys_buffer_size_is_followed():
+    """numpy sums a float64 array in blocks of its buffer size: a program that changes it gets
+    numpy's numbers still."""
+    x = CASES["normal"](np.random.default_rng(11), 50_001)
+    old = np.setbufsize(4096)
+    try:
+        assert cell_statistics(_pieces(x, [3001, 17]), percentiles=QS) == _numpy(x)
+    finally:
+        np.setbufsize(old)
+
+
 def test_no_cells():
     want = {"n_cells": 0, "mean_m": None, "std_m": None, "p10_m": None, "p90_m": None}
     assert cell_statistics(np.empty(0)) == want
