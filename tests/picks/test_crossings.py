@@ -3,8 +3,8 @@
 The outside reference is GEOS's overlay through ``shapely.intersection``: the crossing point of
 two segments must be GEOS's to the last bit, and the picks must be byte for byte those of the
 overlay of every intersecting piece pair (the method the bulk computation replaces, kept as
-``_ENGINE = "overlay"``) on invented sheets, the demo sheet and the real-terrain sheets, and
-those of GEOS's intersection of the whole, unsplit lines where every crossing is proper.
+``_ENGINE = "overlay"``) on invented sheets, the demo sheet and the real-terrain sheets
+(test_picks checks them against GEOS's intersection of the whole, unsplit lines).
 """
 import numpy as np
 import pytest
@@ -12,6 +12,7 @@ import shapely
 from shapely import LineString, MultiLineString
 
 from helpers import DEMO, REPO
+from test_picks import wavy_sheet
 from strikeline.picks import crossings, picks_from_contours
 from strikeline.picks.lines import _line_parts, _part_vertices
 
@@ -82,50 +83,14 @@ def test_settled_pairs_and_pairs_left_to_geos():
 # --------------------------------------------------------------------------------------------
 # Same picks as the overlay of every piece pair
 # --------------------------------------------------------------------------------------------
-def hills_sheet(seed, n_hills=12, n_contacts=15, noise_m=2.0):
-    """Closed wavy contour loops round hills and meandering noisy contacts (fictional)."""
-    rng = np.random.default_rng(seed)
-    th = np.linspace(0.0, 2 * np.pi, 181)
-    contours, z = [], []
-    for hx, hy in rng.uniform(200.0, 1800.0, (n_hills, 2)):
-        for j in range(8):
-            r = (250.0 - 28.0 * j) * (1 + 0.2 * np.sin(3 * th + j))
-            ring = np.column_stack([hx + r * np.cos(th), hy + r * np.sin(th)])
-            ring[-1] = ring[0]
-            contours.append(LineString(ring))
-            z.append(400.0 + 20.0 * j)
-    x = np.linspace(0.0, 2000.0, 400)
-    contacts = [LineString(np.column_stack([x, y0 + 150 * np.sin(x / 170 + y0)
-                                            + rng.normal(0, noise_m, x.size)]))
-                for y0 in rng.uniform(100.0, 1900.0, n_contacts)]
-    return contacts, contours, np.array(z)
-
-
 @pytest.mark.parametrize("workers", [1, 2])
 @pytest.mark.parametrize("spacing", [None, 0.7])
 def test_same_picks_as_the_overlay_on_an_invented_sheet(monkeypatch, workers, spacing):
-    contacts, contours, z = hills_sheet(3, noise_m=4.0)
+    contacts, contours, z = wavy_sheet(3, noise_m=4.0)
     got, ref = both_engines(monkeypatch, contacts, contours, z, workers=workers,
                             overlap_spacing_m=spacing)
     assert len(ref) > 500
     assert_same_bytes(got, ref)
-
-
-def test_same_picks_as_geos_on_the_whole_lines():
-    contacts, contours, z = hills_sheet(11)
-    p = picks_from_contours(contacts, contours, z)
-    # Source: GEOS's overlay through shapely.intersection of every unsplit pair (reference):
-    # every crossing here is proper, so GEOS computes each from the same two segments.
-    ref = []
-    for i, c in enumerate(contacts):
-        for t, zt in zip(contours, z):
-            for q in shapely.get_coordinates(shapely.intersection(c, t)):
-                ref.append([i, zt, q[0], q[1]])
-    ref = np.array(ref)
-    ref = ref[np.lexsort(ref.T[::-1])]
-    got = np.column_stack([p.contact_id, p.xyz[:, 2], p.xyz[:, :2]])
-    assert len(ref) > 200
-    assert got.tobytes() == ref.tobytes()
 
 
 def awkward_sheet():
