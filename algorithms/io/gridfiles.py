@@ -161,6 +161,13 @@ class StripWriter:
 
     def close(self) -> str:
         """Flush, close and check the file, then rename it into place; returns the path."""
+        self.finish()
+        self.verify()
+        return self.commit()
+
+    def finish(self) -> None:
+        """Flush and close the file (the first part of :meth:`close`; on the thread that holds
+        GDAL's exception mode)."""
         if self._next_row != self.grid.rows:
             raise ValueError(f"'{self.path}': {self._next_row} of {self.grid.rows} rows written")
         try:
@@ -170,16 +177,33 @@ class StripWriter:
                 self._ds = None  # closes the file; GDAL 3.6 reports a failure here only as its last error
                 if gdal.GetLastErrorType() >= gdal.CE_Failure:
                     raise RuntimeError(gdal.GetLastErrorMsg())
-                self._check()
         except RuntimeError as exc:
             self.abort()
             raise OutputError(f"'{self.path}': GDAL could not write it ({gdal_message(exc)}); free some space or "
                               "choose another folder") from None
+
+    def verify(self) -> None:
+        """Read the closed file back and compare every strip with what was written (the second
+        part of :meth:`close`). It switches no GDAL mode, so the files of a band of grids may be
+        checked on several threads at once (GDAL releases Python's lock while it decompresses)."""
+        try:
+            self._check()
+        except RuntimeError as exc:
+            self.abort()
+            raise OutputError(f"'{self.path}': GDAL could not write it ({gdal_message(exc)}); free some space or "
+                              "choose another folder") from None
+
+    def commit(self) -> str:
+        """Rename the checked file into place (the last part of :meth:`close`); returns the path."""
         os.replace(self.tmp, self.path)
         return self.path
 
     def _check(self) -> None:
+        # a failure is an exception or a None, whichever mode GDAL is in on this thread's call
         ds = gdal.Open(self.tmp, gdal.GA_ReadOnly)
+        if ds is None:
+            raise RuntimeError(gdal.GetLastErrorMsg() or "it could not be opened again")
+        b = None
         try:
             b = ds.GetRasterBand(1)
             if not self.scratch and (b.GetDescription() != self.description or (b.GetUnitType() or "") != self.unit):

@@ -288,9 +288,13 @@ def _by_blocks(block_fn, outs, scratch_grids: dict, grid: Grid, folder, *, block
                     counts["both"] += int((b_in & t_in).sum())
                 if progress is not None:
                     progress(band[0][1] / grid.rows)
-        files = {spec.file: GridFile(Path(writers[key].close()), grid) for key, spec in outs}
+            every = [*writers.values(), *scratch_writers.values()]
+            for w in every:
+                w.finish()
+            list(pool.map(lambda w: w.verify(), every))  # reading back decompresses: both threads
+        files = {spec.file: GridFile(Path(writers[key].commit()), grid) for key, spec in outs}
         any_valid = {k: w.any_valid for k, w in scratch_writers.items()}
-        scratch = {k: Path(w.close()) for k, w in scratch_writers.items()}
+        scratch = {k: Path(w.commit()) for k, w in scratch_writers.items()}
     except BaseException:
         for w in [*writers.values(), *scratch_writers.values()]:
             w.abort()

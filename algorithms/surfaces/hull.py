@@ -92,8 +92,13 @@ def distance_grid(xs, ys, data_xy, *, tree: cKDTree | None = None) -> np.ndarray
 
 
 class RowDistance:
-    """:func:`distance_grid` with the data prepared once (their Voronoi rows), for many blocks of
-    rows; read-only after construction, so threads may share one."""
+    """:func:`distance_grid` with the data prepared once (the extent of their Voronoi cells), for
+    many blocks of rows and columns; read-only after construction, so threads may share one.
+
+    A row's envelope is built from the data whose Voronoi cell meets the row within the columns
+    asked for (the others cannot be the nearest datum of any of those cells), so a grid asked for
+    in narrow blocks costs about what it costs whole.
+    """
 
     def __init__(self, data_xy, *, tree: cKDTree | None = None):
         self.xy = np.unique(np.asarray(data_xy, float).reshape(-1, 2), axis=0)  # a repeated datum: one distance
@@ -102,7 +107,7 @@ class RowDistance:
         self.xref = float(np.mean(px)) if len(px) else 0.0
         self.a = -2.0 * (px - self.xref)
         self.a2 = (px - self.xref) ** 2
-        self.ylo, self.yhi = _voronoi_rows(self.xy)
+        (self.xlo, self.xhi), (self.ylo, self.yhi) = _voronoi_extent(self.xy)
 
     def __call__(self, xs, ys) -> np.ndarray:
         xs = np.asarray(xs, float).ravel()
@@ -111,55 +116,71 @@ class RowDistance:
         px, py, a, a2, ylo, yhi, tree = (self.xy[:, 0], self.xy[:, 1], self.a, self.a2, self.ylo, self.yhi,
                                          self.tree)
         xl = xs - self.xref
-        for i, y in enumerate(ys):
-            # only data whose Voronoi cell meets the row can be the nearest to one of its cells
-            c = np.flatnonzero((ylo <= y) & (yhi >= y))
-            b = a2[c] + (y - py[c]) ** 2
-            low = _lower_envelope(a[c], b) if len(c) >= 3 else None
-            if low is None:
-                if len(c) and len(c) * len(xs) <= (1 << 22):  # few candidates: every one of them
-                    dx = xs[:, None] - px[c]
-                    dy = y - py[c]
-                    out[i] = np.sqrt((dx * dx + dy * dy).min(axis=1))
+        if len(xs):
+            # only data whose Voronoi cell reaches the columns asked for
+            across = np.flatnonzero((self.xlo <= xs.max()) & (self.xhi >= xs.min()))
+            if len(across) < len(px):
+                px, py, a, a2, ylo, yhi = (v[across] for v in (px, py, a, a2, ylo, yhi))
+        for s in range(0, len(ys), _ENVELOPE_ROWS):
+            yb = ys[s:s + _ENVELOPE_ROWS]
+            # the data whose Voronoi cell meets one of these rows: a superset of each row's
+            # candidates (the others lie above its envelope and leave it unchanged)
+            cu = np.flatnonzero((ylo <= yb.max()) & (yhi >= yb.min())) if len(yb) else np.empty(0, int)
+            envelopes = _lower_envelopes(a[cu], a2[cu], py[cu], yb)
+            for i, y in enumerate(yb, start=s):
+                low, cb = envelopes[i - s]
+                if low is None:
+                    # only data whose Voronoi cell meets the row can be the nearest to one of its cells
+                    c = np.flatnonzero((ylo <= y) & (yhi >= y))
+                    if len(c) and len(c) * len(xs) <= (1 << 22):  # few candidates: every one of them
+                        dx = xs[:, None] - px[c]
+                        dy = y - py[c]
+                        out[i] = np.sqrt((dx * dx + dy * dy).min(axis=1))
+                        continue
+                    out[i] = tree.query(np.column_stack([xs, np.full(len(xs), y)]))[0]
                     continue
-                out[i] = tree.query(np.column_stack([xs, np.full(len(xs), y)]))[0]
-                continue
-            cb, ca = b[low], a[c][low]
-            with np.errstate(divide="ignore", invalid="ignore"):
-                brk = -(cb[1:] - cb[:-1]) / (ca[1:] - ca[:-1])  # falling along the hull
-            k = np.searchsorted(-brk, -xl)  # the number of breakpoints right of x: the envelope's vertex
-            low = c[low]
-            best = None
-            for step in (-1, 0, 1):
-                j = low[np.clip(k + step, 0, len(low) - 1)]
-                dx = xs - px[j]
-                dy = y - py[j]
-                d2 = dx * dx + dy * dy
-                best = d2 if best is None else np.minimum(best, d2)
-            out[i] = np.sqrt(best)
+                out[i] = _row_from_envelope(xs, xl, y, cu[low], cb, a, px, py)
         return out
 
 
-def _voronoi_rows(xy):
-    """The lowest and highest y of each datum's Voronoi cell (the region nearer to it than to any
-    other datum), widened by a margin for qhull's rounding; ``-inf, inf`` for an unbounded cell
-    or when there is no diagram. The diagram is computed about the data's centre (map
+def _row_from_envelope(xs, xl, y, low, cb, a, px, py) -> np.ndarray:
+    """The distances along one row from its envelope's vertices ``low`` (data indices, by
+    increasing ``a``) and their lines' intercepts ``cb``."""
+    ca = a[low]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        brk = -(cb[1:] - cb[:-1]) / (ca[1:] - ca[:-1])  # falling along the hull
+    k = np.searchsorted(-brk, -xl)  # the number of breakpoints right of x: the envelope's vertex
+    best = None
+    for step in (-1, 0, 1):
+        j = low[np.clip(k + step, 0, len(low) - 1)]
+        dx = xs - px[j]
+        dy = y - py[j]
+        d2 = dx * dx + dy * dy
+        best = d2 if best is None else np.minimum(best, d2)
+    return np.sqrt(best)
+
+
+def _voronoi_extent(xy):
+    """The least and greatest x, and the least and greatest y, of each datum's Voronoi cell (the
+    region nearer to it than to any other datum): ``(xlo, xhi), (ylo, yhi)``, widened by a margin
+    for qhull's rounding; ``-inf, inf`` for an unbounded cell or when there is no diagram. The diagram is computed about the data's centre (map
     coordinates of millions of metres cost qhull most of its precision), and the margin is ten
     times the worst amount by which a computed cell corner lies farther from its datum than from
     the nearest datum, plus a millimetre."""
     lo, hi = np.full(len(xy), -np.inf), np.full(len(xy), np.inf)
+    xlo, xhi = lo.copy(), hi.copy()
     if len(xy) < 4:
-        return lo, hi
+        return (xlo, xhi), (lo, hi)
     centre = xy.mean(axis=0)
     p = xy - centre
     try:
         vor = Voronoi(p)
     except (QhullError, ValueError):
-        return lo, hi
+        return (xlo, xhi), (lo, hi)
     regions = [(i, vor.regions[r]) for i, r in enumerate(vor.point_region)]
     regions = [(i, r) for i, r in regions if r and -1 not in r]
     if not regions:
-        return lo, hi
+        return (xlo, xhi), (lo, hi)
     idx = np.array([i for i, _ in regions])
     corners = np.concatenate([r for _, r in regions])
     owner = np.repeat(idx, [len(r) for _, r in regions])
@@ -167,44 +188,73 @@ def _voronoi_rows(xy):
     nearest = cKDTree(p).query(v)[0]
     excess = float(np.max(np.hypot(v[:, 0] - p[owner, 0], v[:, 1] - p[owner, 1]) - nearest))
     pad = 10.0 * max(excess, 0.0) + 1e-9 * float(np.ptp(p, axis=0).max()) + 1e-3
-    vy = v[:, 1] + centre[1]
+    vx, vy = v[:, 0] + centre[0], v[:, 1] + centre[1]
     starts = np.concatenate([[0], np.cumsum([len(r) for _, r in regions])[:-1]])
     lo[idx] = np.minimum.reduceat(vy, starts) - pad
     hi[idx] = np.maximum.reduceat(vy, starts) + pad
-    return lo, hi
+    xlo[idx] = np.minimum.reduceat(vx, starts) - pad
+    xhi[idx] = np.maximum.reduceat(vx, starts) + pad
+    return (xlo, xhi), (lo, hi)
 
 
-def _lower_envelope(a, b):
-    """Indices of the lower convex hull of the points ``(a, b)``, from the least ``a`` to the
-    greatest (``None`` when fewer than two vertices remain).
+#: Rows whose envelopes are built together (:func:`_lower_envelopes`): numpy's work per step is
+#: spread over this many rows, and the data of so many rows' Voronoi cells differ little (our choice).
+_ENVELOPE_ROWS = 256
 
-    Andrew's monotone chain (Andrew 1979) over the points sorted by ``a`` (then ``b``): a point
+
+def _lower_envelopes(a, a2, py, ys):
+    """For each row ``y`` of ``ys``: the lower convex hull of the points ``(a_p, b_p)`` with
+    ``b_p = a2_p + (y − py_p)²``, as ``(indices, b of those vertices)`` from the least ``a`` to
+    the greatest, or ``(None, None)`` when fewer than two vertices remain.
+
+    Andrew's monotone chain (Andrew 1979) over the points sorted by ``a``, run for all rows at
+    once: the ``a`` (and so the order) are the same on every row, only the ``b`` differ, so each
+    step of the chain is a few array operations over the rows instead of a loop per row. A point
     that does not turn the chain counter-clockwise is dropped, so collinear points are not
-    vertices, and of points with one ``a`` only the lowest is kept. A few hundred points per row:
-    a loop in Python is several times faster than a qhull call for so few.
+    vertices; of points with one ``a`` only the lowest ``b`` is kept (the first such point in
+    the data's order when they tie: both give one distance along the row).
 
     References
     ----------
     Andrew, A. M. (1979). Another efficient algorithm for convex hulls in two dimensions.
     *Information Processing Letters*, 9(5), 216–219. https://doi.org/10.1016/0020-0190(79)90072-3
     """
+    rows = len(ys)
     if len(a) < 3:
-        return None
-    order = np.lexsort((b, a))
-    A = a[order].tolist()
-    B = b[order].tolist()
-    h = []
-    for i, (ai, bi) in enumerate(zip(A, B)):
-        while len(h) >= 2:
-            o, p = h[-2], h[-1]
-            if (A[p] - A[o]) * (bi - B[o]) - (B[p] - B[o]) * (ai - A[o]) <= 0:
-                h.pop()
-            else:
-                break
-        if h and A[h[-1]] == ai:
-            continue  # the same a and a higher b: never on the lower hull
-        h.append(i)
-    return order[np.array(h)] if len(h) >= 2 else None
+        return [(None, None)] * rows
+    order = np.argsort(a, kind="stable")
+    A, starts = np.unique(a[order], return_index=True)
+    B = a2[order][None, :] + (ys[:, None] - py[order][None, :]) ** 2
+    pick = np.broadcast_to(order[starts], (rows, len(A))).copy()  # the datum of each distinct a, per row
+    sizes = np.diff(np.append(starts, len(order)))
+    Bu = B[:, starts].copy()
+    for g in np.flatnonzero(sizes > 1):  # points sharing an a: the lowest b on each row
+        s0, s1 = starts[g], starts[g] + sizes[g]
+        k = np.argmin(B[:, s0:s1], axis=1)
+        Bu[:, g] = B[np.arange(rows), s0 + k]
+        pick[:, g] = order[s0 + k]
+    m = len(A)
+    hull = np.empty((rows, m), dtype=np.intp)
+    top = np.zeros(rows, dtype=np.intp)
+    all_rows = np.arange(rows)
+    for i in range(m):
+        ai, bi = A[i], Bu[:, i]
+        act = all_rows if i >= 2 else all_rows[:0]
+        while len(act):
+            o = hull[act, top[act] - 2]
+            p = hull[act, top[act] - 1]
+            Ao, Bo = A[o], Bu[act, o]
+            cross = (A[p] - Ao) * (bi[act] - Bo) - (Bu[act, p] - Bo) * (ai - Ao)
+            act = act[cross <= 0]
+            top[act] -= 1
+            act = act[top[act] >= 2]
+        hull[all_rows, top] = i
+        top += 1
+    out = []
+    for r in range(rows):
+        h = hull[r, :top[r]]
+        out.append((pick[r, h], Bu[r, h]) if len(h) >= 2 else (None, None))
+    return out
 
 
 class _Hull:

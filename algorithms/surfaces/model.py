@@ -188,6 +188,7 @@ class SurfaceModel:
     n_groups: int = 0
     _holdout: object = field(default=None, repr=False, compare=False)
     _grid_plans: dict = field(default_factory=dict, init=False, repr=False, compare=False)
+    _prepared: dict = field(default_factory=dict, init=False, repr=False, compare=False)
 
     @property
     def data_xy(self) -> np.ndarray:
@@ -437,7 +438,13 @@ class SurfaceModel:
         xs, ys = grid.cell_centres()
         s = self._surface
 
-        rows_distance = RowDistance(s.tree.data, tree=s.tree) if s.needs_distance() else None
+        rows_distance = None
+        if s.needs_distance():
+            # the data's Voronoi extents, made once per model (a grid in blocks asks many times);
+            # two threads racing here build the same object twice, harmlessly
+            rows_distance = self._prepared.get("row_distance")
+            if rows_distance is None:
+                rows_distance = self._prepared["row_distance"] = RowDistance(s.tree.data, tree=s.tree)
 
         def block(x, y):
             X, Y = np.meshgrid(x, y)
