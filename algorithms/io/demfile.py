@@ -30,7 +30,7 @@ from strikeline.picks.dem import sample_bilinear
 #: Cells read at once by the strips of the check at opening and of the samplers (about 32 MiB as
 #: float64; our choice).
 STRIP_CELLS = 1 << 22
-#: Most cells of the window kept for the next read (128 MiB as float64; our choice).
+#: Most cells of the window kept for the next read, in the file's own type (64 MiB as Float32; our choice).
 CACHE_CELLS = 1 << 24
 #: GDAL's exception mode is process-wide (strikeline.io._gdal): windows read on several threads
 #: (the blocks of a band) take turns.
@@ -133,9 +133,20 @@ class DemFile:
         c0, c1 = max(0, int(c0)), min(cols, int(c1))
         if r1 <= r0 or c1 <= c0:
             return np.empty((max(r1 - r0, 0), max(c1 - c0, 0)))
+        out = as_float(self._raw(r0, r1, c0, c1), self.grid.nodata)  # a new array: the kept window stays as read
+        if self.scale != 1.0:
+            out *= self.scale
+        return out
+
+    def _raw(self, r0: int, r1: int, c0: int, c1: int) -> np.ndarray:
+        """The file's own values (its data type) of a window inside the band: a view of the window
+        kept from the last read when it holds this one, else read from the file and kept when it
+        has at most :data:`CACHE_CELLS` cells. Kept as read (4 bytes a cell for Float32, not the 8
+        of float64 metres), each use converts only its own cells, which gives the values the
+        conversion of the whole window gives (it is cell by cell)."""
         last = self._last[0]
         if last is not None and last[0] <= r0 and r1 <= last[1] and last[2] <= c0 and c1 <= last[3]:
-            return last[4][r0 - last[0]:r1 - last[0], c0 - last[2]:c1 - last[2]].copy()
+            return last[4][r0 - last[0]:r1 - last[0], c0 - last[2]:c1 - last[2]]
         with _READ_LOCK, gdal_exceptions(), decode_threads():
             ds = open_raster(self.path, label=self.label)
             try:
@@ -148,14 +159,10 @@ class DemFile:
                 b.FlushCache()  # drop the window's blocks: memory stays one window
             finally:
                 ds = None
-        out = as_float(raw, self.grid.nodata)
-        del raw
-        if self.scale != 1.0:
-            out *= self.scale
-        if out.size > CACHE_CELLS:
-            return out
-        self._last[0] = (r0, r1, c0, c1, out)
-        return out.copy()
+        if raw.size <= CACHE_CELLS:
+            raw.flags.writeable = False
+            self._last[0] = (r0, r1, c0, c1, raw)
+        return raw
 
     def read(self) -> np.ndarray:
         """The whole band (for a DEM that fits in memory)."""
@@ -174,8 +181,8 @@ class DemFile:
             raise TypeError("a DEM file is read by windows with unit steps")
         last = self._last[0]
         if (last is None or not (last[0] <= r0 and r1 <= last[1] and last[2] == 0 and last[3] == self.grid.cols)) \
-                and (r1 - r0) * self.grid.cols <= CACHE_CELLS:
-            self.read_window(r0, r1, 0, self.grid.cols)  # the band's rows whole: its other blocks follow
+                and (r1 - r0) * self.grid.cols <= CACHE_CELLS and r1 > r0:
+            self._raw(r0, r1, 0, self.grid.cols)  # the band's rows whole, kept: its other blocks follow
         return self.read_window(r0, r1, c0, c1)
 
     # ---------------------------------------------------------------- sampling

@@ -108,3 +108,21 @@ def test_decode_threads_is_scoped_to_the_block():
             assert gdal.GetThreadLocalConfigOption(name, None) == "1"
         assert gdal.GetThreadLocalConfigOption(name, None) == "2"
     assert gdal.GetThreadLocalConfigOption(name, None) is None
+
+
+def test_kept_window_is_the_files_own_type_and_reads_are_independent(tmp_path):
+    rng = np.random.default_rng(3)
+    z = (300 + 500 * rng.random((70, 90))).astype(np.float32)
+    z[10:12, 5:9] = -9999.0
+    path = _dem(tmp_path / "dem.tif", z)
+    whole = _gdal_whole(path)
+    ref = np.where(whole == -9999.0, np.nan, whole) * 0.3048  # GDAL's values, nodata as NaN, feet to metres
+    d = open_dem(path).in_metres(0.3048)
+    a = d[8:40, 3:50]
+    kept = d._last[0][4]
+    assert kept.dtype == np.float32 and kept.shape == (32, 90)  # the band's rows as GDAL read them (Float32)
+    assert np.array_equal(a, ref[8:40, 3:50], equal_nan=True)
+    a[:] = 0.0  # a caller's array is its own: the kept window and the next read are unchanged
+    b = d[9:20, 60:90]
+    assert np.array_equal(b, ref[9:20, 60:90], equal_nan=True)
+    assert np.array_equal(kept, whole[8:40].astype(np.float32))
