@@ -17,6 +17,9 @@ https://doi.org/10.1109/ARITH.2001.930115
 O'Rourke, J. (1998). *Computational Geometry in C*, 2nd ed., Cambridge University Press,
 §7.2 (segment-segment intersection).
 
+Liang, Y.-D. & Barsky, B. A. (1984). A new concept and method for line clipping. *ACM
+Transactions on Graphics* 3(1), 1-22. https://doi.org/10.1145/357332.357333
+
 Shewchuk, J. R. (1997). Adaptive precision floating-point arithmetic and fast robust geometric
 predicates. *Discrete & Computational Geometry* 18, 305-363. https://doi.org/10.1007/PL00009321
 """
@@ -75,36 +78,32 @@ def _dd_sub(ah, al, bh, bl):
     return _dd_add(ah, al, -1.0 * bh, -1.0 * bl)
 
 
+def _product_error(a, b, p):
+    """The rounding error of the double product ``p = a * b``: ``a`` and ``b`` split in halves
+    by ``_SPLIT`` and the partial products summed (Dekker 1971, the exact product)."""
+    c = _SPLIT * a
+    a_hi = c - (c - a)
+    a_lo = a - a_hi
+    c = _SPLIT * b
+    b_hi = c - (c - b)
+    b_lo = b - b_hi
+    return (((a_hi * b_hi - p) + a_hi * b_lo) + a_lo * b_hi) + a_lo * b_lo
+
+
 def _dd_mul(ah, al, bh, bl):
-    """Product of two double-doubles: Dekker's exact product of the high parts (operands split
-    in halves by ``_SPLIT``) plus the cross terms, renormalised (Dekker 1971)."""
-    c_ = _SPLIT * ah
-    hx = c_ - ah
-    c = _SPLIT * bh
-    hx = c_ - hx
-    tx = ah - hx
-    hy = c - bh
-    c_ = ah * bh
-    hy = c - hy
-    ty = bh - hy
-    c = ((((hx * hy - c_) + hx * ty) + tx * hy) + tx * ty) + (ah * bl + al * bh)
-    zh = c_ + c
-    return zh, c + (c_ - zh)
+    """Product of two double-doubles: Dekker's exact product of the high parts plus the cross
+    terms, renormalised (Dekker 1971)."""
+    p = ah * bh
+    c = _product_error(ah, bh, p) + (ah * bl + al * bh)
+    zh = p + c
+    return zh, c + (p - zh)
 
 
 def _dd_div(ah, al, bh, bl):
     """Quotient of two double-doubles: a double quotient corrected by one Dekker product."""
     q = ah / bh
-    c = _SPLIT * q
-    hc = c - q
-    u = _SPLIT * bh
-    hc = c - hc
-    tc = q - hc
-    hy = u - bh
     prod = q * bh
-    hy = u - hy
-    ty = bh - hy
-    u = (((hc * hy - prod) + hc * ty) + tc * hy) + tc * ty
+    u = _product_error(q, bh, prod)
     c = ((((ah - prod) - u) + al) - q * bl) / bh
     u = q + c
     return u, (q - u) + c
@@ -201,6 +200,25 @@ def _cell(v, origin, inv_h, n):
     return t.astype(np.int64)
 
 
+def _clipped(idx, x0, y0, x1, y1, rect):
+    """The segments ``idx`` clipped to the rectangle ``rect`` (Liang & Barsky 1984): those that
+    meet it, with the ends of their part inside (an end inside stays exactly as it was)."""
+    dx, dy = x1 - x0, y1 - y0
+    t0, t1 = np.zeros(len(idx)), np.ones(len(idx))
+    out = np.zeros(len(idx), bool)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        for p, q in ((-dx, x0 - rect[0]), (dx, rect[2] - x0), (-dy, y0 - rect[1]), (dy, rect[3] - y0)):
+            r = q / p
+            t0 = np.where(p < 0, np.maximum(t0, r), t0)
+            t1 = np.where(p > 0, np.minimum(t1, r), t1)
+            out |= (p == 0) & (q < 0)
+    k = np.flatnonzero(~out & (t0 <= t1))
+    t0, t1, dx, dy = t0[k], t1[k], dx[k], dy[k]
+    x0, y0, x1, y1 = x0[k], y0[k], x1[k], y1[k]
+    return (idx[k], np.where(t0 > 0, x0 + t0 * dx, x0), np.where(t0 > 0, y0 + t0 * dy, y0),
+            np.where(t1 < 1, x0 + t1 * dx, x1), np.where(t1 < 1, y0 + t1 * dy, y1))
+
+
 def _entries(x0, y0, x1, y1, valid, pad: float, grid, counts=None):
     """Bucket entries of the valid segments: one per bucket its padded box touches.
 
@@ -233,8 +251,11 @@ def _entries(x0, y0, x1, y1, valid, pad: float, grid, counts=None):
         codes.append(np.full(len(k), code, np.int8))
     big = np.flatnonzero(valid & ~small)
     if len(big):
-        bx0, by0, bx1, by1 = x0[big], y0[big], x1[big], y1[big]
         h = 1.0 / inv_h
+        # Only the part inside the grid (which holds every point within the guard distance of
+        # a segment of ``a``) is cut into chunks: a long line far beyond it costs nothing.
+        big, bx0, by0, bx1, by1 = _clipped(big, x0[big], y0[big], x1[big], y1[big],
+                                           (gx - pad, gy - pad, gx + nx * h + pad, gy + ny * h + pad))
         k = np.maximum(1, np.ceil(np.maximum(np.abs(bx1 - bx0), np.abs(by1 - by0)) / h)).astype(np.int64)
         seg = np.repeat(np.arange(len(k)), k)
         j = np.arange(len(seg)) - np.repeat(np.cumsum(k) - k, k)

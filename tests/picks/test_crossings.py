@@ -136,6 +136,21 @@ def test_same_picks_as_the_overlay_in_awkward_cases(monkeypatch, spacing, tolera
     assert_same_bytes(got, ref)
 
 
+def test_a_long_line_far_beyond_the_contacts(monkeypatch):
+    # A contour 20,000 km long passing 4 m from a 100 m contact, and one 2,000 km long that
+    # runs along the contact's first segment (y = x / 50): only their parts near the contact
+    # are cut into bucket-sized chunks.
+    contact = [LineString([(0.0, 0.0), (50.0, 1.0), (100.0, 0.0)])]
+    contours = [LineString([(-1e7, 5.0), (1e7, 5.0)]), LineString([(-1e6, -2e4), (1e6, 2e4)]),
+                LineString([(40.0, -3.0), (41.0, 3.0)])]
+    got, ref = both_engines(monkeypatch, contact, contours, [10.0, 20.0, 30.0])
+    assert_same_bytes(got, ref)
+    # Common practice: the shared stretch gives its two ends, (0, 0) and (50, 1), at 20 m; the
+    # short contour crosses at 30 m.
+    assert got.xyz[:2].tolist() == [[0.0, 0.0, 20.0], [50.0, 1.0, 20.0]]
+    assert got.xyz[2, 2] == 30.0
+
+
 def read_lines(path, field=None):
     from strikeline.io.vector import read_layer
 
