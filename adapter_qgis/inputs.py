@@ -40,6 +40,11 @@ MAP_UNITS = option("map_units").qgis
 UNIT_FIELD = option("unit_field").qgis
 UNITS_ABOVE = option("units_above").qgis
 UNITS_BELOW = option("units_below").qgis
+#: Further contact line layers, used with the first as the command line's repeated contacts option:
+#: a parameter of its own beside the single contacts layer, so that models saved with that layer
+#: still run and the contacts' field parameters keep a layer to list fields from.
+MORE_CONTACTS = "MORE_CONTACTS"
+MORE_CONTACTS_LABEL = "More mapped contact line layers (used with the first, in this order)"
 
 
 def optional_string(alg, parameters, key, context) -> str | None:
@@ -52,9 +57,32 @@ def optional_distance(alg, parameters, key, context) -> float | None:
     return alg.parameterAsDouble(parameters, key, context) or None
 
 
+def more_contacts_parameter(alg, label: str = MORE_CONTACTS_LABEL):
+    """The optional list of further contact line layers (:data:`MORE_CONTACTS`)."""
+    from qgis.core import QgsProcessing, QgsProcessingParameterMultipleLayers
+
+    return QgsProcessingParameterMultipleLayers(MORE_CONTACTS, alg.tr(label), QgsProcessing.TypeVectorLine,
+                                                optional=True)
+
+
+def read_more_contacts(alg, parameters, context, steps, *, label: str = "contacts") -> list:
+    """The layers of :data:`MORE_CONTACTS` as library ``VectorLayer`` objects, in the order given
+    (empty when the tool has no such parameter or it is left empty)."""
+    if alg.parameterDefinition(MORE_CONTACTS) is None:
+        return []
+    out = []
+    for lyr in alg.parameterAsLayerList(parameters, MORE_CONTACTS, context) or []:
+        name = vector_name(lyr, lyr, label)
+        out.append(read_vector(lyr, name, geometry="line", is_cancelled=steps.is_cancelled))
+    return out
+
+
 def add_contact_and_topography(alg) -> None:
-    """The inputs of picks and of the whole chain: contacts, DEM and/or contours with elevations."""
-    for name in ("contacts", "dem", "contours", "elev_field"):
+    """The inputs of picks and of the whole chain: contacts (one layer, and more in a list), DEM
+    and/or contours with elevations."""
+    alg.addParameter(parameter(alg, "contacts"))
+    alg.addParameter(more_contacts_parameter(alg))
+    for name in ("dem", "contours", "elev_field"):
         alg.addParameter(parameter(alg, name))
     alg.addParameter(parameter(alg, "pick_spacing_m", parent=CONTACTS))
     for name in ("dem_unit", "contour_unit"):  # elevations in feet are converted to metres at load
@@ -163,13 +191,14 @@ def read_contact_inputs(alg, parameters, context, steps, *, more: dict | None = 
             and alg.parameterAsSource(parameters, CONTOURS, context) is None:
         raise InputError("no topography given: give a DEM, topographic contour lines with their "
                          "elevation field, or both")
-    contacts = read_layer(alg, parameters, CONTACTS, context, steps, label="contacts", geometry="line")
+    contacts = [read_layer(alg, parameters, CONTACTS, context, steps, label="contacts", geometry="line"),
+                *read_more_contacts(alg, parameters, context, steps)]
     dem, grid, dem_path = read_dem(alg, parameters, DEM, context, steps, unit=True)
     layers = read_layers(alg, parameters, context, steps, {"contours": (CONTOURS, "contours", "line"), **(more or {})})
-    opts = RunOptions(contacts=contacts.path, out="", **values(alg, parameters, context, "elev_field", "pick_spacing_m",
+    opts = RunOptions(contacts=[c.path for c in contacts], out="", **values(alg, parameters, context, "elev_field", "pick_spacing_m",
                                                                "dem_unit", "contour_unit"), **options)
     # Files are hashed into the summary; other entries only name the input.
-    paths = {k: lyr.path for k, lyr in {"contacts": contacts, **layers}.items() if lyr is not None}
+    paths = {k: lyr.path for k, lyr in {"contacts": contacts[0], **layers}.items() if lyr is not None}
     if dem_path:
         paths["dem"] = dem_path
     inputs = assemble_inputs(contacts, opts, dem=dem, dem_grid=grid, paths=paths, log=steps.log,
@@ -180,8 +209,8 @@ def read_contact_inputs(alg, parameters, context, steps, *, more: dict | None = 
 
 def input_records(opts: RunOptions, contacts, layers: dict, dem_path) -> dict:
     """summary.json's ``inputs``: every input by role with its path, layer and the fields used,
-    as :func:`strikeline.pipeline.load_inputs` records the command line's (the contacts and top
-    contacts as lists, one record per input)."""
+    as :func:`strikeline.pipeline.load_inputs` records the command line's (the contacts, a list of
+    layers, and top contacts as lists, one record per input)."""
     fields = {
         "contours": {"elev_field": opts.elev_field},
         "boreholes": {"borehole_z_field": opts.borehole_z_field, "borehole_collar_field": opts.borehole_collar_field,
@@ -190,7 +219,8 @@ def input_records(opts: RunOptions, contacts, layers: dict, dem_path) -> dict:
                          "dip_direction_field": None if opts.strike_field else (opts.dip_direction_field or "dip_dir")},
         "map_units": {"unit_field": opts.unit_field},
     }
-    records = {"contacts": [input_record(contacts.path, layer=contacts.layer_name, fields={"group_by": opts.group_by})]}
+    records = {"contacts": [input_record(c.path, layer=c.layer_name, fields={"group_by": opts.group_by})
+                            for c in contacts]}
     if dem_path:
         records["dem"] = input_record(dem_path)
     for role, lyr in layers.items():

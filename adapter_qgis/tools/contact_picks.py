@@ -23,7 +23,10 @@ class ContactPicks(StrikelineAlgorithm):
         "sampled along every contact (every DEM cell size, or at the spacing given), and/or every crossing of a contact "
         "with a topographic contour line (at the contour's elevation). Give a DEM, contour lines "
         "with their elevation field, or both. The output points (PointZ, fields contact_id, "
-        "source, elevation_m) are the input of the attitude and surface tools.")
+        "source, elevation_m) are the input of the attitude and surface tools. Several contact "
+        "layers are used together as the command line's repeated contacts: the first in the contacts "
+        "parameter (which may use its selected features only), the others, whole, in the list of "
+        "more contact layers; contact ids number on from one layer to the next.")
     METHOD = (
         "DEM picks: the contacts are divided into equal steps no longer than one DEM cell (or the "
         "spacing given) and the "

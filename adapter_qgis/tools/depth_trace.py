@@ -11,10 +11,11 @@ from qgis.core import (
 
 from strikeline import vocabulary as V
 from strikeline.pipeline import contact_misfit_layer, depth_trace_misfit, trace_misfit_layer
+from strikeline.pipeline.inputs import join_layers
 from strikeline.pipeline.rasters import raster_flag, require_same_grid
 
 from ..base import REF_GDAL_CONTOUR, REF_PRESS, StrikelineAlgorithm
-from ..inputs import read_dem, read_layer, to_dem_crs
+from ..inputs import more_contacts_parameter, read_dem, read_layer, read_more_contacts, to_dem_crs
 from ..layers import qgis_crs
 from ..outputs import Table, add_outputs, write_raster, write_sink
 from ..params import option, parameter
@@ -35,7 +36,9 @@ class DepthTrace(StrikelineAlgorithm):
         "contacts cut into segments of ten DEM cells with each segment's misfit, flagged beyond a "
         "distance (default three cells) - where the model and the map disagree. Give the forecast "
         "mask of Surface model to mark the trace where it is extrapolated beyond the data. The "
-        "surface must be on the DEM's grid (Surface model with the DEM as reference grid).")
+        "surface must be on the DEM's grid (Surface model with the DEM as reference grid). Contacts "
+        "in several layers: the first in the contacts parameter, the others in the list of more "
+        "contact layers, numbered on as the whole chain numbers them.")
     METHOD = ("Depth is the cell-by-cell difference; the trace is the zero contour of the depth "
               "grid from GDAL's contour generator; distances use a spatial index over the trace's "
               "segments; vertices off the DEM's valid cells (bilinear support) are not counted.")
@@ -58,6 +61,7 @@ class DepthTrace(StrikelineAlgorithm):
         self.addParameter(QgsProcessingParameterFeatureSource(
             self.CONTACTS, self.tr("Mapped contact lines (for the misfit)"), [QgsProcessing.TypeVectorLine],
             optional=True))
+        self.addParameter(more_contacts_parameter(self, "More mapped contact line layers (for the misfit, with the first)"))
         self.addParameter(QgsProcessingParameterRasterLayer(
             self.FORECAST_MASK, self.tr("Forecast mask (from Surface model) to mark extrapolated parts"),
             optional=True))
@@ -85,9 +89,12 @@ class DepthTrace(StrikelineAlgorithm):
         if mask is not None:
             require_same_grid(dem_grid, mask_grid, what_a=f"DEM '{dpath}'", what_b=f"forecast mask '{mpath}'")
             extrapolated_fn = raster_flag(mask, mask_grid, at_least=0.5)
-        contacts = read_layer(self, parameters, self.CONTACTS, context, steps, label="contacts", geometry="line")
-        if contacts is not None:
-            contacts = to_dem_crs(contacts, dem_grid, label="contacts", log=steps.log)
+        first = read_layer(self, parameters, self.CONTACTS, context, steps, label="contacts", geometry="line")
+        layers = [c for c in (first,) if c is not None] + read_more_contacts(self, parameters, context, steps)
+        contacts = None
+        if layers:  # one layer of them all, contact ids numbered on as strikeline run numbers them
+            contacts, _ = join_layers([to_dem_crs(c, dem_grid, label="contacts", log=steps.log) for c in layers],
+                                      label="contacts")
         steps.feedback.setProgress(30)
         steps.check("depth and trace")
         flag_m = self.parameterAsDouble(parameters, self.MISFIT_FLAG, context) or None

@@ -12,10 +12,11 @@ from strikeline.pipeline import attitudes_layer
 from strikeline.attitude import CONFIDENCE_METHODS
 from strikeline.pipeline.planes import point_local_attitudes
 from strikeline.pipeline.options import option
+from strikeline.pipeline.workload import check_resamples
 
 from ..base import REF_FERNANDEZ, StrikelineAlgorithm
 from ..inputs import PICKS, add_picks, read_picks
-from ..params import add_parameters, parameter
+from ..params import add_parameters, option_names, parameter, value
 from ..outputs import Table, add_outputs, write_sink
 from ..styles import attach_style
 from .plane_attitude import REF_EFRON, REF_WOODCOCK
@@ -78,6 +79,10 @@ class LocalAttitudes(StrikelineAlgorithm):
         window = self.parameterAsDouble(parameters, self.WINDOW, context) or None
         spacing = self.parameterAsDouble(parameters, self.GRID_SPACING, context) or None
         sigma = self.parameterAsDouble(parameters, self.SIGMA_Z, context) or None
+        resamples = value(self, parameters, "window_resamples", context)
+        # refused before any draw, by the plane tool's check (the memory of one window's draws, and
+        # resamples x picks as the work: the windows overlap, so the real work is a few times that)
+        check_resamples(resamples, len(xyz), names={"resamples": option_names(self)["window_resamples"]})
         steps.feedback.setProgress(10)
         la, counts = point_local_attitudes(
             xyz, contact_id=vals[cfield] if cfield else None, what=f"picks {name.what}", window_m=window,
@@ -86,8 +91,7 @@ class LocalAttitudes(StrikelineAlgorithm):
             across_picks=self.parameterAsBool(parameters, self.ACROSS, context),
             grid_spacing_m=spacing,
             method=CONFIDENCE_METHODS[self.parameterAsEnum(parameters, self.CONFIDENCE, context)],
-            n_resamples=self.parameterAsInt(parameters, self.RESAMPLES, context), sigma_z_m=sigma,
-            n_draws=self.parameterAsInt(parameters, self.RESAMPLES, context),
+            n_resamples=resamples, sigma_z_m=sigma, n_draws=resamples,
             seed=self.parameterAsInt(parameters, self.SEED, context),
             progress=steps.part(0.1, 0.9), is_cancelled=steps.is_cancelled)
         steps.check("local attitudes")

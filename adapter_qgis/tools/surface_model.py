@@ -118,7 +118,8 @@ class SurfaceModel(StrikelineAlgorithm):
             ext = self.parameterAsExtent(parameters, self.EXTENT, context, crs)
             bounds = (ext.xMinimum(), ext.yMinimum(), ext.xMaximum(), ext.yMaximum())
         cell = value(self, parameters, "cell_m", context)
-        return grid_over(bounds, cell_m=cell, crs_wkt=crs_wkt(crs), log=steps.log)
+        names = {**option_names(self), "extent": f"the '{self.parameterDefinition(self.EXTENT).description()}'"}
+        return grid_over(bounds, cell_m=cell, crs_wkt=crs_wkt(crs), log=steps.log, names=names)
 
     def process(self, parameters, context, steps):
         model, seed = (value(self, parameters, name, context) for name in ("model", "seed"))

@@ -105,7 +105,10 @@ class WholeChain(StrikelineAlgorithm):
         "grids, and, with a DEM, depth below ground, the trace misfit and the contact segments that "
         "misfit; with the unit's top contacts also isopachs (vertical and true thickness). The "
         "summary JSON is the command line's summary.json, and the report is its report.html: the caution, the "
-        "answer in plain words and the figures on one page (needs matplotlib).")
+        "answer in plain words and the figures on one page (needs matplotlib). Contacts in several "
+        "layers: the first in the contacts parameter, the others in the list of more contact layers "
+        "(as the command line's contacts option given again); the log names the contacts whose "
+        "segments are flagged (their contact_id in the contact misfit layer).")
     METHOD = ("Picks: bilinear DEM sampling and exact contour crossings; attitude: total least "
               "squares with bootstrap confidence and eigenvalue shape quality; surfaces: least squares "
               "and thin-plate splines with cross-validation; contours and trace: GDAL's contour "
@@ -158,7 +161,8 @@ class WholeChain(StrikelineAlgorithm):
         opts = dataclasses.replace(opts, extent=extent_value(self, parameters, "extent", context, inputs.crs_wkt))
         # compute's own size checks, first, in the words of this tool's parameters (not the command's flags);
         # the grids stay in memory here (no output folder for blocks), as compute then checks them
-        check_workload(inputs, opts, grid=surface_grid(inputs, opts), names=option_names(self), auto_blocks=False)
+        names = option_names(self)
+        check_workload(inputs, opts, grid=surface_grid(inputs, opts, names=names), names=names, auto_blocks=False)
         r = compute(inputs, opts, log=tracker.log, tracker=tracker)
         s = r.summary
         plane = s["plane"]

@@ -14,19 +14,20 @@ from strikeline.io.crs import same_crs
 from strikeline.maps.dipgrids import depth_below_ground
 from strikeline.maps.trace import split_lines_by_flag
 from strikeline.picks import sample_bilinear
-from strikeline.pipeline.options import Log, _quiet
+from strikeline.pipeline.options import CLI_OPTION_NAMES, Log, _quiet
 from strikeline.pipeline.steps import structure_contours
 
 
-def grid_over(bounds, *, cell_m: float | None, crs_wkt: str, log: Log = _quiet) -> Grid:
+def grid_over(bounds, *, cell_m: float | None, crs_wkt: str, log: Log = _quiet, names: dict | None = None) -> Grid:
     """The output grid of :func:`strikeline.pipeline.surface_grid` over ``bounds`` = (xmin, ymin,
     xmax, ymax) without a DEM (``cell_m`` None: its automatic cell size, about 1/500 of the extent),
-    its corners on multiples of the cell."""
-    return output_grid(dem_grid=None, bounds=bounds, cell_m=cell_m, extent=None, crs_wkt=crs_wkt, log=log)
+    its corners on multiples of the cell; ``names`` as for :func:`output_grid`."""
+    return output_grid(dem_grid=None, bounds=bounds, cell_m=cell_m, extent=None, crs_wkt=crs_wkt, log=log,
+                       names=names)
 
 
 def output_grid(*, dem_grid: Grid | None, bounds, cell_m: float | None, extent, crs_wkt: str,
-                log: Log = _quiet) -> Grid:
+                log: Log = _quiet, names: dict | None = None) -> Grid:
     """The grid the surface and every output raster are made on.
 
     With a DEM and neither ``extent`` nor ``cell_m``: the DEM's own grid, unchanged. Otherwise
@@ -34,12 +35,16 @@ def output_grid(*, dem_grid: Grid | None, bounds, cell_m: float | None, extent, 
     extent) over ``extent`` (default: the DEM's extent, else ``bounds``, the data's), widened to
     multiples of the cell (:meth:`Grid.aligned`), so that grids of neighbouring sheets made with
     the same cell share their cell edges. Refuses a grid of more than
-    :func:`~strikeline.geometry.grid.max_grid_cells` cells in one line.
+    :func:`~strikeline.geometry.grid.max_grid_cells` cells in one line whose fix names the cell and
+    extent options as ``names`` does (``cell_m``, ``extent``; default the command line's flags, a QGIS
+    tool passes its parameters' labels).
     """
+    names = {**CLI_OPTION_NAMES, **(names or {})}
+    cell_name, extent_name = names["cell_m"], names["extent"]
     if dem_grid is not None and cell_m is None and extent is None:
         return dem_grid.with_nodata(None)
     box = check_extent(extent) if extent is not None else dem_grid.bounds if dem_grid is not None else tuple(bounds)
-    whose = "--extent" if extent is not None else "the DEM's extent" if dem_grid is not None else \
+    whose = extent_name if extent is not None else "the DEM's extent" if dem_grid is not None else \
         "the contour layer's extent"
     cell = cell_m
     if cell is None:
@@ -47,9 +52,9 @@ def output_grid(*, dem_grid: Grid | None, bounds, cell_m: float | None, extent, 
             cell = dem_grid.cell_x_m
         else:
             cell = auto_cell_m(box)
-            log(f"no --cell given: using {cell:g} m cells over {whose}")
+            log(f"no {cell_name} given: using {cell:g} m cells over {whose}")
     grid = Grid.aligned(*box, cell_m=float(cell), crs_wkt=crs_wkt)
-    check_grid_size(grid)
+    check_grid_size(grid, fix=f"give a larger {cell_name} or a smaller {extent_name}")
     x0, y0 = grid.transform[0], grid.transform[3]
     log(f"output grid: {grid.rows} x {grid.cols} cells of {grid.cell_x_m:g} m over {whose}, top-left corner "
         f"({x0:.10g}, {y0:.10g}) on multiples of the cell")

@@ -181,16 +181,17 @@ def attitude_of(xyz, sigma, *, crs_wkt: str, what: str, strict: bool, resamples:
 POOR_DIRECTION_DEG = 45.0
 
 
-def surface_grid(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet) -> Grid:
+def surface_grid(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, names: dict | None = None) -> Grid:
     """The output grid: the DEM's grid; with ``--extent`` or ``--cell`` (or without a DEM) square
     cells of ``--cell`` over ``--extent`` (defaults: the DEM's cell and extent, else about 1/500 of
     the contour layer's extent), corners on multiples of the cell
-    (:func:`strikeline.pipeline.rasters.output_grid`)."""
+    (:func:`strikeline.pipeline.rasters.output_grid`; ``names`` names ``cell_m`` and ``extent`` in its
+    refusal, default the command line's flags)."""
     from strikeline.pipeline.rasters import output_grid  # rasters builds on these steps
 
     geoms = inputs.contours.geoms if inputs.contours is not None else inputs.contacts.geoms
     return output_grid(dem_grid=inputs.dem_grid, bounds=tuple(shapely.total_bounds(geoms)), cell_m=opts.cell_m,
-                       extent=getattr(opts, "extent", None), crs_wkt=inputs.crs_wkt, log=log)
+                       extent=getattr(opts, "extent", None), crs_wkt=inputs.crs_wkt, log=log, names=names)
 
 
 def contact_segments(picks: PickSet, *, cell_m: float, vertex_spacing_m: float = 0.0) -> np.ndarray:
