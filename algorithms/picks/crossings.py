@@ -219,7 +219,7 @@ def _clipped(idx, x0, y0, x1, y1, rect):
             np.where(t1 < 1, x0 + t1 * dx, x1), np.where(t1 < 1, y0 + t1 * dy, y1))
 
 
-def _entries(x0, y0, x1, y1, valid, pad: float, grid, counts=None):
+def _entries(x0, y0, x1, y1, valid, pad: float, grid, occupied=None):
     """Bucket entries of the valid segments: one per bucket its padded box touches.
 
     A box spanning at most 2 x 2 buckets (nearly every segment) gives its corner buckets; a
@@ -227,8 +227,8 @@ def _entries(x0, y0, x1, y1, valid, pad: float, grid, counts=None):
     own padded box. Each entry carries a code: bit 0 set where its bucket is the first column of
     its (chunk's) box, bit 1 where it is the first row; a pair of boxes is reported only from the
     bucket where both bits are set in one of the two codes (the lower-left bucket of the
-    overlap of their bucket ranges), so once per pair of chunks. With ``counts``, entries in
-    buckets whose count is zero are dropped. Returns segment index, bucket, code, and whether
+    overlap of their bucket ranges), so once per pair of chunks. With ``occupied`` (a flag
+    per bucket), entries in other buckets are dropped. Returns segment index, bucket, code, and whether
     any segment was cut into chunks, and the padded boxes of all the segments.
     """
     gx, gy, inv_h, nx, ny = grid
@@ -243,8 +243,8 @@ def _entries(x0, y0, x1, y1, valid, pad: float, grid, counts=None):
                                 (ix0, iy1, tall, 1), (ix1, iy1, wide & tall, 0)):
         cell = cy * nx + cx
         m = small if extra is None else small & extra
-        if counts is not None:
-            m = m & (counts[cell] > 0)
+        if occupied is not None:
+            m = m & occupied[cell]
         k = np.flatnonzero(m)
         segs.append(k)
         cells.append(cell[k])
@@ -275,7 +275,7 @@ def _entries(x0, y0, x1, y1, valid, pad: float, grid, counts=None):
         ex_, ey_ = cx0[e] + r % wx[e], cy0[e] + r // wx[e]
         cell = ey_ * nx + ex_
         code = ((ex_ == cx0[e]).astype(np.int8) | ((ey_ == cy0[e]).astype(np.int8) << 1))
-        m = np.ones(len(cell), bool) if counts is None else counts[cell] > 0
+        m = np.ones(len(cell), bool) if occupied is None else occupied[cell]
         segs.append(big[seg[e[m]]])
         cells.append(cell[m])
         codes.append(code[m])
@@ -311,6 +311,7 @@ class _Buckets:
             ax0, ay0, ax1, ay1, np.ones(len(ia), bool), guard, self.grid)
         self.counts = np.bincount(cell, minlength=nx * ny)
         self.starts = np.cumsum(self.counts) - self.counts
+        self.occupied = self.counts > 0  # a small array to look up every segment of b in
         self.order = np.argsort(cell)
 
     def pairs(self, b: Segments, lo: int, hi: int):
@@ -319,7 +320,7 @@ class _Buckets:
         :func:`_entries`). Every pair closer than the guard distance is among them."""
         eb_seg, b_cell, b_code, b_cut, b_box = _entries(
             b.x[lo:hi], b.y[lo:hi], b.x[lo + 1:hi + 1], b.y[lo + 1:hi + 1], b.valid[lo:hi],
-            self.guard, self.grid, self.counts)
+            self.guard, self.grid, self.occupied)
         c = self.counts[b_cell]
         eb = np.repeat(np.arange(len(b_cell)), c)
         ea = self.order[np.repeat(self.starts[b_cell], c) + np.arange(len(eb))
