@@ -207,7 +207,8 @@ def _clipped(idx, x0, y0, x1, y1, rect):
     t0, t1 = np.zeros(len(idx)), np.ones(len(idx))
     out = np.zeros(len(idx), bool)
     with np.errstate(divide="ignore", invalid="ignore"):
-        for p, q in ((-dx, x0 - rect[0]), (dx, rect[2] - x0), (-dy, y0 - rect[1]), (dy, rect[3] - y0)):
+        for p, q in ((-dx, x0 - rect[0]), (dx, rect[2] - x0),
+                     (-dy, y0 - rect[1]), (dy, rect[3] - y0)):
             r = q / p
             t0 = np.where(p < 0, np.maximum(t0, r), t0)
             t1 = np.where(p > 0, np.minimum(t1, r), t1)
@@ -228,8 +229,8 @@ def _entries(x0, y0, x1, y1, valid, pad: float, grid, occupied=None):
     its (chunk's) box, bit 1 where it is the first row; a pair of boxes is reported only from the
     bucket where both bits are set in one of the two codes (the lower-left bucket of the
     overlap of their bucket ranges), so once per pair of chunks. With ``occupied`` (a flag
-    per bucket), entries in other buckets are dropped. Returns segment index, bucket, code, and whether
-    any segment was cut into chunks, and the padded boxes of all the segments.
+    per bucket), entries in other buckets are dropped. Returns segment index, bucket, code,
+    whether any segment was cut into chunks, and the padded boxes of all the segments.
     """
     gx, gy, inv_h, nx, ny = grid
     box = (np.minimum(x0, x1) - pad, np.minimum(y0, y1) - pad,
@@ -254,9 +255,10 @@ def _entries(x0, y0, x1, y1, valid, pad: float, grid, occupied=None):
         h = 1.0 / inv_h
         # Only the part inside the grid (which holds every point within the guard distance of
         # a segment of ``a``) is cut into chunks: a long line far beyond it costs nothing.
-        big, bx0, by0, bx1, by1 = _clipped(big, x0[big], y0[big], x1[big], y1[big],
-                                           (gx - pad, gy - pad, gx + nx * h + pad, gy + ny * h + pad))
-        k = np.maximum(1, np.ceil(np.maximum(np.abs(bx1 - bx0), np.abs(by1 - by0)) / h)).astype(np.int64)
+        rect = (gx - pad, gy - pad, gx + nx * h + pad, gy + ny * h + pad)
+        big, bx0, by0, bx1, by1 = _clipped(big, x0[big], y0[big], x1[big], y1[big], rect)
+        ext = np.maximum(np.abs(bx1 - bx0), np.abs(by1 - by0))
+        k = np.maximum(1, np.ceil(ext / h)).astype(np.int64)
         seg = np.repeat(np.arange(len(k)), k)
         j = np.arange(len(seg)) - np.repeat(np.cumsum(k) - k, k)
         kk = k[seg].astype(np.float64)
@@ -266,8 +268,10 @@ def _entries(x0, y0, x1, y1, valid, pad: float, grid, occupied=None):
         ay = np.where(j == 0, by0[seg], by0[seg] + dy * (j / kk))
         ex = np.where(last, bx1[seg], bx0[seg] + dx * ((j + 1) / kk))
         ey = np.where(last, by1[seg], by0[seg] + dy * ((j + 1) / kk))
-        cx0, cy0 = _cell(np.minimum(ax, ex) - pad, gx, inv_h, nx), _cell(np.minimum(ay, ey) - pad, gy, inv_h, ny)
-        cx1, cy1 = _cell(np.maximum(ax, ex) + pad, gx, inv_h, nx), _cell(np.maximum(ay, ey) + pad, gy, inv_h, ny)
+        cx0 = _cell(np.minimum(ax, ex) - pad, gx, inv_h, nx)
+        cy0 = _cell(np.minimum(ay, ey) - pad, gy, inv_h, ny)
+        cx1 = _cell(np.maximum(ax, ex) + pad, gx, inv_h, nx)
+        cy1 = _cell(np.maximum(ay, ey) + pad, gy, inv_h, ny)
         wx = cx1 - cx0 + 1
         count = wx * (cy1 - cy0 + 1)
         e = np.repeat(np.arange(len(count)), count)

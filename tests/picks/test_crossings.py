@@ -75,7 +75,8 @@ def test_settled_pairs_and_pairs_left_to_geos():
                 LineString([(60.0, 0.5), (61.0, 1.0)])]             # clear miss
     a, b, guard = split(contact, contours)
     found = crossings.segment_crossings(a, b, guard)
-    assert found.x.tolist() == [10.25] and found.y.tolist() == [0.0]  # common practice: x = 10 + 0.5/2
+    # Common practice: the segment from (10, -1) to (10.5, 1) is halfway across at y = 0.
+    assert found.x.tolist() == [10.25] and found.y.tolist() == [0.0]
     assert found.b_piece.tolist() == [0]
     assert (found.flagged % b.n_pieces).tolist() == [1, 2, 3]
 
