@@ -45,13 +45,18 @@ def two_layers(sheet):
 
 
 @pytest.fixture(scope="module")
-def command_picks(tmp_path_factory, sheet, two_layers):
+def command_run(tmp_path_factory, sheet, two_layers):
     first, second, _ = two_layers
     out = tmp_path_factory.mktemp("cli") / "out"
     proc = subprocess.run([sys.executable, "-c", MAIN, "run", "--contacts", first, "--contacts", second,
                            "--dem", sheet["dem"], "--out", str(out), *QUICK], capture_output=True, text=True)
     assert proc.returncode == 0, proc.stderr
-    return _picks_of(out / V.RESULTS_FILE)
+    return out
+
+
+@pytest.fixture(scope="module")
+def command_picks(command_run):
+    return _picks_of(command_run / V.RESULTS_FILE)
 
 
 def test_the_picks_of_two_layers_are_the_command_lines(run, sheet, two_layers, command_picks):
@@ -76,3 +81,26 @@ def test_the_whole_chain_takes_the_same_two_layers(run, sheet, two_layers, comma
     xyz, cid = command_picks
     np.testing.assert_array_equal(shapely.get_coordinates(geoms, include_z=True), xyz)
     np.testing.assert_array_equal(np.asarray(cols["contact_id"], dtype=np.int64), cid)
+
+
+def test_the_depth_tool_segments_two_layers_as_the_command_line(run, sheet, two_layers, command_run):
+    _, _, second_uri = two_layers
+    res = run("depthtrace", {"SURFACE": str(command_run / V.SURFACE.file), "DEM": sheet["dem"],
+                             "CONTACTS": sheet["contacts_uri"], "MORE_CONTACTS": [second_uri],
+                             "depth": TMP, "predicted_trace": TMP, "contact_misfit": TMP})
+    geoms, cols = table(res["contact_misfit"], z=False)
+    ref = ogr.Open(str(command_run / V.RESULTS_FILE))
+    lyr = ref.GetLayerByName(V.CONTACT_MISFIT.name)
+    ref_cid, ref_wkb = [], []
+    for f in lyr:
+        ref_cid.append(f.GetFieldAsInteger("contact_id"))
+        ref_wkb.append(bytes(f.GetGeometryRef().ExportToWkb()))
+    lyr = ref = None
+    # the same contacts, joined and numbered as the command line joins them, cut into the same
+    # segments (their misfits differ by design: the run measures each against a forecast made
+    # without it, maps.trace.holdout_misfit_segments; the tool against the trace of the surface it
+    # is given, maps.trace.contact_misfit_segments)
+    assert len(set(ref_cid)) > 2
+    np.testing.assert_array_equal(np.asarray(cols["contact_id"], dtype=np.int64), ref_cid)
+    np.testing.assert_allclose(shapely.get_coordinates(list(geoms)),
+                               shapely.get_coordinates(shapely.from_wkb(ref_wkb)), atol=1e-6)
