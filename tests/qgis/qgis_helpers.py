@@ -7,7 +7,33 @@ from __future__ import annotations
 import numpy as np
 import shapely
 from osgeo import gdal
-from qgis.core import QgsVectorLayer
+from qgis.core import QgsProcessingFeedback, QgsVectorLayer
+
+
+class LogFeedback(QgsProcessingFeedback):
+    """A feedback that keeps the log lines (information and warnings) in order."""
+
+    def __init__(self):
+        super().__init__()
+        self.lines = []
+
+    def pushInfo(self, text):  # noqa: N802 - QGIS's name
+        self.lines.append(text)
+
+    def pushWarning(self, text):  # noqa: N802
+        self.lines.append(text)
+
+
+def qgis_message(run, name, params) -> str:
+    """The one-line message of the QgsProcessingException that tool ``name`` raises on ``params``."""
+    import pytest
+    from qgis.core import QgsProcessingException
+
+    with pytest.raises(QgsProcessingException) as exc:
+        run(name, params)
+    msg = str(exc.value)
+    assert "Traceback" not in msg and "\n" not in msg
+    return msg
 
 
 def as_layer(value):

@@ -19,7 +19,7 @@ from qgis.core import (
     QgsProcessingFeedback,
     QgsVectorLayer,
 )
-from qgis_helpers import memory_copy
+from qgis_helpers import memory_copy, qgis_message
 
 from strikeline.errors import StrikelineError
 from strikeline.pipeline import RunOptions, load_inputs
@@ -39,12 +39,6 @@ def library_message(**opts) -> str:
     return str(exc.value)
 
 
-def qgis_message(run, name, params) -> str:
-    with pytest.raises(QgsProcessingException) as exc:
-        run(name, params)
-    msg = str(exc.value)
-    assert "Traceback" not in msg and "\n" not in msg
-    return msg
 
 
 @pytest.fixture(scope="module")

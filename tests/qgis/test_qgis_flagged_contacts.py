@@ -10,7 +10,7 @@ import json
 
 import pytest
 from osgeo import ogr
-from qgis.core import QgsProcessingFeedback
+from qgis_helpers import LogFeedback, model_index
 
 from strikeline import vocabulary as V
 from strikeline.report.sentences import id_list, plain_answer
@@ -20,25 +20,9 @@ pytestmark = pytest.mark.qgis
 TMP = "TEMPORARY_OUTPUT"
 
 
-class Log(QgsProcessingFeedback):
-    """A feedback that keeps the log lines in order."""
-
-    def __init__(self):
-        super().__init__()
-        self.lines = []
-
-    def pushInfo(self, text):  # noqa: N802 - QGIS's name
-        self.lines.append(text)
-
-    def pushWarning(self, text):  # noqa: N802
-        self.lines.append(text)
-
-
 def test_the_log_names_the_flagged_contacts_of_the_misfit_layer(run, sheet, tmp_path):
-    from qgis_helpers import model_index
-
     segments, summary = tmp_path / "segments.gpkg", tmp_path / "summary.json"
-    fb = Log()
+    fb = LogFeedback()
     # the demo's hand-traced contacts: some stretches stray from the true contact (test_data/demo)
     run("modelcontact", {"CONTACTS": f"{sheet['dir'] / 'contacts_mapped.gpkg'}|layername=contacts",
                          "DEM": sheet["dem"], "MODEL": model_index("plane"), "RESAMPLES": 100, "NO_REPORT": True,

@@ -12,7 +12,8 @@ from __future__ import annotations
 import sys
 
 import pytest
-from qgis.core import QgsApplication, QgsProcessingFeedback, QgsProcessingOutputHtml
+from qgis.core import QgsApplication, QgsProcessingOutputHtml
+from qgis_helpers import LogFeedback as Log
 
 from strikeline import CAUTION
 from strikeline import vocabulary as V
@@ -24,20 +25,6 @@ TMP = "TEMPORARY_OUTPUT"
 #: The tool's values of conftest.QUICK (plane, 100 resamples) and of RunOptions' model/resamples.
 QUICK_TOOL = {"MODEL": 1, "RESAMPLES": 100}
 LAYERS = {"picks": TMP, "structure_contours": TMP, "surface": TMP, "dip": TMP, "dip_direction": TMP}
-
-
-class Log(QgsProcessingFeedback):
-    """A feedback that keeps the log lines (information and warnings) in order."""
-
-    def __init__(self):
-        super().__init__()
-        self.lines = []
-
-    def pushInfo(self, text):  # noqa: N802 - QGIS's name
-        self.lines.append(text)
-
-    def pushWarning(self, text):  # noqa: N802
-        self.lines.append(text)
 
 
 def _params(sheet, **more):
