@@ -66,8 +66,11 @@ class StripWriter:
     order in which tiles are completed decides where they lie in the file. Rows are kept until a
     strip of whole tile rows is complete and then written with one ``WriteArray`` across the
     width, which completes the tiles row by row, left to right, as a whole-array write does.
-    Each strip's bytes are hashed; :meth:`close` closes the file (GDAL's last error checked, as
-    GDAL 3.6 does not raise it on close), reads every strip back and compares the hashes.
+    The first and last strips' bytes are hashed; :meth:`close` closes the file (GDAL's last
+    error checked, as GDAL 3.6 does not raise it on close), checks that every tile's bytes lie
+    inside the file and reads those two strips back - the check of the whole-array writer
+    (:class:`strikeline.io.geotiff.GeoTiffWriter`), which reading every strip back would make
+    as costly as the writing itself.
     Use from one thread at a time; create and close it on the thread that holds GDAL's exception
     mode.
     """
@@ -82,7 +85,7 @@ class StripWriter:
         self._pending: list[np.ndarray] = []
         self._n_pending = 0
         self._next_row = 0
-        self._hashes: list[bytes] = []
+        self._hashes: dict[int, bytes] = {}  # first row of the first and the last strip -> digest
         self._any_valid = False
         try:
             with gdal_exceptions():
@@ -155,7 +158,8 @@ class StripWriter:
         if failed is not None:
             raise OutputError(f"'{self.path}': GDAL could not write it ({failed}); free some space or "
                               "choose another folder")
-        self._hashes.append(hashlib.blake2b(strip.tobytes(), digest_size=16).digest())
+        if r0 == 0 or r0 + n == self.grid.rows:
+            self._hashes[r0] = hashlib.blake2b(memoryview(strip), digest_size=16).digest()
         self._pending = [rest] if len(rest) else []
         self._n_pending = len(rest)
 
@@ -183,9 +187,10 @@ class StripWriter:
                               "choose another folder") from None
 
     def verify(self) -> None:
-        """Read the closed file back and compare every strip with what was written (the second
-        part of :meth:`close`). It switches no GDAL mode, so the files of a band of grids may be
-        checked on several threads at once (GDAL releases Python's lock while it decompresses)."""
+        """Check the closed file (the second part of :meth:`close`): size, nodata, description
+        and unit, every tile's bytes inside the file, and the first and last strips read back
+        equal to what was written. It switches no GDAL mode, so the files of a band of grids may
+        be checked on several threads at once (GDAL releases Python's lock while it decompresses)."""
         try:
             self._check()
         except RuntimeError as exc:
@@ -208,8 +213,18 @@ class StripWriter:
             b = ds.GetRasterBand(1)
             if not self.scratch and (b.GetDescription() != self.description or (b.GetUnitType() or "") != self.unit):
                 raise RuntimeError("the file read back differs from what was written (band description or unit)")
-            for k, digest in enumerate(self._hashes):
-                r0 = k * self.strip_rows
+            if (ds.RasterXSize, ds.RasterYSize) != (self.grid.cols, self.grid.rows) or b.GetNoDataValue() != self.nodata:
+                raise RuntimeError("the file read back differs from what was written (size or nodata)")
+            size = os.path.getsize(self.tmp)
+            tw, th = b.GetBlockSize()
+            for ty in range(-(-self.grid.rows // th)):
+                for tx in range(-(-self.grid.cols // tw)):
+                    off = b.GetMetadataItem(f"BLOCK_OFFSET_{tx}_{ty}", "TIFF")
+                    n = b.GetMetadataItem(f"BLOCK_SIZE_{tx}_{ty}", "TIFF")
+                    if not off or not n or int(n) <= 0 or int(off) + int(n) > size:
+                        raise RuntimeError(f"the file read back differs from what was written (tile {tx}, {ty} "
+                                           "missing or cut short)")
+            for r0, digest in self._hashes.items():
                 got = b.ReadAsArray(0, r0, self.grid.cols, min(self.strip_rows, self.grid.rows - r0))
                 b.FlushCache()  # drop the strip's blocks from GDAL's cache: memory stays one strip
                 if got is None or hashlib.blake2b(np.ascontiguousarray(got, dtype=self.dtype).tobytes(),

@@ -1,0 +1,98 @@
+"""strikeline.io.gridfiles.StripWriter: a grid written a band of rows at a time is the file a
+whole-array write gives, and its check catches a damaged file.
+
+Reference: GDAL's own reading of the files (osgeo.gdal 3.6) and the whole-array writer
+:func:`strikeline.io.geotiff.write_geotiff` (itself checked against GDAL in test_geotiff).
+"""
+from __future__ import annotations
+
+import os
+
+import numpy as np
+import pytest
+from osgeo import gdal
+
+from strikeline.errors import OutputError
+from strikeline.geometry.grid import Grid
+from strikeline.io._gdal import gdal_exceptions
+from strikeline.io.geotiff import write_geotiff
+from strikeline.io.gridfiles import SCRATCH_NODATA, StripWriter
+
+
+def _grid(rows=600, cols=530):
+    return Grid((400000.0, 5.0, 0.0, 5300000.0, 0.0, -5.0), (rows, cols), "")
+
+
+def _values(grid):
+    rng = np.random.default_rng(3)
+    X, Y = grid.mesh()
+    z = 500 + 0.01 * (X - 400000) + 30 * np.sin((Y - 5300000) / 300.0) + rng.normal(0, 1e-3, grid.shape)
+    z[10:40, 100:130] = np.nan
+    return z
+
+
+def _write(path, z, grid, *, scratch=False, band_rows=97):
+    w = StripWriter(path, grid, description="surface", unit="m", scratch=scratch)
+    for r0 in range(0, grid.rows, band_rows):
+        w.write_rows(r0, z[r0:r0 + band_rows])
+    return w
+
+
+def test_bands_give_the_whole_array_file(tmp_path):
+    grid = _grid()
+    z = _values(grid)
+    _write(tmp_path / "bands.tif", z, grid).close()
+    write_geotiff(tmp_path / "whole.tif", z, grid, description="surface", unit="m")
+    # Source: the whole-array writer's bytes (the same creation options and tile order)
+    assert (tmp_path / "bands.tif").read_bytes() == (tmp_path / "whole.tif").read_bytes()
+
+
+def test_scratch_grid_reads_back_as_float64(tmp_path):
+    grid = _grid(300, 280)
+    z = _values(grid)
+    _write(tmp_path / "s.tif", z, grid, scratch=True).close()
+    with gdal_exceptions():
+        ds = gdal.Open(str(tmp_path / "s.tif"))  # kept: a band outlives no dataset
+        b = ds.GetRasterBand(1)
+        got = b.ReadAsArray()
+        nodata = b.GetNoDataValue()
+        b = ds = None
+    # Source: GDAL's reading of the file; the values unchanged, the lowest float64 for no value
+    assert nodata == SCRATCH_NODATA
+    assert np.array_equal(got[np.isfinite(z)], z[np.isfinite(z)])
+    assert np.all(got[~np.isfinite(z)] == SCRATCH_NODATA)
+
+
+@pytest.mark.parametrize("damage", ["truncate", "first_tile", "last_tile"])
+@pytest.mark.parametrize("scratch", [False, True])
+def test_the_check_catches_a_truncated_or_damaged_file(tmp_path, damage, scratch):
+    grid = _grid()
+    z = _values(grid)
+    w = _write(tmp_path / "s.tif", z, grid, scratch=scratch)
+    w.finish()
+    size = os.path.getsize(w.tmp)
+    with gdal_exceptions():
+        ds = gdal.Open(w.tmp)
+        b = ds.GetRasterBand(1)
+        ty, tx = (0, 0) if damage == "first_tile" else ((grid.rows - 1) // 256, (grid.cols - 1) // 256)
+        # Source: GDAL's GTiff driver's metadata of where each tile lies (BLOCK_OFFSET_x_y)
+        at = int(b.GetMetadataItem(f"BLOCK_OFFSET_{tx}_{ty}", "TIFF"))
+        b = ds = None
+    with open(w.tmp, "r+b") as f:
+        if damage == "truncate":
+            f.truncate(size * 2 // 3)
+        else:  # bytes near the start of the tile (its first rows hold data) overwritten
+            f.seek(at + 16)
+            f.write(b"\x55" * 64)
+    with pytest.raises(OutputError, match="could not write it"):
+        w.verify()
+    assert os.listdir(tmp_path) == []
+
+
+def test_an_intact_file_passes_the_check(tmp_path):
+    grid = _grid()
+    w = _write(tmp_path / "s.tif", _values(grid), grid)
+    w.finish()
+    w.verify()
+    assert w.commit() == str(tmp_path / "s.tif")
+    assert os.listdir(tmp_path) == ["s.tif"]
