@@ -446,13 +446,22 @@ def output_folder(out, *, overwrite: bool = False, inputs=(), option: str = "--o
             _step("recovered")
             check_out_folder(path, overwrite=overwrite, inputs=inputs, option=option, verify=True)
             part = _sibling(path, "part")
-            part.mkdir()
         except OSError as exc:
             if isinstance(exc, StrikelineError):
                 raise
             raise OutputError(f"cannot write beside '{out}': {exc.strerror}; choose a writable folder for {option}") \
                 from None
+        made = False  # the part folder is removed on failure only once this run made it
         try:
+            # made inside the block that removes it, signals held until it is marked as made: a
+            # signal that arrives as the folder appears still finds it removed
+            try:
+                with deferred_signals():
+                    part.mkdir()
+                    made = True
+            except OSError as exc:
+                raise OutputError(f"cannot write beside '{out}': {exc.strerror}; choose a writable folder for "
+                                  f"{option}") from None
             _step("part_created")
             _write_manifest(part, complete=False)
             _step("marker_written")
@@ -479,7 +488,7 @@ def output_folder(out, *, overwrite: bool = False, inputs=(), option: str = "--o
                     _step("old_removed")
         except BaseException as exc:
             with deferred_signals():
-                if part.exists():
+                if made and part.exists():
                     _remove_tree(part)
             if isinstance(exc, OSError) and not isinstance(exc, StrikelineError):
                 raise OutputError(f"cannot write '{out}': {exc.strerror or exc}; free some space or choose "
