@@ -26,6 +26,12 @@ BYTES_PER_CELL = 200
 #: grids block by block (:mod:`strikeline.pipeline.tiled`), leaving the rest to the DEM, the picks
 #: and the models (our choice).
 GRID_SHARE = 0.5
+#: Cells of the output grid beyond which a run goes block by block whatever the budget (2,048²).
+#: Measured on the bench's plane sheet (bench/_sheets.py), whole run, quiet machine: at 2,000² the
+#: block path took 21.3 s and 566 MiB against 23.1 s and 650 MiB in memory, at 4,000² 33.8 s and
+#: 722 MiB against 37.9 s and 1,179 MiB, the files byte for byte the same; so memory stops
+#: growing with the sheet at no cost in time (our choice of the size).
+BLOCK_SWITCH_CELLS = 2048 * 2048
 #: Bytes per cell of the output grid that a run still holds when its grids go block by block: the
 #: DEM read whole (the reader's 4 + 16 bytes per cell, :func:`strikeline.io.raster.read_raster`)
 #: and its slope for the pick errors (two float32 grids). Measured: 8 to 21 bytes more per further
@@ -53,6 +59,18 @@ def physical_memory_bytes() -> int | None:
     if pages <= 0 or size <= 0:
         return None
     return int(pages) * int(size)
+
+
+def grids_go_in_blocks(rows: int, cols: int) -> bool:
+    """Whether a run's grids of ``rows`` x ``cols`` cells go block by block by themselves: more
+    cells than :data:`BLOCK_SWITCH_CELLS`, or arrays (:data:`BYTES_PER_CELL` per cell) that would
+    fill more than :data:`GRID_SHARE` of the memory budget.
+
+    >>> grids_go_in_blocks(2000, 2000), grids_go_in_blocks(2049, 2048)
+    (False, True)
+    """
+    cells = float(rows) * float(cols)
+    return cells > BLOCK_SWITCH_CELLS or cells * BYTES_PER_CELL > GRID_SHARE * memory_budget_bytes()
 
 
 def memory_budget_bytes() -> int:

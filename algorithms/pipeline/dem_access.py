@@ -1,8 +1,8 @@
 """The DEM in memory or in its file: which, and the steps' reads of it.
 
 A DEM whose grids would go block by block (:func:`strikeline.pipeline.tiled.block_shape_of`: more
-cells than half the memory budget allows at :data:`strikeline.budget.BYTES_PER_CELL`, or
-``--block-cells`` given) stays in its file (:class:`strikeline.io.demfile.DemFile`) and every step
+cells than :data:`strikeline.budget.BLOCK_SWITCH_CELLS` or than half the memory budget allows at
+:data:`strikeline.budget.BYTES_PER_CELL`, or ``--block-cells`` given) stays in its file (:class:`strikeline.io.demfile.DemFile`) and every step
 reads the windows it needs: picks and misfit sample it by strips of rows
 (:func:`strikeline.picks.sample_bilinear` hands a windowed DEM its own sampler), the pick errors'
 ground slope is derived window by window with a one-cell halo, the depth grid reads the window of
@@ -25,11 +25,11 @@ def dem_stays_in_file(shape, opts) -> bool:
     """Whether a DEM of ``shape`` (rows, cols) is read by windows: with ``opts.block_cells`` given,
     or when its grids would go block by block by themselves (the same test as
     :func:`strikeline.pipeline.tiled.block_shape_of`)."""
-    from strikeline.budget import BYTES_PER_CELL, GRID_SHARE, memory_budget_bytes
+    from strikeline.budget import grids_go_in_blocks
 
     if getattr(opts, "block_cells", None) is not None:
         return True
-    return float(shape[0]) * float(shape[1]) * BYTES_PER_CELL > GRID_SHARE * memory_budget_bytes()
+    return grids_go_in_blocks(shape[0], shape[1])
 
 
 def ground_slope_at(dem, grid: Grid, x, y) -> np.ndarray:

@@ -280,8 +280,8 @@ _OPTION_LIST = (
          "contours' or contacts' extent)", commands=_RUN, tools=_CHAIN),
     _opt("block_cells", int, "compute and write the grids in blocks of N x N cells (one band of blocks in memory "
          "at a time, two threads); the files are the same as without it", minimum=1,
-         unset="blocks of 256 x 2048 cells when the grid's arrays would fill more than half the memory budget, "
-         "else the whole grid in memory", flag="--block-cells", metavar="N", advanced=True, commands=_RUN),
+         unset="blocks of 256 x 2048 cells beyond 2048 x 2048 cells or when the grid's arrays would fill more "
+         "than half the memory budget, else the whole grid in memory", flag="--block-cells", metavar="N", advanced=True, commands=_RUN),
     _opt("pick_spacing_m", float, "spacing of DEM picks along the contacts", unit="m", minimum=0.0,
          minimum_open=True, unset="the DEM cell size", flag="--pick-spacing", metavar="METRES", qgis="PICK_SPACING",
          label="Spacing of the DEM picks along the contacts (0: the DEM cell size)", commands=_RUN,

@@ -114,18 +114,19 @@ def block_shape_of(grid: Grid, opts, *, auto: bool = True) -> tuple[int, int] | 
     """The block shape of a run, or None for the whole grid in memory.
 
     ``opts.block_cells`` N gives N x N blocks ((rows, cols) from the library); unset and with
-    ``auto``, the run goes block by block (:data:`DEFAULT_BLOCK`) when the grid's arrays
-    (:data:`strikeline.budget.BYTES_PER_CELL` per cell) would fill more than
-    :data:`strikeline.budget.GRID_SHARE` of the memory budget. ``auto`` is off where the caller
-    needs the grids as arrays (``compute`` without an output folder, e.g. the QGIS tools).
+    ``auto``, the run goes block by block (:data:`DEFAULT_BLOCK`) when the grid has more than
+    :data:`strikeline.budget.BLOCK_SWITCH_CELLS` cells or its arrays would fill more than
+    :data:`strikeline.budget.GRID_SHARE` of the memory budget
+    (:func:`strikeline.budget.grids_go_in_blocks`). ``auto`` is off where the caller needs the
+    grids as arrays (``compute`` without an output folder, e.g. the QGIS tools).
     """
-    from strikeline.budget import BYTES_PER_CELL, GRID_SHARE, memory_budget_bytes
+    from strikeline.budget import grids_go_in_blocks
 
     given = getattr(opts, "block_cells", None)
     if given is not None:
         r, c = (given, given) if np.ndim(given) == 0 else given
         return max(1, int(r)), max(1, int(c))
-    if auto and float(grid.rows) * float(grid.cols) * BYTES_PER_CELL > GRID_SHARE * memory_budget_bytes():
+    if auto and grids_go_in_blocks(grid.rows, grid.cols):
         return DEFAULT_BLOCK
     return None
 
