@@ -95,8 +95,21 @@ class _Poly:
         return np.sqrt(self.sigma_m ** 2 + self.param_se_u(u, v) ** 2)
 
     def param_se_u(self, u, v):
-        a = _basis(u, v, self.degree)
-        q = np.einsum("...i,ij,...j->...", a, self.cov, a)
+        """Standard error of the fitted polynomial at ``(u, v)``: ``sqrt(aᵀ C a)`` with ``a`` the
+        basis (1, u, v[, u², uv, v²]) and ``C`` the coefficients' covariance.
+
+        The quadratic form is summed term by term, ``Σ_i Σ_j (a_i C_ij) a_j`` with ``i`` outer,
+        on whole arrays: the order of numpy's ``einsum('...i,ij,...j->...')``, which it replaces
+        (the same bits; tests/surfaces/test_polynomial_se.py), without the ``(n, k)`` basis
+        array and about twice as fast on a grid's cells.
+        """
+        u, v = np.broadcast_arrays(np.asarray(u, float), np.asarray(v, float))
+        cols = [None, u, v] if self.degree == 1 else [None, u, v, u * u, u * v, v * v]  # None: the 1
+        q = np.zeros(u.shape)
+        for i, ai in enumerate(cols):
+            for j, aj in enumerate(cols):
+                t = self.cov[i, j] if ai is None else ai * self.cov[i, j]  # 1 * c is c, exactly
+                q += t if aj is None else t * aj
         return np.sqrt(np.maximum(q, 0.0))
 
 
