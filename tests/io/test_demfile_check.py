@@ -67,8 +67,10 @@ def test_check_reads_whole_block_rows_and_finds_gdals_extremes(tmp_path, monkeyp
     monkeypatch.setattr(gdal.Band, "ReadAsArray", spy)
     d = open_dem(path)
     valid = whole != -9999.0
+    # Source: GDAL's own ReadAsArray of the whole band, its lowest and highest valid cell
     assert d.minimum == whole[valid].min() and d.maximum == whole[valid].max()
     step = strip_rows(97, 16, cells=strip_cells)
+    # Source: GDAL's block size of the file (16-row blocks, Band.GetBlockSize): strips start on block rows
     assert starts == list(range(0, 83, step))
     if step >= 16:
         assert all(s % 16 == 0 for s in starts)  # no block row is decoded twice
@@ -121,6 +123,8 @@ def test_kept_window_is_the_files_own_type_and_reads_are_independent(tmp_path):
     a = d[8:40, 3:50]
     kept = d._last[0][4]
     assert kept.dtype == np.float32 and kept.shape == (32, 90)  # the band's rows as GDAL read them (Float32)
+    # Source: GDAL's own ReadAsArray of the whole band, nodata as NaN, times the foot's 0.3048 m
+    # (the international foot, exactly 0.3048 m; from memory)
     assert np.array_equal(a, ref[8:40, 3:50], equal_nan=True)
     a[:] = 0.0  # a caller's array is its own: the kept window and the next read are unchanged
     b = d[9:20, 60:90]
