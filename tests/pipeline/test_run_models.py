@@ -84,7 +84,10 @@ def test_plane_has_confidence_quality_and_true_north(demo_out, demo):
     gamma = pyproj.Proj(c).get_factors(lon, lat).meridian_convergence
     assert pl["meridian_convergence_deg"] == pytest.approx(gamma, abs=1e-3)
     assert _angle_diff(pl["dip_direction_true_deg"], pl["dip_direction_deg"] + gamma) < 1e-3
-    assert "± " in proc.stdout and "quality good" in proc.stdout
+    # the printed answer carries the dip's 95% limits from summary.json and the quality
+    lo, hi = pl["dip_deg"] - pl["dip_ci95_deg"], pl["dip_deg"] + pl["dip_ci95_deg"]
+    assert f"dips {pl['dip_deg']:.1f}° (95% limits {lo:.1f}-{hi:.1f}°)" in proc.stdout
+    assert "quality good" in proc.stdout
 
 
 def test_auto_model_scores_every_model_and_keeps_the_plane_for_planar_data(demo_out, demo):
