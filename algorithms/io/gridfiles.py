@@ -23,7 +23,7 @@ from strikeline.geometry.grid import Grid
 from strikeline.io._gdal import gdal_exceptions, gdal_message, quiet_close
 from strikeline.io.contours import _contour_band, _level_options
 from strikeline.io.interrupt import GdalStop
-from strikeline.io.geotiff import CREATION_OPTIONS
+from strikeline.io.geotiff import CREATION_OPTIONS, tile_cut_short
 from strikeline.io.raster import NODATA_OUT
 from strikeline.maps.contours import trim_contour_fringe
 
@@ -215,15 +215,10 @@ class StripWriter:
                 raise RuntimeError("the file read back differs from what was written (band description or unit)")
             if (ds.RasterXSize, ds.RasterYSize) != (self.grid.cols, self.grid.rows) or b.GetNoDataValue() != self.nodata:
                 raise RuntimeError("the file read back differs from what was written (size or nodata)")
-            size = os.path.getsize(self.tmp)
-            tw, th = b.GetBlockSize()
-            for ty in range(-(-self.grid.rows // th)):
-                for tx in range(-(-self.grid.cols // tw)):
-                    off = b.GetMetadataItem(f"BLOCK_OFFSET_{tx}_{ty}", "TIFF")
-                    n = b.GetMetadataItem(f"BLOCK_SIZE_{tx}_{ty}", "TIFF")
-                    if not off or not n or int(n) <= 0 or int(off) + int(n) > size:
-                        raise RuntimeError(f"the file read back differs from what was written (tile {tx}, {ty} "
-                                           "missing or cut short)")
+            cut = tile_cut_short(b, os.path.getsize(self.tmp))
+            if cut is not None:
+                raise RuntimeError(f"the file read back differs from what was written (tile {cut[0]}, {cut[1]} "
+                                   "missing or cut short)")
             for r0, digest in self._hashes.items():
                 got = b.ReadAsArray(0, r0, self.grid.cols, min(self.strip_rows, self.grid.rows - r0))
                 b.FlushCache()  # drop the strip's blocks from GDAL's cache: memory stays one strip
