@@ -419,6 +419,12 @@ def _write_manifest(part: Path, *, complete: bool) -> None:
         _fsync(part)
 
 
+def _beside_error(out, exc: OSError, option: str) -> OutputError:
+    """The refusal of a folder whose parent cannot take the lock, the part folder or the
+    recovery: the file system's reason and the option to change."""
+    return OutputError(f"cannot write beside '{out}': {exc.strerror}; choose a writable folder for {option}")
+
+
 @contextlib.contextmanager
 def output_folder(out, *, overwrite: bool = False, inputs=(), option: str = "--out", log=_quiet):
     """Yield an empty temporary folder to write into; on success it replaces ``out`` safely.
@@ -449,8 +455,7 @@ def output_folder(out, *, overwrite: bool = False, inputs=(), option: str = "--o
         except OSError as exc:
             if isinstance(exc, StrikelineError):
                 raise
-            raise OutputError(f"cannot write beside '{out}': {exc.strerror}; choose a writable folder for {option}") \
-                from None
+            raise _beside_error(out, exc, option) from None
         made = False  # the part folder is removed on failure only once this run made it
         try:
             # made inside the block that removes it, signals held until it is marked as made: a
@@ -460,8 +465,7 @@ def output_folder(out, *, overwrite: bool = False, inputs=(), option: str = "--o
                     part.mkdir()
                     made = True
             except OSError as exc:
-                raise OutputError(f"cannot write beside '{out}': {exc.strerror}; choose a writable folder for "
-                                  f"{option}") from None
+                raise _beside_error(out, exc, option) from None
             _step("part_created")
             _write_manifest(part, complete=False)
             _step("marker_written")
