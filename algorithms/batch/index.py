@@ -46,21 +46,11 @@ class SheetOutputs:
     reach_m: float | None = None  # the model's reach (summary model.reach_m)
 
 
-def raster_grid(path, *, label: str):
-    """The georeferencing of a raster (:class:`strikeline.geometry.grid.Grid`), checked as
-    :func:`strikeline.io.raster.read_raster` checks it, without reading a cell: a sheet of any size
-    is indexed in the same small memory."""
-    from strikeline.io.raster import checked_band
-
-    with checked_band(path, label=label) as (band, grid, _):
-        del band
-    return grid
-
-
 def read_sheet(folder: Path, name: str, status: str, contact, error, opts, log) -> SheetOutputs:
     """The footprint (the surface grid, else the DEM), summary, attitudes and structure contours
     of one sheet; a sheet without results gets the DEM's footprint when the DEM reads. Rasters
     give only their georeferencing here; the edges read the surface along them."""
+    from strikeline.io.raster import raster_grid  # the georeferencing only, any size
     from strikeline.io.vector import read_layer
 
     s = SheetOutputs(name, status, contact, error, footprint=shapely.Polygon())

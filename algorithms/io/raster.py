@@ -81,6 +81,16 @@ def checked_band(path, *, band: int = 1, label: str = "raster"):
             ds = None
 
 
+def raster_grid(path, *, label: str = "raster", band: int = 1) -> Grid:
+    """The georeferencing of a raster (:class:`~strikeline.geometry.grid.Grid`), checked as
+    :func:`read_raster` checks it (the same messages), without reading a cell: a raster of any
+    size is placed in the same small memory (the batch index's footprints and shared edges).
+    :func:`strikeline.io.demfile.raster_shape` gives only the shape, unchecked."""
+    with checked_band(path, band=band, label=label) as (b, grid, _):
+        del b
+    return grid
+
+
 def open_raster(path, *, label: str = "raster"):
     """A GDAL dataset of the raster at ``path``, opened read-only (call inside ``gdal_exceptions()``).
 

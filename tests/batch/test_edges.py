@@ -89,7 +89,8 @@ def test_footprint_and_edges_of_a_sheet_too_large_to_read_whole(tmp_path, monkey
     """With a memory budget too small for the whole band (as a 30,000^2 sheet's against this
     machine's), read_raster refuses it, and the index still gets its footprint and edge samples."""
     import strikeline.io.raster as raster
-    from strikeline.batch.index import raster_grid, surface_sampler
+    from strikeline.batch.index import surface_sampler
+    from strikeline.io.raster import raster_grid
     from strikeline.errors import InputError
 
     path = tmp_path / "surface.tif"
@@ -111,7 +112,8 @@ def test_footprint_and_edge_samples_of_a_file_match_the_whole_array(tmp_path):
     sample_grid on the whole band as GDAL reads it, bit for bit."""
     from osgeo import gdal
 
-    from strikeline.batch.index import SAMPLE_CHUNK, raster_grid, surface_sampler
+    from strikeline.batch.index import SAMPLE_CHUNK, surface_sampler
+    from strikeline.io.raster import raster_grid
 
     path = tmp_path / "surface.tif"
     gt, (rows, cols) = _write_curved_geotiff(path)
