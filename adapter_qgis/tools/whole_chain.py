@@ -163,7 +163,7 @@ class WholeChain(StrikelineAlgorithm):
         # the grids stay in memory here (no output folder for blocks), as compute then checks them
         names = option_names(self)
         check_workload(inputs, opts, grid=surface_grid(inputs, opts, names=names), names=names, auto_blocks=False)
-        r = compute(inputs, opts, log=tracker.log, tracker=tracker)
+        r = compute(inputs, opts, log=tracker.log, tracker=tracker, names=names)
         s = r.summary
         plane = s["plane"]
         for line in plain_answer(s):  # the caution, then the report page's sentences

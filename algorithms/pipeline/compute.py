@@ -80,7 +80,7 @@ def _no_thickness_reason(nb: int, nt: int, both: int, model, top_model) -> str:
 
 
 def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=None,
-            is_cancelled=None, tracker: RunProgress | None = None, folder=None) -> Results:
+            is_cancelled=None, tracker: RunProgress | None = None, folder=None, names: dict | None = None) -> Results:
     """Run every step of the chain.
 
     The grids are arrays in memory, or, with ``opts.block_cells`` or (given ``folder``) for a grid
@@ -92,7 +92,9 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     Each named step of :data:`strikeline.pipeline.progress.COMPUTE_STEPS` is marked as it begins
     on ``tracker`` (a :class:`~strikeline.pipeline.progress.RunProgress` of the whole run, which
     times it and checks for cancellation), or, without one, on a tracker of these steps made from
-    ``progress(fraction)`` and ``is_cancelled()``.
+    ``progress(fraction)`` and ``is_cancelled()``. ``names`` names the options in the log and in
+    refusals as the caller knows them (default the command line's flags; a QGIS tool passes its
+    parameters' labels, :func:`adapter_qgis.params.option_names`).
     """
     own = tracker is None
     if own:
@@ -103,8 +105,8 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     step("picks")
     what = f"picks on contacts {inputs.contacts.what}"
     grid_notes = []  # said once the picks give a plane: an input error stays the only line
-    grid = surface_grid(inputs, opts, log=grid_notes.append)  # first: an extent or cell refused before any work
-    check_workload(inputs, opts, grid=grid, auto_blocks=folder is not None)  # every size-driving option, first
+    grid = surface_grid(inputs, opts, log=grid_notes.append, names=names)  # first: an extent or cell refused before any work
+    check_workload(inputs, opts, grid=grid, names=names, auto_blocks=folder is not None)  # every size-driving option, first
     picks = collect_picks(inputs, spacing_m=opts.pick_spacing_m, log=log, is_cancelled=is_cancelled,
                           progress=tracker.part())
     step("attitude and confidence")

@@ -52,7 +52,7 @@ def output_grid(*, dem_grid: Grid | None, bounds, cell_m: float | None, extent, 
             cell = dem_grid.cell_x_m
         else:
             cell = auto_cell_m(box)
-            log(f"no {cell_name} given: using {cell:g} m cells over {whose}")
+            log(f"cell size not given ({cell_name}): using {cell:g} m cells over {whose}")
     grid = Grid.aligned(*box, cell_m=float(cell), crs_wkt=crs_wkt)
     check_grid_size(grid, fix=f"give a larger {cell_name} or a smaller {extent_name}")
     x0, y0 = grid.transform[0], grid.transform[3]
