@@ -118,11 +118,16 @@ def _bool(values) -> np.ndarray:
     return np.array([bool(v) for v in values], dtype=bool)
 
 
-def load_outputs(folder, *, max_cells: int = MAX_MAP_CELLS, max_points: int = MAX_POINTS) -> ReportData:
+def load_outputs(folder, *, max_cells: int = MAX_MAP_CELLS, max_points: int = MAX_POINTS,
+                 while_reading=None) -> ReportData:
     """Read what the report shows from a run's output ``folder`` (bounded memory, read-only).
 
     The grid files are read on :data:`READ_THREADS` threads while this one reads the layers of
-    ``results.gpkg``; the values are those of one read after the other."""
+    ``results.gpkg``; the values are those of one read after the other. ``while_reading``, if
+    given, is called on this thread with the :class:`ReportData` holding the summary and the
+    layers (not yet the grids, the picks or the contacts inputs) while the grids are still being
+    read: work that needs no grid (figures of the summary and the attitudes) overlaps GDAL's
+    decoding, which runs without Python's lock."""
     folder = Path(folder)
     summary = json.loads((folder / V.SUMMARY_FILE).read_text(encoding="utf-8"))
     d = ReportData(folder, summary)
@@ -155,6 +160,8 @@ def load_outputs(folder, *, max_cells: int = MAX_MAP_CELLS, max_points: int = MA
             q = np.array(["" if x is None else str(x) for x in a["quality"]])
             d.attitudes = {str(k): (num(a["dip_deg"][q == k]), num(a["dip_direction_deg"][q == k]))
                            for k in sorted(set(q.tolist()))}
+        if while_reading is not None:
+            while_reading(d)
         got = {k: f.result() for k, f in grids.items()}
         if V.PICKS.name in names:
             at = residual_at.result() if residual_at is not None else np.full(len(z), np.nan)

@@ -18,6 +18,9 @@ from strikeline.report.sentences import MODEL_WORDS, answer_sentences, plain_ans
 #: What a reader sees when matplotlib is missing (one log line; the run still succeeds).
 MISSING_PLOT = (f"report: {V.REPORT_FILE} not written because matplotlib is not installed; install the plot "
                 "extra (pip install 'strikeline[plot]', or pip install -e '.[plot]' in a checkout) and run again")
+#: Figures drawn from summary.json and the attitudes alone (no grid, pick or contacts input), so
+#: before the grids are read; they are the same drawn after.
+NO_GRID_FIGURES = ("stereonet", "models")
 #: The colour of the frame around every figure (the rendering test finds the figures by it).
 FRAME_RGB = (43, 62, 80)
 
@@ -130,7 +133,15 @@ def render_report(folder) -> str:
     from strikeline.report.data import load_outputs
     from strikeline.report.figures import pixel_size, style
 
-    d = load_outputs(folder)
+    early = {}
+
+    def draw_early(d):  # the figures that need no grid, drawn while the grids are read
+        with style():
+            for name, _, draw, _ in figure_list(d):
+                if name in NO_GRID_FIGURES:
+                    early[name] = draw(d)
+
+    d = load_outputs(folder, while_reading=draw_early)
     s = d.summary
     caution, *answer = plain_answer(s)  # the QGIS log says the same, in the same order
     parts = ["<!DOCTYPE html>", '<html lang="en"><head><meta charset="utf-8">',
@@ -141,7 +152,7 @@ def render_report(folder) -> str:
     parts.append("</ul>")
     with style():
         for i, (name, title, draw, caption) in enumerate(figure_list(d), start=1):
-            png = draw(d)
+            png = early[name] if name in early else draw(d)
             parts += [f'<h2 id="section-{name}">{i}. {_e(title)}</h2>', "<figure>",
                       _img(f"fig-{name}", png, pixel_size(name), title),
                       f"<figcaption>{_e(caption)}</figcaption>", "</figure>"]
