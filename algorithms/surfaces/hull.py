@@ -116,6 +116,7 @@ class RowDistance:
         px, py, a, a2, ylo, yhi, tree = (self.xy[:, 0], self.xy[:, 1], self.a, self.a2, self.ylo, self.yhi,
                                          self.tree)
         xl = xs - self.xref
+        cols = _Columns(xs, xl)
         if len(xs):
             # only data whose Voronoi cell reaches the columns asked for
             across = np.flatnonzero((self.xlo <= xs.max()) & (self.xhi >= xs.min()))
@@ -139,25 +140,101 @@ class RowDistance:
                         continue
                     out[i] = tree.query(np.column_stack([xs, np.full(len(xs), y)]))[0]
                     continue
-                out[i] = _row_from_envelope(xs, xl, y, cu[low], cb, a, px, py)
+                out[i] = _row_from_envelope(cols, y, cu[low], cb, a, px, py)
         return out
 
 
-def _row_from_envelope(xs, xl, y, low, cb, a, px, py) -> np.ndarray:
+class _Columns:
+    """The columns of a call of :class:`RowDistance`: their x (``xs``), x from the data's
+    reference (``xl``), whether they increase, and the magnitudes the rounding allowance of
+    :func:`_row_from_envelope` needs."""
+
+    def __init__(self, xs, xl):
+        self.xs, self.xl = xs, xl
+        self.increasing = len(xl) >= 2 and bool(np.all(xl[1:] > xl[:-1]))
+        self.xl_max = float(np.max(np.abs(xl))) if len(xl) else 0.0
+
+
+def _row_from_envelope(cols: _Columns, y, low, cb, a, px, py) -> np.ndarray:
     """The distances along one row from its envelope's vertices ``low`` (data indices, by
-    increasing ``a``) and their lines' intercepts ``cb``."""
+    increasing ``a``) and their lines' intercepts ``cb``.
+
+    A cell takes the vertex whose interval between breakpoints holds it, and the least of that
+    vertex and its two neighbours where a breakpoint lies near (rounding may have put the cell
+    on the wrong side); for columns in increasing order the vertex is constant over runs of
+    columns between breakpoints, so it is spread over the runs instead of searched for each
+    cell (:func:`_row_from_envelope_per_cell` gives the same values cell by cell).
+    """
+    xs, xl = cols.xs, cols.xl
     ca = a[low]
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         brk = -(cb[1:] - cb[:-1]) / (ca[1:] - ca[:-1])  # falling along the hull
-    k = np.searchsorted(-brk, -xl)  # the number of breakpoints right of x: the envelope's vertex
+    if not cols.increasing or not np.all(np.isfinite(brk)) or not np.all(brk[1:] <= brk[:-1]):
+        return _row_from_envelope_per_cell(xs, xl, y, low, cb, a, px, py, brk)
+    n, m = len(xl), len(low)
+    # the vertex of column j is low[k] with k the number of breakpoints right of x_j (> x_j);
+    # breakpoint i lies right of the first pos[i] columns, and pos falls as the breakpoints do
+    pos = np.searchsorted(xl, brk, side="left")[::-1]
+    lengths = np.diff(np.concatenate(([0], pos, [n])))
+    dy = y - py[low]
+    vx = np.repeat(px[low][::-1], lengths)
+    vy2 = np.repeat((dy * dy)[::-1], lengths)
+    d2 = np.subtract(xs, vx, out=vx)
+    d2 *= d2
+    d2 += vy2
+    if m > 1:
+        # columns where a neighbour of the run's vertex may be as near: within two columns of a
+        # breakpoint, widened by how far rounding can move it (the lines' differences there are
+        # |Δa| times the distance to the breakpoint, the values they are taken from at most
+        # `scale`; a generous multiple of the double-precision epsilon bounds the error)
+        scale = float(np.max(np.abs(cb))) + cols.xl_max * (cols.xl_max + float(np.max(np.abs(ca))))
+        slack = _BREAK_SLACK * scale / np.abs(np.diff(ca))[::-1]
+        b = brk[::-1]
+        lo = np.maximum(np.searchsorted(xl, b - slack, side="left") - 2, 0)
+        hi = np.minimum(np.searchsorted(xl, b + slack, side="right") + 2, n)
+        idx = _union_of_ranges(lo, hi, n)
+        if len(idx):
+            k = m - 1 - np.searchsorted(pos, idx, side="right")
+            d2[idx] = _nearest_of_three(xs[idx], y, k, low, px, py)
+    return np.sqrt(d2, out=d2)
+
+
+def _union_of_ranges(lo, hi, n) -> np.ndarray:
+    """The sorted integers in any of the ranges ``lo[i] <= j < hi[i]`` (``0 <= j < n``).
+
+    >>> _union_of_ranges(np.array([2, 3, 9]), np.array([5, 4, 11]), 12)
+    array([ 2,  3,  4,  9, 10])
+    """
+    lengths = np.maximum(hi - lo, 0)
+    total = int(lengths.sum())
+    if total > n:  # wide ranges: mark the columns instead of listing them
+        near = np.cumsum(np.bincount(lo, minlength=n + 1) - np.bincount(hi, minlength=n + 1))[:n] > 0
+        return np.flatnonzero(near)
+    starts = np.repeat(lo - np.concatenate(([0], np.cumsum(lengths)[:-1])), lengths)
+    return np.unique(np.arange(total) + starts)
+
+
+#: Relative rounding allowance of the envelope's breakpoints (a million times the float64
+#: epsilon; our choice, far above the few epsilons the arithmetic can lose).
+_BREAK_SLACK = 1e6 * np.finfo(float).eps
+
+
+def _nearest_of_three(x, y, k, low, px, py) -> np.ndarray:
+    """The least squared distance from ``(x, y)`` to the envelope's vertices ``k - 1, k, k + 1``."""
     best = None
     for step in (-1, 0, 1):
         j = low[np.clip(k + step, 0, len(low) - 1)]
-        dx = xs - px[j]
+        dx = x - px[j]
         dy = y - py[j]
         d2 = dx * dx + dy * dy
         best = d2 if best is None else np.minimum(best, d2)
-    return np.sqrt(best)
+    return best
+
+
+def _row_from_envelope_per_cell(xs, xl, y, low, cb, a, px, py, brk) -> np.ndarray:
+    """:func:`_row_from_envelope` cell by cell, for columns in any order."""
+    k = np.searchsorted(-brk, -xl)  # the number of breakpoints right of x: the envelope's vertex
+    return np.sqrt(_nearest_of_three(xs, y, k, low, px, py))
 
 
 def _voronoi_extent(xy):

@@ -25,7 +25,7 @@ from strikeline.errors import CancelledError, InputError
 from strikeline.geometry.grid import Grid
 from strikeline.stats import ErrorGrowth, ModelChoice
 from strikeline.surfaces.fitted import _Surface
-from strikeline.surfaces.hull import RowDistance, distance_to_data
+from strikeline.surfaces.hull import _ENVELOPE_ROWS, RowDistance, distance_to_data
 
 
 #: Default error allowed between coarse-grid interpolation and full evaluation.
@@ -34,6 +34,8 @@ GRID_TOLERANCE_M = 0.1
 #: in quadrature, an error of a tenth of the standard error changes the stated uncertainty by at
 #: most 0.5 % (sqrt(1 + 0.1²) = 1.005), far below what the error itself is known to.
 GRID_SE_FRACTION = 0.1
+#: Cells of one evaluation of the standard error's formula (its temporaries; our choice).
+_SE_CELLS = 1 << 18
 
 
 def _check_cancel(is_cancelled, what):
@@ -446,12 +448,23 @@ class SurfaceModel:
             if rows_distance is None:
                 rows_distance = self._prepared["row_distance"] = RowDistance(s.tree.data, tree=s.tree)
 
-        def block(x, y):
+        def formula(x, y, d):
             X, Y = np.meshgrid(x, y)
-            d = rows_distance(x, y) if rows_distance is not None else None
             return s.standard_error(X.ravel(), Y.ravel(), distance=None if d is None else d.ravel()).reshape(X.shape)
 
-        return _by_rows(block, xs[c0:c1], ys[r0:r1], cells_per_chunk=1 << 18, what="standard error grid",
+        sub = max(1, _SE_CELLS // max(c1 - c0, 1))  # rows of one evaluation of the formula
+
+        def block(x, y):
+            # the distances of the whole block in one call: the rows' envelopes are built
+            # _ENVELOPE_ROWS at a time, and building them for a few rows costs nearly as much
+            d = rows_distance(x, y) if rows_distance is not None else None
+            out = np.empty((len(y), len(x)))
+            for i in range(0, len(y), sub):
+                out[i:i + sub] = formula(x, y[i:i + sub], None if d is None else d[i:i + sub])
+            return out
+
+        chunk = _ENVELOPE_ROWS * (c1 - c0) if rows_distance is not None else _SE_CELLS
+        return _by_rows(block, xs[c0:c1], ys[r0:r1], cells_per_chunk=chunk, what="standard error grid",
                         workers=_grid_workers(workers), progress=progress, is_cancelled=is_cancelled)
 
     def summary(self) -> dict:

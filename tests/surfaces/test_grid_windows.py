@@ -126,3 +126,22 @@ def test_a_window_outside_the_grid_is_refused(sheet):
         m.evaluate_grid(grid, window=(0, grid.rows + 1, 0, 2))
     with pytest.raises(InputError, match="window"):
         m.standard_error_grid(grid, window=(4, 4, 0, 2))
+
+
+def test_distance_grid_on_data_that_strain_the_breakpoints():
+    # Source: scipy.spatial.cKDTree.query. Data whose envelope's breakpoints are ill-conditioned:
+    # pairs a few nanometres apart in x, map coordinates of millions of metres, rows that pass
+    # exactly midway between data (ties), and columns finer than the data's spacing
+    rng = np.random.default_rng(11)
+    base = np.column_stack([rng.uniform(0, 3000, 60), rng.uniform(0, 2000, 60)])
+    twins = base[:20] + np.column_stack([rng.choice([1e-9, 3e-8, 1e-6], 20), rng.normal(0, 40, 20)])
+    lattice = np.array([[x, y] for x in (500.0, 1500.0, 2500.0) for y in (400.0, 1200.0)])
+    for offset in ((0.0, 0.0), (612_345.0, 5_234_567.0)):
+        data = np.vstack([base, twins, lattice]) + offset
+        xs = np.linspace(-200.0, 3200.0, 1701) + offset[0]
+        ys = np.concatenate([np.linspace(-100.0, 2100.0, 37), [800.0, 1200.0]]) + offset[1]
+        X, Y = np.meshgrid(xs, ys)
+        want = cKDTree(data).query(np.column_stack([X.ravel(), Y.ravel()]))[0].reshape(X.shape)
+        assert np.array_equal(distance_grid(xs, ys, data), want)
+        # columns in falling order take the cell-by-cell route: the same values
+        assert np.array_equal(distance_grid(xs[::-1], ys, data), want[:, ::-1])
