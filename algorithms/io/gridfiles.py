@@ -120,13 +120,10 @@ class StripWriter:
         v = np.asarray(values)
         if v.ndim != 2 or v.shape[1] != self.grid.cols:
             raise ValueError(f"rows of shape {v.shape} for a grid {self.grid.shape}")
-        if self.scratch:
-            out = np.array(v, dtype=np.float64)  # a copy: the caller keeps its rows
-        else:
-            out = np.asarray(v, dtype=np.float32)
+        out = np.asarray(v, dtype=self.dtype)
         ok = np.isfinite(out)
         self._any_valid = self._any_valid or bool(ok.any())
-        out = np.where(ok, out, self.dtype(self.nodata))
+        out = np.where(ok, out, self.dtype(self.nodata))  # a new array: the caller keeps its rows
         self._pending.append(out)
         self._n_pending += len(out)
         self._next_row += len(out)

@@ -4,8 +4,8 @@ The output grid is cut into blocks (a band of rows at a time, blocks across it);
 computed with a halo of one cell where a value needs its neighbours (dip and dip direction, the
 base's dip in the true thickness), on two threads (numpy, scipy's k-d tree queries and GDAL
 release Python's lock), and the band is written to each GeoTIFF in strips
-(:class:`strikeline.io.gridfiles.StripWriter`) before the next band is computed. Memory holds a
-band of each grid, not the grid. Structure contours and the predicted trace are then drawn by
+(:class:`strikeline.io.gridfiles.StripWriter`) while the next band is computed. Memory holds two
+bands of each grid, not the grid. Structure contours and the predicted trace are then drawn by
 GDAL's contour generator from float64 scratch copies of the surface and the depth, which it
 reads a block of lines at a time.
 
@@ -254,8 +254,10 @@ def _by_blocks(block_fn, outs, scratch_grids: dict, grid: Grid, folder, *, block
                is_cancelled) -> BlockGrids:
     """Run ``block_fn(window) -> {key: array}`` over the blocks of ``grid`` a band at a time on
     ``threads`` threads and write the bands: ``outs`` ((key, vocabulary raster) pairs) as output
-    GeoTIFFs, ``scratch_grids`` (key -> grid) as float64 scratch copies; the blocks of a band come
-    back in their order (``map``), so nothing depends on which thread finishes first."""
+    GeoTIFFs, ``scratch_grids`` (key -> grid) as float64 scratch copies. A band's writes are queued
+    ahead of the next band's blocks, so the threads write one band while they compute the next;
+    each block fills its own columns of the band and every writer takes its bands in order, so
+    nothing depends on which thread finishes first."""
     from strikeline.io.gridfiles import StripWriter
 
     owned = None
@@ -274,24 +276,39 @@ def _by_blocks(block_fn, outs, scratch_grids: dict, grid: Grid, folder, *, block
         for key, g in scratch_grids.items():
             scratch_writers[key] = StripWriter(scratch_dir / f"{key}_f64.tif", g, scratch=True)
         jobs = [(k, w) for k, w in writers.items()] + [(k, w) for k, w in scratch_writers.items()]
+        # a grid only written as an output is kept in float32 (the writer rounds it so anyway):
+        # a band of it takes half the memory and its writer no conversion
+        single = {k for k, _ in outs} - set(scratch_grids)
         with ThreadPoolExecutor(max_workers=max(1, int(threads))) as pool:
-            for band in block_windows(grid.shape, block_shape):
-                if is_cancelled is not None and is_cancelled():
-                    raise CancelledError("cancelled; nothing was written")
-                parts = list(pool.map(block_fn, band))
-                rows = {k: np.hstack([p[k] for p in parts]) for k in parts[0]}
-                r0 = band[0][0]
-                list(pool.map(lambda job: job[1].write_rows(r0, rows[job[0]]), jobs))
-                if "base_in" in rows:
-                    b_in, t_in = rows["base_in"], rows["top_in"]
-                    counts["base"] += int(b_in.sum())
-                    counts["top"] += int(t_in.sum())
-                    counts["both"] += int((b_in & t_in).sum())
-                if progress is not None:
-                    progress(band[0][1] / grid.rows)
-            every = [*writers.values(), *scratch_writers.values()]
-            for w in every:
-                w.finish()
+            try:
+                writing = []
+                for band in block_windows(grid.shape, block_shape):
+                    if is_cancelled is not None and is_cancelled():
+                        raise CancelledError("cancelled; nothing was written")
+                    # the previous band's writes were queued first: the threads write it while
+                    # this band's blocks wait, then compute them while the last writes finish
+                    computing = [pool.submit(block_fn, w) for w in band]
+                    rows = _gather(band, computing, grid.cols, single)
+                    for f in writing:
+                        f.result()  # a writer takes its bands in order: the previous one is done
+                    r0 = band[0][0]
+                    writing = [pool.submit(w.write_rows, r0, rows[k]) for k, w in jobs]
+                    if "base_in" in rows:
+                        b_in, t_in = rows["base_in"], rows["top_in"]
+                        counts["base"] += int(b_in.sum())
+                        counts["top"] += int(t_in.sum())
+                        counts["both"] += int((b_in & t_in).sum())
+                    if progress is not None:
+                        progress(band[0][1] / grid.rows)
+                for f in writing:
+                    f.result()
+            except BaseException:
+                pool.shutdown(wait=True, cancel_futures=True)  # no writer is in use when they are dropped
+                raise
+        every = [*writers.values(), *scratch_writers.values()]
+        for w in every:
+            w.finish()
+        with ThreadPoolExecutor(max_workers=max(1, int(threads))) as pool:
             list(pool.map(lambda w: w.verify(), every))  # reading back decompresses: both threads
         files = {spec.file: GridFile(Path(writers[key].commit()), grid) for key, spec in outs}
         any_valid = {k: w.any_valid for k, w in scratch_writers.items()}
@@ -303,6 +320,23 @@ def _by_blocks(block_fn, outs, scratch_grids: dict, grid: Grid, folder, *, block
         raise
     return BlockGrids(files, scratch, any_valid, counts["base"], counts["top"], counts["both"],
                       _owned=owned)
+
+
+def _gather(band, computing, cols: int, single: set) -> dict:
+    """The rows of a band from its blocks' futures (in the band's order, left to right), each
+    block copied into the band's arrays as soon as it is done and then dropped; grids named in
+    ``single`` are kept in float32."""
+    rows = None
+    height = band[0][1] - band[0][0]
+    for i, (_, _, c0, c1) in enumerate(band):
+        part, computing[i] = computing[i].result(), None  # the future no longer holds the block
+        if rows is None:
+            rows = {k: np.empty((height, cols), np.float32 if k in single and v.dtype == np.float64 else v.dtype)
+                    for k, v in part.items()}
+        for k, v in part.items():
+            rows[k][:, c0:c1] = v
+        part = None
+    return rows
 
 
 def contours_of_blocks(tiles: BlockGrids, grid: Grid, *, interval_m: float, extrapolated_fn=None,
