@@ -32,7 +32,7 @@ MAX_LABELS = 40
 PNG_LEVEL = 3
 #: Lines are simplified before drawing to this fraction of a pixel of their figure (Douglas and
 #: Peucker 1973): a structure contour traced on a fine grid has many vertices per pixel.
-SIMPLIFY_PX = 0.25
+SIMPLIFY_PX = 0.05
 #: Where the map's axes sit in its figure (left, bottom, width, height as fractions).
 MAP_AXES = (0.07, 0.13, 0.72, 0.82)
 
