@@ -12,22 +12,24 @@ contour is drawn on, so that lines drawn from a file equal the lines drawn from 
 """
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import os
+import threading
 
 import numpy as np
 from osgeo import gdal
 
-from strikeline.errors import OutputError, RasterReadError
+from strikeline.errors import CancelledError, OutputError, RasterReadError
 from strikeline.geometry.grid import Grid
 from strikeline.io._gdal import gdal_exceptions, gdal_message, quiet_close
 from strikeline.io.contours import _contour_band, _level_options
-from strikeline.io.interrupt import GdalStop
+from strikeline.io.interrupt import GdalStop, raise_pending
 from strikeline.io.geotiff import CREATION_OPTIONS, tile_cut_short
 from strikeline.io.raster import NODATA_OUT
 from strikeline.maps.contours import trim_contour_fringe
 
-__all__ = ["StripWriter", "read_window", "FileMask", "contour_lines_from_file", "OUTPUT_OPTIONS",
+__all__ = ["StripWriter", "read_window", "FileMask", "contour_lines_from_file", "contour_reading", "OUTPUT_OPTIONS",
            "SCRATCH_NODATA"]
 
 #: Creation options of strikeline's output GeoTIFFs: those of
@@ -42,6 +44,10 @@ SCRATCH_NODATA = float(np.finfo(np.float64).min)
 #: float64 tiles across the grid (two lines it compares may lie in two tile rows), at least 64 MiB
 #: (our choice): memory grows with the grid's width, not its cells.
 CONTOUR_CACHE_BYTES = 64 * 2**20
+#: Width in tiles of the windows :class:`FileMask` reads: 8 tiles of 256 x 256 float64 cells are
+#: 4 MiB, few enough calls into GDAL for a sheet's contours and little memory (our choice).
+MASK_WINDOW_TILES = 8
+
 
 
 class StripWriter:
@@ -257,7 +263,9 @@ class FileMask:
     """Whether cells of a band written to a file hold a value, looked up without reading it whole.
 
     ``mask[rows, cols]`` with integer arrays of cell indices gives a bool array (like indexing a
-    boolean array of the band's shape); the tiles holding the cells are read one at a time.
+    boolean array of the band's shape). The cells are grouped by windows one tile row high and
+    :data:`MASK_WINDOW_TILES` tiles wide; the file is opened once per look-up and each window
+    holding a cell is read once (memory: one window, 4 MiB of float64 with 256-cell tiles).
     """
 
     def __init__(self, path, grid: Grid, *, tile: int = 256):
@@ -269,19 +277,95 @@ class FileMask:
         out = np.zeros(r.shape, dtype=bool)
         if r.size == 0:
             return out
-        t = self.tile
-        tiles = (r // t) * (self.shape[1] // t + 1) + c // t
-        order = np.argsort(tiles.ravel(), kind="stable")
-        keys, starts = np.unique(tiles.ravel()[order], return_index=True)
-        ends = np.append(starts[1:], len(order))
+        rows, cols = self.shape
+        t, w = self.tile, self.tile * MASK_WINDOW_TILES
         rf, cf, of = r.ravel(), c.ravel(), out.reshape(-1)
-        for s, e in zip(starts, ends):
-            idx = order[s:e]
-            tr, tc = int(rf[idx[0]] // t), int(cf[idx[0]] // t)
-            r0, c0 = tr * t, tc * t
-            win = read_window(self.path, r0, min(r0 + t, self.shape[0]), c0, min(c0 + t, self.shape[1]))
-            of[idx] = np.isfinite(win[rf[idx] - r0, cf[idx] - c0])
+        window = (rf // t) * (cols // w + 1) + cf // w
+        order = np.argsort(window, kind="stable")
+        _, starts = np.unique(window[order], return_index=True)
+        ends = np.append(starts[1:], len(order))
+        with gdal_exceptions():
+            ds = band = None
+            try:
+                ds = gdal.Open(self.path, gdal.GA_ReadOnly)
+                band = ds.GetRasterBand(1)
+                nodata = band.GetNoDataValue()
+                for s, e in zip(starts, ends):
+                    idx = order[s:e]
+                    r0, c0 = int(rf[idx[0]] // t) * t, int(cf[idx[0]] // w) * w
+                    r1, c1 = min(r0 + t, rows), min(c0 + w, cols)
+                    # the test of read_window: float64, nodata and non-finite values hold no data
+                    win = band.ReadAsArray(c0, r0, c1 - c0, r1 - r0).astype(np.float64, copy=False)
+                    ok = np.isfinite(win)
+                    if nodata is not None:
+                        ok &= win != nodata
+                    of[idx] = ok[rf[idx] - r0, cf[idx] - c0]
+            except RuntimeError as exc:
+                raise RasterReadError(f"'{self.path}': GDAL could not read the cells of a mask "
+                                      f"({gdal_message(exc)})") from None
+            finally:
+                band = ds = None
         return out
+
+
+#: Set while :func:`contour_reading` holds GDAL's exception mode and block cache for the
+#: contour reads inside it (changed on the thread that holds it, before and after the threads
+#: it runs; read by those threads).
+_READING = {"held": 0}
+
+
+def _contour_cache_bytes(grid: Grid) -> int:
+    """The block cache one contour read of ``grid`` keeps (:data:`CONTOUR_CACHE_BYTES`)."""
+    return max(CONTOUR_CACHE_BYTES, 3 * grid.cols * 256 * 8)
+
+
+@contextlib.contextmanager
+def contour_reading(*grids: Grid):
+    """Hold what concurrent :func:`contour_lines_from_file` calls share, once, on this thread.
+
+    GDAL's exception mode and the size of its block cache are process-wide. Two threads that
+    each set them around their own call and restore them after could switch them under each
+    other: the first to finish would turn exceptions off (GDAL's failures of the other would
+    then pass as error codes) or give back the whole cache while the other still reads. Inside
+    this block both are set once - exceptions on, the cache bounded to the sum of what each of
+    ``grids``' generators keeps - and restored once when it ends; the caller must have joined
+    every thread it started by then. The calls' own :func:`gdal_exceptions` find the mode on
+    and so leave it on, and they leave the cache to this block.
+    """
+    cache = gdal.GetCacheMax()
+    with gdal_exceptions():
+        gdal.SetCacheMax(min(cache, sum(_contour_cache_bytes(g) for g in grids)))
+        _READING["held"] += 1
+        try:
+            yield
+        finally:
+            _READING["held"] -= 1
+            gdal.SetCacheMax(cache)
+
+
+class _ThreadStop(GdalStop):
+    """:class:`GdalStop` for a GDAL call on a thread other than the main one.
+
+    Python runs signal handlers on the main thread only, so such a call needs no deferral of its
+    own; holding one would keep the main thread's :meth:`GdalStop.check` from raising a signal
+    received meanwhile (it raises only as the one section that holds signals). This callback
+    stops GDAL when a signal was recorded or ``is_cancelled()`` says so; :meth:`check` then raises
+    the recorded signal (:class:`strikeline.io.interrupt.Interrupted`, unless the main thread has
+    raised it already) or :class:`CancelledError`.
+    """
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc) -> None:
+        return None
+
+    def check(self) -> None:
+        raise_pending()
+        if self.error is not None:
+            raise self.error
+        if self.stopped:
+            raise CancelledError(f"{self.what}: cancelled; nothing was written")
 
 
 def contour_lines_from_file(path, grid: Grid, *, interval_m=None, levels=None, base_m=0.0, any_valid: bool = True,
@@ -290,7 +374,11 @@ def contour_lines_from_file(path, grid: Grid, *, interval_m=None, levels=None, b
     with ``scratch=True``) read by GDAL's contour generator from the file, a block of lines at a
     time; the lines trimmed to the valid cell centres (:func:`strikeline.maps.contours.trim_contour_fringe`
     with a :class:`FileMask`). ``any_valid`` False (no cell holds a value) gives no lines, as an
-    all-NaN array does. Returns ``(geoms, elevation_m)``, equal to the lines of the array."""
+    all-NaN array does. Returns ``(geoms, elevation_m)``, equal to the lines of the array.
+
+    Two calls may run at once on two threads inside :func:`contour_reading` (GDAL releases
+    Python's lock while it draws); a call off the main thread stops on a signal without holding
+    it (:class:`_ThreadStop`)."""
     import shapely
 
     empty = (np.empty(0, dtype=object), np.empty(0, dtype=np.float64))
@@ -299,12 +387,16 @@ def contour_lines_from_file(path, grid: Grid, *, interval_m=None, levels=None, b
         return empty
     options += [f"NODATA={SCRATCH_NODATA:.17g}", "ID_FIELD=0", "ELEV_FIELD=1"]
     src = band = None
+    held = bool(_READING["held"])
     cache = gdal.GetCacheMax()
-    with gdal_exceptions(), GdalStop(progress, is_cancelled, what="contour lines") as stop:
+    stopper = GdalStop if threading.current_thread() is threading.main_thread() else _ThreadStop
+    with gdal_exceptions(), stopper(progress, is_cancelled, what="contour lines") as stop:
         try:
             # GDAL's generator reads the band a line at a time through the block cache, which would
             # keep up to GDAL_CACHEMAX (5% of the memory) of the file's blocks: bound it meanwhile
-            gdal.SetCacheMax(min(cache, max(CONTOUR_CACHE_BYTES, 3 * grid.cols * 256 * 8)))
+            # (contour_reading has bounded it for every read inside it)
+            if not held:
+                gdal.SetCacheMax(min(cache, _contour_cache_bytes(grid)))
             src = gdal.Open(os.fspath(path), gdal.GA_ReadOnly)
             band = src.GetRasterBand(1)
             wkb, elev = _contour_band(band, options, stop)
@@ -315,10 +407,10 @@ def contour_lines_from_file(path, grid: Grid, *, interval_m=None, levels=None, b
                 f"({gdal_message(exc)}); check the grid and the levels") from None
         finally:
             band = src = None
-            gdal.SetCacheMax(cache)
+            if not held:
+                gdal.SetCacheMax(cache)
     if not wkb:
         return empty
     geoms = np.asarray(shapely.force_2d(shapely.from_wkb(np.array(wkb, dtype=object))), dtype=object)
     elevation = np.asarray(elev, dtype=np.float64)
     return trim_contour_fringe(geoms, elevation, FileMask(path, grid), grid)
-

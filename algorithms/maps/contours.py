@@ -91,7 +91,8 @@ def supported_vertices(xy: np.ndarray, valid: np.ndarray, grid: Grid) -> np.ndar
     xy : ndarray, shape ``(n, 2)``
         Map coordinates (metres, the grid's CRS).
     valid : ndarray of bool, shape ``grid.shape``
-        True for cells with data.
+        True for cells with data; or an object indexed like one, ``valid[rows, cols]`` with
+        integer arrays (:class:`strikeline.io.gridfiles.FileMask`), asked once for all corners.
     grid : strikeline.geometry.grid.Grid
         Georeferencing of ``valid``.
 
@@ -123,7 +124,10 @@ def supported_vertices(xy: np.ndarray, valid: np.ndarray, grid: Grid) -> np.ndar
     r0 = np.floor(np.where(ok, row, 0)).astype(np.intp)
     c1 = np.ceil(np.where(ok, col, 0)).astype(np.intp)
     r1 = np.ceil(np.where(ok, row, 0)).astype(np.intp)
-    ok &= valid[r0, c0] & valid[r0, c1] & valid[r1, c0] & valid[r1, c1]
+    # One look-up of the four corners together: a mask that reads the cells from a file
+    # (strikeline.io.gridfiles.FileMask) then reads each tile once, not once per corner.
+    corners = valid[np.concatenate([r0, r0, r1, r1]), np.concatenate([c0, c1, c0, c1])]
+    ok &= np.asarray(corners, dtype=bool).reshape(4, -1).all(axis=0)
     return ok
 
 

@@ -25,8 +25,8 @@ from strikeline.pipeline.workload import check_workload
 from strikeline.pipeline.units import map_unit_bounds, map_unit_check
 from strikeline.pipeline.rasters import length_off_raster
 from strikeline.pipeline.dem_access import ground_on_grid
-from strikeline.pipeline.tiled import (block_shape_of, contours_of_blocks, grids_by_blocks, isopachs_by_blocks,
-                                       trace_of_blocks)
+from strikeline.pipeline.tiled import (block_shape_of, contours_and_trace_of_blocks, contours_of_blocks,
+                                       grids_by_blocks, isopachs_by_blocks)
 from strikeline.pipeline.tiled import STATS_SCRATCH
 from strikeline.pipeline.thickness_stats import in_reach_values
 from strikeline.maps.cellstats import cell_statistics
@@ -165,9 +165,15 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
         surface, uncertainty = tiles.files[V.SURFACE.file], tiles.files[V.UNCERTAINTY.file]
         dip, dipdir = tiles.files[V.DIP.file], tiles.files[V.DIP_DIRECTION.file]
     step("structure contours")
-    cparts, clevels, cflags = (structure_contours if tiles is None else contours_of_blocks)(
-        surface if tiles is None else tiles, grid, interval_m=opts.interval_m, extrapolated_fn=model.is_extrapolated,
-        is_cancelled=is_cancelled)
+    raw_trace = None  # the block path draws the trace on a second thread meanwhile (its time counts here)
+    if tiles is not None and inputs.dem is not None:
+        (cparts, clevels, cflags), raw_trace = contours_and_trace_of_blocks(
+            tiles, grid, ground_grid, interval_m=opts.interval_m, extrapolated_fn=model.is_extrapolated,
+            is_cancelled=is_cancelled)
+    else:
+        cparts, clevels, cflags = (structure_contours if tiles is None else contours_of_blocks)(
+            surface if tiles is None else tiles, grid, interval_m=opts.interval_m,
+            extrapolated_fn=model.is_extrapolated, is_cancelled=is_cancelled)
     step("depth, trace and misfit")
     depth = None
     trace = np.empty(0, dtype=object)
@@ -182,9 +188,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
         f = depth_trace_misfit(ground, ground_grid, surface, inputs.contacts,
                                extrapolated_fn=model.is_extrapolated, flag_m=opts.misfit_flag_m, model=model,
                                dem_sigma_m=opts.dem_sigma_m, contact_sigma_m=opts.contact_sigma_m,
-                               is_cancelled=is_cancelled,
-                               raw_trace=None if tiles is None else trace_of_blocks(tiles, ground_grid,
-                                                                                    is_cancelled=is_cancelled))
+                               is_cancelled=is_cancelled, raw_trace=raw_trace)
         depth, trace, tflags = f["depth"], f["trace"], f["trace_extrapolated"]
         if tiles is not None:
             depth = tiles.files[V.DEPTH.file]

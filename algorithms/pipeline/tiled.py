@@ -360,3 +360,48 @@ def trace_of_blocks(tiles: BlockGrids, ground_grid: Grid, *, is_cancelled=None) 
     geoms, _ = contour_lines_from_file(tiles.scratch["depth"], ground_grid, levels=[0.0],
                                        any_valid=tiles.any_valid["depth"], is_cancelled=is_cancelled)
     return geoms
+
+
+def contours_and_trace_of_blocks(tiles: BlockGrids, grid: Grid, ground_grid: Grid, *, interval_m: float,
+                                 extrapolated_fn=None, is_cancelled=None):
+    """:func:`contours_of_blocks` and :func:`trace_of_blocks` at once: the trace on a second thread
+    while this one draws and splits the structure contours (the two read different scratch grids
+    and GDAL releases Python's lock while it draws). Returns ``((lines, elevation_m,
+    extrapolated), raw_trace)``, the values of the two calls one after the other; with one core
+    they are made so.
+
+    The trace's time is counted in the step that runs this (a run's "structure contours"), and
+    the step "depth, trace and misfit" takes the lines drawn. GDAL's exception mode and block
+    cache are process-wide, so they are held once around both threads
+    (:func:`strikeline.io.gridfiles.contour_reading`) and given back after the second thread has
+    ended. If the contours fail or are cancelled, or a signal arrives, the trace is told to stop
+    (it stops at GDAL's next progress report) and awaited before the error goes on.
+    """
+    import threading
+    from concurrent.futures import wait
+
+    from strikeline.io.gridfiles import contour_reading
+
+    def contours():
+        return contours_of_blocks(tiles, grid, interval_m=interval_m, extrapolated_fn=extrapolated_fn,
+                                  is_cancelled=is_cancelled)
+    if THREADS < 2:
+        return contours(), trace_of_blocks(tiles, ground_grid, is_cancelled=is_cancelled)
+    stop = threading.Event()
+
+    def trace_cancelled() -> bool:
+        return stop.is_set() or (is_cancelled is not None and bool(is_cancelled()))
+
+    with contour_reading(grid, ground_grid), ThreadPoolExecutor(max_workers=1) as pool:
+        trace = pool.submit(trace_of_blocks, tiles, ground_grid, is_cancelled=trace_cancelled)
+        try:
+            return contours(), trace.result()
+        except BaseException as exc:
+            stop.set()
+            wait([trace])
+            # a signal that stopped both draws may have been raised on the trace's thread
+            # (the other then only saw GDAL stop): the run ends as interrupted either way
+            late = trace.exception()
+            if isinstance(late, KeyboardInterrupt) and not isinstance(exc, KeyboardInterrupt):
+                raise late from None
+            raise

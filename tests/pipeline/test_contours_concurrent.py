@@ -1,0 +1,147 @@
+"""Structure contours and the predicted trace drawn at once on two threads (the block path).
+
+The reference for the lines is the serial pair of calls and GDAL's own contour generator run
+directly on the scratch grid (GDAL 3.6 ``GDALContourGenerateEx``); the reference for the
+process-wide state is what GDAL's bindings report (``GetUseExceptions``, ``GetCacheMax``)
+before, during and after the concurrent calls.
+"""
+from __future__ import annotations
+
+import sys
+import threading
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+gdal = pytest.importorskip("osgeo.gdal")
+from osgeo import ogr  # noqa: E402
+
+from strikeline.errors import CancelledError  # noqa: E402
+from strikeline.pipeline import load_inputs  # noqa: E402
+from strikeline.pipeline.options import RunOptions  # noqa: E402
+from strikeline.pipeline.tiled import (contours_and_trace_of_blocks, contours_of_blocks,  # noqa: E402
+                                       grids_by_blocks, trace_of_blocks)
+
+REPO = Path(__file__).resolve().parents[2]
+VOLCANO = REPO / "test_data" / "real" / "volcano"
+sys.path.insert(0, str(REPO / "tests"))
+from helpers import gdal_exceptions  # noqa: E402
+
+INTERVAL_M = 10.0
+
+
+@pytest.fixture(scope="module")
+def sheet(tmp_path_factory):
+    """The folded contact of the volcano sheet (a real DEM) fitted with a spline, its grids
+    written in blocks of 7 x 5 cells with the DEM as ground: the scratch surface and depth."""
+    from strikeline.pipeline.steps import collect_picks
+    from strikeline.surfaces import fit_surface
+
+    opts = RunOptions(out="unused", contacts=str(next((VOLCANO / "fold").glob("*.gpkg"))),
+                      dem=str(VOLCANO / "dem.tif"))
+    inputs = load_inputs(opts)
+    model = fit_surface(collect_picks(inputs).xyz, model="spline")
+    grid = inputs.dem_grid
+    tiles = grids_by_blocks(model, grid, tmp_path_factory.mktemp("blocks"), ground=np.asarray(inputs.dem),
+                            ground_grid=grid, block_shape=(7, 5))
+    return model, grid, tiles
+
+
+def _wkb(geoms) -> list:
+    return [g.wkb for g in geoms]
+
+
+def _gdal_lines(path: Path, options: list) -> list:
+    """GDAL's contour generator on a file, every line's vertices (Source: GDAL 3.6
+    GDALContourGenerateEx, the generator strikeline hands the scratch grids to)."""
+    with gdal_exceptions():
+        ds = gdal.Open(str(path))
+        band = ds.GetRasterBand(1)
+        out = ogr.GetDriverByName("Memory").CreateDataSource("ref")
+        lyr = out.CreateLayer("c", geom_type=ogr.wkbLineString)
+        lyr.CreateField(ogr.FieldDefn("id", ogr.OFTInteger))
+        lyr.CreateField(ogr.FieldDefn("elev", ogr.OFTReal))
+        gdal.ContourGenerateEx(band, lyr, options=options + [f"NODATA={band.GetNoDataValue():.17g}",
+                                                             "ID_FIELD=0", "ELEV_FIELD=1"])
+        lines = [np.array(f.GetGeometryRef().GetPoints())[:, :2] for f in lyr]
+        ds = out = None
+    return lines
+
+
+def test_concurrent_lines_are_the_serial_lines(sheet):
+    model, grid, tiles = sheet
+    (lines, elev, flags), trace = contours_and_trace_of_blocks(
+        tiles, grid, grid, interval_m=INTERVAL_M, extrapolated_fn=model.is_extrapolated)
+    s_lines, s_elev, s_flags = contours_of_blocks(tiles, grid, interval_m=INTERVAL_M,
+                                                  extrapolated_fn=model.is_extrapolated)
+    s_trace = trace_of_blocks(tiles, grid)
+    assert len(lines) > 10 and len(trace) >= 1  # a sheet with something to draw
+    assert _wkb(lines) == _wkb(s_lines)
+    assert np.array_equal(elev, s_elev) and np.array_equal(flags, s_flags)
+    assert _wkb(trace) == _wkb(s_trace)
+
+
+def test_the_trace_drawn_meanwhile_is_gdals_zero_line(sheet):
+    """Every vertex of the trace is one of GDAL's own zero line of the depth, and every GDAL vertex
+    between the outermost cell centres is kept (the trim drops only the half-cell fringe)."""
+    model, grid, tiles = sheet
+    _, trace = contours_and_trace_of_blocks(tiles, grid, grid, interval_m=INTERVAL_M)
+    ref = np.concatenate(_gdal_lines(tiles.scratch["depth"], ["FIXED_LEVELS=0"]))
+    ours = np.concatenate([np.asarray(g.coords) for g in trace])
+    ref_set, our_set = set(map(tuple, ref)), set(map(tuple, ours))
+    assert our_set <= ref_set
+    col, row = grid.xy_to_colrow(ref[:, 0], ref[:, 1])
+    inner = (col > 1e-9) & (col < grid.cols - 1 - 1e-9) & (row > 1e-9) & (row < grid.rows - 1 - 1e-9)
+    assert inner.sum() > 100
+    assert set(map(tuple, ref[inner])) <= our_set
+
+
+def test_gdal_state_is_held_across_both_threads_and_restored(sheet):
+    """GDAL's exception mode stays on while either thread draws (polled from both threads at
+    GDAL's progress reports) and the caller's mode and block cache come back after."""
+    model, grid, tiles = sheet
+    seen = []  # (thread, exceptions on) at each poll
+
+    def polled() -> bool:
+        seen.append((threading.current_thread().name, gdal.GetUseExceptions(), ogr.GetUseExceptions()))
+        return False
+
+    # Source: GDAL 3.6's bindings start with exceptions off; the suite keeps them so between tests
+    assert (gdal.GetUseExceptions(), ogr.GetUseExceptions()) == (0, 0)
+    cache = gdal.GetCacheMax()
+    contours_and_trace_of_blocks(tiles, grid, grid, interval_m=INTERVAL_M,
+                                 extrapolated_fn=model.is_extrapolated, is_cancelled=polled)
+    # Source: GDAL 3.6's bindings - the mode and the cache size are process-wide
+    assert (gdal.GetUseExceptions(), ogr.GetUseExceptions()) == (0, 0)
+    assert gdal.GetCacheMax() == cache
+    assert len({name for name, _, _ in seen}) == 2  # both threads polled
+    assert all(g and o for _, g, o in seen)
+
+
+def test_a_cancel_stops_both_threads(sheet):
+    model, grid, tiles = sheet
+    before = threading.active_count()
+    calls = {"n": 0}
+
+    def cancel_soon() -> bool:
+        calls["n"] += 1
+        return calls["n"] > 3
+
+    with pytest.raises(CancelledError):
+        contours_and_trace_of_blocks(tiles, grid, grid, interval_m=INTERVAL_M, is_cancelled=cancel_soon)
+    assert threading.active_count() == before  # the trace's thread has ended
+
+
+def test_a_failure_of_the_contours_stops_the_trace(sheet):
+    """An error while the contours are split (here the reach test fails) reaches the caller
+    after the trace's thread was told to stop and has ended."""
+    model, grid, tiles = sheet
+    before = threading.active_count()
+
+    def fails(x, y):
+        raise ValueError("reach test failed")
+
+    with pytest.raises(ValueError, match="reach test failed"):
+        contours_and_trace_of_blocks(tiles, grid, grid, interval_m=INTERVAL_M, extrapolated_fn=fails)
+    assert threading.active_count() == before
