@@ -45,6 +45,17 @@ UNITS_BELOW = option("units_below").qgis
 #: still run and the contacts' field parameters keep a layer to list fields from.
 MORE_CONTACTS = "MORE_CONTACTS"
 MORE_CONTACTS_LABEL = "More mapped contact line layers (used with the first, in this order)"
+#: The further layers follow the first layer's source settings: QGIS 3.22's list of layers has no
+#: selection setting of its own (it takes layers, not feature-source definitions), and a user who
+#: ticks "Selected features only" on the contacts means the contacts they selected, in every layer.
+MORE_CONTACTS_HELP = (
+    "Line layers of further mapped contacts, used after the first contacts layer in the order given "
+    "(as the command line's contacts option given again; contact ids number on from one layer to the "
+    "next). When the first contacts layer is set to 'Selected features only', every layer here is read "
+    "with its selected features only as well (a layer with nothing selected is refused, by name; a file "
+    "not open in the project has no selection: add it to the project and select its contacts), and "
+    "the first layer's other source settings (feature limit, invalid geometry handling) apply to each. "
+    "Otherwise every layer here is read whole.")
 
 
 def optional_string(alg, parameters, key, context) -> str | None:
@@ -58,23 +69,63 @@ def optional_distance(alg, parameters, key, context) -> float | None:
 
 
 def more_contacts_parameter(alg, label: str = MORE_CONTACTS_LABEL):
-    """The optional list of further contact line layers (:data:`MORE_CONTACTS`)."""
+    """The optional list of further contact line layers (:data:`MORE_CONTACTS`), with its help
+    (:data:`MORE_CONTACTS_HELP`: how the first layer's selected-features setting reaches them)."""
     from qgis.core import QgsProcessing, QgsProcessingParameterMultipleLayers
 
-    return QgsProcessingParameterMultipleLayers(MORE_CONTACTS, alg.tr(label), QgsProcessing.TypeVectorLine,
-                                                optional=True)
+    param = QgsProcessingParameterMultipleLayers(MORE_CONTACTS, alg.tr(label), QgsProcessing.TypeVectorLine,
+                                                 optional=True)
+    param.setHelp(alg.tr(MORE_CONTACTS_HELP))
+    return param
 
 
 def read_more_contacts(alg, parameters, context, steps, *, label: str = "contacts") -> list:
     """The layers of :data:`MORE_CONTACTS` as library ``VectorLayer`` objects, in the order given
-    (empty when the tool has no such parameter or it is left empty)."""
+    (empty when the tool has no such parameter or it is left empty).
+
+    Each is read with the source settings of the first contacts layer (:data:`CONTACTS`) when it
+    has any: with "Selected features only" there, each layer's own selection (refused when empty),
+    and its feature limit and invalid-geometry handling; else whole (:data:`MORE_CONTACTS_HELP`).
+    """
     if alg.parameterDefinition(MORE_CONTACTS) is None:
         return []
+    first = _source_settings(parameters.get(CONTACTS))
     out = []
     for lyr in alg.parameterAsLayerList(parameters, MORE_CONTACTS, context) or []:
         name = vector_name(lyr, lyr, label)
-        out.append(read_vector(lyr, name, geometry="line", is_cancelled=steps.is_cancelled))
+        source = lyr if first is None else _as_first_is_read(alg, lyr, first, context, name)
+        out.append(read_vector(source, name, geometry="line", is_cancelled=steps.is_cancelled))
     return out
+
+
+def _source_settings(value):
+    """The ``QgsProcessingFeatureSourceDefinition`` a source parameter's value carries (what the
+    dialog or a model gives when any of its source settings is used), else None."""
+    from qgis.core import QgsProcessingFeatureSourceDefinition
+
+    return value if isinstance(value, QgsProcessingFeatureSourceDefinition) else None
+
+
+def _as_first_is_read(alg, layer, first, context, name):
+    """``layer`` as a Processing feature source with the settings of ``first`` (a
+    ``QgsProcessingFeatureSourceDefinition``), made by QGIS as it makes the first layer's."""
+    from qgis.core import QgsProcessingFeatureSourceDefinition, QgsProcessingUtils
+
+    if first.selectedFeaturesOnly and layer.selectedFeatureCount() == 0:
+        more = alg.parameterDefinition(MORE_CONTACTS).description()
+        contacts = alg.parameterDefinition(CONTACTS).description()
+        raise InputError(
+            f"{name.what} in the '{more}' has no feature selected, while the '{contacts}' is read with "
+            "'Selected features only', which every contact layer follows; select the contacts to use on "
+            "this layer too (a file not open in the project has no selection: add it to the project "
+            "first), or untick 'Selected features only'")
+    definition = QgsProcessingFeatureSourceDefinition(layer.id(), first.selectedFeaturesOnly, first.featureLimit,
+                                                      first.flags, first.geometryCheck)
+    source = QgsProcessingUtils.variantToSource(definition, context)
+    if source is None:
+        raise InputError(f"{name.what}: QGIS could not read it as a feature source; check that the layer "
+                         "is valid and open in the project")
+    return source
 
 
 def add_contact_and_topography(alg) -> None:

@@ -25,8 +25,9 @@ class ContactPicks(StrikelineAlgorithm):
         "with their elevation field, or both. The output points (PointZ, fields contact_id, "
         "source, elevation_m) are the input of the attitude and surface tools. Several contact "
         "layers are used together as the command line's repeated contacts: the first in the contacts "
-        "parameter (which may use its selected features only), the others, whole, in the list of "
-        "more contact layers; contact ids number on from one layer to the next.")
+        "parameter, the others in the list of more contact layers; contact ids number on from one "
+        "layer to the next. 'Selected features only' on the contacts parameter holds for every "
+        "contact layer (each read with its own selection); without it every layer is read whole.")
     METHOD = (
         "DEM picks: the contacts are divided into equal steps no longer than one DEM cell (or the "
         "spacing given) and the "

@@ -107,7 +107,8 @@ class WholeChain(StrikelineAlgorithm):
         "summary JSON is the command line's summary.json, and the report is its report.html: the caution, the "
         "answer in plain words and the figures on one page (needs matplotlib). Contacts in several "
         "layers: the first in the contacts parameter, the others in the list of more contact layers "
-        "(as the command line's contacts option given again); the log names the contacts whose "
+        "(as the command line's contacts option given again; 'Selected features only' on the first "
+        "holds for every contact layer); the log names the contacts whose "
         "segments are flagged (their contact_id in the contact misfit layer).")
     METHOD = ("Picks: bilinear DEM sampling and exact contour crossings; attitude: total least "
               "squares with bootstrap confidence and eigenvalue shape quality; surfaces: least squares "
