@@ -305,3 +305,19 @@ def write_fold_units(path, *, epsg=None):
         o.CreateFeature(nf)
     ds = None
     return path
+
+
+def round_cell_of_layer(path) -> float:
+    """The cell of a grid made over a vector file's first layer without a cell size, worked out here:
+    a 500th of the larger side of the extent OGR reports (GetExtent, GDAL 3.6), rounded up in the
+    1-2-5 series (common practice for round map-grid steps)."""
+    import math
+
+    from osgeo import ogr
+
+    ds = ogr.Open(str(path))
+    xmin, xmax, ymin, ymax = ds.GetLayer(0).GetExtent()
+    ds = None
+    raw = max(xmax - xmin, ymax - ymin) / 500.0
+    mag = 10.0 ** math.floor(math.log10(raw))
+    return next(m * mag for m in (1, 2, 5, 10) if m * mag >= raw)

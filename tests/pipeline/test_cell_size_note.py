@@ -8,23 +8,12 @@ passes its names (the QGIS whole chain; its own test is tests/qgis/test_qgis_cel
 """
 from __future__ import annotations
 
-import math
-
-from osgeo import ogr
+from helpers import round_cell_of_layer
 
 from strikeline.pipeline import RunOptions, compute, load_inputs
 from strikeline.pipeline.options import CLI_OPTION_NAMES
 
 QUICK = dict(model="plane", resamples=100)
-
-
-def _expected_cell(path: str) -> float:
-    ds = ogr.Open(path)
-    xmin, xmax, ymin, ymax = ds.GetLayer(0).GetExtent()  # Source: OGR's own extent of the layer
-    ds = None
-    raw = max(xmax - xmin, ymax - ymin) / 500.0
-    mag = 10.0 ** math.floor(math.log10(raw))
-    return next(m * mag for m in (1, 2, 5, 10) if m * mag >= raw)  # common practice: 1-2-5 steps
 
 
 def _note(lines) -> list[str]:
@@ -36,7 +25,7 @@ def test_the_command_line_note_names_the_flag(cli, demo, tmp_path):
               demo["elev_field"], "--out", tmp_path / "out", "--model", "plane", "--resamples", 100,
               "--no-report")
     assert res.returncode == 0, res.stderr
-    cell = _expected_cell(demo["contours"])
+    cell = round_cell_of_layer(demo["contours"])
     want = f"cell size not given (--cell): using {cell:g} m cells over the contour layer's extent"
     assert want in res.stdout + res.stderr
     assert CLI_OPTION_NAMES["cell_m"] == "--cell"  # the flag the table gives the option
@@ -46,7 +35,7 @@ def test_compute_names_the_option_as_its_caller_does(demo):
     opts = RunOptions(contacts=demo["contacts"], out="/nonexistent-out", contours=demo["contours"],
                       elev_field=demo["elev_field"], **QUICK)
     inputs = load_inputs(opts)
-    cell = _expected_cell(demo["contours"])
+    cell = round_cell_of_layer(demo["contours"])
     lines = []
     compute(inputs, opts, log=lines.append, names={"cell_m": "the 'Output cell size'"})
     assert _note(lines) == [f"cell size not given (the 'Output cell size'): using {cell:g} m cells over "

@@ -7,26 +7,20 @@ flag, when the grid is made without a cell size (contours and no DEM, the cell l
 """
 from __future__ import annotations
 
-import math
+import sys
+from pathlib import Path
 
 import pytest
-from osgeo import ogr
 from qgis_helpers import LogFeedback, model_index
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
+from helpers import round_cell_of_layer  # noqa: E402
 
 pytestmark = pytest.mark.qgis
 
 TMP = "TEMPORARY_OUTPUT"
 OUT = {"picks": TMP, "structure_contours": TMP, "surface": TMP, "dip": TMP, "dip_direction": TMP,
        "NO_REPORT": True}
-
-
-def _expected_cell(path: str) -> float:
-    ds = ogr.Open(path)
-    xmin, xmax, ymin, ymax = ds.GetLayer(0).GetExtent()  # Source: OGR's own extent of the layer
-    ds = None
-    raw = max(xmax - xmin, ymax - ymin) / 500.0
-    mag = 10.0 ** math.floor(math.log10(raw))
-    return next(m * mag for m in (1, 2, 5, 10) if m * mag >= raw)  # common practice: 1-2-5 steps
 
 
 def test_the_note_names_the_cell_parameter(run, sheet):
@@ -38,7 +32,7 @@ def test_the_note_names_the_cell_parameter(run, sheet):
     run("modelcontact", {"CONTACTS": sheet["contacts_uri"], "CONTOURS": sheet["contours_uri"],
                          "ELEV_FIELD": sheet["elev_field"], "MODEL": model_index("plane"), "RESAMPLES": 100,
                          **OUT}, feedback=fb)
-    cell = _expected_cell(sheet["contours"])
+    cell = round_cell_of_layer(sheet["contours"])
     notes = [ln for ln in fb.lines if "cell size not given" in ln]
     assert len(notes) == 1, fb.lines
     assert notes[0].endswith(f"cell size not given (the '{label}'): using {cell:g} m cells over the contour "
