@@ -51,6 +51,35 @@ def decimation(shape, max_cells: int) -> int:
     return k
 
 
+def _window_mean(block: np.ndarray, k: int, nodata) -> np.ndarray:
+    """The mean of each ``k x k`` window of a float32 ``block`` (rows and columns multiples of
+    ``k``) over its cells that are neither ``nodata`` nor NaN, summed in float64 row by row as
+    GDAL's average resampling sums them, then rounded to float32 as GDAL's resampling of a float32
+    band does (``nodata`` where no cell counts): the values of ``ReadAsArray`` with
+    ``GRIORA_Average``, at about half its time (the windows added as k x k strided views, no
+    copy of the block)."""
+    bad = np.isnan(block)
+    if nodata is not None:
+        bad |= block == np.float32(nodata)
+    shape = (block.shape[0] // k, block.shape[1] // k)
+    total = np.zeros(shape)
+    if bad.any():
+        block = np.where(bad, np.float32(0.0), block)
+        count = np.zeros(shape)
+        for i in range(k):
+            for j in range(k):
+                total += block[i::k, j::k]
+                count += ~bad[i::k, j::k]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            mean = (total / count).astype(np.float32).astype(np.float64)
+        mean[count == 0] = np.nan if nodata is None else nodata
+        return mean
+    for i in range(k):
+        for j in range(k):
+            total += block[i::k, j::k]
+    return (total / (k * k)).astype(np.float32).astype(np.float64)
+
+
 def read_decimated(path, *, max_cells: int = 1_000_000, resampling: str = "average",
                    label: str = "raster") -> tuple[np.ndarray, Grid]:
     """Band 1 of a raster thinned by a whole factor to at most ``max_cells`` cells.
@@ -91,18 +120,24 @@ def read_decimated(path, *, max_cells: int = 1_000_000, resampling: str = "avera
             by, bx = math.ceil(rows / k), math.ceil(cols / k)
             arr = np.empty((by, bx), dtype=np.float64)
             step = k * max(1, STRIP_ROWS // k)  # source rows per strip, a multiple of k
+            nodata = band.GetNoDataValue()
+            # whole k x k windows of a float32 band: GDAL's average computed by numpy (same values)
+            by_numpy = (resampling == "average" and k > 1 and rows % k == 0 and cols % k == 0
+                        and band.DataType == gdal.GDT_Float32)
             for r0 in range(0, rows, step):
                 h = min(step, rows - r0)
                 b0 = r0 // k
                 try:
-                    arr[b0:b0 + math.ceil(h / k)] = band.ReadAsArray(
-                        0, r0, cols, h, buf_xsize=bx, buf_ysize=math.ceil(h / k), buf_type=gdal.GDT_Float64,
-                        resample_alg=_RESAMPLING[resampling])
+                    if by_numpy:
+                        arr[b0:b0 + h // k] = _window_mean(band.ReadAsArray(0, r0, cols, h), k, nodata)
+                    else:
+                        arr[b0:b0 + math.ceil(h / k)] = band.ReadAsArray(
+                            0, r0, cols, h, buf_xsize=bx, buf_ysize=math.ceil(h / k), buf_type=gdal.GDT_Float64,
+                            resample_alg=_RESAMPLING[resampling])
                 except RuntimeError as exc:
                     raise RasterReadError(f"{label} '{path}': GDAL could not read it ({gdal_message(exc)})") from None
                 band.FlushCache()  # drop the strip's blocks from GDAL's cache: memory stays one strip
             x0, dx, _, y0, _, dy = ds.GetGeoTransform()
-            nodata = band.GetNoDataValue()
             wkt = ds.GetProjection() or ""
         finally:
             ds = None
