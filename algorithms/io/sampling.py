@@ -23,6 +23,8 @@ from strikeline.io.raster import as_float, open_raster
 #: Rows of the file read at once (then dropped from GDAL's block cache, which would otherwise keep up
 #: to GDAL_CACHEMAX - 5% of the memory - of a large grid's blocks).
 STRIP_ROWS = 512
+#: Columns of a strip averaged at once by numpy (rounded to whole blocks and windows).
+PIECE_COLUMNS = 4_096
 #: GDAL's resampling of a decimated read, by name.
 _RESAMPLING = {"average": gdal.GRIORA_Average, "nearest": gdal.GRIORA_NearestNeighbour}
 
@@ -124,12 +126,18 @@ def read_decimated(path, *, max_cells: int = 1_000_000, resampling: str = "avera
             # whole k x k windows of a float32 band: GDAL's average computed by numpy (same values)
             by_numpy = (resampling == "average" and k > 1 and rows % k == 0 and cols % k == 0
                         and band.DataType == gdal.GDT_Float32)
+            whole = math.lcm(k, band.GetBlockSize()[0])  # columns of whole windows and whole blocks
+            piece = whole * max(1, PIECE_COLUMNS // whole)
             for r0 in range(0, rows, step):
                 h = min(step, rows - r0)
                 b0 = r0 // k
                 try:
-                    if by_numpy:
-                        arr[b0:b0 + h // k] = _window_mean(band.ReadAsArray(0, r0, cols, h), k, nodata)
+                    if by_numpy:  # by pieces of whole blocks and windows, each dropped from the cache
+                        for c0 in range(0, cols, piece):
+                            w = min(piece, cols - c0)
+                            arr[b0:b0 + h // k, c0 // k:(c0 + w) // k] = _window_mean(
+                                band.ReadAsArray(c0, r0, w, h), k, nodata)
+                            band.FlushCache()
                     else:
                         arr[b0:b0 + math.ceil(h / k)] = band.ReadAsArray(
                             0, r0, cols, h, buf_xsize=bx, buf_ysize=math.ceil(h / k), buf_type=gdal.GDT_Float64,

@@ -40,8 +40,11 @@ def _values(rows, cols, seed=7):
     return v.astype(np.float32)
 
 
+@pytest.mark.parametrize("pieces", ["one", "several"])
 @pytest.mark.parametrize("shape,max_cells", [((1200, 1500), 20_000), ((1024, 768), 3_072), ((600, 600), 10_000)])
-def test_window_mean_is_gdals_average(tmp_path, shape, max_cells):
+def test_window_mean_is_gdals_average(tmp_path, monkeypatch, shape, max_cells, pieces):
+    if pieces == "several":  # each strip averaged in pieces of one block's width (rounded to windows)
+        monkeypatch.setattr(S, "PIECE_COLUMNS", 1)
     v = _values(*shape)
     v[100:140, 200:260] = NODATA  # a hole of nodata
     v[5, 7] = np.nan  # and a NaN cell
