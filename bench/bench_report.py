@@ -10,9 +10,16 @@ the reference of the same run: the report of the run's own folder (400 x 400 cel
 stays flat while the grids grow 600-fold is what the report promises (rasters are read decimated
 to a million cells, picks thinned to 20,000).
 
+With ``--sheets N ...`` it also runs ``strikeline run --no-report`` on invented N x N sheets
+(``bench/_sheets.py``: the planar contact on the hilly terrain, 15 km square), so the structure
+contours have as many vertices as a real run's (about 140 per cell of the sheet's side), and
+times the report of each folder against the floor of any report that shows those grids: GDAL
+alone reading ``surface.tif`` and ``depth.tif`` averaged to the same million cells
+(``gdal.Translate`` to memory, one file after the other, GDAL's decoding threads on).
+
 Usage::
 
-    .venv/bin/python bench/bench_report.py [--sizes 1000 10000]
+    .venv/bin/python bench/bench_report.py [--sizes 1000 10000] [--sheets 2000 4000]
 """
 from __future__ import annotations
 
@@ -26,8 +33,11 @@ from pathlib import Path
 import numpy as np
 from osgeo import gdal
 
+import _sheets
 from _measure import load_line, machine_line, mib, result_line, run_child, strikeline_command
 from strikeline import vocabulary as V
+from strikeline.io.sampling import decimation
+from strikeline.report.data import MAX_MAP_CELLS
 
 DEMO = Path(__file__).resolve().parents[1] / "test_data" / "demo"
 BLOCK_ROWS = 512
@@ -83,9 +93,50 @@ def _grid_folder(run: Path, n: int, dest: Path) -> int:
     return 3 * 4 * n * n
 
 
+#: Side of the invented sheets of ``--sheets`` (m).
+SHEET_M = 15_000.0
+
+
+def _gdal_floor(folder: Path):
+    """GDAL alone reading the surface and the depth averaged to the report's million cells."""
+    code = ("import sys; from osgeo import gdal; gdal.UseExceptions(); gdal.SetConfigOption('GDAL_NUM_THREADS', "
+            "'ALL_CPUS'); n = int(sys.argv[2]); [gdal.Translate('', sys.argv[1] + '/' + f, format='MEM', "
+            "width=n, height=n, resampleAlg='average', outputType=gdal.GDT_Float64) "
+            "for f in ('surface.tif', 'depth.tif')]")
+    ds = gdal.Open(str(folder / V.SURFACE.file))
+    shape = (ds.RasterYSize, ds.RasterXSize)
+    ds = None
+    n = -(-shape[0] // decimation(shape, MAX_MAP_CELLS))
+    done = run_child([sys.executable, "-c", code, str(folder), str(n)])
+    if done.returncode:
+        raise SystemExit(f"GDAL's read of {folder} failed: {done.error_line()}")
+    return done
+
+
+def _sheets_run(tmp: Path, sizes) -> None:
+    contacts = tmp / "contacts.gpkg"
+    _sheets.write_traces(contacts, SHEET_M, [_sheets.plane_surface(SHEET_M)])
+    for n in sizes:
+        dem, out = tmp / f"dem{n}.tif", tmp / f"sheet{n}"
+        _sheets.write_dem(dem, n, SHEET_M)
+        done = run_child(strikeline_command() + ["run", "--contacts", str(contacts), "--dem", str(dem),
+                                                 "--out", str(out), "--no-report", "--quiet"])
+        dem.unlink()
+        if done.returncode:
+            raise SystemExit(f"strikeline run on the {n:,}^2 sheet failed: {done.error_line()}")
+        floor = _gdal_floor(out)
+        m = _child(out)
+        result_line(f"report of a {n:,} x {n:,} sheet's run", m, ratio=m.wall_s / floor.wall_s,
+                    reference=f"GDAL alone reading surface.tif and depth.tif averaged ({floor.wall_s:.2f} s, "
+                              f"{floor.cpu_s:.2f} s CPU)", extra=f"{m.cpu_s:.2f} s CPU")
+        shutil.rmtree(out)
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--sizes", type=int, nargs="+", default=[1000, 10000])
+    ap.add_argument("--sheets", type=int, nargs="*", default=[],
+                    help="also run invented N x N sheets and time their reports (e.g. 2000 4000)")
     args = ap.parse_args()
     gdal.UseExceptions()
     machine_line()
@@ -106,6 +157,8 @@ def main() -> None:
                         reference="the reference's peak memory",
                         extra=f"three float32 grids of {mib(nbytes)} in all")
             shutil.rmtree(folder)
+        if args.sheets:
+            _sheets_run(Path(d), args.sheets)
     load_line("at the end")
 
 
