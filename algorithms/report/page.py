@@ -19,7 +19,11 @@ from strikeline.report.sentences import MODEL_WORDS, answer_sentences, plain_ans
 MISSING_PLOT = (f"report: {V.REPORT_FILE} not written because matplotlib is not installed; install the plot "
                 "extra (pip install 'strikeline[plot]', or pip install -e '.[plot]' in a checkout) and run again")
 #: Figures drawn from summary.json and the attitudes alone (no grid, pick or contacts input), so
-#: before the grids are read; they are the same drawn after.
+#: before the grids are read; they are the same drawn after. Every figure is drawn on the calling
+#: thread: matplotlib is not thread-safe (its FAQ, "Working with threads") and its Agg renderer
+#: holds one lock over every figure's drawing (matplotlib pull request 26302, 2023), so figures
+#: on several threads would wait for each other; what runs beside the drawing is GDAL decoding
+#: the grids, without Python's lock.
 NO_GRID_FIGURES = ("stereonet", "models")
 #: The colour of the frame around every figure (the rendering test finds the figures by it).
 FRAME_RGB = (43, 62, 80)
