@@ -265,7 +265,8 @@ class FileMask:
     ``mask[rows, cols]`` with integer arrays of cell indices gives a bool array (like indexing a
     boolean array of the band's shape). The cells are grouped by windows one tile row high and
     :data:`MASK_WINDOW_TILES` tiles wide; the file is opened once per look-up and each window
-    holding a cell is read once (memory: one window, 4 MiB of float64 with 256-cell tiles).
+    holding a cell is read once and then dropped from GDAL's block cache (memory: one window,
+    4 MiB of float64 with 256-cell tiles, whatever the cache's size).
     """
 
     def __init__(self, path, grid: Grid, *, tile: int = 256):
@@ -300,6 +301,7 @@ class FileMask:
                     if nodata is not None:
                         ok &= win != nodata
                     of[idx] = ok[rf[idx] - r0, cf[idx] - c0]
+                    band.FlushCache()  # drop the window's tiles: the block cache keeps no more than one
             except RuntimeError as exc:
                 raise RasterReadError(f"'{self.path}': GDAL could not read the cells of a mask "
                                       f"({gdal_message(exc)})") from None
@@ -314,9 +316,10 @@ class FileMask:
 _READING = {"held": 0}
 
 
-def _contour_cache_bytes(grid: Grid) -> int:
-    """The block cache one contour read of ``grid`` keeps (:data:`CONTOUR_CACHE_BYTES`)."""
-    return max(CONTOUR_CACHE_BYTES, 3 * grid.cols * 256 * 8)
+def _contour_cache_bytes(*grids: Grid) -> int:
+    """The block cache contour reads of ``grids`` at once keep: three tile rows of each, at least
+    :data:`CONTOUR_CACHE_BYTES`."""
+    return max(CONTOUR_CACHE_BYTES, sum(3 * g.cols * 256 * 8 for g in grids))
 
 
 @contextlib.contextmanager
@@ -327,14 +330,14 @@ def contour_reading(*grids: Grid):
     each set them around their own call and restore them after could switch them under each
     other: the first to finish would turn exceptions off (GDAL's failures of the other would
     then pass as error codes) or give back the whole cache while the other still reads. Inside
-    this block both are set once - exceptions on, the cache bounded to the sum of what each of
-    ``grids``' generators keeps - and restored once when it ends; the caller must have joined
+    this block both are set once - exceptions on, the cache bounded to three tile rows of each of
+    ``grids`` (at least :data:`CONTOUR_CACHE_BYTES`) - and restored once when it ends; the caller must have joined
     every thread it started by then. The calls' own :func:`gdal_exceptions` find the mode on
     and so leave it on, and they leave the cache to this block.
     """
     cache = gdal.GetCacheMax()
     with gdal_exceptions():
-        gdal.SetCacheMax(min(cache, sum(_contour_cache_bytes(g) for g in grids)))
+        gdal.SetCacheMax(min(cache, _contour_cache_bytes(*grids)))
         _READING["held"] += 1
         try:
             yield
