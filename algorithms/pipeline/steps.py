@@ -318,6 +318,8 @@ def depth_trace_misfit(dem, dem_grid: Grid, surface, contacts: VectorLayer | Non
 
     ``raw_trace``: the zero line of the depth already drawn (from a depth grid written block by
     block, :mod:`strikeline.pipeline.tiled`); ``surface`` is not used then and ``depth`` is None.
+    A run's block path draws it on a second thread during the step "structure contours"
+    (:func:`strikeline.pipeline.tiled.contours_and_trace_of_blocks`), whose time then includes it.
     """
     spacing = min(dem_grid.cell_x_m, dem_grid.cell_y_m)
     depth = None

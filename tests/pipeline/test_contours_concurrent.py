@@ -145,3 +145,18 @@ def test_a_failure_of_the_contours_stops_the_trace(sheet):
     with pytest.raises(ValueError, match="reach test failed"):
         contours_and_trace_of_blocks(tiles, grid, grid, interval_m=INTERVAL_M, extrapolated_fn=fails)
     assert threading.active_count() == before
+
+
+def test_one_core_draws_the_same_lines_one_after_the_other(sheet, monkeypatch):
+    import strikeline.pipeline.tiled as tiled
+
+    model, grid, tiles = sheet
+    both = contours_and_trace_of_blocks(tiles, grid, grid, interval_m=INTERVAL_M,
+                                        extrapolated_fn=model.is_extrapolated)
+    monkeypatch.setattr(tiled, "THREADS", 1)
+    before = threading.active_count()
+    one = contours_and_trace_of_blocks(tiles, grid, grid, interval_m=INTERVAL_M,
+                                       extrapolated_fn=model.is_extrapolated)
+    assert threading.active_count() == before
+    assert _wkb(one[0][0]) == _wkb(both[0][0]) and _wkb(one[1]) == _wkb(both[1])
+    assert np.array_equal(one[0][1], both[0][1]) and np.array_equal(one[0][2], both[0][2])
