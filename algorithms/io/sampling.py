@@ -153,6 +153,53 @@ def read_decimated(path, *, max_cells: int = 1_000_000, resampling: str = "avera
     return _as_float(arr, nodata), grid
 
 
+def read_decimated_and_sample(path, *, max_cells: int = 1_000_000, sample_cells: int = 4_000_000,
+                              label: str = "raster") -> tuple[np.ndarray, Grid, np.ndarray]:
+    """:func:`read_decimated` with ``resampling='average'`` and the array of ``read_decimated(...,
+    max_cells=sample_cells, resampling='nearest')``, from one decoding of the file when both
+    factors divide the float32 band's rows and columns (GDAL's nearest cell of a ``k x k`` window
+    is its ``(k // 2, k // 2)`` cell, its average :func:`_window_mean`'s), else from the two reads.
+    """
+    path = os.fspath(path)
+    with gdal_exceptions():
+        ds = _open_raster(path, label)
+        try:
+            band = ds.GetRasterBand(1)
+            rows, cols = ds.RasterYSize, ds.RasterXSize
+            ka, kn = decimation((rows, cols), max_cells), decimation((rows, cols), sample_cells)
+            if not (ka > 1 and kn > 1 and band.DataType == gdal.GDT_Float32
+                    and rows % ka == 0 and cols % ka == 0 and rows % kn == 0 and cols % kn == 0):
+                ds = None
+                mean, grid = read_decimated(path, max_cells=max_cells, resampling="average", label=label)
+                return mean, grid, read_decimated(path, max_cells=sample_cells, resampling="nearest",
+                                                  label=label)[0]
+            nodata = band.GetNoDataValue()
+            both = math.lcm(ka, kn)
+            step = both * max(1, STRIP_ROWS // both)
+            whole = math.lcm(both, band.GetBlockSize()[0])
+            piece = whole * max(1, PIECE_COLUMNS // whole)
+            mean = np.empty((rows // ka, cols // ka))
+            near = np.empty((rows // kn, cols // kn))
+            for r0 in range(0, rows, step):
+                h = min(step, rows - r0)
+                for c0 in range(0, cols, piece):
+                    w = min(piece, cols - c0)
+                    try:
+                        block = band.ReadAsArray(c0, r0, w, h)
+                    except RuntimeError as exc:
+                        raise RasterReadError(f"{label} '{path}': GDAL could not read it ({gdal_message(exc)})") \
+                            from None
+                    band.FlushCache()
+                    mean[r0 // ka:(r0 + h) // ka, c0 // ka:(c0 + w) // ka] = _window_mean(block, ka, nodata)
+                    near[r0 // kn:(r0 + h) // kn, c0 // kn:(c0 + w) // kn] = block[kn // 2::kn, kn // 2::kn]
+            x0, dx, _, y0, _, dy = ds.GetGeoTransform()
+            wkt = ds.GetProjection() or ""
+        finally:
+            ds = None
+    grid = Grid((x0, dx * cols / (cols // ka), 0.0, y0, 0.0, dy * ka), mean.shape, wkt, nodata)  # as read_decimated
+    return _as_float(mean, nodata), grid, _as_float(near, nodata)
+
+
 def sample_bilinear(path, x, y, *, block_rows: int = 256, label: str = "raster") -> np.ndarray:
     """Band 1 of a raster interpolated bilinearly between cell centres at the points ``(x, y)``.
 

@@ -25,7 +25,8 @@ from strikeline import vocabulary as V
 from strikeline.errors import StrikelineError
 from strikeline.io._gdal import gdal_exceptions
 from strikeline.io.demfile import decode_threads
-from strikeline.io.sampling import layer_names, read_decimated, read_point_sample, sample_bilinear
+from strikeline.io.sampling import (layer_names, read_decimated, read_decimated_and_sample, read_point_sample,
+                                     sample_bilinear)
 from strikeline.io.vector import read_layer
 
 #: Most cells of a grid read for a picture: a map panel is about 1,000 pixels across.
@@ -137,8 +138,7 @@ def load_outputs(folder, *, max_cells: int = MAX_MAP_CELLS, max_points: int = MA
                                                thread_name_prefix="strikeline-report-read") as pool:
         grids = {"surface": pool.submit(_raster, surf, max_cells=max_cells),
                  "depth": pool.submit(_raster, folder / V.DEPTH.file, max_cells=max_cells),
-                 "true_thickness": pool.submit(_raster, tt, max_cells=max_cells),
-                 "thickness_sample": pool.submit(_sample_of, tt)}
+                 "thickness": pool.submit(_thickness, tt, max_cells=max_cells)}
         gpkg = folder / V.RESULTS_FILE
         names = layer_names(gpkg)
         d.contours = _lines(gpkg, V.STRUCTURE_CONTOURS.name, names)
@@ -167,22 +167,26 @@ def load_outputs(folder, *, max_cells: int = MAX_MAP_CELLS, max_points: int = MA
             at = residual_at.result() if residual_at is not None else np.full(len(z), np.nan)
             d.picks = {"x": p["x"], "y": p["y"], "z": z, "residual_m": z - at, "n_total": p["n_total"],
                        "step": p["step"]}
-    d.surface, d.depth, d.true_thickness = got["surface"], got["depth"], got["true_thickness"]
+    d.surface, d.depth = got["surface"], got["depth"]
+    d.true_thickness, sample = got["thickness"]
     if d.surface is not None and d.depth is not None and d.surface.values.shape == d.depth.values.shape:
         # depth below ground = ground - surface, so the ground is their sum on the output grid
         d.ground = Raster(d.surface.values + d.depth.values, d.surface.extent, d.surface.cell_m, d.surface.crs_wkt)
-    if got["thickness_sample"] is not None:
-        d.thickness_sample = got["thickness_sample"]
+    if sample is not None:
+        d.thickness_sample = sample
     if d.misfit is None or not len(d.misfit):
         d.contacts = _input_contacts(summary, d.surface.crs_wkt if d.surface is not None else "")
     return d
 
 
-def _sample_of(path: Path) -> np.ndarray | None:
-    """The valid cells of a regular sample of at most :data:`MAX_HISTOGRAM_CELLS` cells of a grid
-    file (None without the file)."""
+def _thickness(path: Path, *, max_cells: int) -> tuple[Raster | None, np.ndarray | None]:
+    """The thickness grid read as :func:`_raster` reads a grid, and the valid cells of a regular
+    sample of at most :data:`MAX_HISTOGRAM_CELLS` of its cells (GDAL's nearest), from one decoding
+    of the file where the factors allow; (None, None) without the file."""
     if not path.exists():
-        return None
+        return None, None
     with decode_threads():
-        vals, _ = read_decimated(path, max_cells=MAX_HISTOGRAM_CELLS, resampling="nearest", label=path.name)
-    return vals[np.isfinite(vals)]
+        arr, grid, vals = read_decimated_and_sample(path, max_cells=max_cells, sample_cells=MAX_HISTOGRAM_CELLS,
+                                                    label=path.name)
+    xmin, ymin, xmax, ymax = grid.bounds
+    return Raster(arr, (xmin, xmax, ymin, ymax), grid.cell_x_m, grid.crs_wkt), vals[np.isfinite(vals)]

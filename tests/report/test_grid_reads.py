@@ -79,3 +79,43 @@ def test_other_shapes_and_types_are_still_gdals(tmp_path):
     p64 = _grid(tmp_path / "f64.tif", v64, dtype=gdal.GDT_Float64)
     got64, _ = S.read_decimated(p64, max_cells=10_000)
     assert np.array_equal(got64, _gdal_average(p64, S.decimation((600, 600), 10_000)))
+
+
+@pytest.mark.parametrize("pieces", ["one", "several"])
+@pytest.mark.parametrize("shape,max_cells,sample_cells", [((1200, 1500), 20_000, 80_000),
+                                                          ((1024, 768), 3_072, 12_288),
+                                                          ((900, 900), 900, 8_100),
+                                                          ((1001, 1300), 20_000, 80_000)])
+def test_average_and_sample_from_one_read_are_gdals_two_reads(tmp_path, monkeypatch, shape, max_cells,
+                                                              sample_cells, pieces):
+    if pieces == "several":
+        monkeypatch.setattr(S, "PIECE_COLUMNS", 1)
+    v = _values(*shape, seed=11)
+    v[300:380, 100:170] = NODATA
+    v[9, 4] = np.nan
+    path = _grid(tmp_path / "t.tif", v)
+    mean, grid, sample = S.read_decimated_and_sample(path, max_cells=max_cells, sample_cells=sample_cells)
+    # Reference: the two reads of GDAL's RasterIO as read_decimated makes them (average; nearest
+    # neighbour, GDAL's own choice of cell in each window)
+    want_mean, want_grid = S.read_decimated(path, max_cells=max_cells, resampling="average")
+    want_near, _ = S.read_decimated(path, max_cells=sample_cells, resampling="nearest")
+    kn = S.decimation(shape, sample_cells)
+    if shape[0] % kn == 0 and shape[1] % kn == 0:  # whole windows: also GDAL's read of the whole file at once
+        whole = _gdal_nearest(path, kn)
+        assert np.array_equal(np.isnan(whole), np.isnan(want_near))
+        assert np.array_equal(whole[~np.isnan(whole)], want_near[~np.isnan(want_near)])
+    for got, want in ((mean, want_mean), (sample, want_near)):
+        assert got.shape == want.shape
+        assert np.array_equal(np.isnan(got), np.isnan(want))
+        assert np.array_equal(got[~np.isnan(got)], want[~np.isnan(want)])
+    assert grid == want_grid
+
+
+def _gdal_nearest(path, k):
+    """Reference: GDAL's RasterIO nearest-neighbour read into a buffer k times smaller, whole file at once."""
+    ds = gdal.Open(str(path))
+    b = ds.GetRasterBand(1)
+    rows, cols = ds.RasterYSize, ds.RasterXSize
+    out = b.ReadAsArray(0, 0, cols, rows, buf_xsize=-(-cols // k), buf_ysize=-(-rows // k),
+                        buf_type=gdal.GDT_Float64, resample_alg=gdal.GRIORA_NearestNeighbour)
+    return S._as_float(out, b.GetNoDataValue())
