@@ -160,3 +160,31 @@ def test_one_core_draws_the_same_lines_one_after_the_other(sheet, monkeypatch):
     assert threading.active_count() == before
     assert _wkb(one[0][0]) == _wkb(both[0][0]) and _wkb(one[1]) == _wkb(both[1])
     assert np.array_equal(one[0][1], both[0][1]) and np.array_equal(one[0][2], both[0][2])
+
+
+def test_a_signal_stops_both_threads_and_ends_the_call_as_interrupted(sheet):
+    """SIGINT arriving while the main thread's GDAL call holds signals: both draws stop at GDAL's
+    next progress report, the call raises Interrupted (exit status 130, Source: POSIX 128 +
+    signal number) after the trace's thread has ended, and no signal is left recorded."""
+    import os
+    import signal
+
+    from strikeline.io import interrupt
+
+    model, grid, tiles = sheet
+    sent = []
+
+    def poll() -> bool:
+        if threading.current_thread() is threading.main_thread() and not sent:
+            sent.append(1)
+            os.kill(os.getpid(), signal.SIGINT)
+        return False
+
+    before = threading.active_count()
+    with interrupt.signals_as_exceptions():
+        with pytest.raises(interrupt.Interrupted) as caught:
+            contours_and_trace_of_blocks(tiles, grid, grid, interval_m=INTERVAL_M,
+                                         extrapolated_fn=model.is_extrapolated, is_cancelled=poll)
+        assert interrupt._state["pending"] is None
+    assert sent and caught.value.exit_status == 130
+    assert threading.active_count() == before
