@@ -49,7 +49,6 @@ CONTOUR_CACHE_BYTES = 64 * 2**20
 MASK_WINDOW_TILES = 8
 
 
-
 class StripWriter:
     """A GeoTIFF written a band of rows at a time, in strips one tile high.
 
@@ -71,7 +70,9 @@ class StripWriter:
     GDAL compresses a tile when it leaves the block cache and appends it to the file, so the
     order in which tiles are completed decides where they lie in the file. Rows are kept until a
     strip of whole tile rows is complete and then written with one ``WriteArray`` across the
-    width, which completes the tiles row by row, left to right, as a whole-array write does.
+    width, which completes the tiles row by row, left to right, as a whole-array write does;
+    :meth:`write_block` takes blocks one tile row high and whole tiles wide instead, in the same
+    order, so that rows need not span the grid's width in memory.
     The first and last strips' bytes are hashed; :meth:`close` closes the file (GDAL's last
     error checked, as GDAL 3.6 does not raise it on close), checks that every tile's bytes lie
     inside the file and reads those two strips back - the check of the whole-array writer
@@ -91,7 +92,8 @@ class StripWriter:
         self._pending: list[np.ndarray] = []
         self._n_pending = 0
         self._next_row = 0
-        self._hashes: dict[int, bytes] = {}  # first row of the first and the last strip -> digest
+        self._hashes: dict[tuple, bytes] = {}  # (row, col, rows, cols) of the first and last strips' pieces -> digest
+        self._next_col = 0  # where the next block goes in the current tile row (write_block)
         self._any_valid = False
         try:
             with gdal_exceptions():
@@ -107,7 +109,7 @@ class StripWriter:
                 if not scratch:
                     b.SetDescription(self.description)
                     b.SetUnitType(self.unit)
-                self.strip_rows = int(b.GetBlockSize()[1])
+                self.tile_cols, self.strip_rows = (int(v) for v in b.GetBlockSize())
                 b = None
         except RuntimeError as exc:
             self.abort()
@@ -121,7 +123,7 @@ class StripWriter:
 
     def write_rows(self, r0: int, values) -> None:
         """Append the rows ``r0 .. r0 + len(values)`` (full width; NaN for no value)."""
-        if r0 != self._next_row:
+        if r0 != self._next_row or self._next_col:
             raise ValueError(f"rows must come in order: expected row {self._next_row}, got {r0}")
         v = np.asarray(values)
         if v.ndim != 2 or v.shape[1] != self.grid.cols:
@@ -137,20 +139,57 @@ class StripWriter:
         while self._n_pending >= self.strip_rows or (done and self._n_pending):
             self._write_strip()
 
+    def takes_blocks(self, block_shape) -> bool:
+        """Whether blocks of ``block_shape`` (rows, cols) can be given to :meth:`write_block`:
+        one tile high and a whole number of tiles wide."""
+        return int(block_shape[0]) == self.strip_rows and int(block_shape[1]) % self.tile_cols == 0
+
+    def write_block(self, r0: int, c0: int, values) -> None:
+        """Write the block of rows ``r0 ..`` and columns ``c0 ..`` (NaN for no value).
+
+        Blocks come left to right along a tile row, tile rows top to bottom; each is one tile
+        row high (fewer rows at the grid's foot) and starts at a tile's left edge, so its tiles
+        are complete when it is written: they are compressed and appended to the file at once,
+        in the order of a whole-array write, and nothing waits for the rest of the tile row.
+        Not to be mixed with :meth:`write_rows`.
+        """
+        v = np.asarray(values)
+        h = min(self.strip_rows, self.grid.rows - self._next_row)
+        if (r0, c0) != (self._next_row, self._next_col) or self._n_pending:
+            raise ValueError(f"blocks must come in order: expected row {self._next_row}, column {self._next_col}, "
+                             f"got row {r0}, column {c0}")
+        if v.ndim != 2 or v.shape[0] != h or not (0 < v.shape[1] <= self.grid.cols - c0) or (
+                c0 + v.shape[1] < self.grid.cols and v.shape[1] % self.tile_cols):
+            raise ValueError(f"a block of shape {v.shape} at row {r0}, column {c0} does not end on a tile's edge "
+                             f"of a grid {self.grid.shape}")
+        out = np.asarray(v, dtype=self.dtype)
+        ok = np.isfinite(out)
+        self._any_valid = self._any_valid or bool(ok.any())
+        self._write(np.where(ok, out, self.dtype(self.nodata)), r0, c0)
+        self._next_col = c0 + v.shape[1]
+        if self._next_col == self.grid.cols:
+            self._next_row, self._next_col = r0 + h, 0
+
     def _write_strip(self) -> None:
         rows = np.concatenate(self._pending) if len(self._pending) > 1 else self._pending[0]
         n = min(self.strip_rows, len(rows))
         strip, rest = np.ascontiguousarray(rows[:n]), rows[n:]
-        r0 = self._next_row - self._n_pending
+        self._write(strip, self._next_row - self._n_pending, 0)
+        self._pending = [rest] if len(rest) else []
+        self._n_pending = len(rest)
+
+    def _write(self, piece: np.ndarray, r0: int, c0: int) -> None:
+        """Write whole tiles (a strip, or a block of one) now and hash the first and last tile rows."""
+        piece = np.ascontiguousarray(piece)
         # no switch of GDAL's exception mode here (it is process-wide and strips of several files
         # are written on several threads): a failure is an exception or an error code
         failed = None
         try:
             band = self._ds.GetRasterBand(1)
-            # the strip's tiles are compressed and written now, on this thread, in the order a
-            # whole-array write gives them; GDAL's block cache then holds one strip of this file
+            # the piece's tiles are compressed and written now, on this thread, in the order a
+            # whole-array write gives them; GDAL's block cache then holds one piece of this file
             gdal.ErrorReset()  # this thread's last error (GDAL keeps one per thread)
-            if band.WriteArray(strip, 0, r0) != gdal.CE_None:
+            if band.WriteArray(piece, c0, r0) != gdal.CE_None:
                 failed = gdal.GetLastErrorMsg() or "write failed"
             else:
                 band.FlushCache()  # returns nothing in GDAL 3.6's bindings: its failure is the last error
@@ -161,10 +200,9 @@ class StripWriter:
         if failed is not None:
             raise OutputError(f"'{self.path}': GDAL could not write it ({failed}); free some space or "
                               "choose another folder")
-        if r0 == 0 or r0 + n == self.grid.rows:
-            self._hashes[r0] = hashlib.blake2b(memoryview(strip), digest_size=16).digest()
-        self._pending = [rest] if len(rest) else []
-        self._n_pending = len(rest)
+        h, w = piece.shape
+        if r0 == 0 or r0 + h == self.grid.rows:
+            self._hashes[(r0, c0, h, w)] = hashlib.blake2b(memoryview(piece), digest_size=16).digest()
 
     def close(self) -> str:
         """Flush, close and check the file, then rename it into place; returns the path."""
@@ -222,8 +260,8 @@ class StripWriter:
             if cut is not None:
                 raise RuntimeError(f"the file read back differs from what was written (tile {cut[0]}, {cut[1]} "
                                    "missing or cut short)")
-            for r0, digest in self._hashes.items():
-                got = b.ReadAsArray(0, r0, self.grid.cols, min(self.strip_rows, self.grid.rows - r0))
+            for (r0, c0, h, w), digest in self._hashes.items():
+                got = b.ReadAsArray(c0, r0, w, h)
                 b.FlushCache()  # drop the strip's blocks from GDAL's cache: memory stays one strip
                 if got is None or hashlib.blake2b(np.ascontiguousarray(got, dtype=self.dtype).tobytes(),
                                                   digest_size=16).digest() != digest:

@@ -279,10 +279,13 @@ def _by_blocks(block_fn, outs, scratch_grids: dict, grid: Grid, folder, *, block
         # a grid only written as an output is kept in float32 (the writer rounds it so anyway):
         # a band of it takes half the memory and its writer no conversion
         single = {k for k, _ in outs} - set(scratch_grids)
+        streaming = all(w.takes_blocks(block_shape) for _, w in jobs)
         with ThreadPoolExecutor(max_workers=max(1, int(threads))) as pool:
             try:
+                if streaming:
+                    _stream_blocks(pool, block_fn, jobs, grid, block_shape, threads, counts, progress, is_cancelled)
                 writing = []
-                for band in block_windows(grid.shape, block_shape):
+                for band in ([] if streaming else block_windows(grid.shape, block_shape)):
                     if is_cancelled is not None and is_cancelled():
                         raise CancelledError("cancelled; nothing was written")
                     # the previous band's writes were queued first: the threads write it while
@@ -320,6 +323,49 @@ def _by_blocks(block_fn, outs, scratch_grids: dict, grid: Grid, folder, *, block
         raise
     return BlockGrids(files, scratch, any_valid, counts["base"], counts["top"], counts["both"],
                       _owned=owned)
+
+
+def _stream_blocks(pool, block_fn, jobs, grid: Grid, block_shape, threads, counts: dict, progress,
+                   is_cancelled) -> None:
+    """Compute blocks that are one tile row high and whole tiles wide and write each as soon as
+    it is done (:meth:`~strikeline.io.gridfiles.StripWriter.write_block`): memory holds a few
+    blocks, whatever the grid's width. A few blocks are computed ahead; each block's writes are
+    queued ahead of the next block computed, and a writer's blocks are queued only once its
+    previous block is written, so each file gets its blocks in order."""
+    from collections import deque
+
+    blocks = iter([w for band in block_windows(grid.shape, block_shape) for w in band])
+    n_blocks = sum(len(b) for b in block_windows(grid.shape, block_shape))
+    ahead = deque()
+
+    def compute_next() -> None:
+        w = next(blocks, None)
+        if w is not None:
+            ahead.append((w, pool.submit(block_fn, w)))
+
+    for _ in range(2 * max(1, int(threads)) + 1):
+        compute_next()
+    writing, done = [], 0
+    while ahead:
+        if is_cancelled is not None and is_cancelled():
+            raise CancelledError("cancelled; nothing was written")
+        (r0, _, c0, _), f = ahead.popleft()
+        part = f.result()
+        for fw in writing:
+            fw.result()
+        writing = [pool.submit(w.write_block, r0, c0, part[k]) for k, w in jobs]
+        if "base_in" in part:
+            b_in, t_in = part["base_in"], part["top_in"]
+            counts["base"] += int(b_in.sum())
+            counts["top"] += int(t_in.sum())
+            counts["both"] += int((b_in & t_in).sum())
+        part = f = None
+        compute_next()
+        done += 1
+        if progress is not None:
+            progress(done / n_blocks)
+    for fw in writing:
+        fw.result()
 
 
 def _gather(band, computing, cols: int, single: set) -> dict:

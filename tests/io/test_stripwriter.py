@@ -31,8 +31,14 @@ def _values(grid):
     return z
 
 
-def _write(path, z, grid, *, scratch=False, band_rows=97):
+def _write(path, z, grid, *, scratch=False, band_rows=97, block_cols=None):
+    """Write ``z`` in bands of ``band_rows`` rows, or (``block_cols``) in blocks one tile row high."""
     w = StripWriter(path, grid, description="surface", unit="m", scratch=scratch)
+    if block_cols is not None:
+        for r0 in range(0, grid.rows, 256):
+            for c0 in range(0, grid.cols, block_cols):
+                w.write_block(r0, c0, z[r0:r0 + 256, c0:c0 + block_cols])
+        return w
     for r0 in range(0, grid.rows, band_rows):
         w.write_rows(r0, z[r0:r0 + band_rows])
     return w
@@ -45,6 +51,33 @@ def test_bands_give_the_whole_array_file(tmp_path):
     write_geotiff(tmp_path / "whole.tif", z, grid, description="surface", unit="m")
     # Source: the whole-array writer's bytes (the same creation options and tile order)
     assert (tmp_path / "bands.tif").read_bytes() == (tmp_path / "whole.tif").read_bytes()
+
+
+@pytest.mark.parametrize("block_cols", [256, 512])
+def test_blocks_give_the_whole_array_file(tmp_path, block_cols):
+    grid = _grid()  # 600 x 530: three tile rows and two or three blocks across, the last ones partial
+    z = _values(grid)
+    w = _write(tmp_path / "blocks.tif", z, grid, block_cols=block_cols)
+    assert w.takes_blocks((256, block_cols)) and not w.takes_blocks((256, 300)) and not w.takes_blocks((128, 256))
+    w.close()
+    write_geotiff(tmp_path / "whole.tif", z, grid, description="surface", unit="m")
+    # Source: the whole-array writer's bytes (the same creation options and tile order)
+    assert (tmp_path / "blocks.tif").read_bytes() == (tmp_path / "whole.tif").read_bytes()
+
+
+def test_blocks_out_of_order_or_off_the_tiles_are_refused(tmp_path):
+    grid = _grid()
+    z = _values(grid)
+    w = StripWriter(tmp_path / "b.tif", grid)
+    with pytest.raises(ValueError, match="in order"):
+        w.write_block(0, 256, z[:256, 256:512])
+    with pytest.raises(ValueError, match="tile's edge"):
+        w.write_block(0, 0, z[:256, :300])
+    w.write_block(0, 0, z[:256, :256])
+    with pytest.raises(ValueError, match="in order"):
+        w.write_rows(0, z[:256])
+    w.abort()
+    assert os.listdir(tmp_path) == []
 
 
 def test_scratch_grid_reads_back_as_float64(tmp_path):
@@ -65,10 +98,11 @@ def test_scratch_grid_reads_back_as_float64(tmp_path):
 
 @pytest.mark.parametrize("damage", ["truncate", "first_tile", "last_tile"])
 @pytest.mark.parametrize("scratch", [False, True])
-def test_the_check_catches_a_truncated_or_damaged_file(tmp_path, damage, scratch):
+@pytest.mark.parametrize("block_cols", [None, 256])
+def test_the_check_catches_a_truncated_or_damaged_file(tmp_path, damage, scratch, block_cols):
     grid = _grid()
     z = _values(grid)
-    w = _write(tmp_path / "s.tif", z, grid, scratch=scratch)
+    w = _write(tmp_path / "s.tif", z, grid, scratch=scratch, block_cols=block_cols)
     w.finish()
     size = os.path.getsize(w.tmp)
     with gdal_exceptions():

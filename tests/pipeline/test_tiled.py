@@ -187,6 +187,32 @@ def test_real_sheet_in_tiny_blocks_gives_the_same_files(tmp_path, case):
     _assert_same_outputs(mem, blk)
 
 
+def test_blocks_a_tile_row_high_are_written_as_they_come(tmp_path, monkeypatch):
+    """Blocks one 256-cell tile row high and whole tiles wide go to the files one by one
+    (StripWriter.write_block: no band across the grid's width in memory): the demo with its top
+    contact on 5 m cells (800 x 800: three whole tile rows and a part, two blocks across, the
+    second not a whole block) gives the in-memory run's files."""
+    from strikeline.io.gridfiles import StripWriter
+
+    calls = []
+    original = StripWriter.write_block
+
+    def spy(self, r0, c0, values):
+        calls.append((r0, c0))
+        return original(self, r0, c0, values)
+
+    monkeypatch.setattr(StripWriter, "write_block", spy)
+    mem, blk, results = _run_both(tmp_path, {"contacts": str(DEMO / "contacts.gpkg"), "dem": str(DEMO / "dem.tif"),
+                                             "top_contacts": str(DEMO / "top_contacts.gpkg"), "cell_m": 5.0},
+                                  (256, 512))
+    assert results.block_grids[0].files  # the grids went by blocks
+    # 4 tile rows x 2 blocks, once for each file of the grids pass (5 outputs, 2 scratch) and of
+    # the isopachs pass (2 outputs, 1 scratch)
+    assert len(calls) == 8 * (7 + 3)
+    assert sorted(set(calls)) == [(r, c) for r in (0, 256, 512, 768) for c in (0, 512)]
+    _assert_same_outputs(mem, blk)
+
+
 def test_command_line_block_cells_writes_the_same_grids(tmp_path, cli):
     """``strikeline run --block-cells 5`` writes the grids it writes without the option, and leaves no
     scratch file in the output folder (its manifest lists the outputs only)."""
