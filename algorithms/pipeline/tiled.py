@@ -4,8 +4,9 @@ The output grid is cut into blocks (a band of rows at a time, blocks across it);
 computed with a halo of one cell where a value needs its neighbours (dip and dip direction, the
 base's dip in the true thickness), on two threads (numpy, scipy's k-d tree queries and GDAL
 release Python's lock), and the band is written to each GeoTIFF in strips
-(:class:`strikeline.io.gridfiles.StripWriter`) while the next band is computed. Memory holds two
-bands of each grid, not the grid. Structure contours and the predicted trace are then drawn by
+(:class:`strikeline.io.gridfiles.StripWriter`) while the next band is computed. With the default
+blocks (one tile row high, whole tiles wide) each block goes to the files as soon as it is done,
+and memory holds a few blocks whatever the grid's size; other block shapes hold two bands. Structure contours and the predicted trace are then drawn by
 GDAL's contour generator from float64 scratch copies of the surface and the depth, which it
 reads a block of lines at a time.
 
