@@ -35,14 +35,19 @@ __all__ = ["StripWriter", "read_window", "FileMask", "contour_lines_from_file", 
 #: Creation options of strikeline's output GeoTIFFs: those of
 #: :data:`strikeline.io.geotiff.CREATION_OPTIONS` (the block path's files must equal its files).
 OUTPUT_OPTIONS = CREATION_OPTIONS
-#: Scratch grids: tiled, uncompressed (read back once or twice, then removed), BigTIFF.
-SCRATCH_OPTIONS = ("TILED=YES", "BIGTIFF=YES")
+#: Rows of a scratch grid's tiles: GDAL's contour generator reads a scratch grid a line at a
+#: time, so its block cache holds whole tile rows across the grid; tiles 16 rows high (TIFF's
+#: least) keep that to 16 rows of the width, not 256 (our choice).
+SCRATCH_TILE_ROWS = 16
+#: Scratch grids: tiled 256 x 16, uncompressed (read back once or twice, then removed), BigTIFF;
+#: their bytes need not equal a whole-array write, only their values.
+SCRATCH_OPTIONS = ("TILED=YES", "BLOCKXSIZE=256", f"BLOCKYSIZE={SCRATCH_TILE_ROWS}", "BIGTIFF=YES")
 #: Nodata of the float64 scratch grids: the lowest float64, below every value a surface takes,
 #: the sentinel :func:`strikeline.io.contours.contour_lines` gives GDAL for NaN cells.
 SCRATCH_NODATA = float(np.finfo(np.float64).min)
-#: GDAL's block cache while the contour generator reads a scratch grid: three rows of 256 x 256
+#: GDAL's block cache while the contour generator reads a scratch grid: three rows of its
 #: float64 tiles across the grid (two lines it compares may lie in two tile rows), at least 64 MiB
-#: (our choice): memory grows with the grid's width, not its cells.
+#: (our choice): with 16-row tiles 64 MiB holds three tile rows of grids up to 170,000 columns.
 CONTOUR_CACHE_BYTES = 64 * 2**20
 #: Width in tiles of the windows :class:`FileMask` reads: 8 tiles of 256 x 256 float64 cells are
 #: 4 MiB, few enough calls into GDAL for a sheet's contours and little memory (our choice).
@@ -94,6 +99,7 @@ class StripWriter:
         self._next_row = 0
         self._hashes: dict[tuple, bytes] = {}  # (row, col, rows, cols) of the first and last strips' pieces -> digest
         self._next_col = 0  # where the next block goes in the current tile row (write_block)
+        self._row_height = 0  # rows of the current row of blocks (write_block)
         self._any_valid = False
         try:
             with gdal_exceptions():
@@ -141,8 +147,11 @@ class StripWriter:
 
     def takes_blocks(self, block_shape) -> bool:
         """Whether blocks of ``block_shape`` (rows, cols) can be given to :meth:`write_block`:
-        one tile high and a whole number of tiles wide."""
-        return int(block_shape[0]) == self.strip_rows and int(block_shape[1]) % self.tile_cols == 0
+        a whole number of tiles wide, and one tile row high (a scratch grid, whose tiles' order in
+        the file does not matter: a whole number of tile rows)."""
+        rows, cols = int(block_shape[0]), int(block_shape[1])
+        high = rows % self.strip_rows == 0 if self.scratch else rows == self.strip_rows
+        return high and cols % self.tile_cols == 0
 
     def write_block(self, r0: int, c0: int, values) -> None:
         """Write the block of rows ``r0 ..`` and columns ``c0 ..`` (NaN for no value).
@@ -151,10 +160,18 @@ class StripWriter:
         row high (fewer rows at the grid's foot) and starts at a tile's left edge, so its tiles
         are complete when it is written: they are compressed and appended to the file at once,
         in the order of a whole-array write, and nothing waits for the rest of the tile row.
-        Not to be mixed with :meth:`write_rows`.
+        A scratch grid also takes blocks several tile rows high (the blocks of one row of blocks
+        all as high). Not to be mixed with :meth:`write_rows`.
         """
         v = np.asarray(values)
-        h = min(self.strip_rows, self.grid.rows - self._next_row)
+        left = self.grid.rows - self._next_row
+        if self._next_col:
+            h = self._row_height  # inside a row of blocks: as high as its first block
+        elif self.scratch and v.ndim == 2 and 0 < v.shape[0] <= left and (
+                v.shape[0] % self.strip_rows == 0 or v.shape[0] == left):
+            h = v.shape[0]  # whole tile rows, or down to the grid's foot
+        else:
+            h = min(self.strip_rows, left)
         if (r0, c0) != (self._next_row, self._next_col) or self._n_pending:
             raise ValueError(f"blocks must come in order: expected row {self._next_row}, column {self._next_col}, "
                              f"got row {r0}, column {c0}")
@@ -166,7 +183,7 @@ class StripWriter:
         ok = np.isfinite(out)
         self._any_valid = self._any_valid or bool(ok.any())
         self._write(np.where(ok, out, self.dtype(self.nodata)), r0, c0)
-        self._next_col = c0 + v.shape[1]
+        self._next_col, self._row_height = c0 + v.shape[1], h
         if self._next_col == self.grid.cols:
             self._next_row, self._next_col = r0 + h, 0
 
@@ -357,7 +374,7 @@ _READING = {"held": 0}
 def _contour_cache_bytes(*grids: Grid) -> int:
     """The block cache contour reads of ``grids`` at once keep: three tile rows of each, at least
     :data:`CONTOUR_CACHE_BYTES`."""
-    return max(CONTOUR_CACHE_BYTES, sum(3 * g.cols * 256 * 8 for g in grids))
+    return max(CONTOUR_CACHE_BYTES, sum(3 * g.cols * SCRATCH_TILE_ROWS * 8 for g in grids))
 
 
 @contextlib.contextmanager

@@ -80,6 +80,23 @@ def test_blocks_out_of_order_or_off_the_tiles_are_refused(tmp_path):
     assert os.listdir(tmp_path) == []
 
 
+def test_scratch_grid_takes_blocks_several_tile_rows_high(tmp_path):
+    grid = _grid()  # 600 rows: two rows of 256-row blocks and one of 88 rows at the foot
+    z = _values(grid)
+    w = _write(tmp_path / "s.tif", z, grid, scratch=True, block_cols=256)
+    assert w.takes_blocks((256, 512)) and w.takes_blocks((32, 256)) and not w.takes_blocks((40, 256))
+    w.close()
+    with gdal_exceptions():
+        ds = gdal.Open(str(tmp_path / "s.tif"))
+        b = ds.GetRasterBand(1)
+        got, tiles = b.ReadAsArray(), b.GetBlockSize()
+        b = ds = None
+    # Source: GDAL's reading of the file: every value as written, in tiles 16 rows high
+    assert tiles == [256, 16]
+    ok = np.isfinite(z)
+    assert np.array_equal(got[ok], z[ok]) and np.all(got[~ok] == SCRATCH_NODATA)
+
+
 def test_scratch_grid_reads_back_as_float64(tmp_path):
     grid = _grid(300, 280)
     z = _values(grid)
@@ -108,7 +125,8 @@ def test_the_check_catches_a_truncated_or_damaged_file(tmp_path, damage, scratch
     with gdal_exceptions():
         ds = gdal.Open(w.tmp)
         b = ds.GetRasterBand(1)
-        ty, tx = (0, 0) if damage == "first_tile" else ((grid.rows - 1) // 256, (grid.cols - 1) // 256)
+        tw, th = b.GetBlockSize()  # 256 x 256, a scratch grid's 256 x 16
+        ty, tx = (0, 0) if damage == "first_tile" else ((grid.rows - 1) // th, (grid.cols - 1) // tw)
         # Source: GDAL's GTiff driver's metadata of where each tile lies (BLOCK_OFFSET_x_y)
         at = int(b.GetMetadataItem(f"BLOCK_OFFSET_{tx}_{ty}", "TIFF"))
         b = ds = None
