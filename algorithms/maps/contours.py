@@ -83,6 +83,31 @@ def check_contour_levels(*, interval_m=None, levels=None, base_m=0.0):
     return None, step, _finite_number(base_m, "base_m")
 
 
+#: Rows of the bands of the grid whose vertices :func:`trim_contour_fringe` checks at once (our
+#: choice: the height of the windows :class:`strikeline.io.gridfiles.FileMask` reads).
+_CHECK_BAND_ROWS = 256
+#: Vertices checked at once below which they are not grouped by bands (our choice).
+_CHECK_VERTICES = 1 << 18
+
+
+def _supported_by_bands(xy: np.ndarray, valid, grid: Grid) -> np.ndarray:
+    """:func:`supported_vertices` of many points, a band of :data:`_CHECK_BAND_ROWS` grid rows
+    at a time: the look-up's temporaries (corner indices, their sorting) grow with a band's
+    points, not with all lines' (millions of vertices on a large sheet), and a mask read from a
+    file reads each window about once. The test is point by point, so the result is the same."""
+    if len(xy) <= _CHECK_VERTICES:
+        return supported_vertices(xy, valid, grid)
+    _, row = grid.xy_to_colrow(xy[:, 0], xy[:, 1])
+    band = np.floor(np.clip(np.nan_to_num(row, nan=-1.0), -1.0, grid.rows) / _CHECK_BAND_ROWS).astype(np.int32)
+    del row
+    order = np.argsort(band, kind="stable")
+    cuts = np.flatnonzero(np.diff(band[order])) + 1
+    keep = np.empty(len(xy), dtype=bool)
+    for idx in np.split(order, cuts):
+        keep[idx] = supported_vertices(xy[idx], valid, grid)
+    return keep
+
+
 def supported_vertices(xy: np.ndarray, valid: np.ndarray, grid: Grid) -> np.ndarray:
     """Which points are linear interpolations between valid cell centres of a grid.
 
@@ -176,7 +201,7 @@ def trim_contour_fringe(geoms: np.ndarray, elevation_m: np.ndarray, valid: np.nd
     if geoms.size == 0:
         return geoms, elevation_m
     coords, owner = shapely.get_coordinates(geoms, return_index=True)
-    keep = supported_vertices(coords, valid, grid)
+    keep = _supported_by_bands(coords, valid, grid)
     if keep.all():
         return geoms, elevation_m
     parts_xy, parts_owner = [], []

@@ -85,10 +85,31 @@ def split_lines_by_flag(geoms, flag_fn, *, spacing_m):
     A part boundary is placed at the point where the flag changes, and that point belongs to
     both neighbouring parts, so the parts join without gaps.
     """
-    geoms = np.asarray(geoms, dtype=object)
+    geoms = np.asarray(geoms, dtype=object).ravel()
     if geoms.size == 0:
         e = np.empty(0, dtype=object)
         return e, np.empty(0, dtype=bool), np.empty(0, dtype=np.int64)
+    # whole lines at a time, about _SPLIT_VERTICES vertices each: the densified points and their
+    # flags take memory in proportion to the chunk, not to all lines (a sheet of 16,000^2 cells
+    # has millions of contour vertices); each line's parts depend on that line only
+    group = np.cumsum(shapely.get_num_coordinates(geoms)) // _SPLIT_VERTICES
+    cuts = np.concatenate(([0], np.flatnonzero(np.diff(group)) + 1, [len(geoms)]))
+    parts, flags, src = [], [], []
+    for a, b in zip(cuts[:-1], cuts[1:]):
+        p, f, s = _split_chunk(geoms[a:b], flag_fn, spacing_m)
+        parts.append(p)
+        flags.append(f)
+        src.append(s + a)
+    return np.concatenate(parts), np.concatenate(flags), np.concatenate(src)
+
+
+#: Vertices of the lines :func:`split_lines_by_flag` densifies and flags at once (our choice:
+#: a few tens of MiB of points and flags).
+_SPLIT_VERTICES = 1 << 19
+
+
+def _split_chunk(geoms, flag_fn, spacing_m):
+    """:func:`split_lines_by_flag` of some whole lines."""
     dense = shapely.segmentize(geoms, max_segment_length=float(spacing_m))
     parts, src = shapely.get_parts(dense, return_index=True)
     coords, pidx = shapely.get_coordinates(parts, return_index=True)
