@@ -23,14 +23,19 @@ def _grid(path, values, *, nodata=NODATA, dtype=gdal.GDT_Float32):
     return path
 
 
-def _gdal_average(path, k):
-    """Reference: GDAL's RasterIO with GRIORA_Average into a buffer k times smaller, whole file at once."""
+def _gdal_read(path, k, resample_alg):
+    """Reference: GDAL's RasterIO with ``resample_alg`` into a buffer k times smaller, whole file at once."""
     ds = gdal.Open(str(path))
     b = ds.GetRasterBand(1)
     rows, cols = ds.RasterYSize, ds.RasterXSize
     out = b.ReadAsArray(0, 0, cols, rows, buf_xsize=-(-cols // k), buf_ysize=-(-rows // k),
-                        buf_type=gdal.GDT_Float64, resample_alg=gdal.GRIORA_Average)
+                        buf_type=gdal.GDT_Float64, resample_alg=resample_alg)
     return S._as_float(out, b.GetNoDataValue())
+
+
+def _gdal_average(path, k):
+    """Reference: GDAL's average (GRIORA_Average) read k times smaller."""
+    return _gdal_read(path, k, gdal.GRIORA_Average)
 
 
 def _values(rows, cols, seed=7):
@@ -112,10 +117,5 @@ def test_average_and_sample_from_one_read_are_gdals_two_reads(tmp_path, monkeypa
 
 
 def _gdal_nearest(path, k):
-    """Reference: GDAL's RasterIO nearest-neighbour read into a buffer k times smaller, whole file at once."""
-    ds = gdal.Open(str(path))
-    b = ds.GetRasterBand(1)
-    rows, cols = ds.RasterYSize, ds.RasterXSize
-    out = b.ReadAsArray(0, 0, cols, rows, buf_xsize=-(-cols // k), buf_ysize=-(-rows // k),
-                        buf_type=gdal.GDT_Float64, resample_alg=gdal.GRIORA_NearestNeighbour)
-    return S._as_float(out, b.GetNoDataValue())
+    """Reference: GDAL's nearest-neighbour read (GRIORA_NearestNeighbour) k times smaller."""
+    return _gdal_read(path, k, gdal.GRIORA_NearestNeighbour)
