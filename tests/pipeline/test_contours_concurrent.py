@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 
 gdal = pytest.importorskip("osgeo.gdal")
-from osgeo import ogr  # noqa: E402
+from osgeo import ogr, osr  # noqa: E402
 
 from strikeline.errors import CancelledError  # noqa: E402
 from strikeline.pipeline import load_inputs  # noqa: E402
@@ -107,10 +107,12 @@ def test_gdal_state_is_held_across_both_threads_and_restored(sheet):
         seen.append((threading.current_thread().name, gdal.GetUseExceptions(), ogr.GetUseExceptions()))
         return False
 
-    # the caller's mode here: exceptions off (GDAL 3.6's bindings start so; an earlier test of the
-    # suite may have left them on, so it is set, and the suite's mode given back after)
-    was = [(m, m.GetUseExceptions()) for m in (gdal, ogr)]
-    for m, on in reversed(was):
+    # the caller's mode here: exceptions off, as GDAL 3.6's bindings start. An earlier test of the
+    # suite may have left them on (GDAL then keeps a stack of error handlers, switched off in the
+    # reverse order of switching on: osr, ogr, gdal); the suite's mode is given back after
+    modules = (gdal, ogr, osr)
+    was = tuple(m.GetUseExceptions() for m in modules)
+    for m, on in reversed(list(zip(modules, was))):
         if on:
             m.DontUseExceptions()
     try:
@@ -118,10 +120,10 @@ def test_gdal_state_is_held_across_both_threads_and_restored(sheet):
         contours_and_trace_of_blocks(tiles, grid, grid, interval_m=INTERVAL_M,
                                      extrapolated_fn=model.is_extrapolated, is_cancelled=polled)
         # Source: GDAL 3.6's bindings - the mode and the cache size are process-wide
-        assert (gdal.GetUseExceptions(), ogr.GetUseExceptions()) == (0, 0)
+        assert tuple(m.GetUseExceptions() for m in modules) == (0, 0, 0)
         assert gdal.GetCacheMax() == cache
     finally:
-        for m, on in was:
+        for m, on in zip(modules, was):
             if on and not m.GetUseExceptions():
                 m.UseExceptions()
     assert len({name for name, _, _ in seen}) == 2  # both threads polled
