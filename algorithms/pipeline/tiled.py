@@ -283,29 +283,8 @@ def _by_blocks(block_fn, outs, scratch_grids: dict, grid: Grid, folder, *, block
         streaming = all(w.takes_blocks(block_shape) for _, w in jobs)
         with ThreadPoolExecutor(max_workers=max(1, int(threads))) as pool:
             try:
-                if streaming:
-                    _stream_blocks(pool, block_fn, jobs, grid, block_shape, threads, counts, progress, is_cancelled)
-                writing = []
-                for band in ([] if streaming else block_windows(grid.shape, block_shape)):
-                    if is_cancelled is not None and is_cancelled():
-                        raise CancelledError("cancelled; nothing was written")
-                    # the previous band's writes were queued first: the threads write it while
-                    # this band's blocks wait, then compute them while the last writes finish
-                    computing = [pool.submit(block_fn, w) for w in band]
-                    rows = _gather(band, computing, grid.cols, single)
-                    for f in writing:
-                        f.result()  # a writer takes its bands in order: the previous one is done
-                    r0 = band[0][0]
-                    writing = [pool.submit(w.write_rows, r0, rows[k]) for k, w in jobs]
-                    if "base_in" in rows:
-                        b_in, t_in = rows["base_in"], rows["top_in"]
-                        counts["base"] += int(b_in.sum())
-                        counts["top"] += int(t_in.sum())
-                        counts["both"] += int((b_in & t_in).sum())
-                    if progress is not None:
-                        progress(band[0][1] / grid.rows)
-                for f in writing:
-                    f.result()
+                (_stream_blocks if streaming else _write_bands)(pool, block_fn, jobs, grid, block_shape, threads,
+                                                                 counts, single, progress, is_cancelled)
             except BaseException:
                 pool.shutdown(wait=True, cancel_futures=True)  # no writer is in use when they are dropped
                 raise
@@ -326,17 +305,49 @@ def _by_blocks(block_fn, outs, scratch_grids: dict, grid: Grid, folder, *, block
                       _owned=owned)
 
 
-def _stream_blocks(pool, block_fn, jobs, grid: Grid, block_shape, threads, counts: dict, progress,
+def _count_reach(counts: dict, part: dict) -> None:
+    """Add the cells of a block or band within reach of the base's, the top's and both data."""
+    if "base_in" in part:
+        b_in, t_in = part["base_in"], part["top_in"]
+        counts["base"] += int(b_in.sum())
+        counts["top"] += int(t_in.sum())
+        counts["both"] += int((b_in & t_in).sum())
+
+
+def _write_bands(pool, block_fn, jobs, grid: Grid, block_shape, threads, counts: dict, single: set, progress,
+                 is_cancelled) -> None:
+    """Compute the blocks a band at a time and write each band (:meth:`StripWriter.write_rows`);
+    a band's writes are queued ahead of the next band's blocks."""
+    writing = []
+    for band in block_windows(grid.shape, block_shape):
+        if is_cancelled is not None and is_cancelled():
+            raise CancelledError("cancelled; nothing was written")
+        # the previous band's writes were queued first: the threads write it while
+        # this band's blocks wait, then compute them while the last writes finish
+        computing = [pool.submit(block_fn, w) for w in band]
+        rows = _gather(band, computing, grid.cols, single)
+        for f in writing:
+            f.result()  # a writer takes its bands in order: the previous one is done
+        writing = [pool.submit(w.write_rows, band[0][0], rows[k]) for k, w in jobs]
+        _count_reach(counts, rows)
+        if progress is not None:
+            progress(band[0][1] / grid.rows)
+    for f in writing:
+        f.result()
+
+
+def _stream_blocks(pool, block_fn, jobs, grid: Grid, block_shape, threads, counts: dict, single: set, progress,
                    is_cancelled) -> None:
     """Compute blocks that are one tile row high and whole tiles wide and write each as soon as
     it is done (:meth:`~strikeline.io.gridfiles.StripWriter.write_block`): memory holds a few
     blocks, whatever the grid's width. A few blocks are computed ahead; each block's writes are
     queued ahead of the next block computed, and a writer's blocks are queued only once its
-    previous block is written, so each file gets its blocks in order."""
+    previous block is written, so each file gets its blocks in order. (``single``: the writers
+    round to float32 themselves.)"""
     from collections import deque
 
-    blocks = iter([w for band in block_windows(grid.shape, block_shape) for w in band])
-    n_blocks = sum(len(b) for b in block_windows(grid.shape, block_shape))
+    windows = [w for band in block_windows(grid.shape, block_shape) for w in band]
+    blocks = iter(windows)
     ahead = deque()
 
     def compute_next() -> None:
@@ -355,16 +366,12 @@ def _stream_blocks(pool, block_fn, jobs, grid: Grid, block_shape, threads, count
         for fw in writing:
             fw.result()
         writing = [pool.submit(w.write_block, r0, c0, part[k]) for k, w in jobs]
-        if "base_in" in part:
-            b_in, t_in = part["base_in"], part["top_in"]
-            counts["base"] += int(b_in.sum())
-            counts["top"] += int(t_in.sum())
-            counts["both"] += int((b_in & t_in).sum())
+        _count_reach(counts, part)
         part = f = None
         compute_next()
         done += 1
         if progress is not None:
-            progress(done / n_blocks)
+            progress(done / len(windows))
     for fw in writing:
         fw.result()
 
