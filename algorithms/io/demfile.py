@@ -24,7 +24,7 @@ from strikeline.budget import WINDOWED_BYTES_PER_CELL, budget_words, memory_budg
 from strikeline.errors import InputError, RasterReadError
 from strikeline.geometry.grid import Grid
 from strikeline.io._gdal import gdal_exceptions, gdal_message
-from strikeline.io.raster import HoleCount, as_float, check_holes, checked_band, open_raster
+from strikeline.io.raster import HoleCount, as_float, check_holes, checked_band, open_raster, valid_range
 from strikeline.picks.dem import sample_bilinear
 
 #: Cells read at once by the strips of the check at opening and of the samplers (about 32 MiB as
@@ -256,7 +256,9 @@ def open_dem(path, *, label: str = "DEM", band: int = 1) -> DemFile:
     after) to refuse undeclared nodata markers and a band without a valid cell, and to find its
     lowest and highest value; memory is two strips whatever the raster's size. GDAL decodes each
     strip's blocks on :data:`DECODE_THREADS` threads (:func:`decode_threads`) while the strip
-    before is checked on this one.
+    before is checked on this one, in the band's own type: its valid range
+    (:func:`strikeline.io.raster.valid_range`) gives the lowest and highest value and says whether
+    it can hold a marker at all; only a strip that can is compared with the markers cell by cell.
 
     Raises
     ------
@@ -294,12 +296,12 @@ def open_dem(path, *, label: str = "DEM", band: int = 1) -> DemFile:
                 for k in range(len(starts)):
                     raw = ahead.result()
                     ahead = pool.submit(read, b, starts[k + 1]) if k + 1 < len(starts) else None
-                    holes.add(np.asarray(raw, dtype=np.float64))
-                    strip = as_float(raw, grid.nodata)
-                    if np.isfinite(strip).any():
+                    found = valid_range(raw, grid.nodata)  # in the band's type: no float64 copy
+                    holes.add(raw, value_range=found)  # counted cell by cell only where markers may be
+                    if found is not None:
                         any_valid = True
-                        lo, hi = min(lo, float(np.nanmin(strip))), max(hi, float(np.nanmax(strip)))
-                    del raw, strip
+                        lo, hi = min(lo, found[0]), max(hi, found[1])
+                    del raw
             finally:
                 if ahead is not None:
                     ahead.cancel()

@@ -198,6 +198,46 @@ def _undeclared_holes(arr: np.ndarray, nodata) -> tuple[float, int] | None:
     return HoleCount(nodata).add(arr).result()
 
 
+#: ``value_range`` not given (:meth:`HoleCount.add` works it out).
+_UNKNOWN = object()
+
+
+def valid_range(array, nodata) -> tuple[float, float] | None:
+    """The lowest and highest valid cell of ``array`` (finite and not ``nodata``) as floats, or
+    None when it has no valid cell: ``nanmin``/``nanmax`` of :func:`as_float`'s array, found
+    without the float64 copy.
+
+    A float32 or float64 array is searched in its own type (float32 to float64 is exact, so its
+    extremes are the copy's): NaN-ignoring reductions (``np.fmin``/``np.fmax``) first, and only
+    when an extreme is infinite or the nodata value itself, again over the valid cells. A
+    ``nodata`` that float32 cannot hold exactly equals no float32 cell read as float64, as in
+    :func:`as_float`. Other types are converted to float64 first, as :func:`as_float` does.
+
+    >>> valid_range(np.array([[3.0, -9999.0], [np.nan, 7.5]], dtype=np.float32), -9999.0)
+    (3.0, 7.5)
+    >>> valid_range(np.array([np.inf, 1.0e-40]), 1.0e-40) is None
+    True
+    """
+    a = np.asarray(array)
+    if a.dtype not in (np.float32, np.float64):
+        a = a.astype(np.float64)
+    if a.size == 0:
+        return None
+    nd = None if nodata is None or not np.isfinite(nodata) else float(nodata)
+    if nd is not None and a.dtype == np.float32:
+        with np.errstate(over="ignore"):
+            nd = nd if float(np.float32(nd)) == nd else None  # no float32 cell equals it
+    lo, hi = np.fmin.reduce(a, axis=None), np.fmax.reduce(a, axis=None)
+    if np.isfinite(lo) and np.isfinite(hi) and (nd is None or (lo != nd and hi != nd)):
+        return float(lo), float(hi)
+    ok = np.isfinite(a)
+    if nd is not None:
+        ok &= a != a.dtype.type(nd)
+    if not ok.any():
+        return None
+    return float(np.min(a, where=ok, initial=np.inf)), float(np.max(a, where=ok, initial=-np.inf))
+
+
 class HoleCount:
     """Counts of the nodata markers (:data:`NODATA_SENTINELS`, other than the declared ``nodata``,
     and values beyond :data:`SENTINEL_ABS_LIMIT`) over the pieces of a band given to :meth:`add`;
@@ -209,14 +249,24 @@ class HoleCount:
         self.counts = dict.fromkeys(self.sentinels, 0)
         self.n_huge, self.first_huge = 0, None
 
-    def add(self, arr: np.ndarray) -> "HoleCount":
-        """Count the cells of ``arr`` (a band or a strip of it, in the band's own values), a block
-        of rows at a time so that the comparisons' temporaries stay small."""
+    def add(self, arr: np.ndarray, *, value_range=_UNKNOWN) -> "HoleCount":
+        """Count the cells of ``arr`` (a band or a strip of it, in the band's own values or as
+        float64), a block of rows at a time so that the comparisons' temporaries stay small.
+
+        Every marker is a valid cell (finite, not the declared nodata) equal to a sentinel or
+        beyond :data:`SENTINEL_ABS_LIMIT`, so when no sentinel lies within the valid cells' range
+        and the range stays inside the limit there is nothing to count: ``value_range`` is that
+        range (:func:`valid_range` of ``arr``, None for no valid cell), worked out here when not
+        given. Only a piece whose range could hold a marker is compared cell by cell (as float64)."""
+        if value_range is _UNKNOWN:
+            value_range = valid_range(arr, self.nodata)
+        if value_range is None or not self.could_hold_markers(*value_range):
+            return self
         nodata, counts = self.nodata, self.counts
         flat = arr.reshape(arr.shape[0], -1) if arr.ndim > 1 else arr.reshape(1, -1)
         step = max(1, (1 << 20) // max(flat.shape[1], 1))
         for r in range(0, flat.shape[0], step):
-            a = flat[r:r + step]
+            a = np.asarray(flat[r:r + step], dtype=np.float64)
             for v in self.sentinels:
                 counts[v] += int(np.count_nonzero(a == v))
             huge = np.abs(a) >= SENTINEL_ABS_LIMIT
@@ -228,6 +278,11 @@ class HoleCount:
                 self.first_huge = float(a[huge].flat[0])
             self.n_huge += k
         return self
+
+    def could_hold_markers(self, lo: float, hi: float) -> bool:
+        """Whether valid cells between ``lo`` and ``hi`` (the lowest and highest) may be markers."""
+        return (lo <= -SENTINEL_ABS_LIMIT or hi >= SENTINEL_ABS_LIMIT
+                or any(lo <= v <= hi for v in self.sentinels))
 
     def result(self) -> tuple[float, int] | None:
         """The most frequent marker and its count, or None."""
