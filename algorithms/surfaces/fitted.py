@@ -126,14 +126,16 @@ class _Surface:
         """
         if isinstance(self.core, _Poly):
             u, v = self._uv(x, y)
-            se = self.core.param_se_u(u, v)
+            se = self.core.param_se_u(u, v)  # x and y may broadcast (a grid's row and column)
             if self.trend is not None:
-                tau, _ = _taper(self._taper_hull().distance(x, y), self.taper_m)
+                x, y = np.broadcast_arrays(x, y)
+                d = self._taper_hull().distance(x.ravel(), y.ravel())
+                tau, _ = _taper(np.reshape(d, x.shape), self.taper_m)
                 se = tau * se + (1 - tau) * self.trend.param_se_u(u, v)
             return se * np.sqrt(self.picks_per_segment)
         edf = float(self.core.info.get("edf", 0.0))
         frac = min(1.0, edf * self.picks_per_segment / max(self.n_fit, 1))
-        return np.full(np.shape(x), self.noise_m() * np.sqrt(frac))
+        return np.full(np.broadcast_shapes(np.shape(x), np.shape(y)), self.noise_m() * np.sqrt(frac))
 
     def distance(self, x, y):
         return self.tree.query(np.column_stack([np.ravel(x), np.ravel(y)]),
@@ -146,8 +148,12 @@ class _Surface:
     def standard_error(self, x, y, *, distance=None):
         """Standard error of the SURFACE (not of a new pick): the parameter part and the
         growth with distance from data, times the calibration factor. ``distance``: the
-        distance of each point to the nearest datum when already known (else a KD-tree search)."""
-        dist = (lambda: self.distance(x, y)) if distance is None else (lambda: np.reshape(distance, np.shape(x)))
+        distance of each point to the nearest datum when already known (else a KD-tree search);
+        ``x`` and ``y`` may broadcast (a grid's columns as a row and its rows as a column,
+        ``distance`` of their shape), which gives the values of the cells asked for one by one."""
+        shape = np.broadcast_shapes(np.shape(x), np.shape(y))
+        dist = (lambda: self.distance(*np.broadcast_arrays(x, y))) if distance is None else (
+            lambda: np.reshape(distance, shape))
         if self.growth is not None:
             g = self.growth
             # the calibration factor scales the growth fitted against the stated errors; the

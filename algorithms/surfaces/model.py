@@ -449,8 +449,10 @@ class SurfaceModel:
                 rows_distance = self._prepared["row_distance"] = RowDistance(s.tree.data, tree=s.tree)
 
         def formula(x, y, d):
-            X, Y = np.meshgrid(x, y)
-            return s.standard_error(X.ravel(), Y.ravel(), distance=None if d is None else d.ravel()).reshape(X.shape)
+            # the cells' columns as a row and rows as a column: the formula's parts that depend
+            # on one coordinate only are computed once per row or column (the same values)
+            out = s.standard_error(x[None, :], y[:, None], distance=d)
+            return np.broadcast_to(out, (len(y), len(x)))
 
         sub = max(1, _SE_CELLS // max(c1 - c0, 1))  # rows of one evaluation of the formula
 

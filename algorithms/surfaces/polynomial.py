@@ -98,19 +98,52 @@ class _Poly:
         """Standard error of the fitted polynomial at ``(u, v)``: ``sqrt(aᵀ C a)`` with ``a`` the
         basis (1, u, v[, u², uv, v²]) and ``C`` the coefficients' covariance.
 
-        The quadratic form is summed term by term, ``Σ_i Σ_j (a_i C_ij) a_j`` with ``i`` outer,
-        on whole arrays: the order of numpy's ``einsum('...i,ij,...j->...')``, which it replaces
-        (the same bits; tests/surfaces/test_polynomial_se.py), without the ``(n, k)`` basis
-        array and about twice as fast on a grid's cells.
+        The quadratic form is a polynomial in ``u`` and ``v`` (:meth:`_form_coefficients`),
+        evaluated by Horner's rule in ``v`` with coefficients that are polynomials in ``u``
+        (Horner's rule again). ``u`` and ``v`` broadcast: a grid's columns as a row ``(1, n)``
+        and its rows as a column ``(m, 1)`` give the ``(m, n)`` values with the polynomials in
+        ``u`` computed once per column, the same bits as the cells asked for one by one (each
+        cell's operations are the same). About ten times faster on a grid than the term-by-term
+        sum over the basis; its rounding error is that of the dot product ``aᵀ (C a)`` (tested
+        against numpy's einsum of the quadratic form with Higham's bound).
         """
-        u, v = np.broadcast_arrays(np.asarray(u, float), np.asarray(v, float))
-        cols = [None, u, v] if self.degree == 1 else [None, u, v, u * u, u * v, v * v]  # None: the 1
-        q = np.zeros(u.shape)
-        for i, ai in enumerate(cols):
-            for j, aj in enumerate(cols):
-                t = self.cov[i, j] if ai is None else ai * self.cov[i, j]  # 1 * c is c, exactly
-                q += t if aj is None else t * aj
+        u, v = np.asarray(u, float), np.asarray(v, float)
+        by_v = [_horner(u, row) for row in self._form_coefficients()]
+        q = by_v[-1]
+        for p in reversed(by_v[:-1]):
+            q = p + v * q
+        q = np.broadcast_to(q, np.broadcast_shapes(u.shape, v.shape))
         return np.sqrt(np.maximum(q, 0.0))
+
+    def _form_coefficients(self) -> np.ndarray:
+        """``M`` with ``aᵀ C a = Σ_p Σ_k M[p, k] u^k v^p`` (the quadratic form of the basis
+        expanded into monomials; ``C_ij`` and ``C_ji`` both added, as the form sums them)."""
+        cached = getattr(self, "_form", None)
+        if cached is None:
+            powers = _POWERS[self.degree]  # (power of u, power of v) of each basis term
+            top = 2 * self.degree
+            cached = np.zeros((top + 1, top + 1))
+            for i, (ku, kv) in enumerate(powers):
+                for j, (lu, lv) in enumerate(powers):
+                    cached[kv + lv, ku + lu] += self.cov[i, j]
+            self._form = cached
+        return cached
+
+
+#: Powers of ``u`` and ``v`` of the basis terms of :data:`_TERMS`.
+_POWERS = {1: ((0, 0), (1, 0), (0, 1)), 2: ((0, 0), (1, 0), (0, 1), (2, 0), (1, 1), (0, 2))}
+
+
+def _horner(x, coef):
+    """``Σ_k coef[k] x^k`` by Horner's rule (trailing zero coefficients skipped)."""
+    nz = np.flatnonzero(coef)
+    if len(nz) == 0:
+        return np.zeros(np.shape(x))
+    c = coef[:nz[-1] + 1]
+    out = c[-1]
+    for ck in c[-2::-1]:
+        out = ck + x * out
+    return np.asarray(out + np.zeros(np.shape(x)))
 
 
 def _lsi(R, qty, B, lo, hi):
