@@ -21,6 +21,7 @@ import numpy as np
 from scipy import sparse
 from scipy.special import gammaincinv, stdtrit
 
+from strikeline.attitude.eigvecs import Eigvecs
 from strikeline.errors import CancelledError, InputError
 from strikeline.geometry.orientation import azimuth_difference, vector_components
 
@@ -159,11 +160,6 @@ def _per_window_sums(weights, matrix, n_windows, k):
     return np.asarray(out).reshape(weights.shape[0], n_windows, k)
 
 
-def _smallest_eigvec(scatter):
-    _, v = np.linalg.eigh(scatter)
-    return v[..., :, 0]
-
-
 def bootstrap_normals(q, counts, n_resamples, rng, progress=None, is_cancelled=None):
     """Normals of ``n_resamples`` bootstrap resamples of each window -> (B, W, 3).
 
@@ -228,6 +224,17 @@ def window_block_normals(q, counts, unit_of_slot, n_resamples, rng, progress=Non
     matrix = _window_matrix(per_unit, window_of_unit, n_windows)
     out = np.empty((n_resamples, n_windows, 3))
     chunk = max(1, _CHUNK_ELEMENTS // max(n_units, 1))
+    with Eigvecs(out) as eig:
+        _block_chunks(eig, rng, matrix, feats.shape[1], n_windows, n_units, blocks_of_unit, start_of_unit,
+                      n_resamples, chunk, progress, is_cancelled)
+    check_callbacks(progress, is_cancelled, 1.0)
+    return out, n_blocks
+
+
+def _block_chunks(eig, rng, matrix, k, n_windows, n_units, blocks_of_unit, start_of_unit, n_resamples, chunk,
+                  progress, is_cancelled):
+    """The chunks of :func:`window_block_normals`' resamples: draws and moments here, their scatter
+    matrices handed to ``eig`` (:class:`~strikeline.attitude.eigvecs.Eigvecs`)."""
     for b0 in range(0, n_resamples, chunk):
         check_callbacks(progress, is_cancelled, b0 / n_resamples)
         b = min(chunk, n_resamples - b0)
@@ -240,14 +247,11 @@ def window_block_normals(q, counts, unit_of_slot, n_resamples, rng, progress=Non
             drawn += start_of_unit
         drawn += n_units * np.arange(b)[:, None]
         c = np.bincount(drawn.ravel(), minlength=b * n_units).reshape(b, n_units).astype(float)
-        m = _per_window_sums(c, matrix, n_windows, feats.shape[1])
+        m = _per_window_sums(c, matrix, n_windows, k)
         n_b = m[..., 0]
         s1 = m[..., 1:4]
         s2 = m[..., 4:].reshape(b, n_windows, 3, 3)
-        scatter = s2 - s1[..., :, None] * s1[..., None, :] / n_b[..., None, None]
-        out[b0:b0 + b] = _smallest_eigvec(scatter)
-    check_callbacks(progress, is_cancelled, 1.0)
-    return out, n_blocks
+        eig.put(b0, s2 - s1[..., :, None] * s1[..., None, :] / n_b[..., None, None])
 
 
 def monte_carlo_normals(q, counts, scatter, sigma_slot, n_draws, rng, progress=None,
@@ -274,20 +278,20 @@ def monte_carlo_normals(q, counts, scatter, sigma_slot, n_draws, rng, progress=N
     zz = np.outer(zhat, zhat)
     out = np.empty((n_draws, n_windows, 3))
     chunk = max(1, _CHUNK_ELEMENTS // max(t, 1))
-    for b0 in range(0, n_draws, chunk):
-        check_callbacks(progress, is_cancelled, b0 / n_draws)
-        b = min(chunk, n_draws - b0)
-        e = rng.standard_normal((b, t)) * sigma_slot
-        m = _per_window_sums(e, lin, n_windows, 4)
-        a = m[..., :3]
-        se = m[..., 3]
-        se2 = _per_window_sums(e * e, ones, n_windows, 1)[..., 0]
-        s = se2 - se * se / counts[None, :]
-        pert = (scatter[None]
-                + a[..., :, None] * zhat[None, None, None, :]
-                + zhat[None, None, :, None] * a[..., None, :]
-                + s[..., None, None] * zz)
-        out[b0:b0 + b] = _smallest_eigvec(pert)
+    with Eigvecs(out) as eig:
+        for b0 in range(0, n_draws, chunk):
+            check_callbacks(progress, is_cancelled, b0 / n_draws)
+            b = min(chunk, n_draws - b0)
+            e = rng.standard_normal((b, t)) * sigma_slot
+            m = _per_window_sums(e, lin, n_windows, 4)
+            a = m[..., :3]
+            se = m[..., 3]
+            se2 = _per_window_sums(e * e, ones, n_windows, 1)[..., 0]
+            s = se2 - se * se / counts[None, :]
+            eig.put(b0, scatter[None]
+                    + a[..., :, None] * zhat[None, None, None, :]
+                    + zhat[None, None, :, None] * a[..., None, :]
+                    + s[..., None, None] * zz)
     check_callbacks(progress, is_cancelled, 1.0)
     return out
 
