@@ -16,7 +16,7 @@ from strikeline.surfaces import SurfaceModel
 from strikeline.maps.thickness import isopach_grids
 from strikeline.maps.trace import (vertex_spacing_m)
 from strikeline.pipeline.inputs import Inputs
-from strikeline.pipeline.options import SEGMENT_CELLS, Log, RunOptions, _quiet
+from strikeline.pipeline.options import CLI_OPTION_NAMES, SEGMENT_CELLS, Log, RunOptions, _quiet
 from strikeline.pipeline.planes import group_labels, planes_by_group
 from strikeline.pipeline.progress import COMPUTE_STEPS, RunProgress
 from strikeline.pipeline.steps import attitude_of, collect_picks, contact_segments, depth_trace_misfit, fit_picks, log_model_choice, model_surface, pick_sigmas, structure_contours, surface_grid
@@ -116,7 +116,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
                  "is_cancelled": is_cancelled}
     for note in grid_notes:
         log(note)
-    off_dem = None if inputs.dem is None else contacts_off_dem(inputs, log=log)
+    off_dem = None if inputs.dem is None else contacts_off_dem(inputs, log=log, names=names)
     spacing = vertex_spacing_m(inputs.contacts.geoms)
     blocks = contact_segments(picks, cell_m=grid.cell_x_m, vertex_spacing_m=spacing)
     plane_summary = attitude_of(picks.xyz, sigma, what=what, strict=True, blocks=blocks, **conf_opts)
@@ -233,8 +233,9 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
             "note": "statistics over cells within reach of data of both surfaces",
         }
         if stats["n_cells"] and stats["mean_m"] < 0:
+            said = {**CLI_OPTION_NAMES, **(names or {})}
             log("warning: the top contacts model lies below the base on average - check which "
-                "contact is the top (--top-contacts) and which the base (--contacts)")
+                f"contact is the top ({said['top_contacts']}) and which the base ({said['contacts']})")
         if not stats["n_cells"]:
             thickness["note"] = thickness["reason"] = _no_thickness_reason(*n_in, model, top_model)
             log(f"warning: unit thickness not computed: {thickness['reason']}")
@@ -262,15 +263,17 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
                    block_grids=tuple(block_grids))
 
 
-def contacts_off_dem(inputs: Inputs, *, log: Log = _quiet) -> dict:
+def contacts_off_dem(inputs: Inputs, *, log: Log = _quiet, names: dict | None = None) -> dict:
     """The length of the contacts that lies off the DEM (outside it or over nodata), where no DEM
     pick is made (:func:`strikeline.pipeline.rasters.length_off_raster`), with a warning in the
-    log when there is any: never dropped without a word."""
+    log when there is any: never dropped without a word. ``names`` names the options as the
+    caller knows them (default the command line's flags)."""
+    said = {**CLI_OPTION_NAMES, **(names or {})}
     off = length_off_raster(inputs.contacts.geoms, inputs.dem, inputs.dem_grid)
     if off["length_m"] > 0:
         dem = f"DEM '{inputs.paths['dem']}'" if "dem" in inputs.paths else "the DEM"
         log(f"warning: {off['length_m']:.0f} m of the contacts ({off['percent']:.1f}% of {off['total_length_m']:.0f} m, "
             f"on {off['n_lines']} line(s)) lie off {dem} (outside it or over nodata): no DEM picks there"
             + ("; contour picks may still cover them" if inputs.contours is not None else
-               "; give a DEM that covers them, or contours (--contours) for those stretches"))
+               f"; give a DEM that covers them, or contours ({said['contours']}) for those stretches"))
     return off
