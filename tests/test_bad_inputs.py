@@ -379,18 +379,18 @@ CASES = [
          ("--map-units", "needs a DEM")),
     # ---- size-driving options, checked against memory or a stated limit before any work
     Case("interval-tiny", lambda d: _args(CONTACTS, DEM, "--interval", "0.001"),
-         ("--interval", "structure-contour levels", "limit of 2000", "give a larger --interval")),
+         ("--interval", "structure-contour levels", "limit of 2000", "give --interval a larger value")),
     Case("window-tiny", lambda d: _args(CONTACTS, DEM, "--window", "0.001"),
-         ("--window", "local-attitude windows", "memory budget", "give a larger --window")),
+         ("--window", "local-attitude windows", "memory budget", "give --window a larger value")),
     Case("pick-spacing-tiny", lambda d: _args(CONTACTS, DEM, "--pick-spacing", "0.00001"),
-         ("--pick-spacing", "DEM picks", "memory budget", "give a larger --pick-spacing")),
+         ("--pick-spacing", "DEM picks", "memory budget", "give --pick-spacing a larger value")),
     Case("cell-tiny-without-dem", lambda d: _args(CONTACTS, None, "--contours", CONTOURS, "--elev-field", "elev_m",
                                                   "--cell", "0.001"),
-         ("--cell", "cells of 0.001 m", "give a larger --cell")),
+         ("--cell", "cells of 0.001 m", "give --cell a larger value")),
     Case("resamples-absurd", lambda d: _args(CONTACTS, DEM, "--resamples", "1000000000"),
-         ("--resamples", "1e+09 resamples", "memory budget", "give fewer --resamples")),
+         ("--resamples", "1e+09 resamples", "memory budget", "give --resamples a smaller value")),
     Case("resamples-too-much-work", lambda d: _args(CONTACTS, DEM, "--resamples", "6000000"),
-         ("--resamples", "resample-pick operations", "limit of 1e+10", "give fewer --resamples")),
+         ("--resamples", "resample-pick operations", "limit of 1e+10", "give --resamples a smaller value")),
 ]
 
 #: Inputs the tool can use after a repair it states in the log (exit 0): the words of that log line.

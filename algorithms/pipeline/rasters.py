@@ -54,7 +54,8 @@ def output_grid(*, dem_grid: Grid | None, bounds, cell_m: float | None, extent, 
             cell = auto_cell_m(box)
             log(f"cell size not given ({cell_name}): using {cell:g} m cells over {whose}")
     grid = Grid.aligned(*box, cell_m=float(cell), crs_wkt=crs_wkt)
-    check_grid_size(grid, fix=f"give a larger {cell_name} or a smaller {extent_name}")
+    # "give <name> a larger value": reads as a sentence with a flag and with a QGIS "the '<label>'"
+    check_grid_size(grid, fix=f"give {cell_name} a larger value or {extent_name} a smaller one")
     x0, y0 = grid.transform[0], grid.transform[3]
     log(f"output grid: {grid.rows} x {grid.cols} cells of {grid.cell_x_m:g} m over {whose}, top-left corner "
         f"({x0:.10g}, {y0:.10g}) on multiples of the cell")

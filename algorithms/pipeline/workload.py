@@ -134,7 +134,7 @@ def estimate_workload(inputs, opts, *, grid=None, names: dict | None = None, aut
             named = names.get("cell_m", "cell_m")
             out.append(Estimate(named, f"output grid cells of {g.cell_x_m:g} m ({g.cols} x {g.rows})", cells,
                                 cells * per_cell, budget,
-                                f"give a larger {named} (leave it out for the DEM's cells, or about 1/500 of "
+                                f"give {named} a larger value (leave it out for the DEM's cells, or about 1/500 of "
                                 "the extent without a DEM)"))
         else:
             out.append(Estimate(f"DEM '{inputs.paths.get('dem', 'in memory')}'",
@@ -150,7 +150,7 @@ def estimate_workload(inputs, opts, *, grid=None, names: dict | None = None, aut
         named = names.get("pick_spacing_m", "pick_spacing_m")
         out.append(Estimate(named, f"DEM picks every {spacing:g} m along {length:.0f} m of contacts", n_picks,
                             n_picks * BYTES_PER_PICK, budget,
-                            f"give a larger {named} (leave it out for one pick per DEM cell)"))
+                            f"give {named} a larger value (leave it out for one pick per DEM cell)"))
     # ---- local-attitude windows
     if opts.window_m is not None:
         w, h = _extent(np.concatenate([c.geoms for c in contacts]))
@@ -160,7 +160,7 @@ def estimate_workload(inputs, opts, *, grid=None, names: dict | None = None, aut
         out.append(Estimate(named, f"local-attitude windows of {opts.window_m:g} m radius ({along:.3g} along the "
                             f"contacts, {grid:.3g} grid centres across them)", along + grid,
                             along * BYTES_PER_WINDOW + grid * BYTES_PER_GRID_CENTRE, budget,
-                            f"give a larger {named} (leave it out for about 50 picks per window)"))
+                            f"give {named} a larger value (leave it out for about 50 picks per window)"))
     # ---- structure-contour levels
     relief = relief_m(inputs)
     if relief is not None and opts.interval_m:
@@ -168,7 +168,7 @@ def estimate_workload(inputs, opts, *, grid=None, names: dict | None = None, aut
         named = names.get("interval_m", "interval_m")
         out.append(Estimate(named, f"structure-contour levels at {opts.interval_m:g} m over the inputs' "
                             f"{relief:.0f} m of relief", levels, levels, MAX_CONTOUR_LEVELS,
-                            f"give a larger {named}, e.g. {_round_interval(relief)} m", unit="levels"))
+                            f"give {named} a larger value, e.g. {_round_interval(relief)} m", unit="levels"))
     # ---- resamples and Monte Carlo draws of the plane's confidence
     if getattr(opts, "resamples", None):
         out += resample_estimates(opts.resamples, n_picks, names=names)
@@ -179,7 +179,7 @@ def resample_estimates(resamples: int, n_points: float, *, names: dict | None = 
     """The memory and the work of ``resamples`` bootstrap resamples and Monte Carlo draws of one plane
     of ``n_points`` points."""
     named = (names or CLI_OPTION_NAMES).get("resamples", "resamples")
-    fix = f"give fewer {named} (1000 give percentile intervals; Efron & Tibshirani 1993, ch. 13)"
+    fix = f"give {named} a smaller value (1000 give percentile intervals; Efron & Tibshirani 1993, ch. 13)"
     work = float(resamples) * float(n_points)
     return [Estimate(named, "resamples and draws of the plane", float(resamples),
                      float(resamples) * BYTES_PER_RESAMPLE, memory_budget_bytes(), fix),

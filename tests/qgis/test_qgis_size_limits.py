@@ -80,5 +80,5 @@ def test_a_grid_too_large_names_the_surface_tools_parameters(run, picks):
     msg = qgis_message(run, "surfacemodel", {"PICKS": picks, "CELL": TINY_CELL_M, "MODEL": 0, "surface": TMP})
     assert "more than the" in msg and "cells" in msg
     cell, extent = _label("surfacemodel", "CELL"), _label("surfacemodel", "EXTENT")
-    assert msg.endswith(f"give a larger the '{cell}' or a smaller the '{extent}'"), msg
+    assert msg.endswith(f"give the '{cell}' a larger value or the '{extent}' a smaller one"), msg
     _no_flag(msg)
