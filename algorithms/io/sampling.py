@@ -82,6 +82,29 @@ def _window_mean(block: np.ndarray, k: int, nodata) -> np.ndarray:
     return (total / (k * k)).astype(np.float32).astype(np.float64)
 
 
+def _decimated(ds, max_cells: int) -> tuple[int, Grid]:
+    """The factor and the georeferencing of :func:`read_decimated`'s result for an open dataset."""
+    rows, cols = ds.RasterYSize, ds.RasterXSize
+    k = decimation((rows, cols), max_cells)
+    by, bx = math.ceil(rows / k), math.ceil(cols / k)
+    x0, dx, _, y0, _, dy = ds.GetGeoTransform()
+    return k, Grid((x0, dx * cols / bx, 0.0, y0, 0.0, dy * k), (by, bx), ds.GetProjection() or "",
+                   ds.GetRasterBand(1).GetNoDataValue())
+
+
+def decimated_grid(path, *, max_cells: int = 1_000_000, label: str = "raster") -> Grid:
+    """The georeferencing of ``read_decimated(path, max_cells=max_cells)``'s result, from the
+    file's header alone (no cell is read): what a figure of the grid will show, known before the
+    grid is decoded."""
+    path = os.fspath(path)
+    with gdal_exceptions():
+        ds = _open_raster(path, label)
+        try:
+            return _decimated(ds, max_cells)[1]
+        finally:
+            ds = None
+
+
 def read_decimated(path, *, max_cells: int = 1_000_000, resampling: str = "average",
                    label: str = "raster") -> tuple[np.ndarray, Grid]:
     """Band 1 of a raster thinned by a whole factor to at most ``max_cells`` cells.
@@ -118,8 +141,8 @@ def read_decimated(path, *, max_cells: int = 1_000_000, resampling: str = "avera
         try:
             band = ds.GetRasterBand(1)
             rows, cols = ds.RasterYSize, ds.RasterXSize
-            k = decimation((rows, cols), max_cells)
-            by, bx = math.ceil(rows / k), math.ceil(cols / k)
+            k, grid = _decimated(ds, max_cells)
+            by, bx = grid.shape
             arr = np.empty((by, bx), dtype=np.float64)
             step = k * max(1, STRIP_ROWS // k)  # source rows per strip, a multiple of k
             nodata = band.GetNoDataValue()
@@ -145,11 +168,8 @@ def read_decimated(path, *, max_cells: int = 1_000_000, resampling: str = "avera
                 except RuntimeError as exc:
                     raise RasterReadError(f"{label} '{path}': GDAL could not read it ({gdal_message(exc)})") from None
                 band.FlushCache()  # drop the strip's blocks from GDAL's cache: memory stays one strip
-            x0, dx, _, y0, _, dy = ds.GetGeoTransform()
-            wkt = ds.GetProjection() or ""
         finally:
             ds = None
-    grid = Grid((x0, dx * cols / bx, 0.0, y0, 0.0, dy * k), (by, bx), wkt, nodata)
     return _as_float(arr, nodata), grid
 
 
@@ -251,6 +271,79 @@ def sample_bilinear(path, x, y, *, block_rows: int = 256, label: str = "raster")
                 u, v = tc[sel], tr[sel]
                 out[sel] = ((1 - u) * (1 - v) * block[i, j] + u * (1 - v) * block[i, j1]
                             + (1 - u) * v * block[i1, j] + u * v * block[i1, j1])
+        finally:
+            ds = None
+    return out
+
+
+#: WKB bytes of the features of one piece of :func:`read_line_pieces` (about 87,000 3-D vertices).
+PIECE_WKB_BYTES = 2 << 20
+
+
+def read_line_pieces(path, *, layer: str, each, label: str = "layer", piece_bytes: int = PIECE_WKB_BYTES) -> list:
+    """``each(piece)`` for the line features of ``layer`` in feature order, a few at a time: each piece a
+    :class:`strikeline.io.vector.VectorLayer` of consecutive features holding about
+    ``piece_bytes`` of WKB (at least one feature), checked and converted as
+    :func:`strikeline.io.vector.read_layer` checks and converts the whole layer (features without a
+    usable line skipped; a piece without any is left out). Memory holds one piece, however many
+    vertices the layer has, so a caller that keeps less than it reads (lines simplified for a
+    picture) stays bounded. Returns the list of what ``each`` returned, piece by piece.
+
+    Raises
+    ------
+    VectorReadError, InputError
+        The file or the layer cannot be read.
+    """
+    from strikeline.io.crs import _wkt_of
+    from strikeline.io.vector import layer_from_wkb
+
+    path = os.fspath(path)
+    with gdal_exceptions():
+        try:
+            ds = ogr.Open(path, 0)
+        except RuntimeError as exc:
+            raise VectorReadError(f"'{path}': OGR cannot open it ({gdal_message(exc)})") from None
+        try:
+            lyr = ds.GetLayerByName(layer)
+            if lyr is None:
+                raise InputError(f"'{path}' has no layer '{layer}'")
+            defn = lyr.GetLayerDefn()
+            fnames = [defn.GetFieldDefn(i).GetName() for i in range(defn.GetFieldCount())]
+            ftypes = {n: defn.GetFieldDefn(i).GetFieldTypeName(defn.GetFieldDefn(i).GetType())
+                      for i, n in enumerate(fnames)}
+            srs = lyr.GetSpatialRef()
+            wkt = _wkt_of(srs)
+            out = []
+
+            def piece(wkbs, fids, values):
+                try:
+                    return layer_from_wkb(wkbs, fids=fids, fields=values, field_types=ftypes, crs_wkt=wkt, path=path,
+                                          layer_name=layer, label=label, geometry="line")
+                except InputError:  # no usable line among these features: nothing to give
+                    return None
+
+            wkbs, fids, values, size = [], [], {n: [] for n in fnames}, 0
+            lyr.ResetReading()
+            try:
+                for feat in lyr:
+                    g = feat.GetGeometryRef()
+                    wkbs.append(None if g is None else bytes(g.ExportToIsoWkb()))
+                    size += 0 if wkbs[-1] is None else len(wkbs[-1])
+                    fids.append(feat.GetFID())
+                    for i, n in enumerate(fnames):
+                        values[n].append(feat.GetField(i) if feat.IsFieldSetAndNotNull(i) else None)
+                    if size >= piece_bytes:
+                        got = piece(wkbs, fids, values)
+                        wkbs, fids, values, size = [], [], {n: [] for n in fnames}, 0
+                        if got is not None:
+                            out.append(each(got))
+            except RuntimeError as exc:
+                raise VectorReadError(f"{label} layer '{layer}' of '{path}': OGR could not read its features "
+                                      f"({gdal_message(exc)})") from None
+            if wkbs:
+                got = piece(wkbs, fids, values)
+                if got is not None:
+                    out.append(each(got))
         finally:
             ds = None
     return out

@@ -20,13 +20,14 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
+import shapely
 
 from strikeline import vocabulary as V
 from strikeline.errors import StrikelineError
 from strikeline.io._gdal import gdal_exceptions
 from strikeline.io.demfile import decode_threads
-from strikeline.io.sampling import (layer_names, read_decimated, read_decimated_and_sample, read_point_sample,
-                                     sample_bilinear)
+from strikeline.io.sampling import (decimated_grid, layer_names, read_decimated, read_decimated_and_sample,
+                                     read_line_pieces, read_point_sample, sample_bilinear)
 from strikeline.io.vector import read_layer
 
 #: Most cells of a grid read for a picture: a map panel is about 1,000 pixels across.
@@ -51,10 +52,17 @@ class Raster:
 
 @dataclass
 class Lines:
-    """Lines of a layer with their fields (shapely geometries, 2-D)."""
+    """Lines of a layer with their fields (shapely geometries, 2-D).
+
+    Lines read for a picture may be kept simplified (:func:`_thinned_lines`): then
+    ``simplified_m`` is the tolerance they were simplified to, and ``length`` and ``middle`` (the
+    point halfway along) are those of the lines as written."""
 
     geoms: np.ndarray
     fields: dict = field(default_factory=dict)
+    simplified_m: float | None = None
+    length: np.ndarray | None = None
+    middle: np.ndarray | None = None
 
     def __len__(self) -> int:
         return len(self.geoms)
@@ -115,6 +123,44 @@ def _lines(gpkg: Path, name: str, names: list) -> Lines | None:
     return Lines(layer.geoms, layer.fields)
 
 
+def _thinned_lines(gpkg: Path, name: str, names: list, tolerance_m: float | None) -> Lines | None:
+    """The lines of layer ``name`` simplified as the map draws them (Douglas-Peucker to
+    ``tolerance_m``, :func:`strikeline.report.figures.simplified`), read a few features at a time:
+    memory holds the simplified lines and one piece of the layer, not every vertex of a large
+    sheet's structure contours. Each line's length and middle point are taken before it is
+    simplified, so labels sit where they would on the lines as written."""
+    if name not in names:
+        return None
+
+    def keep(piece):
+        g = piece.geoms
+        thin = shapely.simplify(g, tolerance_m, preserve_topology=False) if tolerance_m and len(g) else g
+        return thin, shapely.length(g), shapely.line_interpolate_point(g, 0.5, normalized=True), piece.fields
+
+    try:
+        parts = read_line_pieces(gpkg, layer=name, each=keep, label="results")
+    except StrikelineError:
+        parts = []
+    if not parts:  # an empty layer: nothing to draw
+        return Lines(np.empty(0, dtype=object))
+    cat = lambda i: np.concatenate([p[i] for p in parts])  # noqa: E731
+    fields = {k: np.concatenate([p[3][k] for p in parts]) for k in parts[0][3]}
+    return Lines(cat(0), fields, simplified_m=tolerance_m or None, length=cat(1), middle=cat(2))
+
+
+def _map_tolerance(surf: Path, depth: Path, max_cells: int) -> float | None:
+    """The tolerance to which the map simplifies structure contours
+    (:data:`strikeline.report.figures.SIMPLIFY_PX` of a pixel of the map, whose extent is the
+    surface's decimated grid, else the depth's), from the files' headers; None without either."""
+    from strikeline.report.figures import SIMPLIFY_PX, pixel_m
+
+    for path in (surf, depth):
+        if path.exists():
+            xmin, ymin, xmax, ymax = decimated_grid(path, max_cells=max_cells, label=path.name).bounds
+            return SIMPLIFY_PX * pixel_m((xmin, xmax, ymin, ymax))
+    return None
+
+
 def _bool(values) -> np.ndarray:
     return np.array([bool(v) for v in values], dtype=bool)
 
@@ -141,7 +187,8 @@ def load_outputs(folder, *, max_cells: int = MAX_MAP_CELLS, max_points: int = MA
                  "thickness": pool.submit(_thickness, tt, max_cells=max_cells)}
         gpkg = folder / V.RESULTS_FILE
         names = layer_names(gpkg)
-        d.contours = _lines(gpkg, V.STRUCTURE_CONTOURS.name, names)
+        d.contours = _thinned_lines(gpkg, V.STRUCTURE_CONTOURS.name, names,
+                                    _map_tolerance(surf, folder / V.DEPTH.file, max_cells))
         d.trace = _lines(gpkg, V.PREDICTED_TRACE.name, names)
         d.misfit = _lines(gpkg, V.CONTACT_MISFIT.name, names)
         for lines, key in ((d.contours, "extrapolated"), (d.trace, "extrapolated"), (d.misfit, "flagged")):

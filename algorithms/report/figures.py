@@ -157,10 +157,11 @@ def hillshade(ground: np.ndarray, cell_m: float) -> np.ndarray:
     return np.where(np.isfinite(ground), hs, np.nan)
 
 
-def _label_lines(geoms, elev) -> list[int]:
+def _label_lines(geoms, elev, length=None) -> list[int]:
     """Which lines get a label: the longest piece of each elevation, at most :data:`MAX_LABELS`
-    elevations spread evenly over the range."""
-    length = shapely.length(geoms)
+    elevations spread evenly over the range (``length``: the lines' lengths, when ``geoms`` are
+    simplified)."""
+    length = shapely.length(geoms) if length is None else length
     levels = np.unique(elev)
     keep = levels[np.unique(np.linspace(0, len(levels) - 1, min(MAX_LABELS, len(levels))).round().astype(int))]
     out = []
@@ -178,8 +179,10 @@ def map_figure(d) -> bytes:
     lines = functools.partial(_draw_lines, ax)
     # structure contours (traced on the output grid: ~2 million vertices on a 16,000^2 sheet)
     # thinned to a fraction of a pixel: the same picture from far fewer vertices
+    # (or read so already: d.contours.simplified_m)
     contour_lines = functools.partial(
-        _draw_lines, ax, tolerance_m=SIMPLIFY_PX * pixel_m(ref.extent) if ref is not None else None)
+        _draw_lines, ax, tolerance_m=SIMPLIFY_PX * pixel_m(ref.extent)
+        if ref is not None and getattr(d.contours, "simplified_m", None) is None else None)
     if d.ground is not None:
         ax.imshow(hillshade(d.ground.values, d.ground.cell_m), cmap="gray", vmin=0, vmax=1,
                   extent=d.ground.extent, interpolation="nearest", zorder=0)
@@ -202,8 +205,10 @@ def map_figure(d) -> bytes:
                       label="structure contour (m above datum)")
         contour_lines(d.contours.geoms[ex], color="0.08", lw=0.9, ls=(0, (5, 3)), zorder=3,
                       label="structure contour, forecast beyond the data")
-        for i in _label_lines(d.contours.geoms, elev):
-            pt = shapely.line_interpolate_point(d.contours.geoms[i], 0.5, normalized=True)
+        middle = getattr(d.contours, "middle", None)
+        for i in _label_lines(d.contours.geoms, elev, getattr(d.contours, "length", None)):
+            pt = middle[i] if middle is not None else shapely.line_interpolate_point(d.contours.geoms[i], 0.5,
+                                                                                      normalized=True)
             ax.text(shapely.get_x(pt), shapely.get_y(pt), f"{elev[i]:g}", fontsize=7, ha="center", va="center",
                     zorder=6, bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none", alpha=0.85), clip_on=True)
     if d.misfit is not None and len(d.misfit):
