@@ -26,6 +26,7 @@ from strikeline.geometry.grid import Grid
 from strikeline.stats import ErrorGrowth, ModelChoice
 from strikeline.surfaces.fitted import _Surface
 from strikeline.surfaces.hull import _ENVELOPE_ROWS, RowDistance, distance_to_data
+from strikeline.surfaces.reach import ReachLattice, beyond_reach
 
 
 #: Default error allowed between coarse-grid interpolation and full evaluation.
@@ -36,6 +37,9 @@ GRID_TOLERANCE_M = 0.1
 GRID_SE_FRACTION = 0.1
 #: Cells of one evaluation of the standard error's formula (its temporaries; our choice).
 _SE_CELLS = 1 << 18
+#: Points below which :meth:`SurfaceModel.is_extrapolated` searches the KD-tree for each without
+#: the lattice of :mod:`strikeline.surfaces.reach` (our choice: the lattice's own cost).
+_LATTICE_POINTS = 1 << 14
 
 
 def _check_cancel(is_cancelled, what):
@@ -246,15 +250,16 @@ class SurfaceModel:
         bound is extrapolated without finding its nearest datum, much the most of the work far
         from the data); a point within the bound gets the same distance as
         :meth:`distance_to_data`, so the flags are those of ``distance_to_data(x, y) > reach_m``.
+        Most points are settled without a search by a coarse lattice of distances made on first
+        use (:class:`strikeline.surfaces.reach.ReachLattice`; the same flags).
         """
         reach = float(self.reach_m)
         if not np.isfinite(reach):
             return self.distance_to_data(x, y) > reach
-        x, y = np.broadcast_arrays(np.asarray(x, float), np.asarray(y, float))
-        bound = reach * (1.0 + 1e-9) + 1e-9  # a datum at exactly reach_m is still found
-        d, _ = self._surface.tree.query(np.column_stack([x.ravel(), y.ravel()]), distance_upper_bound=bound,
-                                        workers=-1)
-        return (d > reach).reshape(x.shape)
+        tree = self._surface.tree
+        if not reach > 0 or np.broadcast(np.asarray(x), np.asarray(y)).size < _LATTICE_POINTS:
+            return beyond_reach(tree, reach, x, y)
+        return ReachLattice.of(self._prepared, tree, reach)(x, y)
 
     def hull_distance(self, x, y):
         """Distance (metres) outside the convex hull of the data (0 inside)."""
