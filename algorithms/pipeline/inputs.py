@@ -4,6 +4,7 @@ dip readings, top contacts and the map's unit polygons.
 from __future__ import annotations
 
 import os
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -210,13 +211,17 @@ def layer_specs(value, layer: str | None = None) -> list[tuple[str, str | None]]
     return out
 
 
-def input_record(path, *, layer: str | None = None, where: str | None = None, fields: dict | None = None) -> dict:
+def input_record(path, *, layer: str | None = None, where: str | None = None, fields: dict | None = None,
+                 sha256=None) -> dict:
     """What the summary says of one input: its path as given and absolute, layer, filter, the
-    fields used (option name -> field) and the file's SHA-256 (None when it is not a file)."""
+    fields used (option name -> field) and the file's SHA-256 (None when it is not a file).
+    ``sha256`` is a future of :func:`strikeline.io.files.file_sha256` of the file already under
+    way (the DEM's, hashed while it is checked), else the file is hashed here."""
     path = os.fspath(path)
+    digest = None if not os.path.isfile(path) else sha256.result() if sha256 is not None else file_sha256(path)
     return {"path": path, "path_absolute": os.path.abspath(path) if os.path.exists(path) else None,
             "layer": layer, "where": where or None, "fields": {k: v for k, v in (fields or {}).items() if v},
-            "sha256": file_sha256(path) if os.path.isfile(path) else None}
+            "sha256": digest}
 
 
 # --------------------------------------------------------------------------- loading
@@ -341,14 +346,18 @@ def load_inputs(opts: RunOptions, *, log: Log = _quiet) -> Inputs:
     records = {"contacts": contact_records}
     dem = grid = None
     if opts.dem:
-        shape = raster_shape(opts.dem, label="DEM")
-        if shape is not None and dem_stays_in_file(shape, opts):  # read by windows (pipeline.dem_access)
-            dem = open_dem(opts.dem, label="DEM")
-            grid = dem.grid
-        else:
-            dem, grid = read_raster(opts.dem, label="DEM")
-        dem = dem_in_metres(dem, read_vertical_unit(opts.dem), opts.dem_unit, what=f"DEM '{opts.dem}'", log=log)
-        records["dem"] = input_record(opts.dem)
+        # the file's SHA-256 on a second thread (hashlib releases Python's lock) while it is checked
+        with ThreadPoolExecutor(max_workers=1, thread_name_prefix="strikeline-dem-hash") as pool:
+            digest = pool.submit(file_sha256, opts.dem) if os.path.isfile(opts.dem) else None
+            shape = raster_shape(opts.dem, label="DEM")
+            if shape is not None and dem_stays_in_file(shape, opts):  # read by windows (pipeline.dem_access)
+                dem = open_dem(opts.dem, label="DEM")
+                grid = dem.grid
+            else:
+                dem, grid = read_raster(opts.dem, label="DEM")
+            dem = dem_in_metres(dem, read_vertical_unit(opts.dem), opts.dem_unit, what=f"DEM '{opts.dem}'",
+                                log=log)
+            records["dem"] = input_record(opts.dem, sha256=digest)
     contours = boreholes = orientations = top = None
     if opts.contours:
         contours = read_layer(opts.contours, layer=opts.contours_layer, label="contours",
