@@ -15,7 +15,10 @@ With ``--sheets N ...`` it also runs ``strikeline run --no-report`` on invented 
 contours have as many vertices as a real run's (about 140 per cell of the sheet's side), and
 times the report of each folder against the floor of any report that shows those grids: GDAL
 alone reading ``surface.tif`` and ``depth.tif`` averaged to the same million cells
-(``gdal.Translate`` to memory, one file after the other, GDAL's decoding threads on).
+(``gdal.Translate`` to memory, one file after the other, GDAL's decoding threads on). It also times
+the same report with the two grids' decimated arrays already in hand (read before the clock
+starts): what the report would cost if the writer of the grids kept those arrays while it wrote
+the blocks, so that the report decoded no cell of the GeoTIFFs.
 
 Usage::
 
@@ -113,6 +116,33 @@ def _gdal_floor(folder: Path):
     return done
 
 
+#: The report drawn (timed from the call, after the interpreter's start) as it is (``read``), or with
+#: the surface's and the depth's decimated arrays read before the clock starts (``given``).
+_GIVEN = """
+import sys, time
+from pathlib import Path
+from strikeline.report import data as D, page as P
+folder = Path(sys.argv[1])
+if sys.argv[2] == "given":
+    given = {n: D._raster(folder / n, max_cells=D.MAX_MAP_CELLS) for n in ("surface.tif", "depth.tif")}
+    read = D._raster
+    D._raster = lambda path, **k: given[Path(path).name] if Path(path).name in given else read(path, **k)
+t, c = time.perf_counter(), time.process_time()
+P.render_report(folder)
+print(time.perf_counter() - t, time.process_time() - c)
+"""
+
+
+def _timed_report(folder: Path, how: str) -> tuple[float, float]:
+    """Wall and CPU seconds of the report of ``folder``, its grids read (``how='read'``) or already
+    in hand (``'given'``); see _GIVEN."""
+    done = run_child([sys.executable, "-c", _GIVEN, str(folder), how])
+    if done.returncode:
+        raise SystemExit(f"report of {folder} with its grids given failed: {done.error_line()}")
+    wall, cpu = (float(v) for v in done.stdout.split()[-2:])
+    return wall, cpu
+
+
 def _sheets_run(tmp: Path, sizes) -> None:
     contacts = tmp / "contacts.gpkg"
     _sheets.write_traces(contacts, SHEET_M, [_sheets.plane_surface(SHEET_M)])
@@ -129,6 +159,9 @@ def _sheets_run(tmp: Path, sizes) -> None:
         result_line(f"report of a {n:,} x {n:,} sheet's run", m, ratio=m.wall_s / floor.wall_s,
                     reference=f"GDAL alone reading surface.tif and depth.tif averaged ({floor.wall_s:.2f} s, "
                               f"{floor.cpu_s:.2f} s CPU)", extra=f"{m.cpu_s:.2f} s CPU")
+        (rw, rc), (gw, gc) = _timed_report(out, "read"), _timed_report(out, "given")
+        print(f"  the report's call: {rw:.2f} s, {rc:.2f} s CPU; with surface.tif's and depth.tif's decimated "
+              f"arrays in hand (no cell decoded) {gw:.2f} s, {gc:.2f} s CPU", flush=True)
         shutil.rmtree(out)
 
 
