@@ -11,13 +11,13 @@ import numpy as np
 import shapely
 from osgeo import gdal, gdal_array, ogr
 
-from strikeline.errors import InputError, RasterReadError
+from strikeline.errors import CancelledError, InputError, RasterReadError
 from strikeline.geometry.grid import Grid, check_grid_array
 from strikeline.io._gdal import gdal_exceptions, gdal_message
 from strikeline.io.interrupt import GdalStop
 from strikeline.maps.contours import check_contour_levels, trim_contour_fringe
 
-__all__ = ["contour_lines"]
+__all__ = ["contour_lines", "ValidCells"]
 
 _ELEV_FIELD = "elevation_m"
 
@@ -179,3 +179,102 @@ def contour_lines(array, grid: Grid, *, interval_m=None, levels=None, base_m=0.0
     if trim_fringe:
         geoms, elevation = trim_contour_fringe(geoms, elevation, ~nan_mask, grid)
     return geoms, elevation
+
+
+#: Side of the square blocks of cells :class:`ValidCells` sums up, and the rows of the windows it
+#: reads (our choice: the bands of the fringe check, :mod:`strikeline.maps.contours`).
+VALID_BLOCK = 256
+#: Width in blocks of the windows :class:`ValidCells` reads: 4 MiB of float64 (our choice, as
+#: :class:`strikeline.io.gridfiles.FileMask`'s windows).
+VALID_WINDOW_BLOCKS = 8
+#: Most bytes of the masks of partly valid blocks :class:`ValidCells` keeps; the cells of the
+#: blocks beyond are looked up in the file when asked (our choice).
+VALID_KEEP_BYTES = 32 * 2**20
+
+_NONE, _ALL, _KEPT, _ASK = 0, 1, 2, 3
+
+
+class ValidCells:
+    """Whether cells of a band in a file hold a value, read once ahead of the look-ups.
+
+    ``valid[rows, cols]`` with integer arrays of cell indices gives a bool array, as indexing a
+    boolean array of the band's shape (and as :class:`strikeline.io.gridfiles.FileMask`, which
+    reads the file at each look-up). The band is read once, window by window (each window then
+    dropped from GDAL's block cache), and kept as a summary: one flag for each square block of
+    :data:`VALID_BLOCK` cells that holds values everywhere or nowhere, the block's own boolean
+    mask where it is partly valid (up to ``keep_bytes`` of them; the look-ups in blocks beyond
+    go to ``fallback[rows, cols]``, which reads the file). Made on one thread while another
+    draws contour lines from the same file, it leaves the drawing thread nothing to read after.
+
+    A cell holds a value when it is finite and not the band's nodata (the test of
+    :func:`strikeline.io.gridfiles.read_window`). ``is_cancelled()`` is asked before each window;
+    true raises :class:`strikeline.errors.CancelledError`.
+    """
+
+    def __init__(self, path, grid: Grid, *, fallback=None, is_cancelled=None, block: int = VALID_BLOCK,
+                 keep_bytes: int = VALID_KEEP_BYTES):
+        self.path, self.shape, self.block = str(path), tuple(grid.shape), int(block)
+        rows, cols = self.shape
+        b = self.block
+        self.state = np.full((-(-rows // b), -(-cols // b)), _ASK, dtype=np.int8)
+        self.kept: dict = {}
+        self.fallback = fallback
+        kept_bytes = 0
+        width = b * VALID_WINDOW_BLOCKS
+        with gdal_exceptions():
+            ds = band = None
+            try:
+                ds = gdal.Open(self.path, gdal.GA_ReadOnly)
+                band = ds.GetRasterBand(1)
+                nodata = band.GetNoDataValue()
+                for r0 in range(0, rows, b):
+                    for c0 in range(0, cols, width):
+                        if is_cancelled is not None and is_cancelled():
+                            raise CancelledError(f"reading which cells of '{self.path}' hold values: cancelled")
+                        r1, c1 = min(r0 + b, rows), min(c0 + width, cols)
+                        win = band.ReadAsArray(c0, r0, c1 - c0, r1 - r0).astype(np.float64, copy=False)
+                        band.FlushCache()  # drop the window's tiles: the block cache keeps no more than one
+                        ok = np.isfinite(win)
+                        if nodata is not None:
+                            ok &= win != nodata
+                        del win
+                        for k0 in range(c0, c1, b):
+                            part = ok[:, k0 - c0:min(k0 + b, c1) - c0]
+                            key = (r0 // b, k0 // b)
+                            if part.all():
+                                self.state[key] = _ALL
+                            elif not part.any():
+                                self.state[key] = _NONE
+                            elif kept_bytes + part.size <= keep_bytes:
+                                self.state[key] = _KEPT
+                                self.kept[key] = part.copy()
+                                kept_bytes += part.size
+            except RuntimeError as exc:
+                raise RasterReadError(f"'{self.path}': GDAL could not read which cells hold values "
+                                      f"({gdal_message(exc)})") from None
+            finally:
+                band = ds = None
+
+    def __getitem__(self, key) -> np.ndarray:
+        r, c = (np.asarray(k, dtype=np.int64) for k in key)
+        r, c = np.broadcast_arrays(r, c)
+        rf, cf = r.ravel(), c.ravel()
+        b = self.block
+        br, bc = rf // b, cf // b
+        state = self.state[br, bc]
+        out = state == _ALL
+        kept = np.flatnonzero(state == _KEPT)
+        if len(kept):
+            block_id = br[kept] * self.state.shape[1] + bc[kept]
+            order = np.argsort(block_id, kind="stable")
+            cuts = np.flatnonzero(np.diff(block_id[order])) + 1
+            for idx in np.split(kept[order], cuts):
+                i, j = int(br[idx[0]]), int(bc[idx[0]])
+                out[idx] = self.kept[(i, j)][rf[idx] - i * b, cf[idx] - j * b]
+        ask = np.flatnonzero(state == _ASK)
+        if len(ask):
+            if self.fallback is None:
+                raise RasterReadError(f"'{self.path}': cells outside the summary of which cells hold values "
+                                      "were asked and there is no file look-up to ask")
+            out[ask] = np.asarray(self.fallback[rf[ask], cf[ask]], dtype=bool)
+        return out.reshape(r.shape)

@@ -427,7 +427,7 @@ class _ThreadStop(GdalStop):
 
 
 def contour_lines_from_file(path, grid: Grid, *, interval_m=None, levels=None, base_m=0.0, any_valid: bool = True,
-                            progress=None, is_cancelled=None) -> tuple[np.ndarray, np.ndarray]:
+                            progress=None, is_cancelled=None, valid=None) -> tuple[np.ndarray, np.ndarray]:
     """:func:`strikeline.io.contours.contour_lines` of a float64 scratch grid (:class:`StripWriter`
     with ``scratch=True``) read by GDAL's contour generator from the file, a block of lines at a
     time; the lines trimmed to the valid cell centres (:func:`strikeline.maps.contours.trim_contour_fringe`
@@ -436,7 +436,8 @@ def contour_lines_from_file(path, grid: Grid, *, interval_m=None, levels=None, b
 
     Two calls may run at once on two threads inside :func:`contour_reading` (GDAL releases
     Python's lock while it draws); a call off the main thread stops on a signal without holding
-    it (:class:`_ThreadStop`)."""
+    it (:class:`_ThreadStop`). ``valid()``, when given, returns the cells' mask for the trimming
+    instead (a :class:`strikeline.io.contours.ValidCells` read meanwhile on another thread)."""
     import shapely
 
     empty = (np.empty(0, dtype=object), np.empty(0, dtype=np.float64))
@@ -471,4 +472,4 @@ def contour_lines_from_file(path, grid: Grid, *, interval_m=None, levels=None, b
         return empty
     geoms = np.asarray(shapely.force_2d(shapely.from_wkb(np.array(wkb, dtype=object))), dtype=object)
     elevation = np.asarray(elev, dtype=np.float64)
-    return trim_contour_fringe(geoms, elevation, FileMask(path, grid), grid)
+    return trim_contour_fringe(geoms, elevation, FileMask(path, grid) if valid is None else valid(), grid)

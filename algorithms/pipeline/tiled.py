@@ -394,15 +394,16 @@ def _gather(band, computing, cols: int, single: set) -> dict:
 
 
 def contours_of_blocks(tiles: BlockGrids, grid: Grid, *, interval_m: float, extrapolated_fn=None,
-                       is_cancelled=None):
+                       is_cancelled=None, valid=None):
     """Structure contours of the surface written block by block
     (:func:`strikeline.pipeline.steps.structure_contours` on the lines GDAL's contour generator
-    draws from the float64 scratch copy, :func:`strikeline.io.gridfiles.contour_lines_from_file`)."""
+    draws from the float64 scratch copy, :func:`strikeline.io.gridfiles.contour_lines_from_file`;
+    ``valid()``: the surface's valid cells for the trimming, read meanwhile elsewhere)."""
     from strikeline.io.gridfiles import contour_lines_from_file
     from strikeline.pipeline.steps import structure_contours
 
     lines = contour_lines_from_file(tiles.scratch["surface"], grid, interval_m=interval_m,
-                                    any_valid=tiles.any_valid["surface"], is_cancelled=is_cancelled)
+                                    any_valid=tiles.any_valid["surface"], is_cancelled=is_cancelled, valid=valid)
     return structure_contours(None, grid, interval_m=interval_m, extrapolated_fn=extrapolated_fn, lines=lines)
 
 
@@ -422,7 +423,9 @@ def contours_and_trace_of_blocks(tiles: BlockGrids, grid: Grid, ground_grid: Gri
     while this one draws and splits the structure contours (the two read different scratch grids
     and GDAL releases Python's lock while it draws). Returns ``((lines, elevation_m,
     extrapolated), raw_trace)``, the values of the two calls one after the other; with one core
-    they are made so.
+    they are made so. Its trace drawn, the second thread reads which cells of the surface hold
+    values (:class:`strikeline.io.contours.ValidCells`) while GDAL still draws the contours, so
+    that trimming them reads nothing more (the same lines as reading the file then).
 
     The trace's time is counted in the step that runs this (a run's "structure contours"), and
     the step "depth, trace and misfit" takes the lines drawn. GDAL's exception mode and block
@@ -434,11 +437,12 @@ def contours_and_trace_of_blocks(tiles: BlockGrids, grid: Grid, ground_grid: Gri
     import threading
     from concurrent.futures import wait
 
-    from strikeline.io.gridfiles import contour_reading
+    from strikeline.io.contours import ValidCells
+    from strikeline.io.gridfiles import FileMask, contour_reading
 
-    def contours():
+    def contours(valid=None):
         return contours_of_blocks(tiles, grid, interval_m=interval_m, extrapolated_fn=extrapolated_fn,
-                                  is_cancelled=is_cancelled)
+                                  is_cancelled=is_cancelled, valid=valid)
     if THREADS < 2:
         return contours(), trace_of_blocks(tiles, ground_grid, is_cancelled=is_cancelled)
     stop = threading.Event()
@@ -448,11 +452,17 @@ def contours_and_trace_of_blocks(tiles: BlockGrids, grid: Grid, ground_grid: Gri
 
     with contour_reading(grid, ground_grid), ThreadPoolExecutor(max_workers=1) as pool:
         trace = pool.submit(trace_of_blocks, tiles, ground_grid, is_cancelled=trace_cancelled)
+        drawn = threading.Event()  # the contours are trimmed (or need no trimming): the cells' read may stop
+        cells = pool.submit(ValidCells, tiles.scratch["surface"], grid,
+                            is_cancelled=lambda: drawn.is_set() or trace_cancelled(),
+                            fallback=FileMask(tiles.scratch["surface"], grid))  # after the trace, one thread
         try:
-            return contours(), trace.result()
+            lines = contours(valid=cells.result)
+            drawn.set()
+            return lines, trace.result()
         except BaseException as exc:
             stop.set()
-            wait([trace])
+            wait([trace, cells])
             # a signal that stopped both draws may have been raised on the trace's thread
             # (the other then only saw GDAL stop): the run ends as interrupted either way
             late = trace.exception()
