@@ -35,6 +35,7 @@ from strikeline.errors import CancelledError
 from strikeline.geometry.grid import Grid
 from strikeline.maps.dipgrids import dip_grids
 from strikeline.maps.thickness import isopach_grids
+from strikeline.pipeline.band_share import SharedBands
 
 #: Block of the automatic block path: 256 rows (one tile row of the GeoTIFFs) by 2048 columns;
 #: a band of 256 rows of a 30,000-column grid holds 7.7 million cells (our choice).
@@ -163,12 +164,14 @@ def _with_halo(win, shape, halo: int = 1):
     return max(0, r0 - halo), min(rows, r1 + halo), max(0, c0 - halo), min(cols, c1 + halo)
 
 
-def _block(model, grid: Grid, win, *, ground=None) -> dict:
+def _block(model, grid: Grid, win, *, ground=None, errors=None) -> dict:
     """The grids of one block: the surface on the window with a one-cell halo, its dip grids
     (``dip_grids`` of the haloed surface cut to the window: the central differences at the
     window's edge cells see their neighbours as in the whole grid), the standard error and the
     depth below ``ground`` (the ground on the output grid). The model evaluates windows of the
-    whole grid (``window=``), which hold the whole grid's values for those cells."""
+    whole grid (``window=``), which hold the whole grid's values for those cells. ``errors``:
+    a :class:`~strikeline.pipeline.band_share.SharedBands` of the standard error across the
+    grid's width (the same values; computed once per band instead of once per block)."""
     r0, r1, c0, c1 = win
     halo = _with_halo(win, grid.shape)
     h0, h1, k0, k1 = halo
@@ -177,7 +180,8 @@ def _block(model, grid: Grid, win, *, ground=None) -> dict:
     dip, ddir = dip_grids(s_halo, window_grid(grid, *halo))  # only its cell sizes are used
     surface = s_halo[inner]
     out = {"surface": surface, "dip": dip[inner], "dip_direction": ddir[inner],
-           "uncertainty": model.standard_error_grid(grid, window=win, workers=1)}
+           "uncertainty": (model.standard_error_grid(grid, window=win, workers=1) if errors is None
+                           else errors.get(r0, r1, c0, c1))}
     if ground is not None:
         out["depth"] = np.subtract(ground[r0:r1, c0:c1], surface)
     return out
@@ -235,7 +239,9 @@ def grids_by_blocks(model, grid: Grid, folder=None, *, ground=None, ground_grid:
     outs = [("surface", V.SURFACE), ("dip", V.DIP), ("dip_direction", V.DIP_DIRECTION),
             ("uncertainty", V.UNCERTAINTY)] + ([("depth", V.DEPTH)] if ground is not None else [])
     scratch = {"surface": grid} if ground is None else {"surface": grid, "depth": ground_grid or grid}
-    return _by_blocks(lambda w: _block(model, grid, w, ground=ground), outs, scratch, grid, folder,
+    errors = SharedBands(lambda a, b: model.standard_error_grid(grid, window=(a, b, 0, grid.cols), workers=1),
+                         uses=len(range(0, grid.cols, max(1, int(block_shape[1])))), parts=threads)
+    return _by_blocks(lambda w: _block(model, grid, w, ground=ground, errors=errors), outs, scratch, grid, folder,
                       block_shape=block_shape, threads=threads, progress=progress, is_cancelled=is_cancelled)
 
 
