@@ -75,9 +75,6 @@ import shapely
 import shapely.ops
 from osgeo import gdal, ogr, osr
 
-gdal.UseExceptions()
-ogr.UseExceptions()
-osr.UseExceptions()
 
 HERE = Path(__file__).resolve().parent
 NODATA = -9999.0
@@ -935,6 +932,11 @@ def build_fold(out_dir: Path) -> dict:
 
 
 def main(argv=None):
+    # GDAL's exception mode is process-wide: switched on when run as a script, not on import
+    # (a test that imports this module keeps its own mode)
+    gdal.UseExceptions()
+    ogr.UseExceptions()
+    osr.UseExceptions()
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--only", choices=("demo", "fold"),
                         help="write only one set (default: both)")

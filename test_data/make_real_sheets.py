@@ -50,9 +50,6 @@ import real_truth  # noqa: E402
 # The smooth sideways error and the ramped slip are the demo sheet's (one definition).
 from make_demo_sheet import ramp_offset, smooth_gaussian_series, write_layer  # noqa: E402
 
-gdal.UseExceptions()
-ogr.UseExceptions()
-osr.UseExceptions()
 
 HERE = Path(__file__).resolve().parent
 ROOT = HERE / "real"
@@ -683,6 +680,11 @@ DESCRIPTIONS = {
 
 
 def main(argv=None):
+    # GDAL's exception mode is process-wide: switched on when run as a script, not on import
+    # (a test that imports this module keeps its own mode)
+    gdal.UseExceptions()
+    ogr.UseExceptions()
+    osr.UseExceptions()
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--out", type=Path, default=ROOT, help="root folder (default test_data/real)")
     ap.add_argument("--only", choices=real_truth.DEMS, help="one DEM only")
