@@ -27,6 +27,7 @@ from strikeline.io.contours import _contour_band, _level_options
 from strikeline.io.interrupt import GdalStop, raise_pending
 from strikeline.io.geotiff import CREATION_OPTIONS, tile_cut_short
 from strikeline.io.raster import NODATA_OUT
+from strikeline.io.window_means import WindowMeans
 from strikeline.maps.contours import trim_contour_fringe
 
 __all__ = ["StripWriter", "read_window", "FileMask", "contour_lines_from_file", "contour_reading", "OUTPUT_OPTIONS",
@@ -64,6 +65,11 @@ class StripWriter:
     grid : Grid
     description, unit : str
         The band's description and unit (as :func:`strikeline.io.geotiff.write_geotiffs`).
+    means_k : int, optional
+        Also gather the grid's ``k x k`` window means as the pieces are written
+        (:class:`strikeline.io.window_means.WindowMeans`, ``k`` dividing the grid's rows and
+        columns; outputs only): :attr:`means` ``.means`` holds the values of a decimated read of
+        the file (:func:`strikeline.io.sampling.read_decimated`) once every row is written.
     scratch : bool, default False
         A float64 scratch grid (uncompressed, nodata :data:`SCRATCH_NODATA`, values unchanged)
         instead of a float32 output (:data:`OUTPUT_OPTIONS`, nodata
@@ -87,7 +93,8 @@ class StripWriter:
     mode.
     """
 
-    def __init__(self, path, grid: Grid, *, description: str = "", unit: str | None = "", scratch: bool = False):
+    def __init__(self, path, grid: Grid, *, description: str = "", unit: str | None = "", scratch: bool = False,
+                 means_k: int | None = None):
         self.path = os.fspath(path)
         self.tmp = self.path + ".part"
         self.grid, self.scratch = grid, scratch
@@ -101,6 +108,9 @@ class StripWriter:
         self._next_col = 0  # where the next block goes in the current tile row (write_block)
         self._row_height = 0  # rows of the current row of blocks (write_block)
         self._any_valid = False
+        # the k x k window means of what is written (the report's picture of the grid, without
+        # decoding the file again): those of a decimated read of the file
+        self.means = None if not means_k or scratch else WindowMeans(grid.shape, int(means_k), self.nodata)
         try:
             with gdal_exceptions():
                 drv = gdal.GetDriverByName("GTiff")
@@ -218,6 +228,8 @@ class StripWriter:
             raise OutputError(f"'{self.path}': GDAL could not write it ({failed}); free some space or "
                               "choose another folder")
         h, w = piece.shape
+        if self.means is not None:
+            self.means.add(piece, r0, c0)
         if r0 == 0 or r0 + h == self.grid.rows:
             self._hashes[(r0, c0, h, w)] = hashlib.blake2b(memoryview(piece), digest_size=16).digest()
 

@@ -6,6 +6,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from strikeline.io.window_means import PICTURE_CELLS
 from strikeline.attitude.fitting import PlaneFit
 from strikeline.geometry.grid import Grid
 from strikeline.maps.dipgrids import dip_grids
@@ -160,7 +161,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
         ground, ground_grid = (None, None) if inputs.dem is None else ground_on_grid(
             inputs.dem, inputs.dem_grid, grid, log=log)
         tiles = grids_by_blocks(model, grid, folder, ground=ground, ground_grid=ground_grid, block_shape=block_shape,
-                                is_cancelled=is_cancelled)
+                                is_cancelled=is_cancelled, means_cells=None if opts.no_report else PICTURE_CELLS)
         block_grids.append(tiles)
         surface, uncertainty = tiles.files[V.SURFACE.file], tiles.files[V.UNCERTAINTY.file]
         dip, dipdir = tiles.files[V.DIP.file], tiles.files[V.DIP_DIRECTION.file]

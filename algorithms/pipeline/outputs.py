@@ -214,7 +214,10 @@ def _write_all(r: Results, folder: Path, *, is_cancelled=None, report: bool = Fa
     if report:
         from strikeline.report import write_report
 
-        write_report(folder, log=log)
+        # the window means the block path gathered while it wrote a grid: the values the report's
+        # decimated read of the file gives, without decoding it again
+        means = {name: a.means for name, a in result_rasters(r) if isinstance(a, GridFile) and a.means is not None}
+        write_report(folder, log=log, means=means)
 
 
 def write_report_file(r: Results, path, *, log: Log = _quiet, is_cancelled=None) -> Path | None:

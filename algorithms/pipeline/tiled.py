@@ -57,6 +57,9 @@ class GridFile:
 
     path: Path
     grid: Grid
+    #: ``(cells, array)``: the grid's window means gathered while it was written, the values of a
+    #: read decimated to at most ``cells`` cells (:func:`strikeline.io.sampling.read_decimated`)
+    means: tuple | None = field(default=None, compare=False, repr=False)
 
     def read(self, r0: int = 0, r1: int | None = None, c0: int = 0, c1: int | None = None) -> np.ndarray:
         from strikeline.io.gridfiles import read_window
@@ -205,7 +208,7 @@ def _isopach_block(top_model, model, grid: Grid, win) -> dict:
 
 def grids_by_blocks(model, grid: Grid, folder=None, *, ground=None, ground_grid: Grid | None = None,
                     block_shape=DEFAULT_BLOCK, threads: int = THREADS, progress=None,
-                    is_cancelled=None) -> BlockGrids:
+                    is_cancelled=None, means_cells: int | None = None) -> BlockGrids:
     """Evaluate the surface and its grids block by block and write them as GeoTIFFs into ``folder``.
 
     Parameters
@@ -229,6 +232,10 @@ def grids_by_blocks(model, grid: Grid, folder=None, *, ground=None, ground_grid:
         Blocks of a band computed at once.
     progress, is_cancelled : callable, optional
         Fraction of the rows done; polled between bands (:class:`CancelledError`).
+    means_cells : int, optional
+        Also gather the surface's and the depth's window means as they are written, the values of
+        a read decimated to at most this many cells (``GridFile.means``; the report's map,
+        :data:`strikeline.io.window_means.PICTURE_CELLS`), when the factor divides the grid's sides.
 
     Returns
     -------
@@ -241,8 +248,16 @@ def grids_by_blocks(model, grid: Grid, folder=None, *, ground=None, ground_grid:
     scratch = {"surface": grid} if ground is None else {"surface": grid, "depth": ground_grid or grid}
     errors = SharedBands(lambda a, b: model.standard_error_grid(grid, window=(a, b, 0, grid.cols), workers=1),
                          uses=len(range(0, grid.cols, max(1, int(block_shape[1])))), parts=threads)
+    means = {}
+    if means_cells:
+        from strikeline.io.sampling import decimation
+
+        k = decimation(grid.shape, means_cells)
+        if grid.rows % k == 0 and grid.cols % k == 0:
+            means = {"surface": (means_cells, k), "depth": (means_cells, k)}
     return _by_blocks(lambda w: _block(model, grid, w, ground=ground, errors=errors), outs, scratch, grid, folder,
-                      block_shape=block_shape, threads=threads, progress=progress, is_cancelled=is_cancelled)
+                      block_shape=block_shape, threads=threads, progress=progress, is_cancelled=is_cancelled,
+                      means=means)
 
 
 def isopachs_by_blocks(top_model, model, grid: Grid, folder=None, *, block_shape=DEFAULT_BLOCK,
@@ -258,7 +273,7 @@ def isopachs_by_blocks(top_model, model, grid: Grid, folder=None, *, block_shape
 
 
 def _by_blocks(block_fn, outs, scratch_grids: dict, grid: Grid, folder, *, block_shape, threads, progress,
-               is_cancelled) -> BlockGrids:
+               is_cancelled, means=None) -> BlockGrids:
     """Run ``block_fn(window) -> {key: array}`` over the blocks of ``grid`` a band at a time on
     ``threads`` threads and write the bands: ``outs`` ((key, vocabulary raster) pairs) as output
     GeoTIFFs, ``scratch_grids`` (key -> grid) as float64 scratch copies. A band's writes are queued
@@ -278,8 +293,10 @@ def _by_blocks(block_fn, outs, scratch_grids: dict, grid: Grid, folder, *, block
     writers, scratch_writers = {}, {}
     counts = {"base": 0, "top": 0, "both": 0}
     try:
+        means = means or {}  # key -> (cells, k): window means gathered while written
         for key, spec in outs:
-            writers[key] = StripWriter(folder / spec.file, grid, description=spec.meaning, unit=spec.unit)
+            writers[key] = StripWriter(folder / spec.file, grid, description=spec.meaning, unit=spec.unit,
+                                       means_k=means[key][1] if key in means else None)
         for key, g in scratch_grids.items():
             scratch_writers[key] = StripWriter(scratch_dir / f"{key}_f64.tif", g, scratch=True)
         jobs = [(k, w) for k, w in writers.items()] + [(k, w) for k, w in scratch_writers.items()]
@@ -299,7 +316,9 @@ def _by_blocks(block_fn, outs, scratch_grids: dict, grid: Grid, folder, *, block
             w.finish()
         with ThreadPoolExecutor(max_workers=max(1, int(threads))) as pool:
             list(pool.map(lambda w: w.verify(), every))  # reading back decompresses: both threads
-        files = {spec.file: GridFile(Path(writers[key].commit()), grid) for key, spec in outs}
+        files = {spec.file: GridFile(Path(writers[key].commit()), grid,
+                                     (means[key][0], writers[key].means.means) if key in means else None)
+                 for key, spec in outs}
         any_valid = {k: w.any_valid for k, w in scratch_writers.items()}
         scratch = {k: Path(w.commit()) for k, w in scratch_writers.items()}
     except BaseException:

@@ -3,7 +3,10 @@
 Everything comes from the files the run wrote (``summary.json``, the layers of ``results.gpkg``,
 the GeoTIFFs), so the report needs no array of the run in memory: grids are read decimated to at
 most :data:`MAX_MAP_CELLS` cells, points thinned to at most :data:`MAX_POINTS`, and the residuals
-of the picks are the surface GeoTIFF interpolated at them.
+of the picks are the surface GeoTIFF interpolated at them. A run that wrote its grids block by
+block hands over the surface's and the depth's window means it gathered while writing them
+(:class:`strikeline.io.window_means.WindowMeans`): the values of those decimated reads, without
+decoding the files again.
 
 The grids are read on :data:`READ_THREADS` threads, one file each (GDAL decodes and resamples
 without Python's lock), each with GDAL's multithreaded decoding of the blocks a read crosses
@@ -29,9 +32,10 @@ from strikeline.io.demfile import decode_threads
 from strikeline.io.sampling import (decimated_grid, layer_names, read_decimated, read_decimated_and_sample,
                                      read_line_pieces, read_point_sample, sample_bilinear)
 from strikeline.io.vector import read_layer
+from strikeline.io.window_means import PICTURE_CELLS
 
 #: Most cells of a grid read for a picture: a map panel is about 1,000 pixels across.
-MAX_MAP_CELLS = 1_000_000
+MAX_MAP_CELLS = PICTURE_CELLS
 #: Most points of a layer drawn (every k-th beyond it).
 MAX_POINTS = 20_000
 #: Most cells of a grid read for a histogram (a regular sample of them).
@@ -88,11 +92,21 @@ class ReportData:
     notes: list = field(default_factory=list)
 
 
-def _raster(path: Path, *, max_cells: int, resampling: str = "average") -> Raster | None:
+def _raster(path: Path, *, max_cells: int, resampling: str = "average", means=None) -> Raster | None:
+    """The grid read decimated; ``means`` ``(cells, array)``: its window means gathered while it
+    was written for a read of at most ``cells`` cells (:class:`strikeline.io.window_means.WindowMeans`,
+    the values of that read), taken instead of decoding the file when this read is that one."""
     if not path.exists():
         return None
-    with decode_threads():
-        arr, grid = read_decimated(path, max_cells=max_cells, resampling=resampling, label=path.name)
+    grid = None
+    if means is not None and means[0] == max_cells and resampling == "average":
+        arr = means[1]
+        grid = decimated_grid(path, max_cells=max_cells, label=path.name)
+        if grid.shape != arr.shape:
+            grid = None
+    if grid is None:
+        with decode_threads():
+            arr, grid = read_decimated(path, max_cells=max_cells, resampling=resampling, label=path.name)
     xmin, ymin, xmax, ymax = grid.bounds
     return Raster(arr, (xmin, xmax, ymin, ymax), grid.cell_x_m, grid.crs_wkt)
 
@@ -166,7 +180,7 @@ def _bool(values) -> np.ndarray:
 
 
 def load_outputs(folder, *, max_cells: int = MAX_MAP_CELLS, max_points: int = MAX_POINTS,
-                 while_reading=None) -> ReportData:
+                 while_reading=None, means: dict | None = None) -> ReportData:
     """Read what the report shows from a run's output ``folder`` (bounded memory, read-only).
 
     The grid files are read on :data:`READ_THREADS` threads while this one reads the layers of
@@ -174,7 +188,9 @@ def load_outputs(folder, *, max_cells: int = MAX_MAP_CELLS, max_points: int = MA
     given, is called on this thread with the :class:`ReportData` holding the summary and the
     layers (not yet the grids, the picks or the contacts inputs) while the grids are still being
     read: work that needs no grid (figures of the summary and the attitudes) overlaps GDAL's
-    decoding, which runs without Python's lock."""
+    decoding, which runs without Python's lock. ``means``: file name -> ``(cells, array)``, a grid's
+    window means gathered while the run wrote it (the values of its decimated read), taken instead
+    of decoding the file."""
     folder = Path(folder)
     summary = json.loads((folder / V.SUMMARY_FILE).read_text(encoding="utf-8"))
     d = ReportData(folder, summary)
@@ -182,8 +198,10 @@ def load_outputs(folder, *, max_cells: int = MAX_MAP_CELLS, max_points: int = MA
     # GDAL's exception mode is the process's: set here, once, for the reads on the other threads
     with gdal_exceptions(), ThreadPoolExecutor(max_workers=READ_THREADS,
                                                thread_name_prefix="strikeline-report-read") as pool:
-        grids = {"surface": pool.submit(_raster, surf, max_cells=max_cells),
-                 "depth": pool.submit(_raster, folder / V.DEPTH.file, max_cells=max_cells),
+        means = means or {}
+        grids = {"surface": pool.submit(_raster, surf, max_cells=max_cells, means=means.get(V.SURFACE.file)),
+                 "depth": pool.submit(_raster, folder / V.DEPTH.file, max_cells=max_cells,
+                                      means=means.get(V.DEPTH.file)),
                  "thickness": pool.submit(_thickness, tt, max_cells=max_cells)}
         gpkg = folder / V.RESULTS_FILE
         names = layer_names(gpkg)

@@ -132,8 +132,9 @@ def _run_table(s: dict) -> str:
     return "<table>" + "".join(f"<tr><th>{_e(a)}</th><td>{_e(b)}</td></tr>" for a, b in rows) + "</table>"
 
 
-def render_report(folder) -> str:
-    """The report's HTML for a run's output ``folder`` (needs matplotlib)."""
+def render_report(folder, *, means=None) -> str:
+    """The report's HTML for a run's output ``folder`` (needs matplotlib); ``means``: grids'
+    window means gathered while they were written (:func:`strikeline.report.data.load_outputs`)."""
     from strikeline.report.data import load_outputs
     from strikeline.report.figures import pixel_size, style
 
@@ -145,7 +146,7 @@ def render_report(folder) -> str:
                 if name in NO_GRID_FIGURES:
                     early[name] = draw(d)
 
-    d = load_outputs(folder, while_reading=draw_early)
+    d = load_outputs(folder, while_reading=draw_early, means=means)
     s = d.summary
     caution, *answer = plain_answer(s)  # the QGIS log says the same, in the same order
     parts = ["<!DOCTYPE html>", '<html lang="en"><head><meta charset="utf-8">',
@@ -164,12 +165,13 @@ def render_report(folder) -> str:
     return "\n".join(parts) + "\n"
 
 
-def write_report(folder, *, log=None) -> Path | None:
+def write_report(folder, *, log=None, means=None) -> Path | None:
     """Write :data:`strikeline.vocabulary.REPORT_FILE` into a run's output ``folder`` (the
     temporary folder of :func:`strikeline.io.files.output_folder`, before its swap).
 
     Without matplotlib nothing is written and ``log`` gets one line saying how to install it;
-    returns the file written, or None.
+    returns the file written, or None. ``means``: file name -> ``(cells, array)``, window means of
+    grids gathered while they were written (the values of the decimated reads the page makes).
     """
     from strikeline.io.files import write_text_checked
 
@@ -180,5 +182,5 @@ def write_report(folder, *, log=None) -> Path | None:
             log(MISSING_PLOT)
         return None
     path = Path(folder) / V.REPORT_FILE
-    write_text_checked(path, render_report(folder))
+    write_text_checked(path, render_report(folder, means=means))
     return path
