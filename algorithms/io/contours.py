@@ -7,6 +7,8 @@ the valid cell centres need no GDAL and live in :mod:`strikeline.maps.contours`.
 """
 from __future__ import annotations
 
+import contextlib
+
 import numpy as np
 import shapely
 from osgeo import gdal, gdal_array, ogr
@@ -194,6 +196,36 @@ VALID_KEEP_BYTES = 32 * 2**20
 _NONE, _ALL, _KEPT, _ASK = 0, 1, 2, 3
 
 
+@contextlib.contextmanager
+def band_for_reading(path: str, what: str):
+    """``(band, nodata)`` of the first band of the raster ``path``, open for reading in GDAL's
+    exception mode; a failure of GDAL inside raises the one-line
+    :class:`~strikeline.errors.RasterReadError` "could not read ``what``"."""
+    with gdal_exceptions():
+        ds = band = None
+        try:
+            ds = gdal.Open(path, gdal.GA_ReadOnly)
+            band = ds.GetRasterBand(1)
+            yield band, band.GetNoDataValue()
+        except RuntimeError as exc:
+            raise RasterReadError(f"'{path}': GDAL could not read {what} ({gdal_message(exc)})") from None
+        finally:
+            band = ds = None
+
+
+def valid_in_window(band, nodata, r0: int, r1: int, c0: int, c1: int) -> np.ndarray:
+    """Which cells of rows ``r0:r1`` and columns ``c0:c1`` of a GDAL ``band`` hold a value: the
+    test of :func:`strikeline.io.gridfiles.read_window` (float64, nodata and non-finite values
+    hold none). The window's tiles are dropped from GDAL's block cache after, so it keeps no more
+    than one window."""
+    win = band.ReadAsArray(c0, r0, c1 - c0, r1 - r0).astype(np.float64, copy=False)
+    band.FlushCache()
+    ok = np.isfinite(win)
+    if nodata is not None:
+        ok &= win != nodata
+    return ok
+
+
 class ValidCells:
     """Whether cells of a band in a file hold a value, read once ahead of the look-ups.
 
@@ -221,39 +253,24 @@ class ValidCells:
         self.fallback = fallback
         kept_bytes = 0
         width = b * VALID_WINDOW_BLOCKS
-        with gdal_exceptions():
-            ds = band = None
-            try:
-                ds = gdal.Open(self.path, gdal.GA_ReadOnly)
-                band = ds.GetRasterBand(1)
-                nodata = band.GetNoDataValue()
-                for r0 in range(0, rows, b):
-                    for c0 in range(0, cols, width):
-                        if is_cancelled is not None and is_cancelled():
-                            raise CancelledError(f"reading which cells of '{self.path}' hold values: cancelled")
-                        r1, c1 = min(r0 + b, rows), min(c0 + width, cols)
-                        win = band.ReadAsArray(c0, r0, c1 - c0, r1 - r0).astype(np.float64, copy=False)
-                        band.FlushCache()  # drop the window's tiles: the block cache keeps no more than one
-                        ok = np.isfinite(win)
-                        if nodata is not None:
-                            ok &= win != nodata
-                        del win
-                        for k0 in range(c0, c1, b):
-                            part = ok[:, k0 - c0:min(k0 + b, c1) - c0]
-                            key = (r0 // b, k0 // b)
-                            if part.all():
-                                self.state[key] = _ALL
-                            elif not part.any():
-                                self.state[key] = _NONE
-                            elif kept_bytes + part.size <= keep_bytes:
-                                self.state[key] = _KEPT
-                                self.kept[key] = part.copy()
-                                kept_bytes += part.size
-            except RuntimeError as exc:
-                raise RasterReadError(f"'{self.path}': GDAL could not read which cells hold values "
-                                      f"({gdal_message(exc)})") from None
-            finally:
-                band = ds = None
+        with band_for_reading(self.path, "which cells hold values") as (band, nodata):
+            for r0 in range(0, rows, b):
+                for c0 in range(0, cols, width):
+                    if is_cancelled is not None and is_cancelled():
+                        raise CancelledError(f"reading which cells of '{self.path}' hold values: cancelled")
+                    r1, c1 = min(r0 + b, rows), min(c0 + width, cols)
+                    ok = valid_in_window(band, nodata, r0, r1, c0, c1)
+                    for k0 in range(c0, c1, b):
+                        part = ok[:, k0 - c0:min(k0 + b, c1) - c0]
+                        key = (r0 // b, k0 // b)
+                        if part.all():
+                            self.state[key] = _ALL
+                        elif not part.any():
+                            self.state[key] = _NONE
+                        elif kept_bytes + part.size <= keep_bytes:
+                            self.state[key] = _KEPT
+                            self.kept[key] = part.copy()
+                            kept_bytes += part.size
 
     def __getitem__(self, key) -> np.ndarray:
         r, c = (np.asarray(k, dtype=np.int64) for k in key)

@@ -23,7 +23,7 @@ from osgeo import gdal
 from strikeline.errors import CancelledError, OutputError, RasterReadError
 from strikeline.geometry.grid import Grid
 from strikeline.io._gdal import gdal_exceptions, gdal_message, quiet_close
-from strikeline.io.contours import _contour_band, _level_options
+from strikeline.io.contours import _contour_band, _level_options, band_for_reading, valid_in_window
 from strikeline.io.interrupt import GdalStop, raise_pending
 from strikeline.io.geotiff import CREATION_OPTIONS, tile_cut_short
 from strikeline.io.raster import NODATA_OUT
@@ -352,28 +352,13 @@ class FileMask:
         order = np.argsort(window, kind="stable")
         _, starts = np.unique(window[order], return_index=True)
         ends = np.append(starts[1:], len(order))
-        with gdal_exceptions():
-            ds = band = None
-            try:
-                ds = gdal.Open(self.path, gdal.GA_ReadOnly)
-                band = ds.GetRasterBand(1)
-                nodata = band.GetNoDataValue()
-                for s, e in zip(starts, ends):
-                    idx = order[s:e]
-                    r0, c0 = int(rf[idx[0]] // t) * t, int(cf[idx[0]] // w) * w
-                    r1, c1 = min(r0 + t, rows), min(c0 + w, cols)
-                    # the test of read_window: float64, nodata and non-finite values hold no data
-                    win = band.ReadAsArray(c0, r0, c1 - c0, r1 - r0).astype(np.float64, copy=False)
-                    ok = np.isfinite(win)
-                    if nodata is not None:
-                        ok &= win != nodata
-                    of[idx] = ok[rf[idx] - r0, cf[idx] - c0]
-                    band.FlushCache()  # drop the window's tiles: the block cache keeps no more than one
-            except RuntimeError as exc:
-                raise RasterReadError(f"'{self.path}': GDAL could not read the cells of a mask "
-                                      f"({gdal_message(exc)})") from None
-            finally:
-                band = ds = None
+        with band_for_reading(self.path, "the cells of a mask") as (band, nodata):
+            for s, e in zip(starts, ends):
+                idx = order[s:e]
+                r0, c0 = int(rf[idx[0]] // t) * t, int(cf[idx[0]] // w) * w
+                r1, c1 = min(r0 + t, rows), min(c0 + w, cols)
+                ok = valid_in_window(band, nodata, r0, r1, c0, c1)
+                of[idx] = ok[rf[idx] - r0, cf[idx] - c0]
         return out
 
 

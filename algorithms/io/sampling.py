@@ -9,6 +9,7 @@ a point layer is read feature by feature keeping every k-th.
 """
 from __future__ import annotations
 
+import contextlib
 import math
 import os
 
@@ -298,6 +299,51 @@ def read_line_pieces(path, *, layer: str, each, label: str = "layer", piece_byte
     from strikeline.io.vector import layer_from_wkb
 
     path = os.fspath(path)
+    with _open_layer(path, layer) as lyr:
+        defn = lyr.GetLayerDefn()
+        fnames = [defn.GetFieldDefn(i).GetName() for i in range(defn.GetFieldCount())]
+        ftypes = {n: defn.GetFieldDefn(i).GetFieldTypeName(defn.GetFieldDefn(i).GetType())
+                  for i, n in enumerate(fnames)}
+        srs = lyr.GetSpatialRef()
+        wkt = _wkt_of(srs)
+        out = []
+
+        def piece(wkbs, fids, values):
+            try:
+                return layer_from_wkb(wkbs, fids=fids, fields=values, field_types=ftypes, crs_wkt=wkt, path=path,
+                                      layer_name=layer, label=label, geometry="line")
+            except InputError:  # no usable line among these features: nothing to give
+                return None
+
+        wkbs, fids, values, size = [], [], {n: [] for n in fnames}, 0
+        lyr.ResetReading()
+        try:
+            for feat in lyr:
+                g = feat.GetGeometryRef()
+                wkbs.append(None if g is None else bytes(g.ExportToIsoWkb()))
+                size += 0 if wkbs[-1] is None else len(wkbs[-1])
+                fids.append(feat.GetFID())
+                for i, n in enumerate(fnames):
+                    values[n].append(feat.GetField(i) if feat.IsFieldSetAndNotNull(i) else None)
+                if size >= piece_bytes:
+                    got = piece(wkbs, fids, values)
+                    wkbs, fids, values, size = [], [], {n: [] for n in fnames}, 0
+                    if got is not None:
+                        out.append(each(got))
+        except RuntimeError as exc:
+            raise VectorReadError(f"{label} layer '{layer}' of '{path}': OGR could not read its features "
+                                  f"({gdal_message(exc)})") from None
+        if wkbs:
+            got = piece(wkbs, fids, values)
+            if got is not None:
+                out.append(each(got))
+    return out
+
+
+@contextlib.contextmanager
+def _open_layer(path: str, layer: str):
+    """The layer ``layer`` of the vector file ``path``, open in GDAL's exception mode; an
+    unreadable file or a missing layer raises the one-line error that names it."""
     with gdal_exceptions():
         try:
             ds = ogr.Open(path, 0)
@@ -307,46 +353,9 @@ def read_line_pieces(path, *, layer: str, each, label: str = "layer", piece_byte
             lyr = ds.GetLayerByName(layer)
             if lyr is None:
                 raise InputError(f"'{path}' has no layer '{layer}'")
-            defn = lyr.GetLayerDefn()
-            fnames = [defn.GetFieldDefn(i).GetName() for i in range(defn.GetFieldCount())]
-            ftypes = {n: defn.GetFieldDefn(i).GetFieldTypeName(defn.GetFieldDefn(i).GetType())
-                      for i, n in enumerate(fnames)}
-            srs = lyr.GetSpatialRef()
-            wkt = _wkt_of(srs)
-            out = []
-
-            def piece(wkbs, fids, values):
-                try:
-                    return layer_from_wkb(wkbs, fids=fids, fields=values, field_types=ftypes, crs_wkt=wkt, path=path,
-                                          layer_name=layer, label=label, geometry="line")
-                except InputError:  # no usable line among these features: nothing to give
-                    return None
-
-            wkbs, fids, values, size = [], [], {n: [] for n in fnames}, 0
-            lyr.ResetReading()
-            try:
-                for feat in lyr:
-                    g = feat.GetGeometryRef()
-                    wkbs.append(None if g is None else bytes(g.ExportToIsoWkb()))
-                    size += 0 if wkbs[-1] is None else len(wkbs[-1])
-                    fids.append(feat.GetFID())
-                    for i, n in enumerate(fnames):
-                        values[n].append(feat.GetField(i) if feat.IsFieldSetAndNotNull(i) else None)
-                    if size >= piece_bytes:
-                        got = piece(wkbs, fids, values)
-                        wkbs, fids, values, size = [], [], {n: [] for n in fnames}, 0
-                        if got is not None:
-                            out.append(each(got))
-            except RuntimeError as exc:
-                raise VectorReadError(f"{label} layer '{layer}' of '{path}': OGR could not read its features "
-                                      f"({gdal_message(exc)})") from None
-            if wkbs:
-                got = piece(wkbs, fids, values)
-                if got is not None:
-                    out.append(each(got))
+            yield lyr
         finally:
-            ds = None
-    return out
+            lyr = ds = None
 
 
 def layer_names(path) -> list[str]:
@@ -375,38 +384,28 @@ def read_point_sample(path, *, layer: str, fields=(), max_points: int = 20_000) 
         (None for null), and ``n_total``, the features of the layer, and ``step``, the ``k``.
     """
     path = os.fspath(path)
-    with gdal_exceptions():
-        try:
-            ds = ogr.Open(path, 0)
-        except RuntimeError as exc:
-            raise VectorReadError(f"'{path}': OGR cannot open it ({gdal_message(exc)})") from None
-        try:
-            lyr = ds.GetLayerByName(layer)
-            if lyr is None:
-                raise InputError(f"'{path}' has no layer '{layer}'")
-            n = lyr.GetFeatureCount()
-            step = max(1, math.ceil(n / max_points)) if max_points > 0 else max(n, 1)
-            defn = lyr.GetLayerDefn()
-            index = {f: defn.GetFieldIndex(f) for f in fields}
-            missing = [f for f, i in index.items() if i < 0]
-            if missing:
-                raise InputError(f"layer '{layer}' of '{path}' has no field(s) {', '.join(missing)}")
-            xs, ys, zs = [], [], []
-            vals = {f: [] for f in fields}
-            lyr.ResetReading()
-            for k, feat in enumerate(lyr):
-                if k % step:
-                    continue
-                g = feat.GetGeometryRef()
-                if g is None or g.IsEmpty():
-                    continue
-                xs.append(g.GetX())
-                ys.append(g.GetY())
-                zs.append(g.GetZ() if g.Is3D() else np.nan)
-                for f, i in index.items():
-                    vals[f].append(feat.GetField(i) if feat.IsFieldSetAndNotNull(i) else None)
-        finally:
-            ds = None
+    with _open_layer(path, layer) as lyr:
+        n = lyr.GetFeatureCount()
+        step = max(1, math.ceil(n / max_points)) if max_points > 0 else max(n, 1)
+        defn = lyr.GetLayerDefn()
+        index = {f: defn.GetFieldIndex(f) for f in fields}
+        missing = [f for f, i in index.items() if i < 0]
+        if missing:
+            raise InputError(f"layer '{layer}' of '{path}' has no field(s) {', '.join(missing)}")
+        xs, ys, zs = [], [], []
+        vals = {f: [] for f in fields}
+        lyr.ResetReading()
+        for k, feat in enumerate(lyr):
+            if k % step:
+                continue
+            g = feat.GetGeometryRef()
+            if g is None or g.IsEmpty():
+                continue
+            xs.append(g.GetX())
+            ys.append(g.GetY())
+            zs.append(g.GetZ() if g.Is3D() else np.nan)
+            for f, i in index.items():
+                vals[f].append(feat.GetField(i) if feat.IsFieldSetAndNotNull(i) else None)
     out = {"x": np.asarray(xs, float), "y": np.asarray(ys, float), "z": np.asarray(zs, float),
            "n_total": int(n), "step": int(step)}
     for f in fields:
