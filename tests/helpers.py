@@ -179,6 +179,23 @@ def gdal_exceptions():
             gdal.DontUseExceptions()
 
 
+def write_tiled_dem(path, z, *, nodata=-9999.0, block=16, epsg=32633) -> str:
+    """A float32 DEM GeoTIFF of the array ``z``: DEFLATE, tiles of ``block`` cells, 5 m cells from
+    (400000, 5301500), UTM 33N by default, band nodata ``nodata``. Returns its path as a string."""
+    from osgeo import gdal
+
+    with gdal_exceptions():
+        ds = gdal.GetDriverByName("GTiff").Create(
+            str(path), z.shape[1], z.shape[0], 1, gdal.GDT_Float32,
+            options=["COMPRESS=DEFLATE", "TILED=YES", f"BLOCKXSIZE={block}", f"BLOCKYSIZE={block}"])
+        ds.SetGeoTransform((400000.0, 5.0, 0.0, 5301500.0, 0.0, -5.0))
+        ds.SetProjection(srs_of(epsg).ExportToWkt())
+        ds.GetRasterBand(1).SetNoDataValue(nodata)
+        ds.GetRasterBand(1).WriteArray(z)
+        ds = None
+    return str(path)
+
+
 def srs_of(epsg):
     """An OSR spatial reference of an EPSG code (``None``: no CRS)."""
     from osgeo import osr

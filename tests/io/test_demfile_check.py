@@ -9,27 +9,18 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from osgeo import gdal, osr
+from osgeo import gdal
 
 import strikeline.io.demfile as demfile
 from strikeline.errors import RasterReadError
 from strikeline.io._gdal import gdal_exceptions
 from strikeline.io.demfile import decode_threads, open_dem, strip_rows
 
+from helpers import write_tiled_dem
+
 
 def _dem(path, z, *, block=16, nodata=-9999.0):
-    srs = osr.SpatialReference()
-    srs.ImportFromEPSG(32633)
-    with gdal_exceptions():
-        ds = gdal.GetDriverByName("GTiff").Create(
-            str(path), z.shape[1], z.shape[0], 1, gdal.GDT_Float32,
-            options=["COMPRESS=DEFLATE", "TILED=YES", f"BLOCKXSIZE={block}", f"BLOCKYSIZE={block}"])
-        ds.SetGeoTransform((400000.0, 5.0, 0.0, 5301500.0, 0.0, -5.0))
-        ds.SetProjection(srs.ExportToWkt())
-        ds.GetRasterBand(1).SetNoDataValue(nodata)
-        ds.GetRasterBand(1).WriteArray(z)
-        ds = None
-    return str(path)
+    return write_tiled_dem(path, z, nodata=nodata, block=block)
 
 
 def _gdal_whole(path):

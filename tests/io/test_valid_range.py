@@ -19,6 +19,8 @@ from strikeline.io.raster import (NODATA_SENTINELS, SENTINEL_ABS_LIMIT, HoleCoun
                                   raster_from_array, valid_range)
 from strikeline.geometry.grid import Grid
 
+from helpers import write_tiled_dem
+
 
 def _numpy_range(a, nodata):
     """numpy's extremes of the float64 copy with NaN for nodata and non-finite cells (reference)."""
@@ -72,13 +74,16 @@ def test_range_and_markers_match_numpy_on_the_float64_copy(dtype, nodata, cells)
     a = (300 + 500 * rng.random((9, 13))).astype(dtype)
     for (r, c), v in cells.items():
         a[r, c] = v
+    # Source: numpy's nanmin/nanmax of the float64 copy with NaN for nodata (numpy 1.26)
     assert valid_range(a, nodata) == _numpy_range(a, nodata)
+    # Source: numpy's count_nonzero of the cells equal to each marker on the float64 copy
     assert HoleCount(nodata).add(a).result() == _numpy_markers(a, nodata)
 
 
 def test_a_band_of_nodata_has_no_range():
     a = np.full((4, 5), -9999.0, dtype=np.float32)
     a[0, 0] = np.nan
+    # Source: numpy's nanmin/nanmax of the float64 copy: no valid cell, no range
     assert valid_range(a, -9999.0) is None
     assert _numpy_range(a, -9999.0) is None
     assert HoleCount(-9999.0).add(a).result() is None
@@ -88,6 +93,7 @@ def test_a_given_range_without_markers_skips_the_count_and_one_with_them_counts(
     a = np.array([[500.0, -9999.0]], dtype=np.float32)
     # a range said to hold no marker is trusted: nothing is counted (the caller's range is a's own)
     assert HoleCount(None).add(a, value_range=(500.0, 600.0)).result() is None
+    # Source: arithmetic - the one cell of a set to -9999 (a common nodata marker, from memory)
     assert HoleCount(None).add(a, value_range=valid_range(a, None)).result() == (-9999.0, 1)
 
 
@@ -95,6 +101,7 @@ def test_the_in_memory_reader_still_refuses_an_undeclared_marker():
     grid = Grid((400000.0, 5.0, 0.0, 5301500.0, 0.0, -5.0), (3, 4), _wkt(), None)
     z = np.full((3, 4), 512.0)
     z[1, 2] = -32767.0
+    # Source: arithmetic - the one cell of z set to -32767 (a common nodata marker, from memory)
     with pytest.raises(InputError, match=r"1 cell\(s\) equal -32767"):
         raster_from_array(z, grid, what="DEM 'x.tif'", path="x.tif")
 
@@ -106,16 +113,7 @@ def _wkt():
 
 
 def _dem(path, z, *, nodata):
-    with gdal_exceptions():
-        ds = gdal.GetDriverByName("GTiff").Create(
-            str(path), z.shape[1], z.shape[0], 1, gdal.GDT_Float32,
-            options=["COMPRESS=DEFLATE", "TILED=YES", "BLOCKXSIZE=16", "BLOCKYSIZE=16"])
-        ds.SetGeoTransform((400000.0, 5.0, 0.0, 5301500.0, 0.0, -5.0))
-        ds.SetProjection(_wkt())
-        ds.GetRasterBand(1).SetNoDataValue(nodata)
-        ds.GetRasterBand(1).WriteArray(z)
-        ds = None
-    return str(path)
+    return write_tiled_dem(path, z, nodata=nodata)
 
 
 def _gdal_min_max(path):
@@ -136,6 +134,7 @@ def test_open_dem_range_equals_gdals_exact_min_max_over_several_strips(tmp_path,
     path = _dem(tmp_path / "dem.tif", z, nodata=nodata)
     monkeypatch.setattr(demfile, "STRIP_CELLS", 45 * 16)  # strips of one block row: five of them
     dem = open_dem(path)
+    # Source: GDAL's exact ComputeRasterMinMax(False) of the file (GDAL 3.6, nodata skipped)
     assert (dem.minimum, dem.maximum) == _gdal_min_max(path)
 
 
@@ -144,5 +143,6 @@ def test_open_dem_refuses_a_marker_in_a_later_strip(tmp_path, monkeypatch):
     z[57, 3] = -32768.0  # in the fourth strip of one block row
     path = _dem(tmp_path / "dem.tif", z, nodata=-9999.0)
     monkeypatch.setattr(demfile, "STRIP_CELLS", 40 * 16)
+    # Source: arithmetic - the one cell of z set to -32768 (the int16 minimum, a common nodata marker: common practice)
     with pytest.raises(InputError, match=r"1 cell\(s\) equal -32768, a common nodata marker"):
         open_dem(path)
