@@ -365,40 +365,112 @@ def _stream_blocks(pool, block_fn, jobs, grid: Grid, block_shape, threads, count
                    is_cancelled) -> None:
     """Compute blocks that are one tile row high and whole tiles wide and write each as soon as
     it is done (:meth:`~strikeline.io.gridfiles.StripWriter.write_block`): memory holds a few
-    blocks, whatever the grid's width. A few blocks are computed ahead; each block's writes are
-    queued ahead of the next block computed, and a writer's blocks are queued only once its
-    previous block is written, so each file gets its blocks in order. (``single``: the writers
+    blocks, whatever the grid's width.
+
+    Each file is a lane: its blocks are written one after the other in the grid's order (so its
+    tiles lie in the order of a whole-array write), and the moment a lane has written block *i*
+    it is given block *i + 1* if that is computed, without waiting for the other files' writes of
+    block *i*. The threads thus never stand idle at the seam between two blocks while one slow file
+    finishes; a block is dropped once every lane has written it, and at most
+    :func:`_blocks_in_flight` blocks are computed or waiting to be written at once. The tasks
+    (computing a block, writing a block to one file) go to ``pool``; this thread polls
+    ``is_cancelled``, reports ``progress`` and raises the first failure. (``single``: the writers
     round to float32 themselves.)"""
-    from collections import deque
+    import threading
 
     windows = [w for band in block_windows(grid.shape, block_shape) for w in band]
-    blocks = iter(windows)
-    ahead = deque()
+    n, limit = len(windows), _blocks_in_flight(threads)
+    state = threading.Condition(threading.RLock())
+    parts: dict = {}  # block index -> (window, its arrays), until every lane has written it
+    left: dict = {}  # block index -> lanes still to write it
+    lane_next = [0] * len(jobs)  # each lane's next block
+    lane_busy = [False] * len(jobs)
+    flow = {"submitted": 0, "written": 0, "error": None, "stop": False}
 
-    def compute_next() -> None:
-        w = next(blocks, None)
-        if w is not None:
-            ahead.append((w, pool.submit(block_fn, w)))
+    def fail(exc: BaseException) -> None:
+        with state:
+            if flow["error"] is None:
+                flow["error"] = exc
+            flow["stop"] = True
+            state.notify_all()
 
-    for _ in range(2 * max(1, int(threads)) + 1):
-        compute_next()
-    writing, done = [], 0
-    while ahead:
-        if is_cancelled is not None and is_cancelled():
-            raise CancelledError("cancelled; nothing was written")
-        (r0, _, c0, _), f = ahead.popleft()
-        part = f.result()
-        for fw in writing:
-            fw.result()
-        writing = [pool.submit(w.write_block, r0, c0, part[k]) for k, w in jobs]
-        _count_reach(counts, part)
-        part = f = None
-        compute_next()
-        done += 1
-        if progress is not None:
-            progress(done / len(windows))
-    for fw in writing:
-        fw.result()
+    def start_lane(k: int) -> None:  # with ``state`` held: lane k takes its next block if it is here
+        i = lane_next[k]
+        if not lane_busy[k] and not flow["stop"] and i in parts:
+            lane_busy[k] = True
+            pool.submit(write, k, i)
+
+    def top_up() -> None:  # with ``state`` held: compute ahead while blocks in flight are few
+        while not flow["stop"] and flow["submitted"] < n and flow["submitted"] - flow["written"] < limit:
+            i = flow["submitted"]
+            flow["submitted"] += 1
+            pool.submit(compute, i)
+
+    def compute(i: int) -> None:
+        try:
+            part = block_fn(windows[i])
+        except BaseException as exc:
+            fail(exc)
+            return
+        with state:
+            if flow["stop"]:
+                return
+            parts[i], left[i] = part, len(jobs)
+            _count_reach(counts, part)
+            for k in range(len(jobs)):
+                start_lane(k)
+            state.notify_all()
+
+    def write(k: int, i: int) -> None:
+        key, writer = jobs[k]
+        r0, _, c0, _ = windows[i]
+        try:
+            writer.write_block(r0, c0, parts[i][key])
+        except BaseException as exc:
+            fail(exc)
+            return
+        with state:
+            lane_busy[k] = False
+            lane_next[k] = i + 1
+            left[i] -= 1
+            if not left[i]:
+                del parts[i], left[i]
+                flow["written"] += 1
+                top_up()
+            start_lane(k)
+            state.notify_all()
+
+    with state:
+        top_up()
+    reported = 0
+    try:
+        while True:
+            with state:
+                state.wait_for(lambda: flow["stop"] or flow["written"] != reported, timeout=0.1)
+                error, written = flow["error"], flow["written"]
+            if error is not None:
+                raise error
+            if progress is not None and written != reported:
+                progress(written / n)
+            reported = written
+            if written == n:
+                return
+            if is_cancelled is not None and is_cancelled():
+                raise CancelledError("cancelled; nothing was written")
+    finally:
+        with state:
+            flow["stop"] = True  # no task starts another; the caller drops the writers once the pool is idle
+            parts.clear()
+
+
+def _blocks_in_flight(threads: int) -> int:
+    """Blocks computed or being computed and not yet written to every file, at most: two per
+    thread and one more, so that each thread finds a block to compute or write (our choice).
+
+    >>> _blocks_in_flight(2)
+    5
+    """
+    return 2 * max(1, int(threads)) + 1
 
 
 def _gather(band, computing, cols: int, single: set) -> dict:
