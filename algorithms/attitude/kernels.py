@@ -57,6 +57,15 @@ LEVEL = 0.95
 #: Number of array elements (resamples × picks) handled per chunk; bounds memory to a few
 #: tens of MB whatever the pick count.
 _CHUNK_ELEMENTS = 1 << 22
+#: Elements per chunk of the many-window kernels (resamples × the larger of the slots or units and
+#: the windows' moments, 13 per window), and per piece of replicate normals reduced to half-widths
+#: (8 MiB as float64; our choice): their arrays stop growing with the number of windows, which grows
+#: with the picks, i.e. with the DEM's resolution. The draws of a generator filling an array are
+#: the same whatever the chunk (numpy's ``Generator.random`` and ``standard_normal`` fill it value
+#: after value), the sparse per-window sums add the same terms in the same order and each matrix
+#: is decomposed alone, so the normals do not depend on it. One window (the sheet-wide plane)
+#: keeps :data:`_CHUNK_ELEMENTS`: its draws (``Generator.integers``) and its dense sums do.
+_WINDOW_CHUNK_ELEMENTS = 1 << 20
 
 
 def chi2_quantile(p, df):
@@ -213,8 +222,10 @@ def window_block_normals(q, counts, unit_of_slot, n_resamples, rng, progress=Non
         unit = unit.reshape(-1)
     n_units = int(unit.max()) + 1 if t else 0
     feats = np.concatenate([np.ones((t, 1)), q, (q[:, :, None] * q[:, None, :]).reshape(t, 9)], axis=1)
-    per_unit = np.zeros((n_units, feats.shape[1]))
+    k = feats.shape[1]
+    per_unit = np.zeros((n_units, k))
     np.add.at(per_unit, unit, feats)
+    del feats
     window_of_unit = np.zeros(n_units, dtype=np.int64)
     window_of_unit[unit] = window_of_slot
     n_blocks = np.bincount(window_of_unit, minlength=n_windows)
@@ -223,9 +234,10 @@ def window_block_normals(q, counts, unit_of_slot, n_resamples, rng, progress=Non
     start_of_unit = unit_start[window_of_unit]
     matrix = _window_matrix(per_unit, window_of_unit, n_windows)
     out = np.empty((n_resamples, n_windows, 3))
-    chunk = max(1, _CHUNK_ELEMENTS // max(n_units, 1))
+    chunk = (max(1, _CHUNK_ELEMENTS // max(n_units, 1)) if n_windows == 1
+             else max(1, _WINDOW_CHUNK_ELEMENTS // max(n_units, k * n_windows)))
     with Eigvecs(out) as eig:
-        _block_chunks(eig, rng, matrix, feats.shape[1], n_windows, n_units, blocks_of_unit, start_of_unit,
+        _block_chunks(eig, rng, matrix, k, n_windows, n_units, blocks_of_unit, start_of_unit,
                       n_resamples, chunk, progress, is_cancelled)
     check_callbacks(progress, is_cancelled, 1.0)
     return out, n_blocks
@@ -243,10 +255,14 @@ def _block_chunks(eig, rng, matrix, k, n_windows, n_units, blocks_of_unit, start
         else:
             u = rng.random((b, n_units))
             u *= blocks_of_unit
-            drawn = np.minimum(u.astype(np.int64), blocks_of_unit - 1)
+            drawn = u.astype(np.int64)
+            del u
+            np.minimum(drawn, blocks_of_unit - 1, out=drawn)
             drawn += start_of_unit
         drawn += n_units * np.arange(b)[:, None]
-        c = np.bincount(drawn.ravel(), minlength=b * n_units).reshape(b, n_units).astype(float)
+        c = np.bincount(drawn.ravel(), minlength=b * n_units)
+        del drawn
+        c = c.reshape(b, n_units).astype(float)
         m = _per_window_sums(c, matrix, n_windows, k)
         n_b = m[..., 0]
         s1 = m[..., 1:4]
@@ -277,7 +293,8 @@ def monte_carlo_normals(q, counts, scatter, sigma_slot, n_draws, rng, progress=N
     zhat = np.array([0.0, 0.0, 1.0])
     zz = np.outer(zhat, zhat)
     out = np.empty((n_draws, n_windows, 3))
-    chunk = max(1, _CHUNK_ELEMENTS // max(t, 1))
+    chunk = (max(1, _CHUNK_ELEMENTS // max(t, 1)) if n_windows == 1
+             else max(1, _WINDOW_CHUNK_ELEMENTS // max(t, 9 * n_windows)))
     with Eigvecs(out) as eig:
         for b0 in range(0, n_draws, chunk):
             check_callbacks(progress, is_cancelled, b0 / n_draws)
@@ -309,9 +326,28 @@ def _dip_and_direction(n):
     return dip, dd
 
 
+def _window_pieces(normals):
+    """Slices of the window axis of replicate normals (B, W, 3) of at most a quarter of
+    :data:`_WINDOW_CHUNK_ELEMENTS` elements each (2 MiB: a dozen temporaries of that size): the
+    reductions below work window by window, so their temporaries stay a piece's size and the
+    values are those of the whole stack."""
+    b, w = normals.shape[0], normals.shape[1]
+    step = max(1, (_WINDOW_CHUNK_ELEMENTS // 4) // max(3 * b, 1))
+    return [slice(a, min(a + step, w)) for a in range(0, max(w, 1), step)]
+
+
 def replicate_half_widths(normal_hat, normals):
     """95% half-widths (dip, dip direction, cone) of replicate normals (B, W, 3) about
-    the upward estimates ``normal_hat`` (W, 3)."""
+    the upward estimates ``normal_hat`` (W, 3), computed a piece of windows at a time
+    (:func:`_window_pieces`)."""
+    pieces = _window_pieces(normals)
+    if len(pieces) == 1:
+        return _replicate_half_widths(normal_hat, normals)
+    parts = [_replicate_half_widths(normal_hat[s], normals[:, s]) for s in pieces]
+    return tuple(np.concatenate([p[k] for p in parts]) for k in range(3))
+
+
+def _replicate_half_widths(normal_hat, normals):
     dots = np.sum(normals * normal_hat[None], axis=-1)
     normals = np.where(dots[..., None] < 0, -normals, normals)
     dots = np.abs(dots)
@@ -454,7 +490,15 @@ def tilt_of_normals(n):
 
 def replicate_tilt_cov(normal_hat, normals):
     """Covariance (W, 2, 2) of the replicate tilts about the estimate's tilt (mean square
-    deviation, like the percentile half-widths about the estimate)."""
+    deviation, like the percentile half-widths about the estimate), a piece of windows at a
+    time (:func:`_window_pieces`)."""
+    pieces = _window_pieces(normals)
+    if len(pieces) == 1:
+        return _replicate_tilt_cov(normal_hat, normals)
+    return np.concatenate([_replicate_tilt_cov(normal_hat[s], normals[:, s]) for s in pieces])
+
+
+def _replicate_tilt_cov(normal_hat, normals):
     dots = np.sum(normals * normal_hat[None], axis=-1)
     normals = np.where(dots[..., None] < 0, -normals, normals)
     dev = tilt_of_normals(normals) - tilt_of_normals(normal_hat)[None]

@@ -378,6 +378,7 @@ def local_attitudes(points, *, centres=None, window_m=None, min_points=DEFAULT_M
                 g = np.maximum(n_blocks[wi], MIN_WINDOW_BLOCKS)
                 dip_ci, dd_ci, cone = expand_for_few_blocks(*replicate_half_widths(normal, normals), g)
                 tilt_cov = replicate_tilt_cov(normal, normals) * (few_blocks_factor(g) ** 2)[:, None, None]
+            del normals  # (B, W, 3): gone before the Monte Carlo's own
         else:
             cov = analytic_covariance_from_eigen(w, v, counts, w[:, 0] / (counts - 3))
             dip_ci, dd_ci, cone = half_widths_from_covariance(normal, cov)
