@@ -247,7 +247,8 @@ def grids_by_blocks(model, grid: Grid, folder=None, *, ground=None, ground_grid:
             ("uncertainty", V.UNCERTAINTY)] + ([("depth", V.DEPTH)] if ground is not None else [])
     scratch = {"surface": grid} if ground is None else {"surface": grid, "depth": ground_grid or grid}
     errors = SharedBands(lambda a, b: model.standard_error_grid(grid, window=(a, b, 0, grid.cols), workers=1),
-                         uses=len(range(0, grid.cols, max(1, int(block_shape[1])))), parts=threads)
+                         uses=len(range(0, grid.cols, max(1, int(block_shape[1])))), parts=threads,
+                         dtype=np.float32)  # written only as a float32 output: the values its writer keeps
     means = {}
     if means_cells:
         from strikeline.io.sampling import decimation

@@ -81,3 +81,32 @@ def test_a_failed_part_fails_every_block_of_its_band():
     for f in futures:
         with pytest.raises(RuntimeError, match="part failed"):
             f.result()
+
+
+def test_a_float32_band_holds_each_float64_value_rounded_once():
+    model, grid = _model("spline")
+
+    def rows(a, b):
+        return model.standard_error_grid(grid, window=(a, b, 0, grid.cols), workers=1)
+
+    block = (13, 9)
+    bands = block_windows(grid.shape, block)
+    windows = [w for band in bands for w in band]
+    got = {}
+    for dtype in (None, np.float32):
+        share = SharedBands(rows, uses=len(bands[0]), parts=2, dtype=dtype)
+        with ThreadPoolExecutor(max_workers=3) as pool:
+            parts = list(pool.map(lambda w: share.get(*w), windows))
+        got[dtype] = np.full(grid.shape, np.nan, dtype=parts[0].dtype)
+        for (r0, r1, c0, c1), part in zip(windows, parts):
+            got[dtype][r0:r1, c0:c1] = part
+        assert share._bands == {}
+    assert got[np.float32].dtype == np.float32 and got[None].dtype == np.float64
+    # Source: numpy's float64 -> float32 cast (round to nearest), the cast the output writer makes
+    # (strikeline.io.gridfiles.StripWriter: np.asarray(values, dtype=np.float32)): the same bits
+    assert np.array_equal(got[np.float32], got[None].astype(np.float32), equal_nan=True)
+    xs, ys = grid.cell_centres()
+    X, Y = np.meshgrid(xs, ys)
+    want = model._surface.standard_error(X.ravel(), Y.ravel()).reshape(X.shape)
+    # Source: IEEE 754 binary32, unit roundoff 2**-24 (plus the 1e-12 of the test above)
+    np.testing.assert_allclose(got[np.float32], want, rtol=2.0 ** -24 + 1e-12, atol=0)
