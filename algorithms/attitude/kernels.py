@@ -299,11 +299,14 @@ def monte_carlo_normals(q, counts, scatter, sigma_slot, n_draws, rng, progress=N
         for b0 in range(0, n_draws, chunk):
             check_callbacks(progress, is_cancelled, b0 / n_draws)
             b = min(chunk, n_draws - b0)
-            e = rng.standard_normal((b, t)) * sigma_slot
+            e = rng.standard_normal((b, t))
+            e *= sigma_slot  # in place: the chunk's one array (the same products)
             m = _per_window_sums(e, lin, n_windows, 4)
             a = m[..., :3]
             se = m[..., 3]
-            se2 = _per_window_sums(e * e, ones, n_windows, 1)[..., 0]
+            np.multiply(e, e, out=e)  # e is not needed past its sums: its squares take its place
+            se2 = _per_window_sums(e, ones, n_windows, 1)[..., 0]
+            del e
             s = se2 - se * se / counts[None, :]
             eig.put(b0, scatter[None]
                     + a[..., :, None] * zhat[None, None, None, :]
