@@ -12,6 +12,8 @@ Imports neither GDAL nor QGIS.
 """
 from __future__ import annotations
 
+import ctypes
+import ctypes.util
 import resource
 import sys
 import time
@@ -62,6 +64,27 @@ def peak_rss_mib() -> float:
     """The peak resident set size of this process so far, in MiB (Linux reports KiB, macOS bytes)."""
     peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
     return peak / (1024.0 * 1024.0) if sys.platform == "darwin" else peak / 1024.0
+
+
+def _malloc_trim():
+    """glibc's ``malloc_trim`` (None elsewhere)."""
+    if not sys.platform.startswith("linux"):
+        return None
+    try:
+        return ctypes.CDLL(ctypes.util.find_library("c") or "libc.so.6").malloc_trim
+    except (OSError, AttributeError):  # musl and other C libraries have none
+        return None
+
+
+_TRIM = _malloc_trim()
+
+
+def return_free_memory() -> None:
+    """Give the pages the C allocator holds free back to the system (glibc's ``malloc_trim(0)``,
+    which also trims the arenas of worker threads); nothing where there is no such call. A step's
+    arrays, once freed, otherwise stay in the process's resident memory under the next steps."""
+    if _TRIM is not None:
+        _TRIM(0)
 
 
 def level_of(message: str) -> str:
@@ -202,6 +225,7 @@ class RunProgress:
         if self.current is None or self._clock is None:
             return None
         step, timing = self.current, self._clock.timing()
+        return_free_memory()  # after the step's peak is read: the next step starts from what is in use
         self.reporter.finish(step, timing)
         self.done.append((step, timing))
         self._overall(1.0)
