@@ -32,25 +32,66 @@ def _level_options(interval_m, levels, base_m) -> list[str]:
     return [f"LEVEL_INTERVAL={step:.17g}", f"LEVEL_BASE={base:.17g}"]
 
 
-def _contour_band(band, options: list, stop: GdalStop) -> tuple[list, list]:
+#: GDAL progress reports (one per raster row) between two hand-overs of the lines drawn so far
+#: when :func:`_contour_band` is given a ``sink`` (our choice: the height of a scratch tile row).
+HAND_OVER_ROWS = 256
+
+
+def _take_lines(layer, wkb: list, elev: list, *, delete: bool = False) -> None:
+    """Append the lines of an in-memory OGR layer (ISO WKB, level) in its order (the order GDAL
+    drew them); ``delete``: remove each feature read from the layer."""
+    fids = []
+    layer.ResetReading()
+    for feature in layer:
+        fids.append(feature.GetFID())
+        geom = feature.GetGeometryRef()
+        if geom is None or geom.IsEmpty():
+            continue
+        wkb.append(bytes(geom.ExportToIsoWkb()))
+        elev.append(feature.GetFieldAsDouble(1))
+    if delete:
+        for fid in fids:
+            layer.DeleteFeature(fid)
+
+
+def _contour_band(band, options: list, stop: GdalStop, sink=None) -> tuple[list, list]:
     """GDAL's contour generator on a band (in memory or in a file, which GDAL reads a block of
-    lines at a time): the lines as ISO WKB and their levels, in GDAL's order."""
+    lines at a time): the lines as ISO WKB and their levels, in GDAL's order.
+
+    With ``sink``, the lines go to ``sink(wkb, levels)`` as GDAL draws them instead: every
+    :data:`HAND_OVER_ROWS` rows (at GDAL's progress report, between two rows) the lines it has
+    finished are read from the layer, removed from it and handed over, the rest when it ends;
+    the chunks in order are the lines of one call without ``sink``, which then returns empty
+    lists. A failure of ``sink`` stops GDAL and is raised by ``stop.check()``."""
     out = layer = None
     try:
         out = ogr.GetDriverByName("Memory").CreateDataSource("strikeline_contours")
         layer = out.CreateLayer("contours", geom_type=ogr.wkbLineString)
         layer.CreateField(ogr.FieldDefn("id", ogr.OFTInteger))
         layer.CreateField(ogr.FieldDefn(_ELEV_FIELD, ogr.OFTReal))
-        gdal.ContourGenerateEx(band, layer, options=options, callback=stop.callback)
+        callback = stop.callback
+        if sink is not None:
+            def hand_over() -> None:
+                wkb, elev = [], []
+                _take_lines(layer, wkb, elev, delete=True)
+                if wkb:
+                    sink(wkb, elev)
+
+            def callback(complete, message=None, data=None) -> int:
+                if stop.calls % HAND_OVER_ROWS == 0 and layer.GetFeatureCount() and not stop.stopped:
+                    try:
+                        hand_over()
+                    except BaseException as exc:  # noqa: BLE001 - GDAL's bindings would print and swallow it
+                        stop.error = exc
+                        return 0
+                return stop.callback(complete, message, data)
+        gdal.ContourGenerateEx(band, layer, options=options, callback=callback)
         stop.check()
         wkb, elev = [], []
-        layer.ResetReading()
-        for feature in layer:
-            geom = feature.GetGeometryRef()
-            if geom is None or geom.IsEmpty():
-                continue
-            wkb.append(bytes(geom.ExportToIsoWkb()))
-            elev.append(feature.GetFieldAsDouble(1))
+        if sink is not None:
+            hand_over()
+            return wkb, elev
+        _take_lines(layer, wkb, elev)
         return wkb, elev
     finally:
         layer = out = None

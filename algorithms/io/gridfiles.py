@@ -424,7 +424,7 @@ class _ThreadStop(GdalStop):
 
 
 def contour_lines_from_file(path, grid: Grid, *, interval_m=None, levels=None, base_m=0.0, any_valid: bool = True,
-                            progress=None, is_cancelled=None, valid=None) -> tuple[np.ndarray, np.ndarray]:
+                            progress=None, is_cancelled=None, valid=None, sink=None) -> tuple[np.ndarray, np.ndarray]:
     """:func:`strikeline.io.contours.contour_lines` of a float64 scratch grid (:class:`StripWriter`
     with ``scratch=True``) read by GDAL's contour generator from the file, a block of lines at a
     time; the lines trimmed to the valid cell centres (:func:`strikeline.maps.contours.trim_contour_fringe`
@@ -434,13 +434,17 @@ def contour_lines_from_file(path, grid: Grid, *, interval_m=None, levels=None, b
     Two calls may run at once on two threads inside :func:`contour_reading` (GDAL releases
     Python's lock while it draws); a call off the main thread stops on a signal without holding
     it (:class:`_ThreadStop`). ``valid()``, when given, returns the cells' mask for the trimming
-    instead (a :class:`strikeline.io.contours.ValidCells` read meanwhile on another thread)."""
+    instead (a :class:`strikeline.io.contours.ValidCells` read meanwhile on another thread).
+
+    ``sink(wkb, levels)``, when given, receives GDAL's lines as it draws them instead, in chunks
+    (ISO WKB with z, in GDAL's order, not trimmed: :func:`strikeline.io.contours._contour_band`),
+    and the call returns ``None``; a failure of ``sink`` stops GDAL and is raised."""
     import shapely
 
     empty = (np.empty(0, dtype=object), np.empty(0, dtype=np.float64))
     options = _level_options(interval_m, levels, base_m)
     if not any_valid or grid.rows * grid.cols == 0:
-        return empty
+        return empty if sink is None else None
     options += [f"NODATA={SCRATCH_NODATA:.17g}", "ID_FIELD=0", "ELEV_FIELD=1"]
     src = band = None
     held = bool(_READING["held"])
@@ -455,7 +459,7 @@ def contour_lines_from_file(path, grid: Grid, *, interval_m=None, levels=None, b
                 gdal.SetCacheMax(min(cache, _contour_cache_bytes(grid)))
             src = gdal.Open(os.fspath(path), gdal.GA_ReadOnly)
             band = src.GetRasterBand(1)
-            wkb, elev = _contour_band(band, options, stop)
+            wkb, elev = _contour_band(band, options, stop, sink)
         except RuntimeError as exc:
             stop.check()
             raise RasterReadError(
@@ -465,6 +469,8 @@ def contour_lines_from_file(path, grid: Grid, *, interval_m=None, levels=None, b
             band = src = None
             if not held:
                 gdal.SetCacheMax(cache)
+    if sink is not None:
+        return None
     if not wkb:
         return empty
     geoms = np.asarray(shapely.force_2d(shapely.from_wkb(np.array(wkb, dtype=object))), dtype=object)

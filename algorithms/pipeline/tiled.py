@@ -518,52 +518,26 @@ def trace_of_blocks(tiles: BlockGrids, ground_grid: Grid, *, is_cancelled=None) 
 def contours_and_trace_of_blocks(tiles: BlockGrids, grid: Grid, ground_grid: Grid, *, interval_m: float,
                                  extrapolated_fn=None, is_cancelled=None):
     """:func:`contours_of_blocks` and :func:`trace_of_blocks` at once: the trace on a second thread
-    while this one draws and splits the structure contours (the two read different scratch grids
-    and GDAL releases Python's lock while it draws). Returns ``((lines, elevation_m,
-    extrapolated), raw_trace)``, the values of the two calls one after the other; with one core
-    they are made so. Its trace drawn, the second thread reads which cells of the surface hold
-    values (:class:`strikeline.io.contours.ValidCells`) while GDAL still draws the contours, so
-    that trimming them reads nothing more (the same lines as reading the file then).
+    while this one draws the structure contours (the two read different scratch grids and GDAL
+    releases Python's lock while it draws). Returns ``((lines, elevation_m, extrapolated),
+    raw_trace)``, the values of the two calls one after the other; with one core they are made so.
+    GDAL hands the contours over in chunks as it draws them; its trace drawn, the second thread
+    reads which cells of the surface hold values (:class:`strikeline.io.contours.ValidCells`) and
+    then trims and splits chunks while GDAL still draws, and this thread joins in when GDAL is done
+    (:func:`strikeline.pipeline.contour_chunks.contours_and_trace_at_once`: the same lines).
 
     The trace's time is counted in the step that runs this (a run's "structure contours"), and
     the step "depth, trace and misfit" takes the lines drawn. GDAL's exception mode and block
     cache are process-wide, so they are held once around both threads
     (:func:`strikeline.io.gridfiles.contour_reading`) and given back after the second thread has
-    ended. If the contours fail or are cancelled, or a signal arrives, the trace is told to stop
-    (it stops at GDAL's next progress report) and awaited before the error goes on.
+    ended. If either thread fails or is cancelled, or a signal arrives, the other is told to stop
+    (GDAL at its next progress report) and awaited before the error goes on.
     """
-    import threading
-    from concurrent.futures import wait
+    from strikeline.pipeline.contour_chunks import contours_and_trace_at_once
 
-    from strikeline.io.contours import ValidCells
-    from strikeline.io.gridfiles import FileMask, contour_reading
-
-    def contours(valid=None):
-        return contours_of_blocks(tiles, grid, interval_m=interval_m, extrapolated_fn=extrapolated_fn,
-                                  is_cancelled=is_cancelled, valid=valid)
     if THREADS < 2:
-        return contours(), trace_of_blocks(tiles, ground_grid, is_cancelled=is_cancelled)
-    stop = threading.Event()
-
-    def trace_cancelled() -> bool:
-        return stop.is_set() or (is_cancelled is not None and bool(is_cancelled()))
-
-    with contour_reading(grid, ground_grid), ThreadPoolExecutor(max_workers=1) as pool:
-        trace = pool.submit(trace_of_blocks, tiles, ground_grid, is_cancelled=trace_cancelled)
-        drawn = threading.Event()  # the contours are trimmed (or need no trimming): the cells' read may stop
-        cells = pool.submit(ValidCells, tiles.scratch["surface"], grid,
-                            is_cancelled=lambda: drawn.is_set() or trace_cancelled(),
-                            fallback=FileMask(tiles.scratch["surface"], grid))  # after the trace, one thread
-        try:
-            lines = contours(valid=cells.result)
-            drawn.set()
-            return lines, trace.result()
-        except BaseException as exc:
-            stop.set()
-            wait([trace, cells])
-            # a signal that stopped both draws may have been raised on the trace's thread
-            # (the other then only saw GDAL stop): the run ends as interrupted either way
-            late = trace.exception()
-            if isinstance(late, KeyboardInterrupt) and not isinstance(exc, KeyboardInterrupt):
-                raise late from None
-            raise
+        return (contours_of_blocks(tiles, grid, interval_m=interval_m, extrapolated_fn=extrapolated_fn,
+                                   is_cancelled=is_cancelled),
+                trace_of_blocks(tiles, ground_grid, is_cancelled=is_cancelled))
+    return contours_and_trace_at_once(tiles, grid, ground_grid, interval_m=interval_m,
+                                      extrapolated_fn=extrapolated_fn, is_cancelled=is_cancelled)

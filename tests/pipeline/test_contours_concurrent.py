@@ -199,3 +199,74 @@ def test_a_signal_stops_both_threads_and_ends_the_call_as_interrupted(sheet):
         assert interrupt._state["pending"] is None
     assert sent and caught.value.exit_status == 130
     assert threading.active_count() == before
+
+
+# ------------------------------------------------- lines handed over while GDAL draws them
+def _chunks_of(path, grid, monkeypatch, rows: int) -> list:
+    """The chunks :func:`contour_lines_from_file` hands to a sink every ``rows`` rows."""
+    import strikeline.io.contours as io_contours
+    from strikeline.io.gridfiles import contour_lines_from_file
+
+    monkeypatch.setattr(io_contours, "HAND_OVER_ROWS", rows)
+    chunks = []
+    assert contour_lines_from_file(path, grid, interval_m=INTERVAL_M, sink=lambda w, e: chunks.append((w, e))) is None
+    return chunks
+
+
+def test_lines_handed_over_as_gdal_draws_them_are_gdals_lines(sheet, monkeypatch):
+    """The chunks, in order, hold every line of GDAL's generator run once on the same file, in its
+    order, with its vertices and levels (Source: GDAL 3.6 GDALContourGenerateEx, read after it ends)."""
+    import shapely
+
+    model, grid, tiles = sheet
+    chunks = _chunks_of(tiles.scratch["surface"], grid, monkeypatch, rows=3)
+    assert len(chunks) > 5  # handed over many times while GDAL drew
+    ours = [np.asarray(shapely.get_coordinates(g)) for w, _ in chunks for g in shapely.from_wkb(w)]
+    ref = _gdal_lines(tiles.scratch["surface"], [f"LEVEL_INTERVAL={INTERVAL_M:.17g}", "LEVEL_BASE=0"])
+    assert len(ours) == len(ref) > 10
+    assert all(np.array_equal(a, b) for a, b in zip(ours, ref))
+    levels = np.concatenate([e for _, e in chunks])
+    assert np.array_equal(np.mod(levels, INTERVAL_M), np.zeros(len(levels)))  # levels on the interval
+
+
+def test_chunks_finished_on_both_threads_are_the_lines_finished_at_once(sheet, monkeypatch):
+    """Chunks of two rows, finished by whichever thread is free: the lines, levels and flags of
+    the serial calls, which finish all of GDAL's lines at once (compared feature by feature)."""
+    import strikeline.io.contours as io_contours
+    import strikeline.pipeline.contour_chunks as chunks_mod
+
+    model, grid, tiles = sheet
+    serial = contours_of_blocks(tiles, grid, interval_m=INTERVAL_M, extrapolated_fn=model.is_extrapolated)
+    s_trace = trace_of_blocks(tiles, grid)
+    finished = []
+    real = chunks_mod._finish
+
+    def counted(*a):
+        finished.append(threading.current_thread().name)
+        return real(*a)
+
+    monkeypatch.setattr(io_contours, "HAND_OVER_ROWS", 2)
+    monkeypatch.setattr(chunks_mod, "_finish", counted)
+    (lines, elev, flags), trace = contours_and_trace_of_blocks(tiles, grid, grid, interval_m=INTERVAL_M,
+                                                               extrapolated_fn=model.is_extrapolated)
+    assert len(finished) > 5
+    assert len(lines) > 10 and _wkb(lines) == _wkb(serial[0])
+    assert np.array_equal(elev, serial[1]) and np.array_equal(flags, serial[2]) and flags.dtype == serial[2].dtype
+    assert _wkb(trace) == _wkb(s_trace)
+
+
+def test_a_failing_sink_stops_gdal_and_its_error_goes_on(sheet, monkeypatch):
+    import strikeline.io.contours as io_contours
+    from strikeline.io.gridfiles import contour_lines_from_file
+
+    model, grid, tiles = sheet
+    monkeypatch.setattr(io_contours, "HAND_OVER_ROWS", 2)
+    calls = []
+
+    def sink(wkb, levels):
+        calls.append(len(wkb))
+        raise ValueError("sink failed")
+
+    with pytest.raises(ValueError, match="sink failed"):
+        contour_lines_from_file(tiles.scratch["surface"], grid, interval_m=INTERVAL_M, sink=sink)
+    assert len(calls) == 1  # GDAL stopped at the next report: no second hand-over
