@@ -35,23 +35,48 @@ def _level_options(interval_m, levels, base_m) -> list[str]:
 #: GDAL progress reports (one per raster row) between two hand-overs of the lines drawn so far
 #: when :func:`_contour_band` is given a ``sink`` (our choice: the height of a scratch tile row).
 HAND_OVER_ROWS = 256
+#: Vertices of the lines handed over at once, at most one line beyond (our choice: a few MiB of
+#: WKB, so that the lines left at the end come in pieces the two threads finish side by side).
+HAND_OVER_VERTICES = 1 << 18
 
 
-def _take_lines(layer, wkb: list, elev: list, *, delete: bool = False) -> None:
+def _take_lines(layer, wkb: list, elev: list) -> None:
     """Append the lines of an in-memory OGR layer (ISO WKB, level) in its order (the order GDAL
-    drew them); ``delete``: remove each feature read from the layer."""
-    fids = []
+    drew them)."""
     layer.ResetReading()
     for feature in layer:
-        fids.append(feature.GetFID())
         geom = feature.GetGeometryRef()
         if geom is None or geom.IsEmpty():
             continue
         wkb.append(bytes(geom.ExportToIsoWkb()))
         elev.append(feature.GetFieldAsDouble(1))
-    if delete:
-        for fid in fids:
-            layer.DeleteFeature(fid)
+
+
+def _hand_over(layer, taken: list, sink) -> None:
+    """Hand the lines in ``layer`` to ``sink(wkb, levels)`` in their order, in chunks of about
+    :data:`HAND_OVER_VERTICES` vertices, each feature removed from the layer as soon as it is read
+    (so the layer and its WKB are not held twice). The in-memory layer numbers the features it is
+    given 0, 1, 2, ... and none is removed but here, so those left are the ``GetFeatureCount()``
+    from ``taken[0]`` on, the count of those already taken."""
+    wkb, elev, vertices = [], [], 0
+    first = taken[0]
+    for fid in range(first, first + layer.GetFeatureCount()):
+        feature = layer.GetFeature(fid)
+        if feature is None:
+            raise RuntimeError(f"contour line {fid} is missing from GDAL's in-memory layer")
+        geom = feature.GetGeometryRef()
+        if geom is not None and not geom.IsEmpty():
+            wkb.append(bytes(geom.ExportToIsoWkb()))
+            elev.append(feature.GetFieldAsDouble(1))
+            vertices += geom.GetPointCount()
+        geom = feature = None
+        layer.DeleteFeature(fid)
+        taken[0] = fid + 1
+        if vertices >= HAND_OVER_VERTICES:
+            sink(wkb, elev)
+            wkb, elev, vertices = [], [], 0
+    if wkb:
+        sink(wkb, elev)
 
 
 def _contour_band(band, options: list, stop: GdalStop, sink=None) -> tuple[list, list]:
@@ -69,13 +94,10 @@ def _contour_band(band, options: list, stop: GdalStop, sink=None) -> tuple[list,
         layer = out.CreateLayer("contours", geom_type=ogr.wkbLineString)
         layer.CreateField(ogr.FieldDefn("id", ogr.OFTInteger))
         layer.CreateField(ogr.FieldDefn(_ELEV_FIELD, ogr.OFTReal))
-        callback = stop.callback
+        callback, taken = stop.callback, [0]
         if sink is not None:
             def hand_over() -> None:
-                wkb, elev = [], []
-                _take_lines(layer, wkb, elev, delete=True)
-                if wkb:
-                    sink(wkb, elev)
+                _hand_over(layer, taken, sink)
 
             def callback(complete, message=None, data=None) -> int:
                 if stop.calls % HAND_OVER_ROWS == 0 and layer.GetFeatureCount() and not stop.stopped:

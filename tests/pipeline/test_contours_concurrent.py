@@ -202,24 +202,28 @@ def test_a_signal_stops_both_threads_and_ends_the_call_as_interrupted(sheet):
 
 
 # ------------------------------------------------- lines handed over while GDAL draws them
-def _chunks_of(path, grid, monkeypatch, rows: int) -> list:
-    """The chunks :func:`contour_lines_from_file` hands to a sink every ``rows`` rows."""
+def _chunks_of(path, grid, monkeypatch, rows: int, vertices: int = 1 << 18) -> list:
+    """The chunks :func:`contour_lines_from_file` hands to a sink every ``rows`` rows, of about
+    ``vertices`` vertices each."""
     import strikeline.io.contours as io_contours
     from strikeline.io.gridfiles import contour_lines_from_file
 
     monkeypatch.setattr(io_contours, "HAND_OVER_ROWS", rows)
+    monkeypatch.setattr(io_contours, "HAND_OVER_VERTICES", vertices)
     chunks = []
     assert contour_lines_from_file(path, grid, interval_m=INTERVAL_M, sink=lambda w, e: chunks.append((w, e))) is None
     return chunks
 
 
-def test_lines_handed_over_as_gdal_draws_them_are_gdals_lines(sheet, monkeypatch):
+@pytest.mark.parametrize("rows, vertices", [(3, 1 << 18), (10**6, 40)])
+def test_lines_handed_over_as_gdal_draws_them_are_gdals_lines(sheet, monkeypatch, rows, vertices):
     """The chunks, in order, hold every line of GDAL's generator run once on the same file, in its
-    order, with its vertices and levels (Source: GDAL 3.6 GDALContourGenerateEx, read after it ends)."""
+    order, with its vertices and levels (Source: GDAL 3.6 GDALContourGenerateEx, read after it
+    ends); handed over every 3 rows, or all at the end in chunks of about 40 vertices."""
     import shapely
 
     model, grid, tiles = sheet
-    chunks = _chunks_of(tiles.scratch["surface"], grid, monkeypatch, rows=3)
+    chunks = _chunks_of(tiles.scratch["surface"], grid, monkeypatch, rows=rows, vertices=vertices)
     assert len(chunks) > 5  # handed over many times while GDAL drew
     ours = [np.asarray(shapely.get_coordinates(g)) for w, _ in chunks for g in shapely.from_wkb(w)]
     ref = _gdal_lines(tiles.scratch["surface"], [f"LEVEL_INTERVAL={INTERVAL_M:.17g}", "LEVEL_BASE=0"])
