@@ -108,6 +108,7 @@ class StripWriter:
         self._next_col = 0  # where the next block goes in the current tile row (write_block)
         self._row_height = 0  # rows of the current row of blocks (write_block)
         self._any_valid = False
+        self._all_valid = True
         # the k x k window means of what is written (the report's picture of the grid, without
         # decoding the file again): those of a decimated read of the file
         self.means = None if not means_k or scratch else WindowMeans(grid.shape, int(means_k), self.nodata)
@@ -137,6 +138,17 @@ class StripWriter:
         """Whether any cell written so far holds a value (not nodata)."""
         return self._any_valid
 
+    @property
+    def all_valid(self) -> bool:
+        """Whether every cell written so far holds a value: finite and not the nodata value (the
+        test of :func:`read_window` and :class:`strikeline.io.contours.ValidCells`)."""
+        return self._all_valid
+
+    def _count(self, values: np.ndarray, ok: np.ndarray) -> None:
+        """Note whether ``values`` (``ok``: where finite) hold any value and all hold one."""
+        self._any_valid = self._any_valid or bool(ok.any())
+        self._all_valid = self._all_valid and bool(ok.all()) and not bool((values == self.nodata).any())
+
     def write_rows(self, r0: int, values) -> None:
         """Append the rows ``r0 .. r0 + len(values)`` (full width; NaN for no value)."""
         if r0 != self._next_row or self._next_col:
@@ -146,7 +158,7 @@ class StripWriter:
             raise ValueError(f"rows of shape {v.shape} for a grid {self.grid.shape}")
         out = np.asarray(v, dtype=self.dtype)
         ok = np.isfinite(out)
-        self._any_valid = self._any_valid or bool(ok.any())
+        self._count(out, ok)
         out = np.where(ok, out, self.dtype(self.nodata))  # a new array: the caller keeps its rows
         self._pending.append(out)
         self._n_pending += len(out)
@@ -191,7 +203,7 @@ class StripWriter:
                              f"of a grid {self.grid.shape}")
         out = np.asarray(v, dtype=self.dtype)
         ok = np.isfinite(out)
-        self._any_valid = self._any_valid or bool(ok.any())
+        self._count(out, ok)
         self._write(np.where(ok, out, self.dtype(self.nodata)), r0, c0)
         self._next_col, self._row_height = c0 + v.shape[1], h
         if self._next_col == self.grid.cols:

@@ -5,7 +5,8 @@ GDAL's contour generator hands the lines it has finished every few hundred rows
 - decoded, trimmed to the valid cell centres (:func:`strikeline.maps.contours.trim_contour_fringe`)
 and split where it leaves the data's reach (:func:`strikeline.pipeline.steps.structure_contours`) -
 by whichever of the two threads is free: the second thread once it has drawn the trace and read
-which cells hold values, the drawing thread once GDAL is done. Every step is line by line, so the
+which cells hold values (nothing to read when the grid's writer saw no nodata: :class:`EveryCell`),
+the drawing thread once GDAL is done. Every step is line by line, so the
 chunks' results put together in GDAL's order are the lines of the whole sheet finished at once,
 byte for byte; memory holds the chunks waiting to be finished, not every line GDAL drew as
 GDAL's objects, their WKB and their shapely copies at once.
@@ -21,7 +22,20 @@ import shapely
 from strikeline.errors import CancelledError
 from strikeline.geometry.grid import Grid
 
-__all__ = ["LineChunks", "contours_and_trace_at_once"]
+__all__ = ["EveryCell", "LineChunks", "contours_and_trace_at_once"]
+
+
+class EveryCell:
+    """The valid cells of a grid in which every cell holds a value (its writer saw no nodata,
+    :attr:`strikeline.io.gridfiles.StripWriter.all_valid`): ``cells[rows, cols]`` is all true, as
+    :class:`strikeline.io.contours.ValidCells` of that file would answer, without reading it."""
+
+    def __init__(self, shape):
+        self.shape = tuple(shape)
+
+    def __getitem__(self, key) -> np.ndarray:
+        r, _ = np.broadcast_arrays(*(np.asarray(k, dtype=np.int64) for k in key))
+        return np.ones(r.shape, dtype=bool)
 
 
 class LineChunks:
@@ -126,8 +140,11 @@ def contours_and_trace_at_once(tiles, grid: Grid, ground_grid: Grid, *, interval
     def second() -> np.ndarray:
         try:
             trace = trace_of_blocks(tiles, ground_grid, is_cancelled=cancelled)
-            valid["cells"] = ValidCells(tiles.scratch["surface"], grid, is_cancelled=cancelled,
-                                        fallback=FileMask(tiles.scratch["surface"], grid))
+            if getattr(tiles, "all_valid", {}).get("surface", False):
+                valid["cells"] = EveryCell(grid.shape)  # the writer saw no nodata: nothing to read
+            else:
+                valid["cells"] = ValidCells(tiles.scratch["surface"], grid, is_cancelled=cancelled,
+                                            fallback=FileMask(tiles.scratch["surface"], grid))
             ready.set()
             chunks.work(wait=True)
             return trace

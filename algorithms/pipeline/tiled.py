@@ -105,6 +105,7 @@ class BlockGrids:
     n_top_in: int = 0
     n_both_in: int = 0
     _owned: object | None = field(default=None, repr=False)  # a TemporaryDirectory kept alive with the files
+    all_valid: dict = field(default_factory=dict)  # scratch name -> whether every cell holds a value
 
     def remove_scratch(self) -> None:
         """Remove the float64 scratch copies (once the contours and the trace are drawn)."""
@@ -321,6 +322,7 @@ def _by_blocks(block_fn, outs, scratch_grids: dict, grid: Grid, folder, *, block
                                      (means[key][0], writers[key].means.means) if key in means else None)
                  for key, spec in outs}
         any_valid = {k: w.any_valid for k, w in scratch_writers.items()}
+        all_valid = {k: w.all_valid for k, w in scratch_writers.items()}
         scratch = {k: Path(w.commit()) for k, w in scratch_writers.items()}
     except BaseException:
         for w in [*writers.values(), *scratch_writers.values()]:
@@ -328,7 +330,7 @@ def _by_blocks(block_fn, outs, scratch_grids: dict, grid: Grid, folder, *, block
         shutil.rmtree(scratch_dir, ignore_errors=True)
         raise
     return BlockGrids(files, scratch, any_valid, counts["base"], counts["top"], counts["both"],
-                      _owned=owned)
+                      _owned=owned, all_valid=all_valid)
 
 
 def _count_reach(counts: dict, part: dict) -> None:

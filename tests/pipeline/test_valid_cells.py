@@ -138,3 +138,52 @@ def test_non_finite_cells_hold_no_value(tmp_path):
     got = ValidCells(tmp_path / "s.tif", grid)[R, C]
     assert np.array_equal(got, gdal_mask(tmp_path / "s.tif"))
     assert got.sum() == z.size - 3
+
+
+@pytest.mark.parametrize("spoil", ["none", "nan", "inf", "nodata"])
+def test_a_writers_all_valid_is_gdals_mask_of_its_file(tmp_path, spoil):
+    """StripWriter.all_valid is true exactly when GDAL's mask of the file it wrote is all true."""
+    from strikeline.io.gridfiles import StripWriter
+
+    rows, cols = 40, 600
+    z = np.add.outer(np.arange(rows) * 0.5, np.arange(cols) * 0.25)
+    if spoil != "none":
+        z[33, 517] = {"nan": np.nan, "inf": np.inf, "nodata": SCRATCH_NODATA}[spoil]
+    grid = Grid((1000.0, 2.0, 0.0, 9000.0, 0.0, -2.0), (rows, cols))
+    w = StripWriter(tmp_path / "s.tif", grid, scratch=True)
+    for r0 in range(0, rows, 16):
+        for c0 in range(0, cols, 256):
+            w.write_block(r0, c0, z[r0:r0 + 16, c0:c0 + 256])
+    w.finish()
+    path = w.commit()
+    assert w.any_valid
+    # Source: GDAL 3.6 ReadAsArray of the file written (gdal_mask)
+    assert w.all_valid == bool(gdal_mask(path).all()) == (spoil == "none")
+
+
+def test_a_surface_valid_everywhere_is_not_read_for_the_trimming(tmp_path, monkeypatch):
+    """With the writer's word that every cell holds a value, no ValidCells read is made and the
+    lines are those trimmed with the file look-up (FileMask: the cells read from the file)."""
+    r, c = np.mgrid[0:300, 0:520]
+    z = 400.0 + 0.37 * c - 0.21 * r + 5 * np.sin(c / 40.0)
+    path = tmp_path / "surface.tif"
+    grid = write_scratch(path, z)
+    assert gdal_mask(path).all()
+    depth = write_scratch(tmp_path / "depth.tif", z * 0 + np.linspace(-50, 50, grid.cols))
+    made = []
+
+    class Counted(ValidCells):
+        def __init__(self, *a, **k):
+            made.append(1)
+            super().__init__(*a, **k)
+
+    import strikeline.io.contours as io_contours
+    monkeypatch.setattr(io_contours, "ValidCells", Counted)
+    monkeypatch.setattr(io_contours, "HAND_OVER_ROWS", 16)
+    monkeypatch.setattr(tiled, "THREADS", 2)
+    tiles = SimpleNamespace(scratch={"surface": path, "depth": tmp_path / "depth.tif"},
+                            any_valid={"surface": True, "depth": True}, all_valid={"surface": True, "depth": True})
+    (lines, levels, flags), trace = tiled.contours_and_trace_of_blocks(tiles, grid, depth, interval_m=7.0)
+    assert made == []
+    ref = contour_lines_from_file(path, grid, interval_m=7.0)  # trimmed with FileMask
+    assert len(lines) > 20 and [g.wkb for g in lines] == [g.wkb for g in ref[0]] and np.array_equal(levels, ref[1])
