@@ -26,6 +26,9 @@ Steps of a fit
    distance and the misfit check's hold-out fits come from held-out picks
    (:mod:`strikeline.surfaces.holdout`).
 
+The spline's kernel of all picks is computed once and every subset's sliced from it
+(:class:`strikeline.surfaces.reduced.PickSystems`).
+
 The default ``reach_m`` is the ``REACH_PERCENTILE`` percentile of the distance to the nearest
 datum over the data's convex hull; the default ``taper_m`` is ``TAPER_FRACTION`` of the square
 root of the hull's area (at least ``reach_m``).
@@ -50,7 +53,7 @@ from strikeline.surfaces.holdout import (CHECK_BLOCK_FACTOR, COARSE_HOLDOUT_FACT
 from strikeline.surfaces.hull import _Hull
 from strikeline.surfaces.model import SurfaceModel, _check_cancel
 from strikeline.surfaces.polynomial import _Poly, _TERMS
-from strikeline.surfaces.reduced import _Reduced
+from strikeline.surfaces.reduced import PickSystems
 from strikeline.surfaces.spline import _kfold_lambda
 
 
@@ -329,16 +332,18 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=DE
     if smoothing == "discrepancy":
         smoothing = ("discrepancy", sigma_stated) if sigma_stated else "gcv"
     lam = None
+    # the spline's pick systems: the kernel of all picks made once, every fit's sliced from it
+    systems = PickSystems(data.u(data.p_xy), data.p_z)
     if "spline" in kinds and smoothing == "kfold":
         try:
-            full = _Reduced(data.u(data.p_xy), data.p_z)  # the λ grid needs only its top eigenvalue
-            lam = _kfold_lambda(data, folds, full.lambda_grid(29) / full.n)
+            full = systems.all_picks()  # the λ grid needs only its top eigenvalue
+            lam = _kfold_lambda(data, folds, full.lambda_grid(29) / full.n, systems=systems)
         except UndeterminedError:
             lam = None  # the spline's CV below reports why
 
     def fitted(kind, sub):
         """The model ``kind`` fitted to ``sub``, with the stated noise and shared-error count."""
-        s = _fit_kind(kind, sub, smoothing=smoothing, lam=lam, taper_m=taper_m)
+        s = _fit_kind(kind, sub, smoothing=smoothing, lam=lam, taper_m=taper_m, systems=systems)
         s.noise_floor_m, s.picks_per_segment = sigma_stated or 0.0, pps
         return s
 
@@ -424,7 +429,8 @@ def fit_surface(xyz, *, model: str = "auto", boreholes=None, borehole_sigma_m=DE
         side = check_block_m if check_block_m is not None else \
             CHECK_BLOCK_FACTOR * (block_m if block_m is not None else holdout_block_m(data.p_xy))
         holdout = _holdout_checks(check_kind, data, side, check_growth, sigma_stated, taper_m,
-                                  smoothing=smoothing, lam=lam, pps=pps, is_cancelled=is_cancelled)
+                                  smoothing=smoothing, lam=lam, pps=pps, is_cancelled=is_cancelled,
+                                  systems=systems)
     if progress is not None:
         progress(1.0)
     params = _params(surface, data)

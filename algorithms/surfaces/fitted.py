@@ -178,10 +178,12 @@ class _Surface:
         return np.sqrt(var)
 
 
-def _fit_kind(kind, data: _Data, *, smoothing, lam, taper_m) -> _Surface:
+def _fit_kind(kind, data: _Data, *, smoothing, lam, taper_m, systems=None) -> _Surface:
+    """The model ``kind`` fitted to ``data``; ``systems``: the spline's pick systems of a superset
+    of the picks (:class:`~strikeline.surfaces.reduced.PickSystems`), whose kernel it reuses."""
     if kind == "plane":
         return _Surface(kind, _fit_poly(1, data, kind), None, data, taper_m)
-    core = _fit_poly(2, data, kind) if kind == "trend2" else _fit_tps(data, smoothing, lam)
+    core = _fit_poly(2, data, kind) if kind == "trend2" else _fit_tps(data, smoothing, lam, systems=systems)
     try:
         trend = _fit_poly(1, data, "plane")
     except UndeterminedError:

@@ -110,13 +110,13 @@ def _robust_surface(kind, data: _Data, sigma_m, taper_m, pps=1.0) -> _Surface:
 
 
 def _holdout_checks(kind, data: _Data, side_m, growth, sigma_m, taper_m, *, smoothing, lam,
-                    pps=1.0, is_cancelled=None):
+                    pps=1.0, is_cancelled=None, systems=None):
     """The fits the misfit check compares held-out contacts with (see :class:`_Holdout`).
 
     The spline is refitted as it was chosen; plane and trend2 are refitted robustly
     (:func:`~strikeline.surfaces.polynomial._fit_poly_robust`), because one mistraced stretch
     or faulted block tilts a global least-squares surface everywhere, far outside any held-out
-    block.
+    block. ``systems``: the spline's pick systems of ``data`` (kernel reused).
     """
     origin = data.p_xy.min(axis=0)
     holdout = _Holdout(origin, side_m, {})
@@ -134,9 +134,9 @@ def _holdout_checks(kind, data: _Data, side_m, growth, sigma_m, taper_m, *, smoo
                     try:
                         s = _robust_surface(kind, sub, sigma_m, taper_m, pps)
                     except (UndeterminedError, np.linalg.LinAlgError):
-                        s = _fit_kind(kind, sub, smoothing=smoothing, lam=lam, taper_m=taper_m)
+                        s = _fit_kind(kind, sub, smoothing=smoothing, lam=lam, taper_m=taper_m, systems=systems)
                 else:
-                    s = _fit_kind(kind, sub, smoothing=smoothing, lam=lam, taper_m=taper_m)
+                    s = _fit_kind(kind, sub, smoothing=smoothing, lam=lam, taper_m=taper_m, systems=systems)
             except UndeterminedError:
                 continue  # points of this colour fall back to no check (NaN)
             s.growth = growth

@@ -106,9 +106,12 @@ def _reduce(K, vs, betas):
 
 class _Reduced:
     """The pick system of a thin-plate spline at ``u`` (normalised, ``(n, 2)``) with data ``z``:
-    kernel ``K``, the QR of the linear part (``Q₁``, ``R₁``, reflectors) and ``M = Q₂ᵀ K Q₂``."""
+    kernel ``K``, the QR of the linear part (``Q₁``, ``R₁``, reflectors) and ``M = Q₂ᵀ K Q₂``.
 
-    def __init__(self, u, z):
+    ``K``: the kernel matrix of ``u`` when already known (:class:`PickSystems` slices it from the
+    kernel of a superset of the picks); it must equal ``tps_kernel(_pairwise_r2(u, u))``."""
+
+    def __init__(self, u, z, *, K=None):
         n = len(z)
         if n < 4:
             raise UndeterminedError(f"the spline model needs at least 4 picks, got {n}; "
@@ -122,7 +125,7 @@ class _Reduced:
                 "use the plane model with a dip measurement, or add picks off the line")
         self.n, self.u, self.z, self.T = n, u, z, T
         self.vs, self.betas = vs, betas
-        self.K = tps_kernel(_pairwise_r2(u, u))
+        self.K = tps_kernel(_pairwise_r2(u, u)) if K is None else K
         self.M = _reduce(self.K, vs, betas)
         e = np.zeros((n, 3))
         e[:3] = np.eye(3)
@@ -152,6 +155,56 @@ class _Reduced:
         """``nλ`` values spanning the spectrum of ``M`` (as :meth:`_Spectrum.lambda_grid`)."""
         top = max(self.top_eigenvalue(), 1e-300)
         return top * np.logspace(-12.0, 2.0, num)
+
+
+class PickSystems:
+    """The pick systems (:class:`_Reduced`) of one fit's picks and of its subsets (the
+    cross-validation folds, the coarser hold-out, the misfit check's checkerboards): the kernel
+    matrix of all picks is computed once and each subset's is sliced from it, and the system of
+    all picks is made once however often it is asked for (the λ grid, then the final fit).
+
+    Exact: a kernel entry ``φ(|u_i − u_j|)`` depends only on the two points (``_pairwise_r2`` and
+    :func:`~strikeline.surfaces.kernel.tps_kernel` work element by element), and a subset's
+    normalised coordinates are the rows of all picks' (:meth:`strikeline.surfaces.data._Data.picks`
+    keeps the origin and scale), so the sliced matrix has the bits the subset's own would have.
+    Points that are not rows of ``u`` get their own kernel.
+    """
+
+    def __init__(self, u, z):
+        self.u = np.asarray(u, dtype=float)
+        self.z = np.asarray(z, dtype=float)
+        self._all = None
+        self._rows = None
+
+    def all_picks(self) -> _Reduced:
+        """The system of all picks (made on first use)."""
+        if self._all is None:
+            self._all = _Reduced(self.u, self.z)
+        return self._all
+
+    def _index(self, u):
+        """Row of ``self.u`` of every row of ``u`` (``None`` when one is not a row of it)."""
+        if self._rows is None:
+            self._rows = {row.tobytes(): i for i, row in enumerate(self.u)}
+        idx = np.fromiter((self._rows.get(row.tobytes(), -1) for row in u), dtype=np.intp, count=len(u))
+        if len(idx) == 0 or idx.min() < 0 or not np.array_equal(self.u[idx], u):
+            return None
+        return idx
+
+    def reduced(self, u, z) -> _Reduced:
+        """The system of the picks ``u`` (rows of this fit's picks, or any) with data ``z``."""
+        u = np.asarray(u, dtype=float)
+        z = np.asarray(z, dtype=float)
+        if u.shape == self.u.shape and np.array_equal(u, self.u) and np.array_equal(z, self.z):
+            return self.all_picks()
+        idx = self._index(u) if len(z) >= 4 else None
+        if idx is None:
+            return _Reduced(u, z)
+        try:
+            K = self.all_picks().K
+        except UndeterminedError:  # all picks in one line: the subset says so in its own words
+            return _Reduced(u, z)
+        return _Reduced(u, z, K=K[np.ix_(idx, idx)])
 
 
 class _FixedSmoothing:

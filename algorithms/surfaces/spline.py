@@ -48,7 +48,7 @@ from strikeline.stats import gcv_from_spectrum
 from strikeline.surfaces.bounded import _tps_bounded
 from strikeline.surfaces.data import _Data
 from strikeline.surfaces.kernel import _TPS, _pairwise_r2, tps_kernel
-from strikeline.surfaces.reduced import _FixedSmoothing, _Reduced, bordered_solver
+from strikeline.surfaces.reduced import PickSystems, _FixedSmoothing, _Reduced, bordered_solver
 
 
 class _Spectrum:
@@ -152,10 +152,11 @@ def _discrepancy_nlam(spec: _Spectrum, sigma_m: float) -> float:
     return float(np.exp(0.5 * (lo + hi)))
 
 
-def _fit_tps(data: _Data, smoothing, lam=None) -> _TPS:
-    """Thin-plate smoothing spline with boreholes and dip-measurement functionals."""
+def _fit_tps(data: _Data, smoothing, lam=None, *, systems: PickSystems | None = None) -> _TPS:
+    """Thin-plate smoothing spline with boreholes and dip-measurement functionals; ``systems``:
+    the pick systems of a superset of ``data``'s picks, whose kernel is reused (exact)."""
     up = data.u(data.p_xy)
-    red = _Reduced(up, data.p_z)
+    red = _Reduced(up, data.p_z) if systems is None else systems.reduced(up, data.p_z)
     n = red.n
     spec = None
     if lam is not None or not isinstance(smoothing, (str, tuple)):
@@ -305,13 +306,15 @@ def _spectral_solver(spec: _Spectrum, nlam):
                            lambda v: spec.Q2U @ (scale[:, None] * (spec.Q2U.T @ v)))
 
 
-def _kfold_lambda(data: _Data, folds, lam_grid):
-    """λ minimising grouped k-fold CV error of the picks-only spline over a grid."""
+def _kfold_lambda(data: _Data, folds, lam_grid, *, systems: PickSystems | None = None):
+    """λ minimising grouped k-fold CV error of the picks-only spline over a grid (``systems``:
+    :class:`~strikeline.surfaces.reduced.PickSystems` of ``data``'s picks, kernel reused)."""
     up = data.u(data.p_xy)
     sse = np.zeros(len(lam_grid))
     for k in np.unique(folds):
         tr, te = folds != k, folds == k
-        spec = _Spectrum(up[tr], data.p_z[tr])
+        spec = _Spectrum(up[tr], data.p_z[tr],
+                         reduced=None if systems is None else systems.reduced(up[tr], data.p_z[tr]))
         C, D = spec.coefficients(spec.n * lam_grid)
         Kt = tps_kernel(_pairwise_r2(up[te], up[tr]))
         pred = Kt @ C + np.column_stack([np.ones(te.sum()), up[te]]) @ D

@@ -73,3 +73,35 @@ def test_too_small_smoothing_is_refused_for_the_eigen_route():
     red = _Reduced(u, z)
     with pytest.raises(np.linalg.LinAlgError):
         _FixedSmoothing(red, 0.0)
+
+
+def test_pick_systems_slice_the_kernel_with_the_bits_of_each_subsets_own():
+    from strikeline.surfaces.reduced import PickSystems
+    u, z = _picks(n=200, seed=4)
+    systems = PickSystems(u, z)
+    assert systems.reduced(u.copy(), z.copy()) is systems.all_picks()  # made once, asked twice
+    rng = np.random.default_rng(8)
+    for keep in (rng.random(200) < 0.8, np.flatnonzero(rng.random(200) < 0.5)[::-1]):
+        got = systems.reduced(u[keep], z[keep])
+        # Source: the subset's own system, its kernel computed from its points (tps_kernel of
+        # _pairwise_r2): the same bits, not only close
+        want = _Reduced(u[keep], z[keep])
+        for name in ("K", "M", "Q1", "R1"):
+            assert np.array_equal(getattr(got, name), getattr(want, name)), name
+    other = np.vstack([u[:50], [[5.0, 5.0]]])  # a point that is not one of the picks
+    got, want = systems.reduced(other, z[:51]), _Reduced(other, z[:51])
+    assert np.array_equal(got.M, want.M)
+
+
+def test_pick_systems_refuse_a_subset_as_its_own_system_would():
+    from strikeline.errors import UndeterminedError
+    from strikeline.surfaces.reduced import PickSystems
+    u, z = _picks(n=40, seed=2)
+    u[:10, 1] = 0.25  # ten picks in one line
+    systems = PickSystems(u, z)
+    for sub in (slice(0, 3), slice(0, 10)):
+        with pytest.raises(UndeterminedError) as own:
+            _Reduced(u[sub], z[sub])
+        with pytest.raises(UndeterminedError) as sliced:
+            systems.reduced(u[sub], z[sub])
+        assert str(sliced.value) == str(own.value)
