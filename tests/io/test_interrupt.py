@@ -7,8 +7,8 @@ stop and fail ("User terminated"), GDAL API documentation (gdal_priv.h / cpl_pro
 """
 from __future__ import annotations
 
-import os
 import signal
+import threading
 
 import numpy as np
 import pytest
@@ -22,6 +22,15 @@ from strikeline.io.raster import write_geotiff
 
 #: Stop once GDAL reports this fraction done; GDAL must then stop well before the end.
 STOP_AT = 0.1
+
+
+def _to_main_thread(signum) -> None:
+    """Send ``signum`` to the main thread itself. A signal sent to the process goes to any thread
+    that does not block it (POSIX, pthread_sigmask(3)): with the main thread blocking it inside a
+    deferred block, a leftover worker thread (a thread pool's, OpenBLAS's) would take it and
+    Python would run the handler whenever that thread is scheduled, possibly after the test's
+    block - a race of the test, not of the code under test."""
+    signal.pthread_kill(threading.main_thread().ident, signum)
 
 
 def _big_surface(n=1500):
@@ -56,7 +65,7 @@ def test_a_signal_stops_gdals_contour_generator_and_raises_after_it():
         seen.append(fraction)
         if fraction >= STOP_AT and not sent:
             sent.append(fraction)
-            os.kill(os.getpid(), signal.SIGINT)  # Ctrl-C while GDAL works
+            _to_main_thread(signal.SIGINT)  # Ctrl-C while GDAL works
 
     before = signal.getsignal(signal.SIGINT)
     with signals_as_exceptions(), pytest.raises(Interrupted) as e:
@@ -69,7 +78,7 @@ def test_a_signal_stops_gdals_contour_generator_and_raises_after_it():
 def test_sigterm_is_an_exception_only_inside_the_block():
     before = signal.getsignal(signal.SIGTERM)
     with pytest.raises(Interrupted) as e, signals_as_exceptions():
-        os.kill(os.getpid(), signal.SIGTERM)
+        _to_main_thread(signal.SIGTERM)
         for _ in range(1000):  # the handler runs between bytecodes
             pass
     assert e.value.exit_status == 143  # Source: common practice, 128 + SIGTERM (15)
@@ -79,7 +88,7 @@ def test_sigterm_is_an_exception_only_inside_the_block():
 def test_a_signal_inside_a_deferred_block_is_raised_after_it():
     done = []
     with signals_as_exceptions(), pytest.raises(Interrupted), deferred_signals():
-        os.kill(os.getpid(), signal.SIGTERM)
+        _to_main_thread(signal.SIGTERM)  # blocked by the block: the kernel holds it until the block ends
         for _ in range(1000):
             pass
         done.append("the block ran to its end")
