@@ -40,16 +40,23 @@ HAND_OVER_ROWS = 256
 HAND_OVER_VERTICES = 1 << 18
 
 
+def _line_of(feature, wkb: list, elev: list) -> int:
+    """Append a contour feature's line (ISO WKB) and level, unless its geometry is empty; returns
+    its vertex count (0 when skipped)."""
+    geom = feature.GetGeometryRef()
+    if geom is None or geom.IsEmpty():
+        return 0
+    wkb.append(bytes(geom.ExportToIsoWkb()))
+    elev.append(feature.GetFieldAsDouble(1))
+    return geom.GetPointCount()
+
+
 def _take_lines(layer, wkb: list, elev: list) -> None:
     """Append the lines of an in-memory OGR layer (ISO WKB, level) in its order (the order GDAL
     drew them)."""
     layer.ResetReading()
     for feature in layer:
-        geom = feature.GetGeometryRef()
-        if geom is None or geom.IsEmpty():
-            continue
-        wkb.append(bytes(geom.ExportToIsoWkb()))
-        elev.append(feature.GetFieldAsDouble(1))
+        _line_of(feature, wkb, elev)
 
 
 def _hand_over(layer, taken: list, sink) -> None:
@@ -64,12 +71,8 @@ def _hand_over(layer, taken: list, sink) -> None:
         feature = layer.GetFeature(fid)
         if feature is None:
             raise RuntimeError(f"contour line {fid} is missing from GDAL's in-memory layer")
-        geom = feature.GetGeometryRef()
-        if geom is not None and not geom.IsEmpty():
-            wkb.append(bytes(geom.ExportToIsoWkb()))
-            elev.append(feature.GetFieldAsDouble(1))
-            vertices += geom.GetPointCount()
-        geom = feature = None
+        vertices += _line_of(feature, wkb, elev)
+        feature = None
         layer.DeleteFeature(fid)
         taken[0] = fid + 1
         if vertices >= HAND_OVER_VERTICES:

@@ -30,8 +30,8 @@ from strikeline.io.raster import NODATA_OUT
 from strikeline.io.window_means import WindowMeans
 from strikeline.maps.contours import trim_contour_fringe
 
-__all__ = ["StripWriter", "read_window", "FileMask", "contour_lines_from_file", "contour_reading", "OUTPUT_OPTIONS",
-           "SCRATCH_NODATA"]
+__all__ = ["StripWriter", "read_window", "FileMask", "contour_lines_from_file", "contour_reading", "trimmed_lines",
+           "OUTPUT_OPTIONS", "SCRATCH_NODATA"]
 
 #: Creation options of strikeline's output GeoTIFFs: those of
 #: :data:`strikeline.io.geotiff.CREATION_OPTIONS` (the block path's files must equal its files).
@@ -451,8 +451,6 @@ def contour_lines_from_file(path, grid: Grid, *, interval_m=None, levels=None, b
     ``sink(wkb, levels)``, when given, receives GDAL's lines as it draws them instead, in chunks
     (ISO WKB with z, in GDAL's order, not trimmed: :func:`strikeline.io.contours._contour_band`),
     and the call returns ``None``; a failure of ``sink`` stops GDAL and is raised."""
-    import shapely
-
     empty = (np.empty(0, dtype=object), np.empty(0, dtype=np.float64))
     options = _level_options(interval_m, levels, base_m)
     if not any_valid or grid.rows * grid.cols == 0:
@@ -485,6 +483,15 @@ def contour_lines_from_file(path, grid: Grid, *, interval_m=None, levels=None, b
         return None
     if not wkb:
         return empty
+    return trimmed_lines(wkb, elev, FileMask(path, grid) if valid is None else valid(), grid)
+
+
+def trimmed_lines(wkb: list, levels: list, valid, grid: Grid) -> tuple[np.ndarray, np.ndarray]:
+    """GDAL's contour lines (ISO WKB with z, in its order) as 2-D shapely lines with their levels,
+    trimmed to the valid cell centres (:func:`strikeline.maps.contours.trim_contour_fringe`;
+    ``valid[rows, cols]`` says which cells hold values). Line by line: the lines of a chunk of
+    GDAL's output are the chunk's lines of the whole output."""
+    import shapely
+
     geoms = np.asarray(shapely.force_2d(shapely.from_wkb(np.array(wkb, dtype=object))), dtype=object)
-    elevation = np.asarray(elev, dtype=np.float64)
-    return trim_contour_fringe(geoms, elevation, FileMask(path, grid) if valid is None else valid(), grid)
+    return trim_contour_fringe(geoms, np.asarray(levels, dtype=np.float64), valid, grid)

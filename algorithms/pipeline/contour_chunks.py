@@ -17,7 +17,6 @@ import collections
 import threading
 
 import numpy as np
-import shapely
 
 from strikeline.errors import CancelledError
 from strikeline.geometry.grid import Grid
@@ -91,11 +90,10 @@ def _finish(wkb: list, levels: list, valid, grid: Grid, interval_m: float, extra
     """One chunk's ``(lines, elevation_m, extrapolated)``: the steps
     :func:`strikeline.io.gridfiles.contour_lines_from_file` and
     :func:`strikeline.pipeline.steps.structure_contours` take for every line."""
-    from strikeline.maps.contours import trim_contour_fringe
+    from strikeline.io.gridfiles import trimmed_lines
     from strikeline.pipeline.steps import structure_contours
 
-    geoms = np.asarray(shapely.force_2d(shapely.from_wkb(np.array(wkb, dtype=object))), dtype=object)
-    lines = trim_contour_fringe(geoms, np.asarray(levels, dtype=np.float64), valid, grid)
+    lines = trimmed_lines(wkb, levels, valid, grid)
     return structure_contours(None, grid, interval_m=interval_m, extrapolated_fn=extrapolated_fn, lines=lines)
 
 
@@ -140,7 +138,7 @@ def contours_and_trace_at_once(tiles, grid: Grid, ground_grid: Grid, *, interval
     def second() -> np.ndarray:
         try:
             trace = trace_of_blocks(tiles, ground_grid, is_cancelled=cancelled)
-            if getattr(tiles, "all_valid", {}).get("surface", False):
+            if tiles.all_valid.get("surface", False):
                 valid["cells"] = EveryCell(grid.shape)  # the writer saw no nodata: nothing to read
             else:
                 valid["cells"] = ValidCells(tiles.scratch["surface"], grid, is_cancelled=cancelled,

@@ -384,7 +384,7 @@ def _stream_blocks(pool, block_fn, jobs, grid: Grid, block_shape, threads, count
     windows = [w for band in block_windows(grid.shape, block_shape) for w in band]
     n, limit = len(windows), _blocks_in_flight(threads)
     state = threading.Condition(threading.RLock())
-    parts: dict = {}  # block index -> (window, its arrays), until every lane has written it
+    parts: dict = {}  # block index -> its arrays (block_fn's dict), until every lane has written it
     left: dict = {}  # block index -> lanes still to write it
     lane_next = [0] * len(jobs)  # each lane's next block
     lane_busy = [False] * len(jobs)

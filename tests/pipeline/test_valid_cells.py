@@ -108,7 +108,8 @@ def test_concurrent_contours_and_trace_read_the_cells_once_meanwhile(holey, tmp_
     path, grid = holey
     depth = write_scratch(tmp_path / "depth.tif", gdal.Open(str(path)).ReadAsArray() * 0 + np.linspace(-50, 50, grid.cols))
     tiles = SimpleNamespace(scratch={"surface": path, "depth": tmp_path / "depth.tif"},
-                            any_valid={"surface": True, "depth": True})
+                            any_valid={"surface": True, "depth": True},
+                            all_valid={"surface": False, "depth": False})  # as BlockGrids: cells to read
     made, on = [], []
     real = ValidCells
 
