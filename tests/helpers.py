@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import contextlib
 import gc
+import hashlib
 import io
 import json
 import os
@@ -161,6 +162,11 @@ def run_cli(*args, cwd=None) -> CliRun:
 
 
 # --------------------------------------------------------------------------- derived inputs
+def sha256_of(path) -> str:
+    """The SHA-256 of a file's bytes, hex (files compared byte for byte)."""
+    return hashlib.sha256(Path(path).read_bytes()).hexdigest()
+
+
 @contextlib.contextmanager
 def gdal_exceptions():
     """GDAL/OGR exceptions on inside the block, the previous modes restored after (GDAL 3.6 has no

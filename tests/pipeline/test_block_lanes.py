@@ -10,7 +10,7 @@ thread.
 """
 from __future__ import annotations
 
-import hashlib
+import sys
 import threading
 import time
 from pathlib import Path
@@ -27,7 +27,10 @@ from strikeline.io.gridfiles import StripWriter  # noqa: E402
 from strikeline.pipeline import load_inputs, tiled  # noqa: E402
 from strikeline.pipeline.options import RunOptions  # noqa: E402
 
-VOLCANO = Path(__file__).resolve().parents[2] / "test_data" / "real" / "volcano"
+REPO = Path(__file__).resolve().parents[2]
+VOLCANO = REPO / "test_data" / "real" / "volcano"
+sys.path.insert(0, str(REPO / "tests"))
+from helpers import sha256_of as _sha  # noqa: E402
 BLOCK = (256, 256)
 
 
@@ -42,10 +45,6 @@ def sheet():
     x0, _, _, y0, _, _ = inputs.dem_grid.transform
     grid = Grid((x0, 1.0, 0.0, y0, 0.0, -1.0), (600, 600), inputs.dem_grid.crs_wkt, inputs.dem_grid.nodata)
     return model, grid
-
-
-def _sha(path) -> str:
-    return hashlib.sha256(Path(path).read_bytes()).hexdigest()
 
 
 def _pool_threads() -> int:

@@ -8,7 +8,6 @@ it draws from the array.
 """
 from __future__ import annotations
 
-import hashlib
 import json
 import sys
 from pathlib import Path
@@ -27,15 +26,11 @@ REPO = Path(__file__).resolve().parents[2]
 DEMO = REPO / "test_data" / "demo"
 VOLCANO = REPO / "test_data" / "real" / "volcano"
 sys.path.insert(0, str(REPO / "tests"))
-from helpers import gdal_exceptions  # noqa: E402
+from helpers import gdal_exceptions, sha256_of as _sha  # noqa: E402
 
 #: Blocks of 7 x 5 cells: neither divides the grids' sides nor GDAL's 256-cell tiles, so block
 #: edges, halos, the grid's edges and tile edges all fall in different places.
 TINY = (7, 5)
-
-
-def _sha(path: Path) -> str:
-    return hashlib.sha256(path.read_bytes()).hexdigest()
 
 
 def _layers(gpkg: Path) -> dict:
