@@ -58,8 +58,8 @@ LEVEL = 0.95
 #: tens of MB whatever the pick count.
 _CHUNK_ELEMENTS = 1 << 22
 #: Elements per chunk of the many-window kernels (resamples × the larger of the slots or units and
-#: the windows' moments, 13 per window), and per piece of replicate normals reduced to half-widths
-#: (8 MiB as float64; our choice): their arrays stop growing with the number of windows, which grows
+#: the windows' moments, 13 per window, or scatter matrices, 9; :func:`_replicate_chunks`), and per
+#: piece of replicate normals reduced to half-widths (8 MiB as float64; our choice): their arrays stop growing with the number of windows, which grows
 #: with the picks, i.e. with the DEM's resolution. The draws of a generator filling an array are
 #: the same whatever the chunk (numpy's ``Generator.random`` and ``standard_normal`` fill it value
 #: after value), the sparse per-window sums add the same terms in the same order and each matrix
@@ -145,6 +145,22 @@ def check_callbacks(progress, is_cancelled, fraction):
 # --------------------------------------------------------------------------------------------
 # Replicate normals: bootstrap, block bootstrap and Monte Carlo, all windows at once
 # --------------------------------------------------------------------------------------------
+
+def _replicate_chunks(n_replicates, n_columns, n_windows, per_window):
+    """The chunks of ``n_replicates`` replicates as ``(first, count)``, in order, each replicate in
+    one.
+
+    A chunk's largest arrays hold ``count`` rows of ``n_columns`` (the draws: units or slots) or,
+    for several windows, of ``per_window`` values of each window (their moments: 13; their scatter
+    matrices: 9): one window takes up to :data:`_CHUNK_ELEMENTS` elements of draws per chunk,
+    several :data:`_WINDOW_CHUNK_ELEMENTS` of the larger of the two; one replicate at least.
+    """
+    if n_windows == 1:
+        step = max(1, _CHUNK_ELEMENTS // max(n_columns, 1))
+    else:
+        step = max(1, _WINDOW_CHUNK_ELEMENTS // max(n_columns, per_window * n_windows))
+    return [(b0, min(step, n_replicates - b0)) for b0 in range(0, n_replicates, step)]
+
 
 def _window_matrix(values, window_of_slot, n_windows):
     """Per-slot vectors arranged for per-window sums.
@@ -234,22 +250,19 @@ def window_block_normals(q, counts, unit_of_slot, n_resamples, rng, progress=Non
     start_of_unit = unit_start[window_of_unit]
     matrix = _window_matrix(per_unit, window_of_unit, n_windows)
     out = np.empty((n_resamples, n_windows, 3))
-    chunk = (max(1, _CHUNK_ELEMENTS // max(n_units, 1)) if n_windows == 1
-             else max(1, _WINDOW_CHUNK_ELEMENTS // max(n_units, k * n_windows)))
     with Eigvecs(out) as eig:
         _block_chunks(eig, rng, matrix, k, n_windows, n_units, blocks_of_unit, start_of_unit,
-                      n_resamples, chunk, progress, is_cancelled)
+                      n_resamples, progress, is_cancelled)
     check_callbacks(progress, is_cancelled, 1.0)
     return out, n_blocks
 
 
-def _block_chunks(eig, rng, matrix, k, n_windows, n_units, blocks_of_unit, start_of_unit, n_resamples, chunk,
+def _block_chunks(eig, rng, matrix, k, n_windows, n_units, blocks_of_unit, start_of_unit, n_resamples,
                   progress, is_cancelled):
-    """The chunks of :func:`window_block_normals`' resamples: draws and moments here, their scatter
-    matrices handed to ``eig`` (:class:`~strikeline.attitude.eigvecs.Eigvecs`)."""
-    for b0 in range(0, n_resamples, chunk):
+    """The chunks (:func:`_replicate_chunks`) of :func:`window_block_normals`' resamples: draws and
+    moments here, their scatter matrices handed to ``eig`` (:class:`~strikeline.attitude.eigvecs.Eigvecs`)."""
+    for b0, b in _replicate_chunks(n_resamples, n_units, n_windows, k):
         check_callbacks(progress, is_cancelled, b0 / n_resamples)
-        b = min(chunk, n_resamples - b0)
         if n_windows == 1:
             drawn = rng.integers(0, n_units, (b, n_units))
         else:
@@ -293,12 +306,9 @@ def monte_carlo_normals(q, counts, scatter, sigma_slot, n_draws, rng, progress=N
     zhat = np.array([0.0, 0.0, 1.0])
     zz = np.outer(zhat, zhat)
     out = np.empty((n_draws, n_windows, 3))
-    chunk = (max(1, _CHUNK_ELEMENTS // max(t, 1)) if n_windows == 1
-             else max(1, _WINDOW_CHUNK_ELEMENTS // max(t, 9 * n_windows)))
     with Eigvecs(out) as eig:
-        for b0 in range(0, n_draws, chunk):
+        for b0, b in _replicate_chunks(n_draws, t, n_windows, 9):
             check_callbacks(progress, is_cancelled, b0 / n_draws)
-            b = min(chunk, n_draws - b0)
             e = rng.standard_normal((b, t))
             e *= sigma_slot  # in place: the chunk's one array (the same products)
             m = _per_window_sums(e, lin, n_windows, 4)

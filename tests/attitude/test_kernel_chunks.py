@@ -91,3 +91,30 @@ def test_half_widths_and_tilt_cov_in_pieces_equal_one_piece_and_numpy_quantile(m
     dev = up[..., :2] - hat[None, :, :2]
     np.testing.assert_allclose(pieces[1], np.mean(dev[..., :, None] * dev[..., None, :], axis=0),
                                rtol=1e-12, atol=1e-18)
+
+
+@pytest.mark.parametrize("n_replicates, n_columns, n_windows, per_window", [
+    (203, 1000, 37, 13),  # many windows: the units bound the chunk
+    (203, 10, 37, 9),  # many windows: the windows' scatter matrices bound it
+    (9001, 500, 1, 13),  # one window: several chunks of draws
+    (20, 3, 1, 13),  # one chunk
+    (999, 1 << 21, 5, 13),  # a replicate's row alone exceeds the bound: one per chunk
+    (1024, 1024, 2, 9),  # chunks that divide the replicates exactly
+    (0, 50, 3, 9),  # no replicates: no chunk
+])
+def test_replicate_chunks_take_every_replicate_once_within_the_element_bound(
+        monkeypatch, n_replicates, n_columns, n_windows, per_window):
+    monkeypatch.setattr(K, "_CHUNK_ELEMENTS", 1 << 16)
+    monkeypatch.setattr(K, "_WINDOW_CHUNK_ELEMENTS", 1 << 14)
+    chunks = K._replicate_chunks(n_replicates, n_columns, n_windows, per_window)
+    # Source: the kernels' contract (common practice for chunked loops): the chunks, in order,
+    # tile 0..n-1 with no gap or overlap, counted with numpy.bincount
+    taken = np.concatenate([np.arange(b0, b0 + b) for b0, b in chunks] + [np.zeros(0, np.int64)])
+    assert np.array_equal(taken, np.arange(n_replicates))
+    assert np.array_equal(np.bincount(taken, minlength=n_replicates), np.ones(n_replicates))
+    row = n_columns if n_windows == 1 else max(n_columns, per_window * n_windows)
+    bound = (1 << 16) if n_windows == 1 else (1 << 14)
+    for _, b in chunks:
+        assert b >= 1 and (b * row <= bound or b == 1)
+    # all but the last chunk as large as the bound allows (fewest Python-level iterations)
+    assert all(b == max(1, bound // row) for _, b in chunks[:-1])
