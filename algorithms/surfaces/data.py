@@ -60,6 +60,10 @@ class _Data:
     c_xy: np.ndarray = field(default_factory=lambda: np.empty((0, 2)))
     c_lo: np.ndarray = field(default_factory=lambda: np.empty(0))
     c_hi: np.ndarray = field(default_factory=lambda: np.empty(0))
+    # Rows of these picks among those of the data they were taken from by :meth:`picks` (``None``:
+    # they are those picks), which the spline's pick systems slice their kernel by
+    # (strikeline.surfaces.reduced.PickSystems).
+    rows: np.ndarray | None = None
 
     def u(self, xy):
         return (np.asarray(xy, float) - self.origin) / self.scale
@@ -73,7 +77,12 @@ class _Data:
     def picks(self, index):
         return _Data(self.p_xy[index], self.p_z[index], self.b_xy, self.b_z, self.b_sig,
                      self.o_xy, self.o_g, self.o_sig, self.origin, self.scale, self.footprint_m,
-                     self.pick_sigma_m, self.c_xy, self.c_lo, self.c_hi)
+                     self.pick_sigma_m, self.c_xy, self.c_lo, self.c_hi, self.pick_rows(index))
+
+    def pick_rows(self, index):
+        """Rows of the picks ``index`` (a boolean mask or indices) among those of the data these
+        were taken from (:attr:`rows`)."""
+        return np.arange(self.n)[index] if self.rows is None else self.rows[index]
 
     @property
     def n_bounds(self):

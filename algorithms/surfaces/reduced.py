@@ -167,14 +167,14 @@ class PickSystems:
     :func:`~strikeline.surfaces.kernel.tps_kernel` work element by element), and a subset's
     normalised coordinates are the rows of all picks' (:meth:`strikeline.surfaces.data._Data.picks`
     keeps the origin and scale), so the sliced matrix has the bits the subset's own would have.
-    Points that are not rows of ``u`` get their own kernel.
+    The caller names a subset's rows (the mask or indices it took them by); points given without
+    them, or that are not those rows of ``u``, get their own kernel.
     """
 
     def __init__(self, u, z):
         self.u = np.asarray(u, dtype=float)
         self.z = np.asarray(z, dtype=float)
         self._all = None
-        self._rows = None
 
     def all_picks(self) -> _Reduced:
         """The system of all picks (made on first use)."""
@@ -182,23 +182,17 @@ class PickSystems:
             self._all = _Reduced(self.u, self.z)
         return self._all
 
-    def _index(self, u):
-        """Row of ``self.u`` of every row of ``u`` (``None`` when one is not a row of it)."""
-        if self._rows is None:
-            self._rows = {row.tobytes(): i for i, row in enumerate(self.u)}
-        idx = np.fromiter((self._rows.get(row.tobytes(), -1) for row in u), dtype=np.intp, count=len(u))
-        if len(idx) == 0 or idx.min() < 0 or not np.array_equal(self.u[idx], u):
-            return None
-        return idx
-
-    def reduced(self, u, z) -> _Reduced:
-        """The system of the picks ``u`` (rows of this fit's picks, or any) with data ``z``."""
+    def reduced(self, u, z, rows=None) -> _Reduced:
+        """The system of the picks ``u`` with data ``z``: ``rows`` (a boolean mask or indices) of this
+        fit's picks, or (``None``) any picks."""
         u = np.asarray(u, dtype=float)
         z = np.asarray(z, dtype=float)
         if u.shape == self.u.shape and np.array_equal(u, self.u) and np.array_equal(z, self.z):
             return self.all_picks()
-        idx = self._index(u) if len(z) >= 4 else None
-        if idx is None:
+        if rows is None or len(z) < 4:
+            return _Reduced(u, z)
+        idx = np.arange(len(self.u))[rows]
+        if len(idx) != len(u) or not np.array_equal(self.u[idx], u):
             return _Reduced(u, z)
         try:
             K = self.all_picks().K

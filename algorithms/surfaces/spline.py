@@ -156,7 +156,7 @@ def _fit_tps(data: _Data, smoothing, lam=None, *, systems: PickSystems | None = 
     """Thin-plate smoothing spline with boreholes and dip-measurement functionals; ``systems``:
     the pick systems of a superset of ``data``'s picks, whose kernel is reused (exact)."""
     up = data.u(data.p_xy)
-    red = _Reduced(up, data.p_z) if systems is None else systems.reduced(up, data.p_z)
+    red = _Reduced(up, data.p_z) if systems is None else systems.reduced(up, data.p_z, data.rows)
     n = red.n
     spec = None
     if lam is not None or not isinstance(smoothing, (str, tuple)):
@@ -314,7 +314,8 @@ def _kfold_lambda(data: _Data, folds, lam_grid, *, systems: PickSystems | None =
     for k in np.unique(folds):
         tr, te = folds != k, folds == k
         spec = _Spectrum(up[tr], data.p_z[tr],
-                         reduced=None if systems is None else systems.reduced(up[tr], data.p_z[tr]))
+                         reduced=None if systems is None else systems.reduced(up[tr], data.p_z[tr],
+                                                                              data.pick_rows(tr)))
         C, D = spec.coefficients(spec.n * lam_grid)
         Kt = tps_kernel(_pairwise_r2(up[te], up[tr]))
         pred = Kt @ C + np.column_stack([np.ones(te.sum()), up[te]]) @ D

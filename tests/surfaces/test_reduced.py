@@ -75,21 +75,26 @@ def test_too_small_smoothing_is_refused_for_the_eigen_route():
         _FixedSmoothing(red, 0.0)
 
 
-def test_pick_systems_slice_the_kernel_with_the_bits_of_each_subsets_own():
+def test_pick_systems_slice_the_kernel_with_the_bits_of_each_subsets_own(monkeypatch):
+    import strikeline.surfaces.reduced as reduced
     from strikeline.surfaces.reduced import PickSystems
     u, z = _picks(n=200, seed=4)
     systems = PickSystems(u, z)
     assert systems.reduced(u.copy(), z.copy()) is systems.all_picks()  # made once, asked twice
+    own_kernels = []
+    monkeypatch.setattr(reduced, "tps_kernel", lambda r2: own_kernels.append(r2) or tps_kernel(r2))
     rng = np.random.default_rng(8)
     for keep in (rng.random(200) < 0.8, np.flatnonzero(rng.random(200) < 0.5)[::-1]):
-        got = systems.reduced(u[keep], z[keep])
+        own_kernels.clear()
+        got = systems.reduced(u[keep], z[keep], keep)
+        assert not own_kernels  # sliced from the kernel of all picks, not computed again
         # Source: the subset's own system, its kernel computed from its points (tps_kernel of
         # _pairwise_r2): the same bits, not only close
         want = _Reduced(u[keep], z[keep])
         for name in ("K", "M", "Q1", "R1"):
             assert np.array_equal(getattr(got, name), getattr(want, name)), name
     other = np.vstack([u[:50], [[5.0, 5.0]]])  # a point that is not one of the picks
-    got, want = systems.reduced(other, z[:51]), _Reduced(other, z[:51])
+    got, want = systems.reduced(other, z[:51], np.arange(51)), _Reduced(other, z[:51])
     assert np.array_equal(got.M, want.M)
 
 
@@ -103,5 +108,5 @@ def test_pick_systems_refuse_a_subset_as_its_own_system_would():
         with pytest.raises(UndeterminedError) as own:
             _Reduced(u[sub], z[sub])
         with pytest.raises(UndeterminedError) as sliced:
-            systems.reduced(u[sub], z[sub])
+            systems.reduced(u[sub], z[sub], sub)
         assert str(sliced.value) == str(own.value)
