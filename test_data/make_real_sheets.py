@@ -278,7 +278,6 @@ def exact_trace(grid, truth, where, min_length_m):
         return clip_pieces(contour_zero(grid, grid.z - grid.surface(truth)), where, min_length_m)
     pieces = []
     x, y = grid.centres()
-    down = real_truth.down_block(truth, x, y)
     for is_down in (False, True):
         # Contour each block's own plane over the whole grid, then keep its block: the
         # difference grid of the faulted surface would also change sign along the fault.
