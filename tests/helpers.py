@@ -12,7 +12,9 @@ import hashlib
 import io
 import json
 import os
+import shutil
 import signal
+import subprocess
 import sys
 import tempfile
 import warnings
@@ -165,6 +167,18 @@ def run_cli(*args, cwd=None) -> CliRun:
 def sha256_of(path) -> str:
     """The SHA-256 of a file's bytes, hex (files compared byte for byte)."""
     return hashlib.sha256(Path(path).read_bytes()).hexdigest()
+
+
+def coreutils_sha256(path) -> str:
+    """The SHA-256 of a file as GNU coreutils' ``sha256sum`` prints it: a checksum made outside the
+    project and outside Python's hashlib, to check the ones strikeline records (the calling test
+    is skipped where the command is not installed)."""
+    exe = shutil.which("sha256sum")
+    if exe is None:
+        import pytest
+        pytest.skip("coreutils' sha256sum is not installed")
+    # Source: GNU coreutils sha256sum (outside the project)
+    return subprocess.run([exe, str(path)], check=True, capture_output=True, text=True).stdout.split()[0]
 
 
 @contextlib.contextmanager

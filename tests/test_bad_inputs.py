@@ -11,7 +11,6 @@ user needs to act: the culprit file or option and the fix.
 from __future__ import annotations
 
 import functools
-import hashlib
 import json
 import os
 import sqlite3
@@ -25,7 +24,7 @@ import pytest
 import shapely
 from osgeo import gdal, ogr, osr
 
-from helpers import DEMO, gdal_exceptions, run_cli, srs_of
+from helpers import DEMO, gdal_exceptions, run_cli, sha256_of, srs_of
 from helpers import write_vector as write_any_vector
 
 CONTACTS = DEMO / "contacts.gpkg"
@@ -403,10 +402,6 @@ ACCEPTED = [
 ]
 
 
-def _sha256(path) -> str:
-    return hashlib.sha256(Path(path).read_bytes()).hexdigest()
-
-
 def _files_of(args) -> list[Path]:
     """The input files named in ``args`` (with a shapefile's sidecars), existing before the run."""
     found = []
@@ -418,7 +413,7 @@ def _files_of(args) -> list[Path]:
 
 
 def _snapshot(folder: Path) -> dict:
-    return {str(p.relative_to(folder)): _sha256(p) for p in sorted(folder.rglob("*")) if p.is_file()}
+    return {str(p.relative_to(folder)): sha256_of(p) for p in sorted(folder.rglob("*")) if p.is_file()}
 
 
 def test_the_matrix_has_the_rows_it_documents():
@@ -433,7 +428,7 @@ def test_a_bad_input_is_one_line_and_exit_2(case, tmp_path):
     folder.mkdir()
     args = [str(a) for a in case.build(folder)]
     out = tmp_path / "out"
-    inputs = {str(p): _sha256(p) for p in _files_of(args)}
+    inputs = {str(p): sha256_of(p) for p in _files_of(args)}
     before = sorted(os.listdir(tmp_path)), _snapshot(folder)
     r = run_cli("run", *args, "--out", out)
     lines = r.stderr.strip().splitlines()
@@ -447,7 +442,7 @@ def test_a_bad_input_is_one_line_and_exit_2(case, tmp_path):
     # nothing written: no output folder, nothing beside it, no input changed (checksums)
     assert not out.exists()
     assert (sorted(os.listdir(tmp_path)), _snapshot(folder)) == before
-    assert {p: _sha256(p) for p in inputs} == inputs
+    assert {p: sha256_of(p) for p in inputs} == inputs
 
 
 @pytest.mark.parametrize("case", ACCEPTED, ids=[c.id for c in ACCEPTED])
@@ -455,13 +450,13 @@ def test_an_input_repaired_with_a_stated_count_runs(case, tmp_path):
     folder = tmp_path / "in"
     folder.mkdir()
     args = [str(a) for a in case.build(folder)]
-    inputs = {str(p): _sha256(p) for p in _files_of(args)}
+    inputs = {str(p): sha256_of(p) for p in _files_of(args)}
     r = run_cli("run", *args, "--out", tmp_path / "out")
     assert r.returncode == 0, r.stderr
     said = [ln for ln in r.stderr.splitlines() if all(w.lower() in ln.lower() for w in case.words)]
     assert len(said) == 1, f"not one log line with {case.words} in:\n{r.stderr}"
     assert (tmp_path / "out").is_dir()
-    assert {p: _sha256(p) for p in inputs} == inputs
+    assert {p: sha256_of(p) for p in inputs} == inputs
 
 
 def test_attitude_refuses_resamples_beyond_memory_before_drawing(tmp_path):

@@ -31,7 +31,7 @@ import numpy as np
 import pytest
 from osgeo import gdal, osr
 
-from helpers import DEMO, run_cli
+from helpers import DEMO, coreutils_sha256, run_cli
 from strikeline.vocabulary import MANIFEST_FILE
 
 # Source: common practice (POSIX shells report a process stopped by signal N as 128 + N)
@@ -64,11 +64,6 @@ def _grids(folder: Path, name: str, shape=(12, 15), noise=0.0, seed=0):
     return str(_tif(folder / f"{name}_top.tif", top)), str(_tif(folder / f"{name}_base.tif", base))
 
 
-def _sha256sum(path) -> str:
-    # Source: GNU coreutils sha256sum (outside the project)
-    return subprocess.run(["sha256sum", str(path)], capture_output=True, text=True, check=True).stdout.split()[0]
-
-
 def _complete_set(folder: Path) -> dict:
     """The folder's files as ``{name: sha256}``, asserting that they are exactly its manifest's,
     each with the size and checksum the manifest gives."""
@@ -79,7 +74,7 @@ def _complete_set(folder: Path) -> dict:
     got = {}
     for name, info in manifest["files"].items():
         assert (folder / name).stat().st_size == info["bytes"]
-        got[name] = _sha256sum(folder / name)
+        got[name] = coreutils_sha256(folder / name)
         assert got[name] == info["sha256"], name
     return got
 

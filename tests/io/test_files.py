@@ -16,6 +16,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from helpers import coreutils_sha256
 from osgeo import gdal, osr
 
 from strikeline import vocabulary as V
@@ -45,11 +46,6 @@ def _write(out, names=("a.txt", "b.txt"), text="new", **kw):
     return Path(out)
 
 
-def _sha256sum(path) -> str:
-    # Source: GNU coreutils sha256sum, a checksum made outside the project
-    return subprocess.run(["sha256sum", str(path)], capture_output=True, text=True, check=True).stdout.split()[0]
-
-
 # --------------------------------------------------------------------------- manifest
 def test_manifest_lists_every_file_with_size_and_sha256(tmp_path):
     out = _write(tmp_path / "out", names=("a.txt", "b.txt"))
@@ -58,7 +54,7 @@ def test_manifest_lists_every_file_with_size_and_sha256(tmp_path):
     assert sorted(manifest["files"]) == ["a.txt", "b.txt"]
     for name, info in manifest["files"].items():
         assert info["bytes"] == os.stat(out / name).st_size
-        assert info["sha256"] == _sha256sum(out / name)
+        assert info["sha256"] == coreutils_sha256(out / name)
     assert sorted(p.name for p in tmp_path.iterdir()) == ["out"]  # no part folder, no lock file left
 
 

@@ -13,21 +13,13 @@ import subprocess
 from pathlib import Path
 
 import pytest
-from helpers import DEMO, FOLD, write_fold_units
+from helpers import DEMO, FOLD, coreutils_sha256, write_fold_units
 from osgeo import ogr
 from strikeline import vocabulary as V
 from strikeline.pipeline import RunOptions, load_inputs
 from strikeline.pipeline.summary import summary_inputs
 
-SHA256SUM = shutil.which("sha256sum")
 OGR2OGR = shutil.which("ogr2ogr")
-
-
-def _sha256sum(path) -> str:
-    if SHA256SUM is None:
-        pytest.skip("coreutils' sha256sum is not installed")
-    # Source: coreutils sha256sum, independent of Python's hashlib
-    return subprocess.run([SHA256SUM, str(path)], check=True, capture_output=True, text=True).stdout.split()[0]
 
 
 def _layer_name(path) -> str:
@@ -51,10 +43,10 @@ def test_two_files_of_one_name_in_two_folders_are_both_recorded(tmp_path):
     c = got["contacts"]
     assert [r["path"] for r in c] == [str(a), str(b)]
     assert [r["path_absolute"] for r in c] == [str(a.resolve()), str(b.resolve())]
-    assert [r["sha256"] for r in c] == [_sha256sum(a), _sha256sum(b)] and c[0]["sha256"] != c[1]["sha256"]
+    assert [r["sha256"] for r in c] == [coreutils_sha256(a), coreutils_sha256(b)] and c[0]["sha256"] != c[1]["sha256"]
     assert [r["layer"] for r in c] == [_layer_name(a), _layer_name(b)]
     assert all(r["where"] == "kind IS NOT NULL" and r["fields"] == {"group_by": "block"} for r in c)
-    assert got["dem"]["sha256"] == _sha256sum(DEMO / "dem.tif") and got["dem"]["layer"] is None
+    assert got["dem"]["sha256"] == coreutils_sha256(DEMO / "dem.tif") and got["dem"]["layer"] is None
 
 
 def test_every_role_with_its_layer_filter_and_fields(tmp_path):
@@ -65,7 +57,7 @@ def test_every_role_with_its_layer_filter_and_fields(tmp_path):
     assert list(got) == ["contacts", "dem", "map_units"]
     assert got["map_units"] == {"path": str(units), "path_absolute": str(Path(units).resolve()),
                                 "layer": _layer_name(units), "where": None, "fields": {"unit_field": "unit"},
-                                "sha256": _sha256sum(units)}
+                                "sha256": coreutils_sha256(units)}
     demo = RunOptions(contacts=str(DEMO / "contacts_mapped.gpkg"), out=str(tmp_path / "o2"),
                       dem=str(DEMO / "dem.tif"), contours=str(DEMO / "contours.gpkg"), elev_field="elev_m",
                       boreholes=str(DEMO / "boreholes.gpkg"), borehole_collar_field="collar_m",
@@ -79,7 +71,7 @@ def test_every_role_with_its_layer_filter_and_fields(tmp_path):
     assert got["top_contacts"][0]["where"] == "unit <> ''"
     for role in ("contours", "boreholes", "orientations"):
         path = DEMO / f"{role}.gpkg"
-        assert got[role]["layer"] == _layer_name(path) and got[role]["sha256"] == _sha256sum(path)
+        assert got[role]["layer"] == _layer_name(path) and got[role]["sha256"] == coreutils_sha256(path)
     # every key is in the vocabulary (the README's output reference)
     assert V.json_paths({"inputs": got}) <= V.summary_path_names()
 
@@ -101,5 +93,5 @@ def test_the_demo_summary_records_its_inputs_and_command(demo_command_run):
     assert s["command_line"] == ["strikeline", *map(str, demo_command_run.proc.args)] and s["version"]
     assert isinstance(s["inputs"]["contacts"], list) and len(s["inputs"]["contacts"]) == 1
     rec = s["inputs"]["contacts"][0]
-    assert Path(rec["path"]).name == "contacts_mapped.gpkg" and rec["sha256"] == _sha256sum(rec["path_absolute"])
+    assert Path(rec["path"]).name == "contacts_mapped.gpkg" and rec["sha256"] == coreutils_sha256(rec["path_absolute"])
     assert s["inputs"]["boreholes"]["fields"]["borehole_collar_field"]
