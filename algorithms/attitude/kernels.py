@@ -59,8 +59,9 @@ LEVEL = 0.95
 _CHUNK_ELEMENTS = 1 << 22
 #: Elements per chunk of the many-window kernels (resamples × the larger of the slots or units and
 #: the windows' moments, 13 per window, or scatter matrices, 9; :func:`_replicate_chunks`), and per
-#: piece of replicate normals reduced to half-widths (8 MiB as float64; our choice): their arrays stop growing with the number of windows, which grows
-#: with the picks, i.e. with the DEM's resolution. The draws of a generator filling an array are
+#: piece of replicate normals reduced to half-widths (8 MiB as float64; our choice): their arrays
+#: stop growing with the number of windows, which grows with the picks, i.e. with the DEM's
+#: resolution. The draws of a generator filling an array are
 #: the same whatever the chunk (numpy's ``Generator.random`` and ``standard_normal`` fill it value
 #: after value), the sparse per-window sums add the same terms in the same order and each matrix
 #: is decomposed alone, so the normals do not depend on it. One window (the sheet-wide plane)
