@@ -144,10 +144,26 @@ class StripWriter:
         test of :func:`read_window` and :class:`strikeline.io.contours.ValidCells`)."""
         return self._all_valid
 
-    def _count(self, values: np.ndarray, ok: np.ndarray) -> None:
-        """Note whether ``values`` (``ok``: where finite) hold any value and all hold one."""
+    def _stored(self, values) -> np.ndarray:
+        """``values`` as the file stores them (this grid's type, NaN and infinities as nodata), noting
+        whether they hold any value and all hold one (finite and not the nodata value).
+
+        Where every value is finite - the common case, told by the least and greatest value, which
+        a NaN or an infinity would be - the values are written as they are (the caller's array when
+        it has the type already, never changed) and no mask is made; the nodata value is looked for
+        only when it lies between the two. Otherwise a new array with nodata for the others."""
+        out = np.asarray(values, dtype=self.dtype)
+        if out.size:
+            lo, hi = out.min(), out.max()
+            if np.isfinite(lo) and np.isfinite(hi):
+                self._any_valid = True
+                if self._all_valid and lo <= self.nodata <= hi:
+                    self._all_valid = not bool((out == self.nodata).any())
+                return out
+        ok = np.isfinite(out)
         self._any_valid = self._any_valid or bool(ok.any())
-        self._all_valid = self._all_valid and bool(ok.all()) and not bool((values == self.nodata).any())
+        self._all_valid = self._all_valid and bool(ok.all()) and not bool((out == self.nodata).any())
+        return np.where(ok, out, self.dtype(self.nodata))  # a new array: the caller keeps its rows
 
     def write_rows(self, r0: int, values) -> None:
         """Append the rows ``r0 .. r0 + len(values)`` (full width; NaN for no value)."""
@@ -156,10 +172,9 @@ class StripWriter:
         v = np.asarray(values)
         if v.ndim != 2 or v.shape[1] != self.grid.cols:
             raise ValueError(f"rows of shape {v.shape} for a grid {self.grid.shape}")
-        out = np.asarray(v, dtype=self.dtype)
-        ok = np.isfinite(out)
-        self._count(out, ok)
-        out = np.where(ok, out, self.dtype(self.nodata))  # a new array: the caller keeps its rows
+        out = self._stored(v)
+        if out is v:
+            out = out.copy()  # kept until its strip is complete: the caller may reuse its rows
         self._pending.append(out)
         self._n_pending += len(out)
         self._next_row += len(out)
@@ -201,10 +216,7 @@ class StripWriter:
                 c0 + v.shape[1] < self.grid.cols and v.shape[1] % self.tile_cols):
             raise ValueError(f"a block of shape {v.shape} at row {r0}, column {c0} does not end on a tile's edge "
                              f"of a grid {self.grid.shape}")
-        out = np.asarray(v, dtype=self.dtype)
-        ok = np.isfinite(out)
-        self._count(out, ok)
-        self._write(np.where(ok, out, self.dtype(self.nodata)), r0, c0)
+        self._write(self._stored(v), r0, c0)
         self._next_col, self._row_height = c0 + v.shape[1], h
         if self._next_col == self.grid.cols:
             self._next_row, self._next_col = r0 + h, 0

@@ -148,3 +148,51 @@ def test_an_intact_file_passes_the_check(tmp_path):
     w.verify()
     assert w.commit() == str(tmp_path / "s.tif")
     assert os.listdir(tmp_path) == ["s.tif"]
+
+
+@pytest.mark.parametrize("odd, any_valid, all_valid", [
+    (None, True, True),  # every value finite
+    (np.nan, True, False),
+    (np.inf, True, False),
+    (-np.inf, True, False),
+    ("nodata", True, False),  # a real value equal to the nodata value, inside the others' range
+    ("all_nan", False, False),
+])
+@pytest.mark.parametrize("dtype", [np.float64, np.float32])
+@pytest.mark.parametrize("how", ["rows", "blocks"])
+def test_valid_flags_and_values_match_gdal_and_leave_the_caller_s_array(tmp_path, odd, any_valid, all_valid,
+                                                                        dtype, how):
+    grid = _grid(300, 512)
+    z = (500 + np.arange(grid.rows * grid.cols, dtype=float).reshape(grid.shape) * 1e-3 - 40).astype(dtype)
+    if odd == "all_nan":
+        z[:] = np.nan
+    elif odd == "nodata":
+        z[150, 300] = -99999.0
+        z[0, 0] = -100000.0  # the least value: the nodata value lies inside the range
+    elif odd is not None:
+        z[150, 300] = odd
+    kept = z.copy()
+    path = tmp_path / "g.tif"
+    w = StripWriter(path, grid, description="surface", unit="m")
+    if how == "blocks":
+        for r0 in range(0, grid.rows, 256):
+            for c0 in (0, 256):
+                w.write_block(r0, c0, z[r0:r0 + 256, c0:c0 + 256])
+    else:
+        for r0 in range(0, grid.rows, 100):
+            w.write_rows(r0, z[r0:r0 + 100])
+            z[r0:r0 + 100] = 7.0  # the caller reuses its rows at once: the file keeps what was given
+        z[:] = kept
+    assert (w.any_valid, w.all_valid) == (any_valid, all_valid)
+    w.close()
+    np.testing.assert_array_equal(z, kept)  # the caller's array is never changed
+    ds = gdal.Open(str(path))
+    b = ds.GetRasterBand(1)
+    got, valid = b.ReadAsArray(), b.GetMaskBand().ReadAsArray() > 0
+    # Source: GDAL's own reading of the file and its nodata mask (osgeo.gdal 3.6): the flags say what
+    # the mask says, and the valid cells hold the values given, rounded to float32 by numpy
+    assert bool(valid.any()) == any_valid and bool(valid.all()) == all_valid
+    expected = kept.astype(np.float32)
+    finite = np.isfinite(expected)
+    np.testing.assert_array_equal(valid, finite & (expected != np.float32(-99999.0)))
+    np.testing.assert_array_equal(got[finite], expected[finite])
