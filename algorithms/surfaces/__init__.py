@@ -2,6 +2,8 @@
 and quadratic trend, the thin-plate spline (within bounds), the relaxation to the trend beyond
 the data, cross-validated model choice and the misfit check's hold-out fits
 (:func:`fit_surface`, returning a :class:`SurfaceModel`), and the map's unit polygons as bounds.
+The independent fits of cross-validation and of the hold-outs run two at a time on threads with
+one BLAS thread each (:mod:`strikeline.surfaces.parallel`).
 """
 from strikeline.surfaces.bounded import (  # noqa: F401
     BOUND_PIN_SIGMA_M,

@@ -27,7 +27,10 @@ Steps of a fit
    (:mod:`strikeline.surfaces.holdout`).
 
 The spline's kernel of all picks is computed once and every subset's sliced from it
-(:class:`strikeline.surfaces.reduced.PickSystems`).
+(:class:`strikeline.surfaces.reduced.PickSystems`). The folds' fits (the λ search, each model's
+cross-validation, the coarse hold-out) and the misfit check's fits are made two at a time on
+threads with one BLAS thread each (:mod:`strikeline.surfaces.parallel`); the final fit is made on
+the caller's thread as before.
 
 The default ``reach_m`` is the ``REACH_PERCENTILE`` percentile of the distance to the nearest
 datum over the data's convex hull; the default ``taper_m`` is ``TAPER_FRACTION`` of the square

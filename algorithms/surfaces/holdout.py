@@ -13,6 +13,7 @@ from strikeline.stats import cross_validate
 from strikeline.surfaces.data import _Data
 from strikeline.surfaces.fitted import _Surface, _fit_kind
 from strikeline.surfaces.model import _check_cancel
+from strikeline.surfaces.parallel import map_fits
 from strikeline.surfaces.polynomial import _fit_poly_robust
 
 
@@ -26,17 +27,39 @@ COARSE_HOLDOUT_FACTOR = 4.0
 CHECK_BLOCK_FACTOR = 1.0
 
 
-def _score_fits(fit, data: _Data, folds, *, groups=None, progress=None, is_cancelled=None):
+def _score_fits(fit, data: _Data, folds, *, groups=None, progress=None, is_cancelled=None,
+                workers: int | None = None):
     """Cross-validate the surfaces ``fit(training data)`` makes: the
     :class:`~strikeline.stats.CVScore` and each fit's own standard error at the picks it
-    predicted (for the growth of error with distance)."""
+    predicted (for the growth of error with distance).
+
+    The folds' fits (and their forecasts) are made first, ``workers`` at a time
+    (:func:`strikeline.surfaces.parallel.map_fits`; ``fit`` must be thread-safe), then scored in
+    fold order by :func:`strikeline.stats.cross_validate`: a fold's exception is kept as its
+    result and raised there in fold order, so a fold that cannot be fitted ends the score (and any
+    other error propagates) as in that loop, whatever the folds after it did."""
+    folds = np.asarray(folds).reshape(-1)
     base = np.full(data.n, np.nan)
 
+    def one(k):
+        _check_cancel(is_cancelled, "cross-validation")
+        train, test = np.flatnonzero(folds != k), np.flatnonzero(folds == k)
+        try:
+            s = fit(data.picks(train))
+            x, y = data.p_xy[test, 0], data.p_xy[test, 1]
+            return s.base_se(x, y), s.value(x, y)
+        except Exception as exc:  # raised in fold order below
+            return exc
+
+    ks = np.unique(folds)
+    made = dict(zip(ks.tolist(), map_fits(one, ks.tolist(), workers=workers)))
+
     def fit_predict(train, test):
-        s = fit(data.picks(train))
-        x, y = data.p_xy[test, 0], data.p_xy[test, 1]
-        base[test] = s.base_se(x, y)
-        return s.value(x, y)
+        out = made[folds[test[0]].item()]
+        if isinstance(out, Exception):
+            raise out
+        base[test] = out[0]
+        return out[1]
     score = cross_validate(fit_predict, np.column_stack([data.p_xy, data.p_z]), folds,
                            fixed_xy=data.fixed_xy(), groups=groups, progress=progress,
                            is_cancelled=is_cancelled)
@@ -110,36 +133,44 @@ def _robust_surface(kind, data: _Data, sigma_m, taper_m, pps=1.0) -> _Surface:
 
 
 def _holdout_checks(kind, data: _Data, side_m, growth, sigma_m, taper_m, *, smoothing, lam,
-                    pps=1.0, is_cancelled=None, systems=None):
+                    pps=1.0, is_cancelled=None, systems=None, workers: int | None = None):
     """The fits the misfit check compares held-out contacts with (see :class:`_Holdout`).
 
     The spline is refitted as it was chosen; plane and trend2 are refitted robustly
     (:func:`~strikeline.surfaces.polynomial._fit_poly_robust`), because one mistraced stretch
     or faulted block tilts a global least-squares surface everywhere, far outside any held-out
-    block. ``systems``: the spline's pick systems of ``data`` (kernel reused).
+    block. ``systems``: the spline's pick systems of ``data`` (kernel reused). The fits are made
+    ``workers`` at a time (:func:`strikeline.surfaces.parallel.map_fits`).
     """
     origin = data.p_xy.min(axis=0)
     holdout = _Holdout(origin, side_m, {})
     floor = sigma_m if sigma_m is not None else 0.0
+    outs = []  # ((board, colour), picks held out): the fits to make, in the loop's order
     for board in (0, 1):
         colour, _ = holdout.cells(data.p_xy[:, 0], data.p_xy[:, 1], board)
         for c in range(4):
             out = colour == c
-            if not out.any() or out.all():
-                continue
-            _check_cancel(is_cancelled, "misfit check")
-            sub = data.picks(~out)
-            try:
-                if kind in ("plane", "trend2"):
-                    try:
-                        s = _robust_surface(kind, sub, sigma_m, taper_m, pps)
-                    except (UndeterminedError, np.linalg.LinAlgError):
-                        s = _fit_kind(kind, sub, smoothing=smoothing, lam=lam, taper_m=taper_m, systems=systems)
-                else:
-                    s = _fit_kind(kind, sub, smoothing=smoothing, lam=lam, taper_m=taper_m, systems=systems)
-            except UndeterminedError:
-                continue  # points of this colour fall back to no check (NaN)
-            s.growth = growth
-            s.noise_floor_m, s.picks_per_segment = floor, pps
-            holdout.surfaces[(board, c)] = s
+            if out.any() and not out.all():
+                outs.append(((board, c), out))
+
+    def one(item):
+        _check_cancel(is_cancelled, "misfit check")
+        sub = data.picks(~item[1])
+        try:
+            if kind in ("plane", "trend2"):
+                try:
+                    return _robust_surface(kind, sub, sigma_m, taper_m, pps)
+                except (UndeterminedError, np.linalg.LinAlgError):
+                    pass
+            return _fit_kind(kind, sub, smoothing=smoothing, lam=lam, taper_m=taper_m, systems=systems)
+        except UndeterminedError:
+            return None  # points of this colour fall back to no check (NaN)
+
+    # the fits are independent: made two at a time (strikeline.surfaces.parallel)
+    for (key, _), s in zip(outs, map_fits(one, outs, workers=workers)):
+        if s is None:
+            continue
+        s.growth = growth
+        s.noise_floor_m, s.picks_per_segment = floor, pps
+        holdout.surfaces[key] = s
     return holdout if holdout.surfaces else None

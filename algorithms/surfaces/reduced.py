@@ -30,6 +30,8 @@ Applied Mathematics 59, SIAM. https://doi.org/10.1137/1.9781611970128
 """
 from __future__ import annotations
 
+import threading
+
 import numpy as np
 from scipy import linalg
 
@@ -168,19 +170,22 @@ class PickSystems:
     normalised coordinates are the rows of all picks' (:meth:`strikeline.surfaces.data._Data.picks`
     keeps the origin and scale), so the sliced matrix has the bits the subset's own would have.
     The caller names a subset's rows (the mask or indices it took them by); points given without
-    them, or that are not those rows of ``u``, get their own kernel.
+    them, or that are not those rows of ``u``, get their own kernel. Fits on several threads share one
+    (:mod:`strikeline.surfaces.parallel`): what is made on first use is made once, under a lock.
     """
 
     def __init__(self, u, z):
         self.u = np.asarray(u, dtype=float)
         self.z = np.asarray(z, dtype=float)
         self._all = None
+        self._lock = threading.Lock()
 
     def all_picks(self) -> _Reduced:
         """The system of all picks (made on first use)."""
-        if self._all is None:
-            self._all = _Reduced(self.u, self.z)
-        return self._all
+        with self._lock:
+            if self._all is None:
+                self._all = _Reduced(self.u, self.z)
+            return self._all
 
     def reduced(self, u, z, rows=None) -> _Reduced:
         """The system of the picks ``u`` with data ``z``: ``rows`` (a boolean mask or indices) of this

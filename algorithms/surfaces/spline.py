@@ -48,6 +48,7 @@ from strikeline.stats import gcv_from_spectrum
 from strikeline.surfaces.bounded import _tps_bounded
 from strikeline.surfaces.data import _Data
 from strikeline.surfaces.kernel import _TPS, _pairwise_r2, tps_kernel
+from strikeline.surfaces.parallel import map_fits
 from strikeline.surfaces.reduced import PickSystems, _FixedSmoothing, _Reduced, bordered_solver
 
 
@@ -306,12 +307,15 @@ def _spectral_solver(spec: _Spectrum, nlam):
                            lambda v: spec.Q2U @ (scale[:, None] * (spec.Q2U.T @ v)))
 
 
-def _kfold_lambda(data: _Data, folds, lam_grid, *, systems: PickSystems | None = None):
+def _kfold_lambda(data: _Data, folds, lam_grid, *, systems: PickSystems | None = None,
+                  workers: int | None = None):
     """λ minimising grouped k-fold CV error of the picks-only spline over a grid (``systems``:
-    :class:`~strikeline.surfaces.reduced.PickSystems` of ``data``'s picks, kernel reused)."""
+    :class:`~strikeline.surfaces.reduced.PickSystems` of ``data``'s picks, kernel reused). The
+    folds' spectra are made ``workers`` at a time (:func:`strikeline.surfaces.parallel.map_fits`)
+    and their squared errors added in fold order."""
     up = data.u(data.p_xy)
-    sse = np.zeros(len(lam_grid))
-    for k in np.unique(folds):
+
+    def fold_sse(k):
         tr, te = folds != k, folds == k
         spec = _Spectrum(up[tr], data.p_z[tr],
                          reduced=None if systems is None else systems.reduced(up[tr], data.p_z[tr],
@@ -319,5 +323,9 @@ def _kfold_lambda(data: _Data, folds, lam_grid, *, systems: PickSystems | None =
         C, D = spec.coefficients(spec.n * lam_grid)
         Kt = tps_kernel(_pairwise_r2(up[te], up[tr]))
         pred = Kt @ C + np.column_stack([np.ones(te.sum()), up[te]]) @ D
-        sse += np.sum((pred - data.p_z[te, None]) ** 2, axis=0)
+        return np.sum((pred - data.p_z[te, None]) ** 2, axis=0)
+
+    sse = np.zeros(len(lam_grid))
+    for part in map_fits(fold_sse, np.unique(folds).tolist(), workers=workers):
+        sse += part
     return float(lam_grid[int(np.argmin(sse))])
