@@ -14,6 +14,7 @@ from strikeline.io.files import json_ready
 from strikeline.attitude import LocalAttitudes, fallback_window_m, local_attitudes
 from strikeline.picks import (PickSet)
 from strikeline.surfaces import SurfaceModel
+from strikeline.stats import typical_gap_m
 from strikeline.maps.thickness import isopach_grids
 from strikeline.maps.trace import (vertex_spacing_m)
 from strikeline.pipeline.inputs import Inputs
@@ -119,7 +120,9 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
         log(note)
     off_dem = None if inputs.dem is None else contacts_off_dem(inputs, log=log, names=names)
     spacing = vertex_spacing_m(inputs.contacts.geoms)
-    blocks = contact_segments(picks, cell_m=grid.cell_x_m, vertex_spacing_m=spacing)
+    # the picks' typical gap (a triangulation of every pick) serves the segments here and the model's folds
+    gap = typical_gap_m(picks.xyz[:, :2])
+    blocks = contact_segments(picks, cell_m=grid.cell_x_m, vertex_spacing_m=spacing, gap_m=gap)
     plane_summary = attitude_of(picks.xyz, sigma, what=what, strict=True, blocks=blocks, **conf_opts)
     if plane_summary["quality"] == "weak":
         log(f"warning: the best-fit plane is weak - {plane_summary['reason']}; "
@@ -145,7 +148,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
         ub = map_unit_bounds(inputs.unit_polygons, inputs.unit_names, inputs.dem, inputs.dem_grid, opts, log=log)
     model = model_surface(picks, opts, grid, boreholes=inputs.boreholes_xyz, orientations=inputs.orientations,
                           bounds=None if ub is None else ub.bounds,
-                          what=what, is_cancelled=is_cancelled, sigma=sigma, vertex_spacing_m=spacing)
+                          what=what, is_cancelled=is_cancelled, sigma=sigma, vertex_spacing_m=spacing, gap_m=gap)
     log_model_choice(model, what="surface model", log=log)
     unit_check = None if ub is None else map_unit_check(model, inputs.unit_polygons, inputs.unit_names, inputs.dem,
                                                         inputs.dem_grid, opts, ub, log=log)

@@ -194,33 +194,37 @@ def surface_grid(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, names: 
                        extent=getattr(opts, "extent", None), crs_wkt=inputs.crs_wkt, log=log, names=names)
 
 
-def contact_segments(picks: PickSet, *, cell_m: float, vertex_spacing_m: float = 0.0) -> np.ndarray:
+def contact_segments(picks: PickSet, *, cell_m: float, vertex_spacing_m: float = 0.0,
+                     gap_m: float | None = None) -> np.ndarray:
     """Label of the contact segment of every pick: the part of one contact inside one square
     block of :func:`strikeline.stats.holdout_block_m` (about the typical distance from the
     mapped ground to the nearest pick, at least two vertex spacings of the mapped lines and three
     cells). Used for cross-validation folds and for the block bootstrap, so that neighbouring
-    picks, which share their errors, stay together."""
-    return segment_labels(picks.xyz, picks.contact_id, cell_m=cell_m, vertex_spacing_m=vertex_spacing_m)
+    picks, which share their errors, stay together. ``gap_m``: the picks'
+    :func:`strikeline.stats.typical_gap_m` when already computed."""
+    return segment_labels(picks.xyz, picks.contact_id, cell_m=cell_m, vertex_spacing_m=vertex_spacing_m, gap_m=gap_m)
 
 
-def segment_labels(xyz, contact_id, *, cell_m: float = 1.0, vertex_spacing_m: float = 0.0) -> np.ndarray:
+def segment_labels(xyz, contact_id, *, cell_m: float = 1.0, vertex_spacing_m: float = 0.0,
+                   gap_m: float | None = None) -> np.ndarray:
     """:func:`contact_segments` for bare arrays: ``xyz`` (n, 3) and a contact id per point
     (non-finite ids count as one contact of their own)."""
     xyz = np.asarray(xyz, dtype=float)
     cid = np.asarray(contact_id, dtype=float)
     cid = np.where(np.isfinite(cid), cid, -1).astype(np.int64)
-    block_m = segment_block_m(xyz, cid, cell_m=cell_m, vertex_spacing_m=vertex_spacing_m) if len(xyz) else 1.0
+    block_m = segment_block_m(xyz, cid, cell_m=cell_m, vertex_spacing_m=vertex_spacing_m,
+                              gap_m=gap_m) if len(xyz) else 1.0
     return segment_groups(xyz[:, 0], xyz[:, 1], cid, block_m=block_m)
 
 
 def segment_block_m(xyz, contact_id, *, cell_m: float, vertex_spacing_m: float = 0.0, trend=None,
-                    sigma=None) -> float:
+                    sigma=None, gap_m: float | None = None) -> float:
     """Side of the contact-segment blocks (:func:`strikeline.stats.holdout_block_m`), with the
     correlation length of the picks' errors along the contacts
     (:func:`strikeline.stats.residual_correlation_m`; residuals from a plane, or from
     ``trend``, the elevation of a smooth fit at each pick)."""
     xyz = np.asarray(xyz, dtype=float)
-    return holdout_block_m(xyz[:, :2], vertex_spacing_m=vertex_spacing_m, cell_m=cell_m,
+    return holdout_block_m(xyz[:, :2], vertex_spacing_m=vertex_spacing_m, cell_m=cell_m, gap_m=gap_m,
                            correlation_m=residual_correlation_m(
                                xyz, contact_id, trend=trend,
                                sigma_m=None if sigma is None else float(np.sqrt(np.mean(np.square(sigma))))))
@@ -240,17 +244,20 @@ def smooth_trend(xyz, sigma) -> np.ndarray | None:
 
 
 def model_surface(picks: PickSet, opts: RunOptions, grid: Grid, *, boreholes=None, orientations=None, bounds=None,
-                  what: str, is_cancelled=None, sigma=None, vertex_spacing_m: float = 0.0) -> SurfaceModel:
+                  what: str, is_cancelled=None, sigma=None, vertex_spacing_m: float = 0.0,
+                  gap_m: float | None = None) -> SurfaceModel:
     """Fit the ``--model`` surface to picks (and constraints), folds by contact segment.
 
     ``sigma`` (one per pick, metres) is the stated pick error the model choice is judged
-    against (default: ``--dem-sigma`` for every pick).
+    against (default: ``--dem-sigma`` for every pick). ``gap_m``: the picks'
+    :func:`strikeline.stats.typical_gap_m` when already computed (it triangulates every pick).
     """
     xyz = picks.xyz
     data_sigma = opts.dem_sigma_m if sigma is None else sigma
     corr = residual_correlation_m(xyz, picks.contact_id, trend=smooth_trend(xyz, data_sigma),
                                   sigma_m=float(np.sqrt(np.mean(np.square(data_sigma)))))
-    block = holdout_block_m(xyz[:, :2], vertex_spacing_m=vertex_spacing_m, cell_m=grid.cell_x_m, correlation_m=corr)
+    block = holdout_block_m(xyz[:, :2], vertex_spacing_m=vertex_spacing_m, cell_m=grid.cell_x_m, correlation_m=corr,
+                            gap_m=gap_m)
     cid = np.asarray(picks.contact_id, dtype=float)
     groups = segment_groups(xyz[:, 0], xyz[:, 1], np.where(np.isfinite(cid), cid, -1).astype(np.int64), block_m=block)
     bh = None

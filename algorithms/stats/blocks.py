@@ -362,7 +362,7 @@ def residual_correlation_m(xyz, contact_id=None, *, trend=None, sigma_m=None,
 
 
 def holdout_block_m(xy, *, vertex_spacing_m: float = 0.0, cell_m: float = 0.0,
-                    correlation_m: float = 0.0) -> float:
+                    correlation_m: float = 0.0, gap_m: float | None = None) -> float:
     """Side of the square blocks that cut contacts into hold-out segments.
 
     ``max(typical_gap_m(xy), 2 × vertex_spacing_m, 2 × correlation_m, MIN_BLOCK_CELLS ×
@@ -383,11 +383,14 @@ def holdout_block_m(xy, *, vertex_spacing_m: float = 0.0, cell_m: float = 0.0,
         Grid cell size, metres.
     correlation_m : float, default 0
         Correlation length of the pick errors along the contacts, metres.
+    gap_m : float, optional
+        ``typical_gap_m(xy)`` when already computed for these picks (it triangulates them all).
 
     Returns
     -------
     float
         Metres (at least 1e-6).
     """
-    return float(max(typical_gap_m(xy), 2.0 * float(vertex_spacing_m), 2.0 * float(correlation_m),
+    gap = typical_gap_m(xy) if gap_m is None else float(gap_m)
+    return float(max(gap, 2.0 * float(vertex_spacing_m), 2.0 * float(correlation_m),
                      MIN_BLOCK_CELLS * float(cell_m), 1e-6))

@@ -192,6 +192,16 @@ def test_holdout_block_is_the_largest_of_gap_vertex_spacing_correlation_and_cell
     assert holdout_block_m(xy, cell_m=50.0) == pytest.approx(150.0)
 
 
+def test_holdout_block_takes_a_gap_already_computed_for_the_same_picks():
+    from strikeline.stats import holdout_block_m
+    x = np.linspace(0, 2000, 801)
+    xy = np.r_[np.c_[x, np.zeros_like(x)], np.c_[x, np.full_like(x, 400.0)]]
+    # Source: the two-line gap above (a quarter of the spacing) given in place of its triangulation
+    assert holdout_block_m(xy, gap_m=TWO_LINES_GAP_M) == TWO_LINES_GAP_M
+    assert holdout_block_m(xy, gap_m=TWO_LINES_GAP_M, correlation_m=150.0) == 300.0
+    assert holdout_block_m(xy, gap_m=holdout_block_m(xy), vertex_spacing_m=1.0) == holdout_block_m(xy)
+
+
 def _moving_average_line(width_steps, n=4000, step_m=5.0, seed=0):
     rng = np.random.default_rng(seed)
     s = np.arange(n) * step_m
