@@ -20,37 +20,20 @@ from __future__ import annotations
 
 import argparse
 import tempfile
-from pathlib import Path
 
 import numpy as np
 
-import _sheets
 from _measure import load_line, machine_line, measured, result_line
-from strikeline.maps.trace import vertex_spacing_m
-from strikeline.pipeline import RunOptions, collect_picks, load_inputs, model_surface, pick_sigmas, surface_grid
+from bench_surfaces import sheet_model_inputs
+from strikeline.pipeline import model_surface
 from strikeline.surfaces import parallel
-
-SIZE_M = 15_000.0
-
-
-def sheet(tmp, n: int, surface: str):
-    folder = Path(tmp) / surface
-    folder.mkdir()
-    f = (_sheets.plane_surface if surface == "plane" else _sheets.fold_surface)(SIZE_M)
-    _sheets.write_traces(folder / "contacts.gpkg", SIZE_M, [f])
-    _sheets.write_dem(folder / "dem.tif", n, SIZE_M)
-    opts = RunOptions(contacts=str(folder / "contacts.gpkg"), dem=str(folder / "dem.tif"), out=str(folder / "out"))
-    inputs = load_inputs(opts)
-    picks = collect_picks(inputs, spacing_m=opts.pick_spacing_m)
-    return dict(picks=picks, opts=opts, grid=surface_grid(inputs, opts), what=surface,
-                sigma=pick_sigmas(inputs, picks, opts), vertex_spacing_m=vertex_spacing_m(inputs.contacts.geoms))
 
 
 def step(args, workers: int):
     parallel.FIT_WORKERS = workers
+    kw = dict(args)
     with measured() as m:
-        model = model_surface(args["picks"], args["opts"], args["grid"], what=args["what"], sigma=args["sigma"],
-                              vertex_spacing_m=args["vertex_spacing_m"])
+        model = model_surface(kw.pop("picks"), kw.pop("opts"), kw.pop("grid"), **kw)
     return model, m
 
 
@@ -64,7 +47,7 @@ def main():
     two = parallel.FIT_WORKERS
     with tempfile.TemporaryDirectory(prefix="strikeline-bench-fit-workers-") as tmp:
         for surface in ("plane", "fold"):
-            a = sheet(tmp, args.cells, surface)
+            a = sheet_model_inputs(tmp, args.cells, surface)
             print(f"workload: {surface} bench sheet, {args.cells:,}^2 DEM cells, {len(a['picks'].xyz):,} picks; "
                   f"model_surface, fits in a loop (reference) and {two} at a time, alternately x {max(1, args.repeat)}")
             best = {}

@@ -80,16 +80,15 @@ def make_picks(n_picks, rng):
     return np.column_stack([xy, z]), np.concatenate(ids)
 
 
-def sheet_steps(tmp, n: int, surface: str, repeat: int) -> dict:
-    """CPU seconds of the model and grid steps of one bench sheet (``surface``: plane or fold)."""
-    import time
+def sheet_model_inputs(tmp, n: int, surface: str) -> dict:
+    """The arguments of :func:`strikeline.pipeline.model_surface` for one bench sheet of ``n`` x
+    ``n`` DEM cells (``surface``: plane or fold), its picks collected as a run collects them;
+    ``picks``, ``opts`` and ``grid`` first, then the keywords."""
     from pathlib import Path
 
     import _sheets
-    from strikeline.maps import dip_grids
     from strikeline.maps.trace import vertex_spacing_m
-    from strikeline.pipeline import (RunOptions, collect_picks, load_inputs, model_surface, pick_sigmas,
-                                     surface_grid)
+    from strikeline.pipeline import RunOptions, collect_picks, load_inputs, pick_sigmas, surface_grid
     size_m = 15_000.0
     folder = Path(tmp) / surface
     folder.mkdir()
@@ -99,10 +98,20 @@ def sheet_steps(tmp, n: int, surface: str, repeat: int) -> dict:
     opts = RunOptions(contacts=str(folder / "contacts.gpkg"), dem=str(folder / "dem.tif"), out=str(folder / "out"))
     inputs = load_inputs(opts)
     picks = collect_picks(inputs, spacing_m=opts.pick_spacing_m)
-    grid = surface_grid(inputs, opts)
+    return dict(picks=picks, opts=opts, grid=surface_grid(inputs, opts), what=surface,
+                sigma=pick_sigmas(inputs, picks, opts), vertex_spacing_m=vertex_spacing_m(inputs.contacts.geoms))
+
+
+def sheet_steps(tmp, n: int, surface: str, repeat: int) -> dict:
+    """CPU seconds of the model and grid steps of one bench sheet (``surface``: plane or fold)."""
+    import time
+
+    from strikeline.maps import dip_grids
+    from strikeline.pipeline import model_surface
+    args = sheet_model_inputs(tmp, n, surface)
+    picks, opts, grid = args.pop("picks"), args.pop("opts"), args.pop("grid")
     t0 = time.process_time()
-    model = model_surface(picks, opts, grid, what=surface, sigma=pick_sigmas(inputs, picks, opts),
-                          vertex_spacing_m=vertex_spacing_m(inputs.contacts.geoms))
+    model = model_surface(picks, opts, grid, **args)
     out = {"model": time.process_time() - t0, "kind": model.kind, "n": len(picks.xyz)}
     for name in ("evaluate_grid", "standard_error_grid", "dip_grids"):
         out[name] = float("inf")

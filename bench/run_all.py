@@ -42,6 +42,7 @@ SUITE = (
     ("bench_thinning.py", [], [], 5),
     ("bench_local_coverage.py", ["--replicates", "5"], ["--replicates", "1"], 60),
     ("bench_surfaces.py", [], ["--picks", "3000", "--cells", "200", "--max-points", "300"], 70),
+    ("bench_fit_workers.py", [], ["--cells", "500", "--repeat", "1"], 60),
     ("bench_uncertainty.py", [], ["--cells", "300"], 30),
     ("bench_read.py", [], ["--cells", "500"], 10),
     ("bench_writes.py", [], ["--cells", "300"], 25),
