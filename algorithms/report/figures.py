@@ -16,6 +16,7 @@ import numpy as np
 import shapely
 
 from strikeline.report.palette import CONTACT, DEPTH_CMAP, ELEVATION_CMAP, FLAG, MAGNITUDE_CMAP, TRACE
+from strikeline.report.sentences import number
 from strikeline.report.stereonet import draw_attitudes, draw_net, equal_area_xy
 from strikeline.geometry.orientation import pole_from_dip
 
@@ -209,7 +210,7 @@ def map_figure(d) -> bytes:
         for i in _label_lines(d.contours.geoms, elev, getattr(d.contours, "length", None)):
             pt = middle[i] if middle is not None else shapely.line_interpolate_point(d.contours.geoms[i], 0.5,
                                                                                       normalized=True)
-            ax.text(shapely.get_x(pt), shapely.get_y(pt), f"{elev[i]:g}", fontsize=7, ha="center", va="center",
+            ax.text(shapely.get_x(pt), shapely.get_y(pt), number(elev[i], "g"), fontsize=7, ha="center", va="center",
                     zorder=6, bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none", alpha=0.85), clip_on=True)
     if d.misfit is not None and len(d.misfit):
         fl = d.misfit.fields.get("flagged", np.zeros(len(d.misfit), bool))
@@ -286,7 +287,7 @@ def residuals_figure(d) -> bytes:
         ax.hist(r[ok], bins=max(10, min(60, int(np.sqrt(ok.sum())))), color="0.55", edgecolor="0.15", lw=0.5)
         rms = float(np.sqrt(np.mean(r[ok] ** 2)))
         ax.axvline(0.0, color="black", lw=1.0)
-        ax.set_title(f"{ok.sum()} picks: median {np.median(r[ok]):+.2f} m, RMS {rms:.2f} m")
+        ax.set_title(f"{ok.sum()} picks: median {number(np.median(r[ok]), '+.2f')} m, RMS {number(rms)} m")
     ax.set_xlabel("pick elevation minus the modelled surface (m)")
     ax.set_ylabel("number of picks")
     mx = fig.add_axes([0.52, 0.13, 0.36, 0.77])
@@ -357,7 +358,7 @@ def thickness_figure(d) -> bytes:
     for key, ls, word in (("mean_m", "-", "mean"), ("p10_m", (0, (4, 2)), "10th percentile"),
                           ("p90_m", (0, (1, 2)), "90th percentile")):
         if t.get(key) is not None:
-            ax.axvline(t[key], color="black", ls=ls, lw=1.4, label=f"{word} {t[key]:.1f} m")
+            ax.axvline(t[key], color="black", ls=ls, lw=1.4, label=f"{word} {number(t[key], '.1f')} m")
     ax.set_xlabel("true thickness (m)")
     ax.set_ylabel("number of cells (a regular sample)")
     ax.set_title("True thickness between the base and the top")

@@ -13,7 +13,7 @@ from pathlib import Path
 
 from strikeline import CAUTION, __version__
 from strikeline import vocabulary as V
-from strikeline.report.sentences import MODEL_WORDS, answer_sentences, plain_answer, plane_words  # noqa: F401
+from strikeline.report.sentences import MODEL_WORDS, answer_sentences, number, plain_answer, plane_words  # noqa: F401
 
 #: What a reader sees when matplotlib is missing (one log line; the run still succeeds).
 MISSING_PLOT = (f"report: {V.REPORT_FILE} not written because matplotlib is not installed; install the plot "
@@ -71,16 +71,16 @@ def figure_list(d) -> list[tuple[str, str, object, str]]:
               "above the ground (eroded)." if d.ground is not None else
               "The modelled surface's elevation (no DEM: no relief or depth).")
     out.append(("map", "The sheet", F.map_figure,
-                relief + (f" Structure contours every {interval:g} m are labelled with their elevation in metres; "
+                relief + (f" Structure contours every {number(interval, 'g')} m are labelled with their elevation in metres; "
                           "solid within the reach of the data"
-                          + (f" ({reach:.0f} m)" if reach else "") + ", dashed where forecast beyond it."
+                          + (f" ({number(reach, '.0f')} m)" if reach else "") + ", dashed where forecast beyond it."
                           if interval else "")
                 + " Picks are coloured by elevation; the predicted outcrop trace is dash-dotted (dotted where "
                 "forecast); contact segments flagged by the misfit check carry a wide pale band." + shown))
     pl = s.get("plane") or {}
     if pl.get("dip_deg") is not None or d.attitudes:
         cone = (f" The sheet's plane: its pole (star) with the 95% confidence cone of half-angle "
-                f"{pl['cone95_deg']:.2f}° (circle) and the plane itself (dashed great circle)."
+                f"{number(pl['cone95_deg'])}° (circle) and the plane itself (dashed great circle)."
                 if pl.get("cone95_deg") is not None else "")
         out.append(("stereonet", "Attitudes on the equal-area net", F.stereonet_figure,
                     "Poles of the local attitudes (filled circles: good; open: weak) and of the group planes "
@@ -97,9 +97,9 @@ def figure_list(d) -> list[tuple[str, str, object, str]]:
         m = s["model"]
         ch = m.get("choice") or {}
         out.append(("models", "Surface models and the choice", F.models_figure,
-                    f"Each model's error on picks held out in blocks of {m.get('holdout_block_m', 0):.0f} m "
+                    f"Each model's error on picks held out in blocks of {number(m.get('holdout_block_m', 0), '.0f')} m "
                     f"(cross-validation RMSE, {m.get('n_folds', '?')} folds). "
-                    + (f"Choice rule: {ch.get('rule')}; tolerance {ch['tolerance_m']:.2f} m. "
+                    + (f"Choice rule: {ch.get('rule')}; tolerance {number(ch['tolerance_m'])} m. "
                        if ch.get("tolerance_m") is not None else "")
                     + f"{ch.get('reason') or m.get('check_model_reason') or ''}."))
     t = s.get("thickness") or {}
@@ -126,7 +126,7 @@ def _run_table(s: dict) -> str:
     for key, word in (("dem_sigma_m", "DEM vertical standard error"), ("contour_sigma_m", "contour positional error"),
                       ("contact_sigma_m", "contact positional error")):
         if de.get(key) is not None:
-            rows.append((word, f"{de[key]:g} m"))
+            rows.append((word, f"{number(de[key], 'g')} m"))
     if s.get("conventions"):
         rows.append(("conventions", s["conventions"]))
     return "<table>" + "".join(f"<tr><th>{_e(a)}</th><td>{_e(b)}</td></tr>" for a, b in rows) + "</table>"

@@ -9,6 +9,8 @@ Imports neither matplotlib, GDAL nor QGIS: the sentences need no drawing.
 """
 from __future__ import annotations
 
+import re
+
 from strikeline import CAUTION
 from strikeline import vocabulary as V
 
@@ -18,6 +20,28 @@ MAX_IDS = 10
 #: The surface models in words.
 MODEL_WORDS = {"plane": "a plane", "trend2": "a quadratic trend surface",
                "spline": "a thin-plate smoothing spline"}
+
+
+_SPEC = re.compile(r"([+ -]?)(\.\d+)?([efg%])")
+
+
+def number(value, spec: str = ".2f") -> str:
+    """``value`` formatted by ``spec`` (an optional sign, ``.precision`` and one of ``e f g %``),
+    without a sign on a number that rounds to zero: Python's ``z`` option (PEP 682, "Normalizing
+    negative zero in formatting", Python 3.11) for the minus sign, and no ``+`` on a zero either.
+    Every number of the report's figures and captions goes through it.
+
+    >>> number(-0.004), number(-0.004, "+.2f"), number(-0.006, "+.2f"), number(-0.0, "g")
+    ('0.00', '0.00', '-0.01', '0')
+    """
+    m = _SPEC.fullmatch(spec)
+    if m is None:
+        raise ValueError(f"number format {spec!r} is not a sign, a precision and one of e, f, g, %")
+    sign, precision, kind = m.groups()
+    text = format(float(value), f"{sign}z{precision or ''}{kind}")
+    if text[:1] in "+ " and not any(c in "123456789" for c in text.split("e")[0]):
+        text = text[1:]
+    return text
 
 
 def _limits(value, half, unit="°", *, azimuth: bool = False) -> str:

@@ -14,6 +14,7 @@ import functools
 
 import numpy as np
 
+from strikeline.report.sentences import number
 from strikeline.geometry.orientation import pole_from_dip, trend_plunge_from_vector, vector_from_trend_plunge
 
 
@@ -153,7 +154,7 @@ def draw_attitudes(ax, *, local=None, plane=None, groups=(), pole_size: float = 
             h = None
             for cx, cy in _split_at_rim(*equal_area_xy(ct, cp)):
                 (h,) = ax.plot(cx, cy, color="black", lw=1.6, zorder=8,
-                               label=f"its 95% confidence cone ({plane['cone95_deg']:.2f}°)")
+                               label=f"its 95% confidence cone ({number(plane['cone95_deg'])}°)")
             if h is not None:
                 handles.append(h)
         gt, gp = great_circle(plane["dip_deg"], ddir)
