@@ -13,7 +13,7 @@ from pathlib import Path
 
 from strikeline import CAUTION, __version__
 from strikeline import vocabulary as V
-from strikeline.report.sentences import MODEL_WORDS, answer_sentences, number, plain_answer, plane_words  # noqa: F401
+from strikeline.report.sentences import MODEL_WORDS, RULE_WORDS, answer_sentences, number, plain_answer, plane_words  # noqa: F401
 
 #: What a reader sees when matplotlib is missing (one log line; the run still succeeds).
 MISSING_PLOT = (f"report: {V.REPORT_FILE} not written because matplotlib is not installed; install the plot "
@@ -99,8 +99,9 @@ def figure_list(d) -> list[tuple[str, str, object, str]]:
         out.append(("models", "Surface models and the choice", F.models_figure,
                     f"Each model's error on picks held out in blocks of {number(m.get('holdout_block_m', 0), '.0f')} m "
                     f"(cross-validation RMSE, {m.get('n_folds', '?')} folds). "
-                    + (f"Choice rule: {ch.get('rule')}; tolerance {number(ch['tolerance_m'])} m. "
-                       if ch.get("tolerance_m") is not None else "")
+                    + (f"How the model is chosen: {RULE_WORDS[ch['rule']]}"
+                       + (f" (here {number(ch['tolerance_m'])} m)" if ch.get("tolerance_m") else "") + ". "
+                       if ch.get("rule") in RULE_WORDS else "")
                     + f"{ch.get('reason') or m.get('check_model_reason') or ''}."))
     t = s.get("thickness") or {}
     if t.get("mean_m") is not None:

@@ -44,6 +44,17 @@ def number(value, spec: str = ".2f") -> str:
     return text
 
 
+#: Each rule of the model choice (:data:`strikeline.stats.choice.SELECTION_RULES`, the ``rule``
+#: of summary.json's ``model.choice``) in words, for the report's caption.
+RULE_WORDS = {
+    "data_error": ("the simplest model is kept whose error exceeds the best one's by no more than the larger of "
+                   "the best one's standard error and the stated error of a pick, unless its trimmed error fails "
+                   "a chi-square test against that stated error while a more flexible model passes"),
+    "one_se": "the simplest model is kept whose error exceeds the best one's by no more than one standard error",
+    "min": "the model with the lowest error is kept",
+}
+
+
 def _limits(value, half, unit="°", *, azimuth: bool = False) -> str:
     """``value`` with its 95% limits; an azimuth's limits are taken modulo 360.
 
