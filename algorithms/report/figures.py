@@ -34,6 +34,9 @@ PNG_LEVEL = 3
 #: Lines are simplified before drawing to this fraction of a pixel of their figure (Douglas and
 #: Peucker 1973): a structure contour traced on a fine grid has many vertices per pixel.
 SIMPLIFY_PX = 0.05
+#: Size of the models chart's trimmed-error markers, and the gap between a row's furthest mark and its
+#: value label, in points.
+MODEL_MARKER_PT = 7.0
 #: Where the map's axes sit in its figure (left, bottom, width, height as fractions).
 MAP_AXES = (0.07, 0.13, 0.72, 0.82)
 
@@ -321,27 +324,29 @@ def models_figure(d) -> bytes:
     fig = _figure("models")
     ax = fig.add_axes([0.12, 0.16, 0.55, 0.72])
     ys = np.arange(len(names))
+    trimmed = (m.get("choice") or {}).get("chi2") or {}
+    tx = np.array([(trimmed.get(k) or {}).get("trimmed_rms_m") for k in names], dtype=float)
+    right = np.fmax(rmse + se, tx)  # the right end of each row's bar, error bar and marker
     for i, k in enumerate(names):
         chosen = k == m.get("chosen")
         ax.barh(i, rmse[i], xerr=se[i], height=0.6, color="0.25" if chosen else "0.82", edgecolor="black",
                 hatch="" if chosen else "//", capsize=4, error_kw=dict(lw=1.0),
                 label="chosen model" if chosen else None)
-        ax.text(rmse[i] + se[i], i, f"  {rmse[i]:.2f} m" + ("  (chosen)" if chosen else ""), va="center", fontsize=9)
-    trimmed = (m.get("choice") or {}).get("chi2") or {}
-    if trimmed:
-        tx = [trimmed.get(k, {}).get("trimmed_rms_m") for k in names]
-        keep = [i for i, v in enumerate(tx) if v is not None]
-        ax.plot([tx[i] for i in keep], [ys[i] for i in keep], ls="none", marker="D", mfc="white", mec="black",
-                ms=7, label="trimmed error the choice compares")
+        # the value right of everything drawn on its row, a marker's width further (offset in points)
+        ax.annotate(f"RMSE {number(rmse[i])} m" + ("  (chosen)" if chosen else ""), (right[i], i),
+                    xytext=(MODEL_MARKER_PT, 0), textcoords="offset points", va="center", fontsize=9)
+    keep = np.flatnonzero(np.isfinite(tx))
+    if len(keep):
+        ax.plot(tx[keep], ys[keep], ls="none", marker="D", mfc="white", mec="black", ms=MODEL_MARKER_PT,
+                label="trimmed error the choice compares")
         tol = (m.get("choice") or {}).get("tolerance_m")
-        good = [tx[i] for i in keep]
-        if tol is not None and good:
-            ax.axvline(min(good) + tol, color="black", ls=(0, (2, 2)), lw=1.2,
+        if tol is not None:
+            ax.axvline(float(np.min(tx[keep])) + tol, color="black", ls=(0, (2, 2)), lw=1.2,
                        label="best trimmed error + tolerance")
     ax.set_yticks(ys, [f"{k}" for k in names])
     ax.set_xlabel("cross-validation error, RMSE of held-out picks (m); bars: ± one standard error")
     ax.set_title(f"Surface models compared; chosen: {m.get('chosen')}")
-    ax.set_xlim(0, max(float(np.max(rmse + se)) if len(rmse) else 1.0, 1e-9) * 1.35)
+    ax.set_xlim(0, max(float(np.nanmax(right)) if len(right) else 1.0, 1e-9) * 1.35)
     ax.legend(loc="upper left", bbox_to_anchor=(1.02, 1.0), frameon=False)
     return png_bytes(fig)
 

@@ -100,9 +100,10 @@ def figure_list(d) -> list[tuple[str, str, object, str]]:
                     f"Each model's error on picks held out in blocks of {number(m.get('holdout_block_m', 0), '.0f')} m "
                     f"(cross-validation RMSE, {m.get('n_folds', '?')} folds). "
                     + (f"How the model is chosen: {RULE_WORDS[ch['rule']]}"
-                       + (f" (here {number(ch['tolerance_m'])} m)" if ch.get("tolerance_m") else "") + ". "
+                       + (f"; the tolerance here is {number(ch['tolerance_m'])} m" if ch.get("tolerance_m") else "")
+                       + ". "
                        if ch.get("rule") in RULE_WORDS else "")
-                    + f"{ch.get('reason') or m.get('check_model_reason') or ''}."))
+                    + _trimmed_words(ch) + _sentence(ch.get('reason') or m.get('check_model_reason'))))
     t = s.get("thickness") or {}
     if t.get("mean_m") is not None:
         n = 0 if d.thickness_sample is None else len(d.thickness_sample)
@@ -112,6 +113,28 @@ def figure_list(d) -> list[tuple[str, str, object, str]]:
                     f"percentiles of summary.json, over {t['n_cells']} cells within reach of data of both "
                     "surfaces."))
     return out
+
+
+def _sentence(text) -> str:
+    """``text`` ended with a full stop (nothing for no text)."""
+    return f"{text}." if text else ""
+
+
+def _trimmed_words(choice: dict) -> str:
+    """What the models chart's diamonds are, and why one can lie beyond its bar (when drawn)."""
+    from strikeline.stats.choice import _TRIMMED_NORMAL_VAR, TRIM_FRACTION
+
+    if not any((v or {}).get("trimmed_rms_m") is not None for v in (choice.get("chi2") or {}).values()):
+        return ""
+    kept = 1.0 - TRIM_FRACTION
+    return (f"Diamonds: the trimmed error the choice compares: the mean square of a model's held-out errors "
+            f"without the largest {number(100 * TRIM_FRACTION, '.0f')}% of them, divided by "
+            f"{number(_TRIMMED_NORMAL_VAR, '.3f')} (the variance of a normal distribution cut to its central "
+            f"{number(100 * kept, '.0f')}%), and its square root taken, so that it estimates the standard deviation "
+            "of normally distributed errors. It lies "
+            "below the plain RMSE when a few picks are far off, and above it (at most "
+            f"{number(1.0 / _TRIMMED_NORMAL_VAR ** 0.5)} times) when the errors are more even than normal ones, as "
+            "when a model misses the shape of the contact everywhere. ")
 
 
 def _run_table(s: dict) -> str:

@@ -91,3 +91,72 @@ def test_the_choice_rule_is_told_in_words_for_every_rule():
         assert RULE_WORDS[rule] in caption, rule
         # no rule's code name on the page (data_error, one_se, min)
         assert not any(re.search(rf"\b{ident}\b", caption) for ident in rules), caption
+
+
+#: The trial's fold sheet (cross-validation RMSE, its standard error and the trimmed RMS by model):
+#: a trimmed error above the RMSE for the plane and the quadratic trend, far below it for the spline.
+FOLD_MODELS = {"plane": (83.75, 7.5, 97.2), "trend2": (57.95, 5.6, 70.8), "spline": (9.46, 1.8, 2.2)}
+
+
+def _models_summary(rows, chosen):
+    return {"model": {"chosen": chosen, "cv_rmse_m": {k: v[0] for k, v in rows.items()},
+                      "cv_se_m": {k: v[1] for k, v in rows.items()}, "holdout_block_m": 500.0, "n_folds": 5,
+                      "choice": {"rule": "data_error", "tolerance_m": 2.06,
+                                 "chi2": {k: {"trimmed_rms_m": v[2]} for k, v in rows.items()}}}}
+
+
+def _point_extents(line, renderer):
+    """matplotlib's window extent of each point of a Line2D drawn alone (its marker's size included)."""
+    xs, ys = line.get_xdata(), line.get_ydata()
+    out = []
+    for x, y in zip(np.atleast_1d(xs), np.atleast_1d(ys)):
+        line.set_data([x], [y])
+        out.append(line.get_window_extent(renderer))
+    line.set_data(xs, ys)
+    return out
+
+
+@pytest.mark.parametrize("rows", [FOLD_MODELS,
+                                  {"plane": (10.0, 1.0, 10.6), "trend2": (8.0, 0.5, 8.0), "spline": (7.0, 0.3, 11.5)},
+                                  {"plane": (5.0, 0.0, 4.0), "spline": (4.0, 2.0, 6.6)}])
+def test_the_model_values_are_clear_of_every_mark(drawn, rows):
+    fig = drawn(F.models_figure, SimpleNamespace(summary=_models_summary(rows, "spline")))
+    ax = fig.axes[0]
+    renderer = fig.canvas.get_renderer()
+    labels = [t for t in ax.texts if t.get_text().strip()]
+    assert len(labels) == len(rows)
+    # Reference: matplotlib's Agg renderer extents of each label and of each drawn point (trimmed-error
+    # markers, error-bar caps and ends), one by one
+    marks = [b for line in ax.lines if len(np.atleast_1d(line.get_xdata())) for b in _point_extents(line, renderer)]
+    frame = ax.get_window_extent(renderer)
+    for t in labels:
+        box = t.get_window_extent(renderer)
+        hit = [m for m in marks if box.overlaps(m)]
+        assert not hit, (t.get_text(), box, hit)
+        assert frame.x0 <= box.x0 and box.x1 <= frame.x1, (t.get_text(), box, frame)  # inside the chart
+
+
+def test_the_caption_says_what_the_trimmed_error_is_and_how_far_above_the_rmse_it_can_lie():
+    from scipy.stats import norm, truncnorm
+
+    from strikeline.report.page import figure_list
+    from strikeline.stats.choice import trimmed_mean_square
+
+    d = SimpleNamespace(summary=_models_summary(FOLD_MODELS, "spline"), picks=None, ground=None, attitudes=None,
+                        thickness_sample=None)
+    caption = dict((n, c) for n, _, _, c in figure_list(d))["models"]
+    # Source: scipy.stats.truncnorm, the variance of a standard normal cut to its central 75 %
+    q = norm.ppf(0.875)
+    var = truncnorm(-q, q).var()
+    bound = 1.0 / np.sqrt(var)
+    # (the caption's 0.368 is strikeline's constant 0.368393, which differs from scipy's 0.368524 in its
+    # fourth digit: the caption's three digits are within 0.001 either way)
+    stated = float(re.search(r"divided by (\d\.\d+)", caption).group(1))
+    assert abs(stated - var) < 1e-3 and f"at most {bound:.2f} times" in caption, caption
+    # the bound is reached: errors all of one size (more even than normal) give a trimmed error that
+    # many times their RMS; the trimmed error the choice computes is that
+    e = np.full(400, 3.0)
+    assert np.sqrt(trimmed_mean_square(e)) / 3.0 == pytest.approx(bound, rel=1e-3)  # (its constant, above)
+    # without trimmed errors (another rule) the chart has no diamonds and the caption no such words
+    d.summary["model"]["choice"] = {"rule": "one_se", "tolerance_m": 1.0, "chi2": {}}
+    assert "Diamonds" not in dict((n, c) for n, _, _, c in figure_list(d))["models"]
