@@ -16,6 +16,10 @@ from strikeline.pipeline.inputs import Inputs, input_record
 
 #: The roles whose inputs may be several (a list in ``inputs`` of the summary).
 LIST_ROLES = ("contacts", "top_contacts")
+#: Why a contact segment was not checked against the surface forecast without it, in words (one
+#: clause inside the printed sentence's brackets, so no brackets of its own).
+UNCHECKED_REASON = ("off the DEM, or at the edge of the mapped ground, where a spline fitted without them "
+                    "reaches only by extrapolating")
 #: Every role, in the order the summary lists them.
 INPUT_ROLES = ("contacts", "dem", "contours", "boreholes", "orientations", "top_contacts", "map_units")
 
@@ -101,8 +105,7 @@ def build_summary(inputs: Inputs, opts: RunOptions, picks: PickSet, plane: dict,
                                      "flagged_contact_ids": sorted({int(c) for c, f in zip(
                                          segments["contact_id"], segments["flagged"]) if f}),
                                      "n_unchecked": int(np.sum(unchecked)),
-                                     "unchecked_reason": "off the DEM, or only reachable by extrapolating a spline "
-                                                         "fitted without them (at the edge of the mapped ground)"}
+                                     "unchecked_reason": UNCHECKED_REASON}
     if trace_flags is not None and len(trace_flags):
         summary["predicted_trace"] = {"n_lines": int(len(trace_flags)), "n_extrapolated": int(np.sum(trace_flags))}
     if thickness is not None:

@@ -97,3 +97,24 @@ def test_the_report_page_lists_the_same_sentences(demo_command_run):
     answer = re.search(r'<ul class="answer">(.*?)</ul>', page, re.S).group(1)
     items = [html.unescape(x) for x in re.findall(r"<li>(.*?)</li>", answer, re.S)]
     assert [html.unescape(caution), *items] == plain_answer(summary)
+
+
+def _depth(text):
+    depth = most = 0
+    for c in text:
+        depth += (c == "(") - (c == ")")
+        most = max(most, depth)
+    return most
+
+
+def test_the_unchecked_segments_sentence_has_no_brackets_within_brackets():
+    from strikeline.pipeline.summary import UNCHECKED_REASON
+
+    # common practice (plain-language style guides): no brackets nested inside brackets
+    cm = {"n_flagged": 3, "n_segments": 400, "segment_m": 100.0, "check": {"flag_rule": "|z| > 3"},
+          "flagged_contact_ids": [4, 9], "n_unchecked": 107, "unchecked_reason": UNCHECKED_REASON}
+    lines = answer_sentences(_summary(contact_misfit=cm))
+    text = next(t for t in lines if "not checked" in t)
+    assert f"107 were not checked ({UNCHECKED_REASON})" in text
+    assert _depth(text) == 1 and text.count("(") == text.count(")"), text
+    assert all(_depth(t) <= 1 for t in lines), [t for t in lines if _depth(t) > 1]
