@@ -37,6 +37,9 @@ SIMPLIFY_PX = 0.05
 #: Size of the models chart's trimmed-error markers, and the gap between a row's furthest mark and its
 #: value label, in points.
 MODEL_MARKER_PT = 7.0
+#: Drawing order of the map's contour labels: above every line and pick (the contacts 5, picks 6,
+#: predicted trace 8), so a contact drawn through a label cannot hide its digits.
+LABEL_ZORDER = 9
 #: Where the map's axes sit in its figure (left, bottom, width, height as fractions).
 MAP_AXES = (0.07, 0.13, 0.72, 0.82)
 
@@ -203,6 +206,8 @@ def map_figure(d) -> bytes:
         cax = fig.add_axes([0.84, 0.58, 0.022, 0.36])
         fig.colorbar(im, cax=cax).set_label("elevation of the modelled surface (m)")
     if d.contours is not None and len(d.contours):
+        from matplotlib.patheffects import withStroke
+
         ex = d.contours.fields.get("extrapolated", np.zeros(len(d.contours), bool))
         elev = np.asarray(d.contours.fields["elevation_m"], dtype=float)
         contour_lines(d.contours.geoms[~ex], color="0.08", lw=0.9, zorder=3,
@@ -214,7 +219,8 @@ def map_figure(d) -> bytes:
             pt = middle[i] if middle is not None else shapely.line_interpolate_point(d.contours.geoms[i], 0.5,
                                                                                       normalized=True)
             ax.text(shapely.get_x(pt), shapely.get_y(pt), number(elev[i], "g"), fontsize=7, ha="center", va="center",
-                    zorder=6, bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none", alpha=0.85), clip_on=True)
+                    zorder=LABEL_ZORDER, bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none", alpha=0.85),
+                    path_effects=[withStroke(linewidth=2.0, foreground="white")], clip_on=True)
     if d.misfit is not None and len(d.misfit):
         fl = d.misfit.fields.get("flagged", np.zeros(len(d.misfit), bool))
         lines(d.misfit.geoms[fl], color="black", lw=13.0, solid_capstyle="butt", zorder=4)

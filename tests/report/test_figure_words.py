@@ -160,3 +160,42 @@ def test_the_caption_says_what_the_trimmed_error_is_and_how_far_above_the_rmse_i
     # without trimmed errors (another rule) the chart has no diamonds and the caption no such words
     d.summary["model"]["choice"] = {"rule": "one_se", "tolerance_m": 1.0, "chi2": {}}
     assert "Diamonds" not in dict((n, c) for n, _, _, c in figure_list(d))["models"]
+
+
+class _Lines(SimpleNamespace):
+    """Lines of a layer as the report reads them: ``geoms`` and ``fields``, and their count."""
+
+    def __len__(self):
+        return len(self.geoms)
+
+
+def _sheet(cross_x):
+    """A flat 100 m sheet with one structure contour at 750 m along y = 50, and a mapped contact with
+    dense picks running north-south at x = ``cross_x``."""
+    import shapely
+
+    ys = np.linspace(0.0, 100.0, 400)
+    return SimpleNamespace(
+        ground=SimpleNamespace(values=np.zeros((100, 100)), cell_m=1.0, extent=(0.0, 100.0, 0.0, 100.0)),
+        surface=None, depth=None, misfit=None, trace=None,
+        contours=_Lines(geoms=np.array([shapely.LineString([(0, 50), (100, 50)])], dtype=object),
+                        fields={"elevation_m": np.array([750.0])}),
+        contacts=_Lines(geoms=np.array([shapely.LineString([(cross_x, 0), (cross_x, 100)])], dtype=object)),
+        picks={"x": np.full(ys.size, float(cross_x)), "y": ys, "z": ys})
+
+
+def test_a_contour_label_stays_legible_where_a_contact_and_its_picks_cross_it(drawn):
+    def pixels(cross_x):
+        fig = drawn(F.map_figure, _sheet(cross_x))
+        label = next(t for t in fig.axes[0].texts if t.get_text() == "750")
+        box = label.get_window_extent(fig.canvas.get_renderer())
+        rgba = np.asarray(fig.canvas.buffer_rgba()).astype(int)
+        h = rgba.shape[0]
+        return rgba[int(h - box.y1):int(np.ceil(h - box.y0)), int(box.x0):int(np.ceil(box.x1)), :3]
+
+    through, away = pixels(50.0), pixels(20.0)  # the label sits at x = 50 (the contour's middle)
+    assert through.shape == away.shape
+    # Reference: matplotlib's Agg rendering of the same label with the contact and picks elsewhere;
+    # drawn over them (zorder, matplotlib's drawing order) the label's box differs only by what its
+    # 85%-opaque background lets through: at most 15% of 255
+    assert np.abs(through - away).max() <= 0.15 * 255 + 1, np.abs(through - away).max()
