@@ -251,16 +251,58 @@ def map_figure(d) -> bytes:
     return png_bytes(fig)
 
 
+def _pole_xy(local, groups) -> np.ndarray:
+    """Net coordinates of every pole the net draws: the local attitudes' with a dip direction and
+    the group planes'."""
+    xy = []
+    for dip, ddir in (local or {}).values():
+        dip, ddir = np.asarray(dip, float), np.asarray(ddir, float)
+        ok = np.isfinite(dip) & np.isfinite(ddir)
+        xy += list(zip(*equal_area_xy(*pole_from_dip(ddir[ok], dip[ok]))))
+    for _, g in groups:
+        if g.get("dip_direction_deg") is not None and g.get("dip_deg") is not None:
+            xy.append(tuple(float(v) for v in equal_area_xy(*pole_from_dip(g["dip_direction_deg"], g["dip_deg"]))))
+    return np.asarray(xy, float).reshape(-1, 2)
+
+
+#: Grid spacings (degrees) the close-up chooses from, and the most grid intervals across it.
+CLOSEUP_STEPS_DEG = (1.0, 2.0, 5.0, 10.0)
+CLOSEUP_MAX_LINES = 16
+
+
+def closeup_window(centre, half: float, points) -> tuple[tuple[float, float, float, float], float]:
+    """The close-up's square ``(xmin, xmax, ymin, ymax)`` on the net: ``half`` either side of
+    ``centre`` (the sheet's pole), grown to hold every one of ``points`` (net coordinates) with a
+    margin of a twelfth of its width each side; and the spacing in degrees of its grid (the finest of
+    :data:`CLOSEUP_STEPS_DEG` with at most :data:`CLOSEUP_MAX_LINES` intervals across: near the
+    centre of the net one degree spans about sqrt(2) sin(0.5 deg) = 0.0123 of its radius).
+
+    >>> [round(v, 4) for v in closeup_window((0.0, 0.0), 0.05, [(0.2, 0.0)])[0]]
+    [-0.075, 0.225, -0.15, 0.15]
+    """
+    pts = np.vstack([np.asarray(points, float).reshape(-1, 2),
+                     [[centre[0] - half, centre[1] - half], [centre[0] + half, centre[1] + half]]])
+    lo, hi = pts.min(axis=0), pts.max(axis=0)
+    side = float(np.max(hi - lo))
+    if side > 2.0 * half:  # a pole beyond the cone's square: a margin around them all
+        side *= 1.2
+    mid = (lo + hi) / 2.0
+    window = (float(mid[0] - side / 2), float(mid[0] + side / 2), float(mid[1] - side / 2), float(mid[1] + side / 2))
+    degree = np.sqrt(2.0) * np.sin(np.radians(0.5))
+    step = next((s for s in CLOSEUP_STEPS_DEG if side / (s * degree) <= CLOSEUP_MAX_LINES), CLOSEUP_STEPS_DEG[-1])
+    return window, step
+
+
 def stereonet_figure(d) -> bytes:
     """Poles of the local attitudes and the sheet's plane on the lower-hemisphere equal-area net,
-    with a close-up around the sheet's pole."""
+    with a close-up around the sheet's pole that holds every pole drawn."""
     s = d.summary
     plane = s.get("plane") or {}
     groups = sorted((s.get("groups") or {}).get("planes", {}).items())
     fig = _figure("stereonet")
     ax = fig.add_axes([0.03, 0.08, 0.42, 0.84])
-    draw_net(ax)
-    handles = draw_attitudes(ax, local=d.attitudes, plane=plane, groups=groups)
+    centre = draw_net(ax)
+    handles = draw_attitudes(ax, local=d.attitudes, plane=plane, groups=groups) + [centre]
     ax.set_xlim(-1.12, 1.12)
     ax.set_ylim(-1.12, 1.12)
     ax.set_aspect("equal")
@@ -270,15 +312,16 @@ def stereonet_figure(d) -> bytes:
         zx = fig.add_axes([0.50, 0.40, 0.30, 0.52])
         x, y = equal_area_xy(*pole_from_dip(plane.get("dip_direction_deg") or 0.0, plane["dip_deg"]))
         half = max(0.03, 3.0 * np.sqrt(2) * np.sin(np.radians(plane.get("cone95_deg") or 0.0) / 2))
-        window = (float(x) - half, float(x) + half, float(y) - half, float(y) + half)
-        draw_net(zx, step_deg=1.0, window=tuple(w + e for w, e in zip(window, (-half, half, -half, half))))
+        window, step = closeup_window((float(x), float(y)), half, _pole_xy(d.attitudes, groups))
+        side = window[1] - window[0]
+        draw_net(zx, step_deg=step, window=tuple(w + e for w, e in zip(window, (-side, side, -side, side))))
         draw_attitudes(zx, local=d.attitudes, plane=plane, groups=groups, pole_size=12.0)
         zx.set_xlim(*window[:2])
         zx.set_ylim(*window[2:])
         zx.set_aspect("equal")
         zx.set_xticks([])
         zx.set_yticks([])
-        zx.set_title("Close-up around the sheet's pole (grid: 1° circles)")
+        zx.set_title(f"Close-up around the sheet's pole (grid: {number(step, 'g')}° circles)")
     if handles:
         fig.legend(handles, [h.get_label() for h in handles], loc="lower left", bbox_to_anchor=(0.50, 0.02),
                    frameon=False)

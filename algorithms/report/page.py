@@ -83,11 +83,15 @@ def figure_list(d) -> list[tuple[str, str, object, str]]:
                 f"{number(pl['cone95_deg'])}° (circle) and the plane itself (dashed great circle)."
                 if pl.get("cone95_deg") is not None else "")
         out.append(("stereonet", "Attitudes on the equal-area net", F.stereonet_figure,
-                    "Poles of the local attitudes (filled circles: good; open: weak) and of the group planes "
-                    "(squares) on the lower hemisphere of the equal-area (Schmidt) net: the Lambert azimuthal "
+                    "Poles of the local attitudes (filled circles: good; open: weak)"
+                    + (" and of the group planes (open markers, one shape per group)"
+                       if any(g.get("dip_direction_deg") is not None
+                              for g in ((s.get("groups") or {}).get("planes") or {}).values()) else "")
+                    + " on the lower hemisphere of the equal-area (Schmidt) net: the Lambert azimuthal "
                     "equal-area projection, a line at angle θ from the vertical plotted at r = √2·sin(θ/2) of the "
                     "net's radius (Snyder 1987, Map Projections - A Working Manual, USGS Professional Paper 1395). "
-                    "A pole lies opposite the dip direction, 90° minus the dip from the rim." + cone))
+                    "A pole lies opposite the dip direction, 90° minus the dip from the rim. The close-up holds "
+                    "every pole drawn." + cone))
     if d.picks is not None and len(d.picks["x"]):
         out.append(("residuals", "Residuals of the picks", F.residuals_figure,
                     "Residual: the elevation of a pick minus the modelled surface (surface.tif) interpolated "

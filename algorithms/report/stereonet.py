@@ -84,10 +84,12 @@ def _net_curves(step_deg: float, n: int) -> tuple:
     return tuple(xy for t, p in curves for xy in _split_at_rim(*equal_area_xy(t, p)))
 
 
-def draw_net(ax, *, step_deg: float = 10.0, window=None) -> None:
+def draw_net(ax, *, step_deg: float = 10.0, window=None):
     """The net's frame on ``ax``: the horizon, great circles through N-S every ``step_deg`` and
-    small circles about the N-S axis every ``step_deg``, in light grey, with N, E, S, W marked.
-    With ``window`` (xmin, xmax, ymin, ymax) only the grid inside it is drawn (a close-up)."""
+    small circles about the N-S axis every ``step_deg``, in light grey, with N, E, S, W marked and
+    a cross at the centre (the vertical), whose legend handle is returned.
+    With ``window`` (xmin, xmax, ymin, ymax) only the grid inside it is drawn (a close-up: no
+    letters and no centre cross, whose fixed size would fill a close-up; None is returned)."""
     grid = dict(color="0.85", lw=0.5, zorder=0)
     segments = []
     for x, y in _net_curves(float(step_deg), 181 if window is None else 2001):
@@ -100,10 +102,13 @@ def draw_net(ax, *, step_deg: float = 10.0, window=None) -> None:
     ax.add_collection(LineCollection(segments, colors=grid["color"], linewidths=grid["lw"], zorder=grid["zorder"]))
     phi = np.linspace(0, 2 * np.pi, 721)
     ax.plot(np.cos(phi), np.sin(phi), color="0.2", lw=1.2, zorder=3)
+    if window is not None:
+        return None
     for word, (x, y) in {"N": (0, 1.06), "E": (1.06, 0), "S": (0, -1.06), "W": (-1.06, 0)}.items():
         ax.text(x, y, word, ha="center", va="center", fontsize=11, color="0.15")
-    ax.plot([-0.03, 0.03], [0, 0], color="0.4", lw=0.8)
-    ax.plot([0, 0], [-0.03, 0.03], color="0.4", lw=0.8)
+    (centre,) = ax.plot([-0.03, 0.03, np.nan, 0, 0], [0, 0, np.nan, -0.03, 0.03], color="0.4", lw=0.8,
+                        label="centre of the net (the vertical)")
+    return centre
 
 
 #: Markers of the group planes' poles, in turn (told apart by shape, not colour).
@@ -132,6 +137,11 @@ def draw_attitudes(ax, *, local=None, plane=None, groups=(), pole_size: float = 
         no_dir = int((np.isfinite(dip) & ~np.isfinite(ddir)).sum())
         words = f"{ok.sum()}" + (f"; {no_dir} more have no dip direction" if no_dir else "")
         (h,) = ax.plot(x, y, ls="none", zorder=4, label=f"pole of a local attitude, {quality} ({words})", **style)
+        handles.append(h)
+    unknown = sum(int((~np.isfinite(np.asarray(dip, float))).sum()) for dip, _ in (local or {}).values())
+    if unknown:  # an entry without a mark: said, not drawn
+        (h,) = ax.plot([], [], ls="none", marker="none",
+                       label=f"{unknown} local attitude{'s' if unknown > 1 else ''} undetermined, not drawn")
         handles.append(h)
     for k, (label, g) in enumerate(groups):
         if g.get("dip_direction_deg") is None:

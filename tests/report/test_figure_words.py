@@ -199,3 +199,51 @@ def test_a_contour_label_stays_legible_where_a_contact_and_its_picks_cross_it(dr
     # drawn over them (zorder, matplotlib's drawing order) the label's box differs only by what its
     # 85%-opaque background lets through: at most 15% of 255
     assert np.abs(through - away).max() <= 0.15 * 255 + 1, np.abs(through - away).max()
+
+
+PLANE = {"dip_deg": 30.0, "dip_direction_deg": 90.0, "cone95_deg": 1.0}
+#: Local attitudes round the sheet's plane, a few degrees off it (beyond its cone's close-up), and
+#: five undetermined (no dip).
+ATTITUDES = {"good": (np.array([30.5, 33.0, 27.0, 30.0]), np.array([91.0, 84.0, 97.0, 90.2])),
+             "weak": (np.array([36.0, 24.0, 20.0]), np.array([80.0, 101.0, np.nan])),
+             "undetermined": (np.full(5, np.nan), np.full(5, np.nan))}
+
+
+def _net(drawn, groups=None):
+    summary = {"plane": PLANE, **({"groups": {"planes": groups}} if groups else {})}
+    return drawn(F.stereonet_figure, SimpleNamespace(summary=summary, attitudes=ATTITUDES))
+
+
+def test_the_close_up_holds_every_pole_and_every_line_is_in_the_legend(drawn):
+    fig = _net(drawn)
+    net, close = fig.axes[:2]
+    renderer = fig.canvas.get_renderer()
+    frame = close.get_window_extent(renderer)
+    poles = [line for line in close.lines if line.get_marker() not in ("None", "none", "", None)
+             and len(np.atleast_1d(line.get_xdata()))]
+    n_drawn = sum(len(np.atleast_1d(line.get_xdata())) for line in poles)
+    assert n_drawn == 4 + 2 + 1  # good, weak with a dip direction, the sheet's pole
+    # Reference: matplotlib's Agg extents of each pole's marker against the close-up's frame
+    for line in poles:
+        for box in _point_extents(line, renderer):
+            assert frame.x0 <= box.x0 and box.x1 <= frame.x1 and frame.y0 <= box.y0 and box.y1 <= frame.y1, box
+    legend = {t.get_text() for t in fig.legends[0].get_texts()}
+    for ax in (net, close):
+        for line in ax.lines:
+            x, y = (np.asarray(v, float) for v in line.get_data())
+            if len(x) and np.allclose(np.hypot(x, y), 1.0):  # the net's horizon
+                continue
+            assert line.get_label() in legend, (line.get_label(), x[:3], y[:3])  # no unexplained line
+    assert "5 local attitudes undetermined, not drawn" in legend
+
+
+def test_the_caption_names_group_planes_only_when_there_are_some():
+    from strikeline.report.page import figure_list
+
+    def caption(groups):
+        d = SimpleNamespace(summary={"plane": PLANE, **({"groups": {"planes": groups}} if groups else {})},
+                            attitudes=ATTITUDES, picks=None, ground=None, thickness_sample=None)
+        return dict((n, c) for n, _, _, c in figure_list(d))["stereonet"]
+
+    assert "group" not in caption(None)
+    assert "group planes" in caption({"east": {"dip_deg": 20.0, "dip_direction_deg": 80.0}})
