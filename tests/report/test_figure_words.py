@@ -149,14 +149,13 @@ def test_the_caption_says_what_the_trimmed_error_is_and_how_far_above_the_rmse_i
     q = norm.ppf(0.875)
     var = truncnorm(-q, q).var()
     bound = 1.0 / np.sqrt(var)
-    # (the caption's 0.368 is strikeline's constant 0.368393, which differs from scipy's 0.368524 in its
-    # fourth digit: the caption's three digits are within 0.001 either way)
+    # (the caption gives the constant to three digits)
     stated = float(re.search(r"divided by (\d\.\d+)", caption).group(1))
     assert abs(stated - var) < 1e-3 and f"at most {bound:.2f} times" in caption, caption
     # the bound is reached: errors all of one size (more even than normal) give a trimmed error that
     # many times their RMS; the trimmed error the choice computes is that
     e = np.full(400, 3.0)
-    assert np.sqrt(trimmed_mean_square(e)) / 3.0 == pytest.approx(bound, rel=1e-3)  # (its constant, above)
+    assert np.sqrt(trimmed_mean_square(e)) / 3.0 == pytest.approx(bound, rel=1e-9)
     # without trimmed errors (another rule) the chart has no diamonds and the caption no such words
     d.summary["model"]["choice"] = {"rule": "one_se", "tolerance_m": 1.0, "chi2": {}}
     assert "Diamonds" not in dict((n, c) for n, _, _, c in figure_list(d))["models"]
