@@ -519,6 +519,8 @@ BATCH_KEYS: tuple[Name, ...] = (
     _s("sheets.*.options.*", None, "one option, by its name", "text"),
     _s("sheets.*.version", None, "strikeline version of the sheet's record (a new version redoes the sheet)", "text"),
     _s("sheets.*.seconds", None, "wall-clock time of the sheet's run, in seconds (a timing; null: not run now)"),
+    _s("sheets.*.warnings", None, "the lines the sheet's run logged as warnings, in order (a sheet skipped as "
+       "unchanged keeps those of the run that made its results)", "text"),
     _s("sheets.*.plane", None, "the sheet's best-fit plane (its summary's plane)", _SEC),
     *_under("sheets.*.plane", tuple(_PLANE[k] for k in ("dip_deg", "dip_direction_deg", "strike_rhr_deg",
                                                         "dip_ci95_deg", "dip_direction_ci95_deg", "n_picks",

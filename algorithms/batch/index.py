@@ -44,16 +44,17 @@ class SheetOutputs:
     contours: object = None  # VectorLayer
     data_xy: object = None  # (n, 2) positions of the picks of the sheet's contact (its model's data)
     reach_m: float | None = None  # the model's reach (summary model.reach_m)
+    warnings: list = field(default_factory=list)  # the lines the sheet's run logged at warning level
 
 
-def read_sheet(folder: Path, name: str, status: str, contact, error, opts, log) -> SheetOutputs:
+def read_sheet(folder: Path, name: str, status: str, contact, error, opts, log, *, warnings=()) -> SheetOutputs:
     """The footprint (the surface grid, else the DEM), summary, attitudes and structure contours
     of one sheet; a sheet without results gets the DEM's footprint when the DEM reads. Rasters
     give only their georeferencing here; the edges read the surface along them."""
     from strikeline.io.raster import raster_grid  # the georeferencing only, any size
     from strikeline.io.vector import read_layer
 
-    s = SheetOutputs(name, status, contact, error, footprint=shapely.Polygon())
+    s = SheetOutputs(name, status, contact, error, footprint=shapely.Polygon(), warnings=list(warnings))
     if status in ("ok", "unchanged"):
         path = folder / V.SURFACE.file
         grid = raster_grid(path, label=f"sheet '{name}' surface")
@@ -241,6 +242,14 @@ def _split_words(e: dict) -> str:
     return html.escape(near + (f"; extrapolated: max {far:.2f} m" if far is not None else "; none extrapolated"))
 
 
+def _warning_cell(warnings: list) -> str:
+    """A sheet's warnings for the index page: how many, then each line (escaped)."""
+    if not warnings:
+        return "none"
+    items = "".join(f"<li>{html.escape(w)}</li>" for w in warnings)
+    return f"{len(warnings)} warning{'s' if len(warnings) != 1 else ''}<ul>{items}</ul>"
+
+
 def index_page(sheets: list[SheetOutputs], out: Path, edges: list[dict]) -> str:
     """index.html: the caution, then one row per sheet (status, headline attitude, its report)."""
     report = getattr(V, "REPORT_FILE", None)
@@ -252,7 +261,8 @@ def index_page(sheets: list[SheetOutputs], out: Path, edges: list[dict]) -> str:
         if report and (folder / report).is_file():
             link = f'<a href="{esc(s.name)}/{esc(report)}">{esc(s.name)}</a>'
         what = esc(s.error or headline(s.summary.get("plane")))
-        rows.append(f"<tr><td>{link}</td><td>{esc(s.status)}</td><td>{what}</td></tr>")
+        rows.append(f"<tr><td>{link}</td><td>{esc(s.status)}</td><td>{what}</td><td>{_warning_cell(s.warnings)}"
+                    "</td></tr>")
     edge_rows = [f"<tr><td>{esc(e['sheet_a'])} / {esc(e['sheet_b'])}</td><td>{esc(e['contact'])}</td><td>"
                  + (f"median {e['median_dz_m']:.2f} m, max {e['max_dz_m']:.2f} m" if e.get("median_dz_m") is not None
                     else esc(e.get("note", ""))) + "</td><td>" + _split_words(e) + "</td><td>"
@@ -264,7 +274,8 @@ def index_page(sheets: list[SheetOutputs], out: Path, edges: list[dict]) -> str:
         "td,th{border:1px solid #888;padding:.3em .6em;text-align:left}.caution{border:2px solid #000;"
         "padding:.6em;font-weight:bold}</style></head><body>",
         f'<p class="caution">{esc(CAUTION)}</p>', "<h1>Sheets</h1>",
-        "<table><tr><th>sheet</th><th>status</th><th>best-fit plane (95% half-widths), or the error</th></tr>",
+        "<table><tr><th>sheet</th><th>status</th><th>best-fit plane (95% half-widths), or the error</th>"
+        "<th>warnings of its run</th></tr>",
         *rows, "</table>", "<h2>Shared edges</h2>",
         "<p>Both sheets' surfaces are compared along the edge they share. Where both sheets have data "
         "within reach (their structure contours drawn solid) the surfaces interpret nearby data, and a large "

@@ -18,6 +18,7 @@ import concurrent.futures as cf
 import contextlib
 import multiprocessing
 import os
+import re
 import time
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
@@ -38,6 +39,7 @@ class SheetResult:
     error: str | None = None
     seconds: float | None = None
     inputs: dict = field(default_factory=dict)
+    warnings: list = field(default_factory=list)
 
 
 def file_stamp(now: float | None = None) -> str:
@@ -66,31 +68,50 @@ def input_checksums(opts) -> dict:
         for f in input_files(given):
             p = Path(f).resolve()
             if p.is_file():
-                out[str(p)] = file_sha256(p)
+                try:
+                    out[str(p)] = file_sha256(p)
+                except OSError:  # unreadable: the sheet fails on it, with its reason
+                    continue
     return dict(sorted(out.items()))
+
+
+def sheet_warning(name: str, message: str) -> str:
+    """A warning line of a sheet's run as the batch keeps it: as logged, but any temporary folder
+    of the sheet's write (``.NAME.strikeline-part-*``, whose name differs between runs) named as
+    the sheet's folder, so that where and when the sheet ran does not change what is kept."""
+    return re.sub(rf"\.{re.escape(name)}\.strikeline-(part|old)-[0-9a-f]{{8}}", name, message)
 
 
 def run_sheet(name: str, opts, command: list, stamp: str) -> dict:
     """Run one sheet as ``strikeline run`` would (SIGINT/SIGTERM as exceptions where this is a
     process's main thread, the command line recorded as ``command``, GeoPackages dated ``stamp``)
-    and say how it went: ``{"name", "status", "error", "seconds"}``. Picklable, so it runs in a
-    worker process or on a dask worker."""
+    and say how it went: ``{"name", "status", "error", "seconds", "warnings"}`` (the lines the run
+    logged at warning level, :func:`sheet_warning`, in the order logged). Picklable, so it runs in
+    a worker process or on a dask worker."""
     from strikeline.io._gdal import file_date
     from strikeline.io.interrupt import signals_as_exceptions
     from strikeline.pipeline import run
     from strikeline.pipeline.command import command_line
+    from strikeline.pipeline.progress import WARNING, level_of
 
     start = time.perf_counter()
     status, error = "ok", None
+    warnings = []
+
+    def log(message):
+        if level_of(message) == WARNING:
+            warnings.append(sheet_warning(name, message))
+
     try:
         with signals_as_exceptions(), command_line(command), file_date(stamp):
-            run(opts)
+            run(opts, log=log)
     except StrikelineError as exc:
         status, error = "failed", one_line(exc)
     except Exception as exc:  # a bug, not bad input: recorded, and the other sheets go on
         status, error = "failed", (f"internal failure ({type(exc).__name__}: {one_line(exc)}); this is a bug in "
                                    "strikeline - please report it with the job file")
-    return {"name": name, "status": status, "error": error, "seconds": time.perf_counter() - start}
+    return {"name": name, "status": status, "error": error, "seconds": time.perf_counter() - start,
+            "warnings": warnings}
 
 
 #: Threads of the numerical libraries (OpenBLAS, MKL, OpenMP) in a sheet's process: one, as

@@ -69,8 +69,14 @@ def _unchanged(prev: dict | None, *, options: dict, inputs: dict, folder: Path) 
             and prev.get("inputs") == inputs and prev.get("version") == __version__ and _complete(folder))
 
 
+def _kept_warnings(prev: dict) -> list:
+    """The warnings of the run that made a skipped sheet's results (its earlier record's)."""
+    kept = prev.get("warnings")
+    return [w for w in kept if isinstance(w, str)] if isinstance(kept, list) else []
+
+
 def run_batch(job_path, out, *, argv=(), workers: int = 1, scheduler: str | None = None, force: bool = False,
-              log=lambda m: None, done=lambda name, status, text: None) -> BatchResult:
+              log=lambda m: None, done=lambda name, status, text, n_warnings: None) -> BatchResult:
     """Run every sheet of a job file into ``out`` and write the batch's index files.
 
     Parameters
@@ -87,7 +93,9 @@ def run_batch(job_path, out, *, argv=(), workers: int = 1, scheduler: str | None
     force : bool
         Redo every sheet, even those whose inputs and options are unchanged.
     log, done : callable
-        ``log(message)``; ``done(name, status, text)`` as each sheet finishes or is skipped.
+        ``log(message)``; ``done(name, status, text, n_warnings)`` as each sheet finishes or is
+        skipped (``n_warnings``: the lines its run logged at warning level; a skipped sheet's are
+        those of the run that made its results).
 
     Raises
     ------
@@ -118,23 +126,23 @@ def run_batch(job_path, out, *, argv=(), workers: int = 1, scheduler: str | None
         for s in job.sheets:
             rec = {"status": None, "error": None, "folder": s.name, "contact": s.contact,
                    "inputs": input_checksums(s.options), "options": options_record(s.options), "seconds": None,
-                   "version": __version__}
+                   "version": __version__, "warnings": []}
             records[s.name] = rec
-            if not force and _unchanged(previous.get(s.name), options=rec["options"], inputs=rec["inputs"],
-                                        folder=out / s.name):
-                rec["status"] = "unchanged"
-                done(s.name, "unchanged", "inputs and options unchanged; earlier results kept")
+            prev = previous.get(s.name)
+            if not force and _unchanged(prev, options=rec["options"], inputs=rec["inputs"], folder=out / s.name):
+                rec.update(status="unchanged", warnings=_kept_warnings(prev))
+                done(s.name, "unchanged", "inputs and options unchanged; earlier results kept", len(rec["warnings"]))
             else:
                 tasks.append((s.name, s.options, command, stamp))
 
         def finished(r):
             rec = records[r["name"]]
-            rec.update(status=r["status"], error=r["error"], seconds=r["seconds"])
-            done(r["name"], r["status"], r["error"] or f"{r['seconds']:.1f} s")
+            rec.update(status=r["status"], error=r["error"], seconds=r["seconds"], warnings=list(r["warnings"]))
+            done(r["name"], r["status"], r["error"] or f"{r['seconds']:.1f} s", len(rec["warnings"]))
 
         run_sheets(tasks, workers=workers, client=client, done=finished)
         sheets = [read_sheet(out / s.name, s.name, records[s.name]["status"], s.contact, records[s.name]["error"],
-                             s.options, log) for s in job.sheets]
+                             s.options, log, warnings=records[s.name]["warnings"]) for s in job.sheets]
         for s in sheets:
             pl = s.summary.get("plane")
             if pl:

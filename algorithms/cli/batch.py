@@ -32,9 +32,10 @@ def main(args) -> int:
         if not quiet:
             print(message, file=sys.stderr)
 
-    def done(name, status, text):
+    def done(name, status, text, n_warnings=0):
         if not quiet or status == "failed":
-            print(f"sheet {name}: {status} ({text})", file=sys.stderr if status == "failed" else sys.stdout,
+            also = f" with {n_warnings} warning{'s' if n_warnings != 1 else ''}" if n_warnings else ""
+            print(f"sheet {name}: {status}{also} ({text})", file=sys.stderr if status == "failed" else sys.stdout,
                   flush=True)
 
     result = run_batch(args.job, args.out, argv=current_command_line()[1:], workers=args.workers,

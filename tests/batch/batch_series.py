@@ -93,3 +93,16 @@ def make_series(folder: Path, sheets=("A", "B", "C", "D", "E"), *, defaults: str
     job.write_text('[defaults]\ncontact = "base_of_unit"\nmodel = "plane"\nresamples = 50\ninterval = 10\n'
                    + defaults + "\n" + "\n".join(tables))
     return job
+
+
+def contacts_off_dem(folder: Path, name: str, metres: float) -> None:
+    """Rewrite sheet ``name``'s contacts with an extra line running ``metres`` south of its DEM
+    from the sheet's edge (on the plane's contact line ``u = LU/2 + k LU``): that stretch has no
+    DEM under it, so the sheet's run warns of contacts off the DEM."""
+    col, row = LAYOUT[name]
+    u0, v0 = col * SIDE_M, row * SIDE_M
+    u = next(k * LU / 2 for k in range(10) if u0 < k * LU / 2 < u0 + SIDE_M)
+    off = f"LINESTRING ({X0 + u + 1.0} {Y0 + v0 - metres}, {X0 + u + 1.0} {Y0 + v0 - CELL_M})"
+    path = folder / "data" / f"contacts_{name}.gpkg"
+    path.unlink()
+    write_lines(str(path), contact_lines(u0, v0) + [off], epsg=EPSG)

@@ -13,7 +13,7 @@ from pathlib import Path
 
 import pytest
 
-from batch_series import A, B, RAISED_M, make_series
+from batch_series import A, B, RAISED_M, contacts_off_dem, make_series
 from helpers import run_cli
 from strikeline import CAUTION
 from strikeline import vocabulary as V
@@ -188,6 +188,53 @@ def test_a_failing_sheet_is_reported_and_the_others_run(tmp_path):
     assert rec["edges"]["A/B"]["note"] == "not compared: no surface of sheet B"
 
 
+def _standalone_warnings(job: Path, name: str, tmp_path: Path) -> list:
+    """The warning lines of ``strikeline run`` on one sheet of a job, given the options the job
+    file gives it (paths made absolute as the job file's folder makes them)."""
+    from strikeline.batch.job import read_job
+
+    opts = {s.name: s.options for s in read_job(job, out=tmp_path / "unused").sheets}[name]
+    contacts = [a for c in opts.contacts for a in ("--contacts", c)]
+    proc = run_cli("run", *contacts, "--dem", opts.dem, "--model", opts.model, "--resamples", str(opts.resamples), "--interval", str(opts.interval_m),
+                   "--out", tmp_path / f"alone_{name}")
+    assert proc.returncode == 0, proc.stderr
+    return [line for line in proc.stderr.splitlines() if line.startswith("warning:")]
+
+
+def test_a_sheets_warnings_are_kept_counted_and_shown(tmp_path):
+    job = make_series(tmp_path, ("A", "B"))
+    contacts_off_dem(tmp_path, "A", 400.0)
+    out = tmp_path / "out"
+    proc = batch(job, "--out", out)
+    assert proc.returncode == 0, proc.stderr
+    rec = json.loads((out / V.BATCH_FILE).read_text())
+    kept = rec["sheets"]["A"]["warnings"]
+    # Source: the outside reference is the standalone `strikeline run` of the same sheet: the batch
+    # keeps exactly the warning lines that run prints, in the same order
+    alone = _standalone_warnings(job, "A", tmp_path)
+    assert kept == alone and len(alone) >= 1
+    # and the sheet's own summary says the contacts it warns of lie off the DEM
+    off = json.loads((out / "A" / V.SUMMARY_FILE).read_text())["contacts_off_dem"]
+    assert any(f"{off['length_m']:.0f} m of the contacts" in w for w in kept), (off, kept)
+    assert rec["sheets"]["B"]["warnings"] == _standalone_warnings(job, "B", tmp_path)
+    n = len(kept)
+    assert f"sheet A: ok with {n} warning{'s' if n != 1 else ''} (" in proc.stdout, proc.stdout
+    page = (out / V.INDEX_PAGE).read_text()
+    import html
+
+    for w in kept:
+        assert f"<li>{html.escape(w)}</li>" in page
+    assert f"{n} warning{'s' if n != 1 else ''}<ul>" in page
+    # a sheet skipped as unchanged keeps the warnings of the run that made its results
+    again = batch(job, "--out", out)
+    assert again.returncode == 0, again.stderr
+    rec2 = json.loads((out / V.BATCH_FILE).read_text())
+    assert rec2["sheets"]["A"]["status"] == "unchanged" and rec2["sheets"]["A"]["warnings"] == kept
+    assert f"sheet A: unchanged with {n} warning" in again.stdout
+    page2 = (out / V.INDEX_PAGE).read_text()
+    assert all(f"<li>{html.escape(w)}</li>" in page2 for w in kept)
+
+
 @pytest.mark.parametrize("change, words", [
     ('[[sheet]\n', "not valid TOML"),
     ('[[sheet]]\nname = "F"\ncontacts = "data/contacts_A.gpkg"\ndem = "data/dem_A.tif"\nintervall = 5\n',
@@ -252,9 +299,11 @@ def _comparable(folder: Path) -> dict:
 def test_workers_and_dask_write_the_same_bytes_as_serial(tmp_path):
     distributed = pytest.importorskip("distributed")  # the dask extra (make setup installs it)
     job = make_series(tmp_path, ("A", "B", "E"))
+    contacts_off_dem(tmp_path, "A", 400.0)  # A's run warns: its warnings are compared too
     out = tmp_path / "out"
     assert batch(job, "--out", out).returncode == 0
     serial = _comparable(out)
+    assert serial[V.BATCH_FILE]["sheets"]["A"]["warnings"]
     shutil.move(out, tmp_path / "serial")
     proc = batch(job, "--out", out, "--workers", "2")
     assert proc.returncode == 0, proc.stderr
