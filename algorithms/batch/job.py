@@ -5,9 +5,11 @@ but ``name`` and ``contact`` is an option of ``strikeline run`` by its long name
 ``-`` (``interval`` for ``--interval``, ``dem_sigma`` for ``--dem-sigma``); its value is checked by the very parser action of
 ``run`` (type, bounds, allowed values) and the sheet's :class:`RunOptions` by
 :func:`strikeline.pipeline.options.check_options`, so a job file accepts exactly what the command
-line accepts. Relative paths are relative to the job file's folder. Every problem of every sheet
-is found before any sheet runs, and reported in one line naming the job file, the sheet and the
-key.
+line accepts. Relative paths are relative to the job file's folder. Every problem of the job
+file itself (its TOML, keys, values, names, options ``run`` would refuse) is found before any
+sheet runs, and reported in one line naming the job file, the sheet and the key; a sheet whose
+input files are missing or unreadable is not one of them: it carries the reason
+(:attr:`Sheet.problem`), fails alone and the other sheets run.
 """
 from __future__ import annotations
 
@@ -37,6 +39,8 @@ class Sheet:
     name: str
     contact: str | None
     options: object  # strikeline.pipeline.options.RunOptions, out = DIR/name
+    #: Why the sheet cannot run (an input file missing or unreadable), in one line; None: it can.
+    problem: str | None = None
 
 
 @dataclass(frozen=True)
@@ -110,13 +114,18 @@ def _resolve(value, base: Path):
     return value if os.path.isabs(value) else str(base / value)
 
 
-def _check_files(key: str, value, where: str) -> None:
+def _file_problem(key: str, value) -> str | None:
+    """Why an input file of a sheet cannot be read (missing, or not readable by this user), in
+    one line; None when every file of ``value`` is there to be read."""
     from strikeline.pipeline.options import input_files
 
     for path in input_files(value):
         if not Path(path).exists():
-            raise InputError(f"{where}: {key}: '{path}' not found; check the path (a relative path is relative "
-                             "to the job file's folder)")
+            return (f"{key}: '{path}' not found; check the path (a relative path is relative to the job file's "
+                    "folder)")
+        if not os.access(path, os.R_OK):
+            return f"{key}: '{path}' cannot be read (permission denied); check its permissions"
+    return None
 
 
 def _unknown(key: str, known: dict, where: str) -> InputError:
@@ -159,7 +168,8 @@ def read_job(path, *, out) -> Job:
     ------
     InputError
         One line naming the job file, the sheet and the key: bad TOML, unknown keys, bad values,
-        duplicate or unusable names, missing inputs, options ``run`` would refuse.
+        duplicate or unusable names, options ``run`` would refuse. (A missing or unreadable input
+        file is the sheet's :attr:`Sheet.problem` instead.)
     """
     from strikeline.pipeline.options import CLI_OPTION_NAMES, RunOptions, check_options, option
 
@@ -206,6 +216,7 @@ def read_job(path, *, out) -> Job:
         # the command line's defaults; the dataclass's for an option run's parser does not take
         values = {f.name: f.default for f in fields(RunOptions) if f.default is not MISSING}
         values.update({a.dest: a.default for a in actions.values() if a.dest in values})
+        problem = None  # a missing or unreadable input: this sheet fails, the others run
         for key, value in merged.items():
             action = by_key.get(key)
             if action is None:
@@ -213,7 +224,7 @@ def read_job(path, *, out) -> Job:
             value = convert(action, value, f"{where}: {key}")
             if option(action.dest).kind == "path":
                 value = _resolve(value, base)
-                _check_files(key, value, where)
+                problem = problem or _file_problem(key, value)
             values[action.dest] = value
         if not values.get("contacts"):
             raise InputError(f"{where}: contacts missing; give the line layer(s) of the mapped contact "
@@ -225,7 +236,7 @@ def read_job(path, *, out) -> Job:
             check_options(opts if out.is_dir() else replace(opts, out=str(out)), names=names)
         except StrikelineError as exc:
             raise InputError(f"{where}: {one_line(exc)}") from None
-        sheets.append(Sheet(name, contact, opts))
+        sheets.append(Sheet(name, contact, opts, problem))
     return Job(path, tuple(sheets))
 
 

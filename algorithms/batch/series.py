@@ -129,7 +129,10 @@ def run_batch(job_path, out, *, argv=(), workers: int = 1, scheduler: str | None
                    "version": __version__, "warnings": []}
             records[s.name] = rec
             prev = previous.get(s.name)
-            if not force and _unchanged(prev, options=rec["options"], inputs=rec["inputs"], folder=out / s.name):
+            if s.problem is not None:  # an input missing or unreadable: failed, not run
+                rec.update(status="failed", error=s.problem)
+                done(s.name, "failed", s.problem, 0)
+            elif not force and _unchanged(prev, options=rec["options"], inputs=rec["inputs"], folder=out / s.name):
                 rec.update(status="unchanged", warnings=_kept_warnings(prev))
                 done(s.name, "unchanged", "inputs and options unchanged; earlier results kept", len(rec["warnings"]))
             else:

@@ -11,9 +11,10 @@ HELP = ("run a series of sheets from a job file (TOML: [defaults] and one [[shee
 
 
 def add_parser(sub):
-    p = sub.add_parser("batch", help=HELP, description=HELP + ". Exit status: 0 every sheet ok (or unchanged), "
-                       "1 some sheets failed (batch.json says why), 2 a bad job file or output folder (nothing "
-                       "run).", epilog=EPILOG)
+    p = sub.add_parser("batch", help=HELP, description=HELP + ". A sheet whose input files are missing or "
+                       "unreadable fails alone and the others run. Exit status: 0 every sheet ok (or unchanged), "
+                       "1 some sheets failed (batch.json says why), 2 a bad job file (its TOML, keys or option "
+                       "values) or output folder (nothing run).", epilog=EPILOG)
     p.add_argument("job", metavar="JOB.toml", help="the job file; relative paths in it are relative to its folder")
     add_options(p, "out", command="batch")
     add_options(p.add_mutually_exclusive_group(), "workers", "scheduler", command="batch")
