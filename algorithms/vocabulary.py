@@ -519,6 +519,10 @@ BATCH_KEYS: tuple[Name, ...] = (
     _s("sheets.*.options.*", None, "one option, by its name", "text"),
     _s("sheets.*.version", None, "strikeline version of the sheet's record (a new version redoes the sheet)", "text"),
     _s("sheets.*.seconds", None, "wall-clock time of the sheet's run, in seconds (a timing; null: not run now)"),
+    _s("sheets.*.earlier_results", None, "true when the sheet failed and its folder still holds the results of an "
+       "earlier run (not of this run's inputs and options: a failed run leaves the folder as it was)", "bool"),
+    _s("sheets.*.earlier_results_utc", None, "when those earlier results were written (ISO 8601, UTC: the time "
+       "of the folder's manifest); null when there are none or the sheet did not fail", "text"),
     _s("sheets.*.warnings", None, "the lines the sheet's run logged as warnings, in order (a sheet skipped as "
        "unchanged keeps those of the run that made its results)", "text"),
     _s("sheets.*.plane", None, "the sheet's best-fit plane (its summary's plane)", _SEC),

@@ -45,16 +45,19 @@ class SheetOutputs:
     data_xy: object = None  # (n, 2) positions of the picks of the sheet's contact (its model's data)
     reach_m: float | None = None  # the model's reach (summary model.reach_m)
     warnings: list = field(default_factory=list)  # the lines the sheet's run logged at warning level
+    earlier_utc: str | None = None  # a failed sheet: when the earlier results left in its folder were written
 
 
-def read_sheet(folder: Path, name: str, status: str, contact, error, opts, log, *, warnings=()) -> SheetOutputs:
+def read_sheet(folder: Path, name: str, status: str, contact, error, opts, log, *, warnings=(),
+               earlier_utc=None) -> SheetOutputs:
     """The footprint (the surface grid, else the DEM), summary, attitudes and structure contours
     of one sheet; a sheet without results gets the DEM's footprint when the DEM reads. Rasters
     give only their georeferencing here; the edges read the surface along them."""
     from strikeline.io.raster import raster_grid  # the georeferencing only, any size
     from strikeline.io.vector import read_layer
 
-    s = SheetOutputs(name, status, contact, error, footprint=shapely.Polygon(), warnings=list(warnings))
+    s = SheetOutputs(name, status, contact, error, footprint=shapely.Polygon(), warnings=list(warnings),
+                     earlier_utc=earlier_utc)
     if status in ("ok", "unchanged"):
         path = folder / V.SURFACE.file
         grid = raster_grid(path, label=f"sheet '{name}' surface")
@@ -258,9 +261,15 @@ def index_page(sheets: list[SheetOutputs], out: Path, edges: list[dict]) -> str:
     for s in sheets:
         folder = out / s.name
         link = esc(s.name)
-        if report and (folder / report).is_file():
+        has_report = report and (folder / report).is_file()
+        if has_report and s.status != "failed":
             link = f'<a href="{esc(s.name)}/{esc(report)}">{esc(s.name)}</a>'
         what = esc(s.error or headline(s.summary.get("plane")))
+        if s.status == "failed" and s.earlier_utc is not None:
+            when = s.earlier_utc.replace("T", " ").replace("Z", " UTC")
+            earlier = (f' (<a href="{esc(s.name)}/{esc(report)}">the earlier report</a>)' if has_report else "")
+            what += (f"<br>This run wrote nothing; its folder still holds the results of an earlier run, written "
+                     f"{esc(when)} from that run's inputs and options{earlier}.")
         rows.append(f"<tr><td>{link}</td><td>{esc(s.status)}</td><td>{what}</td><td>{_warning_cell(s.warnings)}"
                     "</td></tr>")
     edge_rows = [f"<tr><td>{esc(e['sheet_a'])} / {esc(e['sheet_b'])}</td><td>{esc(e['contact'])}</td><td>"

@@ -69,6 +69,20 @@ def _unchanged(prev: dict | None, *, options: dict, inputs: dict, folder: Path) 
             and prev.get("inputs") == inputs and prev.get("version") == __version__ and _complete(folder))
 
 
+def _earlier_results(folder: Path) -> str | None:
+    """When the results in a failed sheet's folder were written (ISO 8601, UTC, to the second:
+    the time the file system gives the folder's manifest, the last file a run writes there), or
+    None when the folder holds no results. A failed run leaves the folder as it was, so these
+    are an earlier run's."""
+    from datetime import datetime, timezone
+
+    try:
+        when = (folder / V.MANIFEST_FILE).stat().st_mtime
+    except OSError:
+        return None
+    return datetime.fromtimestamp(int(when), tz=timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+
+
 def _kept_warnings(prev: dict) -> list:
     """The warnings of the run that made a skipped sheet's results (its earlier record's)."""
     kept = prev.get("warnings")
@@ -144,8 +158,12 @@ def run_batch(job_path, out, *, argv=(), workers: int = 1, scheduler: str | None
             done(r["name"], r["status"], r["error"] or f"{r['seconds']:.1f} s", len(rec["warnings"]))
 
         run_sheets(tasks, workers=workers, client=client, done=finished)
+        for name, rec in records.items():
+            rec["earlier_results_utc"] = _earlier_results(out / name) if rec["status"] == "failed" else None
+            rec["earlier_results"] = rec["earlier_results_utc"] is not None
         sheets = [read_sheet(out / s.name, s.name, records[s.name]["status"], s.contact, records[s.name]["error"],
-                             s.options, log, warnings=records[s.name]["warnings"]) for s in job.sheets]
+                             s.options, log, warnings=records[s.name]["warnings"],
+                             earlier_utc=records[s.name]["earlier_results_utc"]) for s in job.sheets]
         for s in sheets:
             pl = s.summary.get("plane")
             if pl:

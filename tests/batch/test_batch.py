@@ -186,6 +186,36 @@ def test_a_failing_sheet_is_reported_and_the_others_run(tmp_path):
     assert not (out / "B").exists() and (out / "A" / V.SUMMARY_FILE).is_file()
     # B's footprint comes from its DEM: the edge is listed, not compared
     assert rec["edges"]["A/B"]["note"] == "not compared: no surface of sheet B"
+    # no earlier results: nothing to link, nothing said of them
+    assert rec["sheets"]["B"]["earlier_results"] is False and rec["sheets"]["B"]["earlier_results_utc"] is None
+    assert 'href="B/' not in (out / V.INDEX_PAGE).read_text()
+
+
+def test_a_failed_sheets_earlier_results_are_named_as_such(tmp_path):
+    from datetime import datetime, timezone
+
+    job = make_series(tmp_path, ("A", "B"))
+    out = tmp_path / "out"
+    assert batch(job, "--out", out).returncode == 0
+    before = _files(out / "B")
+    # Source: the file system's own time of the manifest the earlier run wrote into B's folder
+    # (os.stat, outside strikeline's records), to the second, in UTC
+    written = datetime.fromtimestamp(int((out / "B" / V.MANIFEST_FILE).stat().st_mtime), tz=timezone.utc)
+    (tmp_path / "data" / "contacts_B.gpkg").write_bytes(b"not a vector file")
+    proc = batch(job, "--out", out)
+    assert proc.returncode == 1, proc.stderr
+    assert _files(out / "B") == before  # the earlier results are kept as they were
+    rec = json.loads((out / V.BATCH_FILE).read_text())["sheets"]
+    assert rec["B"]["status"] == "failed" and rec["B"]["earlier_results"] is True
+    assert rec["B"]["earlier_results_utc"] == written.strftime("%Y-%m-%dT%H:%M:%SZ")
+    assert rec["A"]["earlier_results"] is False and rec["A"]["earlier_results_utc"] is None
+    page = (out / V.INDEX_PAGE).read_text()
+    row = next(line for line in page.splitlines() if line.startswith("<tr><td>B"))
+    # the sheet's name is not a link to the old report as if it were this run's
+    assert row.startswith("<tr><td>B</td><td>failed</td>"), row
+    assert f"results of an earlier run, written {written:%Y-%m-%d %H:%M:%S} UTC" in row
+    if (out / "B" / V.REPORT_FILE).is_file():
+        assert '<a href="B/report.html">the earlier report</a>' in row
 
 
 def _standalone_warnings(job: Path, name: str, tmp_path: Path) -> list:
