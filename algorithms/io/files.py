@@ -269,20 +269,24 @@ def check_out_folder(out, *, overwrite: bool, inputs=(), option: str = "--out", 
     if not parent.is_dir():
         raise OutputError(f"cannot create '{out}': the folder '{parent}' does not exist; create it first")
     if path.exists() and any(path.iterdir()):
-        if not overwrite:
-            raise OutputError(f"output folder '{out}' already exists; add --overwrite to replace it, or name a "
-                              "new folder")
+        # A folder strikeline would refuse even with --overwrite is refused as such at once, so the
+        # first message never advises a fix that the next run turns down.
         foreign = foreign_files(path, verify=verify)
+        if foreign and read_manifest(path) is None:
+            raise OutputError(
+                f"output folder '{out}' was not written by strikeline (it has no {MANIFEST_FILE}) and holds "
+                f"{len(foreign)} entr{'y' if len(foreign) == 1 else 'ies'} ({_listing(foreign)}); strikeline "
+                f"replaces only a folder of its own results, even with --overwrite - name a new or empty folder "
+                f"for {option}")
         if foreign:
-            if read_manifest(path) is None:
-                raise OutputError(
-                    f"output folder '{out}' was not written by strikeline (it has no {MANIFEST_FILE}) and holds "
-                    f"{len(foreign)} entr{'y' if len(foreign) == 1 else 'ies'} ({_listing(foreign)}); "
-                    f"--overwrite replaces only strikeline's own results - choose a new or empty folder for {option}")
+            then = "" if overwrite else " and add --overwrite"
             raise OutputError(
                 f"output folder '{out}' holds {len(foreign)} file(s) strikeline did not write ({_listing(foreign)}); "
                 f"--overwrite replaces only the files listed in its {MANIFEST_FILE} - move those files out of "
-                f"the folder, or choose another {option}")
+                f"the folder{then}, or choose another {option}")
+        if not overwrite:
+            raise OutputError(f"output folder '{out}' already exists; add --overwrite to replace it, or name a "
+                              "new folder")
     return path
 
 

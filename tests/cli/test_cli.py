@@ -281,7 +281,12 @@ def test_existing_folder_is_not_touched_without_overwrite(tmp_path, demo, cli):
     (out / "keep.txt").write_text("mine")
     proc = cli("run", "--contacts", demo["contacts"], "--dem", demo["dem"], "--out", out)
     assert proc.returncode == 2
-    assert proc.stderr.startswith("error: ") and "already exists" in proc.stderr and "--overwrite" in proc.stderr
+    # a folder of the user's is refused as such at once, without advising the --overwrite it would refuse
+    assert proc.stderr.startswith("error: ") and "not written by strikeline" in proc.stderr
+    assert "add --overwrite" not in proc.stderr and proc.stderr.count("\n") == 1
+    assert [p.name for p in out.iterdir()] == ["keep.txt"]
+    proc = cli("run", "--contacts", demo["contacts"], "--dem", demo["dem"], "--out", out, "--overwrite")
+    assert proc.returncode == 2 and "not written by strikeline" in proc.stderr and "keep.txt" in proc.stderr
     assert [p.name for p in out.iterdir()] == ["keep.txt"]
 
 

@@ -266,7 +266,8 @@ def test_existing_folder_needs_overwrite(tmp_path, run, planes):
     out.mkdir()
     (out / "keep.txt").write_text("mine")
     line = _one_error_line(run("thickness", "--grids", top, base, "--out", out))
-    assert "already exists" in line and "--overwrite" in line
+    # a folder of the user's is refused as such at once, not with advice to add --overwrite
+    assert "not written by strikeline" in line and "keep.txt" in line and "add --overwrite" not in line
     assert [p.name for p in out.iterdir()] == ["keep.txt"]
     # --overwrite replaces only what strikeline wrote: a folder with a file of the user's is refused
     line = _one_error_line(run("thickness", "--grids", top, base, "--out", out, "--overwrite"))
@@ -274,6 +275,8 @@ def test_existing_folder_needs_overwrite(tmp_path, run, planes):
     assert [p.name for p in out.iterdir()] == ["keep.txt"]
     (out / "keep.txt").unlink()
     assert run("thickness", "--grids", top, base, "--out", out).returncode == 0  # an empty folder is used
+    line = _one_error_line(run("thickness", "--grids", top, base, "--out", out))  # now strikeline's own
+    assert "already exists" in line and "add --overwrite" in line
     proc = run("thickness", "--grids", top, base, "--out", out, "--overwrite")
     assert proc.returncode == 0, proc.stderr
     assert sorted(p.name for p in out.iterdir()) == ["strikeline_manifest.json", "true_thickness.tif",

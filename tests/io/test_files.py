@@ -88,10 +88,35 @@ def test_a_folder_without_manifest_is_refused_and_left_alone(tmp_path):
         _write(out, overwrite=True)
     msg = str(e.value)
     # the first few foreign files and the count of the rest, and the fix
-    assert "holds 8 entries" in msg and "note0.txt" in msg and "and 3 more" in msg and "choose a new" in msg
+    assert "holds 8 entries" in msg and "note0.txt" in msg and "and 3 more" in msg and "name a new or empty folder" in msg
     assert "\n" not in msg
     assert sorted(p.relative_to(out) for p in out.rglob("*")) == before
     assert sorted(p.name for p in tmp_path.iterdir()) == ["out"]
+
+
+@pytest.mark.parametrize("overwrite", [False, True])
+def test_a_folder_of_the_users_is_refused_as_such_with_or_without_overwrite(tmp_path, overwrite):
+    # The first refusal must not advise --overwrite for a folder that --overwrite would not replace:
+    # with or without it the message is the same, says the folder is not strikeline's and names the fix.
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "notes.txt").write_text("mine")
+    with pytest.raises(OutputError) as e:
+        _write(out, overwrite=overwrite)
+    msg = str(e.value)
+    assert "was not written by strikeline" in msg and "holds 1 entry (notes.txt)" in msg
+    assert "add --overwrite" not in msg and "name a new or empty folder for --out" in msg and "\n" not in msg
+    assert [p.name for p in out.iterdir()] == ["notes.txt"] and (out / "notes.txt").read_text() == "mine"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["out"]
+
+
+def test_a_user_file_among_our_results_is_named_before_overwrite_is_asked(tmp_path):
+    out = _write(tmp_path / "out")
+    (out / "notes.txt").write_text("mine")
+    with pytest.raises(OutputError, match=r"holds 1 file\(s\) strikeline did not write \(notes.txt\); .* move those "
+                                          r"files out of the folder and add --overwrite, or choose another --out"):
+        _write(out)
+    assert (out / "notes.txt").read_text() == "mine"
 
 
 def test_a_user_file_added_to_our_results_is_refused(tmp_path):
