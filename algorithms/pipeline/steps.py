@@ -45,8 +45,8 @@ def collect_picks(inputs: Inputs, *, contacts: VectorLayer | None = None, spacin
                                    spacing_m=spacing_m, progress=progress, is_cancelled=is_cancelled)
         if len(dem_picks) == 0:
             dem_name = f"DEM '{inputs.paths['dem']}'" if "dem" in inputs.paths else "the DEM"
-            msg = (f"contacts {c.what} lie entirely outside the valid cells of {dem_name}"
-                   " (outside its extent or over nodata)")
+            msg = (f"contacts {c.what} lies entirely outside the valid cells of {dem_name}"
+                   f" (outside its extent or over nodata): {_extents_of(c, inputs.dem_grid)}")
             if inputs.contours is None:
                 raise InputError(msg + "; give a DEM that covers the contacts, or check that both are "
                                        "in the CRS their files declare")
@@ -56,6 +56,20 @@ def collect_picks(inputs: Inputs, *, contacts: VectorLayer | None = None, spacin
         sets.append(picks_from_contours(c.geoms, inputs.contours.geoms, inputs.contour_elevations_m,
                                         contact_ids=c.fids, progress=progress, is_cancelled=is_cancelled))
     return PickSet.concat(*sets)
+
+
+def _span(bounds) -> str:
+    xmin, ymin, xmax, ymax = (f"{v:.0f}" for v in bounds)
+    return f"x {xmin} to {xmax} m, y {ymin} to {ymax} m"
+
+
+def _extents_of(contacts: VectorLayer, grid: Grid) -> str:
+    """Where the contacts lie against the DEM, both in the DEM's CRS (to which the contacts were
+    reprojected), rounded to the metre: a CRS mismatch shows as extents far apart."""
+    from strikeline.io.crs import crs_label
+
+    return (f"in {crs_label(grid.crs_wkt)} the contacts span {_span(shapely.total_bounds(contacts.geoms))}, "
+            f"the DEM {_span(grid.bounds)}")
 
 
 def fit_picks(picks: PickSet, *, what: str = "the picks") -> PlaneFit:

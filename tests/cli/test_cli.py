@@ -12,7 +12,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 import shapely
-from osgeo import gdal, ogr
+from osgeo import gdal, ogr, osr
 
 from helpers import run_cli, write_lines
 
@@ -294,3 +294,45 @@ def test_usage_errors_are_one_line(cli):
     proc = cli("run", "--contacts")
     assert proc.returncode == 2
     assert len(proc.stderr.strip().splitlines()) == 1 and proc.stderr.startswith("error: ")
+
+
+def _ints(text: str) -> list[int]:
+    import re
+
+    return [int(v) for v in re.findall(r"-?\d+", text)]
+
+
+def test_contacts_in_another_crs_off_the_dem_say_where_both_lie(tmp_path, demo, cli):
+    # The demo DEM's own coordinates written as if they were Web Mercator (EPSG:3857): reprojected
+    # to the DEM's CRS the contacts land far from it, a CRS mismatch the error must make visible.
+    info = gdal.Info(demo["dem"], format="json")
+    srs = osr.SpatialReference(wkt=info["coordinateSystem"]["wkt"])
+    dem_epsg = int(srs.GetAuthorityCode(None))
+    (x0, y1), (x1, y0) = info["cornerCoordinates"]["upperLeft"], info["cornerCoordinates"]["lowerRight"]
+    line = shapely.LineString([(x0 + 100, y0 + 100), (x1 - 100, y1 - 100)])
+    wrong = write_lines(tmp_path / "wrong.gpkg", [line], epsg=3857, layer="contacts")
+    # Source: GDAL's own reprojection (ogr2ogr -t_srs) of the same layer, its extent rounded to the metre
+    moved = gdal.VectorTranslate(str(tmp_path / "moved.gpkg"), str(wrong), dstSRS=f"EPSG:{dem_epsg}")
+    cx0, cx1, cy0, cy1 = moved.GetLayer(0).GetExtent()
+    moved = None
+    out = tmp_path / "out"
+    proc = cli("run", "--quiet", "--contacts", wrong, "--dem", demo["dem"], "--out", out)
+    assert proc.returncode == 2, proc.stderr
+    lines = proc.stderr.strip().splitlines()
+    # with --quiet the error is the one line on stderr (the CLI's contract, as for every bad input)
+    assert len(lines) == 1 and lines[0].startswith("error: "), proc.stderr
+    msg = lines[0]
+    assert "layer 'contacts' of" in msg and str(wrong) in msg and "lies entirely outside" in msg
+    assert f"in EPSG:{dem_epsg} the contacts span" in msg and "check that both are in the CRS" in msg
+    where = msg.split(f"in EPSG:{dem_epsg} the contacts span", 1)[1].split(";", 1)[0]
+    got = _ints(where)
+    # Source: gdalinfo's corner coordinates of the DEM; OGR's extent of the reprojected contacts
+    expected = [round(cx0), round(cx1), round(cy0), round(cy1), round(x0), round(x1), round(y0), round(y1)]
+    assert np.allclose(got, expected, atol=1), (got, expected)
+    assert not out.exists()
+    # without --quiet the reprojection's information line comes first on stderr, as every log line
+    # of a run does (stdout holds only the command's results); the error is still the last line
+    proc = cli("run", "--contacts", wrong, "--dem", demo["dem"], "--out", out)
+    lines = proc.stderr.strip().splitlines()
+    assert proc.returncode == 2 and lines[-1] == msg and all(not ln.startswith("error") for ln in lines[:-1])
+    assert proc.stdout == ""
