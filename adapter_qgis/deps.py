@@ -43,10 +43,14 @@ COMMAND_LINE_ONLY = ("tqdm",)
 
 #: The commands, per platform (see :func:`install_commands`); the README shows each one as is.
 DEBIAN_APT = "sudo apt-get install python3-scipy python3-pyproj python3-gdal python3-pip"
-DEBIAN_PIP = f"python3 -m pip install --user --break-system-packages {SHAPELY_PIN}"
+#: QGIS's own interpreter on Linux distributions' QGIS (Debian's python3-qgis installs into
+#: /usr/lib/python3/dist-packages, which /usr/bin/python3 reads): named in full, since the first
+#: python3 on a user's PATH may be a venv's, conda's or pyenv's, where the install would not reach QGIS.
+QGIS_LINUX_PYTHON = "/usr/bin/python3"
+DEBIAN_PIP = f"{QGIS_LINUX_PYTHON} -m pip install --user --break-system-packages {SHAPELY_PIN}"
 #: The same where the system Python is not marked externally managed (Ubuntu 22.04: pip 22
 #: does not know --break-system-packages).
-LINUX_PIP = f"python3 -m pip install --user {SHAPELY_PIN}"
+LINUX_PIP = f"{QGIS_LINUX_PYTHON} -m pip install --user {SHAPELY_PIN}"
 #: In the OSGeo4W Shell (as administrator); QGIS's Windows installers bring numpy, scipy, pyproj
 #: and GDAL, so shapely alone is installed and --no-deps keeps pip away from their numpy.
 WINDOWS_PIP = f"python -m pip install --no-deps {SHAPELY_PIN}"

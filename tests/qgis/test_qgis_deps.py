@@ -71,6 +71,14 @@ def test_debian_commands_are_the_readme_block_and_use_pep_668s_flag():
     assert re.search(r"shapely==2\.\d+\.\d+", debian[1])
 
 
+@pytest.mark.parametrize("system", ["debian 12", "ubuntu 24.04", "ubuntu 22.04", "fedora"])
+def test_linux_pip_commands_name_qgis_s_interpreter(system):
+    # A bare python3 is the first on the user's PATH (a venv's, conda's); Debian's QGIS runs
+    # /usr/bin/python3 (python3-qgis installs into /usr/lib/python3/dist-packages; dpkg -L python3-qgis).
+    pips = [c for c in deps.install_commands(**PLATFORMS[system]) if " -m pip " in c]
+    assert pips and all(c.startswith("/usr/bin/python3 -m pip install --user ") for c in pips), pips
+
+
 def test_macos_command_names_the_running_app():
     got = deps.install_commands(platform="darwin", executable="/Users/geo/Apps/QGIS.app/Contents/MacOS/QGIS")
     assert got == ("/Users/geo/Apps/QGIS.app/Contents/MacOS/bin/python3 -m pip install --user shapely==2.0.6",)
