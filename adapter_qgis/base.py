@@ -193,6 +193,19 @@ class StrikelineAlgorithm(QgsProcessingAlgorithm):
             parts.append(f"<p><b>{self.tr('References')}</b></p><ul>{refs}</ul>")
         return "".join(parts)
 
+    def checkParameterValues(self, parameters, context):  # noqa: N802
+        """QGIS's checks, except that a raster parameter naming a file that exists but does not
+        load is refused with strikeline's own one line (the file, that GDAL cannot read it as a
+        raster, the fix) instead of QGIS's "... not found"."""
+        ok, message = super().checkParameterValues(parameters, context)
+        if not ok:
+            from .inputs import unreadable_rasters
+
+            ours = unreadable_rasters(self, parameters, context)
+            if ours:
+                return False, one_line(ours)
+        return ok, message
+
     def processAlgorithm(self, parameters, context, feedback):  # noqa: N802
         """Run :meth:`process`; every failure leaves as ONE line of ``QgsProcessingException``.
 

@@ -7,9 +7,12 @@ points - is :func:`strikeline.pipeline.assemble_inputs`, the second half of the 
 """
 from __future__ import annotations
 
+import os
 from typing import NamedTuple
 
-from strikeline.errors import InputError
+from qgis.core import QgsProcessingParameterRasterLayer
+
+from strikeline.errors import InputError, RasterReadError, StrikelineError
 from strikeline.pipeline import (
     Inputs,
     RunOptions,
@@ -17,7 +20,7 @@ from strikeline.pipeline import (
     option,
     reproject_to,
 )
-from strikeline.io.raster import read_vertical_unit
+from strikeline.io.raster import raster_grid, read_vertical_unit
 from strikeline.pipeline.elevation_units import dem_in_metres
 from strikeline.pipeline.inputs import input_record
 from strikeline.pipeline.points import point_values, point_xyz
@@ -208,6 +211,36 @@ def read_layers(alg, parameters, context, steps, layers: dict) -> dict:
             for k, (p, label, geom) in layers.items()}
 
 
+def unreadable_raster(alg, parameters, key, context, *, label: str) -> str | None:
+    """The library's one-line refusal of raster parameter ``key`` when it names a file that
+    exists but that QGIS cannot load as a raster (a text file named .tif, a truncated GeoTIFF);
+    else None. QGIS's own words for it would say the file is "not found"."""
+    given = parameters.get(key) if hasattr(parameters, "get") else None
+    if not isinstance(given, str) or not given:
+        return None
+    path = given.split("|", 1)[0]
+    if not os.path.isfile(path) or alg.parameterAsRasterLayer(parameters, key, context) is not None:
+        return None
+    try:
+        raster_grid(path, label=label)  # strikeline's own opener says what GDAL makes of the file
+    except StrikelineError as exc:
+        return str(exc)
+    return (f"{label} '{path}': QGIS cannot load it as a raster layer although GDAL opens it; "
+            "give a GeoTIFF or another raster format QGIS reads")
+
+
+def unreadable_rasters(alg, parameters, context) -> str | None:
+    """:func:`unreadable_raster` of the first raster parameter of ``alg`` that names such a file."""
+    for definition in alg.parameterDefinitions():
+        if isinstance(definition, QgsProcessingParameterRasterLayer):
+            key = definition.name()
+            label = "DEM" if key == DEM else definition.description()
+            message = unreadable_raster(alg, parameters, key, context, label=label)
+            if message:
+                return message
+    return None
+
+
 def read_dem(alg, parameters, key, context, steps, *, label="DEM", unit=False):
     """``(array, grid, path-or-name)`` of the raster parameter ``key``, or ``(None, None, None)``.
 
@@ -217,6 +250,9 @@ def read_dem(alg, parameters, key, context, steps, *, label="DEM", unit=False):
     """
     layer = alg.parameterAsRasterLayer(parameters, key, context)
     if layer is None:
+        unreadable = unreadable_raster(alg, parameters, key, context, label=label)
+        if unreadable:
+            raise RasterReadError(unreadable)
         return None, None, None
     arr, grid = read_raster_layer(layer, label=label, is_cancelled=steps.is_cancelled)
     path = raster_path(layer)

@@ -246,3 +246,24 @@ def test_the_whole_chains_size_checks_name_its_parameters(run, sheet):
     with pytest.raises(QgsProcessingException) as exc:
         run("modelcontact", {"CONTACTS": sheet["contacts_uri"], "DEM": sheet["dem"], "RESAMPLES": 10**9, **OUTPUTS})
     assert str(exc.value) == str(lib.value).replace("--resamples", f"the '{label}'")
+
+
+def test_a_dem_file_that_is_not_a_raster_gets_the_librarys_line(run, sheet, tmp_path):
+    # A text file named .tif exists, so QGIS's own "... not found" would mislead: the tool refuses
+    # it with the library's line for the same file (the file, GDAL cannot read it, the fix).
+    txt = tmp_path / "dem_text.tif"
+    txt.write_text("this is not a raster\n")
+    want = library_message(contacts=sheet["contacts"], dem=str(txt))
+    assert str(txt) in want and "cannot open it as a raster" in want and "give a GeoTIFF" in want
+    from qgis.core import QgsApplication, QgsProcessingContext, QgsProject
+
+    params = {"CONTACTS": sheet["contacts_uri"], "DEM": str(txt), "picks": TMP}
+    with pytest.raises(QgsProcessingException) as exc:
+        run("contactpicks", params)
+    lines = str(exc.value).splitlines()
+    # processing.run puts QGIS's own heading line before a refused parameter; the dialog shows ours alone
+    assert lines[-1] == want and "not found" not in str(exc.value), lines
+    alg = QgsApplication.processingRegistry().createAlgorithmById("strikeline:contactpicks")
+    context = QgsProcessingContext()
+    context.setProject(QgsProject.instance())
+    assert alg.checkParameterValues(params, context) == (False, want)
