@@ -168,18 +168,33 @@ def centres_along_contacts(points, *, spacing_m, contact_id=None):
     return np.asarray(index, dtype=np.int64), out_contact
 
 
-def grid_centres(points, *, spacing_m):
-    """Centres of a regular grid of ``spacing_m`` over the picks' bounding box.
+def _axis_nodes(lo: float, hi: float, spacing: float) -> np.ndarray:
+    """Multiples of ``spacing`` in ``[lo, hi]``, plus ``lo`` and ``hi`` themselves where they lie
+    more than half a spacing from the nearest multiple (or no multiple falls inside)."""
+    nodes = np.arange(np.ceil(lo / spacing), np.floor(hi / spacing) + 1) * spacing
+    nodes = nodes[(nodes >= lo) & (nodes <= hi)]
+    if len(nodes) == 0:
+        return np.unique(np.array([lo, hi]) if hi - lo > 0.5 * spacing else np.array([0.5 * (lo + hi)]))
+    head = [lo] if nodes[0] - lo > 0.5 * spacing else []
+    tail = [hi] if hi - nodes[-1] > 0.5 * spacing else []
+    return np.concatenate([head, nodes, tail])
 
-    The grid is anchored at multiples of ``spacing_m`` (so it does not move when picks are
-    added) and covers the bounding box; returns an ``(m, 2)`` array.
+
+def grid_centres(points, *, spacing_m):
+    """Centres of a regular grid of ``spacing_m`` over the picks' bounding box, none outside it.
+
+    The grid is anchored at multiples of ``spacing_m`` (so its inner nodes do not move when
+    picks are added); on each axis the box's own edges are added where they lie more than half a
+    spacing from the nearest node, so every pick is within half a spacing of a node on each axis
+    while no centre lies beyond the picks (which lie on the DEM: a centre off the picks would be a
+    window centred off the sheet). Returns an ``(m, 2)`` array.
     """
     xy = picks_xy(points)
     spacing = check_positive_m("spacing_m", spacing_m)
-    lo = np.floor(xy.min(axis=0) / spacing) * spacing
-    hi = np.ceil(xy.max(axis=0) / spacing) * spacing
-    gx = np.arange(lo[0], hi[0] + 0.5 * spacing, spacing)
-    gy = np.arange(lo[1], hi[1] + 0.5 * spacing, spacing)
+    lo = xy.min(axis=0)
+    hi = xy.max(axis=0)
+    gx = _axis_nodes(float(lo[0]), float(hi[0]), spacing)
+    gy = _axis_nodes(float(lo[1]), float(hi[1]), spacing)
     mx, my = np.meshgrid(gx, gy)
     return np.column_stack([mx.ravel(), my.ravel()])
 

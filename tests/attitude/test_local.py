@@ -157,14 +157,32 @@ def test_centres_along_contacts_are_spaced_and_cover_every_pick():
 
 def test_grid_centres_are_anchored_and_sparse_windows_dropped():
     g = grid_centres(np.array([[105.0, 260.0], [390.0, 410.0]]), spacing_m=100.0)
-    assert np.allclose(np.unique(g[:, 0]), [100, 200, 300, 400])
-    assert np.allclose(np.unique(g[:, 1]), [200, 300, 400, 500])
+    # multiples of 100 m inside the picks' box, and the box's edges that lie more than 50 m from
+    # them (x 105 and 390; y 260 and 410 are within 50 m of 300 and 400): none outside the box
+    assert np.allclose(np.unique(g[:, 0]), [105, 200, 300, 390])
+    assert np.allclose(np.unique(g[:, 1]), [300, 400])
     pts = scattered_dome_picks(n=600)  # about 19 picks per 800 m window on average
     la = local_attitudes(pts, window_m=800.0, along_contacts=False, n_resamples=20,
                          min_points=12)
     assert len(la) > 10 and np.all(la.n_picks >= 12)
     sparse = local_attitudes(pts, window_m=100.0, along_contacts=False, n_resamples=20)
     assert len(sparse) == 0 and sparse.dip_deg.shape == (0,)
+
+
+@pytest.mark.parametrize("spacing", [37.0, 100.0, 250.0, 999.0, 5000.0])
+def test_grid_centres_stay_inside_the_picks_and_reach_every_pick(spacing):
+    pts = scattered_dome_picks(n=400)
+    g = grid_centres(pts, spacing_m=spacing)
+    lo, hi = pts[:, :2].min(axis=0), pts[:, :2].max(axis=0)
+    assert np.all(g >= lo) and np.all(g <= hi)
+    # every pick within half a spacing of a centre on each axis (the grid still covers the box)
+    for axis in (0, 1):
+        nodes = np.unique(g[:, axis])
+        gap = np.abs(pts[:, axis][:, None] - nodes[None, :]).min(axis=1)
+        assert np.all(gap <= 0.5 * spacing + 1e-9)
+    # inner nodes anchored at multiples of the spacing
+    inner = np.unique(g[:, 0])[1:-1]
+    assert np.allclose(np.round(inner / spacing) * spacing, inner)
 
 
 def test_explicit_centres_and_too_few_picks():
