@@ -67,6 +67,14 @@ def key_of(flag: str) -> str:
     return flag[2:].replace("-", "_")
 
 
+def job_key_names() -> dict:
+    """Every option's name in a job file (its key), for messages that name options (the ``names``
+    of :func:`strikeline.pipeline.options.check_value` and :func:`strikeline.pipeline.run.run`)."""
+    from strikeline.pipeline.options import CLI_OPTION_NAMES
+
+    return {n: key_of(flag) for n, flag in CLI_OPTION_NAMES.items()}
+
+
 def _text(value) -> str:
     return repr(value) if isinstance(value, str) else str(value).lower() if isinstance(value, bool) else str(value)
 
@@ -171,7 +179,7 @@ def read_job(path, *, out) -> Job:
         duplicate or unusable names, options ``run`` would refuse. (A missing or unreadable input
         file is the sheet's :attr:`Sheet.problem` instead.)
     """
-    from strikeline.pipeline.options import CLI_OPTION_NAMES, RunOptions, check_options, option
+    from strikeline.pipeline.options import RunOptions, check_options, option
 
     path = Path(os.fspath(path))
     doc = read_toml(path)
@@ -192,7 +200,7 @@ def read_job(path, *, out) -> Job:
         raise InputError(f"job file '{path}': [defaults]: {NAME_KEY} belongs to each [[sheet]], not to the defaults")
     actions = _run_actions()
     by_key = {key_of(flag): a for flag, a in actions.items() if a.dest not in BATCH_DECIDES}
-    names = {n: key_of(flag) for n, flag in CLI_OPTION_NAMES.items()}
+    names = job_key_names()
     field_names = [f.name for f in fields(RunOptions)]
     reserved = {V.BATCH_FILE, V.INDEX_FILE, V.INDEX_PAGE, V.MANIFEST_FILE}
     seen: dict[str, int] = {}

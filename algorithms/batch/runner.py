@@ -90,6 +90,7 @@ def run_sheet(name: str, opts, command: list, stamp: str) -> dict:
     a worker process or on a dask worker."""
     from strikeline.io._gdal import file_date
     from strikeline.io.interrupt import signals_as_exceptions
+    from strikeline.batch.job import job_key_names
     from strikeline.pipeline import run
     from strikeline.pipeline.command import command_line
     from strikeline.pipeline.progress import WARNING, level_of
@@ -104,7 +105,7 @@ def run_sheet(name: str, opts, command: list, stamp: str) -> dict:
 
     try:
         with signals_as_exceptions(), command_line(command), file_date(stamp):
-            run(opts, log=log)
+            run(opts, log=log, names=job_key_names())  # options named by their job-file keys
     except StrikelineError as exc:
         status, error = "failed", one_line(exc)
     except Exception as exc:  # a bug, not bad input: recorded, and the other sheets go on

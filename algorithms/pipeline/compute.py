@@ -149,7 +149,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
     model = model_surface(picks, opts, grid, boreholes=inputs.boreholes_xyz, orientations=inputs.orientations,
                           bounds=None if ub is None else ub.bounds,
                           what=what, is_cancelled=is_cancelled, sigma=sigma, vertex_spacing_m=spacing, gap_m=gap)
-    log_model_choice(model, what="surface model", log=log)
+    log_model_choice(model, what="surface model", log=log, names=names)
     unit_check = None if ub is None else map_unit_check(model, inputs.unit_polygons, inputs.unit_names, inputs.dem,
                                                         inputs.dem_grid, opts, ub, log=log)
     step("grids")
@@ -210,7 +210,7 @@ def compute(inputs: Inputs, opts: RunOptions, *, log: Log = _quiet, progress=Non
         top_model = model_surface(top_picks, opts, grid, what=twhat, is_cancelled=is_cancelled,
                                   sigma=pick_sigmas(inputs, top_picks, opts),
                                   vertex_spacing_m=vertex_spacing_m(inputs.top_contacts.geoms))
-        log_model_choice(top_model, what="top surface model", log=log)
+        log_model_choice(top_model, what="top surface model", log=log, names=names)
         if tiles is None:
             top_surface = top_model.evaluate_grid(grid, is_cancelled=is_cancelled)
             vth, tth = isopach_grids(top_surface, surface, grid)

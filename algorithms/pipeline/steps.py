@@ -401,8 +401,10 @@ def depth_trace_misfit(dem, dem_grid: Grid, surface, contacts: VectorLayer | Non
     return out
 
 
-def log_model_choice(model: SurfaceModel, *, what: str, log: Log = _quiet) -> None:
-    """Say in the log which models were scored, their scores, the hold-out block and why."""
+def log_model_choice(model: SurfaceModel, *, what: str, log: Log = _quiet, names: dict | None = None) -> None:
+    """Say in the log which models were scored, their scores, the hold-out block and why (``names``:
+    how the caller names the options, as :func:`strikeline.pipeline.options.check_value`; default the
+    command line's flags)."""
     if not model.cv_rmse_m:
         log(f"{what}: {model.kind} (fixed, not cross-validated)")
         return
@@ -413,13 +415,20 @@ def log_model_choice(model: SurfaceModel, *, what: str, log: Log = _quiet) -> No
     if model.choice is not None:
         log(f"{what}: {model.choice.reason}")
     else:
-        log(f"{what}: {model.kind} as asked (--model)")
-    hint = error_scale_hint(model)
+        log(f"{what}: {model.kind} as asked ({_option_called('model', names)})")
+    hint = error_scale_hint(model, names=names)
     if hint:
         log(f"warning: {what}: {hint}")
 
 
-def error_scale_hint(model: SurfaceModel) -> str | None:
+def _option_called(name: str, names: dict | None) -> str:
+    """An option as the caller names it (``names``; default the command line's flag)."""
+    from strikeline.pipeline.options import CLI_OPTION_NAMES
+
+    return (names or {}).get(name) or CLI_OPTION_NAMES.get(name) or name
+
+
+def error_scale_hint(model: SurfaceModel, *, names: dict | None = None) -> str | None:
     """A warning when the stated pick errors and the scatter of held-out picks disagree by more
     than a factor 3: the stated errors set the model choice's tolerance and the misfit check's
     threshold, so they should be the map's and the DEM's real errors."""
@@ -435,5 +444,6 @@ def error_scale_hint(model: SurfaceModel) -> str | None:
     which = "smaller" if ratio < 1 else "larger"
     return (f"held-out picks scatter by {seen:.3g} m (trimmed RMS of the best model) against a stated pick error of "
             f"{model.stated_sigma_m:.3g} m: the real errors look {1 / ratio if ratio < 1 else ratio:.0f} times {which}; "
-            "state the DEM's vertical error (--dem-sigma) and the map's positional error (--contact-sigma, "
-            "--contour-sigma), which set the model choice's tolerance and the misfit check's threshold")
+            f"state the DEM's vertical error ({_option_called('dem_sigma_m', names)}) and the map's positional error "
+            f"({_option_called('contact_sigma_m', names)}, {_option_called('contour_sigma_m', names)}), which set "
+            "the model choice's tolerance and the misfit check's threshold")
