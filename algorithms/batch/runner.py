@@ -1,4 +1,5 @@
-"""Running a job's sheets: in this process, in local worker processes, or on a dask cluster.
+"""Running a job's sheets: one at a time or several at once in local worker processes, or on a dask
+cluster.
 
 Every sheet is one :func:`strikeline.pipeline.run` into ``OUT/NAME`` (atomic: a failed sheet
 leaves its folder as it was). A sheet whose inputs (SHA-256 of every file, GDAL's side files
@@ -153,8 +154,8 @@ def dask_client(address: str):
 
 
 def run_sheets(tasks: list, *, workers: int = 1, client=None, done=None) -> dict:
-    """Run ``tasks`` (argument tuples of :func:`run_sheet`) here, in ``workers`` local processes,
-    or on the dask ``client``'s cluster (:func:`dask_client`); ``done(result)`` is called as each
+    """Run ``tasks`` (argument tuples of :func:`run_sheet`) in ``workers`` local processes (each
+    sheet in a fresh one; 1: one sheet at a time), or on the dask ``client``'s cluster (:func:`dask_client`); ``done(result)`` is called as each
     sheet finishes. Returns the results by sheet name."""
     done = done or (lambda r: None)
     results = {}

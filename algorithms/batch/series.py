@@ -101,7 +101,7 @@ def run_batch(job_path, out, *, argv=(), workers: int = 1, scheduler: str | None
         The batch's command line after the program name, ``batch`` included (recorded, without
         the execution options, in every sheet's summary; default ``batch JOB --out OUT``).
     workers : int
-        Sheets run at once in local worker processes (1: in this process).
+        Sheets run at once in local worker processes (1: one at a time, each in a fresh process).
     scheduler : str, optional
         Address of a dask.distributed scheduler to run the sheets on instead.
     force : bool
