@@ -93,6 +93,12 @@ class RunOptions:
 
 
 # --------------------------------------------------------------------------- checks on options
+def option_called(name: str, names: dict | None = None) -> str:
+    """Option ``name`` as messages call it: as ``names`` says (the caller's words: a QGIS tool's
+    parameter labels, a job file's keys), else its command-line flag, else its name."""
+    return (names or {}).get(name) or CLI_OPTION_NAMES.get(name) or name
+
+
 def check_value(name: str, value, *, names: dict | None = None):
     """Refuse a value of option ``name`` outside the table's bounds or allowed values.
 
@@ -103,7 +109,7 @@ def check_value(name: str, value, *, names: dict | None = None):
     o = option(name)
     if value is None:
         return None
-    what = (names or CLI_OPTION_NAMES).get(name) or o.flag or o.name
+    what = option_called(name, names)
     if o.choices:
         if value not in o.choices:
             allowed = ", ".join(map(str, (o.cli_value(c) for c in o.choices)))
@@ -140,7 +146,7 @@ def check_options(opts: RunOptions, *, names: dict | None = None) -> None:
     if getattr(opts, "extent", None) is not None:
         from strikeline.geometry.grid import check_extent
 
-        check_extent(opts.extent, what=(names or CLI_OPTION_NAMES).get("extent") or "--extent")
+        check_extent(opts.extent, what=option_called("extent", names))
     check_out_folder(opts.out, overwrite=opts.overwrite, inputs=input_paths(opts))
 
 

@@ -30,7 +30,7 @@ from strikeline.attitude import (
 )
 from strikeline.pipeline.inputs import Inputs
 from strikeline.pipeline.options import (FLAG_CELLS, MISFIT_Z, SEGMENT_CELLS, SPLINE_SMOOTHING, Log, RunOptions,
-                                        _quiet, default)
+                                        _quiet, default, option_called)
 
 
 # --------------------------------------------------------------------------- steps
@@ -415,17 +415,10 @@ def log_model_choice(model: SurfaceModel, *, what: str, log: Log = _quiet, names
     if model.choice is not None:
         log(f"{what}: {model.choice.reason}")
     else:
-        log(f"{what}: {model.kind} as asked ({_option_called('model', names)})")
+        log(f"{what}: {model.kind} as asked ({option_called('model', names)})")
     hint = error_scale_hint(model, names=names)
     if hint:
         log(f"warning: {what}: {hint}")
-
-
-def _option_called(name: str, names: dict | None) -> str:
-    """An option as the caller names it (``names``; default the command line's flag)."""
-    from strikeline.pipeline.options import CLI_OPTION_NAMES
-
-    return (names or {}).get(name) or CLI_OPTION_NAMES.get(name) or name
 
 
 def error_scale_hint(model: SurfaceModel, *, names: dict | None = None) -> str | None:
@@ -444,6 +437,6 @@ def error_scale_hint(model: SurfaceModel, *, names: dict | None = None) -> str |
     which = "smaller" if ratio < 1 else "larger"
     return (f"held-out picks scatter by {seen:.3g} m (trimmed RMS of the best model) against a stated pick error of "
             f"{model.stated_sigma_m:.3g} m: the real errors look {1 / ratio if ratio < 1 else ratio:.0f} times {which}; "
-            f"state the DEM's vertical error ({_option_called('dem_sigma_m', names)}) and the map's positional error "
-            f"({_option_called('contact_sigma_m', names)}, {_option_called('contour_sigma_m', names)}), which set "
+            f"state the DEM's vertical error ({option_called('dem_sigma_m', names)}) and the map's positional error "
+            f"({option_called('contact_sigma_m', names)}, {option_called('contour_sigma_m', names)}), which set "
             "the model choice's tolerance and the misfit check's threshold")
