@@ -155,8 +155,9 @@ def dask_client(address: str):
 
 def run_sheets(tasks: list, *, workers: int = 1, client=None, done=None) -> dict:
     """Run ``tasks`` (argument tuples of :func:`run_sheet`) in ``workers`` local processes (each
-    sheet in a fresh one; 1: one sheet at a time), or on the dask ``client``'s cluster (:func:`dask_client`); ``done(result)`` is called as each
-    sheet finishes. Returns the results by sheet name."""
+    sheet in a fresh one; 1: one sheet at a time), or on the dask ``client``'s cluster
+    (:func:`dask_client`); ``done(result)`` is called as each sheet finishes. Returns the results
+    by sheet name."""
     done = done or (lambda r: None)
     results = {}
     if not tasks:

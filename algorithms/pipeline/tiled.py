@@ -494,16 +494,15 @@ def _gather(band, computing, cols: int, single: set) -> dict:
 
 
 def contours_of_blocks(tiles: BlockGrids, grid: Grid, *, interval_m: float, extrapolated_fn=None,
-                       is_cancelled=None, valid=None):
+                       is_cancelled=None):
     """Structure contours of the surface written block by block
     (:func:`strikeline.pipeline.steps.structure_contours` on the lines GDAL's contour generator
-    draws from the float64 scratch copy, :func:`strikeline.io.gridfiles.contour_lines_from_file`;
-    ``valid()``: the surface's valid cells for the trimming, read meanwhile elsewhere)."""
+    draws from the float64 scratch copy, :func:`strikeline.io.gridfiles.contour_lines_from_file`)."""
     from strikeline.io.gridfiles import contour_lines_from_file
     from strikeline.pipeline.steps import structure_contours
 
     lines = contour_lines_from_file(tiles.scratch["surface"], grid, interval_m=interval_m,
-                                    any_valid=tiles.any_valid["surface"], is_cancelled=is_cancelled, valid=valid)
+                                    any_valid=tiles.any_valid["surface"], is_cancelled=is_cancelled)
     return structure_contours(None, grid, interval_m=interval_m, extrapolated_fn=extrapolated_fn, lines=lines)
 
 

@@ -13,7 +13,8 @@ from pathlib import Path
 
 from strikeline import CAUTION, __version__
 from strikeline import vocabulary as V
-from strikeline.report.sentences import MODEL_WORDS, RULE_WORDS, answer_sentences, number, plain_answer, plane_words  # noqa: F401
+from strikeline.report.sentences import (  # noqa: F401
+    MODEL_WORDS, RULE_WORDS, answer_sentences, number, plain_answer, plane_words)
 
 #: What a reader sees when matplotlib is missing (one log line; the run still succeeds).
 MISSING_PLOT = (f"report: {V.REPORT_FILE} not written because matplotlib is not installed; install the plot "
